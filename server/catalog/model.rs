@@ -1,0 +1,359 @@
+//! The catalog's vocabulary: closed sets of words stored as text, and the row types.
+//!
+//! Each enum maps one-to-one to the values a `check` constraint in `migrations/` allows, so a
+//! value that parses here is one the database accepts.
+
+use std::fmt;
+
+/// Define an enum stored as text, with `as_str`, `label`, `ALL` and `FromStr`.
+macro_rules! text_enum {
+    ($(#[$meta:meta])* $name:ident { $($(#[$vmeta:meta])* $variant:ident => $text:literal, $label:literal;)+ }) => {
+        $(#[$meta])*
+        #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
+        pub enum $name {
+            $($(#[$vmeta])* #[serde(rename = $text)] $variant,)+
+        }
+
+        impl $name {
+            /// Every value, in display order.
+            pub const ALL: &'static [$name] = &[$($name::$variant),+];
+
+            /// The stored (and URL) form.
+            pub fn as_str(self) -> &'static str {
+                match self { $($name::$variant => $text),+ }
+            }
+
+            /// The form shown to people.
+            pub fn label(self) -> &'static str {
+                match self { $($name::$variant => $label),+ }
+            }
+
+            /// The stored forms, comma-separated, for error messages.
+            pub fn accepted() -> String {
+                Self::ALL.iter().map(|v| v.as_str()).collect::<Vec<_>>().join(", ")
+            }
+        }
+
+        impl std::str::FromStr for $name {
+            type Err = String;
+            fn from_str(s: &str) -> Result<Self, Self::Err> {
+                match s.trim() {
+                    $($text => Ok($name::$variant),)+
+                    other => Err(format!("'{}' is not one of: {}", other, Self::accepted())),
+                }
+            }
+        }
+
+        impl fmt::Display for $name {
+            fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str(self.label())
+            }
+        }
+    };
+}
+
+text_enum!(
+    /// Coarse Hubble type of the host.
+    Morphology {
+        /// E
+        Elliptical => "elliptical", "elliptical";
+        /// S0
+        Lenticular => "lenticular", "lenticular";
+        /// S
+        Spiral => "spiral", "spiral";
+        /// Irr
+        Irregular => "irregular", "irregular";
+        /// Not known
+        Unknown => "unknown", "unknown";
+    }
+);
+
+text_enum!(
+    /// Kind of bulge: classical bulges (and ellipticals) or disc-like pseudo bulges.
+    BulgeKind {
+        /// Classical bulge or elliptical.
+        Classical => "classical", "classical";
+        /// Pseudo bulge.
+        Pseudo => "pseudo", "pseudo";
+        /// Not known.
+        Unknown => "unknown", "unknown";
+    }
+);
+
+text_enum!(
+    /// Inner surface-brightness profile.
+    CentreKind {
+        /// Flattened core.
+        Core => "core", "core";
+        /// Power-law cusp.
+        PowerLaw => "power_law", "power law";
+        /// Not known.
+        Unknown => "unknown", "unknown";
+    }
+);
+
+text_enum!(
+    /// How a galaxy's distance was measured.
+    DistanceMethod {
+        /// Surface-brightness fluctuations.
+        Sbf => "sbf", "SBF";
+        /// Cepheid period–luminosity.
+        Cepheid => "cepheid", "Cepheids";
+        /// Tip of the red-giant branch.
+        Trgb => "trgb", "TRGB";
+        /// Recession velocity and a Hubble constant.
+        HubbleFlow => "hubble_flow", "Hubble flow";
+        /// Maser geometry.
+        Maser => "maser", "maser";
+        /// Tully–Fisher relation.
+        TullyFisher => "tully_fisher", "Tully–Fisher";
+        /// Anything else.
+        Other => "other", "other";
+    }
+);
+
+text_enum!(
+    /// A measured quantity.
+    Quantity {
+        /// Black-hole mass, log10 M_sun.
+        BhMass => "bh_mass", "black-hole mass";
+        /// Bulge velocity dispersion, log10 km/s.
+        Sigma => "sigma", "velocity dispersion";
+        /// Bulge mass, log10 M_sun.
+        BulgeMass => "bulge_mass", "bulge mass";
+        /// Bulge luminosity in a band, log10 L_sun.
+        BulgeLuminosity => "bulge_luminosity", "bulge luminosity";
+    }
+);
+
+text_enum!(
+    /// How a black-hole mass was measured.
+    MassMethod {
+        /// Stellar dynamics.
+        StellarDynamics => "stellar_dynamics", "stellar dynamics";
+        /// Gas dynamics.
+        GasDynamics => "gas_dynamics", "gas dynamics";
+        /// Water masers.
+        Maser => "maser", "maser";
+        /// Reverberation mapping.
+        Reverberation => "reverberation", "reverberation mapping";
+    }
+);
+
+text_enum!(
+    /// How a bulge mass was obtained.
+    BulgeMassMethod {
+        /// Dynamical (virial or Jeans) mass: scales with distance.
+        Dynamical => "dynamical", "dynamical";
+        /// Luminosity times a mass-to-light ratio: scales with distance squared.
+        Photometric => "photometric", "photometric";
+    }
+);
+
+text_enum!(
+    /// Which velocity dispersion: relations must never mix them silently.
+    SigmaDefinition {
+        /// Luminosity-weighted within the effective radius.
+        Effective => "sigma_e", "σ_e (within r_e)";
+        /// Central, within a small aperture.
+        Central => "sigma_c", "σ_c (central)";
+    }
+);
+
+text_enum!(
+    /// Review state of a submission (and of its measurements).
+    SubmissionState {
+        /// Waiting for a reviewer.
+        Pending => "pending", "pending";
+        /// Accepted into the catalog.
+        Accepted => "accepted", "accepted";
+        /// Rejected by a reviewer.
+        Rejected => "rejected", "rejected";
+        /// Withdrawn by the submitter.
+        Withdrawn => "withdrawn", "withdrawn";
+    }
+);
+
+/// A galaxy as stored.
+#[derive(Debug, Clone, PartialEq, sqlx::FromRow)]
+pub struct Galaxy {
+    /// Key.
+    pub galaxy_id: i64,
+    /// Name.
+    pub name: String,
+    /// URL form of the name.
+    pub slug: String,
+    /// Stored form of [`Morphology`].
+    pub morphology: String,
+    /// Stored form of [`BulgeKind`].
+    pub bulge_kind: String,
+    /// Stored form of [`CentreKind`].
+    pub centre_kind: String,
+    /// Adopted distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1-σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// Stored form of [`DistanceMethod`].
+    pub distance_method: String,
+}
+
+/// A new galaxy, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewGalaxy {
+    /// Name as the group writes it.
+    pub name: String,
+    /// Morphology.
+    pub morphology: Morphology,
+    /// Bulge kind.
+    pub bulge_kind: BulgeKind,
+    /// Centre kind.
+    pub centre_kind: CentreKind,
+    /// Adopted distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1-σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// Distance method.
+    pub distance_method: DistanceMethod,
+}
+
+/// A measurement as stored, with its submission's state and whether it is adopted.
+#[derive(Debug, Clone, PartialEq, sqlx::FromRow)]
+pub struct Measurement {
+    /// Key.
+    pub measurement_id: i64,
+    /// Galaxy.
+    pub galaxy_id: i64,
+    /// Submission it came with.
+    pub submission_id: i64,
+    /// Stored form of [`Quantity`].
+    pub quantity: String,
+    /// Canonical log10 value.
+    pub log_value: f64,
+    /// Lower error, dex.
+    pub err_minus_dex: f64,
+    /// Upper error, dex.
+    pub err_plus_dex: f64,
+    /// Symmetric error, dex.
+    pub err_dex: f64,
+    /// Upper limit?
+    pub upper_limit: bool,
+    /// Confidence of a limit, Gaussian σ.
+    pub limit_confidence_sigma: Option<f64>,
+    /// Method (see the schema).
+    pub method: String,
+    /// σ definition for dispersions.
+    pub sigma_definition: String,
+    /// Aperture for dispersions.
+    pub aperture: String,
+    /// Band for luminosities.
+    pub band: String,
+    /// Distance the source assumed, Mpc.
+    pub source_distance_mpc: Option<f64>,
+    /// Spatial resolution, arcsec.
+    pub resolution_arcsec: Option<f64>,
+    /// Reference.
+    pub reference: String,
+    /// Note.
+    pub note: String,
+    /// Value as entered.
+    pub value_text: String,
+    /// 'linear' or 'log10'.
+    pub value_scale: String,
+    /// Submission state (pending, accepted, ...).
+    pub state: String,
+    /// Whether this is the adopted value for its galaxy, quantity and band.
+    pub adopted: bool,
+    /// When it was stored (RFC 3339 UTC).
+    pub created_at: String,
+}
+
+/// A new measurement, validated and in canonical units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewMeasurement {
+    /// What was measured.
+    pub quantity: Quantity,
+    /// Canonical log10 value.
+    pub log_value: f64,
+    /// Lower error, dex.
+    pub err_minus_dex: f64,
+    /// Upper error, dex.
+    pub err_plus_dex: f64,
+    /// Symmetric error, dex.
+    pub err_dex: f64,
+    /// Upper limit?
+    pub upper_limit: bool,
+    /// Confidence of a limit in Gaussian σ (1, 2, 3); None for detections.
+    pub limit_confidence_sigma: Option<f64>,
+    /// Stored method word ('' when the quantity has none).
+    pub method: String,
+    /// Stored σ definition ('' unless sigma).
+    pub sigma_definition: String,
+    /// Aperture text.
+    pub aperture: String,
+    /// Band ('' unless luminosity).
+    pub band: String,
+    /// Distance the source assumed, Mpc.
+    pub source_distance_mpc: Option<f64>,
+    /// Resolution, arcsec.
+    pub resolution_arcsec: Option<f64>,
+    /// Reference.
+    pub reference: String,
+    /// Note.
+    pub note: String,
+    /// The value exactly as entered.
+    pub value_text: String,
+    /// 'linear' or 'log10'.
+    pub value_scale: String,
+}
+
+/// Lowercase ASCII slug of a name: letters and digits kept, common accented Latin letters
+/// folded to their base letter, everything else a single hyphen.
+pub fn slugify(name: &str) -> String {
+    let mut out = String::with_capacity(name.len());
+    for c in name.chars().flat_map(char::to_lowercase) {
+        let folded = match c {
+            'à' | 'á' | 'â' | 'ã' | 'ä' | 'å' => 'a',
+            'ç' => 'c',
+            'è' | 'é' | 'ê' | 'ë' => 'e',
+            'ì' | 'í' | 'î' | 'ï' => 'i',
+            'ñ' => 'n',
+            'ò' | 'ó' | 'ô' | 'õ' | 'ö' | 'ø' => 'o',
+            'ù' | 'ú' | 'û' | 'ü' => 'u',
+            'ý' | 'ÿ' => 'y',
+            other => other,
+        };
+        if folded.is_ascii_alphanumeric() {
+            out.push(folded);
+        } else if !out.ends_with('-') && !out.is_empty() {
+            out.push('-');
+        }
+    }
+    while out.ends_with('-') {
+        out.pop();
+    }
+    if out.is_empty() {
+        out.push_str("galaxy");
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn slugs_are_url_safe_and_fold_accents() {
+        assert_eq!(slugify("Corvane 17"), "corvane-17");
+        assert_eq!(slugify("  Élan–Brek  (north) "), "elan-brek-north");
+        assert_eq!(slugify("***"), "galaxy");
+    }
+
+    #[test]
+    fn text_enums_round_trip_and_refuse_unknown_words() {
+        for m in Morphology::ALL {
+            assert_eq!(m.as_str().parse::<Morphology>().unwrap(), *m);
+        }
+        let err = "blob".parse::<BulgeKind>().unwrap_err();
+        assert!(err.contains("classical, pseudo, unknown"), "{err}");
+    }
+}

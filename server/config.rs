@@ -1,0 +1,143 @@
+//! Settings of a running server, from command-line flags or `MASSLINE_*` environment variables.
+//!
+//! Every value is validated before anything starts: a bad value stops start-up with one sentence
+//! that names the setting (flag and variable) and the values it accepts.
+
+use std::net::SocketAddr;
+use std::path::PathBuf;
+
+/// Default SQLite file, relative to the working directory.
+pub const DEFAULT_DB_PATH: &str = "massline.db";
+/// Default address: loopback only, so a fresh install is not reachable from the network.
+pub const DEFAULT_BIND: &str = "127.0.0.1:8080";
+/// Default sphere-of-influence threshold: θ_infl / resolution at or above this counts as resolved
+/// (common practice: the sphere of influence should be at least as large as the resolution).
+pub const DEFAULT_SOI_THRESHOLD: f64 = 1.0;
+
+/// Everything `massline serve` needs.
+#[derive(clap::Args, Debug, Clone)]
+pub struct Settings {
+    /// SQLite database file; created, with its schema, when missing.
+    #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH, value_parser = parse_db_path)]
+    pub db_path: PathBuf,
+
+    /// Address to listen on, HOST:PORT (port 0 picks a free port).
+    #[arg(long, env = "MASSLINE_BIND", default_value = DEFAULT_BIND, value_parser = parse_bind)]
+    pub bind: SocketAddr,
+
+    /// Load the invented demo catalog into an empty database (does nothing on a non-empty one).
+    #[arg(long, env = "MASSLINE_DEMO", value_parser = parse_flag, default_value = "false", num_args = 0..=1, default_missing_value = "true")]
+    pub demo: bool,
+
+    /// Ratio θ_infl / resolution at or above which a black hole's sphere of influence counts as
+    /// resolved (a flag for reviewers, never a cut applied to fits).
+    #[arg(long, env = "MASSLINE_SOI_THRESHOLD", default_value_t = DEFAULT_SOI_THRESHOLD, value_parser = parse_soi_threshold)]
+    pub soi_threshold: f64,
+}
+
+impl Settings {
+    /// Settings for tests: a given database file, a free loopback port, no demo data.
+    pub fn for_tests(db_path: PathBuf) -> Self {
+        Self {
+            db_path,
+            bind: SocketAddr::from(([127, 0, 0, 1], 0)),
+            demo: false,
+            soi_threshold: DEFAULT_SOI_THRESHOLD,
+        }
+    }
+}
+
+fn parse_db_path(s: &str) -> Result<PathBuf, String> {
+    let trimmed = s.trim();
+    if trimmed.is_empty() {
+        return Err(
+            "the database path (--db, MASSLINE_DB) is empty; give a file name such as massline.db"
+                .into(),
+        );
+    }
+    let path = PathBuf::from(trimmed);
+    if path.is_dir() {
+        return Err(format!(
+            "the database path (--db, MASSLINE_DB) '{trimmed}' is a directory; give a file name such as {trimmed}/massline.db"
+        ));
+    }
+    Ok(path)
+}
+
+fn parse_bind(s: &str) -> Result<SocketAddr, String> {
+    s.trim().parse().map_err(|_| {
+        format!(
+            "the listen address (--bind, MASSLINE_BIND) '{s}' is not HOST:PORT with a numeric IP address; use e.g. 127.0.0.1:8080 or 0.0.0.0:8080"
+        )
+    })
+}
+
+fn parse_flag(s: &str) -> Result<bool, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "1" | "true" | "yes" | "on" => Ok(true),
+        "0" | "false" | "no" | "off" | "" => Ok(false),
+        _ => Err(format!(
+            "the demo switch (--demo, MASSLINE_DEMO) '{s}' is not a yes/no value; use true or false (also 1/0, yes/no, on/off)"
+        )),
+    }
+}
+
+fn parse_soi_threshold(s: &str) -> Result<f64, String> {
+    match s.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && v > 0.0 && v <= 100.0 => Ok(v),
+        _ => Err(format!(
+            "the sphere-of-influence threshold (--soi-threshold, MASSLINE_SOI_THRESHOLD) '{s}' must be a number above 0 and at most 100 (default 1)"
+        )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bind_accepts_ip_and_port_and_names_the_setting_when_wrong() {
+        assert_eq!(parse_bind("127.0.0.1:0").unwrap().port(), 0);
+        let err = parse_bind("localhost").unwrap_err();
+        assert!(
+            err.contains("MASSLINE_BIND") && err.contains("127.0.0.1:8080"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn demo_flag_accepts_the_usual_spellings_only() {
+        for yes in ["1", "true", "YES", "on"] {
+            assert!(parse_flag(yes).unwrap(), "{yes}");
+        }
+        for no in ["0", "false", "No", "off", ""] {
+            assert!(!parse_flag(no).unwrap(), "{no}");
+        }
+        assert!(parse_flag("maybe").unwrap_err().contains("MASSLINE_DEMO"));
+    }
+
+    #[test]
+    fn soi_threshold_must_be_positive_and_finite() {
+        assert!((parse_soi_threshold("2").unwrap() - 2.0).abs() < 1e-12);
+        for bad in ["0", "-1", "nan", "inf", "1000", "x"] {
+            assert!(
+                parse_soi_threshold(bad)
+                    .unwrap_err()
+                    .contains("--soi-threshold"),
+                "{bad}"
+            );
+        }
+    }
+
+    #[test]
+    fn db_path_refuses_empty_and_directories() {
+        assert!(parse_db_path("  ").is_err());
+        let dir = std::env::temp_dir();
+        assert!(
+            parse_db_path(dir.to_str().unwrap())
+                .unwrap_err()
+                .contains("directory")
+        );
+        assert_eq!(parse_db_path("x.db").unwrap(), PathBuf::from("x.db"));
+    }
+}

@@ -1,0 +1,26 @@
+//! massline: a research group's catalog of supermassive black holes and their host galaxies,
+//! with the black-hole–host scaling relations (M–σ, M_BH–M_bulge, M_BH–L) fitted from it.
+//!
+//! The layers, from the bottom up (arrows point one way; DEVELOPERS.md has the map):
+//!
+//! * [`units`]: newtypes for log and linear quantities and the parser for values as people type
+//!   them. Depends on nothing else here.
+//! * [`astro`]: constants and astrophysical formulas (sphere of influence, distance rescaling,
+//!   AGN quantities). Pure functions.
+//! * [`fit`]: the statistics (estimators of the scaling relations). Pure, synchronous, no I/O.
+//! * [`catalog`]: the only module with SQL: galaxies, measurements, submissions, audit events.
+//! * [`web`]: HTML pages; thin handlers over the layers above.
+//! * [`startup`] and [`config`]: settings, building and running the server.
+
+pub mod astro;
+pub mod catalog;
+pub mod config;
+pub mod error;
+// pub mod fit;
+// pub mod fit_command;
+pub mod startup;
+pub mod units;
+pub mod web;
+
+pub use config::Settings;
+pub use startup::Application;

@@ -1,0 +1,61 @@
+//! The `massline` command: run the server, or work with the catalog and the fits from a shell.
+//!
+//! ```text
+//! massline serve [--db PATH] [--bind ADDR] [--demo]   run the web service
+//! massline fit --input FILE.csv [...]                 fit a relation to a CSV of points
+//! ```
+
+use clap::{Parser, Subcommand};
+use tracing_subscriber::EnvFilter;
+
+use massline::{Application, Settings};
+
+/// massline: a research group's black-hole catalog and its scaling relations.
+#[derive(Parser, Debug)]
+#[command(name = "massline", version, about)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Run the web service.
+    Serve(Settings),
+    // FIT-SUBCOMMAND
+}
+
+fn main() -> std::process::ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Serve(settings) => serve(settings),
+        // FIT-RUN
+    };
+    match result {
+        Ok(()) => std::process::ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("massline: {e:#}");
+            std::process::ExitCode::FAILURE
+        }
+    }
+}
+
+fn serve(settings: Settings) -> anyhow::Result<()> {
+    tracing_subscriber::fmt()
+        .with_env_filter(
+            EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new("info,sqlx=warn")),
+        )
+        .init();
+    let runtime = tokio::runtime::Runtime::new()?;
+    runtime.block_on(async move {
+        let app = Application::build(settings).await?;
+        tracing::info!("massline is listening on http://{}", app.address());
+        app.run_until(async {
+            // If the signal handler cannot be installed the server still runs; it just has to be
+            // stopped by other means.
+            let _ = tokio::signal::ctrl_c().await;
+            tracing::info!("stopping: finishing open requests");
+        })
+        .await
+    })
+}

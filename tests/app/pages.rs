@@ -1,0 +1,277 @@
+//! The pages against the demo catalog.
+
+use massline::catalog::demo::{DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV, parse_demo};
+use massline::catalog::model::{Morphology, Quantity};
+
+use crate::helpers::{count, spawn_app, spawn_demo_app};
+
+#[tokio::test]
+async fn overview_counts_the_demo_catalog() {
+    let app = spawn_demo_app().await;
+    let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).unwrap();
+    let body = app.ok("/").await;
+    assert!(
+        body.contains(&format!(
+            "<dd id=\"galaxy-count\">{}</dd>",
+            demo.galaxies.len()
+        )),
+        "{body}"
+    );
+    // The demo load is one accepted change.
+    assert!(body.contains("<dd id=\"catalog-version\">1</dd>"), "{body}");
+    assert!(body.contains("Loaded the invented demo catalog"));
+    for label in [
+        "stellar dynamics",
+        "gas dynamics",
+        "maser",
+        "reverberation mapping",
+    ] {
+        assert!(body.contains(label), "missing method {label}");
+    }
+    let ellipticals = demo
+        .galaxies
+        .iter()
+        .filter(|g| g.morphology == Morphology::Elliptical)
+        .count();
+    assert!(
+        body.contains(&format!(
+            "<a href=\"/galaxies?morphology=elliptical\">elliptical</a></td><td class=\"num\">{ellipticals}</td>"
+        )),
+        "{body}"
+    );
+}
+
+#[tokio::test]
+async fn an_empty_catalog_says_how_to_get_data() {
+    let app = spawn_app().await;
+    let body = app.ok("/").await;
+    assert!(body.contains("The catalog is empty"), "{body}");
+    let table = app.ok("/galaxies").await;
+    assert!(
+        table.contains("No galaxy matches this selection."),
+        "{table}"
+    );
+}
+
+#[tokio::test]
+async fn catalog_table_pages_through_every_galaxy_once() {
+    let app = spawn_demo_app().await;
+    let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).unwrap();
+    let mut seen = Vec::new();
+    let mut page = 1;
+    loop {
+        let body = app.ok(&format!("/galaxies?per_page=25&page={page}")).await;
+        let rows: Vec<String> = body
+            .split("<td><a href=\"/galaxies/")
+            .skip(1)
+            .map(|s| s.split('"').next().unwrap().to_string())
+            .collect();
+        assert!(rows.len() <= 25);
+        seen.extend(rows);
+        if !body.contains("rel=\"next\"") {
+            break;
+        }
+        page += 1;
+    }
+    assert_eq!(seen.len(), demo.galaxies.len());
+    let mut unique = seen.clone();
+    unique.sort();
+    unique.dedup();
+    assert_eq!(unique.len(), seen.len(), "a galaxy appeared twice");
+    // Units are shown in the headers.
+    let body = app.ok("/galaxies").await;
+    for unit in ["[km/s]", "[Mpc]", "M☉, at adopted D"] {
+        assert!(body.contains(unit), "missing unit {unit}");
+    }
+}
+
+#[tokio::test]
+async fn catalog_table_sorts_by_a_column_in_both_directions() {
+    let app = spawn_demo_app().await;
+    let distances = |body: &str| -> Vec<f64> {
+        // Distance is the 7th cell: take the cells that end with " Mpc"-less "a ± b" in that column.
+        body.split("<tr>")
+            .filter(|row| row.contains("<td><a href=\"/galaxies/"))
+            .map(|row| {
+                let cells: Vec<&str> = row.split("<td").collect();
+                let cell = cells[7];
+                let text = cell.split('>').nth(1).unwrap().split('<').next().unwrap();
+                text.split(" ± ").next().unwrap().parse::<f64>().unwrap()
+            })
+            .collect()
+    };
+    let asc = distances(&app.ok("/galaxies?sort=distance&dir=asc&per_page=500").await);
+    let desc = distances(
+        &app.ok("/galaxies?sort=distance&dir=desc&per_page=500")
+            .await,
+    );
+    assert!(asc.len() >= 80);
+    assert!(
+        asc.windows(2).all(|w| w[0] <= w[1]),
+        "not ascending: {asc:?}"
+    );
+    assert!(
+        desc.windows(2).all(|w| w[0] >= w[1]),
+        "not descending: {desc:?}"
+    );
+}
+
+#[tokio::test]
+async fn catalog_table_filters_by_morphology_and_limits() {
+    let app = spawn_demo_app().await;
+    let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).unwrap();
+    let spirals = demo
+        .galaxies
+        .iter()
+        .filter(|g| g.morphology == Morphology::Spiral)
+        .count();
+    let body = app.ok("/galaxies?morphology=spiral&per_page=500").await;
+    assert_eq!(count(&body, "<td><a href=\"/galaxies/"), spirals);
+    assert!(
+        !body.contains(">elliptical<span"),
+        "an elliptical slipped through"
+    );
+
+    let limits = demo
+        .measurements
+        .iter()
+        .filter(|(_, m, adopted)| *adopted && m.quantity == Quantity::BhMass && m.upper_limit)
+        .count();
+    let body = app.ok("/galaxies?limits=limits&per_page=500").await;
+    assert_eq!(count(&body, "<td><a href=\"/galaxies/"), limits);
+    assert_eq!(
+        count(&body, "<td class=\"num\">&#60; "),
+        limits,
+        "limits are shown with '<'"
+    );
+}
+
+#[tokio::test]
+async fn sphere_of_influence_filter_splits_the_dynamical_masses() {
+    let app = spawn_demo_app().await;
+    let all = app.ok("/galaxies?per_page=500").await;
+    let resolved = app.ok("/galaxies?soi=resolved&per_page=500").await;
+    let unresolved = app.ok("/galaxies?soi=unresolved&per_page=500").await;
+    let n = |b: &str| count(b, "<td><a href=\"/galaxies/");
+    assert!(
+        n(&unresolved) >= 3,
+        "the demo plants unresolved spheres of influence"
+    );
+    assert!(n(&resolved) > n(&unresolved));
+    assert!(n(&resolved) + n(&unresolved) <= n(&all));
+    assert_eq!(count(&unresolved, "<td>not resolved</td>"), n(&unresolved));
+}
+
+#[tokio::test]
+async fn galaxy_page_shows_every_measurement_as_entered_and_canonical() {
+    let app = spawn_demo_app().await;
+    let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).unwrap();
+    // Pick the galaxy with the most measurements: it has a superseded mass.
+    let (gi, n) = (0..demo.galaxies.len())
+        .map(|gi| {
+            (
+                gi,
+                demo.measurements
+                    .iter()
+                    .filter(|(g, _, _)| *g == gi)
+                    .count(),
+            )
+        })
+        .max_by_key(|(_, n)| *n)
+        .unwrap();
+    let name = &demo.galaxies[gi].name;
+    let slug = massline::catalog::model::slugify(name);
+    let body = app.ok(&format!("/galaxies/{slug}")).await;
+    assert!(
+        body.contains(&format!("<h1>{}</h1>", askama_escape(name))),
+        "{body}"
+    );
+    // One row per measurement (rows start with the quantity cell).
+    assert_eq!(count(&body, "<td><code>"), n, "{body}");
+    for (_, m, _) in demo.measurements.iter().filter(|(g, _, _)| *g == gi) {
+        assert!(
+            body.contains(&askama_escape(&m.value_text)),
+            "missing '{}'",
+            m.value_text
+        );
+    }
+    assert!(body.contains("adopted</strong>"));
+    assert!(
+        body.contains("Sphere of influence: r<sub>infl</sub>"),
+        "{body}"
+    );
+}
+
+#[tokio::test]
+async fn unknown_galaxy_and_unknown_page_answer_404_pages() {
+    let app = spawn_demo_app().await;
+    let (status, body) = app.get("/galaxies/no-such-galaxy").await;
+    assert_eq!(status, 404);
+    assert!(
+        body.contains("The galaxy &#39;no-such-galaxy&#39; was not found"),
+        "{body}"
+    );
+    let (status, body) = app.get("/nowhere").await;
+    assert_eq!(status, 404);
+    assert!(body.contains("There is no page at /nowhere."), "{body}");
+}
+
+#[tokio::test]
+async fn bad_query_parameters_get_a_readable_400_page() {
+    let app = spawn_demo_app().await;
+    let (status, body) = app.get("/galaxies?sort=colour&morphology=blob").await;
+    assert_eq!(status, 400);
+    assert!(
+        body.contains("Parameter &#39;sort&#39;") || body.contains("Parameter 'sort'"),
+        "{body}"
+    );
+    assert!(body.contains("elliptical, lenticular, spiral"), "{body}");
+    let (status, body) = app.get("/galaxies?page=999").await;
+    assert_eq!(status, 400);
+    assert!(body.contains("page"), "{body}");
+}
+
+#[tokio::test]
+async fn health_check_and_security_headers() {
+    let app = spawn_app().await;
+    let response = app
+        .client
+        .get(format!("{}/healthz", app.address))
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(response.status().as_u16(), 200);
+    let csp = response
+        .headers()
+        .get("content-security-policy")
+        .expect("a CSP header")
+        .to_str()
+        .unwrap()
+        .to_string();
+    assert!(csp.contains("default-src 'self'") && csp.contains("frame-ancestors 'none'"));
+    assert_eq!(
+        response.headers().get("x-content-type-options").unwrap(),
+        "nosniff"
+    );
+    assert_eq!(response.text().await.unwrap(), "ok\n");
+    // Error pages carry them too.
+    let response = app
+        .client
+        .get(format!("{}/nowhere", app.address))
+        .send()
+        .await
+        .unwrap();
+    assert!(response.headers().contains_key("content-security-policy"));
+    // The stylesheet is served from the binary.
+    let css = app.ok("/static/massline.css").await;
+    assert!(css.contains("--accent"));
+}
+
+/// HTML-escape as askama does for text nodes.
+fn askama_escape(text: &str) -> String {
+    text.replace('&', "&#38;")
+        .replace('<', "&#60;")
+        .replace('>', "&#62;")
+        .replace('"', "&#34;")
+        .replace('\'', "&#39;")
+}
