@@ -7,30 +7,30 @@ use sqlx::SqlitePool;
 use tempfile::TempDir;
 
 /// A running server with its own database; dropping it deletes the database.
-pub struct TestApp {
+pub(crate) struct TestApp {
     /// e.g. "http://127.0.0.1:41234"
-    pub address: String,
+    pub(crate) address: String,
     /// The app's pool, for arranging and inspecting data through `massline::catalog`.
-    pub pool: SqlitePool,
+    pub(crate) pool: SqlitePool,
     /// The database file.
-    pub db_path: PathBuf,
+    pub(crate) db_path: PathBuf,
     /// A client that does not follow redirects (tests look at them).
-    pub client: reqwest::Client,
+    pub(crate) client: reqwest::Client,
     _dir: TempDir,
 }
 
 /// Start the app on an empty catalog.
-pub async fn spawn_app() -> TestApp {
+pub(crate) async fn spawn_app() -> TestApp {
     spawn_with(|_| {}).await
 }
 
 /// Start the app with the invented demo catalog loaded.
-pub async fn spawn_demo_app() -> TestApp {
+pub(crate) async fn spawn_demo_app() -> TestApp {
     spawn_with(|s| s.demo = true).await
 }
 
 /// Start the app with adjusted settings.
-pub async fn spawn_with(adjust: impl FnOnce(&mut Settings)) -> TestApp {
+pub(crate) async fn spawn_with(adjust: impl FnOnce(&mut Settings)) -> TestApp {
     let dir = tempfile::tempdir().expect("a temporary directory");
     let db_path = dir.path().join("catalog.sqlite");
     let mut settings = Settings::for_tests(db_path.clone());
@@ -53,7 +53,7 @@ pub async fn spawn_with(adjust: impl FnOnce(&mut Settings)) -> TestApp {
 
 impl TestApp {
     /// GET a path and return (status, body).
-    pub async fn get(&self, path: &str) -> (u16, String) {
+    pub(crate) async fn get(&self, path: &str) -> (u16, String) {
         let response = self
             .client
             .get(format!("{}{path}", self.address))
@@ -65,17 +65,14 @@ impl TestApp {
     }
 
     /// GET a path, assert 200, return the body.
-    #[track_caller]
-    pub fn ok<'a>(&'a self, path: &'a str) -> impl Future<Output = String> + 'a {
-        async move {
-            let (status, body) = self.get(path).await;
-            assert_eq!(status, 200, "GET {path} answered {status}:\n{body}");
-            body
-        }
+    pub(crate) async fn ok(&self, path: &str) -> String {
+        let (status, body) = self.get(path).await;
+        assert_eq!(status, 200, "GET {path} answered {status}:\n{body}");
+        body
     }
 }
 
 /// Count non-overlapping occurrences of `needle` in `haystack`.
-pub fn count(haystack: &str, needle: &str) -> usize {
+pub(crate) fn count(haystack: &str, needle: &str) -> usize {
     haystack.matches(needle).count()
 }
