@@ -21,6 +21,7 @@ insert into catalog_state (catalog_state_id) values (1);
 
 -- People who use the server. Filled by the accounts work; the demo load creates none.
 create table account (
+    -- key
     account_id integer primary key,
     -- login name, case-sensitive, unique
     username text not null unique check (length(username) between 1 and 64),
@@ -30,12 +31,15 @@ create table account (
     role text not null check (role in ('member', 'reviewer', 'admin')),
     -- 1 when the account may no longer log in or use tokens
     disabled integer not null default 0 check (disabled in (0, 1)),
+    -- when the account was created (RFC 3339 UTC)
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
+    -- last change of role, password or disabled flag
     updated_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now'))
 ) strict;
 
 -- Tokens that scripts use instead of a session. Only a SHA-256 of the token is stored.
 create table api_token (
+    -- key
     api_token_id integer primary key,
     -- owner of the token
     account_id integer not null references account (account_id),
@@ -45,6 +49,7 @@ create table api_token (
     token_sha256 text not null unique check (length(token_sha256) = 64),
     -- space-separated scopes, e.g. 'read submit'
     scopes text not null,
+    -- when it was issued
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
     -- last time the token authenticated a request; null if never
     last_used_at text,
@@ -54,6 +59,7 @@ create table api_token (
 
 -- One host galaxy.
 create table galaxy (
+    -- key
     galaxy_id integer primary key,
     -- the name as the group writes it; unique
     name text not null unique check (length(name) between 1 and 100),
@@ -72,12 +78,15 @@ create table galaxy (
     distance_err_mpc real not null check (distance_err_mpc >= 0 and distance_err_mpc < distance_mpc),
     -- how the distance was measured
     distance_method text not null check (distance_method in ('sbf', 'cepheid', 'trgb', 'hubble_flow', 'maser', 'tully_fisher', 'other')),
+    -- when the galaxy entered the catalog
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
+    -- last change of its description or adopted distance
     updated_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now'))
 ) strict;
 
 -- A batch of measurements someone put forward; reviewed as a whole.
 create table submission (
+    -- key
     submission_id integer primary key,
     -- who submitted; null for the demo load and admin imports run from the command line
     account_id integer references account (account_id),
@@ -88,16 +97,21 @@ create table submission (
     -- client-chosen key that makes a retried write harmless; null for pages that need none
     idempotency_key text unique,
     -- the submitter's note
-    note text not null default '',
+    note text not null default '' check (length(note) <= 2000),
+    -- when it was submitted
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
+    -- last change of state
     updated_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now'))
 ) strict;
 
 -- One measured quantity of one galaxy, as published, in canonical units.
 -- Its status is the state of its submission.
 create table measurement (
+    -- key
     measurement_id integer primary key,
+    -- the galaxy measured
     galaxy_id integer not null references galaxy (galaxy_id),
+    -- the submission it came with; its state is this measurement's status
     submission_id integer not null references submission (submission_id),
     -- what was measured
     quantity text not null check (quantity in ('bh_mass', 'sigma', 'bulge_mass', 'bulge_luminosity')),
@@ -141,6 +155,7 @@ create table measurement (
     value_text text not null check (length(value_text) between 1 and 200),
     -- how the entered number was read: linear or log10
     value_scale text not null check (value_scale in ('linear', 'log10')),
+    -- when it was stored
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
     -- plausible ranges of the canonical value (units.rs documents why)
     check (quantity <> 'bh_mass' or log_value between 3 and 11.5),
@@ -156,30 +171,40 @@ create index measurement_submission on measurement (submission_id);
 
 -- A reviewer's decision on a submission.
 create table review (
+    -- key
     review_id integer primary key,
+    -- the submission decided on
     submission_id integer not null references submission (submission_id),
     -- the reviewer
     account_id integer not null references account (account_id),
+    -- the outcome
     decision text not null check (decision in ('accepted', 'rejected')),
     -- the reviewer's reason, shown on the galaxy page
     note text not null default '' check (length(note) <= 2000),
+    -- when the decision was made
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now'))
 ) strict;
 
 -- Which measurement the group uses for each galaxy, quantity and band.
 create table adopted_value (
+    -- the galaxy
     galaxy_id integer not null references galaxy (galaxy_id),
+    -- the quantity adopted
     quantity text not null check (quantity in ('bh_mass', 'sigma', 'bulge_mass', 'bulge_luminosity')),
     -- photometric band for luminosities, empty otherwise
     band text not null default '',
+    -- the measurement the group uses
     measurement_id integer not null unique references measurement (measurement_id),
+    -- when it became the adopted one
     adopted_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
     primary key (galaxy_id, quantity, band)
 ) strict;
 
 -- Append-only history of everything that changed the catalog or accounts.
 create table audit_event (
+    -- key, increasing with time
     audit_event_id integer primary key,
+    -- when it happened (RFC 3339 UTC)
     at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now')),
     -- who did it; null for the system (demo load, command-line import)
     account_id integer references account (account_id),
@@ -205,6 +230,7 @@ end;
 
 -- A stored fit: enough to reproduce it exactly.
 create table fit_run (
+    -- key
     fit_run_id integer primary key,
     -- 'm_sigma', 'm_mbulge', 'm_l_v', ...
     relation text not null check (length(relation) between 1 and 64),
@@ -227,6 +253,7 @@ create table fit_run (
     seed integer,
     -- every other setting as JSON
     settings_json text not null default '{}',
+    -- when the fit was made
     created_at text not null default (strftime('%Y-%m-%dT%H:%M:%fZ', 'now'))
 ) strict;
 create index fit_run_lookup on fit_run (relation, method, catalog_version);
