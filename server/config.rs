@@ -33,6 +33,17 @@ pub struct Settings {
     /// resolved (a flag for reviewers, never a cut applied to fits).
     #[arg(long, env = "MASSLINE_SOI_THRESHOLD", default_value_t = DEFAULT_SOI_THRESHOLD, value_parser = parse_soi_threshold)]
     pub soi_threshold: f64,
+
+    /// Let visitors who are not logged in read the catalog pages and GET endpoints (nothing that
+    /// changes data, and no account pages). Off by default: without a session only the login
+    /// page, the stylesheet and the health check answer.
+    #[arg(long, env = "MASSLINE_PUBLIC_READ", value_parser = parse_public_read, default_value = "false", num_args = 0..=1, default_missing_value = "true")]
+    pub public_read: bool,
+
+    /// Mark cookies Secure and give them the `__Host-` prefix, and send HSTS. Turn on whenever
+    /// browsers reach the server over HTTPS, including behind a TLS-terminating proxy.
+    #[arg(long, env = "MASSLINE_SECURE_COOKIES", value_parser = parse_secure_cookies, default_value = "false", num_args = 0..=1, default_missing_value = "true")]
+    pub secure_cookies: bool,
 }
 
 impl Settings {
@@ -43,6 +54,8 @@ impl Settings {
             bind: SocketAddr::from(([127, 0, 0, 1], 0)),
             demo: false,
             soi_threshold: DEFAULT_SOI_THRESHOLD,
+            public_read: false,
+            secure_cookies: false,
         }
     }
 }
@@ -73,11 +86,29 @@ fn parse_bind(s: &str) -> Result<SocketAddr, String> {
 }
 
 fn parse_flag(s: &str) -> Result<bool, String> {
+    yes_no(s, "the demo switch (--demo, MASSLINE_DEMO)")
+}
+
+fn parse_public_read(s: &str) -> Result<bool, String> {
+    yes_no(
+        s,
+        "the public read switch (--public-read, MASSLINE_PUBLIC_READ)",
+    )
+}
+
+fn parse_secure_cookies(s: &str) -> Result<bool, String> {
+    yes_no(
+        s,
+        "the secure cookie switch (--secure-cookies, MASSLINE_SECURE_COOKIES)",
+    )
+}
+
+fn yes_no(s: &str, setting: &str) -> Result<bool, String> {
     match s.trim().to_ascii_lowercase().as_str() {
         "1" | "true" | "yes" | "on" => Ok(true),
         "0" | "false" | "no" | "off" | "" => Ok(false),
         _ => Err(format!(
-            "the demo switch (--demo, MASSLINE_DEMO) '{s}' is not a yes/no value; use true or false (also 1/0, yes/no, on/off)"
+            "{setting} '{s}' is not a yes/no value; use true or false (also 1/0, yes/no, on/off)"
         )),
     }
 }
@@ -114,6 +145,17 @@ mod tests {
             assert!(!parse_flag(no).unwrap(), "{no}");
         }
         assert!(parse_flag("maybe").unwrap_err().contains("MASSLINE_DEMO"));
+        assert!(
+            parse_public_read("maybe")
+                .unwrap_err()
+                .contains("MASSLINE_PUBLIC_READ")
+        );
+        assert!(
+            parse_secure_cookies("2")
+                .unwrap_err()
+                .contains("--secure-cookies")
+        );
+        assert!(parse_secure_cookies("on").unwrap());
     }
 
     #[test]

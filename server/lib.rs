@@ -8,16 +8,20 @@
 //! * [`astro`]: constants and astrophysical formulas (sphere of influence, distance rescaling,
 //!   AGN quantities). Pure functions.
 //! * [`fit`]: the statistics (estimators of the scaling relations). Pure, synchronous, no I/O.
-//! * [`catalog`]: the only module with SQL: galaxies, measurements, submissions, audit events.
+//! * [`catalog`]: the only module with SQL: galaxies, measurements, submissions, accounts,
+//!   sessions, tokens, audit events.
+//! * [`auth`]: roles, sessions, API tokens, password rules and the layers that authenticate
+//!   every request and refuse forged ones.
 //! * [`web`]: HTML pages; thin handlers over the layers above.
 //! * [`startup`] and [`config`]: settings, building and running the server.
 
 pub mod astro;
+pub mod auth;
 pub mod catalog;
 pub mod config;
 pub mod error;
-// pub mod fit;
-// pub mod fit_command;
+pub mod fit;
+pub mod fit_command;
 pub mod startup;
 pub mod units;
 pub mod web;

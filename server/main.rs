@@ -1,8 +1,11 @@
 //! The `massline` command: run the server, or work with the catalog and the fits from a shell.
 //!
 //! ```text
-//! massline serve [--db PATH] [--bind ADDR] [--demo]   run the web service
+//! massline serve [--db PATH] [--bind ADDR] [--demo] [--public-read] [--secure-cookies]
+//!                                                     run the web service
 //! massline fit --input FILE.csv [...]                 fit a relation to a CSV of points
+//! massline user add NAME --role ROLE [--generate]     create an account (see `user --help`)
+//! massline user set-role NAME ROLE | disable NAME | list
 //! ```
 
 use clap::{Parser, Subcommand};
@@ -22,14 +25,18 @@ struct Cli {
 enum Command {
     /// Run the web service.
     Serve(Settings),
-    // FIT-SUBCOMMAND
+    /// Fit a black-hole–host relation to a CSV of points and print the result.
+    Fit(massline::fit_command::FitArgs),
+    /// Manage accounts: add, set-role, disable, list.
+    User(massline::auth::cli::UserArgs),
 }
 
 fn main() -> std::process::ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Serve(settings) => serve(settings),
-        // FIT-RUN
+        Command::Fit(args) => massline::fit_command::run(&args, &mut std::io::stdout().lock()),
+        Command::User(args) => massline::auth::cli::run(&args, &mut std::io::stdout().lock()),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,
@@ -49,6 +56,14 @@ fn serve(settings: Settings) -> anyhow::Result<()> {
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async move {
         let app = Application::build(settings).await?;
+        if !app.demo_accounts().is_empty() {
+            // Printed once, to the console only (never to the log): these passwords are not
+            // stored anywhere in clear.
+            println!("Demo accounts created (the passwords are shown only now):");
+            for a in app.demo_accounts() {
+                println!("  {:<14} {:<9} {}", a.username, a.role, a.password);
+            }
+        }
         tracing::info!("massline is listening on http://{}", app.address());
         app.run_until(async {
             // If the signal handler cannot be installed the server still runs; it just has to be

@@ -3,17 +3,28 @@
 //! [`Application::build`] opens (and migrates) the database, loads the demo catalog when asked,
 //! binds the listener *first* (so port 0 works and the real port is known), and returns a value
 //! whose [`Application::run_until_stopped`] serves requests. Tests start the real app this way.
+//!
+//! While it runs, a background task deletes expired sessions and old failed-login rows every
+//! [`CLEANUP_EVERY`]; expiry itself is checked on every request, so the task only keeps the
+//! tables small.
 
 use std::net::SocketAddr;
 use std::sync::Arc;
+use std::time::Duration;
 
 use anyhow::Context;
 use sqlx::SqlitePool;
 use tokio::net::TcpListener;
 
+use crate::auth::clock::{Clock, SystemClock};
+use crate::auth::password::Passwords;
+use crate::auth::{self, Role};
 use crate::catalog;
 use crate::config::Settings;
 use crate::web;
+
+/// How often expired sessions and old failed-login rows are deleted.
+pub const CLEANUP_EVERY: Duration = Duration::from_secs(300);
 
 /// State shared by every handler: cheap to clone.
 #[derive(Clone)]
@@ -22,13 +33,36 @@ pub struct AppState {
     pub pool: SqlitePool,
     /// Validated settings.
     pub settings: Arc<Settings>,
+    /// The clock session limits and login locks are measured with.
+    pub clock: Arc<dyn Clock>,
+    /// Password hashing, two at a time, off the async runtime.
+    pub passwords: Passwords,
 }
+
+/// An account that `--demo` created, with its password (shown once).
+#[derive(Debug, Clone)]
+pub struct DemoAccount {
+    /// Login name.
+    pub username: String,
+    /// Role.
+    pub role: Role,
+    /// The generated password.
+    pub password: String,
+}
+
+/// The accounts `--demo` creates when missing.
+pub const DEMO_ACCOUNTS: [(&str, Role); 3] = [
+    ("demo-member", Role::Member),
+    ("demo-reviewer", Role::Reviewer),
+    ("demo-admin", Role::Admin),
+];
 
 /// A built, bound, not-yet-running server.
 pub struct Application {
     listener: TcpListener,
     address: SocketAddr,
     state: AppState,
+    demo_accounts: Vec<DemoAccount>,
 }
 
 impl Application {
@@ -38,7 +72,20 @@ impl Application {
     /// When the database cannot be opened or migrated, the demo cannot be loaded, or the
     /// address cannot be bound; each with a sentence saying which.
     pub async fn build(settings: Settings) -> anyhow::Result<Self> {
+        Self::build_with_clock(settings, Arc::new(SystemClock)).await
+    }
+
+    /// [`Application::build`] with a given clock (tests pass a `ManualClock`).
+    ///
+    /// # Errors
+    /// As [`Application::build`].
+    pub async fn build_with_clock(
+        settings: Settings,
+        clock: Arc<dyn Clock>,
+    ) -> anyhow::Result<Self> {
         let pool = catalog::connect(&settings.db_path).await?;
+        let passwords = Passwords::new().await?;
+        let mut demo_accounts = Vec::new();
         if settings.demo {
             match catalog::demo::load_demo(&pool)
                 .await
@@ -52,6 +99,23 @@ impl Application {
                     existing,
                     "the catalog already has galaxies; the demo catalog was not loaded"
                 ),
+            }
+            for (username, role) in DEMO_ACCOUNTS {
+                if catalog::accounts::find_by_username(&pool, username)
+                    .await?
+                    .is_some()
+                {
+                    continue;
+                }
+                let password = auth::cli::add_user(&pool, username, role, None)
+                    .await
+                    .context("could not create the demo accounts")?
+                    .context("a generated password was expected")?;
+                demo_accounts.push(DemoAccount {
+                    username: username.to_string(),
+                    role,
+                    password,
+                });
             }
         }
         let listener = TcpListener::bind(settings.bind).await.with_context(|| {
@@ -67,8 +131,17 @@ impl Application {
             state: AppState {
                 pool,
                 settings: Arc::new(settings),
+                clock,
+                passwords,
             },
+            demo_accounts,
         })
+    }
+
+    /// The demo accounts this start created, with their passwords (empty when none was made:
+    /// no `--demo`, or they existed already). `massline serve` prints them once.
+    pub fn demo_accounts(&self) -> &[DemoAccount] {
+        &self.demo_accounts
     }
 
     /// The address actually bound (with the real port when 0 was asked for).
@@ -81,6 +154,11 @@ impl Application {
         self.state.pool.clone()
     }
 
+    /// The shared state (tests use it to run the clean-up at a chosen moment).
+    pub fn state(&self) -> AppState {
+        self.state.clone()
+    }
+
     /// Serve until the future `shutdown` completes (e.g. Ctrl-C), then finish open requests.
     ///
     /// # Errors
@@ -89,11 +167,17 @@ impl Application {
         self,
         shutdown: impl Future<Output = ()> + Send + 'static,
     ) -> anyhow::Result<()> {
+        let cleanup = tokio::spawn(clean_up_periodically(self.state.clone()));
         let router = web::router(self.state);
-        axum::serve(self.listener, router)
-            .with_graceful_shutdown(shutdown)
-            .await
-            .context("the server stopped with an error")
+        let served = axum::serve(
+            self.listener,
+            router.into_make_service_with_connect_info::<SocketAddr>(),
+        )
+        .with_graceful_shutdown(shutdown)
+        .await
+        .context("the server stopped with an error");
+        cleanup.abort();
+        served
     }
 
     /// Serve forever (until the task is dropped).
@@ -102,5 +186,33 @@ impl Application {
     /// When the server fails while running.
     pub async fn run_until_stopped(self) -> anyhow::Result<()> {
         self.run_until(std::future::pending()).await
+    }
+}
+
+/// Delete expired sessions and old failed-login rows once.
+///
+/// # Errors
+/// When the database fails.
+pub async fn clean_up_once(state: &AppState) -> sqlx::Result<u64> {
+    catalog::accounts::delete_expired(
+        &state.pool,
+        state.clock.now_unix(),
+        auth::IDLE_LIMIT_S,
+        auth::ADMIN_IDLE_LIMIT_S,
+        auth::ABSOLUTE_LIMIT_S,
+        auth::FAILURE_POLICY.window_s,
+    )
+    .await
+}
+
+async fn clean_up_periodically(state: AppState) {
+    let mut every = tokio::time::interval(CLEANUP_EVERY);
+    loop {
+        every.tick().await;
+        match clean_up_once(&state).await {
+            Ok(n) if n > 0 => tracing::info!(sessions = n, "deleted expired sessions"),
+            Ok(_) => {}
+            Err(e) => tracing::warn!(error = %e, "could not delete expired sessions"),
+        }
     }
 }

@@ -9,6 +9,7 @@
 //! Queries are runtime-checked (`sqlx::query_as` with `FromRow`); each runs in some test against
 //! a freshly migrated temporary database, which is what catches a typo.
 
+pub mod accounts;
 pub mod demo;
 pub mod galaxies;
 pub mod history;

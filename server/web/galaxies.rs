@@ -364,6 +364,7 @@ pub(crate) struct OptionView {
 #[derive(Template, WebTemplate)]
 #[template(path = "pages/galaxies_list.html")]
 pub(crate) struct GalaxiesListPage {
+    nav: super::Nav,
     headers: Vec<HeaderView>,
     rows: Vec<RowView>,
     total: usize,
@@ -386,6 +387,7 @@ pub(crate) struct GalaxiesListPage {
 /// Show the catalog table.
 pub(crate) async fn list_galaxies(
     State(state): State<AppState>,
+    nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<GalaxiesListPage> {
     let Query(pairs) = query.map_err(|e| {
@@ -443,6 +445,7 @@ pub(crate) async fn list_galaxies(
         (q.page - 1) * q.per_page + 1
     };
     Ok(GalaxiesListPage {
+        nav,
         headers,
         rows,
         total,
@@ -587,6 +590,7 @@ pub(crate) struct SoiView {
 #[derive(Template, WebTemplate)]
 #[template(path = "pages/galaxy_show.html")]
 pub(crate) struct GalaxyShowPage {
+    nav: super::Nav,
     name: String,
     morphology: &'static str,
     bulge_kind: &'static str,
@@ -600,6 +604,7 @@ pub(crate) struct GalaxyShowPage {
 /// Show one galaxy with every measurement.
 pub(crate) async fn show_galaxy(
     State(state): State<AppState>,
+    nav: super::Nav,
     Path(slug): Path<String>,
 ) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
@@ -688,6 +693,7 @@ pub(crate) async fn show_galaxy(
         })
         .collect();
     Ok(GalaxyShowPage {
+        nav,
         name: galaxy.name.clone(),
         morphology: galaxy
             .morphology
@@ -779,7 +785,7 @@ mod tests {
         let err = TableQuery::parse(&pairs(&[("sort", "colour"), ("page", "0"), ("fish", "1")]))
             .unwrap_err();
         assert!(
-            err.contains("Parameter 'sort': 'colour' is not a column"),
+            err.contains("Parameter 'sort': 'colour' is not one of"),
             "{err}"
         );
         assert!(err.contains("Parameter 'page'"), "{err}");

@@ -1,44 +1,192 @@
-//! HTML pages. Handlers are thin: read the request, call `catalog` (and later `fit`, `charts`),
-//! and fill a page struct whose fields are already formatted for display.
+//! HTML pages and the small JSON API. Handlers are thin: read the request, call `catalog` (and
+//! later `fit`, `charts`), and fill a page struct whose fields are already formatted for display.
+//!
+//! Every route is added through [`Routes::add`] with the [`Access`] it asks for; the same list is
+//! exposed as [`route_table`], which the access-table test compares with `tests/access.toml`, so
+//! a route cannot be added without saying who may use it.
 //!
 //! Every response carries the same security headers (a strict Content-Security-Policy with no
-//! outside sources, nosniff, no framing, no referrer leaks). Static files are compiled into the
+//! outside sources and no inline script, nosniff, no framing, no referrer leaks, and
+//! `Cache-Control: no-store` unless a handler says otherwise), including error pages, 404s,
+//! refused requests, 413 and the 503 of a timed-out request. Static files are compiled into the
 //! binary, so a deployed server needs no files beside it.
 
+mod account;
+mod admin;
+mod api;
 mod display;
 mod galaxies;
+mod login;
 mod overview;
 
+use std::time::Duration;
+
 use axum::Router;
-use axum::extract::Request;
-use axum::http::{HeaderName, HeaderValue, StatusCode, header};
+use axum::extract::{FromRequestParts, Request};
+use axum::http::request::Parts;
+use axum::http::{HeaderName, HeaderValue, Method, StatusCode, header};
 use axum::response::{IntoResponse, Response};
-use axum::routing::get;
+use axum::routing::{MethodRouter, get, post};
 use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::set_header::SetResponseHeaderLayer;
+use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::TraceLayer;
 
+use crate::auth::middleware::{authenticate, guard, refuse_cross_site, require_form_token};
+use crate::auth::{Access, Principal, Role};
 use crate::error::render_error_page;
 use crate::startup::AppState;
 
 /// Largest request body accepted (forms and JSON); larger ones get 413.
 pub const BODY_LIMIT_BYTES: usize = 1024 * 1024;
 
+/// Longest time a request may take before the server gives up with 503 (a slow request is the
+/// server's problem, not the client's, so not 408; clients may retry a 503).
+pub const REQUEST_TIMEOUT: Duration = Duration::from_secs(30);
+
 /// The Content-Security-Policy of every page: nothing from outside the server, no inline script.
 /// Inline `style` attributes are allowed for plotters' SVG output.
 pub const CONTENT_SECURITY_POLICY: &str = "default-src 'self'; img-src 'self' data:; style-src 'self' 'unsafe-inline'; script-src 'self'; object-src 'none'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'";
 
+/// One route as listed in the route table.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RouteEntry {
+    /// HTTP method.
+    pub method: Method,
+    /// Path pattern as given to the router, e.g. "/galaxies/{slug}".
+    pub path: &'static str,
+    /// What it asks of the principal.
+    pub access: Access,
+}
+
+/// A router being built, with the list of what was added.
+struct Routes {
+    router: Router<AppState>,
+    table: Vec<RouteEntry>,
+}
+
+impl Routes {
+    fn new() -> Self {
+        Self {
+            router: Router::new(),
+            table: Vec::new(),
+        }
+    }
+
+    /// Add one method of one path, guarded by `access` and (for unsafe methods) the form token.
+    fn add(
+        mut self,
+        method: Method,
+        path: &'static str,
+        access: Access,
+        handler: MethodRouter<AppState>,
+    ) -> Self {
+        let guarded = handler
+            .layer(axum::middleware::from_fn(require_form_token))
+            .layer(axum::middleware::from_fn(move |req, next| {
+                guard(access, req, next)
+            }));
+        self.router = self.router.route(path, guarded);
+        self.table.push(RouteEntry {
+            method,
+            path,
+            access,
+        });
+        self
+    }
+}
+
+fn routes() -> Routes {
+    use Access::{Admin, Api, Public, Read, Session};
+    Routes::new()
+        .add(Method::GET, "/", Read, get(overview::show_overview))
+        .add(Method::GET, "/galaxies", Read, get(galaxies::list_galaxies))
+        .add(
+            Method::GET,
+            "/galaxies/{slug}",
+            Read,
+            get(galaxies::show_galaxy),
+        )
+        .add(Method::GET, "/healthz", Public, get(healthz))
+        .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
+        .add(Method::GET, "/login", Public, get(login::show_login))
+        .add(Method::POST, "/login", Public, post(login::log_in))
+        .add(Method::POST, "/logout", Session, post(login::log_out))
+        .add(Method::GET, "/account", Session, get(account::show_account))
+        .add(
+            Method::POST,
+            "/account/tokens",
+            Session,
+            post(account::create_token),
+        )
+        .add(
+            Method::POST,
+            "/account/tokens/{id}/revoke",
+            Session,
+            post(account::revoke_token),
+        )
+        .add(
+            Method::GET,
+            "/admin/accounts",
+            Admin,
+            get(admin::list_accounts),
+        )
+        .add(
+            Method::POST,
+            "/admin/accounts",
+            Admin,
+            post(admin::create_account),
+        )
+        .add(
+            Method::POST,
+            "/admin/accounts/{id}/role",
+            Admin,
+            post(admin::change_role),
+        )
+        .add(
+            Method::POST,
+            "/admin/accounts/{id}/disable",
+            Admin,
+            post(admin::disable_account),
+        )
+        .add(Method::GET, "/admin/audit", Admin, get(admin::show_audit))
+        .add(Method::GET, "/api/v1/me", Api, get(api::me))
+}
+
+/// Every route of the server with the access it asks for, in the order they were added.
+pub fn route_table() -> Vec<RouteEntry> {
+    routes().table
+}
+
 /// Build the router with all pages and layers.
 pub fn router(state: AppState) -> Router {
-    Router::new()
-        .route("/", get(overview::show_overview))
-        .route("/galaxies", get(galaxies::list_galaxies))
-        .route("/galaxies/{slug}", get(galaxies::show_galaxy))
-        .route("/healthz", get(healthz))
-        .route("/static/massline.css", get(stylesheet))
+    let secure = state.settings.secure_cookies;
+    let app = routes()
+        .router
         .fallback(not_found)
-        .with_state(state)
+        .layer(axum::middleware::from_fn_with_state(
+            state.clone(),
+            authenticate,
+        ))
+        .layer(axum::middleware::from_fn(refuse_cross_site))
+        .with_state(state);
+    with_baseline(app, REQUEST_TIMEOUT, secure)
+}
+
+/// The layers every response passes, whatever route answered (or none): body limit, timeout
+/// (503), and the security headers. `Cache-Control: no-store` is added unless the handler set
+/// its own, so pages of a logged-in person are never stored (ASVS 14.3.2).
+fn with_baseline(app: Router, timeout: Duration, secure: bool) -> Router {
+    let mut app = app
         .layer(RequestBodyLimitLayer::new(BODY_LIMIT_BYTES))
+        .layer(TimeoutLayer::with_status_code(
+            StatusCode::SERVICE_UNAVAILABLE,
+            timeout,
+        ))
+        .layer(SetResponseHeaderLayer::if_not_present(
+            header::CACHE_CONTROL,
+            HeaderValue::from_static("no-store"),
+        ))
         .layer(SetResponseHeaderLayer::overriding(
             header::CONTENT_SECURITY_POLICY,
             HeaderValue::from_static(CONTENT_SECURITY_POLICY),
@@ -59,7 +207,55 @@ pub fn router(state: AppState) -> Router {
             HeaderName::from_static("cross-origin-opener-policy"),
             HeaderValue::from_static("same-origin"),
         ))
-        .layer(TraceLayer::new_for_http())
+        .layer(SetResponseHeaderLayer::overriding(
+            HeaderName::from_static("permissions-policy"),
+            HeaderValue::from_static("camera=(), microphone=(), geolocation=()"),
+        ));
+    if secure {
+        // Only over HTTPS: tells browsers to use HTTPS for a year (ASVS 3.4.1).
+        app = app.layer(SetResponseHeaderLayer::overriding(
+            header::STRICT_TRANSPORT_SECURITY,
+            HeaderValue::from_static("max-age=31536000"),
+        ));
+    }
+    app.layer(TraceLayer::new_for_http())
+}
+
+/// What the page header needs to know about the visitor: who is logged in, whether they may
+/// see the admin pages, and the anti-forgery token for the logout form.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Nav {
+    /// Login name of the session, if any.
+    pub(crate) username: Option<String>,
+    /// Whether to link the admin pages.
+    pub(crate) is_admin: bool,
+    /// The session's anti-forgery token ("" without a session).
+    pub(crate) csrf: String,
+}
+
+impl Nav {
+    pub(crate) fn from_principal(principal: &Principal) -> Self {
+        match principal {
+            Principal::Session(s) => Self {
+                username: Some(s.username.clone()),
+                is_admin: s.role.includes(Role::Admin),
+                csrf: s.csrf_token.clone(),
+            },
+            _ => Self::default(),
+        }
+    }
+}
+
+impl<S: Send + Sync> FromRequestParts<S> for Nav {
+    type Rejection = std::convert::Infallible;
+
+    async fn from_request_parts(parts: &mut Parts, _state: &S) -> Result<Self, Self::Rejection> {
+        Ok(parts
+            .extensions
+            .get::<Principal>()
+            .map(Self::from_principal)
+            .unwrap_or_default())
+    }
 }
 
 /// Liveness and readiness: 200 "ok" when the database answers, 503 otherwise.
@@ -93,4 +289,73 @@ async fn not_found(request: Request) -> Response {
         format!("There is no page at {}.", request.uri().path()),
         false,
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use axum::body::Body;
+    use tower::ServiceExt;
+
+    #[tokio::test]
+    async fn a_slow_request_answers_503_with_the_security_headers() {
+        let slow = Router::new().route(
+            "/slow",
+            get(|| async {
+                tokio::time::sleep(Duration::from_secs(5)).await;
+                "late"
+            }),
+        );
+        let app = with_baseline(slow, Duration::from_millis(50), false);
+        let response = app
+            .oneshot(Request::builder().uri("/slow").body(Body::empty()).unwrap())
+            .await
+            .unwrap();
+        assert_eq!(response.status(), StatusCode::SERVICE_UNAVAILABLE);
+        let h = response.headers();
+        assert!(h.contains_key(header::CONTENT_SECURITY_POLICY));
+        assert_eq!(h[header::X_CONTENT_TYPE_OPTIONS], "nosniff");
+        assert_eq!(h[header::CACHE_CONTROL], "no-store");
+        assert!(!h.contains_key(header::STRICT_TRANSPORT_SECURITY));
+    }
+
+    #[tokio::test]
+    async fn hsts_is_sent_only_with_secure_cookies() {
+        let app = || Router::new().route("/", get(|| async { "ok" }));
+        let plain = with_baseline(app(), REQUEST_TIMEOUT, false)
+            .oneshot(Request::builder().uri("/").body(Body::empty()).unwrap())
+            .await
+            .unwrap();
+        assert!(
+            !plain
+                .headers()
+                .contains_key(header::STRICT_TRANSPORT_SECURITY)
+        );
+        let secure = with_baseline(app(), REQUEST_TIMEOUT, true)
+            .oneshot(Request::builder().uri("/").body(Body::empty()).unwrap())
+            .await
+            .unwrap();
+        assert_eq!(
+            secure.headers()[header::STRICT_TRANSPORT_SECURITY],
+            "max-age=31536000"
+        );
+    }
+
+    #[test]
+    fn every_route_is_listed_once_with_its_access() {
+        let table = route_table();
+        let mut seen = std::collections::BTreeSet::new();
+        for r in &table {
+            assert!(seen.insert((r.method.to_string(), r.path)), "{r:?} twice");
+        }
+        let access = |m: Method, p: &str| {
+            table
+                .iter()
+                .find(|r| r.method == m && r.path == p)
+                .map(|r| r.access)
+        };
+        assert_eq!(access(Method::GET, "/login"), Some(Access::Public));
+        assert_eq!(access(Method::GET, "/admin/audit"), Some(Access::Admin));
+        assert_eq!(access(Method::GET, "/galaxies"), Some(Access::Read));
+    }
 }

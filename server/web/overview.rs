@@ -5,7 +5,7 @@ use askama_web::WebTemplate;
 use axum::extract::State;
 
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
-use crate::catalog::{history, overview};
+use crate::catalog::{accounts, history, overview};
 use crate::error::AppResult;
 use crate::startup::AppState;
 
@@ -31,6 +31,7 @@ pub(crate) struct EventView {
 #[derive(Template, WebTemplate)]
 #[template(path = "pages/overview.html")]
 pub(crate) struct OverviewPage {
+    nav: super::Nav,
     catalog_version: i64,
     galaxies: i64,
     detections: i64,
@@ -43,10 +44,14 @@ pub(crate) struct OverviewPage {
 }
 
 /// Show the overview.
-pub(crate) async fn show_overview(State(state): State<AppState>) -> AppResult<OverviewPage> {
+pub(crate) async fn show_overview(
+    State(state): State<AppState>,
+    nav: super::Nav,
+) -> AppResult<OverviewPage> {
     let o = overview::overview(&state.pool).await?;
     let version = history::current_version(&state.pool).await?;
-    let events = history::recent_events(&state.pool, RECENT_EVENTS).await?;
+    // Account events (logins, failures, tokens) are for the admin audit page only.
+    let events = accounts::recent_catalog_events(&state.pool, RECENT_EVENTS).await?;
     let counts =
         |items: &[overview::Count], param: &str, label: &dyn Fn(&str) -> Option<&'static str>| {
             items
@@ -61,6 +66,7 @@ pub(crate) async fn show_overview(State(state): State<AppState>) -> AppResult<Ov
                 .collect::<Vec<_>>()
         };
     Ok(OverviewPage {
+        nav,
         catalog_version: version,
         galaxies: o.galaxies,
         detections: o.detections,

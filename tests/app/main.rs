@@ -3,5 +3,9 @@
 
 mod helpers;
 
+mod access;
+mod accounts;
 mod pages;
+mod security;
+mod sessions;
 mod storage;

@@ -235,9 +235,15 @@ async fn schema_range_checks_refuse_impossible_rows() {
 #[tokio::test]
 async fn audit_events_cannot_be_changed_or_deleted() {
     let app = spawn_demo_app().await;
-    let events = history::recent_events(&app.pool, 5).await.unwrap();
+    // The demo load is one catalog event; the demo accounts add one account event each.
+    let events = massline::catalog::accounts::recent_catalog_events(&app.pool, 5)
+        .await
+        .unwrap();
     assert_eq!(events.len(), 1);
     assert_eq!(events[0].action, "demo_loaded");
+    let all = history::recent_events(&app.pool, 10).await.unwrap();
+    assert_eq!(all.len(), 4);
+    assert!(all[..3].iter().all(|e| e.action == "account_created"));
     assert!(
         sqlx::query("update audit_event set summary = 'x'")
             .execute(&app.pool)

@@ -1,0 +1,109 @@
+//! Timings of the fit module: `cargo bench --bench fit` (add `-- --quick` for a short run).
+//!
+//! Targets (issue 3; the scipy figures come from `benches/reference_fit.py` on the same data
+//! sizes): conditional ML on 60 objects ≥ 50× faster than scipy's L-BFGS-B with an analytic
+//! gradient, on 100,000 objects ≥ 2× faster; structural ML within 3× of conditional; posterior
+//! with 32 walkers × 5,000 steps on 60 objects < 100 ms; 1,000 bootstrap refits of 60 objects
+//! < 100 ms.
+
+use std::hint::black_box;
+use std::time::Duration;
+
+use criterion::{Criterion, criterion_group, criterion_main};
+use massline::fit::bootstrap::bootstrap;
+use massline::fit::ensemble::{self, EnsembleConfig};
+use massline::fit::posterior::posterior;
+use massline::fit::{FitSpec, Likelihood, Method, Point, fit};
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Normal};
+
+/// log10(200): the M–σ pivot.
+const PIVOT: f64 = 2.301_029_995_663_981;
+
+/// Invented M–σ-like sample: log σ ~ N(2.3, 0.14²), log M = 8.3 + 4.5 (x − x0) + N(0, 0.35²),
+/// σ errors 0.01–0.035 dex, mass errors 0.05–0.3 dex, every 7th object an upper limit 0.3 dex
+/// above its mass.
+fn sample(n: usize, seed: u64) -> Vec<Point> {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let unit = Normal::new(0.0, 1.0).unwrap();
+    (0..n)
+        .map(|i| {
+            let xi = 2.3 + 0.14 * unit.sample(&mut rng);
+            let eta = 8.3 + 4.5 * (xi - PIVOT) + 0.35 * unit.sample(&mut rng);
+            let x_err = rng.random_range(0.01..0.035);
+            let y_err = rng.random_range(0.05..0.3);
+            let x = xi + x_err * unit.sample(&mut rng);
+            if i % 7 == 3 {
+                Point::limit(x, x_err, eta + 0.3)
+            } else {
+                Point::new(x, x_err, eta + y_err * unit.sample(&mut rng), y_err)
+            }
+        })
+        .collect()
+}
+
+fn benches(c: &mut Criterion) {
+    let small = sample(60, 1);
+    let large = sample(100_000, 2);
+    let conditional = FitSpec::new(Method::Conditional, PIVOT);
+    let structural = FitSpec::new(Method::Structural, PIVOT);
+
+    let mut g = c.benchmark_group("ml");
+    g.bench_function("conditional_60", |b| {
+        b.iter(|| fit(black_box(&small), &conditional).unwrap())
+    });
+    g.bench_function("structural_60", |b| {
+        b.iter(|| fit(black_box(&small), &structural).unwrap())
+    });
+    g.sample_size(10);
+    g.measurement_time(Duration::from_secs(8));
+    g.bench_function("conditional_100000", |b| {
+        b.iter(|| fit(black_box(&large), &conditional).unwrap())
+    });
+    g.finish();
+
+    // One likelihood evaluation: the unit of cost of the posterior sampler (32 × 5,000 =
+    // 160,000 evaluations per run).
+    let mut g = c.benchmark_group("likelihood");
+    for (name, spec) in [
+        ("conditional_60", &conditional),
+        ("structural_60", &structural),
+    ] {
+        let like = Likelihood::new(&small, spec).unwrap();
+        let theta = like.start(&fit(&small, spec).unwrap());
+        g.bench_function(name, |b| b.iter(|| like.log_likelihood(black_box(&theta))));
+    }
+    g.finish();
+
+    let mut g = c.benchmark_group("sampling");
+    g.sample_size(10);
+    g.measurement_time(Duration::from_secs(8));
+    let cfg = EnsembleConfig::new(32, 5_000, 1_000, 1)
+        .unwrap()
+        .with_init_scatter(0.1)
+        .unwrap();
+    // The sampler's own overhead: the same run on a trivial 3-parameter density.
+    g.bench_function("ensemble_overhead_3d_32x5000", |b| {
+        b.iter(|| {
+            let target = |t: &[f64]| -0.5 * (t[0] * t[0] + t[1] * t[1] + t[2] * t[2]);
+            ensemble::sample(target, black_box(&[0.0; 3]), &["a", "b", "c"], &cfg).unwrap()
+        })
+    });
+    g.bench_function("posterior_conditional_60_32x5000", |b| {
+        b.iter(|| posterior(black_box(&small), &conditional, &cfg).unwrap())
+    });
+    g.bench_function("posterior_structural_60_32x5000", |b| {
+        b.iter(|| posterior(black_box(&small), &structural, &cfg).unwrap())
+    });
+    g.bench_function("bootstrap_conditional_60_x1000", |b| {
+        b.iter(|| bootstrap(black_box(&small), &conditional, 1_000, 1).unwrap())
+    });
+    g.bench_function("bootstrap_structural_60_x1000", |b| {
+        b.iter(|| bootstrap(black_box(&small), &structural, 1_000, 1).unwrap())
+    });
+    g.finish();
+}
+
+criterion_group!(fit_benches, benches);
+criterion_main!(fit_benches);

@@ -1,0 +1,479 @@
+//! The layers every request passes.
+//!
+//! 1. [`refuse_cross_site`] (all routes): an unsafe method (anything but GET, HEAD, OPTIONS) is
+//!    refused with 403 when `Sec-Fetch-Site` says the request came from another site, or when an
+//!    `Origin` header names a different host than the request's own `Host`.
+//! 2. [`authenticate`] (all routes): turns the session cookie or the `Authorization: Bearer`
+//!    header into a [`Principal`] stored in the request's extensions. Expired sessions are
+//!    deleted here, with their idle and absolute limits measured on the app's clock.
+//! 3. [`guard`] (per route, with the route's [`Access`]): refuses principals the route does not
+//!    admit: pages redirect to the login page, `/api/` answers 401 or 403 as problem+json.
+//! 4. [`require_form_token`] (per route, unsafe methods only): a browser's form must carry the
+//!    session's anti-forgery token in the field `csrf` (compared in constant time). The login
+//!    form, sent before any session exists, carries the value of a separate login cookie instead.
+//!    Requests authenticated by an API token need no form token: browsers never add that header
+//!    by themselves.
+
+use std::net::SocketAddr;
+
+use axum::body::{Body, Bytes};
+use axum::extract::{ConnectInfo, Request, State};
+use axum::http::{HeaderMap, HeaderValue, Method, StatusCode, header};
+use axum::middleware::Next;
+use axum::response::{IntoResponse, Redirect, Response};
+
+use super::secret::{looks_like_api_token, same_secret, sha256_hex};
+use super::{Access, Denied, Principal, Role, Scope, SessionUser, TokenUser, check_access};
+use crate::catalog::accounts;
+use crate::error::render_error_page;
+use crate::startup::AppState;
+use crate::web::BODY_LIMIT_BYTES;
+
+/// Name of the form field that carries the anti-forgery token.
+pub const CSRF_FIELD: &str = "csrf";
+
+/// Facts about the server the per-route layers need, stored in each request's extensions.
+#[derive(Debug, Clone, Copy)]
+pub struct AuthContext {
+    /// Whether anonymous visitors may read.
+    pub public_read: bool,
+    /// Whether cookies are marked Secure and `__Host-` prefixed.
+    pub secure_cookies: bool,
+}
+
+/// The session cookie's name: `__Host-` prefixed when served over HTTPS (the browser then
+/// refuses it from any other host and without Secure and Path=/).
+pub fn session_cookie_name(secure: bool) -> &'static str {
+    if secure {
+        "__Host-ml_session"
+    } else {
+        "ml_session"
+    }
+}
+
+/// The login form's anti-forgery cookie's name.
+pub fn login_cookie_name(secure: bool) -> &'static str {
+    if secure {
+        "__Host-ml_login"
+    } else {
+        "ml_login"
+    }
+}
+
+/// A `Set-Cookie` value: HttpOnly, SameSite=Lax, Path=/, Secure when asked; `max_age_s` of
+/// `Some(0)` deletes the cookie, `None` makes it last until the browser closes (the server
+/// enforces the real limits).
+pub fn set_cookie(name: &str, value: &str, secure: bool, max_age_s: Option<i64>) -> HeaderValue {
+    let mut text = format!("{name}={value}; Path=/; HttpOnly; SameSite=Lax");
+    if secure {
+        text.push_str("; Secure");
+    }
+    if let Some(age) = max_age_s {
+        text.push_str(&format!("; Max-Age={age}"));
+    }
+    HeaderValue::from_str(&text).unwrap_or_else(|_| HeaderValue::from_static(""))
+}
+
+/// The value of a cookie in the request, if present.
+pub fn read_cookie(headers: &HeaderMap, name: &str) -> Option<String> {
+    headers
+        .get_all(header::COOKIE)
+        .iter()
+        .filter_map(|v| v.to_str().ok())
+        .flat_map(|v| v.split(';'))
+        .filter_map(|pair| pair.trim().split_once('='))
+        .find(|(k, _)| *k == name)
+        .map(|(_, v)| v.trim().to_string())
+}
+
+/// The connection's peer address as text ("unknown" when not served with connect info).
+/// Forwarded headers are not trusted: any client can write them.
+pub fn client_ip(request_extensions: &axum::http::Extensions) -> String {
+    request_extensions
+        .get::<ConnectInfo<SocketAddr>>()
+        .map_or_else(|| "unknown".to_string(), |c| c.0.ip().to_string())
+}
+
+fn is_unsafe(method: &Method) -> bool {
+    !matches!(*method, Method::GET | Method::HEAD | Method::OPTIONS)
+}
+
+fn is_api(path: &str) -> bool {
+    path.starts_with("/api/")
+}
+
+/// An RFC 9457 problem+json answer.
+pub fn problem(status: StatusCode, title: &str, detail: &str) -> Response {
+    let body = serde_json::json!({
+        "type": "about:blank",
+        "title": title,
+        "status": status.as_u16(),
+        "detail": detail,
+    });
+    let mut response = (status, body.to_string()).into_response();
+    response.headers_mut().insert(
+        header::CONTENT_TYPE,
+        HeaderValue::from_static("application/problem+json"),
+    );
+    if status == StatusCode::UNAUTHORIZED {
+        response
+            .headers_mut()
+            .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
+    }
+    response
+}
+
+fn forbidden(path: &str, message: &str) -> Response {
+    if is_api(path) {
+        problem(StatusCode::FORBIDDEN, "Forbidden", message)
+    } else {
+        render_error_page(StatusCode::FORBIDDEN, "Not allowed", message.into(), false)
+    }
+}
+
+/// Layer 1: refuse unsafe requests that another site made the browser send.
+pub async fn refuse_cross_site(request: Request, next: Next) -> Response {
+    if is_unsafe(request.method()) {
+        let headers = request.headers();
+        let fetch_site = headers
+            .get("sec-fetch-site")
+            .and_then(|v| v.to_str().ok())
+            .map(str::to_ascii_lowercase);
+        let cross_site =
+            matches!(fetch_site.as_deref(), Some(site) if site != "same-origin" && site != "none");
+        let origin_mismatch = headers.get(header::ORIGIN).is_some_and(|origin| {
+            let host = headers.get(header::HOST).and_then(|h| h.to_str().ok());
+            !origin_matches_host(origin.to_str().unwrap_or("null"), host)
+        });
+        if cross_site || origin_mismatch {
+            tracing::warn!(
+                path = request.uri().path(),
+                "refused a cross-site request with an unsafe method"
+            );
+            return forbidden(
+                request.uri().path(),
+                "This request came from another site, so it was refused and nothing was changed.",
+            );
+        }
+    }
+    next.run(request).await
+}
+
+/// Whether an `Origin` header ("scheme://host[:port]") names the request's own host.
+pub fn origin_matches_host(origin: &str, host: Option<&str>) -> bool {
+    let Some(host) = host else {
+        return false;
+    };
+    let Some(rest) = origin
+        .strip_prefix("http://")
+        .or_else(|| origin.strip_prefix("https://"))
+    else {
+        return false;
+    };
+    rest.eq_ignore_ascii_case(host)
+}
+
+/// Layer 2: find out who is asking.
+pub async fn authenticate(
+    State(state): State<AppState>,
+    mut request: Request,
+    next: Next,
+) -> Response {
+    let secure = state.settings.secure_cookies;
+    let context = AuthContext {
+        public_read: state.settings.public_read,
+        secure_cookies: secure,
+    };
+    let mut clear_cookie = false;
+    let principal = if let Some(auth) = request.headers().get(header::AUTHORIZATION) {
+        match token_principal(&state, auth).await {
+            Ok(p) => p,
+            Err(e) => return crate::error::AppError::from(e).into_response(),
+        }
+    } else if let Some(id) = read_cookie(request.headers(), session_cookie_name(secure)) {
+        match session_principal(&state, &id).await {
+            Ok(Some(user)) => Principal::Session(user),
+            Ok(None) => {
+                clear_cookie = true;
+                Principal::Anonymous
+            }
+            Err(e) => return crate::error::AppError::from(e).into_response(),
+        }
+    } else {
+        Principal::Anonymous
+    };
+    request.extensions_mut().insert(principal);
+    request.extensions_mut().insert(context);
+    let mut response = next.run(request).await;
+    let session_prefix = format!("{}=", session_cookie_name(secure));
+    let sets_session = response
+        .headers()
+        .get_all(header::SET_COOKIE)
+        .iter()
+        .any(|v| v.as_bytes().starts_with(session_prefix.as_bytes()));
+    if clear_cookie && !sets_session {
+        response.headers_mut().append(
+            header::SET_COOKIE,
+            set_cookie(session_cookie_name(secure), "", secure, Some(0)),
+        );
+    }
+    response
+}
+
+async fn token_principal(state: &AppState, auth: &HeaderValue) -> sqlx::Result<Principal> {
+    let Some(token) = auth
+        .to_str()
+        .ok()
+        .and_then(|v| v.strip_prefix("Bearer "))
+        .map(str::trim)
+    else {
+        return Ok(Principal::BadToken);
+    };
+    if !looks_like_api_token(token) {
+        return Ok(Principal::BadToken);
+    }
+    let Some(row) = accounts::find_token(&state.pool, &sha256_hex(token)).await? else {
+        return Ok(Principal::BadToken);
+    };
+    let (Ok(role), Ok(scopes)) = (row.role.parse::<Role>(), Scope::parse_list(&row.scopes)) else {
+        return Ok(Principal::BadToken);
+    };
+    if row.disabled || row.revoked_at.is_some() {
+        return Ok(Principal::BadToken);
+    }
+    accounts::touch_token(&state.pool, row.api_token_id).await?;
+    Ok(Principal::Token(TokenUser {
+        account_id: row.account_id,
+        username: row.username,
+        role,
+        api_token_id: row.api_token_id,
+        scopes,
+    }))
+}
+
+/// Look up a session cookie; None when unknown, expired (then deleted) or the account is
+/// disabled.
+async fn session_principal(state: &AppState, id: &str) -> sqlx::Result<Option<SessionUser>> {
+    if id.len() != 64 || !id.bytes().all(|b| b.is_ascii_hexdigit()) {
+        return Ok(None);
+    }
+    let Some(row) = accounts::find_session(&state.pool, &sha256_hex(id)).await? else {
+        return Ok(None);
+    };
+    let Ok(role) = row.role.parse::<Role>() else {
+        return Ok(None);
+    };
+    let now = state.clock.now_unix();
+    let expired = row.disabled
+        || now - row.created_unix >= super::ABSOLUTE_LIMIT_S
+        || now - row.last_seen_unix >= role.idle_limit_s();
+    if expired {
+        accounts::delete_session(&state.pool, row.session_id).await?;
+        return Ok(None);
+    }
+    if now - row.last_seen_unix >= super::TOUCH_EVERY_S {
+        accounts::touch_session(&state.pool, row.session_id, now).await?;
+    }
+    Ok(Some(SessionUser {
+        account_id: row.account_id,
+        username: row.username,
+        role,
+        session_id: row.session_id,
+        csrf_token: row.csrf_token,
+    }))
+}
+
+/// Layer 3: admit only the principals a route's [`Access`] allows.
+pub async fn guard(access: Access, request: Request, next: Next) -> Response {
+    let principal = request
+        .extensions()
+        .get::<Principal>()
+        .cloned()
+        .unwrap_or(Principal::Anonymous);
+    let public_read = request
+        .extensions()
+        .get::<AuthContext>()
+        .is_some_and(|c| c.public_read);
+    match check_access(access, &principal, public_read) {
+        Ok(()) => next.run(request).await,
+        Err(denied) => deny(denied, &request),
+    }
+}
+
+fn deny(denied: Denied, request: &Request) -> Response {
+    let path = request.uri().path();
+    match denied {
+        Denied::NotLoggedIn if is_api(path) => problem(
+            StatusCode::UNAUTHORIZED,
+            "Unauthorized",
+            "This endpoint needs an API token (Authorization: Bearer ml_…).",
+        ),
+        Denied::NotLoggedIn => {
+            let target = if request.method() == Method::GET {
+                let here = request
+                    .uri()
+                    .path_and_query()
+                    .map_or(path, |pq| pq.as_str());
+                format!("/login?next={}", encode_query_value(here))
+            } else {
+                "/login".to_string()
+            };
+            Redirect::to(&target).into_response()
+        }
+        Denied::BadToken => {
+            let detail =
+                "The API token is not valid: unknown, revoked, or its account is disabled.";
+            if is_api(path) {
+                problem(StatusCode::UNAUTHORIZED, "Unauthorized", detail)
+            } else {
+                let mut r = render_error_page(
+                    StatusCode::UNAUTHORIZED,
+                    "Not logged in",
+                    detail.into(),
+                    false,
+                );
+                r.headers_mut()
+                    .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
+                r
+            }
+        }
+        Denied::Forbidden => forbidden(
+            path,
+            "Your account or token is not allowed to use this page or endpoint.",
+        ),
+    }
+}
+
+/// Percent-encode a text for a query value (everything but unreserved characters).
+pub fn encode_query_value(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for b in text.bytes() {
+        if b.is_ascii_alphanumeric() || matches!(b, b'-' | b'_' | b'.' | b'~' | b'/') {
+            out.push(char::from(b));
+        } else {
+            out.push_str(&format!("%{b:02X}"));
+        }
+    }
+    out
+}
+
+/// Layer 4: forms of a browser must carry the anti-forgery token.
+pub async fn require_form_token(request: Request, next: Next) -> Response {
+    if !is_unsafe(request.method()) {
+        return next.run(request).await;
+    }
+    let principal = request
+        .extensions()
+        .get::<Principal>()
+        .cloned()
+        .unwrap_or(Principal::Anonymous);
+    let secure = request
+        .extensions()
+        .get::<AuthContext>()
+        .is_some_and(|c| c.secure_cookies);
+    let expected = match &principal {
+        Principal::Token(_) => return next.run(request).await,
+        Principal::Session(s) => Some(s.csrf_token.clone()),
+        Principal::Anonymous | Principal::BadToken => {
+            read_cookie(request.headers(), login_cookie_name(secure)).filter(|v| v.len() == 64)
+        }
+    };
+    let path = request.uri().path().to_string();
+    let (parts, body) = request.into_parts();
+    let bytes: Bytes = match axum::body::to_bytes(body, BODY_LIMIT_BYTES).await {
+        Ok(b) => b,
+        Err(_) => {
+            return render_error_page(
+                StatusCode::PAYLOAD_TOO_LARGE,
+                "Too large",
+                format!("The request is larger than {BODY_LIMIT_BYTES} bytes."),
+                false,
+            );
+        }
+    };
+    let sent = form_field(&bytes, CSRF_FIELD);
+    let valid = match (expected, sent) {
+        (Some(expected), Some(sent)) => same_secret(&expected, &sent),
+        _ => false,
+    };
+    if !valid {
+        tracing::warn!(path, "refused a form without a valid anti-forgery token");
+        return forbidden(
+            &path,
+            "This form has expired or did not come from this site, so nothing was changed. Reload the page and try again.",
+        );
+    }
+    next.run(Request::from_parts(parts, Body::from(bytes)))
+        .await
+}
+
+/// The first value of a field in an `application/x-www-form-urlencoded` body.
+pub fn form_field(body: &[u8], name: &str) -> Option<String> {
+    serde_urlencoded::from_bytes::<Vec<(String, String)>>(body)
+        .ok()?
+        .into_iter()
+        .find(|(k, _)| k == name)
+        .map(|(_, v)| v)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn origin_must_name_the_same_host_and_port() {
+        assert!(origin_matches_host(
+            "http://127.0.0.1:8080",
+            Some("127.0.0.1:8080")
+        ));
+        assert!(origin_matches_host(
+            "https://Catalog.example",
+            Some("catalog.example")
+        ));
+        assert!(!origin_matches_host(
+            "http://127.0.0.1:9090",
+            Some("127.0.0.1:8080")
+        ));
+        assert!(!origin_matches_host(
+            "http://evil.example",
+            Some("catalog.example")
+        ));
+        assert!(!origin_matches_host("null", Some("catalog.example")));
+        assert!(!origin_matches_host("http://catalog.example", None));
+    }
+
+    #[test]
+    fn cookies_are_read_by_exact_name() {
+        let mut h = HeaderMap::new();
+        h.insert(
+            header::COOKIE,
+            HeaderValue::from_static("xml_session=a; ml_session=b ; other=c"),
+        );
+        assert_eq!(read_cookie(&h, "ml_session").as_deref(), Some("b"));
+        assert_eq!(read_cookie(&h, "missing"), None);
+    }
+
+    #[test]
+    fn session_cookies_carry_the_protective_attributes() {
+        let plain = set_cookie("ml_session", "v", false, None);
+        assert_eq!(plain, "ml_session=v; Path=/; HttpOnly; SameSite=Lax");
+        let secure = set_cookie(session_cookie_name(true), "v", true, Some(0));
+        assert_eq!(
+            secure,
+            "__Host-ml_session=v; Path=/; HttpOnly; SameSite=Lax; Secure; Max-Age=0"
+        );
+    }
+
+    #[test]
+    fn form_fields_are_decoded() {
+        assert_eq!(
+            form_field(b"a=1&csrf=ab%20c", "csrf").as_deref(),
+            Some("ab c")
+        );
+        assert_eq!(form_field(b"a=1", "csrf"), None);
+        assert_eq!(
+            encode_query_value("/galaxies?x=1&y"),
+            "/galaxies%3Fx%3D1%26y"
+        );
+    }
+}

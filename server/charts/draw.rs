@@ -1,0 +1,912 @@
+//! Validation, scene assembly and rendering of both charts.
+//!
+//! Each public chart is turned into a [`Scene`]: checked data, the visible data rectangle, the
+//! fills and lines plotters should draw (already clipped), and the legend. [`render`] then lets
+//! plotters draw the frame and underlay, keeps its coordinate mapping, and appends the points,
+//! legend and messages as raw SVG placed with that same mapping.
+
+use std::fmt::Write as _;
+
+use plotters::coord::CoordTranslate as _;
+use plotters::coord::types::RangedCoordf64;
+use plotters::prelude::{
+    Cartesian2d, ChartBuilder, IntoDrawingArea as _, PathElement, Polygon, SVGBackend,
+};
+use plotters::style::colors::{TRANSPARENT, WHITE};
+use plotters::style::{Color as _, IntoFont as _};
+
+use super::geometry::{
+    Bounds, Extent, Xy, band_outline, clip_polygon, clip_polyline, padded, sample_line,
+    tick_decimals,
+};
+use super::markup::{clean, dex, escape, is_site_relative, minus_sign, num, truncate};
+use super::style::{
+    self, ARROW_MIN_PX, ARROW_PX, AXIS_FONT, FONT_FAMILY, GLYPH_EM, GRID, HIGHLIGHT_RADIUS,
+    HIGHLIGHT_STROKE, INK, LEGEND_FONT_PX, LINE, LINE_WIDTH, MEAN_BAND, MarkerStyle, Rgb,
+    SCATTER_1, SCATTER_2, TICK_FONT, TITLE_FONT, Tint,
+};
+use super::{
+    ChartError, ChartPoint, EMPTY_MESSAGE, Group, LineSpec, MAX_SIZE, MIN_HEIGHT, MIN_WIDTH,
+    RelationChart, ResidualChart,
+};
+
+/// plotters' mapping from data to pixels for both charts.
+pub(super) type Spec = Cartesian2d<RangedCoordf64, RangedCoordf64>;
+
+/// Space around the plot inside its area, in pixels.
+const MARGIN: u32 = 10;
+/// Height below the plot for tick labels and the x-axis label, in pixels.
+const X_LABEL_AREA: u32 = 54;
+/// Width left of the plot for tick labels and the y-axis label, in pixels.
+const Y_LABEL_AREA: u32 = 70;
+/// Approximate height plotters gives a title, in pixels (used only to leave room for arrows).
+const TITLE_AREA: u32 = 36;
+/// Vertical distance between legend rows, in pixels.
+const LEGEND_ROW: i32 = 22;
+/// Extra height of each wrapped line of a legend label, in pixels.
+const LEGEND_LINE: i32 = 15;
+
+/// A translucent area drawn under the grid.
+struct Fill {
+    outline: Vec<Xy>,
+    tint: Tint,
+}
+
+/// A line drawn over the grid, possibly in several visible runs.
+struct Stroke {
+    runs: Vec<Vec<Xy>>,
+    colour: Rgb,
+    width: u32,
+}
+
+/// What a legend row shows before its text.
+enum Symbol {
+    Marker(MarkerStyle),
+    Star,
+    Arrow,
+    Line(Rgb, u32),
+    /// Translucent layers stacked as they stack on the chart.
+    Swatch(Vec<Tint>),
+}
+
+struct LegendEntry {
+    symbol: Symbol,
+    label: String,
+}
+
+/// A checked chart, ready to draw.
+struct Scene<'a> {
+    title: &'a str,
+    x_label: &'a str,
+    y_label: &'a str,
+    width: u32,
+    height: u32,
+    points: &'a [ChartPoint],
+    groups: &'a [Group],
+    highlight: Option<&'a ChartPoint>,
+    bounds: Bounds,
+    fills: Vec<Fill>,
+    strokes: Vec<Stroke>,
+    legend: Vec<LegendEntry>,
+}
+
+impl Scene<'_> {
+    fn is_empty(&self) -> bool {
+        self.points.is_empty()
+    }
+}
+
+/// An SVG document and the mapping it was drawn with (tests map data back through it).
+pub(super) struct Rendered {
+    pub(super) svg: String,
+    #[cfg_attr(not(test), expect(dead_code, reason = "read by the tests"))]
+    pub(super) spec: Spec,
+}
+
+/// The plot rectangle in pixels.
+#[derive(Debug, Clone, Copy)]
+struct PixelRect {
+    left: i32,
+    right: i32,
+    top: i32,
+    bottom: i32,
+}
+
+/// What the raw layer needs from the plotters pass.
+struct Frame {
+    spec: Spec,
+    plot: PixelRect,
+    legend_left: i32,
+}
+
+pub(super) fn relation(chart: &RelationChart) -> Result<String, ChartError> {
+    relation_rendered(chart).map(|r| r.svg)
+}
+
+pub(super) fn residual(chart: &ResidualChart) -> Result<String, ChartError> {
+    residual_rendered(chart).map(|r| r.svg)
+}
+
+pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, ChartError> {
+    check_size(chart.width, chart.height)?;
+    check_points(&chart.points, chart.groups.len())?;
+    if let Some(h) = &chart.highlight {
+        check_point(h, &highlight_item(h), None)?;
+    }
+    if let Some(line) = &chart.line {
+        check_line(line)?;
+    }
+    check_band(&chart.mean_band)?;
+
+    let highlight = chart.highlight.as_ref();
+    let drawn = || chart.points.iter().chain(highlight);
+    let empty = chart.points.is_empty();
+
+    // Without any object the frame still needs a range: around the line's pivot if there is one.
+    let fallback = chart.line.map_or(((0.0, 1.0), (0.0, 1.0)), |l| {
+        (padded(l.pivot, l.pivot), padded(l.alpha, l.alpha))
+    });
+    let bounds = data_bounds(
+        drawn(),
+        fallback,
+        &[],
+        chart.height,
+        !chart.title.trim().is_empty(),
+    );
+
+    let mut fills = Vec::new();
+    let mut strokes = Vec::new();
+    let mut legend = group_legend(
+        &chart.groups,
+        empty,
+        highlight,
+        drawn().any(|p| p.upper_limit),
+    );
+    if !empty {
+        let samples = chart
+            .line
+            .map(|l| sample_line(&l, bounds.x_min, bounds.x_max));
+        let scatter = chart.line.map_or(0.0, |l| l.scatter_dex);
+        if let Some(samples) = &samples
+            && scatter > 0.0
+        {
+            for (k, tint) in [(2.0, SCATTER_2), (1.0, SCATTER_1)] {
+                let upper: Vec<Xy> = samples.iter().map(|&(x, y)| (x, y + k * scatter)).collect();
+                let lower: Vec<Xy> = samples.iter().map(|&(x, y)| (x, y - k * scatter)).collect();
+                push_fill(&mut fills, &band_outline(&upper, &lower), tint, bounds);
+            }
+        }
+        if !chart.mean_band.is_empty() {
+            let mut band = chart.mean_band.clone();
+            band.sort_by(|a, b| a.x.total_cmp(&b.x));
+            let upper: Vec<Xy> = band.iter().map(|s| (s.x, s.upper)).collect();
+            let lower: Vec<Xy> = band.iter().map(|s| (s.x, s.lower)).collect();
+            push_fill(&mut fills, &band_outline(&upper, &lower), MEAN_BAND, bounds);
+        }
+        if let Some(samples) = &samples {
+            strokes.push(Stroke {
+                runs: clip_polyline(samples, bounds),
+                colour: LINE,
+                width: LINE_WIDTH,
+            });
+            legend.push(LegendEntry {
+                symbol: Symbol::Line(LINE, LINE_WIDTH),
+                label: "Fitted relation".to_owned(),
+            });
+        }
+        // The legend swatches stack the same layers the chart stacks where the bands overlap.
+        let under: Vec<Tint> = if scatter > 0.0 {
+            vec![SCATTER_2, SCATTER_1]
+        } else {
+            Vec::new()
+        };
+        if !chart.mean_band.is_empty() {
+            let mut layers = under.clone();
+            layers.push(MEAN_BAND);
+            legend.push(LegendEntry {
+                symbol: Symbol::Swatch(layers),
+                label: "Mean-relation band".to_owned(),
+            });
+        }
+        if scatter > 0.0 {
+            legend.push(LegendEntry {
+                symbol: Symbol::Swatch(under),
+                label: format!("±1ε = {} dex", dex(scatter)),
+            });
+            legend.push(LegendEntry {
+                symbol: Symbol::Swatch(vec![SCATTER_2]),
+                label: format!("±2ε = {} dex", dex(2.0 * scatter)),
+            });
+        }
+    }
+
+    render(&Scene {
+        title: &chart.title,
+        x_label: &chart.x_label,
+        y_label: &chart.y_label,
+        width: chart.width,
+        height: chart.height,
+        points: &chart.points,
+        groups: &chart.groups,
+        highlight,
+        bounds,
+        fills,
+        strokes,
+        legend,
+    })
+}
+
+pub(super) fn residual_rendered(chart: &ResidualChart) -> Result<Rendered, ChartError> {
+    check_size(chart.width, chart.height)?;
+    check_points(&chart.points, chart.groups.len())?;
+    if let Some(h) = &chart.highlight {
+        check_point(h, &highlight_item(h), None)?;
+    }
+    let scatter = chart.scatter_dex;
+    check_number("the residual chart", "scatter ε", scatter)?;
+    if scatter < 0.0 {
+        return Err(ChartError::Negative {
+            item: "the residual chart".to_owned(),
+            field: "scatter ε",
+        });
+    }
+
+    let highlight = chart.highlight.as_ref();
+    let drawn = || chart.points.iter().chain(highlight);
+    let empty = chart.points.is_empty();
+    // Zero and the band are the reference every residual is read against: always in view.
+    let bounds = data_bounds(
+        drawn(),
+        ((0.0, 1.0), padded(-scatter, scatter)),
+        &[0.0, -scatter, scatter],
+        chart.height,
+        !chart.title.trim().is_empty(),
+    );
+
+    let mut fills = Vec::new();
+    let mut strokes = Vec::new();
+    let mut legend = group_legend(
+        &chart.groups,
+        empty,
+        highlight,
+        drawn().any(|p| p.upper_limit),
+    );
+    if !empty {
+        let (x0, x1) = (bounds.x_min, bounds.x_max);
+        if scatter > 0.0 {
+            let rect = [(x0, -scatter), (x1, -scatter), (x1, scatter), (x0, scatter)];
+            push_fill(&mut fills, &rect, SCATTER_1, bounds);
+        }
+        strokes.push(Stroke {
+            runs: clip_polyline(&[(x0, 0.0), (x1, 0.0)], bounds),
+            colour: LINE,
+            width: 1,
+        });
+        legend.push(LegendEntry {
+            symbol: Symbol::Line(LINE, 1),
+            label: "Zero residual".to_owned(),
+        });
+        if scatter > 0.0 {
+            legend.push(LegendEntry {
+                symbol: Symbol::Swatch(vec![SCATTER_1]),
+                label: format!("±1ε = {} dex", dex(scatter)),
+            });
+        }
+    }
+
+    render(&Scene {
+        title: &chart.title,
+        x_label: &chart.x_label,
+        y_label: &chart.y_label,
+        width: chart.width,
+        height: chart.height,
+        points: &chart.points,
+        groups: &chart.groups,
+        highlight,
+        bounds,
+        fills,
+        strokes,
+        legend,
+    })
+}
+
+// ---------------------------------------------------------------------------------------------
+// Checks
+
+fn check_size(width: u32, height: u32) -> Result<(), ChartError> {
+    if (MIN_WIDTH..=MAX_SIZE).contains(&width) && (MIN_HEIGHT..=MAX_SIZE).contains(&height) {
+        Ok(())
+    } else {
+        Err(ChartError::BadSize { width, height })
+    }
+}
+
+fn point_item(index: usize, p: &ChartPoint) -> String {
+    if p.name.trim().is_empty() {
+        format!("point {index}")
+    } else {
+        format!("point \"{}\"", p.name)
+    }
+}
+
+fn highlight_item(p: &ChartPoint) -> String {
+    format!("the highlighted object \"{}\"", p.name)
+}
+
+fn check_number(item: &str, field: &'static str, v: f64) -> Result<(), ChartError> {
+    if v.is_finite() {
+        Ok(())
+    } else {
+        Err(ChartError::NonFinite {
+            item: item.to_owned(),
+            field,
+        })
+    }
+}
+
+fn check_points(points: &[ChartPoint], groups: usize) -> Result<(), ChartError> {
+    for (i, p) in points.iter().enumerate() {
+        check_point(p, &point_item(i, p), Some(groups))?;
+    }
+    Ok(())
+}
+
+/// Checks one point; `groups` is `None` for the highlight, whose group is not used.
+fn check_point(p: &ChartPoint, item: &str, groups: Option<usize>) -> Result<(), ChartError> {
+    check_number(item, "x value", p.x)?;
+    check_number(item, "y value", p.y)?;
+    for (field, err) in [
+        ("x error", p.x_err),
+        ("lower y error", p.y_err_minus),
+        ("upper y error", p.y_err_plus),
+    ] {
+        check_number(item, field, err)?;
+        if err < 0.0 {
+            return Err(ChartError::Negative {
+                item: item.to_owned(),
+                field,
+            });
+        }
+    }
+    if let Some(groups) = groups
+        && p.group >= groups
+    {
+        return Err(ChartError::UnknownGroup {
+            item: item.to_owned(),
+            group: p.group,
+            groups,
+        });
+    }
+    if let Some(href) = &p.href
+        && !is_site_relative(href)
+    {
+        return Err(ChartError::UnsafeHref {
+            item: item.to_owned(),
+        });
+    }
+    Ok(())
+}
+
+fn check_line(line: &LineSpec) -> Result<(), ChartError> {
+    let item = "the fitted line";
+    check_number(item, "zero point α", line.alpha)?;
+    check_number(item, "slope β", line.beta)?;
+    check_number(item, "curvature β₂", line.beta2.unwrap_or(0.0))?;
+    check_number(item, "pivot", line.pivot)?;
+    check_number(item, "scatter ε", line.scatter_dex)?;
+    if line.scatter_dex < 0.0 {
+        return Err(ChartError::Negative {
+            item: item.to_owned(),
+            field: "scatter ε",
+        });
+    }
+    Ok(())
+}
+
+fn check_band(band: &[super::BandPoint]) -> Result<(), ChartError> {
+    if band.len() == 1 {
+        return Err(ChartError::BandTooShort { len: 1 });
+    }
+    for (index, s) in band.iter().enumerate() {
+        let item = format!("mean-band sample {index}");
+        check_number(&item, "x value", s.x)?;
+        check_number(&item, "lower edge", s.lower)?;
+        check_number(&item, "upper edge", s.upper)?;
+        if s.lower > s.upper {
+            return Err(ChartError::BandInverted { index });
+        }
+    }
+    Ok(())
+}
+
+// ---------------------------------------------------------------------------------------------
+// Scene assembly
+
+/// The visible data rectangle: every drawn point with its error bars, the `always` y values,
+/// padded; `fallback` when there is nothing to show. The y range is then lowered, if needed, so
+/// the lowest upper-limit arrow fits inside the frame.
+fn data_bounds<'p>(
+    points: impl Iterator<Item = &'p ChartPoint> + Clone,
+    fallback: ((f64, f64), (f64, f64)),
+    always: &[f64],
+    height: u32,
+    titled: bool,
+) -> Bounds {
+    let mut xs = Extent::default();
+    let mut ys = Extent::default();
+    let mut lowest_limit: Option<f64> = None;
+    for p in points.clone() {
+        xs.add(p.x - p.x_err);
+        xs.add(p.x + p.x_err);
+        if p.upper_limit {
+            ys.add(p.y);
+            lowest_limit = Some(lowest_limit.map_or(p.y, |l: f64| l.min(p.y)));
+        } else {
+            ys.add(p.y - p.y_err_minus);
+            ys.add(p.y + p.y_err_plus);
+        }
+    }
+    let have_points = ys.range().is_some();
+    for &v in always {
+        ys.add(v);
+    }
+    let (x_min, x_max) = xs.range().map_or(fallback.0, |(lo, hi)| padded(lo, hi));
+    let (mut y_min, y_max) = if have_points || !always.is_empty() {
+        ys.range().map_or(fallback.1, |(lo, hi)| padded(lo, hi))
+    } else {
+        fallback.1
+    };
+    if let Some(limit) = lowest_limit {
+        // Want (limit − y_min) ≥ f (y_max − y_min), f = arrow length / plot height, so
+        // y_min ≤ (limit − f y_max) / (1 − f).
+        let plot_px = f64::from(height)
+            - f64::from(X_LABEL_AREA + 2 * MARGIN)
+            - if titled { f64::from(TITLE_AREA) } else { 0.0 };
+        let f = (f64::from(ARROW_PX + 4) / plot_px.max(1.0)).min(0.5);
+        y_min = y_min.min((limit - f * y_max) / (1.0 - f));
+    }
+    Bounds {
+        x_min,
+        x_max,
+        y_min,
+        y_max,
+    }
+}
+
+fn push_fill(fills: &mut Vec<Fill>, outline: &[Xy], tint: Tint, bounds: Bounds) {
+    let outline = clip_polygon(outline, bounds);
+    if !outline.is_empty() {
+        fills.push(Fill { outline, tint });
+    }
+}
+
+/// Legend rows common to both charts: the groups (unless the chart is empty), the highlighted
+/// object, and the upper-limit arrow when one is drawn.
+fn group_legend(
+    groups: &[Group],
+    empty: bool,
+    highlight: Option<&ChartPoint>,
+    any_limit: bool,
+) -> Vec<LegendEntry> {
+    let mut legend = Vec::new();
+    if !empty {
+        legend.extend(groups.iter().enumerate().map(|(i, g)| LegendEntry {
+            symbol: Symbol::Marker(style::group_style(i)),
+            label: g.label.clone(),
+        }));
+    }
+    if let Some(h) = highlight {
+        legend.push(LegendEntry {
+            symbol: Symbol::Star,
+            label: h.name.clone(),
+        });
+    }
+    if any_limit && (!empty || highlight.is_some_and(|h| h.upper_limit)) {
+        legend.push(LegendEntry {
+            symbol: Symbol::Arrow,
+            label: "Upper limit".to_owned(),
+        });
+    }
+    legend
+}
+
+// ---------------------------------------------------------------------------------------------
+// Rendering
+
+fn drawing_error(e: impl std::fmt::Display) -> ChartError {
+    ChartError::Drawing(e.to_string())
+}
+
+/// Width of the legend column, in pixels.
+fn legend_width(width: u32) -> u32 {
+    (width * 26 / 100).clamp(150, 220)
+}
+
+/// A tick label with `decimals` decimals and a true minus sign.
+fn tick_label(v: f64, decimals: usize) -> String {
+    // Ticks that land a rounding error off zero must not print as "−0.0".
+    let v = if v.abs() < 1e-9 { 0.0 } else { v };
+    minus_sign(&format!("{v:.decimals$}"))
+}
+
+fn render(scene: &Scene<'_>) -> Result<Rendered, ChartError> {
+    let mut svg = String::new();
+    let frame = draw_frame(&mut svg, scene)?;
+
+    // plotters opens with `<svg width=… height=… viewBox=… xmlns=…>` and ends with `</svg>`; the
+    // root gets an accessible name and the raw layer goes before the closing tag.
+    let name = if scene.title.trim().is_empty() {
+        format!("{} against {}", scene.y_label, scene.x_label)
+    } else {
+        scene.title.to_owned()
+    };
+    let body = svg
+        .strip_prefix("<svg ")
+        .and_then(|rest| rest.trim_end().strip_suffix("</svg>"))
+        .ok_or_else(|| drawing_error("plotters wrote an unexpected document frame"))?;
+    let mut out = String::with_capacity(body.len() + 4096 + 600 * scene.points.len());
+    let _ = write!(
+        out,
+        r#"<svg class="chart" role="figure" aria-label="{}" "#,
+        escape(&name)
+    );
+    out.push_str(body);
+    overlay(&mut out, scene, &frame);
+    out.push_str("</svg>\n");
+    Ok(Rendered {
+        svg: out,
+        spec: frame.spec,
+    })
+}
+
+/// The plotters pass: background, title, underlay fills, grid, axes with labels, lines.
+fn draw_frame(buf: &mut String, scene: &Scene<'_>) -> Result<Frame, ChartError> {
+    let b = scene.bounds;
+    let root = SVGBackend::with_string(buf, (scene.width, scene.height)).into_drawing_area();
+    root.fill(&WHITE).map_err(drawing_error)?;
+    let area = if scene.title.trim().is_empty() {
+        root.clone()
+    } else {
+        let font = (FONT_FAMILY, TITLE_FONT).into_font().color(&INK.plotters());
+        root.titled(&clean(scene.title), font)
+            .map_err(drawing_error)?
+    };
+    let (plot_area, legend_area) = area.split_horizontally(scene.width - legend_width(scene.width));
+    let mut chart = ChartBuilder::on(&plot_area)
+        .margin(MARGIN)
+        .x_label_area_size(X_LABEL_AREA)
+        .y_label_area_size(Y_LABEL_AREA)
+        .build_cartesian_2d(b.x_min..b.x_max, b.y_min..b.y_max)
+        .map_err(drawing_error)?;
+
+    // Bands first, so the grid and everything else stay visible through them.
+    for fill in &scene.fills {
+        let style = fill.tint.colour.plotters().mix(fill.tint.opacity).filled();
+        chart
+            .draw_series(std::iter::once(Polygon::new(fill.outline.clone(), style)))
+            .map_err(drawing_error)?;
+    }
+
+    let (px, py) = chart.plotting_area().get_pixel_range();
+    // About one tick per 80 pixels, labelled with the fewest decimals that tell them apart.
+    let x_ticks = usize::try_from((px.end - px.start) / 80)
+        .unwrap_or(5)
+        .clamp(3, 10);
+    let y_ticks = usize::try_from((py.end - py.start) / 60)
+        .unwrap_or(5)
+        .clamp(3, 10);
+    let x_decimals = tick_decimals(b.x_min, b.x_max, x_ticks);
+    let y_decimals = tick_decimals(b.y_min, b.y_max, y_ticks);
+    let x_fmt = |v: &f64| tick_label(*v, x_decimals);
+    let y_fmt = |v: &f64| tick_label(*v, y_decimals);
+    let ink = INK.plotters();
+    chart
+        .configure_mesh()
+        .x_desc(clean(scene.x_label))
+        .y_desc(clean(scene.y_label))
+        .x_labels(x_ticks)
+        .y_labels(y_ticks)
+        .x_label_formatter(&x_fmt)
+        .y_label_formatter(&y_fmt)
+        .label_style((FONT_FAMILY, TICK_FONT).into_font().color(&ink))
+        .axis_desc_style((FONT_FAMILY, AXIS_FONT).into_font().color(&ink))
+        .bold_line_style(GRID.plotters().stroke_width(1))
+        .light_line_style(TRANSPARENT)
+        .axis_style(ink.stroke_width(1))
+        .draw()
+        .map_err(drawing_error)?;
+
+    // Close the frame on the top and right, where plotters draws no axis.
+    let corners = vec![(b.x_min, b.y_max), (b.x_max, b.y_max), (b.x_max, b.y_min)];
+    chart
+        .draw_series(std::iter::once(PathElement::new(
+            corners,
+            GRID.plotters().stroke_width(1),
+        )))
+        .map_err(drawing_error)?;
+
+    for stroke in &scene.strokes {
+        let style = stroke.colour.plotters().stroke_width(stroke.width);
+        chart
+            .draw_series(
+                stroke
+                    .runs
+                    .iter()
+                    .map(|run| PathElement::new(run.clone(), style)),
+            )
+            .map_err(drawing_error)?;
+    }
+
+    let frame = Frame {
+        spec: chart.as_coord_spec().clone(),
+        plot: PixelRect {
+            left: px.start,
+            right: px.end,
+            top: py.start,
+            bottom: py.end,
+        },
+        legend_left: legend_area.get_base_pixel().0,
+    };
+    root.present().map_err(drawing_error)?;
+    Ok(frame)
+}
+
+/// Pixel position of a data point, through plotters' own mapping.
+fn to_px(spec: &Spec, x: f64, y: f64) -> (f64, f64) {
+    let (px, py) = spec.translate(&(x, y));
+    (f64::from(px), f64::from(py))
+}
+
+/// The raw layer: points, highlight, legend, and the empty message.
+fn overlay(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
+    out.push_str("<g class=\"points\">\n");
+    for p in scene.points {
+        let group = scene.groups.get(p.group).map(|g| g.label.as_str());
+        point_markup(
+            out,
+            p,
+            Some(style::group_style(p.group)),
+            group,
+            scene,
+            frame,
+        );
+    }
+    out.push_str("</g>\n");
+    if let Some(h) = scene.highlight {
+        out.push_str("<g class=\"highlight\">\n");
+        point_markup(out, h, None, None, scene, frame);
+        out.push_str("</g>\n");
+    }
+    legend_markup(out, scene, frame);
+    if scene.is_empty() {
+        // Near the top of the frame, on a white backing, clear of a highlighted object that sits
+        // in the middle of its padded range.
+        let cx = f64::from(frame.plot.left + frame.plot.right) / 2.0;
+        let cy = f64::from(frame.plot.top) + 30.0;
+        let half_w = 0.5 * 15.0 * GLYPH_EM * EMPTY_MESSAGE.chars().count() as f64 + 10.0;
+        let _ = writeln!(
+            out,
+            r##"<g class="empty-message"><rect x="{}" y="{}" width="{}" height="26" rx="4" fill="#FFFFFF" stroke="{}"/><text x="{}" y="{}" dy="0.35em" text-anchor="middle" font-family="{FONT_FAMILY}" font-size="15" fill="{}">{}</text></g>"##,
+            num(cx - half_w),
+            num(cy - 13.0),
+            num(2.0 * half_w),
+            GRID.hex(),
+            num(cx),
+            num(cy),
+            INK.hex(),
+            escape(EMPTY_MESSAGE)
+        );
+    }
+}
+
+/// The hover text of a point, e.g. `A-1: log₁₀ M_BH [M☉] = 8.12 ± 0.10; log₁₀ σ [km/s] =
+/// 2.30 ± 0.02 (Elliptical)`.
+fn hover_text(p: &ChartPoint, scene: &Scene<'_>, group: Option<&str>) -> String {
+    let y = if p.upper_limit {
+        format!("{} < {}", scene.y_label, dex(p.y))
+    } else if (p.y_err_minus - p.y_err_plus).abs() < 0.005 {
+        if p.y_err_plus > 0.0 {
+            format!("{} = {} ± {}", scene.y_label, dex(p.y), dex(p.y_err_plus))
+        } else {
+            format!("{} = {}", scene.y_label, dex(p.y))
+        }
+    } else {
+        format!(
+            "{} = {} +{}/−{}",
+            scene.y_label,
+            dex(p.y),
+            dex(p.y_err_plus),
+            dex(p.y_err_minus)
+        )
+    };
+    let x = if p.x_err > 0.0 {
+        format!("{} = {} ± {}", scene.x_label, dex(p.x), dex(p.x_err))
+    } else {
+        format!("{} = {}", scene.x_label, dex(p.x))
+    };
+    match group {
+        Some(g) => format!("{}: {y}; {x} ({g})", p.name),
+        None => format!("{}: {y}; {x}", p.name),
+    }
+}
+
+/// One point: an optional link around a group with its title, error bars or arrow, and marker.
+/// `style` is `None` for the highlighted object, drawn as a star.
+fn point_markup(
+    out: &mut String,
+    p: &ChartPoint,
+    style: Option<MarkerStyle>,
+    group: Option<&str>,
+    scene: &Scene<'_>,
+    frame: &Frame,
+) {
+    let spec = &frame.spec;
+    let (cx, cy) = to_px(spec, p.x, p.y);
+    let colour = style.map_or(HIGHLIGHT_STROKE, |s| s.colour);
+    if let Some(href) = &p.href {
+        let _ = write!(out, r#"<a href="{}">"#, escape(href));
+    }
+    match style {
+        Some(_) => {
+            let _ = write!(out, r#"<g class="pt" data-group="{}">"#, p.group);
+        }
+        None => out.push_str(r#"<g class="pt highlight">"#),
+    }
+    let _ = write!(
+        out,
+        "<title>{}</title>",
+        escape(&hover_text(p, scene, group))
+    );
+    let bar = format!(
+        r#"fill="none" stroke="{}" stroke-width="1.2" opacity="0.75""#,
+        colour.hex()
+    );
+    if p.x_err > 0.0 {
+        let (left, _) = to_px(spec, p.x - p.x_err, p.y);
+        let (right, _) = to_px(spec, p.x + p.x_err, p.y);
+        let _ = write!(
+            out,
+            r#"<path class="err-x" d="M{} {}H{}" {bar}/>"#,
+            num(left),
+            num(cy),
+            num(right)
+        );
+    }
+    if p.upper_limit {
+        // Shorten the arrow rather than let it cross the x axis.
+        let room = frame.plot.bottom - 2 - cy as i32;
+        let length = ARROW_PX.min(room).max(ARROW_MIN_PX);
+        out.push_str(&style::arrow_element(cx, cy, f64::from(length), colour));
+    } else if p.y_err_minus > 0.0 || p.y_err_plus > 0.0 {
+        let (_, low) = to_px(spec, p.x, p.y - p.y_err_minus);
+        let (_, high) = to_px(spec, p.x, p.y + p.y_err_plus);
+        let _ = write!(
+            out,
+            r#"<path class="err-y" d="M{} {}V{}" {bar}/>"#,
+            num(cx),
+            num(low),
+            num(high)
+        );
+    }
+    match style {
+        Some(s) => out.push_str(&style::marker_element(cx, cy, s)),
+        None => out.push_str(&style::star_element(cx, cy, HIGHLIGHT_RADIUS)),
+    }
+    out.push_str("</g>");
+    if p.href.is_some() {
+        out.push_str("</a>");
+    }
+    out.push('\n');
+}
+
+/// The legend column to the right of the plot, one row per entry (a long label wraps onto a
+/// second line); rows that do not fit are summarised in a last "+ n more" row.
+fn legend_markup(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
+    if scene.legend.is_empty() {
+        return;
+    }
+    let symbol_x = f64::from(frame.legend_left + 22);
+    let text_x = frame.legend_left + 40;
+    let max_chars = {
+        let room = f64::from(i32::try_from(scene.width).unwrap_or(i32::MAX) - text_x - 6);
+        // Truncation towards zero is the intent: a partial glyph does not fit.
+        #[expect(
+            clippy::cast_possible_truncation,
+            clippy::cast_sign_loss,
+            reason = "the value is floored and at least 4"
+        )]
+        let chars = (room / (LEGEND_FONT_PX * GLYPH_EM)).floor().max(4.0) as usize;
+        chars
+    };
+    let _ = writeln!(
+        out,
+        r#"<g class="legend" font-family="{FONT_FAMILY}" font-size="{}" fill="{}">"#,
+        num(LEGEND_FONT_PX),
+        INK.hex()
+    );
+    let last_row = frame.plot.bottom - 10;
+    let mut cy = frame.plot.top + 12;
+    for (index, entry) in scene.legend.iter().enumerate() {
+        let lines = wrap_label(&entry.label, max_chars);
+        let extra = LEGEND_LINE * i32::try_from(lines.len() - 1).unwrap_or(0);
+        // Keep one row free for the "+ n more" line unless this is the last entry.
+        let reserve = if index + 1 < scene.legend.len() {
+            LEGEND_ROW
+        } else {
+            0
+        };
+        if cy + extra + reserve > last_row {
+            let _ = writeln!(
+                out,
+                r#"<text class="legend-more" x="{text_x}" y="{cy}" dy="0.35em">+ {} more</text>"#,
+                scene.legend.len() - index
+            );
+            break;
+        }
+        let y = f64::from(cy);
+        out.push_str(r#"<g class="legend-entry">"#);
+        match &entry.symbol {
+            Symbol::Marker(s) => out.push_str(&style::marker_element(symbol_x, y, *s)),
+            Symbol::Star => out.push_str(&style::star_element(symbol_x, y, 8.0)),
+            Symbol::Arrow => out.push_str(&style::arrow_element(symbol_x, y - 9.0, 18.0, INK)),
+            Symbol::Line(colour, width) => {
+                let _ = write!(
+                    out,
+                    r#"<path d="M{} {}H{}" fill="none" stroke="{}" stroke-width="{width}"/>"#,
+                    num(symbol_x - 12.0),
+                    num(y),
+                    num(symbol_x + 12.0),
+                    colour.hex()
+                );
+            }
+            Symbol::Swatch(layers) => {
+                for tint in layers {
+                    let _ = write!(
+                        out,
+                        r#"<rect x="{}" y="{}" width="24" height="12" fill="{}" opacity="{}"/>"#,
+                        num(symbol_x - 12.0),
+                        num(y - 6.0),
+                        tint.colour.hex(),
+                        tint.opacity
+                    );
+                }
+            }
+        }
+        let _ = write!(
+            out,
+            r#"<text x="{text_x}" y="{cy}" dy="0.35em">{}"#,
+            escape(&lines[0])
+        );
+        for line in &lines[1..] {
+            let _ = write!(
+                out,
+                r#"<tspan x="{text_x}" dy="{LEGEND_LINE}">{}</tspan>"#,
+                escape(line)
+            );
+        }
+        out.push_str("</text></g>\n");
+        cy += LEGEND_ROW + extra;
+    }
+    out.push_str("</g>\n");
+}
+
+/// A legend label in at most two lines of `max_chars` characters: broken at the last space that
+/// fits, the remainder shortened with "…" if it is still too long.
+fn wrap_label(label: &str, max_chars: usize) -> Vec<String> {
+    if label.chars().count() <= max_chars {
+        return vec![label.to_owned()];
+    }
+    let cut = label
+        .char_indices()
+        .take(max_chars + 1)
+        .filter(|&(_, c)| c == ' ')
+        .map(|(i, _)| i)
+        .last();
+    match cut {
+        Some(i) if i > 0 => vec![
+            label[..i].to_owned(),
+            truncate(label[i + 1..].trim_start(), max_chars),
+        ],
+        _ => vec![truncate(label, max_chars)],
+    }
+}

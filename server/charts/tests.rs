@@ -1,0 +1,1197 @@
+//! Unit tests of the charts: well-formed SVG, one linked and titled element per point, arrows for
+//! limits, the line through (x₀, α), bands, escaping, refusals and empty states.
+//!
+//! All objects here are invented (names like "A-1"); no real galaxy or measurement is used.
+
+use plotters::coord::CoordTranslate as _;
+use plotters::coord::ReverseCoordTranslate as _;
+
+use super::draw::{relation_rendered, residual_rendered};
+use super::geometry::{Bounds, clip_polygon, clip_polyline, padded, tick_decimals};
+use super::markup::{escape, is_site_relative};
+use super::style::{self, LINE, MEAN_BAND, SCATTER_1, SCATTER_2};
+use super::*;
+
+// ---------------------------------------------------------------------------------------------
+// Helpers
+
+/// A tiny XML well-formedness checker: balanced and properly nested tags, one root element,
+/// quoted attributes without `<` and without repeats, and only the five predefined entities or
+/// numeric character references after `&`. Enough for SVG written by plotters and this module.
+fn check_well_formed(doc: &str) -> Result<(), String> {
+    let bytes = doc.as_bytes();
+    let mut stack: Vec<String> = Vec::new();
+    let mut roots = 0;
+    let mut i = 0;
+    while i < bytes.len() {
+        if bytes[i] != b'<' {
+            let end = doc[i..].find('<').map_or(doc.len(), |k| i + k);
+            let text = &doc[i..end];
+            if stack.is_empty() && !text.trim().is_empty() {
+                return Err(format!("text outside the root element: {text:?}"));
+            }
+            check_entities(text)?;
+            i = end;
+            continue;
+        }
+        let rest = &doc[i..];
+        if rest.starts_with("<?") {
+            i += rest.find("?>").ok_or("unclosed <?")? + 2;
+            continue;
+        }
+        if rest.starts_with("<!--") {
+            i += rest.find("-->").ok_or("unclosed comment")? + 3;
+            continue;
+        }
+        if let Some(close) = rest.strip_prefix("</") {
+            let end = close.find('>').ok_or("unclosed end tag")?;
+            let name = close[..end].trim();
+            match stack.pop() {
+                Some(open) if open == name => {}
+                other => return Err(format!("</{name}> closes {other:?}")),
+            }
+            i += 2 + end + 1;
+            continue;
+        }
+        // Start tag or empty-element tag.
+        let mut j = i + 1;
+        let name_start = j;
+        while j < bytes.len() && !matches!(bytes[j], b' ' | b'\n' | b'\t' | b'\r' | b'/' | b'>') {
+            j += 1;
+        }
+        let name = &doc[name_start..j];
+        if name.is_empty() || !name.chars().next().is_some_and(|c| c.is_ascii_alphabetic()) {
+            return Err(format!("bad tag name at byte {i}"));
+        }
+        let mut seen: Vec<&str> = Vec::new();
+        loop {
+            while j < bytes.len() && bytes[j].is_ascii_whitespace() {
+                j += 1;
+            }
+            if j >= bytes.len() {
+                return Err(format!("unclosed start tag <{name}"));
+            }
+            if doc[j..].starts_with("/>") {
+                if stack.is_empty() {
+                    roots += 1;
+                }
+                j += 2;
+                break;
+            }
+            if bytes[j] == b'>' {
+                if stack.is_empty() {
+                    roots += 1;
+                }
+                stack.push(name.to_owned());
+                j += 1;
+                break;
+            }
+            let attr_start = j;
+            while j < bytes.len()
+                && (bytes[j].is_ascii_alphanumeric()
+                    || matches!(bytes[j], b'-' | b'_' | b':' | b'.'))
+            {
+                j += 1;
+            }
+            let attr = &doc[attr_start..j];
+            if attr.is_empty() || bytes.get(j) != Some(&b'=') {
+                return Err(format!("bad attribute in <{name}> at byte {attr_start}"));
+            }
+            if seen.contains(&attr) {
+                return Err(format!("repeated attribute {attr} in <{name}>"));
+            }
+            seen.push(attr);
+            j += 1;
+            let quote = *bytes.get(j).ok_or("attribute without value")?;
+            if quote != b'"' && quote != b'\'' {
+                return Err(format!("unquoted attribute {attr} in <{name}>"));
+            }
+            let value_end = doc[j + 1..]
+                .find(char::from(quote))
+                .ok_or("unclosed attribute value")?
+                + j
+                + 1;
+            let value = &doc[j + 1..value_end];
+            if value.contains('<') {
+                return Err(format!("'<' in attribute {attr} of <{name}>"));
+            }
+            check_entities(value)?;
+            j = value_end + 1;
+        }
+        i = j;
+    }
+    if !stack.is_empty() {
+        return Err(format!("unclosed elements: {stack:?}"));
+    }
+    if roots != 1 {
+        return Err(format!("{roots} root elements"));
+    }
+    Ok(())
+}
+
+/// Every `&` starts a predefined entity or a numeric character reference.
+fn check_entities(text: &str) -> Result<(), String> {
+    for (k, _) in text.match_indices('&') {
+        let rest = &text[k + 1..];
+        let end = rest
+            .find(';')
+            .ok_or_else(|| format!("bare & in {text:?}"))?;
+        let entity = &rest[..end];
+        let ok = matches!(entity, "lt" | "gt" | "amp" | "quot" | "apos")
+            || entity
+                .strip_prefix("#x")
+                .is_some_and(|h| !h.is_empty() && h.chars().all(|c| c.is_ascii_hexdigit()))
+            || entity
+                .strip_prefix('#')
+                .is_some_and(|d| !d.is_empty() && d.chars().all(|c| c.is_ascii_digit()));
+        if !ok {
+            return Err(format!("bad entity &{entity}; in {text:?}"));
+        }
+    }
+    Ok(())
+}
+
+fn count(haystack: &str, needle: &str) -> usize {
+    haystack.matches(needle).count()
+}
+
+/// The markup of each point (`<g class="pt"…>…</g>`), in drawing order.
+fn point_chunks(svg: &str) -> Vec<&str> {
+    svg.match_indices("<g class=\"pt")
+        .map(|(k, _)| {
+            let end = svg[k..].find("</g>").expect("point group is closed");
+            &svg[k..k + end]
+        })
+        .collect()
+}
+
+/// The texts of all `<title>` elements.
+fn titles(svg: &str) -> Vec<&str> {
+    svg.match_indices("<title>")
+        .map(|(k, _)| {
+            let start = k + "<title>".len();
+            let end = svg[start..].find("</title>").expect("title is closed");
+            &svg[start..start + end]
+        })
+        .collect()
+}
+
+/// The trimmed content of every `<text>` element (a wrapped legend label keeps its `<tspan>`).
+fn texts(svg: &str) -> Vec<&str> {
+    svg.match_indices("<text")
+        .map(|(k, _)| {
+            let start = k + svg[k..].find('>').expect("start tag closed") + 1;
+            let end = svg[start..].find("</text>").expect("text closed");
+            svg[start..start + end].trim()
+        })
+        .collect()
+}
+
+/// The value of attribute `name` in the first element of `element`.
+fn attr<'a>(element: &'a str, name: &str) -> Option<&'a str> {
+    let key = format!(" {name}=\"");
+    let start = element.find(&key)? + key.len();
+    let end = element[start..].find('"')?;
+    Some(&element[start..start + end])
+}
+
+/// Vertices of every `<polyline>` with the given stroke colour and width, one Vec per element.
+fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(i32, i32)>> {
+    svg.match_indices("<polyline")
+        .map(|(k, _)| &svg[k..k + svg[k..].find("/>").expect("polyline is closed")])
+        .filter(|el| attr(el, "stroke") == Some(stroke) && attr(el, "stroke-width") == Some(width))
+        .map(|el| {
+            attr(el, "points")
+                .expect("polyline has points")
+                .split_whitespace()
+                .map(|pair| {
+                    let (x, y) = pair.split_once(',').expect("x,y pair");
+                    (x.parse().expect("integer x"), y.parse().expect("integer y"))
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Number of `<polygon>` elements filled with `tint` (plotters writes opacity and fill).
+fn band_polygons(svg: &str, tint: style::Tint) -> usize {
+    count(
+        svg,
+        &format!(
+            "<polygon opacity=\"{}\" fill=\"{}\"",
+            tint.opacity,
+            tint.colour.hex()
+        ),
+    )
+}
+
+fn point(name: &str, x: f64, y: f64, group: usize) -> ChartPoint {
+    ChartPoint {
+        name: name.to_owned(),
+        href: Some(format!("/galaxies/{}", name.to_lowercase())),
+        x,
+        x_err: 0.03,
+        y,
+        y_err_minus: 0.12,
+        y_err_plus: 0.1,
+        upper_limit: false,
+        group,
+    }
+}
+
+/// The fixed small chart: six invented objects in two groups, one of them an upper limit, around
+/// an M–σ-like line with pivot log₁₀ 200 = 2.30103.
+fn small_chart() -> RelationChart {
+    let mut limit = point("A-6", 2.05, 7.2, 1);
+    limit.upper_limit = true;
+    let line = LineSpec {
+        alpha: 8.3,
+        beta: 5.0,
+        beta2: None,
+        pivot: 2.30103,
+        scatter_dex: 0.4,
+    };
+    RelationChart {
+        title: "M_BH–σ".to_owned(),
+        x_label: sigma_axis_label(),
+        y_label: black_hole_mass_axis_label(),
+        points: vec![
+            point("A-1", 2.1, 7.4, 0),
+            point("A-2", 2.2, 7.9, 0),
+            point("A-3", 2.3, 8.2, 1),
+            point("A-4", 2.4, 8.9, 0),
+            point("A-5", 2.45, 9.1, 1),
+            limit,
+        ],
+        groups: vec![
+            Group {
+                label: "Early type".to_owned(),
+            },
+            Group {
+                label: "Late type".to_owned(),
+            },
+        ],
+        line: Some(line),
+        mean_band: (0..=10)
+            .map(|k| {
+                let x = 2.0 + 0.05 * f64::from(k);
+                BandPoint {
+                    x,
+                    lower: line.y_at(x) - 0.08,
+                    upper: line.y_at(x) + 0.08,
+                }
+            })
+            .collect(),
+        highlight: None,
+        ..RelationChart::default()
+    }
+}
+
+fn small_residuals() -> ResidualChart {
+    let chart = small_chart();
+    let line = chart.line.expect("small chart has a line");
+    ResidualChart {
+        title: "Residuals".to_owned(),
+        x_label: sigma_axis_label(),
+        points: chart
+            .points
+            .iter()
+            .map(|p| ChartPoint {
+                y: p.y - line.y_at(p.x),
+                ..p.clone()
+            })
+            .collect(),
+        groups: chart.groups,
+        scatter_dex: 0.4,
+        ..ResidualChart::default()
+    }
+}
+
+fn assert_clean(svg: &str) {
+    if let Err(e) = check_well_formed(svg) {
+        panic!("SVG is not well-formed: {e}");
+    }
+    assert!(!svg.contains("NaN"), "NaN in the SVG");
+    assert!(!svg.contains("inf"), "infinity in the SVG");
+    assert!(!svg.contains("<script"), "script element in the SVG");
+    assert!(!svg.contains("<style"), "style element in the SVG");
+    assert!(
+        !svg.contains("http://") || count(svg, "http://") == 1,
+        "external reference"
+    );
+}
+
+// ---------------------------------------------------------------------------------------------
+// The checker itself must be able to fail.
+
+#[test]
+fn well_formedness_checker_rejects_broken_documents() {
+    assert!(check_well_formed("<svg><g></svg>").is_err());
+    assert!(check_well_formed("<svg><title>a < b</title></svg>").is_err());
+    assert!(check_well_formed("<svg><title>a & b</title></svg>").is_err());
+    assert!(check_well_formed(r#"<svg a="1" a="2"/>"#).is_err());
+    assert!(check_well_formed(r#"<svg a="x<y"/>"#).is_err());
+    assert!(check_well_formed("<svg/><svg/>").is_err());
+    assert!(check_well_formed(r#"<svg a="&lt;&#38;&#x26;">t&amp;t</svg>"#).is_ok());
+}
+
+// ---------------------------------------------------------------------------------------------
+// Relation chart
+
+#[test]
+fn relation_chart_is_well_formed_svg() {
+    let svg = relation_svg(&small_chart()).expect("chart draws");
+    assert!(svg.starts_with("<svg "));
+    assert!(svg.trim_end().ends_with("</svg>"));
+    assert_clean(&svg);
+}
+
+#[test]
+fn every_point_gets_one_title_and_one_link_naming_it() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    let titles = titles(&svg);
+    assert_eq!(titles.len(), chart.points.len());
+    assert_eq!(count(&svg, "<a href="), chart.points.len());
+    for p in &chart.points {
+        assert_eq!(
+            titles
+                .iter()
+                .filter(|t| t.starts_with(&format!("{}:", p.name)))
+                .count(),
+            1,
+            "one title for {}",
+            p.name
+        );
+        let href = p.href.as_deref().expect("fixture points are linked");
+        assert_eq!(count(&svg, &format!("<a href=\"{href}\">")), 1);
+    }
+    assert_eq!(point_chunks(&svg).len(), chart.points.len());
+}
+
+#[test]
+fn point_titles_carry_values_and_units() {
+    let svg = relation_svg(&small_chart()).expect("chart draws");
+    let titles = titles(&svg);
+    let a1 = titles
+        .iter()
+        .find(|t| t.starts_with("A-1:"))
+        .expect("A-1 titled");
+    assert!(a1.contains("log₁₀ M_BH [M☉] = 7.40 +0.10/−0.12"), "{a1}");
+    assert!(a1.contains("log₁₀ σ [km/s] = 2.10 ± 0.03"), "{a1}");
+    assert!(a1.ends_with("(Early type)"), "{a1}");
+    let a6 = titles
+        .iter()
+        .find(|t| t.starts_with("A-6:"))
+        .expect("A-6 titled");
+    assert!(a6.contains("[M☉] &lt; 7.20"), "limit title says '<': {a6}");
+}
+
+#[test]
+fn an_upper_limit_is_an_arrow_without_a_vertical_error_bar() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    let chunks = point_chunks(&svg);
+    assert_eq!(
+        count(&svg, "class=\"limit-arrow\""),
+        1 + 1,
+        "one on the chart, one in the legend"
+    );
+    for (p, chunk) in chart.points.iter().zip(&chunks) {
+        assert!(
+            chunk.contains(&format!("{}:", p.name)),
+            "chunks follow point order"
+        );
+        if p.upper_limit {
+            assert_eq!(count(chunk, "class=\"limit-arrow\""), 1, "{chunk}");
+            assert_eq!(count(chunk, "class=\"err-y\""), 0, "{chunk}");
+            assert_eq!(
+                count(chunk, "class=\"err-x\""),
+                1,
+                "x error still drawn: {chunk}"
+            );
+        } else {
+            assert_eq!(count(chunk, "class=\"limit-arrow\""), 0, "{chunk}");
+            assert_eq!(count(chunk, "class=\"err-y\""), 1, "{chunk}");
+        }
+    }
+}
+
+#[test]
+fn limit_arrows_point_down_from_the_limit() {
+    let chart = small_chart();
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    let limit = chart
+        .points
+        .iter()
+        .find(|p| p.upper_limit)
+        .expect("fixture has a limit");
+    let (px, py) = rendered.spec.translate(&(limit.x, limit.y));
+    let chunk = point_chunks(&rendered.svg)
+        .into_iter()
+        .find(|c| c.contains("A-6:"))
+        .expect("limit drawn");
+    let arrow = &chunk[chunk.find("class=\"limit-arrow\"").expect("arrow")..];
+    let d = attr(arrow, "d").expect("arrow path");
+    // "M{x} {y}V{tip}…": starts at the limit and goes down (SVG y grows downwards).
+    let (start, tail) = d[1..].split_once('V').expect("vertical shaft");
+    let tip: f64 = tail
+        .split('M')
+        .next()
+        .expect("tip")
+        .parse()
+        .expect("tip number");
+    let (sx, sy) = start.split_once(' ').expect("x y");
+    assert_eq!(sx.parse::<i32>().expect("x"), px);
+    assert_eq!(sy.parse::<i32>().expect("y"), py);
+    assert!(
+        tip > f64::from(py) + 10.0,
+        "arrow points down: tip {tip}, start {py}"
+    );
+}
+
+#[test]
+fn legend_lists_each_group_and_the_line_and_bands() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    // Groups, upper limit, fitted relation, mean band, ±1ε, ±2ε.
+    assert_eq!(
+        count(&svg, "class=\"legend-entry\""),
+        chart.groups.len() + 5
+    );
+    let texts = texts(&svg);
+    for label in [
+        "Early type",
+        "Late type",
+        "Upper limit",
+        "Fitted relation",
+        "Mean-relation band",
+        "±1ε = 0.40 dex",
+        "±2ε = 0.80 dex",
+    ] {
+        assert!(texts.contains(&label), "legend shows {label}");
+    }
+
+    let mut more = chart.clone();
+    more.groups.push(Group {
+        label: "Third".to_owned(),
+    });
+    more.line = None;
+    more.mean_band.clear();
+    let svg = relation_svg(&more).expect("chart draws");
+    assert_eq!(
+        count(&svg, "class=\"legend-entry\""),
+        3 + 1,
+        "three groups and the limit"
+    );
+}
+
+#[test]
+fn the_line_passes_through_the_pivot_at_alpha() {
+    let chart = small_chart();
+    let line = chart.line.expect("line");
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    let runs = polylines(&rendered.svg, &LINE.hex(), "2");
+    assert_eq!(runs.len(), 1, "one visible run of the fitted line");
+    let target = rendered.spec.translate(&(line.pivot, line.alpha));
+    let nearest = runs[0]
+        .iter()
+        .map(|&(x, y)| (x - target.0).abs() + (y - target.1).abs())
+        .min()
+        .expect("vertices");
+    assert!(
+        nearest <= 1,
+        "a vertex within 1 px of (x₀, α), nearest {nearest} px"
+    );
+}
+
+#[test]
+fn every_vertex_of_a_curved_line_lies_on_the_relation() {
+    // Log-quadratic relation (β₂ as in Wyithe 2006, MNRAS 365, 1082: β = 4.2, β₂ = 1.6 on the
+    // pivot-200 km/s scale, values as quoted in the project's science notes).
+    let mut chart = small_chart();
+    let line = LineSpec {
+        alpha: 8.3,
+        beta: 4.2,
+        beta2: Some(1.6),
+        pivot: 2.30103,
+        scatter_dex: 0.3,
+    };
+    chart.line = Some(line);
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    let runs = polylines(&rendered.svg, &LINE.hex(), "2");
+    assert!(!runs.is_empty());
+    let (y_lo, y_hi) = {
+        let r = rendered.spec.get_y_range();
+        (r.start, r.end)
+    };
+    // Pixels are integers: allow 1.5 px of the y axis in data units, plus the slope times 1.5 px
+    // of the x axis.
+    let px_range = rendered.spec.get_x_axis_pixel_range();
+    let py_range = rendered.spec.get_y_axis_pixel_range();
+    let x_range = rendered.spec.get_x_range();
+    let dex_per_px_y = (y_hi - y_lo) / f64::from(py_range.end - py_range.start).abs();
+    let dex_per_px_x =
+        (x_range.end - x_range.start) / f64::from(px_range.end - px_range.start).abs();
+    let mut checked = 0;
+    for &(px, py) in runs.iter().flatten() {
+        let (x, y) = rendered
+            .spec
+            .reverse_translate((px, py))
+            .expect("inside the plot");
+        let dx = x - line.pivot;
+        let slope = (line.beta + 2.0 * 1.6 * dx).abs();
+        let tolerance = 1.5 * dex_per_px_y + 1.5 * slope * dex_per_px_x;
+        assert!(
+            (y - line.y_at(x)).abs() <= tolerance,
+            "vertex ({px},{py}) → ({x:.4},{y:.4}) is off the curve by {:.4}",
+            y - line.y_at(x)
+        );
+        checked += 1;
+    }
+    assert!(
+        checked > 50,
+        "the curve is sampled densely ({checked} vertices)"
+    );
+}
+
+#[test]
+fn scatter_bands_are_drawn_only_when_epsilon_is_positive() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(band_polygons(&svg, SCATTER_2), 1);
+    assert_eq!(band_polygons(&svg, SCATTER_1), 1);
+    assert_eq!(band_polygons(&svg, MEAN_BAND), 1);
+
+    let mut no_scatter = chart.clone();
+    if let Some(line) = &mut no_scatter.line {
+        line.scatter_dex = 0.0;
+    }
+    let svg = relation_svg(&no_scatter).expect("chart draws");
+    assert_eq!(band_polygons(&svg, SCATTER_2), 0);
+    assert_eq!(band_polygons(&svg, SCATTER_1), 0);
+    assert_eq!(
+        band_polygons(&svg, MEAN_BAND),
+        1,
+        "the mean band does not depend on ε"
+    );
+    assert!(!svg.contains("±1ε"));
+
+    let mut no_band = chart;
+    no_band.mean_band.clear();
+    let svg = relation_svg(&no_band).expect("chart draws");
+    assert_eq!(band_polygons(&svg, MEAN_BAND), 0);
+    assert!(!svg.contains("Mean-relation band"));
+}
+
+#[test]
+fn two_epsilon_band_is_lighter_and_wider_than_one_epsilon() {
+    const { assert!(SCATTER_2.opacity < SCATTER_1.opacity) };
+    let rendered = relation_rendered(&small_chart()).expect("chart draws");
+    let height = |tint: style::Tint| {
+        let key = format!(
+            "<polygon opacity=\"{}\" fill=\"{}\"",
+            tint.opacity,
+            tint.colour.hex()
+        );
+        let k = rendered.svg.find(&key).expect("band drawn");
+        let el = &rendered.svg[k..k + rendered.svg[k..].find("/>").expect("closed")];
+        let ys: Vec<i32> = attr(el, "points")
+            .expect("points")
+            .split_whitespace()
+            .map(|p| p.split_once(',').expect("pair").1.parse().expect("y"))
+            .collect();
+        ys.iter().max().expect("y") - ys.iter().min().expect("y")
+    };
+    assert!(height(SCATTER_2) >= height(SCATTER_1));
+}
+
+#[test]
+fn highlighted_object_is_a_star_with_its_own_legend_entry() {
+    let mut chart = small_chart();
+    chart.highlight = Some(ChartPoint {
+        name: "Placed object".to_owned(),
+        href: None,
+        ..point("x", 2.25, 8.6, 0)
+    });
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_clean(&svg);
+    assert_eq!(count(&svg, "class=\"pt highlight\""), 1);
+    assert_eq!(
+        count(&svg, "class=\"mk star\""),
+        2,
+        "on the chart and in the legend"
+    );
+    assert!(svg.contains(">Placed object</text>"));
+    assert_eq!(titles(&svg).len(), chart.points.len() + 1);
+    assert_eq!(
+        count(&svg, "<a href="),
+        chart.points.len(),
+        "unlinked highlight"
+    );
+    // Drawn after all the points, so it is on top.
+    assert!(svg.find("class=\"pt highlight\"") > svg.rfind("class=\"pt\""));
+}
+
+#[test]
+fn hostile_text_comes_out_escaped() {
+    let hostile = r#"<script>alert("x")</script> & 'q'"#;
+    let mut chart = small_chart();
+    chart.title = hostile.to_owned();
+    chart.x_label = format!("{hostile} x");
+    chart.groups[0].label = hostile.to_owned();
+    chart.points[0].name = hostile.to_owned();
+    chart.points[1].name = "ctrl\u{1}char\u{FFFF}".to_owned();
+    chart.points[2].href = Some("/galaxies/3?a=1&b=\"2\"".to_owned());
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_clean(&svg);
+    assert!(!svg.contains("<script>"));
+    assert!(!svg.contains("\u{1}"));
+    assert!(!svg.contains("\u{FFFF}"));
+    let escaped = "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt; &amp; &apos;q&apos;";
+    assert!(
+        titles(&svg)
+            .iter()
+            .any(|t| t.starts_with(&format!("{escaped}:")))
+    );
+    assert!(
+        texts(&svg).contains(&escaped),
+        "title drawn by plotters is escaped"
+    );
+    assert!(
+        texts(&svg)
+            .iter()
+            .any(|t| t.starts_with("&lt;script&gt;alert(&quot;x&quot;)")),
+        "legend label is escaped"
+    );
+    assert!(svg.contains(r#"<a href="/galaxies/3?a=1&amp;b=&quot;2&quot;">"#));
+    assert!(svg.contains(&format!("aria-label=\"{escaped}\"")));
+}
+
+#[test]
+fn links_must_be_site_relative_paths() {
+    for bad in [
+        "javascript:alert(1)",
+        "https://example.org/x",
+        "//example.org/x",
+        "/\\example.org",
+        " /galaxies/1",
+        "/galaxies/1 x",
+        "galaxies/1",
+        "",
+    ] {
+        let mut chart = small_chart();
+        chart.points[2].href = Some(bad.to_owned());
+        let err = relation_svg(&chart).expect_err(bad);
+        assert_eq!(
+            err,
+            ChartError::UnsafeHref {
+                item: "point \"A-3\"".to_owned()
+            },
+            "{bad}"
+        );
+    }
+    assert!(is_site_relative("/galaxies/12"));
+    assert!(is_site_relative("/"));
+    assert!(is_site_relative(
+        "/relations/m-sigma?estimator=mle&sample=all"
+    ));
+}
+
+#[test]
+fn unlinked_points_still_get_a_title() {
+    let mut chart = small_chart();
+    for p in &mut chart.points {
+        p.href = None;
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<a "), 0);
+    assert_eq!(titles(&svg).len(), chart.points.len());
+    assert_clean(&svg);
+}
+
+#[test]
+fn non_finite_values_are_refused_naming_the_point() {
+    type Spoil = fn(&mut ChartPoint);
+    let cases: [(Spoil, &str); 5] = [
+        (|p| p.x = f64::NAN, "x value"),
+        (|p| p.y = f64::INFINITY, "y value"),
+        (|p| p.x_err = f64::NAN, "x error"),
+        (|p| p.y_err_minus = f64::NEG_INFINITY, "lower y error"),
+        (|p| p.y_err_plus = f64::NAN, "upper y error"),
+    ];
+    for (spoil, field) in cases {
+        let mut chart = small_chart();
+        spoil(&mut chart.points[3]);
+        let err = relation_svg(&chart).expect_err(field);
+        assert_eq!(
+            err,
+            ChartError::NonFinite {
+                item: "point \"A-4\"".to_owned(),
+                field
+            }
+        );
+        assert_eq!(
+            err.to_string(),
+            format!("The {field} of point \"A-4\" is not a finite number.")
+        );
+
+        let mut residuals = small_residuals();
+        spoil(&mut residuals.points[3]);
+        assert!(matches!(
+            residual_svg(&residuals),
+            Err(ChartError::NonFinite { .. })
+        ));
+    }
+
+    let mut chart = small_chart();
+    if let Some(line) = &mut chart.line {
+        line.beta2 = Some(f64::NAN);
+    }
+    assert_eq!(
+        relation_svg(&chart).expect_err("NaN curvature").to_string(),
+        "The curvature β₂ of the fitted line is not a finite number."
+    );
+
+    let mut chart = small_chart();
+    chart.mean_band[4].upper = f64::NAN;
+    assert!(matches!(
+        relation_svg(&chart),
+        Err(ChartError::NonFinite {
+            field: "upper edge",
+            ..
+        })
+    ));
+
+    let mut chart = small_chart();
+    chart.highlight = Some(ChartPoint {
+        y: f64::NAN,
+        ..point("Probe", 2.2, 8.0, 0)
+    });
+    assert!(
+        relation_svg(&chart)
+            .expect_err("NaN highlight")
+            .to_string()
+            .contains("\"Probe\"")
+    );
+
+    let mut residuals = small_residuals();
+    residuals.scatter_dex = f64::NAN;
+    assert!(matches!(
+        residual_svg(&residuals),
+        Err(ChartError::NonFinite {
+            field: "scatter ε",
+            ..
+        })
+    ));
+}
+
+#[test]
+fn other_bad_input_is_refused_with_a_sentence() {
+    let mut chart = small_chart();
+    chart.points[0].y_err_minus = -0.1;
+    let negative = relation_svg(&chart).expect_err("negative error");
+    assert_eq!(
+        negative.to_string(),
+        "The lower y error of point \"A-1\" is negative."
+    );
+
+    let mut chart = small_chart();
+    chart.points[0].group = 5;
+    let unknown = relation_svg(&chart).expect_err("unknown group");
+    assert_eq!(
+        unknown.to_string(),
+        "The point \"A-1\" belongs to group 5, but only 2 groups are defined."
+    );
+
+    let mut chart = small_chart();
+    chart.mean_band.truncate(1);
+    let short = relation_svg(&chart).expect_err("one-sample band");
+    assert_eq!(short, ChartError::BandTooShort { len: 1 });
+
+    let mut chart = small_chart();
+    chart.mean_band[2].lower = chart.mean_band[2].upper + 0.1;
+    assert_eq!(
+        relation_svg(&chart).expect_err("inverted band"),
+        ChartError::BandInverted { index: 2 }
+    );
+
+    let mut chart = small_chart();
+    chart.width = 100;
+    let size = relation_svg(&chart).expect_err("too small");
+    assert!(matches!(size, ChartError::BadSize { width: 100, .. }));
+
+    let mut chart = small_chart();
+    if let Some(line) = &mut chart.line {
+        line.scatter_dex = -0.2;
+    }
+    assert!(matches!(
+        relation_svg(&chart),
+        Err(ChartError::Negative { .. })
+    ));
+
+    for err in [negative, unknown, short, size] {
+        let text = err.to_string();
+        assert!(
+            text.ends_with('.') && !text.contains('\n'),
+            "one sentence: {text}"
+        );
+        assert_eq!(text.matches(". ").count(), 0, "one sentence: {text}");
+    }
+}
+
+#[test]
+fn empty_chart_is_a_frame_with_a_message() {
+    let chart = RelationChart {
+        points: Vec::new(),
+        ..small_chart()
+    };
+    let svg = relation_svg(&chart).expect("empty chart draws");
+    assert_clean(&svg);
+    assert!(svg.contains(&format!(">{EMPTY_MESSAGE}</text>")));
+    assert_eq!(count(&svg, "class=\"empty-message\""), 1);
+    assert_eq!(point_chunks(&svg).len(), 0);
+    assert_eq!(count(&svg, "class=\"legend-entry\""), 0);
+    assert_eq!(band_polygons(&svg, SCATTER_1), 0);
+    // Axis labels still say what the chart would show.
+    assert!(svg.contains("log₁₀ σ [km/s]"));
+    assert!(svg.contains("log₁₀ M_BH [M☉]"));
+
+    let residuals = ResidualChart {
+        points: Vec::new(),
+        ..small_residuals()
+    };
+    let svg = residual_svg(&residuals).expect("empty residual chart draws");
+    assert_clean(&svg);
+    assert!(svg.contains(EMPTY_MESSAGE));
+
+    let bare = residual_svg(&ResidualChart::default()).expect("default chart draws");
+    assert_clean(&bare);
+    assert!(bare.contains(EMPTY_MESSAGE));
+    let bare = relation_svg(&RelationChart::default()).expect("default chart draws");
+    assert_clean(&bare);
+    assert!(bare.contains(EMPTY_MESSAGE));
+}
+
+#[test]
+fn data_charts_show_no_empty_message() {
+    let svg = relation_svg(&small_chart()).expect("chart draws");
+    assert!(!svg.contains(EMPTY_MESSAGE));
+}
+
+#[test]
+fn a_single_point_gets_a_padded_range() {
+    let only = ChartPoint {
+        x_err: 0.0,
+        y_err_minus: 0.0,
+        y_err_plus: 0.0,
+        ..point("Solo", 2.3, 8.0, 0)
+    };
+    let chart = RelationChart {
+        points: vec![only],
+        line: None,
+        mean_band: Vec::new(),
+        ..small_chart()
+    };
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    assert_clean(&rendered.svg);
+    let x = rendered.spec.get_x_range();
+    let y = rendered.spec.get_y_range();
+    assert!((x.end - x.start - 1.0).abs() < 1e-12, "x range {x:?}");
+    assert!((y.end - y.start - 1.0).abs() < 1e-12, "y range {y:?}");
+    assert!(x.start < 2.3 && 2.3 < x.end && y.start < 8.0 && 8.0 < y.end);
+
+    // Several points at one x: the x range is padded, the points land inside the frame.
+    let mut same_x = small_chart();
+    for p in &mut same_x.points {
+        p.x = 2.2;
+        p.x_err = 0.0;
+    }
+    let rendered = relation_rendered(&same_x).expect("chart draws");
+    let x = rendered.spec.get_x_range();
+    assert!(x.start < 2.2 && 2.2 < x.end && x.end - x.start > 0.5);
+    assert_clean(&rendered.svg);
+}
+
+#[test]
+fn padding_rules() {
+    // Zero span: ±0.5 around the value.
+    let (lo, hi) = padded(8.0, 8.0);
+    assert!((lo - 7.5).abs() < 1e-12 && (hi - 8.5).abs() < 1e-12);
+    // Normal span: 6 % each side.
+    let (lo, hi) = padded(1.0, 2.0);
+    assert!((lo - 0.94).abs() < 1e-12 && (hi - 2.06).abs() < 1e-12);
+    // Tiny span: widened to the minimum.
+    let (lo, hi) = padded(2.0, 2.01);
+    assert!((hi - lo - 0.2).abs() < 1e-12);
+}
+
+#[test]
+fn tick_labels_have_one_or_two_decimals() {
+    assert_eq!(tick_decimals(1.8, 2.6, 8), 1);
+    assert_eq!(tick_decimals(2.25, 2.45, 8), 2);
+    let svg = relation_svg(&small_chart()).expect("chart draws");
+    let numeric: Vec<&str> = svg
+        .split("</text>")
+        .filter_map(|chunk| chunk.rsplit('>').next())
+        .map(str::trim)
+        .filter(|t| {
+            !t.is_empty()
+                && t.chars()
+                    .all(|c| c.is_ascii_digit() || c == '.' || c == '−')
+        })
+        .collect();
+    assert!(numeric.len() >= 6, "ticks labelled: {numeric:?}");
+    for label in numeric {
+        let decimals = label.split_once('.').map_or(0, |(_, d)| d.len());
+        assert!((1..=2).contains(&decimals), "tick label {label}");
+    }
+}
+
+#[test]
+fn all_text_is_at_least_twelve_pixels() {
+    for svg in [
+        relation_svg(&small_chart()).expect("chart draws"),
+        residual_svg(&small_residuals()).expect("chart draws"),
+    ] {
+        let sizes: Vec<f64> = svg
+            .match_indices("font-size=\"")
+            .map(|(k, m)| {
+                let rest = &svg[k + m.len()..];
+                rest[..rest.find('"').expect("closed")]
+                    .parse()
+                    .expect("number")
+            })
+            .collect();
+        assert!(sizes.len() >= 5);
+        assert!(sizes.iter().all(|&s| s >= 12.0), "font sizes {sizes:?}");
+    }
+}
+
+#[test]
+fn size_is_the_callers() {
+    let chart = RelationChart {
+        width: 900,
+        height: 600,
+        ..small_chart()
+    };
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert!(svg.contains(r#"width="900" height="600" viewBox="0 0 900 600""#));
+    let default = relation_svg(&small_chart()).expect("chart draws");
+    assert!(default.contains(r#"width="720" height="480""#));
+}
+
+#[test]
+fn many_groups_get_distinct_styles_and_the_legend_fits() {
+    let styles: Vec<_> = (0..16).map(style::group_style).collect();
+    for (i, a) in styles.iter().enumerate() {
+        for b in &styles[i + 1..] {
+            assert_ne!(a, b);
+        }
+    }
+    let mut chart = small_chart();
+    chart.groups = (0..30)
+        .map(|i| Group {
+            label: format!("Group number {i} with a rather long descriptive label"),
+        })
+        .collect();
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_clean(&svg);
+    assert_eq!(
+        count(&svg, "class=\"legend-more\""),
+        1,
+        "overflow summarised"
+    );
+    assert!(count(&svg, "class=\"legend-entry\"") < 30);
+}
+
+#[test]
+fn relation_snapshot_structure() {
+    // Structural facts of the fixed small chart (not the whole string, which depends on
+    // plotters' layout details).
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    let n = chart.points.len();
+    let limits = chart.points.iter().filter(|p| p.upper_limit).count();
+    assert_eq!(count(&svg, "<svg"), 1);
+    assert_eq!(count(&svg, "class=\"pt\""), n);
+    assert_eq!(count(&svg, "<a href=\"/galaxies/"), n);
+    assert_eq!(count(&svg, "<title>"), n);
+    assert_eq!(count(&svg, "class=\"err-x\""), n);
+    assert_eq!(count(&svg, "class=\"err-y\""), n - limits);
+    assert_eq!(count(&svg, "class=\"limit-arrow\""), limits + 1);
+    // Markers: one per point plus one per group in the legend.
+    assert_eq!(count(&svg, "class=\"mk\""), n + chart.groups.len());
+    assert_eq!(count(&svg, "data-group=\"0\""), 3);
+    assert_eq!(count(&svg, "data-group=\"1\""), 3);
+    assert_eq!(count(&svg, "class=\"legend-entry\""), 7);
+    assert_eq!(band_polygons(&svg, SCATTER_2), 1);
+    assert_eq!(band_polygons(&svg, SCATTER_1), 1);
+    assert_eq!(band_polygons(&svg, MEAN_BAND), 1);
+    assert_eq!(polylines(&svg, &LINE.hex(), "2").len(), 1);
+    let texts = texts(&svg);
+    assert!(texts.contains(&"log₁₀ σ [km/s]"), "x label with unit");
+    assert!(texts.contains(&"log₁₀ M_BH [M☉]"), "y label with unit");
+    assert!(texts.contains(&"M_BH–σ"), "title");
+    // Group 0 filled circles, group 1 open squares.
+    assert!(svg.contains("<circle class=\"mk\""));
+    assert!(svg.contains("fill=\"#FFFFFF\" stroke=\"#D0701A\""));
+    // Comfortably under the page budget of issue 7 (300 KB per page with its chart).
+    assert!(svg.len() < 40_000, "{} bytes", svg.len());
+}
+
+// ---------------------------------------------------------------------------------------------
+// Residual chart
+
+#[test]
+fn residual_chart_has_zero_line_band_points_and_links() {
+    let chart = small_residuals();
+    let rendered = residual_rendered(&chart).expect("chart draws");
+    let svg = &rendered.svg;
+    assert_clean(svg);
+    let n = chart.points.len();
+    assert_eq!(point_chunks(svg).len(), n);
+    assert_eq!(titles(svg).len(), n);
+    assert_eq!(count(svg, "<a href="), n);
+    assert_eq!(
+        count(svg, "class=\"limit-arrow\""),
+        2,
+        "one limit plus the legend"
+    );
+    assert_eq!(count(svg, "class=\"err-y\""), n - 1);
+    assert_eq!(band_polygons(svg, SCATTER_1), 1);
+    assert!(svg.contains(">±1ε = 0.40 dex</text>"));
+    assert!(
+        texts(svg).contains(&"Δ log₁₀ M_BH [dex]"),
+        "y label with unit"
+    );
+    // Groups, upper limit, zero line, ±1ε.
+    assert_eq!(count(svg, "class=\"legend-entry\""), chart.groups.len() + 3);
+
+    let zero = polylines(svg, &LINE.hex(), "1");
+    assert_eq!(zero.len(), 1, "one zero line");
+    let (_, y0) = rendered.spec.translate(&(2.3, 0.0));
+    assert!(zero[0].iter().all(|&(_, y)| y == y0), "zero line at y = 0");
+    // The band spans ±ε around zero.
+    let (_, top) = rendered.spec.translate(&(2.3, 0.4));
+    let (_, bottom) = rendered.spec.translate(&(2.3, -0.4));
+    let k = svg.find("<polygon opacity=").expect("band");
+    let band = &svg[k..k + svg[k..].find("/>").expect("closed")];
+    let ys: Vec<i32> = attr(band, "points")
+        .expect("points")
+        .split_whitespace()
+        .map(|p| p.split_once(',').expect("pair").1.parse().expect("y"))
+        .collect();
+    assert_eq!(ys.iter().min(), Some(&top));
+    assert_eq!(ys.iter().max(), Some(&bottom));
+}
+
+#[test]
+fn residual_titles_use_the_callers_labels() {
+    let mut chart = small_residuals();
+    chart.x_label = "log₁₀ D [Mpc]".to_owned();
+    let svg = residual_svg(&chart).expect("chart draws");
+    let t = titles(&svg);
+    assert!(
+        t.iter()
+            .all(|t| t.contains("Δ log₁₀ M_BH [dex]") && t.contains("log₁₀ D [Mpc] ="))
+    );
+}
+
+#[test]
+fn residual_band_is_absent_when_epsilon_is_zero() {
+    let chart = ResidualChart {
+        scatter_dex: 0.0,
+        ..small_residuals()
+    };
+    let svg = residual_svg(&chart).expect("chart draws");
+    assert_eq!(band_polygons(&svg, SCATTER_1), 0);
+    assert!(!svg.contains("±1ε"));
+    assert_eq!(
+        polylines(&svg, &LINE.hex(), "1").len(),
+        1,
+        "zero line stays"
+    );
+}
+
+#[test]
+fn residual_range_always_shows_zero_and_the_band() {
+    let mut chart = small_residuals();
+    for p in &mut chart.points {
+        p.y += 3.0;
+    }
+    let rendered = residual_rendered(&chart).expect("chart draws");
+    let y = rendered.spec.get_y_range();
+    assert!(y.start < -0.4 && y.end > 3.0, "{y:?}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Pieces
+
+#[test]
+fn relation_formula_matches_the_power_law() {
+    // y = α + β (x − x₀): with MM13's M–σ fit (α = 8.32, β = 5.64, pivot 200 km/s; McConnell &
+    // Ma 2013, ApJ 764, 184, as quoted in the science notes), at σ = 200 × 10^0.1 km/s the
+    // relation gives 8.32 + 0.564 = 8.884 (computed from the formula).
+    let line = LineSpec {
+        alpha: 8.32,
+        beta: 5.64,
+        beta2: None,
+        pivot: 200f64.log10(),
+        scatter_dex: 0.38,
+    };
+    assert!((line.y_at(200f64.log10() + 0.1) - 8.884).abs() < 1e-12);
+    assert!((line.y_at(line.pivot) - 8.32).abs() < 1e-12);
+    // Log-quadratic term adds β₂ (x − x₀)² (W06 form): 1.6 × 0.01 = 0.016 at Δx = 0.1.
+    let curved = LineSpec {
+        beta2: Some(1.6),
+        ..line
+    };
+    assert!((curved.y_at(line.pivot + 0.1) - 8.9).abs() < 1e-12);
+}
+
+#[test]
+fn polygons_and_lines_are_clipped_to_the_frame() {
+    let b = Bounds {
+        x_min: 0.0,
+        x_max: 1.0,
+        y_min: 0.0,
+        y_max: 1.0,
+    };
+    let big = [(-1.0, -1.0), (2.0, -1.0), (2.0, 2.0), (-1.0, 2.0)];
+    let clipped = clip_polygon(&big, b);
+    assert!(!clipped.is_empty());
+    assert!(
+        clipped
+            .iter()
+            .all(|&(x, y)| (0.0..=1.0).contains(&x) && (0.0..=1.0).contains(&y))
+    );
+    let outside = [(2.0, 2.0), (3.0, 2.0), (3.0, 3.0)];
+    assert!(clip_polygon(&outside, b).is_empty());
+
+    // A polyline that leaves through the top and comes back: two runs, all inside.
+    let zigzag = [(0.0, 0.5), (0.4, 1.5), (0.6, 1.5), (1.0, 0.5)];
+    let runs = clip_polyline(&zigzag, b);
+    assert_eq!(runs.len(), 2);
+    assert!(runs.iter().flatten().all(|&(_, y)| y <= 1.0 + 1e-12));
+    assert!((runs[0][1].0 - 0.2).abs() < 1e-12, "leaves at x = 0.2");
+    // Entirely inside: one run with all vertices.
+    let inside = [(0.1, 0.1), (0.5, 0.5), (0.9, 0.2)];
+    assert_eq!(clip_polyline(&inside, b), vec![inside.to_vec()]);
+}
+
+#[test]
+fn escape_covers_markup_and_forbidden_characters() {
+    assert_eq!(escape("a<b>&\"'"), "a&lt;b&gt;&amp;&quot;&apos;");
+    assert_eq!(escape("x\u{0}y\u{1B}z"), "x\u{FFFD}y\u{FFFD}z");
+    assert_eq!(escape("tab\tok"), "tab\tok");
+}
+
+#[test]
+fn axis_label_helpers_carry_units() {
+    assert_eq!(sigma_axis_label(), "log₁₀ σ [km/s]");
+    assert_eq!(bulge_mass_axis_label(), "log₁₀ M_bulge [M☉]");
+    assert_eq!(luminosity_axis_label("K"), "log₁₀ L_K [L☉,K]");
+    assert_eq!(black_hole_mass_axis_label(), "log₁₀ M_BH [M☉]");
+    assert_eq!(residual_axis_label(), "Δ log₁₀ M_BH [dex]");
+}

@@ -1,0 +1,251 @@
+//! `/login` and `/logout`.
+//!
+//! A login checks, in this order: the client address has not failed too often, the name is not
+//! locked, then the password (against the account's hash, or a dummy hash when there is no such
+//! account, so the answer and its timing are the same either way). Every failure is counted for
+//! the name as typed and for the address; the fifth within 15 minutes locks the name. A success
+//! starts a new session with a new id and a new anti-forgery token, and ends the browser's old
+//! session if it had one.
+
+use askama::Template;
+use askama_web::WebTemplate;
+use axum::Form;
+use axum::extract::{Extension, Query, State};
+use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
+use axum::response::{IntoResponse, Redirect, Response};
+use serde::Deserialize;
+
+use super::Nav;
+use crate::auth::middleware::{
+    AuthContext, client_ip, login_cookie_name, read_cookie, session_cookie_name, set_cookie,
+};
+use crate::auth::secret::{random_hex_256, sha256_hex};
+use crate::auth::{FAILURE_POLICY, Principal};
+use crate::catalog::accounts::{self, NewSession};
+use crate::error::AppResult;
+use crate::startup::AppState;
+
+/// The one message of every refused login: it does not say whether the name exists.
+pub(crate) const LOGIN_FAILED: &str = "The user name or the password is wrong.";
+/// The message while a name or address is locked.
+pub(crate) const LOGIN_LOCKED: &str =
+    "Too many failed logins. Logging in is paused for a while; try again later.";
+
+/// `/login`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/login.html")]
+pub(crate) struct LoginPage {
+    nav: Nav,
+    csrf: String,
+    next: String,
+    username: String,
+    message: Option<&'static str>,
+}
+
+/// Query of `GET /login`.
+#[derive(Debug, Deserialize)]
+pub(crate) struct LoginQuery {
+    next: Option<String>,
+}
+
+/// Where to go after logging in: only a path on this server (no "//host", no backslashes, no
+/// control characters), else the overview.
+pub(crate) fn safe_next(next: Option<&str>) -> String {
+    match next {
+        Some(n)
+            if n.starts_with('/')
+                && !n.starts_with("//")
+                && !n.contains('\\')
+                && n.len() <= 512
+                && !n.chars().any(char::is_control) =>
+        {
+            n.to_string()
+        }
+        _ => "/".to_string(),
+    }
+}
+
+/// The anti-forgery value of the login form: the session's token when someone is logged in,
+/// otherwise the login cookie's (made here when missing).
+fn login_form_token(principal: &Principal, headers: &HeaderMap, secure: bool) -> (String, bool) {
+    if let Principal::Session(s) = principal {
+        return (s.csrf_token.clone(), false);
+    }
+    match read_cookie(headers, login_cookie_name(secure)).filter(|v| v.len() == 64) {
+        Some(v) => (v, false),
+        None => (random_hex_256(), true),
+    }
+}
+
+/// Show the login form.
+pub(crate) async fn show_login(
+    Extension(principal): Extension<Principal>,
+    Extension(ctx): Extension<AuthContext>,
+    headers: HeaderMap,
+    nav: Nav,
+    Query(query): Query<LoginQuery>,
+) -> Response {
+    let next = safe_next(query.next.as_deref());
+    let (csrf, new_cookie) = login_form_token(&principal, &headers, ctx.secure_cookies);
+    let page = LoginPage {
+        nav,
+        csrf: csrf.clone(),
+        next,
+        username: String::new(),
+        message: None,
+    };
+    let mut response = page.into_response();
+    if new_cookie {
+        response.headers_mut().append(
+            header::SET_COOKIE,
+            set_cookie(
+                login_cookie_name(ctx.secure_cookies),
+                &csrf,
+                ctx.secure_cookies,
+                None,
+            ),
+        );
+    }
+    response
+}
+
+/// The login form's fields.
+#[derive(Debug, Deserialize)]
+pub(crate) struct LoginForm {
+    #[serde(default)]
+    username: String,
+    #[serde(default)]
+    password: String,
+    #[serde(default)]
+    next: String,
+}
+
+/// Check a login.
+pub(crate) async fn log_in(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Extension(ctx): Extension<AuthContext>,
+    request_extensions: axum::http::Extensions,
+    headers: HeaderMap,
+    nav: Nav,
+    Form(form): Form<LoginForm>,
+) -> AppResult<Response> {
+    let ip = client_ip(&request_extensions);
+    let now = state.clock.now_unix();
+    let (csrf, _) = login_form_token(&principal, &headers, ctx.secure_cookies);
+    let username: String = form.username.trim().chars().take(64).collect();
+    let again = |status: StatusCode, message: &'static str| {
+        let page = LoginPage {
+            nav: nav.clone(),
+            csrf: csrf.clone(),
+            next: safe_next(Some(&form.next)),
+            username: username.clone(),
+            message: Some(message),
+        };
+        let mut r = (status, page).into_response();
+        if status == StatusCode::TOO_MANY_REQUESTS {
+            r.headers_mut()
+                .insert(header::RETRY_AFTER, HeaderValue::from_static("900"));
+        }
+        r
+    };
+
+    let from_ip = accounts::failures_from(&state.pool, &ip, now - FAILURE_POLICY.window_s).await?;
+    if from_ip >= FAILURE_POLICY.max_per_ip
+        || accounts::locked_until(&state.pool, &username, now)
+            .await?
+            .is_some()
+    {
+        return Ok(again(StatusCode::TOO_MANY_REQUESTS, LOGIN_LOCKED));
+    }
+
+    let account = accounts::find_by_username(&state.pool, &username).await?;
+    let password_ok = state
+        .passwords
+        .verify(
+            &form.password,
+            account.as_ref().map(|a| a.password_hash.as_str()),
+        )
+        .await;
+    let account = match account {
+        Some(a) if password_ok && !a.disabled => a,
+        _ => {
+            let outcome =
+                accounts::record_failure(&state.pool, &username, &ip, now, FAILURE_POLICY).await?;
+            if outcome.locked_until_unix.is_some() {
+                tracing::warn!(client = %ip, "locked a login name after repeated failures");
+            }
+            return Ok(again(StatusCode::UNAUTHORIZED, LOGIN_FAILED));
+        }
+    };
+
+    let session_id = random_hex_256();
+    let previous =
+        read_cookie(&headers, session_cookie_name(ctx.secure_cookies)).map(|old| sha256_hex(&old));
+    accounts::start_session(
+        &state.pool,
+        &NewSession {
+            account_id: account.account_id,
+            username: &account.username,
+            id_sha256: &sha256_hex(&session_id),
+            csrf_token: &random_hex_256(),
+            now_unix: now,
+            client_ip: &ip,
+            previous_sha256: previous.as_deref(),
+        },
+    )
+    .await?;
+    let mut response = Redirect::to(&safe_next(Some(&form.next))).into_response();
+    let secure = ctx.secure_cookies;
+    response.headers_mut().append(
+        header::SET_COOKIE,
+        set_cookie(session_cookie_name(secure), &session_id, secure, None),
+    );
+    response.headers_mut().append(
+        header::SET_COOKIE,
+        set_cookie(login_cookie_name(secure), "", secure, Some(0)),
+    );
+    Ok(response)
+}
+
+/// End the session.
+pub(crate) async fn log_out(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Extension(ctx): Extension<AuthContext>,
+) -> AppResult<Response> {
+    if let Principal::Session(s) = &principal {
+        accounts::logout(&state.pool, s.session_id, s.account_id).await?;
+    }
+    let mut response = Redirect::to("/login").into_response();
+    let secure = ctx.secure_cookies;
+    response.headers_mut().append(
+        header::SET_COOKIE,
+        set_cookie(session_cookie_name(secure), "", secure, Some(0)),
+    );
+    Ok(response)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn next_accepts_only_local_paths() {
+        assert_eq!(
+            safe_next(Some("/galaxies?sort=name")),
+            "/galaxies?sort=name"
+        );
+        for bad in [
+            "https://evil.example/",
+            "//evil.example",
+            "/\\evil.example",
+            "javascript:alert(1)",
+            "/a\nb",
+            "",
+        ] {
+            assert_eq!(safe_next(Some(bad)), "/", "{bad:?}");
+        }
+        assert_eq!(safe_next(None), "/");
+    }
+}

@@ -1,0 +1,524 @@
+//! Brute-force limits, the response headers, API tokens, and script injection.
+
+use std::time::{Duration, Instant};
+
+use massline::auth::Role;
+use massline::catalog::accounts;
+
+use crate::helpers::{Reply, TEST_PASSWORD, spawn_private_app, spawn_with};
+
+// ---------------------------------------------------------------------------- brute force
+
+#[tokio::test]
+async fn five_failures_lock_the_name_and_rotating_forwarded_for_gives_no_extra_tries() {
+    let app = spawn_private_app().await;
+    app.create_account("ada-l", Role::Member).await;
+    app.create_account("bystander", Role::Member).await;
+    let mut b = app.browser();
+    let mut statuses = Vec::new();
+    for i in 0..12 {
+        let forwarded = format!("203.0.113.{i}");
+        let r = b
+            .login_with(
+                "ada-l",
+                "not the password at all",
+                &[
+                    ("x-forwarded-for", forwarded.as_str()),
+                    ("x-real-ip", forwarded.as_str()),
+                ],
+            )
+            .await;
+        statuses.push(r.status);
+    }
+    // Authentication Cheat Sheet (OWASP): count per account; here 5 per 15 minutes.
+    assert_eq!(&statuses[..5], &[401; 5], "{statuses:?}");
+    assert!(statuses[5..].iter().all(|s| *s == 429), "{statuses:?}");
+    // Locked means locked: the right password is refused too, whatever the forwarded address.
+    let r = b
+        .login_with(
+            "ada-l",
+            TEST_PASSWORD,
+            &[("x-forwarded-for", "198.51.100.7")],
+        )
+        .await;
+    assert_eq!(r.status, 429);
+    assert!(r.header("retry-after").parse::<u64>().is_ok());
+    // Other accounts are not affected.
+    let mut other = app.browser();
+    assert_eq!(other.login("bystander", TEST_PASSWORD).await.status, 303);
+    // The lock is in the audit log, once.
+    assert_eq!(
+        accounts::count_events(&app.pool, "login_locked")
+            .await
+            .unwrap(),
+        1
+    );
+    assert_eq!(
+        accounts::count_events(&app.pool, "login_failed")
+            .await
+            .unwrap(),
+        5,
+        "requests refused while locked are not even checked"
+    );
+    // After the 15-minute lock the right password works again.
+    app.clock.advance(15 * 60 + 1);
+    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+}
+
+#[tokio::test]
+async fn each_lock_in_a_row_lasts_twice_as_long() {
+    let app = spawn_private_app().await;
+    app.create_account("ada-l", Role::Member).await;
+    let mut b = app.browser();
+    for _ in 0..5 {
+        b.login("ada-l", "wrong wrong wrong").await;
+    }
+    app.clock.advance(15 * 60 + 1);
+    for _ in 0..5 {
+        assert_eq!(b.login("ada-l", "wrong wrong wrong").await.status, 401);
+    }
+    // Second lock: 30 minutes. After 16 minutes it still holds.
+    app.clock.advance(16 * 60);
+    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 429);
+    app.clock.advance(15 * 60);
+    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(
+        accounts::count_events(&app.pool, "login_locked")
+            .await
+            .unwrap(),
+        2
+    );
+}
+
+#[tokio::test]
+async fn one_address_gets_at_most_20_failures_across_names() {
+    let app = spawn_private_app().await;
+    app.create_account("ada-l", Role::Member).await;
+    let mut b = app.browser();
+    for i in 0..20 {
+        let r = b.login(&format!("guess-{i}"), "wrong wrong wrong").await;
+        assert_eq!(r.status, 401);
+    }
+    let r = b.login("ada-l", TEST_PASSWORD).await;
+    assert_eq!(r.status, 429, "the address is refused for a while");
+    assert_eq!(
+        accounts::count_events(&app.pool, "login_address_locked")
+            .await
+            .unwrap(),
+        1
+    );
+    app.clock.advance(15 * 60 + 1);
+    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+}
+
+fn median(mut v: Vec<Duration>) -> Duration {
+    v.sort();
+    v[v.len() / 2]
+}
+
+#[tokio::test]
+async fn an_unknown_name_gets_the_same_answer_in_similar_time() {
+    let app = spawn_private_app().await;
+    app.create_account("ada-l", Role::Member).await;
+    let mut b = app.browser();
+    let known = b.login("ada-l", "wrong wrong wrong").await;
+    let unknown = b.login("nobody-here", "wrong wrong wrong").await;
+    assert_eq!(known.status, unknown.status);
+    // Same page apart from the name typed, which is put back into the form.
+    assert_eq!(
+        known.body.replace("ada-l", "NAME"),
+        unknown.body.replace("nobody-here", "NAME")
+    );
+    // Timing: both check a password hash. Medians of 6, spread over two known names so that
+    // neither reaches the 5-failure lock.
+    app.create_account("bob-k", Role::Member).await;
+    let mut t_known = Vec::new();
+    let mut t_unknown = Vec::new();
+    for i in 0..6 {
+        let name = if i % 2 == 0 { "ada-l" } else { "bob-k" };
+        let start = Instant::now();
+        let r = b.login(name, "wrong wrong wrong").await;
+        assert_eq!(r.status, 401);
+        t_known.push(start.elapsed());
+        let start = Instant::now();
+        b.login(&format!("nobody-{i}"), "wrong wrong wrong").await;
+        t_unknown.push(start.elapsed());
+    }
+    let (k, u) = (median(t_known), median(t_unknown));
+    // Common practice: not a precise timing test, only that the unknown name is not answered
+    // without hashing (which would be an order of magnitude faster).
+    assert!(
+        u * 3 > k && k * 3 > u,
+        "known {k:?} vs unknown {u:?}: the unknown name must cost a hash too"
+    );
+}
+
+// -------------------------------------------------------------------------------- headers
+
+fn assert_baseline(r: &Reply, what: &str) {
+    let csp = r.header("content-security-policy");
+    assert!(
+        csp.contains("default-src 'self'")
+            && csp.contains("script-src 'self'")
+            && csp
+                .split(';')
+                .filter(|d| d.trim().starts_with("script-src"))
+                .all(|d| !d.contains("unsafe-inline"))
+            && csp.contains("frame-ancestors 'none'")
+            && csp.contains("object-src 'none'")
+            && csp.contains("base-uri 'none'"),
+        "{what}: CSP {csp}"
+    );
+    assert_eq!(r.header("x-content-type-options"), "nosniff", "{what}");
+    assert_eq!(r.header("referrer-policy"), "same-origin", "{what}");
+    assert_eq!(r.header("x-frame-options"), "DENY", "{what}");
+    assert!(
+        !r.header("cache-control").is_empty(),
+        "{what}: no Cache-Control"
+    );
+}
+
+#[tokio::test]
+async fn every_response_carries_the_security_headers_including_errors() {
+    let app = spawn_private_app().await;
+    let mut anon = app.browser();
+    let mut cases: Vec<(String, Reply)> = Vec::new();
+    for path in [
+        "/",
+        "/login",
+        "/healthz",
+        "/static/massline.css",
+        "/nowhere",
+        "/api/v1/me",
+    ] {
+        cases.push((format!("anonymous GET {path}"), anon.get(path).await));
+    }
+    cases.push((
+        "forged POST".into(),
+        anon.post_raw("/login", &[("username", "x")], &[]).await,
+    ));
+    let mut member = app.login_as(Role::Member).await;
+    for path in [
+        "/",
+        "/galaxies",
+        "/galaxies?sort=nonsense",
+        "/galaxies/none-such",
+        "/account",
+        "/admin/audit",
+    ] {
+        cases.push((format!("member GET {path}"), member.get(path).await));
+    }
+    let big = "x".repeat(massline::web::BODY_LIMIT_BYTES + 10);
+    cases.push((
+        "oversized POST".into(),
+        member
+            .post("/account/tokens", &[("label", big.as_str())])
+            .await,
+    ));
+    let statuses: Vec<u16> = cases.iter().map(|(_, r)| r.status).collect();
+    for code in [200, 303, 400, 401, 403, 404, 413] {
+        assert!(statuses.contains(&code), "no {code} among {statuses:?}");
+    }
+    for (what, r) in &cases {
+        assert_baseline(r, what);
+        if r.header("content-type").starts_with("text/html") {
+            assert!(r.header("content-type").contains("charset=utf-8"), "{what}");
+            assert!(r.body.contains("<meta charset=\"utf-8\">"), "{what}");
+        }
+    }
+    // Pages of a logged-in person are never stored.
+    for (what, r) in cases
+        .iter()
+        .filter(|(w, _)| w.starts_with("member GET /account"))
+    {
+        assert_eq!(r.header("cache-control"), "no-store", "{what}");
+    }
+}
+
+// --------------------------------------------------------------------------------- tokens
+
+#[tokio::test]
+async fn a_token_is_shown_once_and_its_scope_decides_what_it_may_do() {
+    let app = spawn_private_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    let r = member
+        .post("/account/tokens", &[("label", "nightly"), ("read", "1")])
+        .await;
+    assert_eq!(r.status, 200, "{}", r.body);
+    let start = r.body.find("id=\"new-token\">").expect("the new token") + 15;
+    let token = r.body[start..start + 76].to_string();
+    assert!(
+        massline::auth::secret::looks_like_api_token(&token),
+        "{token}"
+    );
+    // Shown once: the account page never shows it again, and the database holds only a hash.
+    let again = member.get("/account").await;
+    assert!(!again.body.contains(&token));
+    assert!(again.body.contains(&format!("ml_{}_…", &token[3..11])));
+    let stored: i64 = sqlx::query_scalar("select count(*) from api_token where token_sha256 = ?")
+        .bind(massline::auth::secret::sha256_hex(&token))
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    assert_eq!(stored, 1);
+
+    let me = |t: &str| {
+        let t = t.to_string();
+        let c = app.client.clone();
+        let url = format!("{}/api/v1/me", app.address);
+        async move {
+            let r = c.get(url).bearer_auth(t).send().await.unwrap();
+            let status = r.status().as_u16();
+            let ct = r
+                .headers()
+                .get("content-type")
+                .map(|v| v.to_str().unwrap().to_string())
+                .unwrap_or_default();
+            (status, ct, r.text().await.unwrap())
+        }
+    };
+    let (status, _, body) = me(&token).await;
+    assert_eq!(status, 200);
+    let json: serde_json::Value = serde_json::from_str(&body).unwrap();
+    assert_eq!(json["username"], "test-member");
+    assert_eq!(json["role"], "member");
+    assert_eq!(json["scopes"], serde_json::json!(["read"]));
+    let read_page = app
+        .client
+        .get(format!("{}/galaxies", app.address))
+        .bearer_auth(&token)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(read_page.status().as_u16(), 200);
+    // Last use is recorded.
+    let used: Option<String> =
+        sqlx::query_scalar("select last_used_at from api_token where token_sha256 = ?")
+            .bind(massline::auth::secret::sha256_hex(&token))
+            .fetch_one(&app.pool)
+            .await
+            .unwrap();
+    assert!(used.is_some());
+
+    // A submit-only token knows who it is but may not read pages.
+    let r = member
+        .post("/account/tokens", &[("label", "uploader"), ("submit", "1")])
+        .await;
+    let start = r.body.find("id=\"new-token\">").unwrap() + 15;
+    let submit = r.body[start..start + 76].to_string();
+    let (status, _, body) = me(&submit).await;
+    assert_eq!(status, 200);
+    assert!(body.contains("\"scopes\":[\"submit\"]"), "{body}");
+    let page = app
+        .client
+        .get(format!("{}/galaxies", app.address))
+        .bearer_auth(&submit)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(page.status().as_u16(), 403);
+
+    // Revoked: 401 as problem+json.
+    let id: i64 = sqlx::query_scalar("select api_token_id from api_token where label = 'nightly'")
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    member.get("/account").await;
+    assert_eq!(
+        member
+            .post(&format!("/account/tokens/{id}/revoke"), &[])
+            .await
+            .status,
+        303
+    );
+    let (status, ct, body) = me(&token).await;
+    assert_eq!(status, 401);
+    assert_eq!(ct, "application/problem+json");
+    let problem: serde_json::Value = serde_json::from_str(&body).unwrap();
+    assert_eq!(problem["status"], 401);
+    // Malformed, unknown and missing tokens: 401 too.
+    for bad in ["", "ml_abc", &token.replace(&token[12..20], "00000000")] {
+        assert_eq!(me(bad).await.0, 401, "{bad}");
+    }
+    let none = app
+        .client
+        .get(format!("{}/api/v1/me", app.address))
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(none.status().as_u16(), 401);
+    assert_eq!(
+        accounts::count_events(&app.pool, "token_created")
+            .await
+            .unwrap(),
+        2
+    );
+    assert_eq!(
+        accounts::count_events(&app.pool, "token_revoked")
+            .await
+            .unwrap(),
+        1
+    );
+}
+
+#[tokio::test]
+async fn a_disabled_accounts_tokens_stop_working() {
+    let app = spawn_private_app().await;
+    let id = app.create_account("script-owner", Role::Reviewer).await;
+    let (token, _) = app.make_token(id, "read submit").await;
+    let url = format!("{}/api/v1/me", app.address);
+    let ok = app
+        .client
+        .get(&url)
+        .bearer_auth(&token)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(ok.status().as_u16(), 200);
+    accounts::disable(&app.pool, id, None).await.unwrap();
+    let refused = app
+        .client
+        .get(&url)
+        .bearer_auth(&token)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(refused.status().as_u16(), 401);
+}
+
+#[tokio::test]
+async fn a_member_cannot_revoke_someone_elses_token() {
+    let app = spawn_private_app().await;
+    let other = app.create_account("someone-else", Role::Member).await;
+    let (_, their_token) = app.make_token(other, "read").await;
+    let mut member = app.login_as(Role::Member).await;
+    let r = member
+        .post(&format!("/account/tokens/{their_token}/revoke"), &[])
+        .await;
+    assert_eq!(r.status, 404);
+    assert_eq!(
+        accounts::count_events(&app.pool, "token_revoked")
+            .await
+            .unwrap(),
+        0
+    );
+}
+
+// ------------------------------------------------------------------------ script injection
+
+/// Script-injection payloads (common practice; after the OWASP XSS Filter Evasion Cheat Sheet).
+fn payloads() -> Vec<String> {
+    vec![
+        "<script>alert(1)</script>".into(),
+        "\"><svg onload=alert(1)>".into(),
+        "'><img src=x onerror=alert(1)>".into(),
+        "javascript:alert(1)".into(),
+        "</textarea><script>alert(1)</script>".into(),
+        "</title><script>alert(1)</script>".into(),
+        "{{7*7}}".into(),
+        "{% raw %}x".into(),
+        "${7*7}".into(),
+        "line\u{2028}separator".into(),
+        "rtl \u{202E}gnp.exe".into(),
+        "<a href=\"javascript:alert(1)\">x</a>".into(),
+        "<iframe src=//evil.example>".into(),
+        "&lt;script&gt;".into(),
+        "\" autofocus onfocus=alert(1) x=\"".into(),
+        "<style>@import 'x'</style>".into(),
+        "<!--".into(),
+        "]]><script>alert(1)</script>".into(),
+        "%3Cscript%3Ealert(1)%3C/script%3E".into(),
+        "x".repeat(5000),
+    ]
+}
+
+/// A payload may appear only escaped: no new tag, attribute or script.
+fn assert_inert(body: &str, payload: &str, what: &str) {
+    let dangerous = payload.contains(['<', '>', '"', '\'']) || payload.starts_with("&lt;");
+    if dangerous {
+        assert!(
+            !body.contains(payload),
+            "{what}: raw payload {payload:?} in the page"
+        );
+    }
+    assert!(!body.contains("<script"), "{what}: a script tag");
+    assert!(!body.contains("<svg onload"), "{what}");
+    assert!(!body.contains("<img src=x"), "{what}");
+    assert!(!body.contains("<iframe"), "{what}");
+    assert!(!body.contains("href=\"javascript:"), "{what}");
+}
+
+#[tokio::test]
+async fn script_payloads_in_every_field_people_can_set_stay_inert() {
+    let app = spawn_with(|s| s.public_read = false).await;
+    let mut member = app.login_as(Role::Member).await;
+    let mut admin = app.login_as(Role::Admin).await;
+    let mut anon = app.browser();
+    let mut checked = 0;
+    for payload in payloads() {
+        // Token label: shown on the account page (and in the form when refused).
+        let r = member
+            .post(
+                "/account/tokens",
+                &[("label", payload.as_str()), ("read", "1")],
+            )
+            .await;
+        assert!(r.status == 200 || r.status == 400, "{}", r.status);
+        assert_inert(&r.body, &payload, "token form answer");
+        let account = member.get("/account").await.body;
+        assert_inert(&account, &payload, "account page");
+        if payload == "{{7*7}}" {
+            // Shown as typed, never evaluated.
+            assert!(account.contains("<bdi>{{7*7}}</bdi>"), "{account}");
+        }
+        // User name in the admin's create form (refused: not a valid name) and in the login form.
+        let r = admin
+            .post(
+                "/admin/accounts",
+                &[
+                    ("username", payload.as_str()),
+                    ("role", "member"),
+                    ("password", ""),
+                ],
+            )
+            .await;
+        assert_eq!(r.status, 400);
+        assert_inert(&r.body, &payload, "admin create answer");
+        assert_inert(
+            &admin.get("/admin/accounts").await.body,
+            &payload,
+            "accounts page",
+        );
+        let r = anon.login(&payload, "wrong wrong wrong").await;
+        assert_inert(&r.body, &payload, "login answer");
+        // Audit filters and the login page's next parameter, from the address.
+        let q = massline::auth::middleware::encode_query_value(&payload);
+        for path in [
+            format!("/admin/audit?action={q}"),
+            format!("/admin/audit?user={q}"),
+            format!("/admin/audit?from={q}"),
+        ] {
+            let r = admin.get(&path).await;
+            assert_eq!(r.status, 400, "{path}");
+            assert_inert(&r.body, &payload, &path);
+        }
+        assert_inert(
+            &anon.get(&format!("/login?next={q}")).await.body,
+            &payload,
+            "next",
+        );
+        assert_inert(
+            &member.get(&format!("/galaxies/{q}")).await.body,
+            &payload,
+            "404 page",
+        );
+        checked += 1;
+    }
+    // The audit page shows the failed logins with the names as typed.
+    let audit = admin.get("/admin/audit?action=login_failed").await;
+    assert_eq!(audit.status, 200);
+    for payload in payloads() {
+        assert_inert(&audit.body, &payload, "audit page");
+    }
+    assert_eq!(checked, 20);
+}

@@ -1,0 +1,252 @@
+//! Simulations with known truth: bias and interval coverage of the likelihood estimators.
+//!
+//! Invented M–σ-like samples (no real objects): true log σ ξ ~ N(2.3, 0.14²), pivot
+//! x0 = log10(200), log M_BH = 8.3 + 4.5 (ξ − x0) + N(0, 0.35²); σ errors uniform in
+//! 0.01–0.035 dex, mass errors uniform in 0.05–0.3 dex; about 15 % of the objects are upper
+//! limits because their true mass lies below a detection threshold (see [`simulate`]).
+//!
+//! Expected behaviour:
+//!
+//! * Structural likelihood (Kelly 2007, ApJ 665, 1489): no slope dilution. Science notes §2.6
+//!   (computed there from simulations like these, [C]): slope bias −0.02 ± 0.03.
+//! * Conditional likelihood: the slope is attenuated by about τ²/(τ² + ⟨σ_x²⟩) (regression
+//!   dilution; e.g. Akritas & Bershady 1996, §1 — from memory). Here ⟨σ_x²⟩ =
+//!   (0.01² + 0.01·0.035 + 0.035²)/3 = 5.58e-4 dex² and τ² = 0.0196, so the expected bias is
+//!   −4.5 · 5.58e-4/(0.0196 + 5.58e-4) = −0.125 [computed from that formula]; science notes §2.6
+//!   quote −0.14 ± 0.03 [C]; the issue quotes "about −0.12".
+//! * 68 % intervals from the inverse Hessian should cover the truth in 68 % of samples; with
+//!   200 samples the binomial standard error is 3.3 %, so 60–76 % (±2.5 s.e.) is accepted.
+
+use massline::fit::bootstrap::bootstrap;
+use massline::fit::ensemble::EnsembleConfig;
+use massline::fit::posterior::posterior_from_fit;
+use massline::fit::{Fit, FitSpec, Method, Point, fit};
+use rand::rngs::StdRng;
+use rand::{RngExt, SeedableRng};
+use rand_distr::{Distribution, Normal};
+use rayon::prelude::*;
+
+const PIVOT: f64 = 2.301_029_995_663_981;
+const ALPHA: f64 = 8.3;
+const BETA: f64 = 4.5;
+const EPS: f64 = 0.35;
+const MU: f64 = 2.3;
+const TAU: f64 = 0.14;
+
+/// Zero point of the detection threshold (see [`simulate`]), chosen so that about 15 % of
+/// the objects fall below it: y − L has mean 8.3 − 7.69 = 0.61 dex and sd
+/// √(0.35² + (2.5·0.14)² + 0.25² + ⟨σ_y²⟩) = √(0.3075 + 0.0358) = 0.586 dex, so
+/// P(y < L) = Φ(−0.61/0.586) = Φ(−1.041) = 0.149.
+const THRESHOLD_ZERO_POINT: f64 = 7.69;
+
+/// One seeded sample of `n` objects.
+///
+/// An object is an upper limit when its measured mass y falls below a detection threshold
+/// that depends on the observed σ and on a random per-object term (distance, data quality):
+/// L = 7.69 + 2 (x − x0) + N(0, 0.25²) — resolving the sphere of influence needs
+/// r_infl ∝ M/σ² above a resolution limit, hence the slope 2. The reported limit is L with
+/// the object's mass error as its own uncertainty, so that P(y < L) is exactly the censored
+/// term of the likelihoods (Tobit-type censoring; science notes §2.2). The censoring depends
+/// only on observed quantities and independent noise, so it is ignorable.
+fn simulate(n: usize, seed: u64) -> Vec<Point> {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let unit = Normal::new(0.0, 1.0).unwrap();
+    (0..n)
+        .map(|_| {
+            let xi = MU + TAU * unit.sample(&mut rng);
+            let eta = ALPHA + BETA * (xi - PIVOT) + EPS * unit.sample(&mut rng);
+            let x_err = rng.random_range(0.01..0.035);
+            let y_err = rng.random_range(0.05..0.3);
+            let x = xi + x_err * unit.sample(&mut rng);
+            let y = eta + y_err * unit.sample(&mut rng);
+            let threshold = THRESHOLD_ZERO_POINT + 2.0 * (x - PIVOT) + 0.25 * unit.sample(&mut rng);
+            if y < threshold {
+                let mut p = Point::new(x, x_err, threshold, y_err);
+                p.upper_limit = true;
+                p
+            } else {
+                Point::new(x, x_err, y, y_err)
+            }
+        })
+        .collect()
+}
+
+/// Bias, its standard error, the mean reported error and the 68 % coverage of one parameter.
+#[derive(Debug)]
+struct Stats {
+    bias: f64,
+    bias_se: f64,
+    mean_err: f64,
+    coverage: f64,
+}
+
+fn stats(values: &[(f64, f64)], truth: f64) -> Stats {
+    let n = values.len() as f64;
+    let bias = values.iter().map(|(v, _)| v - truth).sum::<f64>() / n;
+    let var = values
+        .iter()
+        .map(|(v, _)| (v - truth - bias).powi(2))
+        .sum::<f64>()
+        / (n - 1.0);
+    let mean_err = values.iter().map(|(_, e)| e).sum::<f64>() / n;
+    let covered = values
+        .iter()
+        .filter(|(v, e)| (v - truth).abs() <= *e)
+        .count() as f64;
+    Stats {
+        bias,
+        bias_se: (var / n).sqrt(),
+        mean_err,
+        coverage: covered / n,
+    }
+}
+
+fn column(fits: &[Fit], pick: impl Fn(&Fit) -> (f64, f64)) -> Vec<(f64, f64)> {
+    fits.iter().map(pick).collect()
+}
+
+#[test]
+fn structural_is_unbiased_and_covers_while_conditional_dilutes_the_slope() {
+    let started = std::time::Instant::now();
+    let pairs: Vec<(Fit, Fit)> = (0..200_u64)
+        .into_par_iter()
+        .map(|s| {
+            let pts = simulate(60, 10_000 + s);
+            let st = fit(&pts, &FitSpec::new(Method::Structural, PIVOT)).unwrap();
+            let co = fit(&pts, &FitSpec::new(Method::Conditional, PIVOT)).unwrap();
+            (st, co)
+        })
+        .collect();
+    let (st, co): (Vec<Fit>, Vec<Fit>) = pairs.into_iter().unzip();
+    let report = |label: &str, fits: &[Fit]| {
+        let a = stats(&column(fits, |f| (f.params.alpha, f.errors.alpha)), ALPHA);
+        let b = stats(&column(fits, |f| (f.params.beta, f.errors.beta)), BETA);
+        let e = stats(&column(fits, |f| (f.params.eps, f.errors.eps)), EPS);
+        for (name, s) in [("alpha", &a), ("beta", &b), ("eps", &e)] {
+            eprintln!(
+                "{label:<12} {name:<6} bias {:+.4} ± {:.4}  mean error {:.4}  68% coverage {:.3}",
+                s.bias, s.bias_se, s.mean_err, s.coverage
+            );
+        }
+        (a, b, e)
+    };
+    let (sa, sb, se) = report("structural", &st);
+    let (ca, cb, ce) = report("conditional", &co);
+    let limits = st.iter().map(|f| f.n_upper).sum::<usize>() as f64 / (60.0 * st.len() as f64);
+    // Paired difference conditional − structural: the sample noise common to both cancels, so
+    // this measures the dilution relative to the unbiased estimator much more precisely.
+    let diff: Vec<f64> = st
+        .iter()
+        .zip(&co)
+        .map(|(s, c)| c.params.beta - s.params.beta)
+        .collect();
+    let nd = diff.len() as f64;
+    let md = diff.iter().sum::<f64>() / nd;
+    let sd_md = (diff.iter().map(|d| (d - md).powi(2)).sum::<f64>() / (nd - 1.0) / nd).sqrt();
+    eprintln!(
+        "paired slope difference conditional − structural {md:+.4} ± {sd_md:.4}; upper-limit \
+         fraction {limits:.3}; 200 samples × 2 fits in {:.1} s",
+        started.elapsed().as_secs_f64()
+    );
+    assert!((0.12..0.18).contains(&limits), "censored fraction {limits}");
+
+    // Structural slope: no dilution (bias below a quarter of the mean reported error) and
+    // honest errors (68 % coverage within 60–76 %).
+    assert!(
+        sb.bias.abs() < 0.25 * sb.mean_err,
+        "structural slope bias {sb:?}"
+    );
+    assert!(
+        (0.60..=0.76).contains(&sb.coverage),
+        "structural slope coverage {sb:?}"
+    );
+    // Structural zero point: the same two properties hold.
+    assert!(
+        sa.bias.abs() < 0.25 * sa.mean_err,
+        "structural zero-point bias {sa:?}"
+    );
+    assert!(
+        (0.60..=0.76).contains(&sa.coverage),
+        "structural zero-point coverage {sa:?}"
+    );
+    // Intrinsic scatter: the ML ε is biased low at small N (it ignores the degrees of freedom
+    // of the fitted line; science notes §2.1) — by −0.008 ± 0.004 dex here, a sixth of its
+    // error — and its Hessian interval still covers.
+    assert!(se.bias < 0.0, "{se:?}");
+    assert!(se.bias.abs() < 0.25 * se.mean_err, "{se:?}");
+    assert!((0.60..=0.76).contains(&se.coverage), "{se:?}");
+
+    // Conditional slope: diluted. Against the truth: negative, more than 3 standard errors
+    // from 0 and inside the band −0.22 … −0.06 around the expected −0.125 (module docs).
+    assert!(cb.bias < 0.0, "{cb:?}");
+    assert!(
+        cb.bias / cb.bias_se < -3.0,
+        "dilution not significant: {cb:?}"
+    );
+    assert!(
+        (-0.22..=-0.06).contains(&cb.bias),
+        "dilution outside the band: {cb:?}"
+    );
+    // Against the structural fit of the same samples: the same band, far more significant.
+    assert!(
+        (-0.22..=-0.06).contains(&md),
+        "paired slope difference {md}"
+    );
+    assert!(md / sd_md < -10.0, "paired slope difference {md} ± {sd_md}");
+    // The dilution shows in the slope only: the conditional zero point (x0 is close to the
+    // mean x) and scatter agree with the structural ones in bias and coverage.
+    assert!(ca.bias.abs() < 0.25 * ca.mean_err, "{ca:?}");
+    assert!((0.60..=0.76).contains(&ca.coverage), "{ca:?}");
+    assert!(ce.bias.abs() < 0.25 * ce.mean_err, "{ce:?}");
+}
+
+#[test]
+fn at_small_n_curvature_errors_under_cover_and_bootstrap_and_posterior_are_shown() {
+    // 100 samples of 12 objects (about 15 % limits). The inverse-Hessian (curvature) errors of
+    // the structural estimator under-cover at such small N: the likelihood is far from
+    // quadratic and the ML ε is biased low, which narrows the slope error. The bootstrap
+    // percentile interval (100 resamples) and the posterior 68 % interval (flat priors) are
+    // computed for the same samples and shown beside it. With 100 samples the binomial s.e. of
+    // a 68 % coverage is 4.7 %.
+    let started = std::time::Instant::now();
+    let rows: Vec<(bool, bool, bool, f64, f64)> = (0..100_u64)
+        .into_par_iter()
+        .map(|s| {
+            let pts = simulate(12, 50_000 + s);
+            let spec = FitSpec::new(Method::Structural, PIVOT);
+            let f = fit(&pts, &spec).unwrap();
+            let hess = (f.params.beta - BETA).abs() <= f.errors.beta;
+            let b = bootstrap(&pts, &spec, 100, s).unwrap();
+            let bb = b.get("beta").unwrap();
+            let boot = bb.p16 <= BETA && BETA <= bb.p84;
+            let cfg = EnsembleConfig::new(16, 1_500, 300, s)
+                .unwrap()
+                .with_init_scatter(0.1)
+                .unwrap();
+            let (post, _) = posterior_from_fit(&pts, &spec, &f, &cfg).unwrap();
+            let pb = post.get("beta").unwrap();
+            let inside = pb.p16 <= BETA && BETA <= pb.p84;
+            (hess, boot, inside, f.errors.beta, 0.5 * (pb.p84 - pb.p16))
+        })
+        .collect();
+    let n = rows.len() as f64;
+    let frac = |k: usize| rows.iter().filter(|r| [r.0, r.1, r.2][k]).count() as f64 / n;
+    let (hess, boot, post) = (frac(0), frac(1), frac(2));
+    let mean_hess_err = rows.iter().map(|r| r.3).sum::<f64>() / n;
+    let mean_post_half = rows.iter().map(|r| r.4).sum::<f64>() / n;
+    eprintln!(
+        "N = 12, 100 samples: 68% slope coverage  Hessian {hess:.3}  bootstrap {boot:.3}  \
+         posterior {post:.3};  mean Hessian error {mean_hess_err:.3}, mean posterior \
+         half-width {mean_post_half:.3}  ({:.1} s)",
+        started.elapsed().as_secs_f64()
+    );
+    // The curvature errors under-cover: more than 2.5 s.e. below 68 %.
+    assert!(hess < 0.68 - 2.5 * 0.047, "Hessian coverage {hess}");
+    // The bootstrap and posterior intervals cover more often, and the posterior interval is
+    // wider on average than the curvature error.
+    assert!(boot > hess && post > hess, "{hess} {boot} {post}");
+    assert!(
+        mean_post_half > mean_hess_err,
+        "{mean_post_half} vs {mean_hess_err}"
+    );
+}
