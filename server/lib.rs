@@ -8,6 +8,7 @@
 //! * [`astro`]: constants and astrophysical formulas (sphere of influence, distance rescaling,
 //!   AGN quantities). Pure functions.
 //! * [`fit`]: the statistics (estimators of the scaling relations). Pure, synchronous, no I/O.
+//! * [`charts`]: plotters to SVG strings; pure functions of plain data.
 //! * [`catalog`]: the only module with SQL: galaxies, measurements, submissions, accounts,
 //!   sessions, tokens, audit events.
 //! * [`auth`]: roles, sessions, API tokens, password rules and the layers that authenticate
@@ -18,6 +19,7 @@
 pub mod astro;
 pub mod auth;
 pub mod catalog;
+pub mod charts;
 pub mod config;
 pub mod error;
 pub mod fit;
