@@ -252,13 +252,7 @@ pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let (va, vb, cab) = (all.var_alpha[j], all.var_beta[j], all.cov_alpha_beta[j]);
     Ok(Fit {
         spec: spec.clone(),
-        params: Params {
-            alpha,
-            beta,
-            beta2: None,
-            gamma: None,
-            eps,
-        },
+        params: Params::line(alpha, beta, eps),
         errors: Params {
             alpha: va.sqrt(),
             beta: vb.sqrt(),

@@ -363,13 +363,7 @@ fn fit_inner(points: &[Point], spec: &FitSpec, fixed_eps: Option<f64>) -> Result
     ];
     Ok(Fit {
         spec: spec.clone(),
-        params: Params {
-            alpha,
-            beta,
-            beta2: None,
-            gamma: None,
-            eps,
-        },
+        params: Params::line(alpha, beta, eps),
         errors: Params {
             alpha: sa,
             beta: sb,

@@ -231,32 +231,8 @@ pub fn posterior_from_fit(
 
 #[cfg(test)]
 mod tests {
+    use super::super::types::test_data::msigma_sample as sample_points;
     use super::*;
-    use rand::rngs::StdRng;
-    use rand::{RngExt, SeedableRng};
-    use rand_distr::{Distribution, Normal};
-
-    /// A small seeded M–σ-like sample: x = log σ around 2.3, β = 4.5, ε = 0.35 (invented).
-    fn sample_points(n: usize, n_limits: usize, seed: u64) -> Vec<Point> {
-        let mut rng = StdRng::seed_from_u64(seed);
-        let xi = Normal::new(2.3, 0.12).unwrap();
-        let unit = Normal::new(0.0, 1.0).unwrap();
-        (0..n)
-            .map(|i| {
-                let x_true = xi.sample(&mut rng);
-                let x_err = rng.random_range(0.01..0.035);
-                let y_err = rng.random_range(0.05..0.3);
-                let y_true = 8.3 + 4.5 * (x_true - 2.30103) + 0.35 * unit.sample(&mut rng);
-                let x = x_true + x_err * unit.sample(&mut rng);
-                let y = y_true + y_err * unit.sample(&mut rng);
-                if i < n_limits {
-                    Point::limit(x, x_err, y + 0.3)
-                } else {
-                    Point::new(x, x_err, y, y_err)
-                }
-            })
-            .collect()
-    }
 
     /// Marginal median of axis `axis` of a posterior tabulated on a regular grid (midpoint
     /// rule; the CDF is interpolated linearly between cell edges).

@@ -310,13 +310,7 @@ mod tests {
     fn published(alpha: f64, beta: f64, eps: f64) -> Fit {
         Fit {
             spec: FitSpec::new(Method::Conditional, 200_f64.log10()),
-            params: Params {
-                alpha,
-                beta,
-                beta2: None,
-                gamma: None,
-                eps,
-            },
+            params: Params::line(alpha, beta, eps),
             errors: Params {
                 alpha: 0.0,
                 beta: 0.0,

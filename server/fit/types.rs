@@ -416,6 +416,19 @@ pub struct Params {
     pub eps: f64,
 }
 
+impl Params {
+    /// Parameters of a straight line (no β2, no γ).
+    pub fn line(alpha: f64, beta: f64, eps: f64) -> Self {
+        Self {
+            alpha,
+            beta,
+            beta2: None,
+            gamma: None,
+            eps,
+        }
+    }
+}
+
 /// How the optimiser ended.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Termination {
@@ -643,6 +656,32 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
 #[cfg(test)]
 pub(crate) mod test_data {
     use super::Point;
+
+    /// Seeded M–σ-like sample (invented): x = log σ around 2.3, β = 4.5, ε = 0.35, pivot
+    /// log10(200); the first `n_limits` objects become upper limits 0.3 dex above their mass.
+    pub(crate) fn msigma_sample(n: usize, n_limits: usize, seed: u64) -> Vec<Point> {
+        use rand::rngs::StdRng;
+        use rand::{RngExt, SeedableRng};
+        use rand_distr::{Distribution, Normal};
+        let mut rng = StdRng::seed_from_u64(seed);
+        let xi = Normal::new(2.3, 0.12).unwrap();
+        let unit = Normal::new(0.0, 1.0).unwrap();
+        (0..n)
+            .map(|i| {
+                let x_true = xi.sample(&mut rng);
+                let x_err = rng.random_range(0.01..0.035);
+                let y_err = rng.random_range(0.05..0.3);
+                let y_true = 8.3 + 4.5 * (x_true - 2.30103) + 0.35 * unit.sample(&mut rng);
+                let x = x_true + x_err * unit.sample(&mut rng);
+                let y = y_true + y_err * unit.sample(&mut rng);
+                if i < n_limits {
+                    Point::limit(x, x_err, y + 0.3)
+                } else {
+                    Point::new(x, x_err, y, y_err)
+                }
+            })
+            .collect()
+    }
 
     /// Hogg, Bovy & Lang 2010, arXiv:1008.4686, Table 1: id, x, y, σ_y, σ_x, ρ_xy.
     pub(crate) const HOGG: [(u32, f64, f64, f64, f64, f64); 20] = [
