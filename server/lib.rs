@@ -11,6 +11,9 @@
 //! * [`charts`]: plotters to SVG strings; pure functions of plain data.
 //! * [`catalog`]: the only module with SQL: galaxies, measurements, submissions, accounts,
 //!   sessions, tokens, audit events.
+//! * [`relations`]: the scaling relations the catalog supports, fit samples built from the
+//!   adopted values (rescaled to the adopted distance, distance errors and covariances), and
+//!   the fit cache keyed by catalog version.
 //! * [`auth`]: roles, sessions, API tokens, password rules and the layers that authenticate
 //!   every request and refuse forged ones.
 //! * [`web`]: HTML pages; thin handlers over the layers above.
@@ -24,6 +27,7 @@ pub mod config;
 pub mod error;
 pub mod fit;
 pub mod fit_command;
+pub mod relations;
 pub mod startup;
 pub mod units;
 pub mod web;

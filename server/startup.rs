@@ -37,6 +37,10 @@ pub struct AppState {
     pub clock: Arc<dyn Clock>,
     /// Password hashing, two at a time, off the async runtime.
     pub passwords: Passwords,
+    /// Fits of the scaling relations, keyed by catalog version (see `relations`).
+    pub fits: crate::relations::FitCache,
+    /// Bootstrap and posterior runs in the background (see `relations`).
+    pub runs: crate::relations::RunRegistry,
 }
 
 /// An account that `--demo` created, with its password (shown once).
@@ -133,6 +137,8 @@ impl Application {
                 settings: Arc::new(settings),
                 clock,
                 passwords,
+                fits: crate::relations::FitCache::default(),
+                runs: crate::relations::RunRegistry::default(),
             },
             demo_accounts,
         })

@@ -11,10 +11,12 @@
 
 pub mod accounts;
 pub mod demo;
+pub mod fit_runs;
 pub mod galaxies;
 pub mod history;
 pub mod model;
 pub mod overview;
+pub mod relation_rows;
 
 use std::path::Path;
 use std::str::FromStr;

@@ -18,6 +18,8 @@ mod display;
 mod galaxies;
 mod login;
 mod overview;
+mod place;
+mod relations;
 
 use std::time::Duration;
 
@@ -107,6 +109,43 @@ fn routes() -> Routes {
             Read,
             get(galaxies::show_galaxy),
         )
+        .add(
+            Method::GET,
+            "/relations",
+            Read,
+            get(relations::list_relations),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}",
+            Read,
+            get(relations::show_relation),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/chart.svg",
+            Read,
+            get(relations::download_chart),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/fit.json",
+            Read,
+            get(relations::download_fit),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/sample.csv",
+            Read,
+            get(relations::download_sample),
+        )
+        .add(
+            Method::POST,
+            "/relations/{relation}/runs",
+            Session,
+            post(relations::start_run),
+        )
+        .add(Method::GET, "/place", Read, get(place::show_place))
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
         .add(Method::GET, "/login", Public, get(login::show_login))

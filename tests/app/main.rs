@@ -6,6 +6,7 @@ mod helpers;
 mod access;
 mod accounts;
 mod pages;
+mod relations;
 mod security;
 mod sessions;
 mod storage;

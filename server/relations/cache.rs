@@ -1,0 +1,319 @@
+//! Fits kept per (catalog version, relation, estimator, sample filter, pivot).
+//!
+//! Every accepted change bumps the catalog version, so a key with an old version is never
+//! asked for again; inserting a fit for a newer version drops the older ones. Fits run on the
+//! blocking thread pool (`tokio::task::spawn_blocking`), never on the async runtime.
+
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex, PoisonError};
+
+use sqlx::SqlitePool;
+
+use super::{Relation, Sample, SampleFilter, build_sample};
+use crate::catalog::{history, relation_rows};
+use crate::fit::{self, Fit, FitError, FitSpec, Influence, Method, Shape};
+
+/// Leave-one-out influence of every object of a fit, or why it could not be computed.
+pub type InfluenceResult = Result<Vec<Influence>, FitError>;
+
+/// Most fits kept at once; beyond it the cache starts afresh (a fit is cheap to redo).
+const MAX_ENTRIES: usize = 512;
+
+/// What identifies a fit.
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+pub struct FitKey {
+    /// Catalog version the sample was read at.
+    pub catalog_version: i64,
+    /// Relation slug.
+    pub relation: String,
+    /// Estimator name ([`Method::as_str`]).
+    pub method: &'static str,
+    /// [`SampleFilter::canonical`].
+    pub filter: String,
+    /// Bits of the pivot and second pivot (log10 units), so equal floats give equal keys.
+    pub pivots: (u64, u64),
+}
+
+impl FitKey {
+    /// The key of a fit.
+    pub fn new(
+        catalog_version: i64,
+        relation: &Relation,
+        method: Method,
+        filter: &SampleFilter,
+        pivot: f64,
+        pivot2: f64,
+    ) -> FitKey {
+        FitKey {
+            catalog_version,
+            relation: relation.slug(),
+            method: method.as_str(),
+            filter: filter.canonical(),
+            pivots: (pivot.to_bits(), pivot2.to_bits()),
+        }
+    }
+}
+
+/// A finished fit with the sample it was made from.
+#[derive(Debug, Clone)]
+pub struct FitOutcome {
+    /// Its key.
+    pub key: FitKey,
+    /// The sample (points and galaxies, same order).
+    pub sample: Sample,
+    /// The fit, or why there is none (too few points, limits with FITEXY, ...).
+    pub fit: Result<Fit, FitError>,
+    /// The specification used (method, shape, pivots).
+    pub spec: Result<FitSpec, FitError>,
+    /// When the fit was made, RFC 3339 UTC.
+    pub fitted_at: String,
+}
+
+/// The fit cache shared by every handler; cheap to clone.
+#[derive(Debug, Clone, Default)]
+pub struct FitCache {
+    inner: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
+    influence: Arc<Mutex<HashMap<FitKey, Arc<InfluenceResult>>>>,
+}
+
+impl FitCache {
+    /// A cached fit, if any.
+    pub fn get(&self, key: &FitKey) -> Option<Arc<FitOutcome>> {
+        self.inner
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .get(key)
+            .cloned()
+    }
+
+    /// Stores a fit and returns the stored one (the one already there if another request was
+    /// faster, so every caller of one key shares one value). Fits of older catalog versions
+    /// are dropped.
+    pub fn insert(&self, outcome: FitOutcome) -> Arc<FitOutcome> {
+        let mut map = self.inner.lock().unwrap_or_else(PoisonError::into_inner);
+        let version = outcome.key.catalog_version;
+        map.retain(|k, _| k.catalog_version >= version);
+        if map.len() >= MAX_ENTRIES {
+            map.clear();
+        }
+        map.entry(outcome.key.clone())
+            .or_insert_with(|| Arc::new(outcome))
+            .clone()
+    }
+
+    /// Number of fits held.
+    pub fn len(&self) -> usize {
+        self.inner
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .len()
+    }
+
+    /// Whether the cache holds no fit.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The cached fit for `key`, or `compute` run on the blocking pool and stored.
+    ///
+    /// # Errors
+    /// When the blocking task panicked or was cancelled.
+    pub async fn get_or_compute(
+        &self,
+        key: &FitKey,
+        compute: impl FnOnce() -> FitOutcome + Send + 'static,
+    ) -> anyhow::Result<Arc<FitOutcome>> {
+        if let Some(hit) = self.get(key) {
+            return Ok(hit);
+        }
+        let outcome = tokio::task::spawn_blocking(compute).await?;
+        Ok(self.insert(outcome))
+    }
+
+    /// The leave-one-out influence of every object of a fit (one refit per object), cached
+    /// under the fit's key and computed on the blocking pool.
+    ///
+    /// # Errors
+    /// When the blocking task panicked or was cancelled.
+    pub async fn influence(
+        &self,
+        outcome: &Arc<FitOutcome>,
+    ) -> anyhow::Result<Arc<InfluenceResult>> {
+        let key = outcome.key.clone();
+        if let Some(hit) = self
+            .influence
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .get(&key)
+        {
+            return Ok(hit.clone());
+        }
+        let source = outcome.clone();
+        let result = tokio::task::spawn_blocking(move || match &source.spec {
+            Ok(spec) => fit::leave_one_out(&source.sample.points, spec),
+            Err(e) => Err(e.clone()),
+        })
+        .await?;
+        let mut map = self
+            .influence
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner);
+        map.retain(|k, _| k.catalog_version >= key.catalog_version);
+        if map.len() >= MAX_ENTRIES {
+            map.clear();
+        }
+        Ok(map.entry(key).or_insert_with(|| Arc::new(result)).clone())
+    }
+}
+
+/// The sample of a relation from the catalog as it is now.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn load_sample(
+    pool: &SqlitePool,
+    relation: &Relation,
+    filter: &SampleFilter,
+    soi_threshold: f64,
+) -> sqlx::Result<Sample> {
+    let rows = relation_rows::relation_rows(pool).await?;
+    let lums = match relation {
+        Relation::Luminosity(_) => relation_rows::luminosity_rows(pool).await?,
+        _ => Vec::new(),
+    };
+    Ok(build_sample(&rows, &lums, relation, filter, soi_threshold))
+}
+
+/// The specification of a fit of `relation` (its shape, the pivots).
+///
+/// # Errors
+/// [`FitError::InvalidSetting`] for a pivot that is not finite.
+pub fn spec_for(
+    relation: &Relation,
+    method: Method,
+    pivot: f64,
+    pivot2: f64,
+) -> Result<FitSpec, FitError> {
+    let spec = FitSpec::new(method, relation.default_pivot()).with_pivot(pivot)?;
+    if relation.shape() == Shape::Plane {
+        spec.with_shape(Shape::Plane)?.with_pivot2(pivot2)
+    } else {
+        Ok(spec)
+    }
+}
+
+/// The fit of `relation` with `method` over the galaxies `filter` selects, at the current
+/// catalog version: from the cache, or fitted now off the async runtime and cached.
+///
+/// # Errors
+/// When the database cannot be read or the fitting task fails; a fit that cannot be made
+/// (too few points, ...) is an `Ok` outcome whose `fit` says why.
+pub async fn fitted(
+    pool: &SqlitePool,
+    cache: &FitCache,
+    soi_threshold: f64,
+    relation: &Relation,
+    method: Method,
+    filter: &SampleFilter,
+    pivots: (f64, f64),
+) -> anyhow::Result<Arc<FitOutcome>> {
+    let version = history::current_version(pool).await?;
+    let key = FitKey::new(version, relation, method, filter, pivots.0, pivots.1);
+    if let Some(hit) = cache.get(&key) {
+        return Ok(hit);
+    }
+    let sample = load_sample(pool, relation, filter, soi_threshold).await?;
+    let spec = spec_for(relation, method, pivots.0, pivots.1);
+    let compute_key = key.clone();
+    cache
+        .get_or_compute(&key, move || {
+            let fit = spec.clone().and_then(|s| fit::fit(&sample.points, &s));
+            FitOutcome {
+                key: compute_key,
+                sample,
+                fit,
+                spec,
+                fitted_at: now_rfc3339(),
+            }
+        })
+        .await
+}
+
+pub(super) fn now_rfc3339() -> String {
+    time::OffsetDateTime::now_utc()
+        .replace_nanosecond(0)
+        .ok()
+        .and_then(|t| {
+            t.format(&time::format_description::well_known::Rfc3339)
+                .ok()
+        })
+        .unwrap_or_default()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+
+    fn outcome(key: &FitKey) -> FitOutcome {
+        FitOutcome {
+            key: key.clone(),
+            sample: Sample::default(),
+            fit: Err(FitError::AllUpperLimits),
+            spec: Ok(FitSpec::new(Method::Structural, 2.3)),
+            fitted_at: now_rfc3339(),
+        }
+    }
+
+    #[tokio::test]
+    async fn the_same_key_gives_the_same_fit_and_a_new_version_refits() {
+        let cache = FitCache::default();
+        let runs = Arc::new(AtomicUsize::new(0));
+        let filter = SampleFilter::default();
+        let key1 = FitKey::new(1, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        let compute = |key: FitKey, runs: Arc<AtomicUsize>| {
+            move || {
+                runs.fetch_add(1, Ordering::SeqCst);
+                outcome(&key)
+            }
+        };
+        let a = cache
+            .get_or_compute(&key1, compute(key1.clone(), runs.clone()))
+            .await
+            .unwrap();
+        let b = cache
+            .get_or_compute(&key1, compute(key1.clone(), runs.clone()))
+            .await
+            .unwrap();
+        assert!(Arc::ptr_eq(&a, &b));
+        assert_eq!(runs.load(Ordering::SeqCst), 1);
+        // Another estimator or pivot is another fit.
+        let other = FitKey::new(
+            1,
+            &Relation::MSigma,
+            Method::Conditional,
+            &filter,
+            2.3,
+            11.0,
+        );
+        assert_ne!(other, key1);
+        // A version bump: a new key, fitted again, and the old fits are dropped.
+        let key2 = FitKey::new(2, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        let c = cache
+            .get_or_compute(&key2, compute(key2.clone(), runs.clone()))
+            .await
+            .unwrap();
+        assert!(!Arc::ptr_eq(&a, &c));
+        assert_eq!(runs.load(Ordering::SeqCst), 2);
+        assert!(cache.get(&key1).is_none());
+        assert_eq!(cache.len(), 1);
+    }
+
+    #[test]
+    fn the_plane_gets_both_pivots() {
+        let spec = spec_for(&Relation::SigmaBulgePlane, Method::Structural, 2.3, 10.5).unwrap();
+        assert_eq!(spec.shape, Shape::Plane);
+        assert!((spec.pivot2 - 10.5).abs() < 1e-12);
+        assert!(spec_for(&Relation::MSigma, Method::Structural, f64::NAN, 11.0).is_err());
+    }
+}

@@ -1,0 +1,267 @@
+//! Which galaxies enter a fit, read from query parameters.
+
+use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology, SigmaDefinition};
+
+/// Sphere-of-influence selection.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub enum SoiChoice {
+    /// Every black-hole mass (the sphere of influence is a flag for reviewers, not a cut:
+    /// Gültekin et al. 2009, ApJ 698, 198).
+    #[default]
+    All,
+    /// Only masses whose sphere of influence is resolved (θ_infl / resolution ≥ threshold);
+    /// reverberation masses and masses without a recorded resolution are left out.
+    Resolved,
+}
+
+/// Which velocity dispersion a relation using σ takes. Definitions are never mixed: objects
+/// whose adopted σ has the other definition are left out and counted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub enum SigmaChoice {
+    /// σ_e, within the effective radius (the default).
+    #[default]
+    Effective,
+    /// σ_c, central.
+    Central,
+}
+
+impl SigmaChoice {
+    /// The stored σ definition this choice keeps.
+    pub fn definition(self) -> SigmaDefinition {
+        match self {
+            SigmaChoice::Effective => SigmaDefinition::Effective,
+            SigmaChoice::Central => SigmaDefinition::Central,
+        }
+    }
+}
+
+/// A selection of galaxies for a fit. `None` means any.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub struct SampleFilter {
+    /// Host morphology.
+    pub morphology: Option<Morphology>,
+    /// Bulge kind.
+    pub bulge_kind: Option<BulgeKind>,
+    /// Centre kind.
+    pub centre_kind: Option<CentreKind>,
+    /// How the black-hole mass was measured.
+    pub mass_method: Option<MassMethod>,
+    /// Sphere of influence resolved, or all.
+    pub soi: SoiChoice,
+    /// σ definition (relations using σ only).
+    pub sigma: SigmaChoice,
+    /// Whether upper limits on the black-hole mass enter (FITEXY and BCES cannot use them).
+    pub exclude_limits: bool,
+}
+
+/// The query parameters [`SampleFilter::set`] reads.
+pub const FILTER_PARAMS: [&str; 7] = [
+    "morphology",
+    "bulge_kind",
+    "centre_kind",
+    "mass_method",
+    "soi",
+    "sigma_definition",
+    "limits",
+];
+
+impl SampleFilter {
+    /// Reads one query parameter into the filter. Returns `Ok(false)` when `key` is not a
+    /// filter parameter (the caller handles it), `Ok(true)` when it was read. An empty value
+    /// means "any" (a form's select left alone).
+    ///
+    /// # Errors
+    /// One sentence naming the parameter and the accepted values.
+    pub fn set(&mut self, key: &str, value: &str) -> Result<bool, String> {
+        let value = value.trim();
+        let named = |e: String| format!("Parameter '{key}': {e}.");
+        match key {
+            "morphology" => {
+                self.morphology = optional(value).map_err(named)?;
+            }
+            "bulge_kind" => {
+                self.bulge_kind = optional(value).map_err(named)?;
+            }
+            "centre_kind" => {
+                self.centre_kind = optional(value).map_err(named)?;
+            }
+            "mass_method" => {
+                self.mass_method = optional(value).map_err(named)?;
+            }
+            "soi" => {
+                self.soi = match value {
+                    "" | "all" => SoiChoice::All,
+                    "resolved" => SoiChoice::Resolved,
+                    other => {
+                        return Err(named(format!("'{other}' is not one of: all, resolved")));
+                    }
+                };
+            }
+            "sigma_definition" => {
+                self.sigma = match value {
+                    "" | "sigma_e" => SigmaChoice::Effective,
+                    "sigma_c" => SigmaChoice::Central,
+                    other => {
+                        return Err(named(format!("'{other}' is not one of: sigma_e, sigma_c")));
+                    }
+                };
+            }
+            "limits" => {
+                self.exclude_limits = match value {
+                    "" | "include" => false,
+                    "exclude" => true,
+                    other => {
+                        return Err(named(format!("'{other}' is not one of: include, exclude")));
+                    }
+                };
+            }
+            _ => return Ok(false),
+        }
+        Ok(true)
+    }
+
+    /// Reads a whole query; every parameter must be a filter parameter.
+    ///
+    /// # Errors
+    /// The problems, one sentence each, joined by spaces.
+    pub fn parse(pairs: &[(String, String)]) -> Result<SampleFilter, String> {
+        let mut filter = SampleFilter::default();
+        let mut problems = Vec::new();
+        for (key, value) in pairs {
+            match filter.set(key, value) {
+                Ok(true) => {}
+                Ok(false) => problems.push(format!(
+                    "'{}' is not a sample filter (they are {}).",
+                    key.chars().take(40).collect::<String>(),
+                    FILTER_PARAMS.join(", ")
+                )),
+                Err(e) => problems.push(e),
+            }
+        }
+        if problems.is_empty() {
+            Ok(filter)
+        } else {
+            Err(problems.join(" "))
+        }
+    }
+
+    /// A canonical text for cache keys and stored fits: every field in a fixed order, "any"
+    /// for unset ones, e.g. `morphology=any;bulge_kind=pseudo;…;limits=include`.
+    pub fn canonical(&self) -> String {
+        format!(
+            "morphology={};bulge_kind={};centre_kind={};mass_method={};soi={};sigma_definition={};limits={}",
+            self.morphology.map_or("any", Morphology::as_str),
+            self.bulge_kind.map_or("any", BulgeKind::as_str),
+            self.centre_kind.map_or("any", CentreKind::as_str),
+            self.mass_method.map_or("any", MassMethod::as_str),
+            match self.soi {
+                SoiChoice::All => "all",
+                SoiChoice::Resolved => "resolved",
+            },
+            self.sigma.definition().as_str(),
+            if self.exclude_limits {
+                "exclude"
+            } else {
+                "include"
+            },
+        )
+    }
+
+    /// The non-default parameters as (key, value) pairs, for links.
+    pub fn query_pairs(&self) -> Vec<(&'static str, &'static str)> {
+        let mut out = Vec::new();
+        if let Some(m) = self.morphology {
+            out.push(("morphology", m.as_str()));
+        }
+        if let Some(b) = self.bulge_kind {
+            out.push(("bulge_kind", b.as_str()));
+        }
+        if let Some(c) = self.centre_kind {
+            out.push(("centre_kind", c.as_str()));
+        }
+        if let Some(m) = self.mass_method {
+            out.push(("mass_method", m.as_str()));
+        }
+        if self.soi == SoiChoice::Resolved {
+            out.push(("soi", "resolved"));
+        }
+        if self.sigma == SigmaChoice::Central {
+            out.push(("sigma_definition", "sigma_c"));
+        }
+        if self.exclude_limits {
+            out.push(("limits", "exclude"));
+        }
+        out
+    }
+}
+
+fn optional<T: std::str::FromStr<Err = String>>(value: &str) -> Result<Option<T>, String> {
+    if value.is_empty() || value == "any" {
+        Ok(None)
+    } else {
+        value.parse().map(Some)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
+        items
+            .iter()
+            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+            .collect()
+    }
+
+    #[test]
+    fn every_parameter_is_read_and_the_canonical_form_is_fixed() {
+        let f = SampleFilter::parse(&pairs(&[
+            ("morphology", "spiral"),
+            ("bulge_kind", "pseudo"),
+            ("centre_kind", "power_law"),
+            ("mass_method", "maser"),
+            ("soi", "resolved"),
+            ("sigma_definition", "sigma_c"),
+            ("limits", "exclude"),
+        ]))
+        .unwrap();
+        assert_eq!(f.morphology, Some(Morphology::Spiral));
+        assert_eq!(f.sigma, SigmaChoice::Central);
+        assert_eq!(
+            f.canonical(),
+            "morphology=spiral;bulge_kind=pseudo;centre_kind=power_law;mass_method=maser;soi=resolved;sigma_definition=sigma_c;limits=exclude"
+        );
+        // The link pairs read back to the same filter.
+        let back: Vec<(String, String)> = f
+            .query_pairs()
+            .into_iter()
+            .map(|(k, v)| (k.to_owned(), v.to_owned()))
+            .collect();
+        assert_eq!(SampleFilter::parse(&back).unwrap(), f);
+        assert_eq!(
+            SampleFilter::default().canonical(),
+            "morphology=any;bulge_kind=any;centre_kind=any;mass_method=any;soi=all;sigma_definition=sigma_e;limits=include"
+        );
+    }
+
+    #[test]
+    fn bad_values_get_one_sentence_each() {
+        let err =
+            SampleFilter::parse(&pairs(&[("morphology", "blob"), ("soi", "maybe")])).unwrap_err();
+        assert!(
+            err.contains("Parameter 'morphology': 'blob' is not one of"),
+            "{err}"
+        );
+        assert!(
+            err.contains("Parameter 'soi': 'maybe' is not one of: all, resolved."),
+            "{err}"
+        );
+        let err = SampleFilter::parse(&pairs(&[("colour", "red")])).unwrap_err();
+        assert!(err.contains("'colour' is not a sample filter"), "{err}");
+        assert_eq!(
+            SampleFilter::parse(&pairs(&[("morphology", ""), ("soi", "")])).unwrap(),
+            SampleFilter::default()
+        );
+    }
+}

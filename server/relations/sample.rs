@@ -1,0 +1,550 @@
+//! Turning the catalog's adopted values into a fit sample.
+//!
+//! # Values, errors and covariances (science notes §3.2)
+//!
+//! ```text
+//! y      = log M_BH + p_y log10(D / D_src)                 rescaled to the adopted distance D
+//! x      = log X    + p_x log10(D / D_src)                 (X = σ, M_bulge or L)
+//! σ_logD = σ_D / (D ln 10)
+//! σ_y    = √(σ_y,meas² + (p_y σ_logD)²)
+//! σ_x    = √(σ_x,meas² + (p_x σ_logD)²)
+//! σ_xy   = p_y p_x σ_logD²                                  shared distance error
+//! ```
+//!
+//! p is the distance exponent of each quantity (quantity ∝ D^p): 1 for dynamical black-hole
+//! masses and dynamical bulge masses, 2 for luminosities and photometric bulge masses, 0 for σ
+//! and reverberation masses. D, D_src, σ_D in Mpc; logs and errors in dex, σ_xy in dex².
+//! An upper limit enters at its rescaled value with no error and no covariance (the fits take
+//! the limit itself as exact). For the plane, the bulge mass is the second property x2 with
+//! its distance error in quadrature; its covariance with y is not carried (fit points hold
+//! only the x–y covariance).
+
+use crate::astro::{
+    DistanceScaling, SphereOfInfluence, distance_covariance_dex2, log_distance_error_dex,
+    rescale_log,
+};
+use crate::catalog::relation_rows::{LuminosityRow, RelationRow};
+use crate::fit::Point;
+
+use super::{Relation, SampleFilter, SoiChoice};
+
+/// How a stored measurement scales with distance (science notes §3.2): dynamical masses ∝ D,
+/// luminosities and photometric bulge masses ∝ D², dispersions and reverberation masses not at
+/// all.
+pub fn distance_scaling(quantity: &str, method: &str) -> DistanceScaling {
+    match (quantity, method) {
+        ("bh_mass", "reverberation") => DistanceScaling::ReverberationMass,
+        ("bh_mass", _) => DistanceScaling::DynamicalMass,
+        ("bulge_mass", "photometric") => DistanceScaling::PhotometricBulgeMass,
+        ("bulge_mass", _) => DistanceScaling::DynamicalBulgeMass,
+        ("bulge_luminosity", _) => DistanceScaling::Luminosity,
+        _ => DistanceScaling::VelocityDispersion,
+    }
+}
+
+/// The stored log value moved from the distance its source assumed to the adopted distance.
+/// Unchanged when the source distance is unknown or the quantity does not depend on distance.
+///
+/// ```text
+/// log Q_D = log Q_src + p log10(D / D_src)      (science notes §3.2)
+/// ```
+pub fn at_adopted_distance(
+    log_value: f64,
+    quantity: &str,
+    method: &str,
+    source_distance_mpc: Option<f64>,
+    adopted_distance_mpc: f64,
+) -> f64 {
+    match source_distance_mpc {
+        Some(from) => rescale_log(
+            log_value,
+            distance_scaling(quantity, method),
+            from,
+            adopted_distance_mpc,
+        )
+        // Both distances passed the schema's range check, so this cannot fail; fall back to
+        // the published value rather than hide the row if it ever does.
+        .unwrap_or(log_value),
+        None => log_value,
+    }
+}
+
+/// The sphere-of-influence check for a black-hole mass (log10 M☉ at `distance_mpc`), or None
+/// when it cannot be computed (no σ) or does not apply (reverberation masses).
+pub fn sphere_of_influence(
+    log_mbh: f64,
+    method: &str,
+    log_sigma: Option<f64>,
+    distance_mpc: f64,
+    resolution_arcsec: Option<f64>,
+    threshold: f64,
+) -> Option<SphereOfInfluence> {
+    if method == "reverberation" {
+        return None;
+    }
+    let sigma_km_s = 10f64.powf(log_sigma?);
+    SphereOfInfluence::from_log_mbh(
+        log_mbh,
+        sigma_km_s,
+        distance_mpc,
+        resolution_arcsec,
+        threshold,
+    )
+    .ok()
+}
+
+/// One galaxy of a sample, with what pages show and group by.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Member {
+    /// Galaxy name.
+    pub name: String,
+    /// URL form of the name.
+    pub slug: String,
+    /// Stored morphology word.
+    pub morphology: String,
+    /// Stored bulge kind word.
+    pub bulge_kind: String,
+    /// Stored centre kind word.
+    pub centre_kind: String,
+    /// Stored black-hole mass method word.
+    pub mass_method: String,
+    /// Whether the sphere of influence is resolved (None when it cannot be said).
+    pub resolved: Option<bool>,
+    /// log10 of the adopted distance (Mpc).
+    pub log_distance: f64,
+    /// Adopted log σ (km/s), whatever its definition, if any.
+    pub log_sigma: Option<f64>,
+    /// Adopted log M_bulge at the adopted distance (M☉), if any.
+    pub log_mbulge: Option<f64>,
+}
+
+/// A fit sample: points and the galaxies they come from, in the same order.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Sample {
+    /// The points handed to the fit.
+    pub points: Vec<Point>,
+    /// The galaxy of each point.
+    pub members: Vec<Member>,
+    /// Galaxies that matched the filter and had every value but were left out because their
+    /// adopted σ has the other definition.
+    pub left_out_sigma_definition: usize,
+    /// Galaxies that matched the filter but lack a value the relation needs.
+    pub left_out_missing: usize,
+}
+
+impl Sample {
+    /// Number of detections.
+    pub fn n_detections(&self) -> usize {
+        self.points.iter().filter(|p| !p.upper_limit).count()
+    }
+
+    /// Number of upper limits.
+    pub fn n_limits(&self) -> usize {
+        self.points.iter().filter(|p| p.upper_limit).count()
+    }
+}
+
+/// Builds the sample of `relation` from the catalog's adopted values.
+///
+/// See the module documentation for the equations. Galaxies are taken in the rows' order.
+/// `soi_threshold` is the θ_infl / resolution ratio above which a sphere of influence counts
+/// as resolved.
+pub fn build_sample(
+    rows: &[RelationRow],
+    luminosities: &[LuminosityRow],
+    relation: &Relation,
+    filter: &SampleFilter,
+    soi_threshold: f64,
+) -> Sample {
+    let mut sample = Sample::default();
+    for row in rows {
+        let method = row.mbh_method.as_deref().unwrap_or("");
+        let log_mbh = row.log_mbh.map(|v| {
+            at_adopted_distance(
+                v,
+                "bh_mass",
+                method,
+                row.mbh_source_distance_mpc,
+                row.distance_mpc,
+            )
+        });
+        let resolved = log_mbh
+            .and_then(|m| {
+                sphere_of_influence(
+                    m,
+                    method,
+                    row.log_sigma,
+                    row.distance_mpc,
+                    row.mbh_resolution_arcsec,
+                    soi_threshold,
+                )
+            })
+            .and_then(|s| s.resolved);
+        let tags_match = filter
+            .morphology
+            .is_none_or(|m| row.morphology == m.as_str())
+            && filter
+                .bulge_kind
+                .is_none_or(|b| row.bulge_kind == b.as_str())
+            && filter
+                .centre_kind
+                .is_none_or(|c| row.centre_kind == c.as_str())
+            && filter.mass_method.is_none_or(|m| method == m.as_str())
+            && (filter.soi == SoiChoice::All || resolved == Some(true))
+            && !(filter.exclude_limits && row.mbh_upper_limit == Some(true));
+        if !tags_match {
+            continue;
+        }
+        let mbulge_method = row.mbulge_method.as_deref().unwrap_or("");
+        let log_mbulge = row.log_mbulge.map(|v| {
+            at_adopted_distance(
+                v,
+                "bulge_mass",
+                mbulge_method,
+                row.mbulge_source_distance_mpc,
+                row.distance_mpc,
+            )
+        });
+        let Some(y) = log_mbh else {
+            sample.left_out_missing += 1;
+            continue;
+        };
+        let upper_limit = row.mbh_upper_limit.unwrap_or(false);
+        let sigma_log_d =
+            log_distance_error_dex(row.distance_mpc, row.distance_err_mpc).unwrap_or(0.0);
+        let kind_y = distance_scaling("bh_mass", method);
+        let with_distance =
+            |err: f64, kind: DistanceScaling| err.hypot(f64::from(kind.exponent()) * sigma_log_d);
+        let y_err = with_distance(row.mbh_err_dex.unwrap_or(0.0), kind_y);
+        let covariance = |kind_x: DistanceScaling| {
+            distance_covariance_dex2(kind_y, kind_x, row.distance_mpc, row.distance_err_mpc)
+                .unwrap_or(0.0)
+        };
+        // (x, σ_x, kind of x), and the second property for the plane.
+        let sigma_value = row.log_sigma.zip(row.sigma_err_dex);
+        let mbulge_value = log_mbulge.zip(row.mbulge_err_dex).map(|(v, e)| {
+            let kind = distance_scaling("bulge_mass", mbulge_method);
+            (v, with_distance(e, kind), kind)
+        });
+        let first: Option<(f64, f64, DistanceScaling)> = match relation {
+            Relation::MSigma | Relation::SigmaBulgePlane => {
+                sigma_value.map(|(v, e)| (v, e, DistanceScaling::VelocityDispersion))
+            }
+            Relation::MBulge => mbulge_value,
+            Relation::Luminosity(band) => luminosities
+                .iter()
+                .find(|l| l.galaxy_id == row.galaxy_id && &l.band == band)
+                .map(|l| {
+                    let v = at_adopted_distance(
+                        l.log_value,
+                        "bulge_luminosity",
+                        "",
+                        l.source_distance_mpc,
+                        row.distance_mpc,
+                    );
+                    (
+                        v,
+                        with_distance(l.err_dex, DistanceScaling::Luminosity),
+                        DistanceScaling::Luminosity,
+                    )
+                }),
+        };
+        let second = match relation {
+            Relation::SigmaBulgePlane => match mbulge_value {
+                Some(v) => Some(v),
+                None => {
+                    sample.left_out_missing += 1;
+                    continue;
+                }
+            },
+            _ => None,
+        };
+        let Some((x, x_err, kind_x)) = first else {
+            sample.left_out_missing += 1;
+            continue;
+        };
+        if relation.uses_sigma()
+            && row.sigma_definition.as_deref() != Some(filter.sigma.definition().as_str())
+        {
+            sample.left_out_sigma_definition += 1;
+            continue;
+        }
+        let mut point = if upper_limit {
+            Point::limit(x, x_err, y)
+        } else {
+            Point::new(x, x_err, y, y_err).with_xy_cov(covariance(kind_x))
+        };
+        point = point.named(&row.name);
+        if let Some((x2, x2_err, _)) = second {
+            point = point.with_x2(x2, x2_err);
+        }
+        sample.points.push(point);
+        sample.members.push(Member {
+            name: row.name.clone(),
+            slug: row.slug.clone(),
+            morphology: row.morphology.clone(),
+            bulge_kind: row.bulge_kind.clone(),
+            centre_kind: row.centre_kind.clone(),
+            mass_method: method.to_owned(),
+            resolved,
+            log_distance: row.distance_mpc.log10(),
+            log_sigma: row.log_sigma,
+            log_mbulge,
+        });
+    }
+    sample
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalog::model::{MassMethod, Morphology};
+    use crate::relations::SigmaChoice;
+    use std::f64::consts::LN_10;
+
+    fn row(name: &str) -> RelationRow {
+        RelationRow {
+            galaxy_id: 1,
+            name: name.to_owned(),
+            slug: name.to_lowercase(),
+            morphology: "elliptical".to_owned(),
+            bulge_kind: "classical".to_owned(),
+            centre_kind: "core".to_owned(),
+            distance_mpc: 18.0,
+            distance_err_mpc: 1.8,
+            log_mbh: Some(8.0),
+            mbh_err_dex: Some(0.1),
+            mbh_upper_limit: Some(false),
+            mbh_method: Some("stellar_dynamics".to_owned()),
+            mbh_source_distance_mpc: Some(16.5),
+            mbh_resolution_arcsec: Some(0.1),
+            log_sigma: Some(200f64.log10()),
+            sigma_err_dex: Some(0.02),
+            sigma_definition: Some("sigma_e".to_owned()),
+            log_mbulge: Some(11.0),
+            mbulge_err_dex: Some(0.15),
+            mbulge_method: Some("photometric".to_owned()),
+            mbulge_source_distance_mpc: Some(16.5),
+        }
+    }
+
+    fn close(a: f64, b: f64, tol: f64) {
+        assert!((a - b).abs() < tol, "{a} vs {b}");
+    }
+
+    #[test]
+    fn masses_are_rescaled_and_carry_the_distance_error() {
+        let s = build_sample(
+            &[row("Alpha 1")],
+            &[],
+            &Relation::MSigma,
+            &SampleFilter::default(),
+            1.0,
+        );
+        assert_eq!(s.points.len(), 1);
+        let p = &s.points[0];
+        // Science notes §3.2 / §7 row 30: 16.5 → 18 Mpc multiplies a dynamical mass by
+        // 1.090909 (computed from M ∝ D).
+        close(10f64.powf(p.y - 8.0), 1.090_909, 1e-6);
+        // σ_logD = 1.8 / (18 ln 10); σ_y = √(0.1² + σ_logD²) (science notes §3.2, computed).
+        let sld = 1.8 / (18.0 * LN_10);
+        close(p.y_err, (0.01 + sld * sld).sqrt(), 1e-12);
+        // σ does not depend on distance: its error is as measured and the covariance is zero.
+        close(p.x_err, 0.02, 1e-12);
+        close(p.xy_cov, 0.0, 1e-15);
+        assert_eq!(p.name, "Alpha 1");
+    }
+
+    #[test]
+    fn bulge_masses_and_luminosities_share_the_distance_error() {
+        let r = row("Alpha 1");
+        let sld = 1.8 / (18.0 * LN_10);
+        // Photometric bulge mass ∝ D², dynamical M_BH ∝ D: cov = 1·2·σ_logD² (science notes
+        // §3.2, computed).
+        let s = build_sample(
+            std::slice::from_ref(&r),
+            &[],
+            &Relation::MBulge,
+            &SampleFilter::default(),
+            1.0,
+        );
+        let p = &s.points[0];
+        close(p.xy_cov, 2.0 * sld * sld, 1e-15);
+        close(p.x_err, 0.15f64.hypot(2.0 * sld), 1e-12);
+        // 16.5 → 18 Mpc: photometric mass × 1.190083 (∝ D², §7 row 30, computed).
+        close(10f64.powf(p.x - 11.0), 1.190_083, 1e-6);
+        // A dynamical bulge mass ∝ D: cov = σ_logD².
+        let mut dynamical = r.clone();
+        dynamical.mbulge_method = Some("dynamical".to_owned());
+        let s = build_sample(
+            &[dynamical],
+            &[],
+            &Relation::MBulge,
+            &SampleFilter::default(),
+            1.0,
+        );
+        close(s.points[0].xy_cov, sld * sld, 1e-15);
+        // A reverberation mass does not depend on D: no covariance, no distance error in y.
+        let mut reverb = r.clone();
+        reverb.mbh_method = Some("reverberation".to_owned());
+        let s = build_sample(
+            &[reverb],
+            &[],
+            &Relation::MBulge,
+            &SampleFilter::default(),
+            1.0,
+        );
+        close(s.points[0].xy_cov, 0.0, 1e-15);
+        close(s.points[0].y_err, 0.1, 1e-12);
+        close(s.points[0].y, 8.0, 1e-12);
+        // Luminosity ∝ D²: cov = 2 σ_logD², σ_x = √(0.07² + (2σ_logD)²).
+        let lum = LuminosityRow {
+            galaxy_id: 1,
+            band: "K".to_owned(),
+            log_value: 10.5,
+            err_dex: 0.07,
+            source_distance_mpc: Some(18.0),
+        };
+        let s = build_sample(
+            &[r],
+            &[lum],
+            &Relation::Luminosity("K".to_owned()),
+            &SampleFilter::default(),
+            1.0,
+        );
+        let p = &s.points[0];
+        close(p.x, 10.5, 1e-12);
+        close(p.xy_cov, 2.0 * sld * sld, 1e-15);
+        close(p.x_err, (0.0049 + 4.0 * sld * sld).sqrt(), 1e-12);
+    }
+
+    #[test]
+    fn limits_are_flagged_without_errors() {
+        let mut r = row("Limit 1");
+        r.mbh_upper_limit = Some(true);
+        r.mbh_err_dex = Some(0.0);
+        let s = build_sample(&[r], &[], &Relation::MBulge, &SampleFilter::default(), 1.0);
+        let p = &s.points[0];
+        assert!(p.upper_limit);
+        close(p.y_err, 0.0, 1e-15);
+        close(p.xy_cov, 0.0, 1e-15);
+        assert_eq!((s.n_detections(), s.n_limits()), (0, 1));
+        let mut r = row("Limit 1");
+        r.mbh_upper_limit = Some(true);
+        let detections_only = SampleFilter {
+            exclude_limits: true,
+            ..SampleFilter::default()
+        };
+        let s = build_sample(
+            &[r, row("Alpha 1")],
+            &[],
+            &Relation::MBulge,
+            &detections_only,
+            1.0,
+        );
+        assert_eq!((s.n_detections(), s.n_limits()), (1, 0));
+    }
+
+    #[test]
+    fn sigma_definitions_are_never_mixed() {
+        let mut central = row("Central 1");
+        central.sigma_definition = Some("sigma_c".to_owned());
+        let rows = [row("Eff 1"), central, row("Eff 2")];
+        let s = build_sample(&rows, &[], &Relation::MSigma, &SampleFilter::default(), 1.0);
+        assert_eq!(s.points.len(), 2);
+        assert_eq!(s.left_out_sigma_definition, 1);
+        let only_c = SampleFilter {
+            sigma: SigmaChoice::Central,
+            ..SampleFilter::default()
+        };
+        let s = build_sample(&rows, &[], &Relation::MSigma, &only_c, 1.0);
+        assert_eq!(s.points.len(), 1);
+        assert_eq!(s.left_out_sigma_definition, 2);
+        // M_BH–M_bulge does not use σ: nothing is left out for its definition.
+        let s = build_sample(&rows, &[], &Relation::MBulge, &SampleFilter::default(), 1.0);
+        assert_eq!((s.points.len(), s.left_out_sigma_definition), (3, 0));
+    }
+
+    #[test]
+    fn filters_select_by_tags_and_sphere_of_influence() {
+        let mut spiral = row("Spiral 1");
+        spiral.morphology = "spiral".to_owned();
+        spiral.mbh_method = Some("maser".to_owned());
+        let mut unresolved = row("Blur 1");
+        // M = 1e8 at 16.5 Mpc rescaled, σ = 200 km/s, D = 18 Mpc: θ ≈ 0.13″ (computed from
+        // r_infl = G M/σ², science notes §3.1); a 0.8″ resolution does not resolve it.
+        unresolved.mbh_resolution_arcsec = Some(0.8);
+        let mut no_mass = row("Empty 1");
+        no_mass.log_mbh = None;
+        let rows = [row("Alpha 1"), spiral, unresolved, no_mass];
+        let all = build_sample(&rows, &[], &Relation::MSigma, &SampleFilter::default(), 1.0);
+        assert_eq!((all.points.len(), all.left_out_missing), (3, 1));
+        let ellipticals = SampleFilter {
+            morphology: Some(Morphology::Elliptical),
+            ..SampleFilter::default()
+        };
+        assert_eq!(
+            build_sample(&rows, &[], &Relation::MSigma, &ellipticals, 1.0)
+                .points
+                .len(),
+            2
+        );
+        let masers = SampleFilter {
+            mass_method: Some(MassMethod::Maser),
+            ..SampleFilter::default()
+        };
+        let s = build_sample(&rows, &[], &Relation::MSigma, &masers, 1.0);
+        assert_eq!(s.members[0].name, "Spiral 1");
+        let resolved = SampleFilter {
+            soi: SoiChoice::Resolved,
+            ..SampleFilter::default()
+        };
+        let s = build_sample(&rows, &[], &Relation::MSigma, &resolved, 1.0);
+        let names: Vec<&str> = s.members.iter().map(|m| m.name.as_str()).collect();
+        assert_eq!(names, ["Alpha 1", "Spiral 1"]);
+        // The plane needs both σ and a bulge mass.
+        let mut no_bulge = row("Thin 1");
+        no_bulge.log_mbulge = None;
+        let s = build_sample(
+            &[row("Alpha 1"), no_bulge],
+            &[],
+            &Relation::SigmaBulgePlane,
+            &SampleFilter::default(),
+            1.0,
+        );
+        assert_eq!((s.points.len(), s.left_out_missing), (1, 1));
+        assert!(s.points[0].x2.is_some());
+    }
+
+    #[test]
+    fn rescaling_follows_the_quantity_kind() {
+        // Distance rescale 16.5 → 18 Mpc: M × 1.090909, L × 1.190083 (science notes §7 row 30,
+        // computed from the scaling laws of §3.2).
+        let m = at_adopted_distance(8.0, "bh_mass", "stellar_dynamics", Some(16.5), 18.0);
+        assert!((10f64.powf(m - 8.0) - 1.090_909).abs() < 1e-6);
+        let l = at_adopted_distance(10.0, "bulge_luminosity", "", Some(16.5), 18.0);
+        assert!((10f64.powf(l - 10.0) - 1.190_083).abs() < 1e-6);
+        let rm = at_adopted_distance(7.0, "bh_mass", "reverberation", Some(16.5), 18.0);
+        assert!((rm - 7.0).abs() < 1e-12);
+        assert!((at_adopted_distance(7.0, "bh_mass", "maser", None, 18.0) - 7.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn sphere_of_influence_is_skipped_for_reverberation_and_missing_sigma() {
+        assert!(sphere_of_influence(8.0, "reverberation", Some(2.3), 10.0, None, 1.0).is_none());
+        assert!(sphere_of_influence(8.0, "gas_dynamics", None, 10.0, Some(0.1), 1.0).is_none());
+        // M = 1e8 M☉, σ = 200 km/s, D = 10 Mpc → θ = 0.22178″ (science notes §7 row 23,
+        // computed).
+        let soi = sphere_of_influence(
+            8.0,
+            "stellar_dynamics",
+            Some(200f64.log10()),
+            10.0,
+            Some(0.1),
+            1.0,
+        )
+        .unwrap();
+        assert!((soi.theta_arcsec - 0.22178).abs() < 1e-4);
+        assert_eq!(soi.resolved, Some(true));
+    }
+}

@@ -1,0 +1,609 @@
+//! `/place`: where one object falls against every relation it has values for.
+//!
+//! Everything is read from the query string (a GET form), so a link reproduces the page;
+//! nothing is stored. For each usable relation (structural fit of the whole catalog, from the
+//! fit cache) the page gives the predicted log M_BH with 68 % and 95 % predictive intervals,
+//! and, with a mass, its residual, z-score and verdict, and how a refit with the object would
+//! move α, β and ε.
+//!
+//! ```text
+//! ŷ = α + β (x − x0) [+ γ (x2 − x02)]
+//! s_pred² = ε² + gᵀ C g + β² σ_x² [+ γ² σ_x2²]                (fit::predict)
+//! r = y − ŷ,  z = r / √(s_pred² + σ_y²)
+//! limit: P(true log M_BH < y_lim) = Φ((y_lim − ŷ) / s_pred)
+//! verdict: |z| < 2 consistent, 2 ≤ |z| < 3 in tension, |z| ≥ 3 outlier (common practice,
+//! science notes §6)
+//! ```
+
+use askama::Template;
+use askama_web::WebTemplate;
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Query, State};
+
+use super::display::{fixed, significant};
+use crate::astro::SphereOfInfluence;
+use crate::catalog::relation_rows;
+use crate::charts::{ChartPoint, relation_svg};
+use crate::error::{AppError, AppResult};
+use crate::fit::{self, Method, Point, Prediction, Shape};
+use crate::relations::{Relation, SampleFilter, fitted};
+use crate::startup::AppState;
+use crate::units::{Entry, LinearEntry, Quantity, Scale, parse_entry, parse_linear};
+
+/// |z| from which an object is "in tension" with a relation (common practice, science notes §6).
+pub(crate) const TENSION_Z: f64 = 2.0;
+/// |z| from which an object is an outlier (common practice, science notes §6).
+pub(crate) const OUTLIER_Z: f64 = 3.0;
+
+const PLACE_PARAMS: &str = "sigma, bulge_mass, luminosity, band, mass, distance, resolution";
+
+/// The form as typed (text kept for redisplay).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub(crate) struct PlaceForm {
+    sigma: String,
+    bulge_mass: String,
+    luminosity: String,
+    band: String,
+    mass: String,
+    distance: String,
+    resolution: String,
+}
+
+impl PlaceForm {
+    fn parse(pairs: &[(String, String)]) -> Result<PlaceForm, String> {
+        let mut form = PlaceForm::default();
+        let mut unknown = Vec::new();
+        for (key, value) in pairs {
+            let slot = match key.as_str() {
+                "sigma" => &mut form.sigma,
+                "bulge_mass" => &mut form.bulge_mass,
+                "luminosity" => &mut form.luminosity,
+                "band" => &mut form.band,
+                "mass" => &mut form.mass,
+                "distance" => &mut form.distance,
+                "resolution" => &mut form.resolution,
+                other => {
+                    unknown.push(other.chars().take(40).collect::<String>());
+                    continue;
+                }
+            };
+            value.trim().clone_into(slot);
+        }
+        if unknown.is_empty() {
+            Ok(form)
+        } else {
+            Err(format!(
+                "'{}' is not a parameter of this page (it accepts {PLACE_PARAMS}).",
+                unknown.join("', '")
+            ))
+        }
+    }
+
+    fn is_empty(&self) -> bool {
+        [
+            &self.sigma,
+            &self.bulge_mass,
+            &self.luminosity,
+            &self.mass,
+            &self.distance,
+            &self.resolution,
+        ]
+        .iter()
+        .all(|s| s.is_empty())
+    }
+}
+
+/// The values read from the form; a field that failed or was left empty is None.
+#[derive(Debug, Clone, Default)]
+struct Inputs {
+    sigma: Option<Entry>,
+    bulge_mass: Option<Entry>,
+    luminosity: Option<Entry>,
+    band: Option<String>,
+    mass: Option<Entry>,
+    distance: Option<LinearEntry>,
+    resolution: Option<LinearEntry>,
+}
+
+/// Reads a log-canonical entry; limits only for the black-hole mass.
+fn read_entry(text: &str, quantity: Quantity) -> Result<Option<Entry>, String> {
+    if text.is_empty() {
+        return Ok(None);
+    }
+    let entry = parse_entry(text, quantity, Scale::Auto).map_err(|e| e.to_string())?;
+    if entry.upper_limit && quantity != Quantity::BlackHoleMass {
+        return Err(format!(
+            "The {quantity} cannot be an upper limit here; only the black-hole mass can."
+        ));
+    }
+    Ok(Some(entry))
+}
+
+fn read_linear(text: &str, quantity: Quantity) -> Result<Option<LinearEntry>, String> {
+    if text.is_empty() {
+        return Ok(None);
+    }
+    parse_linear(text, quantity)
+        .map(Some)
+        .map_err(|e| e.to_string())
+}
+
+/// One field of the form.
+pub(crate) struct FieldView {
+    name: &'static str,
+    label: &'static str,
+    hint: &'static str,
+    value: String,
+    error: Option<String>,
+    read_as: Option<String>,
+}
+
+/// A band option.
+pub(crate) struct BandOption {
+    value: String,
+    selected: bool,
+}
+
+/// One relation's answer.
+pub(crate) struct PlaceRow {
+    label: String,
+    slug: String,
+    input: String,
+    predicted: String,
+    interval68: String,
+    interval95: String,
+    residual: Option<String>,
+    z: Option<String>,
+    verdict: Option<&'static str>,
+    prob_below: Option<String>,
+    refit: Option<String>,
+    problem: Option<String>,
+}
+
+/// The sphere-of-influence check.
+pub(crate) struct SoiView {
+    radius_pc: String,
+    theta_arcsec: String,
+    ratio: String,
+    verdict: &'static str,
+}
+
+/// `/place`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/place.html")]
+pub(crate) struct PlacePage {
+    nav: super::Nav,
+    fields: Vec<FieldView>,
+    band_options: Vec<BandOption>,
+    band_error: Option<String>,
+    asked: bool,
+    rows: Vec<PlaceRow>,
+    soi: Option<SoiView>,
+    soi_note: Option<String>,
+    soi_threshold: String,
+    chart_svg: String,
+    chart_label: String,
+    nothing_usable: bool,
+}
+
+/// A verdict for a z-score (thresholds: common practice, science notes §6).
+pub(crate) fn verdict(z: f64, upper_limit: bool) -> &'static str {
+    if upper_limit {
+        // A limit above the prediction says nothing against the relation.
+        if z <= -OUTLIER_Z {
+            "outlier (limit far below)"
+        } else if z <= -TENSION_Z {
+            "in tension (limit below)"
+        } else {
+            "consistent"
+        }
+    } else if z.abs() >= OUTLIER_Z {
+        "outlier"
+    } else if z.abs() >= TENSION_Z {
+        "in tension"
+    } else {
+        "consistent"
+    }
+}
+
+fn interval(bounds: (f64, f64)) -> String {
+    format!("{} to {}", fixed(bounds.0, 2), fixed(bounds.1, 2))
+}
+
+fn signed(value: f64, decimals: usize) -> String {
+    let text = fixed(value, decimals);
+    if value >= 0.0 && !text.starts_with('−') {
+        format!("+{text}")
+    } else {
+        text
+    }
+}
+
+/// Show the place form and, when values were given, where the object falls.
+pub(crate) async fn show_place(
+    State(state): State<AppState>,
+    nav: super::Nav,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<PlacePage> {
+    let Query(pairs) = query.map_err(|e| {
+        AppError::bad_request(format!("The address's parameters could not be read: {e}."))
+    })?;
+    let form = PlaceForm::parse(&pairs).map_err(AppError::bad_request)?;
+    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
+        .await?
+        .into_iter()
+        .filter(|b| Relation::valid_band(b))
+        .collect();
+
+    let mut inputs = Inputs::default();
+    let mut fields = Vec::new();
+    let mut field = |name, label, hint, text: &str, result: Result<Option<String>, String>| {
+        let (error, read_as) = match result {
+            Ok(read) => (None, read),
+            Err(e) => (Some(e), None),
+        };
+        fields.push(FieldView {
+            name,
+            label,
+            hint,
+            value: text.to_owned(),
+            error,
+            read_as,
+        });
+    };
+    let shown = |e: &Entry, unit: &str| format!("{} {unit}", e.display_log());
+    let r = read_entry(&form.sigma, Quantity::VelocityDispersion);
+    field(
+        "sigma",
+        "Velocity dispersion σ_e",
+        "km/s, e.g. 210 ± 10",
+        &form.sigma,
+        r.clone().map(|o| o.map(|e| shown(&e, "log10 km/s"))),
+    );
+    inputs.sigma = r.ok().flatten();
+    let r = read_entry(&form.bulge_mass, Quantity::BulgeMass);
+    field(
+        "bulge_mass",
+        "Bulge mass",
+        "M☉, e.g. 2e11 ± 10%",
+        &form.bulge_mass,
+        r.clone().map(|o| o.map(|e| shown(&e, "log10 M☉"))),
+    );
+    inputs.bulge_mass = r.ok().flatten();
+    let r = read_entry(&form.luminosity, Quantity::BulgeLuminosity);
+    field(
+        "luminosity",
+        "Bulge luminosity",
+        "L☉ of the band, e.g. 5e10 ± 1e10",
+        &form.luminosity,
+        r.clone().map(|o| o.map(|e| shown(&e, "log10 L☉"))),
+    );
+    inputs.luminosity = r.ok().flatten();
+    let r = read_entry(&form.mass, Quantity::BlackHoleMass);
+    field(
+        "mass",
+        "Black-hole mass or upper limit",
+        "M☉, e.g. 3.2e8 +0.5e8/-0.3e8 or <2e7",
+        &form.mass,
+        r.clone().map(|o| o.map(|e| shown(&e, "log10 M☉"))),
+    );
+    inputs.mass = r.ok().flatten();
+    let r = read_linear(&form.distance, Quantity::Distance);
+    field(
+        "distance",
+        "Distance",
+        "Mpc, e.g. 16.5 ± 0.8",
+        &form.distance,
+        r.clone().map(|o| {
+            o.map(|e| format!("{} Mpc", crate::units::round_to_uncertainty(e.value, e.err)))
+        }),
+    );
+    inputs.distance = r.ok().flatten();
+    let r = read_linear(&form.resolution, Quantity::Resolution);
+    field(
+        "resolution",
+        "Spatial resolution",
+        "arcsec, e.g. 0.1",
+        &form.resolution,
+        r.clone()
+            .map(|o| o.map(|e| format!("{}″", significant(e.value, 3)))),
+    );
+    inputs.resolution = r.ok().flatten();
+
+    let mut band_error = None;
+    if !form.band.is_empty() {
+        match bands.iter().find(|b| b.eq_ignore_ascii_case(&form.band)) {
+            Some(b) => inputs.band = Some(b.clone()),
+            None => {
+                band_error = Some(if bands.is_empty() {
+                    "The catalog has no bulge luminosities, so no band can be used.".to_owned()
+                } else {
+                    format!("The catalog has luminosities in {} only.", bands.join(", "))
+                });
+            }
+        }
+    }
+    if inputs.luminosity.is_some() && inputs.band.is_none() && band_error.is_none() {
+        band_error = Some("Choose the band of the luminosity.".to_owned());
+    }
+
+    let asked = !form.is_empty();
+    let mut rows = Vec::new();
+    let mut chart_svg = String::new();
+    let mut chart_label = String::new();
+    if asked {
+        for relation in Relation::all(&bands) {
+            let (x, x2) = match &relation {
+                Relation::MSigma => (inputs.sigma.as_ref(), None),
+                Relation::MBulge => (inputs.bulge_mass.as_ref(), None),
+                Relation::Luminosity(b) => (
+                    inputs
+                        .luminosity
+                        .as_ref()
+                        .filter(|_| inputs.band.as_ref() == Some(b)),
+                    None,
+                ),
+                Relation::SigmaBulgePlane => (
+                    inputs
+                        .sigma
+                        .as_ref()
+                        .filter(|_| inputs.bulge_mass.is_some()),
+                    inputs.bulge_mass.as_ref(),
+                ),
+            };
+            let Some(x) = x else { continue };
+            let row = place_on(&state, &relation, x, x2, inputs.mass.as_ref()).await?;
+            if chart_svg.is_empty() && row.1.is_some() {
+                chart_svg = row.1.clone().unwrap_or_default();
+                chart_label = relation.label();
+            }
+            rows.push(row.0);
+        }
+    }
+
+    // Sphere of influence: needs the mass, σ and the distance; the ratio needs the resolution.
+    let mut soi = None;
+    let mut soi_note = None;
+    if let (Some(m), Some(s), Some(d)) = (&inputs.mass, &inputs.sigma, &inputs.distance) {
+        match SphereOfInfluence::from_log_mbh(
+            m.log_value,
+            10f64.powf(s.log_value),
+            d.value,
+            inputs.resolution.as_ref().map(|r| r.value),
+            state.settings.soi_threshold,
+        ) {
+            Ok(sp) => {
+                soi = Some(SoiView {
+                    radius_pc: significant(sp.radius_pc, 3),
+                    theta_arcsec: significant(sp.theta_arcsec, 3),
+                    ratio: sp.ratio.map_or("—".into(), |r| significant(r, 2)),
+                    verdict: match sp.resolved {
+                        Some(true) => "resolved",
+                        Some(false) => "not resolved",
+                        None => "unknown (no resolution given)",
+                    },
+                });
+            }
+            Err(e) => soi_note = Some(e.to_string()),
+        }
+    } else if asked && inputs.mass.is_some() {
+        soi_note = Some(
+            "The sphere-of-influence check needs the velocity dispersion and the distance as well."
+                .to_owned(),
+        );
+    }
+
+    let nothing_usable = asked && rows.is_empty();
+    Ok(PlacePage {
+        nav,
+        fields,
+        band_options: bands
+            .iter()
+            .map(|b| BandOption {
+                value: b.clone(),
+                selected: inputs.band.as_ref() == Some(b),
+            })
+            .collect(),
+        band_error,
+        asked,
+        rows,
+        soi,
+        soi_note,
+        soi_threshold: significant(state.settings.soi_threshold, 2),
+        chart_svg,
+        chart_label,
+        nothing_usable,
+    })
+}
+
+/// The object against one relation; also the relation chart with the object highlighted.
+async fn place_on(
+    state: &AppState,
+    relation: &Relation,
+    x: &Entry,
+    x2: Option<&Entry>,
+    mass: Option<&Entry>,
+) -> AppResult<(PlaceRow, Option<String>)> {
+    let filter = SampleFilter::default();
+    let pivots = (relation.default_pivot(), relation.default_pivot2());
+    let outcome = fitted(
+        &state.pool,
+        &state.fits,
+        state.settings.soi_threshold,
+        relation,
+        Method::Structural,
+        &filter,
+        pivots,
+    )
+    .await?;
+    let input = match x2 {
+        Some(b) => format!(
+            "σ: {} log10 km/s; M_bulge: {} log10 M☉",
+            x.display_log(),
+            b.display_log()
+        ),
+        None => format!("{} {}", x.display_log(), relation.x_unit()),
+    };
+    let mut row = PlaceRow {
+        label: relation.label(),
+        slug: relation.slug(),
+        input,
+        predicted: "—".into(),
+        interval68: "—".into(),
+        interval95: "—".into(),
+        residual: None,
+        z: None,
+        verdict: None,
+        prob_below: None,
+        refit: None,
+        problem: None,
+    };
+    let fit = match &outcome.fit {
+        Ok(f) => f.clone(),
+        Err(e) => {
+            row.problem = Some(format!("No fit of this relation: {e}"));
+            return Ok((row, None));
+        }
+    };
+    let prediction: Result<Prediction, _> = match (fit.spec.shape, x2) {
+        (Shape::Plane, Some(b)) => {
+            fit::predict_plane(&fit, x.log_value, x.err_dex, b.log_value, b.err_dex)
+        }
+        _ => fit::predict(&fit, x.log_value, x.err_dex),
+    };
+    let prediction = match prediction {
+        Ok(p) => p,
+        Err(e) => {
+            row.problem = Some(e.to_string());
+            return Ok((row, None));
+        }
+    };
+    row.predicted = format!(
+        "{} ± {}",
+        fixed(prediction.log_mbh, 2),
+        fixed(prediction.sd_dex, 2)
+    );
+    row.interval68 = interval(prediction.interval68);
+    row.interval95 = interval(prediction.interval95);
+
+    if let Some(m) = mass {
+        let r = m.log_value - prediction.log_mbh;
+        let denom = prediction.sd_dex.hypot(m.err_dex);
+        let z = if denom > 0.0 { r / denom } else { 0.0 };
+        row.residual = Some(if m.upper_limit {
+            format!("< {}", signed(r, 2))
+        } else {
+            signed(r, 2)
+        });
+        row.z = Some(signed(z, 1));
+        row.verdict = Some(verdict(z, m.upper_limit));
+        if m.upper_limit && prediction.sd_dex > 0.0 {
+            // P(true < y_lim) = Φ(r / s_pred).
+            let p = 0.5
+                * statrs::function::erf::erfc(-r / (prediction.sd_dex * std::f64::consts::SQRT_2));
+            row.prob_below = Some(format!("{}%", significant(100.0 * p, 2)));
+        }
+        // The refit with the object included: how accepting it would move the relation.
+        let mut point = if m.upper_limit {
+            Point::limit(x.log_value, x.err_dex, m.log_value)
+        } else {
+            Point::new(x.log_value, x.err_dex, m.log_value, m.err_dex)
+        };
+        if let Some(b) = x2 {
+            point = point.with_x2(b.log_value, b.err_dex);
+        }
+        let mut points = outcome.sample.points.clone();
+        points.push(point.named("new object"));
+        let spec = fit.spec.clone();
+        let refit = tokio::task::spawn_blocking(move || fit::fit(&points, &spec))
+            .await
+            .map_err(anyhow::Error::from)?;
+        row.refit = Some(match refit {
+            Ok(new) => format!(
+                "α {} → {} ({}), β {} → {} ({}), ε {} → {} ({})",
+                fixed(fit.params.alpha, 3),
+                fixed(new.params.alpha, 3),
+                signed(new.params.alpha - fit.params.alpha, 3),
+                fixed(fit.params.beta, 2),
+                fixed(new.params.beta, 2),
+                signed(new.params.beta - fit.params.beta, 2),
+                fixed(fit.params.eps, 3),
+                fixed(new.params.eps, 3),
+                signed(new.params.eps - fit.params.eps, 3),
+            ),
+            Err(e) => format!("The refit failed: {e}"),
+        });
+    }
+
+    // The chart with the object highlighted (lines only; the plane has no single x axis).
+    let chart = if fit.spec.shape == Shape::Plane {
+        None
+    } else {
+        let mut chart = super::relations::relation_chart(
+            relation,
+            &outcome,
+            super::relations::Grouping::Morphology,
+        );
+        chart.highlight = Some(ChartPoint {
+            name: "this object".to_owned(),
+            href: None,
+            x: x.log_value,
+            x_err: x.err_dex,
+            y: mass.map_or(prediction.log_mbh, |m| m.log_value),
+            y_err_minus: mass.map_or(prediction.sd_dex, |m| m.err_minus_dex),
+            y_err_plus: mass.map_or(prediction.sd_dex, |m| m.err_plus_dex),
+            upper_limit: mass.is_some_and(|m| m.upper_limit),
+            group: 0,
+        });
+        relation_svg(&chart).ok()
+    };
+    Ok((row, chart))
+}
+
+/// The form value of a log entry for display, e.g. "8.30 ± 0.10" (used in tests).
+#[cfg(test)]
+fn shown_log(e: &Entry) -> String {
+    crate::units::format_log_with_errors(
+        e.log_value,
+        e.err_minus_dex,
+        e.err_plus_dex,
+        e.upper_limit,
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn verdicts_follow_the_stated_thresholds() {
+        // Common practice (science notes §6): |z| < 2 consistent, 2–3 tension, ≥ 3 outlier.
+        assert_eq!(verdict(1.99, false), "consistent");
+        assert_eq!(verdict(-2.0, false), "in tension");
+        assert_eq!(verdict(3.0, false), "outlier");
+        assert_eq!(verdict(5.0, true), "consistent");
+        assert_eq!(verdict(-2.5, true), "in tension (limit below)");
+    }
+
+    #[test]
+    fn the_form_keeps_what_was_typed_and_refuses_unknown_parameters() {
+        let pairs = vec![
+            ("sigma".to_owned(), " 200 ± 10 ".to_owned()),
+            ("mass".to_owned(), "<2e7".to_owned()),
+        ];
+        let form = PlaceForm::parse(&pairs).unwrap();
+        assert_eq!(form.sigma, "200 ± 10");
+        assert!(!form.is_empty());
+        assert!(PlaceForm::parse(&[("colour".to_owned(), "red".to_owned())]).is_err());
+        let e = read_entry("<2e7", Quantity::BlackHoleMass)
+            .unwrap()
+            .unwrap();
+        assert_eq!(shown_log(&e), "< 7.30");
+        assert!(read_entry("<200", Quantity::VelocityDispersion).is_err());
+        assert!(
+            read_entry("", Quantity::VelocityDispersion)
+                .unwrap()
+                .is_none()
+        );
+    }
+}
