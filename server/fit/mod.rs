@@ -59,8 +59,15 @@
 //!   covariance is the inverse Hessian of −ln L over all parameters, of which the relation
 //!   block is reported (nuisance parameters marginalised). When ε sits at 0 the reason says so
 //!   and ε's error is the one-sided profile bound Δ(−2 ln L) = 1.
-//! * Sums over objects use compensated (Neumaier) summation, so fits do not depend on row
-//!   order beyond rounding.
+//! * Sums over objects are plain within blocks of eight objects and compensated (Neumaier)
+//!   across blocks, and the logarithms ln V_i are taken once per block (as the logarithm of
+//!   the block's product), so fits do not depend on row order beyond rounding (~1e-15
+//!   relative). The straight-line conditional fit sweeps samples of ≥ 20,000 objects in
+//!   fixed chunks on the rayon pool and combines the chunks in order, so its result does not
+//!   depend on the number of threads.
+//! * Newton steps smaller than 10⁻⁷ standard errors are taken without a line search (the
+//!   change in −2 ln L is below the rounding noise of its sum), so the reported maximum is
+//!   the root of the gradient rather than a point where the line search gave up on noise.
 //! * A mixture component can collapse onto a few objects (τ_k → 0); the likelihood stays
 //!   finite because of the x errors, and the errors are then computed with that direction held
 //!   fixed (the reason says so). Prefer K = 1 unless the x distribution is clearly multimodal.
@@ -235,8 +242,10 @@ pub struct Likelihood<'a> {
 }
 
 enum LikelihoodInner {
-    Conditional(conditional::Model),
-    Structural(structural::Model),
+    /// The model (names, start, parameters) and its sampler form (the evaluations).
+    Conditional(conditional::Model, conditional::Sampler),
+    /// The model, and for the K = 1 line its sampler form (the evaluations).
+    Structural(structural::Model, Option<structural::LineSampler>),
 }
 
 impl<'a> Likelihood<'a> {
@@ -256,10 +265,14 @@ impl<'a> Likelihood<'a> {
     pub fn new(points: &'a [Point], spec: &FitSpec) -> Result<Self, FitError> {
         let inner = match spec.method {
             Method::Conditional => {
-                LikelihoodInner::Conditional(conditional::Model::new(points, spec)?)
+                let model = conditional::Model::new(points, spec)?;
+                let sampler = model.sampler();
+                LikelihoodInner::Conditional(model, sampler)
             }
             Method::Structural => {
-                LikelihoodInner::Structural(structural::Model::new(points, spec)?)
+                let model = structural::Model::new(points, spec)?;
+                let sampler = model.line_sampler();
+                LikelihoodInner::Structural(model, sampler)
             }
             Method::Fitexy | Method::Bces(_) => {
                 return Err(FitError::Unsupported {
@@ -284,8 +297,8 @@ impl<'a> Likelihood<'a> {
     /// Kelly 2007, ApJ 665, 1489, §4 (the parameters of the structural model).
     pub fn names(&self) -> &[&'static str] {
         match &self.inner {
-            LikelihoodInner::Conditional(m) => m.names(),
-            LikelihoodInner::Structural(m) => m.names(),
+            LikelihoodInner::Conditional(m, _) => m.names(),
+            LikelihoodInner::Structural(m, _) => m.names(),
         }
     }
 
@@ -320,8 +333,9 @@ impl<'a> Likelihood<'a> {
     /// Kelly 2007, ApJ 665, 1489; Gültekin et al. 2009, ApJ 698, 198.
     pub fn log_likelihood(&self, theta: &[f64]) -> f64 {
         match &self.inner {
-            LikelihoodInner::Conditional(m) => m.log_likelihood(theta),
-            LikelihoodInner::Structural(m) => m.log_likelihood(theta),
+            LikelihoodInner::Conditional(_, s) => s.log_likelihood(theta),
+            LikelihoodInner::Structural(_, Some(s)) => s.log_likelihood(theta),
+            LikelihoodInner::Structural(m, None) => m.log_likelihood(theta),
         }
     }
 
@@ -340,8 +354,8 @@ impl<'a> Likelihood<'a> {
     /// None (bookkeeping).
     pub fn start(&self, fit: &Fit) -> Vec<f64> {
         match &self.inner {
-            LikelihoodInner::Conditional(m) => m.start(fit),
-            LikelihoodInner::Structural(m) => m.start(fit),
+            LikelihoodInner::Conditional(m, _) => m.start(fit),
+            LikelihoodInner::Structural(m, _) => m.start(fit),
         }
     }
 
@@ -359,8 +373,8 @@ impl<'a> Likelihood<'a> {
     /// None (bookkeeping).
     pub fn params(&self, theta: &[f64]) -> Params {
         match &self.inner {
-            LikelihoodInner::Conditional(m) => m.params(theta),
-            LikelihoodInner::Structural(m) => m.params(theta),
+            LikelihoodInner::Conditional(m, _) => m.params(theta),
+            LikelihoodInner::Structural(m, _) => m.params(theta),
         }
     }
 }

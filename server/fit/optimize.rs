@@ -1105,20 +1105,57 @@ pub(crate) mod analytic {
         model.derivs(p, true, &[]).map_or(f64::INFINITY, |d| d.f)
     }
 
+    /// Converts derivatives over ε² (slot E holding s = ε²) into derivatives over ε, by the
+    /// chain rule.
+    ///
+    /// ```text
+    /// ∂f/∂ε = 2ε f_s,  ∂²f/∂x∂ε = 2ε f_xs,  ∂²f/∂ε² = 4ε² f_ss + 2 f_s
+    /// ```
+    fn squared_to_eps(d: &Derivs, s: f64, act: &[usize]) -> Derivs {
+        let e = s.sqrt();
+        let mut out = Derivs {
+            f: d.f,
+            g: d.g,
+            h: d.h,
+        };
+        if act.contains(&E) {
+            out.g[E] = 2.0 * e * d.g[E];
+            for &x in act {
+                if x != E {
+                    out.h[x][E] = 2.0 * e * d.h[x][E];
+                    out.h[E][x] = out.h[x][E];
+                }
+            }
+            out.h[E][E] = 4.0 * e * e * d.h[E][E] + 2.0 * d.g[E];
+        }
+        out
+    }
+
     /// Newton iterations over the slots in `free` (all slots `act` are differentiated).
-    /// Returns the iterations and whether a step would have taken ε² below 0 (then p[E] = 0),
-    /// or `None` if it did not converge.
+    /// Returns the iterations, whether a step would have taken ε² below 0 (then p[E] = 0),
+    /// and the derivatives at the final p when it was not moved after they were computed;
+    /// `None` if it did not converge.
+    ///
+    /// Each line-search trial is evaluated with its derivatives, so an accepted step (nearly
+    /// always the full Newton step) needs no second sweep over the data for the next
+    /// iteration.
     fn newton<O: Analytic>(
         model: &O,
         p: &mut [f64; NS],
         free: &[usize],
         evals: &mut u64,
-    ) -> Option<(u64, bool)> {
+    ) -> Option<(u64, bool, Option<Derivs>)> {
         let k = free.len();
         let e_pos = free.iter().position(|&s| s == E);
+        let mut carried: Option<Derivs> = None;
         for it in 0..tolerance::NEWTON_ML_MAX_ITERATIONS {
-            let d = model.derivs(p, true, free)?;
-            *evals += 1;
+            let d = match carried.take() {
+                Some(d) => d,
+                None => {
+                    *evals += 1;
+                    model.derivs(p, true, free)?
+                }
+            };
             let hm = DMatrix::from_fn(k, k, |a, b| d.h[free[a]][free[b]]);
             let gv = DVector::from_fn(k, |a, _| d.g[free[a]]);
             // Levenberg damping until the matrix is positive definite.
@@ -1142,7 +1179,7 @@ pub(crate) mod analytic {
             };
             let small = within(tolerance::NEWTON_STEP_REL);
             if small && mu <= 0.0 {
-                return Some((it, false));
+                return Some((it, false, Some(d)));
             }
             // Steps this small only chase the rounding noise of the sums (large samples).
             let tiny = mu <= 0.0 && within(tolerance::NEWTON_NOISE_STEP_REL);
@@ -1150,32 +1187,48 @@ pub(crate) mod analytic {
                 && p[E] - step[ep] < 0.0
             {
                 p[E] = 0.0;
-                return Some((it, true));
+                return Some((it, true, None));
+            }
+            let mut trial = *p;
+            if tiny {
+                // A step this small changes −2 ln L by less than the rounding noise of its
+                // sum, so a line search cannot judge it (and would backtrack on noise); the
+                // undamped Newton step is taken as is, and leaves an error of the order of its
+                // square.
+                for a in 0..k {
+                    trial[free[a]] = p[free[a]] - step[a];
+                }
+                *evals += 1;
+                if let Some(dt) = model.derivs(&trial, true, free) {
+                    *p = trial;
+                    return Some((it, false, Some(dt)));
+                }
             }
             let slope: f64 = (0..k).map(|a| -gv[a] * step[a]).sum();
             let noise = 8.0 * f64::EPSILON * d.f.abs().max(1.0);
             let mut lambda = 1.0;
-            let mut trial = *p;
             let mut moved = false;
             for _ in 0..50 {
                 for a in 0..k {
                     trial[free[a]] = p[free[a]] - lambda * step[a];
                 }
-                let ft = value(model, &trial, free);
+                let dt = model.derivs(&trial, true, free);
+                let ft = dt.as_ref().map_or(f64::INFINITY, |x| x.f);
                 *evals += 1;
                 if ft <= d.f + 1e-4 * lambda * slope + noise {
                     if tiny && ft >= d.f - noise {
                         *p = trial;
-                        return Some((it, false));
+                        return Some((it, false, dt));
                     }
                     moved = true;
+                    carried = dt;
                     break;
                 }
                 lambda *= 0.5;
             }
             if !moved {
                 // No descent within rounding noise: at the optimum if the step was small.
-                return small.then_some((it, false));
+                return small.then_some((it, false, Some(d)));
             }
             *p = trial;
         }
@@ -1197,11 +1250,14 @@ pub(crate) mod analytic {
         let mut iterations = 0;
         let mut boundary = false;
         let mut settled = false;
+        // Derivatives over all slots at the final p, when known.
+        let mut at_p: Option<Derivs> = None;
         for _ in 0..4 {
-            let (it, hit) = newton(model, &mut p, &slots, &mut evals)?;
+            let (it, hit, last) = newton(model, &mut p, &slots, &mut evals)?;
             iterations += it;
             if !hit && p[E] > 0.0 {
                 settled = true;
+                at_p = last;
                 break;
             }
             // On the boundary: optimise the rest at ε = 0 and check that ε wants to stay
@@ -1212,6 +1268,7 @@ pub(crate) mod analytic {
             if d.g[E] >= 0.0 {
                 boundary = true;
                 settled = true;
+                at_p = Some(d);
                 break;
             }
             p[E] = 1e-2 * model.mean_vy() + 1e-12;
@@ -1219,14 +1276,22 @@ pub(crate) mod analytic {
         if !settled {
             return None;
         }
-        let neg2 = value(model, &p, &slots);
+        let neg2 = at_p
+            .as_ref()
+            .map_or_else(|| value(model, &p, &slots), |d| d.f);
         let mut notes = Vec::new();
         let mut cov = None;
         if want_cov {
-            let mut pl = p;
-            pl[E] = p[E].sqrt();
             let free = if boundary { &no_eps } else { &slots };
-            let d = model.derivs(&pl, false, free)?;
+            let d = match &at_p {
+                // The same point: only ε² → ε changes, by the chain rule.
+                Some(d) => squared_to_eps(d, p[E], &slots),
+                None => {
+                    let mut pl = p;
+                    pl[E] = p[E].sqrt();
+                    model.derivs(&pl, false, free)?
+                }
+            };
             let k = free.len();
             // The Hessian of −ln L is half that of −2 ln L.
             let hm = DMatrix::from_fn(k, k, |a, b| 0.5 * d.h[free[a]][free[b]]);
