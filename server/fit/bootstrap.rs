@@ -130,7 +130,7 @@ pub fn bootstrap(
     // The full sample must be fittable: otherwise every failure below would be the input's
     // fault, and the caller should hear that error instead.
     let full = super::fit(points, spec)?;
-    let names = param_names(&full.params);
+    let names = full.params.names();
     let results: Vec<Result<Params, FitError>> = (0..n_boot as u64)
         .into_par_iter()
         .map(|i| super::fit(&resample(points, seed, i), spec).map(|f| f.params))
@@ -141,7 +141,7 @@ pub fn bootstrap(
     for r in results {
         match r {
             Ok(p) => {
-                for (col, v) in columns.iter_mut().zip(param_values(&p)) {
+                for (col, v) in columns.iter_mut().zip(p.values()) {
                     col.push(v);
                 }
             }
@@ -178,28 +178,6 @@ pub fn bootstrap(
         params,
         failures,
     })
-}
-
-/// Names of the parameters present in `p`, in reporting order.
-fn param_names(p: &Params) -> Vec<&'static str> {
-    let mut v = vec!["alpha", "beta"];
-    if p.beta2.is_some() {
-        v.push("beta2");
-    }
-    if p.gamma.is_some() {
-        v.push("gamma");
-    }
-    v.push("eps");
-    v
-}
-
-/// Values of the parameters present in `p`, in the order of [`param_names`].
-fn param_values(p: &Params) -> Vec<f64> {
-    let mut v = vec![p.alpha, p.beta];
-    v.extend(p.beta2);
-    v.extend(p.gamma);
-    v.push(p.eps);
-    v
 }
 
 #[cfg(test)]

@@ -417,6 +417,28 @@ pub struct Params {
 }
 
 impl Params {
+    /// Names of the parameters present, in reporting order: alpha, beta, [beta2], [gamma], eps.
+    pub fn names(&self) -> Vec<&'static str> {
+        let mut v = vec!["alpha", "beta"];
+        if self.beta2.is_some() {
+            v.push("beta2");
+        }
+        if self.gamma.is_some() {
+            v.push("gamma");
+        }
+        v.push("eps");
+        v
+    }
+
+    /// Values of the parameters present, in the order of [`Params::names`].
+    pub fn values(&self) -> Vec<f64> {
+        let mut v = vec![self.alpha, self.beta];
+        v.extend(self.beta2);
+        v.extend(self.gamma);
+        v.push(self.eps);
+        v
+    }
+
     /// Parameters of a straight line (no β2, no γ).
     pub fn line(alpha: f64, beta: f64, eps: f64) -> Self {
         Self {

@@ -217,27 +217,6 @@ struct RunResult {
     settings: serde_json::Value,
 }
 
-/// Names of the relation parameters present, in reporting order.
-fn param_names(p: &Params) -> Vec<&'static str> {
-    let mut v = vec!["alpha", "beta"];
-    if p.beta2.is_some() {
-        v.push("beta2");
-    }
-    if p.gamma.is_some() {
-        v.push("gamma");
-    }
-    v.push("eps");
-    v
-}
-
-fn param_values(p: &Params) -> Vec<f64> {
-    let mut v = vec![p.alpha, p.beta];
-    v.extend(p.beta2);
-    v.extend(p.gamma);
-    v.push(p.eps);
-    v
-}
-
 fn compute(
     outcome: &FitOutcome,
     kind: RunKind,
@@ -249,7 +228,7 @@ fn compute(
     let points = &outcome.sample.points;
     match kind {
         RunKind::Bootstrap => {
-            let names = param_names(&full.params);
+            let names = full.params.names();
             let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(size); names.len()];
             let mut failed = 0usize;
             let all: Vec<u64> = (0..size as u64).collect();
@@ -264,7 +243,7 @@ fn compute(
                 for r in results {
                     match r {
                         Ok(p) => {
-                            for (col, v) in columns.iter_mut().zip(param_values(&p)) {
+                            for (col, v) in columns.iter_mut().zip(p.values()) {
                                 col.push(v);
                             }
                         }
@@ -301,7 +280,7 @@ fn compute(
             let cfg = EnsembleConfig::new(POSTERIOR_WALKERS, size, size / 5, RUN_SEED)?;
             let (post, _) = fit::posterior::posterior_from_fit(points, &spec, &full, &cfg)?;
             progress.done.store(size, Ordering::Relaxed);
-            let wanted = param_names(&full.params);
+            let wanted = full.params.names();
             let params = post
                 .params
                 .iter()
