@@ -32,6 +32,9 @@ pub struct FitKey {
     pub filter: String,
     /// Bits of the pivot and second pivot (log10 units), so equal floats give equal keys.
     pub pivots: (u64, u64),
+    /// The galaxy left out of the sample (a galaxy's page shows where it falls against the
+    /// others), or None for the whole sample.
+    pub left_out: Option<i64>,
 }
 
 impl FitKey {
@@ -50,6 +53,16 @@ impl FitKey {
             method: method.as_str(),
             filter: filter.canonical(),
             pivots: (pivot.to_bits(), pivot2.to_bits()),
+            left_out: None,
+        }
+    }
+
+    /// The same fit with one galaxy left out of its sample.
+    #[must_use]
+    pub fn leaving_out(&self, galaxy_id: i64) -> FitKey {
+        FitKey {
+            left_out: Some(galaxy_id),
+            ..self.clone()
         }
     }
 }
@@ -239,6 +252,57 @@ pub async fn fitted(
         .await
 }
 
+/// The fit of `sample` with the galaxy `galaxy_id` left out, and that galaxy's index in
+/// `sample`; None when the galaxy is not in the sample (it lacks a value the relation needs,
+/// or the filter excludes it).
+///
+/// `full_key` is the key of the whole sample's fit (the sample must have been built at its
+/// catalog version, relation, filter and pivots); the left-out fit is cached under
+/// [`FitKey::leaving_out`], so a galaxy page visited again does not refit. The outcome's
+/// sample holds the other galaxies only.
+///
+/// # Errors
+/// When the fitting task fails; a fit that cannot be made (too few points, ...) is an `Ok`
+/// outcome whose `fit` says why.
+pub async fn fitted_leaving_out(
+    cache: &FitCache,
+    full_key: &FitKey,
+    relation: &Relation,
+    method: Method,
+    sample: &Sample,
+    galaxy_id: i64,
+) -> anyhow::Result<Option<(Arc<FitOutcome>, usize)>> {
+    let Some(index) = sample.members.iter().position(|m| m.galaxy_id == galaxy_id) else {
+        return Ok(None);
+    };
+    let key = full_key.leaving_out(galaxy_id);
+    if let Some(hit) = cache.get(&key) {
+        return Ok(Some((hit, index)));
+    }
+    let mut others = sample.clone();
+    others.points.remove(index);
+    others.members.remove(index);
+    let pivots = (
+        f64::from_bits(full_key.pivots.0),
+        f64::from_bits(full_key.pivots.1),
+    );
+    let spec = spec_for(relation, method, pivots.0, pivots.1);
+    let compute_key = key.clone();
+    let outcome = cache
+        .get_or_compute(&key, move || {
+            let fit = spec.clone().and_then(|s| fit::fit(&others.points, &s));
+            FitOutcome {
+                key: compute_key,
+                sample: others,
+                fit,
+                spec,
+                fitted_at: now_rfc3339(),
+            }
+        })
+        .await?;
+    Ok(Some((outcome, index)))
+}
+
 pub(super) fn now_rfc3339() -> String {
     time::OffsetDateTime::now_utc()
         .replace_nanosecond(0)
@@ -306,6 +370,59 @@ mod tests {
         assert!(!Arc::ptr_eq(&a, &c));
         assert_eq!(runs.load(Ordering::SeqCst), 2);
         assert!(cache.get(&key1).is_none());
+        assert_eq!(cache.len(), 1);
+    }
+
+    fn member(galaxy_id: i64) -> super::super::Member {
+        super::super::Member {
+            galaxy_id,
+            name: format!("Galaxy {galaxy_id}"),
+            slug: format!("galaxy-{galaxy_id}"),
+            morphology: "elliptical".to_owned(),
+            bulge_kind: "classical".to_owned(),
+            centre_kind: "core".to_owned(),
+            mass_method: "stellar_dynamics".to_owned(),
+            resolved: None,
+            log_distance: 1.2,
+            log_sigma: None,
+            log_mbulge: None,
+        }
+    }
+
+    #[tokio::test]
+    async fn a_galaxy_is_left_out_of_its_own_fit_and_the_fit_is_kept() {
+        let sample = Sample {
+            points: (0..4)
+                .map(|i| crate::fit::Point::new(2.0 + 0.1 * f64::from(i), 0.02, 8.0, 0.1))
+                .collect(),
+            members: (10..14).map(member).collect(),
+            ..Sample::default()
+        };
+        let cache = FitCache::default();
+        let filter = SampleFilter::default();
+        let full = FitKey::new(3, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        let leave = |id| {
+            fitted_leaving_out(
+                &cache,
+                &full,
+                &Relation::MSigma,
+                Method::Structural,
+                &sample,
+                id,
+            )
+        };
+        assert!(leave(99).await.unwrap().is_none(), "not in the sample");
+        let (outcome, index) = leave(12).await.unwrap().unwrap();
+        assert_eq!(index, 2);
+        assert_eq!(outcome.key.left_out, Some(12));
+        assert_ne!(outcome.key, full);
+        let ids: Vec<i64> = outcome.sample.members.iter().map(|m| m.galaxy_id).collect();
+        assert_eq!(ids, [10, 11, 13]);
+        assert_eq!(outcome.sample.points.len(), 3);
+        assert!((outcome.sample.points[2].x - 2.3).abs() < 1e-12);
+        // A second visit takes the cached fit.
+        let (again, _) = leave(12).await.unwrap().unwrap();
+        assert!(Arc::ptr_eq(&outcome, &again));
         assert_eq!(cache.len(), 1);
     }
 

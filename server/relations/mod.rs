@@ -21,7 +21,10 @@ mod sample;
 
 use std::fmt;
 
-pub use cache::{FitCache, FitKey, FitOutcome, InfluenceResult, fitted, load_sample, spec_for};
+pub use cache::{
+    FitCache, FitKey, FitOutcome, InfluenceResult, fitted, fitted_leaving_out, load_sample,
+    spec_for,
+};
 pub use filter::{FILTER_PARAMS, SampleFilter, SigmaChoice, SoiChoice};
 pub use runs::{
     BOOTSTRAP_CHUNK, DEFAULT_REPLICATES, DEFAULT_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE,

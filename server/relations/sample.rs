@@ -96,6 +96,8 @@ pub fn sphere_of_influence(
 /// One galaxy of a sample, with what pages show and group by.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Member {
+    /// Galaxy key.
+    pub galaxy_id: i64,
     /// Galaxy name.
     pub name: String,
     /// URL form of the name.
@@ -280,6 +282,7 @@ pub fn build_sample(
         }
         sample.points.push(point);
         sample.members.push(Member {
+            galaxy_id: row.galaxy_id,
             name: row.name.clone(),
             slug: row.slug.clone(),
             morphology: row.morphology.clone(),

@@ -599,6 +599,12 @@ pub(crate) struct GalaxyShowPage {
     distance_method: &'static str,
     measurements: Vec<MeasurementView>,
     soi_threshold: String,
+    /// The galaxy against each relation it has values for, fitted without it.
+    rows: Vec<super::place::PlaceRow>,
+    /// The relation charts with the galaxy highlighted.
+    charts: Vec<super::place::PlaceChart>,
+    /// Why no relation applies, when none does.
+    no_relation: Option<String>,
 }
 
 /// Show one galaxy with every measurement.
@@ -612,6 +618,7 @@ pub(crate) async fn show_galaxy(
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
     let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
+    let left_out = placements_left_out(&state, galaxy.galaxy_id).await?;
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()
@@ -714,7 +721,103 @@ pub(crate) async fn show_galaxy(
             .map_or("other", DistanceMethod::label),
         measurements: views,
         soi_threshold: significant(threshold, 2),
+        rows: left_out.rows,
+        charts: left_out.charts,
+        no_relation: left_out.no_relation,
     })
+}
+
+/// The galaxy page's placement section.
+struct LeftOut {
+    rows: Vec<super::place::PlaceRow>,
+    charts: Vec<super::place::PlaceChart>,
+    no_relation: Option<String>,
+}
+
+/// The galaxy against every relation it has values for, each fitted (structural, default
+/// sample and pivots, as on `/relations`) without the galaxy, so its own point cannot pull
+/// the relation towards itself. The left-out fits are cached per catalog version.
+async fn placements_left_out(state: &AppState, galaxy_id: i64) -> AppResult<LeftOut> {
+    use super::place::{Subject, SubjectMass, input_text, place_against};
+    use crate::catalog::relation_rows;
+    use crate::fit::Method;
+    use crate::relations::{FitKey, Relation, SampleFilter, build_sample, fitted_leaving_out};
+
+    let version = crate::catalog::history::current_version(&state.pool).await?;
+    let rows = relation_rows::relation_rows(&state.pool).await?;
+    let lums = relation_rows::luminosity_rows(&state.pool).await?;
+    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
+        .await?
+        .into_iter()
+        .filter(|b| Relation::valid_band(b))
+        .collect();
+    let filter = SampleFilter::default();
+    let method = Method::Structural;
+    let mut out = LeftOut {
+        rows: Vec::new(),
+        charts: Vec::new(),
+        no_relation: None,
+    };
+    for relation in Relation::all(&bands) {
+        let pivots = (relation.default_pivot(), relation.default_pivot2());
+        let sample = build_sample(
+            &rows,
+            &lums,
+            &relation,
+            &filter,
+            state.settings.soi_threshold,
+        );
+        let full_key = FitKey::new(version, &relation, method, &filter, pivots.0, pivots.1);
+        let Some((outcome, index)) = fitted_leaving_out(
+            &state.fits,
+            &full_key,
+            &relation,
+            method,
+            &sample,
+            galaxy_id,
+        )
+        .await?
+        else {
+            continue;
+        };
+        let (p, m) = (&sample.points[index], &sample.members[index]);
+        let shown = |v: f64, e: f64| log_with_errors(v, e, e, false);
+        let x2_text = p.x2.map(|b| shown(b, p.x2_err));
+        let subject = Subject {
+            name: m.name.clone(),
+            href: Some(format!("/galaxies/{}", m.slug)),
+            x: (p.x, p.x_err),
+            x2: p.x2.map(|b| (b, p.x2_err)),
+            mass: Some(SubjectMass {
+                log_mbh: p.y,
+                err_minus_dex: p.y_err,
+                err_plus_dex: p.y_err,
+                err_dex: p.y_err,
+                xy_cov: p.xy_cov,
+                upper_limit: p.upper_limit,
+            }),
+            input: input_text(&relation, &shown(p.x, p.x_err), x2_text.as_deref()),
+        };
+        let placed = place_against(&relation, &outcome, &subject);
+        out.rows.push(placed.row);
+        out.charts.extend(placed.chart);
+    }
+    if out.rows.is_empty() {
+        let row = rows.iter().find(|r| r.galaxy_id == galaxy_id);
+        let why = match row {
+            Some(r) if r.log_mbh.is_none() => {
+                "it has no adopted black-hole mass or upper limit".to_owned()
+            }
+            Some(r) if r.sigma_definition.as_deref() == Some("sigma_c") => {
+                "its adopted σ is a central σ_c, which the default fits (σ_e) leave out, and it has no bulge mass or luminosity".to_owned()
+            }
+            _ => "it has no adopted σ_e, bulge mass or bulge luminosity".to_owned(),
+        };
+        out.no_relation = Some(format!(
+            "No relation applies to this galaxy: {why}. The relations need a black-hole mass (or upper limit) with a velocity dispersion σ_e, a bulge mass, or a bulge luminosity."
+        ));
+    }
+    Ok(out)
 }
 
 fn method_label(quantity: &str, method: &str) -> String {

@@ -4,12 +4,14 @@
 //! nothing is stored. For each usable relation (structural fit of the whole catalog, from the
 //! fit cache) the page gives the predicted log M_BH with 68 % and 95 % predictive intervals,
 //! and, with a mass, its residual, z-score and verdict, and how a refit with the object would
-//! move α, β and ε.
+//! move α, β and ε; and each relation's chart with the object highlighted (the plane drawn as
+//! log M_BH − γ (x2 − x02) against σ, as on its relation page). [`place_against`] is shared
+//! with the galaxy page, which places a catalog galaxy against fits made without it.
 //!
 //! ```text
 //! ŷ = α + β (x − x0) [+ γ (x2 − x02)]
 //! s_pred² = ε² + gᵀ C g + β² σ_x² [+ γ² σ_x2²]                (fit::predict)
-//! r = y − ŷ,  z = r / √(s_pred² + σ_y²)
+//! r = y − ŷ,  z = r / √(s_pred² + σ_y² − 2 β σ_xy)            (σ_xy = 0 for typed values)
 //! limit: P(true log M_BH < y_lim) = Φ((y_lim − ŷ) / s_pred)
 //! verdict: |z| < 2 consistent, 2 ≤ |z| < 3 in tension, |z| ≥ 3 outlier (common practice,
 //! science notes §6)
@@ -26,7 +28,7 @@ use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, relation_svg};
 use crate::error::{AppError, AppResult};
 use crate::fit::{self, Method, Point, Prediction, Shape};
-use crate::relations::{Relation, SampleFilter, fitted};
+use crate::relations::{FitOutcome, Relation, SampleFilter, fitted};
 use crate::startup::AppState;
 use crate::units::{Entry, LinearEntry, Quantity, Scale, parse_entry, parse_linear};
 
@@ -146,18 +148,18 @@ pub(crate) struct BandOption {
 
 /// One relation's answer.
 pub(crate) struct PlaceRow {
-    label: String,
-    slug: String,
-    input: String,
-    predicted: String,
-    interval68: String,
-    interval95: String,
-    residual: Option<String>,
-    z: Option<String>,
-    verdict: Option<&'static str>,
-    prob_below: Option<String>,
-    refit: Option<String>,
-    problem: Option<String>,
+    pub(crate) label: String,
+    pub(crate) slug: String,
+    pub(crate) input: String,
+    pub(crate) predicted: String,
+    pub(crate) interval68: String,
+    pub(crate) interval95: String,
+    pub(crate) residual: Option<String>,
+    pub(crate) z: Option<String>,
+    pub(crate) verdict: Option<&'static str>,
+    pub(crate) prob_below: Option<String>,
+    pub(crate) refit: Option<String>,
+    pub(crate) problem: Option<String>,
 }
 
 /// The sphere-of-influence check.
@@ -181,8 +183,7 @@ pub(crate) struct PlacePage {
     soi: Option<SoiView>,
     soi_note: Option<String>,
     soi_threshold: String,
-    chart_svg: String,
-    chart_label: String,
+    charts: Vec<PlaceChart>,
     nothing_usable: bool,
 }
 
@@ -329,10 +330,10 @@ pub(crate) async fn show_place(
 
     let asked = !form.is_empty();
     let mut rows = Vec::new();
-    let mut chart_svg = String::new();
-    let mut chart_label = String::new();
+    let mut charts = Vec::new();
+    let mut placements = tokio::task::JoinSet::new();
     if asked {
-        for relation in Relation::all(&bands) {
+        for (index, relation) in Relation::all(&bands).into_iter().enumerate() {
             let (x, x2) = match &relation {
                 Relation::MSigma => (inputs.sigma.as_ref(), None),
                 Relation::MBulge => (inputs.bulge_mass.as_ref(), None),
@@ -352,13 +353,25 @@ pub(crate) async fn show_place(
                 ),
             };
             let Some(x) = x else { continue };
-            let row = place_on(&state, &relation, x, x2, inputs.mass.as_ref()).await?;
-            if chart_svg.is_empty() && row.1.is_some() {
-                chart_svg = row.1.clone().unwrap_or_default();
-                chart_label = relation.label();
-            }
-            rows.push(row.0);
+            // Each relation (its refit with the object, its chart) on its own task, so the
+            // relations are placed side by side on the cores; shown in the relations' order.
+            let state = state.clone();
+            let (x, x2, mass) = (x.clone(), x2.cloned(), inputs.mass.clone());
+            placements.spawn(async move {
+                let placed = place_on(&state, &relation, &x, x2.as_ref(), mass.as_ref()).await;
+                (index, placed)
+            });
         }
+    }
+    let mut done = Vec::new();
+    while let Some(joined) = placements.join_next().await {
+        let (index, placed) = joined.map_err(anyhow::Error::from)?;
+        done.push((index, placed?));
+    }
+    done.sort_by_key(|(index, _)| *index);
+    for (_, placed) in done {
+        rows.push(placed.row);
+        charts.extend(placed.chart);
     }
 
     // Sphere of influence: needs the mass, σ and the distance; the ratio needs the resolution.
@@ -410,44 +423,101 @@ pub(crate) async fn show_place(
         soi,
         soi_note,
         soi_threshold: significant(state.settings.soi_threshold, 2),
-        chart_svg,
-        chart_label,
+        charts,
         nothing_usable,
     })
 }
 
-/// The object against one relation; also the relation chart with the object highlighted.
-async fn place_on(
-    state: &AppState,
+/// The object being placed, in the fit's units (log10 values, errors in dex).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Subject {
+    /// Legend text of the highlighted marker, e.g. "this object" or the galaxy's name.
+    pub(crate) name: String,
+    /// Its page, if it has one.
+    pub(crate) href: Option<String>,
+    /// The relation's host property x and its 1σ error.
+    pub(crate) x: (f64, f64),
+    /// The second host property (bulge mass, for the plane) and its error.
+    pub(crate) x2: Option<(f64, f64)>,
+    /// The black-hole mass, if known.
+    pub(crate) mass: Option<SubjectMass>,
+    /// What the row shows as the host value used.
+    pub(crate) input: String,
+}
+
+/// A black-hole mass (or upper limit) of the object being placed.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct SubjectMass {
+    /// log10 M☉ (for a limit, the limit).
+    pub(crate) log_mbh: f64,
+    /// Lower and upper 1σ errors for the chart, dex.
+    pub(crate) err_minus_dex: f64,
+    /// Upper 1σ error, dex.
+    pub(crate) err_plus_dex: f64,
+    /// Symmetric error used in z, dex.
+    pub(crate) err_dex: f64,
+    /// Covariance of the mass's and x's errors (a shared distance), dex².
+    pub(crate) xy_cov: f64,
+    /// Whether the mass is an upper limit.
+    pub(crate) upper_limit: bool,
+}
+
+impl SubjectMass {
+    fn from_entry(m: &Entry) -> SubjectMass {
+        SubjectMass {
+            log_mbh: m.log_value,
+            err_minus_dex: m.err_minus_dex,
+            err_plus_dex: m.err_plus_dex,
+            err_dex: m.err_dex,
+            xy_cov: 0.0,
+            upper_limit: m.upper_limit,
+        }
+    }
+}
+
+/// The host values a row says it used: x, or σ and M_bulge for the plane.
+pub(crate) fn input_text(relation: &Relation, x: &str, x2: Option<&str>) -> String {
+    match x2 {
+        Some(b) => format!("σ: {x} log10 km/s; M_bulge: {b} log10 M☉"),
+        None => format!("{x} {}", relation.x_unit()),
+    }
+}
+
+/// A relation chart with the object highlighted.
+pub(crate) struct PlaceChart {
+    pub(crate) label: String,
+    pub(crate) slug: String,
+    pub(crate) svg: String,
+}
+
+/// One relation's answer for an object, and its chart.
+pub(crate) struct Placed {
+    /// The table row.
+    pub(crate) row: PlaceRow,
+    /// The relation chart with the object highlighted, when it could be drawn.
+    pub(crate) chart: Option<PlaceChart>,
+}
+
+/// Where `subject` falls against the fit in `outcome`: prediction, residual, z, verdict,
+/// P(below a limit), and the relation chart with the subject highlighted (for the plane, the
+/// chart's y is log M_BH − γ (x2 − x02), as on the relation page).
+///
+/// ```text
+/// ŷ, s_pred                      fit::predict / fit::predict_plane
+/// r = y − ŷ
+/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (science notes §3.2)
+/// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
+/// ```
+/// dex throughout; verdict thresholds in [`verdict`].
+pub(crate) fn place_against(
     relation: &Relation,
-    x: &Entry,
-    x2: Option<&Entry>,
-    mass: Option<&Entry>,
-) -> AppResult<(PlaceRow, Option<String>)> {
-    let filter = SampleFilter::default();
-    let pivots = (relation.default_pivot(), relation.default_pivot2());
-    let outcome = fitted(
-        &state.pool,
-        &state.fits,
-        state.settings.soi_threshold,
-        relation,
-        Method::Structural,
-        &filter,
-        pivots,
-    )
-    .await?;
-    let input = match x2 {
-        Some(b) => format!(
-            "σ: {} log10 km/s; M_bulge: {} log10 M☉",
-            x.display_log(),
-            b.display_log()
-        ),
-        None => format!("{} {}", x.display_log(), relation.x_unit()),
-    };
+    outcome: &FitOutcome,
+    subject: &Subject,
+) -> Placed {
     let mut row = PlaceRow {
         label: relation.label(),
         slug: relation.slug(),
-        input,
+        input: subject.input.clone(),
         predicted: "—".into(),
         interval68: "—".into(),
         interval95: "—".into(),
@@ -459,23 +529,22 @@ async fn place_on(
         problem: None,
     };
     let fit = match &outcome.fit {
-        Ok(f) => f.clone(),
+        Ok(f) => f,
         Err(e) => {
             row.problem = Some(format!("No fit of this relation: {e}"));
-            return Ok((row, None));
+            return Placed { row, chart: None };
         }
     };
-    let prediction: Result<Prediction, _> = match (fit.spec.shape, x2) {
-        (Shape::Plane, Some(b)) => {
-            fit::predict_plane(&fit, x.log_value, x.err_dex, b.log_value, b.err_dex)
-        }
-        _ => fit::predict(&fit, x.log_value, x.err_dex),
+    let (x, x_err) = subject.x;
+    let prediction: Result<Prediction, _> = match (fit.spec.shape, subject.x2) {
+        (Shape::Plane, Some((b, b_err))) => fit::predict_plane(fit, x, x_err, b, b_err),
+        _ => fit::predict(fit, x, x_err),
     };
     let prediction = match prediction {
         Ok(p) => p,
         Err(e) => {
             row.problem = Some(e.to_string());
-            return Ok((row, None));
+            return Placed { row, chart: None };
         }
     };
     row.predicted = format!(
@@ -486,10 +555,10 @@ async fn place_on(
     row.interval68 = interval(prediction.interval68);
     row.interval95 = interval(prediction.interval95);
 
-    if let Some(m) = mass {
-        let r = m.log_value - prediction.log_mbh;
-        let denom = prediction.sd_dex.hypot(m.err_dex);
-        let z = if denom > 0.0 { r / denom } else { 0.0 };
+    if let Some(m) = subject.mass {
+        let r = m.log_mbh - prediction.log_mbh;
+        let var = prediction.sd_dex.powi(2) + m.err_dex.powi(2) - 2.0 * fit.params.beta * m.xy_cov;
+        let z = if var > 0.0 { r / var.sqrt() } else { 0.0 };
         row.residual = Some(if m.upper_limit {
             format!("< {}", signed(r, 2))
         } else {
@@ -503,61 +572,103 @@ async fn place_on(
                 * statrs::function::erf::erfc(-r / (prediction.sd_dex * std::f64::consts::SQRT_2));
             row.prob_below = Some(format!("{}%", significant(100.0 * p, 2)));
         }
-        // The refit with the object included: how accepting it would move the relation.
-        let mut point = if m.upper_limit {
-            Point::limit(x.log_value, x.err_dex, m.log_value)
-        } else {
-            Point::new(x.log_value, x.err_dex, m.log_value, m.err_dex)
-        };
-        if let Some(b) = x2 {
-            point = point.with_x2(b.log_value, b.err_dex);
-        }
-        let mut points = outcome.sample.points.clone();
-        points.push(point.named("new object"));
-        let spec = fit.spec.clone();
-        let refit = tokio::task::spawn_blocking(move || fit::fit(&points, &spec))
-            .await
-            .map_err(anyhow::Error::from)?;
-        row.refit = Some(match refit {
-            Ok(new) => format!(
-                "α {} → {} ({}), β {} → {} ({}), ε {} → {} ({})",
-                fixed(fit.params.alpha, 3),
-                fixed(new.params.alpha, 3),
-                signed(new.params.alpha - fit.params.alpha, 3),
-                fixed(fit.params.beta, 2),
-                fixed(new.params.beta, 2),
-                signed(new.params.beta - fit.params.beta, 2),
-                fixed(fit.params.eps, 3),
-                fixed(new.params.eps, 3),
-                signed(new.params.eps - fit.params.eps, 3),
-            ),
-            Err(e) => format!("The refit failed: {e}"),
-        });
     }
 
-    // The chart with the object highlighted (lines only; the plane has no single x axis).
-    let chart = if fit.spec.shape == Shape::Plane {
-        None
-    } else {
-        let mut chart = super::relations::relation_chart(
-            relation,
-            &outcome,
-            super::relations::Grouping::Morphology,
-        );
-        chart.highlight = Some(ChartPoint {
-            name: "this object".to_owned(),
-            href: None,
-            x: x.log_value,
-            x_err: x.err_dex,
-            y: mass.map_or(prediction.log_mbh, |m| m.log_value),
-            y_err_minus: mass.map_or(prediction.sd_dex, |m| m.err_minus_dex),
-            y_err_plus: mass.map_or(prediction.sd_dex, |m| m.err_plus_dex),
-            upper_limit: mass.is_some_and(|m| m.upper_limit),
-            group: 0,
-        });
-        relation_svg(&chart).ok()
+    let mut chart =
+        super::relations::relation_chart(relation, outcome, super::relations::Grouping::Morphology);
+    let mut at = Point::new(
+        x,
+        x_err,
+        subject.mass.map_or(prediction.log_mbh, |m| m.log_mbh),
+        0.0,
+    );
+    if let Some((b, b_err)) = subject.x2 {
+        at = at.with_x2(b, b_err);
+    }
+    chart.highlight = Some(ChartPoint {
+        name: subject.name.clone(),
+        href: subject.href.clone(),
+        x,
+        x_err,
+        y: super::relations::chart_y(Some(fit), &at),
+        y_err_minus: subject.mass.map_or(prediction.sd_dex, |m| m.err_minus_dex),
+        y_err_plus: subject.mass.map_or(prediction.sd_dex, |m| m.err_plus_dex),
+        upper_limit: subject.mass.is_some_and(|m| m.upper_limit),
+        group: 0,
+    });
+    let chart = relation_svg(&chart).ok().map(|svg| PlaceChart {
+        label: relation.label(),
+        slug: relation.slug(),
+        svg,
+    });
+    Placed { row, chart }
+}
+
+/// The object against one relation (the structural fit of the whole catalog), with how a
+/// refit with the object would move the relation.
+async fn place_on(
+    state: &AppState,
+    relation: &Relation,
+    x: &Entry,
+    x2: Option<&Entry>,
+    mass: Option<&Entry>,
+) -> AppResult<Placed> {
+    let filter = SampleFilter::default();
+    let pivots = (relation.default_pivot(), relation.default_pivot2());
+    let outcome = fitted(
+        &state.pool,
+        &state.fits,
+        state.settings.soi_threshold,
+        relation,
+        Method::Structural,
+        &filter,
+        pivots,
+    )
+    .await?;
+    let x2_text = x2.map(Entry::display_log);
+    let subject = Subject {
+        name: "this object".to_owned(),
+        href: None,
+        x: (x.log_value, x.err_dex),
+        x2: x2.map(|b| (b.log_value, b.err_dex)),
+        mass: mass.map(SubjectMass::from_entry),
+        input: input_text(relation, &x.display_log(), x2_text.as_deref()),
     };
-    Ok((row, chart))
+    let mut placed = place_against(relation, &outcome, &subject);
+    let (Some(m), Ok(fit)) = (mass, &outcome.fit) else {
+        return Ok(placed);
+    };
+    // The refit with the object included: how accepting it would move the relation.
+    let mut point = if m.upper_limit {
+        Point::limit(x.log_value, x.err_dex, m.log_value)
+    } else {
+        Point::new(x.log_value, x.err_dex, m.log_value, m.err_dex)
+    };
+    if let Some(b) = x2 {
+        point = point.with_x2(b.log_value, b.err_dex);
+    }
+    let mut points = outcome.sample.points.clone();
+    points.push(point.named("new object"));
+    let spec = fit.spec.clone();
+    let refit = tokio::task::spawn_blocking(move || fit::fit(&points, &spec))
+        .await
+        .map_err(anyhow::Error::from)?;
+    placed.row.refit = Some(match refit {
+        Ok(new) => format!(
+            "α {} → {} ({}), β {} → {} ({}), ε {} → {} ({})",
+            fixed(fit.params.alpha, 3),
+            fixed(new.params.alpha, 3),
+            signed(new.params.alpha - fit.params.alpha, 3),
+            fixed(fit.params.beta, 2),
+            fixed(new.params.beta, 2),
+            signed(new.params.beta - fit.params.beta, 2),
+            fixed(fit.params.eps, 3),
+            fixed(new.params.eps, 3),
+            signed(new.params.eps - fit.params.eps, 3),
+        ),
+        Err(e) => format!("The refit failed: {e}"),
+    });
+    Ok(placed)
 }
 
 /// The form value of a log entry for display, e.g. "8.30 ± 0.10" (used in tests).

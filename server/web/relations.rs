@@ -829,7 +829,7 @@ pub(crate) async fn start_run(
 
 /// The relation's y at a point of the sample (for the plane: projected to x2 = x02, i.e.
 /// y − γ (x2 − x02), so the points and the line share one chart).
-fn chart_y(fit: Option<&Fit>, p: &Point) -> f64 {
+pub(super) fn chart_y(fit: Option<&Fit>, p: &Point) -> f64 {
     match fit {
         Some(f) if f.spec.shape == Shape::Plane => {
             p.y - f.params.gamma.unwrap_or(0.0) * (p.x2.unwrap_or(f.spec.pivot2) - f.spec.pivot2)

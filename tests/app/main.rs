@@ -5,6 +5,7 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod galaxy_relations;
 mod pages;
 mod relations;
 mod security;
