@@ -28,6 +28,11 @@ macro_rules! text_enum {
                 match self { $($name::$variant => $label),+ }
             }
 
+            /// (stored form, label) of every value, in display order, for select menus.
+            pub fn pairs() -> Vec<(&'static str, &'static str)> {
+                Self::ALL.iter().map(|v| (v.as_str(), v.label())).collect()
+            }
+
             /// The stored forms, comma-separated, for error messages.
             pub fn accepted() -> String {
                 Self::ALL.iter().map(|v| v.as_str()).collect::<Vec<_>>().join(", ")

@@ -456,15 +456,15 @@ pub(crate) async fn list_galaxies(
         prev_href: (q.page > 1).then(|| link(&|n: &mut TableQuery| n.page -= 1)),
         next_href: (q.page < pages).then(|| link(&|n: &mut TableQuery| n.page += 1)),
         morphology_options: options(
-            Morphology::ALL.iter().map(|m| (m.as_str(), m.label())),
+            Morphology::pairs().into_iter(),
             q.morphology.map(Morphology::as_str),
         ),
         bulge_options: options(
-            BulgeKind::ALL.iter().map(|m| (m.as_str(), m.label())),
+            BulgeKind::pairs().into_iter(),
             q.bulge_kind.map(BulgeKind::as_str),
         ),
         method_options: options(
-            MassMethod::ALL.iter().map(|m| (m.as_str(), m.label())),
+            MassMethod::pairs().into_iter(),
             q.method.map(MassMethod::as_str),
         ),
         limit_options: options(

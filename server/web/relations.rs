@@ -68,18 +68,9 @@ impl Grouping {
     /// Every (stored word, label) of this grouping, in display order.
     fn values(self) -> Vec<(&'static str, &'static str)> {
         match self {
-            Grouping::Morphology => Morphology::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-            Grouping::BulgeKind => BulgeKind::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-            Grouping::Method => MassMethod::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
+            Grouping::Morphology => Morphology::pairs(),
+            Grouping::BulgeKind => BulgeKind::pairs(),
+            Grouping::Method => MassMethod::pairs(),
         }
     }
 }
@@ -144,34 +135,10 @@ impl Subset {
                 });
             }
         };
-        push(
-            "morphology",
-            Morphology::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-        );
-        push(
-            "bulge_kind",
-            BulgeKind::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-        );
-        push(
-            "centre_kind",
-            CentreKind::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-        );
-        push(
-            "mass_method",
-            MassMethod::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
-        );
+        push("morphology", Morphology::pairs());
+        push("bulge_kind", BulgeKind::pairs());
+        push("centre_kind", CentreKind::pairs());
+        push("mass_method", MassMethod::pairs());
         out
     }
 
@@ -1205,31 +1172,19 @@ pub(crate) async fn show_relation(
             .map(|m| option(m.as_str(), method_label(*m), *m == q.method))
             .collect(),
         morphology_options: enum_options(
-            Morphology::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
+            Morphology::pairs(),
             q.filter.morphology.map(Morphology::as_str),
         ),
         bulge_options: enum_options(
-            BulgeKind::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
+            BulgeKind::pairs(),
             q.filter.bulge_kind.map(BulgeKind::as_str),
         ),
         centre_options: enum_options(
-            CentreKind::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
+            CentreKind::pairs(),
             q.filter.centre_kind.map(CentreKind::as_str),
         ),
         mass_method_options: enum_options(
-            MassMethod::ALL
-                .iter()
-                .map(|v| (v.as_str(), v.label()))
-                .collect(),
+            MassMethod::pairs(),
             q.filter.mass_method.map(MassMethod::as_str),
         ),
         soi_resolved: q.filter.soi == crate::relations::SoiChoice::Resolved,
