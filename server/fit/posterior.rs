@@ -166,6 +166,22 @@ pub fn posterior_from_fit(
     fit: &Fit,
     cfg: &EnsembleConfig,
 ) -> Result<(Posterior, Chain), FitError> {
+    posterior_with_progress(points, spec, fit, cfg, None)
+}
+
+/// As [`posterior_from_fit`], counting completed sampler steps (out of `cfg.steps`) in
+/// `progress` for a caller that shows how far a background run has got.
+///
+/// # Errors
+///
+/// As [`posterior_from_fit`].
+pub fn posterior_with_progress(
+    points: &[Point],
+    spec: &FitSpec,
+    fit: &Fit,
+    cfg: &EnsembleConfig,
+    progress: Option<&std::sync::atomic::AtomicUsize>,
+) -> Result<(Posterior, Chain), FitError> {
     if !matches!(spec.method, Method::Structural | Method::Conditional) {
         return Err(FitError::Unsupported {
             what: format!(
@@ -204,7 +220,7 @@ pub fn posterior_from_fit(
             f64::NEG_INFINITY
         }
     };
-    let chain = ensemble::sample_with_scale(log_post, &start, &scale, &names, cfg)?;
+    let chain = ensemble::sample_with_progress(log_post, &start, &scale, &names, cfg, progress)?;
     let params = (0..names.len())
         .map(|j| {
             ParamSummary::from_values(names[j], &mut chain.column(j)).ok_or_else(|| {

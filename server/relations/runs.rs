@@ -9,7 +9,7 @@
 //! The bootstrap runs in chunks of [`BOOTSTRAP_CHUNK`] replicates so its progress can be
 //! counted; replicate i is drawn with `fit::bootstrap::resample(points, seed, i)`, exactly as
 //! `fit::bootstrap::bootstrap` draws it, so both give the same replicates for one seed. The
-//! posterior sampler reports no progress, so the page shows it as running until it finishes.
+//! posterior sampler counts its steps (burn-in included), so the page shows both kinds advancing.
 
 use std::collections::{BTreeMap, HashMap};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -90,7 +90,7 @@ impl RunKind {
 /// A run in progress (or finished or failed in this server's lifetime).
 #[derive(Debug)]
 pub struct RunProgress {
-    /// Units done (bootstrap replicates; posterior: 0 until finished).
+    /// Units done (bootstrap replicates; posterior steps, burn-in included).
     pub done: AtomicUsize,
     /// Units in all.
     pub total: usize,
@@ -278,7 +278,14 @@ fn compute(
         }
         RunKind::Posterior => {
             let cfg = EnsembleConfig::new(POSTERIOR_WALKERS, size, size / 5, RUN_SEED)?;
-            let (post, _) = fit::posterior::posterior_from_fit(points, &spec, &full, &cfg)?;
+            // The sampler counts its steps into the run's progress (`size` = steps).
+            let (post, _) = fit::posterior::posterior_with_progress(
+                points,
+                &spec,
+                &full,
+                &cfg,
+                Some(&progress.done),
+            )?;
             progress.done.store(size, Ordering::Relaxed);
             let wanted = full.params.names();
             let params = post

@@ -720,8 +720,8 @@ async fn run_views(
                             progress.total, progress.started_at
                         ),
                         RunKind::Posterior => format!(
-                            "sampling (started {}); the sampler reports no intermediate progress",
-                            progress.started_at
+                            "{done} of {} sampler steps done, burn-in included (started {})",
+                            progress.total, progress.started_at
                         ),
                     };
                 }
