@@ -303,37 +303,16 @@ pub fn invert(fit: &Fit, log_mbh: f64) -> Result<f64, FitError> {
 #[cfg(test)]
 mod tests {
     use super::super::types::test_data::{Sim, simulate};
-    use super::super::{FitSpec, Method, Params, Termination, fit, residuals};
+    use super::super::{FitSpec, Method, Params, fit, residuals};
     use super::*;
 
     /// A published relation as a Fit with no parameter uncertainty (pivot σ0 = 200 km/s).
     fn published(alpha: f64, beta: f64, eps: f64) -> Fit {
-        Fit {
-            spec: FitSpec::new(Method::Conditional, 200_f64.log10()),
-            params: Params::line(alpha, beta, eps),
-            errors: Params {
-                alpha: 0.0,
-                beta: 0.0,
-                beta2: None,
-                gamma: None,
-                eps: 0.0,
-            },
-            cov_names: vec!["alpha", "beta", "eps"],
-            cov: vec![vec![0.0; 3]; 3],
-            n: 0,
-            n_upper: 0,
-            neg2_log_l: None,
-            aic: None,
-            bic: None,
-            chi2: None,
-            n_params: 3,
-            termination: Termination {
-                reason: String::new(),
-                iterations: 0,
-                evaluations: 0,
-            },
-            x_model: None,
-        }
+        Fit::given_line(
+            FitSpec::new(Method::Conditional, 200_f64.log10()),
+            Params::line(alpha, beta, eps),
+            [[0.0; 3]; 3],
+        )
     }
 
     #[test]

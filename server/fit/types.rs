@@ -516,6 +516,33 @@ pub struct Fit {
 }
 
 impl Fit {
+    /// A straight-line relation given from outside (a published fit, or a test's fixture): α, β,
+    /// ε with the covariance of (α, β, ε) in that order, no sample behind it (n = 0, no
+    /// likelihood). Errors are the square roots of the covariance's diagonal.
+    pub fn given_line(spec: FitSpec, params: Params, cov: [[f64; 3]; 3]) -> Self {
+        let sd = |i: usize| cov[i][i].max(0.0).sqrt();
+        Self {
+            spec,
+            params,
+            errors: Params::line(sd(0), sd(1), sd(2)),
+            cov_names: vec!["alpha", "beta", "eps"],
+            cov: cov.iter().map(|row| row.to_vec()).collect(),
+            n: 0,
+            n_upper: 0,
+            neg2_log_l: None,
+            aic: None,
+            bic: None,
+            chi2: None,
+            n_params: 3,
+            termination: Termination {
+                reason: "given, not fitted".to_string(),
+                iterations: 0,
+                evaluations: 0,
+            },
+            x_model: None,
+        }
+    }
+
     /// Covariance of two named parameters (`"alpha"`, `"beta"`, `"beta2"`, `"gamma"`, `"eps"`),
     /// or `None` if either is not in `cov_names`.
     ///

@@ -1452,43 +1452,12 @@ mod tests {
 
     #[test]
     fn the_mean_band_follows_the_parameter_covariance() {
-        use crate::fit::{FitSpec, Termination};
-        let fit = Fit {
-            spec: FitSpec::new(Method::Structural, 2.3),
-            params: crate::fit::Params {
-                alpha: 8.3,
-                beta: 5.0,
-                beta2: None,
-                gamma: None,
-                eps: 0.35,
-            },
-            errors: crate::fit::Params {
-                alpha: 0.05,
-                beta: 0.3,
-                beta2: None,
-                gamma: None,
-                eps: 0.03,
-            },
-            cov_names: vec!["alpha", "beta", "eps"],
-            cov: vec![
-                vec![0.0025, 0.003, 0.0],
-                vec![0.003, 0.09, 0.0],
-                vec![0.0, 0.0, 0.0009],
-            ],
-            n: 10,
-            n_upper: 0,
-            neg2_log_l: None,
-            aic: None,
-            bic: None,
-            chi2: None,
-            n_params: 3,
-            termination: Termination {
-                reason: String::new(),
-                iterations: 0,
-                evaluations: 0,
-            },
-            x_model: None,
-        };
+        use crate::fit::FitSpec;
+        let fit = Fit::given_line(
+            FitSpec::new(Method::Structural, 2.3),
+            crate::fit::Params::line(8.3, 5.0, 0.35),
+            [[0.0025, 0.003, 0.0], [0.003, 0.09, 0.0], [0.0, 0.0, 0.0009]],
+        );
         let band = mean_band(&fit, 2.0, 2.6);
         assert_eq!(band.len(), BAND_SAMPLES);
         // At x = 2.0, d = −0.3: Var = 0.0025 + 0.09·0.09 + 2·(−0.3)·0.003 = 0.0088 (science
