@@ -63,8 +63,10 @@ pub struct Offset {
 ///
 /// # Model
 /// ```text
-/// r_i = y_i − ŷ(x_i [, x2_i]),   z_i = r_i / √(s_pred,i² + σ_y,i²)
+/// r_i = y_i − ŷ(x_i [, x2_i]),   z_i = r_i / √(s_pred,i² + σ_y,i² − 2 (∂ŷ/∂x) σ_xy,i)
 /// s_pred,i² = ε² + gᵀ C g + (∂ŷ/∂x)² σ_x,i² [+ γ² σ_x2,i²]       (see predict::predict)
+/// ∂ŷ/∂x = β [+ 2 β2 (x_i − x0)]; σ_xy,i is the point's x–y error covariance (e.g. from a
+/// shared distance error), which makes errors along the relation less surprising.
 /// limit: P(true < y_lim) = Φ(r_i / s_pred,i)
 /// ```
 /// dex throughout. Rows with non-finite values or negative errors (which a fit would have
@@ -88,10 +90,19 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
             match pred {
                 Ok(pr) if p.y.is_finite() && p.y_err.is_finite() && p.y_err >= 0.0 => {
                     let pl = placement_of(pr, p.y, p.y_err, p.upper_limit);
+                    let slope = fit.params.beta
+                        + 2.0 * fit.params.beta2.unwrap_or(0.0) * (p.x - fit.spec.pivot);
+                    let var =
+                        pl.prediction.sd_dex.powi(2) + p.y_err.powi(2) - 2.0 * slope * p.xy_cov;
+                    let z = if var > 0.0 && p.xy_cov.is_finite() {
+                        pl.residual_dex / var.sqrt()
+                    } else {
+                        pl.z
+                    };
                     Residual {
                         index,
                         residual_dex: pl.residual_dex,
-                        z: pl.z,
+                        z,
                         upper_limit: p.upper_limit,
                         prob_below_limit: pl.prob_below_limit,
                     }
@@ -240,6 +251,27 @@ pub fn zero_point_offset(a: &[Point], b: &[Point], spec: &FitSpec) -> Result<Off
 mod tests {
     use super::super::types::test_data::{Sim, hogg, simulate};
     use super::*;
+
+    #[test]
+    fn a_shared_distance_covariance_enters_the_z_score() {
+        // z = r / √(s_pred² + σ_y² − 2 β σ_xy), science notes §3.2 (a shared distance error makes
+        // the x and y errors covary); values computed from the formula.
+        let fit = Fit::given_line(
+            super::super::FitSpec::new(super::super::Method::Conditional, 11.0),
+            Params::line(8.5, 1.1, 0.3),
+            [[0.0; 3]; 3],
+        );
+        let plain = Point::new(11.2, 0.1, 8.72 + 0.5, 0.2);
+        let shared = plain.clone().with_xy_cov(0.012);
+        let r = residuals(&fit, &[plain, shared]);
+        let s_pred2 = 0.3f64.powi(2) + (1.1f64 * 0.1).powi(2);
+        let expected_plain = 0.5 / (s_pred2 + 0.04).sqrt();
+        let expected_shared = 0.5 / (s_pred2 + 0.04 - 2.0 * 1.1 * 0.012).sqrt();
+        assert!((r[0].residual_dex - 0.5).abs() < 1e-12);
+        assert!((r[0].z - expected_plain).abs() < 1e-12, "{}", r[0].z);
+        assert!((r[1].z - expected_shared).abs() < 1e-12, "{}", r[1].z);
+        assert!(r[1].z > r[0].z);
+    }
 
     #[test]
     fn residuals_are_data_minus_line() {
