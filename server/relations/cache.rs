@@ -16,8 +16,19 @@ use crate::fit::{self, Fit, FitError, FitSpec, Influence, Method, Shape};
 /// Leave-one-out influence of every object of a fit, or why it could not be computed.
 pub type InfluenceResult = Result<Vec<Influence>, FitError>;
 
-/// Most fits kept at once; beyond it the cache starts afresh (a fit is cheap to redo).
+/// Most fits kept at once. When full, the per-galaxy left-out fits go first (they are the many
+/// and the cheap ones), and only if that is not enough does the cache start afresh.
 const MAX_ENTRIES: usize = 512;
+
+/// Make room in a full map: drop left-out entries first, everything only as a last resort.
+fn make_room<V>(map: &mut HashMap<FitKey, V>) {
+    if map.len() >= MAX_ENTRIES {
+        map.retain(|k, _| k.left_out.is_none());
+        if map.len() >= MAX_ENTRIES {
+            map.clear();
+        }
+    }
+}
 
 /// What identifies a fit.
 #[derive(Debug, Clone, PartialEq, Eq, Hash)]
@@ -106,9 +117,7 @@ impl FitCache {
         let mut map = self.inner.lock().unwrap_or_else(PoisonError::into_inner);
         let version = outcome.key.catalog_version;
         map.retain(|k, _| k.catalog_version >= version);
-        if map.len() >= MAX_ENTRIES {
-            map.clear();
-        }
+        make_room(&mut map);
         map.entry(outcome.key.clone())
             .or_insert_with(|| Arc::new(outcome))
             .clone()
@@ -172,9 +181,7 @@ impl FitCache {
             .lock()
             .unwrap_or_else(PoisonError::into_inner);
         map.retain(|k, _| k.catalog_version >= key.catalog_version);
-        if map.len() >= MAX_ENTRIES {
-            map.clear();
-        }
+        make_room(&mut map);
         Ok(map.entry(key).or_insert_with(|| Arc::new(result)).clone())
     }
 }
@@ -371,6 +378,22 @@ mod tests {
         assert_eq!(runs.load(Ordering::SeqCst), 2);
         assert!(cache.get(&key1).is_none());
         assert_eq!(cache.len(), 1);
+    }
+
+    #[test]
+    fn a_full_cache_drops_left_out_fits_before_whole_sample_fits() {
+        let cache = FitCache::default();
+        let filter = SampleFilter::default();
+        let whole = FitKey::new(1, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        cache.insert(outcome(&whole));
+        for id in 0..(MAX_ENTRIES as i64 + 10) {
+            cache.insert(outcome(&whole.leaving_out(id)));
+        }
+        assert!(
+            cache.get(&whole).is_some(),
+            "the whole-sample fit was evicted"
+        );
+        assert!(cache.len() <= MAX_ENTRIES);
     }
 
     fn member(galaxy_id: i64) -> super::super::Member {
