@@ -26,6 +26,12 @@ pub enum AppError {
         /// One sentence per problem, naming the parameter.
         message: String,
     },
+    /// 403: logged in, but this action is not theirs to take; the message says why.
+    #[error("{message}")]
+    Forbidden {
+        /// One sentence.
+        message: String,
+    },
     /// 503: the database is busy (another writer held the lock for longer than the busy timeout).
     /// Nothing was written; the client may retry.
     #[error("the catalog is busy; nothing was changed, please try again in a moment")]
@@ -51,11 +57,19 @@ impl AppError {
         }
     }
 
+    /// Shorthand for [`AppError::Forbidden`].
+    pub fn forbidden(message: impl Into<String>) -> Self {
+        Self::Forbidden {
+            message: message.into(),
+        }
+    }
+
     /// The HTTP status this error becomes.
     pub fn status(&self) -> StatusCode {
         match self {
             Self::NotFound { .. } => StatusCode::NOT_FOUND,
             Self::BadRequest { .. } => StatusCode::BAD_REQUEST,
+            Self::Forbidden { .. } => StatusCode::FORBIDDEN,
             Self::Busy => StatusCode::SERVICE_UNAVAILABLE,
             Self::StorageFull => StatusCode::INSUFFICIENT_STORAGE,
             Self::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
@@ -88,6 +102,7 @@ impl IntoResponse for AppError {
         let (title, message) = match &self {
             Self::NotFound { .. } => ("Not found", self.to_string()),
             Self::BadRequest { .. } => ("The request could not be read", self.to_string()),
+            Self::Forbidden { .. } => ("Not allowed", self.to_string()),
             Self::Busy => ("Busy", self.to_string()),
             Self::StorageFull => ("Storage full", self.to_string()),
             Self::Internal(cause) => {

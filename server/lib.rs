@@ -24,6 +24,7 @@ pub mod auth;
 pub mod catalog;
 pub mod charts;
 pub mod config;
+pub mod csv_command;
 pub mod error;
 pub mod fit;
 pub mod fit_command;

@@ -6,6 +6,8 @@
 //! massline fit --input FILE.csv [...]                 fit a relation to a CSV of points
 //! massline user add NAME --role ROLE [--generate]     create an account (see `user --help`)
 //! massline user set-role NAME ROLE | disable NAME | list
+//! massline import FILE.csv [--accept]                 load a catalog CSV (pending, or adopted)
+//! massline export > FILE.csv                          write the adopted catalog as CSV
 //! ```
 
 use clap::{Parser, Subcommand};
@@ -29,6 +31,10 @@ enum Command {
     Fit(massline::fit_command::FitArgs),
     /// Manage accounts: add, set-role, disable, list.
     User(massline::auth::cli::UserArgs),
+    /// Import a catalog CSV: rows become pending submissions, or with --accept are adopted.
+    Import(massline::csv_command::ImportArgs),
+    /// Write the adopted catalog as CSV (the import format) to standard output.
+    Export(massline::csv_command::ExportArgs),
 }
 
 fn main() -> std::process::ExitCode {
@@ -37,6 +43,16 @@ fn main() -> std::process::ExitCode {
         Command::Serve(settings) => serve(settings),
         Command::Fit(args) => massline::fit_command::run(&args, &mut std::io::stdout().lock()),
         Command::User(args) => massline::auth::cli::run(&args, &mut std::io::stdout().lock()),
+        Command::Import(args) => massline::csv_command::run_import(
+            &args,
+            &mut std::io::stdout().lock(),
+            &mut std::io::stderr().lock(),
+        ),
+        Command::Export(args) => massline::csv_command::run_export(
+            &args,
+            &mut std::io::stdout().lock(),
+            &mut std::io::stderr().lock(),
+        ),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,

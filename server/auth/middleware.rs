@@ -359,6 +359,15 @@ pub fn encode_query_value(text: &str) -> String {
 
 /// Layer 4: forms of a browser must carry the anti-forgery token.
 pub async fn require_form_token(request: Request, next: Next) -> Response {
+    require_form_token_limited(request, next, BODY_LIMIT_BYTES).await
+}
+
+/// [`require_form_token`] for a route with its own body limit (the body is buffered up to it).
+pub async fn require_form_token_limited(
+    request: Request,
+    next: Next,
+    limit_bytes: usize,
+) -> Response {
     if !is_unsafe(request.method()) {
         return next.run(request).await;
     }
@@ -380,13 +389,13 @@ pub async fn require_form_token(request: Request, next: Next) -> Response {
     };
     let path = request.uri().path().to_string();
     let (parts, body) = request.into_parts();
-    let bytes: Bytes = match axum::body::to_bytes(body, BODY_LIMIT_BYTES).await {
+    let bytes: Bytes = match axum::body::to_bytes(body, limit_bytes).await {
         Ok(b) => b,
         Err(_) => {
             return render_error_page(
                 StatusCode::PAYLOAD_TOO_LARGE,
                 "Too large",
-                format!("The request is larger than {BODY_LIMIT_BYTES} bytes."),
+                format!("The request is larger than {limit_bytes} bytes."),
                 false,
             );
         }

@@ -223,6 +223,8 @@ pub enum Access {
     Read,
     /// A logged-in browser of any role (forms that change the person's own things, logout).
     Session,
+    /// A logged-in reviewer or admin (the review queue).
+    Review,
     /// A logged-in admin.
     Admin,
     /// JSON endpoints about the caller: any session or any valid token.
@@ -262,10 +264,19 @@ pub fn check_access(
                 Err(Denied::Forbidden)
             }
         }
+        (Access::Review, Principal::Session(s)) => {
+            if s.role.includes(Role::Reviewer) {
+                Ok(())
+            } else {
+                Err(Denied::Forbidden)
+            }
+        }
         (Access::Read, Principal::Token(t)) => require_scope(&t.scopes, Scope::Read),
         (Access::Api, Principal::Token(_)) => Ok(()),
         // Forms and account management are for people in a browser, not for scripts.
-        (Access::Session | Access::Admin, Principal::Token(_)) => Err(Denied::Forbidden),
+        (Access::Session | Access::Review | Access::Admin, Principal::Token(_)) => {
+            Err(Denied::Forbidden)
+        }
     }
 }
 

@@ -136,22 +136,8 @@ pub fn parse_demo(galaxies_csv: &str, measurements_csv: &str) -> Result<DemoCata
             column,
             text: rec.get(column).map(String::as_str).unwrap_or(""),
         };
-        let name = field("name").required()?.to_string();
-        let distance_mpc = field("distance_mpc").number(
-            units::DISTANCE_MIN_MPC,
-            units::DISTANCE_MAX_MPC,
-            "Mpc",
-        )?;
-        let distance_err_mpc = field("distance_err_mpc").number(0.0, distance_mpc, "Mpc")?;
-        let galaxy = NewGalaxy {
-            name: name.clone(),
-            morphology: field("morphology").word::<Morphology>()?,
-            bulge_kind: field("bulge_kind").word::<BulgeKind>()?,
-            centre_kind: field("centre_kind").word::<CentreKind>()?,
-            distance_mpc,
-            distance_err_mpc,
-            distance_method: field("distance_method").word::<DistanceMethod>()?,
-        };
+        let galaxy = galaxy_from_fields(&field)?;
+        let name = galaxy.name.clone();
         if index.insert(name.clone(), out.galaxies.len()).is_some() {
             return Err(field("name").error(format!("the galaxy '{name}' appears twice")));
         }
@@ -181,6 +167,71 @@ pub fn parse_demo(galaxies_csv: &str, measurements_csv: &str) -> Result<DemoCata
     Ok(out)
 }
 
+/// Read a galaxy from named cells (a CSV row or a form): `name`, `morphology`, `bulge_kind`,
+/// `centre_kind`, `distance_mpc`, `distance_err_mpc`, `distance_method`. `cell` returns the text
+/// of a column ("" when absent); errors carry `file`, `line` and the column.
+///
+/// # Errors
+/// The first cell that cannot be read.
+pub fn galaxy_from_cells<'a>(
+    file: &'static str,
+    line: u64,
+    cell: &impl Fn(&'static str) -> &'a str,
+) -> Result<NewGalaxy, RowError> {
+    let field = |column: &'static str| Field {
+        file,
+        line,
+        column,
+        text: cell(column),
+    };
+    galaxy_from_fields(&field)
+}
+
+/// Read a measurement from named cells (a CSV row or a form) through the entry parser:
+/// `quantity`, `value`, `scale`, `limit_confidence_sigma`, `method`, `sigma_definition`,
+/// `aperture`, `band`, `source_distance_mpc`, `resolution_arcsec`, `reference`, `note`.
+///
+/// # Errors
+/// The first cell that cannot be read.
+pub fn measurement_from_cells<'a>(
+    file: &'static str,
+    line: u64,
+    cell: &impl Fn(&'static str) -> &'a str,
+) -> Result<NewMeasurement, RowError> {
+    let field = |column: &'static str| Field {
+        file,
+        line,
+        column,
+        text: cell(column),
+    };
+    measurement_from_fields(&field)
+}
+
+fn galaxy_from_fields<'a>(
+    field: &impl Fn(&'static str) -> Field<'a>,
+) -> Result<NewGalaxy, RowError> {
+    let name = field("name").required()?.to_string();
+    if name.chars().count() > 100 {
+        return Err(field("name").error("a name has at most 100 characters".into()));
+    }
+    let distance_mpc =
+        field("distance_mpc").number(units::DISTANCE_MIN_MPC, units::DISTANCE_MAX_MPC, "Mpc")?;
+    let distance_err_mpc = field("distance_err_mpc").number(0.0, distance_mpc, "Mpc")?;
+    if distance_err_mpc >= distance_mpc {
+        return Err(field("distance_err_mpc")
+            .error("the distance error must be smaller than the distance".into()));
+    }
+    Ok(NewGalaxy {
+        name,
+        morphology: field("morphology").word::<Morphology>()?,
+        bulge_kind: field("bulge_kind").word::<BulgeKind>()?,
+        centre_kind: field("centre_kind").word::<CentreKind>()?,
+        distance_mpc,
+        distance_err_mpc,
+        distance_method: field("distance_method").word::<DistanceMethod>()?,
+    })
+}
+
 /// Build a measurement from a row's named fields (shared by every catalog CSV reader).
 fn measurement_from_fields<'a>(
     field: &impl Fn(&'static str) -> Field<'a>,
@@ -189,8 +240,9 @@ fn measurement_from_fields<'a>(
     let scale = match field("scale").text.trim() {
         "" | "linear" => Scale::Linear,
         "log10" => Scale::Log10,
+        "auto" => Scale::Auto,
         other => {
-            return Err(field("scale").error(format!("'{other}' is not linear or log10")));
+            return Err(field("scale").error(format!("'{other}' is not linear, log10 or auto")));
         }
     };
     let value = field("value");
@@ -211,6 +263,34 @@ fn measurement_from_fields<'a>(
         Quantity::BulgeLuminosity => field("band").required()?,
         _ => field("band").empty_for(quantity)?,
     };
+    let confidence = field("limit_confidence_sigma");
+    let limit_confidence_sigma = match (confidence.text.trim(), entry.upper_limit) {
+        ("", _) => None,
+        ("1", true) => Some(1.0),
+        ("2", true) => Some(2.0),
+        ("3", true) => Some(3.0),
+        (_, false) => {
+            return Err(confidence.error("a confidence level is only for an upper limit".into()));
+        }
+        (other, true) => {
+            return Err(confidence.error(format!("'{other}' is not 1, 2 or 3 (sigma)")));
+        }
+    };
+    let aperture = field("aperture").text.trim();
+    let reference = field("reference").text.trim();
+    let note = field("note").text.trim();
+    for (column, text, max) in [
+        ("aperture", aperture, 100),
+        ("reference", reference, 300),
+        ("note", note, 2000),
+    ] {
+        if text.chars().count() > max {
+            return Err(field(column).error(format!("at most {max} characters")));
+        }
+    }
+    if band.chars().count() > 10 {
+        return Err(field("band").error("a band name has at most 10 characters".into()));
+    }
     Ok(NewMeasurement {
         quantity,
         log_value: entry.log_value,
@@ -218,10 +298,10 @@ fn measurement_from_fields<'a>(
         err_plus_dex: entry.err_plus_dex,
         err_dex: entry.err_dex,
         upper_limit: entry.upper_limit,
-        limit_confidence_sigma: None,
+        limit_confidence_sigma,
         method: method.to_string(),
         sigma_definition: sigma_definition.to_string(),
-        aperture: field("aperture").text.trim().to_string(),
+        aperture: aperture.to_string(),
         band: band.to_string(),
         source_distance_mpc: field("source_distance_mpc").optional_number(
             units::DISTANCE_MIN_MPC,
@@ -233,8 +313,8 @@ fn measurement_from_fields<'a>(
             units::RESOLUTION_MAX_ARCSEC,
             "arcsec",
         )?,
-        reference: field("reference").text.trim().to_string(),
-        note: field("note").text.trim().to_string(),
+        reference: reference.to_string(),
+        note: note.to_string(),
         value_text: entry.text,
         value_scale: match entry.scale_used {
             Scale::Log10 => "log10",
@@ -254,9 +334,9 @@ pub fn units_quantity(q: Quantity) -> units::Quantity {
     }
 }
 
-type Record = HashMap<String, String>;
+pub(super) type Record = HashMap<String, String>;
 
-fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
+pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .from_reader(text.as_bytes());

@@ -10,6 +10,7 @@
 //! a freshly migrated temporary database, which is what catches a typo.
 
 pub mod accounts;
+pub mod csv_io;
 pub mod demo;
 pub mod fit_runs;
 pub mod galaxies;
@@ -17,6 +18,7 @@ pub mod history;
 pub mod model;
 pub mod overview;
 pub mod relation_rows;
+pub mod submissions;
 
 use std::path::Path;
 use std::str::FromStr;

@@ -605,6 +605,9 @@ pub(crate) struct GalaxyShowPage {
     charts: Vec<super::place::PlaceChart>,
     /// Why no relation applies, when none does.
     no_relation: Option<String>,
+    /// Reviewers' decisions on submissions that measured it, newest first (reviewer names
+    /// stay off this page, which may be public).
+    reviews: Vec<crate::catalog::submissions::ReviewNote>,
 }
 
 /// Show one galaxy with every measurement.
@@ -619,6 +622,15 @@ pub(crate) async fn show_galaxy(
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
     let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
     let left_out = placements_left_out(&state, galaxy.galaxy_id).await?;
+    let mut reviews =
+        crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?;
+    for r in &mut reviews {
+        r.created_at = r
+            .created_at
+            .get(..16)
+            .unwrap_or(&r.created_at)
+            .replace('T', " ");
+    }
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()
@@ -724,6 +736,7 @@ pub(crate) async fn show_galaxy(
         rows: left_out.rows,
         charts: left_out.charts,
         no_relation: left_out.no_relation,
+        reviews,
     })
 }
 

@@ -20,6 +20,8 @@ mod login;
 mod overview;
 mod place;
 mod relations;
+mod review;
+mod submissions;
 
 use std::time::Duration;
 
@@ -34,13 +36,16 @@ use tower_http::set_header::SetResponseHeaderLayer;
 use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::TraceLayer;
 
-use crate::auth::middleware::{authenticate, guard, refuse_cross_site, require_form_token};
+use crate::auth::middleware::{authenticate, guard, refuse_cross_site, require_form_token_limited};
 use crate::auth::{Access, Principal, Role};
 use crate::error::render_error_page;
 use crate::startup::AppState;
 
-/// Largest request body accepted (forms and JSON); larger ones get 413.
+/// Largest request body accepted (forms and JSON) on every route but the upload; larger ones get 413.
 pub const BODY_LIMIT_BYTES: usize = 1024 * 1024;
+
+/// The body limit of the CSV upload (`/submissions/upload`): 8 MB of pasted rows.
+pub const UPLOAD_LIMIT_BYTES: usize = 8 * 1024 * 1024;
 
 /// Longest time a request may take before the server gives up with 503 (a slow request is the
 /// server's problem, not the client's, so not 408; clients may retry a 503).
@@ -75,19 +80,39 @@ impl Routes {
         }
     }
 
-    /// Add one method of one path, guarded by `access` and (for unsafe methods) the form token.
+    /// Add one method of one path, guarded by `access` and (for unsafe methods) the form token,
+    /// with the ordinary body limit.
     fn add(
-        mut self,
+        self,
         method: Method,
         path: &'static str,
         access: Access,
         handler: MethodRouter<AppState>,
     ) -> Self {
-        let guarded = handler
-            .layer(axum::middleware::from_fn(require_form_token))
-            .layer(axum::middleware::from_fn(move |req, next| {
+        self.add_limited(method, path, access, handler, BODY_LIMIT_BYTES)
+    }
+
+    /// [`Routes::add`] with its own body limit (uploads). The limit is checked before the
+    /// guard, so an oversized request is a 413 whoever sends it; the form-token check and the
+    /// extractors read up to the same limit.
+    fn add_limited(
+        mut self,
+        method: Method,
+        path: &'static str,
+        access: Access,
+        handler: MethodRouter<AppState>,
+        limit_bytes: usize,
+    ) -> Self {
+        use std::convert::Infallible;
+        let guarded: MethodRouter<AppState> = handler
+            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| {
+                require_form_token_limited(req, next, limit_bytes)
+            }))
+            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| {
                 guard(access, req, next)
-            }));
+            }))
+            .layer::<_, Infallible>(RequestBodyLimitLayer::new(limit_bytes))
+            .layer::<_, Infallible>(axum::extract::DefaultBodyLimit::max(limit_bytes));
         self.router = self.router.route(path, guarded);
         self.table.push(RouteEntry {
             method,
@@ -99,7 +124,7 @@ impl Routes {
 }
 
 fn routes() -> Routes {
-    use Access::{Admin, Api, Public, Read, Session};
+    use Access::{Admin, Api, Public, Read, Review, Session};
     Routes::new()
         .add(Method::GET, "/", Read, get(overview::show_overview))
         .add(Method::GET, "/galaxies", Read, get(galaxies::list_galaxies))
@@ -189,6 +214,68 @@ fn routes() -> Routes {
             post(admin::disable_account),
         )
         .add(Method::GET, "/admin/audit", Admin, get(admin::show_audit))
+        .add(
+            Method::GET,
+            "/submissions",
+            Session,
+            get(submissions::list_submissions),
+        )
+        .add(
+            Method::GET,
+            "/submissions/new",
+            Session,
+            get(submissions::new_submission),
+        )
+        .add(
+            Method::POST,
+            "/submissions/new",
+            Session,
+            post(submissions::create_submission),
+        )
+        .add(
+            Method::GET,
+            "/submissions/upload",
+            Session,
+            get(submissions::show_upload),
+        )
+        .add_limited(
+            Method::POST,
+            "/submissions/upload",
+            Session,
+            post(submissions::upload),
+            UPLOAD_LIMIT_BYTES,
+        )
+        .add(
+            Method::GET,
+            "/catalog.csv",
+            Read,
+            get(submissions::download_catalog),
+        )
+        .add(
+            Method::GET,
+            "/submissions/{id}",
+            Session,
+            get(submissions::show_submission),
+        )
+        .add(
+            Method::POST,
+            "/submissions/{id}/withdraw",
+            Session,
+            post(submissions::withdraw_submission),
+        )
+        .add(Method::GET, "/review", Review, get(review::show_queue))
+        .add(
+            Method::POST,
+            "/review/{id}/accept",
+            Review,
+            post(review::accept),
+        )
+        .add(
+            Method::POST,
+            "/review/{id}/reject",
+            Review,
+            post(review::reject),
+        )
         .add(Method::GET, "/api/v1/me", Api, get(api::me))
 }
 
@@ -217,7 +304,8 @@ pub fn router(state: AppState) -> Router {
 /// its own, so pages of a logged-in person are never stored (ASVS 14.3.2).
 fn with_baseline(app: Router, timeout: Duration, secure: bool) -> Router {
     let mut app = app
-        .layer(RequestBodyLimitLayer::new(BODY_LIMIT_BYTES))
+        // The largest limit any route has; each route narrows it to its own (`Routes::add`).
+        .layer(RequestBodyLimitLayer::new(UPLOAD_LIMIT_BYTES))
         .layer(TimeoutLayer::with_status_code(
             StatusCode::SERVICE_UNAVAILABLE,
             timeout,
@@ -268,6 +356,8 @@ pub(crate) struct Nav {
     pub(crate) username: Option<String>,
     /// Whether to link the admin pages.
     pub(crate) is_admin: bool,
+    /// Whether to link the review queue.
+    pub(crate) is_reviewer: bool,
     /// The session's anti-forgery token ("" without a session).
     pub(crate) csrf: String,
 }
@@ -278,6 +368,7 @@ impl Nav {
             Principal::Session(s) => Self {
                 username: Some(s.username.clone()),
                 is_admin: s.role.includes(Role::Admin),
+                is_reviewer: s.role.includes(Role::Reviewer),
                 csrf: s.csrf_token.clone(),
             },
             _ => Self::default(),

@@ -156,6 +156,8 @@ pub(crate) struct PlaceRow {
     pub(crate) interval95: String,
     pub(crate) residual: Option<String>,
     pub(crate) z: Option<String>,
+    /// |z| as a number, for ordering (the review queue).
+    pub(crate) z_abs: Option<f64>,
     pub(crate) verdict: Option<&'static str>,
     pub(crate) prob_below: Option<String>,
     pub(crate) refit: Option<String>,
@@ -523,6 +525,7 @@ pub(crate) fn place_against(
         interval95: "—".into(),
         residual: None,
         z: None,
+        z_abs: None,
         verdict: None,
         prob_below: None,
         refit: None,
@@ -565,6 +568,7 @@ pub(crate) fn place_against(
             signed(r, 2)
         });
         row.z = Some(signed(z, 1));
+        row.z_abs = Some(z.abs());
         row.verdict = Some(verdict(z, m.upper_limit));
         if m.upper_limit && prediction.sd_dex > 0.0 {
             // P(true < y_lim) = Φ(r / s_pred).
@@ -613,6 +617,26 @@ async fn place_on(
     x2: Option<&Entry>,
     mass: Option<&Entry>,
 ) -> AppResult<Placed> {
+    let x2_text = x2.map(Entry::display_log);
+    let subject = Subject {
+        name: "this object".to_owned(),
+        href: None,
+        x: (x.log_value, x.err_dex),
+        x2: x2.map(|b| (b.log_value, b.err_dex)),
+        mass: mass.map(SubjectMass::from_entry),
+        input: input_text(relation, &x.display_log(), x2_text.as_deref()),
+    };
+    place_with_refit(state, relation, &subject).await
+}
+
+/// `subject` against one relation (the structural fit of the whole catalog, from the cache),
+/// and, when it has a mass, how a refit with it included would move α, β and ε: the place
+/// page and the review of submissions both use it.
+pub(crate) async fn place_with_refit(
+    state: &AppState,
+    relation: &Relation,
+    subject: &Subject,
+) -> AppResult<Placed> {
     let filter = SampleFilter::default();
     let pivots = (relation.default_pivot(), relation.default_pivot2());
     let outcome = fitted(
@@ -625,27 +649,19 @@ async fn place_on(
         pivots,
     )
     .await?;
-    let x2_text = x2.map(Entry::display_log);
-    let subject = Subject {
-        name: "this object".to_owned(),
-        href: None,
-        x: (x.log_value, x.err_dex),
-        x2: x2.map(|b| (b.log_value, b.err_dex)),
-        mass: mass.map(SubjectMass::from_entry),
-        input: input_text(relation, &x.display_log(), x2_text.as_deref()),
-    };
-    let mut placed = place_against(relation, &outcome, &subject);
-    let (Some(m), Ok(fit)) = (mass, &outcome.fit) else {
+    let mut placed = place_against(relation, &outcome, subject);
+    let (Some(m), Ok(fit)) = (subject.mass, &outcome.fit) else {
         return Ok(placed);
     };
+    let (x, x_err) = subject.x;
     // The refit with the object included: how accepting it would move the relation.
     let mut point = if m.upper_limit {
-        Point::limit(x.log_value, x.err_dex, m.log_value)
+        Point::limit(x, x_err, m.log_mbh)
     } else {
-        Point::new(x.log_value, x.err_dex, m.log_value, m.err_dex)
+        Point::new(x, x_err, m.log_mbh, m.err_dex)
     };
-    if let Some(b) = x2 {
-        point = point.with_x2(b.log_value, b.err_dex);
+    if let Some((b, b_err)) = subject.x2 {
+        point = point.with_x2(b, b_err);
     }
     let mut points = outcome.sample.points.clone();
     points.push(point.named("new object"));

@@ -11,3 +11,4 @@ mod relations;
 mod security;
 mod sessions;
 mod storage;
+mod submissions;

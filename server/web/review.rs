@@ -1,0 +1,198 @@
+//! `/review`: the reviewers' queue of pending submissions, largest |z| first, and the accept
+//! and reject actions.
+//!
+//! Each entry shows what accepting it would mean ([`super::submissions::assess`]): residual
+//! and z against the current structural fits, the sphere-of-influence check, the mass at the
+//! adopted distance, adopted values it would replace (the reviewer chooses, per clash, which
+//! stays adopted) and how a refit with it would move α, β and ε. A reviewer never decides on
+//! their own submission (`auth::may_review`): the buttons are absent and the action is a 403.
+
+use std::collections::HashSet;
+
+use askama::Template;
+use askama_web::WebTemplate;
+use axum::Form;
+use axum::extract::{Extension, Path, State};
+use axum::response::Redirect;
+
+use super::Nav;
+use super::account::session_of;
+use super::place::PlaceRow;
+use super::submissions::{ClashView, MeasurementView, assess};
+use crate::auth::{Principal, may_review};
+use crate::catalog::submissions::{self, SubmissionError};
+use crate::error::{AppError, AppResult};
+use crate::startup::AppState;
+
+/// The sentence of the 403 for one's own submission.
+const OWN_SUBMISSION: &str =
+    "You submitted this yourself; another reviewer must accept or reject it.";
+
+/// One pending submission in the queue.
+pub(crate) struct QueueItem {
+    id: i64,
+    galaxy_name: String,
+    galaxy_slug: String,
+    submitter: String,
+    created_at: String,
+    note: String,
+    own: bool,
+    measurements: Vec<MeasurementView>,
+    rows: Vec<PlaceRow>,
+    soi: Option<String>,
+    mass_at_adopted: Option<String>,
+    clashes: Vec<ClashView>,
+    max_abs_z: f64,
+}
+
+/// `/review`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/review.html")]
+pub(crate) struct ReviewPage {
+    nav: Nav,
+    csrf: String,
+    items: Vec<QueueItem>,
+}
+
+/// The queue, largest |z| first (submissions without a mass last, oldest first among equals).
+pub(crate) async fn show_queue(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+) -> AppResult<ReviewPage> {
+    let user = session_of(&principal)?;
+    let mut items = Vec::new();
+    for p in submissions::review_queue(&state.pool).await? {
+        let Some(galaxy) = submissions::galaxy_by_id(&state.pool, p.summary.galaxy_id).await?
+        else {
+            continue;
+        };
+        let a = assess(&state, &galaxy, &p.measurements, false).await?;
+        let s = &p.summary;
+        items.push(QueueItem {
+            id: s.submission_id,
+            galaxy_name: s.galaxy_name.clone(),
+            galaxy_slug: s.galaxy_slug.clone(),
+            submitter: s
+                .username
+                .clone()
+                .unwrap_or_else(|| "command line".to_owned()),
+            created_at: s
+                .created_at
+                .get(..16)
+                .unwrap_or(&s.created_at)
+                .replace('T', " "),
+            note: s.note.clone(),
+            own: !may_review(user.role, user.account_id, s.account_id),
+            measurements: p.measurements.iter().map(MeasurementView::new).collect(),
+            rows: a.rows,
+            soi: a.soi,
+            mass_at_adopted: a.mass_at_adopted,
+            clashes: a.clashes,
+            max_abs_z: a.max_abs_z,
+        });
+    }
+    // Stable sort: equal |z| keep the queue's oldest-first order.
+    items.sort_by(|a, b| b.max_abs_z.total_cmp(&a.max_abs_z));
+    Ok(ReviewPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        items,
+    })
+}
+
+fn parse_id(id: &str) -> AppResult<i64> {
+    id.parse()
+        .map_err(|_| AppError::bad_request("The submission number in the address is not a number."))
+}
+
+/// Refuse unless the submission exists and the caller may review it.
+async fn check_reviewable(state: &AppState, principal: &Principal, id: i64) -> AppResult<i64> {
+    let user = session_of(principal)?;
+    let summary = submissions::find(&state.pool, id)
+        .await?
+        .ok_or_else(|| AppError::not_found(format!("Submission number {id}")))?;
+    if !may_review(user.role, user.account_id, summary.account_id) {
+        return Err(AppError::forbidden(OWN_SUBMISSION));
+    }
+    Ok(user.account_id)
+}
+
+fn decision_error(e: SubmissionError) -> AppError {
+    match e {
+        SubmissionError::Db(e) => e.into(),
+        SubmissionError::OwnSubmission => AppError::forbidden(OWN_SUBMISSION),
+        SubmissionError::NotFound => AppError::not_found("The submission"),
+        other => AppError::bad_request(other.to_string()),
+    }
+}
+
+/// Accept: `note`, and for each clash `keep_<measurement id>=old` to keep the adopted value
+/// (anything else, or nothing, adopts the new one).
+pub(crate) async fn accept(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Path(id): Path<String>,
+    Form(pairs): Form<Vec<(String, String)>>,
+) -> AppResult<Redirect> {
+    let id = parse_id(&id)?;
+    let reviewer = check_reviewable(&state, &principal, id).await?;
+    let mut note = String::new();
+    let mut keep_old = HashSet::new();
+    for (k, v) in &pairs {
+        if k == "note" {
+            v.trim().clone_into(&mut note);
+        } else if let Some(mid) = k.strip_prefix("keep_")
+            && v == "old"
+        {
+            let mid: i64 = mid.parse().map_err(|_| {
+                AppError::bad_request(format!("'{k}' is not a field of this form."))
+            })?;
+            keep_old.insert(mid);
+        }
+    }
+    check_note(&note)?;
+    submissions::accept(&state.pool, reviewer, id, &keep_old, &note)
+        .await
+        .map_err(decision_error)?;
+    Ok(Redirect::to("/review"))
+}
+
+/// The reject form's fields.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct RejectForm {
+    #[serde(default)]
+    note: String,
+}
+
+/// Reject with a note (required: the submitter and the galaxy page show it).
+pub(crate) async fn reject(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Path(id): Path<String>,
+    Form(form): Form<RejectForm>,
+) -> AppResult<Redirect> {
+    let id = parse_id(&id)?;
+    let reviewer = check_reviewable(&state, &principal, id).await?;
+    let note = form.note.trim();
+    if note.is_empty() {
+        return Err(AppError::bad_request(
+            "A rejection needs a note saying why; nothing was changed.",
+        ));
+    }
+    check_note(note)?;
+    submissions::reject(&state.pool, reviewer, id, note)
+        .await
+        .map_err(decision_error)?;
+    Ok(Redirect::to("/review"))
+}
+
+fn check_note(note: &str) -> AppResult<()> {
+    if note.chars().count() > 2000 {
+        Err(AppError::bad_request(
+            "The note has at most 2000 characters; nothing was changed.",
+        ))
+    } else {
+        Ok(())
+    }
+}

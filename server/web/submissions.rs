@@ -1,0 +1,750 @@
+//! Members' submissions: `/submissions/new` (the form), `/submissions` (one's own, with
+//! withdraw), `/submissions/{id}` (one submission and where its galaxy falls against each
+//! relation). [`assess`] is shared with the review queue.
+//!
+//! Every typed value goes through the same cell readers as the catalog CSV files
+//! (`catalog::demo::measurement_from_cells`, hence `units::parse_entry`), so a form and a file
+//! accept exactly the same things. A refused form comes back with what was typed and a message
+//! beside each field at fault; nothing is written unless every measurement is valid.
+
+use std::collections::HashMap;
+
+use askama::Template;
+use askama_web::WebTemplate;
+use axum::Form;
+use axum::extract::{Extension, Path, State};
+use axum::http::StatusCode;
+use axum::response::{IntoResponse, Redirect, Response};
+
+use super::Nav;
+use super::account::session_of;
+use super::display::{fixed, significant};
+use super::place::{PlaceChart, PlaceRow, Subject, SubjectMass, input_text, place_with_refit};
+use crate::auth::{Principal, Role, SessionUser};
+use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
+use crate::catalog::galaxies::{self as store, SubmissionSource};
+use crate::catalog::model::{
+    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, Galaxy, MassMethod, Measurement,
+    Morphology, Quantity, SigmaDefinition,
+};
+use crate::catalog::relation_rows;
+use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError, SubmissionSummary};
+use crate::error::{AppError, AppResult};
+use crate::relations::{Relation, at_adopted_distance, sphere_of_influence};
+use crate::startup::AppState;
+use crate::units::format_log_with_errors;
+
+/// Measurement rows on the form.
+pub(crate) const FORM_ROWS: usize = 4;
+
+/// The measurement columns of the form (and of the CSV files), with their labels.
+const MEASUREMENT_COLUMNS: [(&str, &str); 12] = [
+    ("quantity", "Quantity"),
+    ("value", "Value as published"),
+    ("scale", "Scale"),
+    ("limit_confidence_sigma", "Limit confidence [σ]"),
+    ("method", "Method"),
+    ("sigma_definition", "σ definition"),
+    ("aperture", "Aperture"),
+    ("band", "Band"),
+    ("source_distance_mpc", "Source distance [Mpc]"),
+    ("resolution_arcsec", "Resolution [arcsec]"),
+    ("reference", "Reference"),
+    ("note", "Note"),
+];
+
+/// The new-galaxy columns, with their labels.
+const GALAXY_COLUMNS: [(&str, &str); 7] = [
+    ("name", "Name"),
+    ("morphology", "Morphology"),
+    ("bulge_kind", "Bulge kind"),
+    ("centre_kind", "Centre kind"),
+    ("distance_mpc", "Adopted distance [Mpc]"),
+    ("distance_err_mpc", "Distance error [Mpc]"),
+    ("distance_method", "Distance method"),
+];
+
+/// One input of the form: a select when `options` is not empty, a text box otherwise.
+pub(crate) struct Input {
+    name: String,
+    label: &'static str,
+    value: String,
+    error: Option<String>,
+    /// (value, label, selected)
+    options: Vec<(String, String, bool)>,
+}
+
+fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
+    let pairs: Vec<(&str, &str)> = match column {
+        "quantity" => Quantity::pairs(),
+        "scale" => vec![
+            ("auto", "auto (linear unless 'log')"),
+            ("linear", "linear"),
+            ("log10", "log10"),
+        ],
+        "limit_confidence_sigma" => vec![("1", "1σ"), ("2", "2σ"), ("3", "3σ")],
+        "method" => MassMethod::pairs()
+            .into_iter()
+            .chain(BulgeMassMethod::pairs())
+            .collect(),
+        "sigma_definition" => SigmaDefinition::pairs(),
+        "morphology" => Morphology::pairs(),
+        "bulge_kind" => BulgeKind::pairs(),
+        "centre_kind" => CentreKind::pairs(),
+        "distance_method" => DistanceMethod::pairs(),
+        _ => return Vec::new(),
+    };
+    let mut out = Vec::with_capacity(pairs.len() + 1);
+    if !matches!(
+        column,
+        "scale" | "morphology" | "bulge_kind" | "centre_kind" | "distance_method"
+    ) {
+        out.push((String::new(), "—".to_owned(), value.is_empty()));
+    }
+    out.extend(
+        pairs
+            .into_iter()
+            .map(|(v, l)| (v.to_owned(), l.to_owned(), v == value)),
+    );
+    out
+}
+
+/// One measurement row of the form.
+pub(crate) struct RowInputs {
+    number: usize,
+    inputs: Vec<Input>,
+}
+
+/// `/submissions/new`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/submission_new.html")]
+pub(crate) struct NewSubmissionPage {
+    nav: Nav,
+    csrf: String,
+    /// (slug, name, selected)
+    galaxies: Vec<(String, String, bool)>,
+    galaxy_error: Option<String>,
+    galaxy_inputs: Vec<Input>,
+    rows: Vec<RowInputs>,
+    note: String,
+    form_error: Option<String>,
+}
+
+type Fields = HashMap<String, String>;
+
+async fn form_page(
+    state: &AppState,
+    user: &SessionUser,
+    nav: Nav,
+    fields: &Fields,
+    errors: &HashMap<String, String>,
+    form_error: Option<String>,
+) -> AppResult<NewSubmissionPage> {
+    let get = |name: &str| fields.get(name).cloned().unwrap_or_default();
+    let chosen = get("galaxy");
+    let galaxies = submissions::galaxy_names(&state.pool)
+        .await?
+        .into_iter()
+        .map(|(_, name, slug)| {
+            let selected = slug == chosen;
+            (slug, name, selected)
+        })
+        .collect();
+    let input = |name: String, column: &str, label: &'static str| {
+        let value = get(&name);
+        Input {
+            error: errors.get(&name).cloned(),
+            options: options_for(column, &value),
+            name,
+            label,
+            value,
+        }
+    };
+    let galaxy_inputs = GALAXY_COLUMNS
+        .iter()
+        .map(|(c, l)| input((*c).to_owned(), c, l))
+        .collect();
+    let rows = (0..FORM_ROWS)
+        .map(|i| RowInputs {
+            number: i + 1,
+            inputs: MEASUREMENT_COLUMNS
+                .iter()
+                .map(|(c, l)| input(format!("m{i}_{c}"), c, l))
+                .collect(),
+        })
+        .collect();
+    Ok(NewSubmissionPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        galaxies,
+        galaxy_error: errors.get("galaxy").cloned(),
+        galaxy_inputs,
+        rows,
+        note: get("note"),
+        form_error,
+    })
+}
+
+/// Show the empty submission form.
+pub(crate) async fn new_submission(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+) -> AppResult<NewSubmissionPage> {
+    let user = session_of(&principal)?;
+    form_page(&state, user, nav, &HashMap::new(), &HashMap::new(), None).await
+}
+
+/// Store a submission from the form, or show the form again with a message beside each field
+/// at fault (400) and nothing written.
+pub(crate) async fn create_submission(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+    Form(pairs): Form<Vec<(String, String)>>,
+) -> AppResult<Response> {
+    let user = session_of(&principal)?;
+    let fields: Fields = pairs.into_iter().collect();
+    let get = |name: &str| fields.get(name).map_or("", |v| v.as_str());
+    let mut errors: HashMap<String, String> = HashMap::new();
+
+    let slug = get("galaxy").trim();
+    let galaxy = if slug.is_empty() {
+        match galaxy_from_cells("form", 0, &|c| get(c)) {
+            Ok(g) => Some(GalaxyChoice::New(g)),
+            Err(e) => {
+                errors.insert(e.column.to_owned(), capitalised(&e.message));
+                None
+            }
+        }
+    } else {
+        match store::find_by_slug(&state.pool, slug).await? {
+            Some(g) => Some(GalaxyChoice::Existing(g.galaxy_id)),
+            None => {
+                errors.insert(
+                    "galaxy".into(),
+                    "That galaxy is not in the catalog; choose another or describe a new one."
+                        .into(),
+                );
+                None
+            }
+        }
+    };
+
+    let mut measurements = Vec::new();
+    for i in 0..FORM_ROWS {
+        let key = |c: &str| format!("m{i}_{c}");
+        let used = ["quantity", "value"]
+            .iter()
+            .any(|c| !get(&key(c)).trim().is_empty());
+        if !used {
+            continue;
+        }
+        match measurement_from_cells("form", 0, &|c| get(&key(c))) {
+            Ok(m) => measurements.push(m),
+            Err(e) => {
+                errors.insert(key(e.column), capitalised(&e.message));
+            }
+        }
+    }
+    let note = get("note").trim();
+    if note.chars().count() > 2000 {
+        errors.insert(
+            "note".into(),
+            "The note has at most 2000 characters.".into(),
+        );
+    }
+    let mut form_error = None;
+    if measurements.is_empty() && errors.keys().all(|k| !k.starts_with('m')) {
+        form_error = Some("Give at least one measurement: a quantity and its value.".to_owned());
+    }
+    let (Some(galaxy), true, None) = (galaxy, errors.is_empty(), &form_error) else {
+        let form_error = form_error
+            .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
+        let page = form_page(&state, user, nav, &fields, &errors, form_error).await?;
+        return Ok((StatusCode::BAD_REQUEST, page).into_response());
+    };
+    match submissions::create(
+        &state.pool,
+        Some(user.account_id),
+        SubmissionSource::Form,
+        &galaxy,
+        &measurements,
+        note,
+    )
+    .await
+    {
+        Ok(created) => {
+            Ok(Redirect::to(&format!("/submissions/{}", created.submission_id)).into_response())
+        }
+        Err(SubmissionError::Db(e)) => Err(e.into()),
+        Err(e) => {
+            let field = match e {
+                SubmissionError::NameTaken => "name",
+                _ => "galaxy",
+            };
+            errors.insert(field.into(), e.to_string());
+            let page = form_page(
+                &state,
+                user,
+                nav,
+                &fields,
+                &errors,
+                Some("Nothing was saved; correct the fields marked below.".to_owned()),
+            )
+            .await?;
+            Ok((StatusCode::BAD_REQUEST, page).into_response())
+        }
+    }
+}
+
+/// "the value …" → "The value …." (cell messages are lower-case fragments).
+fn capitalised(message: &str) -> String {
+    let mut chars = message.chars();
+    let mut out: String = match chars.next() {
+        Some(c) => c.to_uppercase().chain(chars).collect(),
+        None => String::new(),
+    };
+    if !out.ends_with('.') {
+        out.push('.');
+    }
+    out
+}
+
+/// A submission in a list.
+pub(crate) struct SummaryView {
+    id: i64,
+    galaxy_name: String,
+    galaxy_slug: String,
+    state: String,
+    created_at: String,
+    n_measurements: i64,
+    pending: bool,
+}
+
+impl SummaryView {
+    fn new(s: &SubmissionSummary) -> Self {
+        Self {
+            id: s.submission_id,
+            galaxy_name: s.galaxy_name.clone(),
+            galaxy_slug: s.galaxy_slug.clone(),
+            state: s.state.clone(),
+            created_at: s
+                .created_at
+                .get(..16)
+                .unwrap_or(&s.created_at)
+                .replace('T', " "),
+            n_measurements: s.n_measurements,
+            pending: s.state == "pending",
+        }
+    }
+}
+
+/// `/submissions`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/submissions_list.html")]
+pub(crate) struct SubmissionsListPage {
+    nav: Nav,
+    csrf: String,
+    submissions: Vec<SummaryView>,
+}
+
+/// The logged-in person's submissions, newest first.
+pub(crate) async fn list_submissions(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+) -> AppResult<SubmissionsListPage> {
+    let user = session_of(&principal)?;
+    let list = submissions::list_for_account(&state.pool, user.account_id).await?;
+    Ok(SubmissionsListPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        submissions: list.iter().map(SummaryView::new).collect(),
+    })
+}
+
+fn parse_id(id: &str) -> AppResult<i64> {
+    id.parse()
+        .map_err(|_| AppError::bad_request("The submission number in the address is not a number."))
+}
+
+/// Withdraw one's own pending submission.
+pub(crate) async fn withdraw_submission(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Path(id): Path<String>,
+) -> AppResult<Redirect> {
+    let user = session_of(&principal)?;
+    let id = parse_id(&id)?;
+    match submissions::withdraw(&state.pool, user.account_id, id).await {
+        Ok(()) => Ok(Redirect::to("/submissions")),
+        // Someone else's submission is as good as absent: its existence is not theirs to know.
+        Err(SubmissionError::NotFound | SubmissionError::NotYours) => {
+            Err(AppError::not_found(format!("Your submission number {id}")))
+        }
+        Err(SubmissionError::Db(e)) => Err(e.into()),
+        Err(e) => Err(AppError::bad_request(e.to_string())),
+    }
+}
+
+/// One measurement of a submission, for display.
+pub(crate) struct MeasurementView {
+    pub(crate) quantity: &'static str,
+    pub(crate) value_text: String,
+    pub(crate) log_value: String,
+    pub(crate) detail: String,
+    pub(crate) reference: String,
+}
+
+impl MeasurementView {
+    pub(crate) fn new(m: &Measurement) -> Self {
+        let quantity = m
+            .quantity
+            .parse::<Quantity>()
+            .map_or("unknown quantity", Quantity::label);
+        let detail = [
+            m.method.as_str(),
+            m.sigma_definition.as_str(),
+            m.aperture.as_str(),
+            m.band.as_str(),
+        ]
+        .iter()
+        .filter(|t| !t.is_empty())
+        .copied()
+        .collect::<Vec<_>>()
+        .join(", ");
+        Self {
+            quantity,
+            value_text: m.value_text.clone(),
+            log_value: format_log_with_errors(
+                m.log_value,
+                m.err_minus_dex,
+                m.err_plus_dex,
+                m.upper_limit,
+            ),
+            detail,
+            reference: m.reference.clone(),
+        }
+    }
+}
+
+/// What a submission means for the catalog: where its galaxy falls against each relation
+/// (with the submitted values in place of the adopted ones), the sphere-of-influence check,
+/// the mass at the adopted distance and the adopted values it would replace.
+pub(crate) struct Assessment {
+    pub(crate) rows: Vec<PlaceRow>,
+    pub(crate) charts: Vec<PlaceChart>,
+    pub(crate) soi: Option<String>,
+    pub(crate) mass_at_adopted: Option<String>,
+    pub(crate) clashes: Vec<ClashView>,
+    /// The largest |z| over the relations (0 without a mass): the review queue's order.
+    pub(crate) max_abs_z: f64,
+}
+
+/// An adopted value a submitted one would replace.
+pub(crate) struct ClashView {
+    pub(crate) new_measurement_id: i64,
+    pub(crate) text: String,
+}
+
+/// The value of `quantity` (and band) to use: the submitted one if any, else the adopted one.
+fn pick<'a>(
+    submitted: &'a [Measurement],
+    all: &'a [Measurement],
+    quantity: Quantity,
+    band: Option<&str>,
+) -> Option<&'a Measurement> {
+    let matches = |m: &&Measurement| {
+        m.quantity == quantity.as_str() && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
+    };
+    submitted
+        .iter()
+        .find(matches)
+        .or_else(|| all.iter().filter(|m| m.adopted).find(matches))
+}
+
+/// Assess a submission (see [`Assessment`]); `charts` draws the relation charts too.
+pub(crate) async fn assess(
+    state: &AppState,
+    galaxy: &Galaxy,
+    submitted: &[Measurement],
+    charts: bool,
+) -> AppResult<Assessment> {
+    let all = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
+    let at_adopted = |m: &Measurement| {
+        at_adopted_distance(
+            m.log_value,
+            &m.quantity,
+            &m.method,
+            m.source_distance_mpc,
+            galaxy.distance_mpc,
+        )
+    };
+    let value = |m: &Measurement| (at_adopted(m), m.err_dex);
+    let text = |m: &Measurement| {
+        format_log_with_errors(
+            at_adopted(m),
+            m.err_minus_dex,
+            m.err_plus_dex,
+            m.upper_limit,
+        )
+    };
+    let mass_m = pick(submitted, &all, Quantity::BhMass, None);
+    let sigma_m = pick(submitted, &all, Quantity::Sigma, None)
+        .filter(|m| m.sigma_definition == SigmaDefinition::Effective.as_str());
+    let bulge_m = pick(submitted, &all, Quantity::BulgeMass, None);
+    let mass = mass_m.map(|m| SubjectMass {
+        log_mbh: at_adopted(m),
+        err_minus_dex: m.err_minus_dex,
+        err_plus_dex: m.err_plus_dex,
+        err_dex: m.err_dex,
+        xy_cov: 0.0,
+        upper_limit: m.upper_limit,
+    });
+    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
+        .await?
+        .into_iter()
+        .filter(|b| Relation::valid_band(b))
+        .collect();
+    let mut rows = Vec::new();
+    let mut chart_list = Vec::new();
+    let mut max_abs_z: f64 = 0.0;
+    for relation in Relation::all(&bands) {
+        let (x, x2) = match &relation {
+            Relation::MSigma => (sigma_m, None),
+            Relation::MBulge => (bulge_m, None),
+            Relation::Luminosity(b) => (
+                pick(submitted, &all, Quantity::BulgeLuminosity, Some(b)),
+                None,
+            ),
+            Relation::SigmaBulgePlane => (sigma_m.filter(|_| bulge_m.is_some()), bulge_m),
+        };
+        let Some(x) = x else { continue };
+        let x2_text = x2.map(text);
+        let subject = Subject {
+            name: galaxy.name.clone(),
+            href: Some(format!("/galaxies/{}", galaxy.slug)),
+            x: value(x),
+            x2: x2.map(value),
+            mass,
+            input: input_text(&relation, &text(x), x2_text.as_deref()),
+        };
+        let placed = place_with_refit(state, &relation, &subject).await?;
+        if let Some(z) = placed.row.z_abs {
+            max_abs_z = max_abs_z.max(z);
+        }
+        rows.push(placed.row);
+        if charts {
+            chart_list.extend(placed.chart);
+        }
+    }
+    let soi = mass_m.and_then(|m| {
+        let s = sphere_of_influence(
+            at_adopted(m),
+            &m.method,
+            pick(submitted, &all, Quantity::Sigma, None).map(|s| s.log_value),
+            galaxy.distance_mpc,
+            m.resolution_arcsec,
+            state.settings.soi_threshold,
+        )?;
+        Some(format!(
+            "r_infl = {} pc = {}″; resolution/θ = {} ({})",
+            significant(s.radius_pc, 3),
+            significant(s.theta_arcsec, 3),
+            s.ratio.map_or("—".into(), |r| significant(r, 2)),
+            match s.resolved {
+                Some(true) => "resolved",
+                Some(false) => "not resolved",
+                None => "unknown: no resolution given",
+            }
+        ))
+    });
+    let mass_at_adopted = submitted
+        .iter()
+        .find(|m| m.quantity == Quantity::BhMass.as_str())
+        .map(|m| {
+            format!(
+                "{} log10 M☉ at {} Mpc (as published: {}{})",
+                text(m),
+                significant(galaxy.distance_mpc, 3),
+                fixed(m.log_value, 2),
+                m.source_distance_mpc
+                    .map_or(String::new(), |d| format!(" at {} Mpc", significant(d, 3)))
+            )
+        });
+    let submission_id = submitted.first().map_or(0, |m| m.submission_id);
+    let clashes = submissions::clashes(&state.pool, submission_id)
+        .await?
+        .into_iter()
+        .map(|c| ClashView {
+            new_measurement_id: c.new_measurement_id,
+            text: format!(
+                "The {}{} already has an adopted value: {} (log10 {}).",
+                c.quantity
+                    .parse::<Quantity>()
+                    .map_or("value", Quantity::label),
+                if c.band.is_empty() {
+                    String::new()
+                } else {
+                    format!(" in {}", c.band)
+                },
+                c.adopted_value_text,
+                fixed(c.adopted_log_value, 2)
+            ),
+        })
+        .collect();
+    Ok(Assessment {
+        rows,
+        charts: chart_list,
+        soi,
+        mass_at_adopted,
+        clashes,
+        max_abs_z,
+    })
+}
+
+/// `/submissions/{id}`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/submission_show.html")]
+pub(crate) struct SubmissionPage {
+    nav: Nav,
+    csrf: String,
+    summary: SummaryView,
+    own: bool,
+    note: String,
+    measurements: Vec<MeasurementView>,
+    rows: Vec<PlaceRow>,
+    charts: Vec<PlaceChart>,
+    soi: Option<String>,
+    mass_at_adopted: Option<String>,
+    clashes: Vec<ClashView>,
+}
+
+/// One submission: its measurements and where its galaxy falls against each relation. The
+/// submitter, reviewers and admins may see it; to anyone else it does not exist (404).
+pub(crate) async fn show_submission(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+    Path(id): Path<String>,
+) -> AppResult<SubmissionPage> {
+    let user = session_of(&principal)?;
+    let id = parse_id(&id)?;
+    let summary = submissions::find(&state.pool, id).await?;
+    let own = summary
+        .as_ref()
+        .is_some_and(|s| s.account_id == Some(user.account_id));
+    let Some(summary) = summary.filter(|_| own || user.role.includes(Role::Reviewer)) else {
+        return Err(AppError::not_found(format!("Submission number {id}")));
+    };
+    let galaxy = submissions::galaxy_by_id(&state.pool, summary.galaxy_id)
+        .await?
+        .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
+    let measured = submissions::measurements_of_submission(&state.pool, id).await?;
+    let a = assess(&state, &galaxy, &measured, true).await?;
+    Ok(SubmissionPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        own,
+        note: summary.note.clone(),
+        summary: SummaryView::new(&summary),
+        measurements: measured.iter().map(MeasurementView::new).collect(),
+        rows: a.rows,
+        charts: a.charts,
+        soi: a.soi,
+        mass_at_adopted: a.mass_at_adopted,
+        clashes: a.clashes,
+    })
+}
+
+/// `/submissions/upload`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/submission_upload.html")]
+pub(crate) struct UploadPage {
+    nav: Nav,
+    csrf: String,
+    columns: String,
+    text: String,
+    /// (line, column, message) of every faulty row.
+    faults: Vec<(u64, String, String)>,
+    summary: Option<String>,
+}
+
+fn upload_page(nav: Nav, user: &SessionUser, text: String) -> UploadPage {
+    UploadPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        columns: crate::catalog::csv_io::COLUMNS.join(","),
+        text,
+        faults: Vec::new(),
+        summary: None,
+    }
+}
+
+/// The CSV upload form.
+pub(crate) async fn show_upload(
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+) -> AppResult<UploadPage> {
+    let user = session_of(&principal)?;
+    Ok(upload_page(nav, user, String::new()))
+}
+
+/// The upload form's fields.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct UploadForm {
+    #[serde(default)]
+    csv: String,
+}
+
+/// Import pasted CSV rows as pending submissions (one per galaxy), whole or not at all; a
+/// faulty file gets a report of every faulty row (400) and nothing is written.
+pub(crate) async fn upload(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: Nav,
+    Form(form): Form<UploadForm>,
+) -> AppResult<Response> {
+    use crate::catalog::csv_io::{ImportError, ImportMode, import_csv};
+    let user = session_of(&principal)?;
+    let mode = ImportMode::Pending {
+        account_id: Some(user.account_id),
+        source: SubmissionSource::Csv,
+    };
+    match import_csv(&state.pool, &form.csv, mode, &mut |_, _| {}).await {
+        Ok(_) => Ok(Redirect::to("/submissions").into_response()),
+        Err(ImportError::Rows(rows)) => {
+            let mut page = upload_page(nav, user, form.csv);
+            page.summary = Some(format!(
+                "{} faulty row(s); nothing was imported.",
+                rows.len()
+            ));
+            page.faults = rows
+                .into_iter()
+                .map(|r| (r.line, r.column.to_owned(), capitalised(&r.message)))
+                .collect();
+            Ok((StatusCode::BAD_REQUEST, page).into_response())
+        }
+        Err(ImportError::Db(e)) => Err(e.into()),
+    }
+}
+
+/// The adopted catalog as CSV (the import format), named with its catalog version.
+pub(crate) async fn download_catalog(State(state): State<AppState>) -> AppResult<Response> {
+    let (text, version) = crate::catalog::csv_io::export_csv(&state.pool).await?;
+    Ok((
+        [
+            (
+                axum::http::header::CONTENT_TYPE,
+                "text/csv; charset=utf-8".to_owned(),
+            ),
+            (
+                axum::http::header::CONTENT_DISPOSITION,
+                format!("attachment; filename=\"massline-catalog-v{version}.csv\""),
+            ),
+        ],
+        text,
+    )
+        .into_response())
+}
