@@ -317,6 +317,8 @@ mod tests {
             distance_err_mpc: 1.8,
             log_mbh: Some(8.0),
             mbh_err_dex: Some(0.1),
+            mbh_err_minus_dex: Some(0.1),
+            mbh_err_plus_dex: Some(0.1),
             mbh_upper_limit: Some(false),
             mbh_method: Some("stellar_dynamics".to_owned()),
             mbh_source_distance_mpc: Some(16.5),

@@ -10,8 +10,9 @@ use axum::extract::{Path, Query, State};
 use super::display::{
     at_adopted_distance, fixed, quantity_label, quantity_unit, significant, sphere_of_influence,
 };
-use crate::catalog::galaxies::{self as store, CatalogRow};
+use crate::catalog::galaxies as store;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
+use crate::catalog::relation_rows::{RelationRow, relation_rows};
 use crate::error::{AppError, AppResult};
 use crate::startup::AppState;
 use crate::units::{
@@ -220,7 +221,7 @@ fn choice<T: Copy>(value: &str, options: &[(&str, T)]) -> Result<T, String> {
 /// A catalog row with the values the table shows, computed once.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct TableRow {
-    row: CatalogRow,
+    row: RelationRow,
     /// Adopted log M_BH rescaled to the adopted distance.
     log_mbh_adopted_d: Option<f64>,
     /// Adopted log M_bulge rescaled to the adopted distance.
@@ -230,7 +231,7 @@ pub(crate) struct TableRow {
 }
 
 impl TableRow {
-    pub(crate) fn new(row: CatalogRow, soi_threshold: f64) -> Self {
+    pub(crate) fn new(row: RelationRow, soi_threshold: f64) -> Self {
         let log_mbh_adopted_d = row.log_mbh.map(|v| {
             at_adopted_distance(
                 v,
@@ -395,7 +396,7 @@ pub(crate) async fn list_galaxies(
     })?;
     let q = TableQuery::parse(&pairs).map_err(AppError::bad_request)?;
     let threshold = state.settings.soi_threshold;
-    let rows = store::catalog_rows(&state.pool)
+    let rows = relation_rows(&state.pool)
         .await?
         .into_iter()
         .map(|r| TableRow::new(r, threshold))
