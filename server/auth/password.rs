@@ -11,6 +11,7 @@
 //! refuses common and guessable passwords.
 
 use std::sync::Arc;
+use std::sync::atomic::{AtomicU64, Ordering};
 
 use anyhow::Context;
 use argon2::Argon2;
@@ -31,6 +32,9 @@ pub struct Passwords {
     /// A hash of a random password nobody knows: an unknown user name is checked against it, so
     /// that answering takes as long as for a known name.
     dummy_hash: Arc<String>,
+    /// Argon2 verifications run so far, known and unknown names alike (tests use it to see
+    /// that an unknown name is checked against the dummy hash rather than answered at once).
+    verifications: Arc<AtomicU64>,
 }
 
 impl std::fmt::Debug for Passwords {
@@ -50,6 +54,7 @@ impl Passwords {
         Ok(Self {
             permits,
             dummy_hash: Arc::new(dummy),
+            verifications: Arc::new(AtomicU64::new(0)),
         })
     }
 
@@ -74,7 +79,13 @@ impl Passwords {
         let ok = tokio::task::spawn_blocking(move || verify_now(&password, &phc))
             .await
             .unwrap_or(false);
+        self.verifications.fetch_add(1, Ordering::Relaxed);
         ok && known
+    }
+
+    /// Number of password verifications run since start-up.
+    pub fn verifications(&self) -> u64 {
+        self.verifications.load(Ordering::Relaxed)
     }
 }
 
