@@ -16,9 +16,10 @@
 //!   the fit cache keyed by catalog version.
 //! * [`auth`]: roles, sessions, API tokens, password rules and the layers that authenticate
 //!   every request and refuse forged ones.
-//! * [`web`]: HTML pages; thin handlers over the layers above.
+//! * [`web`]: HTML pages; thin handlers over the layers above. [`api`]: the JSON API.
 //! * [`startup`] and [`config`]: settings, building and running the server.
 
+pub mod api;
 pub mod astro;
 pub mod auth;
 pub mod catalog;
