@@ -309,16 +309,18 @@ fn run(req: FitRequest) -> Result<FitAnswer, Problem> {
     let fitted = fit::fit(&points, &spec).map_err(|e| fit_problem(&e))?;
     let seed = req.seed.unwrap_or(1);
     let boot: Option<Bootstrap> = match req.bootstrap {
-        Some(n) => Some(bootstrap(&points, &spec, n as usize, seed).map_err(|e| {
-            Problem::invalid(vec![FieldError::new("bootstrap", e.to_string())])
-        })?),
+        Some(n) => Some(
+            bootstrap(&points, &spec, n as usize, seed)
+                .map_err(|e| Problem::invalid(vec![FieldError::new("bootstrap", e.to_string())]))?,
+        ),
         None => None,
     };
     let post: Option<Posterior> = match req.posterior_steps {
         Some(steps) => {
             let steps = steps as usize;
-            let problem =
-                |e: FitError| Problem::invalid(vec![FieldError::new("posterior_steps", e.to_string())]);
+            let problem = |e: FitError| {
+                Problem::invalid(vec![FieldError::new("posterior_steps", e.to_string())])
+            };
             let cfg = EnsembleConfig::new(
                 POSTERIOR_WALKERS,
                 steps,

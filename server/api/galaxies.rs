@@ -219,9 +219,8 @@ pub async fn list_galaxies(
     if !errors.is_empty() {
         return Err(Problem::invalid(errors));
     }
-    let q = TableQuery::parse(&pairs).map_err(|e| {
-        Problem::new(StatusCode::UNPROCESSABLE_ENTITY, "Invalid input", e)
-    })?;
+    let q = TableQuery::parse(&pairs)
+        .map_err(|e| Problem::new(StatusCode::UNPROCESSABLE_ENTITY, "Invalid input", e))?;
     let threshold = state.settings.soi_threshold;
     let rows = relation_rows(&state.pool)
         .await?
@@ -371,16 +370,18 @@ pub async fn show_galaxy(
     State(state): State<AppState>,
     Path(slug): Path<String>,
 ) -> ApiResult<Json<GalaxyAnswer>> {
-    let galaxy = store::find_by_slug(&state.pool, &slug).await?.ok_or_else(|| {
-        Problem::new(
-            StatusCode::NOT_FOUND,
-            "Not found",
-            format!(
-                "There is no galaxy '{}'.",
-                slug.chars().take(80).collect::<String>()
-            ),
-        )
-    })?;
+    let galaxy = store::find_by_slug(&state.pool, &slug)
+        .await?
+        .ok_or_else(|| {
+            Problem::new(
+                StatusCode::NOT_FOUND,
+                "Not found",
+                format!(
+                    "There is no galaxy '{}'.",
+                    slug.chars().take(80).collect::<String>()
+                ),
+            )
+        })?;
     let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
     let at_d = |m: &crate::catalog::model::Measurement| {
         at_adopted_distance(

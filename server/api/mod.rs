@@ -80,22 +80,16 @@ fn json_problem(rejection: &JsonRejection) -> Problem {
             };
             Problem::invalid(vec![FieldError::new(field, sentence(message))])
         }
-        JsonRejection::JsonSyntaxError(_) => Problem::new(
-            StatusCode::BAD_REQUEST,
-            "Unreadable JSON",
-            sentence(&text),
-        ),
+        JsonRejection::JsonSyntaxError(_) => {
+            Problem::new(StatusCode::BAD_REQUEST, "Unreadable JSON", sentence(&text))
+        }
         JsonRejection::MissingJsonContentType(_) => Problem::new(
             StatusCode::UNSUPPORTED_MEDIA_TYPE,
             "Unsupported media type",
             "The body must be JSON, sent with Content-Type: application/json.",
         ),
         _ if status == StatusCode::PAYLOAD_TOO_LARGE => too_large(),
-        _ => Problem::new(
-            StatusCode::BAD_REQUEST,
-            "Unreadable body",
-            sentence(&text),
-        ),
+        _ => Problem::new(StatusCode::BAD_REQUEST, "Unreadable body", sentence(&text)),
     }
 }
 
@@ -133,7 +127,10 @@ pub fn query_pairs(
         Problem::new(
             StatusCode::BAD_REQUEST,
             "Unreadable query",
-            format!("The address's parameters could not be read: {}.", e.body_text()),
+            format!(
+                "The address's parameters could not be read: {}.",
+                e.body_text()
+            ),
         )
     })
 }
@@ -268,7 +265,10 @@ mod tests {
 
     #[test]
     fn messages_become_sentences() {
-        assert_eq!(sentence("expected value at line 1"), "Expected value at line 1.");
+        assert_eq!(
+            sentence("expected value at line 1"),
+            "Expected value at line 1."
+        );
         assert_eq!(sentence("Done."), "Done.");
         assert_eq!(sentence(""), "The request could not be read.");
     }

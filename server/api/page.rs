@@ -35,9 +35,8 @@ pub(crate) struct ApiPage {
 const READ: &str = "token with scope read, or a session (anyone with --public-read for GET)";
 
 fn get_example(base: &str, path_and_query: &str) -> (String, String) {
-    let curl = format!(
-        "curl -H \"Authorization: Bearer $MASSLINE_TOKEN\" '{base}{path_and_query}'"
-    );
+    let curl =
+        format!("curl -H \"Authorization: Bearer $MASSLINE_TOKEN\" '{base}{path_and_query}'");
     let python = format!(
         "import json, os, urllib.request\n\
          req = urllib.request.Request(\"{base}{path_and_query}\",\n    \
@@ -99,14 +98,20 @@ pub(crate) async fn show_api_page(nav: Nav, headers: HeaderMap) -> ApiPage {
         "/api/v1/relations/{relation}",
         READ,
         "The current fit of one relation for the estimator (method), sample filter (morphology, bulge_kind, centre_kind, mass_method, soi, sigma_definition, limits) and pivots (pivot, pivot2) asked, as on the relation page: parameters with errors, covariance, N, catalog version, fitted_at. Sends an ETag; If-None-Match with it answers 304 while the catalog is unchanged.",
-        get_example(b, "/api/v1/relations/m_sigma?method=conditional&limits=exclude"),
+        get_example(
+            b,
+            "/api/v1/relations/m_sigma?method=conditional&limits=exclude",
+        ),
     );
     add(
         "GET",
         "/api/v1/place",
         READ,
         "Where one object falls against every relation it has values for (the place page's parameters sigma, bulge_mass, luminosity, band, mass, distance, resolution, each as typed): prediction with 68/95 % intervals, residual_dex, z, verdict, P(below a limit), sphere of influence.",
-        get_example(b, "/api/v1/place?sigma=210%20%C2%B1%2010&mass=3.2e8%20%2B0.5e8/-0.3e8&distance=16.5&resolution=0.1"),
+        get_example(
+            b,
+            "/api/v1/place?sigma=210%20%C2%B1%2010&mass=3.2e8%20%2B0.5e8/-0.3e8&distance=16.5&resolution=0.1",
+        ),
     );
     add(
         "POST",
@@ -124,7 +129,10 @@ pub(crate) async fn show_api_page(nav: Nav, headers: HeaderMap) -> ApiPage {
         "/api/v1/galaxies",
         READ,
         "The catalog table with the filters, sort and pages of /galaxies (morphology, bulge_kind, method, limits, soi, sort, dir, page, per_page).",
-        get_example(b, "/api/v1/galaxies?limits=detections&sort=sigma&dir=desc&per_page=100"),
+        get_example(
+            b,
+            "/api/v1/galaxies?limits=detections&sort=sigma&dir=desc&per_page=100",
+        ),
     );
     add(
         "GET",

@@ -33,9 +33,7 @@ use crate::fit::Method;
 use crate::relations::{FitOutcome, Relation};
 use crate::startup::AppState;
 use crate::units::Quantity;
-use crate::web::place::{
-    Inputs, Subject, SubjectMass, placement_numbers, read_entry, read_linear,
-};
+use crate::web::place::{Inputs, Subject, SubjectMass, placement_numbers, read_entry, read_linear};
 
 /// Most objects one batch may hold.
 pub const MAX_BATCH: usize = 10_000;

@@ -305,7 +305,12 @@ fn routes() -> Routes {
             post(review::reject),
         )
         // The JSON API (server/api/); reads need the read scope, like the pages.
-        .add(Method::GET, "/api", Public, get(crate::api::page::show_api_page))
+        .add(
+            Method::GET,
+            "/api",
+            Public,
+            get(crate::api::page::show_api_page),
+        )
         .add(Method::GET, "/api/v1/me", Api, get(crate::api::me::me))
         .add(
             Method::GET,

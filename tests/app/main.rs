@@ -5,6 +5,7 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod api;
 mod galaxy_relations;
 mod pages;
 mod relations;
