@@ -73,17 +73,21 @@ pub struct FitPoint {
 #[derive(Debug, Clone, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FitRequest {
-    /// The objects (at most 100,000).
+    /// The objects (1 to 100,000).
+    #[schema(min_items = 1, max_items = 100_000)]
     pub points: Vec<FitPoint>,
     /// Estimator (default `structural`).
     pub method: Option<EstimatorName>,
     /// Pivot x0 in the log10 units of x (default: log10 200 when every x lies in 1.3–2.8,
     /// otherwise the median of x rounded to 0.5).
+    #[schema(minimum = -50.0, maximum = 50.0)]
     pub pivot: Option<f64>,
     /// Bootstrap replicates (100 to 5,000; samples of up to 5,000 objects).
+    #[schema(minimum = 100, maximum = 5000)]
     pub bootstrap: Option<u32>,
     /// Posterior steps per walker (200 to 20,000; 32 walkers; structural and conditional;
     /// samples of up to 5,000 objects).
+    #[schema(minimum = 200, maximum = 20000)]
     pub posterior_steps: Option<u32>,
     /// Seed of the bootstrap and the posterior (default 1; the same seed gives the same
     /// numbers).

@@ -19,6 +19,9 @@ use crate::relations::{at_adopted_distance, sphere_of_influence};
 use crate::startup::AppState;
 use crate::web::galaxies::{MAX_PER_PAGE, TableQuery, TableRow, select_page};
 
+/// Highest page number accepted (far beyond any catalog; keeps page × per_page small).
+const MAX_PAGE: usize = 1_000_000;
+
 /// Detections, limits or both (`limits`).
 #[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
 #[serde(rename_all = "snake_case")]
@@ -91,8 +94,8 @@ pub struct GalaxyQuery {
     pub sort: Option<SortWord>,
     /// Sort direction.
     pub dir: Option<DirWord>,
-    /// Page, from 1 (a page past the end is empty).
-    #[param(minimum = 1)]
+    /// Page, from 1 to 1,000,000 (a page past the end is empty).
+    #[param(minimum = 1, maximum = 1_000_000)]
     pub page: Option<u32>,
     /// Rows per page, 1 to 500 (default 50).
     #[param(minimum = 1, maximum = 500)]
@@ -207,17 +210,30 @@ pub async fn list_galaxies(
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Json<GalaxyPage>> {
     let pairs = query_pairs(query)?;
-    // The page's parser, one parameter at a time, so each one at fault is named.
+    // The page's parser, one parameter at a time, so each one at fault is named. An empty
+    // value, which a page's form sends for "any", is refused here: leave the parameter out.
     let errors: Vec<FieldError> = pairs
         .iter()
         .filter_map(|pair| {
+            let name = pair.0.chars().take(40).collect::<String>();
+            if pair.1.trim().is_empty() {
+                return Some(FieldError::new(name, super::EMPTY_VALUE));
+            }
             TableQuery::parse(std::slice::from_ref(pair))
                 .err()
-                .map(|e| FieldError::new(pair.0.chars().take(40).collect::<String>(), e))
+                .map(|e| FieldError::new(name, e))
         })
         .collect();
     if !errors.is_empty() {
         return Err(Problem::invalid(errors));
+    }
+    if let Some((_, page)) = pairs.iter().rfind(|(k, _)| k == "page")
+        && page.trim().parse::<usize>().is_ok_and(|p| p > MAX_PAGE)
+    {
+        return Err(Problem::invalid(vec![FieldError::new(
+            "page",
+            format!("The page must be a whole number from 1 to {MAX_PAGE}."),
+        )]));
     }
     let q = TableQuery::parse(&pairs)
         .map_err(|e| Problem::new(StatusCode::UNPROCESSABLE_ENTITY, "Invalid input", e))?;

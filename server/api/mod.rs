@@ -40,6 +40,10 @@ use problem::{FieldError, Problem};
 /// Result of an API handler: the answer, or a problem.
 pub type ApiResult<T> = Result<T, Problem>;
 
+/// The message for a query parameter given with an empty value.
+pub const EMPTY_VALUE: &str =
+    "The value is empty; leave the parameter out to mean any (or the default).";
+
 /// The header a browser session sends its anti-forgery token in with a JSON request.
 pub const CSRF_HEADER: &str = "x-csrf-token";
 

@@ -185,6 +185,13 @@ impl FitSettings {
         };
         let mut errors = Vec::new();
         for (key, value) in pairs {
+            if value.trim().is_empty() {
+                errors.push(FieldError::new(
+                    key.chars().take(40).collect::<String>(),
+                    super::EMPTY_VALUE,
+                ));
+                continue;
+            }
             match s.filter.set(key, value) {
                 Ok(true) => continue,
                 Ok(false) => {}

@@ -128,17 +128,24 @@ impl Routes {
         json: bool,
     ) -> Self {
         use std::convert::Infallible;
+        let form_token = axum::middleware::from_fn(move |req, next| async move {
+            if json {
+                crate::api::require_json_form_token(req, next, limit_bytes).await
+            } else {
+                require_form_token_limited(req, next, limit_bytes).await
+            }
+        });
+        let guarded = axum::middleware::from_fn(move |req, next| guard(access, req, next));
+        // API paths answer a method they do not serve with 405 before any credential check
+        // (route_layer skips the method router's fallback), as their OpenAPI document says.
+        let handler: MethodRouter<AppState> = if path.starts_with("/api/") {
+            handler.route_layer(form_token).route_layer(guarded)
+        } else {
+            handler
+                .layer::<_, Infallible>(form_token)
+                .layer::<_, Infallible>(guarded)
+        };
         let guarded: MethodRouter<AppState> = handler
-            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| async move {
-                if json {
-                    crate::api::require_json_form_token(req, next, limit_bytes).await
-                } else {
-                    require_form_token_limited(req, next, limit_bytes).await
-                }
-            }))
-            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| {
-                guard(access, req, next)
-            }))
             .layer::<_, Infallible>(RequestBodyLimitLayer::new(limit_bytes))
             .layer::<_, Infallible>(axum::extract::DefaultBodyLimit::max(limit_bytes));
         self.router = self.router.route(path, guarded);

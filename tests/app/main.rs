@@ -6,6 +6,7 @@ mod helpers;
 mod access;
 mod accounts;
 mod api;
+mod api_fuzz;
 mod galaxy_relations;
 mod pages;
 mod relations;
