@@ -421,13 +421,17 @@ mod tests {
 
     #[test]
     fn an_exact_line_is_recovered_and_the_sigma_pivot_is_chosen() {
-        // y = 8.3 + 4.5 (x − log10 200) exactly (values invented for the test); every
-        // estimator must give back α = 8.3 and β = 4.5 on noiseless points.
+        // y = 8.3 + 4.5 (x − log10 200) exactly (values invented for the test), without x
+        // errors: both estimators reduce to weighted least squares and must give back α = 8.3
+        // and β = 4.5.
         let x0 = crate::relations::SIGMA_PIVOT_LOG;
         let points: Vec<FitPoint> = (0..20)
             .map(|i| {
                 let x = 2.0 + 0.03 * f64::from(i);
-                point(x, 8.3 + 4.5 * (x - x0))
+                FitPoint {
+                    x_err: 0.0,
+                    ..point(x, 8.3 + 4.5 * (x - x0))
+                }
             })
             .collect();
         for method in [EstimatorName::Conditional, EstimatorName::BcesYx] {

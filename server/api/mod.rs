@@ -15,6 +15,7 @@
 //! one, and [`require_json_form_token`] lets a browser session send its anti-forgery token in
 //! the `X-CSRF-Token` header of a JSON request.
 
+pub mod cache;
 pub mod catalog;
 pub mod fit;
 pub mod galaxies;
@@ -158,11 +159,11 @@ pub fn matches_if_none_match(headers: &HeaderMap, etag: &str) -> bool {
         .any(|tag| tag == "*" || tag.trim_start_matches("W/") == etag)
 }
 
-/// A JSON answer with its entity tag, or 304 with no body when the caller has it already.
-pub fn tagged_json<T: serde::Serialize>(headers: &HeaderMap, etag: &str, body: &T) -> Response {
+/// A JSON body already serialized, with its entity tag, or 304 with no body when the caller
+/// has it already.
+pub fn tagged_bytes(headers: &HeaderMap, etag: &str, body: axum::body::Bytes) -> Response {
     let etag_value =
         HeaderValue::from_str(etag).unwrap_or_else(|_| HeaderValue::from_static("\"\""));
-    // Stored copies must be revalidated; only the caller's own cache may keep one.
     let cache = HeaderValue::from_static("private, no-cache");
     if matches_if_none_match(headers, etag) {
         return (
@@ -172,8 +173,15 @@ pub fn tagged_json<T: serde::Serialize>(headers: &HeaderMap, etag: &str, body: &
             .into_response();
     }
     (
-        [(header::ETAG, etag_value), (header::CACHE_CONTROL, cache)],
-        axum::Json(body),
+        [
+            (header::ETAG, etag_value),
+            (header::CACHE_CONTROL, cache),
+            (
+                header::CONTENT_TYPE,
+                HeaderValue::from_static("application/json"),
+            ),
+        ],
+        body,
     )
         .into_response()
 }

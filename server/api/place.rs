@@ -19,16 +19,16 @@ use std::sync::Arc;
 
 use axum::Json;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Query, State};
+use axum::extract::{Extension, Query, State};
 use axum::http::StatusCode;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
+use super::cache::ApiCache;
 use super::problem::{FieldError, Problem};
 use super::relations::{FitSettings, all_relations, current_fit};
 use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
-use crate::catalog::history;
 use crate::fit::Method;
 use crate::relations::{FitOutcome, Relation};
 use crate::startup::AppState;
@@ -365,6 +365,7 @@ fn place_object(
 /// any object uses; the others are None.
 async fn fits_for(
     state: &AppState,
+    cache: &ApiCache,
     version: i64,
     relations: Vec<Relation>,
     needed: &[bool],
@@ -378,7 +379,15 @@ async fn fits_for(
     let mut fits = Vec::with_capacity(relations.len());
     for (relation, need) in relations.into_iter().zip(needed) {
         let outcome = if *need {
-            Some(current_fit(state, version, &relation, &settings).await?)
+            let slug = relation.slug();
+            match cache.place_fit(version, &slug) {
+                Some(hit) => Some(hit),
+                None => {
+                    let made = current_fit(state, version, &relation, &settings).await?;
+                    cache.keep_place_fit(&slug, &made);
+                    Some(made)
+                }
+            }
         } else {
             None
         };
@@ -416,6 +425,7 @@ fn bands_of(relations: &[Relation]) -> Vec<String> {
 )]
 pub async fn place_one(
     State(state): State<AppState>,
+    Extension(cache): Extension<ApiCache>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Json<PlaceResult>> {
     let pairs = query_pairs(query)?;
@@ -440,14 +450,16 @@ pub async fn place_one(
         };
         *slot = Some(value);
     }
-    let version = history::current_version(&state.pool).await?;
-    let relations = all_relations(&state).await?;
+    let version = cache
+        .catalog_version(&state.pool, &state.settings.db_path)
+        .await?;
+    let relations = all_relations(&state, &cache, version).await?;
     let inputs = read_object(&object, &bands_of(&relations), "", &mut errors);
     if !errors.is_empty() {
         return Err(Problem::invalid(errors));
     }
     let needed = used_by(&inputs, &relations);
-    let fits = fits_for(&state, version, relations, &needed).await?;
+    let fits = fits_for(&state, &cache, version, relations, &needed).await?;
     let version = fits
         .iter()
         .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
@@ -480,6 +492,7 @@ pub async fn place_one(
 )]
 pub async fn place_batch(
     State(state): State<AppState>,
+    Extension(cache): Extension<ApiCache>,
     ApiJson(objects): ApiJson<Vec<PlaceObject>>,
 ) -> ApiResult<Json<PlaceBatchResult>> {
     if objects.len() > MAX_BATCH {
@@ -492,8 +505,10 @@ pub async fn place_batch(
             ),
         ));
     }
-    let version = history::current_version(&state.pool).await?;
-    let relations = all_relations(&state).await?;
+    let version = cache
+        .catalog_version(&state.pool, &state.settings.db_path)
+        .await?;
+    let relations = all_relations(&state, &cache, version).await?;
     let bands = bands_of(&relations);
     let mut errors = Vec::new();
     let inputs: Vec<Inputs> = objects
@@ -510,7 +525,7 @@ pub async fn place_batch(
             *n |= used;
         }
     }
-    let fits = fits_for(&state, version, relations, &needed).await?;
+    let fits = fits_for(&state, &cache, version, relations, &needed).await?;
     let version = fits
         .iter()
         .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))

@@ -9,16 +9,18 @@
 
 use std::sync::Arc;
 
+use axum::body::Bytes;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Path, Query, State};
+use axum::extract::{Extension, Path, Query, State};
 use axum::http::{HeaderMap, StatusCode};
 use axum::response::Response;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
+use super::cache::{ApiCache, FitAnswerBytes};
 use super::problem::{FieldError, Problem};
-use super::{ApiResult, entity_tag, query_pairs, tagged_json};
-use crate::catalog::{history, relation_rows};
+use super::{ApiResult, entity_tag, matches_if_none_match, query_pairs, tagged_bytes};
+use crate::catalog::relation_rows;
 use crate::fit::{Fit, Method};
 use crate::relations::{
     FILTER_PARAMS, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice, SoiChoice, fitted,
@@ -271,17 +273,26 @@ pub async fn relation_named(state: &AppState, slug: &str) -> ApiResult<Relation>
         .map_err(|e| Problem::new(StatusCode::NOT_FOUND, "Not found", e.to_string()))
 }
 
-/// Every relation of the catalog as it is now.
+/// Every relation of catalog version `version` (kept in `cache` for that version).
 ///
 /// # Errors
 /// A database failure.
-pub async fn all_relations(state: &AppState) -> ApiResult<Vec<Relation>> {
+pub async fn all_relations(
+    state: &AppState,
+    cache: &ApiCache,
+    version: i64,
+) -> ApiResult<Vec<Relation>> {
+    if let Some(known) = cache.relations(version) {
+        return Ok(known);
+    }
     let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
         .await?
         .into_iter()
         .filter(|b| Relation::valid_band(b))
         .collect();
-    Ok(Relation::all(&bands))
+    let relations = Relation::all(&bands);
+    cache.keep_relations(version, &relations);
+    Ok(relations)
 }
 
 /// The fit of `relation` at catalog version `version`: from the cache without another query,
@@ -569,9 +580,14 @@ pub struct RelationList {
     ),
     security(("bearer" = []))
 )]
-pub async fn list_relations(State(state): State<AppState>) -> ApiResult<axum::Json<RelationList>> {
-    let version = history::current_version(&state.pool).await?;
-    let relations = all_relations(&state)
+pub async fn list_relations(
+    State(state): State<AppState>,
+    Extension(cache): Extension<ApiCache>,
+) -> ApiResult<axum::Json<RelationList>> {
+    let version = cache
+        .catalog_version(&state.pool, &state.settings.db_path)
+        .await?;
+    let relations = all_relations(&state, &cache, version)
         .await?
         .iter()
         .map(|r| {
@@ -621,29 +637,45 @@ pub async fn list_relations(State(state): State<AppState>) -> ApiResult<axum::Js
 )]
 pub async fn relation_fit(
     State(state): State<AppState>,
+    Extension(cache): Extension<ApiCache>,
     Path(slug): Path<String>,
     headers: HeaderMap,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Response> {
     let settings = FitSettings::parse(&query_pairs(query)?)?;
     let relation = relation_named(&state, &slug).await?;
-    let version = history::current_version(&state.pool).await?;
-    let etag = entity_tag(version, &settings.canonical(&relation));
-    if super::matches_if_none_match(&headers, &etag) {
-        return Ok(tagged_json(&headers, &etag, &()));
+    let version = cache
+        .catalog_version(&state.pool, &state.settings.db_path)
+        .await?;
+    let canonical = settings.canonical(&relation);
+    if let Some(hit) = cache.answer(version, &canonical) {
+        return Ok(tagged_bytes(&headers, &hit.etag, hit.body));
+    }
+    let etag = entity_tag(version, &canonical);
+    if matches_if_none_match(&headers, &etag) {
+        return Ok(tagged_bytes(&headers, &etag, Bytes::new()));
     }
     let outcome = current_fit(&state, version, &relation, &settings).await?;
     // The fit may have been made at a newer version than read above; tag what is answered.
-    let etag = if outcome.key.catalog_version == version {
+    let made_at = outcome.key.catalog_version;
+    let etag = if made_at == version {
         etag
     } else {
-        entity_tag(outcome.key.catalog_version, &settings.canonical(&relation))
+        entity_tag(made_at, &canonical)
     };
-    Ok(tagged_json(
-        &headers,
-        &etag,
-        &RelationFit::of(&relation, &settings, &outcome),
-    ))
+    let body = Bytes::from(
+        serde_json::to_vec(&RelationFit::of(&relation, &settings, &outcome))
+            .map_err(anyhow::Error::from)?,
+    );
+    cache.keep_answer(
+        made_at,
+        &canonical,
+        FitAnswerBytes {
+            etag: etag.clone(),
+            body: body.clone(),
+        },
+    );
+    Ok(tagged_bytes(&headers, &etag, body))
 }
 
 #[cfg(test)]

@@ -388,6 +388,8 @@ pub fn router(state: AppState) -> Router {
     let app = routes()
         .router
         .fallback(not_found)
+        // What the API keeps per catalog version (fits' answers, the relations).
+        .layer(axum::Extension(crate::api::cache::ApiCache::default()))
         // Inside authentication: the API's per-token rate needs the principal.
         .layer(axum::middleware::from_fn_with_state(
             crate::api::rate::RateLimiter::new(
