@@ -463,7 +463,13 @@ async fn the_review_queue_is_paged_with_the_largest_z_first_across_pages() {
         })
         .unwrap();
         let g = GalaxyChoice::Existing(*galaxy_id);
-        let key = submissions::request_key(Some(member), &format!("q{i}"), &g, &[m.clone()], "");
+        let key = submissions::request_key(
+            Some(member),
+            &format!("q{i}"),
+            &g,
+            std::slice::from_ref(&m),
+            "",
+        );
         submissions::create(
             &app.pool,
             Some(member),
