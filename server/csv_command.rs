@@ -50,6 +50,24 @@ pub struct ExportArgs {
     pub db_path: PathBuf,
 }
 
+/// Characters of the command line's progress bar.
+const PROGRESS_WIDTH: usize = 30;
+
+/// `importing [#########.....................]  300/1000 rows  30%`
+fn progress_line(done: usize, total: usize) -> String {
+    let filled = (done * PROGRESS_WIDTH)
+        .checked_div(total)
+        .unwrap_or(PROGRESS_WIDTH)
+        .min(PROGRESS_WIDTH);
+    let percent = (done * 100).checked_div(total).unwrap_or(100);
+    format!(
+        "importing [{}{}] {done:>width$}/{total} rows {percent:>3}%",
+        "#".repeat(filled),
+        ".".repeat(PROGRESS_WIDTH - filled),
+        width = total.to_string().len()
+    )
+}
+
 /// Import a file whole or not at all; a faulty file prints every faulty row to `err`.
 ///
 /// # Errors
@@ -84,10 +102,17 @@ pub fn run_import(
                 source: SubmissionSource::Import,
             }
         };
+        let mut last_width = usize::MAX;
         let mut progress = |done: usize, total: usize| {
-            // One line on standard error, rewritten in place; a failed write only loses it.
+            // One line on standard error, rewritten in place when the bar grows (not on every
+            // row of a 50,000-row file); a failed write only loses the bar.
+            let filled = (done * PROGRESS_WIDTH).checked_div(total).unwrap_or(PROGRESS_WIDTH);
+            if filled == last_width && done != total {
+                return;
+            }
+            last_width = filled;
             let mut stderr = std::io::stderr().lock();
-            let _ = write!(stderr, "\rimporting: {done}/{total} rows");
+            let _ = write!(stderr, "\r{}", progress_line(done, total));
             if done == total {
                 let _ = writeln!(stderr);
             }
@@ -145,4 +170,30 @@ pub fn run_export(
         writeln!(err, "exported catalog version {version}")?;
         Ok(())
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_progress_bar_fills_with_the_rows_done() {
+        assert_eq!(
+            progress_line(0, 1000),
+            format!("importing [{}]    0/1000 rows   0%", ".".repeat(30))
+        );
+        assert_eq!(
+            progress_line(500, 1000),
+            format!(
+                "importing [{}{}]  500/1000 rows  50%",
+                "#".repeat(15),
+                ".".repeat(15)
+            )
+        );
+        assert_eq!(
+            progress_line(1000, 1000),
+            format!("importing [{}] 1000/1000 rows 100%", "#".repeat(30))
+        );
+        assert!(progress_line(0, 0).ends_with("100%"));
+    }
 }

@@ -299,7 +299,7 @@ async fn the_downloaded_catalog_reimports_to_the_same_catalog_through_the_comman
         "{}",
         String::from_utf8_lossy(&import.stderr)
     );
-    assert!(String::from_utf8_lossy(&import.stderr).contains("importing:"));
+    assert!(String::from_utf8_lossy(&import.stderr).contains("importing [###"));
     let export = std::process::Command::new(bin)
         .args(["export", "--db"])
         .arg(&db)
