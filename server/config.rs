@@ -13,6 +13,11 @@ pub const DEFAULT_BIND: &str = "127.0.0.1:8080";
 /// Default sphere-of-influence threshold: θ_infl / resolution at or above this counts as resolved
 /// (common practice: the sphere of influence should be at least as large as the resolution).
 pub const DEFAULT_SOI_THRESHOLD: f64 = 1.0;
+/// Default API requests per token and minute: 10 a second on average, far above what a script
+/// placing or fitting needs, low enough that one runaway loop cannot crowd out the others.
+pub const DEFAULT_API_RATE_PER_MINUTE: u32 = 600;
+/// Largest accepted API rate per token and minute.
+pub const MAX_API_RATE_PER_MINUTE: u32 = 1_000_000;
 
 /// Everything `massline serve` needs.
 #[derive(clap::Args, Debug, Clone)]
@@ -44,6 +49,11 @@ pub struct Settings {
     /// browsers reach the server over HTTPS, including behind a TLS-terminating proxy.
     #[arg(long, env = "MASSLINE_SECURE_COOKIES", value_parser = parse_secure_cookies, default_value = "false", num_args = 0..=1, default_missing_value = "true")]
     pub secure_cookies: bool,
+
+    /// Requests per minute each API token may make to /api/ (a token bucket holding a minute's
+    /// worth; beyond it 429 with Retry-After); 0 turns the limit off.
+    #[arg(long, env = "MASSLINE_API_RATE_PER_MINUTE", default_value_t = DEFAULT_API_RATE_PER_MINUTE, value_parser = parse_api_rate)]
+    pub api_rate_per_minute: u32,
 }
 
 impl Settings {
@@ -56,6 +66,7 @@ impl Settings {
             soi_threshold: DEFAULT_SOI_THRESHOLD,
             public_read: false,
             secure_cookies: false,
+            api_rate_per_minute: DEFAULT_API_RATE_PER_MINUTE,
         }
     }
 }
@@ -122,6 +133,15 @@ fn parse_soi_threshold(s: &str) -> Result<f64, String> {
     }
 }
 
+fn parse_api_rate(s: &str) -> Result<u32, String> {
+    match s.trim().parse::<u32>() {
+        Ok(v) if v <= MAX_API_RATE_PER_MINUTE => Ok(v),
+        _ => Err(format!(
+            "the API rate (--api-rate-per-minute, MASSLINE_API_RATE_PER_MINUTE) '{s}' must be a whole number of requests per token and minute from 0 (no limit) to {MAX_API_RATE_PER_MINUTE} (default {DEFAULT_API_RATE_PER_MINUTE})"
+        )),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -166,6 +186,20 @@ mod tests {
                 parse_soi_threshold(bad)
                     .unwrap_err()
                     .contains("--soi-threshold"),
+                "{bad}"
+            );
+        }
+    }
+
+    #[test]
+    fn api_rate_is_a_whole_number_with_zero_for_off() {
+        assert_eq!(parse_api_rate("600").unwrap(), 600);
+        assert_eq!(parse_api_rate(" 0 ").unwrap(), 0);
+        for bad in ["-1", "1.5", "lots", "", "2000000"] {
+            assert!(
+                parse_api_rate(bad)
+                    .unwrap_err()
+                    .contains("MASSLINE_API_RATE_PER_MINUTE"),
                 "{bad}"
             );
         }

@@ -11,6 +11,8 @@ use axum::http::{HeaderValue, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
 
+use crate::error::AppError;
+
 /// One field at fault, named by its JSON path (`measurements[2].value`).
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct FieldError {
@@ -79,6 +81,41 @@ impl Problem {
 
     fn status_code(&self) -> StatusCode {
         StatusCode::from_u16(self.status).unwrap_or(StatusCode::INTERNAL_SERVER_ERROR)
+    }
+}
+
+impl From<AppError> for Problem {
+    /// The page layer's error as a problem: the same status and sentence; an internal cause is
+    /// logged and only a generic sentence goes back.
+    fn from(err: AppError) -> Self {
+        let status = err.status();
+        match &err {
+            AppError::NotFound { .. } => Self::new(status, "Not found", format!("{err}.")),
+            AppError::BadRequest { .. } => Self::new(status, "Bad request", err.to_string()),
+            AppError::Forbidden { .. } => Self::new(status, "Forbidden", err.to_string()),
+            AppError::Busy => Self::new(status, "Busy", format!("The {err}.")),
+            AppError::StorageFull => Self::new(status, "Storage full", format!("The {err}.")),
+            AppError::Internal(cause) => {
+                tracing::error!(error = format!("{cause:#}"), "API request failed");
+                Self::new(
+                    status,
+                    "Internal error",
+                    "The server could not answer this request. The problem has been logged; nothing was changed.",
+                )
+            }
+        }
+    }
+}
+
+impl From<sqlx::Error> for Problem {
+    fn from(err: sqlx::Error) -> Self {
+        AppError::from(err).into()
+    }
+}
+
+impl From<anyhow::Error> for Problem {
+    fn from(err: anyhow::Error) -> Self {
+        AppError::Internal(err).into()
     }
 }
 

@@ -162,7 +162,7 @@ fn token_of(principal: &Principal) -> Result<&TokenUser, Problem> {
     path = "/api/v1/submissions",
     tag = "submissions",
     request_body = SubmissionRequest,
-    params(("Idempotency-Key" = String, Header, description = "1–100 visible ASCII characters chosen by the client; a retry with the same key and body stores nothing new")),
+    params(("Idempotency-Key" = String, Header, pattern = "^[!-~]{1,100}$", description = "1–100 visible ASCII characters chosen by the client; a retry with the same key and body stores nothing new")),
     responses(
         (status = 201, description = "Stored as a pending submission", body = SubmissionAnswer,
          headers(("Location" = String, description = "/api/v1/submissions/{id}"))),
@@ -175,7 +175,7 @@ fn token_of(principal: &Principal) -> Result<&TokenUser, Problem> {
         (status = 422, description = "Invalid fields (every one listed), or the key reused with another body", body = Problem, content_type = "application/problem+json"),
         (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
     ),
-    security(("token" = []))
+    security(("bearer" = []))
 )]
 pub async fn submit(
     State(state): State<AppState>,
@@ -474,7 +474,7 @@ fn sentence(message: &str) -> String {
         (status = 401, description = "No valid token", body = Problem, content_type = "application/problem+json"),
         (status = 404, description = "No such submission visible to the caller", body = Problem, content_type = "application/problem+json"),
     ),
-    security(("token" = []))
+    security(("bearer" = []))
 )]
 pub async fn status(
     State(state): State<AppState>,

@@ -221,13 +221,13 @@ fn choice<T: Copy>(value: &str, options: &[(&str, T)]) -> Result<T, String> {
 /// A catalog row with the values the table shows, computed once.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct TableRow {
-    row: RelationRow,
+    pub(crate) row: RelationRow,
     /// Adopted log M_BH rescaled to the adopted distance.
-    log_mbh_adopted_d: Option<f64>,
+    pub(crate) log_mbh_adopted_d: Option<f64>,
     /// Adopted log M_bulge rescaled to the adopted distance.
-    log_mbulge_adopted_d: Option<f64>,
+    pub(crate) log_mbulge_adopted_d: Option<f64>,
     /// θ_infl / resolution ≥ threshold, when it can be computed.
-    resolved: Option<bool>,
+    pub(crate) resolved: Option<bool>,
 }
 
 impl TableRow {

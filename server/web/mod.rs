@@ -13,12 +13,11 @@
 
 mod account;
 mod admin;
-mod api;
 mod display;
-mod galaxies;
+pub(crate) mod galaxies;
 mod login;
 mod overview;
-mod place;
+pub(crate) mod place;
 mod relations;
 mod review;
 mod submissions;
@@ -97,21 +96,57 @@ impl Routes {
     /// guard, so an oversized request is a 413 whoever sends it; the form-token check and the
     /// extractors read up to the same limit.
     fn add_limited(
-        mut self,
+        self,
         method: Method,
         path: &'static str,
         access: Access,
         handler: MethodRouter<AppState>,
         limit_bytes: usize,
     ) -> Self {
+        self.add_with(method, path, access, handler, limit_bytes, false)
+    }
+
+    /// [`Routes::add_limited`] for a JSON endpoint: a browser session may send its
+    /// anti-forgery token in the `X-CSRF-Token` header instead of a form field.
+    fn add_json(
+        self,
+        method: Method,
+        path: &'static str,
+        access: Access,
+        handler: MethodRouter<AppState>,
+        limit_bytes: usize,
+    ) -> Self {
+        self.add_with(method, path, access, handler, limit_bytes, true)
+    }
+
+    fn add_with(
+        mut self,
+        method: Method,
+        path: &'static str,
+        access: Access,
+        handler: MethodRouter<AppState>,
+        limit_bytes: usize,
+        json: bool,
+    ) -> Self {
         use std::convert::Infallible;
+        let form_token = axum::middleware::from_fn(move |req, next| async move {
+            if json {
+                crate::api::require_json_form_token(req, next, limit_bytes).await
+            } else {
+                require_form_token_limited(req, next, limit_bytes).await
+            }
+        });
+        let guarded = axum::middleware::from_fn(move |req, next| guard(access, req, next));
+        // API paths answer a method they do not serve with 405 before any credential check
+        // (route_layer skips the method router's fallback), as their OpenAPI document says.
+        let handler: MethodRouter<AppState> = if path.starts_with("/api/") {
+            handler.route_layer(form_token).route_layer(guarded)
+        } else {
+            handler
+                .layer::<_, Infallible>(form_token)
+                .layer::<_, Infallible>(guarded)
+        };
         let guarded: MethodRouter<AppState> = handler
-            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| {
-                require_form_token_limited(req, next, limit_bytes)
-            }))
-            .layer::<_, Infallible>(axum::middleware::from_fn(move |req, next| {
-                guard(access, req, next)
-            }))
             .layer::<_, Infallible>(RequestBodyLimitLayer::new(limit_bytes))
             .layer::<_, Infallible>(axum::extract::DefaultBodyLimit::max(limit_bytes));
         self.router = self.router.route(path, guarded);
@@ -283,7 +318,70 @@ fn routes() -> Routes {
             Review,
             post(review::reject),
         )
-        .add(Method::GET, "/api/v1/me", Api, get(api::me))
+        // The JSON API (server/api/); reads need the read scope, like the pages.
+        .add(
+            Method::GET,
+            "/api",
+            Public,
+            get(crate::api::page::show_api_page),
+        )
+        .add(Method::GET, "/api/v1/me", Api, get(crate::api::me::me))
+        .add(
+            Method::GET,
+            "/api/v1/openapi.json",
+            Public,
+            get(crate::api::openapi::openapi_json),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/relations",
+            Read,
+            get(crate::api::relations::list_relations),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/relations/{relation}",
+            Read,
+            get(crate::api::relations::relation_fit),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/place",
+            Read,
+            get(crate::api::place::place_one),
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/place",
+            Read,
+            post(crate::api::place::place_batch),
+            crate::api::place::BATCH_LIMIT_BYTES,
+        )
+        .add(
+            Method::GET,
+            "/api/v1/galaxies",
+            Read,
+            get(crate::api::galaxies::list_galaxies),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/galaxies/{slug}",
+            Read,
+            get(crate::api::galaxies::show_galaxy),
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/fit",
+            Read,
+            post(crate::api::fit::fit_sample),
+            crate::api::fit::FIT_LIMIT_BYTES,
+        )
+        .add(
+            Method::GET,
+            "/api/v1/catalog.csv",
+            Read,
+            get(crate::api::catalog::catalog_csv),
+        )
         .add(
             Method::POST,
             "/api/v1/submissions",
@@ -309,11 +407,21 @@ pub fn router(state: AppState) -> Router {
     let app = routes()
         .router
         .fallback(not_found)
+        // Inside authentication: the API's per-token rate needs the principal.
+        .layer(axum::middleware::from_fn_with_state(
+            crate::api::rate::RateLimiter::new(
+                state.settings.api_rate_per_minute,
+                state.clock.clone(),
+            ),
+            crate::api::rate::limit_rate,
+        ))
         .layer(axum::middleware::from_fn_with_state(
             state.clone(),
             authenticate,
         ))
         .layer(axum::middleware::from_fn(refuse_cross_site))
+        // Every error under /api/ as problem+json (404, 405, 413 …).
+        .layer(axum::middleware::from_fn(crate::api::problem_errors))
         .with_state(state);
     with_baseline(app, REQUEST_TIMEOUT, secure)
 }
@@ -324,7 +432,9 @@ pub fn router(state: AppState) -> Router {
 fn with_baseline(app: Router, timeout: Duration, secure: bool) -> Router {
     let mut app = app
         // The largest limit any route has; each route narrows it to its own (`Routes::add`).
-        .layer(RequestBodyLimitLayer::new(UPLOAD_LIMIT_BYTES))
+        .layer(RequestBodyLimitLayer::new(
+            UPLOAD_LIMIT_BYTES.max(crate::api::fit::FIT_LIMIT_BYTES),
+        ))
         .layer(TimeoutLayer::with_status_code(
             StatusCode::SERVICE_UNAVAILABLE,
             timeout,

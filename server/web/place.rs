@@ -97,18 +97,38 @@ impl PlaceForm {
 
 /// The values read from the form; a field that failed or was left empty is None.
 #[derive(Debug, Clone, Default)]
-struct Inputs {
-    sigma: Option<Entry>,
-    bulge_mass: Option<Entry>,
-    luminosity: Option<Entry>,
-    band: Option<String>,
-    mass: Option<Entry>,
-    distance: Option<LinearEntry>,
-    resolution: Option<LinearEntry>,
+pub(crate) struct Inputs {
+    pub(crate) sigma: Option<Entry>,
+    pub(crate) bulge_mass: Option<Entry>,
+    pub(crate) luminosity: Option<Entry>,
+    pub(crate) band: Option<String>,
+    pub(crate) mass: Option<Entry>,
+    pub(crate) distance: Option<LinearEntry>,
+    pub(crate) resolution: Option<LinearEntry>,
+}
+
+impl Inputs {
+    /// The host values `relation` uses, if the object has them: x, and x2 for the plane
+    /// (a luminosity only for the relation of its own band).
+    pub(crate) fn host_values(&self, relation: &Relation) -> Option<(&Entry, Option<&Entry>)> {
+        match relation {
+            Relation::MSigma => self.sigma.as_ref().map(|x| (x, None)),
+            Relation::MBulge => self.bulge_mass.as_ref().map(|x| (x, None)),
+            Relation::Luminosity(b) => self
+                .luminosity
+                .as_ref()
+                .filter(|_| self.band.as_ref() == Some(b))
+                .map(|x| (x, None)),
+            Relation::SigmaBulgePlane => match (&self.sigma, &self.bulge_mass) {
+                (Some(s), Some(b)) => Some((s, Some(b))),
+                _ => None,
+            },
+        }
+    }
 }
 
 /// Reads a log-canonical entry; limits only for the black-hole mass.
-fn read_entry(text: &str, quantity: Quantity) -> Result<Option<Entry>, String> {
+pub(crate) fn read_entry(text: &str, quantity: Quantity) -> Result<Option<Entry>, String> {
     if text.is_empty() {
         return Ok(None);
     }
@@ -121,7 +141,8 @@ fn read_entry(text: &str, quantity: Quantity) -> Result<Option<Entry>, String> {
     Ok(Some(entry))
 }
 
-fn read_linear(text: &str, quantity: Quantity) -> Result<Option<LinearEntry>, String> {
+/// Reads a linear entry (distance, resolution); empty text is None.
+pub(crate) fn read_linear(text: &str, quantity: Quantity) -> Result<Option<LinearEntry>, String> {
     if text.is_empty() {
         return Ok(None);
     }
@@ -336,25 +357,9 @@ pub(crate) async fn show_place(
     let mut placements = tokio::task::JoinSet::new();
     if asked {
         for (index, relation) in Relation::all(&bands).into_iter().enumerate() {
-            let (x, x2) = match &relation {
-                Relation::MSigma => (inputs.sigma.as_ref(), None),
-                Relation::MBulge => (inputs.bulge_mass.as_ref(), None),
-                Relation::Luminosity(b) => (
-                    inputs
-                        .luminosity
-                        .as_ref()
-                        .filter(|_| inputs.band.as_ref() == Some(b)),
-                    None,
-                ),
-                Relation::SigmaBulgePlane => (
-                    inputs
-                        .sigma
-                        .as_ref()
-                        .filter(|_| inputs.bulge_mass.is_some()),
-                    inputs.bulge_mass.as_ref(),
-                ),
+            let Some((x, x2)) = inputs.host_values(&relation) else {
+                continue;
             };
-            let Some(x) = x else { continue };
             // Each relation (its refit with the object, its chart) on its own task, so the
             // relations are placed side by side on the cores; shown in the relations' order.
             let state = state.clone();
@@ -465,7 +470,8 @@ pub(crate) struct SubjectMass {
 }
 
 impl SubjectMass {
-    fn from_entry(m: &Entry) -> SubjectMass {
+    /// The mass of a typed entry (no shared-distance covariance: typed values are independent).
+    pub(crate) fn from_entry(m: &Entry) -> SubjectMass {
         SubjectMass {
             log_mbh: m.log_value,
             err_minus_dex: m.err_minus_dex,
@@ -498,6 +504,70 @@ pub(crate) struct Placed {
     pub(crate) row: PlaceRow,
     /// The relation chart with the object highlighted, when it could be drawn.
     pub(crate) chart: Option<PlaceChart>,
+}
+
+/// The numbers of one placement, before they are formatted: what the place page shows and the
+/// JSON API answers.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct PlacementNumbers {
+    /// Predicted log10 M_BH with its predictive spread and 68/95 % intervals.
+    pub(crate) prediction: Prediction,
+    /// Observed (or limit) minus predicted log10 M_BH, dex, when the object has a mass.
+    pub(crate) residual_dex: Option<f64>,
+    /// The residual in units of its standard deviation, when the object has a mass.
+    pub(crate) z: Option<f64>,
+    /// The verdict for `z` ([`verdict`]).
+    pub(crate) verdict: Option<&'static str>,
+    /// For an upper limit: P(true log10 M_BH < limit).
+    pub(crate) prob_below_limit: Option<f64>,
+}
+
+/// Where `subject` falls against `fit`, in numbers.
+///
+/// ```text
+/// ŷ, s_pred                      fit::predict / fit::predict_plane
+/// r = y − ŷ
+/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (science notes §3.2)
+/// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
+/// ```
+/// dex throughout; verdict thresholds in [`verdict`] (common practice, science notes §6).
+///
+/// # Errors
+/// The prediction's [`fit::FitError`] (non-finite or negative input, a plane without x2).
+pub(crate) fn placement_numbers(
+    fit: &fit::Fit,
+    subject: &Subject,
+) -> Result<PlacementNumbers, fit::FitError> {
+    let (x, x_err) = subject.x;
+    let prediction = match (fit.spec.shape, subject.x2) {
+        (Shape::Plane, Some((b, b_err))) => fit::predict_plane(fit, x, x_err, b, b_err),
+        _ => fit::predict(fit, x, x_err),
+    }?;
+    let mut numbers = PlacementNumbers {
+        prediction,
+        residual_dex: None,
+        z: None,
+        verdict: None,
+        prob_below_limit: None,
+    };
+    if let Some(m) = subject.mass {
+        let prediction = &numbers.prediction;
+        let r = m.log_mbh - prediction.log_mbh;
+        let var = prediction.sd_dex.powi(2) + m.err_dex.powi(2) - 2.0 * fit.params.beta * m.xy_cov;
+        let z = if var > 0.0 { r / var.sqrt() } else { 0.0 };
+        if m.upper_limit && prediction.sd_dex > 0.0 {
+            // P(true < y_lim) = Φ(r / s_pred).
+            numbers.prob_below_limit = Some(
+                0.5 * statrs::function::erf::erfc(
+                    -r / (prediction.sd_dex * std::f64::consts::SQRT_2),
+                ),
+            );
+        }
+        numbers.residual_dex = Some(r);
+        numbers.z = Some(z);
+        numbers.verdict = Some(verdict(z, m.upper_limit));
+    }
+    Ok(numbers)
 }
 
 /// Where `subject` falls against the fit in `outcome`: prediction, residual, z, verdict,
@@ -539,17 +609,14 @@ pub(crate) fn place_against(
         }
     };
     let (x, x_err) = subject.x;
-    let prediction: Result<Prediction, _> = match (fit.spec.shape, subject.x2) {
-        (Shape::Plane, Some((b, b_err))) => fit::predict_plane(fit, x, x_err, b, b_err),
-        _ => fit::predict(fit, x, x_err),
-    };
-    let prediction = match prediction {
-        Ok(p) => p,
+    let numbers = match placement_numbers(fit, subject) {
+        Ok(n) => n,
         Err(e) => {
             row.problem = Some(e.to_string());
             return Placed { row, chart: None };
         }
     };
+    let prediction = &numbers.prediction;
     row.predicted = format!(
         "{} ± {}",
         fixed(prediction.log_mbh, 2),
@@ -558,10 +625,7 @@ pub(crate) fn place_against(
     row.interval68 = interval(prediction.interval68);
     row.interval95 = interval(prediction.interval95);
 
-    if let Some(m) = subject.mass {
-        let r = m.log_mbh - prediction.log_mbh;
-        let var = prediction.sd_dex.powi(2) + m.err_dex.powi(2) - 2.0 * fit.params.beta * m.xy_cov;
-        let z = if var > 0.0 { r / var.sqrt() } else { 0.0 };
+    if let (Some(m), Some(r), Some(z)) = (subject.mass, numbers.residual_dex, numbers.z) {
         row.residual = Some(if m.upper_limit {
             format!("< {}", signed(r, 2))
         } else {
@@ -569,11 +633,8 @@ pub(crate) fn place_against(
         });
         row.z = Some(signed(z, 1));
         row.z_abs = Some(z.abs());
-        row.verdict = Some(verdict(z, m.upper_limit));
-        if m.upper_limit && prediction.sd_dex > 0.0 {
-            // P(true < y_lim) = Φ(r / s_pred).
-            let p = 0.5
-                * statrs::function::erf::erfc(-r / (prediction.sd_dex * std::f64::consts::SQRT_2));
+        row.verdict = numbers.verdict;
+        if let Some(p) = numbers.prob_below_limit {
             row.prob_below = Some(format!("{}%", significant(100.0 * p, 2)));
         }
     }

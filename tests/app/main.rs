@@ -5,6 +5,8 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod api;
+mod api_fuzz;
 mod galaxy_relations;
 mod idempotency;
 mod pages;

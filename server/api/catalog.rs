@@ -1,0 +1,53 @@
+//! `GET /api/v1/catalog.csv`: the accepted (adopted) catalog in the catalog CSV format (README
+//! "Catalog CSV"), stamped with its version in the `Catalog-Version` header and the file name.
+//! The same text as `/catalog.csv` and `massline export` (`catalog::csv_io::export_csv`).
+
+use axum::extract::State;
+use axum::http::header;
+use axum::response::{IntoResponse, Response};
+
+use super::ApiResult;
+use super::problem::Problem;
+use crate::startup::AppState;
+
+/// The header naming the catalog version of an export.
+pub const VERSION_HEADER: &str = "catalog-version";
+
+/// An export as a download named with its version.
+fn download(text: String, version: i64, content_type: &'static str, ext: &str) -> Response {
+    (
+        [
+            (header::CONTENT_TYPE, content_type.to_owned()),
+            (
+                header::CONTENT_DISPOSITION,
+                format!("attachment; filename=\"massline-catalog-v{version}.{ext}\""),
+            ),
+            (
+                header::HeaderName::from_static(VERSION_HEADER),
+                version.to_string(),
+            ),
+        ],
+        text,
+    )
+        .into_response()
+}
+
+/// The accepted catalog as CSV, one row per adopted measurement.
+#[utoipa::path(
+    get,
+    path = "/api/v1/catalog.csv",
+    tag = "catalog",
+    operation_id = "catalog_csv",
+    responses(
+        (status = 200, description = "The adopted catalog in the catalog CSV format", content_type = "text/csv", body = String,
+            headers(("Catalog-Version" = i64, description = "The catalog version exported"))),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn catalog_csv(State(state): State<AppState>) -> ApiResult<Response> {
+    let (text, version) = crate::catalog::csv_io::export_csv(&state.pool).await?;
+    Ok(download(text, version, "text/csv; charset=utf-8", "csv"))
+}

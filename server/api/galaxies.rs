@@ -1,0 +1,488 @@
+//! `GET /api/v1/galaxies` (the catalog table: the same filters, sorting and pages as
+//! `/galaxies`) and `GET /api/v1/galaxies/{slug}` (one galaxy with every measurement and its
+//! adopted values). Masses and bulge masses are given as stored and at the adopted distance;
+//! the table's rows, filters and sort are the page's own (`web::galaxies`).
+
+use axum::Json;
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, State};
+use axum::http::StatusCode;
+use serde::{Deserialize, Serialize};
+use utoipa::{IntoParams, ToSchema};
+
+use super::problem::{FieldError, Problem};
+use super::relations::{BulgeKindWord, MassMethodWord, MorphologyWord};
+use super::{ApiResult, query_pairs};
+use crate::catalog::galaxies as store;
+use crate::catalog::relation_rows::relation_rows;
+use crate::relations::{at_adopted_distance, sphere_of_influence};
+use crate::startup::AppState;
+use crate::web::galaxies::{MAX_PER_PAGE, TableQuery, TableRow, select_page};
+
+/// Highest page number accepted (far beyond any catalog; keeps page × per_page small).
+const MAX_PAGE: usize = 1_000_000;
+
+/// Detections, limits or both (`limits`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum LimitChoice {
+    /// Every galaxy (default).
+    All,
+    /// Only detected masses.
+    Detections,
+    /// Only upper limits.
+    Limits,
+}
+
+/// Sphere of influence resolved or not (`soi`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum SoiChoiceWord {
+    /// Every galaxy (default).
+    All,
+    /// Resolved.
+    Resolved,
+    /// Not resolved.
+    Unresolved,
+}
+
+/// Sort column (`sort`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum SortWord {
+    /// Name (default).
+    Name,
+    /// Black-hole mass at the adopted distance.
+    LogMbh,
+    /// σ.
+    Sigma,
+    /// Bulge mass at the adopted distance.
+    LogMbulge,
+    /// Distance.
+    Distance,
+    /// Morphology.
+    Morphology,
+    /// Mass method.
+    Method,
+}
+
+/// Sort direction (`dir`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum DirWord {
+    /// Ascending (default).
+    Asc,
+    /// Descending.
+    Desc,
+}
+
+/// The catalog table's query parameters (those of `/galaxies`).
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct GalaxyQuery {
+    /// Only this morphology.
+    pub morphology: Option<MorphologyWord>,
+    /// Only this bulge kind.
+    pub bulge_kind: Option<BulgeKindWord>,
+    /// Only masses measured this way.
+    pub method: Option<MassMethodWord>,
+    /// Detections, limits or all.
+    pub limits: Option<LimitChoice>,
+    /// Sphere of influence resolved, unresolved or all.
+    pub soi: Option<SoiChoiceWord>,
+    /// Sort column (name breaks ties).
+    pub sort: Option<SortWord>,
+    /// Sort direction.
+    pub dir: Option<DirWord>,
+    /// Page, from 1 to 1,000,000 (a page past the end is empty).
+    #[param(minimum = 1, maximum = 1_000_000)]
+    pub page: Option<u32>,
+    /// Rows per page, 1 to 500 (default 50).
+    #[param(minimum = 1, maximum = 500)]
+    pub per_page: Option<u32>,
+}
+
+/// One galaxy of the catalog table.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct GalaxyRow {
+    /// Name.
+    pub name: String,
+    /// URL form of the name.
+    pub slug: String,
+    /// Morphology word.
+    pub morphology: String,
+    /// Bulge kind word.
+    pub bulge_kind: String,
+    /// Centre kind word.
+    pub centre_kind: String,
+    /// Adopted distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// Adopted black-hole mass (or upper limit) at the adopted distance, log10 M☉.
+    pub log_mbh: Option<f64>,
+    /// Its lower 1σ error, dex.
+    pub log_mbh_err_minus_dex: Option<f64>,
+    /// Its upper 1σ error, dex.
+    pub log_mbh_err_plus_dex: Option<f64>,
+    /// Whether the mass is an upper limit.
+    pub mbh_upper_limit: Option<bool>,
+    /// How the mass was measured.
+    pub mbh_method: Option<String>,
+    /// Adopted velocity dispersion, km/s.
+    pub sigma_km_s: Option<f64>,
+    /// Adopted σ, log10 km/s.
+    pub log_sigma: Option<f64>,
+    /// Its error, dex.
+    pub sigma_err_dex: Option<f64>,
+    /// `sigma_e` or `sigma_c`.
+    pub sigma_definition: Option<String>,
+    /// Adopted bulge mass at the adopted distance, log10 M☉.
+    pub log_mbulge: Option<f64>,
+    /// Its error, dex.
+    pub mbulge_err_dex: Option<f64>,
+    /// Sphere of influence resolved (θ_infl / resolution ≥ the threshold); null when unknown.
+    pub soi_resolved: Option<bool>,
+    /// The galaxy's API address.
+    pub url: String,
+}
+
+/// One page of the catalog table.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct GalaxyPage {
+    /// Galaxies matching the filters.
+    pub total: usize,
+    /// This page, from 1.
+    pub page: usize,
+    /// Rows per page.
+    pub per_page: usize,
+    /// Pages in all (at least 1).
+    pub pages: usize,
+    /// The rows of this page.
+    pub galaxies: Vec<GalaxyRow>,
+}
+
+fn row_of(t: &TableRow) -> GalaxyRow {
+    let r = &t.row;
+    GalaxyRow {
+        name: r.name.clone(),
+        slug: r.slug.clone(),
+        morphology: r.morphology.clone(),
+        bulge_kind: r.bulge_kind.clone(),
+        centre_kind: r.centre_kind.clone(),
+        distance_mpc: r.distance_mpc,
+        distance_err_mpc: r.distance_err_mpc,
+        log_mbh: t.log_mbh_adopted_d,
+        log_mbh_err_minus_dex: r.mbh_err_minus_dex,
+        log_mbh_err_plus_dex: r.mbh_err_plus_dex,
+        mbh_upper_limit: r.mbh_upper_limit,
+        mbh_method: r.mbh_method.clone(),
+        sigma_km_s: r.log_sigma.map(|s| 10f64.powf(s)),
+        log_sigma: r.log_sigma,
+        sigma_err_dex: r.sigma_err_dex,
+        sigma_definition: r.sigma_definition.clone(),
+        log_mbulge: t.log_mbulge_adopted_d,
+        mbulge_err_dex: r.mbulge_err_dex,
+        soi_resolved: t.resolved,
+        url: format!("/api/v1/galaxies/{}", r.slug),
+    }
+}
+
+/// The catalog table, filtered, sorted and paged as on `/galaxies`.
+#[utoipa::path(
+    get,
+    path = "/api/v1/galaxies",
+    tag = "galaxies",
+    operation_id = "list_galaxies",
+    params(GalaxyQuery),
+    responses(
+        (status = 200, description = "One page of galaxies", body = GalaxyPage),
+        (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn list_galaxies(
+    State(state): State<AppState>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> ApiResult<Json<GalaxyPage>> {
+    let pairs = query_pairs(query)?;
+    // The page's parser, one parameter at a time, so each one at fault is named. An empty
+    // value, which a page's form sends for "any", is refused here: leave the parameter out.
+    let errors: Vec<FieldError> = pairs
+        .iter()
+        .filter_map(|pair| {
+            let name = pair.0.chars().take(40).collect::<String>();
+            if pair.1.trim().is_empty() {
+                return Some(FieldError::new(name, super::EMPTY_VALUE));
+            }
+            TableQuery::parse(std::slice::from_ref(pair))
+                .err()
+                .map(|e| FieldError::new(name, e))
+        })
+        .collect();
+    if !errors.is_empty() {
+        return Err(Problem::invalid(errors));
+    }
+    if let Some((_, page)) = pairs.iter().rfind(|(k, _)| k == "page")
+        && page.trim().parse::<usize>().is_ok_and(|p| p > MAX_PAGE)
+    {
+        return Err(Problem::invalid(vec![FieldError::new(
+            "page",
+            format!("The page must be a whole number from 1 to {MAX_PAGE}."),
+        )]));
+    }
+    let q = TableQuery::parse(&pairs)
+        .map_err(|e| Problem::new(StatusCode::UNPROCESSABLE_ENTITY, "Invalid input", e))?;
+    let threshold = state.settings.soi_threshold;
+    let rows = relation_rows(&state.pool)
+        .await?
+        .into_iter()
+        .map(|r| TableRow::new(r, threshold))
+        .collect();
+    let (page_rows, total) = select_page(rows, &q);
+    debug_assert!(q.per_page <= MAX_PER_PAGE);
+    Ok(Json(GalaxyPage {
+        total,
+        page: q.page,
+        per_page: q.per_page,
+        pages: total.div_ceil(q.per_page).max(1),
+        galaxies: page_rows.iter().map(row_of).collect(),
+    }))
+}
+
+/// One measurement of a galaxy.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct MeasurementAnswer {
+    /// Key.
+    pub measurement_id: i64,
+    /// The submission it came with.
+    pub submission_id: i64,
+    /// `bh_mass`, `sigma`, `bulge_mass` or `bulge_luminosity`.
+    pub quantity: String,
+    /// The value exactly as typed.
+    pub value_text: String,
+    /// Canonical value, log10 in the quantity's unit (M☉, km/s, L☉ of the band), at the
+    /// source's distance.
+    pub log_value: f64,
+    /// The same at the galaxy's adopted distance.
+    pub log_value_at_adopted_distance: f64,
+    /// Lower 1σ error, dex.
+    pub err_minus_dex: f64,
+    /// Upper 1σ error, dex.
+    pub err_plus_dex: f64,
+    /// Symmetric error the fits use, dex.
+    pub err_dex: f64,
+    /// Whether the value is an upper limit.
+    pub upper_limit: bool,
+    /// Confidence of an upper limit, σ.
+    pub limit_confidence_sigma: Option<f64>,
+    /// Measurement method (masses), empty otherwise.
+    pub method: String,
+    /// `sigma_e` or `sigma_c` for σ, empty otherwise.
+    pub sigma_definition: String,
+    /// Aperture of σ as published.
+    pub aperture: String,
+    /// Band of a luminosity.
+    pub band: String,
+    /// Distance the source assumed, Mpc.
+    pub source_distance_mpc: Option<f64>,
+    /// Spatial resolution, arcsec.
+    pub resolution_arcsec: Option<f64>,
+    /// Reference.
+    pub reference: String,
+    /// Note.
+    pub note: String,
+    /// State of its submission: pending, accepted, rejected, withdrawn.
+    pub state: String,
+    /// Whether it is the adopted value of its quantity (and band).
+    pub adopted: bool,
+    /// When it was recorded, RFC 3339 UTC.
+    #[schema(format = DateTime)]
+    pub created_at: String,
+}
+
+/// The sphere-of-influence check of the adopted black-hole mass.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct GalaxySoi {
+    /// r_infl = G M_BH / σ², pc.
+    pub radius_pc: f64,
+    /// θ_infl = r_infl / D, arcsec.
+    pub theta_arcsec: f64,
+    /// Recorded resolution, arcsec.
+    pub resolution_arcsec: Option<f64>,
+    /// θ_infl / resolution.
+    pub ratio: Option<f64>,
+    /// Whether the ratio reaches the threshold; null without a resolution.
+    pub resolved: Option<bool>,
+    /// The server's threshold.
+    pub threshold: f64,
+}
+
+/// An adopted value.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct AdoptedValue {
+    /// Quantity.
+    pub quantity: String,
+    /// Band of a luminosity (empty otherwise).
+    pub band: String,
+    /// The measurement adopted.
+    pub measurement_id: i64,
+    /// Its value at the adopted distance, log10 in the quantity's unit.
+    pub log_value: f64,
+    /// Its symmetric error, dex.
+    pub err_dex: f64,
+    /// Whether it is an upper limit.
+    pub upper_limit: bool,
+}
+
+/// One galaxy with every measurement.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct GalaxyAnswer {
+    /// Name.
+    pub name: String,
+    /// URL form of the name.
+    pub slug: String,
+    /// Morphology word.
+    pub morphology: String,
+    /// Bulge kind word.
+    pub bulge_kind: String,
+    /// Centre kind word.
+    pub centre_kind: String,
+    /// Adopted distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// How the distance was measured.
+    pub distance_method: String,
+    /// The adopted value of each quantity (and band).
+    pub adopted: Vec<AdoptedValue>,
+    /// The sphere-of-influence check of the adopted mass, when it can be made.
+    pub sphere_of_influence: Option<GalaxySoi>,
+    /// Every measurement, in any state, adopted first within a quantity.
+    pub measurements: Vec<MeasurementAnswer>,
+}
+
+/// One galaxy with its measurements and adopted values.
+#[utoipa::path(
+    get,
+    path = "/api/v1/galaxies/{slug}",
+    tag = "galaxies",
+    operation_id = "show_galaxy",
+    params(("slug" = String, Path, description = "The galaxy's slug (from the list)")),
+    responses(
+        (status = 200, description = "The galaxy", body = GalaxyAnswer),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such galaxy", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn show_galaxy(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+) -> ApiResult<Json<GalaxyAnswer>> {
+    let galaxy = store::find_by_slug(&state.pool, &slug)
+        .await?
+        .ok_or_else(|| {
+            Problem::new(
+                StatusCode::NOT_FOUND,
+                "Not found",
+                format!(
+                    "There is no galaxy '{}'.",
+                    slug.chars().take(80).collect::<String>()
+                ),
+            )
+        })?;
+    let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
+    let at_d = |m: &crate::catalog::model::Measurement| {
+        at_adopted_distance(
+            m.log_value,
+            &m.quantity,
+            &m.method,
+            m.source_distance_mpc,
+            galaxy.distance_mpc,
+        )
+    };
+    let adopted: Vec<AdoptedValue> = measurements
+        .iter()
+        .filter(|m| m.adopted)
+        .map(|m| AdoptedValue {
+            quantity: m.quantity.clone(),
+            band: m.band.clone(),
+            measurement_id: m.measurement_id,
+            log_value: at_d(m),
+            err_dex: m.err_dex,
+            upper_limit: m.upper_limit,
+        })
+        .collect();
+    let adopted_log_sigma = measurements
+        .iter()
+        .find(|m| m.quantity == "sigma" && m.adopted)
+        .map(|m| m.log_value);
+    let soi = measurements
+        .iter()
+        .find(|m| m.quantity == "bh_mass" && m.adopted)
+        .and_then(|m| {
+            sphere_of_influence(
+                at_d(m),
+                &m.method,
+                adopted_log_sigma,
+                galaxy.distance_mpc,
+                m.resolution_arcsec,
+                state.settings.soi_threshold,
+            )
+        })
+        .map(|s| GalaxySoi {
+            radius_pc: s.radius_pc,
+            theta_arcsec: s.theta_arcsec,
+            resolution_arcsec: s.resolution_arcsec,
+            ratio: s.ratio,
+            resolved: s.resolved,
+            threshold: s.threshold,
+        });
+    let measurements = measurements
+        .iter()
+        .map(|m| MeasurementAnswer {
+            measurement_id: m.measurement_id,
+            submission_id: m.submission_id,
+            quantity: m.quantity.clone(),
+            value_text: m.value_text.clone(),
+            log_value: m.log_value,
+            log_value_at_adopted_distance: at_d(m),
+            err_minus_dex: m.err_minus_dex,
+            err_plus_dex: m.err_plus_dex,
+            err_dex: m.err_dex,
+            upper_limit: m.upper_limit,
+            limit_confidence_sigma: m.limit_confidence_sigma,
+            method: m.method.clone(),
+            sigma_definition: m.sigma_definition.clone(),
+            aperture: m.aperture.clone(),
+            band: m.band.clone(),
+            source_distance_mpc: m.source_distance_mpc,
+            resolution_arcsec: m.resolution_arcsec,
+            reference: m.reference.clone(),
+            note: m.note.clone(),
+            state: m.state.clone(),
+            adopted: m.adopted,
+            created_at: m.created_at.clone(),
+        })
+        .collect();
+    Ok(Json(GalaxyAnswer {
+        name: galaxy.name,
+        slug: galaxy.slug,
+        morphology: galaxy.morphology,
+        bulge_kind: galaxy.bulge_kind,
+        centre_kind: galaxy.centre_kind,
+        distance_mpc: galaxy.distance_mpc,
+        distance_err_mpc: galaxy.distance_err_mpc,
+        distance_method: galaxy.distance_method,
+        adopted,
+        sphere_of_influence: soi,
+        measurements,
+    }))
+}

@@ -1,0 +1,188 @@
+//! `/api`: a page listing each endpoint of the JSON API with a curl example and a short Python
+//! example (standard library only). The examples use the address the page was reached at.
+
+use askama::Template;
+use askama_web::WebTemplate;
+use axum::http::{HeaderMap, header};
+
+use crate::web::Nav;
+
+/// One endpoint on the page.
+pub(crate) struct EndpointView {
+    /// HTTP method.
+    pub(crate) method: &'static str,
+    /// Path, with parameters in braces.
+    pub(crate) path: &'static str,
+    /// Who may call it.
+    pub(crate) access: &'static str,
+    /// What it answers.
+    pub(crate) summary: &'static str,
+    /// A curl command.
+    pub(crate) curl: String,
+    /// A Python snippet.
+    pub(crate) python: String,
+}
+
+/// `/api`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/api.html")]
+pub(crate) struct ApiPage {
+    nav: Nav,
+    base: String,
+    endpoints: Vec<EndpointView>,
+}
+
+const READ: &str = "token with scope read, or a session (anyone with --public-read for GET)";
+
+fn get_example(base: &str, path_and_query: &str) -> (String, String) {
+    let curl =
+        format!("curl -H \"Authorization: Bearer $MASSLINE_TOKEN\" '{base}{path_and_query}'");
+    let python = format!(
+        "import json, os, urllib.request\n\
+         req = urllib.request.Request(\"{base}{path_and_query}\",\n    \
+         headers={{\"Authorization\": \"Bearer \" + os.environ[\"MASSLINE_TOKEN\"]}})\n\
+         with urllib.request.urlopen(req) as r:\n    \
+         print(json.load(r))"
+    );
+    (curl, python)
+}
+
+fn post_example(base: &str, path: &str, body: &str) -> (String, String) {
+    let curl = format!(
+        "curl -H \"Authorization: Bearer $MASSLINE_TOKEN\" -H 'Content-Type: application/json' \\\n     -d '{body}' {base}{path}"
+    );
+    let python = format!(
+        "import json, os, urllib.request\n\
+         body = json.dumps({body}).encode()\n\
+         req = urllib.request.Request(\"{base}{path}\", data=body, method=\"POST\",\n    \
+         headers={{\"Authorization\": \"Bearer \" + os.environ[\"MASSLINE_TOKEN\"],\n             \
+         \"Content-Type\": \"application/json\"}})\n\
+         with urllib.request.urlopen(req) as r:\n    \
+         print(json.load(r))"
+    );
+    (curl, python)
+}
+
+/// Show the API page.
+pub(crate) async fn show_api_page(nav: Nav, headers: HeaderMap) -> ApiPage {
+    let host = headers
+        .get(header::HOST)
+        .and_then(|h| h.to_str().ok())
+        .filter(|h| {
+            h.chars()
+                .all(|c| c.is_ascii_alphanumeric() || matches!(c, '.' | ':' | '-' | '[' | ']'))
+        })
+        .unwrap_or("127.0.0.1:8080");
+    let base = format!("http://{host}");
+    let b = base.as_str();
+    let mut endpoints = Vec::new();
+    let mut add = |method, path, access, summary, (curl, python): (String, String)| {
+        endpoints.push(EndpointView {
+            method,
+            path,
+            access,
+            summary,
+            curl,
+            python,
+        });
+    };
+    add(
+        "GET",
+        "/api/v1/relations",
+        READ,
+        "Every relation of the catalog (slug, axes, default pivots) and where its fit is.",
+        get_example(b, "/api/v1/relations"),
+    );
+    add(
+        "GET",
+        "/api/v1/relations/{relation}",
+        READ,
+        "The current fit of one relation for the estimator (method), sample filter (morphology, bulge_kind, centre_kind, mass_method, soi, sigma_definition, limits) and pivots (pivot, pivot2) asked, as on the relation page: parameters with errors, covariance, N, catalog version, fitted_at. Sends an ETag; If-None-Match with it answers 304 while the catalog is unchanged.",
+        get_example(
+            b,
+            "/api/v1/relations/m_sigma?method=conditional&limits=exclude",
+        ),
+    );
+    add(
+        "GET",
+        "/api/v1/place",
+        READ,
+        "Where one object falls against every relation it has values for (the place page's parameters sigma, bulge_mass, luminosity, band, mass, distance, resolution, each as typed): prediction with 68/95 % intervals, residual_dex, z, verdict, P(below a limit), sphere of influence.",
+        get_example(
+            b,
+            "/api/v1/place?sigma=210%20%C2%B1%2010&mass=3.2e8%20%2B0.5e8/-0.3e8&distance=16.5&resolution=0.1",
+        ),
+    );
+    add(
+        "POST",
+        "/api/v1/place",
+        "token with scope read, or a session sending X-CSRF-Token",
+        "The same for a JSON array of up to 10,000 objects (body up to 4 MB); one answer per object, in order.",
+        post_example(
+            b,
+            "/api/v1/place",
+            r#"[{"sigma": "210 ± 10", "mass": "<2e7"}, {"bulge_mass": "2e11 ± 10%"}]"#,
+        ),
+    );
+    add(
+        "GET",
+        "/api/v1/galaxies",
+        READ,
+        "The catalog table with the filters, sort and pages of /galaxies (morphology, bulge_kind, method, limits, soi, sort, dir, page, per_page).",
+        get_example(
+            b,
+            "/api/v1/galaxies?limits=detections&sort=sigma&dir=desc&per_page=100",
+        ),
+    );
+    add(
+        "GET",
+        "/api/v1/galaxies/{slug}",
+        READ,
+        "One galaxy: every measurement (as typed, canonical, at the adopted distance, state), the adopted values and the sphere-of-influence check.",
+        get_example(b, "/api/v1/galaxies/{slug}"),
+    );
+    add(
+        "POST",
+        "/api/v1/fit",
+        "token with scope read, or a session sending X-CSRF-Token",
+        "Fit a sample of your own (up to 100,000 points; body up to 16 MB) with any estimator massline fit offers, optionally with a bootstrap or a posterior.",
+        post_example(
+            b,
+            "/api/v1/fit",
+            r#"{"method": "structural", "points": [{"x": 2.3, "x_err": 0.02, "y": 8.4, "y_err": 0.1}, {"x": 2.1, "x_err": 0.02, "y": 7.5, "y_err": 0.1}, {"x": 2.4, "x_err": 0.02, "y": 8.9, "y_err": 0.1}, {"x": 2.2, "x_err": 0.02, "y": 7.9, "y_err": 0.1, "upper_limit": true}]}"#,
+        ),
+    );
+    add(
+        "GET",
+        "/api/v1/catalog.csv",
+        READ,
+        "The accepted catalog in the catalog CSV format; its version in the Catalog-Version header.",
+        get_example(b, "/api/v1/catalog.csv"),
+    );
+    add(
+        "GET",
+        "/api/v1/me",
+        "any token or session",
+        "Who the caller is: user name, role, scopes.",
+        get_example(b, "/api/v1/me"),
+    );
+    add(
+        "GET",
+        "/api/v1/openapi.json",
+        "anyone",
+        "The OpenAPI 3.1 document of all of the above, generated from the code.",
+        (
+            format!("curl '{b}/api/v1/openapi.json'"),
+            format!(
+                "import json, urllib.request\n\
+                 with urllib.request.urlopen(\"{b}/api/v1/openapi.json\") as r:\n    \
+                 print(sorted(json.load(r)[\"paths\"]))"
+            ),
+        ),
+    );
+    ApiPage {
+        nav,
+        base,
+        endpoints,
+    }
+}

@@ -1,0 +1,537 @@
+//! `GET /api/v1/place` (one object, the place page's query parameters) and `POST
+//! /api/v1/place` (a batch of up to [`MAX_BATCH`] objects as a JSON array): where each object
+//! falls against every relation it has values for, answered as on the place page.
+//!
+//! The numbers come from the place page's own computation (`web::place::placement_numbers`
+//! with the page's value parser and `Inputs::host_values`): predicted log M_BH with 68 % and
+//! 95 % predictive intervals, residual, z, verdict, P(true mass below a limit), and the
+//! sphere-of-influence check. The page's refit with the object and its charts are left out:
+//! they are for people reviewing one object, and cost milliseconds each.
+//!
+//! ```text
+//! ŷ = α + β (x − x0) [+ γ (x2 − x02)],  s_pred² = ε² + gᵀ C g + β² σ_x² [+ γ² σ_x2²]
+//! r = y − ŷ,  z = r / √(s_pred² + σ_y²),  limit: P(true < y_lim) = Φ(r / s_pred)
+//! ```
+//! Fits: the structural fit of the whole catalog at its default pivots (as on the place
+//! page), from the fit cache.
+
+use std::sync::Arc;
+
+use axum::Json;
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Query, State};
+use axum::http::StatusCode;
+use serde::{Deserialize, Serialize};
+use utoipa::{IntoParams, ToSchema};
+
+use super::problem::{FieldError, Problem};
+use super::relations::{FitSettings, all_relations, current_fit};
+use super::{ApiJson, ApiResult, query_pairs};
+use crate::astro::SphereOfInfluence;
+use crate::catalog::history;
+use crate::fit::Method;
+use crate::relations::{FitOutcome, Relation};
+use crate::startup::AppState;
+use crate::units::Quantity;
+use crate::web::place::{Inputs, Subject, SubjectMass, placement_numbers, read_entry, read_linear};
+
+/// Most objects one batch may hold.
+pub const MAX_BATCH: usize = 10_000;
+/// Body limit of a batch: 10,000 objects of about 400 bytes.
+pub const BATCH_LIMIT_BYTES: usize = 4 * 1024 * 1024;
+/// Longest value text accepted per field.
+const MAX_FIELD_CHARS: usize = 200;
+/// Batches from this size are placed on the blocking pool.
+const BLOCKING_FROM: usize = 64;
+
+/// One object: the place page's fields, each a value as typed (the forms of README "Typing
+/// values"), all optional. Keys other than these are refused.
+#[derive(Debug, Clone, Default, Serialize, Deserialize, ToSchema, IntoParams)]
+#[serde(deny_unknown_fields)]
+#[into_params(parameter_in = Query)]
+pub struct PlaceObject {
+    /// Velocity dispersion σ_e in km/s, e.g. `210 ± 10`.
+    #[schema(example = "210 ± 10")]
+    pub sigma: Option<String>,
+    /// Bulge mass in M☉, e.g. `2e11 ± 10%`.
+    #[schema(example = "2e11 ± 10%")]
+    pub bulge_mass: Option<String>,
+    /// Bulge luminosity in L☉ of `band`, e.g. `5e10 ± 1e10`.
+    pub luminosity: Option<String>,
+    /// Photometric band of the luminosity (one the catalog has, e.g. `K`).
+    pub band: Option<String>,
+    /// Black-hole mass or upper limit in M☉, e.g. `3.2e8 +0.5e8/-0.3e8` or `<2e7`.
+    #[schema(example = "3.2e8 +0.5e8/-0.3e8")]
+    pub mass: Option<String>,
+    /// Distance in Mpc, e.g. `16.5 ± 0.8` (for the sphere of influence).
+    pub distance: Option<String>,
+    /// Spatial resolution of the mass measurement in arcsec, e.g. `0.1`.
+    pub resolution: Option<String>,
+}
+
+/// Where the object falls against one relation.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct RelationPlacement {
+    /// Relation slug.
+    pub relation: String,
+    /// Short name.
+    pub label: String,
+    /// The host property used, log10 in the relation's x unit.
+    pub x_log: f64,
+    /// Its 1σ error, dex.
+    pub x_err_dex: f64,
+    /// The second host property (the plane's bulge mass), log10 M☉.
+    pub x2_log: Option<f64>,
+    /// Its 1σ error, dex.
+    pub x2_err_dex: Option<f64>,
+    /// Predicted log10 M_BH/M☉.
+    pub predicted_log_mbh: Option<f64>,
+    /// Predictive standard deviation, dex (scatter, parameter and x errors).
+    pub prediction_sd_dex: Option<f64>,
+    /// Lower end of the 68 % predictive interval, log10 M☉.
+    pub interval68_low_log_mbh: Option<f64>,
+    /// Upper end of the 68 % predictive interval, log10 M☉.
+    pub interval68_high_log_mbh: Option<f64>,
+    /// Lower end of the 95 % predictive interval, log10 M☉.
+    pub interval95_low_log_mbh: Option<f64>,
+    /// Upper end of the 95 % predictive interval, log10 M☉.
+    pub interval95_high_log_mbh: Option<f64>,
+    /// Observed (or limit) minus predicted log10 M_BH, dex; null without a mass.
+    pub residual_dex: Option<f64>,
+    /// Residual over its standard deviation; null without a mass.
+    pub z: Option<f64>,
+    /// `consistent` (|z| < 2), `in tension` (2–3), `outlier` (≥ 3); for a limit `in tension
+    /// (limit below)` or `outlier (limit far below)` when it lies that far under the relation.
+    pub verdict: Option<String>,
+    /// For an upper limit: probability that the true log10 M_BH lies below it.
+    pub prob_below_limit: Option<f64>,
+    /// Why this relation could not place the object (no fit, …).
+    pub problem: Option<String>,
+}
+
+/// The sphere-of-influence check (needs the mass, σ and the distance).
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct SoiAnswer {
+    /// r_infl = G M_BH / σ², pc.
+    pub radius_pc: f64,
+    /// θ_infl = r_infl / D, arcsec.
+    pub theta_arcsec: f64,
+    /// The resolution given, arcsec.
+    pub resolution_arcsec: Option<f64>,
+    /// θ_infl / resolution.
+    pub ratio: Option<f64>,
+    /// Whether the ratio reaches the server's threshold; null without a resolution.
+    pub resolved: Option<bool>,
+    /// The threshold.
+    pub threshold: f64,
+}
+
+/// One object's answer.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct PlaceAnswer {
+    /// Every relation the object has values for, in the relations' order.
+    pub relations: Vec<RelationPlacement>,
+    /// The sphere-of-influence check, when the mass, σ and distance were given.
+    pub sphere_of_influence: Option<SoiAnswer>,
+    /// Why there is no sphere-of-influence check or no relation, when that is so.
+    pub note: Option<String>,
+}
+
+/// The answer for one object.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct PlaceResult {
+    /// Catalog version of the fits.
+    pub catalog_version: i64,
+    /// Estimator of the fits (`structural`).
+    pub estimator: String,
+    /// The object's placement.
+    pub object: PlaceAnswer,
+}
+
+/// The answer for a batch.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct PlaceBatchResult {
+    /// Catalog version of the fits.
+    pub catalog_version: i64,
+    /// Estimator of the fits (`structural`).
+    pub estimator: String,
+    /// One answer per object, in the order sent.
+    pub objects: Vec<PlaceAnswer>,
+}
+
+/// Reads an object's fields with the place page's parser; `prefix` names the object in field
+/// errors (`[3].` in a batch).
+fn read_object(
+    object: &PlaceObject,
+    bands: &[String],
+    prefix: &str,
+    errors: &mut Vec<FieldError>,
+) -> Inputs {
+    let mut inputs = Inputs::default();
+    let mut text = |name: &str, value: &Option<String>| -> Option<String> {
+        let v = value.as_deref().map(str::trim).unwrap_or("");
+        if v.chars().count() > MAX_FIELD_CHARS {
+            errors.push(FieldError::new(
+                format!("{prefix}{name}"),
+                format!("The value is longer than {MAX_FIELD_CHARS} characters."),
+            ));
+            return None;
+        }
+        (!v.is_empty()).then(|| v.to_owned())
+    };
+    let sigma = text("sigma", &object.sigma);
+    let bulge_mass = text("bulge_mass", &object.bulge_mass);
+    let luminosity = text("luminosity", &object.luminosity);
+    let band = text("band", &object.band);
+    let mass = text("mass", &object.mass);
+    let distance = text("distance", &object.distance);
+    let resolution = text("resolution", &object.resolution);
+    let mut field = |name: &str, r: Result<(), String>| {
+        if let Err(e) = r {
+            errors.push(FieldError::new(format!("{prefix}{name}"), e));
+        }
+    };
+    if let Some(t) = sigma {
+        field(
+            "sigma",
+            read_entry(&t, Quantity::VelocityDispersion).map(|e| inputs.sigma = e),
+        );
+    }
+    if let Some(t) = bulge_mass {
+        field(
+            "bulge_mass",
+            read_entry(&t, Quantity::BulgeMass).map(|e| inputs.bulge_mass = e),
+        );
+    }
+    if let Some(t) = &luminosity {
+        field(
+            "luminosity",
+            read_entry(t, Quantity::BulgeLuminosity).map(|e| inputs.luminosity = e),
+        );
+    }
+    if let Some(t) = mass {
+        field(
+            "mass",
+            read_entry(&t, Quantity::BlackHoleMass).map(|e| inputs.mass = e),
+        );
+    }
+    if let Some(t) = distance {
+        field(
+            "distance",
+            read_linear(&t, Quantity::Distance).map(|e| inputs.distance = e),
+        );
+    }
+    if let Some(t) = resolution {
+        field(
+            "resolution",
+            read_linear(&t, Quantity::Resolution).map(|e| inputs.resolution = e),
+        );
+    }
+    match band {
+        Some(b) => match bands.iter().find(|known| known.eq_ignore_ascii_case(&b)) {
+            Some(known) => inputs.band = Some(known.clone()),
+            None => field(
+                "band",
+                Err(if bands.is_empty() {
+                    "The catalog has no bulge luminosities, so no band can be used.".to_owned()
+                } else {
+                    format!("The catalog has luminosities in {} only.", bands.join(", "))
+                }),
+            ),
+        },
+        None if luminosity.is_some() => {
+            field("band", Err("Give the band of the luminosity.".to_owned()));
+        }
+        None => {}
+    }
+    inputs
+}
+
+/// The relations an object can use (those it has host values for).
+fn used_by(inputs: &Inputs, relations: &[Relation]) -> Vec<bool> {
+    relations
+        .iter()
+        .map(|r| inputs.host_values(r).is_some())
+        .collect()
+}
+
+/// One object against the fits (no database, no await: cheap enough for batches).
+fn place_object(
+    inputs: &Inputs,
+    fits: &[(Relation, Option<Arc<FitOutcome>>)],
+    soi_threshold: f64,
+) -> PlaceAnswer {
+    let mut relations = Vec::new();
+    for (relation, outcome) in fits {
+        let (Some((x, x2)), Some(outcome)) = (inputs.host_values(relation), outcome) else {
+            continue;
+        };
+        let mut placed = RelationPlacement {
+            relation: relation.slug(),
+            label: relation.label(),
+            x_log: x.log_value,
+            x_err_dex: x.err_dex,
+            x2_log: x2.map(|b| b.log_value),
+            x2_err_dex: x2.map(|b| b.err_dex),
+            predicted_log_mbh: None,
+            prediction_sd_dex: None,
+            interval68_low_log_mbh: None,
+            interval68_high_log_mbh: None,
+            interval95_low_log_mbh: None,
+            interval95_high_log_mbh: None,
+            residual_dex: None,
+            z: None,
+            verdict: None,
+            prob_below_limit: None,
+            problem: None,
+        };
+        let fit = match &outcome.fit {
+            Ok(f) => f,
+            Err(e) => {
+                placed.problem = Some(format!("No fit of this relation: {e}"));
+                relations.push(placed);
+                continue;
+            }
+        };
+        let subject = Subject {
+            name: String::new(),
+            href: None,
+            x: (x.log_value, x.err_dex),
+            x2: x2.map(|b| (b.log_value, b.err_dex)),
+            mass: inputs.mass.as_ref().map(SubjectMass::from_entry),
+            input: String::new(),
+        };
+        match placement_numbers(fit, &subject) {
+            Ok(n) => {
+                let p = &n.prediction;
+                placed.predicted_log_mbh = Some(p.log_mbh);
+                placed.prediction_sd_dex = Some(p.sd_dex);
+                placed.interval68_low_log_mbh = Some(p.interval68.0);
+                placed.interval68_high_log_mbh = Some(p.interval68.1);
+                placed.interval95_low_log_mbh = Some(p.interval95.0);
+                placed.interval95_high_log_mbh = Some(p.interval95.1);
+                placed.residual_dex = n.residual_dex;
+                placed.z = n.z;
+                placed.verdict = n.verdict.map(str::to_owned);
+                placed.prob_below_limit = n.prob_below_limit;
+            }
+            Err(e) => placed.problem = Some(e.to_string()),
+        }
+        relations.push(placed);
+    }
+
+    let mut note = None;
+    let mut soi = None;
+    if let (Some(m), Some(s), Some(d)) = (&inputs.mass, &inputs.sigma, &inputs.distance) {
+        match SphereOfInfluence::from_log_mbh(
+            m.log_value,
+            10f64.powf(s.log_value),
+            d.value,
+            inputs.resolution.as_ref().map(|r| r.value),
+            soi_threshold,
+        ) {
+            Ok(sp) => {
+                soi = Some(SoiAnswer {
+                    radius_pc: sp.radius_pc,
+                    theta_arcsec: sp.theta_arcsec,
+                    resolution_arcsec: sp.resolution_arcsec,
+                    ratio: sp.ratio,
+                    resolved: sp.resolved,
+                    threshold: sp.threshold,
+                });
+            }
+            Err(e) => note = Some(e.to_string()),
+        }
+    } else if inputs.mass.is_some() {
+        note = Some(
+            "The sphere-of-influence check needs the velocity dispersion and the distance as well."
+                .to_owned(),
+        );
+    }
+    if relations.is_empty() {
+        note = Some(
+            "No relation can use the values given: the relations need a velocity dispersion, a bulge mass, or a bulge luminosity with its band."
+                .to_owned(),
+        );
+    }
+    PlaceAnswer {
+        relations,
+        sphere_of_influence: soi,
+        note,
+    }
+}
+
+/// The fits the objects need (structural, whole catalog, default pivots), one per relation
+/// any object uses; the others are None.
+async fn fits_for(
+    state: &AppState,
+    version: i64,
+    relations: Vec<Relation>,
+    needed: &[bool],
+) -> ApiResult<Vec<(Relation, Option<Arc<FitOutcome>>)>> {
+    let settings = FitSettings {
+        method: Method::Structural,
+        filter: crate::relations::SampleFilter::default(),
+        pivot: None,
+        pivot2: None,
+    };
+    let mut fits = Vec::with_capacity(relations.len());
+    for (relation, need) in relations.into_iter().zip(needed) {
+        let outcome = if *need {
+            Some(current_fit(state, version, &relation, &settings).await?)
+        } else {
+            None
+        };
+        fits.push((relation, outcome));
+    }
+    Ok(fits)
+}
+
+fn bands_of(relations: &[Relation]) -> Vec<String> {
+    relations
+        .iter()
+        .filter_map(|r| match r {
+            Relation::Luminosity(b) => Some(b.clone()),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Where one object falls against every relation it has values for.
+#[utoipa::path(
+    get,
+    path = "/api/v1/place",
+    tag = "place",
+    operation_id = "place_object",
+    params(PlaceObject),
+    responses(
+        (status = 200, description = "The object's placement", body = PlaceResult),
+        (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "A value could not be read (each field at fault is listed)", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn place_one(
+    State(state): State<AppState>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> ApiResult<Json<PlaceResult>> {
+    let pairs = query_pairs(query)?;
+    let mut object = PlaceObject::default();
+    let mut errors = Vec::new();
+    for (key, value) in pairs {
+        let slot = match key.as_str() {
+            "sigma" => &mut object.sigma,
+            "bulge_mass" => &mut object.bulge_mass,
+            "luminosity" => &mut object.luminosity,
+            "band" => &mut object.band,
+            "mass" => &mut object.mass,
+            "distance" => &mut object.distance,
+            "resolution" => &mut object.resolution,
+            other => {
+                errors.push(FieldError::new(
+                    other.chars().take(40).collect::<String>(),
+                    "This is not a parameter of this endpoint (it accepts sigma, bulge_mass, luminosity, band, mass, distance, resolution).",
+                ));
+                continue;
+            }
+        };
+        *slot = Some(value);
+    }
+    let version = history::current_version(&state.pool).await?;
+    let relations = all_relations(&state).await?;
+    let inputs = read_object(&object, &bands_of(&relations), "", &mut errors);
+    if !errors.is_empty() {
+        return Err(Problem::invalid(errors));
+    }
+    let needed = used_by(&inputs, &relations);
+    let fits = fits_for(&state, version, relations, &needed).await?;
+    let version = fits
+        .iter()
+        .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .unwrap_or(version);
+    Ok(Json(PlaceResult {
+        catalog_version: version,
+        estimator: Method::Structural.as_str().to_owned(),
+        object: place_object(&inputs, &fits, state.settings.soi_threshold),
+    }))
+}
+
+/// Where each object of a batch (a JSON array of up to 10,000 objects) falls.
+#[utoipa::path(
+    post,
+    path = "/api/v1/place",
+    tag = "place",
+    operation_id = "place_batch",
+    request_body(content = Vec<PlaceObject>, description = "Up to 10,000 objects (body up to 4 MB)", content_type = "application/json"),
+    responses(
+        (status = 200, description = "One placement per object, in order", body = PlaceBatchResult),
+        (status = 400, description = "The body is not JSON", body = Problem, content_type = "application/problem+json"),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope, or a session sent no anti-forgery token", body = Problem, content_type = "application/problem+json"),
+        (status = 413, description = "More than 10,000 objects, or a body over 4 MB", body = Problem, content_type = "application/problem+json"),
+        (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "A value could not be read (each field at fault is listed, e.g. `[3].sigma`); nothing is placed", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn place_batch(
+    State(state): State<AppState>,
+    ApiJson(objects): ApiJson<Vec<PlaceObject>>,
+) -> ApiResult<Json<PlaceBatchResult>> {
+    if objects.len() > MAX_BATCH {
+        return Err(Problem::new(
+            StatusCode::PAYLOAD_TOO_LARGE,
+            "Too many objects",
+            format!(
+                "The batch has {} objects; at most {MAX_BATCH} are placed per request, so send it in parts.",
+                objects.len()
+            ),
+        ));
+    }
+    let version = history::current_version(&state.pool).await?;
+    let relations = all_relations(&state).await?;
+    let bands = bands_of(&relations);
+    let mut errors = Vec::new();
+    let inputs: Vec<Inputs> = objects
+        .iter()
+        .enumerate()
+        .map(|(i, o)| read_object(o, &bands, &format!("[{i}]."), &mut errors))
+        .collect();
+    if !errors.is_empty() {
+        return Err(Problem::invalid(errors));
+    }
+    let mut needed = vec![false; relations.len()];
+    for i in &inputs {
+        for (n, used) in needed.iter_mut().zip(used_by(i, &relations)) {
+            *n |= used;
+        }
+    }
+    let fits = fits_for(&state, version, relations, &needed).await?;
+    let version = fits
+        .iter()
+        .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .unwrap_or(version);
+    let threshold = state.settings.soi_threshold;
+    let place_all = move || {
+        inputs
+            .iter()
+            .map(|i| place_object(i, &fits, threshold))
+            .collect::<Vec<_>>()
+    };
+    let objects = if objects.len() >= BLOCKING_FROM {
+        tokio::task::spawn_blocking(place_all)
+            .await
+            .map_err(anyhow::Error::from)?
+    } else {
+        place_all()
+    };
+    Ok(Json(PlaceBatchResult {
+        catalog_version: version,
+        estimator: Method::Structural.as_str().to_owned(),
+        objects,
+    }))
+}

@@ -1,0 +1,693 @@
+//! `GET /api/v1/relations` and `GET /api/v1/relations/{relation}`: the scaling relations of the
+//! catalog and the current fit of one, for any estimator, sample filter and pivot the relation
+//! page offers (the same query parameter names as `/relations/{relation}`).
+//!
+//! A fit's answer carries an ETag made from the catalog version and the canonical settings
+//! (relation, estimator, filter, pivots): every accepted change bumps the version, so the tag
+//! changes exactly when the fit can. `If-None-Match` with the tag answers 304 with no body,
+//! before any fit is looked up.
+
+use std::sync::Arc;
+
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, State};
+use axum::http::{HeaderMap, StatusCode};
+use axum::response::Response;
+use serde::{Deserialize, Serialize};
+use utoipa::{IntoParams, ToSchema};
+
+use super::problem::{FieldError, Problem};
+use super::{ApiResult, entity_tag, query_pairs, tagged_json};
+use crate::catalog::{history, relation_rows};
+use crate::fit::{Fit, Method};
+use crate::relations::{
+    FILTER_PARAMS, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice, SoiChoice, fitted,
+};
+use crate::startup::AppState;
+
+/// Estimators a fit can use (`method`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum EstimatorName {
+    /// Kelly (2007) measurement-error model (the default).
+    Structural,
+    /// Likelihood of y given the observed x.
+    Conditional,
+    /// Tremaine et al. (2002) modified FITEXY (no upper limits).
+    Fitexy,
+    /// BCES Y|X (Akritas & Bershady 1996; no upper limits).
+    BcesYx,
+    /// BCES X|Y.
+    BcesXy,
+    /// BCES bisector.
+    BcesBisector,
+    /// BCES orthogonal.
+    BcesOrthogonal,
+}
+
+/// Host morphology (`morphology`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum MorphologyWord {
+    /// Elliptical.
+    Elliptical,
+    /// Lenticular.
+    Lenticular,
+    /// Spiral.
+    Spiral,
+    /// Irregular.
+    Irregular,
+    /// Unknown.
+    Unknown,
+}
+
+/// Bulge kind (`bulge_kind`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum BulgeKindWord {
+    /// Classical bulge.
+    Classical,
+    /// Pseudobulge.
+    Pseudo,
+    /// Unknown.
+    Unknown,
+}
+
+/// Centre kind (`centre_kind`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum CentreKindWord {
+    /// Cored centre.
+    Core,
+    /// Power-law centre.
+    PowerLaw,
+    /// Unknown.
+    Unknown,
+}
+
+/// How a black-hole mass was measured (`mass_method`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum MassMethodWord {
+    /// Stellar dynamics.
+    StellarDynamics,
+    /// Gas dynamics.
+    GasDynamics,
+    /// Maser.
+    Maser,
+    /// Reverberation mapping.
+    Reverberation,
+}
+
+/// Sphere-of-influence selection (`soi`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum SoiWord {
+    /// Every mass (default).
+    All,
+    /// Only masses whose sphere of influence is resolved.
+    Resolved,
+}
+
+/// σ definition (`sigma_definition`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum SigmaWord {
+    /// σ within the effective radius (default).
+    SigmaE,
+    /// Central σ.
+    SigmaC,
+}
+
+/// Upper limits in or out (`limits`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum LimitsWord {
+    /// Upper limits enter the fit (default).
+    Include,
+    /// Detections only (FITEXY and BCES need this).
+    Exclude,
+}
+
+/// The query parameters of a relation's fit: those of the relation page.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct FitQuery {
+    /// Estimator (default `structural`).
+    pub method: Option<EstimatorName>,
+    /// Only galaxies of this morphology.
+    pub morphology: Option<MorphologyWord>,
+    /// Only galaxies with this bulge kind.
+    pub bulge_kind: Option<BulgeKindWord>,
+    /// Only galaxies with this centre kind.
+    pub centre_kind: Option<CentreKindWord>,
+    /// Only black-hole masses measured this way.
+    pub mass_method: Option<MassMethodWord>,
+    /// `resolved`: only masses whose sphere of influence is resolved.
+    pub soi: Option<SoiWord>,
+    /// Which σ the relations using σ take (default `sigma_e`; never mixed).
+    pub sigma_definition: Option<SigmaWord>,
+    /// Whether upper limits enter (default `include`).
+    pub limits: Option<LimitsWord>,
+    /// Pivot x0, log10 in the relation's x unit (default: log10 200 km/s for σ, 11 for masses
+    /// and luminosities).
+    #[param(minimum = 0.0, maximum = 20.0)]
+    pub pivot: Option<f64>,
+    /// Second pivot (the plane's bulge mass), log10 M☉ (default 11).
+    #[param(minimum = 0.0, maximum = 20.0)]
+    pub pivot2: Option<f64>,
+}
+
+/// The fit settings read from the query.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitSettings {
+    /// Estimator.
+    pub method: Method,
+    /// Which galaxies enter.
+    pub filter: SampleFilter,
+    /// Pivot, if given (log10 units).
+    pub pivot: Option<f64>,
+    /// Second pivot, if given.
+    pub pivot2: Option<f64>,
+}
+
+impl FitSettings {
+    /// Reads the relation page's fit parameters; every parameter at fault is one field error.
+    ///
+    /// # Errors
+    /// A 422 problem listing each parameter at fault.
+    pub fn parse(pairs: &[(String, String)]) -> Result<Self, Problem> {
+        let mut s = Self {
+            method: Method::Structural,
+            filter: SampleFilter::default(),
+            pivot: None,
+            pivot2: None,
+        };
+        let mut errors = Vec::new();
+        for (key, value) in pairs {
+            if value.trim().is_empty() {
+                errors.push(FieldError::new(
+                    key.chars().take(40).collect::<String>(),
+                    super::EMPTY_VALUE,
+                ));
+                continue;
+            }
+            match s.filter.set(key, value) {
+                Ok(true) => continue,
+                Ok(false) => {}
+                Err(e) => {
+                    errors.push(FieldError::new(key.as_str(), e));
+                    continue;
+                }
+            }
+            let value = value.trim();
+            let result = match key.as_str() {
+                "method" => value.parse::<Method>().map(|m| s.method = m).map_err(|_| {
+                    "The method must be one of: structural, conditional, fitexy, bces-yx, bces-xy, bces-bisector, bces-orthogonal.".to_owned()
+                }),
+                "pivot" => parse_pivot(value).map(|v| s.pivot = Some(v)),
+                "pivot2" => parse_pivot(value).map(|v| s.pivot2 = Some(v)),
+                other => Err(format!(
+                    "'{}' is not a parameter of this endpoint (it accepts method, {}, pivot, pivot2).",
+                    other.chars().take(40).collect::<String>(),
+                    FILTER_PARAMS.join(", ")
+                )),
+            };
+            if let Err(e) = result {
+                errors.push(FieldError::new(key.as_str(), e));
+            }
+        }
+        if errors.is_empty() {
+            Ok(s)
+        } else {
+            Err(Problem::invalid(errors))
+        }
+    }
+
+    /// The pivots for `relation`: as given, or the relation's defaults.
+    pub fn pivots(&self, relation: &Relation) -> (f64, f64) {
+        (
+            self.pivot.unwrap_or_else(|| relation.default_pivot()),
+            self.pivot2.unwrap_or_else(|| relation.default_pivot2()),
+        )
+    }
+
+    /// A canonical text of the settings for `relation` (entity tags).
+    pub fn canonical(&self, relation: &Relation) -> String {
+        let (p, p2) = self.pivots(relation);
+        format!(
+            "relation={};method={};{};pivots={:x},{:x}",
+            relation.slug(),
+            self.method.as_str(),
+            self.filter.canonical(),
+            p.to_bits(),
+            p2.to_bits()
+        )
+    }
+}
+
+/// A pivot as typed: a log10 value from 0 to 20 in the relation's x unit.
+fn parse_pivot(value: &str) -> Result<f64, String> {
+    match value.parse::<f64>() {
+        Ok(v) if v.is_finite() && (0.0..=20.0).contains(&v) => Ok(v),
+        _ => Err(format!(
+            "'{}' is not a log10 value from 0 to 20, such as 2.301 (σ = 200 km/s) or 11 (10^11 M☉).",
+            value.chars().take(40).collect::<String>()
+        )),
+    }
+}
+
+/// The relation named by a slug: the fixed ones without asking the database, a luminosity
+/// relation against the bands the catalog has.
+///
+/// # Errors
+/// 404 problem for an unknown slug; a database failure.
+pub async fn relation_named(state: &AppState, slug: &str) -> ApiResult<Relation> {
+    if let Ok(r) = Relation::from_slug(slug, &[]) {
+        return Ok(r);
+    }
+    let bands = relation_rows::luminosity_bands(&state.pool).await?;
+    Relation::from_slug(slug, &bands)
+        .map_err(|e| Problem::new(StatusCode::NOT_FOUND, "Not found", e.to_string()))
+}
+
+/// Every relation of the catalog as it is now.
+///
+/// # Errors
+/// A database failure.
+pub async fn all_relations(state: &AppState) -> ApiResult<Vec<Relation>> {
+    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
+        .await?
+        .into_iter()
+        .filter(|b| Relation::valid_band(b))
+        .collect();
+    Ok(Relation::all(&bands))
+}
+
+/// The fit of `relation` at catalog version `version`: from the cache without another query,
+/// or fitted now (off the async runtime) and cached.
+///
+/// # Errors
+/// A database failure or a failed fitting task.
+pub async fn current_fit(
+    state: &AppState,
+    version: i64,
+    relation: &Relation,
+    settings: &FitSettings,
+) -> ApiResult<Arc<FitOutcome>> {
+    let pivots = settings.pivots(relation);
+    let key = FitKey::new(
+        version,
+        relation,
+        settings.method,
+        &settings.filter,
+        pivots.0,
+        pivots.1,
+    );
+    if let Some(hit) = state.fits.get(&key) {
+        return Ok(hit);
+    }
+    Ok(fitted(
+        &state.pool,
+        &state.fits,
+        state.settings.soi_threshold,
+        relation,
+        settings.method,
+        &settings.filter,
+        pivots,
+    )
+    .await?)
+}
+
+/// A covariance matrix with the names of its rows and columns.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct Covariance {
+    /// Row and column names: `alpha`, `beta`, then `beta2` or `gamma` if present, `eps` (the
+    /// intrinsic scatter).
+    pub names: Vec<String>,
+    /// The matrix, in the units of the products of the parameters (dex²; β dimensionless).
+    pub matrix: Vec<Vec<f64>>,
+}
+
+/// Fitted parameters of log10 M_BH = α + β (x − x0) [+ γ (x2 − x02)] with intrinsic scatter ε.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct FitParameters {
+    /// α: log10 M_BH/M☉ at the pivot.
+    pub alpha_log_mbh: f64,
+    /// 1σ error of α, dex.
+    pub alpha_err_dex: f64,
+    /// β: slope, dex per dex.
+    pub beta: f64,
+    /// 1σ error of β.
+    pub beta_err: f64,
+    /// γ: slope of the second host property (the plane), dex per dex.
+    pub gamma: Option<f64>,
+    /// 1σ error of γ.
+    pub gamma_err: Option<f64>,
+    /// ε: intrinsic scatter in log10 M_BH at fixed host property, dex.
+    pub scatter_dex: f64,
+    /// 1σ error of ε, dex (0 at the ε = 0 boundary; see `termination`).
+    pub scatter_err_dex: f64,
+    /// Parameter covariance.
+    pub covariance: Covariance,
+    /// Objects fitted (detections and upper limits).
+    pub n: usize,
+    /// Upper limits among them.
+    pub n_limits: usize,
+    /// −2 ln L at the optimum (likelihood estimators).
+    pub neg2_log_likelihood: Option<f64>,
+    /// Akaike information criterion (likelihood estimators).
+    pub aic: Option<f64>,
+    /// Bayesian information criterion (likelihood estimators).
+    pub bic: Option<f64>,
+    /// χ² at the optimum (FITEXY).
+    pub chi2: Option<f64>,
+    /// How the optimiser ended, in plain sentences.
+    pub termination: String,
+    /// Optimiser iterations.
+    pub iterations: u64,
+}
+
+/// A finite value, or 0 (a covariance entry can only be non-finite if the fit failed, which
+/// is reported separately; JSON has no NaN).
+fn finite(v: f64) -> f64 {
+    if v.is_finite() { v } else { 0.0 }
+}
+
+fn finite_opt(v: Option<f64>) -> Option<f64> {
+    v.filter(|x| x.is_finite())
+}
+
+impl FitParameters {
+    /// The answer's view of a fit.
+    pub fn of(fit: &Fit) -> Self {
+        Self {
+            alpha_log_mbh: finite(fit.params.alpha),
+            alpha_err_dex: finite(fit.errors.alpha),
+            beta: finite(fit.params.beta),
+            beta_err: finite(fit.errors.beta),
+            gamma: finite_opt(fit.params.gamma),
+            gamma_err: finite_opt(fit.errors.gamma),
+            scatter_dex: finite(fit.params.eps),
+            scatter_err_dex: finite(fit.errors.eps),
+            covariance: Covariance {
+                names: fit.cov_names.iter().map(|n| (*n).to_owned()).collect(),
+                matrix: fit
+                    .cov
+                    .iter()
+                    .map(|row| row.iter().copied().map(finite).collect())
+                    .collect(),
+            },
+            n: fit.n,
+            n_limits: fit.n_upper,
+            neg2_log_likelihood: finite_opt(fit.neg2_log_l),
+            aic: finite_opt(fit.aic),
+            bic: finite_opt(fit.bic),
+            chi2: finite_opt(fit.chi2),
+            termination: fit.termination.reason.clone(),
+            iterations: fit.termination.iterations,
+        }
+    }
+}
+
+/// The sample filter as applied.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct FilterAnswer {
+    /// Morphology, or null for any.
+    pub morphology: Option<String>,
+    /// Bulge kind, or null for any.
+    pub bulge_kind: Option<String>,
+    /// Centre kind, or null for any.
+    pub centre_kind: Option<String>,
+    /// Mass method, or null for any.
+    pub mass_method: Option<String>,
+    /// `all` or `resolved`.
+    pub soi: String,
+    /// `sigma_e` or `sigma_c`.
+    pub sigma_definition: String,
+    /// `include` or `exclude`.
+    pub limits: String,
+}
+
+impl FilterAnswer {
+    fn of(f: &SampleFilter) -> Self {
+        Self {
+            morphology: f.morphology.map(|m| m.as_str().to_owned()),
+            bulge_kind: f.bulge_kind.map(|m| m.as_str().to_owned()),
+            centre_kind: f.centre_kind.map(|m| m.as_str().to_owned()),
+            mass_method: f.mass_method.map(|m| m.as_str().to_owned()),
+            soi: match f.soi {
+                SoiChoice::All => "all",
+                SoiChoice::Resolved => "resolved",
+            }
+            .to_owned(),
+            sigma_definition: match f.sigma {
+                SigmaChoice::Effective => "sigma_e",
+                SigmaChoice::Central => "sigma_c",
+            }
+            .to_owned(),
+            limits: if f.exclude_limits {
+                "exclude"
+            } else {
+                "include"
+            }
+            .to_owned(),
+        }
+    }
+}
+
+/// The current fit of one relation.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct RelationFit {
+    /// Relation slug, e.g. `m_sigma`.
+    pub relation: String,
+    /// Short name, e.g. `M_BH–σ`.
+    pub label: String,
+    /// x axis with its unit.
+    pub x_label: String,
+    /// Second host property (the plane) with its unit.
+    pub x2_label: Option<String>,
+    /// y axis with its unit.
+    pub y_label: String,
+    /// Estimator.
+    pub estimator: String,
+    /// Which galaxies entered.
+    pub sample_filter: FilterAnswer,
+    /// Pivot x0, log10 in the x unit.
+    pub pivot_log: f64,
+    /// Second pivot (the plane), log10 M☉.
+    pub pivot2_log: Option<f64>,
+    /// Catalog version the sample was read at.
+    pub catalog_version: i64,
+    /// When the fit was made, RFC 3339 UTC.
+    #[schema(format = DateTime)]
+    pub fitted_at: String,
+    /// Detections in the sample.
+    pub n_detections: usize,
+    /// Upper limits in the sample.
+    pub n_limits: usize,
+    /// Galaxies left out because their adopted σ has the other definition.
+    pub left_out_sigma_definition: usize,
+    /// Galaxies left out because they lack a value the relation needs.
+    pub left_out_missing: usize,
+    /// The fit, or null when none could be made (`problem` says why).
+    pub fit: Option<FitParameters>,
+    /// Why there is no fit (too few objects, limits with an estimator that cannot use them…).
+    pub problem: Option<String>,
+}
+
+impl RelationFit {
+    /// The answer for a fit outcome.
+    pub fn of(relation: &Relation, settings: &FitSettings, outcome: &FitOutcome) -> Self {
+        let (pivot, pivot2) = settings.pivots(relation);
+        let plane = relation.shape() == crate::fit::Shape::Plane;
+        Self {
+            relation: relation.slug(),
+            label: relation.label(),
+            x_label: relation.x_label(),
+            x2_label: relation.x2_label(),
+            y_label: relation.y_label(),
+            estimator: settings.method.as_str().to_owned(),
+            sample_filter: FilterAnswer::of(&settings.filter),
+            pivot_log: pivot,
+            pivot2_log: plane.then_some(pivot2),
+            catalog_version: outcome.key.catalog_version,
+            fitted_at: outcome.fitted_at.clone(),
+            n_detections: outcome.sample.n_detections(),
+            n_limits: outcome.sample.n_limits(),
+            left_out_sigma_definition: outcome.sample.left_out_sigma_definition,
+            left_out_missing: outcome.sample.left_out_missing,
+            fit: outcome.fit.as_ref().ok().map(FitParameters::of),
+            problem: outcome.fit.as_ref().err().map(ToString::to_string),
+        }
+    }
+}
+
+/// One relation of the catalog.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct RelationInfo {
+    /// Slug, e.g. `m_sigma`, `m_l_k`.
+    pub relation: String,
+    /// Short name.
+    pub label: String,
+    /// x axis with its unit.
+    pub x_label: String,
+    /// Second host property (the plane).
+    pub x2_label: Option<String>,
+    /// y axis with its unit.
+    pub y_label: String,
+    /// `line` or `plane`.
+    pub shape: String,
+    /// Default pivot, log10 in the x unit.
+    pub default_pivot_log: f64,
+    /// Default second pivot (the plane), log10 M☉.
+    pub default_pivot2_log: Option<f64>,
+    /// Where its current fit is.
+    pub fit_url: String,
+}
+
+/// The relations of the catalog.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct RelationList {
+    /// Catalog version now.
+    pub catalog_version: i64,
+    /// Every relation the catalog supports.
+    pub relations: Vec<RelationInfo>,
+}
+
+/// Every relation the catalog supports, with where its fit is.
+#[utoipa::path(
+    get,
+    path = "/api/v1/relations",
+    tag = "relations",
+    operation_id = "list_relations",
+    responses(
+        (status = 200, description = "The relations", body = RelationList),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn list_relations(State(state): State<AppState>) -> ApiResult<axum::Json<RelationList>> {
+    let version = history::current_version(&state.pool).await?;
+    let relations = all_relations(&state)
+        .await?
+        .iter()
+        .map(|r| {
+            let plane = r.shape() == crate::fit::Shape::Plane;
+            RelationInfo {
+                relation: r.slug(),
+                label: r.label(),
+                x_label: r.x_label(),
+                x2_label: r.x2_label(),
+                y_label: r.y_label(),
+                shape: r.shape().as_str().to_owned(),
+                default_pivot_log: r.default_pivot(),
+                default_pivot2_log: plane.then(|| r.default_pivot2()),
+                fit_url: format!("/api/v1/relations/{}", r.slug()),
+            }
+        })
+        .collect();
+    Ok(axum::Json(RelationList {
+        catalog_version: version,
+        relations,
+    }))
+}
+
+/// The current fit of one relation for the estimator, sample and pivots asked.
+#[utoipa::path(
+    get,
+    path = "/api/v1/relations/{relation}",
+    tag = "relations",
+    operation_id = "relation_fit",
+    params(
+        ("relation" = String, Path, description = "Relation slug: m_sigma, m_mbulge, m_l_<band>, m_sigma_mbulge", example = "m_sigma"),
+        FitQuery,
+        ("If-None-Match" = Option<String>, Header, description = "An ETag of an earlier answer: 304 when the fit is unchanged"),
+    ),
+    responses(
+        (status = 200, description = "The fit (or why there is none)", body = RelationFit,
+            headers(("ETag" = String, description = "Catalog version and settings"))),
+        (status = 304, description = "Unchanged since the ETag given in If-None-Match"),
+        (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
+        (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such relation", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("bearer" = []))
+)]
+pub async fn relation_fit(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    headers: HeaderMap,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> ApiResult<Response> {
+    let settings = FitSettings::parse(&query_pairs(query)?)?;
+    let relation = relation_named(&state, &slug).await?;
+    let version = history::current_version(&state.pool).await?;
+    let etag = entity_tag(version, &settings.canonical(&relation));
+    if super::matches_if_none_match(&headers, &etag) {
+        return Ok(tagged_json(&headers, &etag, &()));
+    }
+    let outcome = current_fit(&state, version, &relation, &settings).await?;
+    // The fit may have been made at a newer version than read above; tag what is answered.
+    let etag = if outcome.key.catalog_version == version {
+        etag
+    } else {
+        entity_tag(outcome.key.catalog_version, &settings.canonical(&relation))
+    };
+    Ok(tagged_json(
+        &headers,
+        &etag,
+        &RelationFit::of(&relation, &settings, &outcome),
+    ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
+        items
+            .iter()
+            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+            .collect()
+    }
+
+    #[test]
+    fn settings_read_the_relation_page_parameters_and_name_each_bad_one() {
+        let s = FitSettings::parse(&pairs(&[
+            ("method", "bces-bisector"),
+            ("morphology", "spiral"),
+            ("limits", "exclude"),
+            ("pivot", "2.2"),
+        ]))
+        .unwrap();
+        assert_eq!(s.method.as_str(), "bces-bisector");
+        assert!(s.filter.exclude_limits);
+        assert_eq!(s.pivots(&Relation::MSigma).0.to_bits(), 2.2f64.to_bits());
+        let err = FitSettings::parse(&pairs(&[
+            ("method", "ols"),
+            ("pivot", "99"),
+            ("colour", "red"),
+            ("soi", "maybe"),
+        ]))
+        .unwrap_err();
+        assert_eq!(err.status, 422);
+        let fields: Vec<&str> = err.errors.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(fields, ["method", "pivot", "colour", "soi"]);
+        // Different settings, different canonical texts (and so ETags).
+        let a = FitSettings::parse(&[]).unwrap();
+        assert_ne!(
+            a.canonical(&Relation::MSigma),
+            s.canonical(&Relation::MSigma)
+        );
+        assert_ne!(
+            a.canonical(&Relation::MSigma),
+            a.canonical(&Relation::MBulge)
+        );
+    }
+}
