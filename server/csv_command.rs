@@ -1,5 +1,5 @@
-//! `massline import FILE [--accept]` and `massline export`: the catalog CSV format
-//! (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
+//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json]`: the
+//! catalog file formats (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
 //! server's database file is its administrator; the audit log records the import with no
 //! account.
 
@@ -8,29 +8,64 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::catalog::csv_io::{ImportError, ImportMode, export_csv, import_csv};
+use crate::catalog::csv_io::{ImportError, ImportMode, export_csv, export_json, import_csv};
 use crate::catalog::{self, galaxies::SubmissionSource};
 use crate::config::DEFAULT_DB_PATH;
 
 /// Arguments of `massline import`.
 #[derive(Args, Debug, Clone)]
 pub struct ImportArgs {
-    /// The catalog CSV file.
+    /// The catalog file, CSV or JSON (the format `massline export` writes).
     pub file: PathBuf,
     /// Adopt every row at once (a vetted catalog) instead of queuing them for review.
-    #[arg(long)]
+    #[arg(long, conflicts_with = "submitter")]
     pub accept: bool,
+    /// Queue the rows for review as submitted by this account (login name); without it they
+    /// have no submitter.
+    #[arg(long = "as", value_name = "USER")]
+    pub submitter: Option<String>,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
 }
 
+/// The export file formats.
+#[derive(clap::ValueEnum, Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ExportFormat {
+    /// The catalog CSV format (README "Catalog CSV").
+    #[default]
+    Csv,
+    /// The same rows as JSON, stamped with the catalog version and the time of export.
+    Json,
+}
+
 /// Arguments of `massline export`.
 #[derive(Args, Debug, Clone)]
 pub struct ExportArgs {
+    /// File format.
+    #[arg(long, value_enum, default_value_t = ExportFormat::Csv)]
+    pub format: ExportFormat,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
+}
+
+/// Characters of the command line's progress bar.
+const PROGRESS_WIDTH: usize = 30;
+
+/// `importing [#########.....................]  300/1000 rows  30%`
+fn progress_line(done: usize, total: usize) -> String {
+    let filled = (done * PROGRESS_WIDTH)
+        .checked_div(total)
+        .unwrap_or(PROGRESS_WIDTH)
+        .min(PROGRESS_WIDTH);
+    let percent = (done * 100).checked_div(total).unwrap_or(100);
+    format!(
+        "importing [{}{}] {done:>width$}/{total} rows {percent:>3}%",
+        "#".repeat(filled),
+        ".".repeat(PROGRESS_WIDTH - filled),
+        width = total.to_string().len()
+    )
 }
 
 /// Import a file whole or not at all; a faulty file prints every faulty row to `err`.
@@ -47,18 +82,37 @@ pub fn run_import(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
+        let account_id = match &args.submitter {
+            None => None,
+            Some(name) => Some(
+                catalog::accounts::find_by_username(&pool, name)
+                    .await?
+                    .filter(|a| !a.disabled)
+                    .map(|a| a.account_id)
+                    .ok_or_else(|| {
+                        anyhow::anyhow!("there is no enabled account named '{name}'")
+                    })?,
+            ),
+        };
         let mode = if args.accept {
             ImportMode::Accepted
         } else {
             ImportMode::Pending {
-                account_id: None,
+                account_id,
                 source: SubmissionSource::Import,
             }
         };
+        let mut last_width = usize::MAX;
         let mut progress = |done: usize, total: usize| {
-            // One line on standard error, rewritten in place; a failed write only loses it.
+            // One line on standard error, rewritten in place when the bar grows (not on every
+            // row of a 50,000-row file); a failed write only loses the bar.
+            let filled = (done * PROGRESS_WIDTH).checked_div(total).unwrap_or(PROGRESS_WIDTH);
+            if filled == last_width && done != total {
+                return;
+            }
+            last_width = filled;
             let mut stderr = std::io::stderr().lock();
-            let _ = write!(stderr, "\rimporting: {done}/{total} rows");
+            let _ = write!(stderr, "\r{}", progress_line(done, total));
             if done == total {
                 let _ = writeln!(stderr);
             }
@@ -67,7 +121,7 @@ pub fn run_import(
             Ok(report) => {
                 writeln!(
                     out,
-                    "imported {} measurement(s), {} new galaxies, {} submission(s){}",
+                    "imported {} measurement(s), {} new galaxies, {} submission(s){}; {} row(s) already in the catalog skipped",
                     report.measurements,
                     report.new_galaxies,
                     report.submissions,
@@ -75,13 +129,19 @@ pub fn run_import(
                         ", adopted"
                     } else {
                         ", pending review"
-                    }
+                    },
+                    report.skipped
                 )?;
                 Ok(())
             }
             Err(ImportError::Rows(rows)) => {
+                let unit = if text.trim_start().starts_with('{') {
+                    "row"
+                } else {
+                    "line"
+                };
                 for r in &rows {
-                    writeln!(err, "line {}, column '{}': {}", r.line, r.column, r.message)?;
+                    writeln!(err, "{unit} {}, column '{}': {}", r.line, r.column, r.message)?;
                 }
                 anyhow::bail!("{} faulty row(s); nothing was imported", rows.len())
             }
@@ -90,7 +150,7 @@ pub fn run_import(
     })
 }
 
-/// Write the adopted catalog as CSV to `out`; the catalog version goes to `err`.
+/// Write the adopted catalog as CSV or JSON to `out`; the catalog version goes to `err`.
 ///
 /// # Errors
 /// When the database cannot be read.
@@ -102,9 +162,38 @@ pub fn run_export(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
-        let (text, version) = export_csv(&pool).await?;
+        let (text, version) = match args.format {
+            ExportFormat::Csv => export_csv(&pool).await?,
+            ExportFormat::Json => export_json(&pool).await?,
+        };
         out.write_all(text.as_bytes())?;
         writeln!(err, "exported catalog version {version}")?;
         Ok(())
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_progress_bar_fills_with_the_rows_done() {
+        assert_eq!(
+            progress_line(0, 1000),
+            format!("importing [{}]    0/1000 rows   0%", ".".repeat(30))
+        );
+        assert_eq!(
+            progress_line(500, 1000),
+            format!(
+                "importing [{}{}]  500/1000 rows  50%",
+                "#".repeat(15),
+                ".".repeat(15)
+            )
+        );
+        assert_eq!(
+            progress_line(1000, 1000),
+            format!("importing [{}] 1000/1000 rows 100%", "#".repeat(30))
+        );
+        assert!(progress_line(0, 0).ends_with("100%"));
+    }
 }

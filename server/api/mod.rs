@@ -26,6 +26,7 @@ pub mod place;
 pub mod problem;
 pub mod rate;
 pub mod relations;
+pub mod submissions;
 
 use axum::extract::rejection::{JsonRejection, QueryRejection};
 use axum::extract::{FromRequest, Query, Request};

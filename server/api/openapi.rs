@@ -57,6 +57,9 @@ impl Modify for BearerScheme {
         super::galaxies::show_galaxy,
         super::fit::fit_sample,
         super::catalog::catalog_csv,
+        super::catalog::catalog_json,
+        super::submissions::submit,
+        super::submissions::status,
         openapi_json,
     ),
     components(schemas(
@@ -82,6 +85,7 @@ impl Modify for BearerScheme {
         (name = "galaxies", description = "The catalog's galaxies and measurements"),
         (name = "fit", description = "Fitting a sample of your own"),
         (name = "catalog", description = "The accepted catalog as a file"),
+        (name = "submissions", description = "Submitting measurements for review"),
         (name = "account", description = "The caller"),
         (name = "meta", description = "This document"),
     )

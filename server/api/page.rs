@@ -161,6 +161,39 @@ pub(crate) async fn show_api_page(nav: Nav, headers: HeaderMap) -> ApiPage {
     );
     add(
         "GET",
+        "/api/v1/catalog.json",
+        READ,
+        "The accepted catalog as JSON: each column's text as in the CSV and the stored canonical numbers (derived), with catalog_version and exported_at.",
+        get_example(b, "/api/v1/catalog.json"),
+    );
+    add(
+        "POST",
+        "/api/v1/submissions",
+        "token with scope submit, or a session sending X-CSRF-Token",
+        "Submit measurements of a catalog galaxy (galaxy: its slug) or a new one (new_galaxy), keys as the catalog CSV's columns, values as typed; they land as a pending submission (201 with Location). Needs an Idempotency-Key header: the same key and body again answers 200 with the first submission and stores nothing.",
+        {
+            let body = r#"{"galaxy": "{slug}", "measurements": [{"quantity": "bh_mass", "value": "2.4e8 +0.6e8/-0.5e8", "method": "stellar_dynamics", "source_distance_mpc": "16.5", "resolution_arcsec": "0.1", "reference": "Invented et al. 2031"}], "note": ""}"#;
+            let (curl, python) = post_example(b, "/api/v1/submissions", body);
+            (
+                curl.replacen(" -d ", " -H \"Idempotency-Key: $(uuidgen)\" \\\n     -d ", 1),
+                python.replacen(
+                    "\"Content-Type\": \"application/json\"}",
+                    "\"Content-Type\": \"application/json\",\n             \"Idempotency-Key\": str(uuid.uuid4())}",
+                    1,
+                )
+                .replacen("import json, os, urllib.request", "import json, os, urllib.request, uuid", 1),
+            )
+        },
+    );
+    add(
+        "GET",
+        "/api/v1/submissions/{id}",
+        "its submitter's token or session, reviewers, admins",
+        "The state of one submission (pending, accepted, rejected, withdrawn).",
+        get_example(b, "/api/v1/submissions/{id}"),
+    );
+    add(
+        "GET",
         "/api/v1/me",
         "any token or session",
         "Who the caller is: user name, role, scopes.",

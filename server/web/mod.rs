@@ -43,8 +43,9 @@ use crate::startup::AppState;
 /// Largest request body accepted (forms and JSON) on every route but the upload; larger ones get 413.
 pub const BODY_LIMIT_BYTES: usize = 1024 * 1024;
 
-/// The body limit of the CSV upload (`/submissions/upload`): 8 MB of pasted rows.
-pub const UPLOAD_LIMIT_BYTES: usize = 8 * 1024 * 1024;
+/// The body limit of the catalog upload (`/submissions/upload`): 32 MB, room for a 50,000-row
+/// file (about 150 bytes a row).
+pub const UPLOAD_LIMIT_BYTES: usize = 32 * 1024 * 1024;
 
 /// Longest time a request may take before the server gives up with 503 (a slow request is the
 /// server's problem, not the client's, so not 408; clients may retry a 503).
@@ -288,6 +289,12 @@ fn routes() -> Routes {
         )
         .add(
             Method::GET,
+            "/catalog.json",
+            Read,
+            get(submissions::download_catalog_json),
+        )
+        .add(
+            Method::GET,
             "/submissions/{id}",
             Session,
             get(submissions::show_submission),
@@ -374,6 +381,24 @@ fn routes() -> Routes {
             "/api/v1/catalog.csv",
             Read,
             get(crate::api::catalog::catalog_csv),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/catalog.json",
+            Read,
+            get(crate::api::catalog::catalog_json),
+        )
+        .add(
+            Method::POST,
+            "/api/v1/submissions",
+            Api,
+            post(crate::api::submissions::submit),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/submissions/{id}",
+            Api,
+            get(crate::api::submissions::status),
         )
 }
 

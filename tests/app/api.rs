@@ -168,6 +168,7 @@ async fn each_kind_of_caller_gets_what_its_credentials_allow() {
         "/api/v1/galaxies".to_owned(),
         format!("/api/v1/galaxies/{slug}"),
         "/api/v1/catalog.csv".to_owned(),
+        "/api/v1/catalog.json".to_owned(),
     ];
     for path in &reads {
         // Nobody: 401 with a Bearer challenge.
@@ -738,7 +739,7 @@ async fn galaxies_are_listed_as_the_table_lists_them_and_shown_with_their_measur
 }
 
 #[tokio::test]
-async fn the_catalog_csv_is_the_same_file_as_the_page_download() {
+async fn the_catalog_files_are_the_same_as_the_page_downloads() {
     let app = spawn_with(|s| {
         s.demo = true;
         s.public_read = true;
@@ -751,6 +752,18 @@ async fn the_catalog_csv_is_the_same_file_as_the_page_download() {
     assert!(api.header(CONTENT_TYPE).starts_with("text/csv"));
     let page = app.ok("/catalog.csv").await;
     assert_eq!(api.body, page);
+    // The JSON export: the same rows as the page's, stamped with the version.
+    let api = get(&app, "/api/v1/catalog.json", Some(&t)).await;
+    assert_eq!(api.status, 200);
+    assert_eq!(api.header("catalog-version"), "1");
+    let page: Value = serde_json::from_str(&app.ok("/catalog.json").await).unwrap();
+    let v = api.json();
+    assert_eq!(v["catalog_version"], 1);
+    assert_eq!(v["rows"], page["rows"]);
+    assert_eq!(
+        v["rows"].as_array().unwrap().len(),
+        app.ok("/catalog.csv").await.lines().count() - 1
+    );
     // With public read, anonymous scripts read the API too (GET only).
     assert_eq!(get(&app, "/api/v1/relations", None).await.status, 200);
     post_json(&app, "/api/v1/place", None, &json!([]))
@@ -793,13 +806,16 @@ async fn the_api_page_lists_every_endpoint_with_curl_and_python_and_no_inline_sc
         "/api/v1/galaxies/{slug}",
         "/api/v1/fit",
         "/api/v1/catalog.csv",
+        "/api/v1/catalog.json",
+        "/api/v1/submissions",
+        "/api/v1/submissions/{id}",
         "/api/v1/me",
         "/api/v1/openapi.json",
     ] {
         assert!(body.contains(path), "{path} is missing from /api");
     }
-    assert!(body.matches("curl ").count() >= 10);
-    assert!(body.matches("urllib.request").count() >= 10);
+    assert!(body.matches("curl ").count() >= 13);
+    assert!(body.matches("urllib.request").count() >= 13);
     assert!(!body.contains("<script"), "the CSP forbids inline script");
     assert!(body.contains("/static/massline.css"));
 }

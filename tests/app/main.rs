@@ -8,6 +8,7 @@ mod accounts;
 mod api;
 mod api_fuzz;
 mod galaxy_relations;
+mod idempotency;
 mod pages;
 mod relations;
 mod security;
