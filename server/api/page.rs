@@ -48,12 +48,17 @@ fn get_example(base: &str, path_and_query: &str) -> (String, String) {
 }
 
 fn post_example(base: &str, path: &str, body: &str) -> (String, String) {
+    // The same literal as Python (JSON's true/false/null are Python's True/False/None).
+    let py_body = body
+        .replace(": true", ": True")
+        .replace(": false", ": False")
+        .replace(": null", ": None");
     let curl = format!(
         "curl -H \"Authorization: Bearer $MASSLINE_TOKEN\" -H 'Content-Type: application/json' \\\n     -d '{body}' {base}{path}"
     );
     let python = format!(
         "import json, os, urllib.request\n\
-         body = json.dumps({body}).encode()\n\
+         body = json.dumps({py_body}).encode()\n\
          req = urllib.request.Request(\"{base}{path}\", data=body, method=\"POST\",\n    \
          headers={{\"Authorization\": \"Bearer \" + os.environ[\"MASSLINE_TOKEN\"],\n             \
          \"Content-Type\": \"application/json\"}})\n\
@@ -169,7 +174,7 @@ pub(crate) async fn show_api_page(nav: Nav, headers: HeaderMap) -> ApiPage {
     add(
         "POST",
         "/api/v1/submissions",
-        "token with scope submit, or a session sending X-CSRF-Token",
+        "token with scope submit (in a browser, use the submission form)",
         "Submit measurements of a catalog galaxy (galaxy: its slug) or a new one (new_galaxy), keys as the catalog CSV's columns, values as typed; they land as a pending submission (201 with Location). Needs an Idempotency-Key header: the same key and body again answers 200 with the first submission and stores nothing.",
         {
             let body = r#"{"galaxy": "{slug}", "measurements": [{"quantity": "bh_mass", "value": "2.4e8 +0.6e8/-0.5e8", "method": "stellar_dynamics", "source_distance_mpc": "16.5", "resolution_arcsec": "0.1", "reference": "Invented et al. 2031"}], "note": ""}"#;
