@@ -19,9 +19,9 @@ use massline::auth::Role;
 
 use crate::helpers::spawn_with;
 
-/// Test cases per operation and phase: with 3 runs over 10 operations the whole test took
-/// 48–64 s on this 2-core machine while other builds ran (under the 3-minute budget; see
-/// DEVELOPERS.md).
+/// Test cases per operation and phase: with 3 runs over 13 operations the whole test took
+/// about 1 minute on this 2-core machine while other builds ran (under the 3-minute budget;
+/// see DEVELOPERS.md).
 const MAX_EXAMPLES: &str = "50";
 
 fn st_available() -> bool {
