@@ -1,0 +1,115 @@
+//! A write while another process holds the database lock beyond the busy timeout answers 503
+//! with Retry-After (never 500, never a false success), reads keep answering, and the same
+//! writes go through once the lock is released.
+
+use std::time::{Duration, Instant};
+
+use massline::auth::Role;
+use sqlx::Connection;
+
+use crate::support::{
+    Browser, TestApp, borrowed, count, create_account, new_galaxy_form, open_file, plain_client,
+    spawn_with,
+};
+
+/// The busy timeout of this test's server (the default is 5 s; a short one keeps the test quick).
+const BUSY_TIMEOUT_MS: u64 = 300;
+
+async fn written(app: &TestApp) -> (i64, i64, i64) {
+    (
+        count(&app.pool, "submission").await,
+        count(&app.pool, "measurement").await,
+        count(&app.pool, "galaxy").await,
+    )
+}
+
+#[tokio::test]
+async fn a_write_during_a_held_lock_answers_503_with_retry_after_and_succeeds_after_release() {
+    let app = spawn_with(|s| {
+        s.public_read = true;
+        s.busy_timeout_ms = BUSY_TIMEOUT_MS;
+    })
+    .await;
+    create_account(&app.pool, "lock-member", Role::Member).await;
+    let mut member = Browser::new(&app.address);
+    member.log_in("lock-member").await;
+    let form_page = member.get("/submissions/new").await;
+    assert_eq!(form_page.status, 200);
+    let form = new_galaxy_form("Lockwait 1");
+    let csv = "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,sigma_definition\n\
+               Lockwait 2,elliptical,classical,core,20,1,sbf,sigma,190 ± 9,sigma_e\n";
+    let before = written(&app).await;
+
+    // Another process's connection takes the write lock and keeps it (BEGIN IMMEDIATE, as a
+    // second program on the same file would).
+    let mut outsider = open_file(&app.db_path).await;
+    let held = outsider
+        .begin_with("BEGIN IMMEDIATE")
+        .await
+        .expect("the outside connection takes the lock");
+    let locked_at = Instant::now();
+
+    let answers = [
+        (
+            "the submission form",
+            member.post("/submissions/new", &borrowed(&form)).await,
+        ),
+        (
+            "the CSV upload",
+            member.post("/submissions/upload", &[("csv", csv)]).await,
+        ),
+    ];
+    for (what, reply) in &answers {
+        assert_eq!(
+            reply.status, 503,
+            "{what} during the held lock answered {}:\n{}",
+            reply.status, reply.body
+        );
+        let retry: u64 = reply
+            .header("retry-after")
+            .parse()
+            .unwrap_or_else(|_| panic!("{what}: Retry-After is missing or not seconds"));
+        assert!(retry >= 1, "{what}: Retry-After {retry}");
+        assert!(
+            reply.body.contains("nothing was changed"),
+            "{what}: the page says nothing was written:\n{}",
+            reply.body
+        );
+    }
+    // Reads keep answering while the lock is held: WAL readers do not wait for writers.
+    let anonymous = plain_client();
+    for path in ["/", "/galaxies", "/relations/m_sigma", "/catalog.csv"] {
+        let r = anonymous
+            .get(format!("{}{path}", app.address))
+            .send()
+            .await
+            .unwrap();
+        assert_eq!(r.status(), 200, "anonymous GET {path} during the lock");
+    }
+    for path in ["/submissions", "/submissions/new", "/account"] {
+        let r = member.get(path).await;
+        assert_eq!(r.status, 200, "member GET {path} during the lock");
+    }
+    // The lock was held past the busy timeout for every write above.
+    assert!(locked_at.elapsed() >= Duration::from_millis(2 * BUSY_TIMEOUT_MS));
+    // Never a false success: nothing was written (read through the outside connection's
+    // transaction too, which sees the same committed state).
+    assert_eq!(
+        written(&app).await,
+        before,
+        "nothing was written during the lock"
+    );
+    held.rollback().await.unwrap();
+
+    // After release the same requests go through.
+    let r = member.post("/submissions/new", &borrowed(&form)).await;
+    assert_eq!(r.status, 303, "the form after release:\n{}", r.body);
+    let r = member.post("/submissions/upload", &[("csv", csv)]).await;
+    assert_eq!(r.status, 303, "the upload after release:\n{}", r.body);
+    let after = written(&app).await;
+    assert_eq!(
+        after,
+        (before.0 + 2, before.1 + 2, before.2 + 2),
+        "each write went in exactly once"
+    );
+}
