@@ -4,4 +4,5 @@
 
 mod support;
 
+mod crash;
 mod held_lock;
