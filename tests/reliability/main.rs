@@ -4,5 +4,6 @@
 
 mod support;
 
+mod backup;
 mod crash;
 mod held_lock;
