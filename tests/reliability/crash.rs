@@ -220,7 +220,13 @@ async fn sigkill_during_a_bulk_import_leaves_it_whole_or_absent_and_keeps_acknow
         let fraction: f64 = trial_rng.random_range(0.0..1.0);
         let kill_after = Duration::from_secs_f64(horizon.as_secs_f64() * fraction);
         let (outcome, _) = one_trial(&csv, Some(kill_after)).await;
-        eprintln!("crash trial {trial}: {outcome:?}");
+        eprintln!(
+            "crash trial {trial}: killed after {:.2} s, upload acknowledged: {}, batch rows: {}, acknowledged forms: {}",
+            outcome.kill_after.as_secs_f64(),
+            outcome.upload_acknowledged,
+            outcome.batch_rows,
+            outcome.acknowledged_forms
+        );
         outcomes.push(outcome);
     }
     let present = outcomes.iter().filter(|o| o.batch_rows > 0).count();

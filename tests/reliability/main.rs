@@ -5,5 +5,6 @@
 mod support;
 
 mod backup;
+mod concurrency;
 mod crash;
 mod held_lock;
