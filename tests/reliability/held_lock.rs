@@ -8,8 +8,8 @@ use massline::auth::Role;
 use sqlx::Connection;
 
 use crate::support::{
-    Browser, TestApp, borrowed, count, create_account, new_galaxy_form, open_file, plain_client,
-    spawn_with,
+    Browser, TestApp, borrowed, count, create_account, make_token, new_galaxy_form, open_file,
+    plain_client, spawn_with,
 };
 
 /// The busy timeout of this test's server (the default is 5 s; a short one keeps the test quick).
@@ -30,7 +30,8 @@ async fn a_write_during_a_held_lock_answers_503_with_retry_after_and_succeeds_af
         s.busy_timeout_ms = BUSY_TIMEOUT_MS;
     })
     .await;
-    create_account(&app.pool, "lock-member", Role::Member).await;
+    let member_id = create_account(&app.pool, "lock-member", Role::Member).await;
+    let token = make_token(&app.pool, member_id, "read").await;
     let mut member = Browser::new(&app.address);
     member.log_in("lock-member").await;
     let form_page = member.get("/submissions/new").await;
@@ -90,6 +91,20 @@ async fn a_write_during_a_held_lock_answers_503_with_retry_after_and_succeeds_af
         let r = member.get(path).await;
         assert_eq!(r.status, 200, "member GET {path} during the lock");
     }
+    // A token read: the token's last use is recorded on every request (a write), so today it
+    // waits for the lock as writes do. Whatever it answers, it is never a 500.
+    let r = anonymous
+        .get(format!("{}/api/v1/me", app.address))
+        .bearer_auth(&token)
+        .send()
+        .await
+        .unwrap();
+    let token_read = r.status().as_u16();
+    assert!(
+        token_read == 200 || (token_read == 503 && r.headers().contains_key("retry-after")),
+        "a token read during the lock answered {token_read}"
+    );
+    eprintln!("held lock: a token read (GET /api/v1/me) answered {token_read}");
     // The lock was held past the busy timeout for every write above.
     assert!(locked_at.elapsed() >= Duration::from_millis(2 * BUSY_TIMEOUT_MS));
     // Never a false success: nothing was written (read through the outside connection's
