@@ -79,6 +79,7 @@ fn form_fields(
     let mut fields = vec![
         ("galaxy".to_owned(), slug.to_owned()),
         ("request_key".to_owned(), request_key.to_owned()),
+        ("rows".to_owned(), MEASUREMENTS_PER_SUBMISSION.to_string()),
         (
             "note".to_owned(),
             format!("form client {client}, submission {submission}"),
@@ -137,7 +138,6 @@ async fn post_api(
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-#[ignore = "needs POST /api/v1/submissions"]
 async fn a_hundred_concurrent_clients_lose_nothing_duplicate_nothing_and_replays_add_nothing() {
     let app = spawn_with(|s| s.demo = true).await;
     let slugs: Arc<Vec<String>> = Arc::new(

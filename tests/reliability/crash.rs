@@ -45,25 +45,28 @@ fn trials() -> usize {
 }
 
 /// A 50,000-row catalog CSV of invented galaxies (README "Catalog CSV"): the first row of each
-/// galaxy describes it and gives σ_e, the other nine give black-hole masses.
+/// galaxy describes it and gives σ_e, the other nine give black-hole masses. Each row's note
+/// carries its number, so no two rows have the same content (and the same derived row key).
 fn batch_csv(rng: &mut StdRng) -> String {
     let mut text = String::with_capacity(BATCH_ROWS * 64);
     text.push_str(
-        "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,method,sigma_definition,source_distance_mpc,reference\n",
+        "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,method,sigma_definition,source_distance_mpc,reference,note\n",
     );
     for g in 0..BATCH_ROWS / ROWS_PER_GALAXY {
         let name = format!("Bulkfield {g:05}");
         let distance_mpc = rng.random_range(8..60);
         let sigma_km_s = rng.random_range(90..330);
         text.push_str(&format!(
-            "{name},elliptical,classical,core,{distance_mpc},1,sbf,sigma,{sigma_km_s} ± 9,,sigma_e,,{BATCH_REFERENCE}\n"
+            "{name},elliptical,classical,core,{distance_mpc},1,sbf,sigma,{sigma_km_s} ± 9,,sigma_e,,{BATCH_REFERENCE},row {}\n",
+            g * ROWS_PER_GALAXY
         ));
-        for _ in 1..ROWS_PER_GALAXY {
+        for r in 1..ROWS_PER_GALAXY {
             let mantissa = rng.random_range(11..99);
             let exponent = rng.random_range(7..10);
             text.push_str(&format!(
-                "{name},,,,,,,bh_mass,{mantissa}e{exponent} ± {}e{exponent},stellar_dynamics,,{distance_mpc},{BATCH_REFERENCE}\n",
-                mantissa / 5
+                "{name},,,,,,,bh_mass,{mantissa}e{exponent} ± {}e{exponent},stellar_dynamics,,{distance_mpc},{BATCH_REFERENCE},row {}\n",
+                mantissa / 5,
+                g * ROWS_PER_GALAXY + r
             ));
         }
     }
@@ -90,12 +93,13 @@ struct Outcome {
     acknowledged_forms: usize,
 }
 
-/// Upload the batch; Ok(status) or Err when the connection broke.
-async fn upload(browser: &mut Browser, csv: &str) -> Result<u16, String> {
+/// Upload the batch as a file (multipart field `file`); Ok(reply) or Err when the connection
+/// broke.
+async fn upload(browser: &mut Browser, csv: &str) -> Result<(u16, String), String> {
     browser
-        .try_post("/submissions/upload", &[("csv", csv)])
+        .try_post_file("/submissions/upload", "file", "bulk.csv", csv)
         .await
-        .map(|r| r.status)
+        .map(|r| (r.status, r.body))
         .map_err(|e| e.to_string())
 }
 
@@ -142,8 +146,12 @@ async fn one_trial(csv: &str, kill_after: Option<Duration>) -> (Outcome, Duratio
         server.kill();
         result
     };
-    if let Ok(status) = &upload_status {
-        assert_eq!(*status, 303, "the upload answered {status}");
+    if let Ok((status, body)) = &upload_status {
+        assert_eq!(*status, 200, "the upload answered {status}:\n{body}");
+        assert!(
+            body.contains(&format!("Imported {BATCH_ROWS} measurement(s)")),
+            "{body}"
+        );
     }
     let acknowledged = writer.await.unwrap();
 

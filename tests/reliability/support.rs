@@ -222,6 +222,41 @@ impl Browser {
         Ok(self.finish(response).await)
     }
 
+    /// POST a multipart form: this browser's anti-forgery token as the part `csrf`, then one
+    /// file part; `Err` when the connection fails.
+    pub(crate) async fn try_post_file(
+        &mut self,
+        path: &str,
+        field: &str,
+        file_name: &str,
+        content: &str,
+    ) -> reqwest::Result<Reply> {
+        let boundary = format!("----massline-test-{:016x}", rand::random::<u64>());
+        let mut body = String::with_capacity(content.len() + 512);
+        body.push_str(&format!(
+            "--{boundary}\r\nContent-Disposition: form-data; name=\"csrf\"\r\n\r\n{}\r\n",
+            self.csrf
+        ));
+        body.push_str(&format!(
+            "--{boundary}\r\nContent-Disposition: form-data; name=\"{field}\"; filename=\"{file_name}\"\r\nContent-Type: text/csv\r\n\r\n"
+        ));
+        body.push_str(content);
+        body.push_str(&format!("\r\n--{boundary}--\r\n"));
+        let mut request = self
+            .client
+            .post(format!("{}{path}", self.base))
+            .header(
+                "content-type",
+                format!("multipart/form-data; boundary={boundary}"),
+            )
+            .body(body);
+        if !self.cookies.is_empty() {
+            request = request.header("cookie", self.cookie_header());
+        }
+        let response = request.send().await?;
+        Ok(self.finish(response).await)
+    }
+
     /// POST a form with this browser's anti-forgery token added.
     pub(crate) async fn post(&mut self, path: &str, fields: &[(&str, &str)]) -> Reply {
         self.try_post(path, fields)
