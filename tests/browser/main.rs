@@ -7,3 +7,4 @@
 mod support;
 
 mod place_link;
+mod submit_outlier;

@@ -568,3 +568,134 @@ impl Page {
         .await;
     }
 }
+
+/// A galaxy of the demo catalog whose adopted black-hole mass is planted far off the M–σ
+/// relation (its row's note says so), read from the demo files so a regenerated demo still
+/// works.
+#[derive(Clone, Debug)]
+pub(crate) struct DemoGalaxy {
+    /// Its name.
+    pub(crate) name: String,
+    /// Its slug (the galaxy page's address).
+    pub(crate) slug: String,
+    /// Its σ_e as the demo file types it, e.g. "185 ± 9" (km/s).
+    pub(crate) sigma: String,
+    /// The distance its mass's source assumed, as typed (Mpc).
+    pub(crate) source_distance_mpc: String,
+}
+
+/// The demo galaxies whose black-hole mass is a planted outlier and which have σ_e, in file
+/// order.
+pub(crate) fn planted_outliers() -> Vec<DemoGalaxy> {
+    let mut reader = csv::Reader::from_reader(massline::catalog::demo::DEMO_MEASUREMENTS_CSV.as_bytes());
+    let headers = reader.headers().expect("a header").clone();
+    let col = |name: &str| headers.iter().position(|h| h == name).expect("a demo column");
+    let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.expect("a demo row")).collect();
+    let (galaxy, quantity, value, note, distance, definition) = (
+        col("galaxy"),
+        col("quantity"),
+        col("value"),
+        col("note"),
+        col("source_distance_mpc"),
+        col("sigma_definition"),
+    );
+    rows.iter()
+        .filter(|r| &r[quantity] == "bh_mass" && r[note].contains("planted outlier"))
+        .filter_map(|m| {
+            let sigma = rows.iter().find(|s| {
+                s[galaxy] == m[galaxy] && &s[quantity] == "sigma" && &s[definition] == "sigma_e"
+            })?;
+            Some(DemoGalaxy {
+                name: m[galaxy].to_owned(),
+                slug: massline::catalog::model::slugify(&m[galaxy]),
+                sigma: sigma[value].to_owned(),
+                source_distance_mpc: m[distance].to_owned(),
+            })
+        })
+        .collect()
+}
+
+/// A black-hole mass to submit for a galaxy through `/submissions/new`.
+pub(crate) struct MassSubmission<'a> {
+    /// The galaxy.
+    pub(crate) galaxy: &'a DemoGalaxy,
+    /// The value as typed, in M☉.
+    pub(crate) value: &'a str,
+    /// The reference field.
+    pub(crate) reference: &'a str,
+    /// The note to the reviewer.
+    pub(crate) note: &'a str,
+}
+
+impl Page {
+    /// Fill `/submissions/new` with one black-hole mass for an existing galaxy (the page must
+    /// be open), leaving the sending to the caller.
+    pub(crate) async fn fill_mass_submission(&self, s: &MassSubmission<'_>) {
+        self.fill("select[name=galaxy]", &s.galaxy.slug).await;
+        self.fill("select[name=m0_quantity]", "bh_mass").await;
+        self.fill("input[name=m0_value]", s.value).await;
+        self.fill("select[name=m0_method]", "stellar_dynamics").await;
+        self.fill("input[name=m0_source_distance_mpc]", &s.galaxy.source_distance_mpc)
+            .await;
+        self.fill("input[name=m0_resolution_arcsec]", "0.05").await;
+        self.fill("input[name=m0_reference]", s.reference).await;
+        self.fill("textarea[name=note]", s.note).await;
+    }
+
+    /// Click the button of `form_css` whose text contains `text` and wait for the next page.
+    pub(crate) async fn click_button(&self, form_css: &str, text: &str) {
+        let mut target = None;
+        for b in self
+            .driver
+            .find_all(By::Css(format!("{form_css} button")))
+            .await
+            .expect("a query")
+        {
+            if b.text().await.expect("its text").contains(text) {
+                target = Some(b);
+                break;
+            }
+        }
+        let button = target.unwrap_or_else(|| panic!("{}: no button “{text}” in {form_css}", self.who));
+        self.navigating(async {
+            button.click().await.expect("a click works");
+        })
+        .await;
+    }
+
+    /// Submit one black-hole mass through `/submissions/new` (logged in as a member); returns
+    /// the new submission's number, read from the address it lands on.
+    pub(crate) async fn submit_mass(&self, s: &MassSubmission<'_>) -> i64 {
+        self.open("/submissions/new", "submission-form").await;
+        self.fill_mass_submission(s).await;
+        self.click_button("#submission-form", "Submit for review").await;
+        self.check("submission-sent").await;
+        let url = self.url().await;
+        url.rsplit('/')
+            .next()
+            .and_then(|id| id.parse().ok())
+            .unwrap_or_else(|| panic!("{}: the submission did not land on its page: {url}", self.who))
+    }
+
+    /// The value shown beside a `<dt>` with this text in a `dl.facts` or `dl.stats` list.
+    pub(crate) async fn fact(&self, term: &str) -> String {
+        let js = format!(
+            "for (const d of document.querySelectorAll('dl div')) {{ const t = d.querySelector('dt'); if (t && t.textContent.trim() === {}) return d.querySelector('dd').textContent.trim(); }} return null;",
+            serde_json::to_string(term).expect("a string")
+        );
+        self.script(&js)
+            .await
+            .as_str()
+            .unwrap_or_else(|| panic!("{}: no fact “{term}” on the page", self.who))
+            .to_owned()
+    }
+}
+
+/// A number as the pages print it (true minus sign) read back.
+pub(crate) fn number(text: &str) -> f64 {
+    let t = text.trim().replace('−', "-");
+    t.split_whitespace()
+        .next()
+        .and_then(|w| w.parse().ok())
+        .unwrap_or_else(|| panic!("not a number: “{text}”"))
+}

@@ -1,0 +1,108 @@
+//! Journey 1: a member logs in, submits a new black-hole mass for an existing galaxy that lies
+//! far off the M–σ relation, and sees its z-score, verdict and chart before and after
+//! submitting.
+
+use massline::auth::Role;
+
+use crate::support::{self, MassSubmission, PAYLOADS, Reading, TEST_PASSWORD, number};
+
+/// The mass submitted: about 2 dex below what M–σ predicts at the outlier's σ (~185 km/s).
+pub(crate) const FAR_OFF_MASS: &str = "1.0e6 +0.3e6/-0.2e6";
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_member_submits_a_mass_far_off_m_sigma_and_sees_z_verdict_and_chart_before_and_after() {
+    support::run("j1-submit", Reading::Private, |journey| async move {
+        let galaxy = support::planted_outliers()
+            .into_iter()
+            .next()
+            .expect("the demo catalog plants an M–σ outlier with σ_e");
+        journey.account("mira", Role::Member).await;
+        let member = journey.browser("member").await;
+        member.log_in_by_keyboard("mira", TEST_PASSWORD).await;
+
+        // Before: the galaxy page places it against M–σ fitted without it.
+        member
+            .open(&format!("/galaxies/{}", galaxy.slug), "galaxy-before")
+            .await;
+        let before = member.text("#place-m_sigma").await;
+        let z_before = number(&member.text("#place-m_sigma td:nth-child(7)").await);
+        assert!(
+            z_before <= -2.0,
+            "the planted outlier lies below M–σ by 2σ or more: {before}"
+        );
+        assert!(
+            before.contains("in tension") || before.contains("outlier"),
+            "the verdict says so: {before}"
+        );
+        assert!(
+            member.count("figure.chart svg").await >= 1,
+            "the galaxy page has its charts"
+        );
+
+        // Before submitting: how the new value would sit (the place page, with the galaxy's σ).
+        member
+            .open(
+                &format!(
+                    "/place?sigma={}&mass={}",
+                    urlencode(&galaxy.sigma),
+                    urlencode(FAR_OFF_MASS)
+                ),
+                "preview-on-place",
+            )
+            .await;
+        let preview = member.text("#place-m_sigma").await;
+        let z_preview = number(&member.text("#place-m_sigma td:nth-child(7)").await);
+        assert!(z_preview <= -3.0, "the new mass is an outlier: {preview}");
+        assert!(preview.contains("outlier"), "the verdict says so: {preview}");
+        assert!(member.count("figure.chart svg").await >= 1, "with a chart");
+
+        // Submit, with script-injection payloads in the free-text fields.
+        let id = member
+            .submit_mass(&MassSubmission {
+                galaxy: &galaxy,
+                value: FAR_OFF_MASS,
+                reference: PAYLOADS[1],
+                note: PAYLOADS[0],
+            })
+            .await;
+        assert_eq!(member.text("#submission-state").await, "pending");
+        assert!(
+            member.text("#measurements").await.contains(PAYLOADS[1]),
+            "the reference is shown as typed, as text"
+        );
+        let after = member.text("#place-m_sigma").await;
+        let z_after = number(&member.text("#place-m_sigma td:nth-child(7)").await);
+        assert!(z_after <= -3.0, "after submitting: an outlier: {after}");
+        assert!(after.contains("outlier"), "the verdict says so: {after}");
+        assert!(
+            member.count("figure.chart svg").await >= 1,
+            "the submission page has the chart"
+        );
+        assert_eq!(
+            member
+                .script(&format!(
+                    "return [...document.querySelectorAll('figure.chart')].some(f => f.textContent.includes({}));",
+                    serde_json::to_string(&galaxy.name).expect("a string")
+                ))
+                .await,
+            true,
+            "the chart marks the galaxy with its submitted mass (legend names it)"
+        );
+
+        // The member's list has it, pending.
+        member.open("/submissions", "my-submissions").await;
+        assert_eq!(
+            member.text(&format!("#submission-{id} .state")).await,
+            "pending"
+        );
+    })
+    .await;
+}
+
+/// Percent-encode a query value.
+pub(crate) fn urlencode(text: &str) -> String {
+    serde_urlencoded::to_string([("v", text)])
+        .expect("encodable")
+        .trim_start_matches("v=")
+        .to_owned()
+}
