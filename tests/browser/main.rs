@@ -8,3 +8,5 @@ mod support;
 
 mod place_link;
 mod submit_outlier;
+mod review_accept;
+mod review_reject;
