@@ -6,7 +6,9 @@
 
 mod support;
 
+mod api_token;
+mod csv_upload;
 mod place_link;
-mod submit_outlier;
 mod review_accept;
 mod review_reject;
+mod submit_outlier;

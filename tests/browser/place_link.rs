@@ -5,7 +5,7 @@ use crate::support::{self, PAYLOADS, Reading};
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn a_visitor_places_an_object_and_a_colleague_opening_the_copied_address_sees_the_same_result()
-{
+ {
     support::run("j4-place", Reading::Public, |journey| async move {
         let visitor = journey.browser("visitor").await;
         visitor.open("/place", "place-empty").await;

@@ -55,7 +55,11 @@ async fn a_reviewer_accepts_a_submission_and_the_relation_page_shows_the_new_ver
             .navigating(reviewer.press(thirtyfour::Key::Enter))
             .await;
         reviewer.check("queue-after-accept").await;
-        assert_eq!(reviewer.count(&item).await, 0, "the submission left the queue");
+        assert_eq!(
+            reviewer.count(&item).await,
+            0,
+            "the submission left the queue"
+        );
 
         reviewer.open("/relations/m_sigma", "relation-after").await;
         let version_after = number(&reviewer.fact("Catalog version").await);
@@ -78,7 +82,10 @@ async fn a_reviewer_accepts_a_submission_and_the_relation_page_shows_the_new_ver
             .open(&format!("/galaxies/{}", galaxy.slug), "galaxy-after")
             .await;
         assert!(
-            member.text(&format!("#review-{id}")).await.contains("accepted"),
+            member
+                .text(&format!("#review-{id}"))
+                .await
+                .contains("accepted"),
             "the galaxy page shows the decision"
         );
     })

@@ -33,7 +33,9 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
         reviewer.log_in_by_keyboard("rhea", TEST_PASSWORD).await;
         reviewer.open("/review", "queue").await;
         let first = reviewer
-            .script("const s = document.querySelector('section.review-item'); return s ? s.id : null;")
+            .script(
+                "const s = document.querySelector('section.review-item'); return s ? s.id : null;",
+            )
             .await;
         assert_eq!(
             first,
@@ -42,7 +44,10 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
         );
         let item = format!("#review-{id}");
         let placement = reviewer.text(&format!("{item} table.placements")).await;
-        assert!(placement.contains("outlier"), "with its verdict: {placement}");
+        assert!(
+            placement.contains("outlier"),
+            "with its verdict: {placement}"
+        );
         assert!(
             placement.contains('α') && placement.contains('β') && placement.contains('→'),
             "with its influence on the fit (the parameters with it included): {placement}"
@@ -54,7 +59,10 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             PAYLOADS[0], PAYLOADS[1]
         );
         reviewer
-            .tab_and_type(&format!("{item} form[action$='/reject'] input[name=note]"), &note)
+            .tab_and_type(
+                &format!("{item} form[action$='/reject'] input[name=note]"),
+                &note,
+            )
             .await;
         reviewer
             .navigating(reviewer.press(thirtyfour::Key::Enter))
@@ -71,13 +79,18 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             .open(&format!("/galaxies/{}", galaxy.slug), "galaxy-with-note")
             .await;
         let review = member.text(&format!("#review-{id}")).await;
-        assert!(review.contains("rejected"), "the decision is shown: {review}");
+        assert!(
+            review.contains("rejected"),
+            "the decision is shown: {review}"
+        );
         assert_eq!(
             member.text(&format!("#review-{id} .review-note")).await,
             note,
             "the note is shown exactly as typed"
         );
-        member.open(&format!("/submissions/{id}"), "submission-rejected").await;
+        member
+            .open(&format!("/submissions/{id}"), "submission-rejected")
+            .await;
         assert_eq!(member.text("#submission-state").await, "rejected");
     })
     .await;

@@ -20,15 +20,18 @@ use massline::{Application, Settings};
 use serde_json::Value;
 use sqlx::SqlitePool;
 use tempfile::TempDir;
-use thirtyfour::prelude::*;
 use thirtyfour::LoggingPrefsLogLevel;
+use thirtyfour::prelude::*;
 use tokio::process::{Child, Command};
 
 /// A password that passes the strength rules; accounts made directly get it.
 pub(crate) const TEST_PASSWORD: &str = "velvet orbit lantern quietly";
 
 /// Script-injection payloads typed into text fields; none may ever run.
-pub(crate) const PAYLOADS: [&str; 2] = ["<script>alert(1)</script>", "\"><img src=x onerror=alert(1)>"];
+pub(crate) const PAYLOADS: [&str; 2] = [
+    "<script>alert(1)</script>",
+    "\"><img src=x onerror=alert(1)>",
+];
 
 const CHROMEDRIVER: &str = "/usr/bin/chromedriver";
 const CHROMIUM: &str = "/usr/bin/chromium";
@@ -67,21 +70,32 @@ pub(crate) struct Journey {
 /// Whether chromium and chromium-driver are installed; without them the suite skips loudly,
 /// unless `MASSLINE_REQUIRE_EXTERNAL=1` (CI), where it fails.
 fn browser_installed() -> bool {
-    let present = std::path::Path::new(CHROMEDRIVER).exists() && std::path::Path::new(CHROMIUM).exists();
+    let present =
+        std::path::Path::new(CHROMEDRIVER).exists() && std::path::Path::new(CHROMIUM).exists();
     if !present {
         let message = "SKIPPED: browser tests need chromium and chromium-driver (apt-get install chromium chromium-driver)";
         if std::env::var("MASSLINE_REQUIRE_EXTERNAL").is_ok_and(|v| v == "1") {
             panic!("{message}; MASSLINE_REQUIRE_EXTERNAL=1 makes this a failure");
         }
-        eprintln!("\n{}\n{message}\n{}\n", "=".repeat(100), "=".repeat(100));
+        loud(message);
     }
     present
+}
+
+/// Write a message framed by lines straight to stderr, past the test harness's capture, so
+/// it shows in every run.
+pub(crate) fn loud(message: &str) {
+    use std::io::Write as _;
+    let line = "=".repeat(100);
+    let _ = writeln!(std::io::stderr(), "\n{line}\n{message}\n{line}");
 }
 
 /// Where screenshots go: `target/browser-screenshots/`.
 pub(crate) fn screenshot_dir() -> PathBuf {
     let tmp = PathBuf::from(env!("CARGO_TARGET_TMPDIR"));
-    tmp.parent().map_or(tmp.clone(), PathBuf::from).join("browser-screenshots")
+    tmp.parent()
+        .map_or(tmp.clone(), PathBuf::from)
+        .join("browser-screenshots")
 }
 
 /// Run one journey against a fresh server with the demo catalog; every browser session the
@@ -112,7 +126,10 @@ where
     // Screenshots of an earlier run of this journey would mislead whoever looks at them.
     if let Ok(entries) = std::fs::read_dir(&dir) {
         for e in entries.flatten() {
-            if e.file_name().to_string_lossy().starts_with(&format!("{name}-")) {
+            if e.file_name()
+                .to_string_lossy()
+                .starts_with(&format!("{name}-"))
+            {
                 let _ = std::fs::remove_file(e.path());
             }
         }
@@ -129,7 +146,8 @@ where
         _db_dir: db_dir,
     });
     let outcome = tokio::spawn(body(journey.clone())).await;
-    let sessions: Vec<WebDriver> = std::mem::take(&mut *journey.sessions.lock().expect("not poisoned"));
+    let sessions: Vec<WebDriver> =
+        std::mem::take(&mut *journey.sessions.lock().expect("not poisoned"));
     for session in sessions {
         if let Err(e) = session.quit().await {
             eprintln!("{name}: quitting a browser session failed: {e}");
@@ -212,11 +230,15 @@ impl Journey {
         caps.set_browser_log_level(LoggingPrefsLogLevel::All)
             .expect("capability");
         // Leave an opened dialog open, so the check after each page sees it.
-        caps.set("unhandledPromptBehavior", "ignore").expect("capability");
+        caps.set("unhandledPromptBehavior", "ignore")
+            .expect("capability");
         let driver = WebDriver::new(&self.webdriver_url, caps)
             .await
             .expect("a Chromium session starts");
-        self.sessions.lock().expect("not poisoned").push(driver.clone());
+        self.sessions
+            .lock()
+            .expect("not poisoned")
+            .push(driver.clone());
         Page {
             driver,
             journey: self.clone(),
@@ -335,16 +357,22 @@ impl Page {
         let url = found["url"].as_str().unwrap_or("").to_owned();
         let mut problems: Vec<String> = found["problems"]
             .as_array()
-            .map(|a| a.iter().filter_map(|v| v.as_str().map(str::to_owned)).collect())
+            .map(|a| {
+                a.iter()
+                    .filter_map(|v| v.as_str().map(str::to_owned))
+                    .collect()
+            })
             .unwrap_or_default();
         let got = found["status"].as_u64().unwrap_or(0);
         if got != u64::from(status) {
             problems.push(format!("the page answered {got}, expected {status}"));
         }
         let expected_failure = format!("the server responded with a status of {status}");
-        for entry in self.driver.browser_log().await.unwrap_or_else(|e| {
-            panic!("{who} on {shot}: the browser log could not be read: {e}")
-        }) {
+        for entry in
+            self.driver.browser_log().await.unwrap_or_else(|e| {
+                panic!("{who} on {shot}: the browser log could not be read: {e}")
+            })
+        {
             let csp = entry.message.contains("Content Security Policy")
                 || entry.message.contains("Content-Security-Policy");
             let own_document = status != 200
@@ -383,7 +411,10 @@ impl Page {
                 .set_window_rect(0, 0, WINDOW_WIDTH, height)
                 .await
                 .is_ok();
-        let path = screenshot_dir().join(format!("{}-{n:02}-{}-{shot}.png", self.journey.name, self.who));
+        let path = screenshot_dir().join(format!(
+            "{}-{n:02}-{}-{shot}.png",
+            self.journey.name, self.who
+        ));
         if let Err(e) = self.driver.screenshot(&path).await {
             eprintln!("screenshot {} failed: {e}", path.display());
         }
@@ -397,7 +428,11 @@ impl Page {
 
     /// The current address.
     pub(crate) async fn url(&self) -> String {
-        self.driver.current_url().await.expect("an address").to_string()
+        self.driver
+            .current_url()
+            .await
+            .expect("an address")
+            .to_string()
     }
 
     /// The text of the first element matching a CSS selector (panics when there is none).
@@ -405,7 +440,13 @@ impl Page {
         self.driver
             .find(By::Css(css))
             .await
-            .unwrap_or_else(|e| panic!("{}: no element {css} on {}: {e}", self.who, self.page_hint()))
+            .unwrap_or_else(|e| {
+                panic!(
+                    "{}: no element {css} on {}: {e}",
+                    self.who,
+                    self.page_hint()
+                )
+            })
             .text()
             .await
             .expect("its text")
@@ -422,7 +463,11 @@ impl Page {
 
     /// How many elements match a CSS selector.
     pub(crate) async fn count(&self, css: &str) -> usize {
-        self.driver.find_all(By::Css(css)).await.expect("a query").len()
+        self.driver
+            .find_all(By::Css(css))
+            .await
+            .expect("a query")
+            .len()
     }
 
     /// The element matching a CSS selector (panics when there is none).
@@ -548,11 +593,18 @@ impl Page {
     pub(crate) async fn fill(&self, css: &str, text: &str) {
         let el = self.element(css).await;
         if el.tag_name().await.expect("a tag") == "select" {
-            let option = el
-                .find(By::Css(format!("option[value={}]", serde_json::to_string(text).expect("a string"))))
+            let mut chosen = None;
+            for option in el.find_all(By::Css("option")).await.expect("a query") {
+                if option.prop("value").await.expect("a value").as_deref() == Some(text) {
+                    chosen = Some(option);
+                    break;
+                }
+            }
+            chosen
+                .unwrap_or_else(|| panic!("{}: {css} has no option {text}", self.who))
+                .click()
                 .await
-                .unwrap_or_else(|e| panic!("{}: {css} has no option {text}: {e}", self.who));
-            option.click().await.expect("an option can be chosen");
+                .expect("an option can be chosen");
         } else {
             el.clear().await.expect("the field can be cleared");
             el.send_keys(text).await.expect("typing works");
@@ -587,9 +639,15 @@ pub(crate) struct DemoGalaxy {
 /// The demo galaxies whose black-hole mass is a planted outlier and which have σ_e, in file
 /// order.
 pub(crate) fn planted_outliers() -> Vec<DemoGalaxy> {
-    let mut reader = csv::Reader::from_reader(massline::catalog::demo::DEMO_MEASUREMENTS_CSV.as_bytes());
+    let mut reader =
+        csv::Reader::from_reader(massline::catalog::demo::DEMO_MEASUREMENTS_CSV.as_bytes());
     let headers = reader.headers().expect("a header").clone();
-    let col = |name: &str| headers.iter().position(|h| h == name).expect("a demo column");
+    let col = |name: &str| {
+        headers
+            .iter()
+            .position(|h| h == name)
+            .expect("a demo column")
+    };
     let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.expect("a demo row")).collect();
     let (galaxy, quantity, value, note, distance, definition) = (
         col("galaxy"),
@@ -634,9 +692,13 @@ impl Page {
         self.fill("select[name=galaxy]", &s.galaxy.slug).await;
         self.fill("select[name=m0_quantity]", "bh_mass").await;
         self.fill("input[name=m0_value]", s.value).await;
-        self.fill("select[name=m0_method]", "stellar_dynamics").await;
-        self.fill("input[name=m0_source_distance_mpc]", &s.galaxy.source_distance_mpc)
+        self.fill("select[name=m0_method]", "stellar_dynamics")
             .await;
+        self.fill(
+            "input[name=m0_source_distance_mpc]",
+            &s.galaxy.source_distance_mpc,
+        )
+        .await;
         self.fill("input[name=m0_resolution_arcsec]", "0.05").await;
         self.fill("input[name=m0_reference]", s.reference).await;
         self.fill("textarea[name=note]", s.note).await;
@@ -656,7 +718,8 @@ impl Page {
                 break;
             }
         }
-        let button = target.unwrap_or_else(|| panic!("{}: no button “{text}” in {form_css}", self.who));
+        let button =
+            target.unwrap_or_else(|| panic!("{}: no button “{text}” in {form_css}", self.who));
         self.navigating(async {
             button.click().await.expect("a click works");
         })
@@ -668,13 +731,19 @@ impl Page {
     pub(crate) async fn submit_mass(&self, s: &MassSubmission<'_>) -> i64 {
         self.open("/submissions/new", "submission-form").await;
         self.fill_mass_submission(s).await;
-        self.click_button("#submission-form", "Submit for review").await;
+        self.click_button("#submission-form", "Submit for review")
+            .await;
         self.check("submission-sent").await;
         let url = self.url().await;
         url.rsplit('/')
             .next()
             .and_then(|id| id.parse().ok())
-            .unwrap_or_else(|| panic!("{}: the submission did not land on its page: {url}", self.who))
+            .unwrap_or_else(|| {
+                panic!(
+                    "{}: the submission did not land on its page: {url}",
+                    self.who
+                )
+            })
     }
 
     /// The value shown beside a `<dt>` with this text in a `dl.facts` or `dl.stats` list.
