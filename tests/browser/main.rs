@@ -6,6 +6,8 @@
 
 mod support;
 
+mod checks;
+
 mod api_token;
 mod csv_upload;
 mod place_link;
