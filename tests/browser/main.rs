@@ -14,3 +14,4 @@ mod place_link;
 mod review_accept;
 mod review_reject;
 mod submit_outlier;
+mod tour;
