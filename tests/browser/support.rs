@@ -393,10 +393,12 @@ impl Page {
     /// A full-page screenshot at laptop width, `target/browser-screenshots/<journey>-<n>-<who>-<shot>.png`.
     async fn screenshot(&self, shot: &str) {
         let n = self.journey.shots.fetch_add(1, Ordering::SeqCst) + 1;
+        // The window's height that shows the whole document: its height plus what the
+        // browser itself takes of the window.
         let height = self
             .driver
             .execute(
-                "return Math.ceil(document.documentElement.scrollHeight);",
+                "return Math.ceil(document.documentElement.scrollHeight + window.outerHeight - window.innerHeight);",
                 Vec::new(),
             )
             .await
