@@ -298,17 +298,7 @@ for (const td of document.querySelectorAll('td.num, th.num')) {
 return { status, problems, url: location.href };
 "#;
 
-/// Console messages that are never an error of the page (none so far).
-fn harmless(_message: &str) -> bool {
-    false
-}
-
 impl Page {
-    /// The server's address.
-    pub(crate) fn base(&self) -> &str {
-        &self.journey.address
-    }
-
     /// Open a path and check the page (status 200).
     pub(crate) async fn open(&self, path: &str, shot: &str) {
         self.open_expecting(path, 200, shot).await;
@@ -378,7 +368,7 @@ impl Page {
             let own_document = status != 200
                 && entry.message.starts_with(&url)
                 && entry.message.contains(&expected_failure);
-            if csp || (entry.level == "SEVERE" && !own_document && !harmless(&entry.message)) {
+            if csp || (entry.level == "SEVERE" && !own_document) {
                 problems.push(format!("console {}: {}", entry.level, entry.message));
             }
         }
@@ -442,13 +432,7 @@ impl Page {
         self.driver
             .find(By::Css(css))
             .await
-            .unwrap_or_else(|e| {
-                panic!(
-                    "{}: no element {css} on {}: {e}",
-                    self.who,
-                    self.page_hint()
-                )
-            })
+            .unwrap_or_else(|e| panic!("{}: no element {css} on {}: {e}", self.who, self.who))
             .text()
             .await
             .expect("its text")
@@ -478,10 +462,6 @@ impl Page {
             .find(By::Css(css))
             .await
             .unwrap_or_else(|e| panic!("{}: no element {css}: {e}", self.who))
-    }
-
-    fn page_hint(&self) -> &'static str {
-        self.who
     }
 
     /// Run a script and return its value.
@@ -590,8 +570,9 @@ impl Page {
         );
     }
 
-    /// Set a field's value the way a person would (focus it and type; no click), replacing
-    /// what it held. For selects, picks the option whose value is `text`.
+    /// Set a field's value, replacing what it held: text fields get WebDriver's element
+    /// typing, selects the option whose value is `text`. (The keyboard-only helpers are
+    /// `tab_to`, `tab_and_type` and `tab_and_enter`.)
     pub(crate) async fn fill(&self, css: &str, text: &str) {
         let el = self.element(css).await;
         if el.tag_name().await.expect("a tag") == "select" {
@@ -611,15 +592,6 @@ impl Page {
             el.clear().await.expect("the field can be cleared");
             el.send_keys(text).await.expect("typing works");
         }
-    }
-
-    /// Click a button or link and wait for the next page.
-    pub(crate) async fn click(&self, css: &str) {
-        let el = self.element(css).await;
-        self.navigating(async {
-            el.click().await.expect("a click works");
-        })
-        .await;
     }
 }
 
