@@ -13,14 +13,16 @@ use std::collections::HashMap;
 
 use sqlx::SqlitePool;
 
-use super::demo::{RowError, galaxy_from_cells, measurement_from_cells, records};
-use super::galaxies::{self, SubmissionSource};
+use super::demo::{Record, RowError, galaxy_from_cells, measurement_from_cells, records};
+use super::galaxies::{self, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
 use super::model::{NewGalaxy, NewMeasurement, SubmissionState};
 use super::submissions::{self, GalaxyChoice, SubmissionError};
+use crate::auth::secret::sha256_hex;
 
-/// The columns, in the order export writes them.
-pub const COLUMNS: [&str; 19] = [
+/// The columns, in the order export writes them. `row_key` is optional on import (see
+/// [`ImportRow::row`]).
+pub const COLUMNS: [&str; 20] = [
     "galaxy",
     "morphology",
     "bulge_kind",
@@ -40,7 +42,12 @@ pub const COLUMNS: [&str; 19] = [
     "resolution_arcsec",
     "reference",
     "note",
+    "row_key",
 ];
+
+/// The columns that carry a row's content (all but `row_key`): its fingerprint is taken over
+/// these.
+const CONTENT_COLUMNS: usize = 19;
 
 /// The galaxy-description columns (besides `galaxy`, the name).
 const GALAXY_COLUMNS: [&str; 6] = [
@@ -63,6 +70,9 @@ pub struct ImportRow {
     pub galaxy: Option<NewGalaxy>,
     /// The measurement.
     pub measurement: NewMeasurement,
+    /// The row's key: the `row_key` cell, or the SHA-256 of the content cells when that is
+    /// blank; with the content's SHA-256. A row whose key is already stored is skipped.
+    pub row: RowKey,
 }
 
 /// Why an import wrote nothing.
@@ -85,6 +95,11 @@ const FILE: &str = "import";
 /// Every faulty row (line, column, message); an unreadable header or record stops the reading.
 pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
     let rows = records(text, FILE).map_err(|e| vec![e])?;
+    parse_records(rows)
+}
+
+/// Read catalog rows given as cell maps (from CSV records or JSON objects).
+fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowError>> {
     if let Some((_, first)) = rows.first() {
         let mut faults = Vec::new();
         for column in first.keys() {
@@ -116,6 +131,7 @@ pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
     }
     let mut out = Vec::with_capacity(rows.len());
     let mut faults = Vec::new();
+    let mut seen: HashMap<String, u64> = HashMap::new();
     for (line, rec) in rows {
         let cell = |c: &'static str| {
             let key = if c == "name" { "galaxy" } else { c };
@@ -146,12 +162,37 @@ pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
         } else {
             None
         };
+        let row = match row_key_of(&cell) {
+            Ok(row) => row,
+            Err(message) => {
+                faults.push(RowError {
+                    file: FILE,
+                    line,
+                    column: "row_key",
+                    message,
+                });
+                continue;
+            }
+        };
+        if let Some(first) = seen.get(&row.key) {
+            faults.push(RowError {
+                file: FILE,
+                line,
+                column: "row_key",
+                message: format!(
+                    "line {first} has the same row key; every row needs its own (a blank key is made from the row's values, so a repeated row gets the same one)"
+                ),
+            });
+            continue;
+        }
+        seen.insert(row.key.clone(), line);
         match measurement_from_cells(FILE, line, &cell) {
             Ok(measurement) => out.push(ImportRow {
                 line,
                 galaxy_name: name.to_owned(),
                 galaxy,
                 measurement,
+                row,
             }),
             Err(e) => faults.push(e),
         }
@@ -161,6 +202,36 @@ pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
     } else {
         Err(faults)
     }
+}
+
+/// The key and fingerprint of a row: SHA-256 over the trimmed content cells joined by the
+/// unit separator (U+001F), so cell order and padding never matter and no cell can run into the
+/// next; the key is the `row_key` cell, or that SHA-256 when it is blank.
+fn row_key_of<'a>(cell: &dyn Fn(&'static str) -> &'a str) -> Result<RowKey, String> {
+    let mut content = String::new();
+    for (i, c) in COLUMNS[..CONTENT_COLUMNS].iter().enumerate() {
+        if i > 0 {
+            content.push('\u{1f}');
+        }
+        content.push_str(cell(c).trim());
+    }
+    let sha256 = sha256_hex(&content);
+    let given = cell("row_key").trim();
+    if given.chars().count() > 200 {
+        return Err("a row key has at most 200 characters".into());
+    }
+    if given.chars().any(char::is_control) {
+        return Err("a row key cannot contain control characters".into());
+    }
+    let key = if given.is_empty() {
+        sha256.clone()
+    } else {
+        given.to_owned()
+    };
+    Ok(RowKey {
+        key,
+        sha256: Some(sha256),
+    })
 }
 
 /// How the rows enter the catalog.
@@ -187,6 +258,9 @@ pub struct ImportReport {
     pub new_galaxies: usize,
     /// Submissions created.
     pub submissions: usize,
+    /// Rows skipped because their row key is already in the catalog (an earlier import of the
+    /// same rows).
+    pub skipped: usize,
 }
 
 /// Import parsed rows in one transaction; `progress(done, total)` is called after each row.
@@ -201,17 +275,40 @@ pub async fn import_rows(
     progress: &mut (dyn FnMut(usize, usize) + Send),
 ) -> Result<ImportReport, ImportError> {
     let mut tx = super::begin_write(pool).await?;
+    // Rows imported before (same key) are skipped: importing a file twice adds nothing. A key
+    // stored with other content is a fault, not a silent skip.
+    let mut faults = Vec::new();
+    let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
+    for r in rows {
+        match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
+            None => fresh.push(r),
+            Some(Some(sha)) if Some(&sha) != r.row.sha256.as_ref() => faults.push(RowError {
+                file: FILE,
+                line: r.line,
+                column: "row_key",
+                message: format!(
+                    "the row key '{}' was imported before with other values; give a changed row a new key",
+                    r.row.key.chars().take(80).collect::<String>()
+                ),
+            }),
+            Some(_) => {}
+        }
+    }
+    if !faults.is_empty() {
+        return Err(ImportError::Rows(faults));
+    }
+    let skipped = rows.len() - fresh.len();
+    let rows = fresh;
     // Galaxies in first-appearance order, with their rows.
     let mut order: Vec<&str> = Vec::new();
     let mut by_galaxy: HashMap<&str, Vec<&ImportRow>> = HashMap::new();
-    for r in rows {
+    for r in rows.iter().copied() {
         let entry = by_galaxy.entry(r.galaxy_name.as_str()).or_default();
         if entry.is_empty() {
             order.push(r.galaxy_name.as_str());
         }
         entry.push(r);
     }
-    let mut faults = Vec::new();
     let mut choices = Vec::with_capacity(order.len());
     for name in &order {
         let group = &by_galaxy[name];
@@ -245,7 +342,13 @@ pub async fn import_rows(
             .filter(|c| matches!(c, GalaxyChoice::New(_)))
             .count(),
         submissions: 0,
+        skipped,
     };
+    if rows.is_empty() {
+        // Nothing new: no submission, no version bump, no audit event.
+        tx.rollback().await?;
+        return Ok(report);
+    }
     match mode {
         ImportMode::Pending { account_id, source } => {
             for (name, choice) in order.iter().zip(&choices) {
@@ -253,12 +356,14 @@ pub async fn import_rows(
                     .iter()
                     .map(|r| r.measurement.clone())
                     .collect();
+                let keys: Vec<RowKey> = by_galaxy[name].iter().map(|r| r.row.clone()).collect();
                 submissions::create_in(
                     &mut tx,
                     account_id,
                     source,
                     choice,
                     &measurements,
+                    &keys,
                     "CSV import",
                 )
                 .await
@@ -276,6 +381,7 @@ pub async fn import_rows(
                 SubmissionSource::Import,
                 SubmissionState::Accepted,
                 "Vetted catalog imported from the command line",
+                None,
             )
             .await?;
             report.submissions = 1;
@@ -290,6 +396,7 @@ pub async fn import_rows(
                         galaxy_id,
                         submission_id,
                         &r.measurement,
+                        &r.row,
                     )
                     .await
                     .map_err(|e| row_fault(SubmissionError::Db(e), r.line))?;
@@ -342,7 +449,7 @@ fn row_fault(e: SubmissionError, line: u64) -> ImportError {
     }
 }
 
-/// Parse and import a CSV text (see [`parse_catalog_csv`] and [`import_rows`]).
+/// Parse and import a catalog text, CSV or JSON (see [`parse_catalog`] and [`import_rows`]).
 ///
 /// # Errors
 /// As those two.
@@ -352,7 +459,7 @@ pub async fn import_csv(
     mode: ImportMode,
     progress: &mut (dyn FnMut(usize, usize) + Send),
 ) -> Result<ImportReport, ImportError> {
-    let rows = parse_catalog_csv(text).map_err(ImportError::Rows)?;
+    let rows = parse_catalog(text).map_err(ImportError::Rows)?;
     import_rows(pool, &rows, mode, progress).await
 }
 
@@ -377,14 +484,50 @@ struct ExportRow {
     resolution_arcsec: Option<f64>,
     reference: String,
     note: String,
+    row_key: String,
+    log_value: f64,
+    err_minus_dex: f64,
+    err_plus_dex: f64,
+    upper_limit: bool,
 }
 
-/// The adopted catalog as CSV text in the import format, galaxies by name, and the catalog
-/// version it was read at (one read transaction, so the two agree).
-///
-/// # Errors
-/// When the database cannot be read.
-pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
+impl ExportRow {
+    /// The row's cells in [`COLUMNS`] order, as import reads them.
+    fn cells(&self) -> [String; 20] {
+        let confidence = match self.limit_confidence_sigma {
+            Some(c) if c < 1.5 => "1",
+            Some(c) if c < 2.5 => "2",
+            Some(_) => "3",
+            None => "",
+        };
+        let opt = |v: Option<f64>| v.map_or(String::new(), |v| v.to_string());
+        [
+            self.name.clone(),
+            self.morphology.clone(),
+            self.bulge_kind.clone(),
+            self.centre_kind.clone(),
+            self.distance_mpc.to_string(),
+            self.distance_err_mpc.to_string(),
+            self.distance_method.clone(),
+            self.quantity.clone(),
+            self.value_text.clone(),
+            self.value_scale.clone(),
+            confidence.to_owned(),
+            self.method.clone(),
+            self.sigma_definition.clone(),
+            self.aperture.clone(),
+            self.band.clone(),
+            opt(self.source_distance_mpc),
+            opt(self.resolution_arcsec),
+            self.reference.clone(),
+            self.note.clone(),
+            self.row_key.clone(),
+        ]
+    }
+}
+
+/// The adopted rows and the catalog version, read in one transaction so the two agree.
+async fn adopted_rows(pool: &SqlitePool) -> anyhow::Result<(Vec<ExportRow>, i64)> {
     let mut tx = pool.begin().await?;
     let version: i64 =
         sqlx::query_scalar("select catalog_version from catalog_state where catalog_state_id = 1")
@@ -394,7 +537,9 @@ pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
         "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
                 g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
                 m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
+                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
+                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit
            from adopted_value a
            join measurement m on m.measurement_id = a.measurement_id
            join galaxy g on g.galaxy_id = a.galaxy_id
@@ -404,40 +549,168 @@ pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
     .fetch_all(&mut *tx)
     .await?;
     tx.commit().await?;
+    Ok((rows, version))
+}
+
+/// The adopted catalog as CSV text in the import format, galaxies by name, and the catalog
+/// version it was read at (one read transaction, so the two agree). Each row carries its row
+/// key, so importing the export again adds nothing.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
+    let (rows, version) = adopted_rows(pool).await?;
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(COLUMNS)?;
-    let opt = |v: Option<f64>| v.map_or(String::new(), |v| v.to_string());
-    for r in rows {
-        let confidence = match r.limit_confidence_sigma {
-            Some(c) if c < 1.5 => "1",
-            Some(c) if c < 2.5 => "2",
-            Some(_) => "3",
-            None => "",
-        };
-        w.write_record([
-            r.name,
-            r.morphology,
-            r.bulge_kind,
-            r.centre_kind,
-            r.distance_mpc.to_string(),
-            r.distance_err_mpc.to_string(),
-            r.distance_method,
-            r.quantity,
-            r.value_text,
-            r.value_scale,
-            confidence.to_owned(),
-            r.method,
-            r.sigma_definition,
-            r.aperture,
-            r.band,
-            opt(r.source_distance_mpc),
-            opt(r.resolution_arcsec),
-            r.reference,
-            r.note,
-        ])?;
+    for r in &rows {
+        w.write_record(r.cells())?;
     }
     let bytes = w.into_inner().map_err(|e| anyhow::anyhow!("{e}"))?;
     Ok((String::from_utf8(bytes)?, version))
+}
+
+/// The name of the JSON export format (its `format` key).
+pub const JSON_FORMAT: &str = "massline-catalog";
+
+/// The adopted catalog as JSON, stamped with the catalog version and the time of export:
+///
+/// ```json
+/// {"format": "massline-catalog", "format_version": 1, "catalog_version": 7,
+///  "exported_at": "2026-12-02T04:00:00Z", "columns": ["galaxy", …, "row_key"],
+///  "rows": [{"galaxy": "…", …, "row_key": "…",
+///            "derived": {"log_value": 8.38, "err_minus_dex": 0.1, "err_plus_dex": 0.1,
+///                        "upper_limit": false}}]}
+/// ```
+///
+/// Every cell is the string the CSV export has (the value as entered, in its unit), so the
+/// file re-imports to the same catalog; `derived` holds the stored canonical numbers (log10 in
+/// the quantity's unit, dex) for scripts and is ignored on import. Returns the text and the
+/// catalog version.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn export_json(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
+    let (rows, version) = adopted_rows(pool).await?;
+    let exported_at = time::OffsetDateTime::now_utc()
+        .replace_nanosecond(0)?
+        .format(&time::format_description::well_known::Rfc3339)?;
+    let rows: Vec<serde_json::Value> = rows
+        .iter()
+        .map(|r| {
+            let mut object: serde_json::Map<String, serde_json::Value> = COLUMNS
+                .iter()
+                .zip(r.cells())
+                .map(|(c, v)| ((*c).to_owned(), serde_json::Value::String(v)))
+                .collect();
+            object.insert(
+                "derived".to_owned(),
+                serde_json::json!({
+                    "log_value": r.log_value,
+                    "err_minus_dex": r.err_minus_dex,
+                    "err_plus_dex": r.err_plus_dex,
+                    "upper_limit": r.upper_limit,
+                }),
+            );
+            serde_json::Value::Object(object)
+        })
+        .collect();
+    let doc = serde_json::json!({
+        "format": JSON_FORMAT,
+        "format_version": 1,
+        "catalog_version": version,
+        "exported_at": exported_at,
+        "columns": COLUMNS,
+        "rows": rows,
+    });
+    Ok((serde_json::to_string_pretty(&doc)?, version))
+}
+
+/// Read every row of a JSON catalog (the format [`export_json`] writes; `rows` is what
+/// matters: objects whose keys are [`COLUMNS`], values strings, numbers or null). Row numbers in
+/// the report count from 1.
+///
+/// # Errors
+/// Every faulty row, or one fault for a document that is not a catalog.
+pub fn parse_catalog_json(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
+    let whole = |message: String| {
+        vec![RowError {
+            file: FILE,
+            line: 0,
+            column: "(file)",
+            message,
+        }]
+    };
+    let doc: serde_json::Value =
+        serde_json::from_str(text).map_err(|e| whole(format!("the JSON cannot be read: {e}")))?;
+    let Some(rows) = doc.get("rows").and_then(serde_json::Value::as_array) else {
+        return Err(whole(
+            "a JSON catalog is an object with a \"rows\" array".to_owned(),
+        ));
+    };
+    let mut records = Vec::with_capacity(rows.len());
+    let mut faults = Vec::new();
+    for (i, row) in rows.iter().enumerate() {
+        let line = i as u64 + 1;
+        let Some(object) = row.as_object() else {
+            faults.push(RowError {
+                file: FILE,
+                line,
+                column: "(row)",
+                message: "a row is a JSON object".into(),
+            });
+            continue;
+        };
+        let mut record = Record::new();
+        for (key, value) in object {
+            if key == "derived" {
+                continue;
+            }
+            if !COLUMNS.contains(&key.as_str()) {
+                faults.push(RowError {
+                    file: FILE,
+                    line,
+                    column: "(row)",
+                    message: format!(
+                        "'{}' is not a column of the catalog format",
+                        key.chars().take(40).collect::<String>()
+                    ),
+                });
+                continue;
+            }
+            let text = match value {
+                serde_json::Value::String(v) => v.trim().to_owned(),
+                serde_json::Value::Number(n) => n.to_string(),
+                serde_json::Value::Null => String::new(),
+                _ => {
+                    faults.push(RowError {
+                        file: FILE,
+                        line,
+                        column: "(row)",
+                        message: format!("the cell '{key}' is a string, a number or null"),
+                    });
+                    continue;
+                }
+            };
+            record.insert(key.clone(), text);
+        }
+        records.push((line, record));
+    }
+    if !faults.is_empty() {
+        return Err(faults);
+    }
+    parse_records(records)
+}
+
+/// Read a catalog file, CSV or JSON (a text whose first non-blank character is `{`).
+///
+/// # Errors
+/// As [`parse_catalog_csv`] and [`parse_catalog_json`].
+pub fn parse_catalog(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
+    if text.trim_start().starts_with('{') {
+        parse_catalog_json(text)
+    } else {
+        parse_catalog_csv(text)
+    }
 }
 
 #[cfg(test)]
@@ -552,7 +825,8 @@ mod tests {
             ImportReport {
                 measurements: 3,
                 new_galaxies: 2,
-                submissions: 2
+                submissions: 2,
+                skipped: 0,
             }
         );
         assert_eq!(count(&pool, "adopted_value").await, 0);
@@ -577,5 +851,130 @@ mod tests {
             matches!(err, ImportError::Rows(ref r) if r[0].line == 2),
             "{err}"
         );
+    }
+
+    fn pending() -> ImportMode {
+        ImportMode::Pending {
+            account_id: None,
+            source: SubmissionSource::Csv,
+        }
+    }
+
+    #[tokio::test]
+    async fn importing_a_file_twice_adds_nothing_in_either_mode() {
+        let text = format!(
+            "{HEADER}\n\
+             Tesk 51,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,\n\
+             Tesk 51,,,,,,,bh_mass,2e8 ± 0.4e8,,,stellar_dynamics,,,,20,0.1,,\n"
+        );
+        for mode in [pending(), ImportMode::Accepted] {
+            let (_d, pool) = temp_pool().await;
+            let first = import_csv(&pool, &text, mode, &mut |_, _| {})
+                .await
+                .unwrap();
+            assert_eq!((first.measurements, first.skipped), (2, 0));
+            let tables = ["galaxy", "submission", "measurement", "audit_event"];
+            let mut before = Vec::new();
+            for t in tables {
+                before.push(count(&pool, t).await);
+            }
+            let version = crate::catalog::history::current_version(&pool)
+                .await
+                .unwrap();
+            let second = import_csv(&pool, &text, mode, &mut |_, _| {})
+                .await
+                .unwrap();
+            assert_eq!((second.measurements, second.skipped), (0, 2), "{mode:?}");
+            assert_eq!(second.submissions, 0);
+            for (t, b) in tables.iter().zip(before) {
+                assert_eq!(
+                    count(&pool, t).await,
+                    b,
+                    "{t} after the second import ({mode:?})"
+                );
+            }
+            assert_eq!(
+                crate::catalog::history::current_version(&pool)
+                    .await
+                    .unwrap(),
+                version
+            );
+            // A file with one new row adds that row only.
+            let more =
+                format!("{text}Tesk 51,,,,,,,bulge_mass,3e11 ± 0.5e11,,,dynamical,,,,20,,,\n");
+            let third = import_csv(&pool, &more, mode, &mut |_, _| {})
+                .await
+                .unwrap();
+            assert_eq!((third.measurements, third.skipped), (1, 2));
+        }
+    }
+
+    #[tokio::test]
+    async fn a_row_key_reused_for_other_values_and_a_repeated_row_are_faults() {
+        let (_d, pool) = temp_pool().await;
+        let header = format!("{HEADER},row_key");
+        let row = "Tesk 61,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,";
+        let first = format!("{header}\n{row},k-1\n");
+        import_csv(&pool, &first, pending(), &mut |_, _| {})
+            .await
+            .unwrap();
+        let changed = format!("{header}\n{},k-1\n", row.replace("210 ± 10", "215 ± 10"));
+        let err = import_csv(&pool, &changed, pending(), &mut |_, _| {})
+            .await
+            .unwrap_err();
+        assert!(
+            matches!(&err, ImportError::Rows(r) if r.len() == 1 && r[0].column == "row_key" && r[0].line == 2),
+            "{err:?}"
+        );
+        // The same row twice in one file (blank keys: the same derived key).
+        let twice = format!("{HEADER}\n{row}\n{row}\n");
+        let err = parse_catalog_csv(&twice).unwrap_err();
+        assert_eq!(
+            err.iter().map(|e| (e.line, e.column)).collect::<Vec<_>>(),
+            vec![(3, "row_key")]
+        );
+        assert_eq!(count(&pool, "measurement").await, 1);
+    }
+
+    #[tokio::test]
+    async fn the_json_export_is_stamped_and_reimports_to_the_same_catalog() {
+        let (_a, first) = temp_pool().await;
+        load_demo(&first).await.unwrap();
+        let (json, version) = export_json(&first).await.unwrap();
+        let doc: serde_json::Value = serde_json::from_str(&json).unwrap();
+        assert_eq!(doc["format"], JSON_FORMAT);
+        assert_eq!(doc["catalog_version"], version);
+        assert!(doc["exported_at"].as_str().unwrap().ends_with('Z'));
+        let n_rows = doc["rows"].as_array().unwrap().len();
+        assert_eq!(n_rows as i64, count(&first, "adopted_value").await);
+        // Into an empty catalog: the same CSV export comes out of both.
+        let (_b, second) = temp_pool().await;
+        let report = import_csv(&second, &json, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(report.measurements, n_rows);
+        assert_eq!(
+            export_csv(&first).await.unwrap().0,
+            export_csv(&second).await.unwrap().0
+        );
+        // Into the catalog it came from: nothing new, the version unchanged.
+        let again = import_csv(&first, &json, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!((again.measurements, again.skipped), (0, n_rows));
+        assert_eq!(
+            crate::catalog::history::current_version(&first)
+                .await
+                .unwrap(),
+            version
+        );
+        // Unknown keys and non-scalar cells are row faults.
+        let bad = r#"{"rows": [{"galaxy": "Tesk 1", "colour": "blue"}, {"galaxy": ["x"]}]}"#;
+        let faults = parse_catalog(bad).unwrap_err();
+        assert_eq!(
+            faults.iter().map(|f| f.line).collect::<Vec<_>>(),
+            vec![1, 2]
+        );
+        assert!(parse_catalog("{\"rows\": 3}").is_err());
     }
 }

@@ -82,14 +82,20 @@ pub async fn load_demo(pool: &SqlitePool) -> anyhow::Result<DemoLoad> {
         SubmissionSource::Seed,
         SubmissionState::Accepted,
         "Invented demo catalog (seed-data/README.md)",
+        None,
     )
     .await?;
     let mut ids = Vec::with_capacity(demo.galaxies.len());
     for g in &demo.galaxies {
         ids.push(galaxies::insert_galaxy(&mut tx, g).await?.galaxy_id);
     }
-    for (gi, m, adopted) in &demo.measurements {
-        let id = galaxies::insert_measurement(&mut tx, ids[*gi], submission_id, m).await?;
+    for (n, (gi, m, adopted)) in demo.measurements.iter().enumerate() {
+        // The demo loads once into an empty catalog, so its row order is a stable key.
+        let row = galaxies::RowKey {
+            key: format!("demo-{}", n + 1),
+            sha256: None,
+        };
+        let id = galaxies::insert_measurement(&mut tx, ids[*gi], submission_id, m, &row).await?;
         if *adopted {
             galaxies::adopt(&mut tx, id).await?;
         }

@@ -73,6 +73,16 @@ impl SubmissionSource {
     }
 }
 
+/// The idempotency key of a form or API request, scoped to its submitter, with the SHA-256 of
+/// the request's canonical content (`migrations/3_idempotency.sql`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RequestKey {
+    /// `<submitter>:<client key>`, where the submitter is the account key (or `cli`).
+    pub scoped: String,
+    /// SHA-256 (hex) of the request's canonical content.
+    pub sha256: String,
+}
+
 /// Insert a submission and return its key.
 ///
 /// # Errors
@@ -83,35 +93,68 @@ pub async fn insert_submission(
     source: SubmissionSource,
     state: SubmissionState,
     note: &str,
+    request: Option<&RequestKey>,
 ) -> sqlx::Result<i64> {
     sqlx::query_scalar(
-        "insert into submission (account_id, source, state, note) values (?, ?, ?, ?)
+        "insert into submission (account_id, source, state, note, idempotency_key, request_sha256)
+         values (?, ?, ?, ?, ?, ?)
          returning submission_id",
     )
     .bind(account_id)
     .bind(source.as_str())
     .bind(state.as_str())
     .bind(note)
+    .bind(request.map(|r| &r.scoped))
+    .bind(request.map(|r| &r.sha256))
     .fetch_one(&mut **tx)
     .await
+}
+
+/// How a stored measurement is recognised when the same file row or request comes again
+/// (`migrations/3_idempotency.sql`): its unique key, and for file rows the SHA-256 of the row's
+/// cells, so a key reused for other values is caught.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RowKey {
+    /// Unique among all measurements (1–200 characters).
+    pub key: String,
+    /// SHA-256 (hex) of the row's canonical cells; `None` for form and API measurements, whose
+    /// request carries the fingerprint.
+    pub sha256: Option<String>,
+}
+
+/// The row key stored under `key`, if any: `Some(sha256)` (itself optional).
+///
+/// # Errors
+/// Any database error.
+pub async fn stored_row_key(
+    tx: &mut Transaction<'_, Sqlite>,
+    key: &str,
+) -> sqlx::Result<Option<Option<String>>> {
+    sqlx::query_scalar("select row_sha256 from measurement where row_key = ?")
+        .bind(key)
+        .fetch_optional(&mut **tx)
+        .await
 }
 
 /// Insert a measurement of a galaxy within a submission and return its key.
 ///
 /// # Errors
-/// A range or consistency check of the schema, or any database error.
+/// A range or consistency check of the schema, a repeated row key (unique violation), or any
+/// database error.
 pub async fn insert_measurement(
     tx: &mut Transaction<'_, Sqlite>,
     galaxy_id: i64,
     submission_id: i64,
     m: &NewMeasurement,
+    row: &RowKey,
 ) -> sqlx::Result<i64> {
     sqlx::query_scalar(
         "insert into measurement (galaxy_id, submission_id, quantity, log_value, err_minus_dex,
                                   err_plus_dex, err_dex, upper_limit, limit_confidence_sigma,
                                   method, sigma_definition, aperture, band, source_distance_mpc,
-                                  resolution_arcsec, reference, note, value_text, value_scale)
-         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                  resolution_arcsec, reference, note, value_text, value_scale,
+                                  row_key, row_sha256)
+         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          returning measurement_id",
     )
     .bind(galaxy_id)
@@ -133,6 +176,8 @@ pub async fn insert_measurement(
     .bind(&m.note)
     .bind(&m.value_text)
     .bind(&m.value_scale)
+    .bind(&row.key)
+    .bind(&row.sha256)
     .fetch_one(&mut **tx)
     .await
 }

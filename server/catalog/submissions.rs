@@ -10,7 +10,7 @@ use std::collections::HashSet;
 use sqlx::SqlitePool;
 
 use super::accounts::for_log;
-use super::galaxies::{self, SubmissionSource};
+use super::galaxies::{self, RequestKey, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
 use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, SubmissionState};
 
@@ -44,6 +44,11 @@ pub enum SubmissionError {
     /// Only the submitter may withdraw.
     #[error("Only the member who submitted it may withdraw a submission.")]
     NotYours,
+    /// An idempotency key sent again with other content.
+    #[error(
+        "This idempotency key was used before for a different submission; use a new key for new content."
+    )]
+    KeyReused,
     /// Nobody reviews their own submission.
     #[error("A reviewer cannot accept or reject their own submission.")]
     OwnSubmission,
@@ -55,18 +60,66 @@ pub enum SubmissionError {
 /// What [`create`] stored.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct Created {
-    /// The new submission.
+    /// The new submission (or, for a replay, the first one).
     pub submission_id: i64,
     /// The galaxy it measures (new or existing).
     pub galaxy_id: i64,
+    /// True when the request key was seen before with the same content: nothing was written
+    /// and the first submission is answered again.
+    pub replayed: bool,
+}
+
+/// The idempotency key of a form or API request, scoped to the submitter, with the SHA-256 of
+/// the request's canonical content.
+///
+/// The content is hashed from the parsed request: the galaxy choice, every measurement as it
+/// would be stored (canonical values and the text as typed) and the note. A retry sends the
+/// same bytes, hence the same content; any change of what would be stored is other content.
+#[must_use]
+pub fn request_key(
+    account_id: Option<i64>,
+    client_key: &str,
+    galaxy: &GalaxyChoice,
+    measurements: &[NewMeasurement],
+    note: &str,
+) -> RequestKey {
+    let submitter = account_id.map_or_else(|| "cli".to_owned(), |id| id.to_string());
+    // Debug output of the parsed values is deterministic (f64 prints its shortest round-trip
+    // form), which is all a fingerprint needs.
+    let content = format!("{galaxy:?}\u{1f}{measurements:?}\u{1f}{note}");
+    RequestKey {
+        scoped: format!("{submitter}:{client_key}"),
+        sha256: crate::auth::secret::sha256_hex(&content),
+    }
+}
+
+/// Check a client's idempotency key: 1 to 100 visible ASCII characters.
+///
+/// # Errors
+/// One sentence saying what is wrong.
+pub fn validate_client_key(key: &str) -> Result<(), String> {
+    if key.is_empty() || key.len() > 100 {
+        return Err("An idempotency key has 1 to 100 characters.".to_owned());
+    }
+    if !key.bytes().all(|b| b.is_ascii_graphic()) {
+        return Err(
+            "An idempotency key is made of visible ASCII characters (no spaces).".to_owned(),
+        );
+    }
+    Ok(())
 }
 
 /// Store a submission with its measurements, and the galaxy it describes if new, in one
 /// transaction with a `submission_created` audit event. The state is `pending`.
 ///
+/// With the same `request` key and content as an earlier submission, nothing is written and
+/// the earlier submission is answered with `replayed = true`; the same key with other content is
+/// [`SubmissionError::KeyReused`]. The n-th measurement's row key is `<scoped key>#<n>`.
+///
 /// # Errors
 /// [`SubmissionError::Empty`], [`SubmissionError::NoSuchGalaxy`],
-/// [`SubmissionError::NameTaken`] or a database failure; nothing is written then.
+/// [`SubmissionError::NameTaken`], [`SubmissionError::KeyReused`] or a database failure;
+/// nothing is written then.
 pub async fn create(
     pool: &SqlitePool,
     account_id: Option<i64>,
@@ -74,14 +127,58 @@ pub async fn create(
     galaxy: &GalaxyChoice,
     measurements: &[NewMeasurement],
     note: &str,
+    request: &RequestKey,
 ) -> Result<Created, SubmissionError> {
     let mut tx = super::begin_write(pool).await?;
-    let created = create_in(&mut tx, account_id, source, galaxy, measurements, note).await?;
+    // Inside the write transaction: two copies of one request arriving together are serialised,
+    // and the second finds the first.
+    let earlier: Option<(i64, Option<String>)> = sqlx::query_as(
+        "select submission_id, request_sha256 from submission where idempotency_key = ?",
+    )
+    .bind(&request.scoped)
+    .fetch_optional(&mut *tx)
+    .await?;
+    if let Some((submission_id, sha)) = earlier {
+        tx.rollback().await?;
+        if sha.as_deref() != Some(request.sha256.as_str()) {
+            return Err(SubmissionError::KeyReused);
+        }
+        let galaxy_id: i64 = sqlx::query_scalar(
+            "select galaxy_id from measurement where submission_id = ?
+              order by measurement_id limit 1",
+        )
+        .bind(submission_id)
+        .fetch_one(pool)
+        .await?;
+        return Ok(Created {
+            submission_id,
+            galaxy_id,
+            replayed: true,
+        });
+    }
+    let rows: Vec<RowKey> = (1..=measurements.len())
+        .map(|n| RowKey {
+            key: format!("{}#{n}", request.scoped),
+            sha256: None,
+        })
+        .collect();
+    let created = store(
+        &mut tx,
+        account_id,
+        source,
+        galaxy,
+        measurements,
+        &rows,
+        note,
+        Some(request),
+    )
+    .await?;
     tx.commit().await?;
     Ok(created)
 }
 
-/// [`create`] inside a caller's write transaction (CSV imports put many in one).
+/// A pending submission inside a caller's write transaction (CSV imports put many in one),
+/// each measurement with its file row's key.
 ///
 /// # Errors
 /// As [`create`]; the caller's transaction is then to be rolled back.
@@ -91,11 +188,44 @@ pub async fn create_in(
     source: SubmissionSource,
     galaxy: &GalaxyChoice,
     measurements: &[NewMeasurement],
+    rows: &[RowKey],
     note: &str,
+) -> Result<Created, SubmissionError> {
+    store(
+        tx,
+        account_id,
+        source,
+        galaxy,
+        measurements,
+        rows,
+        note,
+        None,
+    )
+    .await
+}
+
+#[expect(
+    clippy::too_many_arguments,
+    reason = "the one place both doors meet; each argument is a distinct part of a submission"
+)]
+async fn store(
+    tx: &mut sqlx::Transaction<'_, sqlx::Sqlite>,
+    account_id: Option<i64>,
+    source: SubmissionSource,
+    galaxy: &GalaxyChoice,
+    measurements: &[NewMeasurement],
+    rows: &[RowKey],
+    note: &str,
+    request: Option<&RequestKey>,
 ) -> Result<Created, SubmissionError> {
     if measurements.is_empty() {
         return Err(SubmissionError::Empty);
     }
+    debug_assert_eq!(
+        measurements.len(),
+        rows.len(),
+        "one row key per measurement"
+    );
     let (galaxy_id, galaxy_name) = match galaxy {
         GalaxyChoice::Existing(id) => {
             let name: Option<String> =
@@ -117,10 +247,17 @@ pub async fn create_in(
             (g.galaxy_id, g.name)
         }
     };
-    let submission_id =
-        galaxies::insert_submission(tx, account_id, source, SubmissionState::Pending, note).await?;
-    for m in measurements {
-        galaxies::insert_measurement(tx, galaxy_id, submission_id, m).await?;
+    let submission_id = galaxies::insert_submission(
+        tx,
+        account_id,
+        source,
+        SubmissionState::Pending,
+        note,
+        request,
+    )
+    .await?;
+    for (m, row) in measurements.iter().zip(rows) {
+        galaxies::insert_measurement(tx, galaxy_id, submission_id, m, row).await?;
     }
     history::record(
         tx,
@@ -140,6 +277,7 @@ pub async fn create_in(
     Ok(Created {
         submission_id,
         galaxy_id,
+        replayed: false,
     })
 }
 
@@ -604,6 +742,117 @@ mod tests {
         }
     }
 
+    /// [`create`] with a fresh idempotency key.
+    async fn create_fresh(
+        pool: &SqlitePool,
+        account_id: Option<i64>,
+        source: SubmissionSource,
+        galaxy: &GalaxyChoice,
+        measurements: &[NewMeasurement],
+        note: &str,
+    ) -> Result<Created, SubmissionError> {
+        static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+        let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        let key = request_key(account_id, &format!("k{n}"), galaxy, measurements, note);
+        create(pool, account_id, source, galaxy, measurements, note, &key).await
+    }
+
+    #[tokio::test]
+    async fn the_same_request_twice_adds_nothing_and_other_content_under_its_key_is_refused() {
+        let (_d, pool) = temp_pool().await;
+        let member = account(&pool, "member1", "member").await;
+        let other = account(&pool, "member2", "member").await;
+        let g = GalaxyChoice::New(galaxy("Tesk 30"));
+        let ms = [mass("2.4e8 ± 0.3e8")];
+        let key = request_key(Some(member), "abc", &g, &ms, "n");
+        let first = create(
+            &pool,
+            Some(member),
+            SubmissionSource::Api,
+            &g,
+            &ms,
+            "n",
+            &key,
+        )
+        .await
+        .unwrap();
+        assert!(!first.replayed);
+        // A retry (even after the galaxy now exists) answers the first submission.
+        let again = create(
+            &pool,
+            Some(member),
+            SubmissionSource::Api,
+            &g,
+            &ms,
+            "n",
+            &key,
+        )
+        .await
+        .unwrap();
+        assert_eq!(again.submission_id, first.submission_id);
+        assert_eq!(again.galaxy_id, first.galaxy_id);
+        assert!(again.replayed);
+        assert_eq!(count(&pool, "submission").await, 1);
+        assert_eq!(count(&pool, "measurement").await, 1);
+        let created: i64 = sqlx::query_scalar(
+            "select count(*) from audit_event where action = 'submission_created'",
+        )
+        .fetch_one(&pool)
+        .await
+        .unwrap();
+        assert_eq!(created, 1);
+        // Everything stored is content, the value's text as typed included.
+        assert_ne!(
+            key.sha256,
+            request_key(Some(member), "abc", &g, &[mass("2.40e8 ± 0.30e8")], "n").sha256
+        );
+        assert_ne!(
+            key.sha256,
+            request_key(Some(member), "abc", &g, &ms, "m").sha256
+        );
+        // The same key with another value is refused, nothing written.
+        let changed = [mass("2.5e8 ± 0.3e8")];
+        let key2 = request_key(Some(member), "abc", &g, &changed, "n");
+        let err = create(
+            &pool,
+            Some(member),
+            SubmissionSource::Api,
+            &g,
+            &changed,
+            "n",
+            &key2,
+        )
+        .await
+        .unwrap_err();
+        assert!(matches!(err, SubmissionError::KeyReused), "{err}");
+        assert_eq!(count(&pool, "measurement").await, 1);
+        // Another member may use the same client key for their own request.
+        let g2 = GalaxyChoice::Existing(first.galaxy_id);
+        let key3 = request_key(Some(other), "abc", &g2, &changed, "n");
+        let theirs = create(
+            &pool,
+            Some(other),
+            SubmissionSource::Api,
+            &g2,
+            &changed,
+            "n",
+            &key3,
+        )
+        .await
+        .unwrap();
+        assert!(!theirs.replayed);
+        assert_eq!(count(&pool, "measurement").await, 2);
+    }
+
+    #[test]
+    fn client_keys_are_visible_ascii_up_to_100_characters() {
+        assert!(validate_client_key("a1-B_2.x:y").is_ok());
+        assert!(validate_client_key(&"k".repeat(100)).is_ok());
+        for bad in ["", "has space", "tab\tkey", "é", &"k".repeat(101)] {
+            assert!(validate_client_key(bad).is_err(), "{bad:?}");
+        }
+    }
+
     async fn count(pool: &SqlitePool, table: &str) -> i64 {
         sqlx::query_scalar(sqlx::AssertSqlSafe(format!("select count(*) from {table}")))
             .fetch_one(pool)
@@ -615,7 +864,7 @@ mod tests {
     async fn a_submission_is_stored_whole_pending_and_audited() {
         let (_d, pool) = temp_pool().await;
         let member = account(&pool, "member1", "member").await;
-        let created = create(
+        let created = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,
@@ -649,7 +898,7 @@ mod tests {
         let (_d, pool) = temp_pool().await;
         let mut bad = mass("2e8");
         bad.log_value = 20.0; // outside the schema's range check for black-hole masses
-        let err = create(
+        let err = create_fresh(
             &pool,
             None,
             SubmissionSource::Form,
@@ -671,7 +920,7 @@ mod tests {
         let (_d, pool) = temp_pool().await;
         let member = account(&pool, "member1", "member").await;
         let other = account(&pool, "member2", "member").await;
-        let c = create(
+        let c = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,
@@ -699,7 +948,7 @@ mod tests {
         let member = account(&pool, "member1", "member").await;
         let rid = account(&pool, "rev1", "reviewer").await;
         let reviewer = rid;
-        let first = create(
+        let first = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,
@@ -719,7 +968,7 @@ mod tests {
             .await
             .unwrap();
         // A second mass of the same galaxy clashes with the adopted one.
-        let second = create(
+        let second = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,
@@ -746,7 +995,7 @@ mod tests {
             "keep-old leaves the old value adopted"
         );
         // A third, accepted with use-new, replaces it.
-        let third = create(
+        let third = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,
@@ -776,7 +1025,7 @@ mod tests {
         let (_d, pool) = temp_pool().await;
         let rid = account(&pool, "rev1", "reviewer").await;
         let member = account(&pool, "member1", "member").await;
-        let own = create(
+        let own = create_fresh(
             &pool,
             Some(rid),
             SubmissionSource::Form,
@@ -808,7 +1057,7 @@ mod tests {
         let (_d, pool) = temp_pool().await;
         let member = account(&pool, "member1", "member").await;
         let rid = account(&pool, "rev1", "reviewer").await;
-        let c = create(
+        let c = create_fresh(
             &pool,
             Some(member),
             SubmissionSource::Form,

@@ -20,6 +20,7 @@ use super::Nav;
 use super::account::session_of;
 use super::display::{fixed, significant};
 use super::place::{PlaceChart, PlaceRow, Subject, SubjectMass, input_text, place_with_refit};
+use crate::astro::{distance_covariance_dex2, log_distance_error_dex};
 use crate::auth::{Principal, Role, SessionUser};
 use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
 use crate::catalog::galaxies::{self as store, SubmissionSource};
@@ -30,12 +31,15 @@ use crate::catalog::model::{
 use crate::catalog::relation_rows;
 use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError, SubmissionSummary};
 use crate::error::{AppError, AppResult};
-use crate::relations::{Relation, at_adopted_distance, sphere_of_influence};
+use crate::relations::{Relation, at_adopted_distance, distance_scaling, sphere_of_influence};
 use crate::startup::AppState;
 use crate::units::format_log_with_errors;
 
-/// Measurement rows on the form.
-pub(crate) const FORM_ROWS: usize = 4;
+/// Measurement rows on a fresh form.
+pub(crate) const FORM_ROWS: usize = 3;
+
+/// At most this many measurement rows on one form ("Add a measurement row" stops there).
+pub(crate) const MAX_FORM_ROWS: usize = 20;
 
 /// The measurement columns of the form (and of the CSV files), with their labels.
 const MEASUREMENT_COLUMNS: [(&str, &str); 12] = [
@@ -125,12 +129,36 @@ pub(crate) struct NewSubmissionPage {
     galaxies: Vec<(String, String, bool)>,
     galaxy_error: Option<String>,
     galaxy_inputs: Vec<Input>,
-    rows: Vec<RowInputs>,
+    measurement_rows: Vec<RowInputs>,
+    /// The number of measurement rows (a hidden field, so "add a row" keeps what was typed).
+    n_rows: usize,
+    can_add_row: bool,
     note: String,
     form_error: Option<String>,
+    /// The form's idempotency key: a retried POST of this form stores nothing new.
+    request_key: String,
+    /// Where the object falls, before submitting ("Check against the relations").
+    preview: Option<Preview>,
+}
+
+/// The placement shown before submitting.
+pub(crate) struct Preview {
+    rows: Vec<PlaceRow>,
+    charts: Vec<PlaceChart>,
+    soi: Option<String>,
+    mass_at_adopted: Option<String>,
 }
 
 type Fields = HashMap<String, String>;
+
+/// The number of measurement rows a posted form has (hidden `rows`), within 1..=MAX_FORM_ROWS.
+fn rows_of(fields: &Fields) -> usize {
+    fields
+        .get("rows")
+        .and_then(|v| v.trim().parse::<usize>().ok())
+        .unwrap_or(FORM_ROWS)
+        .clamp(1, MAX_FORM_ROWS)
+}
 
 async fn form_page(
     state: &AppState,
@@ -164,7 +192,8 @@ async fn form_page(
         .iter()
         .map(|(c, l)| input((*c).to_owned(), c, l))
         .collect();
-    let rows = (0..FORM_ROWS)
+    let n_rows = rows_of(fields);
+    let rows = (0..n_rows)
         .map(|i| RowInputs {
             number: i + 1,
             inputs: MEASUREMENT_COLUMNS
@@ -179,9 +208,17 @@ async fn form_page(
         galaxies,
         galaxy_error: errors.get("galaxy").cloned(),
         galaxy_inputs,
-        rows,
+        measurement_rows: rows,
+        n_rows,
+        can_add_row: n_rows < MAX_FORM_ROWS,
         note: get("note"),
         form_error,
+        request_key: fields
+            .get("request_key")
+            .filter(|k| submissions::validate_client_key(k).is_ok())
+            .cloned()
+            .unwrap_or_else(crate::auth::secret::random_hex_256),
+        preview: None,
     })
 }
 
@@ -204,7 +241,16 @@ pub(crate) async fn create_submission(
     Form(pairs): Form<Vec<(String, String)>>,
 ) -> AppResult<Response> {
     let user = session_of(&principal)?;
-    let fields: Fields = pairs.into_iter().collect();
+    let mut fields: Fields = pairs.into_iter().collect();
+    let action = fields.get("action").map_or("submit", |a| a.as_str());
+    if action == "add_row" {
+        // Nothing is checked or stored: the same form with one more row, as typed.
+        let n = (rows_of(&fields) + 1).min(MAX_FORM_ROWS);
+        fields.insert("rows".into(), n.to_string());
+        let page = form_page(&state, user, nav, &fields, &HashMap::new(), None).await?;
+        return Ok(page.into_response());
+    }
+    let checking = action == "check";
     let get = |name: &str| fields.get(name).map_or("", |v| v.as_str());
     let mut errors: HashMap<String, String> = HashMap::new();
 
@@ -232,7 +278,7 @@ pub(crate) async fn create_submission(
     };
 
     let mut measurements = Vec::new();
-    for i in 0..FORM_ROWS {
+    for i in 0..rows_of(&fields) {
         let key = |c: &str| format!("m{i}_{c}");
         let used = ["quantity", "value"]
             .iter()
@@ -258,12 +304,36 @@ pub(crate) async fn create_submission(
     if measurements.is_empty() && errors.keys().all(|k| !k.starts_with('m')) {
         form_error = Some("Give at least one measurement: a quantity and its value.".to_owned());
     }
+    // A form always carries its key; a client posting without one gets a fresh key (no retry
+    // protection, but nothing refused).
+    let client_key = match fields.get("request_key").map(|k| k.trim()) {
+        None | Some("") => crate::auth::secret::random_hex_256(),
+        Some(k) => match submissions::validate_client_key(k) {
+            Ok(()) => k.to_owned(),
+            Err(e) => {
+                form_error = Some(e);
+                String::new()
+            }
+        },
+    };
     let (Some(galaxy), true, None) = (galaxy, errors.is_empty(), &form_error) else {
         let form_error = form_error
             .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
         let page = form_page(&state, user, nav, &fields, &errors, form_error).await?;
         return Ok((StatusCode::BAD_REQUEST, page).into_response());
     };
+    if checking {
+        let mut page = form_page(&state, user, nav, &fields, &errors, None).await?;
+        page.preview = Some(preview(&state, &galaxy, &measurements).await?);
+        return Ok(page.into_response());
+    }
+    let request = submissions::request_key(
+        Some(user.account_id),
+        &client_key,
+        &galaxy,
+        &measurements,
+        note,
+    );
     match submissions::create(
         &state.pool,
         Some(user.account_id),
@@ -271,9 +341,11 @@ pub(crate) async fn create_submission(
         &galaxy,
         &measurements,
         note,
+        &request,
     )
     .await
     {
+        // A replay (the same form posted twice) lands on the same submission.
         Ok(created) => {
             Ok(Redirect::to(&format!("/submissions/{}", created.submission_id)).into_response())
         }
@@ -281,6 +353,7 @@ pub(crate) async fn create_submission(
         Err(e) => {
             let field = match e {
                 SubmissionError::NameTaken => "name",
+                SubmissionError::KeyReused => "form",
                 _ => "galaxy",
             };
             errors.insert(field.into(), e.to_string());
@@ -309,6 +382,66 @@ fn capitalised(message: &str) -> String {
         out.push('.');
     }
     out
+}
+
+/// Where a not-yet-stored submission would fall: the same assessment as a stored one, with
+/// the typed values in place of the galaxy's adopted ones (a new galaxy has none).
+async fn preview(
+    state: &AppState,
+    choice: &GalaxyChoice,
+    measurements: &[crate::catalog::model::NewMeasurement],
+) -> AppResult<Preview> {
+    let galaxy = match choice {
+        GalaxyChoice::Existing(id) => submissions::galaxy_by_id(&state.pool, *id)
+            .await?
+            .ok_or_else(|| AppError::not_found("The chosen galaxy"))?,
+        GalaxyChoice::New(g) => Galaxy {
+            galaxy_id: 0,
+            name: g.name.clone(),
+            slug: String::new(),
+            morphology: g.morphology.as_str().to_owned(),
+            bulge_kind: g.bulge_kind.as_str().to_owned(),
+            centre_kind: g.centre_kind.as_str().to_owned(),
+            distance_mpc: g.distance_mpc,
+            distance_err_mpc: g.distance_err_mpc,
+            distance_method: g.distance_method.as_str().to_owned(),
+        },
+    };
+    let typed: Vec<Measurement> = measurements
+        .iter()
+        .map(|m| Measurement {
+            measurement_id: 0,
+            galaxy_id: galaxy.galaxy_id,
+            submission_id: 0,
+            quantity: m.quantity.as_str().to_owned(),
+            log_value: m.log_value,
+            err_minus_dex: m.err_minus_dex,
+            err_plus_dex: m.err_plus_dex,
+            err_dex: m.err_dex,
+            upper_limit: m.upper_limit,
+            limit_confidence_sigma: m.limit_confidence_sigma,
+            method: m.method.clone(),
+            sigma_definition: m.sigma_definition.clone(),
+            aperture: m.aperture.clone(),
+            band: m.band.clone(),
+            source_distance_mpc: m.source_distance_mpc,
+            resolution_arcsec: m.resolution_arcsec,
+            reference: m.reference.clone(),
+            note: m.note.clone(),
+            value_text: m.value_text.clone(),
+            value_scale: m.value_scale.clone(),
+            state: "pending".to_owned(),
+            adopted: false,
+            created_at: String::new(),
+        })
+        .collect();
+    let a = assess(state, &galaxy, &typed, true).await?;
+    Ok(Preview {
+        rows: a.rows,
+        charts: a.charts,
+        soi: a.soi,
+        mass_at_adopted: a.mass_at_adopted,
+    })
 }
 
 /// A submission in a list.
@@ -481,7 +614,19 @@ pub(crate) async fn assess(
             galaxy.distance_mpc,
         )
     };
-    let value = |m: &Measurement| (at_adopted(m), m.err_dex);
+    // The adopted distance's error enters as in the fit samples (science notes §3.2): in
+    // quadrature on each distance-dependent value, and as the x–y covariance of the two.
+    let sigma_log_d =
+        log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc).unwrap_or(0.0);
+    let kind = |m: &Measurement| distance_scaling(&m.quantity, &m.method);
+    let err_of = |m: &Measurement| m.err_dex.hypot(f64::from(kind(m).exponent()) * sigma_log_d);
+    let value = |m: &Measurement| {
+        if m.upper_limit {
+            (at_adopted(m), 0.0)
+        } else {
+            (at_adopted(m), err_of(m))
+        }
+    };
     let text = |m: &Measurement| {
         format_log_with_errors(
             at_adopted(m),
@@ -498,7 +643,8 @@ pub(crate) async fn assess(
         log_mbh: at_adopted(m),
         err_minus_dex: m.err_minus_dex,
         err_plus_dex: m.err_plus_dex,
-        err_dex: m.err_dex,
+        // A limit is taken as exact, as in the fits.
+        err_dex: if m.upper_limit { 0.0 } else { err_of(m) },
         xy_cov: 0.0,
         upper_limit: m.upper_limit,
     });
@@ -522,9 +668,21 @@ pub(crate) async fn assess(
         };
         let Some(x) = x else { continue };
         let x2_text = x2.map(text);
+        let mass = mass.zip(mass_m).map(|(mut subject_mass, m)| {
+            if !m.upper_limit && !x.upper_limit {
+                subject_mass.xy_cov = distance_covariance_dex2(
+                    kind(m),
+                    kind(x),
+                    galaxy.distance_mpc,
+                    galaxy.distance_err_mpc,
+                )
+                .unwrap_or(0.0);
+            }
+            subject_mass
+        });
         let subject = Subject {
             name: galaxy.name.clone(),
-            href: Some(format!("/galaxies/{}", galaxy.slug)),
+            href: (galaxy.galaxy_id > 0).then(|| format!("/galaxies/{}", galaxy.slug)),
             x: value(x),
             x2: x2.map(value),
             mass,

@@ -83,10 +83,11 @@ async fn schema_range_checks_refuse_impossible_rows() {
         galaxies::SubmissionSource::Import,
         model::SubmissionState::Accepted,
         "",
+        None,
     )
     .await
     .unwrap();
-    galaxies::insert_measurement(&mut tx, g.galaxy_id, s, &good_mass())
+    galaxies::insert_measurement(&mut tx, g.galaxy_id, s, &good_mass(), &row_key("good"))
         .await
         .expect("a good row is stored");
     tx.commit().await.unwrap();
@@ -190,7 +191,7 @@ async fn schema_range_checks_refuse_impossible_rows() {
     ];
     for (why, m) in bad {
         let mut tx = catalog::begin_write(&app.pool).await.unwrap();
-        let result = galaxies::insert_measurement(&mut tx, g.galaxy_id, s, &m).await;
+        let result = galaxies::insert_measurement(&mut tx, g.galaxy_id, s, &m, &row_key(why)).await;
         assert!(result.is_err(), "the schema accepted a row with {why}");
         tx.rollback().await.unwrap();
     }
@@ -220,7 +221,7 @@ async fn schema_range_checks_refuse_impossible_rows() {
     // A measurement of a galaxy that does not exist: the foreign key refuses it.
     let mut tx = catalog::begin_write(&app.pool).await.unwrap();
     assert!(
-        galaxies::insert_measurement(&mut tx, 9999, s, &good_mass())
+        galaxies::insert_measurement(&mut tx, 9999, s, &good_mass(), &row_key("orphan"))
             .await
             .is_err()
     );
@@ -326,4 +327,11 @@ async fn a_failing_demo_load_leaves_nothing_behind() {
         demo::load_demo(&app.pool).await.unwrap(),
         demo::DemoLoad::Loaded { .. }
     ));
+}
+
+fn row_key(key: &str) -> galaxies::RowKey {
+    galaxies::RowKey {
+        key: key.to_owned(),
+        sha256: None,
+    }
 }
