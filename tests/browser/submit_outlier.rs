@@ -4,7 +4,9 @@
 
 use massline::auth::Role;
 
-use crate::support::{self, MassSubmission, PAYLOADS, Reading, TEST_PASSWORD, number};
+use thirtyfour::Key;
+
+use crate::support::{self, MassSubmission, PAYLOADS, Page, Reading, TEST_PASSWORD, number};
 
 /// The mass submitted: about 2 dex below what M–σ predicts at the outlier's σ (~185 km/s).
 pub(crate) const FAR_OFF_MASS: &str = "1.0e6 +0.3e6/-0.2e6";
@@ -39,32 +41,60 @@ async fn a_member_submits_a_mass_far_off_m_sigma_and_sees_z_verdict_and_chart_be
             "the galaxy page has its charts"
         );
 
-        // Before submitting: how the new value would sit (the place page, with the galaxy's σ).
-        member
-            .open(
-                &format!(
-                    "/place?sigma={}&mass={}",
-                    urlencode(&galaxy.sigma),
-                    urlencode(FAR_OFF_MASS)
-                ),
-                "preview-on-place",
-            )
-            .await;
-        let preview = member.text("#place-m_sigma").await;
-        let z_preview = number(&member.text("#place-m_sigma td:nth-child(7)").await);
+        // Before submitting: the form's check against the relations. Enter in a text field
+        // presses the form's first button, which checks and stores nothing.
+        let stored_before = submissions_count(&journey.pool).await;
+        member.open("/submissions/new", "submission-form").await;
+        let submission = MassSubmission {
+            galaxy: &galaxy,
+            value: FAR_OFF_MASS,
+            reference: PAYLOADS[1],
+            note: PAYLOADS[0],
+        };
+        member.fill_mass_submission(&submission).await;
+        member.tab_to("input[name=m0_value]").await;
+        member.navigating(member.press(Key::Enter)).await;
+        member.check("preview").await;
+        let preview = member.text("#preview #place-m_sigma").await;
+        let z_preview = number(&member.text("#preview #place-m_sigma td:nth-child(7)").await);
         assert!(z_preview <= -3.0, "the new mass is an outlier: {preview}");
-        assert!(preview.contains("outlier"), "the verdict says so: {preview}");
-        assert!(member.count("figure.chart svg").await >= 1, "with a chart");
+        assert!(
+            preview.contains("outlier"),
+            "the verdict says so: {preview}"
+        );
+        assert!(
+            chart_names(&member, &galaxy.name).await,
+            "the preview's chart marks the galaxy with its new mass"
+        );
+        assert_eq!(
+            submissions_count(&journey.pool).await,
+            stored_before,
+            "checking stores nothing"
+        );
+        assert_eq!(
+            member
+                .script("return document.querySelector('input[name=m0_reference]').value;")
+                .await,
+            PAYLOADS[1],
+            "the form keeps what was typed, as text"
+        );
 
-        // Submit, with script-injection payloads in the free-text fields.
-        let id = member
-            .submit_mass(&MassSubmission {
-                galaxy: &galaxy,
-                value: FAR_OFF_MASS,
-                reference: PAYLOADS[1],
-                note: PAYLOADS[0],
-            })
+        // Submit.
+        member
+            .click_button("#submission-form", "Submit for review")
             .await;
+        member.check("submission-sent").await;
+        let url = member.url().await;
+        let id: i64 = url
+            .rsplit('/')
+            .next()
+            .and_then(|id| id.parse().ok())
+            .unwrap_or_else(|| panic!("the submission did not land on its page: {url}"));
+        assert_eq!(
+            submissions_count(&journey.pool).await,
+            stored_before + 1,
+            "one submission stored"
+        );
         assert_eq!(member.text("#submission-state").await, "pending");
         assert!(
             member.text("#measurements").await.contains(PAYLOADS[1]),
@@ -75,18 +105,8 @@ async fn a_member_submits_a_mass_far_off_m_sigma_and_sees_z_verdict_and_chart_be
         assert!(z_after <= -3.0, "after submitting: an outlier: {after}");
         assert!(after.contains("outlier"), "the verdict says so: {after}");
         assert!(
-            member.count("figure.chart svg").await >= 1,
-            "the submission page has the chart"
-        );
-        assert_eq!(
-            member
-                .script(&format!(
-                    "return [...document.querySelectorAll('figure.chart')].some(f => f.textContent.includes({}));",
-                    serde_json::to_string(&galaxy.name).expect("a string")
-                ))
-                .await,
-            true,
-            "the chart marks the galaxy with its submitted mass (legend names it)"
+            chart_names(&member, &galaxy.name).await,
+            "the submission page's chart marks the galaxy with its submitted mass"
         );
 
         // The member's list has it, pending.
@@ -99,10 +119,19 @@ async fn a_member_submits_a_mass_far_off_m_sigma_and_sees_z_verdict_and_chart_be
     .await;
 }
 
-/// Percent-encode a query value.
-pub(crate) fn urlencode(text: &str) -> String {
-    serde_urlencoded::to_string([("v", text)])
-        .expect("encodable")
-        .trim_start_matches("v=")
-        .to_owned()
+/// Whether a chart on the page names the galaxy (its legend entry for the highlighted star).
+async fn chart_names(page: &Page, name: &str) -> bool {
+    page.script(&format!(
+        "return [...document.querySelectorAll('figure.chart')].some(f => f.textContent.includes({}));",
+        serde_json::to_string(name).expect("a string")
+    ))
+    .await
+        == true
+}
+
+async fn submissions_count(pool: &sqlx::SqlitePool) -> i64 {
+    sqlx::query_scalar("select count(*) from submission")
+        .fetch_one(pool)
+        .await
+        .expect("a count")
 }
