@@ -1,5 +1,5 @@
-//! `massline import FILE [--accept]` and `massline export`: the catalog CSV format
-//! (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
+//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json]`: the
+//! catalog file formats (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
 //! server's database file is its administrator; the audit log records the import with no
 //! account.
 
@@ -8,26 +8,43 @@ use std::path::PathBuf;
 
 use clap::Args;
 
-use crate::catalog::csv_io::{ImportError, ImportMode, export_csv, import_csv};
+use crate::catalog::csv_io::{ImportError, ImportMode, export_csv, export_json, import_csv};
 use crate::catalog::{self, galaxies::SubmissionSource};
 use crate::config::DEFAULT_DB_PATH;
 
 /// Arguments of `massline import`.
 #[derive(Args, Debug, Clone)]
 pub struct ImportArgs {
-    /// The catalog CSV file.
+    /// The catalog file, CSV or JSON (the format `massline export` writes).
     pub file: PathBuf,
     /// Adopt every row at once (a vetted catalog) instead of queuing them for review.
-    #[arg(long)]
+    #[arg(long, conflicts_with = "submitter")]
     pub accept: bool,
+    /// Queue the rows for review as submitted by this account (login name); without it they
+    /// have no submitter.
+    #[arg(long = "as", value_name = "USER")]
+    pub submitter: Option<String>,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
 }
 
+/// The export file formats.
+#[derive(clap::ValueEnum, Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ExportFormat {
+    /// The catalog CSV format (README "Catalog CSV").
+    #[default]
+    Csv,
+    /// The same rows as JSON, stamped with the catalog version and the time of export.
+    Json,
+}
+
 /// Arguments of `massline export`.
 #[derive(Args, Debug, Clone)]
 pub struct ExportArgs {
+    /// File format.
+    #[arg(long, value_enum, default_value_t = ExportFormat::Csv)]
+    pub format: ExportFormat,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
@@ -47,11 +64,23 @@ pub fn run_import(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
+        let account_id = match &args.submitter {
+            None => None,
+            Some(name) => Some(
+                catalog::accounts::find_by_username(&pool, name)
+                    .await?
+                    .filter(|a| !a.disabled)
+                    .map(|a| a.account_id)
+                    .ok_or_else(|| {
+                        anyhow::anyhow!("there is no enabled account named '{name}'")
+                    })?,
+            ),
+        };
         let mode = if args.accept {
             ImportMode::Accepted
         } else {
             ImportMode::Pending {
-                account_id: None,
+                account_id,
                 source: SubmissionSource::Import,
             }
         };
@@ -67,7 +96,7 @@ pub fn run_import(
             Ok(report) => {
                 writeln!(
                     out,
-                    "imported {} measurement(s), {} new galaxies, {} submission(s){}",
+                    "imported {} measurement(s), {} new galaxies, {} submission(s){}; {} row(s) already in the catalog skipped",
                     report.measurements,
                     report.new_galaxies,
                     report.submissions,
@@ -75,13 +104,19 @@ pub fn run_import(
                         ", adopted"
                     } else {
                         ", pending review"
-                    }
+                    },
+                    report.skipped
                 )?;
                 Ok(())
             }
             Err(ImportError::Rows(rows)) => {
+                let unit = if text.trim_start().starts_with('{') {
+                    "row"
+                } else {
+                    "line"
+                };
                 for r in &rows {
-                    writeln!(err, "line {}, column '{}': {}", r.line, r.column, r.message)?;
+                    writeln!(err, "{unit} {}, column '{}': {}", r.line, r.column, r.message)?;
                 }
                 anyhow::bail!("{} faulty row(s); nothing was imported", rows.len())
             }
@@ -90,7 +125,7 @@ pub fn run_import(
     })
 }
 
-/// Write the adopted catalog as CSV to `out`; the catalog version goes to `err`.
+/// Write the adopted catalog as CSV or JSON to `out`; the catalog version goes to `err`.
 ///
 /// # Errors
 /// When the database cannot be read.
@@ -102,7 +137,10 @@ pub fn run_export(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
-        let (text, version) = export_csv(&pool).await?;
+        let (text, version) = match args.format {
+            ExportFormat::Csv => export_csv(&pool).await?,
+            ExportFormat::Json => export_json(&pool).await?,
+        };
         out.write_all(text.as_bytes())?;
         writeln!(err, "exported catalog version {version}")?;
         Ok(())

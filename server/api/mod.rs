@@ -3,3 +3,4 @@
 //! whose keys carry their units. Every error is RFC 9457 problem details ([`problem`]).
 
 pub mod problem;
+pub mod submissions;

@@ -400,7 +400,20 @@ pub async fn require_form_token_limited(
             );
         }
     };
-    let sent = form_field(&bytes, CSRF_FIELD);
+    let content_type = parts
+        .headers
+        .get(header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .unwrap_or("");
+    let sent = if content_type
+        .trim_start()
+        .to_ascii_lowercase()
+        .starts_with("multipart/form-data")
+    {
+        multipart_field(&bytes, content_type, CSRF_FIELD)
+    } else {
+        form_field(&bytes, CSRF_FIELD)
+    };
     let valid = match (expected, sent) {
         (Some(expected), Some(sent)) => same_secret(&expected, &sent),
         _ => false,
@@ -425,9 +438,70 @@ pub fn form_field(body: &[u8], name: &str) -> Option<String> {
         .map(|(_, v)| v)
 }
 
+/// The value of a small text field in a `multipart/form-data` body (RFC 7578), e.g. the
+/// anti-forgery token of a file upload. Only a part with exactly `name="<name>"` and no file
+/// name counts; `None` when the body or the boundary cannot be read.
+pub fn multipart_field(body: &[u8], content_type: &str, name: &str) -> Option<String> {
+    let boundary = content_type.split(';').find_map(|p| {
+        let (k, v) = p.split_once('=')?;
+        k.trim()
+            .eq_ignore_ascii_case("boundary")
+            .then(|| v.trim().trim_matches('"').to_owned())
+    })?;
+    if boundary.is_empty() {
+        return None;
+    }
+    let delimiter = format!("--{boundary}");
+    let text = String::from_utf8_lossy(body);
+    for part in text.split(delimiter.as_str()).skip(1) {
+        let Some((head, value)) = part
+            .strip_prefix("\r\n")
+            .and_then(|p| p.split_once("\r\n\r\n"))
+        else {
+            continue;
+        };
+        let Some(disposition) = head.lines().find(|l| {
+            l.to_ascii_lowercase()
+                .starts_with("content-disposition: form-data")
+        }) else {
+            continue;
+        };
+        let named = disposition
+            .split(';')
+            .any(|p| p.trim() == format!("name=\"{name}\""));
+        let file = disposition
+            .split(';')
+            .any(|p| p.trim().starts_with("filename"));
+        if named && !file {
+            return Some(value.strip_suffix("\r\n").unwrap_or(value).to_owned());
+        }
+    }
+    None
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_multipart_text_field_is_found_and_a_file_of_that_name_is_not() {
+        let ct = "multipart/form-data; boundary=XyZ";
+        let body = "--XyZ\r\nContent-Disposition: form-data; name=\"csrf\"\r\n\r\nabc123\r\n\
+                    --XyZ\r\nContent-Disposition: form-data; name=\"file\"; filename=\"a.csv\"\r\n\
+                    Content-Type: text/csv\r\n\r\ngalaxy\r\n--XyZ--\r\n";
+        assert_eq!(
+            multipart_field(body.as_bytes(), ct, "csrf").as_deref(),
+            Some("abc123")
+        );
+        assert_eq!(multipart_field(body.as_bytes(), ct, "file"), None);
+        assert_eq!(multipart_field(body.as_bytes(), ct, "csr"), None);
+        assert_eq!(
+            multipart_field(body.as_bytes(), "multipart/form-data", "csrf"),
+            None
+        );
+        let forged = "--XyZ\r\nContent-Disposition: form-data; name=\"file\"; filename=\"csrf\"\r\n\r\nx\r\n--XyZ--";
+        assert_eq!(multipart_field(forged.as_bytes(), ct, "csrf"), None);
+    }
 
     #[test]
     fn origin_must_name_the_same_host_and_port() {

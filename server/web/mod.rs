@@ -44,8 +44,9 @@ use crate::startup::AppState;
 /// Largest request body accepted (forms and JSON) on every route but the upload; larger ones get 413.
 pub const BODY_LIMIT_BYTES: usize = 1024 * 1024;
 
-/// The body limit of the CSV upload (`/submissions/upload`): 8 MB of pasted rows.
-pub const UPLOAD_LIMIT_BYTES: usize = 8 * 1024 * 1024;
+/// The body limit of the catalog upload (`/submissions/upload`): 32 MB, room for a 50,000-row
+/// file (about 150 bytes a row).
+pub const UPLOAD_LIMIT_BYTES: usize = 32 * 1024 * 1024;
 
 /// Longest time a request may take before the server gives up with 503 (a slow request is the
 /// server's problem, not the client's, so not 408; clients may retry a 503).
@@ -253,6 +254,12 @@ fn routes() -> Routes {
         )
         .add(
             Method::GET,
+            "/catalog.json",
+            Read,
+            get(submissions::download_catalog_json),
+        )
+        .add(
+            Method::GET,
             "/submissions/{id}",
             Session,
             get(submissions::show_submission),
@@ -277,6 +284,18 @@ fn routes() -> Routes {
             post(review::reject),
         )
         .add(Method::GET, "/api/v1/me", Api, get(api::me))
+        .add(
+            Method::POST,
+            "/api/v1/submissions",
+            Api,
+            post(crate::api::submissions::submit),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/submissions/{id}",
+            Api,
+            get(crate::api::submissions::status),
+        )
 }
 
 /// Every route of the server with the access it asks for, in the order they were added.

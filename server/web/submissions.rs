@@ -827,6 +827,8 @@ pub(crate) struct UploadPage {
     /// (line, column, message) of every faulty row.
     faults: Vec<(u64, String, String)>,
     summary: Option<String>,
+    /// What a successful upload stored.
+    done: Option<String>,
 }
 
 fn upload_page(nav: Nav, user: &SessionUser, text: String) -> UploadPage {
@@ -837,6 +839,7 @@ fn upload_page(nav: Nav, user: &SessionUser, text: String) -> UploadPage {
         text,
         faults: Vec::new(),
         summary: None,
+        done: None,
     }
 }
 
@@ -849,31 +852,111 @@ pub(crate) async fn show_upload(
     Ok(upload_page(nav, user, String::new()))
 }
 
-/// The upload form's fields.
+/// The upload form's pasted-text field.
 #[derive(Debug, serde::Deserialize)]
 pub(crate) struct UploadForm {
     #[serde(default)]
     csv: String,
 }
 
-/// Import pasted CSV rows as pending submissions (one per galaxy), whole or not at all; a
-/// faulty file gets a report of every faulty row (400) and nothing is written.
+/// The catalog text of an upload: the file field `file` if a file was chosen, else the pasted
+/// `csv` field. Uploads come as `multipart/form-data` (file input) or url-encoded (paste only).
+async fn upload_text(state: &AppState, request: axum::extract::Request) -> Result<String, String> {
+    use axum::extract::{FromRequest, Multipart};
+    let multipart = request
+        .headers()
+        .get(axum::http::header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .is_some_and(|v| v.to_ascii_lowercase().starts_with("multipart/form-data"));
+    if !multipart {
+        let Form(form) = Form::<UploadForm>::from_request(request, state)
+            .await
+            .map_err(|e| format!("The form could not be read: {e}."))?;
+        return Ok(form.csv);
+    }
+    let mut parts = Multipart::from_request(request, state)
+        .await
+        .map_err(|e| format!("The upload could not be read: {e}."))?;
+    let mut file = None;
+    let mut pasted = String::new();
+    while let Some(field) = parts
+        .next_field()
+        .await
+        .map_err(|e| format!("The upload could not be read: {e}."))?
+    {
+        match field.name() {
+            Some("file") => {
+                let bytes = field
+                    .bytes()
+                    .await
+                    .map_err(|e| format!("The file could not be read: {e}."))?;
+                if !bytes.is_empty() {
+                    let text = String::from_utf8(bytes.to_vec()).map_err(|_| {
+                        "The file is not UTF-8 text; save it as UTF-8 CSV (or JSON) and upload it again."
+                            .to_owned()
+                    })?;
+                    // A UTF-8 byte-order mark (spreadsheet exports) is not part of the header.
+                    file = Some(text.trim_start_matches('\u{feff}').to_owned());
+                }
+            }
+            Some("csv") => {
+                pasted = field
+                    .text()
+                    .await
+                    .map_err(|e| format!("The form could not be read: {e}."))?;
+            }
+            _ => {}
+        }
+    }
+    Ok(file.unwrap_or(pasted))
+}
+
+/// Import an uploaded catalog file (or pasted rows) as pending submissions, one per galaxy,
+/// whole or not at all; a faulty file gets a report of every faulty row (400) and nothing is
+/// written. Rows already in the catalog (same row key) are skipped, so sending a file twice
+/// adds nothing.
 pub(crate) async fn upload(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     nav: Nav,
-    Form(form): Form<UploadForm>,
+    request: axum::extract::Request,
 ) -> AppResult<Response> {
     use crate::catalog::csv_io::{ImportError, ImportMode, import_csv};
     let user = session_of(&principal)?;
+    let text = match upload_text(&state, request).await {
+        Ok(t) => t,
+        Err(message) => {
+            let mut page = upload_page(nav, user, String::new());
+            page.summary = Some(message);
+            return Ok((StatusCode::BAD_REQUEST, page).into_response());
+        }
+    };
+    if text.trim().is_empty() {
+        let mut page = upload_page(nav, user, String::new());
+        page.summary = Some("Choose a file or paste rows; nothing was sent.".to_owned());
+        return Ok((StatusCode::BAD_REQUEST, page).into_response());
+    }
     let mode = ImportMode::Pending {
         account_id: Some(user.account_id),
         source: SubmissionSource::Csv,
     };
-    match import_csv(&state.pool, &form.csv, mode, &mut |_, _| {}).await {
-        Ok(_) => Ok(Redirect::to("/submissions").into_response()),
+    match import_csv(&state.pool, &text, mode, &mut |_, _| {}).await {
+        Ok(report) => {
+            let mut page = upload_page(nav, user, String::new());
+            page.done = Some(format!(
+                "Imported {} measurement(s) as {} pending submission(s) ({} new galaxies); {} row(s) already in the catalog were skipped.",
+                report.measurements, report.submissions, report.new_galaxies, report.skipped
+            ));
+            Ok(page.into_response())
+        }
         Err(ImportError::Rows(rows)) => {
-            let mut page = upload_page(nav, user, form.csv);
+            // A big file is not echoed back into the text box.
+            let echo = if text.len() <= 200_000 {
+                text
+            } else {
+                String::new()
+            };
+            let mut page = upload_page(nav, user, echo);
             page.summary = Some(format!(
                 "{} faulty row(s); nothing was imported.",
                 rows.len()
@@ -891,18 +974,35 @@ pub(crate) async fn upload(
 /// The adopted catalog as CSV (the import format), named with its catalog version.
 pub(crate) async fn download_catalog(State(state): State<AppState>) -> AppResult<Response> {
     let (text, version) = crate::catalog::csv_io::export_csv(&state.pool).await?;
-    Ok((
+    Ok(catalog_file(
+        text,
+        version,
+        "csv",
+        "text/csv; charset=utf-8",
+    ))
+}
+
+/// `/catalog.json`: the adopted catalog as JSON, stamped with the catalog version inside.
+pub(crate) async fn download_catalog_json(State(state): State<AppState>) -> AppResult<Response> {
+    let (text, version) = crate::catalog::csv_io::export_json(&state.pool).await?;
+    Ok(catalog_file(text, version, "json", "application/json"))
+}
+
+/// A catalog export as a download named after its version, with the version in a header too.
+fn catalog_file(text: String, version: i64, extension: &str, content_type: &str) -> Response {
+    (
         [
-            (
-                axum::http::header::CONTENT_TYPE,
-                "text/csv; charset=utf-8".to_owned(),
-            ),
+            (axum::http::header::CONTENT_TYPE, content_type.to_owned()),
             (
                 axum::http::header::CONTENT_DISPOSITION,
-                format!("attachment; filename=\"massline-catalog-v{version}.csv\""),
+                format!("attachment; filename=\"massline-catalog-v{version}.{extension}\""),
+            ),
+            (
+                axum::http::HeaderName::from_static("catalog-version"),
+                version.to_string(),
             ),
         ],
         text,
     )
-        .into_response())
+        .into_response()
 }

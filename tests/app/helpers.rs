@@ -287,6 +287,42 @@ impl Browser {
         self.finish(response).await
     }
 
+    /// POST a `multipart/form-data` form (the anti-forgery token first, then `fields`, then the
+    /// file `file_field` named `file_name` with `content`), as a browser sends a file input.
+    pub(crate) async fn post_file(
+        &mut self,
+        path: &str,
+        fields: &[(&str, &str)],
+        file_field: &str,
+        file_name: &str,
+        content: &str,
+    ) -> Reply {
+        let boundary = "----massline-test-boundary-7d1f";
+        let mut body = String::new();
+        let csrf = self.csrf.clone();
+        for (name, value) in std::iter::once(&("csrf", csrf.as_str())).chain(fields) {
+            body.push_str(&format!(
+                "--{boundary}\r\nContent-Disposition: form-data; name=\"{name}\"\r\n\r\n{value}\r\n"
+            ));
+        }
+        body.push_str(&format!(
+            "--{boundary}\r\nContent-Disposition: form-data; name=\"{file_field}\"; filename=\"{file_name}\"\r\nContent-Type: text/csv\r\n\r\n{content}\r\n--{boundary}--\r\n"
+        ));
+        let mut request = self
+            .client
+            .post(format!("{}{path}", self.base))
+            .header(
+                "content-type",
+                format!("multipart/form-data; boundary={boundary}"),
+            )
+            .body(body);
+        if !self.cookies.is_empty() {
+            request = request.header("cookie", self.cookie_header());
+        }
+        let response = request.send().await.expect("the request is answered");
+        self.finish(response).await
+    }
+
     /// POST a form with this browser's anti-forgery token added.
     pub(crate) async fn post(&mut self, path: &str, fields: &[(&str, &str)]) -> Reply {
         let csrf = self.csrf.clone();

@@ -6,6 +6,7 @@ mod helpers;
 mod access;
 mod accounts;
 mod galaxy_relations;
+mod idempotency;
 mod pages;
 mod relations;
 mod security;

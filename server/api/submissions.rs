@@ -1,0 +1,531 @@
+//! `POST /api/v1/submissions` (a script submits measurements; they land as a pending
+//! submission) and `GET /api/v1/submissions/{id}` (its state).
+//!
+//! The body uses the catalog file's column names (README "Catalog CSV"), and every cell goes
+//! through the same readers as the form and the files (`catalog::demo::measurement_from_cells`,
+//! hence `units::parse_entry`): a value typed in a script is read exactly as one typed in a
+//! form. Every write carries an `Idempotency-Key` header: a retry with the same key and body is
+//! answered with the first submission (200, `replayed: true`) and stores nothing.
+
+use std::collections::BTreeMap;
+
+use axum::body::Bytes;
+use axum::extract::{Extension, Path, State};
+use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
+use axum::response::{IntoResponse, Response};
+use serde::{Deserialize, Serialize};
+
+use super::problem::{FieldError, Problem};
+use crate::auth::{Principal, Role, Scope, TokenUser, require_scope};
+use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
+use crate::catalog::galaxies::{self as store, SubmissionSource};
+use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError};
+use crate::startup::AppState;
+
+/// At most this many measurements in one request (a file upload takes more).
+pub const MAX_MEASUREMENTS: usize = 100;
+
+/// A cell as a script may send it: the text as typed, or a plain number.
+#[derive(Debug, Clone, PartialEq, Deserialize, utoipa::ToSchema)]
+#[serde(untagged)]
+pub enum Cell {
+    /// Text as typed, e.g. `"2.4e8 +0.6e8/-0.5e8"`.
+    Text(String),
+    /// A plain number, read as its decimal text.
+    Number(f64),
+}
+
+impl Cell {
+    fn text(&self) -> String {
+        match self {
+            Self::Text(t) => t.clone(),
+            Self::Number(n) => n.to_string(),
+        }
+    }
+}
+
+/// The galaxy a request describes (when it is not in the catalog yet). Keys and accepted
+/// words as the catalog file's galaxy columns.
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct NewGalaxyCells {
+    /// Name (unique in the catalog).
+    pub name: String,
+    /// Morphology word (README "Catalog CSV").
+    pub morphology: String,
+    /// Bulge kind word.
+    pub bulge_kind: String,
+    /// Centre kind word.
+    pub centre_kind: String,
+    /// Adopted distance, Mpc.
+    pub distance_mpc: Cell,
+    /// Its 1σ error, Mpc.
+    pub distance_err_mpc: Cell,
+    /// How the distance was measured (word).
+    pub distance_method: String,
+}
+
+/// The body of `POST /api/v1/submissions`: an existing galaxy by slug (`galaxy`) or a new one
+/// (`new_galaxy`), one to 100 measurements, a note for the reviewer.
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct SubmissionRequest {
+    /// Slug of a galaxy in the catalog (as in `/galaxies/{slug}`); give this or `new_galaxy`.
+    #[serde(default)]
+    pub galaxy: Option<String>,
+    /// A galaxy not yet in the catalog; give this or `galaxy`.
+    #[serde(default)]
+    pub new_galaxy: Option<NewGalaxyCells>,
+    /// Measurements, each an object whose keys are the catalog file's measurement columns
+    /// (`quantity`, `value` required; `scale`, `limit_confidence_sigma`, `method`,
+    /// `sigma_definition`, `aperture`, `band`, `source_distance_mpc`, `resolution_arcsec`,
+    /// `reference`, `note` as needed).
+    #[schema(min_items = 1, max_items = 100)]
+    pub measurements: Vec<BTreeMap<String, Cell>>,
+    /// Note to the reviewer (at most 2000 characters).
+    #[serde(default)]
+    pub note: String,
+}
+
+/// The answer to a submission (and to its replay).
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+pub struct SubmissionAnswer {
+    /// The submission's key.
+    pub submission_id: i64,
+    /// The galaxy it measures.
+    pub galaxy_id: i64,
+    /// Review state: `pending` when stored.
+    pub state: String,
+    /// True when this answers a replayed request (nothing new was stored).
+    pub replayed: bool,
+}
+
+/// A submission's state, for its submitter and for reviewers.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+pub struct SubmissionStatus {
+    /// The submission's key.
+    pub submission_id: i64,
+    /// `pending`, `accepted`, `rejected` or `withdrawn`.
+    pub state: String,
+    /// How it arrived: `form`, `csv`, `api`, `seed` or `import`.
+    pub source: String,
+    /// When it was submitted (RFC 3339, UTC).
+    pub created_at: String,
+    /// The galaxy measured.
+    pub galaxy_id: i64,
+    /// Its name.
+    pub galaxy_name: String,
+    /// Its slug.
+    pub galaxy_slug: String,
+    /// Number of measurements.
+    pub n_measurements: i64,
+    /// The submitter's note.
+    pub note: String,
+}
+
+/// The measurement columns a request may use.
+const MEASUREMENT_KEYS: [&str; 12] = [
+    "quantity",
+    "value",
+    "scale",
+    "limit_confidence_sigma",
+    "method",
+    "sigma_definition",
+    "aperture",
+    "band",
+    "source_distance_mpc",
+    "resolution_arcsec",
+    "reference",
+    "note",
+];
+
+fn token_of(principal: &Principal) -> Result<&TokenUser, Problem> {
+    match principal {
+        Principal::Token(t) => Ok(t),
+        // Pages have their own forms; the API's writes are for scripts with tokens.
+        Principal::Session(_) => Err(Problem::new(
+            StatusCode::FORBIDDEN,
+            "Forbidden",
+            "Submitting through the API needs an API token with the submit scope; in a browser, use the submission form.",
+        )),
+        Principal::Anonymous | Principal::BadToken => Err(Problem::new(
+            StatusCode::UNAUTHORIZED,
+            "Unauthorized",
+            "This endpoint needs an API token.",
+        )),
+    }
+}
+
+/// `POST /api/v1/submissions`.
+#[utoipa::path(
+    post,
+    path = "/api/v1/submissions",
+    tag = "submissions",
+    request_body = SubmissionRequest,
+    params(("Idempotency-Key" = String, Header, description = "1–100 visible ASCII characters chosen by the client; a retry with the same key and body stores nothing new")),
+    responses(
+        (status = 201, description = "Stored as a pending submission", body = SubmissionAnswer,
+         headers(("Location" = String, description = "/api/v1/submissions/{id}"))),
+        (status = 200, description = "A replay of an earlier request: nothing new stored", body = SubmissionAnswer),
+        (status = 400, description = "Unreadable body or missing Idempotency-Key", body = Problem, content_type = "application/problem+json"),
+        (status = 401, description = "No valid token", body = Problem, content_type = "application/problem+json"),
+        (status = 403, description = "The token lacks the submit scope", body = Problem, content_type = "application/problem+json"),
+        (status = 413, description = "Body over 1 MB", body = Problem, content_type = "application/problem+json"),
+        (status = 415, description = "Not JSON", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid fields (every one listed), or the key reused with another body", body = Problem, content_type = "application/problem+json"),
+        (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("token" = []))
+)]
+pub async fn submit(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    headers: HeaderMap,
+    body: Bytes,
+) -> Response {
+    match submit_inner(&state, &principal, &headers, &body).await {
+        Ok(response) | Err(response) => response,
+    }
+}
+
+async fn submit_inner(
+    state: &AppState,
+    principal: &Principal,
+    headers: &HeaderMap,
+    body: &[u8],
+) -> Result<Response, Response> {
+    let token = token_of(principal).map_err(IntoResponse::into_response)?;
+    require_scope(&token.scopes, Scope::Submit).map_err(|_| {
+        Problem::new(
+            StatusCode::FORBIDDEN,
+            "Forbidden",
+            "This token lacks the submit scope; create one with it on your account page.",
+        )
+        .into_response()
+    })?;
+    let is_json = headers
+        .get(header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .is_some_and(|v| {
+            v.split(';')
+                .next()
+                .is_some_and(|t| t.trim().eq_ignore_ascii_case("application/json"))
+        });
+    if !is_json {
+        return Err(Problem::new(
+            StatusCode::UNSUPPORTED_MEDIA_TYPE,
+            "Unsupported media type",
+            "Send the submission as application/json.",
+        )
+        .into_response());
+    }
+    let client_key = match headers
+        .get("idempotency-key")
+        .map(|v| v.to_str().map(str::trim))
+    {
+        Some(Ok(k)) => match submissions::validate_client_key(k) {
+            Ok(()) => k.to_owned(),
+            Err(e) => return Err(bad_request(vec![FieldError::new("Idempotency-Key", e)])),
+        },
+        Some(Err(_)) => {
+            return Err(bad_request(vec![FieldError::new(
+                "Idempotency-Key",
+                "An idempotency key is made of visible ASCII characters (no spaces).",
+            )]));
+        }
+        None => {
+            return Err(bad_request(vec![FieldError::new(
+                "Idempotency-Key",
+                "Send an Idempotency-Key header (1 to 100 visible ASCII characters) so a retry cannot store the submission twice.",
+            )]));
+        }
+    };
+    let request: SubmissionRequest = serde_json::from_slice(body).map_err(|e| {
+        Problem::new(
+            StatusCode::BAD_REQUEST,
+            "Unreadable body",
+            format!("The body is not a submission: {e}."),
+        )
+        .into_response()
+    })?;
+    let (galaxy, measurements) = read_request(state, &request)
+        .await
+        .map_err(|e| e.into_response())?;
+    let request_key = submissions::request_key(
+        Some(token.account_id),
+        &client_key,
+        &galaxy,
+        &measurements,
+        request.note.trim(),
+    );
+    let created = submissions::create(
+        &state.pool,
+        Some(token.account_id),
+        SubmissionSource::Api,
+        &galaxy,
+        &measurements,
+        request.note.trim(),
+        &request_key,
+    )
+    .await;
+    let created = match created {
+        Ok(c) => c,
+        Err(SubmissionError::Db(e)) => {
+            return Err(db_problem(&e).into_response());
+        }
+        Err(e @ SubmissionError::KeyReused) => {
+            return Err(Problem::new(
+                StatusCode::UNPROCESSABLE_ENTITY,
+                "Idempotency key reused",
+                e.to_string(),
+            )
+            .with_errors(vec![FieldError::new("Idempotency-Key", e.to_string())])
+            .into_response());
+        }
+        Err(e @ SubmissionError::NameTaken) => {
+            return Err(
+                Problem::invalid(vec![FieldError::new("new_galaxy.name", e.to_string())])
+                    .into_response(),
+            );
+        }
+        Err(e) => {
+            return Err(
+                Problem::invalid(vec![FieldError::new("galaxy", e.to_string())]).into_response(),
+            );
+        }
+    };
+    let answer = SubmissionAnswer {
+        submission_id: created.submission_id,
+        galaxy_id: created.galaxy_id,
+        state: "pending".to_owned(),
+        replayed: created.replayed,
+    };
+    let status = if created.replayed {
+        StatusCode::OK
+    } else {
+        StatusCode::CREATED
+    };
+    let mut response = (status, axum::Json(answer)).into_response();
+    if let Ok(location) =
+        HeaderValue::from_str(&format!("/api/v1/submissions/{}", created.submission_id))
+    {
+        response.headers_mut().insert(header::LOCATION, location);
+    }
+    Ok(response)
+}
+
+fn bad_request(errors: Vec<FieldError>) -> Response {
+    Problem::new(
+        StatusCode::BAD_REQUEST,
+        "Bad request",
+        "The request cannot be taken as sent; nothing was stored.",
+    )
+    .with_errors(errors)
+    .into_response()
+}
+
+/// A database failure as a problem: busy → 503 (with Retry-After), full → 507, else 500.
+fn db_problem(e: &sqlx::Error) -> Problem {
+    match crate::catalog::classify(e) {
+        crate::catalog::DbFailure::Busy => Problem::new(
+            StatusCode::SERVICE_UNAVAILABLE,
+            "Busy",
+            "The catalog is busy with another write; nothing was stored. Retry shortly.",
+        ),
+        crate::catalog::DbFailure::Full => Problem::new(
+            StatusCode::INSUFFICIENT_STORAGE,
+            "Storage full",
+            "The catalog's disk is full; nothing was stored.",
+        ),
+        crate::catalog::DbFailure::Other => {
+            tracing::error!(error = %e, "API submission failed");
+            Problem::new(
+                StatusCode::INTERNAL_SERVER_ERROR,
+                "Internal error",
+                "The submission could not be stored; nothing was stored.",
+            )
+        }
+    }
+}
+
+/// Read the galaxy choice and measurements, listing every field at fault.
+async fn read_request(
+    state: &AppState,
+    request: &SubmissionRequest,
+) -> Result<(GalaxyChoice, Vec<crate::catalog::model::NewMeasurement>), Response> {
+    let mut errors = Vec::new();
+    let galaxy = match (&request.galaxy, &request.new_galaxy) {
+        (Some(_), Some(_)) | (None, None) => {
+            errors.push(FieldError::new(
+                "galaxy",
+                "Give either `galaxy` (the slug of a galaxy in the catalog) or `new_galaxy`.",
+            ));
+            None
+        }
+        (Some(slug), None) => match store::find_by_slug(&state.pool, slug.trim()).await {
+            Ok(Some(g)) => Some(GalaxyChoice::Existing(g.galaxy_id)),
+            Ok(None) => {
+                errors.push(FieldError::new(
+                    "galaxy",
+                    "There is no galaxy with that slug in the catalog.",
+                ));
+                None
+            }
+            Err(e) => return Err(db_problem(&e).into_response()),
+        },
+        (None, Some(g)) => {
+            let cells: BTreeMap<&str, String> = [
+                ("name", g.name.clone()),
+                ("morphology", g.morphology.clone()),
+                ("bulge_kind", g.bulge_kind.clone()),
+                ("centre_kind", g.centre_kind.clone()),
+                ("distance_mpc", g.distance_mpc.text()),
+                ("distance_err_mpc", g.distance_err_mpc.text()),
+                ("distance_method", g.distance_method.clone()),
+            ]
+            .into_iter()
+            .collect();
+            match galaxy_from_cells("api", 0, &|c| cells.get(c).map_or("", String::as_str)) {
+                Ok(g) => Some(GalaxyChoice::New(g)),
+                Err(e) => {
+                    errors.push(FieldError::new(
+                        format!("new_galaxy.{}", e.column),
+                        sentence(&e.message),
+                    ));
+                    None
+                }
+            }
+        }
+    };
+    if request.measurements.is_empty() || request.measurements.len() > MAX_MEASUREMENTS {
+        errors.push(FieldError::new(
+            "measurements",
+            format!(
+                "Send 1 to {MAX_MEASUREMENTS} measurements; this request has {}.",
+                request.measurements.len()
+            ),
+        ));
+    }
+    let mut measurements = Vec::with_capacity(request.measurements.len());
+    for (i, cells) in request
+        .measurements
+        .iter()
+        .take(MAX_MEASUREMENTS)
+        .enumerate()
+    {
+        let unknown: Vec<&String> = cells
+            .keys()
+            .filter(|k| !MEASUREMENT_KEYS.contains(&k.as_str()))
+            .collect();
+        if let Some(k) = unknown.first() {
+            errors.push(FieldError::new(
+                format!(
+                    "measurements[{i}].{}",
+                    k.chars().take(40).collect::<String>()
+                ),
+                "Not a measurement field; the fields are the catalog file's measurement columns.",
+            ));
+            continue;
+        }
+        let texts: BTreeMap<&str, String> =
+            cells.iter().map(|(k, v)| (k.as_str(), v.text())).collect();
+        match measurement_from_cells("api", 0, &|c| texts.get(c).map_or("", String::as_str)) {
+            Ok(m) => measurements.push(m),
+            Err(e) => errors.push(FieldError::new(
+                format!("measurements[{i}].{}", e.column),
+                sentence(&e.message),
+            )),
+        }
+    }
+    if request.note.trim().chars().count() > 2000 {
+        errors.push(FieldError::new(
+            "note",
+            "The note has at most 2000 characters.",
+        ));
+    }
+    match (galaxy, errors.is_empty()) {
+        (Some(g), true) => Ok((g, measurements)),
+        _ => Err(Problem::invalid(errors).into_response()),
+    }
+}
+
+/// "the value …" → "The value …." (cell readers give lower-case fragments).
+fn sentence(message: &str) -> String {
+    let mut chars = message.chars();
+    let mut out: String = chars
+        .next()
+        .map(|c| c.to_uppercase().chain(chars).collect())
+        .unwrap_or_default();
+    if !out.ends_with('.') {
+        out.push('.');
+    }
+    out
+}
+
+/// `GET /api/v1/submissions/{id}`: the state of one submission. Its submitter, reviewers and
+/// admins see it; to anyone else it does not exist (404).
+#[utoipa::path(
+    get,
+    path = "/api/v1/submissions/{id}",
+    tag = "submissions",
+    params(("id" = i64, Path, description = "The submission's key")),
+    responses(
+        (status = 200, description = "The submission", body = SubmissionStatus),
+        (status = 401, description = "No valid token", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such submission visible to the caller", body = Problem, content_type = "application/problem+json"),
+    ),
+    security(("token" = []))
+)]
+pub async fn status(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    Path(id): Path<String>,
+) -> Response {
+    let not_found = || {
+        Problem::new(
+            StatusCode::NOT_FOUND,
+            "Not found",
+            format!(
+                "There is no submission {} that you may see.",
+                id.chars().take(20).collect::<String>()
+            ),
+        )
+        .into_response()
+    };
+    let (account_id, role) = match &principal {
+        Principal::Token(t) => (t.account_id, t.role),
+        Principal::Session(s) => (s.account_id, s.role),
+        Principal::Anonymous | Principal::BadToken => {
+            return Problem::new(
+                StatusCode::UNAUTHORIZED,
+                "Unauthorized",
+                "This endpoint needs an API token.",
+            )
+            .into_response();
+        }
+    };
+    let Ok(id_number) = id.parse::<i64>() else {
+        return not_found();
+    };
+    let summary = match submissions::find(&state.pool, id_number).await {
+        Ok(s) => s,
+        Err(e) => return db_problem(&e).into_response(),
+    };
+    let Some(s) =
+        summary.filter(|s| s.account_id == Some(account_id) || role.includes(Role::Reviewer))
+    else {
+        return not_found();
+    };
+    axum::Json(SubmissionStatus {
+        submission_id: s.submission_id,
+        state: s.state,
+        source: s.source,
+        created_at: s.created_at,
+        galaxy_id: s.galaxy_id,
+        galaxy_name: s.galaxy_name,
+        galaxy_slug: s.galaxy_slug,
+        n_measurements: s.n_measurements,
+        note: s.note,
+    })
+    .into_response()
+}
