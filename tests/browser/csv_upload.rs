@@ -26,22 +26,17 @@ async fn submissions_count(pool: &sqlx::SqlitePool) -> i64 {
         .expect("a count")
 }
 
-/// Send a file through the upload page: the file input when the page has one, otherwise the
-/// pasted-text field.
+/// Choose a file on the upload page's file input and send it.
 async fn upload(member: &Page, dir: &std::path::Path, name: &str, text: &str) {
     member.open("/submissions/upload", "upload-form").await;
-    if member.count("input[type=file][name=file]").await > 0 {
-        let path = dir.join(name);
-        std::fs::write(&path, text).expect("the file is written");
-        member
-            .element("input[type=file][name=file]")
-            .await
-            .send_keys(path.display().to_string())
-            .await
-            .expect("the file is chosen");
-    } else {
-        member.fill("textarea[name=csv]", text).await;
-    }
+    let path = dir.join(name);
+    std::fs::write(&path, text).expect("the file is written");
+    member
+        .element("input[type=file][name=file]")
+        .await
+        .send_keys(path.display().to_string())
+        .await
+        .expect("the file is chosen");
     member
         .click_button("form[action='/submissions/upload']", "Submit")
         .await;
@@ -83,12 +78,18 @@ async fn a_csv_file_with_one_bad_row_is_reported_row_by_row_and_the_fixed_file_l
         );
 
         upload(&member, dir.path(), "fixed.csv", &file("95 ± 6")).await;
-        member.check("after-upload").await;
+        member.check("upload-done").await;
+        let done = member.text("#upload-done").await;
+        assert!(
+            done.contains("2 pending submission"),
+            "the page says what was imported: {done}"
+        );
         assert_eq!(
             submissions_count(&journey.pool).await,
             before + 2,
             "one pending submission per galaxy"
         );
+        member.open("/submissions", "my-submissions").await;
         let rows = member.texts("#submissions tbody tr").await;
         for galaxy in ["Quellin 7", "Quellin 8"] {
             let row = rows
@@ -97,6 +98,16 @@ async fn a_csv_file_with_one_bad_row_is_reported_row_by_row_and_the_fixed_file_l
                 .unwrap_or_else(|| panic!("{galaxy} is listed: {rows:?}"));
             assert!(row.contains("pending"), "{galaxy} is pending: {row}");
         }
+
+        // The same file again adds nothing.
+        upload(&member, dir.path(), "fixed-again.csv", &file("95 ± 6")).await;
+        member.check("upload-again").await;
+        assert_eq!(
+            submissions_count(&journey.pool).await,
+            before + 2,
+            "sending the file twice adds nothing"
+        );
+
         let slug = massline::catalog::model::slugify("Quellin 7");
         member
             .open(&format!("/galaxies/{slug}"), "new-galaxy")
