@@ -604,8 +604,6 @@ pub(crate) struct DemoGalaxy {
     pub(crate) name: String,
     /// Its slug (the galaxy page's address).
     pub(crate) slug: String,
-    /// Its σ_e as the demo file types it, e.g. "185 ± 9" (km/s).
-    pub(crate) sigma: String,
     /// The distance its mass's source assumed, as typed (Mpc).
     pub(crate) source_distance_mpc: String,
 }
@@ -623,10 +621,9 @@ pub(crate) fn planted_outliers() -> Vec<DemoGalaxy> {
             .expect("a demo column")
     };
     let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.expect("a demo row")).collect();
-    let (galaxy, quantity, value, note, distance, definition) = (
+    let (galaxy, quantity, note, distance, definition) = (
         col("galaxy"),
         col("quantity"),
-        col("value"),
         col("note"),
         col("source_distance_mpc"),
         col("sigma_definition"),
@@ -634,13 +631,13 @@ pub(crate) fn planted_outliers() -> Vec<DemoGalaxy> {
     rows.iter()
         .filter(|r| &r[quantity] == "bh_mass" && r[note].contains("planted outlier"))
         .filter_map(|m| {
-            let sigma = rows.iter().find(|s| {
+            // M–σ places only galaxies with σ_e.
+            rows.iter().find(|s| {
                 s[galaxy] == m[galaxy] && &s[quantity] == "sigma" && &s[definition] == "sigma_e"
             })?;
             Some(DemoGalaxy {
                 name: m[galaxy].to_owned(),
                 slug: massline::catalog::model::slugify(&m[galaxy]),
-                sigma: sigma[value].to_owned(),
                 source_distance_mpc: m[distance].to_owned(),
             })
         })
