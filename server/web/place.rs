@@ -637,6 +637,17 @@ pub(crate) async fn place_with_refit(
     relation: &Relation,
     subject: &Subject,
 ) -> AppResult<Placed> {
+    place_on_relation(state, relation, subject, true).await
+}
+
+/// [`place_with_refit`], with the refit only when `refit` is set (the review queue orders every
+/// pending submission by |z| first, and refits only the page it shows).
+pub(crate) async fn place_on_relation(
+    state: &AppState,
+    relation: &Relation,
+    subject: &Subject,
+    refit: bool,
+) -> AppResult<Placed> {
     let filter = SampleFilter::default();
     let pivots = (relation.default_pivot(), relation.default_pivot2());
     let outcome = fitted(
@@ -650,7 +661,7 @@ pub(crate) async fn place_with_refit(
     )
     .await?;
     let mut placed = place_against(relation, &outcome, subject);
-    let (Some(m), Ok(fit)) = (subject.mass, &outcome.fit) else {
+    let (Some(m), Ok(fit), true) = (subject.mass, &outcome.fit, refit) else {
         return Ok(placed);
     };
     let (x, x_err) = subject.x;

@@ -42,7 +42,6 @@ pub(crate) struct QueueItem {
     soi: Option<String>,
     mass_at_adopted: Option<String>,
     clashes: Vec<ClashView>,
-    max_abs_z: f64,
 }
 
 /// `/review`.
@@ -52,22 +51,61 @@ pub(crate) struct ReviewPage {
     nav: Nav,
     csrf: String,
     items: Vec<QueueItem>,
+    /// Pending submissions in all.
+    total: usize,
+    page: usize,
+    pages: usize,
 }
 
-/// The queue, largest |z| first (submissions without a mass last, oldest first among equals).
+/// Submissions per page of the queue.
+pub(crate) const QUEUE_PAGE: usize = 20;
+
+/// `?page=N` of the queue.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct QueueQuery {
+    #[serde(default)]
+    page: Option<String>,
+}
+
+/// The queue, largest |z| first (submissions without a mass last, oldest first among equals),
+/// [`QUEUE_PAGE`] a page. Every pending submission is placed against the cached fits to order
+/// them (cheap); only the page shown gets the refits with each submission in.
 pub(crate) async fn show_queue(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     nav: Nav,
+    axum::extract::Query(query): axum::extract::Query<QueueQuery>,
 ) -> AppResult<ReviewPage> {
     let user = session_of(&principal)?;
-    let mut items = Vec::new();
+    let page = match query.page.as_deref().map(str::trim) {
+        None | Some("") => 1,
+        Some(p) => p.parse::<usize>().ok().filter(|p| *p >= 1).ok_or_else(|| {
+            AppError::bad_request(format!(
+                "'{}' is not a page number (1, 2, 3, …).",
+                p.chars().take(20).collect::<String>()
+            ))
+        })?,
+    };
+    let mut ordered = Vec::new();
     for p in submissions::review_queue(&state.pool).await? {
         let Some(galaxy) = submissions::galaxy_by_id(&state.pool, p.summary.galaxy_id).await?
         else {
             continue;
         };
-        let a = assess(&state, &galaxy, &p.measurements, false).await?;
+        let a = assess(&state, &galaxy, &p.measurements, false, false).await?;
+        ordered.push((a.max_abs_z, p, galaxy));
+    }
+    // Stable sort: equal |z| keep the queue's oldest-first order.
+    ordered.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let total = ordered.len();
+    let pages = total.div_ceil(QUEUE_PAGE).max(1);
+    let mut items = Vec::new();
+    for (_, p, galaxy) in ordered
+        .into_iter()
+        .skip((page - 1).saturating_mul(QUEUE_PAGE))
+        .take(QUEUE_PAGE)
+    {
+        let a = assess(&state, &galaxy, &p.measurements, false, true).await?;
         let s = &p.summary;
         items.push(QueueItem {
             id: s.submission_id,
@@ -89,15 +127,15 @@ pub(crate) async fn show_queue(
             soi: a.soi,
             mass_at_adopted: a.mass_at_adopted,
             clashes: a.clashes,
-            max_abs_z: a.max_abs_z,
         });
     }
-    // Stable sort: equal |z| keep the queue's oldest-first order.
-    items.sort_by(|a, b| b.max_abs_z.total_cmp(&a.max_abs_z));
     Ok(ReviewPage {
         nav,
         csrf: user.csrf_token.clone(),
         items,
+        total,
+        page,
+        pages,
     })
 }
 

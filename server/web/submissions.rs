@@ -19,7 +19,7 @@ use axum::response::{IntoResponse, Redirect, Response};
 use super::Nav;
 use super::account::session_of;
 use super::display::{fixed, significant};
-use super::place::{PlaceChart, PlaceRow, Subject, SubjectMass, input_text, place_with_refit};
+use super::place::{PlaceChart, PlaceRow, Subject, SubjectMass, input_text, place_on_relation};
 use crate::astro::{distance_covariance_dex2, log_distance_error_dex};
 use crate::auth::{Principal, Role, SessionUser};
 use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
@@ -435,7 +435,7 @@ async fn preview(
             created_at: String::new(),
         })
         .collect();
-    let a = assess(state, &galaxy, &typed, true).await?;
+    let a = assess(state, &galaxy, &typed, true, true).await?;
     Ok(Preview {
         rows: a.rows,
         charts: a.charts,
@@ -597,12 +597,14 @@ fn pick<'a>(
         .or_else(|| all.iter().filter(|m| m.adopted).find(matches))
 }
 
-/// Assess a submission (see [`Assessment`]); `charts` draws the relation charts too.
+/// Assess a submission (see [`Assessment`]); `charts` draws the relation charts too, `refit`
+/// refits each relation with the submission in (the costly part).
 pub(crate) async fn assess(
     state: &AppState,
     galaxy: &Galaxy,
     submitted: &[Measurement],
     charts: bool,
+    refit: bool,
 ) -> AppResult<Assessment> {
     let all = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
     let at_adopted = |m: &Measurement| {
@@ -688,7 +690,7 @@ pub(crate) async fn assess(
             mass,
             input: input_text(&relation, &text(x), x2_text.as_deref()),
         };
-        let placed = place_with_refit(state, &relation, &subject).await?;
+        let placed = place_on_relation(state, &relation, &subject, refit).await?;
         if let Some(z) = placed.row.z_abs {
             max_abs_z = max_abs_z.max(z);
         }
@@ -800,7 +802,7 @@ pub(crate) async fn show_submission(
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
-    let a = assess(&state, &galaxy, &measured, true).await?;
+    let a = assess(&state, &galaxy, &measured, true, true).await?;
     Ok(SubmissionPage {
         nav,
         csrf: user.csrf_token.clone(),

@@ -424,3 +424,87 @@ async fn the_reviewer_chooses_which_value_stays_adopted_when_they_clash() {
     assert_eq!(r.status, 303, "{}", r.body);
     assert_eq!(adopted(app.pool.clone()).await, new_of(second).await);
 }
+
+#[tokio::test]
+async fn the_review_queue_is_paged_with_the_largest_z_first_across_pages() {
+    use massline::catalog::galaxies::SubmissionSource;
+    use massline::catalog::submissions::{self, GalaxyChoice};
+    let app = spawn_demo_app().await;
+    let member = app.create_account("queue-member", Role::Member).await;
+    // 24 ordinary masses and one far above the relation, submitted last.
+    let galaxy_ids: Vec<i64> = sqlx::query_scalar(
+        "select galaxy_id from adopted_value where quantity = 'sigma' order by galaxy_id limit 25",
+    )
+    .fetch_all(&app.pool)
+    .await
+    .unwrap();
+    for (i, galaxy_id) in galaxy_ids.iter().enumerate() {
+        let sigma: f64 = sqlx::query_scalar(
+            "select m.log_value from adopted_value a join measurement m using (measurement_id)
+              where a.galaxy_id = ? and a.quantity = 'sigma'",
+        )
+        .bind(galaxy_id)
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+        // M–σ of the demo model (seed-data/README.md): log M ≈ 8.3 + 5 (log σ − 2.3).
+        let log_m = 8.3 + 5.0 * (sigma - 2.3) + if i == 24 { 2.5 } else { 0.0 };
+        let cells = [
+            ("quantity", "bh_mass".to_owned()),
+            ("value", format!("log {log_m:.2} ± 0.1")),
+            ("scale", "log10".to_owned()),
+            ("method", "gas_dynamics".to_owned()),
+        ];
+        let m = massline::catalog::demo::measurement_from_cells("test", 0, &|c| {
+            cells
+                .iter()
+                .find(|(k, _)| *k == c)
+                .map_or("", |(_, v)| v.as_str())
+        })
+        .unwrap();
+        let g = GalaxyChoice::Existing(*galaxy_id);
+        let key = submissions::request_key(
+            Some(member),
+            &format!("q{i}"),
+            &g,
+            std::slice::from_ref(&m),
+            "",
+        );
+        submissions::create(
+            &app.pool,
+            Some(member),
+            SubmissionSource::Api,
+            &g,
+            &[m],
+            "",
+            &key,
+        )
+        .await
+        .unwrap();
+    }
+    let mut reviewer = app.login_as(Role::Reviewer).await;
+    let first = reviewer.get("/review").await;
+    assert_eq!(first.status, 200);
+    assert!(
+        first.body.contains("25 pending; page 1 of 2."),
+        "{}",
+        first.body
+    );
+    let on_page = |body: &str| body.matches("class=\"review-item\"").count();
+    assert_eq!(on_page(&first.body), 20);
+    // The planted outlier, submitted last, heads the first page.
+    let first_item = first.body.find("class=\"review-item\"").unwrap();
+    let head = &first.body[first_item..first_item + 400];
+    let outlier: i64 = sqlx::query_scalar("select max(submission_id) from submission")
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    assert!(head.contains(&format!("id=\"review-{outlier}\"")), "{head}");
+    let second = reviewer.get("/review?page=2").await;
+    assert_eq!(on_page(&second.body), 5);
+    assert!(second.body.contains("rel=\"prev\""));
+    assert_eq!(reviewer.get("/review?page=0").await.status, 400);
+    assert_eq!(reviewer.get("/review?page=x").await.status, 400);
+    let past = reviewer.get("/review?page=9").await;
+    assert_eq!((past.status, on_page(&past.body)), (200, 0));
+}
