@@ -7,6 +7,26 @@ use massline::auth::Role;
 use crate::submit_outlier::FAR_OFF_MASS;
 use crate::support::{self, MassSubmission, PAYLOADS, Reading, TEST_PASSWORD};
 
+/// Pending submissions already in the queue.
+const QUEUED: usize = 24;
+
+/// A catalog file of `n` invented galaxies whose masses lie on the M–σ relation
+/// (log M = 8.3 + 5 (log σ − log 200), close to the demo's fit).
+fn queue_filler(n: usize) -> String {
+    let mut text = String::from(
+        "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,scale,method,sigma_definition,aperture,source_distance_mpc,resolution_arcsec,reference\n",
+    );
+    for i in 0..n {
+        let sigma_km_s = 120.0 + 6.0 * i as f64;
+        let log_mbh = 8.3 + 5.0 * (sigma_km_s / 200.0).log10();
+        text.push_str(&format!(
+            "Tarrow {i},elliptical,classical,core,20,1,sbf,sigma,{sigma_km_s:.0} ± 10,,,sigma_e,r_e,,,Invented et al. 2030\n\
+             Tarrow {i},,,,,,,bh_mass,{log_mbh:.2} ± 0.1,log10,stellar_dynamics,,,20,0.1,Invented et al. 2030\n"
+        ));
+    }
+    text
+}
+
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_the_member_sees_the_note()
  {
@@ -17,6 +37,20 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             .expect("the demo catalog plants an M–σ outlier with σ_e");
         journey.account("mira", Role::Member).await;
         journey.account("rhea", Role::Reviewer).await;
+        // A busy queue: more pending submissions than one page holds, all near the relation.
+        let colleague = journey.account("tomas", Role::Member).await;
+        let filler = queue_filler(QUEUED);
+        massline::catalog::csv_io::import_csv(
+            &journey.pool,
+            &filler,
+            massline::catalog::csv_io::ImportMode::Pending {
+                account_id: Some(colleague),
+                source: massline::catalog::galaxies::SubmissionSource::Csv,
+            },
+            &mut |_, _| {},
+        )
+        .await
+        .expect("the colleague's submissions are stored");
 
         let member = journey.browser("member").await;
         member.log_in_by_keyboard("mira", TEST_PASSWORD).await;
@@ -41,6 +75,18 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             first,
             format!("review-{id}"),
             "the largest |z| comes first in the queue"
+        );
+        assert!(
+            reviewer
+                .text("#queue-count")
+                .await
+                .starts_with(&format!("{} pending", QUEUED + 1)),
+            "the queue counts every pending submission"
+        );
+        assert_eq!(
+            reviewer.count("nav.pager").await,
+            1,
+            "a queue longer than a page has one pager, below the items"
         );
         let item = format!("#review-{id}");
         let placement = reviewer.text(&format!("{item} table.placements")).await;

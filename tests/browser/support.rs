@@ -193,11 +193,17 @@ async fn start_chromedriver() -> (String, Child) {
 }
 
 impl Journey {
-    /// Create an account directly (as `massline user add` would) with [`TEST_PASSWORD`].
-    pub(crate) async fn account(&self, username: &str, role: Role) {
+    /// Create an account directly (as `massline user add` would) with [`TEST_PASSWORD`];
+    /// returns its key.
+    pub(crate) async fn account(&self, username: &str, role: Role) -> i64 {
         massline::auth::cli::add_user(&self.pool, username, role, Some(TEST_PASSWORD.into()))
             .await
             .expect("the account is created");
+        massline::catalog::accounts::find_by_username(&self.pool, username)
+            .await
+            .expect("the account can be read")
+            .expect("the account exists")
+            .account_id
     }
 
     /// Open a new browser session (its own profile: no shared cookies); `who` names it in
@@ -272,6 +278,7 @@ for (const el of document.querySelectorAll('link[href], script[src], img[src], i
   if (url === 'data:,') continue;
   if (new URL(url, location.href).origin !== here) problems.push(el.tagName.toLowerCase() + ' from another origin: ' + url);
 }
+if (/[<>]/.test(document.title)) problems.push('markup in the page title: ' + document.title);
 for (const el of document.querySelectorAll('[style*="url("]')) problems.push('inline style with a url: ' + el.outerHTML.slice(0, 80));
 const unitWords = /\[[^\]]+\]|\b(Mpc|km\/s|arcsec|dex|log10)\b|M☉|L☉|σ\b/;
 const numericName = /(^|_)(value|mass|sigma|distance|luminosity|pivot\d?|resolution|mpc|arcsec|dex)$/;
