@@ -860,6 +860,37 @@ mod tests {
         }
     }
 
+    #[test]
+    fn faulty_rows_are_named_by_their_line_with_lf_and_crlf_line_ends() {
+        let lf = format!(
+            "{HEADER}\n\
+             Tesk 71,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,\n\
+             Tesk 71,,,,,,,bh_mass,-2e8,,,stellar_dynamics,,,,20,0.1,,\n\
+             Tesk 71,,,,,,,sigma,9000,,,,sigma_e,r_e,,,,,\n"
+        );
+        let crlf = lf.replace('\n', "\r\n");
+        for text in [&lf, &crlf] {
+            let lines: Vec<u64> = parse_catalog_csv(text)
+                .unwrap_err()
+                .iter()
+                .map(|e| e.line)
+                .collect();
+            assert_eq!(lines, vec![3, 4], "{:?}", &text[..30]);
+        }
+        // A quoted cell spanning two lines moves the rows after it down by one.
+        let quoted = lf.replacen(
+            "sigma,210 ± 10,,,,sigma_e,r_e,,,,,",
+            "sigma,210 ± 10,,,,sigma_e,r_e,,,,\"a note\non two lines\",",
+            1,
+        );
+        let lines: Vec<u64> = parse_catalog_csv(&quoted)
+            .unwrap_err()
+            .iter()
+            .map(|e| e.line)
+            .collect();
+        assert_eq!(lines, vec![4, 5]);
+    }
+
     #[tokio::test]
     async fn importing_a_file_twice_adds_nothing_in_either_mode() {
         let text = format!(
