@@ -49,6 +49,10 @@ pub const COLUMNS: [&str; 20] = [
 /// these.
 const CONTENT_COLUMNS: usize = 19;
 
+/// The measurement columns, `quantity` to `note` (the API's measurement objects use the same
+/// names).
+pub const MEASUREMENT_COLUMNS: &[&str] = COLUMNS.split_at(7).1.split_at(12).0;
+
 /// The galaxy-description columns (besides `galaxy`, the name).
 const GALAXY_COLUMNS: [&str; 6] = [
     "morphology",
@@ -858,6 +862,13 @@ mod tests {
             account_id: None,
             source: SubmissionSource::Csv,
         }
+    }
+
+    #[test]
+    fn the_measurement_columns_run_from_quantity_to_note() {
+        assert_eq!(MEASUREMENT_COLUMNS.first(), Some(&"quantity"));
+        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"note"));
+        assert_eq!(MEASUREMENT_COLUMNS.len(), 12);
     }
 
     #[test]
