@@ -4,6 +4,8 @@
 //! `target/browser-screenshots/`. Without chromium and chromium-driver the tests skip with a
 //! loud message, or fail when `MASSLINE_REQUIRE_EXTERNAL=1`.
 
+#[path = "../common/mod.rs"]
+mod common;
 mod support;
 
 mod checks;

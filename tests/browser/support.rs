@@ -24,8 +24,7 @@ use thirtyfour::LoggingPrefsLogLevel;
 use thirtyfour::prelude::*;
 use tokio::process::{Child, Command};
 
-/// A password that passes the strength rules; accounts made directly get it.
-pub(crate) const TEST_PASSWORD: &str = "velvet orbit lantern quietly";
+pub(crate) use crate::common::TEST_PASSWORD;
 
 /// Script-injection payloads typed into text fields; none may ever run.
 pub(crate) const PAYLOADS: [&str; 2] = [
@@ -74,7 +73,7 @@ fn browser_installed() -> bool {
         std::path::Path::new(CHROMEDRIVER).exists() && std::path::Path::new(CHROMIUM).exists();
     if !present {
         let message = "SKIPPED: browser tests need chromium and chromium-driver (apt-get install chromium chromium-driver)";
-        if std::env::var("MASSLINE_REQUIRE_EXTERNAL").is_ok_and(|v| v == "1") {
+        if crate::common::external_required() {
             panic!("{message}; MASSLINE_REQUIRE_EXTERNAL=1 makes this a failure");
         }
         loud(message);
@@ -82,13 +81,7 @@ fn browser_installed() -> bool {
     present
 }
 
-/// Write a message framed by lines straight to stderr, past the test harness's capture, so
-/// it shows in every run.
-pub(crate) fn loud(message: &str) {
-    use std::io::Write as _;
-    let line = "=".repeat(100);
-    let _ = writeln!(std::io::stderr(), "\n{line}\n{message}\n{line}");
-}
+pub(crate) use crate::common::loud;
 
 /// Where screenshots go: `target/browser-screenshots/`.
 pub(crate) fn screenshot_dir() -> PathBuf {
@@ -196,14 +189,7 @@ impl Journey {
     /// Create an account directly (as `massline user add` would) with [`TEST_PASSWORD`];
     /// returns its key.
     pub(crate) async fn account(&self, username: &str, role: Role) -> i64 {
-        massline::auth::cli::add_user(&self.pool, username, role, Some(TEST_PASSWORD.into()))
-            .await
-            .expect("the account is created");
-        massline::catalog::accounts::find_by_username(&self.pool, username)
-            .await
-            .expect("the account can be read")
-            .expect("the account exists")
-            .account_id
+        crate::common::create_account(&self.pool, username, role).await
     }
 
     /// Open a new browser session (its own profile: no shared cookies); `who` names it in

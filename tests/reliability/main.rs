@@ -2,6 +2,8 @@
 //! SIGKILL during a bulk import, many concurrent writers, and backups. Each test starts the
 //! app on 127.0.0.1 with a fresh temporary SQLite file (see support.rs).
 
+#[path = "../common/mod.rs"]
+mod common;
 mod support;
 
 mod backup;

@@ -9,7 +9,6 @@ use std::str::FromStr;
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-use massline::auth::Role;
 use massline::auth::clock::ManualClock;
 use massline::{Application, Settings};
 use reqwest::header::HeaderMap;
@@ -18,13 +17,7 @@ use sqlx::sqlite::SqliteConnectOptions;
 use sqlx::{Connection, SqliteConnection, SqlitePool};
 use tempfile::TempDir;
 
-/// A password that passes the strength rules; every test account gets it.
-pub(crate) const TEST_PASSWORD: &str = "velvet orbit lantern quietly";
-
-/// Whether tests that need more time or an outside tool must run in full (CI sets it).
-pub(crate) fn external_required() -> bool {
-    std::env::var("MASSLINE_REQUIRE_EXTERNAL").is_ok_and(|v| v == "1")
-}
+pub(crate) use crate::common::{TEST_PASSWORD, create_account, external_required, plain_client};
 
 /// A running server in this process with its own database; dropping it deletes the database.
 pub(crate) struct TestApp {
@@ -68,42 +61,9 @@ pub(crate) async fn spawn_on(
     }
 }
 
-/// Create an account with [`TEST_PASSWORD`] in a catalog; returns its key.
-pub(crate) async fn create_account(pool: &SqlitePool, username: &str, role: Role) -> i64 {
-    massline::auth::cli::add_user(pool, username, role, Some(TEST_PASSWORD.into()))
-        .await
-        .expect("the account is created");
-    massline::catalog::accounts::find_by_username(pool, username)
-        .await
-        .unwrap()
-        .expect("the account exists")
-        .account_id
-}
-
 /// Make an API token for an account directly in the database; returns the token.
 pub(crate) async fn make_token(pool: &SqlitePool, account_id: i64, scopes: &str) -> String {
-    let (token, prefix) = massline::auth::secret::new_api_token();
-    massline::catalog::accounts::create_token(
-        pool,
-        &massline::catalog::accounts::NewToken {
-            account_id,
-            label: "test token",
-            prefix: &prefix,
-            token_sha256: &massline::auth::secret::sha256_hex(&token),
-            scopes,
-        },
-    )
-    .await
-    .unwrap();
-    token
-}
-
-/// A client that does not follow redirects.
-pub(crate) fn plain_client() -> reqwest::Client {
-    reqwest::Client::builder()
-        .redirect(reqwest::redirect::Policy::none())
-        .build()
-        .expect("a client")
+    crate::common::make_token(pool, account_id, scopes).await.0
 }
 
 /// A response, read completely.
