@@ -5,6 +5,7 @@
 
 use std::net::SocketAddr;
 use std::path::PathBuf;
+use std::time::Duration;
 
 /// Default SQLite file, relative to the working directory.
 pub const DEFAULT_DB_PATH: &str = "massline.db";
@@ -54,7 +55,15 @@ pub struct Settings {
     /// worth; beyond it 429 with Retry-After); 0 turns the limit off.
     #[arg(long, env = "MASSLINE_API_RATE_PER_MINUTE", default_value_t = DEFAULT_API_RATE_PER_MINUTE, value_parser = parse_api_rate)]
     pub api_rate_per_minute: u32,
+
+    /// Milliseconds a write waits for the database lock before the request answers 503 with
+    /// Retry-After (nothing written).
+    #[arg(long = "busy-timeout-ms", env = "MASSLINE_BUSY_TIMEOUT_MS", default_value_t = DEFAULT_BUSY_TIMEOUT_MS, value_parser = parse_busy_timeout_ms)]
+    pub busy_timeout_ms: u64,
 }
+
+/// Default of `--busy-timeout-ms` (the catalog's `BUSY_TIMEOUT`, 5 s).
+pub const DEFAULT_BUSY_TIMEOUT_MS: u64 = 5000;
 
 impl Settings {
     /// Settings for tests: a given database file, a free loopback port, no demo data.
@@ -67,7 +76,13 @@ impl Settings {
             public_read: false,
             secure_cookies: false,
             api_rate_per_minute: DEFAULT_API_RATE_PER_MINUTE,
+            busy_timeout_ms: DEFAULT_BUSY_TIMEOUT_MS,
         }
+    }
+
+    /// The busy timeout as a duration.
+    pub fn busy_timeout(&self) -> Duration {
+        Duration::from_millis(self.busy_timeout_ms)
     }
 }
 
@@ -142,9 +157,35 @@ fn parse_api_rate(s: &str) -> Result<u32, String> {
     }
 }
 
+fn parse_busy_timeout_ms(s: &str) -> Result<u64, String> {
+    match s.trim().parse::<u64>() {
+        Ok(v) if (1..=600_000).contains(&v) => Ok(v),
+        _ => Err(format!(
+            "the busy timeout (--busy-timeout-ms, MASSLINE_BUSY_TIMEOUT_MS) '{s}' must be a whole number of milliseconds from 1 to 600000 (default 5000)"
+        )),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn busy_timeout_is_a_positive_number_of_milliseconds() {
+        assert_eq!(parse_busy_timeout_ms("300").unwrap(), 300);
+        assert_eq!(
+            Duration::from_millis(DEFAULT_BUSY_TIMEOUT_MS),
+            crate::catalog::BUSY_TIMEOUT
+        );
+        for bad in ["0", "-5", "1.5", "x", "600001"] {
+            assert!(
+                parse_busy_timeout_ms(bad)
+                    .unwrap_err()
+                    .contains("--busy-timeout-ms"),
+                "{bad}"
+            );
+        }
+    }
 
     #[test]
     fn bind_accepts_ip_and_port_and_names_the_setting_when_wrong() {

@@ -8,6 +8,7 @@
 //! massline user set-role NAME ROLE | disable NAME | list
 //! massline import FILE.csv [--accept]                 load a catalog CSV (pending, or adopted)
 //! massline export > FILE.csv                          write the adopted catalog as CSV
+//! massline backup PATH [--db DB] [--force]            a checked copy of the live database
 //! ```
 
 use clap::{Parser, Subcommand};
@@ -35,6 +36,21 @@ enum Command {
     Import(massline::csv_command::ImportArgs),
     /// Write the adopted catalog as CSV (the import format) to standard output.
     Export(massline::csv_command::ExportArgs),
+    /// Copy the database, even while the server runs, to a checked file (see README "Backups").
+    Backup(BackupArgs),
+}
+
+/// Arguments of `massline backup`.
+#[derive(clap::Args, Debug)]
+struct BackupArgs {
+    /// Where the copy goes; its directory must exist.
+    path: std::path::PathBuf,
+    /// The database file to copy (the server's --db).
+    #[arg(long = "db", env = "MASSLINE_DB", default_value = massline::config::DEFAULT_DB_PATH)]
+    db_path: std::path::PathBuf,
+    /// Replace PATH when it exists (only after the new copy has passed its checks).
+    #[arg(long)]
+    force: bool,
 }
 
 fn main() -> std::process::ExitCode {
@@ -53,6 +69,7 @@ fn main() -> std::process::ExitCode {
             &mut std::io::stdout().lock(),
             &mut std::io::stderr().lock(),
         ),
+        Command::Backup(args) => backup(&args),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,
@@ -61,6 +78,34 @@ fn main() -> std::process::ExitCode {
             std::process::ExitCode::FAILURE
         }
     }
+}
+
+fn backup(args: &BackupArgs) -> anyhow::Result<()> {
+    use massline::catalog::backup::{self, Overwrite};
+    let runtime = tokio::runtime::Runtime::new()?;
+    runtime.block_on(async {
+        let pool = backup::open_source(&args.db_path).await?;
+        let overwrite = if args.force {
+            Overwrite::Replace
+        } else {
+            Overwrite::Refuse
+        };
+        let report = backup::backup_with(&pool, &args.path, overwrite).await;
+        pool.close().await;
+        let report = report?;
+        println!(
+            "backed up '{}' to '{}': {} bytes (source {} bytes), integrity ok, {:.2} s",
+            args.db_path.display(),
+            report.path.display(),
+            report.bytes,
+            report.source_bytes,
+            report.elapsed.as_secs_f64()
+        );
+        for t in &report.tables {
+            println!("  {:<24} {:>10} rows", t.table, t.rows);
+        }
+        Ok(())
+    })
 }
 
 fn serve(settings: Settings) -> anyhow::Result<()> {

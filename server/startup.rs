@@ -87,7 +87,8 @@ impl Application {
         settings: Settings,
         clock: Arc<dyn Clock>,
     ) -> anyhow::Result<Self> {
-        let pool = catalog::connect(&settings.db_path).await?;
+        let pool =
+            catalog::connect_with_busy_timeout(&settings.db_path, settings.busy_timeout()).await?;
         let passwords = Passwords::new().await?;
         let mut demo_accounts = Vec::new();
         if settings.demo {

@@ -503,7 +503,7 @@ pub enum EntryError {
     },
     /// Part of the entry could not be read.
     #[error(
-        "The {quantity} entry could not be read from `{fragment}` on; type a number in {} such as {}.",
+        "The {quantity} entry could not be read from “{fragment}” onwards; type a number in {} such as {}.",
         quantity.unit_label(),
         quantity.examples()
     )]

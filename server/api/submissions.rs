@@ -17,6 +17,7 @@ use serde::{Deserialize, Serialize};
 
 use super::problem::{FieldError, Problem};
 use crate::auth::{Principal, Role, Scope, TokenUser, require_scope};
+use crate::catalog::csv_io::MEASUREMENT_COLUMNS;
 use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
 use crate::catalog::galaxies::{self as store, SubmissionSource};
 use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError};
@@ -122,22 +123,6 @@ pub struct SubmissionStatus {
     /// The submitter's note.
     pub note: String,
 }
-
-/// The measurement columns a request may use.
-const MEASUREMENT_KEYS: [&str; 12] = [
-    "quantity",
-    "value",
-    "scale",
-    "limit_confidence_sigma",
-    "method",
-    "sigma_definition",
-    "aperture",
-    "band",
-    "source_distance_mpc",
-    "resolution_arcsec",
-    "reference",
-    "note",
-];
 
 fn token_of(principal: &Principal) -> Result<&TokenUser, Problem> {
     match principal {
@@ -415,7 +400,7 @@ async fn read_request(
     {
         let unknown: Vec<&String> = cells
             .keys()
-            .filter(|k| !MEASUREMENT_KEYS.contains(&k.as_str()))
+            .filter(|k| !MEASUREMENT_COLUMNS.contains(&k.as_str()))
             .collect();
         if let Some(k) = unknown.first() {
             errors.push(FieldError::new(

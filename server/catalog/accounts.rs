@@ -644,6 +644,9 @@ pub struct TokenOwner {
     pub scopes: String,
     /// Set when revoked.
     pub revoked_at: Option<String>,
+    /// Whether its last use was recorded less than 30 s ago (then a use need not be written:
+    /// the "last used" time is kept to the half minute, and a busy API makes no write per read).
+    pub used_recently: bool,
 }
 
 /// A token to store.
@@ -761,7 +764,9 @@ pub async fn revoke_token(
 /// When the database fails.
 pub async fn find_token(pool: &SqlitePool, token_sha256: &str) -> sqlx::Result<Option<TokenOwner>> {
     sqlx::query_as(
-        "select t.api_token_id, t.account_id, a.username, a.role, a.disabled, t.scopes, t.revoked_at
+        "select t.api_token_id, t.account_id, a.username, a.role, a.disabled, t.scopes, t.revoked_at,
+                ifnull(t.last_used_at > strftime('%Y-%m-%dT%H:%M:%fZ', 'now', '-30 seconds'), 0)
+                    as used_recently
            from api_token t join account a on a.account_id = t.account_id
           where t.token_sha256 = ?",
     )

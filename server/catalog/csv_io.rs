@@ -49,6 +49,10 @@ pub const COLUMNS: [&str; 20] = [
 /// these.
 const CONTENT_COLUMNS: usize = 19;
 
+/// The measurement columns, `quantity` to `note` (the API's measurement objects use the same
+/// names).
+pub const MEASUREMENT_COLUMNS: &[&str] = COLUMNS.split_at(7).1.split_at(12).0;
+
 /// The galaxy-description columns (besides `galaxy`, the name).
 const GALAXY_COLUMNS: [&str; 6] = [
     "morphology",
@@ -858,6 +862,44 @@ mod tests {
             account_id: None,
             source: SubmissionSource::Csv,
         }
+    }
+
+    #[test]
+    fn the_measurement_columns_run_from_quantity_to_note() {
+        assert_eq!(MEASUREMENT_COLUMNS.first(), Some(&"quantity"));
+        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"note"));
+        assert_eq!(MEASUREMENT_COLUMNS.len(), 12);
+    }
+
+    #[test]
+    fn faulty_rows_are_named_by_their_line_with_lf_and_crlf_line_ends() {
+        let lf = format!(
+            "{HEADER}\n\
+             Tesk 71,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,\n\
+             Tesk 71,,,,,,,bh_mass,-2e8,,,stellar_dynamics,,,,20,0.1,,\n\
+             Tesk 71,,,,,,,sigma,9000,,,,sigma_e,r_e,,,,,\n"
+        );
+        let crlf = lf.replace('\n', "\r\n");
+        for text in [&lf, &crlf] {
+            let lines: Vec<u64> = parse_catalog_csv(text)
+                .unwrap_err()
+                .iter()
+                .map(|e| e.line)
+                .collect();
+            assert_eq!(lines, vec![3, 4], "{:?}", &text[..30]);
+        }
+        // A quoted cell spanning two lines moves the rows after it down by one.
+        let quoted = lf.replacen(
+            "sigma,210 ± 10,,,,sigma_e,r_e,,,,,",
+            "sigma,210 ± 10,,,,sigma_e,r_e,,,,\"a note\non two lines\",",
+            1,
+        );
+        let lines: Vec<u64> = parse_catalog_csv(&quoted)
+            .unwrap_err()
+            .iter()
+            .map(|e| e.line)
+            .collect();
+        assert_eq!(lines, vec![4, 5]);
     }
 
     #[tokio::test]

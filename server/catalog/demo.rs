@@ -342,7 +342,44 @@ pub fn units_quantity(q: Quantity) -> units::Quantity {
 
 pub(super) type Record = HashMap<String, String>;
 
+/// Counts lines up to a byte offset, moving forward only (records come in order, so a whole
+/// file is counted once). The csv reader's own line numbers drift on CRLF line ends, which
+/// browsers send for every pasted text and spreadsheets write; counting `\n` is right for both.
+struct LineCounter<'a> {
+    text: &'a [u8],
+    at: usize,
+    line: u64,
+}
+
+impl LineCounter<'_> {
+    /// The 1-based line of the record that the reader places at `offset`. The reader's offset
+    /// may point at the line end before the record (it consumes it lazily), so line ends at
+    /// `offset` are stepped over first.
+    fn line_at(&mut self, offset: u64) -> u64 {
+        let mut offset = usize::try_from(offset)
+            .unwrap_or(usize::MAX)
+            .min(self.text.len());
+        while offset < self.text.len() && matches!(self.text[offset], b'\r' | b'\n') {
+            offset += 1;
+        }
+        if offset > self.at {
+            let newlines = self.text[self.at..offset]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count();
+            self.line += newlines as u64;
+            self.at = offset;
+        }
+        self.line
+    }
+}
+
 pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
+    let mut lines = LineCounter {
+        text: text.as_bytes(),
+        at: 0,
+        line: 1,
+    };
     let mut reader = csv::ReaderBuilder::new()
         .trim(csv::Trim::All)
         .from_reader(text.as_bytes());
@@ -359,11 +396,11 @@ pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record
     for rec in reader.records() {
         let rec = rec.map_err(|e| RowError {
             file,
-            line: e.position().map_or(0, |p| p.line()),
+            line: e.position().map_or(0, |p| lines.line_at(p.byte())),
             column: "(row)",
             message: e.to_string(),
         })?;
-        let line = rec.position().map_or(0, |p| p.line());
+        let line = rec.position().map_or(0, |p| lines.line_at(p.byte()));
         let map = headers
             .iter()
             .zip(rec.iter())

@@ -10,6 +10,7 @@
 //! a freshly migrated temporary database, which is what catches a typo.
 
 pub mod accounts;
+pub mod backup;
 pub mod csv_io;
 pub mod demo;
 pub mod fit_runs;
@@ -28,7 +29,8 @@ use anyhow::Context;
 use sqlx::sqlite::{SqliteConnectOptions, SqliteJournalMode, SqlitePoolOptions, SqliteSynchronous};
 use sqlx::{Sqlite, SqlitePool, Transaction};
 
-/// How long a writer waits for the lock before giving up with SQLITE_BUSY.
+/// How long a writer waits for the lock before giving up with SQLITE_BUSY (the default of the
+/// server's `--busy-timeout-ms`).
 pub const BUSY_TIMEOUT: Duration = Duration::from_secs(5);
 
 /// The oldest SQLite the catalog accepts: 3.51.3 fixed a WAL-reset bug that could corrupt a
@@ -42,6 +44,18 @@ static MIGRATOR: sqlx::migrate::Migrator = sqlx::migrate!();
 /// # Errors
 /// When the file cannot be opened or created, the SQLite library is too old, or a migration fails.
 pub async fn connect(db_path: &Path) -> anyhow::Result<SqlitePool> {
+    connect_with_busy_timeout(db_path, BUSY_TIMEOUT).await
+}
+
+/// [`connect`] with a given busy timeout: how long a writer waits for the lock before its
+/// request fails with SQLITE_BUSY (503 on the web).
+///
+/// # Errors
+/// As [`connect`].
+pub async fn connect_with_busy_timeout(
+    db_path: &Path,
+    busy_timeout: Duration,
+) -> anyhow::Result<SqlitePool> {
     let url = format!("sqlite://{}", db_path.display());
     let options = SqliteConnectOptions::from_str(&url)
         .with_context(|| format!("the database path '{}' is not usable", db_path.display()))?
@@ -49,7 +63,7 @@ pub async fn connect(db_path: &Path) -> anyhow::Result<SqlitePool> {
         .journal_mode(SqliteJournalMode::Wal)
         .synchronous(SqliteSynchronous::Full)
         .foreign_keys(true)
-        .busy_timeout(BUSY_TIMEOUT);
+        .busy_timeout(busy_timeout);
     let pool = SqlitePoolOptions::new()
         .max_connections(4)
         .connect_with(options)
@@ -109,7 +123,7 @@ pub async fn ping(pool: &SqlitePool) -> sqlx::Result<()> {
 }
 
 /// Start a write transaction with `BEGIN IMMEDIATE`: it takes the write lock at once (waiting up
-/// to [`BUSY_TIMEOUT`]), so the transaction cannot fail later on a lock upgrade.
+/// to the busy timeout, [`BUSY_TIMEOUT`] by default), so the transaction cannot fail later on a lock upgrade.
 ///
 /// # Errors
 /// SQLITE_BUSY when another writer holds the lock for longer than the busy timeout.

@@ -757,6 +757,26 @@ mod tests {
         create(pool, account_id, source, galaxy, measurements, note, &key).await
     }
 
+    /// [`create`] through the API door with the note "n".
+    async fn api_submit(
+        pool: &SqlitePool,
+        account_id: i64,
+        galaxy: &GalaxyChoice,
+        measurements: &[NewMeasurement],
+        key: &RequestKey,
+    ) -> Result<Created, SubmissionError> {
+        create(
+            pool,
+            Some(account_id),
+            SubmissionSource::Api,
+            galaxy,
+            measurements,
+            "n",
+            key,
+        )
+        .await
+    }
+
     #[tokio::test]
     async fn the_same_request_twice_adds_nothing_and_other_content_under_its_key_is_refused() {
         let (_d, pool) = temp_pool().await;
@@ -765,30 +785,10 @@ mod tests {
         let g = GalaxyChoice::New(galaxy("Tesk 30"));
         let ms = [mass("2.4e8 ± 0.3e8")];
         let key = request_key(Some(member), "abc", &g, &ms, "n");
-        let first = create(
-            &pool,
-            Some(member),
-            SubmissionSource::Api,
-            &g,
-            &ms,
-            "n",
-            &key,
-        )
-        .await
-        .unwrap();
+        let first = api_submit(&pool, member, &g, &ms, &key).await.unwrap();
         assert!(!first.replayed);
         // A retry (even after the galaxy now exists) answers the first submission.
-        let again = create(
-            &pool,
-            Some(member),
-            SubmissionSource::Api,
-            &g,
-            &ms,
-            "n",
-            &key,
-        )
-        .await
-        .unwrap();
+        let again = api_submit(&pool, member, &g, &ms, &key).await.unwrap();
         assert_eq!(again.submission_id, first.submission_id);
         assert_eq!(again.galaxy_id, first.galaxy_id);
         assert!(again.replayed);
@@ -813,33 +813,17 @@ mod tests {
         // The same key with another value is refused, nothing written.
         let changed = [mass("2.5e8 ± 0.3e8")];
         let key2 = request_key(Some(member), "abc", &g, &changed, "n");
-        let err = create(
-            &pool,
-            Some(member),
-            SubmissionSource::Api,
-            &g,
-            &changed,
-            "n",
-            &key2,
-        )
-        .await
-        .unwrap_err();
+        let err = api_submit(&pool, member, &g, &changed, &key2)
+            .await
+            .unwrap_err();
         assert!(matches!(err, SubmissionError::KeyReused), "{err}");
         assert_eq!(count(&pool, "measurement").await, 1);
         // Another member may use the same client key for their own request.
         let g2 = GalaxyChoice::Existing(first.galaxy_id);
         let key3 = request_key(Some(other), "abc", &g2, &changed, "n");
-        let theirs = create(
-            &pool,
-            Some(other),
-            SubmissionSource::Api,
-            &g2,
-            &changed,
-            "n",
-            &key3,
-        )
-        .await
-        .unwrap();
+        let theirs = api_submit(&pool, other, &g2, &changed, &key3)
+            .await
+            .unwrap();
         assert!(!theirs.replayed);
         assert_eq!(count(&pool, "measurement").await, 2);
     }

@@ -350,10 +350,24 @@ pub(crate) async fn create_submission(
             Ok(Redirect::to(&format!("/submissions/{}", created.submission_id)).into_response())
         }
         Err(SubmissionError::Db(e)) => Err(e.into()),
+        Err(SubmissionError::KeyReused) => {
+            // This page was submitted before with other values (the back button, then edits):
+            // keep what was typed, give the form a fresh key, and say so.
+            fields.remove("request_key");
+            let page = form_page(
+                &state,
+                user,
+                nav,
+                &fields,
+                &errors,
+                Some("This form was already submitted with other values, so nothing was saved. Check the values below and submit again to store them as a new submission.".to_owned()),
+            )
+            .await?;
+            Ok((StatusCode::CONFLICT, page).into_response())
+        }
         Err(e) => {
             let field = match e {
                 SubmissionError::NameTaken => "name",
-                SubmissionError::KeyReused => "form",
                 _ => "galaxy",
             };
             errors.insert(field.into(), e.to_string());

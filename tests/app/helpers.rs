@@ -19,8 +19,8 @@ use reqwest::header::HeaderMap;
 use sqlx::SqlitePool;
 use tempfile::TempDir;
 
-/// A password that passes the strength rules; every test account gets it.
-pub(crate) const TEST_PASSWORD: &str = "velvet orbit lantern quietly";
+pub(crate) use crate::common::TEST_PASSWORD;
+use crate::common::plain_client;
 
 /// A running server with its own database; dropping it deletes the database.
 pub(crate) struct TestApp {
@@ -83,13 +83,6 @@ pub(crate) async fn spawn_with(adjust: impl FnOnce(&mut Settings)) -> TestApp {
     }
 }
 
-fn plain_client() -> reqwest::Client {
-    reqwest::Client::builder()
-        .redirect(reqwest::redirect::Policy::none())
-        .build()
-        .expect("a client")
-}
-
 impl TestApp {
     /// GET a path and return (status, body).
     pub(crate) async fn get(&self, path: &str) -> (u16, String) {
@@ -112,14 +105,7 @@ impl TestApp {
 
     /// Create an account with [`TEST_PASSWORD`]; returns its key.
     pub(crate) async fn create_account(&self, username: &str, role: Role) -> i64 {
-        massline::auth::cli::add_user(&self.pool, username, role, Some(TEST_PASSWORD.into()))
-            .await
-            .expect("the account is created");
-        massline::catalog::accounts::find_by_username(&self.pool, username)
-            .await
-            .unwrap()
-            .expect("the account exists")
-            .account_id
+        crate::common::create_account(&self.pool, username, role).await
     }
 
     /// A new browser with no cookies.
@@ -150,20 +136,7 @@ impl TestApp {
 
     /// Make an API token for an account directly in the database; returns (token, key).
     pub(crate) async fn make_token(&self, account_id: i64, scopes: &str) -> (String, i64) {
-        let (token, prefix) = massline::auth::secret::new_api_token();
-        let id = massline::catalog::accounts::create_token(
-            &self.pool,
-            &massline::catalog::accounts::NewToken {
-                account_id,
-                label: "test token",
-                prefix: &prefix,
-                token_sha256: &massline::auth::secret::sha256_hex(&token),
-                scopes,
-            },
-        )
-        .await
-        .unwrap();
-        (token, id)
+        crate::common::make_token(&self.pool, account_id, scopes).await
     }
 }
 

@@ -267,6 +267,16 @@ async fn the_same_form_posted_twice_stores_one_submission() {
     // A fresh form has a fresh key.
     let again = member.get("/submissions/new").await;
     assert!(!again.body.contains(&key));
+    // The old page, edited after going back, and sent again: nothing stored, a fresh key and
+    // the typed values come back.
+    let mut edited = fields.to_vec();
+    edited[3] = ("m0_value", "2.6e8 ± 0.3e8");
+    let r = member.post("/submissions/new", &edited).await;
+    assert_eq!(r.status, 409, "{}", r.body);
+    assert!(r.body.contains("already submitted"));
+    assert!(r.body.contains("value=\"2.6e8 ± 0.3e8\""));
+    assert!(!r.body.contains(&key), "the form gets a fresh key");
+    assert_eq!(count(&app, "submission").await, before + 1);
 }
 
 #[tokio::test]

@@ -1,6 +1,8 @@
 //! Black-box tests of the real server: each test starts the app on 127.0.0.1:0 with a fresh
 //! temporary SQLite file (see helpers.rs) and talks HTTP to it.
 
+#[path = "../common/mod.rs"]
+mod common;
 mod helpers;
 
 mod access;

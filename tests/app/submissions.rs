@@ -508,3 +508,64 @@ async fn the_review_queue_is_paged_with_the_largest_z_first_across_pages() {
     let past = reviewer.get("/review?page=9").await;
     assert_eq!((past.status, on_page(&past.body)), (200, 0));
 }
+
+/// The residual (dex) and z of the M–σ row of a placement table, as shown.
+fn m_sigma_residual_z(body: &str) -> (f64, f64) {
+    let row = body
+        .split("id=\"place-m_sigma\"")
+        .nth(1)
+        .expect("an M–σ row")
+        .split("</tr>")
+        .next()
+        .unwrap();
+    // Cells: relation, host value, predicted, 68 %, 95 %, residual, z, …
+    let number = |n: usize| -> f64 {
+        let cell = row.split("<td").nth(n).expect("a cell");
+        let text = cell.split('>').nth(1).unwrap().split('<').next().unwrap();
+        let text = text.trim().replace('−', "-").replace('+', "");
+        text.parse()
+            .unwrap_or_else(|_| panic!("cell {n}: '{text}'"))
+    };
+    (number(6), number(7))
+}
+
+#[tokio::test]
+async fn the_distance_error_widens_the_z_of_a_submission() {
+    // A mass above M–σ at 20 Mpc; the same with a distance known to 1 % and to 40 %. The
+    // distance error enters the mass error in quadrature (science notes §3.2: σ_logD = σ_D /
+    // (D ln 10), p = 1 for a dynamical mass, 0 for σ), so the second |z| is smaller.
+    let app = spawn_demo_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    member.get("/submissions/new").await;
+    let mut shown = Vec::new();
+    for (name, err) in [("Tesk 1501", "0.2"), ("Tesk 1502", "8")] {
+        let mut fields = new_galaxy_form(name, "3e9 ± 0.3e9");
+        for f in &mut fields {
+            if f.0 == "distance_err_mpc" {
+                f.1 = err;
+            }
+        }
+        fields.push(("action", "check"));
+        let r = member.post("/submissions/new", &fields).await;
+        assert_eq!(r.status, 200, "{}", r.body);
+        shown.push(m_sigma_residual_z(&r.body));
+    }
+    let ((r0, z0), (r1, z1)) = (shown[0], shown[1]);
+    assert!(
+        (r0 - r1).abs() < 1e-9,
+        "the residual does not depend on the distance error"
+    );
+    assert!(z0 > 2.0, "a mass far above the relation: z = {z0}");
+    assert!(z1 < z0, "a 40 % distance error lowers z: {shown:?}");
+    // z = r / √V; the larger distance error adds Δ = σ_logD₁² − σ_logD₀² to V, with
+    // σ_logD = σ_D / (D ln 10) (science notes §3.2) and exponent 1 for a dynamical mass (σ has
+    // none, so no covariance term). Shown values are rounded (z to 0.1, r to 0.01): compare
+    // within that.
+    let sigma_log_d = |err_mpc: f64| err_mpc / (20.0 * std::f64::consts::LN_10);
+    let delta = sigma_log_d(8.0).powi(2) - sigma_log_d(0.2).powi(2);
+    let expected_z1 = r0 / ((r0 / z0).powi(2) + delta).sqrt();
+    assert!(
+        (z1 - expected_z1).abs() < 0.12,
+        "z with the wide distance error {z1}, expected {expected_z1:.3} from {shown:?}"
+    );
+}
