@@ -37,10 +37,10 @@ fn st_available() -> bool {
 async fn the_api_fuzzer_finds_no_server_error_and_no_answer_outside_the_openapi_document() {
     if !st_available() {
         let message = "schemathesis (`st`) is not installed: pip install schemathesis==4.32.5";
-        if std::env::var("MASSLINE_REQUIRE_EXTERNAL").as_deref() == Ok("1") {
-            panic!("{message} (MASSLINE_REQUIRE_EXTERNAL=1)");
+        if crate::common::external_required() {
+            panic!("{message}; MASSLINE_REQUIRE_EXTERNAL=1 makes this a failure");
         }
-        eprintln!("\n**********\nSKIP the API fuzzer: {message}\n**********\n");
+        crate::common::loud(&format!("SKIP the API fuzzer: {message}"));
         return;
     }
     let app = spawn_with(|s| {
