@@ -428,8 +428,6 @@ pub fn router(state: AppState) -> Router {
             authenticate,
         ))
         .layer(axum::middleware::from_fn(refuse_cross_site))
-        // Every error under /api/ as problem+json (404, 405, 413 …).
-        .layer(axum::middleware::from_fn(crate::api::problem_errors))
         .with_state(state);
     with_baseline(app, REQUEST_TIMEOUT, secure)
 }
@@ -447,6 +445,8 @@ fn with_baseline(app: Router, timeout: Duration, secure: bool) -> Router {
             StatusCode::SERVICE_UNAVAILABLE,
             timeout,
         ))
+        // Every error under /api/ as problem+json (404, 405, 413, the timeout's 503 …).
+        .layer(axum::middleware::from_fn(crate::api::problem_errors))
         .layer(SetResponseHeaderLayer::if_not_present(
             header::CACHE_CONTROL,
             HeaderValue::from_static("no-store"),
@@ -584,6 +584,38 @@ mod tests {
         assert_eq!(h[header::X_CONTENT_TYPE_OPTIONS], "nosniff");
         assert_eq!(h[header::CACHE_CONTROL], "no-store");
         assert!(!h.contains_key(header::STRICT_TRANSPORT_SECURITY));
+    }
+
+    #[tokio::test]
+    async fn a_slow_api_request_answers_503_as_problem_json() {
+        let slow = Router::new().route(
+            "/api/v1/slow",
+            get(|| async {
+                tokio::time::sleep(Duration::from_secs(5)).await;
+                "late"
+            }),
+        );
+        let app = with_baseline(slow, Duration::from_millis(50), false);
+        let response = app
+            .oneshot(
+                Request::builder()
+                    .uri("/api/v1/slow")
+                    .body(Body::empty())
+                    .unwrap(),
+            )
+            .await
+            .unwrap();
+        assert_eq!(response.status(), StatusCode::SERVICE_UNAVAILABLE);
+        assert_eq!(
+            response.headers()[header::CONTENT_TYPE],
+            "application/problem+json"
+        );
+        assert!(response.headers().contains_key(header::RETRY_AFTER));
+        assert!(
+            response
+                .headers()
+                .contains_key(header::CONTENT_SECURITY_POLICY)
+        );
     }
 
     #[tokio::test]
