@@ -864,6 +864,21 @@ mod tests {
         }
     }
 
+    #[tokio::test]
+    async fn the_readme_example_file_imports() {
+        let text = include_str!("../../examples/catalog-example.csv");
+        let rows = parse_catalog_csv(text).expect("the example file is valid");
+        assert_eq!(rows.len(), 4);
+        assert_eq!(rows[0].row.key, "tesk41-sigma");
+        // A blank row key is made from the row's values.
+        assert_eq!(rows[2].row.key.len(), 64);
+        let (_d, pool) = temp_pool().await;
+        let report = import_csv(&pool, text, pending(), &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!((report.measurements, report.new_galaxies), (4, 2));
+    }
+
     #[test]
     fn the_measurement_columns_run_from_quantity_to_note() {
         assert_eq!(MEASUREMENT_COLUMNS.first(), Some(&"quantity"));
