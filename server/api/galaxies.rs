@@ -305,23 +305,6 @@ pub struct MeasurementAnswer {
     pub created_at: String,
 }
 
-/// The sphere-of-influence check of the adopted black-hole mass.
-#[derive(Debug, Clone, Serialize, ToSchema)]
-pub struct GalaxySoi {
-    /// r_infl = G M_BH / σ², pc.
-    pub radius_pc: f64,
-    /// θ_infl = r_infl / D, arcsec.
-    pub theta_arcsec: f64,
-    /// Recorded resolution, arcsec.
-    pub resolution_arcsec: Option<f64>,
-    /// θ_infl / resolution.
-    pub ratio: Option<f64>,
-    /// Whether the ratio reaches the threshold; null without a resolution.
-    pub resolved: Option<bool>,
-    /// The server's threshold.
-    pub threshold: f64,
-}
-
 /// An adopted value.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct AdoptedValue {
@@ -361,7 +344,7 @@ pub struct GalaxyAnswer {
     /// The adopted value of each quantity (and band).
     pub adopted: Vec<AdoptedValue>,
     /// The sphere-of-influence check of the adopted mass, when it can be made.
-    pub sphere_of_influence: Option<GalaxySoi>,
+    pub sphere_of_influence: Option<super::place::SoiAnswer>,
     /// Every measurement, in any state, adopted first within a quantity.
     pub measurements: Vec<MeasurementAnswer>,
 }
@@ -437,14 +420,7 @@ pub async fn show_galaxy(
                 state.settings.soi_threshold,
             )
         })
-        .map(|s| GalaxySoi {
-            radius_pc: s.radius_pc,
-            theta_arcsec: s.theta_arcsec,
-            resolution_arcsec: s.resolution_arcsec,
-            ratio: s.ratio,
-            resolved: s.resolved,
-            threshold: s.threshold,
-        });
+        .map(|s| super::place::SoiAnswer::from(&s));
     let measurements = measurements
         .iter()
         .map(|m| MeasurementAnswer {

@@ -109,7 +109,8 @@ pub struct RelationPlacement {
     pub problem: Option<String>,
 }
 
-/// The sphere-of-influence check (needs the mass, σ and the distance).
+/// The sphere-of-influence check (needs the mass, σ and the distance); the galaxy endpoint
+/// answers the same for the adopted mass.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct SoiAnswer {
     /// r_infl = G M_BH / σ², pc.
@@ -124,6 +125,19 @@ pub struct SoiAnswer {
     pub resolved: Option<bool>,
     /// The threshold.
     pub threshold: f64,
+}
+
+impl From<&SphereOfInfluence> for SoiAnswer {
+    fn from(s: &SphereOfInfluence) -> Self {
+        Self {
+            radius_pc: s.radius_pc,
+            theta_arcsec: s.theta_arcsec,
+            resolution_arcsec: s.resolution_arcsec,
+            ratio: s.ratio,
+            resolved: s.resolved,
+            threshold: s.threshold,
+        }
+    }
 }
 
 /// One object's answer.
@@ -330,16 +344,7 @@ fn place_object(
             inputs.resolution.as_ref().map(|r| r.value),
             soi_threshold,
         ) {
-            Ok(sp) => {
-                soi = Some(SoiAnswer {
-                    radius_pc: sp.radius_pc,
-                    theta_arcsec: sp.theta_arcsec,
-                    resolution_arcsec: sp.resolution_arcsec,
-                    ratio: sp.ratio,
-                    resolved: sp.resolved,
-                    threshold: sp.threshold,
-                });
-            }
+            Ok(sp) => soi = Some(SoiAnswer::from(&sp)),
             Err(e) => note = Some(e.to_string()),
         }
     } else if inputs.mass.is_some() {
