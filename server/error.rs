@@ -87,6 +87,18 @@ impl From<sqlx::Error> for AppError {
     }
 }
 
+/// What an error page says, kept on its response so `web` can draw it again with the
+/// visitor's session links.
+#[derive(Debug, Clone)]
+pub struct ErrorPageParts {
+    /// HTTP status.
+    pub status_code: u16,
+    /// Short title.
+    pub title: &'static str,
+    /// One or two sentences.
+    pub message: String,
+}
+
 /// The error page (templates/errors/error.html).
 #[derive(Template)]
 #[template(path = "errors/error.html")]
@@ -128,12 +140,19 @@ pub fn render_error_page(
     let page = ErrorPage {
         status_code: status.as_u16(),
         title,
-        message,
+        message: message.clone(),
     };
     let body = page
         .render()
         .unwrap_or_else(|_| format!("{} {title}", status.as_u16()));
     let mut response = (status, Html(body)).into_response();
+    // The web layer redraws the page with the visitor's session links (it knows who asks;
+    // this function does not).
+    response.extensions_mut().insert(ErrorPageParts {
+        status_code: status.as_u16(),
+        title,
+        message,
+    });
     if retry {
         response
             .headers_mut()

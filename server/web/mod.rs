@@ -423,6 +423,8 @@ pub fn router(state: AppState) -> Router {
             ),
             crate::api::rate::limit_rate,
         ))
+        // Inside authentication: error pages get the visitor's session links.
+        .layer(axum::middleware::from_fn(error_pages_with_session_links))
         .layer(axum::middleware::from_fn_with_state(
             state.clone(),
             authenticate,
@@ -430,6 +432,52 @@ pub fn router(state: AppState) -> Router {
         .layer(axum::middleware::from_fn(refuse_cross_site))
         .with_state(state);
     with_baseline(app, REQUEST_TIMEOUT, secure)
+}
+
+/// An error page with the visitor's session links (templates/errors/error_session.html).
+#[derive(askama::Template)]
+#[template(path = "errors/error_session.html")]
+struct SessionErrorPage {
+    status_code: u16,
+    title: &'static str,
+    message: String,
+    nav: Nav,
+}
+
+/// Error pages are drawn below the web layer, which does not know who asks: draw them again
+/// with the visitor's session links (account, submissions, log out; or "Log in"), keeping the
+/// status and headers.
+async fn error_pages_with_session_links(
+    request: Request,
+    next: axum::middleware::Next,
+) -> Response {
+    use askama::Template as _;
+    let nav = request
+        .extensions()
+        .get::<Principal>()
+        .map(Nav::from_principal);
+    let mut response = next.run(request).await;
+    let Some(parts) = response
+        .extensions_mut()
+        .remove::<crate::error::ErrorPageParts>()
+    else {
+        return response;
+    };
+    let Some(nav) = nav else {
+        return response;
+    };
+    let page = SessionErrorPage {
+        status_code: parts.status_code,
+        title: parts.title,
+        message: parts.message,
+        nav,
+    };
+    let Ok(body) = page.render() else {
+        return response;
+    };
+    let (mut head, _) = response.into_parts();
+    head.headers.remove(header::CONTENT_LENGTH);
+    Response::from_parts(head, axum::body::Body::from(body))
 }
 
 /// The layers every response passes, whatever route answered (or none): body limit, timeout

@@ -275,3 +275,25 @@ fn askama_escape(text: &str) -> String {
         .replace('"', "&#34;")
         .replace('\'', "&#39;")
 }
+
+#[tokio::test]
+async fn error_pages_show_the_visitors_session_links() {
+    let app = crate::helpers::spawn_demo_app().await;
+    // Anonymous (public read): the login link.
+    let (status, body) = app.get("/galaxies/no-such-galaxy").await;
+    assert_eq!(status, 404);
+    assert!(body.contains("href=\"/login\""), "{body}");
+    // Logged in: the account, submissions and log-out links on a 404 and on a 403.
+    let mut member = app.login_as(massline::auth::Role::Member).await;
+    let page = member.get("/galaxies/no-such-galaxy").await;
+    assert_eq!(page.status, 404);
+    assert!(page.body.contains("Account: "), "{}", page.body);
+    assert!(page.body.contains("action=\"/logout\""));
+    assert!(!page.body.contains("href=\"/login\""));
+    assert_eq!(page.header("content-type"), "text/html; charset=utf-8");
+    let refused = member.get("/review").await;
+    assert_eq!(refused.status, 403);
+    assert!(refused.body.contains("Account: "), "{}", refused.body);
+    // The security headers stay on the redrawn page.
+    assert!(!refused.header("content-security-policy").is_empty());
+}
