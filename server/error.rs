@@ -15,7 +15,7 @@ pub type AppResult<T> = Result<T, AppError>;
 #[derive(Debug, thiserror::Error)]
 pub enum AppError {
     /// 404: the thing named in the URL does not exist.
-    #[error("{what} was not found")]
+    #[error("{what} was not found.")]
     NotFound {
         /// Plain description of what was looked for, e.g. "galaxy 'corvane-17'".
         what: String,
