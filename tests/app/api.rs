@@ -329,12 +329,7 @@ async fn a_fit_answer_has_its_parameters_covariance_counts_and_time() {
     )
     .await
     .problem(422);
-    let fields: Vec<&str> = p["errors"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|e| e["field"].as_str().unwrap())
-        .collect();
+    let fields = crate::common::problem_fields(&p);
     assert_eq!(fields, ["method", "soi"]);
     get(&app, "/api/v1/relations/m_nothing", Some(&t))
         .await
@@ -460,12 +455,7 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
     )
     .await
     .problem(422);
-    let fields: Vec<&str> = p["errors"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|e| e["field"].as_str().unwrap())
-        .collect();
+    let fields = crate::common::problem_fields(&p);
     assert_eq!(fields, ["colour", "sigma", "mass"], "{p}");
 }
 
@@ -508,12 +498,7 @@ async fn a_batch_is_answered_in_order_and_limited_to_ten_thousand_objects() {
     )
     .await
     .problem(422);
-    let fields: Vec<&str> = p["errors"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|e| e["field"].as_str().unwrap())
-        .collect();
+    let fields = crate::common::problem_fields(&p);
     assert_eq!(fields, ["[1].sigma", "[2].band"], "{p}");
     // A key that is not a field: 422 naming it.
     let p = post_json(

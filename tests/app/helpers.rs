@@ -15,7 +15,6 @@ use massline::auth::Role;
 use massline::auth::clock::ManualClock;
 use massline::startup::AppState;
 use massline::{Application, Settings};
-use reqwest::header::HeaderMap;
 use sqlx::SqlitePool;
 use tempfile::TempDir;
 
@@ -140,34 +139,7 @@ impl TestApp {
     }
 }
 
-/// A response, read completely.
-#[derive(Debug)]
-pub(crate) struct Reply {
-    pub(crate) status: u16,
-    pub(crate) headers: HeaderMap,
-    pub(crate) body: String,
-}
-
-impl Reply {
-    /// A header's value as text ("" when missing).
-    pub(crate) fn header(&self, name: &str) -> String {
-        self.headers
-            .get(name)
-            .and_then(|v| v.to_str().ok())
-            .unwrap_or("")
-            .to_string()
-    }
-
-    /// Every Set-Cookie value.
-    pub(crate) fn set_cookies(&self) -> Vec<String> {
-        self.headers
-            .get_all("set-cookie")
-            .iter()
-            .filter_map(|v| v.to_str().ok())
-            .map(str::to_string)
-            .collect()
-    }
-}
+pub(crate) use crate::common::Reply;
 
 /// A client with its own cookie jar and the anti-forgery token of its last page.
 pub(crate) struct Browser {

@@ -138,12 +138,7 @@ async fn the_api_lists_every_invalid_field_and_keeps_401_403_415_apart() {
     let (status, headers, problem) = post_api(&app, Some(&submit), Some("k1"), &bad).await;
     assert_eq!(status, 422, "{problem}");
     assert_eq!(headers["content-type"], "application/problem+json");
-    let fields: Vec<&str> = problem["errors"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|e| e["field"].as_str().unwrap())
-        .collect();
+    let fields = crate::common::problem_fields(&problem);
     assert_eq!(
         fields,
         vec![

@@ -24,6 +24,48 @@ pub(crate) fn loud(message: &str) {
     let _ = writeln!(std::io::stderr(), "\n{line}\n{message}\n{line}");
 }
 
+/// A response, read completely.
+#[derive(Debug)]
+pub(crate) struct Reply {
+    pub(crate) status: u16,
+    pub(crate) headers: reqwest::header::HeaderMap,
+    pub(crate) body: String,
+}
+
+impl Reply {
+    /// A header's value as text ("" when missing).
+    pub(crate) fn header(&self, name: &str) -> String {
+        self.headers
+            .get(name)
+            .and_then(|v| v.to_str().ok())
+            .unwrap_or("")
+            .to_string()
+    }
+
+    /// Every Set-Cookie value.
+    pub(crate) fn set_cookies(&self) -> Vec<String> {
+        self.headers
+            .get_all("set-cookie")
+            .iter()
+            .filter_map(|v| v.to_str().ok())
+            .map(str::to_string)
+            .collect()
+    }
+}
+
+/// The `field` of every entry of a problem's `errors`, in order.
+pub(crate) fn problem_fields(problem: &serde_json::Value) -> Vec<String> {
+    problem["errors"]
+        .as_array()
+        .map(|errors| {
+            errors
+                .iter()
+                .map(|e| e["field"].as_str().unwrap_or("").to_owned())
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
 /// A client that does not follow redirects (tests look at them).
 pub(crate) fn plain_client() -> reqwest::Client {
     reqwest::Client::builder()

@@ -11,7 +11,6 @@ use std::time::{Duration, Instant};
 
 use massline::auth::clock::ManualClock;
 use massline::{Application, Settings};
-use reqwest::header::HeaderMap;
 use sha2::{Digest, Sha256};
 use sqlx::sqlite::SqliteConnectOptions;
 use sqlx::{Connection, SqliteConnection, SqlitePool};
@@ -66,24 +65,7 @@ pub(crate) async fn make_token(pool: &SqlitePool, account_id: i64, scopes: &str)
     crate::common::make_token(pool, account_id, scopes).await.0
 }
 
-/// A response, read completely.
-#[derive(Debug)]
-pub(crate) struct Reply {
-    pub(crate) status: u16,
-    pub(crate) headers: HeaderMap,
-    pub(crate) body: String,
-}
-
-impl Reply {
-    /// A header's value as text ("" when missing).
-    pub(crate) fn header(&self, name: &str) -> String {
-        self.headers
-            .get(name)
-            .and_then(|v| v.to_str().ok())
-            .unwrap_or("")
-            .to_string()
-    }
-}
+pub(crate) use crate::common::Reply;
 
 /// A client with its own cookie jar and the anti-forgery token of its last page.
 pub(crate) struct Browser {
