@@ -8,7 +8,7 @@
 #                                     last-used time written, see DEVELOPERS.md)
 #   4. POST /api/v1/place             a batch of 100 objects with the token
 #                                     (benches/api_place_batch.lua)
-# Targets (issue 8): ≥ 10,000 requests/s with p99 < 10 ms placing one object, ≥ 10,000
+# The project's targets: ≥ 10,000 requests/s with p99 < 10 ms placing one object, ≥ 10,000
 # requests/s reading a fit. Results go in DEVELOPERS.md ("API speed").
 #
 #   benches/api_load.sh [seconds per run, default 15] [connections, default 32]

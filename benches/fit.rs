@@ -1,6 +1,6 @@
 //! Timings of the fit module: `cargo bench --bench fit` (add `-- --quick` for a short run).
 //!
-//! Targets (issue 3; the scipy figures come from `benches/reference_fit.py` on the same data
+//! The project's targets (the scipy figures come from `benches/reference_fit.py` on the same data
 //! sizes): conditional ML on 60 objects ≥ 50× faster than scipy's L-BFGS-B with an analytic
 //! gradient, on 100,000 objects ≥ 2× faster; structural ML within 3× of conditional; posterior
 //! with 32 walkers × 5,000 steps on 60 objects < 100 ms; 1,000 bootstrap refits of 60 objects

@@ -1,6 +1,6 @@
 //! Server time of the pages: `cargo bench --bench pages` (add `-- --quick` for a short run).
 //!
-//! Targets (issue 7), on the invented demo catalog: a relation page whose fit is cached renders
+//! The project's targets, on the invented demo catalog: a relation page whose fit is cached renders
 //! in under 20 ms of server time, one with a fresh maximum-likelihood fit in under 200 ms, and
 //! the place page answers in under 20 ms; no page weighs more than 300 KB with its chart.
 //!
@@ -25,7 +25,7 @@ use massline::catalog::model::slugify;
 use massline::{Application, Settings};
 use tower::ServiceExt;
 
-/// Page weight limit, bytes (issue 7: 300 KB).
+/// Page weight limit, bytes (the project's limit: 300 KB).
 const MAX_PAGE_BYTES: usize = 300 * 1024;
 
 /// Every value a person could give the place page, so every relation is used and refitted.

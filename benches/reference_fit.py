@@ -5,8 +5,8 @@
 Same model and data sizes as the Rust benchmark: an invented M-sigma-like sample
 (log sigma ~ N(2.3, 0.14^2), log M = 8.3 + 4.5 (x - x0) + N(0, 0.35^2), sigma errors
 0.01-0.035 dex, mass errors 0.05-0.3 dex, every 7th object an upper limit 0.3 dex above its
-mass), pivot x0 = log10(200).  The fit minimises the conditional -2 ln L of science.md
-sections 2.1-2.2,
+mass), pivot x0 = log10(200).  The fit minimises the conditional -2 ln L of docs/methods.md
+§2.1–2.2,
 
     V_i = sy_i^2 + beta^2 sx_i^2 + eps^2,  r_i = y_i - alpha - beta d_i,
     -2 ln L = sum_det [r^2/V + ln(2 pi V)] - 2 sum_lim ln Phi(r/sqrt(V)),

@@ -28,7 +28,7 @@
 //! ```
 //!
 //! where M, δ₊ and δ₋ are in the quantity's linear unit (M☉, L☉ or km/s). This is option 1 of
-//! `science.md` §2.5 (common practice). Averaging is used because the estimators of the
+//! docs/methods.md §2.5 (common practice). Averaging is used because the estimators of the
 //! service (the maximum-likelihood fit with intrinsic scatter, FITEXY, BCES) take one Gaussian
 //! error per point; u and l are kept as well, so a split-normal likelihood (§2.5 option 2) can
 //! use them later and nothing is lost. When δ₋ ≥ M the lower end of the error bar reaches zero:
@@ -440,7 +440,7 @@ pub struct Entry {
     pub err_minus_dex: f64,
     /// Upper error, dex, ≥ 0 (0 for an upper limit or when no error was typed).
     pub err_plus_dex: f64,
-    /// Symmetric error, dex: the mean of the two (`science.md` §2.5 option 1, common
+    /// Symmetric error, dex: the mean of the two (docs/methods.md §2.5 option 1, common
     /// practice).
     pub err_dex: f64,
     /// Whether the text gave an error at all (an error of `± 0` is given; no error is not).
@@ -722,7 +722,7 @@ pub enum EntryError {
 ///
 /// # References
 ///
-/// `science.md` §2.5 option 1 (convert to dex and average; common practice).
+/// docs/methods.md §2.5 option 1 (convert to dex and average; common practice).
 pub fn parse_entry(text: &str, quantity: Quantity, scale: Scale) -> Result<Entry, EntryError> {
     let text = checked_text(text, quantity)?;
     let syntax = parse_syntax(text, quantity)?;
@@ -2151,7 +2151,7 @@ mod tests {
 
     #[test]
     fn errors_convert_to_dex_as_science_md_section_2_5_option_1() {
-        // Expected values computed with Python's math.log10 from science.md §2.5 option 1:
+        // Expected values computed with Python's math.log10 from docs/methods.md §2.5 option 1:
         // u = log10((M + δ₊)/M), l = log10(M/(M − δ₋)). For 3.2e9 +0.5e9 −0.3e9:
         // u = log10(3.7/3.2), l = log10(3.2/2.9).
         let u_32 = 0.063_051_745_747_089_02;
@@ -2227,7 +2227,7 @@ mod tests {
             assert!(entry.errors_given, "{text}");
         }
         // The symmetric error of the worked example, (u + l)/2 = 0.05290186308401945
-        // (Python, science.md §2.5 option 1).
+        // (Python, docs/methods.md §2.5 option 1).
         let entry = accept("3.2e9 +0.5e9/-0.3e9", bh, Scale::Auto);
         assert_close(entry.err_dex, 0.052_901_863_084_019_45, "mean of u and l");
         assert_eq!(entry.display_log(), "9.51 +0.06/\u{2212}0.04");

@@ -2,9 +2,9 @@
 //!
 //! The fixtures in `tests/reference/fixtures/` were written by `tests/reference/fit_reference.py`
 //! (numpy/scipy; see its docstring): invented, seeded M–σ-like samples with ~15 % upper limits,
-//! fitted there with the conditional likelihood (science notes §2.1–2.2), the K = 1 structural
-//! likelihood (Kelly 2007, ApJ 665, 1489; closed form of science notes §2.6) and BCES
-//! (Akritas & Bershady 1996, ApJ 470, 706; science notes §2.4). The Python optimum is polished
+//! fitted there with the conditional likelihood (docs/methods.md §2.1–2.2), the K = 1 structural
+//! likelihood (Kelly 2007, ApJ 665, 1489; closed form of docs/methods.md §2.6) and BCES
+//! (Akritas & Bershady 1996, ApJ 470, 706; docs/methods.md §2.4). The Python optimum is polished
 //! by Newton steps until its gradient is ~1e-9, so it is exact to far better than the 1e-6
 //! required here.
 //!
@@ -248,7 +248,7 @@ fn censored_term_matches_the_published_toy_values() {
 }
 
 /// Hogg, Bovy & Lang 2010, arXiv:1008.4686, Table 1 (x, y, σ_y, σ_x; ρ_xy ignored), as
-/// reproduced in the science notes §2.9.
+/// reproduced in docs/methods.md §2.9.
 fn hogg_table() -> Vec<Point> {
     let rows = [
         (201.0, 592.0, 61.0, 9.0),

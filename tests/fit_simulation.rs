@@ -12,8 +12,8 @@
 //! * Conditional likelihood: the slope is attenuated by about τ²/(τ² + ⟨σ_x²⟩) (regression
 //!   dilution; e.g. Akritas & Bershady 1996, §1 — from memory). Here ⟨σ_x²⟩ =
 //!   (0.01² + 0.01·0.035 + 0.035²)/3 = 5.58e-4 dex² and τ² = 0.0196, so the expected bias is
-//!   −4.5 · 5.58e-4/(0.0196 + 5.58e-4) = −0.125 [computed from that formula]; science notes §2.6
-//!   quote −0.14 ± 0.03 [C]; the issue quotes "about −0.12".
+//!   −4.5 · 5.58e-4/(0.0196 + 5.58e-4) = −0.125 [computed from that formula]; docs/methods.md §2.6
+//!   quotes −0.14 ± 0.03 [C]. The two agree within that error.
 //! * 68 % intervals from the inverse Hessian should cover the truth in 68 % of samples; with
 //!   200 samples the binomial standard error is 3.3 %, so 60–76 % (±2.5 s.e.) is accepted.
 
@@ -46,7 +46,7 @@ const THRESHOLD_ZERO_POINT: f64 = 7.69;
 /// L = 7.69 + 2 (x − x0) + N(0, 0.25²) — resolving the sphere of influence needs
 /// r_infl ∝ M/σ² above a resolution limit, hence the slope 2. The reported limit is L with
 /// the object's mass error as its own uncertainty, so that P(y < L) is exactly the censored
-/// term of the likelihoods (Tobit-type censoring; science notes §2.2). The censoring depends
+/// term of the likelihoods (Tobit-type censoring; docs/methods.md §2.2). The censoring depends
 /// only on observed quantities and independent noise, so it is ignorable.
 fn simulate(n: usize, seed: u64) -> Vec<Point> {
     let mut rng = StdRng::seed_from_u64(seed);
@@ -170,7 +170,7 @@ fn structural_is_unbiased_and_covers_while_conditional_dilutes_the_slope() {
         "structural zero-point coverage {sa:?}"
     );
     // Intrinsic scatter: the ML ε is biased low at small N (it ignores the degrees of freedom
-    // of the fitted line; science notes §2.1) — by −0.008 ± 0.004 dex here, a sixth of its
+    // of the fitted line; docs/methods.md §2.1) — by −0.008 ± 0.004 dex here, a sixth of its
     // error — and its Hessian interval still covers.
     assert!(se.bias < 0.0, "{se:?}");
     assert!(se.bias.abs() < 0.25 * se.mean_err, "{se:?}");

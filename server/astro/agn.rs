@@ -28,7 +28,7 @@ use super::validate::{finite, positive, positive_result};
 /// overflows or underflows.
 ///
 /// # References
-/// Peterson et al. 2004, ApJ 613, 682 (virial product; citation from memory); science.md §4.1.
+/// Peterson et al. 2004, ApJ 613, 682 (virial product; citation from memory); docs/methods.md §4.1.
 pub fn virial_product_msun(lag_days: f64, line_width_km_s: f64) -> Result<f64, AstroError> {
     let lag_days = positive("lag_days", lag_days)?;
     let line_width_km_s = positive("line_width_km_s", line_width_km_s)?;
@@ -136,7 +136,7 @@ impl RadiusLuminosity {
 ///
 /// # References
 /// Eddington limit for electron scattering (e.g. Frank, King & Raine 2002, *Accretion Power in
-/// Astrophysics*, 3rd ed., §1.2; from memory); science.md §4.4.
+/// Astrophysics*, 3rd ed., §1.2; from memory); docs/methods.md §4.4.
 pub fn eddington_luminosity_erg_s(mass_msun: f64) -> Result<f64, AstroError> {
     let mass_msun = positive("mass_msun", mass_msun)?;
     let per_msun_w =
@@ -275,7 +275,7 @@ mod tests {
 
     #[test]
     fn eddington_luminosity_per_solar_mass() {
-        // science.md §4.4 / §7 row 21: L_Edd/M = 1.257065e38 erg/s per M☉, computed from IAU
+        // docs/methods.md §4.4 / §7 row 21: L_Edd/M = 1.257065e38 erg/s per M☉, computed from IAU
         // 2015 GM☉ and CODATA 2018 m_p, c, σ_T.
         assert_rel(eddington_luminosity_erg_s(1.0).unwrap(), 1.257_065e38, 5e-7);
         assert_rel(
@@ -287,14 +287,14 @@ mod tests {
 
     #[test]
     fn eddington_ratio_is_one_at_the_eddington_luminosity() {
-        // λ = L_bol/L_Edd (science.md §4.4), with L_Edd of 1e7 M☉ = 1.257065e45 erg/s (computed).
+        // λ = L_bol/L_Edd (docs/methods.md §4.4), with L_Edd of 1e7 M☉ = 1.257065e45 erg/s (computed).
         assert_rel(eddington_ratio(1.257_065e45, 1.0e7).unwrap(), 1.0, 5e-7);
         assert_rel(eddington_ratio(1.257_065e44, 1.0e7).unwrap(), 0.1, 5e-7);
     }
 
     #[test]
     fn virial_product_and_mass_for_a_10_day_lag() {
-        // science.md §4.1 / §7 row 27: τ = 10 d, σ_line = 2000 km/s → VP = 7.80698e6 M☉; with
+        // docs/methods.md §4.1 / §7 row 27: τ = 10 d, σ_line = 2000 km/s → VP = 7.80698e6 M☉; with
         // ⟨f⟩ = 4.31 (Grier et al. 2013, ApJ 773, 90, from memory) → 3.365e7 M☉ (log 7.527),
         // computed from VP = c τ Δv²/G.
         let vp = virial_product_msun(10.0, 2000.0).unwrap();
@@ -306,7 +306,7 @@ mod tests {
 
     #[test]
     fn virial_mass_follows_a_changed_factor() {
-        // Recomputing with a new ⟨f⟩ only rescales the stored product (science.md §6).
+        // Recomputing with a new ⟨f⟩ only rescales the stored product (docs/methods.md §6).
         let vp = virial_product_msun(10.0, 2000.0).unwrap();
         let old = virial_mass_msun(vp, 4.31).unwrap();
         let new = virial_mass_msun(vp, 5.1).unwrap();
@@ -316,7 +316,7 @@ mod tests {
     #[test]
     fn bentz_radius_luminosity_relation() {
         // Bentz et al. 2013, ApJ 767, 149: K = 1.527 (from memory), α = 0.533 (abstract).
-        // science.md §4.2 / §7 row 28 examples, computed from the relation:
+        // docs/methods.md §4.2 / §7 row 28 examples, computed from the relation:
         // 1e43 → 9.86 lt-d, 1e44 → 33.65 lt-d, 1e45 → 114.8 lt-d.
         let relation = RadiusLuminosity::default();
         assert_eq!(relation, BENTZ_2013);
@@ -327,7 +327,7 @@ mod tests {
 
     #[test]
     fn radius_luminosity_parameters_can_be_replaced() {
-        // Kaspi et al. 2005-like slope 0.67 (science.md §4.2, abstract value) with the same
+        // Kaspi et al. 2005-like slope 0.67 (docs/methods.md §4.2, abstract value) with the same
         // intercept: one decade in L moves R by 10^0.67.
         let steeper = RadiusLuminosity {
             intercept_dex: 1.527,
@@ -356,7 +356,7 @@ mod tests {
 
     #[test]
     fn isco_radius_and_efficiency_table() {
-        // science.md §4.5 table, computed from the Bardeen, Press & Teukolsky 1972 (ApJ 178, 347)
+        // docs/methods.md §4.5 table, computed from the Bardeen, Press & Teukolsky 1972 (ApJ 178, 347)
         // formulae; a < 0 is retrograde.
         let table = [
             (0.0, 6.0, 0.057_191),
@@ -376,7 +376,7 @@ mod tests {
     #[test]
     fn extreme_spin_efficiencies_have_closed_forms() {
         // a = 1 prograde: r_isco = 1, η = 1 − 1/√3; a = 1 retrograde: r_isco = 9,
-        // η = 1 − sqrt(25/27) (science.md §4.5, from the BPT72 formulae).
+        // η = 1 − sqrt(25/27) (docs/methods.md §4.5, from the BPT72 formulae).
         assert_abs(
             radiative_efficiency(1.0).unwrap(),
             1.0 - 1.0 / 3f64.sqrt(),

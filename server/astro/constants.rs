@@ -116,41 +116,41 @@ mod tests {
 
     #[test]
     fn parsec_is_648000_over_pi_au() {
-        // science.md §7 row 24: 3.0856775814913673e16 m, computed from the IAU 2012 au
+        // docs/methods.md §7 row 24: 3.0856775814913673e16 m, computed from the IAU 2012 au
         // (IAU 2012 Resolution B2) and the IAU 2015 Resolution B2 definition.
         assert_rel(PARSEC_M, 3.085_677_581_491_367e16, 1e-15);
     }
 
     #[test]
     fn light_year_is_julian_year_of_light_travel() {
-        // science.md §7 row 25: 9 460 730 472 580 800 m, computed from c × 365.25 × 86 400 s
+        // docs/methods.md §7 row 25: 9 460 730 472 580 800 m, computed from c × 365.25 × 86 400 s
         // (IAU Julian-year rule, from memory).
         assert_rel(LIGHT_YEAR_M, 9_460_730_472_580_800.0, 1e-16);
     }
 
     #[test]
     fn parsec_is_about_3_26_light_years() {
-        // science.md §7 row 24: 1 pc = 3.261564 ly, computed from the two definitions above.
+        // docs/methods.md §7 row 24: 1 pc = 3.261564 ly, computed from the two definitions above.
         assert_rel(LIGHT_YEARS_PER_PARSEC, 3.261_564, 2e-7);
     }
 
     #[test]
     fn gravitational_constant_in_parsec_units() {
-        // science.md §5 / §7 row 26: G = 4.30091727e-3 pc M☉⁻¹ (km/s)², computed from IAU GM☉
+        // docs/methods.md §5 / §7 row 26: G = 4.30091727e-3 pc M☉⁻¹ (km/s)², computed from IAU GM☉
         // and the parsec; published elsewhere as 4.3009172706(3)e-3.
         assert_rel(G_PC_KM2_S2_PER_MSUN, 4.300_917_27e-3, 1e-9);
     }
 
     #[test]
     fn derived_solar_mass_matches_codata_g() {
-        // science.md §5: derived M☉ = GM☉/G = 1.988410e30 kg, computed from IAU 2015 B3 and
+        // docs/methods.md §5: derived M☉ = GM☉/G = 1.988410e30 kg, computed from IAU 2015 B3 and
         // CODATA 2018 G.
         assert_rel(SOLAR_MASS_KG, 1.988_410e30, 1e-6);
     }
 
     #[test]
     fn arcsec_per_radian() {
-        // science.md §3.1: θ[arcsec] = 206264.806 · r/D, computed from 648000/π.
+        // docs/methods.md §3.1: θ[arcsec] = 206264.806 · r/D, computed from 648000/π.
         assert_abs(ARCSEC_PER_RADIAN, 206_264.806, 5e-4);
     }
 

@@ -61,7 +61,7 @@ impl DistanceScaling {
     /// The exponent p in quantity ∝ D^p.
     ///
     /// # References
-    /// science.md §3.2 (physics of each measurement).
+    /// docs/methods.md §3.2 (physics of each measurement).
     pub const fn exponent(self) -> i32 {
         match self {
             Self::DynamicalMass | Self::DynamicalBulgeMass | Self::PhysicalSize => 1,
@@ -144,7 +144,7 @@ pub fn scale_factor(kind: DistanceScaling, from_mpc: f64, to_mpc: f64) -> Result
 /// [`AstroError::NotPositive`] if a distance is not a finite number greater than zero.
 ///
 /// # References
-/// science.md §3.2 (distance dependence of each quantity).
+/// docs/methods.md §3.2 (distance dependence of each quantity).
 pub fn rescale_log(
     log_value: f64,
     kind: DistanceScaling,
@@ -209,7 +209,7 @@ pub fn distance_error_dex(
 /// zero or more; otherwise as [`log_distance_error_dex`].
 ///
 /// # References
-/// science.md §3.2 (error propagation in dex).
+/// docs/methods.md §3.2 (error propagation in dex).
 pub fn total_error_dex(
     err_dex: f64,
     kind: DistanceScaling,
@@ -236,7 +236,7 @@ pub fn total_error_dex(
 /// As [`log_distance_error_dex`].
 ///
 /// # References
-/// science.md §3.2; Akritas & Bershady 1996, ApJ 470, 706 (V12 in BCES).
+/// docs/methods.md §3.2; Akritas & Bershady 1996, ApJ 470, 706 (V12 in BCES).
 pub fn distance_covariance_dex2(
     kind_y: DistanceScaling,
     kind_x: DistanceScaling,
@@ -255,7 +255,7 @@ mod tests {
 
     #[test]
     fn exponents_follow_the_physics() {
-        // science.md §3.2 table: M_dyn ∝ D, M_bulge,dyn ∝ D, L ∝ D², M_bulge,phot ∝ D²,
+        // docs/methods.md §3.2 table: M_dyn ∝ D, M_bulge,dyn ∝ D, L ∝ D², M_bulge,phot ∝ D²,
         // R_e ∝ D, σ and reverberation masses independent of D.
         use DistanceScaling::*;
         assert_eq!(DynamicalMass.exponent(), 1);
@@ -294,7 +294,7 @@ mod tests {
 
     #[test]
     fn rescale_from_16_5_to_18_mpc() {
-        // science.md §3.2 / §7 row 30: 16.5 → 18 Mpc gives M × 1.090909 and L × 1.190083
+        // docs/methods.md §3.2 / §7 row 30: 16.5 → 18 Mpc gives M × 1.090909 and L × 1.190083
         // (Δlog L = +0.0756), computed from M ∝ D, L ∝ D².
         let mass = scale_factor(DistanceScaling::DynamicalMass, 16.5, 18.0).unwrap();
         let lum = scale_factor(DistanceScaling::Luminosity, 16.5, 18.0).unwrap();
@@ -332,7 +332,7 @@ mod tests {
 
     #[test]
     fn distance_error_in_dex() {
-        // σ_logD = σ_D/(D ln 10) (science.md §3.2, first-order propagation): a 10 % distance
+        // σ_logD = σ_D/(D ln 10) (docs/methods.md §3.2, first-order propagation): a 10 % distance
         // error is 0.1/ln 10 = 0.0434294 dex.
         let sigma_log_d = log_distance_error_dex(20.0, 2.0).unwrap();
         assert_rel(sigma_log_d, 0.043_429_448, 1e-8);
@@ -346,7 +346,7 @@ mod tests {
             2.0 * sigma_log_d,
             1e-15,
         );
-        // Quadrature: σ_tot² = σ_meas² + (p σ_logD)² (science.md §3.2).
+        // Quadrature: σ_tot² = σ_meas² + (p σ_logD)² (docs/methods.md §3.2).
         let total = total_error_dex(0.1, DistanceScaling::Luminosity, 20.0, 2.0).unwrap();
         assert_rel(total * total, 0.01 + 4.0 * sigma_log_d * sigma_log_d, 1e-14);
         // No distance error: the measurement error is returned unchanged.
@@ -359,7 +359,7 @@ mod tests {
 
     #[test]
     fn shared_distance_correlates_mass_and_luminosity() {
-        // science.md §3.2: cov(log M, log L) = 2 σ_logD² for M ∝ D, L ∝ D² (computed).
+        // docs/methods.md §3.2: cov(log M, log L) = 2 σ_logD² for M ∝ D, L ∝ D² (computed).
         use DistanceScaling::*;
         let sigma_log_d = log_distance_error_dex(20.0, 2.0).unwrap();
         let var = sigma_log_d * sigma_log_d;

@@ -200,7 +200,7 @@ mod tests {
 
     #[test]
     fn radius_and_angle_for_1e8_msun_at_200_km_s() {
-        // science.md §3.1 / §7 row 23: M = 1e8 M☉, σ = 200 km/s → r_infl = 10.7523 pc and
+        // docs/methods.md §3.1 / §7 row 23: M = 1e8 M☉, σ = 200 km/s → r_infl = 10.7523 pc and
         // θ = 0.22178″ at 10 Mpc, computed from r_infl = G M/σ² (Peebles 1972).
         let radius_pc = influence_radius_pc(1.0e8, 200.0).unwrap();
         assert_rel(radius_pc, 10.7523, 5e-6);
@@ -209,7 +209,7 @@ mod tests {
 
     #[test]
     fn radius_and_angle_for_1e6_msun_at_100_km_s() {
-        // science.md §3.1: M = 1e6, σ = 100 km/s, D = 1 Mpc → 0.4301 pc, 0.08871″, computed
+        // docs/methods.md §3.1: M = 1e6, σ = 100 km/s, D = 1 Mpc → 0.4301 pc, 0.08871″, computed
         // from r_infl = G M/σ²; de Zeeuw 2001 quotes "~0.4 pc" for this scaling.
         let soi =
             SphereOfInfluence::new(1.0e6, 100.0, 1.0, None, DEFAULT_RESOLVED_THRESHOLD).unwrap();
@@ -234,7 +234,7 @@ mod tests {
 
     #[test]
     fn resolution_flag_follows_the_threshold() {
-        // θ_infl = 0.22178″ (science.md §7 row 23): resolved by 0.1″ data, not by 0.5″ data.
+        // θ_infl = 0.22178″ (docs/methods.md §7 row 23): resolved by 0.1″ data, not by 0.5″ data.
         let sharp = SphereOfInfluence::new(1.0e8, 200.0, 10.0, Some(0.1), 1.0).unwrap();
         assert_rel(sharp.ratio.unwrap(), 2.2178, 2e-5);
         assert_eq!(sharp.resolved, Some(true));
@@ -269,7 +269,7 @@ mod tests {
 
     #[test]
     fn angular_size_does_not_depend_on_distance_for_dynamical_masses() {
-        // science.md §3.2: θ_infl = G M/(σ² D) with M ∝ D is independent of D
+        // docs/methods.md §3.2: θ_infl = G M/(σ² D) with M ∝ D is independent of D
         // (physics; rescaling the distance does not change resolvedness).
         let before = SphereOfInfluence::from_log_mbh(8.3, 180.0, 16.5, Some(0.1), 1.0).unwrap();
         for new_distance_mpc in [0.8, 5.0, 18.0, 40.0, 250.0] {

@@ -51,7 +51,7 @@ pub fn circular_speed_km_s(v_obs_km_s: f64, inclination_deg: f64) -> Result<f64,
 /// overflows or underflows.
 ///
 /// # References
-/// Newtonian circular orbit, `v_c² = G M(<r) / r` (textbook physics; science.md §4.6).
+/// Newtonian circular orbit, `v_c² = G M(<r) / r` (textbook physics; docs/methods.md §4.6).
 pub fn keplerian_mass_msun(v_c_km_s: f64, radius_pc: f64) -> Result<f64, AstroError> {
     let v_c_km_s = positive("v_c_km_s", v_c_km_s)?;
     let radius_pc = positive("radius_pc", radius_pc)?;
@@ -112,7 +112,7 @@ mod tests {
 
     #[test]
     fn mass_inside_10_pc_at_100_km_s() {
-        // science.md §4.6: v_c = 100 km/s at r = 10 pc → 2.325085e7 M☉, computed from
+        // docs/methods.md §4.6: v_c = 100 km/s at r = 10 pc → 2.325085e7 M☉, computed from
         // M = v_c² r / G.
         assert_rel(keplerian_mass_msun(100.0, 10.0).unwrap(), 2.325_085e7, 5e-7);
         assert_rel(
@@ -125,7 +125,7 @@ mod tests {
     #[test]
     fn inclination_deprojects_the_speed() {
         // v_obs = 50 km/s at i = 30° is v_c = 100 km/s (sin 30° = 1/2), so the same mass as above
-        // (science.md §4.6, computed).
+        // (docs/methods.md §4.6, computed).
         assert_rel(circular_speed_km_s(50.0, 30.0).unwrap(), 100.0, 1e-14);
         assert_rel(
             enclosed_mass_msun(50.0, 30.0, 10.0).unwrap(),

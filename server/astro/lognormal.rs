@@ -24,7 +24,7 @@ use super::validate::{finite_result, non_negative, positive_result};
 /// dex).
 ///
 /// # References
-/// Mean of the lognormal distribution (textbook statistics); science.md §6 (black-hole mass
+/// Mean of the lognormal distribution (textbook statistics); docs/methods.md §6 (black-hole mass
 /// function).
 pub fn lognormal_mean_factor(scatter_dex: f64) -> Result<f64, AstroError> {
     let offset_dex = lognormal_mean_offset_dex(scatter_dex)?;
@@ -54,7 +54,7 @@ mod tests {
 
     #[test]
     fn factors_for_published_scatters() {
-        // science.md §6: ⟨M⟩ = 10^(α+βx) exp(½(ε ln 10)²) → ×1.269 for ε = 0.3 and ×1.671 for
+        // docs/methods.md §6: ⟨M⟩ = 10^(α+βx) exp(½(ε ln 10)²) → ×1.269 for ε = 0.3 and ×1.671 for
         // ε = 0.44 (Gültekin et al. 2009, ApJ 698, 198, all-galaxy scatter), computed.
         assert_rel(lognormal_mean_factor(0.3).unwrap(), 1.269, 5e-4);
         assert_rel(lognormal_mean_factor(0.44).unwrap(), 1.671, 5e-4);

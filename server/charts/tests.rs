@@ -508,7 +508,7 @@ fn the_line_passes_through_the_pivot_at_alpha() {
 #[test]
 fn every_vertex_of_a_curved_line_lies_on_the_relation() {
     // Log-quadratic relation (β₂ as in Wyithe 2006, MNRAS 365, 1082: β = 4.2, β₂ = 1.6 on the
-    // pivot-200 km/s scale, values as quoted in the project's science notes).
+    // pivot-200 km/s scale, from memory; docs/methods.md §1.1).
     let mut chart = small_chart();
     let line = LineSpec {
         alpha: 8.3,
@@ -1036,7 +1036,7 @@ fn relation_snapshot_structure() {
     // Group 0 filled circles, group 1 open squares.
     assert!(svg.contains("<circle class=\"mk\""));
     assert!(svg.contains("fill=\"#FFFFFF\" stroke=\"#D0701A\""));
-    // Comfortably under the page budget of issue 7 (300 KB per page with its chart).
+    // Comfortably under the project's page budget (300 KB per page with its chart).
     assert!(svg.len() < 40_000, "{} bytes", svg.len());
 }
 
@@ -1131,7 +1131,7 @@ fn residual_range_always_shows_zero_and_the_band() {
 #[test]
 fn relation_formula_matches_the_power_law() {
     // y = α + β (x − x₀): with MM13's M–σ fit (α = 8.32, β = 5.64, pivot 200 km/s; McConnell &
-    // Ma 2013, ApJ 764, 184, as quoted in the science notes), at σ = 200 × 10^0.1 km/s the
+    // Ma 2013, ApJ 764, 184, docs/methods.md §7 row 7), at σ = 200 × 10^0.1 km/s the
     // relation gives 8.32 + 0.564 = 8.884 (computed from the formula).
     let line = LineSpec {
         alpha: 8.32,

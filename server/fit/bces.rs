@@ -69,7 +69,7 @@ pub fn line_index(line: BcesLine) -> usize {
 ///
 /// # References
 /// Akritas & Bershady 1996, ApJ 470, 706, §2 and appendix; Isobe et al. 1990, ApJ 364, 104
-/// (the bisector and orthogonal slopes); science notes §2.4.
+/// (the bisector and orthogonal slopes); docs/methods.md §2.4.
 pub(crate) fn all_lines(data: &Data) -> Result<BcesAll, FitError> {
     let n = data.n() as f64;
     let xm = data.d.iter().sum::<f64>() / n;
@@ -218,7 +218,7 @@ fn checked(points: &[Point], spec: &FitSpec) -> Result<Data, FitError> {
 /// [`super::fit`].
 ///
 /// # References
-/// Akritas & Bershady 1996, ApJ 470, 706; science notes §2.4 (the ε estimate, common practice).
+/// Akritas & Bershady 1996, ApJ 470, 706; docs/methods.md §2.4 (the ε estimate, common practice).
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let data = checked(points, spec)?;
     let all = all_lines(&data)?;

@@ -4,7 +4,7 @@
 //! **It underestimates the slope when the x errors matter** (regression dilution): the observed
 //! x is treated as if it were the true x, so when σ_x is not small compared to the spread of
 //! the true x, |β| is biased towards 0 (on simulated M–σ samples with σ errors of 0.01–0.035
-//! dex, by about −0.14 in β; science notes §2.6). Use [`super::structural`] in that case.
+//! dex, by about −0.14 in β; docs/methods.md §2.6). Use [`super::structural`] in that case.
 
 use nalgebra::DMatrix;
 
@@ -743,7 +743,7 @@ impl Objective for Model {
 ///
 /// # References
 /// Gültekin et al. 2009, ApJ 698, 198 (ML with intrinsic scatter and censored limits);
-/// Tremaine et al. 2002, ApJ 574, 740 (the variance V_i); science notes §2.1, §2.2, §2.7.
+/// Tremaine et al. 2002, ApJ 574, 740 (the variance V_i); docs/methods.md §2.1, §2.2, §2.7.
 pub fn fit(points: &[super::Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let model = Model::new(points, spec)?;
     fit_model(&model, spec)

@@ -134,7 +134,7 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
 /// [`FitError::TooFewPoints`] when the sample has exactly the minimum number of detections).
 ///
 /// # References
-/// Cook 1977, Technometrics 19, 15 (influence of single observations); science notes §6.
+/// Cook 1977, Technometrics 19, 15 (influence of single observations); docs/methods.md §6.
 pub fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Influence>, FitError> {
     let full = super::fit(points, spec)?;
     let cab = [
@@ -254,7 +254,7 @@ mod tests {
 
     #[test]
     fn a_shared_distance_covariance_enters_the_z_score() {
-        // z = r / √(s_pred² + σ_y² − 2 β σ_xy), science notes §3.2 (a shared distance error makes
+        // z = r / √(s_pred² + σ_y² − 2 β σ_xy), docs/methods.md §3.2 (a shared distance error makes
         // the x and y errors covary); values computed from the formula.
         let fit = Fit::given_line(
             super::super::FitSpec::new(super::super::Method::Conditional, 11.0),

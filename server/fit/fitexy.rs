@@ -164,7 +164,7 @@ fn minimise(data: &Data, e2: f64, scale: f64, y_center: f64) -> (f64, f64, f64) 
 ///
 /// # References
 /// Tremaine et al. 2002, ApJ 574, 740, §3 (eq. 9 and the χ²/(N − 2) = 1 rule); Press et al.
-/// 1992, *Numerical Recipes* (2nd ed.), §15.3 (FITEXY); science notes §2.3.
+/// 1992, *Numerical Recipes* (2nd ed.), §15.3 (FITEXY); docs/methods.md §2.3.
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
     fit_inner(points, spec, None)
 }

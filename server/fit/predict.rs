@@ -334,14 +334,14 @@ mod tests {
         let p = predict(&g09, 2.0, 0.0).expect("predict");
         assert!((p.sd_dex - 0.44).abs() < 1e-12);
         assert!((p.interval95.1 - p.log_mbh - 1.959_964 * 0.44).abs() < 1e-6);
-        // An x error of 0.02 dex adds β² σ_x² (science notes §6).
+        // An x error of 0.02 dex adds β² σ_x² (docs/methods.md §6).
         let p = predict(&g09, 2.0, 0.02).expect("predict");
         assert!((p.sd_dex - 0.44_f64.hypot(4.24 * 0.02)).abs() < 1e-12);
     }
 
     #[test]
     fn prediction_variance_uses_the_parameter_covariance() {
-        // s_pred² = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) (science notes §6).
+        // s_pred² = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) (docs/methods.md §6).
         let mut f = published(8.12, 4.24, 0.3);
         f.cov = vec![
             vec![0.0064, -0.002, 0.0],

@@ -982,7 +982,7 @@ mod newton {
 ///
 /// # References
 /// Kelly 2007, ApJ 665, 1489, §4 (eqs. 16–17 for the mixture marginal) and §5.1 (censoring);
-/// science notes §2.6; Golub & Welsch 1969, Math. Comp. 23, 221 (quadrature).
+/// docs/methods.md §2.6; Golub & Welsch 1969, Math. Comp. 23, 221 (quadrature).
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let model = Model::new(points, spec)?;
     fit_model(&model, spec)
@@ -1200,7 +1200,7 @@ mod tests {
             "{xm:?}"
         );
         // The conditional likelihood on the same sample dilutes the slope: with reliability
-        // τ²/(τ² + σx²) = 0.941 its slope is biased low by about 0.3 (science notes §2.1/§2.6).
+        // τ²/(τ² + σx²) = 0.941 its slope is biased low by about 0.3 (docs/methods.md §2.1/§2.6).
         let c = fit_any(&pts, &FitSpec::new(Method::Conditional, s.pivot)).expect("fit");
         assert!(
             c.params.beta < p.beta - 0.1,
@@ -1212,7 +1212,7 @@ mod tests {
 
     #[test]
     fn structural_with_upper_limits_recovers_the_relation() {
-        // 15 % upper limits (as in science notes §2.6's simulation), truth α 8.3, β 5, ε 0.3.
+        // 15 % upper limits (as in docs/methods.md §2.6's simulation), truth α 8.3, β 5, ε 0.3.
         let s = Sim {
             limit_fraction: 0.15,
             seed: 7,

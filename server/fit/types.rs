@@ -323,7 +323,7 @@ impl FitSpec {
     /// ```
     ///
     /// # References
-    /// Wyithe 2006, MNRAS 365, 1082 (quadratic); science notes §2.7 (plane).
+    /// Wyithe 2006, MNRAS 365, 1082 (quadratic); docs/methods.md §2.7 (plane).
     pub fn with_shape(mut self, shape: Shape) -> Result<FitSpec, FitError> {
         self.shape = shape;
         Ok(self)

@@ -6,7 +6,7 @@
 //!   method, sphere of influence, σ definition), read from query parameters.
 //! * [`build_sample`]: the catalog's adopted values turned into [`crate::fit::Point`]s, rescaled
 //!   to the adopted distance, with the distance error added in quadrature and the x–y error
-//!   covariance a shared distance induces (science notes §3.2).
+//!   covariance a shared distance induces (docs/methods.md §3.2).
 //! * [`FitCache`] and [`fitted`]: fits keyed by (catalog version, relation, estimator, filter,
 //!   pivot), computed off the async runtime; a new catalog version makes every old key unused.
 //! * [`RunRegistry`]: bootstrap and posterior runs in the background, with progress; the

@@ -1,6 +1,6 @@
 //! Turning the catalog's adopted values into a fit sample.
 //!
-//! # Values, errors and covariances (science notes §3.2)
+//! # Values, errors and covariances (docs/methods.md §3.2)
 //!
 //! ```text
 //! y      = log M_BH + p_y log10(D / D_src)                 rescaled to the adopted distance D
@@ -28,7 +28,7 @@ use crate::fit::Point;
 
 use super::{Relation, SampleFilter, SoiChoice};
 
-/// How a stored measurement scales with distance (science notes §3.2): dynamical masses ∝ D,
+/// How a stored measurement scales with distance (docs/methods.md §3.2): dynamical masses ∝ D,
 /// luminosities and photometric bulge masses ∝ D², dispersions and reverberation masses not at
 /// all.
 pub fn distance_scaling(quantity: &str, method: &str) -> DistanceScaling {
@@ -46,7 +46,7 @@ pub fn distance_scaling(quantity: &str, method: &str) -> DistanceScaling {
 /// Unchanged when the source distance is unknown or the quantity does not depend on distance.
 ///
 /// ```text
-/// log Q_D = log Q_src + p log10(D / D_src)      (science notes §3.2)
+/// log Q_D = log Q_src + p log10(D / D_src)      (docs/methods.md §3.2)
 /// ```
 pub fn at_adopted_distance(
     log_value: f64,
@@ -351,7 +351,7 @@ mod tests {
         // Science notes §3.2 / §7 row 30: 16.5 → 18 Mpc multiplies a dynamical mass by
         // 1.090909 (computed from M ∝ D).
         close(10f64.powf(p.y - 8.0), 1.090_909, 1e-6);
-        // σ_logD = 1.8 / (18 ln 10); σ_y = √(0.1² + σ_logD²) (science notes §3.2, computed).
+        // σ_logD = 1.8 / (18 ln 10); σ_y = √(0.1² + σ_logD²) (docs/methods.md §3.2, computed).
         let sld = 1.8 / (18.0 * LN_10);
         close(p.y_err, (0.01 + sld * sld).sqrt(), 1e-12);
         // σ does not depend on distance: its error is as measured and the covariance is zero.
@@ -364,7 +364,7 @@ mod tests {
     fn bulge_masses_and_luminosities_share_the_distance_error() {
         let r = row("Alpha 1");
         let sld = 1.8 / (18.0 * LN_10);
-        // Photometric bulge mass ∝ D², dynamical M_BH ∝ D: cov = 1·2·σ_logD² (science notes
+        // Photometric bulge mass ∝ D², dynamical M_BH ∝ D: cov = 1·2·σ_logD² (docs/methods.md
         // §3.2, computed).
         let s = build_sample(
             std::slice::from_ref(&r),
@@ -477,7 +477,7 @@ mod tests {
         spiral.mbh_method = Some("maser".to_owned());
         let mut unresolved = row("Blur 1");
         // M = 1e8 at 16.5 Mpc rescaled, σ = 200 km/s, D = 18 Mpc: θ ≈ 0.13″ (computed from
-        // r_infl = G M/σ², science notes §3.1); a 0.8″ resolution does not resolve it.
+        // r_infl = G M/σ², docs/methods.md §3.1); a 0.8″ resolution does not resolve it.
         unresolved.mbh_resolution_arcsec = Some(0.8);
         let mut no_mass = row("Empty 1");
         no_mass.log_mbh = None;
@@ -523,7 +523,7 @@ mod tests {
 
     #[test]
     fn rescaling_follows_the_quantity_kind() {
-        // Distance rescale 16.5 → 18 Mpc: M × 1.090909, L × 1.190083 (science notes §7 row 30,
+        // Distance rescale 16.5 → 18 Mpc: M × 1.090909, L × 1.190083 (docs/methods.md §7 row 30,
         // computed from the scaling laws of §3.2).
         let m = at_adopted_distance(8.0, "bh_mass", "stellar_dynamics", Some(16.5), 18.0);
         assert!((10f64.powf(m - 8.0) - 1.090_909).abs() < 1e-6);
@@ -538,7 +538,7 @@ mod tests {
     fn sphere_of_influence_is_skipped_for_reverberation_and_missing_sigma() {
         assert!(sphere_of_influence(8.0, "reverberation", Some(2.3), 10.0, None, 1.0).is_none());
         assert!(sphere_of_influence(8.0, "gas_dynamics", None, 10.0, Some(0.1), 1.0).is_none());
-        // M = 1e8 M☉, σ = 200 km/s, D = 10 Mpc → θ = 0.22178″ (science notes §7 row 23,
+        // M = 1e8 M☉, σ = 200 km/s, D = 10 Mpc → θ = 0.22178″ (docs/methods.md §7 row 23,
         // computed).
         let soi = sphere_of_influence(
             8.0,

@@ -14,7 +14,7 @@
 //! r = y − ŷ,  z = r / √(s_pred² + σ_y² − 2 β σ_xy)            (σ_xy = 0 for typed values)
 //! limit: P(true log M_BH < y_lim) = Φ((y_lim − ŷ) / s_pred)
 //! verdict: |z| < 2 consistent, 2 ≤ |z| < 3 in tension, |z| ≥ 3 outlier (common practice,
-//! science notes §6)
+//! docs/methods.md §6)
 //! ```
 
 use askama::Template;
@@ -32,9 +32,9 @@ use crate::relations::{FitOutcome, Relation, SampleFilter, fitted};
 use crate::startup::AppState;
 use crate::units::{Entry, LinearEntry, Quantity, Scale, parse_entry, parse_linear};
 
-/// |z| from which an object is "in tension" with a relation (common practice, science notes §6).
+/// |z| from which an object is "in tension" with a relation (common practice, docs/methods.md §6).
 pub(crate) const TENSION_Z: f64 = 2.0;
-/// |z| from which an object is an outlier (common practice, science notes §6).
+/// |z| from which an object is an outlier (common practice, docs/methods.md §6).
 pub(crate) const OUTLIER_Z: f64 = 3.0;
 
 const PLACE_PARAMS: &str = "sigma, bulge_mass, luminosity, band, mass, distance, resolution";
@@ -210,7 +210,7 @@ pub(crate) struct PlacePage {
     nothing_usable: bool,
 }
 
-/// A verdict for a z-score (thresholds: common practice, science notes §6).
+/// A verdict for a z-score (thresholds: common practice, docs/methods.md §6).
 pub(crate) fn verdict(z: f64, upper_limit: bool) -> &'static str {
     if upper_limit {
         // A limit above the prediction says nothing against the relation.
@@ -527,10 +527,10 @@ pub(crate) struct PlacementNumbers {
 /// ```text
 /// ŷ, s_pred                      fit::predict / fit::predict_plane
 /// r = y − ŷ
-/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (science notes §3.2)
+/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (docs/methods.md §3.2)
 /// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
 /// ```
-/// dex throughout; verdict thresholds in [`verdict`] (common practice, science notes §6).
+/// dex throughout; verdict thresholds in [`verdict`] (common practice, docs/methods.md §6).
 ///
 /// # Errors
 /// The prediction's [`fit::FitError`] (non-finite or negative input, a plane without x2).
@@ -577,7 +577,7 @@ pub(crate) fn placement_numbers(
 /// ```text
 /// ŷ, s_pred                      fit::predict / fit::predict_plane
 /// r = y − ŷ
-/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (science notes §3.2)
+/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (docs/methods.md §3.2)
 /// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
 /// ```
 /// dex throughout; verdict thresholds in [`verdict`].
@@ -776,7 +776,7 @@ mod tests {
 
     #[test]
     fn verdicts_follow_the_stated_thresholds() {
-        // Common practice (science notes §6): |z| < 2 consistent, 2–3 tension, ≥ 3 outlier.
+        // Common practice (docs/methods.md §6): |z| < 2 consistent, 2–3 tension, ≥ 3 outlier.
         assert_eq!(verdict(1.99, false), "consistent");
         assert_eq!(verdict(-2.0, false), "in tension");
         assert_eq!(verdict(3.0, false), "outlier");

@@ -27,7 +27,7 @@ use crate::relations::{
 use crate::startup::AppState;
 use crate::units::round_to_uncertainty;
 
-/// |z| at which an object is listed as an outlier (common practice: science notes §6).
+/// |z| at which an object is listed as an outlier (common practice: docs/methods.md §6).
 pub(crate) const OUTLIER_Z: f64 = 2.0;
 /// How many of the most influential objects are listed.
 const TOP_INFLUENCE: usize = 5;
@@ -834,7 +834,7 @@ fn groups_of(grouping: Grouping, members: &[Member]) -> (Vec<Group>, Vec<usize>)
 /// ```text
 /// Var ŷ(x) = Var(α) + d² Var(β) + 2 d Cov(α, β),   d = x − x0
 /// ```
-/// (science notes §6, the parameter part of the prediction variance; dex²).
+/// (docs/methods.md §6, the parameter part of the prediction variance; dex²).
 pub(crate) fn mean_band(fit: &Fit, x_min: f64, x_max: f64) -> Vec<BandPoint> {
     if !(x_min.is_finite() && x_max.is_finite() && x_max > x_min) {
         return Vec::new();

@@ -630,7 +630,7 @@ pub(crate) async fn assess(
             galaxy.distance_mpc,
         )
     };
-    // The adopted distance's error enters as in the fit samples (science notes §3.2): in
+    // The adopted distance's error enters as in the fit samples (docs/methods.md §3.2): in
     // quadrature on each distance-dependent value, and as the x–y covariance of the two.
     let sigma_log_d =
         log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc).unwrap_or(0.0);

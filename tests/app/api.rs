@@ -366,7 +366,7 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
     let r = &rows[0];
     assert_eq!(r["relation"], "m_sigma");
     // ŷ = α + β d, s_pred² = ε² + Var α + d² Var β + 2 d Cov(α, β) + β² σ_x²
-    // (computed from the prediction formula, science notes §6).
+    // (computed from the prediction formula, docs/methods.md §6).
     let x = 250f64.log10();
     let x_err = r["x_err_dex"].as_f64().unwrap();
     let d = x - massline::relations::SIGMA_PIVOT_LOG;
@@ -401,7 +401,7 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
     };
     assert_eq!(r["verdict"], verdict);
     assert!(r["prob_below_limit"].is_null());
-    // The sphere of influence: r_infl = G M / σ² (science notes; ≈ 68.7 pc for 10^9 M☉ at
+    // The sphere of influence: r_infl = G M / σ² (docs/methods.md §3.1; ≈ 68.7 pc for 10^9 M☉ at
     // 250 km/s, computed from G = 4.3009e-3 pc M☉⁻¹ (km/s)², and θ = r / D).
     let soi = &v["object"]["sphere_of_influence"];
     let radius = soi["radius_pc"].as_f64().unwrap();

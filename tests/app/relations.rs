@@ -212,7 +212,7 @@ async fn the_place_page_predicts_and_judges_an_object() {
         "{predicted} vs α = {alpha}"
     );
     assert!(!body.contains("NaN"));
-    // A mass 2 dex above the line is an outlier (|z| ≥ 3: common practice, science notes §6).
+    // A mass 2 dex above the line is an outlier (|z| ≥ 3: common practice, docs/methods.md §6).
     let mass = 10f64.powf(alpha + 2.0);
     let body = app
         .ok(&format!(

@@ -532,7 +532,7 @@ fn m_sigma_residual_z(body: &str) -> (f64, f64) {
 #[tokio::test]
 async fn the_distance_error_widens_the_z_of_a_submission() {
     // A mass above M–σ at 20 Mpc; the same with a distance known to 1 % and to 40 %. The
-    // distance error enters the mass error in quadrature (science notes §3.2: σ_logD = σ_D /
+    // distance error enters the mass error in quadrature (docs/methods.md §3.2: σ_logD = σ_D /
     // (D ln 10), p = 1 for a dynamical mass, 0 for σ), so the second |z| is smaller.
     let app = spawn_demo_app().await;
     let mut member = app.login_as(Role::Member).await;
@@ -558,7 +558,7 @@ async fn the_distance_error_widens_the_z_of_a_submission() {
     assert!(z0 > 2.0, "a mass far above the relation: z = {z0}");
     assert!(z1 < z0, "a 40 % distance error lowers z: {shown:?}");
     // z = r / √V; the larger distance error adds Δ = σ_logD₁² − σ_logD₀² to V, with
-    // σ_logD = σ_D / (D ln 10) (science notes §3.2) and exponent 1 for a dynamical mass (σ has
+    // σ_logD = σ_D / (D ln 10) (docs/methods.md §3.2) and exponent 1 for a dynamical mass (σ has
     // none, so no covariance term). Shown values are rounded (z to 0.1, r to 0.01): compare
     // within that.
     let sigma_log_d = |err_mpc: f64| err_mpc / (20.0 * std::f64::consts::LN_10);

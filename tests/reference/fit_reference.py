@@ -6,11 +6,11 @@ log10(200), slope about 4.5, intrinsic scatter about 0.35 dex, x errors 0.01-0.0
 y errors 0.05-0.3 dex, about 15 % upper limits), fits them with
 
 * the conditional likelihood (errors in both coordinates + intrinsic scatter, censored
-  upper limits; science.md sections 2.1-2.2; Gultekin et al. 2009 style),
+  upper limits; docs/methods.md §2.1–2.2; Gultekin et al. 2009 style),
 * the structural likelihood with one Gaussian for the true x (Kelly 2007, ApJ 665, 1489,
-  closed form of science.md section 2.6, upper limits with the x density kept),
+  closed form of docs/methods.md §2.6, upper limits with the x density kept),
 * BCES (Akritas & Bershady 1996, ApJ 470, 706; the four lines and the analytic
-  variances of science.md section 2.4) on samples without limits,
+  variances of docs/methods.md §2.4) on samples without limits,
 
 and writes tests/reference/fixtures/<name>.json with the sample, the point estimates,
 -2 ln L and the numpy/scipy versions used.  The code shares nothing with massline: the
@@ -97,7 +97,7 @@ def arrays(points):
 
 
 def conditional_neg2(theta, data):
-    """-2 ln L of y given the observed x (science.md 2.1-2.2).
+    """-2 ln L of y given the observed x (docs/methods.md §2.1–2.2).
 
     V_i = sy^2 + beta^2 sx^2 - 2 beta sxy + eps^2;
     detections: r^2/V + ln(2 pi V); limits: -2 ln Phi(r / sqrt(V)), r = y - alpha - beta d.
@@ -113,7 +113,7 @@ def conditional_neg2(theta, data):
 
 
 def structural_neg2(theta, data):
-    """-2 ln L of the K = 1 Kelly (2007) model (science.md 2.6), x density included.
+    """-2 ln L of the K = 1 Kelly (2007) model (docs/methods.md §2.6), x density included.
 
     Detection: (x, y) ~ N2((mu, alpha + beta m), [[tau^2 + sx^2, beta tau^2 + sxy],
                                                 [beta tau^2 + sxy, beta^2 tau^2 + eps^2 + sy^2]])
@@ -236,7 +236,7 @@ def fit_structural(points):
 
 
 def bces(points):
-    """BCES (Akritas & Bershady 1996) with the analytic variances of science.md 2.4."""
+    """BCES (Akritas & Bershady 1996) with the analytic variances of docs/methods.md §2.4."""
     X, sx, Y, sy, v12, lim = arrays(points)
     assert not lim.any()
     n = len(X)

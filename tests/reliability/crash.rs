@@ -25,7 +25,7 @@ use crate::support::{
     new_galaxy_form, open_file,
 };
 
-/// Rows in the bulk import (the figure).
+/// Rows in the bulk import (the size of a large group upload; the project's reliability target).
 const BATCH_ROWS: usize = 50_000;
 /// Rows per galaxy in the batch.
 const ROWS_PER_GALAXY: usize = 10;
