@@ -79,7 +79,7 @@ fn benches(c: &mut Criterion) {
     let app = runtime
         .block_on(Application::build(settings))
         .expect("the app builds");
-    let router = massline::web::router(app.state());
+    let router = massline::startup::app(app.state());
     let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).expect("the demo parses");
     let galaxy = format!("/galaxies/{}", slugify(&demo.galaxies[0].name));
 

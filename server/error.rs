@@ -1,78 +1,301 @@
-//! One error type for the web layer, rendered as a readable HTML page.
+//! One error type for every door.
 //!
-//! Handlers return `Result<Page, AppError>`. Each variant's doc names the status it becomes.
-//! Causes of internal errors are logged with their whole chain, but only a generic sentence goes
-//! back to the browser (no SQL or file paths leak into pages).
+//! Handlers, the domain functions they call and the request layers return [`AppError`]. Each
+//! variant's doc names the HTTP status it becomes. An `AppError` turned into a response is only
+//! a status and the error itself, kept in the response's extensions ([`ErrorResponse`]); the door
+//! that owns the path draws it — `web` as an HTML page with the visitor's session links, `api` as
+//! RFC 9457 problem details — and the router's error layer logs it, once
+//! (`router::render_errors`). So a handler never decides the format, and no layer rewrites a
+//! finished answer.
+//!
+//! Internal causes are kept for the log; only a generic sentence goes out.
 
-use askama::Template;
+use std::sync::Arc;
+
 use axum::http::{HeaderValue, StatusCode, header};
-use axum::response::{Html, IntoResponse, Response};
+use axum::response::{IntoResponse, Response};
+use serde::Serialize;
 
-/// Result alias for handlers.
+pub use crate::catalog::intake::sentence;
+
+/// Result alias for handlers and the domain functions they call.
 pub type AppResult<T> = Result<T, AppError>;
+
+/// One field at fault, named as the caller sent it (a form field, a query parameter, or a JSON
+/// path such as `measurements[2].value`).
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+pub struct FieldError {
+    /// The field, e.g. `measurements[0].value`.
+    pub field: String,
+    /// One sentence saying what is wrong.
+    pub message: String,
+}
+
+impl FieldError {
+    /// A field error.
+    pub fn new(field: impl Into<String>, message: impl Into<String>) -> Self {
+        Self {
+            field: field.into(),
+            message: message.into(),
+        }
+    }
+}
 
 /// What can go wrong while answering a request.
 #[derive(Debug, thiserror::Error)]
 pub enum AppError {
-    /// 404: the thing named in the URL does not exist.
-    #[error("{what} was not found.")]
-    NotFound {
-        /// Plain description of what was looked for, e.g. "galaxy 'corvane-17'".
-        what: String,
-    },
-    /// 400: the request's parameters cannot be understood; the message says which and why.
+    /// 400: the request cannot be read as sent; the message says what and how to send it.
     #[error("{message}")]
     BadRequest {
+        /// A short title for problem details (`None`: "Bad request").
+        title: Option<&'static str>,
         /// One sentence per problem, naming the parameter.
         message: String,
+        /// The fields at fault, when they can be named.
+        fields: Vec<FieldError>,
     },
-    /// 403: logged in, but this action is not theirs to take; the message says why.
+    /// 401: nobody is logged in (pages send the visitor to the login page).
+    #[error("{message}")]
+    NotLoggedIn {
+        /// What the endpoint needs.
+        message: String,
+    },
+    /// 401: an `Authorization` header was sent, but its token is not valid.
+    #[error("The API token is not valid: unknown, revoked, or its account is disabled.")]
+    BadToken,
+    /// 403: known, but this action is not theirs to take; the message says why.
     #[error("{message}")]
     Forbidden {
         /// One sentence.
         message: String,
     },
-    /// 503: the database is busy (another writer held the lock for longer than the busy timeout).
-    /// Nothing was written; the client may retry.
-    #[error("the catalog is busy; nothing was changed, please try again in a moment")]
+    /// 404: the thing named in the address does not exist (or is not theirs to see).
+    #[error("{message}")]
+    NotFound {
+        /// One sentence, e.g. "There is no galaxy 'corvane-17'."
+        message: String,
+    },
+    /// 404: no page or endpoint answers at this path.
+    #[error("There is no page at {path}.")]
+    NoRoute {
+        /// The path asked for.
+        path: String,
+    },
+    /// 405: the path exists but does not answer this method (the `Allow` header lists what it does).
+    #[error("This address does not answer {method}.")]
+    MethodNotAllowed {
+        /// The method asked for.
+        method: String,
+    },
+    /// 413: the body is larger than this route accepts.
+    #[error("{message}")]
+    TooLarge {
+        /// A short title for problem details (`None`: "Too large").
+        title: Option<&'static str>,
+        /// One sentence with the limit.
+        message: String,
+    },
+    /// 413: the request body is larger than the route's limit (each door words it).
+    #[error("{}", body_too_large(*.limit_bytes))]
+    BodyTooLarge {
+        /// The route's limit, when known where the body was refused.
+        limit_bytes: Option<usize>,
+    },
+    /// 415: the body is not in a format this route reads.
+    #[error("{message}")]
+    UnsupportedMediaType {
+        /// One sentence naming the format to send.
+        message: String,
+    },
+    /// 422: the request was read, but values in it are not valid; nothing was stored.
+    #[error("{}", invalid_detail(.message.as_deref(), .fields.len()))]
+    Invalid {
+        /// A short title for problem details (`None`: "Invalid input").
+        title: Option<&'static str>,
+        /// The summary sentence (`None`: "N fields are invalid; nothing was stored.").
+        message: Option<String>,
+        /// Every field at fault.
+        fields: Vec<FieldError>,
+    },
+    /// 429: too many requests for this API token; retry after the given seconds.
+    #[error("This token may make {per_minute} requests a minute; try again in {retry_after_s} s.")]
+    TooManyRequests {
+        /// The token's rate.
+        per_minute: u32,
+        /// Seconds until a request is allowed again.
+        retry_after_s: u64,
+    },
+    /// 503: the database is busy (another writer held the lock for longer than the busy
+    /// timeout). Nothing was written; the client may retry.
+    #[error("The catalog is busy; nothing was changed. Please try again in a moment.")]
     Busy,
+    /// 503: the request took longer than the server allows; the client may retry.
+    #[error("The server could not answer in time; nothing was changed, please try again.")]
+    Unavailable,
     /// 507: the disk (or the database's page limit) is full. Nothing was written.
-    #[error("the server's storage is full; nothing was changed")]
+    #[error("The server's storage is full; nothing was changed.")]
     StorageFull,
-    /// 500: anything else. Logged with its cause; the page says only that it failed.
+    /// 500: anything else. Logged with its cause; the answer says only that it failed.
     #[error("internal error: {0:#}")]
     Internal(#[from] anyhow::Error),
 }
 
+/// The sentence of [`AppError::BodyTooLarge`].
+fn body_too_large(limit_bytes: Option<usize>) -> String {
+    match limit_bytes {
+        Some(n) => format!("The request is larger than {n} bytes."),
+        None => "The request is larger than this address accepts.".to_owned(),
+    }
+}
+
+/// The summary sentence of [`AppError::Invalid`].
+fn invalid_detail(message: Option<&str>, n_fields: usize) -> String {
+    match (message, n_fields) {
+        (Some(m), _) => m.to_owned(),
+        (None, 1) => "1 field is invalid; nothing was stored.".to_owned(),
+        (None, n) => format!("{n} fields are invalid; nothing was stored."),
+    }
+}
+
+/// The sentence every answer to an internal error carries.
+pub const INTERNAL_MESSAGE: &str =
+    "The server could not answer this request. The problem has been logged; nothing was changed.";
+
 impl AppError {
-    /// Shorthand for [`AppError::NotFound`].
-    pub fn not_found(what: impl Into<String>) -> Self {
-        Self::NotFound { what: what.into() }
+    /// [`AppError::NotFound`] with "{what} was not found."
+    pub fn not_found(what: impl std::fmt::Display) -> Self {
+        Self::NotFound {
+            message: format!("{what} was not found."),
+        }
     }
 
-    /// Shorthand for [`AppError::BadRequest`].
-    pub fn bad_request(message: impl Into<String>) -> Self {
-        Self::BadRequest {
+    /// [`AppError::NotFound`] with a sentence of its own.
+    pub fn not_found_saying(message: impl Into<String>) -> Self {
+        Self::NotFound {
             message: message.into(),
         }
     }
 
-    /// Shorthand for [`AppError::Forbidden`].
+    /// [`AppError::BadRequest`] with a message and no fields.
+    pub fn bad_request(message: impl Into<String>) -> Self {
+        Self::BadRequest {
+            title: None,
+            message: message.into(),
+            fields: Vec::new(),
+        }
+    }
+
+    /// [`AppError::Forbidden`].
     pub fn forbidden(message: impl Into<String>) -> Self {
         Self::Forbidden {
             message: message.into(),
         }
     }
 
+    /// [`AppError::NotLoggedIn`].
+    pub fn not_logged_in(message: impl Into<String>) -> Self {
+        Self::NotLoggedIn {
+            message: message.into(),
+        }
+    }
+
+    /// [`AppError::Invalid`] listing every field at fault.
+    pub fn invalid(fields: Vec<FieldError>) -> Self {
+        Self::Invalid {
+            title: None,
+            message: None,
+            fields,
+        }
+    }
+
+    /// [`AppError::Invalid`] with one summary sentence and no fields.
+    pub fn invalid_saying(message: impl Into<String>) -> Self {
+        Self::Invalid {
+            title: None,
+            message: Some(message.into()),
+            fields: Vec::new(),
+        }
+    }
+
+    /// [`AppError::TooLarge`].
+    pub fn too_large(message: impl Into<String>) -> Self {
+        Self::TooLarge {
+            title: None,
+            message: message.into(),
+        }
+    }
+
+    /// [`AppError::UnsupportedMediaType`].
+    pub fn unsupported_media_type(message: impl Into<String>) -> Self {
+        Self::UnsupportedMediaType {
+            message: message.into(),
+        }
+    }
+
+    /// The same error with a short title of its own for problem details (400, 413 and 422;
+    /// other variants keep theirs).
+    #[must_use]
+    pub fn titled(mut self, new_title: &'static str) -> Self {
+        match &mut self {
+            Self::BadRequest { title, .. }
+            | Self::TooLarge { title, .. }
+            | Self::Invalid { title, .. } => *title = Some(new_title),
+            _ => {}
+        }
+        self
+    }
+
+    /// The same error listing the fields at fault (400 and 422; other variants have none).
+    #[must_use]
+    pub fn with_fields(mut self, new_fields: Vec<FieldError>) -> Self {
+        match &mut self {
+            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => *fields = new_fields,
+            _ => {}
+        }
+        self
+    }
+
+    /// The fields at fault (empty for most variants).
+    pub fn fields(&self) -> &[FieldError] {
+        match self {
+            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => fields,
+            _ => &[],
+        }
+    }
+
+    /// The sentence to show a person: the error's own text, or the generic sentence for an
+    /// internal error (whose cause is for the log only).
+    pub fn public_message(&self) -> String {
+        match self {
+            Self::Internal(_) => INTERNAL_MESSAGE.to_owned(),
+            other => other.to_string(),
+        }
+    }
+
     /// The HTTP status this error becomes.
     pub fn status(&self) -> StatusCode {
         match self {
-            Self::NotFound { .. } => StatusCode::NOT_FOUND,
             Self::BadRequest { .. } => StatusCode::BAD_REQUEST,
+            Self::NotLoggedIn { .. } | Self::BadToken => StatusCode::UNAUTHORIZED,
             Self::Forbidden { .. } => StatusCode::FORBIDDEN,
-            Self::Busy => StatusCode::SERVICE_UNAVAILABLE,
+            Self::NotFound { .. } | Self::NoRoute { .. } => StatusCode::NOT_FOUND,
+            Self::MethodNotAllowed { .. } => StatusCode::METHOD_NOT_ALLOWED,
+            Self::TooLarge { .. } | Self::BodyTooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
+            Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
+            Self::Invalid { .. } => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::TooManyRequests { .. } => StatusCode::TOO_MANY_REQUESTS,
+            Self::Busy | Self::Unavailable => StatusCode::SERVICE_UNAVAILABLE,
             Self::StorageFull => StatusCode::INSUFFICIENT_STORAGE,
             Self::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
+        }
+    }
+
+    /// Seconds a client should wait before retrying, for the `Retry-After` header.
+    pub fn retry_after_s(&self) -> Option<u64> {
+        match self {
+            Self::Busy | Self::Unavailable => Some(2),
+            Self::TooManyRequests { retry_after_s, .. } => Some(*retry_after_s),
+            _ => None,
         }
     }
 }
@@ -87,76 +310,64 @@ impl From<sqlx::Error> for AppError {
     }
 }
 
-/// What an error page says, kept on its response so `web` can draw it again with the
-/// visitor's session links.
+/// An error answer not yet drawn: the door that owns the path draws it
+/// (`router::render_errors`). Kept in the response's extensions.
 #[derive(Debug, Clone)]
-pub struct ErrorPageParts {
-    /// HTTP status.
-    pub status_code: u16,
-    /// Short title.
-    pub title: &'static str,
-    /// One or two sentences.
-    pub message: String,
-}
-
-/// The error page (templates/errors/error.html).
-#[derive(Template)]
-#[template(path = "errors/error.html")]
-struct ErrorPage {
-    status_code: u16,
-    title: &'static str,
-    message: String,
-}
+pub struct ErrorResponse(pub Arc<AppError>);
 
 impl IntoResponse for AppError {
     fn into_response(self) -> Response {
-        let status = self.status();
-        let (title, message) = match &self {
-            Self::NotFound { .. } => ("Not found", self.to_string()),
-            Self::BadRequest { .. } => ("The request could not be read", self.to_string()),
-            Self::Forbidden { .. } => ("Not allowed", self.to_string()),
-            Self::Busy => ("Busy", self.to_string()),
-            Self::StorageFull => ("Storage full", self.to_string()),
-            Self::Internal(cause) => {
-                tracing::error!(error = format!("{cause:#}"), "request failed");
-                (
-                    "Something went wrong",
-                    "The server could not answer this request. The problem has been logged; nothing was changed."
-                        .to_string(),
-                )
-            }
-        };
-        render_error_page(status, title, message, matches!(self, Self::Busy))
+        let mut response = self.status().into_response();
+        if let Some(seconds) = self.retry_after_s()
+            && let Ok(value) = HeaderValue::from_str(&seconds.to_string())
+        {
+            response.headers_mut().insert(header::RETRY_AFTER, value);
+        }
+        response
+            .extensions_mut()
+            .insert(ErrorResponse(Arc::new(self)));
+        response
     }
 }
 
-/// Render the shared error page with a given status; used for router fallbacks too.
-pub fn render_error_page(
-    status: StatusCode,
-    title: &'static str,
-    message: String,
-    retry: bool,
-) -> Response {
-    let page = ErrorPage {
-        status_code: status.as_u16(),
-        title,
-        message: message.clone(),
-    };
-    let body = page
-        .render()
-        .unwrap_or_else(|_| format!("{} {title}", status.as_u16()));
-    let mut response = (status, Html(body)).into_response();
-    // The web layer redraws the page with the visitor's session links (it knows who asks;
-    // this function does not).
-    response.extensions_mut().insert(ErrorPageParts {
-        status_code: status.as_u16(),
-        title,
-        message,
-    });
-    if retry {
-        response
-            .headers_mut()
-            .insert(header::RETRY_AFTER, HeaderValue::from_static("2"));
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn each_variant_names_its_status_and_only_internal_errors_hide_their_text() {
+        assert_eq!(AppError::not_found("Galaxy 'x'").status(), 404);
+        assert_eq!(
+            AppError::not_found("Galaxy 'x'").public_message(),
+            "Galaxy 'x' was not found."
+        );
+        assert_eq!(
+            AppError::invalid(vec![FieldError::new("a", "b")]).to_string(),
+            "1 field is invalid; nothing was stored."
+        );
+        assert_eq!(AppError::Busy.status(), 503);
+        assert_eq!(AppError::Busy.retry_after_s(), Some(2));
+        let internal = AppError::Internal(anyhow::anyhow!("secret path /x/y"));
+        assert_eq!(internal.status(), 500);
+        assert!(!internal.public_message().contains("secret"));
     }
-    response
+
+    #[test]
+    fn an_error_response_carries_the_error_for_its_door() {
+        let response = AppError::TooManyRequests {
+            per_minute: 60,
+            retry_after_s: 7,
+        }
+        .into_response();
+        assert_eq!(response.status(), StatusCode::TOO_MANY_REQUESTS);
+        assert_eq!(response.headers()[header::RETRY_AFTER], "7");
+        let carried = response.extensions().get::<ErrorResponse>().unwrap();
+        assert!(matches!(
+            *carried.0,
+            AppError::TooManyRequests {
+                retry_after_s: 7,
+                ..
+            }
+        ));
+    }
 }

@@ -30,7 +30,9 @@ pub mod error;
 pub mod fit;
 pub mod fit_command;
 pub mod relations;
+pub mod router;
 pub mod startup;
+pub mod state;
 pub mod units;
 pub mod web;
 

@@ -13,6 +13,7 @@ use std::sync::Arc;
 use std::time::Duration;
 
 use anyhow::Context;
+use axum::Router;
 use sqlx::SqlitePool;
 use tokio::net::TcpListener;
 
@@ -21,27 +22,11 @@ use crate::auth::password::Passwords;
 use crate::auth::{self, Role};
 use crate::catalog;
 use crate::config::Settings;
-use crate::web;
+use crate::state::AppState;
+use crate::{api, router, web};
 
 /// How often expired sessions and old failed-login rows are deleted.
 pub const CLEANUP_EVERY: Duration = Duration::from_secs(300);
-
-/// State shared by every handler: cheap to clone.
-#[derive(Clone)]
-pub struct AppState {
-    /// The catalog database.
-    pub pool: SqlitePool,
-    /// Validated settings.
-    pub settings: Arc<Settings>,
-    /// The clock session limits and login locks are measured with.
-    pub clock: Arc<dyn Clock>,
-    /// Password hashing, two at a time, off the async runtime.
-    pub passwords: Passwords,
-    /// Fits of the scaling relations, keyed by catalog version (see `relations`).
-    pub fits: crate::relations::FitCache,
-    /// Bootstrap and posterior runs in the background (see `relations`).
-    pub runs: crate::relations::RunRegistry,
-}
 
 /// An account that `--demo` created, with its password (shown once).
 #[derive(Debug, Clone)]
@@ -175,7 +160,7 @@ impl Application {
         shutdown: impl Future<Output = ()> + Send + 'static,
     ) -> anyhow::Result<()> {
         let cleanup = tokio::spawn(clean_up_periodically(self.state.clone()));
-        let router = web::router(self.state);
+        let router = app(self.state);
         let served = axum::serve(
             self.listener,
             router.into_make_service_with_connect_info::<SocketAddr>(),
@@ -194,6 +179,17 @@ impl Application {
     pub async fn run_until_stopped(self) -> anyhow::Result<()> {
         self.run_until(std::future::pending()).await
     }
+}
+
+/// The whole service: the pages and the JSON API behind the router's layers.
+pub fn app(state: AppState) -> Router {
+    let doors = vec![web::door(), api::door()];
+    router::build(state, doors)
+}
+
+/// Every route of the service with the access it asks for, in the order the doors add them.
+pub fn route_table() -> Vec<router::RouteEntry> {
+    router::route_table(&[web::door(), api::door()])
 }
 
 /// Delete expired sessions and old failed-login rows once.
@@ -221,5 +217,31 @@ async fn clean_up_periodically(state: AppState) {
             Ok(_) => {}
             Err(e) => tracing::warn!(error = %e, "could not delete expired sessions"),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::auth::Access;
+    use axum::http::Method;
+
+    #[test]
+    fn every_route_is_listed_once_with_its_access() {
+        let table = route_table();
+        let mut seen = std::collections::BTreeSet::new();
+        for r in &table {
+            assert!(seen.insert((r.method.to_string(), r.path)), "{r:?} twice");
+        }
+        let access = |m: Method, p: &str| {
+            table
+                .iter()
+                .find(|r| r.method == m && r.path == p)
+                .map(|r| r.access)
+        };
+        assert_eq!(access(Method::GET, "/login"), Some(Access::Public));
+        assert_eq!(access(Method::GET, "/admin/audit"), Some(Access::Admin));
+        assert_eq!(access(Method::GET, "/galaxies"), Some(Access::Read));
+        assert_eq!(access(Method::GET, "/api/v1/relations"), Some(Access::Read));
     }
 }

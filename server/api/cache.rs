@@ -7,7 +7,7 @@
 //!
 //! Everything is for one catalog version: a request that reads a newer version empties the
 //! cache first, and nothing of an older version is ever stored or returned. One per server
-//! (an `Extension` layer in `web::router`), cheap to clone.
+//! (an `Extension` layer of the API's door, `api::door`), cheap to clone.
 //!
 //! [`ApiCache::catalog_version`] answers the version without a query while the database files
 //! are unchanged. Measured on the release build, one SQLite query through the pool costs about

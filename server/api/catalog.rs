@@ -12,7 +12,7 @@ use utoipa::ToSchema;
 
 use super::ApiResult;
 use super::problem::Problem;
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// The header naming the catalog version of an export.
 pub const VERSION_HEADER: &str = "catalog-version";

@@ -13,14 +13,14 @@
 
 use axum::Json;
 use axum::extract::State;
-use axum::http::StatusCode;
 use serde::{Deserialize, Serialize};
 use tokio::sync::Semaphore;
 use utoipa::ToSchema;
 
-use super::problem::{FieldError, Problem};
+use super::problem::Problem;
 use super::relations::{EstimatorName, FitParameters};
 use super::{ApiJson, ApiResult};
+use crate::error::{AppError, FieldError};
 use crate::fit::bootstrap::{Bootstrap, bootstrap};
 use crate::fit::ensemble::{EnsembleConfig, ParamSummary};
 use crate::fit::posterior::{Posterior, posterior_from_fit};
@@ -28,7 +28,7 @@ use crate::fit::{self, FitError, FitSpec, Method, Point};
 use crate::fit_command::{
     POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, default_pivot,
 };
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// Most objects one request may fit.
 pub const MAX_POINTS: usize = 100_000;
@@ -196,7 +196,7 @@ fn method_of(name: EstimatorName) -> Method {
 }
 
 /// A fit error as a 422 problem, naming the point and column when it has them.
-fn fit_problem(e: &FitError) -> Problem {
+fn fit_problem(e: &FitError) -> AppError {
     let field = match e {
         FitError::NonFiniteInput { row, column } | FitError::NegativeError { row, column } => {
             format!("points[{row}].{column}")
@@ -204,20 +204,17 @@ fn fit_problem(e: &FitError) -> Problem {
         FitError::InvalidSetting { setting, .. } => (*setting).to_owned(),
         _ => "points".to_owned(),
     };
-    Problem::invalid(vec![FieldError::new(field, e.to_string())])
+    AppError::invalid(vec![FieldError::new(field, e.to_string())])
 }
 
 /// Checks the request's sizes and settings; every setting at fault is one field error.
-fn check(req: &FitRequest) -> Result<(), Problem> {
+fn check(req: &FitRequest) -> Result<(), AppError> {
     if req.points.len() > MAX_POINTS {
-        return Err(Problem::new(
-            StatusCode::PAYLOAD_TOO_LARGE,
-            "Too many points",
-            format!(
-                "The sample has {} points; at most {MAX_POINTS} are fitted per request.",
-                req.points.len()
-            ),
-        ));
+        return Err(AppError::too_large(format!(
+            "The sample has {} points; at most {MAX_POINTS} are fitted per request.",
+            req.points.len()
+        ))
+        .titled("Too many points"));
     }
     let mut errors = Vec::new();
     if req.points.is_empty() {
@@ -278,12 +275,12 @@ fn check(req: &FitRequest) -> Result<(), Problem> {
     if errors.is_empty() {
         Ok(())
     } else {
-        Err(Problem::invalid(errors))
+        Err(AppError::invalid(errors))
     }
 }
 
 /// The whole computation, synchronous (it runs on the blocking pool).
-fn run(req: FitRequest) -> Result<FitAnswer, Problem> {
+fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
     let points: Vec<Point> = req
         .points
         .iter()
@@ -312,18 +309,18 @@ fn run(req: FitRequest) -> Result<FitAnswer, Problem> {
         .map_err(|e| fit_problem(&e))?;
     let fitted = fit::fit(&points, &spec).map_err(|e| fit_problem(&e))?;
     let seed = req.seed.unwrap_or(1);
-    let boot: Option<Bootstrap> = match req.bootstrap {
-        Some(n) => Some(
-            bootstrap(&points, &spec, n as usize, seed)
-                .map_err(|e| Problem::invalid(vec![FieldError::new("bootstrap", e.to_string())]))?,
-        ),
-        None => None,
-    };
+    let boot: Option<Bootstrap> =
+        match req.bootstrap {
+            Some(n) => Some(bootstrap(&points, &spec, n as usize, seed).map_err(|e| {
+                AppError::invalid(vec![FieldError::new("bootstrap", e.to_string())])
+            })?),
+            None => None,
+        };
     let post: Option<Posterior> = match req.posterior_steps {
         Some(steps) => {
             let steps = steps as usize;
             let problem = |e: FitError| {
-                Problem::invalid(vec![FieldError::new("posterior_steps", e.to_string())])
+                AppError::invalid(vec![FieldError::new("posterior_steps", e.to_string())])
             };
             let cfg = EnsembleConfig::new(
                 POSTERIOR_WALKERS,
@@ -461,16 +458,16 @@ mod tests {
             seed: None,
         };
         let p = check(&req(0, Some(10))).unwrap_err();
-        assert_eq!(p.status, 422);
-        let fields: Vec<&str> = p.errors.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(p.status(), 422);
+        let fields: Vec<&str> = p.fields().iter().map(|e| e.field.as_str()).collect();
         assert_eq!(fields, ["points", "pivot", "bootstrap", "posterior_steps"]);
-        assert_eq!(check(&req(MAX_POINTS + 1, None)).unwrap_err().status, 413);
+        assert_eq!(check(&req(MAX_POINTS + 1, None)).unwrap_err().status(), 413);
         // A negative error is named by point and column.
         let mut bad = req(5, None);
         bad.pivot = None;
         bad.posterior_steps = None;
         bad.points[3].y_err = -1.0;
         let p = run(bad).unwrap_err();
-        assert_eq!(p.errors[0].field, "points[3].y_err");
+        assert_eq!(p.fields()[0].field, "points[3].y_err");
     }
 }

@@ -6,18 +6,16 @@
 use axum::Json;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
-use axum::http::StatusCode;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
-use super::problem::{FieldError, Problem};
+use super::problem::Problem;
 use super::relations::{BulgeKindWord, MassMethodWord, MorphologyWord};
 use super::{ApiResult, query_pairs};
-use crate::catalog::galaxies as store;
-use crate::catalog::relation_rows::relation_rows;
-use crate::relations::{at_adopted_distance, sphere_of_influence};
-use crate::startup::AppState;
-use crate::web::galaxies::{MAX_PER_PAGE, TableQuery, TableRow, select_page};
+use crate::error::{AppError, FieldError};
+use crate::relations::galaxy::{MeasurementAt, galaxy_record};
+use crate::relations::table::{MAX_PER_PAGE, TableQuery, TableRow, table_page};
+use crate::state::AppState;
 
 /// Highest page number accepted (far beyond any catalog; keeps page × per_page small).
 const MAX_PAGE: usize = 1_000_000;
@@ -225,25 +223,18 @@ pub async fn list_galaxies(
         })
         .collect();
     if !errors.is_empty() {
-        return Err(Problem::invalid(errors));
+        return Err(AppError::invalid(errors));
     }
     if let Some((_, page)) = pairs.iter().rfind(|(k, _)| k == "page")
         && page.trim().parse::<usize>().is_ok_and(|p| p > MAX_PAGE)
     {
-        return Err(Problem::invalid(vec![FieldError::new(
+        return Err(AppError::invalid(vec![FieldError::new(
             "page",
             format!("The page must be a whole number from 1 to {MAX_PAGE}."),
         )]));
     }
-    let q = TableQuery::parse(&pairs)
-        .map_err(|e| Problem::new(StatusCode::UNPROCESSABLE_ENTITY, "Invalid input", e))?;
-    let threshold = state.settings.soi_threshold;
-    let rows = relation_rows(&state.pool)
-        .await?
-        .into_iter()
-        .map(|r| TableRow::new(r, threshold))
-        .collect();
-    let (page_rows, total) = select_page(rows, &q);
+    let q = TableQuery::parse(&pairs).map_err(AppError::invalid_saying)?;
+    let (page_rows, total) = table_page(&state.pool, state.settings.soi_threshold, &q).await?;
     debug_assert!(q.per_page <= MAX_PER_PAGE);
     Ok(Json(GalaxyPage {
         total,
@@ -369,67 +360,59 @@ pub async fn show_galaxy(
     State(state): State<AppState>,
     Path(slug): Path<String>,
 ) -> ApiResult<Json<GalaxyAnswer>> {
-    let galaxy = store::find_by_slug(&state.pool, &slug)
+    let record = galaxy_record(&state.pool, state.settings.soi_threshold, &slug)
         .await?
         .ok_or_else(|| {
-            Problem::new(
-                StatusCode::NOT_FOUND,
-                "Not found",
-                format!(
-                    "There is no galaxy '{}'.",
-                    slug.chars().take(80).collect::<String>()
-                ),
-            )
+            AppError::not_found_saying(format!(
+                "There is no galaxy '{}'.",
+                slug.chars().take(80).collect::<String>()
+            ))
         })?;
-    let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
-    let at_d = |m: &crate::catalog::model::Measurement| {
-        at_adopted_distance(
-            m.log_value,
-            &m.quantity,
-            &m.method,
-            m.source_distance_mpc,
-            galaxy.distance_mpc,
-        )
-    };
-    let adopted: Vec<AdoptedValue> = measurements
-        .iter()
-        .filter(|m| m.adopted)
+    let adopted = record
+        .adopted()
         .map(|m| AdoptedValue {
-            quantity: m.quantity.clone(),
-            band: m.band.clone(),
-            measurement_id: m.measurement_id,
-            log_value: at_d(m),
-            err_dex: m.err_dex,
-            upper_limit: m.upper_limit,
+            quantity: m.measurement.quantity.clone(),
+            band: m.measurement.band.clone(),
+            measurement_id: m.measurement.measurement_id,
+            log_value: m.log_value_at_adopted_distance,
+            err_dex: m.measurement.err_dex,
+            upper_limit: m.measurement.upper_limit,
         })
         .collect();
-    let adopted_log_sigma = measurements
+    let soi = record
+        .adopted_sphere_of_influence()
+        .map(super::place::SoiAnswer::from);
+    let measurements = record
+        .measurements
         .iter()
-        .find(|m| m.quantity == "sigma" && m.adopted)
-        .map(|m| m.log_value);
-    let soi = measurements
-        .iter()
-        .find(|m| m.quantity == "bh_mass" && m.adopted)
-        .and_then(|m| {
-            sphere_of_influence(
-                at_d(m),
-                &m.method,
-                adopted_log_sigma,
-                galaxy.distance_mpc,
-                m.resolution_arcsec,
-                state.settings.soi_threshold,
-            )
-        })
-        .map(|s| super::place::SoiAnswer::from(&s));
-    let measurements = measurements
-        .iter()
-        .map(|m| MeasurementAnswer {
+        .map(MeasurementAnswer::of)
+        .collect();
+    let g = record.galaxy;
+    Ok(Json(GalaxyAnswer {
+        name: g.name,
+        slug: g.slug,
+        morphology: g.morphology,
+        bulge_kind: g.bulge_kind,
+        centre_kind: g.centre_kind,
+        distance_mpc: g.distance_mpc,
+        distance_err_mpc: g.distance_err_mpc,
+        distance_method: g.distance_method,
+        adopted,
+        sphere_of_influence: soi,
+        measurements,
+    }))
+}
+
+impl MeasurementAnswer {
+    fn of(at: &MeasurementAt) -> Self {
+        let m = &at.measurement;
+        MeasurementAnswer {
             measurement_id: m.measurement_id,
             submission_id: m.submission_id,
             quantity: m.quantity.clone(),
             value_text: m.value_text.clone(),
             log_value: m.log_value,
-            log_value_at_adopted_distance: at_d(m),
+            log_value_at_adopted_distance: at.log_value_at_adopted_distance,
             err_minus_dex: m.err_minus_dex,
             err_plus_dex: m.err_plus_dex,
             err_dex: m.err_dex,
@@ -446,19 +429,6 @@ pub async fn show_galaxy(
             state: m.state.clone(),
             adopted: m.adopted,
             created_at: m.created_at.clone(),
-        })
-        .collect();
-    Ok(Json(GalaxyAnswer {
-        name: galaxy.name,
-        slug: galaxy.slug,
-        morphology: galaxy.morphology,
-        bulge_kind: galaxy.bulge_kind,
-        centre_kind: galaxy.centre_kind,
-        distance_mpc: galaxy.distance_mpc,
-        distance_err_mpc: galaxy.distance_err_mpc,
-        distance_method: galaxy.distance_method,
-        adopted,
-        sphere_of_influence: soi,
-        measurements,
-    }))
+        }
+    }
 }

@@ -2,13 +2,13 @@
 
 use axum::Json;
 use axum::extract::Extension;
-use axum::http::StatusCode;
 use serde::Serialize;
 use utoipa::ToSchema;
 
 use super::ApiResult;
 use super::problem::Problem;
 use crate::auth::{Principal, Scope};
+use crate::error::AppError;
 
 /// The caller: an API token's owner with the token's scopes, or a browser session.
 #[derive(Debug, Serialize, ToSchema)]
@@ -50,9 +50,7 @@ pub async fn me(Extension(principal): Extension<Principal>) -> ApiResult<Json<Me
             scopes: strings(&Scope::ALL),
         })),
         // The route guard admits neither; answer as it would.
-        Principal::Anonymous | Principal::BadToken => Err(Problem::new(
-            StatusCode::UNAUTHORIZED,
-            "Unauthorized",
+        Principal::Anonymous | Principal::BadToken => Err(AppError::not_logged_in(
             "This endpoint needs an API token (Authorization: Bearer ml_…).",
         )),
     }

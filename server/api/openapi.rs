@@ -2,12 +2,12 @@
 //!
 //! It is generated from the code: each handler's `#[utoipa::path]` attribute (method, path,
 //! parameters, answers) and each answer's `#[derive(ToSchema)]` (fields, their doc comments as
-//! descriptions). A test compares its paths and methods with `web::route_table()`, so a route
+//! descriptions). A test compares its paths and methods with `startup::route_table()`, so a route
 //! cannot be added without being documented, nor documented without being served.
 //!
 //! To add an endpoint: write the handler with `#[utoipa::path(...)]`, derive `ToSchema` on its
 //! request and answer types, list the handler in [`ApiDoc`]'s `paths(...)`, add the route in
-//! `web::routes()` and its row to `tests/access.toml`.
+//! `api::door`'s routes and its row to `tests/access.toml`.
 
 use std::sync::OnceLock;
 
@@ -16,7 +16,8 @@ use axum::response::{IntoResponse, Response};
 use utoipa::openapi::security::{HttpAuthScheme, HttpBuilder, SecurityScheme};
 use utoipa::{Modify, OpenApi};
 
-use super::problem::{FieldError, Problem};
+use super::problem::Problem;
+use crate::error::FieldError;
 
 /// Adds the bearer-token security scheme the operations refer to.
 struct BearerScheme;

@@ -2,9 +2,9 @@
 //! /api/v1/place` (a batch of up to [`MAX_BATCH`] objects as a JSON array): where each object
 //! falls against every relation it has values for, answered as on the place page.
 //!
-//! The numbers come from the place page's own computation (`web::place::placement_numbers`
-//! with the page's value parser and `Inputs::host_values`): predicted log M_BH with 68 % and
-//! 95 % predictive intervals, residual, z, verdict, P(true mass below a limit), and the
+//! The numbers come from the same computation as the place page's (`relations::place`: the
+//! value reader, `place_against`, the sphere-of-influence check): predicted log M_BH with 68 %
+//! and 95 % predictive intervals, residual, z, verdict, P(true mass below a limit), and the
 //! sphere-of-influence check. The page's refit with the object and its charts are left out:
 //! they are for people reviewing one object, and cost milliseconds each.
 //!
@@ -20,20 +20,21 @@ use std::sync::Arc;
 use axum::Json;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Query, State};
-use axum::http::StatusCode;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
 use super::cache::ApiCache;
-use super::problem::{FieldError, Problem};
+use super::problem::Problem;
 use super::relations::{FitSettings, all_relations, current_fit};
 use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
+use crate::error::{AppError, FieldError};
 use crate::fit::Method;
+use crate::relations::place::{
+    OBJECT_FIELDS, ObjectTexts, ObjectValues, place_against, read_object,
+};
 use crate::relations::{FitOutcome, Relation};
-use crate::startup::AppState;
-use crate::units::Quantity;
-use crate::web::place::{Inputs, Subject, SubjectMass, placement_numbers, read_entry, read_linear};
+use crate::state::AppState;
 
 /// Most objects one batch may hold.
 pub const MAX_BATCH: usize = 10_000;
@@ -173,186 +174,97 @@ pub struct PlaceBatchResult {
     pub objects: Vec<PlaceAnswer>,
 }
 
-/// Reads an object's fields with the place page's parser; `prefix` names the object in field
-/// errors (`[3].` in a batch).
-fn read_object(
-    object: &PlaceObject,
+impl From<&PlaceObject> for ObjectTexts {
+    fn from(o: &PlaceObject) -> Self {
+        let text = |v: &Option<String>| v.as_deref().map(str::trim).unwrap_or("").to_owned();
+        ObjectTexts {
+            sigma: text(&o.sigma),
+            bulge_mass: text(&o.bulge_mass),
+            luminosity: text(&o.luminosity),
+            band: text(&o.band),
+            mass: text(&o.mass),
+            distance: text(&o.distance),
+            resolution: text(&o.resolution),
+        }
+    }
+}
+
+/// Reads an object's fields as the place page does; `prefix` names the object in field errors
+/// (`[3].` in a batch). A field longer than [`MAX_FIELD_CHARS`] is refused unread.
+fn read(
+    mut texts: ObjectTexts,
     bands: &[String],
     prefix: &str,
     errors: &mut Vec<FieldError>,
-) -> Inputs {
-    let mut inputs = Inputs::default();
-    let mut text = |name: &str, value: &Option<String>| -> Option<String> {
-        let v = value.as_deref().map(str::trim).unwrap_or("");
-        if v.chars().count() > MAX_FIELD_CHARS {
+) -> ObjectValues {
+    for name in OBJECT_FIELDS {
+        let Some(slot) = texts.slot(name) else {
+            continue;
+        };
+        if slot.chars().count() > MAX_FIELD_CHARS {
             errors.push(FieldError::new(
                 format!("{prefix}{name}"),
                 format!("The value is longer than {MAX_FIELD_CHARS} characters."),
             ));
-            return None;
+            slot.clear();
         }
-        (!v.is_empty()).then(|| v.to_owned())
-    };
-    let sigma = text("sigma", &object.sigma);
-    let bulge_mass = text("bulge_mass", &object.bulge_mass);
-    let luminosity = text("luminosity", &object.luminosity);
-    let band = text("band", &object.band);
-    let mass = text("mass", &object.mass);
-    let distance = text("distance", &object.distance);
-    let resolution = text("resolution", &object.resolution);
-    let mut field = |name: &str, r: Result<(), String>| {
-        if let Err(e) = r {
-            errors.push(FieldError::new(format!("{prefix}{name}"), e));
-        }
-    };
-    if let Some(t) = sigma {
-        field(
-            "sigma",
-            read_entry(&t, Quantity::VelocityDispersion).map(|e| inputs.sigma = e),
-        );
     }
-    if let Some(t) = bulge_mass {
-        field(
-            "bulge_mass",
-            read_entry(&t, Quantity::BulgeMass).map(|e| inputs.bulge_mass = e),
-        );
-    }
-    if let Some(t) = &luminosity {
-        field(
-            "luminosity",
-            read_entry(t, Quantity::BulgeLuminosity).map(|e| inputs.luminosity = e),
-        );
-    }
-    if let Some(t) = mass {
-        field(
-            "mass",
-            read_entry(&t, Quantity::BlackHoleMass).map(|e| inputs.mass = e),
-        );
-    }
-    if let Some(t) = distance {
-        field(
-            "distance",
-            read_linear(&t, Quantity::Distance).map(|e| inputs.distance = e),
-        );
-    }
-    if let Some(t) = resolution {
-        field(
-            "resolution",
-            read_linear(&t, Quantity::Resolution).map(|e| inputs.resolution = e),
-        );
-    }
-    match band {
-        Some(b) => match bands.iter().find(|known| known.eq_ignore_ascii_case(&b)) {
-            Some(known) => inputs.band = Some(known.clone()),
-            None => field(
-                "band",
-                Err(if bands.is_empty() {
-                    "The catalog has no bulge luminosities, so no band can be used.".to_owned()
-                } else {
-                    format!("The catalog has luminosities in {} only.", bands.join(", "))
-                }),
-            ),
-        },
-        None if luminosity.is_some() => {
-            field("band", Err("Give the band of the luminosity.".to_owned()));
-        }
-        None => {}
-    }
-    inputs
+    let (values, faults) = read_object(&texts, bands);
+    errors.extend(
+        faults
+            .into_iter()
+            .map(|f| FieldError::new(format!("{prefix}{}", f.field), f.message)),
+    );
+    values
 }
 
 /// The relations an object can use (those it has host values for).
-fn used_by(inputs: &Inputs, relations: &[Relation]) -> Vec<bool> {
+fn used_by(values: &ObjectValues, relations: &[Relation]) -> Vec<bool> {
     relations
         .iter()
-        .map(|r| inputs.host_values(r).is_some())
+        .map(|r| values.host_values(r).is_some())
         .collect()
 }
 
 /// One object against the fits (no database, no await: cheap enough for batches).
 fn place_object(
-    inputs: &Inputs,
+    values: &ObjectValues,
     fits: &[(Relation, Option<Arc<FitOutcome>>)],
     soi_threshold: f64,
 ) -> PlaceAnswer {
     let mut relations = Vec::new();
     for (relation, outcome) in fits {
-        let (Some((x, x2)), Some(outcome)) = (inputs.host_values(relation), outcome) else {
+        let (Some(subject), Some(outcome)) = (values.subject(relation, ""), outcome) else {
             continue;
         };
-        let mut placed = RelationPlacement {
+        let placed = place_against(relation, outcome.clone(), &subject);
+        let numbers = placed.numbers.as_ref().ok();
+        let prediction = numbers.map(|n| &n.prediction);
+        relations.push(RelationPlacement {
             relation: relation.slug(),
             label: relation.label(),
-            x_log: x.log_value,
-            x_err_dex: x.err_dex,
-            x2_log: x2.map(|b| b.log_value),
-            x2_err_dex: x2.map(|b| b.err_dex),
-            predicted_log_mbh: None,
-            prediction_sd_dex: None,
-            interval68_low_log_mbh: None,
-            interval68_high_log_mbh: None,
-            interval95_low_log_mbh: None,
-            interval95_high_log_mbh: None,
-            residual_dex: None,
-            z: None,
-            verdict: None,
-            prob_below_limit: None,
-            problem: None,
-        };
-        let fit = match &outcome.fit {
-            Ok(f) => f,
-            Err(e) => {
-                placed.problem = Some(format!("No fit of this relation: {e}"));
-                relations.push(placed);
-                continue;
-            }
-        };
-        let subject = Subject {
-            name: String::new(),
-            href: None,
-            x: (x.log_value, x.err_dex),
-            x2: x2.map(|b| (b.log_value, b.err_dex)),
-            mass: inputs.mass.as_ref().map(SubjectMass::from_entry),
-            input: String::new(),
-        };
-        match placement_numbers(fit, &subject) {
-            Ok(n) => {
-                let p = &n.prediction;
-                placed.predicted_log_mbh = Some(p.log_mbh);
-                placed.prediction_sd_dex = Some(p.sd_dex);
-                placed.interval68_low_log_mbh = Some(p.interval68.0);
-                placed.interval68_high_log_mbh = Some(p.interval68.1);
-                placed.interval95_low_log_mbh = Some(p.interval95.0);
-                placed.interval95_high_log_mbh = Some(p.interval95.1);
-                placed.residual_dex = n.residual_dex;
-                placed.z = n.z;
-                placed.verdict = n.verdict.map(str::to_owned);
-                placed.prob_below_limit = n.prob_below_limit;
-            }
-            Err(e) => placed.problem = Some(e.to_string()),
-        }
-        relations.push(placed);
+            x_log: subject.x.0,
+            x_err_dex: subject.x.1,
+            x2_log: subject.x2.map(|b| b.0),
+            x2_err_dex: subject.x2.map(|b| b.1),
+            predicted_log_mbh: prediction.map(|p| p.log_mbh),
+            prediction_sd_dex: prediction.map(|p| p.sd_dex),
+            interval68_low_log_mbh: prediction.map(|p| p.interval68.0),
+            interval68_high_log_mbh: prediction.map(|p| p.interval68.1),
+            interval95_low_log_mbh: prediction.map(|p| p.interval95.0),
+            interval95_high_log_mbh: prediction.map(|p| p.interval95.1),
+            residual_dex: numbers.and_then(|n| n.residual_dex),
+            z: numbers.and_then(|n| n.z),
+            verdict: numbers.and_then(|n| n.verdict).map(str::to_owned),
+            prob_below_limit: numbers.and_then(|n| n.prob_below_limit),
+            problem: placed.numbers.as_ref().err().cloned(),
+        });
     }
-
-    let mut note = None;
-    let mut soi = None;
-    if let (Some(m), Some(s), Some(d)) = (&inputs.mass, &inputs.sigma, &inputs.distance) {
-        match SphereOfInfluence::from_log_mbh(
-            m.log_value,
-            10f64.powf(s.log_value),
-            d.value,
-            inputs.resolution.as_ref().map(|r| r.value),
-            soi_threshold,
-        ) {
-            Ok(sp) => soi = Some(SoiAnswer::from(&sp)),
-            Err(e) => note = Some(e.to_string()),
-        }
-    } else if inputs.mass.is_some() {
-        note = Some(
-            "The sphere-of-influence check needs the velocity dispersion and the distance as well."
-                .to_owned(),
-        );
-    }
+    let (soi, mut note) = match values.sphere_of_influence(soi_threshold) {
+        Some(Ok(sp)) => (Some(SoiAnswer::from(&sp)), None),
+        Some(Err(why)) => (None, Some(why)),
+        None => (None, None),
+    };
     if relations.is_empty() {
         note = Some(
             "No relation can use the values given: the relations need a velocity dispersion, a bulge mass, or a bulge luminosity with its band."
@@ -434,36 +346,28 @@ pub async fn place_one(
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Json<PlaceResult>> {
     let pairs = query_pairs(query)?;
-    let mut object = PlaceObject::default();
-    let mut errors = Vec::new();
-    for (key, value) in pairs {
-        let slot = match key.as_str() {
-            "sigma" => &mut object.sigma,
-            "bulge_mass" => &mut object.bulge_mass,
-            "luminosity" => &mut object.luminosity,
-            "band" => &mut object.band,
-            "mass" => &mut object.mass,
-            "distance" => &mut object.distance,
-            "resolution" => &mut object.resolution,
-            other => {
-                errors.push(FieldError::new(
-                    other.chars().take(40).collect::<String>(),
-                    "This is not a parameter of this endpoint (it accepts sigma, bulge_mass, luminosity, band, mass, distance, resolution).",
-                ));
-                continue;
-            }
-        };
-        *slot = Some(value);
-    }
+    let (texts, unknown) = ObjectTexts::from_pairs(&pairs);
+    let mut errors: Vec<FieldError> = unknown
+        .into_iter()
+        .map(|name| {
+            FieldError::new(
+                name,
+                format!(
+                    "This is not a parameter of this endpoint (it accepts {}).",
+                    OBJECT_FIELDS.join(", ")
+                ),
+            )
+        })
+        .collect();
     let version = cache
         .catalog_version(&state.pool, &state.settings.db_path)
         .await?;
     let relations = all_relations(&state, &cache, version).await?;
-    let inputs = read_object(&object, &bands_of(&relations), "", &mut errors);
+    let values = read(texts, &bands_of(&relations), "", &mut errors);
     if !errors.is_empty() {
-        return Err(Problem::invalid(errors));
+        return Err(AppError::invalid(errors));
     }
-    let needed = used_by(&inputs, &relations);
+    let needed = used_by(&values, &relations);
     let fits = fits_for(&state, &cache, version, relations, &needed).await?;
     let version = fits
         .iter()
@@ -472,7 +376,7 @@ pub async fn place_one(
     Ok(Json(PlaceResult {
         catalog_version: version,
         estimator: Method::Structural.as_str().to_owned(),
-        object: place_object(&inputs, &fits, state.settings.soi_threshold),
+        object: place_object(&values, &fits, state.settings.soi_threshold),
     }))
 }
 
@@ -501,14 +405,11 @@ pub async fn place_batch(
     ApiJson(objects): ApiJson<Vec<PlaceObject>>,
 ) -> ApiResult<Json<PlaceBatchResult>> {
     if objects.len() > MAX_BATCH {
-        return Err(Problem::new(
-            StatusCode::PAYLOAD_TOO_LARGE,
-            "Too many objects",
-            format!(
-                "The batch has {} objects; at most {MAX_BATCH} are placed per request, so send it in parts.",
-                objects.len()
-            ),
-        ));
+        return Err(AppError::too_large(format!(
+            "The batch has {} objects; at most {MAX_BATCH} are placed per request, so send it in parts.",
+            objects.len()
+        ))
+        .titled("Too many objects"));
     }
     let version = cache
         .catalog_version(&state.pool, &state.settings.db_path)
@@ -516,13 +417,13 @@ pub async fn place_batch(
     let relations = all_relations(&state, &cache, version).await?;
     let bands = bands_of(&relations);
     let mut errors = Vec::new();
-    let inputs: Vec<Inputs> = objects
+    let inputs: Vec<ObjectValues> = objects
         .iter()
         .enumerate()
-        .map(|(i, o)| read_object(o, &bands, &format!("[{i}]."), &mut errors))
+        .map(|(i, o)| read(o.into(), &bands, &format!("[{i}]."), &mut errors))
         .collect();
     if !errors.is_empty() {
-        return Err(Problem::invalid(errors));
+        return Err(AppError::invalid(errors));
     }
     let mut needed = vec![false; relations.len()];
     for i in &inputs {

@@ -13,13 +13,12 @@ use std::collections::HashMap;
 use std::sync::{Arc, Mutex, PoisonError};
 
 use axum::extract::{Request, State};
-use axum::http::{HeaderValue, StatusCode, header};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 
-use super::problem::Problem;
 use crate::auth::Principal;
 use crate::auth::clock::Clock;
+use crate::error::AppError;
 
 /// Buckets kept before idle full ones are dropped (a bucket is a few bytes; this bounds memory
 /// when many tokens are used once).
@@ -105,20 +104,11 @@ pub async fn limit_rate(
         && let Some(Principal::Token(t)) = request.extensions().get::<Principal>()
         && let Err(wait_s) = limiter.take(t.api_token_id)
     {
-        let mut response = Problem::new(
-            StatusCode::TOO_MANY_REQUESTS,
-            "Too many requests",
-            format!(
-                "This token may make {} requests a minute; try again in {wait_s} s.",
-                limiter.per_minute
-            ),
-        )
+        return AppError::TooManyRequests {
+            per_minute: limiter.per_minute,
+            retry_after_s: wait_s,
+        }
         .into_response();
-        response.headers_mut().insert(
-            header::RETRY_AFTER,
-            HeaderValue::from_str(&wait_s.to_string()).unwrap_or(HeaderValue::from_static("1")),
-        );
-        return response;
     }
     next.run(request).await
 }

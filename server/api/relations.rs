@@ -12,20 +12,21 @@ use std::sync::Arc;
 use axum::body::Bytes;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
-use axum::http::{HeaderMap, StatusCode};
+use axum::http::HeaderMap;
 use axum::response::Response;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
 use super::cache::{ApiCache, FitAnswerBytes};
-use super::problem::{FieldError, Problem};
+use super::problem::Problem;
 use super::{ApiResult, entity_tag, matches_if_none_match, query_pairs, tagged_bytes};
 use crate::catalog::relation_rows;
+use crate::error::{AppError, FieldError};
 use crate::fit::{Fit, Method};
 use crate::relations::{
     FILTER_PARAMS, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice, SoiChoice, fitted,
 };
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// Estimators a fit can use (`method`).
 #[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
@@ -178,7 +179,7 @@ impl FitSettings {
     ///
     /// # Errors
     /// A 422 problem listing each parameter at fault.
-    pub fn parse(pairs: &[(String, String)]) -> Result<Self, Problem> {
+    pub fn parse(pairs: &[(String, String)]) -> Result<Self, AppError> {
         let mut s = Self {
             method: Method::Structural,
             filter: SampleFilter::default(),
@@ -222,7 +223,7 @@ impl FitSettings {
         if errors.is_empty() {
             Ok(s)
         } else {
-            Err(Problem::invalid(errors))
+            Err(AppError::invalid(errors))
         }
     }
 
@@ -269,8 +270,7 @@ pub async fn relation_named(state: &AppState, slug: &str) -> ApiResult<Relation>
         return Ok(r);
     }
     let bands = relation_rows::luminosity_bands(&state.pool).await?;
-    Relation::from_slug(slug, &bands)
-        .map_err(|e| Problem::new(StatusCode::NOT_FOUND, "Not found", e.to_string()))
+    Relation::from_slug(slug, &bands).map_err(|e| AppError::not_found_saying(e.to_string()))
 }
 
 /// Every relation of catalog version `version` (kept in `cache` for that version).
@@ -708,8 +708,8 @@ mod tests {
             ("soi", "maybe"),
         ]))
         .unwrap_err();
-        assert_eq!(err.status, 422);
-        let fields: Vec<&str> = err.errors.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(err.status(), 422);
+        let fields: Vec<&str> = err.fields().iter().map(|e| e.field.as_str()).collect();
         assert_eq!(fields, ["method", "pivot", "colour", "soi"]);
         // Different settings, different canonical texts (and so ETags).
         let a = FitSettings::parse(&[]).unwrap();

@@ -15,13 +15,15 @@ use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::{Deserialize, Serialize};
 
-use super::problem::{FieldError, Problem};
+use super::ApiResult;
+use super::problem::Problem;
 use crate::auth::{Principal, Role, Scope, TokenUser, require_scope};
 use crate::catalog::csv_io::MEASUREMENT_COLUMNS;
 use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
 use crate::catalog::galaxies::{self as store, SubmissionSource};
 use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError};
-use crate::startup::AppState;
+use crate::error::{AppError, FieldError, sentence};
+use crate::state::AppState;
 
 /// At most this many measurements in one request (a file upload takes more).
 pub const MAX_MEASUREMENTS: usize = 100;
@@ -124,20 +126,16 @@ pub struct SubmissionStatus {
     pub note: String,
 }
 
-fn token_of(principal: &Principal) -> Result<&TokenUser, Problem> {
+fn token_of(principal: &Principal) -> ApiResult<&TokenUser> {
     match principal {
         Principal::Token(t) => Ok(t),
         // Pages have their own forms; the API's writes are for scripts with tokens.
-        Principal::Session(_) => Err(Problem::new(
-            StatusCode::FORBIDDEN,
-            "Forbidden",
+        Principal::Session(_) => Err(AppError::forbidden(
             "Submitting through the API needs an API token with the submit scope; in a browser, use the submission form.",
         )),
-        Principal::Anonymous | Principal::BadToken => Err(Problem::new(
-            StatusCode::UNAUTHORIZED,
-            "Unauthorized",
-            "This endpoint needs an API token.",
-        )),
+        Principal::Anonymous | Principal::BadToken => {
+            Err(AppError::not_logged_in("This endpoint needs an API token."))
+        }
     }
 }
 
@@ -167,26 +165,12 @@ pub async fn submit(
     Extension(principal): Extension<Principal>,
     headers: HeaderMap,
     body: Bytes,
-) -> Response {
-    match submit_inner(&state, &principal, &headers, &body).await {
-        Ok(response) | Err(response) => response,
-    }
-}
-
-async fn submit_inner(
-    state: &AppState,
-    principal: &Principal,
-    headers: &HeaderMap,
-    body: &[u8],
-) -> Result<Response, Response> {
-    let token = token_of(principal).map_err(IntoResponse::into_response)?;
+) -> ApiResult<Response> {
+    let token = token_of(&principal)?;
     require_scope(&token.scopes, Scope::Submit).map_err(|_| {
-        Problem::new(
-            StatusCode::FORBIDDEN,
-            "Forbidden",
+        AppError::forbidden(
             "This token lacks the submit scope; create one with it on your account page.",
         )
-        .into_response()
     })?;
     let is_json = headers
         .get(header::CONTENT_TYPE)
@@ -197,45 +181,16 @@ async fn submit_inner(
                 .is_some_and(|t| t.trim().eq_ignore_ascii_case("application/json"))
         });
     if !is_json {
-        return Err(Problem::new(
-            StatusCode::UNSUPPORTED_MEDIA_TYPE,
-            "Unsupported media type",
+        return Err(AppError::unsupported_media_type(
             "Send the submission as application/json.",
-        )
-        .into_response());
+        ));
     }
-    let client_key = match headers
-        .get("idempotency-key")
-        .map(|v| v.to_str().map(str::trim))
-    {
-        Some(Ok(k)) => match submissions::validate_client_key(k) {
-            Ok(()) => k.to_owned(),
-            Err(e) => return Err(bad_request(vec![FieldError::new("Idempotency-Key", e)])),
-        },
-        Some(Err(_)) => {
-            return Err(bad_request(vec![FieldError::new(
-                "Idempotency-Key",
-                "An idempotency key is made of visible ASCII characters (no spaces).",
-            )]));
-        }
-        None => {
-            return Err(bad_request(vec![FieldError::new(
-                "Idempotency-Key",
-                "Send an Idempotency-Key header (1 to 100 visible ASCII characters) so a retry cannot store the submission twice.",
-            )]));
-        }
-    };
-    let request: SubmissionRequest = serde_json::from_slice(body).map_err(|e| {
-        Problem::new(
-            StatusCode::BAD_REQUEST,
-            "Unreadable body",
-            format!("The body is not a submission: {e}."),
-        )
-        .into_response()
+    let client_key = idempotency_key(&headers)?;
+    let request: SubmissionRequest = serde_json::from_slice(&body).map_err(|e| {
+        AppError::bad_request(format!("The body is not a submission: {e}."))
+            .titled("Unreadable body")
     })?;
-    let (galaxy, measurements) = read_request(state, &request)
-        .await
-        .map_err(|e| e.into_response())?;
+    let (galaxy, measurements) = read_request(&state, &request).await?;
     let request_key = submissions::request_key(
         Some(token.account_id),
         &client_key,
@@ -252,33 +207,17 @@ async fn submit_inner(
         request.note.trim(),
         &request_key,
     )
-    .await;
-    let created = match created {
-        Ok(c) => c,
-        Err(SubmissionError::Db(e)) => {
-            return Err(db_problem(&e).into_response());
+    .await
+    .map_err(|e| match e {
+        SubmissionError::Db(e) => AppError::from(e),
+        e @ SubmissionError::KeyReused => AppError::invalid_saying(e.to_string())
+            .titled("Idempotency key reused")
+            .with_fields(vec![FieldError::new("Idempotency-Key", e.to_string())]),
+        e @ SubmissionError::NameTaken => {
+            AppError::invalid(vec![FieldError::new("new_galaxy.name", e.to_string())])
         }
-        Err(e @ SubmissionError::KeyReused) => {
-            return Err(Problem::new(
-                StatusCode::UNPROCESSABLE_ENTITY,
-                "Idempotency key reused",
-                e.to_string(),
-            )
-            .with_errors(vec![FieldError::new("Idempotency-Key", e.to_string())])
-            .into_response());
-        }
-        Err(e @ SubmissionError::NameTaken) => {
-            return Err(
-                Problem::invalid(vec![FieldError::new("new_galaxy.name", e.to_string())])
-                    .into_response(),
-            );
-        }
-        Err(e) => {
-            return Err(
-                Problem::invalid(vec![FieldError::new("galaxy", e.to_string())]).into_response(),
-            );
-        }
-    };
+        e => AppError::invalid(vec![FieldError::new("galaxy", e.to_string())]),
+    })?;
     let answer = SubmissionAnswer {
         submission_id: created.submission_id,
         galaxy_id: created.galaxy_id,
@@ -299,37 +238,26 @@ async fn submit_inner(
     Ok(response)
 }
 
-fn bad_request(errors: Vec<FieldError>) -> Response {
-    Problem::new(
-        StatusCode::BAD_REQUEST,
-        "Bad request",
-        "The request cannot be taken as sent; nothing was stored.",
-    )
-    .with_errors(errors)
-    .into_response()
-}
-
-/// A database failure as a problem: busy → 503 (with Retry-After), full → 507, else 500.
-fn db_problem(e: &sqlx::Error) -> Problem {
-    match crate::catalog::classify(e) {
-        crate::catalog::DbFailure::Busy => Problem::new(
-            StatusCode::SERVICE_UNAVAILABLE,
-            "Busy",
-            "The catalog is busy with another write; nothing was stored. Retry shortly.",
-        ),
-        crate::catalog::DbFailure::Full => Problem::new(
-            StatusCode::INSUFFICIENT_STORAGE,
-            "Storage full",
-            "The catalog's disk is full; nothing was stored.",
-        ),
-        crate::catalog::DbFailure::Other => {
-            tracing::error!(error = %e, "API submission failed");
-            Problem::new(
-                StatusCode::INTERNAL_SERVER_ERROR,
-                "Internal error",
-                "The submission could not be stored; nothing was stored.",
-            )
-        }
+/// The request's `Idempotency-Key`, or a 400 saying how to send one.
+fn idempotency_key(headers: &HeaderMap) -> ApiResult<String> {
+    let refused = |message: String| {
+        AppError::bad_request("The request cannot be taken as sent; nothing was stored.")
+            .with_fields(vec![FieldError::new("Idempotency-Key", message)])
+    };
+    match headers
+        .get("idempotency-key")
+        .map(|v| v.to_str().map(str::trim))
+    {
+        Some(Ok(k)) => submissions::validate_client_key(k)
+            .map(|()| k.to_owned())
+            .map_err(refused),
+        Some(Err(_)) => Err(refused(
+            "An idempotency key is made of visible ASCII characters (no spaces).".to_owned(),
+        )),
+        None => Err(refused(
+            "Send an Idempotency-Key header (1 to 100 visible ASCII characters) so a retry cannot store the submission twice."
+                .to_owned(),
+        )),
     }
 }
 
@@ -337,7 +265,7 @@ fn db_problem(e: &sqlx::Error) -> Problem {
 async fn read_request(
     state: &AppState,
     request: &SubmissionRequest,
-) -> Result<(GalaxyChoice, Vec<crate::catalog::model::NewMeasurement>), Response> {
+) -> ApiResult<(GalaxyChoice, Vec<crate::catalog::model::NewMeasurement>)> {
     let mut errors = Vec::new();
     let galaxy = match (&request.galaxy, &request.new_galaxy) {
         (Some(_), Some(_)) | (None, None) => {
@@ -356,7 +284,7 @@ async fn read_request(
                 ));
                 None
             }
-            Err(e) => return Err(db_problem(&e).into_response()),
+            Err(e) => return Err(e.into()),
         },
         (None, Some(g)) => {
             let cells: BTreeMap<&str, String> = [
@@ -430,21 +358,8 @@ async fn read_request(
     }
     match (galaxy, errors.is_empty()) {
         (Some(g), true) => Ok((g, measurements)),
-        _ => Err(Problem::invalid(errors).into_response()),
+        _ => Err(AppError::invalid(errors)),
     }
-}
-
-/// "the value …" → "The value …." (cell readers give lower-case fragments).
-fn sentence(message: &str) -> String {
-    let mut chars = message.chars();
-    let mut out: String = chars
-        .next()
-        .map(|c| c.to_uppercase().chain(chars).collect())
-        .unwrap_or_default();
-    if !out.ends_with('.') {
-        out.push('.');
-    }
-    out
 }
 
 /// `GET /api/v1/submissions/{id}`: the state of one submission. Its submitter, reviewers and
@@ -465,43 +380,26 @@ pub async fn status(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     Path(id): Path<String>,
-) -> Response {
+) -> ApiResult<axum::Json<SubmissionStatus>> {
     let not_found = || {
-        Problem::new(
-            StatusCode::NOT_FOUND,
-            "Not found",
-            format!(
-                "There is no submission {} that you may see.",
-                id.chars().take(20).collect::<String>()
-            ),
-        )
-        .into_response()
+        AppError::not_found_saying(format!(
+            "There is no submission {} that you may see.",
+            id.chars().take(20).collect::<String>()
+        ))
     };
     let (account_id, role) = match &principal {
         Principal::Token(t) => (t.account_id, t.role),
         Principal::Session(s) => (s.account_id, s.role),
         Principal::Anonymous | Principal::BadToken => {
-            return Problem::new(
-                StatusCode::UNAUTHORIZED,
-                "Unauthorized",
-                "This endpoint needs an API token.",
-            )
-            .into_response();
+            return Err(AppError::not_logged_in("This endpoint needs an API token."));
         }
     };
-    let Ok(id_number) = id.parse::<i64>() else {
-        return not_found();
-    };
-    let summary = match submissions::find(&state.pool, id_number).await {
-        Ok(s) => s,
-        Err(e) => return db_problem(&e).into_response(),
-    };
-    let Some(s) =
-        summary.filter(|s| s.account_id == Some(account_id) || role.includes(Role::Reviewer))
-    else {
-        return not_found();
-    };
-    axum::Json(SubmissionStatus {
+    let id_number = id.parse::<i64>().map_err(|_| not_found())?;
+    let s = submissions::find(&state.pool, id_number)
+        .await?
+        .filter(|s| s.account_id == Some(account_id) || role.includes(Role::Reviewer))
+        .ok_or_else(not_found)?;
+    Ok(axum::Json(SubmissionStatus {
         submission_id: s.submission_id,
         state: s.state,
         source: s.source,
@@ -511,6 +409,5 @@ pub async fn status(
         galaxy_slug: s.galaxy_slug,
         n_measurements: s.n_measurements,
         note: s.note,
-    })
-    .into_response()
+    }))
 }

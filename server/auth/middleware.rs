@@ -7,30 +7,39 @@
 //!    header into a [`Principal`] stored in the request's extensions. Expired sessions are
 //!    deleted here, with their idle and absolute limits measured on the app's clock.
 //! 3. [`guard`] (per route, with the route's [`Access`]): refuses principals the route does not
-//!    admit: pages redirect to the login page, `/api/` answers 401 or 403 as problem+json.
+//!    admit (401 or 403; the door draws it: pages redirect to the login page, `/api/` answers
+//!    problem+json).
 //! 4. [`require_form_token`] (per route, unsafe methods only): a browser's form must carry the
 //!    session's anti-forgery token in the field `csrf` (compared in constant time). The login
 //!    form, sent before any session exists, carries the value of a separate login cookie instead.
 //!    Requests authenticated by an API token need no form token: browsers never add that header
-//!    by themselves.
+//!    by themselves. A JSON endpoint also takes the session's token in the `X-CSRF-Token`
+//!    header (a JSON body has no form field).
+//!
+//! Refusals are [`AppError`]s; the door that owns the path draws them (`router`).
 
 use std::net::SocketAddr;
 
 use axum::body::{Body, Bytes};
 use axum::extract::{ConnectInfo, Request, State};
-use axum::http::{HeaderMap, HeaderValue, Method, StatusCode, header};
+use axum::http::{HeaderMap, HeaderName, HeaderValue, Method, header};
 use axum::middleware::Next;
-use axum::response::{IntoResponse, Redirect, Response};
+use axum::response::{IntoResponse, Response};
 
 use super::secret::{looks_like_api_token, same_secret, sha256_hex};
 use super::{Access, Denied, Principal, Role, Scope, SessionUser, TokenUser, check_access};
 use crate::catalog::accounts;
-use crate::error::render_error_page;
-use crate::startup::AppState;
-use crate::web::BODY_LIMIT_BYTES;
+use crate::error::AppError;
+use crate::state::AppState;
 
 /// Name of the form field that carries the anti-forgery token.
 pub const CSRF_FIELD: &str = "csrf";
+
+/// The header a browser session sends its anti-forgery token in with a JSON request.
+pub const CSRF_HEADER: &str = "x-csrf-token";
+
+/// Why a form was refused (no token, a wrong one, or one from another session).
+const FORM_REFUSED: &str = "This form has expired or did not come from this site, so nothing was changed. Reload the page and try again.";
 
 /// Facts about the server the per-route layers need, stored in each request's extensions.
 #[derive(Debug, Clone, Copy)]
@@ -98,39 +107,6 @@ fn is_unsafe(method: &Method) -> bool {
     !matches!(*method, Method::GET | Method::HEAD | Method::OPTIONS)
 }
 
-fn is_api(path: &str) -> bool {
-    path.starts_with("/api/")
-}
-
-/// An RFC 9457 problem+json answer.
-pub fn problem(status: StatusCode, title: &str, detail: &str) -> Response {
-    let body = serde_json::json!({
-        "type": "about:blank",
-        "title": title,
-        "status": status.as_u16(),
-        "detail": detail,
-    });
-    let mut response = (status, body.to_string()).into_response();
-    response.headers_mut().insert(
-        header::CONTENT_TYPE,
-        HeaderValue::from_static("application/problem+json"),
-    );
-    if status == StatusCode::UNAUTHORIZED {
-        response
-            .headers_mut()
-            .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
-    }
-    response
-}
-
-fn forbidden(path: &str, message: &str) -> Response {
-    if is_api(path) {
-        problem(StatusCode::FORBIDDEN, "Forbidden", message)
-    } else {
-        render_error_page(StatusCode::FORBIDDEN, "Not allowed", message.into(), false)
-    }
-}
-
 /// Layer 1: refuse unsafe requests that another site made the browser send.
 pub async fn refuse_cross_site(request: Request, next: Next) -> Response {
     if is_unsafe(request.method()) {
@@ -146,14 +122,10 @@ pub async fn refuse_cross_site(request: Request, next: Next) -> Response {
             !origin_matches_host(origin.to_str().unwrap_or("null"), host)
         });
         if cross_site || origin_mismatch {
-            tracing::warn!(
-                path = request.uri().path(),
-                "refused a cross-site request with an unsafe method"
-            );
-            return forbidden(
-                request.uri().path(),
+            return AppError::forbidden(
                 "This request came from another site, so it was refused and nothing was changed.",
-            );
+            )
+            .into_response();
         }
     }
     next.run(request).await
@@ -188,7 +160,7 @@ pub async fn authenticate(
     let principal = if let Some(auth) = request.headers().get(header::AUTHORIZATION) {
         match token_principal(&state, auth).await {
             Ok(p) => p,
-            Err(e) => return crate::error::AppError::from(e).into_response(),
+            Err(e) => return AppError::from(e).into_response(),
         }
     } else if let Some(id) = read_cookie(request.headers(), session_cookie_name(secure)) {
         match session_principal(&state, &id).await {
@@ -197,14 +169,16 @@ pub async fn authenticate(
                 clear_cookie = true;
                 Principal::Anonymous
             }
-            Err(e) => return crate::error::AppError::from(e).into_response(),
+            Err(e) => return AppError::from(e).into_response(),
         }
     } else {
         Principal::Anonymous
     };
-    request.extensions_mut().insert(principal);
+    request.extensions_mut().insert(principal.clone());
     request.extensions_mut().insert(context);
     let mut response = next.run(request).await;
+    // Error answers are drawn outside this layer; they show who asked (the page header's links).
+    response.extensions_mut().insert(principal);
     let session_prefix = format!("{}=", session_cookie_name(secure));
     let sets_session = response
         .headers()
@@ -305,52 +279,21 @@ pub async fn guard(access: Access, request: Request, next: Next) -> Response {
         .is_some_and(|c| c.public_read);
     match check_access(access, &principal, public_read) {
         Ok(()) => next.run(request).await,
-        Err(denied) => deny(denied, &request),
+        Err(denied) => deny(denied),
     }
 }
 
-fn deny(denied: Denied, request: &Request) -> Response {
-    let path = request.uri().path();
+fn deny(denied: Denied) -> Response {
     match denied {
-        Denied::NotLoggedIn if is_api(path) => problem(
-            StatusCode::UNAUTHORIZED,
-            "Unauthorized",
+        Denied::NotLoggedIn => AppError::not_logged_in(
             "This endpoint needs an API token (Authorization: Bearer ml_…).",
         ),
-        Denied::NotLoggedIn => {
-            let target = if request.method() == Method::GET {
-                let here = request
-                    .uri()
-                    .path_and_query()
-                    .map_or(path, |pq| pq.as_str());
-                format!("/login?next={}", encode_query_value(here))
-            } else {
-                "/login".to_string()
-            };
-            Redirect::to(&target).into_response()
-        }
-        Denied::BadToken => {
-            let detail =
-                "The API token is not valid: unknown, revoked, or its account is disabled.";
-            if is_api(path) {
-                problem(StatusCode::UNAUTHORIZED, "Unauthorized", detail)
-            } else {
-                let mut r = render_error_page(
-                    StatusCode::UNAUTHORIZED,
-                    "Not logged in",
-                    detail.into(),
-                    false,
-                );
-                r.headers_mut()
-                    .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
-                r
-            }
-        }
-        Denied::Forbidden => forbidden(
-            path,
+        Denied::BadToken => AppError::BadToken,
+        Denied::Forbidden => AppError::forbidden(
             "Your account or token is not allowed to use this page or endpoint.",
         ),
     }
+    .into_response()
 }
 
 /// Percent-encode a text for a query value (everything but unreserved characters).
@@ -366,16 +309,14 @@ pub fn encode_query_value(text: &str) -> String {
     out
 }
 
-/// Layer 4: forms of a browser must carry the anti-forgery token.
-pub async fn require_form_token(request: Request, next: Next) -> Response {
-    require_form_token_limited(request, next, BODY_LIMIT_BYTES).await
-}
-
-/// [`require_form_token`] for a route with its own body limit (the body is buffered up to it).
-pub async fn require_form_token_limited(
+/// Layer 4: forms of a browser must carry the anti-forgery token (the body is buffered up to
+/// the route's `limit_bytes`). With `json_header` (a JSON endpoint), a session may send it in the
+/// [`CSRF_HEADER`] header instead.
+pub async fn require_form_token(
     request: Request,
     next: Next,
     limit_bytes: usize,
+    json_header: bool,
 ) -> Response {
     if !is_unsafe(request.method()) {
         return next.run(request).await;
@@ -396,17 +337,26 @@ pub async fn require_form_token_limited(
             read_cookie(request.headers(), login_cookie_name(secure)).filter(|v| v.len() == 64)
         }
     };
-    let path = request.uri().path().to_string();
+    if json_header
+        && let (Principal::Session(s), Some(sent)) = (
+            &principal,
+            request
+                .headers()
+                .get(HeaderName::from_static(CSRF_HEADER))
+                .and_then(|v| v.to_str().ok()),
+        )
+        && same_secret(&s.csrf_token, sent)
+    {
+        return next.run(request).await;
+    }
     let (parts, body) = request.into_parts();
     let bytes: Bytes = match axum::body::to_bytes(body, limit_bytes).await {
         Ok(b) => b,
         Err(_) => {
-            return render_error_page(
-                StatusCode::PAYLOAD_TOO_LARGE,
-                "Too large",
-                format!("The request is larger than {limit_bytes} bytes."),
-                false,
-            );
+            return AppError::BodyTooLarge {
+                limit_bytes: Some(limit_bytes),
+            }
+            .into_response();
         }
     };
     let content_type = parts
@@ -428,11 +378,7 @@ pub async fn require_form_token_limited(
         _ => false,
     };
     if !valid {
-        tracing::warn!(path, "refused a form without a valid anti-forgery token");
-        return forbidden(
-            &path,
-            "This form has expired or did not come from this site, so nothing was changed. Reload the page and try again.",
-        );
+        return AppError::forbidden(FORM_REFUSED).into_response();
     }
     next.run(Request::from_parts(parts, Body::from(bytes)))
         .await

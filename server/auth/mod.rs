@@ -4,7 +4,7 @@
 //!   reject (never their own submission, [`may_review`]), admins also manage accounts.
 //! * [`Principal`]: the result of authenticating one request: nobody, a browser session, an API
 //!   token, or a token that was presented but is not valid.
-//! * [`Access`]: what a route asks of the principal; `web::route_table` pairs every route with one,
+//! * [`Access`]: what a route asks of the principal; `startup::route_table` pairs every route with one,
 //!   and `tests/access.toml` lists the expected answer for every route and kind of principal.
 //! * [`password`]: Argon2id hashing off the async runtime, at most two at a time; the password
 //!   rules. [`secret`]: session ids, anti-forgery tokens and API tokens. [`clock`]: the clock the

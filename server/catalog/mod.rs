@@ -16,6 +16,7 @@ pub mod demo;
 pub mod fit_runs;
 pub mod galaxies;
 pub mod history;
+pub mod intake;
 pub mod model;
 pub mod overview;
 pub mod relation_rows;

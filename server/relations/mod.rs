@@ -14,10 +14,14 @@
 //!
 //! Depends on `catalog` (rows), `astro` (distance bookkeeping) and `fit`; used by `web`.
 
+pub mod assess;
 mod cache;
 mod filter;
+pub mod galaxy;
+pub mod place;
 mod runs;
 mod sample;
+pub mod table;
 
 use std::fmt;
 
@@ -35,7 +39,49 @@ pub use sample::{
     Member, Sample, at_adopted_distance, build_sample, distance_scaling, sphere_of_influence,
 };
 
-use crate::fit::Shape;
+use std::sync::Arc;
+
+use sqlx::SqlitePool;
+
+use crate::fit::{Method, Shape};
+
+/// The catalog and its fits, as the computations on them read them (cheap to clone).
+#[derive(Clone)]
+pub struct Catalog {
+    /// The catalog database.
+    pub pool: SqlitePool,
+    /// Fits kept per catalog version.
+    pub fits: FitCache,
+    /// θ_infl / resolution from which a sphere of influence counts as resolved.
+    pub soi_threshold: f64,
+}
+
+impl Catalog {
+    /// The fit of `relation` by `method` on the galaxies `filter` admits, at `pivots`, from the
+    /// cache when the catalog version has not changed ([`fitted`]).
+    ///
+    /// # Errors
+    /// When the catalog cannot be read or the fitting task fails; a fit that cannot be made is
+    /// an `Ok` outcome whose `fit` says why.
+    pub async fn fitted(
+        &self,
+        relation: &Relation,
+        method: Method,
+        filter: &SampleFilter,
+        pivots: (f64, f64),
+    ) -> anyhow::Result<Arc<FitOutcome>> {
+        fitted(
+            &self.pool,
+            &self.fits,
+            self.soi_threshold,
+            relation,
+            method,
+            filter,
+            pivots,
+        )
+        .await
+    }
+}
 
 /// log10 of the default σ pivot, 200 km/s (Tremaine et al. 2002, ApJ 574, 740).
 pub const SIGMA_PIVOT_LOG: f64 = 2.301_029_995_663_981;

@@ -15,7 +15,7 @@ use crate::auth::secret::{new_api_token, sha256_hex};
 use crate::auth::{Principal, Scope, SessionUser, validate_label};
 use crate::catalog::accounts::{self, NewToken};
 use crate::error::{AppError, AppResult};
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// One token in the list.
 pub(crate) struct TokenView {

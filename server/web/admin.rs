@@ -20,7 +20,7 @@ use crate::auth::secret::generate_password;
 use crate::auth::{Principal, Role, validate_username};
 use crate::catalog::accounts::{self, AuditFilter};
 use crate::error::{AppError, AppResult};
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// Most audit events one page shows.
 pub(crate) const AUDIT_PAGE_LIMIT: i64 = 200;
@@ -310,9 +310,7 @@ pub(crate) async fn show_audit(
     nav: Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<AuditPage> {
-    let Query(pairs) = query.map_err(|e| {
-        AppError::bad_request(format!("The address's parameters could not be read: {e}."))
-    })?;
+    let pairs = crate::router::query_pairs(query)?;
     let filter = parse_audit_filter(&pairs).map_err(AppError::bad_request)?;
     let events = accounts::audit_events(&state.pool, &filter, AUDIT_PAGE_LIMIT)
         .await?

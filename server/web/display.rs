@@ -1,7 +1,5 @@
-//! Turning stored values into what a page shows: rounding and units; the distance rescaling and
-//! the sphere-of-influence check come from `relations`. Pages hold only strings made here.
-
-pub(crate) use crate::relations::{at_adopted_distance, sphere_of_influence};
+//! Turning numbers into what a page shows: rounding, signs and units. Pages hold only strings
+//! made here (or by `units`' formatting).
 
 use crate::catalog::model::Quantity;
 
@@ -23,6 +21,16 @@ pub(crate) fn significant(value: f64, digits: usize) -> String {
     let magnitude = value.abs().log10().floor();
     let decimals = (digits as f64 - 1.0 - magnitude).clamp(0.0, 12.0) as usize;
     fixed(value, decimals)
+}
+
+/// A number with a fixed count of decimals and its sign always shown (+0.12, −0.30).
+pub(crate) fn signed(value: f64, decimals: usize) -> String {
+    let text = fixed(value, decimals);
+    if value >= 0.0 && !text.starts_with('−') {
+        format!("+{text}")
+    } else {
+        text
+    }
 }
 
 /// The label of a stored quantity word.

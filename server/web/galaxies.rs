@@ -1,335 +1,19 @@
 //! The catalog table (`/galaxies`) and one galaxy's page (`/galaxies/{slug}`).
 
-use std::cmp::Ordering;
-
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 
-use super::display::{
-    at_adopted_distance, fixed, quantity_label, quantity_unit, significant, sphere_of_influence,
-};
-use crate::catalog::galaxies as store;
+use super::display::{fixed, quantity_label, quantity_unit, significant};
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
-use crate::catalog::relation_rows::{RelationRow, relation_rows};
 use crate::error::{AppError, AppResult};
-use crate::startup::AppState;
+use crate::relations::galaxy::{MeasurementAt, galaxy_record, place_left_out};
+use crate::relations::table::{LimitFilter, SoiFilter, SortKey, TableQuery, TableRow, table_page};
+use crate::state::AppState;
 use crate::units::{
     format_log_with_errors as log_with_errors, round_to_uncertainty as linear_with_error,
 };
-
-/// Rows per page of the catalog table unless the reader asks for another count.
-pub(crate) const DEFAULT_PER_PAGE: usize = 50;
-/// Largest page the table will show.
-pub(crate) const MAX_PER_PAGE: usize = 500;
-
-/// Columns the catalog table can be sorted by.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) enum SortKey {
-    Name,
-    LogMbh,
-    Sigma,
-    LogMbulge,
-    Distance,
-    Morphology,
-    Method,
-}
-
-impl SortKey {
-    const ALL: [(SortKey, &'static str); 7] = [
-        (SortKey::Name, "name"),
-        (SortKey::LogMbh, "log_mbh"),
-        (SortKey::Sigma, "sigma"),
-        (SortKey::LogMbulge, "log_mbulge"),
-        (SortKey::Distance, "distance"),
-        (SortKey::Morphology, "morphology"),
-        (SortKey::Method, "method"),
-    ];
-
-    fn as_str(self) -> &'static str {
-        Self::ALL
-            .iter()
-            .find(|(k, _)| *k == self)
-            .map_or("name", |(_, s)| s)
-    }
-}
-
-/// Which black-hole masses to show.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) enum LimitFilter {
-    All,
-    Detections,
-    Limits,
-}
-
-/// Sphere-of-influence filter.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) enum SoiFilter {
-    All,
-    Resolved,
-    Unresolved,
-}
-
-/// The catalog table's query, validated.
-#[derive(Debug, Clone, PartialEq)]
-pub(crate) struct TableQuery {
-    pub(crate) morphology: Option<Morphology>,
-    pub(crate) bulge_kind: Option<BulgeKind>,
-    pub(crate) method: Option<MassMethod>,
-    pub(crate) limits: LimitFilter,
-    pub(crate) soi: SoiFilter,
-    pub(crate) sort: SortKey,
-    pub(crate) descending: bool,
-    pub(crate) page: usize,
-    pub(crate) per_page: usize,
-}
-
-impl Default for TableQuery {
-    fn default() -> Self {
-        Self {
-            morphology: None,
-            bulge_kind: None,
-            method: None,
-            limits: LimitFilter::All,
-            soi: SoiFilter::All,
-            sort: SortKey::Name,
-            descending: false,
-            page: 1,
-            per_page: DEFAULT_PER_PAGE,
-        }
-    }
-}
-
-const TABLE_PARAMS: &str = "morphology, bulge_kind, method, limits, soi, sort, dir, page, per_page";
-
-impl TableQuery {
-    /// Read the query parameters; every problem becomes one sentence naming the parameter.
-    pub(crate) fn parse(pairs: &[(String, String)]) -> Result<Self, String> {
-        let mut q = Self::default();
-        let mut problems = Vec::new();
-        for (key, value) in pairs {
-            let value = value.trim();
-            if value.is_empty() {
-                continue; // an empty select means "any"
-            }
-            let result: Result<(), String> = match key.as_str() {
-                "morphology" => value.parse().map(|v| q.morphology = Some(v)),
-                "bulge_kind" => value.parse().map(|v| q.bulge_kind = Some(v)),
-                "method" => value.parse().map(|v| q.method = Some(v)),
-                "limits" => choice(
-                    value,
-                    &[
-                        ("all", LimitFilter::All),
-                        ("detections", LimitFilter::Detections),
-                        ("limits", LimitFilter::Limits),
-                    ],
-                )
-                .map(|v| q.limits = v),
-                "soi" => choice(
-                    value,
-                    &[
-                        ("all", SoiFilter::All),
-                        ("resolved", SoiFilter::Resolved),
-                        ("unresolved", SoiFilter::Unresolved),
-                    ],
-                )
-                .map(|v| q.soi = v),
-                "sort" => choice(value, &SortKey::ALL.map(|(k, s)| (s, k))).map(|v| q.sort = v),
-                "dir" => choice(value, &[("asc", false), ("desc", true)]).map(|v| q.descending = v),
-                "page" => match value.parse::<usize>() {
-                    Ok(p) if p >= 1 => {
-                        q.page = p;
-                        Ok(())
-                    }
-                    _ => Err(format!("'{value}' is not a page number (1, 2, 3, …)")),
-                },
-                "per_page" => match value.parse::<usize>() {
-                    Ok(n) if (1..=MAX_PER_PAGE).contains(&n) => {
-                        q.per_page = n;
-                        Ok(())
-                    }
-                    _ => Err(format!(
-                        "'{value}' is not a whole number from 1 to {MAX_PER_PAGE}"
-                    )),
-                },
-                other => {
-                    problems.push(format!(
-                        "'{other}' is not a parameter of this page (it accepts {TABLE_PARAMS})."
-                    ));
-                    continue;
-                }
-            };
-            if let Err(e) = result {
-                problems.push(format!("Parameter '{key}': {e}."));
-            }
-        }
-        if problems.is_empty() {
-            Ok(q)
-        } else {
-            Err(problems.join(" "))
-        }
-    }
-
-    /// The query string for this query with some changes (used by links), without the '?'.
-    fn to_query_string(&self) -> String {
-        let mut parts = Vec::new();
-        if let Some(m) = self.morphology {
-            parts.push(format!("morphology={}", m.as_str()));
-        }
-        if let Some(b) = self.bulge_kind {
-            parts.push(format!("bulge_kind={}", b.as_str()));
-        }
-        if let Some(m) = self.method {
-            parts.push(format!("method={}", m.as_str()));
-        }
-        match self.limits {
-            LimitFilter::All => {}
-            LimitFilter::Detections => parts.push("limits=detections".into()),
-            LimitFilter::Limits => parts.push("limits=limits".into()),
-        }
-        match self.soi {
-            SoiFilter::All => {}
-            SoiFilter::Resolved => parts.push("soi=resolved".into()),
-            SoiFilter::Unresolved => parts.push("soi=unresolved".into()),
-        }
-        parts.push(format!("sort={}", self.sort.as_str()));
-        parts.push(format!(
-            "dir={}",
-            if self.descending { "desc" } else { "asc" }
-        ));
-        if self.per_page != DEFAULT_PER_PAGE {
-            parts.push(format!("per_page={}", self.per_page));
-        }
-        parts.push(format!("page={}", self.page));
-        parts.join("&")
-    }
-}
-
-/// One of a closed set of words, or a sentence listing them.
-fn choice<T: Copy>(value: &str, options: &[(&str, T)]) -> Result<T, String> {
-    options
-        .iter()
-        .find(|(word, _)| *word == value)
-        .map(|(_, v)| *v)
-        .ok_or_else(|| {
-            let words: Vec<&str> = options.iter().map(|(w, _)| *w).collect();
-            format!("'{value}' is not one of: {}", words.join(", "))
-        })
-}
-
-/// A catalog row with the values the table shows, computed once.
-#[derive(Debug, Clone, PartialEq)]
-pub(crate) struct TableRow {
-    pub(crate) row: RelationRow,
-    /// Adopted log M_BH rescaled to the adopted distance.
-    pub(crate) log_mbh_adopted_d: Option<f64>,
-    /// Adopted log M_bulge rescaled to the adopted distance.
-    pub(crate) log_mbulge_adopted_d: Option<f64>,
-    /// θ_infl / resolution ≥ threshold, when it can be computed.
-    pub(crate) resolved: Option<bool>,
-}
-
-impl TableRow {
-    pub(crate) fn new(row: RelationRow, soi_threshold: f64) -> Self {
-        let log_mbh_adopted_d = row.log_mbh.map(|v| {
-            at_adopted_distance(
-                v,
-                "bh_mass",
-                row.mbh_method.as_deref().unwrap_or(""),
-                row.mbh_source_distance_mpc,
-                row.distance_mpc,
-            )
-        });
-        let log_mbulge_adopted_d = row.log_mbulge.map(|v| {
-            at_adopted_distance(
-                v,
-                "bulge_mass",
-                row.mbulge_method.as_deref().unwrap_or(""),
-                row.mbulge_source_distance_mpc,
-                row.distance_mpc,
-            )
-        });
-        let resolved = log_mbh_adopted_d
-            .and_then(|log_mbh| {
-                sphere_of_influence(
-                    log_mbh,
-                    row.mbh_method.as_deref().unwrap_or(""),
-                    row.log_sigma,
-                    row.distance_mpc,
-                    row.mbh_resolution_arcsec,
-                    soi_threshold,
-                )
-            })
-            .and_then(|s| s.resolved);
-        Self {
-            row,
-            log_mbh_adopted_d,
-            log_mbulge_adopted_d,
-            resolved,
-        }
-    }
-
-    fn matches(&self, q: &TableQuery) -> bool {
-        let r = &self.row;
-        q.morphology.is_none_or(|m| r.morphology == m.as_str())
-            && q.bulge_kind.is_none_or(|b| r.bulge_kind == b.as_str())
-            && q.method
-                .is_none_or(|m| r.mbh_method.as_deref() == Some(m.as_str()))
-            && match q.limits {
-                LimitFilter::All => true,
-                LimitFilter::Detections => r.mbh_upper_limit == Some(false),
-                LimitFilter::Limits => r.mbh_upper_limit == Some(true),
-            }
-            && match q.soi {
-                SoiFilter::All => true,
-                SoiFilter::Resolved => self.resolved == Some(true),
-                SoiFilter::Unresolved => self.resolved == Some(false),
-            }
-    }
-
-    fn compare(&self, other: &Self, key: SortKey) -> Ordering {
-        let (a, b) = (&self.row, &other.row);
-        match key {
-            SortKey::Name => a.name.to_lowercase().cmp(&b.name.to_lowercase()),
-            SortKey::LogMbh => cmp_opt(self.log_mbh_adopted_d, other.log_mbh_adopted_d),
-            SortKey::Sigma => cmp_opt(a.log_sigma, b.log_sigma),
-            SortKey::LogMbulge => cmp_opt(self.log_mbulge_adopted_d, other.log_mbulge_adopted_d),
-            SortKey::Distance => a.distance_mpc.total_cmp(&b.distance_mpc),
-            SortKey::Morphology => a.morphology.cmp(&b.morphology),
-            SortKey::Method => a.mbh_method.cmp(&b.mbh_method),
-        }
-    }
-}
-
-/// Missing values sort last in either direction is not possible with a plain reverse; they sort
-/// as smallest, which puts them first ascending and last descending, like most spreadsheets.
-fn cmp_opt(a: Option<f64>, b: Option<f64>) -> Ordering {
-    match (a, b) {
-        (Some(x), Some(y)) => x.total_cmp(&y),
-        (None, Some(_)) => Ordering::Less,
-        (Some(_), None) => Ordering::Greater,
-        (None, None) => Ordering::Equal,
-    }
-}
-
-/// Filter, sort (name breaks ties) and cut one page. Returns the page and the number of matches.
-pub(crate) fn select_page(rows: Vec<TableRow>, q: &TableQuery) -> (Vec<TableRow>, usize) {
-    let mut matching: Vec<TableRow> = rows.into_iter().filter(|r| r.matches(q)).collect();
-    matching.sort_by(|a, b| {
-        let primary = a.compare(b, q.sort);
-        let primary = if q.descending {
-            primary.reverse()
-        } else {
-            primary
-        };
-        primary.then_with(|| a.compare(b, SortKey::Name))
-    });
-    let total = matching.len();
-    let start = (q.page - 1).saturating_mul(q.per_page);
-    let page = matching.into_iter().skip(start).take(q.per_page).collect();
-    (page, total)
-}
 
 /// One displayed row.
 pub(crate) struct RowView {
@@ -391,17 +75,10 @@ pub(crate) async fn list_galaxies(
     nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<GalaxiesListPage> {
-    let Query(pairs) = query.map_err(|e| {
-        AppError::bad_request(format!("The address's parameters could not be read: {e}."))
-    })?;
+    let pairs = crate::router::query_pairs(query)?;
     let q = TableQuery::parse(&pairs).map_err(AppError::bad_request)?;
     let threshold = state.settings.soi_threshold;
-    let rows = relation_rows(&state.pool)
-        .await?
-        .into_iter()
-        .map(|r| TableRow::new(r, threshold))
-        .collect();
-    let (page_rows, total) = select_page(rows, &q);
+    let (page_rows, total) = table_page(&state.pool, threshold, &q).await?;
     let pages = total.div_ceil(q.per_page).max(1);
     if q.page > pages {
         return Err(AppError::bad_request(format!(
@@ -611,18 +288,20 @@ pub(crate) struct GalaxyShowPage {
     reviews: Vec<crate::catalog::submissions::ReviewNote>,
 }
 
-/// Show one galaxy with every measurement.
+/// Show one galaxy with every measurement, and where it falls against each relation fitted
+/// without it.
 pub(crate) async fn show_galaxy(
     State(state): State<AppState>,
     nav: super::Nav,
     Path(slug): Path<String>,
 ) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
-    let galaxy = store::find_by_slug(&state.pool, &slug)
+    let threshold = state.settings.soi_threshold;
+    let record = galaxy_record(&state.pool, threshold, &slug)
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
-    let measurements = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
-    let left_out = placements_left_out(&state, galaxy.galaxy_id).await?;
+    let galaxy = &record.galaxy;
+    let left_out = place_left_out(&state.catalog(), galaxy.galaxy_id).await?;
     let mut reviews =
         crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?;
     for r in &mut reviews {
@@ -632,86 +311,11 @@ pub(crate) async fn show_galaxy(
             .unwrap_or(&r.created_at)
             .replace('T', " ");
     }
-    // The adopted σ is what the sphere-of-influence check uses.
-    let adopted_log_sigma = measurements
-        .iter()
-        .find(|m| m.quantity == "sigma" && m.adopted)
-        .map(|m| m.log_value);
-    let threshold = state.settings.soi_threshold;
-    let views = measurements
-        .iter()
-        .map(|m| {
-            let rescaled = at_adopted_distance(
-                m.log_value,
-                &m.quantity,
-                &m.method,
-                m.source_distance_mpc,
-                galaxy.distance_mpc,
-            );
-            let soi = (m.quantity == "bh_mass")
-                .then(|| {
-                    sphere_of_influence(
-                        rescaled,
-                        &m.method,
-                        adopted_log_sigma,
-                        galaxy.distance_mpc,
-                        m.resolution_arcsec,
-                        threshold,
-                    )
-                })
-                .flatten()
-                .map(|s| SoiView {
-                    radius_pc: significant(s.radius_pc, 3),
-                    theta_arcsec: significant(s.theta_arcsec, 3),
-                    resolution_arcsec: s
-                        .resolution_arcsec
-                        .map_or("not recorded".into(), |r| format!("{}″", significant(r, 2))),
-                    ratio: s.ratio.map_or("—".into(), |r| significant(r, 2)),
-                    verdict: match s.resolved {
-                        Some(true) => "resolved",
-                        Some(false) => "not resolved",
-                        None => "unknown (no resolution recorded)",
-                    },
-                });
-            let canonical =
-                log_with_errors(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit);
-            let at_adopted = if (rescaled - m.log_value).abs() > 5e-4 {
-                log_with_errors(rescaled, m.err_minus_dex, m.err_plus_dex, m.upper_limit)
-            } else {
-                "same".into()
-            };
-            let detail = match m.quantity.as_str() {
-                "sigma" => {
-                    let def = m
-                        .sigma_definition
-                        .parse::<crate::catalog::model::SigmaDefinition>()
-                        .map_or("", |d| d.label());
-                    if m.aperture.is_empty() {
-                        def.to_string()
-                    } else {
-                        format!("{def}, aperture {}", m.aperture)
-                    }
-                }
-                "bulge_luminosity" => format!("band {}", m.band),
-                _ => String::new(),
-            };
-            MeasurementView {
-                quantity: quantity_label(&m.quantity),
-                value_text: m.value_text.clone(),
-                canonical,
-                unit: quantity_unit(&m.quantity, &m.band),
-                at_adopted_distance: at_adopted,
-                method: method_label(&m.quantity, &m.method),
-                detail,
-                reference: m.reference.clone(),
-                source_distance: m.source_distance_mpc.map_or("—".into(), |d| fixed(d, 2)),
-                state: m.state.clone(),
-                adopted: m.adopted,
-                note: m.note.clone(),
-                soi,
-            }
-        })
-        .collect();
+    let (rows, charts) = super::place::views(
+        &left_out.placements,
+        &galaxy.name,
+        Some(&format!("/galaxies/{}", galaxy.slug)),
+    );
     Ok(GalaxyShowPage {
         nav,
         name: galaxy.name.clone(),
@@ -732,106 +336,73 @@ pub(crate) async fn show_galaxy(
             .distance_method
             .parse::<DistanceMethod>()
             .map_or("other", DistanceMethod::label),
-        measurements: views,
+        measurements: record
+            .measurements
+            .iter()
+            .map(MeasurementView::of)
+            .collect(),
         soi_threshold: significant(threshold, 2),
-        rows: left_out.rows,
-        charts: left_out.charts,
-        no_relation: left_out.no_relation,
+        rows,
+        charts,
+        no_relation: left_out.none_because,
         reviews,
     })
 }
 
-/// The galaxy page's placement section.
-struct LeftOut {
-    rows: Vec<super::place::PlaceRow>,
-    charts: Vec<super::place::PlaceChart>,
-    no_relation: Option<String>,
-}
-
-/// The galaxy against every relation it has values for, each fitted (structural, default
-/// sample and pivots, as on `/relations`) without the galaxy, so its own point cannot pull
-/// the relation towards itself. The left-out fits are cached per catalog version.
-async fn placements_left_out(state: &AppState, galaxy_id: i64) -> AppResult<LeftOut> {
-    use super::place::{Subject, SubjectMass, input_text, place_against};
-    use crate::catalog::relation_rows;
-    use crate::fit::Method;
-    use crate::relations::{FitKey, Relation, SampleFilter, build_sample, fitted_leaving_out};
-
-    let version = crate::catalog::history::current_version(&state.pool).await?;
-    let rows = relation_rows::relation_rows(&state.pool).await?;
-    let lums = relation_rows::luminosity_rows(&state.pool).await?;
-    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
-        .await?
-        .into_iter()
-        .filter(|b| Relation::valid_band(b))
-        .collect();
-    let filter = SampleFilter::default();
-    let method = Method::Structural;
-    let mut out = LeftOut {
-        rows: Vec::new(),
-        charts: Vec::new(),
-        no_relation: None,
-    };
-    for relation in Relation::all(&bands) {
-        let pivots = (relation.default_pivot(), relation.default_pivot2());
-        let sample = build_sample(
-            &rows,
-            &lums,
-            &relation,
-            &filter,
-            state.settings.soi_threshold,
-        );
-        let full_key = FitKey::new(version, &relation, method, &filter, pivots.0, pivots.1);
-        let Some((outcome, index)) = fitted_leaving_out(
-            &state.fits,
-            &full_key,
-            &relation,
-            method,
-            &sample,
-            galaxy_id,
-        )
-        .await?
-        else {
-            continue;
+impl MeasurementView {
+    /// One measurement as the galaxy page shows it.
+    fn of(at: &MeasurementAt) -> Self {
+        let m = &at.measurement;
+        let rescaled = at.log_value_at_adopted_distance;
+        let soi = at.sphere_of_influence.as_ref().map(|s| SoiView {
+            radius_pc: significant(s.radius_pc, 3),
+            theta_arcsec: significant(s.theta_arcsec, 3),
+            resolution_arcsec: s
+                .resolution_arcsec
+                .map_or("not recorded".into(), |r| format!("{}″", significant(r, 2))),
+            ratio: s.ratio.map_or("—".into(), |r| significant(r, 2)),
+            verdict: match s.resolved {
+                Some(true) => "resolved",
+                Some(false) => "not resolved",
+                None => "unknown (no resolution recorded)",
+            },
+        });
+        let at_adopted = if (rescaled - m.log_value).abs() > 5e-4 {
+            log_with_errors(rescaled, m.err_minus_dex, m.err_plus_dex, m.upper_limit)
+        } else {
+            "same".into()
         };
-        let (p, m) = (&sample.points[index], &sample.members[index]);
-        let shown = |v: f64, e: f64| log_with_errors(v, e, e, false);
-        let x2_text = p.x2.map(|b| shown(b, p.x2_err));
-        let subject = Subject {
-            name: m.name.clone(),
-            href: Some(format!("/galaxies/{}", m.slug)),
-            x: (p.x, p.x_err),
-            x2: p.x2.map(|b| (b, p.x2_err)),
-            mass: Some(SubjectMass {
-                log_mbh: p.y,
-                err_minus_dex: p.y_err,
-                err_plus_dex: p.y_err,
-                err_dex: p.y_err,
-                xy_cov: p.xy_cov,
-                upper_limit: p.upper_limit,
-            }),
-            input: input_text(&relation, &shown(p.x, p.x_err), x2_text.as_deref()),
-        };
-        let placed = place_against(&relation, &outcome, &subject);
-        out.rows.push(placed.row);
-        out.charts.extend(placed.chart);
-    }
-    if out.rows.is_empty() {
-        let row = rows.iter().find(|r| r.galaxy_id == galaxy_id);
-        let why = match row {
-            Some(r) if r.log_mbh.is_none() => {
-                "it has no adopted black-hole mass or upper limit".to_owned()
+        let detail = match m.quantity.as_str() {
+            "sigma" => {
+                let def = m
+                    .sigma_definition
+                    .parse::<crate::catalog::model::SigmaDefinition>()
+                    .map_or("", |d| d.label());
+                if m.aperture.is_empty() {
+                    def.to_string()
+                } else {
+                    format!("{def}, aperture {}", m.aperture)
+                }
             }
-            Some(r) if r.sigma_definition.as_deref() == Some("sigma_c") => {
-                "its adopted σ is a central σ_c, which the default fits (σ_e) leave out, and it has no bulge mass or luminosity".to_owned()
-            }
-            _ => "it has no adopted σ_e, bulge mass or bulge luminosity".to_owned(),
+            "bulge_luminosity" => format!("band {}", m.band),
+            _ => String::new(),
         };
-        out.no_relation = Some(format!(
-            "No relation applies to this galaxy: {why}. The relations need a black-hole mass (or upper limit) with a velocity dispersion σ_e, a bulge mass, or a bulge luminosity."
-        ));
+        MeasurementView {
+            quantity: quantity_label(&m.quantity),
+            value_text: m.value_text.clone(),
+            canonical: log_with_errors(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
+            unit: quantity_unit(&m.quantity, &m.band),
+            at_adopted_distance: at_adopted,
+            method: method_label(&m.quantity, &m.method),
+            detail,
+            reference: m.reference.clone(),
+            source_distance: m.source_distance_mpc.map_or("—".into(), |d| fixed(d, 2)),
+            state: m.state.clone(),
+            adopted: m.adopted,
+            note: m.note.clone(),
+            soi,
+        }
     }
-    Ok(out)
 }
 
 fn method_label(quantity: &str, method: &str) -> String {
@@ -844,74 +415,5 @@ fn method_label(quantity: &str, method: &str) -> String {
             .parse::<BulgeMassMethod>()
             .map_or_else(|_| method.to_string(), |m| m.label().to_string()),
         _ => "—".to_string(),
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| (k.to_string(), v.to_string()))
-            .collect()
-    }
-
-    #[test]
-    fn table_query_reads_every_parameter() {
-        let q = TableQuery::parse(&pairs(&[
-            ("morphology", "spiral"),
-            ("bulge_kind", "pseudo"),
-            ("method", "maser"),
-            ("limits", "detections"),
-            ("soi", "unresolved"),
-            ("sort", "sigma"),
-            ("dir", "desc"),
-            ("page", "2"),
-            ("per_page", "10"),
-        ]))
-        .unwrap();
-        assert_eq!(q.morphology, Some(Morphology::Spiral));
-        assert_eq!(q.bulge_kind, Some(BulgeKind::Pseudo));
-        assert_eq!(q.method, Some(MassMethod::Maser));
-        assert_eq!(
-            (q.limits, q.soi),
-            (LimitFilter::Detections, SoiFilter::Unresolved)
-        );
-        assert_eq!(
-            (q.sort, q.descending, q.page, q.per_page),
-            (SortKey::Sigma, true, 2, 10)
-        );
-        // The query string round-trips.
-        let again = TableQuery::parse(
-            &q.to_query_string()
-                .split('&')
-                .map(|kv| {
-                    let (k, v) = kv.split_once('=').unwrap();
-                    (k.to_string(), v.to_string())
-                })
-                .collect::<Vec<_>>(),
-        )
-        .unwrap();
-        assert_eq!(again, q);
-    }
-
-    #[test]
-    fn table_query_names_each_bad_parameter() {
-        let err = TableQuery::parse(&pairs(&[("sort", "colour"), ("page", "0"), ("fish", "1")]))
-            .unwrap_err();
-        assert!(
-            err.contains("Parameter 'sort': 'colour' is not one of"),
-            "{err}"
-        );
-        assert!(err.contains("Parameter 'page'"), "{err}");
-        assert!(err.contains("'fish' is not a parameter"), "{err}");
-        assert!(TableQuery::parse(&pairs(&[("per_page", "100000")])).is_err());
-        // Empty values mean "any".
-        assert_eq!(
-            TableQuery::parse(&pairs(&[("morphology", "")])).unwrap(),
-            TableQuery::default()
-        );
     }
 }

@@ -23,7 +23,7 @@ use crate::auth::secret::{random_hex_256, sha256_hex};
 use crate::auth::{FAILURE_POLICY, Principal};
 use crate::catalog::accounts::{self, NewSession};
 use crate::error::AppResult;
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// The one message of every refused login: it does not say whether the name exists.
 pub(crate) const LOGIN_FAILED: &str = "The user name or the password is wrong.";

@@ -7,7 +7,7 @@ use axum::extract::State;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::catalog::{accounts, history, overview};
 use crate::error::AppResult;
-use crate::startup::AppState;
+use crate::state::AppState;
 
 /// How many recent changes the overview lists.
 const RECENT_EVENTS: i64 = 10;

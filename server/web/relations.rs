@@ -24,7 +24,7 @@ use crate::relations::{
     DEFAULT_REPLICATES, DEFAULT_STEPS, FitOutcome, Member, Relation, RunKey, RunKind, RunState,
     SampleFilter, fitted, stored_run,
 };
-use crate::startup::AppState;
+use crate::state::AppState;
 use crate::units::round_to_uncertainty;
 
 /// |z| at which an object is listed as an outlier (common practice: docs/methods.md §6).
@@ -368,9 +368,7 @@ async fn relation_named(state: &AppState, slug: &str) -> AppResult<Relation> {
 fn read_query(
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<RelationQuery> {
-    let Query(pairs) = query.map_err(|e| {
-        AppError::bad_request(format!("The address's parameters could not be read: {e}."))
-    })?;
+    let pairs = crate::router::query_pairs(query)?;
     RelationQuery::parse(&pairs).map_err(AppError::bad_request)
 }
 

@@ -1,7 +1,7 @@
 //! `/review`: the reviewers' queue of pending submissions, largest |z| first, and the accept
 //! and reject actions.
 //!
-//! Each entry shows what accepting it would mean ([`super::submissions::assess`]): residual
+//! Each entry shows what accepting it would mean (`relations::assess`): residual
 //! and z against the current structural fits, the sphere-of-influence check, the mass at the
 //! adopted distance, adopted values it would replace (the reviewer chooses, per clash, which
 //! stays adopted) and how a refit with it would move α, β and ε. A reviewer never decides on
@@ -18,11 +18,13 @@ use axum::response::Redirect;
 use super::Nav;
 use super::account::session_of;
 use super::place::PlaceRow;
-use super::submissions::{ClashView, MeasurementView, assess};
+use super::submissions::{AssessmentView, ClashView, MeasurementView, parse_id};
 use crate::auth::{Principal, may_review};
+use crate::catalog::intake::check_note;
 use crate::catalog::submissions::{self, SubmissionError};
 use crate::error::{AppError, AppResult};
-use crate::startup::AppState;
+use crate::relations::assess::{QueueEntry, review_queue_page};
+use crate::state::AppState;
 
 /// The sentence of the 403 for one's own submission.
 const OWN_SUBMISSION: &str =
@@ -86,28 +88,27 @@ pub(crate) async fn show_queue(
             ))
         })?,
     };
-    let mut ordered = Vec::new();
-    for p in submissions::review_queue(&state.pool).await? {
-        let Some(galaxy) = submissions::galaxy_by_id(&state.pool, p.summary.galaxy_id).await?
-        else {
-            continue;
-        };
-        let a = assess(&state, &galaxy, &p.measurements, false, false).await?;
-        ordered.push((a.max_abs_z, p, galaxy));
-    }
-    // Stable sort: equal |z| keep the queue's oldest-first order.
-    ordered.sort_by(|a, b| b.0.total_cmp(&a.0));
-    let total = ordered.len();
+    let (entries, total) = review_queue_page(&state.catalog(), page, QUEUE_PAGE).await?;
+    let items = entries
+        .iter()
+        .map(|e| QueueItem::of(e, user.role, user.account_id))
+        .collect();
     let pages = total.div_ceil(QUEUE_PAGE).max(1);
-    let mut items = Vec::new();
-    for (_, p, galaxy) in ordered
-        .into_iter()
-        .skip((page - 1).saturating_mul(QUEUE_PAGE))
-        .take(QUEUE_PAGE)
-    {
-        let a = assess(&state, &galaxy, &p.measurements, false, true).await?;
-        let s = &p.summary;
-        items.push(QueueItem {
+    Ok(ReviewPage {
+        nav,
+        csrf: user.csrf_token.clone(),
+        items,
+        total,
+        page,
+        pages,
+    })
+}
+
+impl QueueItem {
+    fn of(e: &QueueEntry, role: crate::auth::Role, account_id: i64) -> Self {
+        let s = &e.pending.summary;
+        let a = AssessmentView::of(&e.assessment, &e.galaxy.name, None, false);
+        QueueItem {
             id: s.submission_id,
             galaxy_name: s.galaxy_name.clone(),
             galaxy_slug: s.galaxy_slug.clone(),
@@ -121,27 +122,19 @@ pub(crate) async fn show_queue(
                 .unwrap_or(&s.created_at)
                 .replace('T', " "),
             note: s.note.clone(),
-            own: !may_review(user.role, user.account_id, s.account_id),
-            measurements: p.measurements.iter().map(MeasurementView::new).collect(),
+            own: !may_review(role, account_id, s.account_id),
+            measurements: e
+                .pending
+                .measurements
+                .iter()
+                .map(MeasurementView::new)
+                .collect(),
             rows: a.rows,
             soi: a.soi,
             mass_at_adopted: a.mass_at_adopted,
             clashes: a.clashes,
-        });
+        }
     }
-    Ok(ReviewPage {
-        nav,
-        csrf: user.csrf_token.clone(),
-        items,
-        total,
-        page,
-        pages,
-    })
-}
-
-fn parse_id(id: &str) -> AppResult<i64> {
-    id.parse()
-        .map_err(|_| AppError::bad_request("The submission number in the address is not a number."))
 }
 
 /// Refuse unless the submission exists and the caller may review it.
@@ -189,7 +182,7 @@ pub(crate) async fn accept(
             keep_old.insert(mid);
         }
     }
-    check_note(&note)?;
+    check_note(&note).map_err(|e| AppError::bad_request(format!("{e} Nothing was changed.")))?;
     submissions::accept(&state.pool, reviewer, id, &keep_old, &note)
         .await
         .map_err(decision_error)?;
@@ -218,19 +211,9 @@ pub(crate) async fn reject(
             "A rejection needs a note saying why; nothing was changed.",
         ));
     }
-    check_note(note)?;
+    check_note(note).map_err(|e| AppError::bad_request(format!("{e} Nothing was changed.")))?;
     submissions::reject(&state.pool, reviewer, id, note)
         .await
         .map_err(decision_error)?;
     Ok(Redirect::to("/review"))
-}
-
-fn check_note(note: &str) -> AppResult<()> {
-    if note.chars().count() > 2000 {
-        Err(AppError::bad_request(
-            "The note has at most 2000 characters; nothing was changed.",
-        ))
-    } else {
-        Ok(())
-    }
 }

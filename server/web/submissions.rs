@@ -19,20 +19,18 @@ use axum::response::{IntoResponse, Redirect, Response};
 use super::Nav;
 use super::account::session_of;
 use super::display::{fixed, significant};
-use super::place::{PlaceChart, PlaceRow, Subject, SubjectMass, input_text, place_on_relation};
-use crate::astro::{distance_covariance_dex2, log_distance_error_dex};
+use super::place::{PlaceChart, PlaceRow};
 use crate::auth::{Principal, Role, SessionUser};
-use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
-use crate::catalog::galaxies::{self as store, SubmissionSource};
+use crate::catalog::galaxies::SubmissionSource;
+use crate::catalog::intake::{self, Cell, Cells, Checked, GalaxyCells, SubmissionCells, sentence};
 use crate::catalog::model::{
-    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, Galaxy, MassMethod, Measurement,
-    Morphology, Quantity, SigmaDefinition,
+    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Measurement, Morphology,
+    Quantity, SigmaDefinition,
 };
-use crate::catalog::relation_rows;
-use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError, SubmissionSummary};
+use crate::catalog::submissions::{self, SubmissionError, SubmissionSummary};
 use crate::error::{AppError, AppResult};
-use crate::relations::{Relation, at_adopted_distance, distance_scaling, sphere_of_influence};
-use crate::startup::AppState;
+use crate::relations::assess::{Assessment, assess, assess_unstored};
+use crate::state::AppState;
 use crate::units::format_log_with_errors;
 
 /// Measurement rows on a fresh form.
@@ -233,7 +231,8 @@ pub(crate) async fn new_submission(
 }
 
 /// Store a submission from the form, or show the form again with a message beside each field
-/// at fault (400) and nothing written.
+/// at fault (400) and nothing written. "Add a measurement row" and "Check against the
+/// relations" show the form again, as typed, without storing anything.
 pub(crate) async fn create_submission(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
@@ -242,68 +241,105 @@ pub(crate) async fn create_submission(
 ) -> AppResult<Response> {
     let user = session_of(&principal)?;
     let mut fields: Fields = pairs.into_iter().collect();
-    let action = fields.get("action").map_or("submit", |a| a.as_str());
+    let action = fields
+        .get("action")
+        .map_or("submit", |a| a.as_str())
+        .to_owned();
     if action == "add_row" {
-        // Nothing is checked or stored: the same form with one more row, as typed.
         let n = (rows_of(&fields) + 1).min(MAX_FORM_ROWS);
         fields.insert("rows".into(), n.to_string());
         let page = form_page(&state, user, nav, &fields, &HashMap::new(), None).await?;
         return Ok(page.into_response());
     }
-    let checking = action == "check";
-    let get = |name: &str| fields.get(name).map_or("", |v| v.as_str());
-    let mut errors: HashMap<String, String> = HashMap::new();
+    let read = read_form(&state, &fields).await?;
+    let (Some(checked), None) = (read.checked, &read.form_error) else {
+        let form_error = read
+            .form_error
+            .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
+        let page = form_page(&state, user, nav, &fields, &read.errors, form_error).await?;
+        return Ok((StatusCode::BAD_REQUEST, page).into_response());
+    };
+    if action == "check" {
+        let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
+        let v = AssessmentView::of(&a, "", None, true);
+        let mut page = form_page(&state, user, nav, &fields, &read.errors, None).await?;
+        page.preview = Some(Preview {
+            rows: v.rows,
+            charts: v.charts,
+            soi: v.soi,
+            mass_at_adopted: v.mass_at_adopted,
+        });
+        return Ok(page.into_response());
+    }
+    let note = fields.get("note").map_or("", |v| v.trim());
+    let request = submissions::request_key(
+        Some(user.account_id),
+        &read.client_key,
+        &checked.galaxy,
+        &checked.measurements,
+        note,
+    );
+    let created = submissions::create(
+        &state.pool,
+        Some(user.account_id),
+        SubmissionSource::Form,
+        &checked.galaxy,
+        &checked.measurements,
+        note,
+        &request,
+    )
+    .await;
+    match created {
+        // A replay (the same form posted twice) lands on the same submission.
+        Ok(c) => Ok(Redirect::to(&format!("/submissions/{}", c.submission_id)).into_response()),
+        Err(e) => refused_submission(&state, user, nav, fields, e).await,
+    }
+}
 
+/// What the form holds, read: the submission when every cell could be read, the message of
+/// each field at fault, a message for the form as a whole, and its idempotency key.
+struct FormReading {
+    checked: Option<Checked>,
+    errors: HashMap<String, String>,
+    form_error: Option<String>,
+    client_key: String,
+}
+
+/// Read the submission form's cells through `catalog::intake` (rows left blank are skipped).
+async fn read_form(state: &AppState, fields: &Fields) -> AppResult<FormReading> {
+    let get = |name: &str| fields.get(name).map_or("", |v| v.as_str());
     let slug = get("galaxy").trim();
     let galaxy = if slug.is_empty() {
-        match galaxy_from_cells("form", 0, &|c| get(c)) {
-            Ok(g) => Some(GalaxyChoice::New(g)),
-            Err(e) => {
-                errors.insert(e.column.to_owned(), capitalised(&e.message));
-                None
-            }
-        }
+        GalaxyCells::New(Box::new(|c| get(c)))
     } else {
-        match store::find_by_slug(&state.pool, slug).await? {
-            Some(g) => Some(GalaxyChoice::Existing(g.galaxy_id)),
-            None => {
-                errors.insert(
-                    "galaxy".into(),
-                    "That galaxy is not in the catalog; choose another or describe a new one."
-                        .into(),
-                );
-                None
-            }
-        }
+        GalaxyCells::Slug(slug)
     };
-
-    let mut measurements = Vec::new();
-    for i in 0..rows_of(&fields) {
-        let key = |c: &str| format!("m{i}_{c}");
-        let used = ["quantity", "value"]
-            .iter()
-            .any(|c| !get(&key(c)).trim().is_empty());
-        if !used {
-            continue;
-        }
-        match measurement_from_cells("form", 0, &|c| get(&key(c))) {
-            Ok(m) => measurements.push(m),
-            Err(e) => {
-                errors.insert(key(e.column), capitalised(&e.message));
-            }
-        }
-    }
-    let note = get("note").trim();
-    if note.chars().count() > 2000 {
-        errors.insert(
-            "note".into(),
-            "The note has at most 2000 characters.".into(),
-        );
-    }
-    let mut form_error = None;
-    if measurements.is_empty() && errors.keys().all(|k| !k.starts_with('m')) {
-        form_error = Some("Give at least one measurement: a quantity and its value.".to_owned());
-    }
+    let rows: Vec<(usize, Box<Cells<'_>>)> = (0..rows_of(fields))
+        .filter(|i| {
+            ["quantity", "value"]
+                .iter()
+                .any(|c| !get(&format!("m{i}_{c}")).trim().is_empty())
+        })
+        .map(|i| -> (usize, Box<Cells<'_>>) { (i, Box::new(move |c| get(&format!("m{i}_{c}")))) })
+        .collect();
+    let filled = !rows.is_empty();
+    let cells = SubmissionCells {
+        galaxy,
+        rows,
+        note: get("note"),
+    };
+    let (checked, errors) = match intake::check(&state.pool, &cells).await? {
+        Ok(c) => (Some(c), HashMap::new()),
+        Err(faults) => (
+            None,
+            faults
+                .into_iter()
+                .map(|f| (form_field(f.cell), f.message))
+                .collect(),
+        ),
+    };
+    let mut form_error = (!filled && errors.keys().all(|k| !k.starts_with('m')))
+        .then(|| "Give at least one measurement: a quantity and its value.".to_owned());
     // A form always carries its key; a client posting without one gets a fresh key (no retry
     // protection, but nothing refused).
     let client_key = match fields.get("request_key").map(|k| k.trim()) {
@@ -316,146 +352,58 @@ pub(crate) async fn create_submission(
             }
         },
     };
-    let (Some(galaxy), true, None) = (galaxy, errors.is_empty(), &form_error) else {
-        let form_error = form_error
-            .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
-        let page = form_page(&state, user, nav, &fields, &errors, form_error).await?;
-        return Ok((StatusCode::BAD_REQUEST, page).into_response());
-    };
-    if checking {
-        let mut page = form_page(&state, user, nav, &fields, &errors, None).await?;
-        page.preview = Some(preview(&state, &galaxy, &measurements).await?);
-        return Ok(page.into_response());
+    Ok(FormReading {
+        checked,
+        errors,
+        form_error,
+        client_key,
+    })
+}
+
+/// The form's name of an intake cell.
+fn form_field(cell: Cell) -> String {
+    match cell {
+        Cell::Galaxy => "galaxy".to_owned(),
+        Cell::NewGalaxy(column) => column.to_owned(),
+        Cell::Measurement(row, column) => format!("m{row}_{column}"),
+        Cell::Note => "note".to_owned(),
     }
-    let request = submissions::request_key(
-        Some(user.account_id),
-        &client_key,
-        &galaxy,
-        &measurements,
-        note,
-    );
-    match submissions::create(
-        &state.pool,
-        Some(user.account_id),
-        SubmissionSource::Form,
-        &galaxy,
-        &measurements,
-        note,
-        &request,
-    )
-    .await
-    {
-        // A replay (the same form posted twice) lands on the same submission.
-        Ok(created) => {
-            Ok(Redirect::to(&format!("/submissions/{}", created.submission_id)).into_response())
-        }
-        Err(SubmissionError::Db(e)) => Err(e.into()),
-        Err(SubmissionError::KeyReused) => {
-            // This page was submitted before with other values (the back button, then edits):
-            // keep what was typed, give the form a fresh key, and say so.
+}
+
+/// The form again when storing was refused: 409 when the form was sent before with other
+/// values (a fresh key, what was typed kept), 400 naming the field for the rest.
+async fn refused_submission(
+    state: &AppState,
+    user: &SessionUser,
+    nav: Nav,
+    mut fields: Fields,
+    e: SubmissionError,
+) -> AppResult<Response> {
+    let (status, errors, message) = match e {
+        SubmissionError::Db(e) => return Err(e.into()),
+        SubmissionError::KeyReused => {
+            // The back button, then edits: keep what was typed, give the form a fresh key.
             fields.remove("request_key");
-            let page = form_page(
-                &state,
-                user,
-                nav,
-                &fields,
-                &errors,
-                Some("This form was already submitted with other values, so nothing was saved. Check the values below and submit again to store them as a new submission.".to_owned()),
+            (
+                StatusCode::CONFLICT,
+                HashMap::new(),
+                "This form was already submitted with other values, so nothing was saved. Check the values below and submit again to store them as a new submission.",
             )
-            .await?;
-            Ok((StatusCode::CONFLICT, page).into_response())
         }
-        Err(e) => {
+        e => {
             let field = match e {
                 SubmissionError::NameTaken => "name",
                 _ => "galaxy",
             };
-            errors.insert(field.into(), e.to_string());
-            let page = form_page(
-                &state,
-                user,
-                nav,
-                &fields,
-                &errors,
-                Some("Nothing was saved; correct the fields marked below.".to_owned()),
+            (
+                StatusCode::BAD_REQUEST,
+                HashMap::from([(field.to_owned(), e.to_string())]),
+                "Nothing was saved; correct the fields marked below.",
             )
-            .await?;
-            Ok((StatusCode::BAD_REQUEST, page).into_response())
         }
-    }
-}
-
-/// "the value …" → "The value …." (cell messages are lower-case fragments).
-fn capitalised(message: &str) -> String {
-    let mut chars = message.chars();
-    let mut out: String = match chars.next() {
-        Some(c) => c.to_uppercase().chain(chars).collect(),
-        None => String::new(),
     };
-    if !out.ends_with('.') {
-        out.push('.');
-    }
-    out
-}
-
-/// Where a not-yet-stored submission would fall: the same assessment as a stored one, with
-/// the typed values in place of the galaxy's adopted ones (a new galaxy has none).
-async fn preview(
-    state: &AppState,
-    choice: &GalaxyChoice,
-    measurements: &[crate::catalog::model::NewMeasurement],
-) -> AppResult<Preview> {
-    let galaxy = match choice {
-        GalaxyChoice::Existing(id) => submissions::galaxy_by_id(&state.pool, *id)
-            .await?
-            .ok_or_else(|| AppError::not_found("The chosen galaxy"))?,
-        GalaxyChoice::New(g) => Galaxy {
-            galaxy_id: 0,
-            name: g.name.clone(),
-            slug: String::new(),
-            morphology: g.morphology.as_str().to_owned(),
-            bulge_kind: g.bulge_kind.as_str().to_owned(),
-            centre_kind: g.centre_kind.as_str().to_owned(),
-            distance_mpc: g.distance_mpc,
-            distance_err_mpc: g.distance_err_mpc,
-            distance_method: g.distance_method.as_str().to_owned(),
-        },
-    };
-    let typed: Vec<Measurement> = measurements
-        .iter()
-        .map(|m| Measurement {
-            measurement_id: 0,
-            galaxy_id: galaxy.galaxy_id,
-            submission_id: 0,
-            quantity: m.quantity.as_str().to_owned(),
-            log_value: m.log_value,
-            err_minus_dex: m.err_minus_dex,
-            err_plus_dex: m.err_plus_dex,
-            err_dex: m.err_dex,
-            upper_limit: m.upper_limit,
-            limit_confidence_sigma: m.limit_confidence_sigma,
-            method: m.method.clone(),
-            sigma_definition: m.sigma_definition.clone(),
-            aperture: m.aperture.clone(),
-            band: m.band.clone(),
-            source_distance_mpc: m.source_distance_mpc,
-            resolution_arcsec: m.resolution_arcsec,
-            reference: m.reference.clone(),
-            note: m.note.clone(),
-            value_text: m.value_text.clone(),
-            value_scale: m.value_scale.clone(),
-            state: "pending".to_owned(),
-            adopted: false,
-            created_at: String::new(),
-        })
-        .collect();
-    let a = assess(state, &galaxy, &typed, true, true).await?;
-    Ok(Preview {
-        rows: a.rows,
-        charts: a.charts,
-        soi: a.soi,
-        mass_at_adopted: a.mass_at_adopted,
-    })
+    let page = form_page(state, user, nav, &fields, &errors, Some(message.to_owned())).await?;
+    Ok((status, page).into_response())
 }
 
 /// A submission in a list.
@@ -511,7 +459,8 @@ pub(crate) async fn list_submissions(
     })
 }
 
-fn parse_id(id: &str) -> AppResult<i64> {
+/// The submission number in an address.
+pub(crate) fn parse_id(id: &str) -> AppResult<i64> {
     id.parse()
         .map_err(|_| AppError::bad_request("The submission number in the address is not a number."))
 }
@@ -576,17 +525,13 @@ impl MeasurementView {
     }
 }
 
-/// What a submission means for the catalog: where its galaxy falls against each relation
-/// (with the submitted values in place of the adopted ones), the sphere-of-influence check,
-/// the mass at the adopted distance and the adopted values it would replace.
-pub(crate) struct Assessment {
+/// An assessment (`relations::assess`) as the submission pages and the review queue show it.
+pub(crate) struct AssessmentView {
     pub(crate) rows: Vec<PlaceRow>,
     pub(crate) charts: Vec<PlaceChart>,
     pub(crate) soi: Option<String>,
     pub(crate) mass_at_adopted: Option<String>,
     pub(crate) clashes: Vec<ClashView>,
-    /// The largest |z| over the relations (0 without a mass): the review queue's order.
-    pub(crate) max_abs_z: f64,
 }
 
 /// An adopted value a submitted one would replace.
@@ -595,187 +540,68 @@ pub(crate) struct ClashView {
     pub(crate) text: String,
 }
 
-/// The value of `quantity` (and band) to use: the submitted one if any, else the adopted one.
-fn pick<'a>(
-    submitted: &'a [Measurement],
-    all: &'a [Measurement],
-    quantity: Quantity,
-    band: Option<&str>,
-) -> Option<&'a Measurement> {
-    let matches = |m: &&Measurement| {
-        m.quantity == quantity.as_str() && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
-    };
-    submitted
-        .iter()
-        .find(matches)
-        .or_else(|| all.iter().filter(|m| m.adopted).find(matches))
-}
-
-/// Assess a submission (see [`Assessment`]); `charts` draws the relation charts too, `refit`
-/// refits each relation with the submission in (the costly part).
-pub(crate) async fn assess(
-    state: &AppState,
-    galaxy: &Galaxy,
-    submitted: &[Measurement],
-    charts: bool,
-    refit: bool,
-) -> AppResult<Assessment> {
-    let all = store::measurements_of(&state.pool, galaxy.galaxy_id).await?;
-    let at_adopted = |m: &Measurement| {
-        at_adopted_distance(
-            m.log_value,
-            &m.quantity,
-            &m.method,
-            m.source_distance_mpc,
-            galaxy.distance_mpc,
-        )
-    };
-    // The adopted distance's error enters as in the fit samples (docs/methods.md §3.2): in
-    // quadrature on each distance-dependent value, and as the x–y covariance of the two.
-    let sigma_log_d =
-        log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc).unwrap_or(0.0);
-    let kind = |m: &Measurement| distance_scaling(&m.quantity, &m.method);
-    let err_of = |m: &Measurement| m.err_dex.hypot(f64::from(kind(m).exponent()) * sigma_log_d);
-    let value = |m: &Measurement| {
-        if m.upper_limit {
-            (at_adopted(m), 0.0)
+impl AssessmentView {
+    /// The assessment formatted; `charts` draws the relation charts too.
+    pub(crate) fn of(a: &Assessment, name: &str, href: Option<&str>, charts: bool) -> Self {
+        let (rows, drawn) = if charts {
+            super::place::views(&a.placements, name, href)
         } else {
-            (at_adopted(m), err_of(m))
-        }
-    };
-    let text = |m: &Measurement| {
-        format_log_with_errors(
-            at_adopted(m),
-            m.err_minus_dex,
-            m.err_plus_dex,
-            m.upper_limit,
-        )
-    };
-    let mass_m = pick(submitted, &all, Quantity::BhMass, None);
-    let sigma_m = pick(submitted, &all, Quantity::Sigma, None)
-        .filter(|m| m.sigma_definition == SigmaDefinition::Effective.as_str());
-    let bulge_m = pick(submitted, &all, Quantity::BulgeMass, None);
-    let mass = mass_m.map(|m| SubjectMass {
-        log_mbh: at_adopted(m),
-        err_minus_dex: m.err_minus_dex,
-        err_plus_dex: m.err_plus_dex,
-        // A limit is taken as exact, as in the fits.
-        err_dex: if m.upper_limit { 0.0 } else { err_of(m) },
-        xy_cov: 0.0,
-        upper_limit: m.upper_limit,
-    });
-    let bands: Vec<String> = relation_rows::luminosity_bands(&state.pool)
-        .await?
-        .into_iter()
-        .filter(|b| Relation::valid_band(b))
-        .collect();
-    let mut rows = Vec::new();
-    let mut chart_list = Vec::new();
-    let mut max_abs_z: f64 = 0.0;
-    for relation in Relation::all(&bands) {
-        let (x, x2) = match &relation {
-            Relation::MSigma => (sigma_m, None),
-            Relation::MBulge => (bulge_m, None),
-            Relation::Luminosity(b) => (
-                pick(submitted, &all, Quantity::BulgeLuminosity, Some(b)),
-                None,
-            ),
-            Relation::SigmaBulgePlane => (sigma_m.filter(|_| bulge_m.is_some()), bulge_m),
+            (
+                a.placements.iter().map(super::place::row).collect(),
+                Vec::new(),
+            )
         };
-        let Some(x) = x else { continue };
-        let x2_text = x2.map(text);
-        let mass = mass.zip(mass_m).map(|(mut subject_mass, m)| {
-            if !m.upper_limit && !x.upper_limit {
-                subject_mass.xy_cov = distance_covariance_dex2(
-                    kind(m),
-                    kind(x),
-                    galaxy.distance_mpc,
-                    galaxy.distance_err_mpc,
-                )
-                .unwrap_or(0.0);
-            }
-            subject_mass
+        let soi = a.sphere_of_influence.as_ref().map(|s| {
+            format!(
+                "r_infl = {} pc = {}″; resolution/θ = {} ({})",
+                significant(s.radius_pc, 3),
+                significant(s.theta_arcsec, 3),
+                s.ratio.map_or("—".into(), |r| significant(r, 2)),
+                match s.resolved {
+                    Some(true) => "resolved",
+                    Some(false) => "not resolved",
+                    None => "unknown: no resolution given",
+                }
+            )
         });
-        let subject = Subject {
-            name: galaxy.name.clone(),
-            href: (galaxy.galaxy_id > 0).then(|| format!("/galaxies/{}", galaxy.slug)),
-            x: value(x),
-            x2: x2.map(value),
-            mass,
-            input: input_text(&relation, &text(x), x2_text.as_deref()),
-        };
-        let placed = place_on_relation(state, &relation, &subject, refit).await?;
-        if let Some(z) = placed.row.z_abs {
-            max_abs_z = max_abs_z.max(z);
-        }
-        rows.push(placed.row);
-        if charts {
-            chart_list.extend(placed.chart);
-        }
-    }
-    let soi = mass_m.and_then(|m| {
-        let s = sphere_of_influence(
-            at_adopted(m),
-            &m.method,
-            pick(submitted, &all, Quantity::Sigma, None).map(|s| s.log_value),
-            galaxy.distance_mpc,
-            m.resolution_arcsec,
-            state.settings.soi_threshold,
-        )?;
-        Some(format!(
-            "r_infl = {} pc = {}″; resolution/θ = {} ({})",
-            significant(s.radius_pc, 3),
-            significant(s.theta_arcsec, 3),
-            s.ratio.map_or("—".into(), |r| significant(r, 2)),
-            match s.resolved {
-                Some(true) => "resolved",
-                Some(false) => "not resolved",
-                None => "unknown: no resolution given",
-            }
-        ))
-    });
-    let mass_at_adopted = submitted
-        .iter()
-        .find(|m| m.quantity == Quantity::BhMass.as_str())
-        .map(|m| {
+        let mass_at_adopted = a.mass_at_adopted.as_ref().map(|m| {
             format!(
                 "{} log10 M☉ at {} Mpc (as published: {}{})",
-                text(m),
-                significant(galaxy.distance_mpc, 3),
-                fixed(m.log_value, 2),
+                m.text,
+                significant(m.adopted_distance_mpc, 3),
+                fixed(m.published_log_mbh, 2),
                 m.source_distance_mpc
                     .map_or(String::new(), |d| format!(" at {} Mpc", significant(d, 3)))
             )
         });
-    let submission_id = submitted.first().map_or(0, |m| m.submission_id);
-    let clashes = submissions::clashes(&state.pool, submission_id)
-        .await?
-        .into_iter()
-        .map(|c| ClashView {
-            new_measurement_id: c.new_measurement_id,
-            text: format!(
-                "The {}{} already has an adopted value: {} (log10 {}).",
-                c.quantity
-                    .parse::<Quantity>()
-                    .map_or("value", Quantity::label),
-                if c.band.is_empty() {
-                    String::new()
-                } else {
-                    format!(" in {}", c.band)
-                },
-                c.adopted_value_text,
-                fixed(c.adopted_log_value, 2)
-            ),
-        })
-        .collect();
-    Ok(Assessment {
-        rows,
-        charts: chart_list,
-        soi,
-        mass_at_adopted,
-        clashes,
-        max_abs_z,
-    })
+        let clashes = a
+            .clashes
+            .iter()
+            .map(|c| ClashView {
+                new_measurement_id: c.new_measurement_id,
+                text: format!(
+                    "The {}{} already has an adopted value: {} (log10 {}).",
+                    c.quantity
+                        .parse::<Quantity>()
+                        .map_or("value", Quantity::label),
+                    if c.band.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" in {}", c.band)
+                    },
+                    c.adopted_value_text,
+                    fixed(c.adopted_log_value, 2)
+                ),
+            })
+            .collect();
+        Self {
+            rows,
+            charts: drawn,
+            soi,
+            mass_at_adopted,
+            clashes,
+        }
+    }
 }
 
 /// `/submissions/{id}`.
@@ -816,7 +642,9 @@ pub(crate) async fn show_submission(
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
-    let a = assess(&state, &galaxy, &measured, true, true).await?;
+    let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
+    let href = format!("/galaxies/{}", galaxy.slug);
+    let a = AssessmentView::of(&a, &galaxy.name, Some(&href), true);
     Ok(SubmissionPage {
         nav,
         csrf: user.csrf_token.clone(),
@@ -979,7 +807,7 @@ pub(crate) async fn upload(
             ));
             page.faults = rows
                 .into_iter()
-                .map(|r| (r.line, r.column.to_owned(), capitalised(&r.message)))
+                .map(|r| (r.line, r.column.to_owned(), sentence(&r.message)))
                 .collect();
             Ok((StatusCode::BAD_REQUEST, page).into_response())
         }

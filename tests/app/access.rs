@@ -46,7 +46,7 @@ fn every_route_of_the_router_is_in_the_access_table_and_nothing_else() {
         .map(|r| (r.method.clone(), r.path.clone()))
         .collect();
     assert_eq!(listed.len(), table.route.len(), "a route is listed twice");
-    let served: BTreeSet<(String, String)> = massline::web::route_table()
+    let served: BTreeSet<(String, String)> = massline::startup::route_table()
         .into_iter()
         .map(|r| (r.method.to_string(), r.path.to_string()))
         .collect();

@@ -121,7 +121,7 @@ async fn the_openapi_document_lists_every_api_route_with_its_method_and_nothing_
             }
         }
     }
-    let served: BTreeSet<(String, String)> = massline::web::route_table()
+    let served: BTreeSet<(String, String)> = massline::startup::route_table()
         .into_iter()
         .filter(|r| r.path.starts_with("/api/v1/"))
         .map(|r| (r.method.to_string(), r.path.to_owned()))

@@ -13,7 +13,7 @@ use std::sync::Arc;
 
 use massline::auth::Role;
 use massline::auth::clock::ManualClock;
-use massline::startup::AppState;
+use massline::state::AppState;
 use massline::{Application, Settings};
 use sqlx::SqlitePool;
 use tempfile::TempDir;

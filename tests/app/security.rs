@@ -199,7 +199,7 @@ async fn every_response_carries_the_security_headers_including_errors() {
     ] {
         cases.push((format!("member GET {path}"), member.get(path).await));
     }
-    let big = "x".repeat(massline::web::BODY_LIMIT_BYTES + 10);
+    let big = "x".repeat(massline::router::BODY_LIMIT_BYTES + 10);
     cases.push((
         "oversized POST".into(),
         member

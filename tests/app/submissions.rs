@@ -327,7 +327,7 @@ async fn the_upload_has_its_own_larger_body_limit_and_other_forms_keep_theirs() 
     let app = spawn_demo_app().await;
     let mut member = app.login_as(Role::Member).await;
     member.get("/submissions/upload").await;
-    let long_note = "n".repeat(massline::web::BODY_LIMIT_BYTES + 100_000);
+    let long_note = "n".repeat(massline::router::BODY_LIMIT_BYTES + 100_000);
     let text = format!(
         "{CSV_HEADER}\nTesk 961,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,{long_note}\n"
     );
@@ -342,7 +342,7 @@ async fn the_upload_has_its_own_larger_body_limit_and_other_forms_keep_theirs() 
         .post("/submissions/new", &[("note", long_note.as_str())])
         .await;
     assert_eq!(r.status, 413);
-    let huge = "x".repeat(massline::web::UPLOAD_LIMIT_BYTES + 10);
+    let huge = "x".repeat(massline::router::UPLOAD_LIMIT_BYTES + 10);
     let r = member.post("/submissions/upload", &[("csv", &huge)]).await;
     assert_eq!(r.status, 413);
 }

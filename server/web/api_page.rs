@@ -5,7 +5,7 @@ use askama::Template;
 use askama_web::WebTemplate;
 use axum::http::{HeaderMap, header};
 
-use crate::web::Nav;
+use super::Nav;
 
 /// One endpoint on the page.
 pub(crate) struct EndpointView {

@@ -1,0 +1,189 @@
+//! One galaxy as the pages and the API show it: every measurement with its value at the
+//! adopted distance, the sphere-of-influence check of each black-hole mass, and the galaxy
+//! placed against each relation fitted without it.
+
+use sqlx::SqlitePool;
+
+use super::place::{Placement, Subject, SubjectMass, input_text, place_against};
+use super::{
+    Catalog, FitKey, Relation, SampleFilter, at_adopted_distance, build_sample, fitted_leaving_out,
+    sphere_of_influence,
+};
+use crate::astro::SphereOfInfluence;
+use crate::catalog::model::{Galaxy, Measurement};
+use crate::catalog::{galaxies, history, relation_rows};
+use crate::error::AppResult;
+use crate::fit::Method;
+use crate::units::format_log_with_errors;
+
+/// A measurement with what follows from the galaxy's adopted values.
+#[derive(Debug, Clone)]
+pub struct MeasurementAt {
+    /// The measurement as stored.
+    pub measurement: Measurement,
+    /// Its log value moved to the galaxy's adopted distance (docs/methods.md §3.2).
+    pub log_value_at_adopted_distance: f64,
+    /// For a black-hole mass: the sphere-of-influence check with the adopted σ, when it can be
+    /// made (docs/methods.md §3.1).
+    pub sphere_of_influence: Option<SphereOfInfluence>,
+}
+
+/// A galaxy with every measurement, in any state, adopted first within a quantity.
+#[derive(Debug, Clone)]
+pub struct GalaxyRecord {
+    /// The galaxy as stored.
+    pub galaxy: Galaxy,
+    /// Its measurements.
+    pub measurements: Vec<MeasurementAt>,
+}
+
+impl GalaxyRecord {
+    /// The adopted measurements.
+    pub fn adopted(&self) -> impl Iterator<Item = &MeasurementAt> {
+        self.measurements.iter().filter(|m| m.measurement.adopted)
+    }
+
+    /// The sphere-of-influence check of the adopted black-hole mass.
+    pub fn adopted_sphere_of_influence(&self) -> Option<&SphereOfInfluence> {
+        self.adopted()
+            .find(|m| m.measurement.quantity == "bh_mass")
+            .and_then(|m| m.sphere_of_influence.as_ref())
+    }
+}
+
+/// The galaxy whose slug is `slug`, with its measurements; None when there is none.
+///
+/// # Errors
+/// When the database fails.
+pub async fn galaxy_record(
+    pool: &SqlitePool,
+    soi_threshold: f64,
+    slug: &str,
+) -> sqlx::Result<Option<GalaxyRecord>> {
+    let Some(galaxy) = galaxies::find_by_slug(pool, slug).await? else {
+        return Ok(None);
+    };
+    let measurements = galaxies::measurements_of(pool, galaxy.galaxy_id).await?;
+    // The adopted σ is what the sphere-of-influence check uses.
+    let adopted_log_sigma = measurements
+        .iter()
+        .find(|m| m.quantity == "sigma" && m.adopted)
+        .map(|m| m.log_value);
+    let measurements = measurements
+        .into_iter()
+        .map(|m| {
+            let at_d = at_adopted_distance(
+                m.log_value,
+                &m.quantity,
+                &m.method,
+                m.source_distance_mpc,
+                galaxy.distance_mpc,
+            );
+            let soi = (m.quantity == "bh_mass")
+                .then(|| {
+                    sphere_of_influence(
+                        at_d,
+                        &m.method,
+                        adopted_log_sigma,
+                        galaxy.distance_mpc,
+                        m.resolution_arcsec,
+                        soi_threshold,
+                    )
+                })
+                .flatten();
+            MeasurementAt {
+                measurement: m,
+                log_value_at_adopted_distance: at_d,
+                sphere_of_influence: soi,
+            }
+        })
+        .collect();
+    Ok(Some(GalaxyRecord {
+        galaxy,
+        measurements,
+    }))
+}
+
+/// A catalog galaxy against the relations fitted without it.
+#[derive(Debug, Clone)]
+pub struct LeftOutPlacements {
+    /// One placement per relation the galaxy has values for.
+    pub placements: Vec<Placement>,
+    /// Why no relation applies, when none does.
+    pub none_because: Option<String>,
+}
+
+/// The galaxy against every relation it has values for, each fitted (structural, default
+/// sample and pivots, as on the relations' pages) without the galaxy, so its own point cannot
+/// pull the relation towards itself. The left-out fits are cached per catalog version.
+///
+/// # Errors
+/// When the catalog cannot be read or a fitting task fails.
+pub async fn place_left_out(catalog: &Catalog, galaxy_id: i64) -> AppResult<LeftOutPlacements> {
+    let pool = &catalog.pool;
+    let version = history::current_version(pool).await?;
+    let rows = relation_rows::relation_rows(pool).await?;
+    let lums = relation_rows::luminosity_rows(pool).await?;
+    let bands: Vec<String> = relation_rows::luminosity_bands(pool)
+        .await?
+        .into_iter()
+        .filter(|b| Relation::valid_band(b))
+        .collect();
+    let filter = SampleFilter::default();
+    let method = Method::Structural;
+    let mut placements = Vec::new();
+    for relation in Relation::all(&bands) {
+        let pivots = (relation.default_pivot(), relation.default_pivot2());
+        let sample = build_sample(&rows, &lums, &relation, &filter, catalog.soi_threshold);
+        let full_key = FitKey::new(version, &relation, method, &filter, pivots.0, pivots.1);
+        let Some((outcome, index)) = fitted_leaving_out(
+            &catalog.fits,
+            &full_key,
+            &relation,
+            method,
+            &sample,
+            galaxy_id,
+        )
+        .await?
+        else {
+            continue;
+        };
+        let (p, m) = (&sample.points[index], &sample.members[index]);
+        let shown = |v: f64, e: f64| format_log_with_errors(v, e, e, false);
+        let x2_text = p.x2.map(|b| shown(b, p.x2_err));
+        let subject = Subject {
+            name: m.name.clone(),
+            href: Some(format!("/galaxies/{}", m.slug)),
+            x: (p.x, p.x_err),
+            x2: p.x2.map(|b| (b, p.x2_err)),
+            mass: Some(SubjectMass {
+                log_mbh: p.y,
+                err_minus_dex: p.y_err,
+                err_plus_dex: p.y_err,
+                err_dex: p.y_err,
+                xy_cov: p.xy_cov,
+                upper_limit: p.upper_limit,
+            }),
+            input: input_text(&relation, &shown(p.x, p.x_err), x2_text.as_deref()),
+        };
+        placements.push(place_against(&relation, outcome, &subject));
+    }
+    let none_because = placements.is_empty().then(|| {
+        let why = match rows.iter().find(|r| r.galaxy_id == galaxy_id) {
+            Some(r) if r.log_mbh.is_none() => {
+                "it has no adopted black-hole mass or upper limit".to_owned()
+            }
+            Some(r) if r.sigma_definition.as_deref() == Some("sigma_c") => {
+                "its adopted σ is a central σ_c, which the default fits (σ_e) leave out, and it has no bulge mass or luminosity".to_owned()
+            }
+            _ => "it has no adopted σ_e, bulge mass or bulge luminosity".to_owned(),
+        };
+        format!(
+            "No relation applies to this galaxy: {why}. The relations need a black-hole mass (or upper limit) with a velocity dispersion σ_e, a bulge mass, or a bulge luminosity."
+        )
+    });
+    Ok(LeftOutPlacements {
+        placements,
+        none_because,
+    })
+}

@@ -1,0 +1,38 @@
+//! What every handler shares: [`AppState`].
+
+use std::sync::Arc;
+
+use sqlx::SqlitePool;
+
+use crate::auth::clock::Clock;
+use crate::auth::password::Passwords;
+use crate::config::Settings;
+use crate::relations::{Catalog, FitCache, RunRegistry};
+
+/// State shared by every handler: cheap to clone.
+#[derive(Clone)]
+pub struct AppState {
+    /// The catalog database.
+    pub pool: SqlitePool,
+    /// Validated settings.
+    pub settings: Arc<Settings>,
+    /// The clock session limits and login locks are measured with.
+    pub clock: Arc<dyn Clock>,
+    /// Password hashing, two at a time, off the async runtime.
+    pub passwords: Passwords,
+    /// Fits of the scaling relations, keyed by catalog version (see `relations`).
+    pub fits: FitCache,
+    /// Bootstrap and posterior runs in the background (see `relations`).
+    pub runs: RunRegistry,
+}
+
+impl AppState {
+    /// The catalog and its fits, for the domain's computations.
+    pub fn catalog(&self) -> Catalog {
+        Catalog {
+            pool: self.pool.clone(),
+            fits: self.fits.clone(),
+            soi_threshold: self.settings.soi_threshold,
+        }
+    }
+}

@@ -1,0 +1,96 @@
+//! How the pages draw an [`AppError`]: `templates/errors/error.html`, with the visitor's
+//! session links when authentication got that far (`error_session.html`); a visitor who must
+//! log in is sent to the login page instead (303, back to the page afterwards).
+
+use askama::Template;
+use axum::http::{HeaderValue, Method, header};
+use axum::response::{Html, IntoResponse, Redirect, Response};
+
+use super::Nav;
+use crate::auth::middleware::encode_query_value;
+use crate::error::AppError;
+use crate::router::Asked;
+
+/// The error page without session links (the request was refused before anyone was known).
+#[derive(Template)]
+#[template(path = "errors/error.html")]
+struct ErrorPage<'a> {
+    status_code: u16,
+    title: &'a str,
+    message: &'a str,
+}
+
+/// The error page with the visitor's session links.
+#[derive(Template)]
+#[template(path = "errors/error_session.html")]
+struct SessionErrorPage<'a> {
+    status_code: u16,
+    title: &'a str,
+    message: &'a str,
+    nav: Nav,
+}
+
+/// The page's title for each kind of error.
+fn title(error: &AppError) -> &'static str {
+    match error {
+        AppError::BadRequest { .. } => "The request could not be read",
+        AppError::NotLoggedIn { .. } | AppError::BadToken => "Not logged in",
+        AppError::Forbidden { .. } => "Not allowed",
+        AppError::NotFound { .. } | AppError::NoRoute { .. } => "Not found",
+        AppError::MethodNotAllowed { .. } => "Method not allowed",
+        AppError::TooLarge { .. } | AppError::BodyTooLarge { .. } => "Too large",
+        AppError::UnsupportedMediaType { .. } => "Unsupported format",
+        AppError::Invalid { .. } => "Invalid input",
+        AppError::TooManyRequests { .. } => "Too many requests",
+        AppError::Busy => "Busy",
+        AppError::Unavailable => "Unavailable",
+        AppError::StorageFull => "Storage full",
+        AppError::Internal(_) => "Something went wrong",
+    }
+}
+
+/// What the page says: the error's sentence, then each field at fault.
+fn message(error: &AppError) -> String {
+    let mut text = error.public_message();
+    for f in error.fields() {
+        text.push_str(&format!(" {}: {}", f.field, f.message));
+    }
+    text
+}
+
+/// Draw `error` as a page (see the module doc).
+pub(crate) fn render(error: &AppError, asked: &Asked) -> Response {
+    if let AppError::NotLoggedIn { .. } = error {
+        let target = if asked.method == Method::GET {
+            format!("/login?next={}", encode_query_value(&asked.target))
+        } else {
+            "/login".to_owned()
+        };
+        return Redirect::to(&target).into_response();
+    }
+    let status = error.status();
+    let (title, message) = (title(error), message(error));
+    let body = match &asked.principal {
+        Some(principal) => SessionErrorPage {
+            status_code: status.as_u16(),
+            title,
+            message: &message,
+            nav: Nav::from_principal(principal),
+        }
+        .render(),
+        None => ErrorPage {
+            status_code: status.as_u16(),
+            title,
+            message: &message,
+        }
+        .render(),
+    }
+    .unwrap_or_else(|_| format!("{} {title}", status.as_u16()));
+    let mut response = (status, Html(body)).into_response();
+    if matches!(error, AppError::BadToken) {
+        response
+            .headers_mut()
+            .insert(header::WWW_AUTHENTICATE, HeaderValue::from_static("Bearer"));
+    }
+    response
+}
