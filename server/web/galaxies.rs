@@ -311,11 +311,7 @@ pub(crate) async fn show_galaxy(
             .unwrap_or(&r.created_at)
             .replace('T', " ");
     }
-    let (rows, charts) = super::place::views(
-        &left_out.placements,
-        &galaxy.name,
-        Some(&format!("/galaxies/{}", galaxy.slug)),
-    );
+    let (rows, charts) = super::place::views(&left_out.placements);
     Ok(GalaxyShowPage {
         nav,
         name: galaxy.name.clone(),

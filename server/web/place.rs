@@ -117,7 +117,7 @@ pub(crate) async fn show_place(
         Vec::new()
     };
     let (soi, soi_note) = soi_view(&values, state.settings.soi_threshold);
-    let (rows, charts) = views(&placements, "this object", None);
+    let (rows, charts) = views(&placements);
     let fault = |name: &str| {
         faults
             .iter()
@@ -249,18 +249,10 @@ fn soi_view(values: &ObjectValues, threshold: f64) -> (Option<SoiView>, Option<S
     }
 }
 
-/// Rows and charts of placements; the highlighted object is `name` (with its page, if any).
-pub(crate) fn views(
-    placements: &[Placement],
-    name: &str,
-    href: Option<&str>,
-) -> (Vec<PlaceRow>, Vec<PlaceChart>) {
-    let mut rows = Vec::with_capacity(placements.len());
-    let mut charts = Vec::new();
-    for p in placements {
-        rows.push(row(p));
-        charts.extend(chart(p, name, href));
-    }
+/// Rows and charts of placements, the placed object highlighted on each chart.
+pub(crate) fn views(placements: &[Placement]) -> (Vec<PlaceRow>, Vec<PlaceChart>) {
+    let rows = placements.iter().map(row).collect();
+    let charts = placements.iter().filter_map(chart).collect();
     (rows, charts)
 }
 
@@ -336,7 +328,7 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
 
 /// The relation chart with the placed object highlighted (for the plane, the chart's y is
 /// log M_BH − γ (x2 − x02), as on the relation page).
-fn chart(p: &Placement, name: &str, href: Option<&str>) -> Option<PlaceChart> {
+fn chart(p: &Placement) -> Option<PlaceChart> {
     let (fit, Ok(numbers)) = (p.fit()?, &p.numbers) else {
         return None;
     };
@@ -354,8 +346,8 @@ fn chart(p: &Placement, name: &str, href: Option<&str>) -> Option<PlaceChart> {
     }
     let mut drawn = relation_chart(&p.relation, &p.outcome, Grouping::Morphology);
     drawn.highlight = Some(ChartPoint {
-        name: name.to_owned(),
-        href: href.map(str::to_owned),
+        name: subject.name.clone(),
+        href: subject.href.clone(),
         x,
         x_err,
         y: chart_y(Some(fit), &at),

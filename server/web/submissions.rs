@@ -261,7 +261,7 @@ pub(crate) async fn create_submission(
     };
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
-        let v = AssessmentView::of(&a, "", None, true);
+        let v = AssessmentView::of(&a, true);
         let mut page = form_page(&state, user, nav, &fields, &read.errors, None).await?;
         page.preview = Some(Preview {
             rows: v.rows,
@@ -542,9 +542,9 @@ pub(crate) struct ClashView {
 
 impl AssessmentView {
     /// The assessment formatted; `charts` draws the relation charts too.
-    pub(crate) fn of(a: &Assessment, name: &str, href: Option<&str>, charts: bool) -> Self {
+    pub(crate) fn of(a: &Assessment, charts: bool) -> Self {
         let (rows, drawn) = if charts {
-            super::place::views(&a.placements, name, href)
+            super::place::views(&a.placements)
         } else {
             (
                 a.placements.iter().map(super::place::row).collect(),
@@ -643,8 +643,7 @@ pub(crate) async fn show_submission(
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
     let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
-    let href = format!("/galaxies/{}", galaxy.slug);
-    let a = AssessmentView::of(&a, &galaxy.name, Some(&href), true);
+    let a = AssessmentView::of(&a, true);
     Ok(SubmissionPage {
         nav,
         csrf: user.csrf_token.clone(),
