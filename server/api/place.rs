@@ -25,7 +25,7 @@ use utoipa::{IntoParams, ToSchema};
 
 use super::cache::ApiCache;
 use super::problem::Problem;
-use super::relations::{FitSettings, all_relations, current_fit};
+use super::relations::{all_relations, current_fit};
 use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
 use crate::error::{AppError, FieldError};
@@ -287,12 +287,7 @@ async fn fits_for(
     relations: Vec<Relation>,
     needed: &[bool],
 ) -> ApiResult<Vec<(Relation, Option<Arc<FitOutcome>>)>> {
-    let settings = FitSettings {
-        method: Method::Structural,
-        filter: crate::relations::SampleFilter::default(),
-        pivot: None,
-        pivot2: None,
-    };
+    let settings = crate::relations::FitChoice::default();
     let mut fits = Vec::with_capacity(relations.len());
     for (relation, need) in relations.into_iter().zip(needed) {
         let outcome = if *need {

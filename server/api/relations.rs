@@ -22,9 +22,10 @@ use super::problem::Problem;
 use super::{ApiResult, entity_tag, matches_if_none_match, query_pairs, tagged_bytes};
 use crate::catalog::relation_rows;
 use crate::error::{AppError, FieldError};
-use crate::fit::{Fit, Method};
+use crate::fit::Fit;
 use crate::relations::{
-    FILTER_PARAMS, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice, SoiChoice, fitted,
+    FILTER_PARAMS, FIT_PARAMS, FitChoice, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice,
+    SoiChoice, fitted,
 };
 use crate::state::AppState;
 
@@ -161,102 +162,43 @@ pub struct FitQuery {
     pub pivot2: Option<f64>,
 }
 
-/// The fit settings read from the query.
-#[derive(Debug, Clone, PartialEq)]
-pub struct FitSettings {
-    /// Estimator.
-    pub method: Method,
-    /// Which galaxies enter.
-    pub filter: SampleFilter,
-    /// Pivot, if given (log10 units).
-    pub pivot: Option<f64>,
-    /// Second pivot, if given.
-    pub pivot2: Option<f64>,
-}
-
-impl FitSettings {
-    /// Reads the relation page's fit parameters; every parameter at fault is one field error.
-    ///
-    /// # Errors
-    /// A 422 problem listing each parameter at fault.
-    pub fn parse(pairs: &[(String, String)]) -> Result<Self, AppError> {
-        let mut s = Self {
-            method: Method::Structural,
-            filter: SampleFilter::default(),
-            pivot: None,
-            pivot2: None,
-        };
-        let mut errors = Vec::new();
-        for (key, value) in pairs {
-            if value.trim().is_empty() {
-                errors.push(FieldError::new(
-                    key.chars().take(40).collect::<String>(),
-                    super::EMPTY_VALUE,
-                ));
-                continue;
-            }
-            match s.filter.set(key, value) {
-                Ok(true) => continue,
-                Ok(false) => {}
-                Err(e) => {
-                    errors.push(FieldError::new(key.as_str(), e));
-                    continue;
-                }
-            }
-            let value = value.trim();
-            let result = match key.as_str() {
-                "method" => value.parse::<Method>().map(|m| s.method = m).map_err(|_| {
-                    "The method must be one of: structural, conditional, fitexy, bces-yx, bces-xy, bces-bisector, bces-orthogonal.".to_owned()
-                }),
-                "pivot" => parse_pivot(value).map(|v| s.pivot = Some(v)),
-                "pivot2" => parse_pivot(value).map(|v| s.pivot2 = Some(v)),
-                other => Err(format!(
-                    "'{}' is not a parameter of this endpoint (it accepts method, {}, pivot, pivot2).",
-                    other.chars().take(40).collect::<String>(),
-                    FILTER_PARAMS.join(", ")
-                )),
-            };
-            if let Err(e) = result {
-                errors.push(FieldError::new(key.as_str(), e));
-            }
+/// Reads the relation page's fit parameters (`relations::FitChoice`); every parameter at
+/// fault is one field error. An empty value, which a page's form sends for "any", is refused
+/// here: leave the parameter out.
+///
+/// # Errors
+/// [`AppError::Invalid`] listing each parameter at fault.
+pub fn read_fit_choice(pairs: &[(String, String)]) -> Result<FitChoice, AppError> {
+    let mut choice = FitChoice::default();
+    let mut errors = Vec::new();
+    for (key, value) in pairs {
+        let name = key.chars().take(40).collect::<String>();
+        if value.trim().is_empty() {
+            errors.push(FieldError::new(name, super::EMPTY_VALUE));
+            continue;
         }
-        if errors.is_empty() {
-            Ok(s)
-        } else {
-            Err(AppError::invalid(errors))
+        match choice.set(key, value) {
+            Ok(true) => {}
+            Ok(false) => errors.push(FieldError::new(
+                name.as_str(),
+                format!(
+                    "'{name}' is not a parameter of this endpoint (it accepts {}, {}).",
+                    FIT_PARAMS[0],
+                    FILTER_PARAMS
+                        .iter()
+                        .chain(&FIT_PARAMS[1..])
+                        .copied()
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            )),
+            Err(e) => errors.push(FieldError::new(name, e)),
         }
     }
-
-    /// The pivots for `relation`: as given, or the relation's defaults.
-    pub fn pivots(&self, relation: &Relation) -> (f64, f64) {
-        (
-            self.pivot.unwrap_or_else(|| relation.default_pivot()),
-            self.pivot2.unwrap_or_else(|| relation.default_pivot2()),
-        )
-    }
-
-    /// A canonical text of the settings for `relation` (entity tags).
-    pub fn canonical(&self, relation: &Relation) -> String {
-        let (p, p2) = self.pivots(relation);
-        format!(
-            "relation={};method={};{};pivots={:x},{:x}",
-            relation.slug(),
-            self.method.as_str(),
-            self.filter.canonical(),
-            p.to_bits(),
-            p2.to_bits()
-        )
-    }
-}
-
-/// A pivot as typed: a log10 value from 0 to 20 in the relation's x unit.
-fn parse_pivot(value: &str) -> Result<f64, String> {
-    match value.parse::<f64>() {
-        Ok(v) if v.is_finite() && (0.0..=20.0).contains(&v) => Ok(v),
-        _ => Err(format!(
-            "'{}' is not a log10 value from 0 to 20, such as 2.301 (σ = 200 km/s) or 11 (10^11 M☉).",
-            value.chars().take(40).collect::<String>()
-        )),
+    if errors.is_empty() {
+        Ok(choice)
+    } else {
+        Err(AppError::invalid(errors))
     }
 }
 
@@ -304,7 +246,7 @@ pub async fn current_fit(
     state: &AppState,
     version: i64,
     relation: &Relation,
-    settings: &FitSettings,
+    settings: &FitChoice,
 ) -> ApiResult<Arc<FitOutcome>> {
     let pivots = settings.pivots(relation);
     let key = FitKey::new(
@@ -509,7 +451,7 @@ pub struct RelationFit {
 
 impl RelationFit {
     /// The answer for a fit outcome.
-    pub fn of(relation: &Relation, settings: &FitSettings, outcome: &FitOutcome) -> Self {
+    pub fn of(relation: &Relation, settings: &FitChoice, outcome: &FitOutcome) -> Self {
         let (pivot, pivot2) = settings.pivots(relation);
         let plane = relation.shape() == crate::fit::Shape::Plane;
         Self {
@@ -642,7 +584,7 @@ pub async fn relation_fit(
     headers: HeaderMap,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Response> {
-    let settings = FitSettings::parse(&query_pairs(query)?)?;
+    let settings = read_fit_choice(&query_pairs(query)?)?;
     let relation = relation_named(&state, &slug).await?;
     let version = cache
         .catalog_version(&state.pool, &state.settings.db_path)
@@ -691,7 +633,7 @@ mod tests {
 
     #[test]
     fn settings_read_the_relation_page_parameters_and_name_each_bad_one() {
-        let s = FitSettings::parse(&pairs(&[
+        let s = read_fit_choice(&pairs(&[
             ("method", "bces-bisector"),
             ("morphology", "spiral"),
             ("limits", "exclude"),
@@ -701,7 +643,7 @@ mod tests {
         assert_eq!(s.method.as_str(), "bces-bisector");
         assert!(s.filter.exclude_limits);
         assert_eq!(s.pivots(&Relation::MSigma).0.to_bits(), 2.2f64.to_bits());
-        let err = FitSettings::parse(&pairs(&[
+        let err = read_fit_choice(&pairs(&[
             ("method", "ols"),
             ("pivot", "99"),
             ("colour", "red"),
@@ -712,7 +654,7 @@ mod tests {
         let fields: Vec<&str> = err.fields().iter().map(|e| e.field.as_str()).collect();
         assert_eq!(fields, ["method", "pivot", "colour", "soi"]);
         // Different settings, different canonical texts (and so ETags).
-        let a = FitSettings::parse(&[]).unwrap();
+        let a = read_fit_choice(&[]).unwrap();
         assert_ne!(
             a.canonical(&Relation::MSigma),
             s.canonical(&Relation::MSigma)

@@ -2,9 +2,8 @@
 //! submission) and `GET /api/v1/submissions/{id}` (its state).
 //!
 //! The body uses the catalog file's column names (README "Catalog CSV"), and every cell goes
-//! through the same readers as the form and the files (`catalog::demo::measurement_from_cells`,
-//! hence `units::parse_entry`): a value typed in a script is read exactly as one typed in a
-//! form. Every write carries an `Idempotency-Key` header: a retry with the same key and body is
+//! through the same reader as the form's (`catalog::intake`, hence `units::parse_entry`): a
+//! value typed in a script is read exactly as one typed in a form or a file. Every write carries an `Idempotency-Key` header: a retry with the same key and body is
 //! answered with the first submission (200, `replayed: true`) and stores nothing.
 
 use std::collections::BTreeMap;
@@ -19,10 +18,10 @@ use super::ApiResult;
 use super::problem::Problem;
 use crate::auth::{Principal, Role, Scope, TokenUser, require_scope};
 use crate::catalog::csv_io::MEASUREMENT_COLUMNS;
-use crate::catalog::demo::{galaxy_from_cells, measurement_from_cells};
-use crate::catalog::galaxies::{self as store, SubmissionSource};
-use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError};
-use crate::error::{AppError, FieldError, sentence};
+use crate::catalog::galaxies::SubmissionSource;
+use crate::catalog::intake::{self, Cells, Checked, GalaxyCells, SubmissionCells};
+use crate::catalog::submissions::{self, SubmissionError};
+use crate::error::{AppError, FieldError};
 use crate::state::AppState;
 
 /// At most this many measurements in one request (a file upload takes more).
@@ -190,7 +189,10 @@ pub async fn submit(
         AppError::bad_request(format!("The body is not a submission: {e}."))
             .titled("Unreadable body")
     })?;
-    let (galaxy, measurements) = read_request(&state, &request).await?;
+    let Checked {
+        galaxy,
+        measurements,
+    } = read_request(&state, &request).await?;
     let request_key = submissions::request_key(
         Some(token.account_id),
         &client_key,
@@ -261,76 +263,83 @@ fn idempotency_key(headers: &HeaderMap) -> ApiResult<String> {
     }
 }
 
-/// Read the galaxy choice and measurements, listing every field at fault.
-async fn read_request(
-    state: &AppState,
-    request: &SubmissionRequest,
-) -> ApiResult<(GalaxyChoice, Vec<crate::catalog::model::NewMeasurement>)> {
+/// Read the galaxy choice and measurements through `catalog::intake`, listing every field at
+/// fault as its JSON path.
+async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResult<Checked> {
     let mut errors = Vec::new();
-    let galaxy = match (&request.galaxy, &request.new_galaxy) {
-        (Some(_), Some(_)) | (None, None) => {
+    let texts = measurement_texts(&request.measurements, &mut errors);
+    let new_cells: Option<BTreeMap<&'static str, String>> = request.new_galaxy.as_ref().map(|g| {
+        [
+            ("name", g.name.clone()),
+            ("morphology", g.morphology.clone()),
+            ("bulge_kind", g.bulge_kind.clone()),
+            ("centre_kind", g.centre_kind.clone()),
+            ("distance_mpc", g.distance_mpc.text()),
+            ("distance_err_mpc", g.distance_err_mpc.text()),
+            ("distance_method", g.distance_method.clone()),
+        ]
+        .into_iter()
+        .collect()
+    });
+    let galaxy = match (&request.galaxy, &new_cells) {
+        (Some(slug), None) => Some(GalaxyCells::Slug(slug)),
+        (None, Some(cells)) => Some(GalaxyCells::New(Box::new(|c| {
+            cells.get(c).map_or("", String::as_str)
+        }))),
+        _ => {
             errors.push(FieldError::new(
                 "galaxy",
                 "Give either `galaxy` (the slug of a galaxy in the catalog) or `new_galaxy`.",
             ));
             None
         }
-        (Some(slug), None) => match store::find_by_slug(&state.pool, slug.trim()).await {
-            Ok(Some(g)) => Some(GalaxyChoice::Existing(g.galaxy_id)),
-            Ok(None) => {
-                errors.push(FieldError::new(
-                    "galaxy",
-                    "There is no galaxy with that slug in the catalog.",
-                ));
-                None
-            }
-            Err(e) => return Err(e.into()),
-        },
-        (None, Some(g)) => {
-            let cells: BTreeMap<&str, String> = [
-                ("name", g.name.clone()),
-                ("morphology", g.morphology.clone()),
-                ("bulge_kind", g.bulge_kind.clone()),
-                ("centre_kind", g.centre_kind.clone()),
-                ("distance_mpc", g.distance_mpc.text()),
-                ("distance_err_mpc", g.distance_err_mpc.text()),
-                ("distance_method", g.distance_method.clone()),
-            ]
-            .into_iter()
-            .collect();
-            match galaxy_from_cells("api", 0, &|c| cells.get(c).map_or("", String::as_str)) {
-                Ok(g) => Some(GalaxyChoice::New(g)),
-                Err(e) => {
-                    errors.push(FieldError::new(
-                        format!("new_galaxy.{}", e.column),
-                        sentence(&e.message),
-                    ));
-                    None
-                }
-            }
-        }
     };
-    if request.measurements.is_empty() || request.measurements.len() > MAX_MEASUREMENTS {
+    let unclear = galaxy.is_none();
+    let n = request.measurements.len();
+    if n == 0 || n > MAX_MEASUREMENTS {
         errors.push(FieldError::new(
             "measurements",
-            format!(
-                "Send 1 to {MAX_MEASUREMENTS} measurements; this request has {}.",
-                request.measurements.len()
-            ),
+            format!("Send 1 to {MAX_MEASUREMENTS} measurements; this request has {n}."),
         ));
     }
-    let mut measurements = Vec::with_capacity(request.measurements.len());
-    for (i, cells) in request
-        .measurements
+    let rows: Vec<(usize, Box<Cells<'_>>)> = texts
         .iter()
-        .take(MAX_MEASUREMENTS)
-        .enumerate()
-    {
-        let unknown: Vec<&String> = cells
+        .map(|(i, cells)| -> (usize, Box<Cells<'_>>) {
+            (*i, Box::new(|c| cells.get(c).map_or("", String::as_str)))
+        })
+        .collect();
+    let cells = SubmissionCells {
+        // Without a galaxy, the cells are still read so that every field at fault is listed.
+        galaxy: galaxy.unwrap_or(GalaxyCells::Slug("")),
+        rows,
+        note: &request.note,
+    };
+    let faults = match intake::check(&state.pool, &cells).await? {
+        Ok(checked) if errors.is_empty() => return Ok(checked),
+        Ok(_) => Vec::new(),
+        Err(faults) => faults,
+    };
+    errors.extend(
+        faults
+            .into_iter()
+            .filter(|f| !(unclear && f.cell == intake::Cell::Galaxy))
+            .map(|f| FieldError::new(json_path(f.cell), f.message)),
+    );
+    Err(AppError::invalid(errors))
+}
+
+/// Each measurement object's cells as text, or a field error for a key that is not a
+/// measurement column (that object is then left out).
+fn measurement_texts(
+    measurements: &[BTreeMap<String, Cell>],
+    errors: &mut Vec<FieldError>,
+) -> Vec<(usize, BTreeMap<String, String>)> {
+    let mut texts = Vec::new();
+    for (i, cells) in measurements.iter().take(MAX_MEASUREMENTS).enumerate() {
+        if let Some(k) = cells
             .keys()
-            .filter(|k| !MEASUREMENT_COLUMNS.contains(&k.as_str()))
-            .collect();
-        if let Some(k) = unknown.first() {
+            .find(|k| !MEASUREMENT_COLUMNS.contains(&k.as_str()))
+        {
             errors.push(FieldError::new(
                 format!(
                     "measurements[{i}].{}",
@@ -340,25 +349,21 @@ async fn read_request(
             ));
             continue;
         }
-        let texts: BTreeMap<&str, String> =
-            cells.iter().map(|(k, v)| (k.as_str(), v.text())).collect();
-        match measurement_from_cells("api", 0, &|c| texts.get(c).map_or("", String::as_str)) {
-            Ok(m) => measurements.push(m),
-            Err(e) => errors.push(FieldError::new(
-                format!("measurements[{i}].{}", e.column),
-                sentence(&e.message),
-            )),
-        }
-    }
-    if request.note.trim().chars().count() > 2000 {
-        errors.push(FieldError::new(
-            "note",
-            "The note has at most 2000 characters.",
+        texts.push((
+            i,
+            cells.iter().map(|(k, v)| (k.clone(), v.text())).collect(),
         ));
     }
-    match (galaxy, errors.is_empty()) {
-        (Some(g), true) => Ok((g, measurements)),
-        _ => Err(AppError::invalid(errors)),
+    texts
+}
+
+/// The JSON path of an intake cell.
+fn json_path(cell: intake::Cell) -> String {
+    match cell {
+        intake::Cell::Galaxy => "galaxy".to_owned(),
+        intake::Cell::NewGalaxy(column) => format!("new_galaxy.{column}"),
+        intake::Cell::Measurement(i, column) => format!("measurements[{i}].{column}"),
+        intake::Cell::Note => "note".to_owned(),
     }
 }
 

@@ -5,7 +5,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::optimize::invert_spd;
-use super::predict::placement_of;
+use super::predict::locate;
 use super::types::prepare;
 use super::{
     Fit, FitError, FitSpec, Method, Params, Point, Shape, conditional, min_points, structural,
@@ -89,20 +89,11 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
             };
             match pred {
                 Ok(pr) if p.y.is_finite() && p.y_err.is_finite() && p.y_err >= 0.0 => {
-                    let pl = placement_of(pr, p.y, p.y_err, p.upper_limit);
-                    let slope = fit.params.beta
-                        + 2.0 * fit.params.beta2.unwrap_or(0.0) * (p.x - fit.spec.pivot);
-                    let var =
-                        pl.prediction.sd_dex.powi(2) + p.y_err.powi(2) - 2.0 * slope * p.xy_cov;
-                    let z = if var > 0.0 && p.xy_cov.is_finite() {
-                        pl.residual_dex / var.sqrt()
-                    } else {
-                        pl.z
-                    };
+                    let pl = locate(fit, pr, p.x, p.y, p.y_err, p.xy_cov, p.upper_limit);
                     Residual {
                         index,
                         residual_dex: pl.residual_dex,
-                        z,
+                        z: pl.z,
                         upper_limit: p.upper_limit,
                         prob_below_limit: pl.prob_below_limit,
                     }

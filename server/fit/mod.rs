@@ -93,7 +93,7 @@ pub mod types;
 use serde::Serialize;
 
 pub use diagnostics::{Influence, Offset, Residual, leave_one_out, residuals, zero_point_offset};
-pub use predict::{Placement, Prediction, invert, place, predict, predict_plane};
+pub use predict::{Placement, Prediction, invert, locate, place, predict, predict_plane};
 pub use types::{
     BcesLine, Fit, FitSpec, Method, MixtureComponent, Params, Point, Shape, Termination,
 };

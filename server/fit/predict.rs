@@ -197,12 +197,41 @@ pub fn place(
     Ok(placement_of(prediction, y, y_err, upper_limit))
 }
 
-pub(crate) fn placement_of(
+/// Where an object with log M_BH `y` (or an upper limit) falls, given the prediction at its x.
+///
+/// # Model
+/// ```text
+/// r = y − ŷ,   z = r / √(s_pred² + σ_y² − 2 (∂ŷ/∂x) σ_xy)
+/// ∂ŷ/∂x = β [+ 2 β2 (x − x0)]
+/// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
+/// ```
+/// σ_xy is the covariance of the object's x and y errors (a shared distance error, 0 for
+/// independent values); it makes an error along the relation less surprising. When that
+/// variance is not positive, z falls back to r / √(s_pred² + σ_y²). dex throughout.
+///
+/// # References
+/// docs/methods.md §3.2 (the shared-distance covariance) and §6 (the prediction variance and z;
+/// common practice).
+#[must_use]
+pub fn locate(
+    fit: &Fit,
     prediction: Prediction,
+    x: f64,
     y: f64,
     y_err: f64,
+    xy_cov: f64,
     upper_limit: bool,
 ) -> Placement {
+    let mut placed = placement_of(prediction, y, y_err, upper_limit);
+    let slope = fit.params.beta + 2.0 * fit.params.beta2.unwrap_or(0.0) * (x - fit.spec.pivot);
+    let var = placed.prediction.sd_dex.powi(2) + y_err.powi(2) - 2.0 * slope * xy_cov;
+    if var > 0.0 && xy_cov.is_finite() {
+        placed.z = placed.residual_dex / var.sqrt();
+    }
+    placed
+}
+
+fn placement_of(prediction: Prediction, y: f64, y_err: f64, upper_limit: bool) -> Placement {
     let residual_dex = y - prediction.log_mbh;
     let denom = (prediction.sd_dex.powi(2) + y_err * y_err).sqrt();
     let z = if denom > 0.0 {

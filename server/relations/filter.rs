@@ -1,6 +1,10 @@
-//! Which galaxies enter a fit, read from query parameters.
+//! Which galaxies enter a fit ([`SampleFilter`]) and how they are fitted ([`FitChoice`]: the
+//! estimator and the pivots), read from query parameters. The relation pages and the API's
+//! relation endpoint read the same parameters here.
 
+use super::Relation;
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology, SigmaDefinition};
+use crate::fit::Method;
 
 /// Sphere-of-influence selection.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
@@ -200,6 +204,122 @@ fn optional<T: std::str::FromStr<Err = String>>(value: &str) -> Result<Option<T>
         Ok(None)
     } else {
         value.parse().map(Some)
+    }
+}
+
+/// A fit as chosen: the estimator, the galaxies, and the pivots (None: the relation's default).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitChoice {
+    /// Estimator.
+    pub method: Method,
+    /// Which galaxies enter.
+    pub filter: SampleFilter,
+    /// Pivot x0, log10 in the relation's x unit, if given.
+    pub pivot: Option<f64>,
+    /// Second pivot (the plane's bulge mass), log10 M☉, if given.
+    pub pivot2: Option<f64>,
+}
+
+impl Default for FitChoice {
+    fn default() -> Self {
+        Self {
+            method: Method::Structural,
+            filter: SampleFilter::default(),
+            pivot: None,
+            pivot2: None,
+        }
+    }
+}
+
+/// The query parameters [`FitChoice::set`] reads besides the filter's.
+pub const FIT_PARAMS: [&str; 3] = ["method", "pivot", "pivot2"];
+
+/// A pivot as typed: a log10 value from 0 to 20 in the relation's x unit.
+///
+/// # Errors
+/// One sentence (without a full stop) giving the accepted range and two examples.
+pub fn read_pivot(value: &str) -> Result<f64, String> {
+    match value.trim().parse::<f64>() {
+        Ok(v) if v.is_finite() && (0.0..=20.0).contains(&v) => Ok(v),
+        _ => Err(format!(
+            "'{}' is not a log10 value from 0 to 20, such as 2.301 (σ = 200 km/s) or 11 (10^11 M☉)",
+            value.chars().take(40).collect::<String>()
+        )),
+    }
+}
+
+impl FitChoice {
+    /// Reads one query parameter: a filter parameter, `method`, `pivot` or `pivot2`. Returns
+    /// `Ok(false)` when `key` is none of them, `Ok(true)` when it was read; an empty value keeps
+    /// the default.
+    ///
+    /// # Errors
+    /// One sentence naming the parameter and what it accepts.
+    pub fn set(&mut self, key: &str, value: &str) -> Result<bool, String> {
+        if self.filter.set(key, value)? {
+            return Ok(true);
+        }
+        let value = value.trim();
+        let named = |e: String| format!("Parameter '{key}': {e}.");
+        match key {
+            "method" if !value.is_empty() => {
+                self.method = value.parse::<Method>().map_err(|_| {
+                    named(format!(
+                        "'{}' is not one of: {}",
+                        value.chars().take(40).collect::<String>(),
+                        Method::ALL
+                            .iter()
+                            .map(|m| m.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ))
+                })?;
+            }
+            "pivot" if !value.is_empty() => self.pivot = Some(read_pivot(value).map_err(named)?),
+            "pivot2" if !value.is_empty() => self.pivot2 = Some(read_pivot(value).map_err(named)?),
+            "method" | "pivot" | "pivot2" => {}
+            _ => return Ok(false),
+        }
+        Ok(true)
+    }
+
+    /// The pivots for `relation`: as given, or the relation's defaults.
+    pub fn pivots(&self, relation: &Relation) -> (f64, f64) {
+        (
+            self.pivot.unwrap_or_else(|| relation.default_pivot()),
+            self.pivot2.unwrap_or_else(|| relation.default_pivot2()),
+        )
+    }
+
+    /// A canonical text of the choice for `relation` (cache keys, entity tags).
+    pub fn canonical(&self, relation: &Relation) -> String {
+        let (p, p2) = self.pivots(relation);
+        format!(
+            "relation={};method={};{};pivots={:x},{:x}",
+            relation.slug(),
+            self.method.as_str(),
+            self.filter.canonical(),
+            p.to_bits(),
+            p2.to_bits()
+        )
+    }
+
+    /// The (key, value) pairs that reproduce this choice; none for the defaults.
+    pub fn query_pairs(&self) -> Vec<(&'static str, String)> {
+        let mut pairs = Vec::new();
+        if self.method != Method::Structural {
+            pairs.push(("method", self.method.as_str().to_owned()));
+        }
+        for (k, v) in self.filter.query_pairs() {
+            pairs.push((k, v.to_owned()));
+        }
+        if let Some(p) = self.pivot {
+            pairs.push(("pivot", format!("{p}")));
+        }
+        if let Some(p) = self.pivot2 {
+            pairs.push(("pivot2", format!("{p}")));
+        }
+        pairs
     }
 }
 

@@ -14,6 +14,7 @@
 //!
 //! Depends on `catalog` (rows), `astro` (distance bookkeeping) and `fit`; used by `web`.
 
+pub mod analysis;
 pub mod assess;
 mod cache;
 mod filter;
@@ -29,11 +30,13 @@ pub use cache::{
     FitCache, FitKey, FitOutcome, InfluenceResult, fitted, fitted_leaving_out, load_sample,
     spec_for,
 };
-pub use filter::{FILTER_PARAMS, SampleFilter, SigmaChoice, SoiChoice};
+pub use filter::{
+    FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
+};
 pub use runs::{
     BOOTSTRAP_CHUNK, DEFAULT_REPLICATES, DEFAULT_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE,
-    RUN_SEED, RunKey, RunKind, RunProgress, RunRegistry, RunState, STEPS_RANGE, filter_json,
-    stored_run,
+    RUN_SEED, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, STEPS_RANGE,
+    filter_json, run_status, stored_run,
 };
 pub use sample::{
     Member, Sample, at_adopted_distance, build_sample, distance_scaling, sphere_of_influence,

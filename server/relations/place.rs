@@ -354,15 +354,10 @@ pub struct PlacementNumbers {
     pub prob_below_limit: Option<f64>,
 }
 
-/// Where `subject` falls against `fit`, in numbers.
-///
-/// ```text
-/// ŷ, s_pred                      fit::predict / fit::predict_plane
-/// r = y − ŷ
-/// z = r / √(s_pred² + σ_y² − 2 β σ_xy)     σ_xy: a shared distance error (docs/methods.md §3.2)
-/// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
-/// ```
-/// dex throughout; verdict thresholds in [`verdict`] (common practice, docs/methods.md §6).
+/// Where `subject` falls against `fit`, in numbers: the prediction at its x (`fit::predict`,
+/// or `fit::predict_plane`), and with a mass its residual, z and P(below a limit)
+/// (`fit::locate`, which counts a shared distance error's covariance; docs/methods.md §3.2)
+/// and the verdict (common practice, docs/methods.md §6).
 ///
 /// # Errors
 /// The prediction's [`FitError`] (non-finite or negative input, a plane without x2).
@@ -372,31 +367,31 @@ pub fn placement_numbers(fit: &Fit, subject: &Subject) -> Result<PlacementNumber
         (Shape::Plane, Some((b, b_err))) => fit::predict_plane(fit, x, x_err, b, b_err),
         _ => fit::predict(fit, x, x_err),
     }?;
-    let mut numbers = PlacementNumbers {
-        prediction,
-        residual_dex: None,
-        z: None,
-        verdict: None,
-        prob_below_limit: None,
+    let Some(m) = subject.mass else {
+        return Ok(PlacementNumbers {
+            prediction,
+            residual_dex: None,
+            z: None,
+            verdict: None,
+            prob_below_limit: None,
+        });
     };
-    if let Some(m) = subject.mass {
-        let prediction = &numbers.prediction;
-        let r = m.log_mbh - prediction.log_mbh;
-        let var = prediction.sd_dex.powi(2) + m.err_dex.powi(2) - 2.0 * fit.params.beta * m.xy_cov;
-        let z = if var > 0.0 { r / var.sqrt() } else { 0.0 };
-        if m.upper_limit && prediction.sd_dex > 0.0 {
-            // P(true < y_lim) = Φ(r / s_pred).
-            numbers.prob_below_limit = Some(
-                0.5 * statrs::function::erf::erfc(
-                    -r / (prediction.sd_dex * std::f64::consts::SQRT_2),
-                ),
-            );
-        }
-        numbers.residual_dex = Some(r);
-        numbers.z = Some(z);
-        numbers.verdict = Some(verdict(z, m.upper_limit));
-    }
-    Ok(numbers)
+    let placed = fit::locate(
+        fit,
+        prediction,
+        x,
+        m.log_mbh,
+        m.err_dex,
+        m.xy_cov,
+        m.upper_limit,
+    );
+    Ok(PlacementNumbers {
+        prediction: placed.prediction,
+        residual_dex: Some(placed.residual_dex),
+        z: Some(placed.z),
+        verdict: Some(verdict(placed.z, m.upper_limit)),
+        prob_below_limit: placed.prob_below_limit,
+    })
 }
 
 /// One relation's answer for an object.

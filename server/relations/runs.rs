@@ -383,6 +383,108 @@ pub async fn stored_run(
     .await
 }
 
+/// Where a bootstrap or posterior run of a fit stands.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RunStatus {
+    /// Not started (or forgotten by a restart before it finished).
+    None,
+    /// Running: `done` of `total` replicates or steps, started at `started_at` (RFC 3339).
+    Running {
+        /// Replicates fitted or steps done.
+        done: usize,
+        /// All of them.
+        total: usize,
+        /// When it started.
+        started_at: String,
+    },
+    /// It failed; why.
+    Failed(String),
+    /// Finished and stored.
+    Stored {
+        /// Each parameter's percentiles.
+        params: Vec<ParamSummary>,
+        /// A warning of the sampler, or how many resamples failed.
+        note: Option<String>,
+        /// When it was stored (RFC 3339).
+        stored_at: String,
+    },
+}
+
+/// The parameter symbol of a stored parameter name.
+fn param_symbol(name: &str) -> &'static str {
+    match name {
+        "alpha" => "α",
+        "beta" => "β",
+        "beta2" => "β₂",
+        "gamma" => "γ",
+        "eps" => "ε",
+        _ => "?",
+    }
+}
+
+/// The status of the run of `kind` and `size` of `outcome`'s fit: the stored result, the
+/// progress of a run in `registry`, or none.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn run_status(
+    pool: &SqlitePool,
+    registry: &RunRegistry,
+    outcome: &FitOutcome,
+    kind: RunKind,
+    size: usize,
+) -> sqlx::Result<RunStatus> {
+    if let Some(run) = stored_run(pool, outcome, kind, size).await? {
+        let params = serde_json::from_str::<Vec<serde_json::Value>>(&run.params_json)
+            .unwrap_or_default()
+            .into_iter()
+            .filter_map(|v| {
+                let get = |k: &str| v[k].as_f64();
+                Some(ParamSummary {
+                    name: param_symbol(v["name"].as_str()?),
+                    median: get("median")?,
+                    p16: get("p16")?,
+                    p84: get("p84")?,
+                    p2_5: get("p2_5")?,
+                    p97_5: get("p97_5")?,
+                    mean: get("mean")?,
+                    sd: get("sd")?,
+                })
+            })
+            .collect();
+        let settings = serde_json::from_str::<serde_json::Value>(&run.settings_json)
+            .unwrap_or(serde_json::Value::Null);
+        let note = match (settings["warning"].as_str(), settings["failed"].as_u64()) {
+            (Some(w), _) => Some(w.to_owned()),
+            (None, Some(n)) if n > 0 => Some(format!(
+                "{n} resamples could not be fitted and were left out."
+            )),
+            _ => None,
+        };
+        return Ok(RunStatus::Stored {
+            params,
+            note,
+            stored_at: run.created_at,
+        });
+    }
+    let key = RunKey {
+        fit: outcome.key.clone(),
+        kind,
+        size,
+    };
+    Ok(match registry.get(&key) {
+        None => RunStatus::None,
+        Some(progress) => match progress.state() {
+            RunState::Running | RunState::Stored => RunStatus::Running {
+                done: progress.done.load(Ordering::Relaxed),
+                total: progress.total,
+                started_at: progress.started_at.clone(),
+            },
+            RunState::Failed(why) => RunStatus::Failed(why),
+        },
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

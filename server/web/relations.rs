@@ -11,7 +11,7 @@ use axum::extract::{Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
-use super::display::significant;
+use super::display::{fixed, significant};
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
 use crate::catalog::relation_rows;
 use crate::charts::{
@@ -20,15 +20,14 @@ use crate::charts::{
 };
 use crate::error::{AppError, AppResult};
 use crate::fit::{Fit, Method, Point, Shape};
+use crate::relations::analysis::{Subset, flagged, most_influential, offset_between};
 use crate::relations::{
-    DEFAULT_REPLICATES, DEFAULT_STEPS, FitOutcome, Member, Relation, RunKey, RunKind, RunState,
-    SampleFilter, fitted, stored_run,
+    DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, Member, Relation, RunKind, RunStatus,
+    fitted, run_status, stored_run,
 };
 use crate::state::AppState;
 use crate::units::round_to_uncertainty;
 
-/// |z| at which an object is listed as an outlier (common practice: docs/methods.md §6).
-pub(crate) const OUTLIER_Z: f64 = 2.0;
 /// How many of the most influential objects are listed.
 const TOP_INFLUENCE: usize = 5;
 /// Samples of the mean-relation band across the x range.
@@ -114,78 +113,11 @@ impl Versus {
     }
 }
 
-/// A subsample for the zero-point offset: one value of one tag, e.g. morphology = elliptical.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub(crate) struct Subset {
-    dimension: &'static str,
-    value: &'static str,
-    label: &'static str,
-}
-
-impl Subset {
-    /// Every subset a reader can pick.
-    fn all() -> Vec<Subset> {
-        let mut out = Vec::new();
-        let mut push = |dimension, items: Vec<(&'static str, &'static str)>| {
-            for (value, label) in items {
-                out.push(Subset {
-                    dimension,
-                    value,
-                    label,
-                });
-            }
-        };
-        push("morphology", Morphology::pairs());
-        push("bulge_kind", BulgeKind::pairs());
-        push("centre_kind", CentreKind::pairs());
-        push("mass_method", MassMethod::pairs());
-        out
-    }
-
-    fn code(self) -> String {
-        format!("{}:{}", self.dimension, self.value)
-    }
-
-    fn describe(self) -> String {
-        let what = match self.dimension {
-            "morphology" => "morphology",
-            "bulge_kind" => "bulge",
-            "centre_kind" => "centre",
-            _ => "mass method",
-        };
-        format!("{what} {}", self.label)
-    }
-
-    fn contains(self, m: &Member) -> bool {
-        let word = match self.dimension {
-            "morphology" => &m.morphology,
-            "bulge_kind" => &m.bulge_kind,
-            "centre_kind" => &m.centre_kind,
-            _ => &m.mass_method,
-        };
-        word == self.value
-    }
-
-    fn parse(text: &str) -> Result<Subset, String> {
-        Subset::all()
-            .into_iter()
-            .find(|s| s.code() == text)
-            .ok_or_else(|| {
-                format!(
-                    "'{}' is not a subsample; write it as tag:value, e.g. morphology:elliptical or bulge_kind:pseudo",
-                    text.chars().take(60).collect::<String>()
-                )
-            })
-    }
-}
-
 /// The relation page's query, validated.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct RelationQuery {
-    pub(crate) method: Method,
-    pub(crate) filter: SampleFilter,
-    pub(crate) pivot: Option<f64>,
-    pub(crate) pivot2: Option<f64>,
+    /// The estimator, galaxies and pivots.
+    pub(crate) fit: FitChoice,
     pub(crate) group: Grouping,
     pub(crate) versus: Versus,
     pub(crate) offset_a: Option<Subset>,
@@ -199,10 +131,7 @@ pub(crate) struct RelationQuery {
 impl Default for RelationQuery {
     fn default() -> Self {
         Self {
-            method: Method::Structural,
-            filter: SampleFilter::default(),
-            pivot: None,
-            pivot2: None,
+            fit: FitChoice::default(),
             group: Grouping::Morphology,
             versus: Versus::Distance,
             offset_a: None,
@@ -228,24 +157,13 @@ fn run_size(kind: RunKind, value: &str) -> Result<usize, String> {
         .map_err(|e| e.trim_end_matches('.').to_owned())
 }
 
-/// A pivot as typed: a log10 value in the relation's x unit.
-fn parse_pivot(value: &str) -> Result<f64, String> {
-    match value.parse::<f64>() {
-        Ok(v) if v.is_finite() && (0.0..=20.0).contains(&v) => Ok(v),
-        _ => Err(format!(
-            "'{}' is not a log10 value from 0 to 20, such as 2.301 (σ = 200 km/s) or 11 (10^11 M☉)",
-            value.chars().take(40).collect::<String>()
-        )),
-    }
-}
-
 impl RelationQuery {
     /// Reads the query parameters; every problem becomes one sentence naming the parameter.
     pub(crate) fn parse(pairs: &[(String, String)]) -> Result<Self, String> {
         let mut q = Self::default();
         let mut problems = Vec::new();
         for (key, value) in pairs {
-            match q.filter.set(key, value) {
+            match q.fit.set(key, value) {
                 Ok(true) => continue,
                 Ok(false) => {}
                 Err(e) => {
@@ -258,24 +176,11 @@ impl RelationQuery {
                 continue;
             }
             let result: Result<(), String> = match key.as_str() {
-                "method" => value
-                    .parse::<Method>()
-                    .map(|m| q.method = m)
-                    .map_err(|_| {
-                        format!(
-                            "'{}' is not one of: structural, conditional, fitexy, bces-yx, bces-xy, bces-bisector, bces-orthogonal",
-                            value.chars().take(40).collect::<String>()
-                        )
-                    }),
-                "pivot" => parse_pivot(value).map(|v| q.pivot = Some(v)),
-                "pivot2" => parse_pivot(value).map(|v| q.pivot2 = Some(v)),
                 "group" => Grouping::ALL
                     .iter()
                     .find(|(_, s, _)| *s == value)
                     .map(|(g, _, _)| q.group = *g)
-                    .ok_or_else(|| {
-                        "it is not one of: morphology, bulge_kind, method".to_owned()
-                    }),
+                    .ok_or_else(|| "it is not one of: morphology, bulge_kind, method".to_owned()),
                 "versus" => Versus::ALL
                     .iter()
                     .find(|(_, s, _)| *s == value)
@@ -306,19 +211,7 @@ impl RelationQuery {
 
     /// The query string (without '?') that reproduces this query; empty for the defaults.
     pub(crate) fn to_query_string(&self) -> String {
-        let mut pairs: Vec<(&str, String)> = Vec::new();
-        if self.method != Method::Structural {
-            pairs.push(("method", self.method.as_str().to_owned()));
-        }
-        for (k, v) in self.filter.query_pairs() {
-            pairs.push((k, v.to_owned()));
-        }
-        if let Some(p) = self.pivot {
-            pairs.push(("pivot", format!("{p}")));
-        }
-        if let Some(p) = self.pivot2 {
-            pairs.push(("pivot2", format!("{p}")));
-        }
+        let mut pairs = self.fit.query_pairs();
         if self.group != Grouping::Morphology {
             pairs.push(("group", self.group.as_str().to_owned()));
         }
@@ -338,13 +231,6 @@ impl RelationQuery {
             pairs.push(("steps", self.steps.to_string()));
         }
         serde_urlencoded::to_string(&pairs).unwrap_or_default()
-    }
-
-    fn pivots(&self, relation: &Relation) -> (f64, f64) {
-        (
-            self.pivot.unwrap_or_else(|| relation.default_pivot()),
-            self.pivot2.unwrap_or_else(|| relation.default_pivot2()),
-        )
     }
 }
 
@@ -382,9 +268,9 @@ async fn fit_for(
         &state.fits,
         state.settings.soi_threshold,
         relation,
-        q.method,
-        &q.filter,
-        q.pivots(relation),
+        q.fit.method,
+        &q.fit.filter,
+        q.fit.pivots(relation),
     )
     .await?)
 }
@@ -515,11 +401,8 @@ pub(crate) struct OffsetView {
     significance: String,
 }
 
-/// `/relations/{relation}`.
-#[derive(Template, WebTemplate)]
-#[template(path = "pages/relation_show.html")]
-pub(crate) struct RelationPage {
-    nav: super::Nav,
+/// The relation page's form: the relation and every control, filled in from the query.
+pub(crate) struct Controls {
     label: String,
     slug: String,
     x_label: String,
@@ -540,6 +423,10 @@ pub(crate) struct RelationPage {
     versus_options: Vec<OptionView>,
     offset_a_options: Vec<OptionView>,
     offset_b_options: Vec<OptionView>,
+}
+
+/// What the relation page says was fitted.
+pub(crate) struct SampleSummary {
     catalog_version: i64,
     fitted_at: String,
     method: &'static str,
@@ -548,8 +435,17 @@ pub(crate) struct RelationPage {
     n_limits: usize,
     sigma_note: Option<String>,
     missing_note: Option<String>,
-    fit_error: Option<String>,
     fit_note: String,
+}
+
+/// `/relations/{relation}`.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/relation_show.html")]
+pub(crate) struct RelationPage {
+    nav: super::Nav,
+    controls: Controls,
+    summary: SampleSummary,
+    fit_error: Option<String>,
     params: Vec<ParamView>,
     cov_names: Vec<&'static str>,
     cov_rows: Vec<CovRow>,
@@ -592,17 +488,6 @@ pub(crate) struct RunParamView {
     interval95: String,
 }
 
-fn run_param_name(name: &str) -> &'static str {
-    match name {
-        "alpha" => "α",
-        "beta" => "β",
-        "beta2" => "β₂",
-        "gamma" => "γ",
-        "eps" => "ε",
-        _ => "?",
-    }
-}
-
 /// The runs shown on a relation page: the stored result, the progress, or nothing yet.
 async fn run_views(
     state: &AppState,
@@ -614,6 +499,23 @@ async fn run_views(
         (RunKind::Bootstrap, q.replicates),
         (RunKind::Posterior, q.steps),
     ] {
+        let status = if kind == RunKind::Posterior
+            && !matches!(q.fit.method, Method::Structural | Method::Conditional)
+        {
+            RunStatus::Failed(format!(
+                "The {} estimator has no likelihood, so it has no posterior.",
+                q.fit.method.as_str()
+            ))
+        } else {
+            run_status(&state.pool, &state.runs, outcome, kind, size).await?
+        };
+        views.push(RunView::of(kind, size, status));
+    }
+    Ok(views)
+}
+
+impl RunView {
+    fn of(kind: RunKind, size: usize, status: RunStatus) -> Self {
         let title = match kind {
             RunKind::Bootstrap => format!(
                 "Bootstrap, {size} resamples of the objects (seed {})",
@@ -636,102 +538,62 @@ async fn run_views(
             params: Vec::new(),
             stored_at: String::new(),
         };
-        if kind == RunKind::Posterior
-            && !matches!(q.method, Method::Structural | Method::Conditional)
-        {
-            view.status = "failed";
-            view.note = Some(format!(
-                "The {} estimator has no likelihood, so it has no posterior.",
-                q.method.as_str()
-            ));
-            views.push(view);
-            continue;
-        }
-        if let Some(run) = stored_run(&state.pool, outcome, kind, size).await? {
-            let params: Vec<crate::fit::ensemble::ParamSummary> =
-                serde_json::from_str::<Vec<serde_json::Value>>(&run.params_json)
-                    .unwrap_or_default()
-                    .into_iter()
-                    .filter_map(|v| {
-                        let name = run_param_name(v["name"].as_str()?);
-                        let get = |k: &str| v[k].as_f64();
-                        Some(crate::fit::ensemble::ParamSummary {
-                            name,
-                            median: get("median")?,
-                            p16: get("p16")?,
-                            p84: get("p84")?,
-                            p2_5: get("p2_5")?,
-                            p97_5: get("p97_5")?,
-                            mean: get("mean")?,
-                            sd: get("sd")?,
-                        })
-                    })
-                    .collect();
-            view.status = "stored";
-            view.stored_at = run.created_at;
-            view.params = params
-                .iter()
-                .map(|p| {
-                    let half = (p.p84 - p.p16) / 2.0;
-                    let decimals = if half > 0.0 {
-                        (1.0 - half.log10().floor()).clamp(1.0, 6.0) as usize
-                    } else {
-                        3
-                    };
-                    RunParamView {
-                        name: p.name,
-                        median: super::display::fixed(p.median, decimals),
-                        interval68: format!(
-                            "{} to {}",
-                            super::display::fixed(p.p16, decimals),
-                            super::display::fixed(p.p84, decimals)
-                        ),
-                        interval95: format!(
-                            "{} to {}",
-                            super::display::fixed(p.p2_5, decimals),
-                            super::display::fixed(p.p97_5, decimals)
-                        ),
+        match status {
+            RunStatus::None => {}
+            RunStatus::Failed(why) => {
+                view.status = "failed";
+                view.note = Some(why);
+            }
+            RunStatus::Running {
+                done,
+                total,
+                started_at,
+            } => {
+                view.status = "running";
+                view.progress = match kind {
+                    RunKind::Bootstrap => {
+                        format!("{done} of {total} resamples fitted (started {started_at})")
                     }
-                })
-                .collect();
-            if let Ok(settings) = serde_json::from_str::<serde_json::Value>(&run.settings_json) {
-                if let Some(w) = settings["warning"].as_str() {
-                    view.note = Some(w.to_owned());
-                } else if let Some(n) = settings["failed"].as_u64().filter(|n| *n > 0) {
-                    view.note = Some(format!(
-                        "{n} resamples could not be fitted and were left out."
-                    ));
-                }
+                    RunKind::Posterior => format!(
+                        "{done} of {total} sampler steps done, burn-in included (started {started_at})"
+                    ),
+                };
             }
-        } else if let Some(progress) = state.runs.get(&RunKey {
-            fit: outcome.key.clone(),
-            kind,
-            size,
-        }) {
-            match progress.state() {
-                RunState::Running | RunState::Stored => {
-                    view.status = "running";
-                    let done = progress.done.load(std::sync::atomic::Ordering::Relaxed);
-                    view.progress = match kind {
-                        RunKind::Bootstrap => format!(
-                            "{done} of {} resamples fitted (started {})",
-                            progress.total, progress.started_at
-                        ),
-                        RunKind::Posterior => format!(
-                            "{done} of {} sampler steps done, burn-in included (started {})",
-                            progress.total, progress.started_at
-                        ),
-                    };
-                }
-                RunState::Failed(why) => {
-                    view.status = "failed";
-                    view.note = Some(why);
-                }
+            RunStatus::Stored {
+                params,
+                note,
+                stored_at,
+            } => {
+                view.status = "stored";
+                view.stored_at = stored_at;
+                view.note = note;
+                view.params = params.iter().map(RunParamView::of).collect();
             }
         }
-        views.push(view);
+        view
     }
-    Ok(views)
+}
+
+impl RunParamView {
+    /// A parameter's median and intervals, to one digit beyond the interval's first.
+    fn of(p: &crate::fit::ensemble::ParamSummary) -> Self {
+        let half = (p.p84 - p.p16) / 2.0;
+        let decimals = if half > 0.0 {
+            (1.0 - half.log10().floor()).clamp(1.0, 6.0) as usize
+        } else {
+            3
+        };
+        RunParamView {
+            name: p.name,
+            median: fixed(p.median, decimals),
+            interval68: format!("{} to {}", fixed(p.p16, decimals), fixed(p.p84, decimals)),
+            interval95: format!(
+                "{} to {}",
+                fixed(p.p2_5, decimals),
+                fixed(p.p97_5, decimals)
+            ),
+        }
+    }
 }
 
 /// The run form's fields.
@@ -924,7 +786,9 @@ fn relation_chart_svg(
     relation_svg(&relation_chart(relation, outcome, grouping)).map_err(|e| e.to_string())
 }
 
-/// Show one relation.
+/// Show one relation: its fit, chart, residuals, the objects off the relation, the most
+/// influential objects, a zero-point offset between subsamples, and the bootstrap and posterior
+/// runs.
 pub(crate) async fn show_relation(
     State(state): State<AppState>,
     nav: super::Nav,
@@ -934,306 +798,331 @@ pub(crate) async fn show_relation(
     let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
     let outcome = fit_for(&state, &relation, &q).await?;
-    let sample = &outcome.sample;
+    let (chart_svg, chart_error) = match relation_chart_svg(&relation, &outcome, q.group) {
+        Ok(svg) => (svg, None),
+        Err(e) => (String::new(), Some(e)),
+    };
     let fit = outcome.fit.as_ref().ok();
-    let mut chart_error = None;
-    let chart_svg = relation_chart_svg(&relation, &outcome, q.group).unwrap_or_else(|e| {
-        chart_error = Some(e);
-        String::new()
-    });
-
-    let mut params = Vec::new();
-    let mut cov_names = Vec::new();
-    let mut cov_rows = Vec::new();
-    let mut residual_chart = String::new();
-    let mut residual2_chart = String::new();
-    let mut outliers = Vec::new();
-    let mut influential = Vec::new();
-    let mut influence_note = None;
-    if let Some(f) = fit {
-        let unit = relation.x_unit();
-        params.push(ParamView {
-            symbol: "α",
-            value: with_error(f.params.alpha, f.errors.alpha),
-            unit: "log10 M☉ at the pivot".into(),
-        });
-        params.push(ParamView {
-            symbol: "β",
-            value: with_error(f.params.beta, f.errors.beta),
-            unit: format!("dex of M_BH per dex of x ({unit})"),
-        });
-        if let Some(g) = f.params.gamma {
-            params.push(ParamView {
-                symbol: "γ",
-                value: with_error(g, f.errors.gamma.unwrap_or(0.0)),
-                unit: "dex of M_BH per dex of M_bulge".into(),
-            });
-        }
-        params.push(ParamView {
-            symbol: "ε",
-            value: with_error(f.params.eps, f.errors.eps),
-            unit: "dex (intrinsic scatter)".into(),
-        });
-        cov_names.clone_from(&f.cov_names);
-        cov_rows = f
-            .cov_names
-            .iter()
-            .zip(&f.cov)
-            .map(|(name, row)| CovRow {
-                name,
-                cells: row.iter().map(|v| significant(*v, 3)).collect(),
-            })
-            .collect();
-
-        // Residuals: against x, and against the property the reader picked.
-        let residuals = crate::fit::residuals(f, &sample.points);
-        let (groups, index) = groups_of(q.group, &sample.members);
-        let residual_points = |x_of: &dyn Fn(&Member, &Point) -> Option<f64>| -> Vec<ChartPoint> {
-            sample
-                .points
-                .iter()
-                .zip(&sample.members)
-                .zip(&residuals)
-                .zip(&index)
-                .filter_map(|(((p, m), r), g)| {
-                    let x = x_of(m, p)?;
-                    // The second property's error is not carried in the sample: no x bar.
-                    let mut c = chart_point(m, p, x, r.residual_dex, *g);
-                    c.x_err = 0.0;
-                    Some(c)
-                })
-                .collect()
-        };
-        let mut vs_x = residual_points(&|_, p| Some(p.x));
-        for (c, p) in vs_x.iter_mut().zip(&sample.points) {
-            c.x_err = p.x_err;
-        }
-        let chart = ResidualChart {
-            title: format!("Residuals of {} against x", relation.label()),
-            x_label: relation.x_label(),
-            points: vs_x,
-            groups: groups.clone(),
-            scatter_dex: f.params.eps.max(0.0),
-            ..ResidualChart::default()
-        };
-        residual_chart = residual_svg(&chart).unwrap_or_default();
-        let chart2 = ResidualChart {
-            title: format!(
-                "Residuals of {} against {}",
-                relation.label(),
-                q.versus.axis_label()
-            ),
-            x_label: q.versus.axis_label(),
-            points: residual_points(&|m, _| q.versus.value(m)),
-            groups,
-            scatter_dex: f.params.eps.max(0.0),
-            ..ResidualChart::default()
-        };
-        residual2_chart = residual_svg(&chart2).unwrap_or_default();
-
-        let mut flagged: Vec<_> = residuals
-            .iter()
-            .filter(|r| {
-                if r.upper_limit {
-                    r.z <= -OUTLIER_Z
-                } else {
-                    r.z.abs() >= OUTLIER_Z
-                }
-            })
-            .collect();
-        flagged.sort_by(|a, b| b.z.abs().total_cmp(&a.z.abs()));
-        outliers = flagged
-            .into_iter()
-            .map(|r| {
-                let m = &sample.members[r.index];
-                ObjectView {
-                    name: m.name.clone(),
-                    slug: m.slug.clone(),
-                    first: if r.upper_limit {
-                        format!("< {}", super::display::fixed(r.residual_dex, 2))
-                    } else {
-                        super::display::fixed(r.residual_dex, 2)
-                    },
-                    second: super::display::fixed(r.z, 1),
-                    third: String::new(),
-                }
-            })
-            .collect();
-
-        match state.fits.influence(&outcome).await?.as_ref() {
-            Ok(list) => {
-                let mut sorted: Vec<_> = list.iter().collect();
-                sorted.sort_by(|a, b| b.shift_sigma.total_cmp(&a.shift_sigma));
-                influential = sorted
-                    .into_iter()
-                    .take(TOP_INFLUENCE)
-                    .map(|i| {
-                        let m = &sample.members[i.index];
-                        ObjectView {
-                            name: m.name.clone(),
-                            slug: m.slug.clone(),
-                            first: super::display::fixed(i.d_beta, 3),
-                            second: super::display::fixed(i.d_alpha, 3),
-                            third: super::display::fixed(i.shift_sigma, 2),
-                        }
-                    })
-                    .collect();
-            }
-            Err(e) => influence_note = Some(e.to_string()),
-        }
-    }
-
-    // Zero-point offset between the two subsamples the reader picked.
-    let mut offset = None;
-    let mut offset_note = None;
-    if let (Some(a), Some(b)) = (q.offset_a, q.offset_b) {
-        if a == b {
-            offset_note = Some("Pick two different subsamples to compare.".to_owned());
-        } else if let Ok(spec) = outcome.spec.clone() {
-            let pick = |s: Subset| -> Vec<Point> {
-                sample
-                    .points
-                    .iter()
-                    .zip(&sample.members)
-                    .filter(|(_, m)| s.contains(m))
-                    .map(|(p, _)| p.clone())
-                    .collect()
-            };
-            let (pa, pb) = (pick(a), pick(b));
-            let result =
-                tokio::task::spawn_blocking(move || crate::fit::zero_point_offset(&pa, &pb, &spec))
-                    .await
-                    .map_err(anyhow::Error::from)?;
-            match result {
-                Ok(o) => {
-                    offset = Some(OffsetView {
-                        a: a.describe(),
-                        b: b.describe(),
-                        n_a: o.n_a,
-                        n_b: o.n_b,
-                        offset: with_error(o.offset_dex, o.err_dex),
-                        significance: super::display::fixed(o.significance_sigma, 1),
-                    });
-                }
-                Err(e) => {
-                    offset_note = Some(format!(
-                        "The offset of {} against {} could not be fitted: {e}",
-                        b.describe(),
-                        a.describe()
-                    ));
-                }
-            }
-        }
-    }
-
+    let (params, cov_names, cov_rows) = fit.map(|f| fit_views(&relation, f)).unwrap_or_default();
+    let (residual_svg, residual2_svg) = fit
+        .map(|f| residual_charts(&relation, &outcome, f, &q))
+        .unwrap_or_default();
+    let (influential, influence_note) = if fit.is_some() {
+        influence_views(&state, &outcome).await?
+    } else {
+        (Vec::new(), None)
+    };
+    let (offset, offset_note) = offset_view(&outcome, &q).await?;
     let runs = run_views(&state, &outcome, &q).await?;
     let refresh = runs.iter().any(|r| r.status == "running");
     let may_start = nav.username.is_some();
-    let pivots = q.pivots(&relation);
-    let methods = Method::ALL;
-    let enum_options = |items: Vec<(&'static str, &'static str)>, selected: Option<&str>| {
-        items
-            .into_iter()
-            .map(|(v, l)| option(v, l, selected == Some(v)))
-            .collect::<Vec<_>>()
-    };
-    let subset_options = |selected: Option<Subset>| {
-        Subset::all()
-            .into_iter()
-            .map(|s| option(&s.code(), &s.describe(), selected == Some(s)))
-            .collect::<Vec<_>>()
-    };
-    let sigma_note = (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(|| {
-        format!(
-            "{} galaxies with a {} were left out: σ definitions are never mixed in one fit.",
-            sample.left_out_sigma_definition,
-            match q.filter.sigma {
-                crate::relations::SigmaChoice::Effective => "central σ_c",
-                crate::relations::SigmaChoice::Central => "σ_e",
-            }
-        )
-    });
-    let missing_note = (sample.left_out_missing > 0).then(|| {
-        format!(
-            "{} galaxies matching the selection lack a value this relation needs.",
-            sample.left_out_missing
-        )
-    });
+    let query_plain = q.to_query_string();
     Ok(RelationPage {
         nav,
-        label: relation.label(),
-        slug: relation.slug(),
-        x_label: relation.x_label(),
-        x2_label: relation.x2_label(),
-        method_options: methods
-            .iter()
-            .map(|m| option(m.as_str(), method_label(*m), *m == q.method))
-            .collect(),
-        morphology_options: enum_options(
-            Morphology::pairs(),
-            q.filter.morphology.map(Morphology::as_str),
-        ),
-        bulge_options: enum_options(
-            BulgeKind::pairs(),
-            q.filter.bulge_kind.map(BulgeKind::as_str),
-        ),
-        centre_options: enum_options(
-            CentreKind::pairs(),
-            q.filter.centre_kind.map(CentreKind::as_str),
-        ),
-        mass_method_options: enum_options(
-            MassMethod::pairs(),
-            q.filter.mass_method.map(MassMethod::as_str),
-        ),
-        soi_resolved: q.filter.soi == crate::relations::SoiChoice::Resolved,
-        exclude_limits: q.filter.exclude_limits,
-        uses_sigma: relation.uses_sigma(),
-        sigma_central: q.filter.sigma == crate::relations::SigmaChoice::Central,
-        pivot: format!("{}", (pivots.0 * 1e4).round() / 1e4),
-        pivot2: format!("{}", (pivots.1 * 1e4).round() / 1e4),
-        pivot_unit: relation.x_unit(),
-        group_options: Grouping::ALL
-            .iter()
-            .map(|(g, v, l)| option(v, l, *g == q.group))
-            .collect(),
-        versus_options: Versus::ALL
-            .iter()
-            .map(|(v, s, l)| option(s, l, *v == q.versus))
-            .collect(),
-        offset_a_options: subset_options(q.offset_a),
-        offset_b_options: subset_options(q.offset_b),
-        catalog_version: outcome.key.catalog_version,
-        fitted_at: outcome.fitted_at.clone(),
-        method: q.method.as_str(),
-        filter_text: outcome.key.filter.replace(';', "; "),
-        n_detections: sample.n_detections(),
-        n_limits: sample.n_limits(),
-        sigma_note,
-        missing_note,
+        controls: Controls::of(&relation, &q),
+        summary: SampleSummary::of(&relation, &outcome, &q),
         fit_error: outcome.fit.as_ref().err().map(ToString::to_string),
-        fit_note: method_note(q.method).to_owned(),
         params,
         cov_names,
         cov_rows,
         chart_svg,
-        residual_svg: residual_chart,
-        residual2_svg: residual2_chart,
+        residual_svg,
+        residual2_svg,
         residual2_label: q.versus.axis_label(),
         chart_error,
-        outliers,
+        outliers: flagged_views(&outcome),
         influential,
         influence_note,
         offset,
         offset_note,
-        query: {
-            let s = q.to_query_string();
-            if s.is_empty() { s } else { format!("?{s}") }
+        query: if query_plain.is_empty() {
+            String::new()
+        } else {
+            format!("?{query_plain}")
         },
-        query_plain: q.to_query_string(),
+        query_plain,
         runs,
         refresh,
         may_start,
     })
+}
+
+/// The fitted parameters with their errors and units, and the covariance matrix.
+fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<&'static str>, Vec<CovRow>) {
+    let unit = relation.x_unit();
+    let mut params = vec![
+        ParamView {
+            symbol: "α",
+            value: with_error(f.params.alpha, f.errors.alpha),
+            unit: "log10 M☉ at the pivot".into(),
+        },
+        ParamView {
+            symbol: "β",
+            value: with_error(f.params.beta, f.errors.beta),
+            unit: format!("dex of M_BH per dex of x ({unit})"),
+        },
+    ];
+    if let Some(g) = f.params.gamma {
+        params.push(ParamView {
+            symbol: "γ",
+            value: with_error(g, f.errors.gamma.unwrap_or(0.0)),
+            unit: "dex of M_BH per dex of M_bulge".into(),
+        });
+    }
+    params.push(ParamView {
+        symbol: "ε",
+        value: with_error(f.params.eps, f.errors.eps),
+        unit: "dex (intrinsic scatter)".into(),
+    });
+    let cov_rows = f
+        .cov_names
+        .iter()
+        .zip(&f.cov)
+        .map(|(name, row)| CovRow {
+            name,
+            cells: row.iter().map(|v| significant(*v, 3)).collect(),
+        })
+        .collect();
+    (params, f.cov_names.clone(), cov_rows)
+}
+
+/// The residual charts: against x, and against the property the reader picked.
+fn residual_charts(
+    relation: &Relation,
+    outcome: &FitOutcome,
+    f: &Fit,
+    q: &RelationQuery,
+) -> (String, String) {
+    let sample = &outcome.sample;
+    let residuals = crate::fit::residuals(f, &sample.points);
+    let (groups, index) = groups_of(q.group, &sample.members);
+    let residual_points = |x_of: &dyn Fn(&Member, &Point) -> Option<f64>| -> Vec<ChartPoint> {
+        sample
+            .points
+            .iter()
+            .zip(&sample.members)
+            .zip(&residuals)
+            .zip(&index)
+            .filter_map(|(((p, m), r), g)| {
+                let x = x_of(m, p)?;
+                // The second property's error is not carried in the sample: no x bar.
+                let mut c = chart_point(m, p, x, r.residual_dex, *g);
+                c.x_err = 0.0;
+                Some(c)
+            })
+            .collect()
+    };
+    let mut vs_x = residual_points(&|_, p| Some(p.x));
+    for (c, p) in vs_x.iter_mut().zip(&sample.points) {
+        c.x_err = p.x_err;
+    }
+    let against_x = ResidualChart {
+        title: format!("Residuals of {} against x", relation.label()),
+        x_label: relation.x_label(),
+        points: vs_x,
+        groups: groups.clone(),
+        scatter_dex: f.params.eps.max(0.0),
+        ..ResidualChart::default()
+    };
+    let against_other = ResidualChart {
+        title: format!(
+            "Residuals of {} against {}",
+            relation.label(),
+            q.versus.axis_label()
+        ),
+        x_label: q.versus.axis_label(),
+        points: residual_points(&|m, _| q.versus.value(m)),
+        groups,
+        scatter_dex: f.params.eps.max(0.0),
+        ..ResidualChart::default()
+    };
+    (
+        residual_svg(&against_x).unwrap_or_default(),
+        residual_svg(&against_other).unwrap_or_default(),
+    )
+}
+
+/// The objects in tension with the relation or outliers, largest |z| first.
+fn flagged_views(outcome: &FitOutcome) -> Vec<ObjectView> {
+    flagged(outcome)
+        .into_iter()
+        .map(|r| {
+            let m = &outcome.sample.members[r.index];
+            ObjectView {
+                name: m.name.clone(),
+                slug: m.slug.clone(),
+                first: if r.upper_limit {
+                    format!("< {}", fixed(r.residual_dex, 2))
+                } else {
+                    fixed(r.residual_dex, 2)
+                },
+                second: fixed(r.z, 1),
+                third: r.verdict.to_owned(),
+            }
+        })
+        .collect()
+}
+
+/// The most influential objects (leave-one-out refits), or why there are none.
+async fn influence_views(
+    state: &AppState,
+    outcome: &Arc<FitOutcome>,
+) -> AppResult<(Vec<ObjectView>, Option<String>)> {
+    Ok(
+        match most_influential(&state.fits, outcome, TOP_INFLUENCE).await? {
+            Ok(list) => (
+                list.iter()
+                    .map(|i| {
+                        let m = &outcome.sample.members[i.index];
+                        ObjectView {
+                            name: m.name.clone(),
+                            slug: m.slug.clone(),
+                            first: fixed(i.d_beta, 3),
+                            second: fixed(i.d_alpha, 3),
+                            third: fixed(i.shift_sigma, 2),
+                        }
+                    })
+                    .collect(),
+                None,
+            ),
+            Err(why) => (Vec::new(), Some(why)),
+        },
+    )
+}
+
+/// The zero-point offset between the two subsamples the reader picked, or a note.
+async fn offset_view(
+    outcome: &FitOutcome,
+    q: &RelationQuery,
+) -> AppResult<(Option<OffsetView>, Option<String>)> {
+    let (Some(a), Some(b)) = (q.offset_a, q.offset_b) else {
+        return Ok((None, None));
+    };
+    if a == b {
+        return Ok((
+            None,
+            Some("Pick two different subsamples to compare.".to_owned()),
+        ));
+    }
+    Ok(match offset_between(outcome, a, b).await? {
+        None => (None, None),
+        Some(Ok(o)) => (
+            Some(OffsetView {
+                a: a.describe(),
+                b: b.describe(),
+                n_a: o.n_a,
+                n_b: o.n_b,
+                offset: with_error(o.offset_dex, o.err_dex),
+                significance: fixed(o.significance_sigma, 1),
+            }),
+            None,
+        ),
+        Some(Err(e)) => (
+            None,
+            Some(format!(
+                "The offset of {} against {} could not be fitted: {e}",
+                b.describe(),
+                a.describe()
+            )),
+        ),
+    })
+}
+
+impl Controls {
+    /// The page's form, filled in from the query.
+    fn of(relation: &Relation, q: &RelationQuery) -> Self {
+        let pivots = q.fit.pivots(relation);
+        let filter = &q.fit.filter;
+        let enum_options = |items: Vec<(&'static str, &'static str)>, selected: Option<&str>| {
+            items
+                .into_iter()
+                .map(|(v, l)| option(v, l, selected == Some(v)))
+                .collect::<Vec<_>>()
+        };
+        let subset_options = |selected: Option<Subset>| {
+            Subset::all()
+                .into_iter()
+                .map(|s| option(&s.code(), &s.describe(), selected == Some(s)))
+                .collect::<Vec<_>>()
+        };
+        Controls {
+            label: relation.label(),
+            slug: relation.slug(),
+            x_label: relation.x_label(),
+            x2_label: relation.x2_label(),
+            method_options: Method::ALL
+                .iter()
+                .map(|m| option(m.as_str(), method_label(*m), *m == q.fit.method))
+                .collect(),
+            morphology_options: enum_options(
+                Morphology::pairs(),
+                filter.morphology.map(Morphology::as_str),
+            ),
+            bulge_options: enum_options(
+                BulgeKind::pairs(),
+                filter.bulge_kind.map(BulgeKind::as_str),
+            ),
+            centre_options: enum_options(
+                CentreKind::pairs(),
+                filter.centre_kind.map(CentreKind::as_str),
+            ),
+            mass_method_options: enum_options(
+                MassMethod::pairs(),
+                filter.mass_method.map(MassMethod::as_str),
+            ),
+            soi_resolved: filter.soi == crate::relations::SoiChoice::Resolved,
+            exclude_limits: filter.exclude_limits,
+            uses_sigma: relation.uses_sigma(),
+            sigma_central: filter.sigma == crate::relations::SigmaChoice::Central,
+            pivot: format!("{}", (pivots.0 * 1e4).round() / 1e4),
+            pivot2: format!("{}", (pivots.1 * 1e4).round() / 1e4),
+            pivot_unit: relation.x_unit(),
+            group_options: Grouping::ALL
+                .iter()
+                .map(|(g, v, l)| option(v, l, *g == q.group))
+                .collect(),
+            versus_options: Versus::ALL
+                .iter()
+                .map(|(v, s, l)| option(s, l, *v == q.versus))
+                .collect(),
+            offset_a_options: subset_options(q.offset_a),
+            offset_b_options: subset_options(q.offset_b),
+        }
+    }
+}
+
+impl SampleSummary {
+    /// What was fitted: version, estimator, selection, counts and what was left out.
+    fn of(relation: &Relation, outcome: &FitOutcome, q: &RelationQuery) -> Self {
+        let sample = &outcome.sample;
+        SampleSummary {
+            catalog_version: outcome.key.catalog_version,
+            fitted_at: outcome.fitted_at.clone(),
+            method: q.fit.method.as_str(),
+            filter_text: outcome.key.filter.replace(';', "; "),
+            n_detections: sample.n_detections(),
+            n_limits: sample.n_limits(),
+            sigma_note: (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(
+                || {
+                    format!(
+                        "{} galaxies with a {} were left out: σ definitions are never mixed in one fit.",
+                        sample.left_out_sigma_definition,
+                        match q.fit.filter.sigma {
+                            crate::relations::SigmaChoice::Effective => "central σ_c",
+                            crate::relations::SigmaChoice::Central => "σ_e",
+                        }
+                    )
+                },
+            ),
+            missing_note: (sample.left_out_missing > 0).then(|| {
+                format!(
+                    "{} galaxies matching the selection lack a value this relation needs.",
+                    sample.left_out_missing
+                )
+            }),
+            fit_note: method_note(q.fit.method).to_owned(),
+        }
+    }
 }
 
 fn method_label(m: Method) -> &'static str {
@@ -1277,7 +1166,7 @@ pub(crate) async fn download_chart(
     let svg = relation_chart_svg(&relation, &outcome, q.group).map_err(AppError::bad_request)?;
     Ok(download(
         "image/svg+xml; charset=utf-8",
-        &format!("{}-{}.svg", relation.slug(), q.method.as_str()),
+        &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
         svg,
     ))
 }
@@ -1291,14 +1180,14 @@ pub(crate) async fn download_fit(
     let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
     let outcome = fit_for(&state, &relation, &q).await?;
-    let (pivot, pivot2) = q.pivots(&relation);
+    let (pivot, pivot2) = q.fit.pivots(&relation);
     let body = serde_json::json!({
         "relation": relation.slug(),
         "label": relation.label(),
         "x": relation.x_label(),
         "x2": relation.x2_label(),
         "y": relation.y_label(),
-        "method": q.method.as_str(),
+        "method": q.fit.method.as_str(),
         "sample_filter": outcome.key.filter,
         "pivot_log": pivot,
         "pivot2_log": (relation.shape() == Shape::Plane).then_some(pivot2),
@@ -1314,7 +1203,7 @@ pub(crate) async fn download_fit(
     let text = serde_json::to_string_pretty(&body).map_err(anyhow::Error::from)?;
     Ok(download(
         "application/json",
-        &format!("{}-{}.json", relation.slug(), q.method.as_str()),
+        &format!("{}-{}.json", relation.slug(), q.fit.method.as_str()),
         text,
     ))
 }
@@ -1425,8 +1314,8 @@ mod tests {
             ("offset_b", "bulge_kind:pseudo"),
         ]))
         .unwrap();
-        assert_eq!(q.method.as_str(), "bces-bisector");
-        assert_eq!(q.pivot, Some(2.2));
+        assert_eq!(q.fit.method.as_str(), "bces-bisector");
+        assert_eq!(q.fit.pivot, Some(2.2));
         let text = q.to_query_string();
         let back: Vec<(String, String)> = serde_urlencoded::from_str(&text).unwrap();
         assert_eq!(RelationQuery::parse(&back).unwrap(), q);
