@@ -17,6 +17,7 @@ use crate::catalog::galaxies as store;
 use crate::catalog::relation_rows::relation_rows;
 use crate::relations::{at_adopted_distance, sphere_of_influence};
 use crate::startup::AppState;
+use crate::units::Quantity;
 use crate::web::galaxies::{MAX_PER_PAGE, TableQuery, TableRow, select_page};
 
 /// Highest page number accepted (far beyond any catalog; keeps page × per_page small).
@@ -385,7 +386,7 @@ pub async fn show_galaxy(
     let at_d = |m: &crate::catalog::model::Measurement| {
         at_adopted_distance(
             m.log_value,
-            &m.quantity,
+            m.quantity,
             &m.method,
             m.source_distance_mpc,
             galaxy.distance_mpc,
@@ -395,7 +396,7 @@ pub async fn show_galaxy(
         .iter()
         .filter(|m| m.adopted)
         .map(|m| AdoptedValue {
-            quantity: m.quantity.clone(),
+            quantity: m.quantity.as_str().to_owned(),
             band: m.band.clone(),
             measurement_id: m.measurement_id,
             log_value: at_d(m),
@@ -405,11 +406,11 @@ pub async fn show_galaxy(
         .collect();
     let adopted_log_sigma = measurements
         .iter()
-        .find(|m| m.quantity == "sigma" && m.adopted)
+        .find(|m| m.quantity == Quantity::VelocityDispersion && m.adopted)
         .map(|m| m.log_value);
     let soi = measurements
         .iter()
-        .find(|m| m.quantity == "bh_mass" && m.adopted)
+        .find(|m| m.quantity == Quantity::BlackHoleMass && m.adopted)
         .and_then(|m| {
             sphere_of_influence(
                 at_d(m),
@@ -426,7 +427,7 @@ pub async fn show_galaxy(
         .map(|m| MeasurementAnswer {
             measurement_id: m.measurement_id,
             submission_id: m.submission_id,
-            quantity: m.quantity.clone(),
+            quantity: m.quantity.as_str().to_owned(),
             value_text: m.value_text.clone(),
             log_value: m.log_value,
             log_value_at_adopted_distance: at_d(m),

@@ -7,11 +7,9 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 
-use super::display::{
-    at_adopted_distance, fixed, quantity_label, quantity_unit, significant, sphere_of_influence,
-};
+use super::display::{at_adopted_distance, fixed, quantity_unit, significant, sphere_of_influence};
 use crate::catalog::galaxies as store;
-use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
+use crate::catalog::model::{BulgeKind, MassMethod, Morphology, Quantity};
 use crate::catalog::relation_rows::{RelationRow, relation_rows};
 use crate::error::{AppError, AppResult};
 use crate::startup::AppState;
@@ -235,7 +233,7 @@ impl TableRow {
         let log_mbh_adopted_d = row.log_mbh.map(|v| {
             at_adopted_distance(
                 v,
-                "bh_mass",
+                Quantity::BlackHoleMass,
                 row.mbh_method.as_deref().unwrap_or(""),
                 row.mbh_source_distance_mpc,
                 row.distance_mpc,
@@ -244,7 +242,7 @@ impl TableRow {
         let log_mbulge_adopted_d = row.log_mbulge.map(|v| {
             at_adopted_distance(
                 v,
-                "bulge_mass",
+                Quantity::BulgeMass,
                 row.mbulge_method.as_deref().unwrap_or(""),
                 row.mbulge_source_distance_mpc,
                 row.distance_mpc,
@@ -635,7 +633,7 @@ pub(crate) async fn show_galaxy(
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()
-        .find(|m| m.quantity == "sigma" && m.adopted)
+        .find(|m| m.quantity == Quantity::VelocityDispersion && m.adopted)
         .map(|m| m.log_value);
     let threshold = state.settings.soi_threshold;
     let views = measurements
@@ -643,12 +641,12 @@ pub(crate) async fn show_galaxy(
         .map(|m| {
             let rescaled = at_adopted_distance(
                 m.log_value,
-                &m.quantity,
+                m.quantity,
                 &m.method,
                 m.source_distance_mpc,
                 galaxy.distance_mpc,
             );
-            let soi = (m.quantity == "bh_mass")
+            let soi = (m.quantity == Quantity::BlackHoleMass)
                 .then(|| {
                     sphere_of_influence(
                         rescaled,
@@ -680,8 +678,8 @@ pub(crate) async fn show_galaxy(
             } else {
                 "same".into()
             };
-            let detail = match m.quantity.as_str() {
-                "sigma" => {
+            let detail = match m.quantity {
+                Quantity::VelocityDispersion => {
                     let def = m
                         .sigma_definition
                         .parse::<crate::catalog::model::SigmaDefinition>()
@@ -692,16 +690,16 @@ pub(crate) async fn show_galaxy(
                         format!("{def}, aperture {}", m.aperture)
                     }
                 }
-                "bulge_luminosity" => format!("band {}", m.band),
+                Quantity::BulgeLuminosity => format!("band {}", m.band),
                 _ => String::new(),
             };
             MeasurementView {
-                quantity: quantity_label(&m.quantity),
+                quantity: m.quantity.label(),
                 value_text: m.value_text.clone(),
                 canonical,
-                unit: quantity_unit(&m.quantity, &m.band),
+                unit: quantity_unit(m.quantity, &m.band),
                 at_adopted_distance: at_adopted,
-                method: method_label(&m.quantity, &m.method),
+                method: method_label(m.quantity, &m.method),
                 detail,
                 reference: m.reference.clone(),
                 source_distance: m.source_distance_mpc.map_or("—".into(), |d| fixed(d, 2)),
@@ -834,13 +832,13 @@ async fn placements_left_out(state: &AppState, galaxy_id: i64) -> AppResult<Left
     Ok(out)
 }
 
-fn method_label(quantity: &str, method: &str) -> String {
+fn method_label(quantity: Quantity, method: &str) -> String {
     use crate::catalog::model::BulgeMassMethod;
     match quantity {
-        "bh_mass" => method
+        Quantity::BlackHoleMass => method
             .parse::<MassMethod>()
             .map_or_else(|_| method.to_string(), |m| m.label().to_string()),
-        "bulge_mass" => method
+        Quantity::BulgeMass => method
             .parse::<BulgeMassMethod>()
             .map_or_else(|_| method.to_string(), |m| m.label().to_string()),
         _ => "—".to_string(),

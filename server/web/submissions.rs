@@ -427,7 +427,7 @@ async fn preview(
             measurement_id: 0,
             galaxy_id: galaxy.galaxy_id,
             submission_id: 0,
-            quantity: m.quantity.as_str().to_owned(),
+            quantity: m.quantity,
             log_value: m.log_value,
             err_minus_dex: m.err_minus_dex,
             err_plus_dex: m.err_plus_dex,
@@ -546,10 +546,7 @@ pub(crate) struct MeasurementView {
 
 impl MeasurementView {
     pub(crate) fn new(m: &Measurement) -> Self {
-        let quantity = m
-            .quantity
-            .parse::<Quantity>()
-            .map_or("unknown quantity", Quantity::label);
+        let quantity = m.quantity.label();
         let detail = [
             m.method.as_str(),
             m.sigma_definition.as_str(),
@@ -603,7 +600,7 @@ fn pick<'a>(
     band: Option<&str>,
 ) -> Option<&'a Measurement> {
     let matches = |m: &&Measurement| {
-        m.quantity == quantity.as_str() && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
+        m.quantity == quantity && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
     };
     submitted
         .iter()
@@ -624,7 +621,7 @@ pub(crate) async fn assess(
     let at_adopted = |m: &Measurement| {
         at_adopted_distance(
             m.log_value,
-            &m.quantity,
+            m.quantity,
             &m.method,
             m.source_distance_mpc,
             galaxy.distance_mpc,
@@ -634,7 +631,7 @@ pub(crate) async fn assess(
     // quadrature on each distance-dependent value, and as the x–y covariance of the two.
     let sigma_log_d =
         log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc).unwrap_or(0.0);
-    let kind = |m: &Measurement| distance_scaling(&m.quantity, &m.method);
+    let kind = |m: &Measurement| distance_scaling(m.quantity, &m.method);
     let err_of = |m: &Measurement| m.err_dex.hypot(f64::from(kind(m).exponent()) * sigma_log_d);
     let value = |m: &Measurement| {
         if m.upper_limit {
@@ -651,8 +648,8 @@ pub(crate) async fn assess(
             m.upper_limit,
         )
     };
-    let mass_m = pick(submitted, &all, Quantity::BhMass, None);
-    let sigma_m = pick(submitted, &all, Quantity::Sigma, None)
+    let mass_m = pick(submitted, &all, Quantity::BlackHoleMass, None);
+    let sigma_m = pick(submitted, &all, Quantity::VelocityDispersion, None)
         .filter(|m| m.sigma_definition == SigmaDefinition::Effective.as_str());
     let bulge_m = pick(submitted, &all, Quantity::BulgeMass, None);
     let mass = mass_m.map(|m| SubjectMass {
@@ -717,7 +714,7 @@ pub(crate) async fn assess(
         let s = sphere_of_influence(
             at_adopted(m),
             &m.method,
-            pick(submitted, &all, Quantity::Sigma, None).map(|s| s.log_value),
+            pick(submitted, &all, Quantity::VelocityDispersion, None).map(|s| s.log_value),
             galaxy.distance_mpc,
             m.resolution_arcsec,
             state.settings.soi_threshold,
@@ -736,7 +733,7 @@ pub(crate) async fn assess(
     });
     let mass_at_adopted = submitted
         .iter()
-        .find(|m| m.quantity == Quantity::BhMass.as_str())
+        .find(|m| m.quantity == Quantity::BlackHoleMass)
         .map(|m| {
             format!(
                 "{} log10 M☉ at {} Mpc (as published: {}{})",
@@ -755,9 +752,7 @@ pub(crate) async fn assess(
             new_measurement_id: c.new_measurement_id,
             text: format!(
                 "The {}{} already has an adopted value: {} (log10 {}).",
-                c.quantity
-                    .parse::<Quantity>()
-                    .map_or("value", Quantity::label),
+                c.quantity.label(),
                 if c.band.is_empty() {
                     String::new()
                 } else {
