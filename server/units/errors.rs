@@ -210,7 +210,8 @@ pub enum EntryError {
         /// The word as typed.
         found: String,
     },
-    /// A linear-only entry ([`parse_linear`](super::parse_linear)) was given on a log scale or with dex errors.
+    /// A linear-only entry ([`parse_linear`](super::parse_linear)) was given on a log scale or
+    /// with dex errors.
     #[error(
         "The {quantity} is entered as a linear value in {unit} with any error in {unit} or as a percentage, not on a log scale, such as {}.",
         quantity.error_example(),
@@ -220,7 +221,8 @@ pub enum EntryError {
         /// What the value measures.
         quantity: Quantity,
     },
-    /// A linear-only entry ([`parse_linear`](super::parse_linear)) was given with asymmetric errors.
+    /// A linear-only entry ([`parse_linear`](super::parse_linear)) was given with asymmetric
+    /// errors.
     #[error(
         "The {quantity} takes one symmetric error, such as {}, so enter the larger of the two.",
         quantity.error_example()
@@ -229,7 +231,8 @@ pub enum EntryError {
         /// What the value measures.
         quantity: Quantity,
     },
-    /// A linear-only entry ([`parse_linear`](super::parse_linear)) has an error as large as the value.
+    /// A linear-only entry ([`parse_linear`](super::parse_linear)) has an error as large as
+    /// the value.
     #[error("The error on the {quantity} is as large as the value itself; check the entry.")]
     ErrorExceedsValue {
         /// What the value measures.
