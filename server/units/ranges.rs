@@ -48,10 +48,10 @@ pub const LOG_LBULGE_MAX: f64 = 13.5;
 pub const DISTANCE_MIN_MPC: f64 = 0.005;
 
 /// Largest accepted distance, Mpc: about redshift 0.4. The bound is there to catch typing
-/// slips (an extra digit, a distance typed in kpc), not to mark a physical limit. As an
-/// order-of-magnitude argument, dynamical black-hole masses have been measured out to a few
-/// hundred Mpc (from memory), so a distance ten times larger lies far outside where spheres of
-/// influence are resolved today.
+/// slips (a distance typed in kpc, a misplaced decimal point), not to mark a physical limit.
+/// As an order-of-magnitude argument, dynamical black-hole masses have been measured out to a
+/// few hundred Mpc (from memory), so a distance ten times larger lies far outside where
+/// spheres of influence are resolved today.
 pub const DISTANCE_MAX_MPC: f64 = 2000.0;
 
 /// Smallest accepted spatial resolution, arcsec: 10 µas, the scale of event-horizon VLBI
