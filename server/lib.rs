@@ -3,7 +3,7 @@
 //!
 //! The layers, from the bottom up (arrows point one way; DEVELOPERS.md has the map):
 //!
-//! * [`units`]: newtypes for log and linear quantities and the parser for values as people type
+//! * [`units`]: the quantities, their plausible ranges and the parser for values as people type
 //!   them. Depends on nothing else here.
 //! * [`astro`]: constants and astrophysical formulas (sphere of influence, distance rescaling,
 //!   AGN quantities). Pure functions.

@@ -371,7 +371,7 @@ pub async fn show_galaxy(
     let adopted = record
         .adopted()
         .map(|m| AdoptedValue {
-            quantity: m.measurement.quantity.clone(),
+            quantity: m.measurement.quantity.as_str().to_owned(),
             band: m.measurement.band.clone(),
             measurement_id: m.measurement.measurement_id,
             log_value: m.log_value_at_adopted_distance,
@@ -409,7 +409,7 @@ impl MeasurementAnswer {
         MeasurementAnswer {
             measurement_id: m.measurement_id,
             submission_id: m.submission_id,
-            quantity: m.quantity.clone(),
+            quantity: m.quantity.as_str().to_owned(),
             value_text: m.value_text.clone(),
             log_value: m.log_value,
             log_value_at_adopted_distance: at.log_value_at_adopted_distance,

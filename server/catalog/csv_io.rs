@@ -16,7 +16,7 @@ use sqlx::SqlitePool;
 use super::demo::{Record, RowError, galaxy_from_cells, measurement_from_cells, records};
 use super::galaxies::{self, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
-use super::model::{NewGalaxy, NewMeasurement, SubmissionState};
+use super::model::{NewGalaxy, NewMeasurement, Quantity, SubmissionState};
 use super::submissions::{self, GalaxyChoice, SubmissionError};
 use crate::auth::secret::sha256_hex;
 
@@ -476,7 +476,8 @@ struct ExportRow {
     distance_mpc: f64,
     distance_err_mpc: f64,
     distance_method: String,
-    quantity: String,
+    #[sqlx(try_from = "String")]
+    quantity: Quantity,
     value_text: String,
     value_scale: String,
     limit_confidence_sigma: Option<f64>,
@@ -513,7 +514,7 @@ impl ExportRow {
             self.distance_mpc.to_string(),
             self.distance_err_mpc.to_string(),
             self.distance_method.clone(),
-            self.quantity.clone(),
+            self.quantity.as_str().to_owned(),
             self.value_text.clone(),
             self.value_scale.clone(),
             confidence.to_owned(),

@@ -242,7 +242,7 @@ fn galaxy_from_fields<'a>(
 fn measurement_from_fields<'a>(
     field: &impl Fn(&'static str) -> Field<'a>,
 ) -> Result<NewMeasurement, RowError> {
-    let quantity = field("quantity").word::<Quantity>()?;
+    let quantity = field("quantity").measured_quantity()?;
     let scale = match field("scale").text.trim() {
         "" | "linear" => Scale::Linear,
         "log10" => Scale::Log10,
@@ -252,15 +252,15 @@ fn measurement_from_fields<'a>(
         }
     };
     let value = field("value");
-    let entry = units::parse_entry(value.text, units_quantity(quantity), scale)
-        .map_err(|e| value.error(e.to_string()))?;
+    let entry =
+        units::parse_entry(value.text, quantity, scale).map_err(|e| value.error(e.to_string()))?;
     let method = match quantity {
-        Quantity::BhMass => field("method").word::<MassMethod>()?.as_str(),
+        Quantity::BlackHoleMass => field("method").word::<MassMethod>()?.as_str(),
         Quantity::BulgeMass => field("method").word::<BulgeMassMethod>()?.as_str(),
-        Quantity::Sigma | Quantity::BulgeLuminosity => field("method").empty_for(quantity)?,
+        _ => field("method").empty_for(quantity)?,
     };
     let sigma_definition = match quantity {
-        Quantity::Sigma => field("sigma_definition")
+        Quantity::VelocityDispersion => field("sigma_definition")
             .word::<SigmaDefinition>()?
             .as_str(),
         _ => field("sigma_definition").empty_for(quantity)?,
@@ -328,16 +328,6 @@ fn measurement_from_fields<'a>(
         }
         .to_string(),
     })
-}
-
-/// The entry parser's name for a catalog quantity.
-pub fn units_quantity(q: Quantity) -> units::Quantity {
-    match q {
-        Quantity::BhMass => units::Quantity::BlackHoleMass,
-        Quantity::Sigma => units::Quantity::VelocityDispersion,
-        Quantity::BulgeMass => units::Quantity::BulgeMass,
-        Quantity::BulgeLuminosity => units::Quantity::BulgeLuminosity,
-    }
 }
 
 pub(super) type Record = HashMap<String, String>;
@@ -450,6 +440,11 @@ impl<'a> Field<'a> {
         self.required()?.parse().map_err(|e: String| self.error(e))
     }
 
+    /// A measured quantity's stored word (`distance` and `resolution` are not measurements).
+    fn measured_quantity(&self) -> Result<Quantity, RowError> {
+        Quantity::parse_measured(self.required()?).map_err(|e| self.error(e))
+    }
+
     fn number(&self, min: f64, max: f64, unit: &str) -> Result<f64, RowError> {
         let t = self.required()?;
         match t.parse::<f64>() {
@@ -483,7 +478,9 @@ mod tests {
         let limits = demo
             .measurements
             .iter()
-            .filter(|(_, m, adopted)| *adopted && m.quantity == Quantity::BhMass && m.upper_limit)
+            .filter(|(_, m, adopted)| {
+                *adopted && m.quantity == Quantity::BlackHoleMass && m.upper_limit
+            })
             .count();
         assert!(limits >= 10, "{limits} adopted upper limits");
         // Every galaxy has an adopted σ (the demo's stated promise).
@@ -491,7 +488,7 @@ mod tests {
             assert!(
                 demo.measurements
                     .iter()
-                    .any(|(g, m, a)| *g == gi && *a && m.quantity == Quantity::Sigma),
+                    .any(|(g, m, a)| *g == gi && *a && m.quantity == Quantity::VelocityDispersion),
                 "galaxy {} has no adopted sigma",
                 demo.galaxies[gi].name
             );

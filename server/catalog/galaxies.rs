@@ -2,9 +2,7 @@
 
 use sqlx::{Sqlite, SqlitePool, Transaction};
 
-use super::model::{
-    Galaxy, Measurement, NewGalaxy, NewMeasurement, Quantity, SubmissionState, slugify,
-};
+use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, SubmissionState, slugify};
 
 /// Insert a galaxy and return it with its key and a unique slug.
 ///
@@ -226,7 +224,8 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
 }
 
 /// Every measurement of a galaxy, in any state, with whether it is adopted; grouped by quantity
-/// in the order of [`Quantity::ALL`], newest first within a quantity.
+/// in the order of [`Quantity::MEASURED`](super::model::Quantity::MEASURED), newest first
+/// within a quantity.
 ///
 /// # Errors
 /// When the database cannot be read.
@@ -248,9 +247,4 @@ pub async fn measurements_of(pool: &SqlitePool, galaxy_id: i64) -> sqlx::Result<
     .bind(galaxy_id)
     .fetch_all(pool)
     .await
-}
-
-/// Parse a stored quantity word (the schema guarantees it is one of [`Quantity::ALL`]).
-pub fn quantity_of(m: &Measurement) -> Option<Quantity> {
-    m.quantity.parse().ok()
 }

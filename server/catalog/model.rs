@@ -5,6 +5,10 @@
 
 use std::fmt;
 
+// What a measurement measures: one type with the entry parser's, whose `Quantity::MEASURED`
+// words are the ones the schema allows.
+pub use crate::units::Quantity;
+
 /// Define an enum stored as text, with `as_str`, `label`, `ALL` and `FromStr`.
 macro_rules! text_enum {
     ($(#[$meta:meta])* $name:ident { $($(#[$vmeta:meta])* $variant:ident => $text:literal, $label:literal;)+ }) => {
@@ -118,20 +122,6 @@ text_enum!(
 );
 
 text_enum!(
-    /// A measured quantity.
-    Quantity {
-        /// Black-hole mass, log10 M_sun.
-        BhMass => "bh_mass", "black-hole mass";
-        /// Bulge velocity dispersion, log10 km/s.
-        Sigma => "sigma", "velocity dispersion";
-        /// Bulge mass, log10 M_sun.
-        BulgeMass => "bulge_mass", "bulge mass";
-        /// Bulge luminosity in a band, log10 L_sun.
-        BulgeLuminosity => "bulge_luminosity", "bulge luminosity";
-    }
-);
-
-text_enum!(
     /// How a black-hole mass was measured.
     MassMethod {
         /// Stellar dynamics.
@@ -230,8 +220,9 @@ pub struct Measurement {
     pub galaxy_id: i64,
     /// Submission it came with.
     pub submission_id: i64,
-    /// Stored form of [`Quantity`].
-    pub quantity: String,
+    /// What was measured (stored as [`Quantity::as_str`]).
+    #[sqlx(try_from = "String")]
+    pub quantity: Quantity,
     /// Canonical log10 value.
     pub log_value: f64,
     /// Lower error, dex.

@@ -12,7 +12,7 @@ use sqlx::SqlitePool;
 use super::accounts::for_log;
 use super::galaxies::{self, RequestKey, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
-use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, SubmissionState};
+use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, Quantity, SubmissionState};
 
 /// Which galaxy a submission measures.
 #[derive(Debug, Clone, PartialEq)]
@@ -480,8 +480,9 @@ pub struct Clash {
     pub new_measurement_id: i64,
     /// The measurement adopted now for the same galaxy, quantity and band.
     pub adopted_measurement_id: i64,
-    /// Stored quantity word.
-    pub quantity: String,
+    /// What the two measure (stored as [`Quantity::as_str`]).
+    #[sqlx(try_from = "String")]
+    pub quantity: Quantity,
     /// Band ('' unless luminosity).
     pub band: String,
     /// The adopted value as it was entered.
@@ -722,7 +723,7 @@ mod tests {
     fn mass(text: &str) -> NewMeasurement {
         let e = units::parse_entry(text, units::Quantity::BlackHoleMass, Scale::Linear).unwrap();
         NewMeasurement {
-            quantity: Quantity::BhMass,
+            quantity: Quantity::BlackHoleMass,
             log_value: e.log_value,
             err_minus_dex: e.err_minus_dex,
             err_plus_dex: e.err_plus_dex,

@@ -49,7 +49,7 @@ fn pick<'a>(
     band: Option<&str>,
 ) -> Option<&'a Measurement> {
     let matches = |m: &&Measurement| {
-        m.quantity == quantity.as_str() && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
+        m.quantity == quantity && band.is_none_or(|b| m.band.eq_ignore_ascii_case(b))
     };
     submitted
         .iter()
@@ -75,7 +75,7 @@ pub async fn assess(
     let at_adopted = |m: &Measurement| {
         at_adopted_distance(
             m.log_value,
-            &m.quantity,
+            m.quantity,
             &m.method,
             m.source_distance_mpc,
             galaxy.distance_mpc,
@@ -83,7 +83,7 @@ pub async fn assess(
     };
     let sigma_log_d =
         log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc).unwrap_or(0.0);
-    let kind = |m: &Measurement| distance_scaling(&m.quantity, &m.method);
+    let kind = |m: &Measurement| distance_scaling(m.quantity, &m.method);
     let err_of = |m: &Measurement| m.err_dex.hypot(f64::from(kind(m).exponent()) * sigma_log_d);
     // A limit is taken as exact, as in the fits.
     let value = |m: &Measurement| (at_adopted(m), if m.upper_limit { 0.0 } else { err_of(m) });
@@ -95,8 +95,8 @@ pub async fn assess(
             m.upper_limit,
         )
     };
-    let mass_m = pick(submitted, &all, Quantity::BhMass, None);
-    let sigma_m = pick(submitted, &all, Quantity::Sigma, None)
+    let mass_m = pick(submitted, &all, Quantity::BlackHoleMass, None);
+    let sigma_m = pick(submitted, &all, Quantity::VelocityDispersion, None)
         .filter(|m| m.sigma_definition == SigmaDefinition::Effective.as_str());
     let bulge_m = pick(submitted, &all, Quantity::BulgeMass, None);
     let mass = mass_m.map(|m| SubjectMass {
@@ -155,7 +155,7 @@ pub async fn assess(
         sphere_of_influence(
             at_adopted(m),
             &m.method,
-            pick(submitted, &all, Quantity::Sigma, None).map(|s| s.log_value),
+            pick(submitted, &all, Quantity::VelocityDispersion, None).map(|s| s.log_value),
             galaxy.distance_mpc,
             m.resolution_arcsec,
             catalog.soi_threshold,
@@ -163,7 +163,7 @@ pub async fn assess(
     });
     let mass_at_adopted = submitted
         .iter()
-        .find(|m| m.quantity == Quantity::BhMass.as_str())
+        .find(|m| m.quantity == Quantity::BlackHoleMass)
         .map(|m| MassAtAdopted {
             text: text(m),
             adopted_distance_mpc: galaxy.distance_mpc,
@@ -213,7 +213,7 @@ pub async fn assess_unstored(
             measurement_id: 0,
             galaxy_id: galaxy.galaxy_id,
             submission_id: 0,
-            quantity: m.quantity.as_str().to_owned(),
+            quantity: m.quantity,
             log_value: m.log_value,
             err_minus_dex: m.err_minus_dex,
             err_plus_dex: m.err_plus_dex,

@@ -14,7 +14,7 @@ use crate::catalog::model::{Galaxy, Measurement};
 use crate::catalog::{galaxies, history, relation_rows};
 use crate::error::AppResult;
 use crate::fit::Method;
-use crate::units::format_log_with_errors;
+use crate::units::{Quantity, format_log_with_errors};
 
 /// A measurement with what follows from the galaxy's adopted values.
 #[derive(Debug, Clone)]
@@ -46,7 +46,7 @@ impl GalaxyRecord {
     /// The sphere-of-influence check of the adopted black-hole mass.
     pub fn adopted_sphere_of_influence(&self) -> Option<&SphereOfInfluence> {
         self.adopted()
-            .find(|m| m.measurement.quantity == "bh_mass")
+            .find(|m| m.measurement.quantity == Quantity::BlackHoleMass)
             .and_then(|m| m.sphere_of_influence.as_ref())
     }
 }
@@ -67,19 +67,19 @@ pub async fn galaxy_record(
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()
-        .find(|m| m.quantity == "sigma" && m.adopted)
+        .find(|m| m.quantity == Quantity::VelocityDispersion && m.adopted)
         .map(|m| m.log_value);
     let measurements = measurements
         .into_iter()
         .map(|m| {
             let at_d = at_adopted_distance(
                 m.log_value,
-                &m.quantity,
+                m.quantity,
                 &m.method,
                 m.source_distance_mpc,
                 galaxy.distance_mpc,
             );
-            let soi = (m.quantity == "bh_mass")
+            let soi = (m.quantity == Quantity::BlackHoleMass)
                 .then(|| {
                     sphere_of_influence(
                         at_d,

@@ -25,19 +25,20 @@ use crate::astro::{
 };
 use crate::catalog::relation_rows::{LuminosityRow, RelationRow};
 use crate::fit::Point;
+use crate::units::Quantity;
 
 use super::{Relation, SampleFilter, SoiChoice};
 
 /// How a stored measurement scales with distance (docs/methods.md §3.2): dynamical masses ∝ D,
 /// luminosities and photometric bulge masses ∝ D², dispersions and reverberation masses not at
 /// all.
-pub fn distance_scaling(quantity: &str, method: &str) -> DistanceScaling {
+pub fn distance_scaling(quantity: Quantity, method: &str) -> DistanceScaling {
     match (quantity, method) {
-        ("bh_mass", "reverberation") => DistanceScaling::ReverberationMass,
-        ("bh_mass", _) => DistanceScaling::DynamicalMass,
-        ("bulge_mass", "photometric") => DistanceScaling::PhotometricBulgeMass,
-        ("bulge_mass", _) => DistanceScaling::DynamicalBulgeMass,
-        ("bulge_luminosity", _) => DistanceScaling::Luminosity,
+        (Quantity::BlackHoleMass, "reverberation") => DistanceScaling::ReverberationMass,
+        (Quantity::BlackHoleMass, _) => DistanceScaling::DynamicalMass,
+        (Quantity::BulgeMass, "photometric") => DistanceScaling::PhotometricBulgeMass,
+        (Quantity::BulgeMass, _) => DistanceScaling::DynamicalBulgeMass,
+        (Quantity::BulgeLuminosity, _) => DistanceScaling::Luminosity,
         _ => DistanceScaling::VelocityDispersion,
     }
 }
@@ -50,7 +51,7 @@ pub fn distance_scaling(quantity: &str, method: &str) -> DistanceScaling {
 /// ```
 pub fn at_adopted_distance(
     log_value: f64,
-    quantity: &str,
+    quantity: Quantity,
     method: &str,
     source_distance_mpc: Option<f64>,
     adopted_distance_mpc: f64,
@@ -164,7 +165,7 @@ pub fn build_sample(
         let log_mbh = row.log_mbh.map(|v| {
             at_adopted_distance(
                 v,
-                "bh_mass",
+                Quantity::BlackHoleMass,
                 method,
                 row.mbh_source_distance_mpc,
                 row.distance_mpc,
@@ -201,7 +202,7 @@ pub fn build_sample(
         let log_mbulge = row.log_mbulge.map(|v| {
             at_adopted_distance(
                 v,
-                "bulge_mass",
+                Quantity::BulgeMass,
                 mbulge_method,
                 row.mbulge_source_distance_mpc,
                 row.distance_mpc,
@@ -214,7 +215,7 @@ pub fn build_sample(
         let upper_limit = row.mbh_upper_limit.unwrap_or(false);
         let sigma_log_d =
             log_distance_error_dex(row.distance_mpc, row.distance_err_mpc).unwrap_or(0.0);
-        let kind_y = distance_scaling("bh_mass", method);
+        let kind_y = distance_scaling(Quantity::BlackHoleMass, method);
         let with_distance =
             |err: f64, kind: DistanceScaling| err.hypot(f64::from(kind.exponent()) * sigma_log_d);
         let y_err = with_distance(row.mbh_err_dex.unwrap_or(0.0), kind_y);
@@ -225,7 +226,7 @@ pub fn build_sample(
         // (x, σ_x, kind of x), and the second property for the plane.
         let sigma_value = row.log_sigma.zip(row.sigma_err_dex);
         let mbulge_value = log_mbulge.zip(row.mbulge_err_dex).map(|(v, e)| {
-            let kind = distance_scaling("bulge_mass", mbulge_method);
+            let kind = distance_scaling(Quantity::BulgeMass, mbulge_method);
             (v, with_distance(e, kind), kind)
         });
         let first: Option<(f64, f64, DistanceScaling)> = match relation {
@@ -239,7 +240,7 @@ pub fn build_sample(
                 .map(|l| {
                     let v = at_adopted_distance(
                         l.log_value,
-                        "bulge_luminosity",
+                        Quantity::BulgeLuminosity,
                         "",
                         l.source_distance_mpc,
                         row.distance_mpc,
@@ -525,13 +526,28 @@ mod tests {
     fn rescaling_follows_the_quantity_kind() {
         // Distance rescale 16.5 → 18 Mpc: M × 1.090909, L × 1.190083 (docs/methods.md §7 row 30,
         // computed from the scaling laws of §3.2).
-        let m = at_adopted_distance(8.0, "bh_mass", "stellar_dynamics", Some(16.5), 18.0);
+        let m = at_adopted_distance(
+            8.0,
+            Quantity::BlackHoleMass,
+            "stellar_dynamics",
+            Some(16.5),
+            18.0,
+        );
         assert!((10f64.powf(m - 8.0) - 1.090_909).abs() < 1e-6);
-        let l = at_adopted_distance(10.0, "bulge_luminosity", "", Some(16.5), 18.0);
+        let l = at_adopted_distance(10.0, Quantity::BulgeLuminosity, "", Some(16.5), 18.0);
         assert!((10f64.powf(l - 10.0) - 1.190_083).abs() < 1e-6);
-        let rm = at_adopted_distance(7.0, "bh_mass", "reverberation", Some(16.5), 18.0);
+        let rm = at_adopted_distance(
+            7.0,
+            Quantity::BlackHoleMass,
+            "reverberation",
+            Some(16.5),
+            18.0,
+        );
         assert!((rm - 7.0).abs() < 1e-12);
-        assert!((at_adopted_distance(7.0, "bh_mass", "maser", None, 18.0) - 7.0).abs() < 1e-12);
+        assert!(
+            (at_adopted_distance(7.0, Quantity::BlackHoleMass, "maser", None, 18.0) - 7.0).abs()
+                < 1e-12
+        );
     }
 
     #[test]

@@ -13,6 +13,7 @@ use sqlx::SqlitePool;
 use super::{at_adopted_distance, sphere_of_influence};
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::catalog::relation_rows::{RelationRow, relation_rows};
+use crate::units::Quantity;
 
 /// Rows per page of the catalog table unless the reader asks for another count.
 pub const DEFAULT_PER_PAGE: usize = 50;
@@ -255,7 +256,7 @@ impl TableRow {
         let log_mbh_adopted_d = row.log_mbh.map(|v| {
             at_adopted_distance(
                 v,
-                "bh_mass",
+                Quantity::BlackHoleMass,
                 row.mbh_method.as_deref().unwrap_or(""),
                 row.mbh_source_distance_mpc,
                 row.distance_mpc,
@@ -264,7 +265,7 @@ impl TableRow {
         let log_mbulge_adopted_d = row.log_mbulge.map(|v| {
             at_adopted_distance(
                 v,
-                "bulge_mass",
+                Quantity::BulgeMass,
                 row.mbulge_method.as_deref().unwrap_or(""),
                 row.mbulge_source_distance_mpc,
                 row.distance_mpc,

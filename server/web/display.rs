@@ -33,19 +33,13 @@ pub(crate) fn signed(value: f64, decimals: usize) -> String {
     }
 }
 
-/// The label of a stored quantity word.
-pub(crate) fn quantity_label(word: &str) -> &'static str {
-    word.parse::<Quantity>()
-        .map_or("unknown quantity", Quantity::label)
-}
-
 /// The unit of a stored quantity's canonical log value.
-pub(crate) fn quantity_unit(word: &str, band: &str) -> String {
-    match word {
-        "bh_mass" | "bulge_mass" => "log10 M☉".to_string(),
-        "sigma" => "log10 km/s".to_string(),
-        "bulge_luminosity" => format!("log10 L☉,{band}"),
-        _ => String::new(),
+pub(crate) fn quantity_unit(quantity: Quantity, band: &str) -> String {
+    match quantity {
+        Quantity::BlackHoleMass | Quantity::BulgeMass => "log10 M☉".to_string(),
+        Quantity::VelocityDispersion => "log10 km/s".to_string(),
+        Quantity::BulgeLuminosity => format!("log10 L☉,{band}"),
+        Quantity::Distance | Quantity::Resolution => String::new(),
     }
 }
 

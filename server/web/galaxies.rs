@@ -5,12 +5,13 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 
-use super::display::{fixed, quantity_label, quantity_unit, significant};
+use super::display::{fixed, quantity_unit, significant};
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::error::{AppError, AppResult};
 use crate::relations::galaxy::{MeasurementAt, galaxy_record, place_left_out};
 use crate::relations::table::{LimitFilter, SoiFilter, SortKey, TableQuery, TableRow, table_page};
 use crate::state::AppState;
+use crate::units::Quantity;
 use crate::units::{
     format_log_with_errors as log_with_errors, round_to_uncertainty as linear_with_error,
 };
@@ -368,8 +369,8 @@ impl MeasurementView {
         } else {
             "same".into()
         };
-        let detail = match m.quantity.as_str() {
-            "sigma" => {
+        let detail = match m.quantity {
+            Quantity::VelocityDispersion => {
                 let def = m
                     .sigma_definition
                     .parse::<crate::catalog::model::SigmaDefinition>()
@@ -380,16 +381,16 @@ impl MeasurementView {
                     format!("{def}, aperture {}", m.aperture)
                 }
             }
-            "bulge_luminosity" => format!("band {}", m.band),
+            Quantity::BulgeLuminosity => format!("band {}", m.band),
             _ => String::new(),
         };
         MeasurementView {
-            quantity: quantity_label(&m.quantity),
+            quantity: m.quantity.label(),
             value_text: m.value_text.clone(),
             canonical: log_with_errors(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
-            unit: quantity_unit(&m.quantity, &m.band),
+            unit: quantity_unit(m.quantity, &m.band),
             at_adopted_distance: at_adopted,
-            method: method_label(&m.quantity, &m.method),
+            method: method_label(m.quantity, &m.method),
             detail,
             reference: m.reference.clone(),
             source_distance: m.source_distance_mpc.map_or("—".into(), |d| fixed(d, 2)),
@@ -401,13 +402,13 @@ impl MeasurementView {
     }
 }
 
-fn method_label(quantity: &str, method: &str) -> String {
+fn method_label(quantity: Quantity, method: &str) -> String {
     use crate::catalog::model::BulgeMassMethod;
     match quantity {
-        "bh_mass" => method
+        Quantity::BlackHoleMass => method
             .parse::<MassMethod>()
             .map_or_else(|_| method.to_string(), |m| m.label().to_string()),
-        "bulge_mass" => method
+        Quantity::BulgeMass => method
             .parse::<BulgeMassMethod>()
             .map_or_else(|_| method.to_string(), |m| m.label().to_string()),
         _ => "—".to_string(),

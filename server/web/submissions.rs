@@ -495,10 +495,7 @@ pub(crate) struct MeasurementView {
 
 impl MeasurementView {
     pub(crate) fn new(m: &Measurement) -> Self {
-        let quantity = m
-            .quantity
-            .parse::<Quantity>()
-            .map_or("unknown quantity", Quantity::label);
+        let quantity = m.quantity.label();
         let detail = [
             m.method.as_str(),
             m.sigma_definition.as_str(),
@@ -581,9 +578,7 @@ impl AssessmentView {
                 new_measurement_id: c.new_measurement_id,
                 text: format!(
                     "The {}{} already has an adopted value: {} (log10 {}).",
-                    c.quantity
-                        .parse::<Quantity>()
-                        .map_or("value", Quantity::label),
+                    c.quantity.label(),
                     if c.band.is_empty() {
                         String::new()
                     } else {

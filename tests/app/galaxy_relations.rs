@@ -41,8 +41,8 @@ async fn a_galaxy_with_sigma_and_a_mass_is_placed_against_fits_without_it() {
     // The first demo galaxy with a detected mass and an adopted σ_e.
     let gi = (0..demo.galaxies.len())
         .find(|&gi| {
-            has(&demo, gi, Quantity::BhMass, |m| !m.upper_limit)
-                && has(&demo, gi, Quantity::Sigma, |m| {
+            has(&demo, gi, Quantity::BlackHoleMass, |m| !m.upper_limit)
+                && has(&demo, gi, Quantity::VelocityDispersion, |m| {
                     m.sigma_definition == "sigma_e"
                 })
         })
@@ -91,7 +91,7 @@ async fn planted_outliers_are_flagged_on_their_own_pages() {
         .measurements
         .iter()
         .filter(|(_, m, adopted)| {
-            *adopted && m.quantity == Quantity::BhMass && m.note.contains("planted outlier")
+            *adopted && m.quantity == Quantity::BlackHoleMass && m.note.contains("planted outlier")
         })
         .map(|(gi, _, _)| *gi)
         .collect();
@@ -148,11 +148,11 @@ async fn a_galaxy_without_host_values_or_mass_says_no_relation_applies() {
     // say the same, with the reason.
     let demo = demo();
     for gi in 0..demo.galaxies.len() {
-        let usable = has(&demo, gi, Quantity::Sigma, |m| {
+        let usable = has(&demo, gi, Quantity::VelocityDispersion, |m| {
             m.sigma_definition == "sigma_e"
         }) || has(&demo, gi, Quantity::BulgeMass, |_| true)
             || has(&demo, gi, Quantity::BulgeLuminosity, |_| true);
-        if usable || !has(&demo, gi, Quantity::BhMass, |_| true) {
+        if usable || !has(&demo, gi, Quantity::BlackHoleMass, |_| true) {
             continue;
         }
         let slug = slugify(&demo.galaxies[gi].name);

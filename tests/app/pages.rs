@@ -135,7 +135,9 @@ async fn catalog_table_filters_by_morphology_and_limits() {
     let limits = demo
         .measurements
         .iter()
-        .filter(|(_, m, adopted)| *adopted && m.quantity == Quantity::BhMass && m.upper_limit)
+        .filter(|(_, m, adopted)| {
+            *adopted && m.quantity == Quantity::BlackHoleMass && m.upper_limit
+        })
         .count();
     let body = app.ok("/galaxies?limits=limits&per_page=500").await;
     assert_eq!(count(&body, "<td><a href=\"/galaxies/"), limits);

@@ -38,7 +38,7 @@ async fn database_runs_wal_full_foreign_keys_and_a_fixed_sqlite() {
 
 fn good_mass() -> NewMeasurement {
     NewMeasurement {
-        quantity: Quantity::BhMass,
+        quantity: Quantity::BlackHoleMass,
         log_value: 8.2,
         err_minus_dex: 0.1,
         err_plus_dex: 0.1,
@@ -110,7 +110,7 @@ async fn schema_range_checks_refuse_impossible_rows() {
         (
             "sigma above 600 km/s",
             NewMeasurement {
-                quantity: Quantity::Sigma,
+                quantity: Quantity::VelocityDispersion,
                 log_value: 2.9,
                 method: String::new(),
                 sigma_definition: "sigma_e".into(),
@@ -148,7 +148,7 @@ async fn schema_range_checks_refuse_impossible_rows() {
         (
             "sigma without definition",
             NewMeasurement {
-                quantity: Quantity::Sigma,
+                quantity: Quantity::VelocityDispersion,
                 log_value: 2.3,
                 method: String::new(),
                 ..good_mass()
