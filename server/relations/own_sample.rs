@@ -257,7 +257,7 @@ mod tests {
         let post = fit_own_sample(
             &points,
             &OwnSampleSettings {
-                method: Method::BcesYx,
+                method: Method::Bces(crate::fit::BcesLine::YOnX),
                 posterior_steps: Some(300),
                 ..settings()
             },
