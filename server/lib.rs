@@ -18,17 +18,18 @@
 //!   every request and refuse forged ones.
 //! * [`web`]: HTML pages; thin handlers over the layers above. [`api`]: the JSON API.
 //! * [`startup`] and [`config`]: settings, building and running the server.
+//! * [`cli`]: the `massline` command line (serve, fit, user, import, export, backup); like
+//!   [`web`] and [`api`] a door over the layers above, which may start the assembled server.
 
 pub mod api;
 pub mod astro;
 pub mod auth;
 pub mod catalog;
 pub mod charts;
+pub mod cli;
 pub mod config;
-pub mod csv_command;
 pub mod error;
 pub mod fit;
-pub mod fit_command;
 pub mod relations;
 pub mod router;
 pub mod startup;

@@ -97,7 +97,7 @@ impl Application {
                 {
                     continue;
                 }
-                let password = auth::cli::add_user(&pool, username, role, None)
+                let password = auth::accounts::add_user(&pool, username, role, None)
                     .await
                     .context("could not create the demo accounts")?
                     .context("a generated password was expected")?;

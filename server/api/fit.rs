@@ -1,6 +1,7 @@
 //! `POST /api/v1/fit`: fit a sample the caller posts (up to [`MAX_POINTS`] objects) with any
 //! estimator `massline fit` offers, optionally with a bootstrap or a posterior, as the command
-//! line does (`fit_command`: the same default pivot rule and sampler settings).
+//! line does (both call `relations::fit_own_sample`: the same default pivot rule and sampler
+//! settings; the API runs no automatic small-sample bootstrap).
 //!
 //! ```text
 //! log10 M_BH = α + β (x − x0),  intrinsic scatter ε (dex)
@@ -21,13 +22,9 @@ use super::problem::Problem;
 use super::relations::{EstimatorName, FitParameters};
 use super::{ApiJson, ApiResult};
 use crate::error::{AppError, FieldError};
-use crate::fit::bootstrap::{Bootstrap, bootstrap};
-use crate::fit::ensemble::{EnsembleConfig, ParamSummary};
-use crate::fit::posterior::{Posterior, posterior_from_fit};
-use crate::fit::{self, FitError, FitSpec, Method, Point};
-use crate::fit_command::{
-    POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, default_pivot,
-};
+use crate::fit::ensemble::ParamSummary;
+use crate::fit::{FitError, Method, Point};
+use crate::relations::{OwnSampleError, OwnSampleSettings, PivotRule, fit_own_sample};
 use crate::state::AppState;
 
 /// Most objects one request may fit.
@@ -300,56 +297,39 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         })
         .collect();
     let method = req.method.map_or(Method::Structural, method_of);
-    let (pivot, pivot_rule) = match req.pivot {
-        Some(p) => (p, "given"),
-        None => default_pivot(&points),
+    let settings = OwnSampleSettings {
+        method,
+        pivot: req.pivot,
+        bootstrap: req.bootstrap.map(|n| n as usize),
+        posterior_steps: req.posterior_steps.map(|n| n as usize),
+        seed: req.seed.unwrap_or(1),
+        small_sample_bootstrap: false,
     };
-    let spec = FitSpec::new(method, pivot)
-        .with_pivot(pivot)
-        .map_err(|e| fit_problem(&e))?;
-    let fitted = fit::fit(&points, &spec).map_err(|e| fit_problem(&e))?;
-    let seed = req.seed.unwrap_or(1);
-    let boot: Option<Bootstrap> =
-        match req.bootstrap {
-            Some(n) => Some(bootstrap(&points, &spec, n as usize, seed).map_err(|e| {
-                AppError::invalid(vec![FieldError::new("bootstrap", e.to_string())])
-            })?),
-            None => None,
-        };
-    let post: Option<Posterior> = match req.posterior_steps {
-        Some(steps) => {
-            let steps = steps as usize;
-            let problem = |e: FitError| {
-                AppError::invalid(vec![FieldError::new("posterior_steps", e.to_string())])
-            };
-            let cfg = EnsembleConfig::new(
-                POSTERIOR_WALKERS,
-                steps,
-                POSTERIOR_BURN_IN.min(steps / 2),
-                seed,
-            )
-            .and_then(|c| c.with_init_scatter(POSTERIOR_INIT_SCATTER))
-            .map_err(problem)?;
-            Some(
-                posterior_from_fit(&points, &spec, &fitted, &cfg)
-                    .map_err(problem)?
-                    .0,
-            )
+    let own = fit_own_sample(&points, &settings).map_err(|e| match e {
+        OwnSampleError::Fit(e) => fit_problem(&e),
+        OwnSampleError::Bootstrap(e) => {
+            AppError::invalid(vec![FieldError::new("bootstrap", e.to_string())])
         }
-        None => None,
+        OwnSampleError::Posterior(e) => {
+            AppError::invalid(vec![FieldError::new("posterior_steps", e.to_string())])
+        }
+    })?;
+    let pivot_rule = match own.pivot_rule {
+        PivotRule::Given => "given",
+        PivotRule::Default(rule) => rule,
     };
     Ok(FitAnswer {
         estimator: method.as_str().to_owned(),
-        pivot,
+        pivot: own.pivot,
         pivot_rule: pivot_rule.to_owned(),
-        fit: FitParameters::of(&fitted),
-        bootstrap: boot.map(|b| BootstrapAnswer {
+        fit: FitParameters::of(&own.fit),
+        bootstrap: own.bootstrap.map(|b| BootstrapAnswer {
             n_boot: b.n_boot,
             n_failed: b.n_failed,
             seed: b.seed,
             params: summaries(&b.params),
         }),
-        posterior: post.map(|p| PosteriorAnswer {
+        posterior: own.posterior.map(|p| PosteriorAnswer {
             walkers: p.config.walkers,
             steps: p.config.steps,
             burn_in: p.config.burn_in,

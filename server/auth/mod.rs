@@ -9,10 +9,10 @@
 //! * [`password`]: Argon2id hashing off the async runtime, at most two at a time; the password
 //!   rules. [`secret`]: session ids, anti-forgery tokens and API tokens. [`clock`]: the clock the
 //!   session limits are measured with (tests move it). [`middleware`]: the layers that
-//!   authenticate, guard routes and refuse forged requests. [`cli`]: the `massline user`
-//!   commands.
+//!   authenticate, guard routes and refuse forged requests. [`accounts`]: creating an account
+//!   (the `massline user add` command and the demo accounts).
 
-pub mod cli;
+pub mod accounts;
 pub mod clock;
 pub mod middleware;
 pub mod password;

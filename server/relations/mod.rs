@@ -11,14 +11,21 @@
 //!   pivot), computed off the async runtime; a new catalog version makes every old key unused.
 //! * [`RunRegistry`]: bootstrap and posterior runs in the background, with progress; the
 //!   finished run is stored as a `fit_run` row that later visits reuse ([`stored_run`]).
+//! * [`fit_own_sample`]: a sample the caller brings (`massline fit`, `POST /api/v1/fit`)
+//!   fitted with the default pivot rule, an optional bootstrap and an optional posterior.
+//! * `defaults.rs`: the pivots ([`SIGMA_PIVOT_LOG`], [`default_pivot`]) and the sampler and
+//!   bootstrap settings every door shares, each defined once.
 //!
-//! Depends on `catalog` (rows), `astro` (distance bookkeeping) and `fit`; used by `web`.
+//! Depends on `catalog` (rows), `astro` (distance bookkeeping) and `fit`; used by `web`, `api`
+//! and `cli`.
 
 pub mod analysis;
 pub mod assess;
 mod cache;
+mod defaults;
 mod filter;
 pub mod galaxy;
+mod own_sample;
 pub mod place;
 mod runs;
 mod sample;
@@ -30,13 +37,20 @@ pub use cache::{
     FitCache, FitKey, FitOutcome, InfluenceResult, fitted, fitted_leaving_out, load_sample,
     spec_for,
 };
+pub use defaults::{
+    DEFAULT_REPLICATES, DEFAULT_STEPS, LUMINOSITY_PIVOT_LOG, MBULGE_PIVOT_LOG, POSTERIOR_BURN_IN,
+    POSTERIOR_INIT_SCATTER, POSTERIOR_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE, RUN_SEED,
+    SIGMA_PIVOT_LOG, SMALL_SAMPLE, SMALL_SAMPLE_BOOTSTRAP, STEPS_RANGE, default_pivot,
+};
 pub use filter::{
     FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
 };
+pub use own_sample::{
+    OwnSampleError, OwnSampleFit, OwnSampleSettings, PivotRule, SmallSampleNote, fit_own_sample,
+};
 pub use runs::{
-    BOOTSTRAP_CHUNK, DEFAULT_REPLICATES, DEFAULT_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE,
-    RUN_SEED, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, STEPS_RANGE,
-    filter_json, run_status, stored_run,
+    BOOTSTRAP_CHUNK, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, filter_json,
+    run_status, stored_run,
 };
 pub use sample::{
     Member, Sample, at_adopted_distance, build_sample, distance_scaling, sphere_of_influence,
@@ -85,13 +99,6 @@ impl Catalog {
         .await
     }
 }
-
-/// log10 of the default σ pivot, 200 km/s (Tremaine et al. 2002, ApJ 574, 740).
-pub const SIGMA_PIVOT_LOG: f64 = 2.301_029_995_663_981;
-/// log10 of the default bulge-mass pivot, 10^11 M☉ (near the sample mean; common practice).
-pub const MBULGE_PIVOT_LOG: f64 = 11.0;
-/// log10 of the default luminosity pivot, 10^11 L☉ of the band (common practice).
-pub const LUMINOSITY_PIVOT_LOG: f64 = 11.0;
 
 /// Longest photometric band name the schema stores.
 const MAX_BAND_CHARS: usize = 10;

@@ -18,6 +18,9 @@ use std::sync::{Arc, Mutex, PoisonError};
 use rayon::prelude::*;
 use sqlx::SqlitePool;
 
+use super::defaults::{
+    DEFAULT_REPLICATES, DEFAULT_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE, RUN_SEED, STEPS_RANGE,
+};
 use super::{FitKey, FitOutcome};
 use crate::catalog::fit_runs::{self, FitRun, NewFitRun, RunLookup};
 use crate::fit::ensemble::{EnsembleConfig, ParamSummary};
@@ -25,18 +28,6 @@ use crate::fit::{self, FitError, Params};
 
 /// Replicates per progress step of a bootstrap run.
 pub const BOOTSTRAP_CHUNK: usize = 25;
-/// Default bootstrap replicates.
-pub const DEFAULT_REPLICATES: usize = 1000;
-/// Default posterior steps per walker (burn-in is a fifth of them).
-pub const DEFAULT_STEPS: usize = 5000;
-/// Walkers of a posterior run (the command line's default too).
-pub const POSTERIOR_WALKERS: usize = 32;
-/// The seed of every run started from the pages (stored with the run).
-pub const RUN_SEED: u64 = 1;
-/// Accepted bootstrap replicates.
-pub const REPLICATES_RANGE: (usize, usize) = (20, 10_000);
-/// Accepted posterior steps.
-pub const STEPS_RANGE: (usize, usize) = (200, 50_000);
 
 /// What kind of run.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]

@@ -2,8 +2,8 @@
 //! command line.
 
 use massline::auth::Role;
-use massline::auth::cli::{UserArgs, UserCommand};
 use massline::catalog::accounts;
+use massline::cli::user::{UserArgs, UserCommand};
 
 use crate::helpers::{TEST_PASSWORD, spawn_private_app, spawn_with};
 
@@ -225,7 +225,7 @@ async fn demo_mode_creates_three_accounts_once_with_working_passwords() {
 
 fn run_user(db: &std::path::Path, command: UserCommand) -> anyhow::Result<String> {
     let mut out = Vec::new();
-    massline::auth::cli::run(
+    massline::cli::user::run(
         &UserArgs {
             db_path: db.to_path_buf(),
             command,

@@ -77,7 +77,7 @@ pub(crate) fn plain_client() -> reqwest::Client {
 /// Create an account with [`TEST_PASSWORD`] in a catalog, as `massline user add` would;
 /// returns its key.
 pub(crate) async fn create_account(pool: &SqlitePool, username: &str, role: Role) -> i64 {
-    massline::auth::cli::add_user(pool, username, role, Some(TEST_PASSWORD.into()))
+    massline::auth::accounts::add_user(pool, username, role, Some(TEST_PASSWORD.into()))
         .await
         .expect("the account is created");
     massline::catalog::accounts::find_by_username(pool, username)

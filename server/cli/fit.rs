@@ -1,4 +1,6 @@
-//! The `massline fit` command: fits a scaling relation to a CSV file of objects.
+//! The `massline fit` command: fits a scaling relation to a CSV file of objects. This file
+//! reads the file and renders the result; the fit itself is `relations::fit_own_sample`, as
+//! for `POST /api/v1/fit`.
 //!
 //! ```text
 //! massline fit --input FILE.csv [--method structural|conditional|fitexy|bces-yx|bces-xy|
@@ -37,22 +39,13 @@ use std::path::PathBuf;
 use anyhow::Context;
 use serde_json::{Value, json};
 
-use crate::fit::bootstrap::{Bootstrap, bootstrap};
-use crate::fit::ensemble::{EnsembleConfig, ParamSummary};
-use crate::fit::posterior::{Posterior, posterior_from_fit};
-use crate::fit::{Fit, FitSpec, Method, Point};
-
-/// log10(200), the conventional M–σ pivot (σ0 = 200 km s⁻¹; Tremaine et al. 2002).
-pub const LOG_SIGMA_PIVOT: f64 = 2.301_029_995_663_981;
-
-/// Walkers of the `--posterior` run.
-pub const POSTERIOR_WALKERS: usize = 32;
-/// Default steps per walker of the `--posterior` run (burn-in included; `--steps`).
-pub const POSTERIOR_STEPS: usize = 5_000;
-/// Burn-in steps of the `--posterior` run (at most half the steps).
-pub const POSTERIOR_BURN_IN: usize = 1_000;
-/// Initial ball of the `--posterior` walkers, in units of the ML errors.
-pub const POSTERIOR_INIT_SCATTER: f64 = 0.1;
+use crate::fit::bootstrap::Bootstrap;
+use crate::fit::ensemble::ParamSummary;
+use crate::fit::posterior::Posterior;
+use crate::fit::{Fit, Method, Point};
+use crate::relations::{
+    OwnSampleError, OwnSampleSettings, POSTERIOR_STEPS, PivotRule, fit_own_sample,
+};
 
 /// Columns every input file must have.
 const REQUIRED: [&str; 5] = ["x", "x_err", "y", "y_err", "upper_limit"];
@@ -314,35 +307,6 @@ pub fn read_points(csv_text: &str) -> Result<Vec<Point>, InputError> {
     Ok(points)
 }
 
-/// The default pivot for `points` and the rule that chose it.
-///
-/// ```text
-/// x0 = log10(200) = 2.30103          if every x ∈ [1.3, 2.8]  (x looks like log10 σ/km s⁻¹)
-/// x0 = round(median(x) · 2) / 2      otherwise                (median rounded to 0.5)
-/// ```
-#[must_use]
-pub fn default_pivot(points: &[Point]) -> (f64, &'static str) {
-    if !points.is_empty() && points.iter().all(|p| (1.3..=2.8).contains(&p.x)) {
-        return (
-            LOG_SIGMA_PIVOT,
-            "log10(200): the x values look like log10 sigma in km/s",
-        );
-    }
-    let mut xs: Vec<f64> = points.iter().map(|p| p.x).collect();
-    xs.sort_by(f64::total_cmp);
-    let median = match xs.len() {
-        0 => 0.0,
-        n if n % 2 == 1 => xs[n / 2],
-        n => 0.5 * (xs[n / 2 - 1] + xs[n / 2]),
-    };
-    ((median * 2.0).round() / 2.0, "median of x rounded to 0.5")
-}
-
-/// Samples smaller than this get an automatic bootstrap beside the curvature errors.
-pub const SMALL_SAMPLE: usize = 30;
-/// Resamples of that automatic bootstrap.
-pub const SMALL_SAMPLE_BOOTSTRAP: usize = 1000;
-
 /// Runs `massline fit` and writes the result to `out`.
 ///
 /// # Errors
@@ -354,45 +318,34 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> anyhow::Result<()> {
         .with_context(|| format!("Could not read the input file {}", args.input.display()))?;
     let points = read_points(&text)
         .with_context(|| format!("The input file {} was refused", args.input.display()))?;
-    let (pivot, pivot_rule) = match args.pivot {
-        Some(p) => (p, "given with --pivot"),
-        None => default_pivot(&points),
+    let settings = OwnSampleSettings {
+        method: args.method,
+        pivot: args.pivot,
+        bootstrap: args.bootstrap,
+        posterior_steps: args.posterior.then_some(args.steps),
+        seed: args.seed,
+        small_sample_bootstrap: true,
     };
-    let spec = FitSpec::new(args.method, pivot).with_pivot(pivot)?;
-    let fit = crate::fit::fit(&points, &spec)?;
-    let post = if args.posterior {
-        let burn_in = POSTERIOR_BURN_IN.min(args.steps / 2);
-        let cfg = EnsembleConfig::new(POSTERIOR_WALKERS, args.steps, burn_in, args.seed)?
-            .with_init_scatter(POSTERIOR_INIT_SCATTER)?;
-        Some(posterior_from_fit(&points, &spec, &fit, &cfg)?.0)
-    } else {
-        None
+    let own = fit_own_sample(&points, &settings).map_err(OwnSampleError::into_fit_error)?;
+    let pivot_rule = match own.pivot_rule {
+        PivotRule::Given => "given with --pivot",
+        PivotRule::Default(rule) => rule,
     };
+    let (fit, post, boot) = (own.fit, own.posterior, own.bootstrap);
     let mut warnings = Vec::new();
-    let boot = match args.bootstrap {
-        Some(n) => Some(bootstrap(&points, &spec, n, args.seed)?),
-        // Below SMALL_SAMPLE objects the errors from the likelihood's curvature are too small
-        // (tests/fit_simulation.rs measures it), so a bootstrap is run and shown beside them
-        // unless the caller already asked for a posterior.
-        None if fit.n < SMALL_SAMPLE && !args.posterior => {
-            warnings.push(format!(
-                "With only {} objects the errors from the likelihood's curvature tend to be too \
-                 small (in simulations of 12 objects the 68% slope interval held the truth in \
-                 about 54% of samples, the bootstrap and posterior intervals in about 63%); \
-                 {SMALL_SAMPLE_BOOTSTRAP} bootstrap resamples are shown beside them, and \
-                 --posterior gives the posterior interval.",
-                fit.n
-            ));
-            match bootstrap(&points, &spec, SMALL_SAMPLE_BOOTSTRAP, args.seed) {
-                Ok(b) => Some(b),
-                Err(e) => {
-                    warnings.push(format!("The automatic bootstrap could not run: {e}"));
-                    None
-                }
-            }
+    if let Some(note) = &own.small_sample {
+        warnings.push(format!(
+            "With only {} objects the errors from the likelihood's curvature tend to be too \
+             small (in simulations of 12 objects the 68% slope interval held the truth in \
+             about 54% of samples, the bootstrap and posterior intervals in about 63%); \
+             {} bootstrap resamples are shown beside them, and \
+             --posterior gives the posterior interval.",
+            note.n, note.resamples
+        ));
+        if let Some(e) = &note.bootstrap_failure {
+            warnings.push(format!("The automatic bootstrap could not run: {e}"));
         }
-        None => None,
-    };
+    }
     match args.format {
         OutputFormat::Json => {
             let mut v = to_json(&fit, pivot_rule, args.seed, post.as_ref(), boot.as_ref());
@@ -616,6 +569,7 @@ fn write_table(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::relations::{SIGMA_PIVOT_LOG, SMALL_SAMPLE_BOOTSTRAP};
 
     const GOOD: &str = "\
 name,x,x_err,y,y_err,upper_limit,notes
@@ -757,22 +711,6 @@ f,2.35,0.02,8.00,0.00,1,limit
         assert!(err.to_string().starts_with("Line 3, column upper_limit"));
     }
 
-    #[test]
-    fn default_pivot_follows_the_documented_rule() {
-        let sigma = vec![
-            Point::new(1.9, 0.02, 7.0, 0.1),
-            Point::new(2.6, 0.02, 9.0, 0.1),
-        ];
-        let (p, rule) = default_pivot(&sigma);
-        assert!((p - 2.301_03).abs() < 1e-5 && rule.starts_with("log10(200)"));
-        let bulge: Vec<Point> = [10.2, 10.9, 11.3]
-            .iter()
-            .map(|&x| Point::new(x, 0.1, 8.0, 0.1))
-            .collect();
-        let (p, rule) = default_pivot(&bulge);
-        assert!((p - 11.0).abs() < 1e-12 && rule.starts_with("median"));
-    }
-
     /// Writes `text` to a fresh file and returns its directory guard and path.
     fn temp_csv(text: &str) -> (tempfile::TempDir, PathBuf) {
         let dir = tempfile::tempdir().unwrap();
@@ -791,7 +729,7 @@ f,2.35,0.02,8.00,0.00,1,limit
             let off = [
                 0.3, -0.25, 0.1, -0.35, 0.2, -0.1, 0.3, -0.2, 0.05, -0.3, 0.25, 0.6,
             ][i];
-            let y = 8.3 + 4.5 * (x - LOG_SIGMA_PIVOT) + off;
+            let y = 8.3 + 4.5 * (x - SIGMA_PIVOT_LOG) + off;
             let lim = u8::from(i == xs.len() - 1);
             s.push_str(&format!("{x},0.02,{y:.3},0.1,{lim}\n"));
         }
@@ -848,7 +786,7 @@ f,2.35,0.02,8.00,0.00,1,limit
         for i in 0..40 {
             let x = 2.0 + 0.012 * f64::from(i);
             let off = if i % 2 == 0 { 0.25 } else { -0.25 };
-            let y = 8.3 + 4.5 * (x - LOG_SIGMA_PIVOT) + off;
+            let y = 8.3 + 4.5 * (x - SIGMA_PIVOT_LOG) + off;
             csv.push_str(&format!("{x},0.02,{y:.3},0.1,0\n"));
         }
         let (_dir, path) = temp_csv(&csv);
@@ -898,7 +836,7 @@ f,2.35,0.02,8.00,0.00,1,limit
         assert_eq!(v["n"], 12);
         assert_eq!(v["n_upper"], 1);
         assert_eq!(v["method"], "conditional");
-        assert!((v["pivot"].as_f64().unwrap() - LOG_SIGMA_PIVOT).abs() < 1e-12);
+        assert!((v["pivot"].as_f64().unwrap() - SIGMA_PIVOT_LOG).abs() < 1e-12);
         assert!((3.0..6.0).contains(&v["beta"].as_f64().unwrap()), "{v}");
         assert_eq!(v["bootstrap"]["n_boot"], 50);
         assert!(v["posterior"]["params"]["beta"]["median"].is_f64());

@@ -1,0 +1,92 @@
+//! The `massline` command: run the server, or work with the catalog and the fits from a shell.
+//!
+//! ```text
+//! massline serve [--db PATH] [--bind ADDR] [--demo] [--public-read] [--secure-cookies]
+//!                                                     run the web service
+//! massline fit --input FILE.csv [...]                 fit a relation to a CSV of points
+//! massline user add NAME --role ROLE [--generate]     create an account (see `user --help`)
+//! massline user set-role NAME ROLE | disable NAME | list
+//! massline import FILE.csv [--accept]                 load a catalog CSV (pending, or adopted)
+//! massline export > FILE.csv                          write the adopted catalog as CSV
+//! massline backup PATH [--db DB] [--force]            a checked copy of the live database
+//! ```
+//!
+//! The command line is one of the three doors (pages and the JSON API are the others): each
+//! subcommand reads its arguments and files, calls the layers below and writes the result.
+//! [`main`] parses the arguments and dispatches to [`serve`], [`fit`], [`user`],
+//! [`catalog_files`] (import and export) and [`backup`].
+
+pub mod backup;
+pub mod catalog_files;
+pub mod fit;
+pub mod serve;
+pub mod user;
+
+use clap::{Parser, Subcommand};
+
+use crate::Settings;
+
+/// massline: a research group's black-hole catalog and its scaling relations.
+#[derive(Parser, Debug)]
+#[command(name = "massline", version, about)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Run the web service.
+    Serve(Settings),
+    /// Fit a black-hole–host relation to a CSV of points and print the result.
+    Fit(fit::FitArgs),
+    /// Manage accounts: add, set-role, disable, list.
+    User(user::UserArgs),
+    /// Import a catalog CSV: rows become pending submissions, or with --accept are adopted.
+    Import(catalog_files::ImportArgs),
+    /// Write the adopted catalog as CSV (the import format) to standard output.
+    Export(catalog_files::ExportArgs),
+    /// Copy the database, even while the server runs, to a checked file (see README "Backups").
+    Backup(backup::BackupArgs),
+}
+
+/// Parses the command line, runs the subcommand and turns its outcome into the exit code: 0,
+/// or 1 with `massline: ` and the error's chain of reasons on standard error (clap's own
+/// usage errors exit with 2).
+pub fn main() -> std::process::ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Serve(settings) => serve::run(settings),
+        Command::Fit(args) => fit::run(&args, &mut std::io::stdout().lock()),
+        Command::User(args) => user::run(&args, &mut std::io::stdout().lock()),
+        Command::Import(args) => catalog_files::run_import(
+            &args,
+            &mut std::io::stdout().lock(),
+            &mut std::io::stderr().lock(),
+        ),
+        Command::Export(args) => catalog_files::run_export(
+            &args,
+            &mut std::io::stdout().lock(),
+            &mut std::io::stderr().lock(),
+        ),
+        Command::Backup(args) => backup::run(&args),
+    };
+    match result {
+        Ok(()) => std::process::ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("massline: {e:#}");
+            std::process::ExitCode::FAILURE
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_command_line_definition_is_consistent() {
+        use clap::CommandFactory;
+        Cli::command().debug_assert();
+    }
+}
