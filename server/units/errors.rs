@@ -4,18 +4,6 @@
 use super::quantity::Quantity;
 use super::ranges::{MAX_ENTRY_CHARS, MAX_ERR_DEX};
 
-/// A stable name (of a [`Quantity`] or [`Scale`](super::Scale)) that is not known.
-#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-#[error("The name `{name}` is not a known {kind}; expected one of {expected}.")]
-pub struct UnknownNameError {
-    /// What was being named: "quantity" or "scale".
-    pub kind: &'static str,
-    /// The name given.
-    pub name: String,
-    /// The accepted names, in words.
-    pub expected: &'static str,
-}
-
 /// Why a typed value was refused. Every message is one sentence that names the quantity and
 /// says what to type instead.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]

@@ -107,10 +107,10 @@ mod grammar;
 mod quantity;
 mod ranges;
 
-pub use errors::{EntryError, UnknownNameError};
+pub use errors::EntryError;
 pub use format::{format_log_with_errors, round_to_uncertainty};
 pub use grammar::{Entry, LinearEntry, parse_entry, parse_linear};
-pub use quantity::{Quantity, Scale};
+pub use quantity::{Quantity, Scale, UnknownNameError};
 pub use ranges::{
     DISTANCE_MAX_MPC, DISTANCE_MIN_MPC, LOG_LBULGE_MAX, LOG_LBULGE_MIN, LOG_MBH_MAX, LOG_MBH_MIN,
     LOG_MBULGE_MAX, LOG_MBULGE_MIN, MAX_ENTRY_CHARS, MAX_ERR_DEX, RESOLUTION_MAX_ARCSEC,

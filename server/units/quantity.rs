@@ -5,12 +5,23 @@ use std::str::FromStr;
 
 use serde::{Deserialize, Serialize};
 
-use super::errors::UnknownNameError;
 use super::ranges::{
     DISTANCE_MAX_MPC, DISTANCE_MIN_MPC, LOG_LBULGE_MAX, LOG_LBULGE_MIN, LOG_MBH_MAX, LOG_MBH_MIN,
     LOG_MBULGE_MAX, LOG_MBULGE_MIN, RESOLUTION_MAX_ARCSEC, RESOLUTION_MIN_ARCSEC, SIGMA_MAX_KM_S,
     SIGMA_MIN_KM_S,
 };
+
+/// A stable name (of a [`Quantity`] or [`Scale`]) that is not known.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("The name `{name}` is not a known {kind}; expected one of {expected}.")]
+pub struct UnknownNameError {
+    /// What was being named: "quantity" or "scale".
+    pub kind: &'static str,
+    /// The name given.
+    pub name: String,
+    /// The accepted names, in words.
+    pub expected: &'static str,
+}
 
 /// What a typed value measures; decides its canonical unit and plausible range.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
