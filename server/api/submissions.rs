@@ -10,7 +10,7 @@ use std::collections::BTreeMap;
 
 use axum::body::Bytes;
 use axum::extract::{Extension, Path, State};
-use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
+use axum::http::{HeaderMap, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::{Deserialize, Serialize};
 
@@ -171,15 +171,7 @@ pub async fn submit(
             "This token lacks the submit scope; create one with it on your account page.",
         )
     })?;
-    let is_json = headers
-        .get(header::CONTENT_TYPE)
-        .and_then(|v| v.to_str().ok())
-        .is_some_and(|v| {
-            v.split(';')
-                .next()
-                .is_some_and(|t| t.trim().eq_ignore_ascii_case("application/json"))
-        });
-    if !is_json {
+    if !is_json(&headers) {
         return Err(AppError::unsupported_media_type(
             "Send the submission as application/json.",
         ));
@@ -189,25 +181,14 @@ pub async fn submit(
         AppError::bad_request(format!("The body is not a submission: {e}."))
             .titled("Unreadable body")
     })?;
-    let Checked {
-        galaxy,
-        measurements,
-    } = read_request(&state, &request).await?;
-    let request_key = submissions::request_key(
-        Some(token.account_id),
-        &client_key,
-        &galaxy,
-        &measurements,
-        request.note.trim(),
-    );
-    let created = submissions::create(
+    let checked = read_request(&state, &request).await?;
+    let created = intake::store(
         &state.pool,
         Some(token.account_id),
         SubmissionSource::Api,
-        &galaxy,
-        &measurements,
-        request.note.trim(),
-        &request_key,
+        &client_key,
+        &checked,
+        &request.note,
     )
     .await
     .map_err(|e| match e {
@@ -220,24 +201,31 @@ pub async fn submit(
         }
         e => AppError::invalid(vec![FieldError::new("galaxy", e.to_string())]),
     })?;
+    let status = if created.replayed {
+        StatusCode::OK
+    } else {
+        StatusCode::CREATED
+    };
+    let location = format!("/api/v1/submissions/{}", created.submission_id);
     let answer = SubmissionAnswer {
         submission_id: created.submission_id,
         galaxy_id: created.galaxy_id,
         state: "pending".to_owned(),
         replayed: created.replayed,
     };
-    let status = if created.replayed {
-        StatusCode::OK
-    } else {
-        StatusCode::CREATED
-    };
-    let mut response = (status, axum::Json(answer)).into_response();
-    if let Ok(location) =
-        HeaderValue::from_str(&format!("/api/v1/submissions/{}", created.submission_id))
-    {
-        response.headers_mut().insert(header::LOCATION, location);
-    }
-    Ok(response)
+    Ok((status, [(header::LOCATION, location)], axum::Json(answer)).into_response())
+}
+
+/// Whether the body is declared as JSON.
+fn is_json(headers: &HeaderMap) -> bool {
+    headers
+        .get(header::CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .is_some_and(|v| {
+            v.split(';')
+                .next()
+                .is_some_and(|t| t.trim().eq_ignore_ascii_case("application/json"))
+        })
 }
 
 /// The request's `Idempotency-Key`, or a 400 saying how to send one.
@@ -325,7 +313,22 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
             .filter(|f| !(unclear && f.cell == intake::Cell::Galaxy))
             .map(|f| FieldError::new(json_path(f.cell), f.message)),
     );
+    // In the order of the request: the galaxy, the measurements one by one, the note.
+    errors.sort_by_key(|e| request_order(&e.field));
     Err(AppError::invalid(errors))
+}
+
+/// Where a field comes in a request: galaxy, then measurements by index, then the note.
+fn request_order(field: &str) -> (u8, usize) {
+    if let Some(rest) = field.strip_prefix("measurements[") {
+        let index = rest.split(']').next().and_then(|i| i.parse().ok());
+        return (2, index.unwrap_or(0));
+    }
+    match field {
+        "measurements" => (1, 0),
+        "note" => (3, 0),
+        _ => (0, 0),
+    }
 }
 
 /// Each measurement object's cells as text, or a field error for a key that is not a

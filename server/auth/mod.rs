@@ -14,6 +14,7 @@
 
 pub mod accounts;
 pub mod clock;
+pub mod login;
 pub mod middleware;
 pub mod password;
 pub mod secret;

@@ -7,9 +7,10 @@
 use sqlx::SqlitePool;
 
 use super::demo::{galaxy_from_cells, measurement_from_cells};
+use super::galaxies::SubmissionSource;
 use super::galaxies::find_by_slug;
 use super::model::NewMeasurement;
-use super::submissions::GalaxyChoice;
+use super::submissions::{self, Created, GalaxyChoice, SubmissionError};
 
 /// A message as one sentence: capital first letter, full stop at the end (the cell readers give lower-case fragments, e.g. "the value … is not a number").
 pub fn sentence(text: &str) -> String {
@@ -149,6 +150,40 @@ pub async fn check(
         }),
         _ => Err(faults),
     })
+}
+
+/// Store a checked submission as pending, once: a request sent again with the same client key
+/// and content (a retried form or script) is answered with the first submission; the same key
+/// with other content is [`SubmissionError::KeyReused`].
+///
+/// # Errors
+/// The [`SubmissionError`] of `catalog::submissions::create`.
+pub async fn store(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    source: SubmissionSource,
+    client_key: &str,
+    checked: &Checked,
+    note: &str,
+) -> Result<Created, SubmissionError> {
+    let note = note.trim();
+    let request = submissions::request_key(
+        account_id,
+        client_key,
+        &checked.galaxy,
+        &checked.measurements,
+        note,
+    );
+    submissions::create(
+        pool,
+        account_id,
+        source,
+        &checked.galaxy,
+        &checked.measurements,
+        note,
+        &request,
+    )
+    .await
 }
 
 #[cfg(test)]

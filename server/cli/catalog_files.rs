@@ -102,21 +102,7 @@ pub fn run_import(
                 source: SubmissionSource::Import,
             }
         };
-        let mut last_width = usize::MAX;
-        let mut progress = |done: usize, total: usize| {
-            // One line on standard error, rewritten in place when the bar grows (not on every
-            // row of a 50,000-row file); a failed write only loses the bar.
-            let filled = (done * PROGRESS_WIDTH).checked_div(total).unwrap_or(PROGRESS_WIDTH);
-            if filled == last_width && done != total {
-                return;
-            }
-            last_width = filled;
-            let mut stderr = std::io::stderr().lock();
-            let _ = write!(stderr, "\r{}", progress_line(done, total));
-            if done == total {
-                let _ = writeln!(stderr);
-            }
-        };
+        let mut progress = progress_bar();
         match import_csv(&pool, &text, mode, &mut progress).await {
             Ok(report) => {
                 writeln!(
@@ -148,6 +134,26 @@ pub fn run_import(
             Err(e) => Err(e.into()),
         }
     })
+}
+
+/// The import's progress bar: one line on standard error, rewritten in place when the bar grows
+/// (not on every row of a 50,000-row file); a failed write only loses the bar.
+fn progress_bar() -> impl FnMut(usize, usize) {
+    let mut last_width = usize::MAX;
+    move |done: usize, total: usize| {
+        let filled = (done * PROGRESS_WIDTH)
+            .checked_div(total)
+            .unwrap_or(PROGRESS_WIDTH);
+        if filled == last_width && done != total {
+            return;
+        }
+        last_width = filled;
+        let mut stderr = std::io::stderr().lock();
+        let _ = write!(stderr, "\r{}", progress_line(done, total));
+        if done == total {
+            let _ = writeln!(stderr);
+        }
+    }
 }
 
 /// Write the adopted catalog as CSV or JSON to `out`; the catalog version goes to `err`.

@@ -60,11 +60,7 @@ pub(crate) struct GalaxiesListPage {
     pages: usize,
     prev_href: Option<String>,
     next_href: Option<String>,
-    morphology_options: Vec<OptionView>,
-    bulge_options: Vec<OptionView>,
-    method_options: Vec<OptionView>,
-    limit_options: Vec<OptionView>,
-    soi_options: Vec<OptionView>,
+    filters: Filters,
     sort: &'static str,
     dir: &'static str,
     soi_threshold: String,
@@ -86,17 +82,45 @@ pub(crate) async fn list_galaxies(
             "Parameter 'page': there are only {pages} page(s) for this selection."
         )));
     }
-    let link = |change: &dyn Fn(&mut TableQuery)| {
-        let mut next = q.clone();
-        change(&mut next);
-        format!("/galaxies?{}", next.to_query_string())
+    let rows = page_rows.iter().map(row_view).collect();
+    let first_shown = if total == 0 {
+        0
+    } else {
+        (q.page - 1) * q.per_page + 1
     };
+    Ok(GalaxiesListPage {
+        nav,
+        headers: headers(&q),
+        rows,
+        total,
+        first_shown,
+        last_shown: (first_shown + page_rows.len()).saturating_sub(1),
+        page: q.page,
+        pages,
+        prev_href: (q.page > 1).then(|| link(&q, |n| n.page -= 1)),
+        next_href: (q.page < pages).then(|| link(&q, |n| n.page += 1)),
+        filters: Filters::of(&q),
+        sort: q.sort.as_str(),
+        dir: if q.descending { "desc" } else { "asc" },
+        soi_threshold: significant(threshold, 2),
+    })
+}
+
+/// The table's address for `q` changed by `change`.
+fn link(q: &TableQuery, change: impl FnOnce(&mut TableQuery)) -> String {
+    let mut next = q.clone();
+    change(&mut next);
+    format!("/galaxies?{}", next.to_query_string())
+}
+
+/// The column headers, each a link that sorts by it (again: the other way).
+fn headers(q: &TableQuery) -> Vec<HeaderView> {
     let header = |label, unit, key: SortKey| {
         let active = q.sort == key;
         HeaderView {
             label,
             unit,
-            href: link(&|n: &mut TableQuery| {
+            href: link(q, |n| {
                 n.sort = key;
                 n.descending = active && !q.descending;
                 n.page = 1;
@@ -108,7 +132,7 @@ pub(crate) async fn list_galaxies(
             },
         }
     };
-    let headers = vec![
+    vec![
         header("Galaxy", "", SortKey::Name),
         header("Morphology", "", SortKey::Morphology),
         header("log M_BH", "M☉, at adopted D", SortKey::LogMbh),
@@ -116,60 +140,55 @@ pub(crate) async fn list_galaxies(
         header("σ", "km/s", SortKey::Sigma),
         header("log M_bulge", "M☉, at adopted D", SortKey::LogMbulge),
         header("Distance", "Mpc", SortKey::Distance),
-    ];
-    let rows = page_rows.iter().map(row_view).collect();
-    let first_shown = if total == 0 {
-        0
-    } else {
-        (q.page - 1) * q.per_page + 1
-    };
-    Ok(GalaxiesListPage {
-        nav,
-        headers,
-        rows,
-        total,
-        first_shown,
-        last_shown: (first_shown + page_rows.len()).saturating_sub(1),
-        page: q.page,
-        pages,
-        prev_href: (q.page > 1).then(|| link(&|n: &mut TableQuery| n.page -= 1)),
-        next_href: (q.page < pages).then(|| link(&|n: &mut TableQuery| n.page += 1)),
-        morphology_options: options(
-            Morphology::pairs().into_iter(),
-            q.morphology.map(Morphology::as_str),
-        ),
-        bulge_options: options(
-            BulgeKind::pairs().into_iter(),
-            q.bulge_kind.map(BulgeKind::as_str),
-        ),
-        method_options: options(
-            MassMethod::pairs().into_iter(),
-            q.method.map(MassMethod::as_str),
-        ),
-        limit_options: options(
-            [
-                ("detections", "detections only"),
-                ("limits", "upper limits only"),
-            ]
-            .into_iter(),
-            match q.limits {
-                LimitFilter::All => None,
-                LimitFilter::Detections => Some("detections"),
-                LimitFilter::Limits => Some("limits"),
-            },
-        ),
-        soi_options: options(
-            [("resolved", "resolved"), ("unresolved", "not resolved")].into_iter(),
-            match q.soi {
-                SoiFilter::All => None,
-                SoiFilter::Resolved => Some("resolved"),
-                SoiFilter::Unresolved => Some("unresolved"),
-            },
-        ),
-        sort: q.sort.as_str(),
-        dir: if q.descending { "desc" } else { "asc" },
-        soi_threshold: significant(threshold, 2),
-    })
+    ]
+}
+
+/// The filter form's menus.
+pub(crate) struct Filters {
+    morphology_options: Vec<OptionView>,
+    bulge_options: Vec<OptionView>,
+    method_options: Vec<OptionView>,
+    limit_options: Vec<OptionView>,
+    soi_options: Vec<OptionView>,
+}
+
+impl Filters {
+    fn of(q: &TableQuery) -> Self {
+        Filters {
+            morphology_options: options(
+                Morphology::pairs().into_iter(),
+                q.morphology.map(Morphology::as_str),
+            ),
+            bulge_options: options(
+                BulgeKind::pairs().into_iter(),
+                q.bulge_kind.map(BulgeKind::as_str),
+            ),
+            method_options: options(
+                MassMethod::pairs().into_iter(),
+                q.method.map(MassMethod::as_str),
+            ),
+            limit_options: options(
+                [
+                    ("detections", "detections only"),
+                    ("limits", "upper limits only"),
+                ]
+                .into_iter(),
+                match q.limits {
+                    LimitFilter::All => None,
+                    LimitFilter::Detections => Some("detections"),
+                    LimitFilter::Limits => Some("limits"),
+                },
+            ),
+            soi_options: options(
+                [("resolved", "resolved"), ("unresolved", "not resolved")].into_iter(),
+                match q.soi {
+                    SoiFilter::All => None,
+                    SoiFilter::Resolved => Some("resolved"),
+                    SoiFilter::Unresolved => Some("unresolved"),
+                },
+            ),
+        }
+    }
 }
 
 fn options(

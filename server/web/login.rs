@@ -1,11 +1,5 @@
-//! `/login` and `/logout`.
-//!
-//! A login checks, in this order: the client address has not failed too often, the name is not
-//! locked, then the password (against the account's hash, or a dummy hash when there is no such
-//! account, so the answer and its timing are the same either way). Every failure is counted for
-//! the name as typed and for the address; the fifth within 15 minutes locks the name. A success
-//! starts a new session with a new id and a new anti-forgery token, and ends the browser's old
-//! session if it had one.
+//! `/login` and `/logout`. The rule of a login (throttling, locks, the password check, the new
+//! session) is `auth::login`; this module reads the form and sets the cookies.
 
 use askama::Template;
 use askama_web::WebTemplate;
@@ -16,12 +10,13 @@ use axum::response::{IntoResponse, Redirect, Response};
 use serde::Deserialize;
 
 use super::Nav;
+use crate::auth::Principal;
+use crate::auth::login::{LoginOutcome, log_in as log_in_as};
 use crate::auth::middleware::{
     AuthContext, client_ip, login_cookie_name, read_cookie, session_cookie_name, set_cookie,
 };
-use crate::auth::secret::{random_hex_256, sha256_hex};
-use crate::auth::{FAILURE_POLICY, Principal};
-use crate::catalog::accounts::{self, NewSession};
+use crate::auth::secret::random_hex_256;
+use crate::catalog::accounts;
 use crate::error::AppResult;
 use crate::state::AppState;
 
@@ -150,51 +145,22 @@ pub(crate) async fn log_in(
         r
     };
 
-    let from_ip = accounts::failures_from(&state.pool, &ip, now - FAILURE_POLICY.window_s).await?;
-    if from_ip >= FAILURE_POLICY.max_per_ip
-        || accounts::locked_until(&state.pool, &username, now)
-            .await?
-            .is_some()
-    {
-        return Ok(again(StatusCode::TOO_MANY_REQUESTS, LOGIN_LOCKED));
-    }
-
-    let account = accounts::find_by_username(&state.pool, &username).await?;
-    let password_ok = state
-        .passwords
-        .verify(
-            &form.password,
-            account.as_ref().map(|a| a.password_hash.as_str()),
-        )
-        .await;
-    let account = match account {
-        Some(a) if password_ok && !a.disabled => a,
-        _ => {
-            let outcome =
-                accounts::record_failure(&state.pool, &username, &ip, now, FAILURE_POLICY).await?;
-            if outcome.locked_until_unix.is_some() {
-                tracing::warn!(client = %ip, "locked a login name after repeated failures");
-            }
-            return Ok(again(StatusCode::UNAUTHORIZED, LOGIN_FAILED));
-        }
-    };
-
-    let session_id = random_hex_256();
-    let previous =
-        read_cookie(&headers, session_cookie_name(ctx.secure_cookies)).map(|old| sha256_hex(&old));
-    accounts::start_session(
+    let previous = read_cookie(&headers, session_cookie_name(ctx.secure_cookies));
+    let outcome = log_in_as(
         &state.pool,
-        &NewSession {
-            account_id: account.account_id,
-            username: &account.username,
-            id_sha256: &sha256_hex(&session_id),
-            csrf_token: &random_hex_256(),
-            now_unix: now,
-            client_ip: &ip,
-            previous_sha256: previous.as_deref(),
-        },
+        &state.passwords,
+        now,
+        &username,
+        &form.password,
+        &ip,
+        previous.as_deref(),
     )
     .await?;
+    let session_id = match outcome {
+        LoginOutcome::Locked => return Ok(again(StatusCode::TOO_MANY_REQUESTS, LOGIN_LOCKED)),
+        LoginOutcome::Refused => return Ok(again(StatusCode::UNAUTHORIZED, LOGIN_FAILED)),
+        LoginOutcome::LoggedIn { session_id } => session_id,
+    };
     let mut response = Redirect::to(&safe_next(Some(&form.next))).into_response();
     let secure = ctx.secure_cookies;
     response.headers_mut().append(

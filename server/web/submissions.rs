@@ -136,15 +136,7 @@ pub(crate) struct NewSubmissionPage {
     /// The form's idempotency key: a retried POST of this form stores nothing new.
     request_key: String,
     /// Where the object falls, before submitting ("Check against the relations").
-    preview: Option<Preview>,
-}
-
-/// The placement shown before submitting.
-pub(crate) struct Preview {
-    rows: Vec<PlaceRow>,
-    charts: Vec<PlaceChart>,
-    soi: Option<String>,
-    mass_at_adopted: Option<String>,
+    preview: Option<AssessmentView>,
 }
 
 type Fields = HashMap<String, String>;
@@ -246,10 +238,14 @@ pub(crate) async fn create_submission(
         .map_or("submit", |a| a.as_str())
         .to_owned();
     if action == "add_row" {
-        let n = (rows_of(&fields) + 1).min(MAX_FORM_ROWS);
-        fields.insert("rows".into(), n.to_string());
-        let page = form_page(&state, user, nav, &fields, &HashMap::new(), None).await?;
-        return Ok(page.into_response());
+        // Nothing is checked or stored: the same form with one more row, as typed.
+        fields.insert(
+            "rows".into(),
+            (rows_of(&fields) + 1).min(MAX_FORM_ROWS).to_string(),
+        );
+        return Ok(form_page(&state, user, nav, &fields, &HashMap::new(), None)
+            .await?
+            .into_response());
     }
     let read = read_form(&state, &fields).await?;
     let (Some(checked), None) = (read.checked, &read.form_error) else {
@@ -261,32 +257,17 @@ pub(crate) async fn create_submission(
     };
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
-        let v = AssessmentView::of(&a, true);
         let mut page = form_page(&state, user, nav, &fields, &read.errors, None).await?;
-        page.preview = Some(Preview {
-            rows: v.rows,
-            charts: v.charts,
-            soi: v.soi,
-            mass_at_adopted: v.mass_at_adopted,
-        });
+        page.preview = Some(AssessmentView::of(&a, true));
         return Ok(page.into_response());
     }
-    let note = fields.get("note").map_or("", |v| v.trim());
-    let request = submissions::request_key(
-        Some(user.account_id),
-        &read.client_key,
-        &checked.galaxy,
-        &checked.measurements,
-        note,
-    );
-    let created = submissions::create(
+    let created = intake::store(
         &state.pool,
         Some(user.account_id),
         SubmissionSource::Form,
-        &checked.galaxy,
-        &checked.measurements,
-        note,
-        &request,
+        &read.client_key,
+        &checked,
+        fields.get("note").map_or("", String::as_str),
     )
     .await;
     match created {
