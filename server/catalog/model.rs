@@ -302,6 +302,38 @@ pub struct NewMeasurement {
     pub value_scale: String,
 }
 
+impl NewMeasurement {
+    /// The measurement as it would be stored, pending, for galaxy `galaxy_id` (no key, no
+    /// submission yet): what a submission is assessed with before it is stored.
+    pub fn unstored(&self, galaxy_id: i64) -> Measurement {
+        Measurement {
+            measurement_id: 0,
+            galaxy_id,
+            submission_id: 0,
+            quantity: self.quantity,
+            log_value: self.log_value,
+            err_minus_dex: self.err_minus_dex,
+            err_plus_dex: self.err_plus_dex,
+            err_dex: self.err_dex,
+            upper_limit: self.upper_limit,
+            limit_confidence_sigma: self.limit_confidence_sigma,
+            method: self.method.clone(),
+            sigma_definition: self.sigma_definition.clone(),
+            aperture: self.aperture.clone(),
+            band: self.band.clone(),
+            source_distance_mpc: self.source_distance_mpc,
+            resolution_arcsec: self.resolution_arcsec,
+            reference: self.reference.clone(),
+            note: self.note.clone(),
+            value_text: self.value_text.clone(),
+            value_scale: self.value_scale.clone(),
+            state: "pending".to_owned(),
+            adopted: false,
+            created_at: String::new(),
+        }
+    }
+}
+
 /// Lowercase ASCII slug of a name: letters and digits kept, common accented Latin letters
 /// folded to their base letter, everything else a single hyphen.
 pub fn slugify(name: &str) -> String {

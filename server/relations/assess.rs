@@ -209,31 +209,7 @@ pub async fn assess_unstored(
     };
     let typed: Vec<Measurement> = measurements
         .iter()
-        .map(|m| Measurement {
-            measurement_id: 0,
-            galaxy_id: galaxy.galaxy_id,
-            submission_id: 0,
-            quantity: m.quantity,
-            log_value: m.log_value,
-            err_minus_dex: m.err_minus_dex,
-            err_plus_dex: m.err_plus_dex,
-            err_dex: m.err_dex,
-            upper_limit: m.upper_limit,
-            limit_confidence_sigma: m.limit_confidence_sigma,
-            method: m.method.clone(),
-            sigma_definition: m.sigma_definition.clone(),
-            aperture: m.aperture.clone(),
-            band: m.band.clone(),
-            source_distance_mpc: m.source_distance_mpc,
-            resolution_arcsec: m.resolution_arcsec,
-            reference: m.reference.clone(),
-            note: m.note.clone(),
-            value_text: m.value_text.clone(),
-            value_scale: m.value_scale.clone(),
-            state: "pending".to_owned(),
-            adopted: false,
-            created_at: String::new(),
-        })
+        .map(|m| m.unstored(galaxy.galaxy_id))
         .collect();
     assess(catalog, &galaxy, &typed, true).await
 }
