@@ -86,6 +86,7 @@ pub mod fitexy;
 pub mod optimize;
 pub mod posterior;
 pub mod predict;
+pub mod special;
 pub mod structural;
 pub mod tolerance;
 pub mod types;
