@@ -12,8 +12,10 @@
 //!   digits unless ε² + σ_y² is tiny compared with (∂y/∂ξ)² times the posterior variance of ξ
 //!   (then the ε = 0 boundary is reported with less accuracy).
 //!
-//! Unlike the conditional likelihood, this estimator does not dilute the slope when the x
-//! errors are comparable with the spread of x, and it keeps the density of x for upper limits.
+//! Unlike the conditional likelihood, this estimator corrects the slope dilution that x errors
+//! comparable with the spread of x cause, *under its Gaussian (mixture) model of the true x*,
+//! and it keeps the density of x for upper limits. Its ε is still biased low at small N
+//! (maximum likelihood does not account for the fitted parameters).
 
 use std::sync::OnceLock;
 
