@@ -728,7 +728,8 @@ mod newton;
 
 #[cfg(test)]
 mod tests {
-    use super::super::types::test_data::{hogg, rel};
+    use super::super::tolerance::close;
+    use super::super::types::test_data::hogg;
     use super::super::{Point, fit as fit_any};
     use super::*;
 
@@ -777,9 +778,9 @@ mod tests {
         assert!((p.eps - 84.9930).abs() < 1e-3, "{p:?}");
         assert!((f.neg2_log_l.unwrap_or(0.0) - 237.447_860).abs() < 1e-6);
         let e = &f.errors;
-        assert!(rel(e.alpha, 66.67) < 2e-3, "{e:?}");
-        assert!(rel(e.beta, 0.3658) < 2e-3, "{e:?}");
-        assert!(rel(e.eps, 15.43) < 2e-3, "{e:?}");
+        assert!(close(e.alpha, 66.67, 0.0, 2e-3), "{e:?}");
+        assert!(close(e.beta, 0.3658, 0.0, 2e-3), "{e:?}");
+        assert!(close(e.eps, 15.43, 0.0, 2e-3), "{e:?}");
         // AIC/BIC from their definitions with k = 3, n = 20.
         let l = f.neg2_log_l.unwrap_or(0.0);
         assert!((f.aic.unwrap_or(0.0) - (l + 6.0)).abs() < 1e-12);
