@@ -15,6 +15,7 @@
 
 use std::path::PathBuf;
 
+use massline::fit::tolerance::close;
 use massline::fit::{BcesLine, FitSpec, Likelihood, Method, Point, fit};
 use serde_json::Value;
 
@@ -63,7 +64,7 @@ fn points(fx: &Value) -> Vec<Point> {
 #[track_caller]
 fn assert_abs(name: &str, got: f64, want: f64, tol: f64) {
     assert!(
-        (got - want).abs() <= tol,
+        close(got, want, tol, 0.0),
         "{name}: massline {got:.10} vs reference {want:.10} (|Δ| = {:.2e} > {tol:.0e})",
         (got - want).abs()
     );
@@ -73,7 +74,7 @@ fn assert_abs(name: &str, got: f64, want: f64, tol: f64) {
 fn assert_rel(name: &str, got: f64, want: f64, tol: f64) {
     let d = (got - want).abs() / want.abs().max(f64::MIN_POSITIVE);
     assert!(
-        d <= tol,
+        close(got, want, 0.0, tol),
         "{name}: massline {got:.10} vs reference {want:.10} (relative {d:.2e} > {tol:.0e})"
     );
 }

@@ -21,8 +21,10 @@
 //!
 //! * [`Method::Structural`] (default): the Kelly (2007, ApJ 665, 1489) measurement-error model.
 //!   The true x is drawn from a Gaussian or a mixture of up to three; the observed (x, y) is
-//!   integrated over it in closed form. It does not dilute the slope when x errors are
-//!   comparable to the spread of x, and uses upper limits correctly (x density kept).
+//!   integrated over it in closed form. Under that Gaussian model of the true x it corrects
+//!   the slope dilution that x errors comparable to the spread of x cause, and it uses upper
+//!   limits correctly (x density kept). Its ε is still biased low at small N: maximum
+//!   likelihood does not account for the fitted parameters.
 //! * [`Method::Conditional`]: likelihood of y given the *observed* x with variance
 //!   σ_y² + β² σ_x² − 2βσ_xy + ε². Fast and standard (Gültekin et al. 2009 style), but it
 //!   underestimates |β| when x errors matter (regression dilution).
@@ -86,6 +88,7 @@ pub mod fitexy;
 pub mod optimize;
 pub mod posterior;
 pub mod predict;
+pub mod special;
 pub mod structural;
 pub mod tolerance;
 pub mod types;

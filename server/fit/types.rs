@@ -854,9 +854,4 @@ pub(crate) mod test_data {
             })
             .collect()
     }
-
-    /// Relative difference |a − b| / |b|.
-    pub(crate) fn rel(a: f64, b: f64) -> f64 {
-        (a - b).abs() / b.abs()
-    }
 }

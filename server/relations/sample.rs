@@ -303,6 +303,7 @@ pub fn build_sample(
 mod tests {
     use super::*;
     use crate::catalog::model::{MassMethod, Morphology};
+    use crate::fit::tolerance::close;
     use crate::relations::SigmaChoice;
     use std::f64::consts::LN_10;
 
@@ -334,8 +335,10 @@ mod tests {
         }
     }
 
-    fn close(a: f64, b: f64, tol: f64) {
-        assert!((a - b).abs() < tol, "{a} vs {b}");
+    /// Asserts |a − b| ≤ `tol` (an absolute tolerance, by the shared comparison rule).
+    #[track_caller]
+    fn assert_close(a: f64, b: f64, tol: f64) {
+        assert!(close(a, b, tol, 0.0), "{a} vs {b}");
     }
 
     #[test]
@@ -351,13 +354,13 @@ mod tests {
         let p = &s.points[0];
         // Science notes §3.2 / §7 row 30: 16.5 → 18 Mpc multiplies a dynamical mass by
         // 1.090909 (computed from M ∝ D).
-        close(10f64.powf(p.y - 8.0), 1.090_909, 1e-6);
+        assert_close(10f64.powf(p.y - 8.0), 1.090_909, 1e-6);
         // σ_logD = 1.8 / (18 ln 10); σ_y = √(0.1² + σ_logD²) (docs/methods.md §3.2, computed).
         let sld = 1.8 / (18.0 * LN_10);
-        close(p.y_err, (0.01 + sld * sld).sqrt(), 1e-12);
+        assert_close(p.y_err, (0.01 + sld * sld).sqrt(), 1e-12);
         // σ does not depend on distance: its error is as measured and the covariance is zero.
-        close(p.x_err, 0.02, 1e-12);
-        close(p.xy_cov, 0.0, 1e-15);
+        assert_close(p.x_err, 0.02, 1e-12);
+        assert_close(p.xy_cov, 0.0, 1e-15);
         assert_eq!(p.name, "Alpha 1");
     }
 
@@ -375,10 +378,10 @@ mod tests {
             1.0,
         );
         let p = &s.points[0];
-        close(p.xy_cov, 2.0 * sld * sld, 1e-15);
-        close(p.x_err, 0.15f64.hypot(2.0 * sld), 1e-12);
+        assert_close(p.xy_cov, 2.0 * sld * sld, 1e-15);
+        assert_close(p.x_err, 0.15f64.hypot(2.0 * sld), 1e-12);
         // 16.5 → 18 Mpc: photometric mass × 1.190083 (∝ D², §7 row 30, computed).
-        close(10f64.powf(p.x - 11.0), 1.190_083, 1e-6);
+        assert_close(10f64.powf(p.x - 11.0), 1.190_083, 1e-6);
         // A dynamical bulge mass ∝ D: cov = σ_logD².
         let mut dynamical = r.clone();
         dynamical.mbulge_method = Some("dynamical".to_owned());
@@ -389,7 +392,7 @@ mod tests {
             &SampleFilter::default(),
             1.0,
         );
-        close(s.points[0].xy_cov, sld * sld, 1e-15);
+        assert_close(s.points[0].xy_cov, sld * sld, 1e-15);
         // A reverberation mass does not depend on D: no covariance, no distance error in y.
         let mut reverb = r.clone();
         reverb.mbh_method = Some("reverberation".to_owned());
@@ -400,9 +403,9 @@ mod tests {
             &SampleFilter::default(),
             1.0,
         );
-        close(s.points[0].xy_cov, 0.0, 1e-15);
-        close(s.points[0].y_err, 0.1, 1e-12);
-        close(s.points[0].y, 8.0, 1e-12);
+        assert_close(s.points[0].xy_cov, 0.0, 1e-15);
+        assert_close(s.points[0].y_err, 0.1, 1e-12);
+        assert_close(s.points[0].y, 8.0, 1e-12);
         // Luminosity ∝ D²: cov = 2 σ_logD², σ_x = √(0.07² + (2σ_logD)²).
         let lum = LuminosityRow {
             galaxy_id: 1,
@@ -419,9 +422,9 @@ mod tests {
             1.0,
         );
         let p = &s.points[0];
-        close(p.x, 10.5, 1e-12);
-        close(p.xy_cov, 2.0 * sld * sld, 1e-15);
-        close(p.x_err, (0.0049 + 4.0 * sld * sld).sqrt(), 1e-12);
+        assert_close(p.x, 10.5, 1e-12);
+        assert_close(p.xy_cov, 2.0 * sld * sld, 1e-15);
+        assert_close(p.x_err, (0.0049 + 4.0 * sld * sld).sqrt(), 1e-12);
     }
 
     #[test]
@@ -432,8 +435,8 @@ mod tests {
         let s = build_sample(&[r], &[], &Relation::MBulge, &SampleFilter::default(), 1.0);
         let p = &s.points[0];
         assert!(p.upper_limit);
-        close(p.y_err, 0.0, 1e-15);
-        close(p.xy_cov, 0.0, 1e-15);
+        assert_close(p.y_err, 0.0, 1e-15);
+        assert_close(p.xy_cov, 0.0, 1e-15);
         assert_eq!((s.n_detections(), s.n_limits()), (0, 1));
         let mut r = row("Limit 1");
         r.mbh_upper_limit = Some(true);

@@ -10,7 +10,7 @@ use massline::catalog::accounts;
 use reqwest::header::{CONTENT_TYPE, ETAG, IF_NONE_MATCH, RETRY_AFTER, WWW_AUTHENTICATE};
 use serde_json::{Value, json};
 
-use crate::helpers::{TestApp, spawn_with};
+use crate::helpers::{Reply, TestApp, spawn_with};
 
 /// A private demo app (nothing without credentials), as deployed by default.
 async fn private_demo() -> TestApp {
@@ -23,53 +23,15 @@ async fn token(app: &TestApp, name: &str, role: Role, scopes: &str) -> String {
     app.make_token(id, scopes).await.0
 }
 
-/// A response read completely: status, headers, body.
-struct Answer {
-    status: u16,
-    headers: reqwest::header::HeaderMap,
-    body: String,
-}
-
-impl Answer {
-    fn json(&self) -> Value {
-        serde_json::from_str(&self.body).unwrap_or_else(|e| panic!("not JSON ({e}): {}", self.body))
-    }
-
-    fn header(&self, name: impl reqwest::header::AsHeaderName) -> String {
-        self.headers
-            .get(name)
-            .and_then(|v| v.to_str().ok())
-            .unwrap_or("")
-            .to_owned()
-    }
-
-    /// Asserts an RFC 9457 problem with this status, and returns it.
-    fn problem(&self, status: u16) -> Value {
-        assert_eq!(self.status, status, "{}", self.body);
-        assert_eq!(
-            self.header(CONTENT_TYPE),
-            "application/problem+json",
-            "{}",
-            self.body
-        );
-        let p = self.json();
-        assert_eq!(p["type"], "about:blank", "{p}");
-        assert_eq!(p["status"], status, "{p}");
-        assert!(p["title"].as_str().is_some_and(|t| !t.is_empty()), "{p}");
-        assert!(p["detail"].as_str().is_some_and(|t| !t.is_empty()), "{p}");
-        p
-    }
-}
-
-async fn finish(r: reqwest::Response) -> Answer {
-    Answer {
+async fn finish(r: reqwest::Response) -> Reply {
+    Reply {
         status: r.status().as_u16(),
         headers: r.headers().clone(),
         body: r.text().await.unwrap(),
     }
 }
 
-async fn get(app: &TestApp, path: &str, token: Option<&str>) -> Answer {
+async fn get(app: &TestApp, path: &str, token: Option<&str>) -> Reply {
     let mut req = app.client.get(format!("{}{path}", app.address));
     if let Some(t) = token {
         req = req.bearer_auth(t);
@@ -77,7 +39,7 @@ async fn get(app: &TestApp, path: &str, token: Option<&str>) -> Answer {
     finish(req.send().await.unwrap()).await
 }
 
-async fn post_json(app: &TestApp, path: &str, token: Option<&str>, body: &Value) -> Answer {
+async fn post_json(app: &TestApp, path: &str, token: Option<&str>, body: &Value) -> Reply {
     let mut req = app.client.post(format!("{}{path}", app.address)).json(body);
     if let Some(t) = token {
         req = req.bearer_auth(t);
@@ -85,7 +47,7 @@ async fn post_json(app: &TestApp, path: &str, token: Option<&str>, body: &Value)
     finish(req.send().await.unwrap()).await
 }
 
-async fn post_raw(app: &TestApp, path: &str, token: &str, ctype: &str, body: Vec<u8>) -> Answer {
+async fn post_raw(app: &TestApp, path: &str, token: &str, ctype: &str, body: Vec<u8>) -> Reply {
     let r = app
         .client
         .post(format!("{}{path}", app.address))

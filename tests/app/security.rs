@@ -10,7 +10,7 @@ use crate::helpers::{Reply, TEST_PASSWORD, spawn_private_app, spawn_with};
 #[tokio::test]
 async fn five_failures_lock_the_name_and_rotating_forwarded_for_gives_no_extra_tries() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     app.create_account("bystander", Role::Member).await;
     let mut b = app.browser();
     let mut statuses = Vec::new();
@@ -18,7 +18,7 @@ async fn five_failures_lock_the_name_and_rotating_forwarded_for_gives_no_extra_t
         let forwarded = format!("203.0.113.{i}");
         let r = b
             .login_with(
-                "ada-l",
+                "quillfern",
                 "not the password at all",
                 &[
                     ("x-forwarded-for", forwarded.as_str()),
@@ -34,7 +34,7 @@ async fn five_failures_lock_the_name_and_rotating_forwarded_for_gives_no_extra_t
     // Locked means locked: the right password is refused too, whatever the forwarded address.
     let r = b
         .login_with(
-            "ada-l",
+            "quillfern",
             TEST_PASSWORD,
             &[("x-forwarded-for", "198.51.100.7")],
         )
@@ -60,26 +60,26 @@ async fn five_failures_lock_the_name_and_rotating_forwarded_for_gives_no_extra_t
     );
     // After the 15-minute lock the right password works again.
     app.clock.advance(15 * 60 + 1);
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
 }
 
 #[tokio::test]
 async fn each_lock_in_a_row_lasts_twice_as_long() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
     for _ in 0..5 {
-        b.login("ada-l", "wrong wrong wrong").await;
+        b.login("quillfern", "wrong wrong wrong").await;
     }
     app.clock.advance(15 * 60 + 1);
     for _ in 0..5 {
-        assert_eq!(b.login("ada-l", "wrong wrong wrong").await.status, 401);
+        assert_eq!(b.login("quillfern", "wrong wrong wrong").await.status, 401);
     }
     // Second lock: 30 minutes. After 16 minutes it still holds.
     app.clock.advance(16 * 60);
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 429);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 429);
     app.clock.advance(15 * 60);
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
     assert_eq!(
         accounts::count_events(&app.pool, "login_locked")
             .await
@@ -91,13 +91,13 @@ async fn each_lock_in_a_row_lasts_twice_as_long() {
 #[tokio::test]
 async fn one_address_gets_at_most_20_failures_across_names() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
     for i in 0..20 {
         let r = b.login(&format!("guess-{i}"), "wrong wrong wrong").await;
         assert_eq!(r.status, 401);
     }
-    let r = b.login("ada-l", TEST_PASSWORD).await;
+    let r = b.login("quillfern", TEST_PASSWORD).await;
     assert_eq!(r.status, 429, "the address is refused for a while");
     assert_eq!(
         accounts::count_events(&app.pool, "login_address_locked")
@@ -106,20 +106,20 @@ async fn one_address_gets_at_most_20_failures_across_names() {
         1
     );
     app.clock.advance(15 * 60 + 1);
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
 }
 
 #[tokio::test]
 async fn an_unknown_name_gets_the_same_answer_and_the_same_hash_check() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
-    let known = b.login("ada-l", "wrong wrong wrong").await;
+    let known = b.login("quillfern", "wrong wrong wrong").await;
     let unknown = b.login("nobody-here", "wrong wrong wrong").await;
     assert_eq!(known.status, unknown.status);
     // Same page apart from the name typed, which is put back into the form.
     assert_eq!(
-        known.body.replace("ada-l", "NAME"),
+        known.body.replace("quillfern", "NAME"),
         unknown.body.replace("nobody-here", "NAME")
     );
     // Both cost one Argon2 verification (the unknown name against a dummy hash), so neither
@@ -127,7 +127,7 @@ async fn an_unknown_name_gets_the_same_answer_and_the_same_hash_check() {
     // machine; the verification is what makes the two take the same time.
     let passwords = &app.state.passwords;
     let before = passwords.verifications();
-    assert_eq!(b.login("ada-l", "wrong wrong wrong").await.status, 401);
+    assert_eq!(b.login("quillfern", "wrong wrong wrong").await.status, 401);
     assert_eq!(
         passwords.verifications(),
         before + 1,

@@ -10,15 +10,15 @@ use crate::helpers::{TEST_PASSWORD, TestApp, spawn_private_app, spawn_with};
 #[tokio::test]
 async fn login_gives_a_new_session_id_and_ends_the_old_one() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
     let first = b.session_id().expect("a session cookie");
     assert_eq!(first.len(), 64);
     // Logging in again from the same browser: a new id, and the old one no longer works.
     let mut old = app.browser();
     old.cookies.insert("ml_session".into(), first.clone());
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
     let second = b.session_id().expect("a session cookie");
     assert_ne!(first, second);
     assert_eq!(old.get("/account").await.status, 303, "the old id is dead");
@@ -37,11 +37,11 @@ async fn login_gives_a_new_session_id_and_ends_the_old_one() {
 async fn a_pre_set_session_cookie_is_not_adopted_at_login() {
     // Session fixation: an id planted before login must not become the session.
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
     let planted = "a".repeat(64);
     b.cookies.insert("ml_session".into(), planted.clone());
-    assert_eq!(b.login("ada-l", TEST_PASSWORD).await.status, 303);
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
     assert_ne!(b.session_id().unwrap(), planted);
 }
 
@@ -158,9 +158,9 @@ async fn disabling_an_account_ends_its_live_sessions() {
 #[tokio::test]
 async fn the_session_cookie_is_http_only_and_same_site() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
-    let r = b.login("ada-l", TEST_PASSWORD).await;
+    let r = b.login("quillfern", TEST_PASSWORD).await;
     let cookie = r
         .set_cookies()
         .into_iter()
@@ -175,7 +175,7 @@ async fn the_session_cookie_is_http_only_and_same_site() {
 #[tokio::test]
 async fn with_secure_cookies_the_cookies_are_host_prefixed_and_secure_and_hsts_is_sent() {
     let app = spawn_with(|s| s.secure_cookies = true).await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
     let page = b.get("/login").await;
     assert!(
@@ -194,7 +194,7 @@ async fn with_secure_cookies_the_cookies_are_host_prefixed_and_secure_and_hsts_i
             "/login",
             &[
                 ("csrf", csrf.as_str()),
-                ("username", "ada-l"),
+                ("username", "quillfern"),
                 ("password", TEST_PASSWORD),
             ],
             &[],
@@ -361,8 +361,8 @@ async fn forms_without_a_valid_token_or_from_another_site_are_refused_and_change
 #[tokio::test]
 async fn the_login_form_is_protected_against_forgery_too() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
-    let fields = [("username", "ada-l"), ("password", TEST_PASSWORD)];
+    app.create_account("quillfern", Role::Member).await;
+    let fields = [("username", "quillfern"), ("password", TEST_PASSWORD)];
     // No login cookie and no token.
     let mut b = app.browser();
     assert_eq!(b.post_raw("/login", &fields, &[]).await.status, 403);
@@ -405,7 +405,7 @@ async fn get_requests_change_nothing() {
 #[tokio::test]
 async fn after_login_the_browser_returns_to_the_page_it_asked_for_on_this_site_only() {
     let app = spawn_private_app().await;
-    app.create_account("ada-l", Role::Member).await;
+    app.create_account("quillfern", Role::Member).await;
     let mut b = app.browser();
     let r = b.get("/galaxies?sort=sigma").await;
     assert_eq!(r.status, 303);
@@ -428,7 +428,7 @@ async fn after_login_the_browser_returns_to_the_page_it_asked_for_on_this_site_o
                 "/login",
                 &[
                     ("csrf", csrf.as_str()),
-                    ("username", "ada-l"),
+                    ("username", "quillfern"),
                     ("password", TEST_PASSWORD),
                     ("next", next),
                 ],

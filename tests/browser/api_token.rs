@@ -14,9 +14,9 @@ use crate::support::{self, PAYLOADS, Reading, TEST_PASSWORD};
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn an_admin_makes_a_reviewer_whose_api_token_lets_a_script_read_the_fit_and_submit() {
     support::run("j5-token", Reading::Private, |journey| async move {
-        journey.account("ada", Role::Admin).await;
+        journey.account("quillfern", Role::Admin).await;
         let admin = journey.browser("admin").await;
-        admin.log_in_by_keyboard("ada", TEST_PASSWORD).await;
+        admin.log_in_by_keyboard("quillfern", TEST_PASSWORD).await;
         admin.open("/admin/accounts", "accounts").await;
 
         // A payload as a user name is refused and shown back as text.

@@ -1,13 +1,14 @@
 //! Starting the real server and headless Chromium for one journey, and the checks every page
 //! visited gets.
 //!
-//! [`run`] starts the app on 127.0.0.1:0 with the demo catalog and a `ManualClock`, starts
-//! `/usr/bin/chromedriver` on a free port, runs the journey, and quits every browser session it
-//! opened (also when the journey panics) before passing the panic on. [`Page`] is one browser
-//! session; [`Page::check`] runs the per-page checks (no dialog open, the document's status, no
-//! console errors, no failed requests, no Content-Security-Policy violations, nothing from
-//! another origin, every field labelled with numeric fields showing their unit) and writes a
-//! screenshot under `target/browser-screenshots/`.
+//! [`run`] starts the app on 127.0.0.1:0 with the demo catalog and a `ManualClock` (with the
+//! starter the other test crates use, tests/common), starts `/usr/bin/chromedriver` on a free
+//! port, runs the journey, and quits every browser session it opened (also when the journey
+//! panics) before passing the panic on. [`Page`] is one browser session; [`Page::check`] runs
+//! the per-page checks (no dialog open, the document's status, no console errors, no failed
+//! requests, no Content-Security-Policy violations, nothing from another origin, every field
+//! labelled with numeric fields showing their unit) and writes a screenshot under
+//! `target/browser-screenshots/`.
 
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -16,7 +17,6 @@ use std::time::{Duration, Instant};
 
 use massline::auth::Role;
 use massline::auth::clock::ManualClock;
-use massline::{Application, Settings};
 use serde_json::Value;
 use sqlx::SqlitePool;
 use tempfile::TempDir;
@@ -25,6 +25,7 @@ use thirtyfour::prelude::*;
 use tokio::process::{Child, Command};
 
 pub(crate) use crate::common::TEST_PASSWORD;
+use crate::common::{TestApp, spawn_with};
 
 /// Script-injection payloads typed into text fields; none may ever run.
 pub(crate) const PAYLOADS: [&str; 2] = [
@@ -101,17 +102,17 @@ where
     if !browser_installed() {
         return;
     }
-    let db_dir = tempfile::tempdir().expect("a temporary directory");
-    let mut settings = Settings::for_tests(db_dir.path().join("catalog.sqlite"));
-    settings.demo = true;
-    settings.public_read = reading == Reading::Public;
-    let clock = Arc::new(ManualClock::starting_now());
-    let app = Application::build_with_clock(settings, clock.clone())
-        .await
-        .expect("the app builds");
-    let address = format!("http://{}", app.address());
-    let pool = app.pool();
-    tokio::spawn(app.run_until_stopped());
+    let TestApp {
+        address,
+        pool,
+        clock,
+        dir: db_dir,
+        ..
+    } = spawn_with(|s| {
+        s.demo = true;
+        s.public_read = reading == Reading::Public;
+    })
+    .await;
 
     let (webdriver_url, mut process) = start_chromedriver().await;
     let dir = screenshot_dir();

@@ -97,7 +97,7 @@ struct Outcome {
 /// broke.
 async fn upload(browser: &mut Browser, csv: &str) -> Result<(u16, String), String> {
     browser
-        .try_post_file("/submissions/upload", "file", "bulk.csv", csv)
+        .try_post_file("/submissions/upload", &[], "file", "bulk.csv", csv)
         .await
         .map(|r| (r.status, r.body))
         .map_err(|e| e.to_string())
