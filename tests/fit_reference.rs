@@ -230,7 +230,7 @@ fn censoring_sample(limit: f64) -> (Vec<Point>, Vec<Point>) {
 
 #[test]
 fn censored_term_matches_the_published_toy_values() {
-    // Science notes §2.2 and §7 row 20, computed from the formula: with x = x0, σ_x = 0 the
+    // docs/methods.md §2.2 and §7 row 20, computed from the formula: with x = x0, σ_x = 0 the
     // limit contributes ln Φ((y_ul − α)/ε): α = 8, β = 4, ε = 0.4, y_ul = 8 → ln Φ(0) =
     // −0.693147; Gültekin et al. 2009 "all" (α 8.12, β 4.24, ε 0.44), y_ul = 7.5 →
     // ln Φ(−1.40909) = −2.533205. Checked through the sampler's likelihood handle: the
@@ -280,7 +280,7 @@ fn hogg_table() -> Vec<Point> {
 
 #[test]
 fn hogg_table_likelihood_agrees_with_the_ml_oracle() {
-    // Science notes §2.9 item 4 / §7 row 17, computed from the §2.1 formula (not published):
+    // docs/methods.md §2.9 computed oracle 4 / §7 row 17, computed from the §2.1 formula (not published):
     // ML on all 20 Hogg et al. (2010) points: α 298.9693, β 0.678815, ε 84.9930,
     // −2 ln L 237.447860. At the optimum −2 ln L is first-order insensitive to the rounding
     // of the quoted parameters, so the sampler's likelihood handle must reproduce it.

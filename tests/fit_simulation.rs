@@ -7,13 +7,14 @@
 //!
 //! Expected behaviour:
 //!
-//! * Structural likelihood (Kelly 2007, ApJ 665, 1489): no slope dilution. Science notes §2.6
-//!   (computed there from simulations like these, [C]): slope bias −0.02 ± 0.03.
+//! * Structural likelihood (Kelly 2007, ApJ 665, 1489): no slope dilution under its Gaussian model
+//!   of the true x. docs/methods.md §2.6 (computed there from simulations like these): slope bias
+//!   −0.02 ± 0.03.
 //! * Conditional likelihood: the slope is attenuated by about τ²/(τ² + ⟨σ_x²⟩) (regression
 //!   dilution; e.g. Akritas & Bershady 1996, §1 — from memory). Here ⟨σ_x²⟩ =
 //!   (0.01² + 0.01·0.035 + 0.035²)/3 = 5.58e-4 dex² and τ² = 0.0196, so the expected bias is
 //!   −4.5 · 5.58e-4/(0.0196 + 5.58e-4) = −0.125 [computed from that formula]; docs/methods.md §2.6
-//!   quotes −0.14 ± 0.03 [C]. The two agree within that error.
+//!   quotes −0.14 ± 0.03 (computed). The two agree within that error.
 //! * 68 % intervals from the inverse Hessian should cover the truth in 68 % of samples; with
 //!   200 samples the binomial standard error is 3.3 %, so 60–76 % (±2.5 s.e.) is accepted.
 

@@ -449,7 +449,7 @@ mod tests {
 
     #[test]
     fn user_names_are_a_narrow_readable_set() {
-        for ok in ["ada", "demo-admin", "j.smith_2"] {
+        for ok in ["quill", "demo-admin", "j.smith_2"] {
             assert!(validate_username(ok).is_ok(), "{ok}");
         }
         for bad in [

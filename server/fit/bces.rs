@@ -289,7 +289,7 @@ mod tests {
 
     #[test]
     fn hogg_points_5_to_20_without_error_covariance() {
-        // Science notes §2.9 item 5 [C] (Akritas & Bershady 1996 formulas on Hogg, Bovy & Lang
+        // docs/methods.md §2.9, computed oracle 5 (computed; Akritas & Bershady 1996 formulas on Hogg, Bovy & Lang
         // 2010 Table 1, points 5–20, V12 = 0): (β ± σ, α ± σ)
         let expect = [
             (BcesLine::YOnX, 2.279_051, 0.150_540, 18.3767, 26.2205),
@@ -312,7 +312,7 @@ mod tests {
 
     #[test]
     fn hogg_points_5_to_20_with_error_covariance() {
-        // Science notes §2.9 item 5 [C], V12 = ρ σx σy: β ± σ_β (α).
+        // docs/methods.md §2.9, computed oracle 6 (computed), V12 = ρ σx σy: β ± σ_β (α).
         let expect = [
             (BcesLine::YOnX, 2.276_782, 0.160_079, 18.7573),
             (BcesLine::XOnY, 2.242_605, 0.145_106, 24.4905),

@@ -76,7 +76,7 @@ pub struct Offset {
 /// None.
 ///
 /// # References
-/// Science notes §6 (outlier review, common practice).
+/// docs/methods.md §6 (outlier review, common practice).
 pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
     points
         .iter()
@@ -185,7 +185,7 @@ pub fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Influence>,
 /// [`FitError::Unsupported`] if the Hessian gives no error for δ.
 ///
 /// # References
-/// Science notes §6 (subsample splits, e.g. McConnell & Ma 2013 early vs late types).
+/// docs/methods.md §6 (subsample splits, e.g. McConnell & Ma 2013 early vs late types).
 pub fn zero_point_offset(a: &[Point], b: &[Point], spec: &FitSpec) -> Result<Offset, FitError> {
     if !matches!(spec.method, Method::Structural | Method::Conditional) {
         return Err(FitError::Unsupported {

@@ -424,7 +424,7 @@ mod tests {
 
     #[test]
     fn hogg_all_twenty_matches_the_tremaine_oracle() {
-        // Science notes §2.9 item 4 [C] (Tremaine et al. 2002 procedure on Hogg, Bovy & Lang
+        // docs/methods.md §2.9, computed oracle 3 (computed; Tremaine et al. 2002 procedure on Hogg, Bovy & Lang
         // 2010 Table 1, σx and σy, ρ ignored): ε0 = 92.1067, α = 298.9081, β = 0.681171;
         // Δχ² = 1 slope interval −0.3950/+0.3972.
         let f = fit(&hogg(1), &spec0()).expect("fit");
@@ -461,7 +461,7 @@ mod tests {
 
     #[test]
     fn hogg_points_5_to_20_need_no_scatter() {
-        // Science notes §2.9 item 3 [C]: χ²/(N−2) = 0.957745 < 1 at ε0 = 0, so ε0 = 0;
+        // docs/methods.md §2.9, computed oracle 1 (computed): χ²/(N−2) = 0.957745 < 1 at ε0 = 0, so ε0 = 0;
         // α = 21.0345, β = 2.299771.
         let f = fit(&hogg(5), &spec0()).expect("fit");
         assert!(f.params.eps.abs() < 1e-15);
@@ -473,8 +473,8 @@ mod tests {
 
     #[test]
     fn with_no_x_errors_and_no_scatter_fitexy_is_weighted_least_squares() {
-        // Hogg, Bovy & Lang 2010 exercise 1 (points 5–20, σ_y only), recomputed [C] in science
-        // notes §2.9 item 1: slope 2.239921 ± 0.107780, intercept 34.0477 ± 18.2462,
+        // Hogg, Bovy & Lang 2010 exercise 1 (points 5–20, σ_y only), recomputed in
+        // docs/methods.md §2.9 (computed): slope 2.239921 ± 0.107780, intercept 34.0477 ± 18.2462,
         // cov = −1.88954 (published 2.24 ± 0.11, 34 ± 18, from memory).
         let f = fit_fixed_scatter(&hogg_y_only(5), &spec0(), 0.0).expect("fit");
         assert!((f.params.beta - 2.239_921).abs() < 1e-6, "{:?}", f.params);
@@ -482,7 +482,7 @@ mod tests {
         assert!((f.params.alpha - 34.0477).abs() < 1e-4);
         assert!((f.errors.alpha - 18.2462).abs() < 1e-4);
         assert!((f.covariance("alpha", "beta").unwrap_or(0.0) - (-1.889_54)).abs() < 1e-3);
-        // Exercise 2 (all 20 points): 1.076748 ± 0.077407, 213.2735 ± 14.3940 [C].
+        // Exercise 2 (all 20 points): 1.076748 ± 0.077407, 213.2735 ± 14.3940 (computed).
         let f = fit_fixed_scatter(&hogg_y_only(1), &spec0(), 0.0).expect("fit");
         assert!((f.params.beta - 1.076_748).abs() < 1e-6);
         assert!((f.errors.beta - 0.077_407).abs() < 1e-6);
@@ -492,7 +492,7 @@ mod tests {
 
     #[test]
     fn pearson_york_data_reproduce_york_at_zero_scatter() {
-        // Science notes §2.9 item 2 [C]: FITEXY at ε0 = 0 on Pearson (1901) data with York
+        // docs/methods.md §2.9, the Pearson–York data (computed): FITEXY at ε0 = 0 on Pearson (1901) data with York
         // (1966, Can. J. Phys. 44, 1079) weights: slope −0.4805334, intercept 5.4799102,
         // χ² = 11.86635; York's exact solution −0.480533, 5.479910 (from memory).
         let f = fit_fixed_scatter(&pearson_york(), &spec0(), 0.0).expect("fit");

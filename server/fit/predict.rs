@@ -121,7 +121,7 @@ fn core(fit: &Fit, x: f64, x_err: f64, x2: Option<(f64, f64)>) -> Prediction {
 /// a negative `x_err`, [`FitError::Unsupported`] for a planar fit (use [`predict_plane`]).
 ///
 /// # References
-/// Science notes §6 (prediction variance, common practice); Isobe et al. 1990, ApJ 364, 104.
+/// docs/methods.md §6 (prediction variance, common practice); Isobe et al. 1990, ApJ 364, 104.
 pub fn predict(fit: &Fit, x: f64, x_err: f64) -> Result<Prediction, FitError> {
     check_finite(&[("x", x), ("x_err", x_err)])?;
     check_error("x_err", x_err)?;
@@ -147,7 +147,7 @@ pub fn predict(fit: &Fit, x: f64, x_err: f64) -> Result<Prediction, FitError> {
 /// fit is not planar.
 ///
 /// # References
-/// Science notes §2.7 and §6.
+/// docs/methods.md §2.7 and §6.
 pub fn predict_plane(
     fit: &Fit,
     x: f64,
@@ -182,7 +182,7 @@ pub fn predict_plane(
 /// y_err.
 ///
 /// # References
-/// Science notes §6 (outlier review, |z| > 2 / > 3, common practice).
+/// docs/methods.md §6 (outlier review, |z| > 2 / > 3, common practice).
 pub fn place(
     fit: &Fit,
     x: f64,
@@ -346,7 +346,7 @@ mod tests {
 
     #[test]
     fn predictions_of_published_m_sigma_relations() {
-        // Science notes §7 rows 11–12 [C] from Gültekin et al. 2009 (8.12, 4.24), Tremaine et
+        // docs/methods.md §7 rows 11–12 (computed) from Gültekin et al. 2009 (8.12, 4.24), Tremaine et
         // al. 2002 (8.13, 4.02), McConnell & Ma 2013 (8.32, 5.64), pivot 200 km/s:
         // log M at σ = 100 km/s: 6.8436, 6.9199, 6.6222; at 300 km/s: 8.8666 (G09), 9.3132 (MM13).
         let g09 = published(8.12, 4.24, 0.44);

@@ -113,7 +113,7 @@ impl Point {
     /// None here; fits refuse |σ_xy| > σ_x σ_y with FitError::InvalidSetting.
     ///
     /// # References
-    /// Science notes §3.2 (shared distance errors correlate log M and log L).
+    /// docs/methods.md §3.2 (shared distance errors correlate log M and log L).
     pub fn with_xy_cov(mut self, xy_cov: f64) -> Point {
         self.xy_cov = xy_cov;
         self
@@ -130,7 +130,7 @@ impl Point {
     /// None.
     ///
     /// # References
-    /// Science notes §2.7 (planar fits).
+    /// docs/methods.md §2.7 (planar fits).
     pub fn with_x2(mut self, x2: f64, x2_err: f64) -> Point {
         self.x2 = Some(x2);
         self.x2_err = x2_err;
@@ -340,7 +340,7 @@ impl FitSpec {
     /// ```
     ///
     /// # References
-    /// Science notes §2.7.
+    /// docs/methods.md §2.7.
     pub fn with_pivot2(mut self, pivot2: f64) -> Result<FitSpec, FitError> {
         if !pivot2.is_finite() {
             return Err(FitError::InvalidSetting {

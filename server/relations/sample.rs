@@ -352,7 +352,7 @@ mod tests {
         );
         assert_eq!(s.points.len(), 1);
         let p = &s.points[0];
-        // Science notes §3.2 / §7 row 30: 16.5 → 18 Mpc multiplies a dynamical mass by
+        // docs/methods.md §3.2 / §7 row 30: 16.5 → 18 Mpc multiplies a dynamical mass by
         // 1.090909 (computed from M ∝ D).
         assert_close(10f64.powf(p.y - 8.0), 1.090_909, 1e-6);
         // σ_logD = 1.8 / (18 ln 10); σ_y = √(0.1² + σ_logD²) (docs/methods.md §3.2, computed).

@@ -743,7 +743,7 @@ mod tests {
         reason = "the published check value is ln 2 rounded to 6 places"
     )]
     fn censored_term_matches_the_toy_check_values() {
-        // Science notes §2.2 toy check, computed from the formula: ln Φ(0) = −0.693147 and
+        // docs/methods.md §2.2 toy check, computed from the formula: ln Φ(0) = −0.693147 and
         // ln Φ((7.5 − 8.12)/0.44) = −2.533205 (Gültekin et al. 2009 "all" parameters).
         assert!((ln_norm_cdf(0.0) - (-0.693_147)).abs() < 1e-6);
         assert!((ln_norm_cdf((7.5 - 8.12) / 0.44) - (-2.533_205)).abs() < 1e-6);
@@ -768,7 +768,7 @@ mod tests {
 
     #[test]
     fn hogg_all_twenty_matches_the_computed_ml_oracle() {
-        // Science notes §2.9 item 4 [C] (computed from §2.1 on Hogg, Bovy & Lang 2010 Table 1,
+        // docs/methods.md §2.9, computed oracle 4 (computed computed from §2.1 on Hogg, Bovy & Lang 2010 Table 1,
         // σx and σy, ρ ignored): α 298.9693, β 0.678815, ε 84.9930, −2lnL 237.447860;
         // Hessian errors σ_α ≈ 66.67, σ_β ≈ 0.3658, σ_ε ≈ 15.43.
         let f = fit(&hogg(1), &spec0()).expect("fit");
@@ -789,7 +789,7 @@ mod tests {
 
     #[test]
     fn hogg_points_5_to_20_sit_on_the_eps_boundary() {
-        // Science notes §2.9 item 3 [C]: ML hits ε = 0; β 2.249097, α 29.7321, −2lnL 149.282534.
+        // docs/methods.md §2.9, computed oracle 2 (computed): ML hits ε = 0; β 2.249097, α 29.7321, −2lnL 149.282534.
         let f = fit(&hogg(5), &spec0()).expect("fit");
         let p = &f.params;
         assert!(p.eps.abs() < 1e-12, "{p:?}");

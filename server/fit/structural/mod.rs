@@ -984,7 +984,7 @@ mod tests {
 
     #[test]
     fn tiny_x_errors_make_structural_and_conditional_agree() {
-        // Science notes §2.1: with σ_x ≪ the spread of x the two likelihoods agree closely.
+        // docs/methods.md §2.1: with σ_x ≪ the spread of x the two likelihoods agree closely.
         let s = Sim {
             n: 120,
             x_err: 0.001,
