@@ -208,6 +208,9 @@ pub struct Asked {
 /// Draws an error answer for one door.
 pub type Renderer = fn(&AppError, &Asked) -> Response;
 
+/// Each door's test of whether it owns a path, with its renderer.
+type Renderers = Arc<[(fn(&str) -> bool, Renderer)]>;
+
 /// One door of the service: its routes, which paths it owns (its error answers, and the 404 of
 /// paths no route serves), how it draws errors, and layers of its own around its routes.
 pub struct Door {
@@ -305,7 +308,7 @@ async fn time_limit(timeout: Duration, request: Request, next: Next) -> Response
 /// draws paths no door claims), keeping the headers the error carried (`Allow`, `Retry-After`,
 /// cookies), and log the error once.
 async fn render_errors(
-    renderers: Arc<[(fn(&str) -> bool, Renderer)]>,
+    renderers: Renderers,
     request: Request,
     next: Next,
 ) -> Response {
@@ -374,7 +377,7 @@ fn with_baseline(
     timeout: Duration,
     largest_body_bytes: usize,
     secure: bool,
-    renderers: Arc<[(fn(&str) -> bool, Renderer)]>,
+    renderers: Renderers,
 ) -> Router {
     let mut app = app
         .layer(axum::middleware::from_fn(move |req, next| {
@@ -433,7 +436,7 @@ mod tests {
     use tower::ServiceExt;
 
     /// A door drawing every error as its status and message in plain text, owning `/t/`.
-    fn test_renderers() -> Arc<[(fn(&str) -> bool, Renderer)]> {
+    fn test_renderers() -> Renderers {
         fn owns(path: &str) -> bool {
             path.starts_with("/t/")
         }
@@ -449,8 +452,7 @@ mod tests {
             )
                 .into_response()
         }
-        let renderers: Vec<(fn(&str) -> bool, Renderer)> = vec![(owns, render)];
-        renderers.into()
+        Arc::new([(owns as fn(&str) -> bool, render as Renderer)])
     }
 
     fn slow_app(timeout: Duration, secure: bool) -> Router {
