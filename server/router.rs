@@ -307,11 +307,7 @@ async fn time_limit(timeout: Duration, request: Request, next: Next) -> Response
 /// Draw an error answer with the renderer of the door that owns the path (the last door
 /// draws paths no door claims), keeping the headers the error carried (`Allow`, `Retry-After`,
 /// cookies), and log the error once.
-async fn render_errors(
-    renderers: Renderers,
-    request: Request,
-    next: Next,
-) -> Response {
+async fn render_errors(renderers: Renderers, request: Request, next: Next) -> Response {
     let path = request.uri().path().to_owned();
     let target = request
         .uri()
