@@ -13,12 +13,87 @@ use std::collections::HashMap;
 
 use sqlx::SqlitePool;
 
-use super::demo::{Record, RowError, galaxy_from_cells, measurement_from_cells, records};
 use super::galaxies::{self, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
+use super::intake::{RowError, galaxy_from_cells, measurement_from_cells};
 use super::model::{NewGalaxy, NewMeasurement, Quantity, SubmissionState};
 use super::submissions::{self, GalaxyChoice, SubmissionError};
 use crate::auth::secret::sha256_hex;
+
+pub(super) type Record = HashMap<String, String>;
+
+/// Counts lines up to a byte offset, moving forward only (records come in order, so a whole
+/// file is counted once). The csv reader's own line numbers drift on CRLF line ends, which
+/// browsers send for every pasted text and spreadsheets write; counting `\n` is right for both.
+struct LineCounter<'a> {
+    text: &'a [u8],
+    at: usize,
+    line: u64,
+}
+
+impl LineCounter<'_> {
+    /// The 1-based line of the record that the reader places at `offset`. The reader's offset
+    /// may point at the line end before the record (it consumes it lazily), so line ends at
+    /// `offset` are stepped over first.
+    fn line_at(&mut self, offset: u64) -> u64 {
+        let mut offset = usize::try_from(offset)
+            .unwrap_or(usize::MAX)
+            .min(self.text.len());
+        while offset < self.text.len() && matches!(self.text[offset], b'\r' | b'\n') {
+            offset += 1;
+        }
+        if offset > self.at {
+            let newlines = self.text[self.at..offset]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count();
+            self.line += newlines as u64;
+            self.at = offset;
+        }
+        self.line
+    }
+}
+
+/// The records of a CSV text, each with the line it starts on (the header is line 1).
+///
+/// # Errors
+/// The first line the CSV reader refuses.
+pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
+    let mut lines = LineCounter {
+        text: text.as_bytes(),
+        at: 0,
+        line: 1,
+    };
+    let mut reader = csv::ReaderBuilder::new()
+        .trim(csv::Trim::All)
+        .from_reader(text.as_bytes());
+    let headers = reader
+        .headers()
+        .map_err(|e| RowError {
+            file,
+            line: 1,
+            column: "(header)",
+            message: e.to_string(),
+        })?
+        .clone();
+    let mut out = Vec::new();
+    for rec in reader.records() {
+        let rec = rec.map_err(|e| RowError {
+            file,
+            line: e.position().map_or(0, |p| lines.line_at(p.byte())),
+            column: "(row)",
+            message: e.to_string(),
+        })?;
+        let line = rec.position().map_or(0, |p| lines.line_at(p.byte()));
+        let map = headers
+            .iter()
+            .zip(rec.iter())
+            .map(|(h, v)| (h.to_string(), v.to_string()))
+            .collect();
+        out.push((line, map));
+    }
+    Ok(out)
+}
 
 /// The columns, in the order export writes them. `row_key` is optional on import (see
 /// [`ImportRow::row`]).

@@ -1,16 +1,252 @@
-//! Cells in, a checked submission or every cell at fault out. The submission form and the
-//! API read a submission's cells here, through the same cell readers as catalog files
-//! ([`crate::catalog::demo::measurement_from_cells`], hence `units::parse_entry`): a value typed
-//! in a script is read exactly as one typed in a form or a file. Each door names the cells its
-//! own way (`m0_value` on the form, `measurements[0].value` in JSON).
+//! Cells in, a checked submission or every cell at fault out. The cell readers
+//! ([`galaxy_from_cells`], [`measurement_from_cells`], through `units::parse_entry`) serve the
+//! submission form, the API, catalog files and the demo catalog alike: a value typed in a script
+//! is read exactly as one typed in a form or a file. [`check`] reads a whole submission for the
+//! form and the API, which name the cells their own way (`m0_value` on the form,
+//! `measurements[0].value` in JSON); [`store`] stores it once.
 
 use sqlx::SqlitePool;
 
-use super::demo::{galaxy_from_cells, measurement_from_cells};
-use super::galaxies::SubmissionSource;
-use super::galaxies::find_by_slug;
-use super::model::NewMeasurement;
+use super::galaxies::{SubmissionSource, find_by_slug};
+use super::model::{
+    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology, NewGalaxy,
+    NewMeasurement, Quantity, SigmaDefinition,
+};
 use super::submissions::{self, Created, GalaxyChoice, SubmissionError};
+use crate::units::{self, Scale};
+
+/// A row of a catalog CSV file that cannot be read; says where and why.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{file} line {line}, column '{column}': {message}")]
+pub struct RowError {
+    /// Which file.
+    pub file: &'static str,
+    /// Line number in the file (the header is line 1).
+    pub line: u64,
+    /// Column name.
+    pub column: &'static str,
+    /// What is wrong, one sentence.
+    pub message: String,
+}
+
+/// Read a galaxy from named cells (a CSV row or a form): `name`, `morphology`, `bulge_kind`,
+/// `centre_kind`, `distance_mpc`, `distance_err_mpc`, `distance_method`. `cell` returns the text
+/// of a column ("" when absent); errors carry `file`, `line` and the column.
+///
+/// # Errors
+/// The first cell that cannot be read.
+pub fn galaxy_from_cells<'a>(
+    file: &'static str,
+    line: u64,
+    cell: &impl Fn(&'static str) -> &'a str,
+) -> Result<NewGalaxy, RowError> {
+    let field = |column: &'static str| Field {
+        file,
+        line,
+        column,
+        text: cell(column),
+    };
+    galaxy_from_fields(&field)
+}
+
+/// Read a measurement from named cells (a CSV row or a form) through the entry parser:
+/// `quantity`, `value`, `scale`, `limit_confidence_sigma`, `method`, `sigma_definition`,
+/// `aperture`, `band`, `source_distance_mpc`, `resolution_arcsec`, `reference`, `note`.
+///
+/// # Errors
+/// The first cell that cannot be read.
+pub fn measurement_from_cells<'a>(
+    file: &'static str,
+    line: u64,
+    cell: &impl Fn(&'static str) -> &'a str,
+) -> Result<NewMeasurement, RowError> {
+    let field = |column: &'static str| Field {
+        file,
+        line,
+        column,
+        text: cell(column),
+    };
+    measurement_from_fields(&field)
+}
+
+pub(super) fn galaxy_from_fields<'a>(
+    field: &impl Fn(&'static str) -> Field<'a>,
+) -> Result<NewGalaxy, RowError> {
+    let name = field("name").required()?.to_string();
+    if name.chars().count() > 100 {
+        return Err(field("name").error("a name has at most 100 characters".into()));
+    }
+    let distance_mpc =
+        field("distance_mpc").number(units::DISTANCE_MIN_MPC, units::DISTANCE_MAX_MPC, "Mpc")?;
+    let distance_err_mpc = field("distance_err_mpc").number(0.0, distance_mpc, "Mpc")?;
+    if distance_err_mpc >= distance_mpc {
+        return Err(field("distance_err_mpc")
+            .error("the distance error must be smaller than the distance".into()));
+    }
+    Ok(NewGalaxy {
+        name,
+        morphology: field("morphology").word::<Morphology>()?,
+        bulge_kind: field("bulge_kind").word::<BulgeKind>()?,
+        centre_kind: field("centre_kind").word::<CentreKind>()?,
+        distance_mpc,
+        distance_err_mpc,
+        distance_method: field("distance_method").word::<DistanceMethod>()?,
+    })
+}
+
+/// Build a measurement from a row's named fields (shared by every catalog CSV reader).
+pub(super) fn measurement_from_fields<'a>(
+    field: &impl Fn(&'static str) -> Field<'a>,
+) -> Result<NewMeasurement, RowError> {
+    let quantity = field("quantity").measured_quantity()?;
+    let scale = match field("scale").text.trim() {
+        "" | "linear" => Scale::Linear,
+        "log10" => Scale::Log10,
+        "auto" => Scale::Auto,
+        other => {
+            return Err(field("scale").error(format!("'{other}' is not linear, log10 or auto")));
+        }
+    };
+    let value = field("value");
+    let entry =
+        units::parse_entry(value.text, quantity, scale).map_err(|e| value.error(e.to_string()))?;
+    let method = match quantity {
+        Quantity::BlackHoleMass => field("method").word::<MassMethod>()?.as_str(),
+        Quantity::BulgeMass => field("method").word::<BulgeMassMethod>()?.as_str(),
+        _ => field("method").empty_for(quantity)?,
+    };
+    let sigma_definition = match quantity {
+        Quantity::VelocityDispersion => field("sigma_definition")
+            .word::<SigmaDefinition>()?
+            .as_str(),
+        _ => field("sigma_definition").empty_for(quantity)?,
+    };
+    let band = match quantity {
+        Quantity::BulgeLuminosity => field("band").required()?,
+        _ => field("band").empty_for(quantity)?,
+    };
+    let confidence = field("limit_confidence_sigma");
+    let limit_confidence_sigma = match (confidence.text.trim(), entry.upper_limit) {
+        ("", _) => None,
+        ("1", true) => Some(1.0),
+        ("2", true) => Some(2.0),
+        ("3", true) => Some(3.0),
+        (_, false) => {
+            return Err(confidence.error("a confidence level is only for an upper limit".into()));
+        }
+        (other, true) => {
+            return Err(confidence.error(format!("'{other}' is not 1, 2 or 3 (sigma)")));
+        }
+    };
+    let aperture = field("aperture").text.trim();
+    let reference = field("reference").text.trim();
+    let note = field("note").text.trim();
+    for (column, text, max) in [
+        ("aperture", aperture, 100),
+        ("reference", reference, 300),
+        ("note", note, NOTE_MAX_CHARS),
+    ] {
+        if text.chars().count() > max {
+            return Err(field(column).error(format!("at most {max} characters")));
+        }
+    }
+    if band.chars().count() > 10 {
+        return Err(field("band").error("a band name has at most 10 characters".into()));
+    }
+    Ok(NewMeasurement {
+        quantity,
+        log_value: entry.log_value,
+        err_minus_dex: entry.err_minus_dex,
+        err_plus_dex: entry.err_plus_dex,
+        err_dex: entry.err_dex,
+        upper_limit: entry.upper_limit,
+        limit_confidence_sigma,
+        method: method.to_string(),
+        sigma_definition: sigma_definition.to_string(),
+        aperture: aperture.to_string(),
+        band: band.to_string(),
+        source_distance_mpc: field("source_distance_mpc").optional_number(
+            units::DISTANCE_MIN_MPC,
+            units::DISTANCE_MAX_MPC,
+            "Mpc",
+        )?,
+        resolution_arcsec: field("resolution_arcsec").optional_number(
+            units::RESOLUTION_MIN_ARCSEC,
+            units::RESOLUTION_MAX_ARCSEC,
+            "arcsec",
+        )?,
+        reference: reference.to_string(),
+        note: note.to_string(),
+        value_text: entry.text,
+        value_scale: match entry.scale_used {
+            Scale::Log10 => "log10",
+            _ => "linear",
+        }
+        .to_string(),
+    })
+}
+
+/// One cell of a row, with enough context to say where a problem is.
+pub(super) struct Field<'a> {
+    pub(super) file: &'static str,
+    pub(super) line: u64,
+    pub(super) column: &'static str,
+    pub(super) text: &'a str,
+}
+
+impl<'a> Field<'a> {
+    pub(super) fn error(&self, message: String) -> RowError {
+        RowError {
+            file: self.file,
+            line: self.line,
+            column: self.column,
+            message,
+        }
+    }
+
+    pub(super) fn required(&self) -> Result<&'a str, RowError> {
+        let t = self.text.trim();
+        if t.is_empty() {
+            Err(self.error("this column is required".into()))
+        } else {
+            Ok(t)
+        }
+    }
+
+    fn empty_for(&self, q: Quantity) -> Result<&'static str, RowError> {
+        if self.text.trim().is_empty() {
+            Ok("")
+        } else {
+            Err(self.error(format!("must be empty for a {}", q.label())))
+        }
+    }
+
+    fn word<T: std::str::FromStr<Err = String>>(&self) -> Result<T, RowError> {
+        self.required()?.parse().map_err(|e: String| self.error(e))
+    }
+
+    /// A measured quantity's stored word (`distance` and `resolution` are not measurements).
+    fn measured_quantity(&self) -> Result<Quantity, RowError> {
+        Quantity::parse_measured(self.required()?).map_err(|e| self.error(e))
+    }
+
+    fn number(&self, min: f64, max: f64, unit: &str) -> Result<f64, RowError> {
+        let t = self.required()?;
+        match t.parse::<f64>() {
+            Ok(v) if v.is_finite() && (min..=max).contains(&v) => Ok(v),
+            Ok(_) => Err(self.error(format!("{t} is outside {min}..{max} {unit}"))),
+            Err(_) => Err(self.error(format!("'{t}' is not a number"))),
+        }
+    }
+
+    fn optional_number(&self, min: f64, max: f64, unit: &str) -> Result<Option<f64>, RowError> {
+        if self.text.trim().is_empty() {
+            Ok(None)
+        } else {
+            self.number(min, max, unit).map(Some)
+        }
+    }
+}
 
 /// A message as one sentence: capital first letter, full stop at the end (the cell readers give lower-case fragments, e.g. "the value … is not a number").
 pub fn sentence(text: &str) -> String {

@@ -3,7 +3,7 @@
 //! relation). [`assess`] is shared with the review queue.
 //!
 //! Every typed value goes through the same cell readers as the catalog CSV files
-//! (`catalog::demo::measurement_from_cells`, hence `units::parse_entry`), so a form and a file
+//! (`catalog::intake::measurement_from_cells`, hence `units::parse_entry`), so a form and a file
 //! accept exactly the same things. A refused form comes back with what was typed and a message
 //! beside each field at fault; nothing is written unless every measurement is valid.
 

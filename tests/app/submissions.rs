@@ -455,7 +455,7 @@ async fn the_review_queue_is_paged_with_the_largest_z_first_across_pages() {
             ("scale", "log10".to_owned()),
             ("method", "gas_dynamics".to_owned()),
         ];
-        let m = massline::catalog::demo::measurement_from_cells("test", 0, &|c| {
+        let m = massline::catalog::intake::measurement_from_cells("test", 0, &|c| {
             cells
                 .iter()
                 .find(|(k, _)| *k == c)
