@@ -137,7 +137,7 @@ mod tests {
     #[test]
     fn gravitational_constant_in_parsec_units() {
         // docs/methods.md §5 / §7 row 26: G = 4.30091727e-3 pc M☉⁻¹ (km/s)², computed from IAU GM☉
-        // and the parsec; published elsewhere as 4.3009172706(3)e-3.
+        // and the parsec; commonly quoted as 4.3009172706e-3 (from memory, docs/methods.md §5).
         assert_rel(G_PC_KM2_S2_PER_MSUN, 4.300_917_27e-3, 1e-9);
     }
 

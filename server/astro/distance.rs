@@ -312,6 +312,8 @@ mod tests {
 
     #[test]
     fn distance_free_kinds_do_not_move() {
+        // docs/methods.md §3.2 table: σ and reverberation masses scale as D⁰; the inputs are
+        // invented.
         for kind in [
             DistanceScaling::VelocityDispersion,
             DistanceScaling::ReverberationMass,

@@ -235,6 +235,7 @@ mod tests {
     #[test]
     fn resolution_flag_follows_the_threshold() {
         // θ_infl = 0.22178″ (docs/methods.md §7 row 23): resolved by 0.1″ data, not by 0.5″ data.
+        // Ratios computed as θ_infl/θ_res: 0.22178/0.1 = 2.2178 and 0.22178/0.5 = 0.44356.
         let sharp = SphereOfInfluence::new(1.0e8, 200.0, 10.0, Some(0.1), 1.0).unwrap();
         assert_rel(sharp.ratio.unwrap(), 2.2178, 2e-5);
         assert_eq!(sharp.resolved, Some(true));

@@ -329,8 +329,8 @@ mod tests {
 
     #[test]
     fn scatter_is_the_excess_residual_variance() {
-        // ε² = Σ r²/(n − 2) − mean(σ_y² + β² σ_x²), the common-practice estimate of science
-        // notes §2.4, recomputed here from the fitted line.
+        // ε² = Σ r²/(n − 2) − mean(σ_y² + β² σ_x²), the common-practice estimate of
+        // docs/methods.md §2.4, recomputed here from the fitted line.
         let pts = hogg(1);
         let f = fit(&pts, &spec(BcesLine::YOnX)).expect("fit");
         let (a, b) = (f.params.alpha, f.params.beta);

@@ -813,8 +813,9 @@ pub(crate) mod test_data {
 
     impl Default for Sim {
         fn default() -> Sim {
-            // An M–σ-like sample: σ around 200 km/s (log 2.3 ± 0.12), errors as in science
-            // notes §2.6's simulation (σ errors ~0.03 dex).
+            // An invented M–σ-like sample: σ around 200 km/s (log 2.3 ± 0.12), errors of the
+            // size used by the simulation of docs/methods.md §2.6 (σ errors 0.01–0.035 dex
+            // there, 0.03 dex here).
             Sim {
                 n: 300,
                 alpha: 8.3,

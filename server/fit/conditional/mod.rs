@@ -768,9 +768,10 @@ mod tests {
 
     #[test]
     fn hogg_all_twenty_matches_the_computed_ml_oracle() {
-        // docs/methods.md §2.9, computed oracle 4 (computed computed from §2.1 on Hogg, Bovy & Lang 2010 Table 1,
-        // σx and σy, ρ ignored): α 298.9693, β 0.678815, ε 84.9930, −2lnL 237.447860;
-        // Hessian errors σ_α ≈ 66.67, σ_β ≈ 0.3658, σ_ε ≈ 15.43.
+        // docs/methods.md §2.9, computed oracle 4 (computed from §2.1 on Hogg, Bovy & Lang 2010
+        // Table 1, σx and σy, ρ ignored): α 298.9693, β 0.678815, ε 84.9930, −2lnL 237.447860;
+        // Hessian errors σ_α ≈ 66.67, σ_β ≈ 0.3658, σ_ε ≈ 15.43 (computed: square roots of the
+        // diagonal of the inverse Hessian of −ln L at that maximum, docs/methods.md §2.8).
         let f = fit(&hogg(1), &spec0()).expect("fit");
         let p = &f.params;
         assert!((p.alpha - 298.9693).abs() < 1e-3, "{p:?}");
@@ -781,7 +782,8 @@ mod tests {
         assert!(close(e.alpha, 66.67, 0.0, 2e-3), "{e:?}");
         assert!(close(e.beta, 0.3658, 0.0, 2e-3), "{e:?}");
         assert!(close(e.eps, 15.43, 0.0, 2e-3), "{e:?}");
-        // AIC/BIC from their definitions with k = 3, n = 20.
+        // AIC = −2 ln L + 2k, BIC = −2 ln L + k ln n (Akaike 1974; Schwarz 1978) with k = 3,
+        // n = 20.
         let l = f.neg2_log_l.unwrap_or(0.0);
         assert!((f.aic.unwrap_or(0.0) - (l + 6.0)).abs() < 1e-12);
         assert!((f.bic.unwrap_or(0.0) - (l + 3.0 * 20_f64.ln())).abs() < 1e-12);
