@@ -211,7 +211,8 @@ mod tests {
     fn bootstrap_sd_is_close_to_the_analytic_error_for_bces() {
         // For a well-behaved sample without limits the bootstrap sd of the BCES slope and the
         // Akritas & Bershady (1996) analytic error estimate the same quantity; with 400
-        // replicates and n = 60 they agree to ~25 % (common practice; AB96 §4 compare them).
+        // replicates and n = 60 they agree to ~25 % (common practice; Akritas & Bershady 1996
+        // compare the two, from memory).
         let points = sample_points(60, 0, 11);
         let spec = FitSpec::new(Method::Bces(BcesLine::YOnX), 2.30103);
         let full = super::super::fit(&points, &spec).unwrap();

@@ -622,8 +622,9 @@ mod tests {
 
     #[test]
     fn degenerate_samples_without_errors_give_errors_or_sensible_fits() {
-        // Points exactly on y = 8.8 + 4 (x − 2.3) with no errors: likelihoods are unbounded,
-        // FITEXY undefined; BCES returns the line itself.
+        // Invented points exactly on y = 8 + 4 (x − 2) = 9.2 + 4 (x − 2.3) with no errors:
+        // likelihoods are unbounded, FITEXY undefined; BCES returns the line itself (α = 9.2 at
+        // the pivot 2.3, computed).
         let exact: Vec<Point> = (0..10)
             .map(|i| {
                 let x = 2.0 + 0.05 * f64::from(i);
@@ -671,6 +672,9 @@ mod tests {
 
     #[test]
     fn minimum_sample_sizes_follow_the_documented_rule() {
+        // docs/methods.md §2: one detection more than the relation parameters (4 for a line, 5
+        // for a quadratic), 3 more per extra structural component (K = 3: 4 + 6 = 10), 3 for
+        // FITEXY and BCES.
         let s = |m| FitSpec::new(m, 0.0);
         assert_eq!(min_points(&s(Method::Conditional)), 4);
         assert_eq!(min_points(&s(Method::Structural)), 4);
@@ -704,7 +708,8 @@ mod tests {
             let c = compare_curvature(&pts, &FitSpec::new(m, s.pivot)).expect("compare");
             assert!(c.p_value > 0.01, "{m}: p = {}", c.p_value);
             assert!(c.delta_bic > 0.0, "{m}: ΔBIC = {}", c.delta_bic);
-            // ΔAIC = Λ·(−1) + 2 by definition of AIC with one extra parameter.
+            // ΔAIC = Λ·(−1) + 2 by definition of AIC with one extra parameter (docs/methods.md
+            // §2.7). p > 0.01 and ΔBIC > 0 are the project's thresholds for "no curvature".
             assert!((c.delta_aic - (2.0 - c.lr_statistic)).abs() < 1e-6);
         }
         assert!(matches!(
@@ -715,7 +720,8 @@ mod tests {
 
     #[test]
     fn curvature_comparison_detects_a_planted_quadratic_term() {
-        // Truth β2 = 8 dex/dex² over an x spread of 0.15 dex: 0.18 dex at 1 sd.
+        // Invented truth β2 = 8 dex/dex² over an x spread of 0.15 dex: 8 × 0.15² = 0.18 dex at
+        // 1 sd (computed).
         let s = Sim {
             n: 300,
             seed: 32,

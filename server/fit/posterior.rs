@@ -371,6 +371,9 @@ mod tests {
 
     #[test]
     fn priors_follow_the_documented_table() {
+        // docs/methods.md §2.8 prior table: α ∈ α̂ ± 10 (8.3 → [−1.7, 18.3]), β ∈ [−20, 20],
+        // ε ∈ [0, 3], μ ∈ μ̂ ± 10, 0 < τ ≤ 10, weights in [0, 1], β₂ ∈ [−50, 50]; the ML values
+        // are invented.
         let names = ["alpha", "beta", "eps", "mu_1", "tau_1", "w_1", "beta2"];
         let ml = [8.3, 4.5, 0.3, 2.3, 0.1, 0.5, 0.0];
         let p = prior_bounds(&names, &ml);

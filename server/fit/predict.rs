@@ -370,7 +370,9 @@ mod tests {
 
     #[test]
     fn prediction_variance_uses_the_parameter_covariance() {
-        // s_pred² = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) (docs/methods.md §6).
+        // s_pred² = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) (docs/methods.md §6). Var(α) = 0.08²
+        // and Var(β) = 0.41² are the Gültekin et al. 2009 errors (docs/methods.md §7 row 1); ε,
+        // Cov(α, β) and d are invented.
         let mut f = published(8.12, 4.24, 0.3);
         f.cov = vec![
             vec![0.0064, -0.002, 0.0],
@@ -387,6 +389,7 @@ mod tests {
     fn placement_and_limit_probability() {
         let f = published(8.12, 4.24, 0.44);
         let x = 200_f64.log10();
+        // Gültekin et al. 2009 "all" (docs/methods.md §7 row 1), no parameter covariance.
         // A mass 0.88 dex high with σ_y = 0: z = 0.88 / 0.44 = 2.
         let pl = place(&f, x, 0.0, 9.0, 0.0, false).expect("place");
         assert!((pl.residual_dex - 0.88).abs() < 1e-12 && (pl.z - 2.0).abs() < 1e-12);

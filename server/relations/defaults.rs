@@ -73,6 +73,8 @@ mod tests {
 
     #[test]
     fn default_pivot_follows_the_documented_rule() {
+        // Invented x values. σ-like x: x0 = log10 200 = 2.30103 (Tremaine et al. 2002 pivot);
+        // otherwise the median rounded to 0.5 (the rule above): median 10.9 → 11.0 (computed).
         let sigma = vec![
             Point::new(1.9, 0.02, 7.0, 0.1),
             Point::new(2.6, 0.02, 9.0, 0.1),

@@ -270,7 +270,8 @@ mod tests {
 
     #[test]
     fn pivots_and_labels_carry_units() {
-        // Tremaine et al. 2002: σ0 = 200 km/s.
+        // Tremaine et al. 2002: σ0 = 200 km/s; bulge pivot 10¹¹ M☉ (common practice,
+        // docs/methods.md §1).
         assert!((10f64.powf(Relation::MSigma.default_pivot()) - 200.0).abs() < 1e-9);
         assert!((Relation::MBulge.default_pivot() - 11.0).abs() < 1e-12);
         assert!(Relation::MSigma.x_label().contains("km/s"));

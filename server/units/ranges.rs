@@ -86,6 +86,7 @@ mod tests {
 
     #[test]
     fn range_ends_are_accepted_and_just_beyond_refused() {
+        // The ends are the project's plausibility bounds above, each documented with its reason.
         use Quantity as Q;
         let inside: &[(&str, Quantity, Scale)] = &[
             ("log 3", Q::BlackHoleMass, Scale::Auto),

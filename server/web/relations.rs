@@ -1347,8 +1347,8 @@ mod tests {
         );
         let band = mean_band(&fit, 2.0, 2.6);
         assert_eq!(band.len(), BAND_SAMPLES);
-        // At x = 2.0, d = −0.3: Var = 0.0025 + 0.09·0.09 + 2·(−0.3)·0.003 = 0.0088 (science
-        // notes §6, computed).
+        // Invented fit and covariance. At x = 2.0, d = −0.3: Var = 0.0025 + 0.09·0.09
+        // + 2·(−0.3)·0.003 = 0.0088 (docs/methods.md §6, computed); centre 8.3 + 5·(−0.3) = 6.8.
         let first = band[0];
         let half = (first.upper - first.lower) / 2.0;
         assert!((half - 0.0088f64.sqrt()).abs() < 1e-12, "{half}");
