@@ -508,7 +508,7 @@ fn the_line_passes_through_the_pivot_at_alpha() {
 #[test]
 fn every_vertex_of_a_curved_line_lies_on_the_relation() {
     // Log-quadratic relation (β₂ as in Wyithe 2006, MNRAS 365, 1082: β = 4.2, β₂ = 1.6 on the
-    // pivot-200 km/s scale, from memory; docs/methods.md §1.1).
+    // pivot-200 km/s scale, abstract; docs/methods.md §1.1); α = 8.3 and ε = 0.3 invented.
     let mut chart = small_chart();
     let line = LineSpec {
         alpha: 8.3,
@@ -1142,7 +1142,8 @@ fn relation_formula_matches_the_power_law() {
     };
     assert!((line.y_at(200f64.log10() + 0.1) - 8.884).abs() < 1e-12);
     assert!((line.y_at(line.pivot) - 8.32).abs() < 1e-12);
-    // Log-quadratic term adds β₂ (x − x₀)² (W06 form): 1.6 × 0.01 = 0.016 at Δx = 0.1.
+    // Log-quadratic term adds β₂ (x − x₀)² (Wyithe 2006 form, β₂ = 1.6): 1.6 × 0.01 = 0.016 at
+    // Δx = 0.1, so 8.884 + 0.016 = 8.9 (computed).
     let curved = LineSpec {
         beta2: Some(1.6),
         ..line
