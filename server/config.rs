@@ -221,6 +221,7 @@ mod tests {
 
     #[test]
     fn soi_threshold_must_be_positive_and_finite() {
+        // The project's accepted range 0 < X ≤ 100 (docs/methods.md §3.1).
         assert!((parse_soi_threshold("2").unwrap() - 2.0).abs() < 1e-12);
         for bad in ["0", "-1", "nan", "inf", "1000", "x"] {
             assert!(
