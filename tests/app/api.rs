@@ -348,12 +348,15 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
         "{r}"
     );
     let lo95 = r["interval95_low_log_mbh"].as_f64().unwrap();
+    // 1.959964: the standard normal 97.5 % quantile (docs/methods.md §6).
     assert!((lo95 - (y_hat - 1.959_964 * s2.sqrt())).abs() < 1e-5);
-    // z = r / √(s_pred² + σ_y²) with the mass error in dex.
+    // z = r / √(s_pred² + σ_y²) (docs/methods.md §6) with the mass error in dex, the mean of
+    // u and l (docs/methods.md §2.5 option 1).
     let y_err = (((1.1e9f64).log10() - 9.0) + (9.0 - (0.9e9f64).log10())) / 2.0;
     let z = (9.0 - y_hat) / (s2 + y_err * y_err).sqrt();
     assert!((r["z"].as_f64().unwrap() - z).abs() < 1e-6, "{r} vs {z}");
     assert!((r["residual_dex"].as_f64().unwrap() - (9.0 - y_hat)).abs() < 1e-9);
+    // Verdict thresholds |z| ≥ 3 outlier, ≥ 2 in tension (common practice, docs/methods.md §6).
     let verdict = if z.abs() >= 3.0 {
         "outlier"
     } else if z.abs() >= 2.0 {
@@ -363,8 +366,10 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
     };
     assert_eq!(r["verdict"], verdict);
     assert!(r["prob_below_limit"].is_null());
-    // The sphere of influence: r_infl = G M / σ² (docs/methods.md §3.1; ≈ 68.7 pc for 10^9 M☉ at
-    // 250 km/s, computed from G = 4.3009e-3 pc M☉⁻¹ (km/s)², and θ = r / D).
+    // The sphere of influence: r_infl = G M / σ² (docs/methods.md §3.1; 68.81 pc for 10^9 M☉ at
+    // 250 km/s, computed from G = 4.3009e-3 pc M☉⁻¹ (km/s)², and θ = r / D with
+    // 206 264.806″ per radian). G is rounded from 4.30091727e-3 (docs/methods.md §5); the
+    // 0.1 pc tolerance covers the rounding.
     let soi = &v["object"]["sphere_of_influence"];
     let radius = soi["radius_pc"].as_f64().unwrap();
     assert!(

@@ -555,6 +555,7 @@ async fn the_distance_error_widens_the_z_of_a_submission() {
         (r0 - r1).abs() < 1e-9,
         "the residual does not depend on the distance error"
     );
+    // z > 2: beyond the "in tension" threshold (common practice, docs/methods.md §6).
     assert!(z0 > 2.0, "a mass far above the relation: z = {z0}");
     assert!(z1 < z0, "a 40 % distance error lowers z: {shown:?}");
     // z = r / √V; the larger distance error adds Δ = σ_logD₁² − σ_logD₀² to V, with

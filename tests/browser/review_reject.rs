@@ -11,7 +11,8 @@ use crate::support::{self, MassSubmission, PAYLOADS, Reading, TEST_PASSWORD};
 const QUEUED: usize = 24;
 
 /// A catalog file of `n` invented galaxies whose masses lie on the M–σ relation
-/// (log M = 8.3 + 5 (log σ − log 200), close to the demo's fit).
+/// (log M = 8.3 + 5 (log σ − log 200), the demo model of seed-data/README.md, close to the
+/// demo's fit).
 fn queue_filler(n: usize) -> String {
     let mut text = String::from(
         "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,scale,method,sigma_definition,aperture,source_distance_mpc,resolution_arcsec,reference\n",
