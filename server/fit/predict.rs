@@ -448,6 +448,7 @@ mod tests {
         let n = z.len() as f64;
         let m = z.iter().sum::<f64>() / n;
         let sd = (z.iter().map(|v| (v - m).powi(2)).sum::<f64>() / n).sqrt();
+        // Bounds of 0.15 on the mean and 0.1 on the sd are the project's margins.
         assert!(m.abs() < 0.15 && (sd - 1.0).abs() < 0.1, "mean {m} sd {sd}");
         // Limits were placed 0.1–0.6 dex above the true mass: most should be likely upper bounds.
         let probs: Vec<f64> = r.iter().filter_map(|r| r.prob_below_limit).collect();
