@@ -5,11 +5,11 @@
 #   1. GET /api/v1/place?…            placing one object (σ, mass, distance, resolution)
 #   2. GET /api/v1/relations/m_sigma  reading the M–σ fit
 #   3. GET /api/v1/place?…            the same with an API token (each use is looked up and its
-#                                     last-used time written, see DEVELOPERS.md)
+#                                     last-used time written, see benches/README.md)
 #   4. POST /api/v1/place             a batch of 100 objects with the token
 #                                     (benches/api_place_batch.lua)
 # The project's targets: ≥ 10,000 requests/s with p99 < 10 ms placing one object, ≥ 10,000
-# requests/s reading a fit. Results go in DEVELOPERS.md ("API speed").
+# requests/s reading a fit. Results go in benches/README.md ("The JSON API under load").
 #
 #   benches/api_load.sh [seconds per run, default 15] [connections, default 32]
 #

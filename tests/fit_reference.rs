@@ -229,7 +229,7 @@ fn censoring_sample(limit: f64) -> (Vec<Point>, Vec<Point>) {
 }
 
 #[test]
-fn censored_term_matches_the_published_toy_values() {
+fn censored_term_matches_the_computed_toy_values() {
     // docs/methods.md §2.2 and §7 row 20, computed from the formula: with x = x0, σ_x = 0 the
     // limit contributes ln Φ((y_ul − α)/ε): α = 8, β = 4, ε = 0.4, y_ul = 8 → ln Φ(0) =
     // −0.693147; Gültekin et al. 2009 "all" (α 8.12, β 4.24, ε 0.44), y_ul = 7.5 →

@@ -137,7 +137,7 @@ fn log_values_are_read_from_the_word_or_the_chosen_scale() {
 }
 
 #[test]
-fn errors_convert_to_dex_as_science_md_section_2_5_option_1() {
+fn errors_convert_to_dex_as_methods_section_2_5_option_1() {
     // Expected values computed with Python's math.log10 from docs/methods.md §2.5 option 1:
     // u = log10((M + δ₊)/M), l = log10(M/(M − δ₋)). For 3.2e9 +0.5e9 −0.3e9:
     // u = log10(3.7/3.2), l = log10(3.2/2.9).
