@@ -481,23 +481,33 @@ pub async fn place(
 }
 
 /// The object against every relation it has values for, side by side on the cores (each
-/// relation's refit on its own task), in the relations' order.
+/// relation's refit on its own task), in the relations' order; `then` runs on each placement in
+/// its task (the place page draws the relation's chart there, so the charts are drawn side by
+/// side too).
 ///
 /// # Errors
 /// As [`place`].
-pub async fn place_everywhere(
+pub async fn place_everywhere<T, F>(
     catalog: &Catalog,
     relations: Vec<Relation>,
     values: &ObjectValues,
     name: &str,
-) -> AppResult<Vec<Placement>> {
+    then: F,
+) -> AppResult<Vec<T>>
+where
+    T: Send + 'static,
+    F: Fn(Placement) -> T + Clone + Send + 'static,
+{
     let mut tasks = tokio::task::JoinSet::new();
     for (index, relation) in relations.into_iter().enumerate() {
         let Some(subject) = values.subject(&relation, name) else {
             continue;
         };
-        let catalog = catalog.clone();
-        tasks.spawn(async move { (index, place(&catalog, &relation, &subject, true).await) });
+        let (catalog, then) = (catalog.clone(), then.clone());
+        tasks.spawn(async move {
+            let placed = place(&catalog, &relation, &subject, true).await;
+            (index, placed.map(then))
+        });
     }
     let mut done = Vec::new();
     while let Some(joined) = tasks.join_next().await {

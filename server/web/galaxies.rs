@@ -331,7 +331,7 @@ pub(crate) async fn show_galaxy(
             .unwrap_or(&r.created_at)
             .replace('T', " ");
     }
-    let (rows, charts) = super::place::views(&left_out.placements);
+    let (rows, charts) = super::place::views(&left_out.placements).await?;
     Ok(GalaxyShowPage {
         nav,
         name: galaxy.name.clone(),

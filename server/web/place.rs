@@ -110,14 +110,18 @@ pub(crate) async fn show_place(
         .collect();
     let (values, faults) = read_object(&texts, &bands);
     let asked = !texts.is_empty();
-    let placements = if asked {
+    let placed = if asked {
         let relations = Relation::all(&bands);
-        place_everywhere(&state.catalog(), relations, &values, "this object").await?
+        place_everywhere(&state.catalog(), relations, &values, "this object", |p| {
+            (row(&p), chart(&p))
+        })
+        .await?
     } else {
         Vec::new()
     };
     let (soi, soi_note) = soi_view(&values, state.settings.soi_threshold);
-    let (rows, charts) = views(&placements);
+    let (rows, charts): (Vec<PlaceRow>, Vec<Option<PlaceChart>>) = placed.into_iter().unzip();
+    let charts = charts.into_iter().flatten().collect();
     let fault = |name: &str| {
         faults
             .iter()
@@ -249,11 +253,24 @@ fn soi_view(values: &ObjectValues, threshold: f64) -> (Option<SoiView>, Option<S
     }
 }
 
-/// Rows and charts of placements, the placed object highlighted on each chart.
-pub(crate) fn views(placements: &[Placement]) -> (Vec<PlaceRow>, Vec<PlaceChart>) {
+/// Rows and charts of placements, the placed object highlighted on each chart. The charts
+/// (about a millisecond each) are drawn side by side on the blocking pool, in the placements'
+/// order.
+///
+/// # Errors
+/// When a drawing task fails.
+pub(crate) async fn views(placements: &[Placement]) -> AppResult<(Vec<PlaceRow>, Vec<PlaceChart>)> {
     let rows = placements.iter().map(row).collect();
-    let charts = placements.iter().filter_map(chart).collect();
-    (rows, charts)
+    let tasks: Vec<_> = placements
+        .iter()
+        .cloned()
+        .map(|p| tokio::task::spawn_blocking(move || chart(&p)))
+        .collect();
+    let mut charts = Vec::with_capacity(tasks.len());
+    for task in tasks {
+        charts.extend(task.await.map_err(anyhow::Error::from)?);
+    }
+    Ok((rows, charts))
 }
 
 fn interval(bounds: (f64, f64)) -> String {

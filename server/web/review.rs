@@ -107,7 +107,7 @@ pub(crate) async fn show_queue(
 impl QueueItem {
     fn of(e: &QueueEntry, role: crate::auth::Role, account_id: i64) -> Self {
         let s = &e.pending.summary;
-        let a = AssessmentView::of(&e.assessment, false);
+        let a = AssessmentView::of(&e.assessment);
         QueueItem {
             id: s.submission_id,
             galaxy_name: s.galaxy_name.clone(),

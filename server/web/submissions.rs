@@ -258,7 +258,7 @@ pub(crate) async fn create_submission(
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
         let mut page = form_page(&state, user, nav, &fields, &read.errors, None).await?;
-        page.preview = Some(AssessmentView::of(&a, true));
+        page.preview = Some(AssessmentView::with_charts(&a).await?);
         return Ok(page.into_response());
     }
     let created = intake::store(
@@ -519,16 +519,22 @@ pub(crate) struct ClashView {
 }
 
 impl AssessmentView {
-    /// The assessment formatted; `charts` draws the relation charts too.
-    pub(crate) fn of(a: &Assessment, charts: bool) -> Self {
-        let (rows, drawn) = if charts {
-            super::place::views(&a.placements)
-        } else {
-            (
-                a.placements.iter().map(super::place::row).collect(),
-                Vec::new(),
-            )
-        };
+    /// The assessment formatted, with the relation charts.
+    ///
+    /// # Errors
+    /// When a drawing task fails.
+    pub(crate) async fn with_charts(a: &Assessment) -> AppResult<Self> {
+        let (rows, charts) = super::place::views(&a.placements).await?;
+        Ok(Self {
+            rows,
+            charts,
+            ..Self::of(a)
+        })
+    }
+
+    /// The assessment formatted, without charts (the review queue).
+    pub(crate) fn of(a: &Assessment) -> Self {
+        let rows = a.placements.iter().map(super::place::row).collect();
         let soi = a.sphere_of_influence.as_ref().map(|s| {
             format!(
                 "r_infl = {} pc = {}″; resolution/θ = {} ({})",
@@ -572,7 +578,7 @@ impl AssessmentView {
             .collect();
         Self {
             rows,
-            charts: drawn,
+            charts: Vec::new(),
             soi,
             mass_at_adopted,
             clashes,
@@ -619,7 +625,7 @@ pub(crate) async fn show_submission(
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
     let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
-    let a = AssessmentView::of(&a, true);
+    let a = AssessmentView::with_charts(&a).await?;
     Ok(SubmissionPage {
         nav,
         csrf: user.csrf_token.clone(),
