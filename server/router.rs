@@ -8,12 +8,11 @@
 //! 1. trace, then the security headers (a strict Content-Security-Policy with no outside
 //!    sources and no inline script, nosniff, no framing, no referrer leaks, and
 //!    `Cache-Control: no-store` unless a handler says otherwise), on every answer;
-//! 2. [`render_errors`]: an answer carrying an [`AppError`] is drawn by the door that owns the
-//!    path (an HTML page or problem+json) and logged, once;
-//! 3. a [`REQUEST_TIMEOUT`] answering 503 (not 408: the client did nothing wrong and may
-//!    retry), and the largest body any route accepts;
-//! 4. `auth::middleware::refuse_cross_site` and `auth::middleware::authenticate`;
-//! 5. per route: its body limit, `auth::middleware::guard` with its access, and the
+//! 2. [`render_errors`]: a [`REQUEST_TIMEOUT`] answering 503 (not 408: the client did nothing
+//!    wrong and may retry); an answer carrying an [`AppError`] is drawn by the door that owns
+//!    the path (an HTML page or problem+json) and logged, once;
+//! 3. `auth::middleware::refuse_cross_site` and `auth::middleware::authenticate`;
+//! 4. per route: its body limit, `auth::middleware::guard` with its access, and the
 //!    anti-forgery check on unsafe methods; then the door's own layers and the handler.
 //!
 //! [`route_table`] lists every route with its access; the access-table test compares it with
@@ -240,11 +239,6 @@ pub fn route_table(doors: &[Door]) -> Vec<RouteEntry> {
 /// The service: the doors' routes behind every layer (see the module doc).
 pub fn build(state: AppState, doors: Vec<Door>) -> Router {
     let secure = state.settings.secure_cookies;
-    let largest = doors
-        .iter()
-        .flat_map(|d| d.routes.table.iter().map(|r| r.limit_bytes))
-        .max()
-        .unwrap_or(BODY_LIMIT_BYTES);
     let mut renderers = Vec::with_capacity(doors.len());
     let mut app = Router::new();
     for door in doors {
@@ -264,7 +258,7 @@ pub fn build(state: AppState, doors: Vec<Door>) -> Router {
         ))
         .layer(axum::middleware::from_fn(refuse_cross_site))
         .with_state(state);
-    with_baseline(app, REQUEST_TIMEOUT, largest, secure, renderers.into())
+    with_baseline(app, REQUEST_TIMEOUT, secure, renderers.into())
 }
 
 async fn no_route(request: Request) -> AppError {
@@ -296,25 +290,25 @@ async fn refuse_declared_body_over(limit_bytes: usize, request: Request, next: N
     next.run(request).await
 }
 
-/// 503 when the answer takes longer than `timeout`.
-async fn time_limit(timeout: Duration, request: Request, next: Next) -> Response {
-    match tokio::time::timeout(timeout, next.run(request)).await {
-        Ok(response) => response,
-        Err(_) => AppError::Unavailable.into_response(),
-    }
-}
-
-/// Draw an error answer with the renderer of the door that owns the path (the last door
-/// draws paths no door claims), keeping the headers the error carried (`Allow`, `Retry-After`,
-/// cookies), and log the error once.
-async fn render_errors(renderers: Renderers, request: Request, next: Next) -> Response {
+/// Answer within `timeout` (else 503), and draw an error answer with the renderer of the door
+/// that owns the path (the last door draws paths no door claims), keeping the headers the error
+/// carried (`Allow`, `Retry-After`, cookies); log the error once.
+async fn render_errors(
+    timeout: Duration,
+    renderers: Renderers,
+    request: Request,
+    next: Next,
+) -> Response {
     let path = request.uri().path().to_owned();
     let target = request
         .uri()
         .path_and_query()
         .map_or_else(|| path.clone(), |pq| pq.as_str().to_owned());
     let method = request.method().clone();
-    let mut response = next.run(request).await;
+    let mut response = match tokio::time::timeout(timeout, next.run(request)).await {
+        Ok(response) => response,
+        Err(_) => AppError::Unavailable.into_response(),
+    };
     let Some(ErrorResponse(error)) = response.extensions_mut().remove::<ErrorResponse>() else {
         return response;
     };
@@ -364,26 +358,14 @@ fn log_once(error: &AppError, method: &Method, path: &str) {
     }
 }
 
-/// The layers every answer passes, whatever route answered (or none): the largest body limit,
-/// the timeout (503), error drawing and the security headers. `Cache-Control: no-store` is
+/// The layers every answer passes, whatever route answered (or none): the timeout (503), error
+/// drawing and the security headers. `Cache-Control: no-store` is
 /// added unless the handler set its own, so pages of a logged-in person are never stored
 /// (ASVS 14.3.2).
-fn with_baseline(
-    app: Router,
-    timeout: Duration,
-    largest_body_bytes: usize,
-    secure: bool,
-    renderers: Renderers,
-) -> Router {
+fn with_baseline(app: Router, timeout: Duration, secure: bool, renderers: Renderers) -> Router {
     let mut app = app
         .layer(axum::middleware::from_fn(move |req, next| {
-            refuse_declared_body_over(largest_body_bytes, req, next)
-        }))
-        .layer(axum::middleware::from_fn(move |req, next| {
-            time_limit(timeout, req, next)
-        }))
-        .layer(axum::middleware::from_fn(move |req, next| {
-            render_errors(renderers.clone(), req, next)
+            render_errors(timeout, renderers.clone(), req, next)
         }))
         .layer(SetResponseHeaderLayer::if_not_present(
             header::CACHE_CONTROL,
@@ -459,7 +441,7 @@ mod tests {
                 "late"
             }),
         );
-        with_baseline(slow, timeout, BODY_LIMIT_BYTES, secure, test_renderers())
+        with_baseline(slow, timeout, secure, test_renderers())
     }
 
     async fn body_text(response: Response) -> String {
@@ -495,16 +477,13 @@ mod tests {
 
     #[tokio::test]
     async fn a_declared_body_beyond_the_limit_is_refused_before_the_handler() {
-        let app = with_baseline(
-            Router::new().route(
-                "/t/echo",
-                axum::routing::post(|body: String| async move { body }),
+        let echo = Router::new().route(
+            "/t/echo",
+            axum::routing::post(|body: String| async move { body }).layer(
+                axum::middleware::from_fn(|req, next| refuse_declared_body_over(10, req, next)),
             ),
-            REQUEST_TIMEOUT,
-            10,
-            false,
-            test_renderers(),
         );
+        let app = with_baseline(echo, REQUEST_TIMEOUT, false, test_renderers());
         let response = app
             .oneshot(
                 Request::builder()
@@ -529,7 +508,6 @@ mod tests {
             with_baseline(
                 Router::new().route("/", get(|| async { "ok" })),
                 REQUEST_TIMEOUT,
-                BODY_LIMIT_BYTES,
                 secure,
                 test_renderers(),
             )

@@ -3,7 +3,7 @@
 //! falls against every relation it has values for, answered as on the place page.
 //!
 //! The numbers come from the same computation as the place page's (`relations::place`: the
-//! value reader, `place_against`, the sphere-of-influence check): predicted log M_BH with 68 %
+//! value reader, `placement_numbers`, the sphere-of-influence check): predicted log M_BH with 68 %
 //! and 95 % predictive intervals, residual, z, verdict, P(true mass below a limit), and the
 //! sphere-of-influence check. The page's refit with the object and its charts are left out:
 //! they are for people reviewing one object, and cost milliseconds each.
@@ -31,7 +31,7 @@ use crate::astro::SphereOfInfluence;
 use crate::error::{AppError, FieldError};
 use crate::fit::Method;
 use crate::relations::place::{
-    OBJECT_FIELDS, ObjectTexts, ObjectValues, place_against, read_object,
+    OBJECT_FIELDS, ObjectTexts, ObjectValues, placement_numbers, read_object,
 };
 use crate::relations::{FitOutcome, Relation};
 use crate::state::AppState;
@@ -174,17 +174,24 @@ pub struct PlaceBatchResult {
     pub objects: Vec<PlaceAnswer>,
 }
 
-impl From<&PlaceObject> for ObjectTexts {
-    fn from(o: &PlaceObject) -> Self {
-        let text = |v: &Option<String>| v.as_deref().map(str::trim).unwrap_or("").to_owned();
+impl From<PlaceObject> for ObjectTexts {
+    fn from(o: PlaceObject) -> Self {
+        let text = |v: Option<String>| {
+            let v = v.unwrap_or_default();
+            if v.trim().len() == v.len() {
+                v
+            } else {
+                v.trim().to_owned()
+            }
+        };
         ObjectTexts {
-            sigma: text(&o.sigma),
-            bulge_mass: text(&o.bulge_mass),
-            luminosity: text(&o.luminosity),
-            band: text(&o.band),
-            mass: text(&o.mass),
-            distance: text(&o.distance),
-            resolution: text(&o.resolution),
+            sigma: text(o.sigma),
+            bulge_mass: text(o.bulge_mass),
+            luminosity: text(o.luminosity),
+            band: text(o.band),
+            mass: text(o.mass),
+            distance: text(o.distance),
+            resolution: text(o.resolution),
         }
     }
 }
@@ -197,11 +204,8 @@ fn read(
     prefix: &str,
     errors: &mut Vec<FieldError>,
 ) -> ObjectValues {
-    for name in OBJECT_FIELDS {
-        let Some(slot) = texts.slot(name) else {
-            continue;
-        };
-        if slot.chars().count() > MAX_FIELD_CHARS {
+    for (name, slot) in texts.fields_mut() {
+        if slot.len() > MAX_FIELD_CHARS && slot.chars().count() > MAX_FIELD_CHARS {
             errors.push(FieldError::new(
                 format!("{prefix}{name}"),
                 format!("The value is longer than {MAX_FIELD_CHARS} characters."),
@@ -234,11 +238,14 @@ fn place_object(
 ) -> PlaceAnswer {
     let mut relations = Vec::new();
     for (relation, outcome) in fits {
-        let (Some(subject), Some(outcome)) = (values.subject(relation, ""), outcome) else {
+        let (Some(subject), Some(outcome)) = (values.bare_subject(relation), outcome) else {
             continue;
         };
-        let placed = place_against(relation, outcome.clone(), &subject);
-        let numbers = placed.numbers.as_ref().ok();
+        let placed = match &outcome.fit {
+            Ok(fit) => placement_numbers(fit, &subject).map_err(|e| e.to_string()),
+            Err(e) => Err(format!("No fit of this relation: {e}")),
+        };
+        let numbers = placed.as_ref().ok();
         let prediction = numbers.map(|n| &n.prediction);
         relations.push(RelationPlacement {
             relation: relation.slug(),
@@ -257,7 +264,7 @@ fn place_object(
             z: numbers.and_then(|n| n.z),
             verdict: numbers.and_then(|n| n.verdict).map(str::to_owned),
             prob_below_limit: numbers.and_then(|n| n.prob_below_limit),
-            problem: placed.numbers.as_ref().err().cloned(),
+            problem: placed.err(),
         });
     }
     let (soi, mut note) = match values.sphere_of_influence(soi_threshold) {
@@ -412,8 +419,9 @@ pub async fn place_batch(
     let relations = all_relations(&state, &cache, version).await?;
     let bands = bands_of(&relations);
     let mut errors = Vec::new();
+    let n_objects = objects.len();
     let inputs: Vec<ObjectValues> = objects
-        .iter()
+        .into_iter()
         .enumerate()
         .map(|(i, o)| read(o.into(), &bands, &format!("[{i}]."), &mut errors))
         .collect();
@@ -438,7 +446,7 @@ pub async fn place_batch(
             .map(|i| place_object(i, &fits, threshold))
             .collect::<Vec<_>>()
     };
-    let objects = if objects.len() >= BLOCKING_FROM {
+    let objects = if n_objects >= BLOCKING_FROM {
         tokio::task::spawn_blocking(place_all)
             .await
             .map_err(anyhow::Error::from)?

@@ -81,18 +81,25 @@ pub struct ObjectTexts {
 }
 
 impl ObjectTexts {
+    /// Every field with its name, in the order of [`OBJECT_FIELDS`].
+    pub fn fields_mut(&mut self) -> [(&'static str, &mut String); 7] {
+        [
+            ("sigma", &mut self.sigma),
+            ("bulge_mass", &mut self.bulge_mass),
+            ("luminosity", &mut self.luminosity),
+            ("band", &mut self.band),
+            ("mass", &mut self.mass),
+            ("distance", &mut self.distance),
+            ("resolution", &mut self.resolution),
+        ]
+    }
+
     /// The field named `name` (one of [`OBJECT_FIELDS`]).
     pub fn slot(&mut self, name: &str) -> Option<&mut String> {
-        Some(match name {
-            "sigma" => &mut self.sigma,
-            "bulge_mass" => &mut self.bulge_mass,
-            "luminosity" => &mut self.luminosity,
-            "band" => &mut self.band,
-            "mass" => &mut self.mass,
-            "distance" => &mut self.distance,
-            "resolution" => &mut self.resolution,
-            _ => return None,
-        })
+        self.fields_mut()
+            .into_iter()
+            .find(|(field, _)| *field == name)
+            .map(|(_, slot)| slot)
     }
 
     /// Reads (name, text) pairs; returns the object and the names that are not fields
@@ -243,17 +250,29 @@ impl ObjectValues {
         }
     }
 
-    /// The object as a [`Subject`] of `relation`, when it has the host values the relation needs.
+    /// The object as a [`Subject`] of `relation`, named `name`, when it has the host values the
+    /// relation needs.
     pub fn subject(&self, relation: &Relation, name: &str) -> Option<Subject> {
         let (x, x2) = self.host_values(relation)?;
         let x2_text = x2.map(Entry::display_log);
         Some(Subject {
             name: name.to_owned(),
+            input: input_text(relation, &x.display_log(), x2_text.as_deref()),
+            ..self.bare_subject(relation)?
+        })
+    }
+
+    /// [`ObjectValues::subject`] without its name and the text of its host values, for answers
+    /// that show neither (the API places batches of thousands).
+    pub fn bare_subject(&self, relation: &Relation) -> Option<Subject> {
+        let (x, x2) = self.host_values(relation)?;
+        Some(Subject {
+            name: String::new(),
             href: None,
             x: (x.log_value, x.err_dex),
             x2: x2.map(|b| (b.log_value, b.err_dex)),
             mass: self.mass.as_ref().map(SubjectMass::from_entry),
-            input: input_text(relation, &x.display_log(), x2_text.as_deref()),
+            input: String::new(),
         })
     }
 
