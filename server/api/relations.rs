@@ -623,13 +623,7 @@ pub async fn relation_fit(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
-            .collect()
-    }
+    use crate::relations::test_pairs as pairs;
 
     #[test]
     fn settings_read_the_relation_page_parameters_and_name_each_bad_one() {

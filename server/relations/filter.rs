@@ -323,16 +323,18 @@ impl FitChoice {
     }
 }
 
+/// Query pairs from string literals (tests of the query readers).
+#[cfg(test)]
+pub(crate) fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
+    items
+        .iter()
+        .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
-            .collect()
-    }
 
     #[test]
     fn every_parameter_is_read_and_the_canonical_form_is_fixed() {

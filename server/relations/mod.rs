@@ -42,6 +42,8 @@ pub use defaults::{
     POSTERIOR_INIT_SCATTER, POSTERIOR_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE, RUN_SEED,
     SIGMA_PIVOT_LOG, SMALL_SAMPLE, SMALL_SAMPLE_BOOTSTRAP, STEPS_RANGE, default_pivot,
 };
+#[cfg(test)]
+pub(crate) use filter::pairs as test_pairs;
 pub use filter::{
     FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
 };

@@ -373,13 +373,7 @@ pub async fn table_page(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| (k.to_string(), v.to_string()))
-            .collect()
-    }
+    use crate::relations::test_pairs as pairs;
 
     #[test]
     fn table_query_reads_every_parameter() {

@@ -336,13 +336,7 @@ pub(crate) async fn show_audit(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| ((*k).to_string(), (*v).to_string()))
-            .collect()
-    }
+    use crate::relations::test_pairs as pairs;
 
     #[test]
     fn audit_filters_read_every_parameter() {

@@ -1294,13 +1294,7 @@ fn download(content_type: &'static str, filename: &str, body: String) -> Respons
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn pairs(items: &[(&str, &str)]) -> Vec<(String, String)> {
-        items
-            .iter()
-            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
-            .collect()
-    }
+    use crate::relations::test_pairs as pairs;
 
     #[test]
     fn the_query_round_trips_and_names_bad_parameters() {
