@@ -60,6 +60,12 @@ pub struct Settings {
     /// Retry-After (nothing written).
     #[arg(long = "busy-timeout-ms", env = "MASSLINE_BUSY_TIMEOUT_MS", default_value_t = DEFAULT_BUSY_TIMEOUT_MS, value_parser = parse_busy_timeout_ms)]
     pub busy_timeout_ms: u64,
+
+    /// Largest size of the database file in pages of 4096 bytes (SQLite's max_page_count): a
+    /// write that would need more answers 507 and changes nothing, as on a full disk. Unset: only
+    /// the disk limits it. A safeguard for a shared disk, and how the tests fill the database.
+    #[arg(long = "max-db-pages", env = "MASSLINE_MAX_DB_PAGES", value_parser = parse_max_db_pages)]
+    pub max_db_pages: Option<u32>,
 }
 
 /// Default of `--busy-timeout-ms` (the catalog's `BUSY_TIMEOUT`, 5 s).
@@ -77,12 +83,21 @@ impl Settings {
             secure_cookies: false,
             api_rate_per_minute: DEFAULT_API_RATE_PER_MINUTE,
             busy_timeout_ms: DEFAULT_BUSY_TIMEOUT_MS,
+            max_db_pages: None,
         }
     }
 
     /// The busy timeout as a duration.
     pub fn busy_timeout(&self) -> Duration {
         Duration::from_millis(self.busy_timeout_ms)
+    }
+
+    /// What the database is opened with: the busy timeout and the page limit.
+    pub fn db_limits(&self) -> crate::catalog::Limits {
+        crate::catalog::Limits {
+            busy_timeout: self.busy_timeout(),
+            max_pages: self.max_db_pages,
+        }
     }
 }
 
@@ -166,6 +181,19 @@ fn parse_busy_timeout_ms(s: &str) -> Result<u64, String> {
     }
 }
 
+fn parse_max_db_pages(s: &str) -> Result<u32, String> {
+    match s.trim().parse::<u32>() {
+        Ok(v) if v >= MIN_DB_PAGES => Ok(v),
+        _ => Err(format!(
+            "the database page limit (--max-db-pages, MASSLINE_MAX_DB_PAGES) '{s}' must be a whole number of 4096-byte pages from {MIN_DB_PAGES} to 4294967294; leave it unset for no limit"
+        )),
+    }
+}
+
+/// Smallest accepted `--max-db-pages`: the empty schema alone takes about 100 pages, so a lower
+/// limit could not even be migrated.
+pub const MIN_DB_PAGES: u32 = 256;
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -182,6 +210,19 @@ mod tests {
                 parse_busy_timeout_ms(bad)
                     .unwrap_err()
                     .contains("--busy-timeout-ms"),
+                "{bad}"
+            );
+        }
+    }
+
+    #[test]
+    fn max_db_pages_is_a_whole_number_of_pages_above_the_schema() {
+        assert_eq!(parse_max_db_pages(" 5000 ").unwrap(), 5000);
+        for bad in ["0", "255", "-1", "1.5", "x", "4294967296"] {
+            assert!(
+                parse_max_db_pages(bad)
+                    .unwrap_err()
+                    .contains("--max-db-pages"),
                 "{bad}"
             );
         }

@@ -132,8 +132,11 @@ pub enum AppError {
     /// 503: the request took longer than the server allows; the client may retry.
     #[error("The server could not answer in time; nothing was changed, please try again.")]
     Unavailable,
-    /// 507: the disk (or the database's page limit) is full. Nothing was written.
-    #[error("The server's storage is full; nothing was changed.")]
+    /// 507: the disk (or the database's page limit) is full. Nothing was written, and the next
+    /// write goes through once there is room again.
+    #[error(
+        "The server's storage is full, so nothing was changed; send it again once an administrator has freed disk space."
+    )]
     StorageFull,
     /// 500: anything else. Logged with its cause; the answer says only that it failed.
     #[error("internal error: {0:#}")]

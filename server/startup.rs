@@ -72,8 +72,7 @@ impl Application {
         settings: Settings,
         clock: Arc<dyn Clock>,
     ) -> anyhow::Result<Self> {
-        let pool =
-            catalog::connect_with_busy_timeout(&settings.db_path, settings.busy_timeout()).await?;
+        let pool = catalog::connect_with_limits(&settings.db_path, settings.db_limits()).await?;
         let passwords = Passwords::new().await?;
         let mut demo_accounts = Vec::new();
         if settings.demo {
@@ -119,6 +118,7 @@ impl Application {
             listener,
             address,
             state: AppState {
+                write_check: catalog::health::WriteCheck::new(pool.clone(), &settings.db_path),
                 pool,
                 settings: Arc::new(settings),
                 clock,

@@ -6,6 +6,7 @@ use sqlx::SqlitePool;
 
 use crate::auth::clock::Clock;
 use crate::auth::password::Passwords;
+use crate::catalog::health::WriteCheck;
 use crate::config::Settings;
 use crate::relations::{Catalog, FitCache, RunRegistry};
 
@@ -24,6 +25,8 @@ pub struct AppState {
     pub fits: FitCache,
     /// Bootstrap and posterior runs in the background (see `relations`).
     pub runs: RunRegistry,
+    /// Whether the database can take a write, probed at most once a second (the health check).
+    pub write_check: WriteCheck,
 }
 
 impl AppState {

@@ -27,6 +27,7 @@ use axum::response::{IntoResponse, Response};
 use axum::routing::{get, post};
 
 use crate::auth::{Access, Principal, Role};
+use crate::catalog::health::WriteHealth;
 use crate::router::{Door, Routes, UPLOAD_LIMIT_BYTES, no_layers};
 use crate::state::AppState;
 
@@ -89,6 +90,7 @@ fn routes() -> Routes {
         )
         .add(Method::GET, "/place", Read, get(place::show_place))
         .add(Method::GET, "/healthz", Public, get(healthz))
+        .add(Method::GET, "/livez", Public, get(livez))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
         .add(Method::GET, "/login", Public, get(login::show_login))
         .add(Method::POST, "/login", Public, post(login::log_in))
@@ -242,15 +244,35 @@ impl<S: Send + Sync> FromRequestParts<S> for Nav {
     }
 }
 
-/// Liveness and readiness: 200 "ok" when the database answers, 503 otherwise.
+/// Readiness: 200 "ok" when the database can take a write, else 503 with the reason in one
+/// sentence (`catalog::health`: free disk, the write lock, room below the page limit; probed at
+/// most once a second).
 async fn healthz(axum::extract::State(state): axum::extract::State<AppState>) -> Response {
-    match crate::catalog::ping(&state.pool).await {
-        Ok(()) => (StatusCode::OK, "ok\n").into_response(),
-        Err(e) => {
-            tracing::warn!(error = %e, "health check failed");
-            (StatusCode::SERVICE_UNAVAILABLE, "database unavailable\n").into_response()
+    match state.write_check.check().await {
+        WriteHealth::Ready => plain_text(StatusCode::OK, "ok\n".to_owned()),
+        WriteHealth::Refused(reason) => {
+            plain_text(StatusCode::SERVICE_UNAVAILABLE, format!("{reason}\n"))
         }
     }
+}
+
+/// Liveness: 200 "ok" whenever the server answers at all; it never touches the database, so a
+/// full disk or a held lock does not make a supervisor restart a server that would recover.
+async fn livez() -> Response {
+    plain_text(StatusCode::OK, "ok\n".to_owned())
+}
+
+/// A plain-text answer that no cache keeps (health answers change from one second to the next).
+fn plain_text(status: StatusCode, body: String) -> Response {
+    (
+        status,
+        [
+            (header::CONTENT_TYPE, "text/plain; charset=utf-8"),
+            (header::CACHE_CONTROL, "no-store"),
+        ],
+        body,
+    )
+        .into_response()
 }
 
 const STYLESHEET: &str = include_str!("../../static/massline.css");

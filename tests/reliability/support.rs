@@ -15,7 +15,7 @@ use sqlx::{Connection, SqliteConnection, SqlitePool};
 
 pub(crate) use crate::common::{
     Browser, Reply, TestApp, create_account, external_required, hidden_value, plain_client,
-    spawn_with,
+    spawn_on, spawn_with,
 };
 
 /// Make an API token for an account directly in the database; returns the token.

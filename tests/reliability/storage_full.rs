@@ -1,0 +1,192 @@
+//! A full database answers 507 and harms no later request: once there is room again, every
+//! write succeeds, and `/healthz` says at each step whether the database can take a write.
+//!
+//! The fault is the database's page limit (`--max-db-pages`, SQLite's `max_page_count` on every
+//! connection of the server): a write that needs a page beyond it fails with SQLITE_FULL, as on a
+//! full disk, without root or a small filesystem. Room comes back by deleting ballast rows the
+//! test put in the file beforehand through its own connection, which has no limit.
+
+use std::time::{Duration, Instant};
+
+use massline::auth::Role;
+use massline::catalog::health::RESERVE_BYTES;
+use sqlx::Connection;
+
+use crate::support::{
+    Browser, Reply, TestApp, assert_sound, create_account, make_token, open_file, plain_client,
+    spawn_on,
+};
+
+/// Rows of ballast, about one 4096-byte page each: far more room, once deleted, than the
+/// writes after it need.
+const BALLAST_ROWS: i64 = 1500;
+
+/// SQLite's page size for a new database (the schema does not change it).
+const PAGE_BYTES: i64 = 4096;
+
+/// `/healthz` as (status, body).
+async fn health(app: &TestApp) -> (u16, String) {
+    app.get("/healthz").await
+}
+
+/// Poll `/healthz` until it answers `status` (its answer may be up to a second old); panics
+/// with the last answer after 30 s.
+async fn health_becomes(app: &TestApp, status: u16, when: &str) -> String {
+    let started = Instant::now();
+    loop {
+        let (got, body) = health(app).await;
+        if got == status {
+            return body;
+        }
+        assert!(
+            started.elapsed() < Duration::from_secs(30),
+            "/healthz {when} still answered {got} instead of {status}: {body}"
+        );
+        tokio::time::sleep(Duration::from_millis(100)).await;
+    }
+}
+
+/// POST one submission through the API (a new galaxy with one σ_e measurement, invented).
+async fn submit(app: &TestApp, token: &str, n: usize) -> Reply {
+    let body = serde_json::json!({
+        "new_galaxy": {"name": format!("X 214-{n}"), "morphology": "elliptical",
+                       "bulge_kind": "classical", "centre_kind": "core", "distance_mpc": "18",
+                       "distance_err_mpc": "1", "distance_method": "sbf"},
+        "measurements": [{"quantity": "sigma", "value": "200 ± 10", "sigma_definition": "sigma_e"}],
+        "note": "storage-full test"
+    });
+    let r = plain_client()
+        .post(format!("{}/api/v1/submissions", app.address))
+        .bearer_auth(token)
+        .header("Idempotency-Key", format!("storage-full-{n}"))
+        .json(&body)
+        .send()
+        .await
+        .expect("the request is answered");
+    Reply {
+        status: r.status().as_u16(),
+        headers: r.headers().clone(),
+        body: r.text().await.unwrap(),
+    }
+}
+
+#[tokio::test]
+async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_tells_the_truth() {
+    let dir = tempfile::tempdir().unwrap();
+    let db_path = dir.path().join("catalog.sqlite");
+    // The schema, then the ballast.
+    let pool = massline::catalog::connect(&db_path).await.unwrap();
+    sqlx::query("create table ballast (b blob not null)")
+        .execute(&pool)
+        .await
+        .unwrap();
+    sqlx::query(sqlx::AssertSqlSafe(format!(
+        "with recursive n(i) as (select 1 union all select i + 1 from n where i < {BALLAST_ROWS}) \
+         insert into ballast select randomblob(3000) from n"
+    )))
+    .execute(&pool)
+    .await
+    .unwrap();
+    let pages: i64 = sqlx::query_scalar("pragma page_count")
+        .fetch_one(&pool)
+        .await
+        .unwrap();
+    pool.close().await;
+    // Room for the health check's reserve and a few dozen submissions beyond it.
+    let reserve_pages = i64::try_from(RESERVE_BYTES).unwrap() / PAGE_BYTES;
+    let limit = u32::try_from(pages + reserve_pages + 60).unwrap();
+    let app = spawn_on(dir, db_path.clone(), |s| {
+        s.max_db_pages = Some(limit);
+        s.api_rate_per_minute = 0;
+    })
+    .await;
+    let member_id = create_account(&app.pool, "member1", Role::Member).await;
+    let token = make_token(&app.pool, member_id, "submit").await;
+
+    let (status, body) = health(&app).await;
+    assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz before");
+    let (status, body) = app.get("/livez").await;
+    assert_eq!((status, body.as_str()), (200, "ok\n"), "/livez before");
+
+    // Fill: submissions until the page limit refuses one.
+    let mut n = 0;
+    let mut stored = 0;
+    let full = loop {
+        n += 1;
+        assert!(n < 5000, "the database never filled up");
+        let r = submit(&app, &token, n).await;
+        match r.status {
+            201 => stored += 1,
+            507 => break r,
+            other => panic!("submission {n} while filling answered {other}: {}", r.body),
+        }
+    };
+    assert!(stored > 0, "some submissions fitted before the limit");
+    assert!(
+        full.body.contains("storage is full") && full.body.contains("freed disk space"),
+        "the 507 says what happened and what to do: {}",
+        full.body
+    );
+    eprintln!("storage full: {stored} submissions fitted, number {n} answered 507");
+
+    // While full: every write answers 507 (never 500), the health check 503, liveness 200.
+    for _ in 0..8 {
+        n += 1;
+        let r = submit(&app, &token, n).await;
+        assert_eq!(r.status, 507, "a write while full: {}", r.body);
+    }
+    let reason = health_becomes(&app, 503, "while full").await;
+    assert!(reason.contains("page limit"), "the reason: {reason}");
+    assert_eq!(app.get("/livez").await.0, 200, "/livez while full");
+    let mut member = Browser::new(&app.address);
+    let login = member.login("member1", crate::common::TEST_PASSWORD).await;
+    assert!(
+        login.status == 303 || login.status == 507,
+        "a login while full answered {}: {}",
+        login.status,
+        login.body
+    );
+
+    // Free: delete the ballast through the test's own connection (no page limit on it).
+    let mut outsider = open_file(&db_path).await;
+    sqlx::query("delete from ballast")
+        .execute(&mut outsider)
+        .await
+        .unwrap();
+    health_becomes(&app, 200, "after the ballast was deleted").await;
+
+    // Every write after the fault cleared succeeds: 100 of 100.
+    let mut answers = Vec::new();
+    for _ in 0..100 {
+        n += 1;
+        let r = submit(&app, &token, n).await;
+        answers.push((r.status, r.body));
+    }
+    let succeeded = answers.iter().filter(|(status, _)| *status == 201).count();
+    let failed: Vec<_> = answers
+        .iter()
+        .filter(|(status, _)| *status != 201)
+        .collect();
+    assert_eq!(
+        succeeded,
+        100,
+        "writes after room came back: {} failed, the first: {:?}",
+        failed.len(),
+        failed.first()
+    );
+    member.log_in("member1").await;
+    let (status, body) = health(&app).await;
+    assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz after");
+
+    let stored_rows: i64 = sqlx::query_scalar("select count(*) from submission")
+        .fetch_one(&mut outsider)
+        .await
+        .unwrap();
+    assert_eq!(
+        stored_rows,
+        stored + 100,
+        "every 201 stored once, no 507 stored"
+    );
+    assert_sound(&mut outsider, "after the database was full").await;
+    outsider.close().await.unwrap();
+}
