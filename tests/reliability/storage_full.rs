@@ -46,6 +46,14 @@ async fn health_becomes(app: &TestApp, status: u16, when: &str) -> String {
     }
 }
 
+/// A note of the longest allowed length in two-byte characters: about 4000 bytes, so nearly
+/// every submission needs a page of its own, and the statement that finds the database full is
+/// the single-row insert of the submission, which SQLite answers by rolling back the whole
+/// transaction (a statement that writes several rows would be undone alone).
+fn long_note() -> String {
+    "é".repeat(massline::catalog::intake::NOTE_MAX_CHARS)
+}
+
 /// POST one submission through the API (a new galaxy with one σ_e measurement, invented).
 async fn submit(app: &TestApp, token: &str, n: usize) -> Reply {
     let body = serde_json::json!({
@@ -53,7 +61,7 @@ async fn submit(app: &TestApp, token: &str, n: usize) -> Reply {
                        "bulge_kind": "classical", "centre_kind": "core", "distance_mpc": "18",
                        "distance_err_mpc": "1", "distance_method": "sbf"},
         "measurements": [{"quantity": "sigma", "value": "200 ± 10", "sigma_definition": "sigma_e"}],
-        "note": "storage-full test"
+        "note": long_note()
     });
     let r = plain_client()
         .post(format!("{}/api/v1/submissions", app.address))
@@ -92,7 +100,7 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
         .await
         .unwrap();
     pool.close().await;
-    // Room for the health check's reserve and a few dozen submissions beyond it.
+    // Room for the health check's reserve and a little more.
     let reserve_pages = i64::try_from(RESERVE_BYTES).unwrap() / PAGE_BYTES;
     let limit = u32::try_from(pages + reserve_pages + 60).unwrap();
     let app = spawn_on(dir, db_path.clone(), |s| {
@@ -107,6 +115,21 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz before");
     let (status, body) = app.get("/livez").await;
     assert_eq!((status, body.as_str()), (200, "ok\n"), "/livez before");
+
+    // Most of the room left goes to more ballast, so that a few dozen submissions fill the rest.
+    let mut outsider = open_file(&db_path).await;
+    let pages_now: i64 = sqlx::query_scalar("pragma page_count")
+        .fetch_one(&mut outsider)
+        .await
+        .unwrap();
+    sqlx::query(sqlx::AssertSqlSafe(format!(
+        "with recursive n(i) as (select 1 union all select i + 1 from n where i < {}) \
+         insert into ballast select randomblob(3000) from n",
+        i64::from(limit) - pages_now - 10
+    )))
+    .execute(&mut outsider)
+    .await
+    .unwrap();
 
     // Fill: submissions until the page limit refuses one.
     let mut n = 0;
@@ -148,7 +171,6 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     );
 
     // Free: delete the ballast through the test's own connection (no page limit on it).
-    let mut outsider = open_file(&db_path).await;
     sqlx::query("delete from ballast")
         .execute(&mut outsider)
         .await
