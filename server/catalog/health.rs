@@ -5,7 +5,9 @@
 //! what a write needs, without writing anything:
 //!
 //! 1. room on the disk: the filesystem holding the database has at least [`RESERVE_BYTES`]
-//!    free for the server's user (`statvfs`, the blocks available to unprivileged users);
+//!    free for the server's user (`statvfs`, the blocks available to unprivileged users), and
+//!    the largest file the process may write (`RLIMIT_FSIZE`, e.g. `ulimit -f` or systemd's
+//!    `LimitFSIZE=`) leaves that much room beyond the database's `-wal` file, where commits go;
 //! 2. the write lock: `BEGIN IMMEDIATE` succeeds (it waits up to the busy timeout, like a
 //!    write);
 //! 3. a writable file: inside that transaction, `user_version` is set to the value it has,
@@ -102,6 +104,9 @@ pub async fn probe(pool: &SqlitePool, db_path: &Path) -> WriteHealth {
             RESERVE_BYTES / 1024
         ));
     }
+    if let Some(refusal) = file_size_limit_refusal(db_path) {
+        return WriteHealth::Refused(refusal);
+    }
     let mut tx = match begin_write(pool).await {
         Ok(tx) => tx,
         Err(e) => return WriteHealth::Refused(write_refused(&e)),
@@ -182,5 +187,32 @@ fn free_disk_bytes(db_path: &Path) -> Option<u64> {
 
 #[cfg(not(unix))]
 fn free_disk_bytes(_db_path: &Path) -> Option<u64> {
+    None
+}
+
+/// The sentence when the process's file size limit leaves less than [`RESERVE_BYTES`] beyond the
+/// `-wal` file (commits append to it; past the limit a write is cut short and SQLite reports
+/// SQLITE_FULL, as on a full disk).
+#[cfg(unix)]
+fn file_size_limit_refusal(db_path: &Path) -> Option<String> {
+    let limit = rustix::process::getrlimit(rustix::process::Resource::Fsize).current?;
+    let mut wal = db_path.as_os_str().to_owned();
+    wal.push("-wal");
+    let wal_bytes = std::fs::metadata(&wal).map_or(0, |m| m.len());
+    let room = limit.saturating_sub(wal_bytes);
+    (room < RESERVE_BYTES).then(|| {
+        format!(
+            "The server may write files of at most {} KiB (its file size limit) and the \
+             database's -wal file holds {} KiB, leaving less than the {} KiB a write may need; \
+             raise the limit (ulimit -f, LimitFSIZE=).",
+            limit / 1024,
+            wal_bytes / 1024,
+            RESERVE_BYTES / 1024
+        )
+    })
+}
+
+#[cfg(not(unix))]
+fn file_size_limit_refusal(_db_path: &Path) -> Option<String> {
     None
 }

@@ -1,10 +1,18 @@
 //! A full database answers 507 and harms no later request: once there is room again, every
 //! write succeeds, and `/healthz` says at each step whether the database can take a write.
 //!
-//! The fault is the database's page limit (`--max-db-pages`, SQLite's `max_page_count` on every
+//! Two faults. The database's page limit (`--max-db-pages`, SQLite's `max_page_count` on every
 //! connection of the server): a write that needs a page beyond it fails with SQLITE_FULL, as on a
 //! full disk, without root or a small filesystem. Room comes back by deleting ballast rows the
-//! test put in the file beforehand through its own connection, which has no limit.
+//! test put in the file beforehand through its own connection, which has no limit. This one
+//! fails a statement inside the transaction.
+//!
+//! The file size limit of the server's process (`ulimit -f`): the write of a commit's
+//! write-ahead-log frames past it fails (EFBIG, an I/O error: 500), and SQLite rolls the whole
+//! transaction back at `COMMIT`, as it does when a full disk fails the commit (SQLITE_FULL:
+//! 507). Room comes back by lifting the limit (`prlimit`). A connection whose commit failed so
+//! went back to the pool still counted as inside its transaction, and every later write on it
+//! failed with a 500 until a restart.
 
 use std::time::{Duration, Instant};
 
@@ -13,8 +21,8 @@ use massline::catalog::health::RESERVE_BYTES;
 use sqlx::Connection;
 
 use crate::support::{
-    Browser, Reply, TestApp, assert_sound, create_account, make_token, open_file, plain_client,
-    spawn_on,
+    Browser, ChildServer, Reply, TestApp, assert_sound, create_account, make_token, open_file,
+    plain_client, spawn_on,
 };
 
 /// Rows of ballast, about one 4096-byte page each: far more room, once deleted, than the
@@ -24,17 +32,32 @@ const BALLAST_ROWS: i64 = 1500;
 /// SQLite's page size for a new database (the schema does not change it).
 const PAGE_BYTES: i64 = 4096;
 
+/// GET a path of a server as (status, body).
+async fn get(address: &str, path: &str) -> (u16, String) {
+    let r = plain_client()
+        .get(format!("{address}{path}"))
+        .send()
+        .await
+        .expect("the request is answered");
+    (r.status().as_u16(), r.text().await.unwrap())
+}
+
 /// `/healthz` as (status, body).
 async fn health(app: &TestApp) -> (u16, String) {
-    app.get("/healthz").await
+    get(&app.address, "/healthz").await
 }
 
 /// Poll `/healthz` until it answers `status` (its answer may be up to a second old); panics
 /// with the last answer after 30 s.
 async fn health_becomes(app: &TestApp, status: u16, when: &str) -> String {
+    health_of_becomes(&app.address, status, when).await
+}
+
+/// [`health_becomes`] for a server by its address.
+async fn health_of_becomes(address: &str, status: u16, when: &str) -> String {
     let started = Instant::now();
     loop {
-        let (got, body) = health(app).await;
+        let (got, body) = get(address, "/healthz").await;
         if got == status {
             return body;
         }
@@ -55,7 +78,7 @@ fn long_note() -> String {
 }
 
 /// POST one submission through the API (a new galaxy with one σ_e measurement, invented).
-async fn submit(app: &TestApp, token: &str, n: usize) -> Reply {
+async fn submit(address: &str, token: &str, n: usize) -> Reply {
     let body = serde_json::json!({
         "new_galaxy": {"name": format!("X 214-{n}"), "morphology": "elliptical",
                        "bulge_kind": "classical", "centre_kind": "core", "distance_mpc": "18",
@@ -64,7 +87,7 @@ async fn submit(app: &TestApp, token: &str, n: usize) -> Reply {
         "note": long_note()
     });
     let r = plain_client()
-        .post(format!("{}/api/v1/submissions", app.address))
+        .post(format!("{address}/api/v1/submissions"))
         .bearer_auth(token)
         .header("Idempotency-Key", format!("storage-full-{n}"))
         .json(&body)
@@ -137,7 +160,7 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     let full = loop {
         n += 1;
         assert!(n < 5000, "the database never filled up");
-        let r = submit(&app, &token, n).await;
+        let r = submit(&app.address, &token, n).await;
         match r.status {
             201 => stored += 1,
             507 => break r,
@@ -155,7 +178,7 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     // While full: every write answers 507 (never 500), the health check 503, liveness 200.
     for _ in 0..8 {
         n += 1;
-        let r = submit(&app, &token, n).await;
+        let r = submit(&app.address, &token, n).await;
         assert_eq!(r.status, 507, "a write while full: {}", r.body);
     }
     let reason = health_becomes(&app, 503, "while full").await;
@@ -181,7 +204,7 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     let mut answers = Vec::new();
     for _ in 0..100 {
         n += 1;
-        let r = submit(&app, &token, n).await;
+        let r = submit(&app.address, &token, n).await;
         answers.push((r.status, r.body));
     }
     let succeeded = answers.iter().filter(|(status, _)| *status == 201).count();
@@ -211,4 +234,102 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     );
     assert_sound(&mut outsider, "after the database was full").await;
     outsider.close().await.unwrap();
+}
+
+/// The server's file size limit, in blocks of 512 bytes (`ulimit -f`): 150 KiB, room in the
+/// write-ahead log for a few submissions.
+const FILE_SIZE_BLOCKS: u64 = 300;
+
+#[tokio::test]
+async fn after_commits_failed_at_the_file_size_limit_every_write_succeeds_once_it_is_lifted() {
+    let dir = tempfile::tempdir().unwrap();
+    let db_path = dir.path().join("catalog.sqlite");
+    let pool = massline::catalog::connect(&db_path).await.unwrap();
+    let member_id = create_account(&pool, "member1", Role::Member).await;
+    let token = make_token(&pool, member_id, "submit").await;
+    // Closing the last connection moves the log into the file and removes it.
+    pool.close().await;
+    let server = ChildServer::start_with_file_size_limit(&db_path, Some(FILE_SIZE_BLOCKS)).await;
+    let address = server.address.clone();
+
+    // The health check sees the limit from the start: less than its reserve.
+    let reason = health_of_becomes(&address, 503, "under the file size limit").await;
+    assert!(reason.contains("file size limit"), "the reason: {reason}");
+    assert_eq!(
+        get(&address, "/livez").await.0,
+        200,
+        "/livez under the limit"
+    );
+
+    let mut n = 0;
+    let mut stored = 0;
+    let failed_at = loop {
+        n += 1;
+        assert!(n < 1000, "the file size limit was never reached");
+        let r = submit(&address, &token, n).await;
+        match r.status {
+            201 => stored += 1,
+            500 | 507 => break r.status,
+            other => panic!(
+                "submission {n} before the limit answered {other}: {}",
+                r.body
+            ),
+        }
+    };
+    assert!(stored > 0, "some submissions fitted below the limit");
+    eprintln!("file size limit: {stored} submissions fitted, number {n} answered {failed_at}");
+    for _ in 0..8 {
+        n += 1;
+        let r = submit(&address, &token, n).await;
+        assert!(
+            r.status == 500 || r.status == 507,
+            "a write while at the limit answered {}: {}",
+            r.status,
+            r.body
+        );
+    }
+
+    // Lift the limit of the running server.
+    let lifted = std::process::Command::new("prlimit")
+        .arg("--pid")
+        .arg(server.pid().to_string())
+        .arg("--fsize=unlimited")
+        .status()
+        .expect("prlimit (util-linux) runs");
+    assert!(lifted.success(), "prlimit lifted the limit");
+    health_of_becomes(&address, 200, "after the limit was lifted").await;
+
+    let mut answers = Vec::new();
+    for _ in 0..100 {
+        n += 1;
+        let r = submit(&address, &token, n).await;
+        answers.push((r.status, r.body));
+    }
+    let failed: Vec<_> = answers
+        .iter()
+        .filter(|(status, _)| *status != 201)
+        .collect();
+    assert_eq!(
+        answers.len() - failed.len(),
+        100,
+        "writes after the limit was lifted: {} failed, the first: {:?}",
+        failed.len(),
+        failed.first()
+    );
+    let (status, body) = get(&address, "/healthz").await;
+    assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz after");
+
+    let mut outsider = open_file(&db_path).await;
+    let stored_rows: i64 = sqlx::query_scalar("select count(*) from submission")
+        .fetch_one(&mut outsider)
+        .await
+        .unwrap();
+    assert_eq!(
+        stored_rows,
+        stored + 100,
+        "every 201 stored once, no 507 stored"
+    );
+    assert_sound(&mut outsider, "after commits failed at the file size limit").await;
+    outsider.close().await.unwrap();
+    drop(server);
 }

@@ -64,11 +64,31 @@ pub(crate) struct ChildServer {
 }
 
 impl ChildServer {
-    /// Start `massline serve --db DB` on a free loopback port and wait until `/healthz`
-    /// answers.
+    /// Start `massline serve --db DB` on a free loopback port and wait until it answers
+    /// (`/livez`; the database is open and migrated before the server listens).
     pub(crate) async fn start(db_path: &Path) -> Self {
+        Self::start_with_file_size_limit(db_path, None).await
+    }
+
+    /// [`ChildServer::start`], with the largest file the server may write limited to
+    /// `blocks` × 512 bytes when given (`ulimit -S -f`, through `sh`; a write past it is cut
+    /// short, as on a full disk; SIGXFSZ is ignored so that the write fails instead of killing
+    /// the server). The soft limit only, so `prlimit` can lift it while the server runs.
+    pub(crate) async fn start_with_file_size_limit(db_path: &Path, blocks: Option<u64>) -> Self {
         let port = free_port();
-        let child = Command::new(env!("CARGO_BIN_EXE_massline"))
+        let mut command = match blocks {
+            None => Command::new(env!("CARGO_BIN_EXE_massline")),
+            Some(blocks) => {
+                let mut sh = Command::new("sh");
+                sh.arg("-c")
+                    .arg(format!(
+                        "trap '' XFSZ; ulimit -S -f {blocks}; exec \"$0\" \"$@\""
+                    ))
+                    .arg(env!("CARGO_BIN_EXE_massline"));
+                sh
+            }
+        };
+        let child = command
             .arg("serve")
             .arg("--db")
             .arg(db_path)
@@ -95,7 +115,7 @@ impl ChildServer {
         let started = Instant::now();
         loop {
             if let Ok(r) = client
-                .get(format!("{}/healthz", self.address))
+                .get(format!("{}/livez", self.address))
                 .timeout(Duration::from_secs(2))
                 .send()
                 .await
@@ -105,10 +125,15 @@ impl ChildServer {
             }
             assert!(
                 started.elapsed() < Duration::from_secs(60),
-                "the server did not answer /healthz within 60 s"
+                "the server did not answer /livez within 60 s"
             );
             tokio::time::sleep(Duration::from_millis(50)).await;
         }
+    }
+
+    /// The server's process id (`sh` replaced itself with the server).
+    pub(crate) fn pid(&self) -> u32 {
+        self.child.id()
     }
 
     /// Kill the child with SIGKILL (no chance to clean up) and wait until it is gone.
