@@ -190,8 +190,9 @@ fn parse_max_db_pages(s: &str) -> Result<u32, String> {
     }
 }
 
-/// Smallest accepted `--max-db-pages`: the empty schema alone takes about 100 pages, so a lower
-/// limit could not even be migrated.
+/// Smallest accepted `--max-db-pages`: 1 MiB of 4096-byte pages. The empty schema takes about
+/// 40 pages, and the health check wants 1 MiB of room for a write
+/// (`catalog::health::RESERVE_BYTES`), so a smaller database could never be reported ready.
 pub const MIN_DB_PAGES: u32 = 256;
 
 #[cfg(test)]

@@ -121,11 +121,13 @@ pub async fn connect_with_limits(db_path: &Path, limits: Limits) -> anyhow::Resu
 ///
 /// Why a connection could be handed out inside one: sqlx counts open transactions per
 /// connection itself (its "transaction depth"), raising the count when `BEGIN` succeeds and
-/// lowering it only when its own `COMMIT` or `ROLLBACK` succeeds. After SQLITE_FULL (a full disk
-/// or the page limit), SQLITE_IOERR or SQLITE_NOMEM, SQLite may already have rolled the whole
-/// transaction back by itself; the `ROLLBACK` that sqlx then sends when the transaction is
-/// dropped fails ("no transaction is active"), the count stays at 1, and the connection goes back
-/// to the pool looking healthy (the pool's check on release is a ping). Every later
+/// lowering it only when its own `COMMIT` or `ROLLBACK` succeeds. On SQLITE_FULL (a full disk or
+/// the page limit), SQLITE_IOERR or SQLITE_NOMEM SQLite rolls the whole transaction back by
+/// itself: always when `COMMIT` fails (the write-ahead log could not be written), and when a
+/// statement without a statement journal fails (a single-row insert without `RETURNING` or
+/// triggers; other statements are undone alone). The `ROLLBACK` that sqlx then sends when the
+/// transaction is dropped fails ("no transaction is active"), the count stays at 1, and the
+/// connection goes back to the pool looking healthy (the pool's check on release is a ping). Every later
 /// [`begin_write`] on it fails with "attempted to call begin_with at non-zero transaction
 /// depth" (a custom `BEGIN` is refused inside a transaction), until the process restarts, and
 /// a pool of four such connections answers 500 to one write in four, or to all of them.
