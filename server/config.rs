@@ -91,14 +91,6 @@ impl Settings {
     pub fn busy_timeout(&self) -> Duration {
         Duration::from_millis(self.busy_timeout_ms)
     }
-
-    /// What the database is opened with: the busy timeout and the page limit.
-    pub fn db_limits(&self) -> crate::catalog::Limits {
-        crate::catalog::Limits {
-            busy_timeout: self.busy_timeout(),
-            max_pages: self.max_db_pages,
-        }
-    }
 }
 
 fn parse_db_path(s: &str) -> Result<PathBuf, String> {

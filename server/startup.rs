@@ -72,7 +72,11 @@ impl Application {
         settings: Settings,
         clock: Arc<dyn Clock>,
     ) -> anyhow::Result<Self> {
-        let pool = catalog::connect_with_limits(&settings.db_path, settings.db_limits()).await?;
+        let limits = catalog::Limits {
+            busy_timeout: settings.busy_timeout(),
+            max_pages: settings.max_db_pages,
+        };
+        let pool = catalog::connect_with_limits(&settings.db_path, limits).await?;
         let passwords = Passwords::new().await?;
         let mut demo_accounts = Vec::new();
         if settings.demo {
