@@ -10,9 +10,10 @@
 //!    `LimitFSIZE=`) leaves that much room beyond the database's `-wal` file, where commits go;
 //! 2. the write lock: `BEGIN IMMEDIATE` succeeds (it waits up to the busy timeout, like a
 //!    write);
-//! 3. a writable file: inside that transaction, `user_version` is set to the value it has,
-//!    which makes SQLite write the file's first page (`BEGIN IMMEDIATE` alone succeeds even on
-//!    a file opened read-only; this write does not);
+//! 3. a writable file: inside that transaction, `user_version` is set to the value it has, a
+//!    change of the file's first page that SQLite refuses on a file it could open only for
+//!    reading (`BEGIN IMMEDIATE` alone succeeds there); the change stays in memory and is
+//!    rolled back;
 //! 4. room in the file: the pages SQLite may still allocate (free pages in the file plus what
 //!    `max_page_count` allows beyond its end) hold at least [`RESERVE_BYTES`];
 //!
@@ -215,4 +216,71 @@ fn file_size_limit_refusal(db_path: &Path) -> Option<String> {
 #[cfg(not(unix))]
 fn file_size_limit_refusal(_db_path: &Path) -> Option<String> {
     None
+}
+
+#[cfg(test)]
+mod tests {
+    use std::str::FromStr;
+
+    use sqlx::sqlite::{SqliteConnectOptions, SqlitePoolOptions};
+
+    use super::*;
+
+    #[tokio::test]
+    async fn a_fresh_database_is_ready_and_a_read_only_one_is_refused_with_a_reason() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("probe.sqlite");
+        let pool = crate::catalog::connect(&path).await.unwrap();
+        assert_eq!(probe(&pool, &path).await, WriteHealth::Ready);
+        pool.close().await;
+
+        // The same file opened for reading only, as when the file or its directory is not
+        // writable by the server.
+        let options = SqliteConnectOptions::from_str(&format!("sqlite://{}", path.display()))
+            .unwrap()
+            .read_only(true);
+        let read_only = SqlitePoolOptions::new()
+            .max_connections(1)
+            .connect_with(options)
+            .await
+            .unwrap();
+        match probe(&read_only, &path).await {
+            WriteHealth::Refused(reason) => assert!(
+                reason.starts_with("The database cannot be written") && reason.contains("writable"),
+                "{reason}"
+            ),
+            WriteHealth::Ready => panic!("a read-only database was reported ready"),
+        }
+    }
+
+    #[tokio::test]
+    async fn a_page_limit_without_a_reserve_of_room_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("probe.sqlite");
+        let pool = crate::catalog::connect(&path).await.unwrap();
+        let pages: i64 = sqlx::query_scalar("pragma page_count")
+            .fetch_one(&pool)
+            .await
+            .unwrap();
+        pool.close().await;
+        // Room for half the reserve beyond the file's size.
+        let max_pages =
+            u32::try_from(pages + i64::try_from(RESERVE_BYTES / 4096 / 2).unwrap()).unwrap();
+        let limits = crate::catalog::Limits {
+            max_pages: Some(max_pages),
+            ..crate::catalog::Limits::default()
+        };
+        let pool = crate::catalog::connect_with_limits(&path, limits)
+            .await
+            .unwrap();
+        match probe(&pool, &path).await {
+            WriteHealth::Refused(reason) => {
+                assert!(
+                    reason.contains(&format!("page limit of {max_pages} pages")),
+                    "{reason}"
+                );
+            }
+            WriteHealth::Ready => panic!("half the reserve was reported enough"),
+        }
+    }
 }
