@@ -125,12 +125,13 @@ pub async fn connect_with_limits(db_path: &Path, limits: Limits) -> anyhow::Resu
 /// the page limit), SQLITE_IOERR or SQLITE_NOMEM SQLite rolls the whole transaction back by
 /// itself: always when `COMMIT` fails (the write-ahead log could not be written), and when a
 /// statement without a statement journal fails (a single-row insert without `RETURNING` or
-/// triggers; other statements are undone alone). The `ROLLBACK` that sqlx then sends when the
-/// transaction is dropped fails ("no transaction is active"), the count stays at 1, and the
-/// connection goes back to the pool looking healthy (the pool's check on release is a ping). Every later
-/// [`begin_write`] on it fails with "attempted to call begin_with at non-zero transaction
-/// depth" (a custom `BEGIN` is refused inside a transaction), until the process restarts, and
-/// a pool of four such connections answers 500 to one write in four, or to all of them.
+/// triggers; a statement that writes several rows, or has `RETURNING` or triggers, is undone
+/// alone). The `ROLLBACK` that sqlx then sends when the transaction is dropped fails ("no
+/// transaction is active"), the count stays at 1, and the connection goes back to the pool
+/// looking healthy (the pool's check on release is a ping). Every later [`begin_write`] on it
+/// fails with "attempted to call begin_with at non-zero transaction depth" (a custom `BEGIN` is
+/// refused inside a transaction) until the process restarts: with four connections, some writes
+/// or all of them answer 500.
 ///
 /// The count cannot be reset from outside, so such a connection is closed when it is next
 /// taken from the pool (`before_acquire`, which runs after the pool's ping: by then any

@@ -1,5 +1,6 @@
-//! A full database answers 507 and harms no later request: once there is room again, every
-//! write succeeds, and `/healthz` says at each step whether the database can take a write.
+//! A write the storage refuses answers 507 (full) or 500 (an I/O error) and harms no later
+//! request: once there is room again, every write succeeds, and `/healthz` says at each step
+//! whether the database can take a write.
 //!
 //! Two faults. The database's page limit (`--max-db-pages`, SQLite's `max_page_count` on every
 //! connection of the server): a write that needs a page beyond it fails with SQLITE_FULL, as on a
@@ -10,9 +11,10 @@
 //! The file size limit of the server's process (`ulimit -f`): the write of a commit's
 //! write-ahead-log frames past it fails (EFBIG, an I/O error: 500), and SQLite rolls the whole
 //! transaction back at `COMMIT`, as it does when a full disk fails the commit (SQLITE_FULL:
-//! 507). Room comes back by lifting the limit (`prlimit`). A connection whose commit failed so
-//! went back to the pool still counted as inside its transaction, and every later write on it
-//! failed with a 500 until a restart.
+//! 507). Room comes back by lifting the limit (`prlimit`). Without the pool's check
+//! (`catalog::pool_options`), a connection whose commit failed so goes back to the pool still
+//! counted as inside its transaction, and every later write on it fails with a 500 until a
+//! restart.
 
 use std::time::{Duration, Instant};
 
@@ -69,10 +71,8 @@ async fn health_of_becomes(address: &str, status: u16, when: &str) -> String {
     }
 }
 
-/// A note of the longest allowed length in two-byte characters: about 4000 bytes, so nearly
-/// every submission needs a page of its own, and the statement that finds the database full is
-/// the single-row insert of the submission, which SQLite answers by rolling back the whole
-/// transaction (a statement that writes several rows would be undone alone).
+/// A note of the longest allowed length in two-byte characters: about 4000 bytes, so each
+/// submission needs about a page of its own and the room left fills in a few submissions.
 fn long_note() -> String {
     "é".repeat(massline::catalog::intake::NOTE_MAX_CHARS)
 }
