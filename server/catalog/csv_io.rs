@@ -416,9 +416,20 @@ pub async fn import_rows(
     let mut faults = Vec::new();
     let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
     for r in rows {
-        match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
-            None => fresh.push(r),
-            Some(Some(sha)) if Some(&sha) != r.row.sha256.as_ref() => faults.push(RowError {
+        let stored = match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
+            None => {
+                fresh.push(r);
+                continue;
+            }
+            Some(stored) => stored,
+        };
+        // A row carrying an exported key is compared with what the export wrote for it.
+        let sha = match (stored.row_sha256, stored.by_digest) {
+            (Some(_), true) => exported_fingerprint(&mut tx, stored.measurement_id).await?,
+            (sha, _) => sha,
+        };
+        match sha {
+            Some(sha) if Some(&sha) != r.row.sha256.as_ref() => faults.push(RowError {
                 file: FILE,
                 line: r.line,
                 column: "row_key",
@@ -427,7 +438,7 @@ pub async fn import_rows(
                     r.row.key.chars().take(80).collect::<String>()
                 ),
             }),
-            Some(_) => {}
+            _ => {}
         }
     }
     if !faults.is_empty() {
@@ -663,6 +674,41 @@ impl ExportRow {
     }
 }
 
+/// The columns of an [`ExportRow`], over `measurement m` and `galaxy g`.
+const EXPORT_SELECT: &str =
+    "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
+                g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
+                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
+                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
+                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit";
+
+/// The fingerprint ([`row_key_of`]) of the cells an export writes for a measurement, or
+/// `None` when it is gone.
+async fn exported_fingerprint(
+    tx: &mut sqlx::Transaction<'_, sqlx::Sqlite>,
+    measurement_id: i64,
+) -> sqlx::Result<Option<String>> {
+    let row: Option<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
+        "{EXPORT_SELECT}
+           from measurement m join galaxy g on g.galaxy_id = m.galaxy_id
+          where m.measurement_id = ?"
+    )))
+    .bind(measurement_id)
+    .fetch_optional(&mut **tx)
+    .await?;
+    Ok(row.and_then(|row| {
+        let cells = row.cells();
+        let cell = |c: &'static str| {
+            COLUMNS
+                .iter()
+                .position(|k| *k == c)
+                .map_or("", |i| cells[i].as_str())
+        };
+        row_key_of(&cell).ok().and_then(|k| k.sha256)
+    }))
+}
+
 /// The adopted rows and the catalog version, read in one transaction so the two agree.
 async fn adopted_rows(pool: &SqlitePool) -> anyhow::Result<(Vec<ExportRow>, i64)> {
     let mut tx = pool.begin().await?;
@@ -670,19 +716,14 @@ async fn adopted_rows(pool: &SqlitePool) -> anyhow::Result<(Vec<ExportRow>, i64)
         sqlx::query_scalar("select catalog_version from catalog_state where catalog_state_id = 1")
             .fetch_one(&mut *tx)
             .await?;
-    let rows: Vec<ExportRow> = sqlx::query_as(
-        "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
-                g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
-                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
-                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
-                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit
+    let rows: Vec<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
+        "{EXPORT_SELECT}
            from adopted_value a
            join measurement m on m.measurement_id = a.measurement_id
            join galaxy g on g.galaxy_id = a.galaxy_id
        order by g.name, case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
-                                        when 'bulge_mass' then 2 else 3 end, m.band",
-    )
+                                        when 'bulge_mass' then 2 else 3 end, m.band"
+    )))
     .fetch_all(&mut *tx)
     .await?;
     tx.commit().await?;
@@ -1256,7 +1297,7 @@ mod tests {
         let text = format!(
             "{HEADER}\n\
              Tesk 81,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,-Invented 2031,=HYPERLINK(\"x\")\n\
-             Tesk 81,,,,,,,bh_mass,2e8 ± 0.4e8,,,stellar_dynamics,,,,20,0.1,@Invented 2031,\"'=kept as typed\"\n"
+             Tesk 81,,,,,,,bh_mass,2e8 ± 0.4e8,,,stellar_dynamics,,,,20,0.1,@Invented 2031,''=kept as typed\n"
         );
         import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
             .await

@@ -178,21 +178,34 @@ pub async fn fill_row_key_digests(pool: &SqlitePool) -> sqlx::Result<()> {
     tx.commit().await
 }
 
-/// The row stored under `key`, if any: `Some(sha256)` (itself optional). `key` is matched
-/// against the stored keys and against the keys exports write ([`public_row_key`]), so an
-/// exported file re-imports to nothing new.
+/// A measurement found by a file row's key.
+#[derive(Debug, Clone, PartialEq, Eq, sqlx::FromRow)]
+pub struct StoredRow {
+    /// The measurement.
+    pub measurement_id: i64,
+    /// The SHA-256 of the cells it was imported from (`None` for form, API and demo rows).
+    pub row_sha256: Option<String>,
+    /// Whether the key is the one exports write ([`public_row_key`]) rather than the stored
+    /// key itself: the row then comes from an export, whose cells are the measurement's
+    /// exported cells, not the cells it was first imported from.
+    pub by_digest: bool,
+}
+
+/// The row stored under `key`, if any. `key` is matched against the stored keys and against
+/// the keys exports write ([`public_row_key`]), so an exported file re-imports to nothing new.
 ///
 /// # Errors
 /// Any database error.
 pub async fn stored_row_key(
     tx: &mut Transaction<'_, Sqlite>,
     key: &str,
-) -> sqlx::Result<Option<Option<String>>> {
-    sqlx::query_scalar(
-        "select row_sha256 from measurement where row_key = ?1
+) -> sqlx::Result<Option<StoredRow>> {
+    sqlx::query_as(
+        "select measurement_id, row_sha256, 0 as by_digest from measurement where row_key = ?1
          union all
-         select row_sha256 from measurement where row_key_digest = ?1
-         limit 1",
+         select measurement_id, row_sha256, 1 as by_digest from measurement
+          where row_key_digest = ?1 and row_key <> ?1
+         order by by_digest limit 1",
     )
     .bind(key)
     .fetch_optional(&mut **tx)
