@@ -292,13 +292,13 @@ async fn refuse_declared_body_over(limit_bytes: usize, request: Request, next: N
         .into_response();
     }
     let response = next.run(request).await;
-    let knows_limit = matches!(
+    // An extractor's own rejection carries no error; an error that did not know the limit
+    // says so. Other 413s (a batch over its size) keep their own sentence.
+    let without_limit = matches!(
         response.extensions().get::<ErrorResponse>().map(|e| &*e.0),
-        Some(AppError::BodyTooLarge {
-            limit_bytes: Some(_)
-        })
+        None | Some(AppError::BodyTooLarge { limit_bytes: None })
     );
-    if response.status() == axum::http::StatusCode::PAYLOAD_TOO_LARGE && !knows_limit {
+    if response.status() == axum::http::StatusCode::PAYLOAD_TOO_LARGE && without_limit {
         return AppError::BodyTooLarge {
             limit_bytes: Some(limit_bytes),
         }
