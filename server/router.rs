@@ -541,18 +541,22 @@ impl<T> HeaderedIo<T> {
 /// `head` with the security headers after its status line, when it is an answer the HTTP
 /// library made by itself (see [`HeaderedIo`]); `None` for anything else.
 fn with_security_headers(head: &[u8], secure: bool) -> Option<Vec<u8>> {
+    // Cheap tests first: every write of every answer passes here. An answer the library
+    // makes is a few hundred bytes.
+    let made_by_library = head.len() <= 1024
+        && head.starts_with(b"HTTP/1.")
+        && [b"400", b"414", b"431"].contains(&head.get(9..12)?.try_into().ok()?);
+    if !made_by_library {
+        return None;
+    }
     let status_line_end = head.windows(2).position(|w| w == b"\r\n")?;
-    let status_line = std::str::from_utf8(&head[..status_line_end]).ok()?;
-    let made_by_library = ["400", "414", "431"]
-        .iter()
-        .any(|&code| status_line.starts_with("HTTP/1.") && status_line.get(9..12) == Some(code));
     let end_of_head = head.windows(4).position(|w| w == b"\r\n\r\n")?;
     let whole_head_alone = end_of_head + 4 == head.len();
     let has_policy = head
         .to_ascii_lowercase()
         .windows(24)
         .any(|w| w == b"content-security-policy:");
-    if !made_by_library || !whole_head_alone || has_policy {
+    if !whole_head_alone || has_policy {
         return None;
     }
     let mut out = Vec::with_capacity(head.len() + 600);

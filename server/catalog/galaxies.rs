@@ -134,12 +134,7 @@ const PUBLIC_ROW_KEY_DOMAIN: &str = "massline exported row key v1\u{0}";
 /// that already has that form (a row imported from an export) is returned as it is, so the
 /// digest of a digest is itself.
 pub fn public_row_key(stored: &str) -> String {
-    let is_digest = stored
-        .strip_prefix(PUBLIC_ROW_KEY_PREFIX)
-        .is_some_and(|hex| {
-            hex.len() == 64 && hex.bytes().all(|b| matches!(b, b'0'..=b'9' | b'a'..=b'f'))
-        });
-    if is_digest {
+    if is_public_row_key(stored) {
         stored.to_owned()
     } else {
         format!(
@@ -147,6 +142,13 @@ pub fn public_row_key(stored: &str) -> String {
             sha256_hex(&format!("{PUBLIC_ROW_KEY_DOMAIN}{stored}"))
         )
     }
+}
+
+/// Whether `key` has the form of an exported key (`rk-` and 64 lower-case hex digits).
+fn is_public_row_key(key: &str) -> bool {
+    key.strip_prefix(PUBLIC_ROW_KEY_PREFIX).is_some_and(|hex| {
+        hex.len() == 64 && hex.bytes().all(|b| matches!(b, b'0'..=b'9' | b'a'..=b'f'))
+    })
 }
 
 /// Give every measurement stored before `migrations/4_row_key_digest.sql` its exported key,
@@ -200,6 +202,16 @@ pub async fn stored_row_key(
     tx: &mut Transaction<'_, Sqlite>,
     key: &str,
 ) -> sqlx::Result<Option<StoredRow>> {
+    // Only a key of the exported form can be another row's digest: other keys (most file
+    // rows) take the one look-up by the stored key.
+    if !is_public_row_key(key) {
+        return sqlx::query_as(
+            "select measurement_id, row_sha256, 0 as by_digest from measurement where row_key = ?",
+        )
+        .bind(key)
+        .fetch_optional(&mut **tx)
+        .await;
+    }
     sqlx::query_as(
         "select measurement_id, row_sha256, 0 as by_digest from measurement where row_key = ?1
          union all
