@@ -23,7 +23,7 @@ pub type AppResult<T> = Result<T, AppError>;
 
 /// One field at fault, named as the caller sent it (a form field, a query parameter, or a JSON
 /// path such as `measurements[2].value`).
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+#[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, utoipa::ToSchema)]
 pub struct FieldError {
     /// The field, e.g. `measurements[0].value`.
     pub field: String,
@@ -39,6 +39,63 @@ impl FieldError {
             message: message.into(),
         }
     }
+}
+
+/// At most this many problems go out in one error answer (fields of a problem body, sentences
+/// of a message); the rest are counted in one closing entry, so a request with thousands of bad
+/// parameters cannot make a large answer.
+pub const MAX_PROBLEMS: usize = 100;
+
+/// `items` without repeats, in their first order, cut at `max`; with the number left out.
+pub fn distinct_capped<T: Eq + std::hash::Hash + Clone>(
+    items: impl IntoIterator<Item = T>,
+    max: usize,
+) -> (Vec<T>, usize) {
+    let mut seen = std::collections::HashSet::new();
+    let mut kept = Vec::new();
+    let mut more = 0;
+    for item in items {
+        if seen.insert(item.clone()) {
+            if kept.len() < max {
+                kept.push(item);
+            } else {
+                more += 1;
+            }
+        }
+    }
+    (kept, more)
+}
+
+/// The sentence closing a cut list of problems.
+fn more_problems(more: usize) -> String {
+    if more == 1 {
+        "And 1 more problem; correct the ones listed and send again to see it.".to_owned()
+    } else {
+        format!("And {more} more problems; correct the ones listed and send again to see them.")
+    }
+}
+
+/// Problems (sentences) as one message: each distinct sentence once, at most [`MAX_PROBLEMS`],
+/// then a sentence counting the rest.
+pub fn join_problems(problems: impl IntoIterator<Item = String>) -> String {
+    let (mut kept, more) = distinct_capped(problems, MAX_PROBLEMS);
+    if more > 0 {
+        kept.push(more_problems(more));
+    }
+    kept.join(" ")
+}
+
+/// The fields of an answer: at most [`MAX_PROBLEMS`] (each distinct field error is kept once
+/// when the error is made), then one entry counting the rest.
+pub fn bounded_fields(fields: &[FieldError]) -> Vec<FieldError> {
+    let mut out: Vec<FieldError> = fields.iter().take(MAX_PROBLEMS).cloned().collect();
+    if fields.len() > MAX_PROBLEMS {
+        out.push(FieldError::new(
+            "(more)",
+            more_problems(fields.len() - MAX_PROBLEMS),
+        ));
+    }
+    out
 }
 
 /// What can go wrong while answering a request.
@@ -143,20 +200,48 @@ pub enum AppError {
     Internal(#[from] anyhow::Error),
 }
 
-/// The sentence of [`AppError::BodyTooLarge`].
+/// The sentence of [`AppError::BodyTooLarge`]: the limit in MB (KB below one MB) and what to
+/// do instead.
 fn body_too_large(limit_bytes: Option<usize>) -> String {
+    const MB: usize = 1024 * 1024;
     match limit_bytes {
-        Some(n) => format!("The request is larger than {n} bytes."),
-        None => "The request is larger than this address accepts.".to_owned(),
+        Some(n) => {
+            let limit = if n >= MB && n % MB == 0 {
+                format!("{} MB", n / MB)
+            } else if n >= MB {
+                format!("{:.1} MB", n as f64 / MB as f64)
+            } else if n >= 1024 {
+                format!("{} KB", n / 1024)
+            } else {
+                format!("{n} bytes")
+            };
+            format!(
+                "The request is larger than the {limit} this address accepts; send less at a time, for instance a catalog file split into files of at most {limit} each."
+            )
+        }
+        None => "The request is larger than this address accepts; send less at a time, for instance a catalog file split into smaller files.".to_owned(),
     }
 }
 
-/// The summary sentence of [`AppError::Invalid`].
+/// The summary sentence of [`AppError::Invalid`] for a request that could have stored
+/// something.
 fn invalid_detail(message: Option<&str>, n_fields: usize) -> String {
     match (message, n_fields) {
         (Some(m), _) => m.to_owned(),
         (None, 1) => "1 field is invalid; nothing was stored.".to_owned(),
         (None, n) => format!("{n} fields are invalid; nothing was stored."),
+    }
+}
+
+/// The summary sentence of [`AppError::Invalid`] for a request that stores nothing anyway (GET,
+/// HEAD, OPTIONS): no word of storing.
+fn invalid_read_detail(message: Option<&str>, n_fields: usize) -> String {
+    match (message, n_fields) {
+        (Some(m), _) => m.to_owned(),
+        (None, 1) => "1 parameter is invalid; it is listed with what to type instead.".to_owned(),
+        (None, n) => {
+            format!("{n} parameters are invalid; each is listed with what to type instead.")
+        }
     }
 }
 
@@ -202,12 +287,12 @@ impl AppError {
         }
     }
 
-    /// [`AppError::Invalid`] listing every field at fault.
+    /// [`AppError::Invalid`] listing every field at fault (a repeated field error once).
     pub fn invalid(fields: Vec<FieldError>) -> Self {
         Self::Invalid {
             title: None,
             message: None,
-            fields,
+            fields: distinct_capped(fields, usize::MAX).0,
         }
     }
 
@@ -252,7 +337,9 @@ impl AppError {
     #[must_use]
     pub fn with_fields(mut self, new_fields: Vec<FieldError>) -> Self {
         match &mut self {
-            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => *fields = new_fields,
+            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => {
+                *fields = distinct_capped(new_fields, usize::MAX).0;
+            }
             _ => {}
         }
         self
@@ -272,6 +359,17 @@ impl AppError {
         match self {
             Self::Internal(_) => INTERNAL_MESSAGE.to_owned(),
             other => other.to_string(),
+        }
+    }
+
+    /// [`AppError::public_message`] worded for the request's method: an invalid GET is not told
+    /// that "nothing was stored", since it could not have stored anything.
+    pub fn public_message_for(&self, method: &axum::http::Method) -> String {
+        match self {
+            Self::Invalid {
+                message, fields, ..
+            } if method.is_safe() => invalid_read_detail(message.as_deref(), fields.len()),
+            other => other.public_message(),
         }
     }
 
@@ -353,6 +451,36 @@ mod tests {
         let internal = AppError::Internal(anyhow::anyhow!("secret path /x/y"));
         assert_eq!(internal.status(), 500);
         assert!(!internal.public_message().contains("secret"));
+    }
+
+    #[test]
+    fn an_invalid_read_is_not_told_that_nothing_was_stored() {
+        let error = AppError::invalid(vec![FieldError::new("sort", "Bad.")]);
+        let get = error.public_message_for(&axum::http::Method::GET);
+        assert!(!get.contains("stored"), "{get}");
+        assert!(get.starts_with("1 parameter is invalid"), "{get}");
+        let post = error.public_message_for(&axum::http::Method::POST);
+        assert_eq!(post, "1 field is invalid; nothing was stored.");
+    }
+
+    #[test]
+    fn repeated_problems_are_kept_once_and_long_lists_are_cut_with_a_count() {
+        let same = vec![FieldError::new("a", "Leave it out."); 10_000];
+        assert_eq!(AppError::invalid(same).fields().len(), 1);
+        let many: Vec<FieldError> = (0..250)
+            .map(|i| FieldError::new(format!("p{i}"), "Leave it out."))
+            .collect();
+        let error = AppError::invalid(many);
+        assert_eq!(error.fields().len(), 250);
+        let shown = bounded_fields(error.fields());
+        assert_eq!(shown.len(), MAX_PROBLEMS + 1);
+        assert_eq!(shown[MAX_PROBLEMS].field, "(more)");
+        assert!(shown[MAX_PROBLEMS].message.contains("150 more"));
+        let joined = join_problems((0..250).map(|i| format!("'p{}' is not a parameter.", i % 120)));
+        assert_eq!(joined.matches("is not a parameter").count(), MAX_PROBLEMS);
+        assert!(joined.ends_with(
+            "And 20 more problems; correct the ones listed and send again to see them."
+        ));
     }
 
     #[test]

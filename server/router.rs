@@ -29,6 +29,7 @@ use axum::http::{HeaderName, HeaderValue, Method, header};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::routing::MethodRouter;
+use tokio::io::{AsyncRead, AsyncWrite};
 use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::set_header::SetResponseHeaderLayer;
 use tower_http::trace::TraceLayer;
@@ -275,6 +276,9 @@ async fn method_not_allowed(request: Request) -> AppError {
 
 /// 413 for a request whose declared length is beyond `limit_bytes` (a body without a declared
 /// length is cut at the limit by the body-limit layer and refused by the extractor reading it).
+/// Any 413 from inside (an extractor's own plain-text rejection, or an error that did not know
+/// the limit) becomes [`AppError::BodyTooLarge`] with this route's limit, so its door draws it
+/// with the limit and what to do.
 async fn refuse_declared_body_over(limit_bytes: usize, request: Request, next: Next) -> Response {
     let declared = request
         .headers()
@@ -287,7 +291,20 @@ async fn refuse_declared_body_over(limit_bytes: usize, request: Request, next: N
         }
         .into_response();
     }
-    next.run(request).await
+    let response = next.run(request).await;
+    // An extractor's own rejection carries no error; an error that did not know the limit
+    // says so. Other 413s (a batch over its size) keep their own sentence.
+    let without_limit = matches!(
+        response.extensions().get::<ErrorResponse>().map(|e| &*e.0),
+        None | Some(AppError::BodyTooLarge { limit_bytes: None })
+    );
+    if response.status() == axum::http::StatusCode::PAYLOAD_TOO_LARGE && without_limit {
+        return AppError::BodyTooLarge {
+            limit_bytes: Some(limit_bytes),
+        }
+        .into_response();
+    }
+    response
 }
 
 /// Answer within `timeout` (else 503), and draw an error answer with the renderer of the door
@@ -370,39 +387,256 @@ fn with_baseline(app: Router, timeout: Duration, secure: bool, renderers: Render
         .layer(SetResponseHeaderLayer::if_not_present(
             header::CACHE_CONTROL,
             HeaderValue::from_static("no-store"),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            header::CONTENT_SECURITY_POLICY,
-            HeaderValue::from_static(CONTENT_SECURITY_POLICY),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            header::X_CONTENT_TYPE_OPTIONS,
-            HeaderValue::from_static("nosniff"),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            header::REFERRER_POLICY,
-            HeaderValue::from_static("same-origin"),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            header::X_FRAME_OPTIONS,
-            HeaderValue::from_static("DENY"),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            HeaderName::from_static("cross-origin-opener-policy"),
-            HeaderValue::from_static("same-origin"),
-        ))
-        .layer(SetResponseHeaderLayer::overriding(
-            HeaderName::from_static("permissions-policy"),
-            HeaderValue::from_static("camera=(), microphone=(), geolocation=()"),
         ));
-    if secure {
-        // Only over HTTPS: tells browsers to use HTTPS for a year (ASVS 3.4.1).
+    for (name, value) in security_headers(secure) {
         app = app.layer(SetResponseHeaderLayer::overriding(
-            header::STRICT_TRANSPORT_SECURITY,
-            HeaderValue::from_static("max-age=31536000"),
+            HeaderName::from_static(name),
+            HeaderValue::from_static(value),
         ));
     }
     app.layer(TraceLayer::new_for_http())
+}
+
+/// The security headers of every answer (names in lower case): a strict
+/// Content-Security-Policy, nosniff, no referrer leaks, no framing, no opener, no powerful
+/// features; with `secure` (HTTPS) also HSTS for a year (ASVS 3.4.1).
+fn security_headers(secure: bool) -> Vec<(&'static str, &'static str)> {
+    let mut headers = vec![
+        ("content-security-policy", CONTENT_SECURITY_POLICY),
+        ("x-content-type-options", "nosniff"),
+        ("referrer-policy", "same-origin"),
+        ("x-frame-options", "DENY"),
+        ("cross-origin-opener-policy", "same-origin"),
+        (
+            "permissions-policy",
+            "camera=(), microphone=(), geolocation=()",
+        ),
+    ];
+    if secure {
+        headers.push(("strict-transport-security", "max-age=31536000"));
+    }
+    headers
+}
+
+/// Serve `app` on `listener` until `shutdown`, with each request's peer address as
+/// `ConnectInfo<SocketAddr>` (the login throttle counts by address).
+///
+/// Answers that the HTTP library writes itself, without calling the service (a request line
+/// longer than 64 KiB: 414; headers too large: 431; an unreadable request: 400), would miss the
+/// security headers of [`with_baseline`]; each connection's writes pass through
+/// [`HeaderedIo`], which adds them to such an answer.
+///
+/// # Errors
+/// When the server fails while running.
+pub async fn serve(
+    listener: tokio::net::TcpListener,
+    app: Router,
+    secure: bool,
+    shutdown: impl std::future::Future<Output = ()> + Send + 'static,
+) -> std::io::Result<()> {
+    axum::serve(
+        HeaderedListener {
+            inner: listener,
+            secure,
+        },
+        WithPeer::make(app),
+    )
+    .with_graceful_shutdown(shutdown)
+    .await
+}
+
+/// A TCP listener whose connections are [`HeaderedIo`]s.
+struct HeaderedListener {
+    inner: tokio::net::TcpListener,
+    secure: bool,
+}
+
+impl axum::serve::Listener for HeaderedListener {
+    type Io = HeaderedIo<tokio::net::TcpStream>;
+    type Addr = std::net::SocketAddr;
+
+    async fn accept(&mut self) -> (Self::Io, Self::Addr) {
+        let (io, addr) = axum::serve::Listener::accept(&mut self.inner).await;
+        (HeaderedIo::new(io, self.secure), addr)
+    }
+
+    fn local_addr(&self) -> std::io::Result<Self::Addr> {
+        self.inner.local_addr()
+    }
+}
+
+/// The router for one connection, putting the peer's address into each request.
+#[derive(Clone)]
+struct WithPeer {
+    app: Router,
+    peer: std::net::SocketAddr,
+}
+
+impl WithPeer {
+    /// The make-service: one [`WithPeer`] per accepted connection.
+    fn make(
+        app: Router,
+    ) -> impl for<'a> tower::Service<
+        axum::serve::IncomingStream<'a, HeaderedListener>,
+        Response = Self,
+        Error = Infallible,
+        Future = std::future::Ready<Result<Self, Infallible>>,
+    > + Clone {
+        tower::service_fn(
+            move |incoming: axum::serve::IncomingStream<'_, HeaderedListener>| {
+                std::future::ready(Ok(Self {
+                    app: app.clone(),
+                    peer: *incoming.remote_addr(),
+                }))
+            },
+        )
+    }
+}
+
+impl tower::Service<Request> for WithPeer {
+    type Response = Response;
+    type Error = Infallible;
+    type Future = <Router as tower::Service<Request>>::Future;
+
+    fn poll_ready(
+        &mut self,
+        cx: &mut std::task::Context<'_>,
+    ) -> std::task::Poll<Result<(), Self::Error>> {
+        tower::Service::<Request>::poll_ready(&mut self.app, cx)
+    }
+
+    fn call(&mut self, mut request: Request) -> Self::Future {
+        request
+            .extensions_mut()
+            .insert(axum::extract::ConnectInfo(self.peer));
+        tower::Service::<Request>::call(&mut self.app, request)
+    }
+}
+
+/// A connection whose writes are passed on unchanged, except an answer the HTTP library made
+/// by itself: a status line of 400, 414 or 431 with no body, written whole in one write, and
+/// without a Content-Security-Policy (every answer of the service has one) gets the security
+/// headers after its status line.
+pub struct HeaderedIo<T> {
+    inner: T,
+    secure: bool,
+    /// Bytes accepted from the caller but not yet written (the answer with its headers).
+    pending: Vec<u8>,
+    /// How much of `pending` is written.
+    written: usize,
+}
+
+impl<T> HeaderedIo<T> {
+    /// Wrap a connection; `secure` adds HSTS as on every other answer.
+    pub fn new(inner: T, secure: bool) -> Self {
+        Self {
+            inner,
+            secure,
+            pending: Vec::new(),
+            written: 0,
+        }
+    }
+}
+
+/// `head` with the security headers after its status line, when it is an answer the HTTP
+/// library made by itself (see [`HeaderedIo`]); `None` for anything else.
+fn with_security_headers(head: &[u8], secure: bool) -> Option<Vec<u8>> {
+    // Cheap tests first: every write of every answer passes here. An answer the library
+    // makes is a few hundred bytes.
+    let made_by_library = head.len() <= 1024
+        && head.starts_with(b"HTTP/1.")
+        && [b"400", b"414", b"431"].contains(&head.get(9..12)?.try_into().ok()?);
+    if !made_by_library {
+        return None;
+    }
+    let status_line_end = head.windows(2).position(|w| w == b"\r\n")?;
+    let end_of_head = head.windows(4).position(|w| w == b"\r\n\r\n")?;
+    let whole_head_alone = end_of_head + 4 == head.len();
+    let has_policy = head
+        .to_ascii_lowercase()
+        .windows(24)
+        .any(|w| w == b"content-security-policy:");
+    if !whole_head_alone || has_policy {
+        return None;
+    }
+    let mut out = Vec::with_capacity(head.len() + 600);
+    out.extend_from_slice(&head[..status_line_end + 2]);
+    for (name, value) in security_headers(secure) {
+        out.extend_from_slice(format!("{name}: {value}\r\n").as_bytes());
+    }
+    out.extend_from_slice(b"cache-control: no-store\r\n");
+    out.extend_from_slice(&head[status_line_end + 2..]);
+    Some(out)
+}
+
+impl<T: AsyncWrite + Unpin> HeaderedIo<T> {
+    /// Write what is pending; ready when nothing is.
+    fn poll_drain(
+        &mut self,
+        cx: &mut std::task::Context<'_>,
+    ) -> std::task::Poll<std::io::Result<()>> {
+        while self.written < self.pending.len() {
+            let n = std::task::ready!(
+                std::pin::Pin::new(&mut self.inner).poll_write(cx, &self.pending[self.written..])
+            )?;
+            if n == 0 {
+                return std::task::Poll::Ready(Err(std::io::ErrorKind::WriteZero.into()));
+            }
+            self.written += n;
+        }
+        self.pending.clear();
+        self.written = 0;
+        std::task::Poll::Ready(Ok(()))
+    }
+}
+
+impl<T: AsyncRead + Unpin> AsyncRead for HeaderedIo<T> {
+    fn poll_read(
+        self: std::pin::Pin<&mut Self>,
+        cx: &mut std::task::Context<'_>,
+        buf: &mut tokio::io::ReadBuf<'_>,
+    ) -> std::task::Poll<std::io::Result<()>> {
+        std::pin::Pin::new(&mut self.get_mut().inner).poll_read(cx, buf)
+    }
+}
+
+impl<T: AsyncWrite + Unpin> AsyncWrite for HeaderedIo<T> {
+    fn poll_write(
+        self: std::pin::Pin<&mut Self>,
+        cx: &mut std::task::Context<'_>,
+        buf: &[u8],
+    ) -> std::task::Poll<std::io::Result<usize>> {
+        let this = self.get_mut();
+        std::task::ready!(this.poll_drain(cx))?;
+        if let Some(answer) = with_security_headers(buf, this.secure) {
+            this.pending = answer;
+            // The whole answer is taken; what the connection does not take now is written
+            // by the next write, flush or shutdown.
+            if let std::task::Poll::Ready(Err(e)) = this.poll_drain(cx) {
+                return std::task::Poll::Ready(Err(e));
+            }
+            return std::task::Poll::Ready(Ok(buf.len()));
+        }
+        std::pin::Pin::new(&mut this.inner).poll_write(cx, buf)
+    }
+
+    fn poll_flush(
+        self: std::pin::Pin<&mut Self>,
+        cx: &mut std::task::Context<'_>,
+    ) -> std::task::Poll<std::io::Result<()>> {
+        let this = self.get_mut();
+        std::task::ready!(this.poll_drain(cx))?;
+        std::pin::Pin::new(&mut this.inner).poll_flush(cx)
+    }
+
+    fn poll_shutdown(
+        self: std::pin::Pin<&mut Self>,
+        cx: &mut std::task::Context<'_>,
+    ) -> std::task::Poll<std::io::Result<()>> {
+        let this = self.get_mut();
+        std::task::ready!(this.poll_drain(cx))?;
+        std::pin::Pin::new(&mut this.inner).poll_shutdown(cx)
+    }
 }
 
 #[cfg(test)]
@@ -498,8 +732,70 @@ mod tests {
         assert_eq!(response.status(), StatusCode::PAYLOAD_TOO_LARGE);
         assert_eq!(
             body_text(response).await,
-            "POST /t/echo: The request is larger than 10 bytes."
+            "POST /t/echo: The request is larger than the 10 bytes this address accepts; send less at a time, for instance a catalog file split into files of at most 10 bytes each."
         );
+    }
+
+    #[tokio::test]
+    async fn an_extractor_refusing_an_undeclared_body_over_the_limit_is_drawn_with_the_limit() {
+        // No Content-Length header: the extractor's own 413 ("length limit exceeded",
+        // plain text) goes through the door with the route's limit in MB.
+        let limit = 2 * 1024 * 1024;
+        let echo = Router::new().route(
+            "/t/echo",
+            axum::routing::post(|body: axum::body::Bytes| async move { body.len().to_string() })
+                .layer(axum::extract::DefaultBodyLimit::max(limit))
+                .layer(axum::middleware::from_fn(move |req, next| {
+                    refuse_declared_body_over(limit, req, next)
+                })),
+        );
+        let app = with_baseline(echo, REQUEST_TIMEOUT, false, test_renderers());
+        let response = app
+            .oneshot(
+                Request::builder()
+                    .method(Method::POST)
+                    .uri("/t/echo")
+                    .body(Body::from(vec![b'x'; 3 * 1024 * 1024]))
+                    .unwrap(),
+            )
+            .await
+            .unwrap();
+        assert_eq!(response.status(), StatusCode::PAYLOAD_TOO_LARGE);
+        assert!(
+            response
+                .headers()
+                .contains_key(header::CONTENT_SECURITY_POLICY)
+        );
+        let text = body_text(response).await;
+        assert!(text.contains("the 2 MB this address accepts"), "{text}");
+        assert!(!text.contains("length limit exceeded"), "{text}");
+    }
+
+    #[test]
+    fn an_answer_the_http_library_made_gets_the_security_headers_and_others_are_untouched() {
+        let bare = b"HTTP/1.1 414 URI Too Long\r\ncontent-length: 0\r\ndate: x\r\n\r\n";
+        let out = String::from_utf8(with_security_headers(bare, false).unwrap()).unwrap();
+        assert!(out.starts_with("HTTP/1.1 414 URI Too Long\r\ncontent-security-policy: "));
+        assert!(
+            out.contains("\r\nx-content-type-options: nosniff\r\n"),
+            "{out}"
+        );
+        assert!(
+            out.ends_with("content-length: 0\r\ndate: x\r\n\r\n"),
+            "{out}"
+        );
+        assert!(!out.contains("strict-transport-security"));
+        let secure = String::from_utf8(with_security_headers(bare, true).unwrap()).unwrap();
+        assert!(secure.contains("strict-transport-security: max-age=31536000"));
+        // The service's own answers (they carry the policy), answers with a body, other
+        // statuses and body bytes pass unchanged.
+        let own = b"HTTP/1.1 414 URI Too Long\r\nContent-Security-Policy: x\r\n\r\n";
+        assert!(with_security_headers(own, false).is_none());
+        let with_body = b"HTTP/1.1 400 Bad Request\r\ncontent-length: 2\r\n\r\nno";
+        assert!(with_security_headers(with_body, false).is_none());
+        let ok = b"HTTP/1.1 200 OK\r\ncontent-length: 0\r\n\r\n";
+        assert!(with_security_headers(ok, false).is_none());
+        assert!(with_security_headers(b"galaxy,morphology\r\n", false).is_none());
     }
 
     #[tokio::test]

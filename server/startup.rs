@@ -164,14 +164,11 @@ impl Application {
         shutdown: impl Future<Output = ()> + Send + 'static,
     ) -> anyhow::Result<()> {
         let cleanup = tokio::spawn(clean_up_periodically(self.state.clone()));
+        let secure = self.state.settings.secure_cookies;
         let router = app(self.state);
-        let served = axum::serve(
-            self.listener,
-            router.into_make_service_with_connect_info::<SocketAddr>(),
-        )
-        .with_graceful_shutdown(shutdown)
-        .await
-        .context("the server stopped with an error");
+        let served = crate::router::serve(self.listener, router, secure, shutdown)
+            .await
+            .context("the server stopped with an error");
         cleanup.abort();
         served
     }

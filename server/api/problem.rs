@@ -12,7 +12,9 @@ use axum::http::{HeaderValue, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
 
-use crate::error::{AppError, FieldError, INTERNAL_MESSAGE};
+use axum::http::Method;
+
+use crate::error::{AppError, FieldError, INTERNAL_MESSAGE, bounded_fields};
 use crate::router::Asked;
 
 /// An RFC 9457 problem details object.
@@ -33,8 +35,16 @@ pub struct Problem {
 }
 
 impl Problem {
-    /// The problem details of `error` on an API path.
+    /// The problem details of `error` on an API path, for a request that could store
+    /// something (see [`Problem::answering`]).
     pub fn of(error: &AppError) -> Self {
+        Self::answering(error, &Method::POST)
+    }
+
+    /// The problem details of `error` answering a request with `method`: at most
+    /// [`crate::error::MAX_PROBLEMS`] fields, then one counting the rest; an invalid read
+    /// (GET) is not told that nothing was stored.
+    pub fn answering(error: &AppError, method: &Method) -> Self {
         let (title, detail) = match error {
             AppError::BadRequest { title, message, .. } => {
                 (title.unwrap_or("Bad request"), message.clone())
@@ -56,15 +66,19 @@ impl Problem {
             AppError::TooLarge { title, message } => {
                 (title.unwrap_or("Too large"), message.clone())
             }
-            AppError::BodyTooLarge { .. } => (
+            AppError::BodyTooLarge { limit_bytes: None } => (
                 "Too large",
                 "The request body is larger than this endpoint accepts; see /api/v1/openapi.json for its limit."
                     .to_owned(),
             ),
+            AppError::BodyTooLarge { .. } => ("Too large", error.to_string()),
             AppError::UnsupportedMediaType { message } => {
                 ("Unsupported media type", message.clone())
             }
-            AppError::Invalid { title, .. } => (title.unwrap_or("Invalid input"), error.to_string()),
+            AppError::Invalid { title, .. } => (
+                title.unwrap_or("Invalid input"),
+                error.public_message_for(method),
+            ),
             AppError::TooManyRequests { .. } => ("Too many requests", error.to_string()),
             AppError::Busy => ("Busy", error.to_string()),
             AppError::Unavailable => ("Unavailable", error.to_string()),
@@ -76,14 +90,14 @@ impl Problem {
             title: title.to_owned(),
             status: error.status().as_u16(),
             detail,
-            errors: error.fields().to_vec(),
+            errors: bounded_fields(error.fields()),
         }
     }
 }
 
 /// Draw `error` as problem+json (the API's door renderer).
-pub(crate) fn render(error: &AppError, _asked: &Asked) -> Response {
-    Problem::of(error).into_response()
+pub(crate) fn render(error: &AppError, asked: &Asked) -> Response {
+    Problem::answering(error, &asked.method).into_response()
 }
 
 impl IntoResponse for Problem {

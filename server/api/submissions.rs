@@ -27,7 +27,8 @@ use crate::state::AppState;
 /// At most this many measurements in one request (a file upload takes more).
 pub const MAX_MEASUREMENTS: usize = 100;
 
-/// A cell as a script may send it: the text as typed, or a plain number.
+/// A cell as a script may send it: the text as typed, or a plain number. `null` is read so
+/// that the answer can name the field and say what to send instead (it is never a value).
 #[derive(Debug, Clone, PartialEq, Deserialize, utoipa::ToSchema)]
 #[serde(untagged)]
 pub enum Cell {
@@ -35,6 +36,8 @@ pub enum Cell {
     Text(String),
     /// A plain number, read as its decimal text.
     Number(f64),
+    /// `null`: refused, naming the field.
+    Null,
 }
 
 impl Cell {
@@ -42,9 +45,17 @@ impl Cell {
         match self {
             Self::Text(t) => t.clone(),
             Self::Number(n) => n.to_string(),
+            Self::Null => String::new(),
         }
     }
 }
+
+/// The sentence for a `null` cell that may be left out.
+const NULL_OPTIONAL: &str =
+    "null is not a value; leave the field out, or give a number or text such as 16.5.";
+
+/// The sentence for a `null` cell that is required.
+const NULL_REQUIRED: &str = "null is not a value; give a number or text such as 16.5.";
 
 /// The galaxy a request describes (when it is not in the catalog yet). Keys and accepted
 /// words as the catalog file's galaxy columns.
@@ -255,6 +266,16 @@ fn idempotency_key(headers: &HeaderMap) -> ApiResult<String> {
 /// fault as its JSON path.
 async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResult<Checked> {
     let mut errors = Vec::new();
+    if let Some(g) = &request.new_galaxy {
+        for (name, cell) in [
+            ("distance_mpc", &g.distance_mpc),
+            ("distance_err_mpc", &g.distance_err_mpc),
+        ] {
+            if *cell == Cell::Null {
+                errors.push(FieldError::new(format!("new_galaxy.{name}"), NULL_REQUIRED));
+            }
+        }
+    }
     let texts = measurement_texts(&request.measurements, &mut errors);
     let new_cells: Option<BTreeMap<&'static str, String>> = request.new_galaxy.as_ref().map(|g| {
         [
@@ -302,6 +323,7 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
         rows,
         note: &request.note,
     };
+    let null_fields: Vec<String> = errors.iter().map(|e| e.field.clone()).collect();
     let faults = match intake::check(&state.pool, &cells).await? {
         Ok(checked) if errors.is_empty() => return Ok(checked),
         Ok(_) => Vec::new(),
@@ -311,7 +333,9 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
         faults
             .into_iter()
             .filter(|f| !(unclear && f.cell == intake::Cell::Galaxy))
-            .map(|f| FieldError::new(json_path(f.cell), f.message)),
+            .map(|f| FieldError::new(json_path(f.cell), f.message))
+            // A `null` already named is not also "required".
+            .filter(|f| !null_fields.contains(&f.field)),
     );
     // In the order of the request: the galaxy, the measurements one by one, the note.
     errors.sort_by_key(|e| request_order(&e.field));
@@ -350,6 +374,20 @@ fn measurement_texts(
                 ),
                 "Not a measurement field; the fields are the catalog file's measurement columns.",
             ));
+            continue;
+        }
+        let nulls: Vec<&String> = cells
+            .iter()
+            .filter(|(_, v)| **v == Cell::Null)
+            .map(|(k, _)| k)
+            .collect();
+        if !nulls.is_empty() {
+            for k in nulls {
+                errors.push(FieldError::new(
+                    format!("measurements[{i}].{k}"),
+                    NULL_OPTIONAL,
+                ));
+            }
             continue;
         }
         texts.push((

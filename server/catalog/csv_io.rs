@@ -22,6 +22,32 @@ use crate::auth::secret::sha256_hex;
 
 pub(super) type Record = HashMap<String, String>;
 
+/// The first characters that make a spreadsheet read a cell as a formula or a command (OWASP,
+/// "CSV Injection"): `=`, `+`, `-`, `@`, tab and carriage return.
+const FORMULA_STARTS: [char; 6] = ['=', '+', '-', '@', '\t', '\r'];
+
+/// A text cell as every CSV file of the service writes it: a cell that would start with a
+/// formula character (after any single quotes it already begins with) gets one more leading
+/// `'`, which spreadsheets take as "text, do not evaluate" and do not show. Only free-text and
+/// code columns pass through here; numbers the service formats itself (`-0.3`) stay numbers.
+/// [`unguard_cell`] takes the quote off again on import, so export → import is lossless.
+pub fn guard_text_cell(text: &str) -> std::borrow::Cow<'_, str> {
+    if text.trim_start_matches('\'').starts_with(FORMULA_STARTS) {
+        std::borrow::Cow::Owned(format!("'{text}"))
+    } else {
+        std::borrow::Cow::Borrowed(text)
+    }
+}
+
+/// A cell as read from a CSV file: the inverse of [`guard_text_cell`] (one leading `'` is
+/// dropped when the quotes are followed by a formula character; any other cell is as typed).
+pub(super) fn unguard_cell(text: &str) -> &str {
+    match text.strip_prefix('\'') {
+        Some(rest) if rest.trim_start_matches('\'').starts_with(FORMULA_STARTS) => rest,
+        _ => text,
+    }
+}
+
 /// Counts lines up to a byte offset, moving forward only (records come in order, so a whole
 /// file is counted once). The csv reader's own line numbers drift on CRLF line ends, which
 /// browsers send for every pasted text and spreadsheets write; counting `\n` is right for both.
@@ -88,7 +114,7 @@ pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record
         let map = headers
             .iter()
             .zip(rec.iter())
-            .map(|(h, v)| (h.to_string(), v.to_string()))
+            .map(|(h, v)| (h.to_string(), unguard_cell(v).to_string()))
             .collect();
         out.push((line, map));
     }
@@ -118,6 +144,16 @@ pub const COLUMNS: [&str; 20] = [
     "reference",
     "note",
     "row_key",
+];
+
+/// The columns the export writes as numbers of its own formatting; every other column is text
+/// and passes through [`guard_text_cell`].
+const NUMBER_COLUMNS: [&str; 5] = [
+    "distance_mpc",
+    "distance_err_mpc",
+    "limit_confidence_sigma",
+    "source_distance_mpc",
+    "resolution_arcsec",
 ];
 
 /// The columns that carry a row's content (all but `row_key`): its fingerprint is taken over
@@ -163,6 +199,27 @@ pub enum ImportError {
     /// The database failed.
     #[error("The database failed; nothing was imported.")]
     Db(#[from] sqlx::Error),
+}
+
+/// At most this many faulty rows are listed in a report (pages, the command line); the rest
+/// are counted, so a large file of faulty rows does not make a larger report.
+pub const MAX_REPORTED_ROWS: usize = 200;
+
+/// The rows of a fault report to list (the first [`MAX_REPORTED_ROWS`]) and the sentence
+/// summing it up, which counts every faulty row and the ones left out.
+pub fn reported_faults(rows: &[RowError]) -> (&[RowError], String) {
+    let listed = &rows[..rows.len().min(MAX_REPORTED_ROWS)];
+    let summary = if rows.len() > listed.len() {
+        format!(
+            "{} faulty rows; nothing was imported; the first {} are listed and {} more are not: correct these and send the file again.",
+            rows.len(),
+            listed.len(),
+            rows.len() - listed.len()
+        )
+    } else {
+        format!("{} faulty row(s); nothing was imported.", rows.len())
+    };
+    (listed, summary)
 }
 
 /// File name used in row reports.
@@ -359,9 +416,20 @@ pub async fn import_rows(
     let mut faults = Vec::new();
     let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
     for r in rows {
-        match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
-            None => fresh.push(r),
-            Some(Some(sha)) if Some(&sha) != r.row.sha256.as_ref() => faults.push(RowError {
+        let stored = match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
+            None => {
+                fresh.push(r);
+                continue;
+            }
+            Some(stored) => stored,
+        };
+        // A row carrying an exported key is compared with what the export wrote for it.
+        let sha = match (stored.row_sha256, stored.by_digest) {
+            (Some(_), true) => exported_fingerprint(&mut tx, stored.measurement_id).await?,
+            (sha, _) => sha,
+        };
+        match sha {
+            Some(sha) if Some(&sha) != r.row.sha256.as_ref() => faults.push(RowError {
                 file: FILE,
                 line: r.line,
                 column: "row_key",
@@ -370,7 +438,7 @@ pub async fn import_rows(
                     r.row.key.chars().take(80).collect::<String>()
                 ),
             }),
-            Some(_) => {}
+            _ => {}
         }
     }
     if !faults.is_empty() {
@@ -601,9 +669,44 @@ impl ExportRow {
             opt(self.resolution_arcsec),
             self.reference.clone(),
             self.note.clone(),
-            self.row_key.clone(),
+            galaxies::public_row_key(&self.row_key),
         ]
     }
+}
+
+/// The columns of an [`ExportRow`], over `measurement m` and `galaxy g`.
+const EXPORT_SELECT: &str =
+    "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
+                g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
+                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
+                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
+                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit";
+
+/// The fingerprint ([`row_key_of`]) of the cells an export writes for a measurement, or
+/// `None` when it is gone.
+async fn exported_fingerprint(
+    tx: &mut sqlx::Transaction<'_, sqlx::Sqlite>,
+    measurement_id: i64,
+) -> sqlx::Result<Option<String>> {
+    let row: Option<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
+        "{EXPORT_SELECT}
+           from measurement m join galaxy g on g.galaxy_id = m.galaxy_id
+          where m.measurement_id = ?"
+    )))
+    .bind(measurement_id)
+    .fetch_optional(&mut **tx)
+    .await?;
+    Ok(row.and_then(|row| {
+        let cells = row.cells();
+        let cell = |c: &'static str| {
+            COLUMNS
+                .iter()
+                .position(|k| *k == c)
+                .map_or("", |i| cells[i].as_str())
+        };
+        row_key_of(&cell).ok().and_then(|k| k.sha256)
+    }))
 }
 
 /// The adopted rows and the catalog version, read in one transaction so the two agree.
@@ -613,19 +716,14 @@ async fn adopted_rows(pool: &SqlitePool) -> anyhow::Result<(Vec<ExportRow>, i64)
         sqlx::query_scalar("select catalog_version from catalog_state where catalog_state_id = 1")
             .fetch_one(&mut *tx)
             .await?;
-    let rows: Vec<ExportRow> = sqlx::query_as(
-        "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
-                g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
-                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
-                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
-                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit
+    let rows: Vec<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
+        "{EXPORT_SELECT}
            from adopted_value a
            join measurement m on m.measurement_id = a.measurement_id
            join galaxy g on g.galaxy_id = a.galaxy_id
        order by g.name, case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
-                                        when 'bulge_mass' then 2 else 3 end, m.band",
-    )
+                                        when 'bulge_mass' then 2 else 3 end, m.band"
+    )))
     .fetch_all(&mut *tx)
     .await?;
     tx.commit().await?;
@@ -643,7 +741,18 @@ pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(COLUMNS)?;
     for r in &rows {
-        w.write_record(r.cells())?;
+        let cells: Vec<String> = COLUMNS
+            .iter()
+            .zip(r.cells())
+            .map(|(column, cell)| {
+                if NUMBER_COLUMNS.contains(column) {
+                    cell
+                } else {
+                    guard_text_cell(&cell).into_owned()
+                }
+            })
+            .collect();
+        w.write_record(&cells)?;
     }
     let bytes = w.into_inner().map_err(|e| anyhow::anyhow!("{e}"))?;
     Ok((String::from_utf8(bytes)?, version))
@@ -1067,6 +1176,166 @@ mod tests {
             vec![(3, "row_key")]
         );
         assert_eq!(count(&pool, "measurement").await, 1);
+    }
+
+    #[test]
+    fn a_report_lists_the_first_faulty_rows_and_counts_the_rest() {
+        let body: String = (0..1000)
+            .map(|i| format!("Tesk {i},,,,,,,bh_mass,-1,,,maser,,,,,,,\n"))
+            .collect();
+        let faults = parse_catalog_csv(&format!("{HEADER}\n{body}")).unwrap_err();
+        assert_eq!(faults.len(), 1000);
+        let (listed, summary) = reported_faults(&faults);
+        assert_eq!(listed.len(), MAX_REPORTED_ROWS);
+        assert_eq!(listed[0].line, 2);
+        assert!(summary.starts_with("1000 faulty rows"), "{summary}");
+        assert!(summary.contains("800 more"), "{summary}");
+        let (listed, summary) = reported_faults(&faults[..3]);
+        assert_eq!(listed.len(), 3);
+        assert_eq!(summary, "3 faulty row(s); nothing was imported.");
+    }
+
+    #[tokio::test]
+    async fn exported_row_keys_reveal_no_stored_key_and_still_reimport_to_nothing_new() {
+        let (_a, first) = temp_pool().await;
+        // Stored keys as a form request makes them (account id, client key) and as a member
+        // chose them for a file row.
+        let text = format!(
+            "{HEADER},row_key\n\
+             Tesk 91,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,,,7:client-key-123#1\n\
+             Tesk 91,,,,,,,bh_mass,2e8 ± 0.4e8,,,stellar_dynamics,,,,20,0.1,,,member1-private-batch\n"
+        );
+        import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (exported, _) = export_csv(&first).await.unwrap();
+        for secret in ["7:", "client-key-123", "member1", "private-batch"] {
+            assert!(!exported.contains(secret), "{secret} in {exported}");
+        }
+        let rows = parse_catalog_csv(&exported).unwrap();
+        for r in &rows {
+            assert!(
+                r.row.key.starts_with("rk-") && r.row.key.len() == 67,
+                "{}",
+                r.row.key
+            );
+        }
+        // Into the catalog it came from: nothing new.
+        let again = import_csv(&first, &exported, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!((again.measurements, again.skipped), (0, 2));
+        // Into an empty catalog: the same export, and again nothing new the second time.
+        let (_b, second) = temp_pool().await;
+        import_csv(&second, &exported, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(export_csv(&second).await.unwrap().0, exported);
+        let twice = import_csv(&second, &exported, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(twice.measurements, 0);
+    }
+
+    #[tokio::test]
+    async fn rows_stored_before_the_digest_column_get_it_when_the_database_opens() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.sqlite");
+        let pool = crate::catalog::connect(&path).await.unwrap();
+        load_demo(&pool).await.unwrap();
+        let (before, _) = export_csv(&pool).await.unwrap();
+        sqlx::query("update measurement set row_key_digest = null")
+            .execute(&pool)
+            .await
+            .unwrap();
+        pool.close().await;
+        let pool = crate::catalog::connect(&path).await.unwrap();
+        assert_eq!(
+            count_where(&pool, "measurement", "row_key_digest is null").await,
+            0
+        );
+        let again = import_csv(&pool, &before, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(again.measurements, 0);
+    }
+
+    async fn count_where(pool: &SqlitePool, table: &str, condition: &str) -> i64 {
+        sqlx::query_scalar(sqlx::AssertSqlSafe(format!(
+            "select count(*) from {table} where {condition}"
+        )))
+        .fetch_one(pool)
+        .await
+        .unwrap()
+    }
+
+    #[test]
+    fn formula_cells_get_one_quote_and_lose_it_on_import() {
+        for (stored, written) in [
+            ("=1+1", "'=1+1"),
+            ("+cmd", "'+cmd"),
+            ("-x", "'-x"),
+            ("@SUM(A1)", "'@SUM(A1)"),
+            ("\tx", "'\tx"),
+            ("\rx", "'\rx"),
+            // A cell that already starts with quotes before a formula character gets one more,
+            // so that import, which drops one, gives it back unchanged.
+            ("'=x", "''=x"),
+            ("''+x", "'''+x"),
+            ("'quoted", "'quoted"),
+            ("X 214", "X 214"),
+            ("", ""),
+        ] {
+            assert_eq!(guard_text_cell(stored), written, "{stored:?}");
+            assert_eq!(unguard_cell(written), stored, "{written:?}");
+        }
+    }
+
+    #[tokio::test]
+    async fn an_export_neutralises_formula_cells_and_reimports_them_unchanged() {
+        let (_a, first) = temp_pool().await;
+        let text = format!(
+            "{HEADER}\n\
+             Tesk 81,elliptical,classical,core,20,1,sbf,sigma,210 ± 10,,,,sigma_e,r_e,,,,-Invented 2031,=HYPERLINK(\"x\")\n\
+             Tesk 81,,,,,,,bh_mass,2e8 ± 0.4e8,,,stellar_dynamics,,,,20,0.1,@Invented 2031,''=kept as typed\n"
+        );
+        import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (exported, _) = export_csv(&first).await.unwrap();
+        let mut reader = csv::Reader::from_reader(exported.as_bytes());
+        let header = reader.headers().unwrap().clone();
+        for record in reader.records() {
+            for (column, cell) in header.iter().zip(record.unwrap().iter()) {
+                if NUMBER_COLUMNS.contains(&column) {
+                    assert!(
+                        cell.is_empty() || cell.parse::<f64>().is_ok(),
+                        "{column}: {cell}"
+                    );
+                } else {
+                    assert!(!cell.starts_with(FORMULA_STARTS), "{column}: {cell:?}");
+                }
+            }
+        }
+        assert!(exported.contains("'=HYPERLINK"), "{exported}");
+        assert!(exported.contains("''=kept as typed"), "{exported}");
+        // Into an empty catalog: the stored texts come back as they were typed, and the second
+        // export is the first.
+        let (_b, second) = temp_pool().await;
+        import_csv(&second, &exported, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let q = "select reference, note from measurement order by reference";
+        let a: Vec<(String, String)> = sqlx::query_as(q).fetch_all(&first).await.unwrap();
+        let b: Vec<(String, String)> = sqlx::query_as(q).fetch_all(&second).await.unwrap();
+        assert_eq!(a, b);
+        assert!(a.contains(&("@Invented 2031".to_owned(), "'=kept as typed".to_owned())));
+        assert_eq!(export_csv(&second).await.unwrap().0, exported);
+        // Into the catalog it came from: nothing new.
+        let again = import_csv(&first, &exported, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!((again.measurements, again.skipped), (0, 2));
     }
 
     #[tokio::test]

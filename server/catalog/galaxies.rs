@@ -2,6 +2,8 @@
 
 use sqlx::{Sqlite, SqlitePool, Transaction};
 
+use crate::auth::secret::sha256_hex;
+
 use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, SubmissionState, slugify};
 
 /// Insert a galaxy and return it with its key and a unique slug.
@@ -120,18 +122,106 @@ pub struct RowKey {
     pub sha256: Option<String>,
 }
 
-/// The row key stored under `key`, if any: `Some(sha256)` (itself optional).
+/// The prefix of an exported row key.
+const PUBLIC_ROW_KEY_PREFIX: &str = "rk-";
+
+/// What is hashed before a stored row key, so the digest serves this purpose only.
+const PUBLIC_ROW_KEY_DOMAIN: &str = "massline exported row key v1\u{0}";
+
+/// The key an export writes for a stored row key (`migrations/4_row_key_digest.sql`):
+/// `rk-` and the SHA-256 (hex) of a domain-separation prefix and the stored key, so it reveals
+/// neither an account id nor a client's idempotency key nor a key chosen for a file row. A key
+/// that already has that form (a row imported from an export) is returned as it is, so the
+/// digest of a digest is itself.
+pub fn public_row_key(stored: &str) -> String {
+    if is_public_row_key(stored) {
+        stored.to_owned()
+    } else {
+        format!(
+            "{PUBLIC_ROW_KEY_PREFIX}{}",
+            sha256_hex(&format!("{PUBLIC_ROW_KEY_DOMAIN}{stored}"))
+        )
+    }
+}
+
+/// Whether `key` has the form of an exported key (`rk-` and 64 lower-case hex digits).
+fn is_public_row_key(key: &str) -> bool {
+    key.strip_prefix(PUBLIC_ROW_KEY_PREFIX).is_some_and(|hex| {
+        hex.len() == 64 && hex.bytes().all(|b| matches!(b, b'0'..=b'9' | b'a'..=b'f'))
+    })
+}
+
+/// Give every measurement stored before `migrations/4_row_key_digest.sql` its exported key,
+/// in one write transaction; nothing to do (one read) once all have theirs.
+///
+/// # Errors
+/// Any database error.
+pub async fn fill_row_key_digests(pool: &SqlitePool) -> sqlx::Result<()> {
+    let missing: Vec<(i64, String)> = sqlx::query_as(
+        "select measurement_id, row_key from measurement
+          where row_key is not null and row_key_digest is null",
+    )
+    .fetch_all(pool)
+    .await?;
+    if missing.is_empty() {
+        return Ok(());
+    }
+    let mut tx = super::begin_write(pool).await?;
+    for (id, key) in missing {
+        sqlx::query(
+            "update measurement set row_key_digest = ?
+              where measurement_id = ? and row_key_digest is null",
+        )
+        .bind(public_row_key(&key))
+        .bind(id)
+        .execute(&mut *tx)
+        .await?;
+    }
+    tx.commit().await
+}
+
+/// A measurement found by a file row's key.
+#[derive(Debug, Clone, PartialEq, Eq, sqlx::FromRow)]
+pub struct StoredRow {
+    /// The measurement.
+    pub measurement_id: i64,
+    /// The SHA-256 of the cells it was imported from (`None` for form, API and demo rows).
+    pub row_sha256: Option<String>,
+    /// Whether the key is the one exports write ([`public_row_key`]) rather than the stored
+    /// key itself: the row then comes from an export, whose cells are the measurement's
+    /// exported cells, not the cells it was first imported from.
+    pub by_digest: bool,
+}
+
+/// The row stored under `key`, if any. `key` is matched against the stored keys and against
+/// the keys exports write ([`public_row_key`]), so an exported file re-imports to nothing new.
 ///
 /// # Errors
 /// Any database error.
 pub async fn stored_row_key(
     tx: &mut Transaction<'_, Sqlite>,
     key: &str,
-) -> sqlx::Result<Option<Option<String>>> {
-    sqlx::query_scalar("select row_sha256 from measurement where row_key = ?")
+) -> sqlx::Result<Option<StoredRow>> {
+    // Only a key of the exported form can be another row's digest: other keys (most file
+    // rows) take the one look-up by the stored key.
+    if !is_public_row_key(key) {
+        return sqlx::query_as(
+            "select measurement_id, row_sha256, 0 as by_digest from measurement where row_key = ?",
+        )
         .bind(key)
         .fetch_optional(&mut **tx)
-        .await
+        .await;
+    }
+    sqlx::query_as(
+        "select measurement_id, row_sha256, 0 as by_digest from measurement where row_key = ?1
+         union all
+         select measurement_id, row_sha256, 1 as by_digest from measurement
+          where row_key_digest = ?1 and row_key <> ?1
+         order by by_digest limit 1",
+    )
+    .bind(key)
+    .fetch_optional(&mut **tx)
+    .await
 }
 
 /// Insert a measurement of a galaxy within a submission and return its key.
@@ -151,8 +241,8 @@ pub async fn insert_measurement(
                                   err_plus_dex, err_dex, upper_limit, limit_confidence_sigma,
                                   method, sigma_definition, aperture, band, source_distance_mpc,
                                   resolution_arcsec, reference, note, value_text, value_scale,
-                                  row_key, row_sha256)
-         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
+                                  row_key, row_sha256, row_key_digest)
+         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          returning measurement_id",
     )
     .bind(galaxy_id)
@@ -176,6 +266,7 @@ pub async fn insert_measurement(
     .bind(&m.value_scale)
     .bind(&row.key)
     .bind(&row.sha256)
+    .bind(public_row_key(&row.key))
     .fetch_one(&mut **tx)
     .await
 }

@@ -142,7 +142,6 @@ pub(super) fn measurement_from_fields<'a>(
     let reference = field("reference").text.trim();
     let note = field("note").text.trim();
     for (column, text, max) in [
-        ("aperture", aperture, 100),
         ("reference", reference, 300),
         ("note", note, NOTE_MAX_CHARS),
     ] {
@@ -150,8 +149,11 @@ pub(super) fn measurement_from_fields<'a>(
             return Err(field(column).error(format!("at most {max} characters")));
         }
     }
-    if band.chars().count() > 10 {
-        return Err(field("band").error("a band name has at most 10 characters".into()));
+    if !band.is_empty() {
+        check_band(band).map_err(|e| field("band").error(e))?;
+    }
+    if !aperture.is_empty() {
+        check_aperture(aperture).map_err(|e| field("aperture").error(e))?;
     }
     Ok(NewMeasurement {
         quantity,
@@ -184,6 +186,63 @@ pub(super) fn measurement_from_fields<'a>(
         }
         .to_string(),
     })
+}
+
+/// A text quoted in a message: at most 20 characters of it.
+fn quoted(text: &str) -> String {
+    let mut shown: String = text.chars().take(20).collect();
+    if shown.len() < text.len() {
+        shown.push('…');
+    }
+    shown
+}
+
+/// The grammar of a photometric band's name: 1 to 10 ASCII letters and digits, with `.`, `_`,
+/// `-` or `/` between them, starting with a letter or digit (`K`, `V`, `Ks`, `K_s`, `3.6um`,
+/// `F814W`). Bands are codes that group luminosities into relations, so nothing else is taken.
+///
+/// # Errors
+/// The sentence fragment saying what to type instead.
+pub fn check_band(band: &str) -> Result<(), String> {
+    let inner = |c: char| c.is_ascii_alphanumeric() || matches!(c, '.' | '_' | '-' | '/');
+    let ok = (1..=10).contains(&band.chars().count())
+        && band.starts_with(|c: char| c.is_ascii_alphanumeric())
+        && band.chars().all(inner);
+    if ok {
+        Ok(())
+    } else {
+        Err(format!(
+            "'{}' is not a band name; type 1 to 10 letters and digits, with . _ - or / between them, such as K, V, 3.6um or F814W",
+            quoted(band)
+        ))
+    }
+}
+
+/// The grammar of an aperture as published: up to 100 characters, starting with a letter or
+/// digit, then letters, digits, spaces and `. _ / - + * × , ( ) ' " ″` (`r_e`, `r_e/8`,
+/// `1.5 arcsec`, `2" slit`).
+///
+/// # Errors
+/// The sentence fragment saying what to type instead.
+pub fn check_aperture(aperture: &str) -> Result<(), String> {
+    let inner = |c: char| {
+        c.is_alphanumeric()
+            || matches!(
+                c,
+                ' ' | '.' | '_' | '/' | '-' | '+' | '*' | '×' | ',' | '(' | ')' | '\'' | '"' | '″'
+            )
+    };
+    let ok = aperture.chars().count() <= 100
+        && aperture.starts_with(char::is_alphanumeric)
+        && aperture.chars().all(inner);
+    if ok {
+        Ok(())
+    } else {
+        Err(format!(
+            "'{}' is not an aperture; type up to 100 letters, digits and spaces starting with a letter or digit, with . _ / - + * , ( ) or quotes inside, such as r_e/8 or 1.5 arcsec",
+            quoted(aperture)
+        ))
+    }
 }
 
 /// One cell of a row, with enough context to say where a problem is.
@@ -434,6 +493,56 @@ mod tests {
         );
         assert_eq!(sentence("Done."), "Done.");
         assert_eq!(sentence(""), "The request could not be read.");
+    }
+
+    #[test]
+    fn bands_and_apertures_take_only_their_grammar() {
+        for band in ["K", "V", "Ks", "K_s", "3.6um", "F814W", "r/i", "W1-W2"] {
+            assert_eq!(check_band(band), Ok(()), "{band}");
+        }
+        for band in [
+            "=1+1",
+            "+K",
+            "-K",
+            "@K",
+            "K band",
+            "K;V",
+            "ÄK",
+            "'K",
+            "ABCDEFGHIJK",
+            "K\t",
+        ] {
+            let message = check_band(band).unwrap_err();
+            assert!(message.contains("such as K"), "{band}: {message}");
+        }
+        for aperture in [
+            "r_e",
+            "r_e/8",
+            "1.5 arcsec",
+            "2\" slit",
+            "R_e (major axis)",
+            "0.5×2″",
+        ] {
+            assert_eq!(check_aperture(aperture), Ok(()), "{aperture}");
+        }
+        for aperture in ["=1+1", "-r_e", "@x", " r_e", "r_e; drop", "r<e>"] {
+            let message = check_aperture(aperture).unwrap_err();
+            assert!(message.contains("such as r_e/8"), "{aperture}: {message}");
+        }
+        assert!(check_aperture(&"r".repeat(101)).is_err());
+    }
+
+    #[test]
+    fn a_formula_band_is_refused_where_every_door_reads_cells() {
+        let cells = |c: &'static str| match c {
+            "quantity" => "bulge_luminosity",
+            "value" => "2e10 ± 0.4e10",
+            "band" => "=1+1",
+            _ => "",
+        };
+        let e = measurement_from_cells("form", 0, &cells).unwrap_err();
+        assert_eq!(e.column, "band");
+        assert!(e.message.contains("not a band name"), "{}", e.message);
     }
 
     #[test]

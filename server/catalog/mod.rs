@@ -114,6 +114,9 @@ pub async fn connect_with_limits(db_path: &Path, limits: Limits) -> anyhow::Resu
         .run(&pool)
         .await
         .context("could not apply the database migrations")?;
+    galaxies::fill_row_key_digests(&pool)
+        .await
+        .context("could not give the stored row keys their exported form")?;
     Ok(pool)
 }
 

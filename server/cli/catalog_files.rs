@@ -126,10 +126,11 @@ pub fn run_import(
                 } else {
                     "line"
                 };
-                for r in &rows {
+                let (listed, summary) = crate::catalog::csv_io::reported_faults(&rows);
+                for r in listed {
                     writeln!(err, "{unit} {}, column '{}': {}", r.line, r.column, r.message)?;
                 }
-                anyhow::bail!("{} faulty row(s); nothing was imported", rows.len())
+                anyhow::bail!("{}", summary.trim_end_matches('.'))
             }
             Err(e) => Err(e.into()),
         }

@@ -145,7 +145,7 @@ impl SampleFilter {
         if problems.is_empty() {
             Ok(filter)
         } else {
-            Err(problems.join(" "))
+            Err(crate::error::join_problems(problems))
         }
     }
 

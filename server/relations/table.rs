@@ -186,7 +186,7 @@ impl TableQuery {
         if problems.is_empty() {
             Ok(q)
         } else {
-            Err(problems.join(" "))
+            Err(crate::error::join_problems(problems))
         }
     }
 

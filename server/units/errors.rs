@@ -94,6 +94,18 @@ pub enum EntryError {
         /// The number as typed.
         fragment: String,
     },
+    /// With [`Scale::Linear`](super::Scale::Linear) (the default of files and the API), a
+    /// bare number is implausible as a linear value but plausible as a log10.
+    #[error(
+        "The {quantity} `{fragment}` reads as {fragment} {} on the linear scale, which is implausible, so if you meant log10 = {fragment}, set the scale to `log10` (or type `log {fragment}` with the scale `auto`).",
+        quantity.unit_label()
+    )]
+    LinearLooksLog {
+        /// What the value measures.
+        quantity: Quantity,
+        /// The number as typed.
+        fragment: String,
+    },
     /// The log scale was chosen (or `log` typed) but the number is written in a linear
     /// notation (`3.2e9`, `3.2x10^9`, `10^9.51`).
     #[error(
@@ -307,7 +319,19 @@ pub(super) mod tests {
                 matches!(e, E::AmbiguousScale { .. })
             }),
             ("9.51", bh, Scale::Linear, |e| {
+                matches!(e, E::LinearLooksLog { .. })
+            }),
+            ("500", bh, Scale::Linear, |e| {
                 matches!(e, E::OutOfRange { .. })
+            }),
+            (
+                "3e8 +1e8/-3e8",
+                bh,
+                auto,
+                |e| matches!(e, E::LowerErrorReachesZero { suggestion, .. } if suggestion == "4e8"),
+            ),
+            ("3e8 ± 3e8", bh, auto, |e| {
+                matches!(e, E::LowerErrorReachesZero { .. })
             }),
             ("9.51e0", bh, auto, |e| matches!(e, E::OutOfRange { .. })),
             ("log 3.2e9", bh, auto, |e| {
@@ -489,6 +513,15 @@ pub(super) mod tests {
         assert!(message.contains("log10 = 9.51"), "{message}");
         assert!(message.contains("`log 9.51`"), "{message}");
         assert!(message.contains("9.51 M☉"), "{message}");
+        let message = parse_entry("9.51", Quantity::BlackHoleMass, Scale::Linear)
+            .unwrap_err()
+            .to_string();
+        assert!(message.contains("log10 = 9.51"), "{message}");
+        assert!(message.contains("`log10`"), "{message}");
+        let message = parse_entry("3e8 +1e8/-3e8", Quantity::BlackHoleMass, Scale::Auto)
+            .unwrap_err()
+            .to_string();
+        assert!(message.contains("`<4e8`"), "{message}");
         let message = parse_entry("1e7 +2e7/-1e7", Quantity::BlackHoleMass, Scale::Auto)
             .unwrap_err()
             .to_string();

@@ -128,15 +128,18 @@ pub fn parse_entry(text: &str, quantity: Quantity, scale: Scale) -> Result<Entry
         let log_value = magnitude_log10(value, text, quantity)?;
         // A bare number that only makes sense as a log10 (a "mass" of 9.51 M☉) is refused
         // rather than guessed: the two readings differ by ten orders of magnitude.
-        if scale == Scale::Auto
-            && value.form == Form::Plain
+        // With the linear scale (the default of files and the API) the same slip gets the
+        // same hint, worded for the scale column.
+        if value.form == Form::Plain
             && quantity.is_log_canonical()
             && !in_log_range(quantity, log_value)
             && in_log_range(quantity, value.linear)
         {
-            return Err(EntryError::AmbiguousScale {
-                quantity,
-                fragment: value.text(text).to_owned(),
+            let fragment = value.text(text).to_owned();
+            return Err(if scale == Scale::Auto {
+                EntryError::AmbiguousScale { quantity, fragment }
+            } else {
+                EntryError::LinearLooksLog { quantity, fragment }
             });
         }
         log_value
@@ -302,6 +305,10 @@ fn non_finite(quantity: Quantity, value: &Magnitude, text: &str) -> EntryError {
 ///
 /// `ln_1p` keeps small fractional errors accurate (δ/M of 10⁻⁶ would lose half its digits
 /// in log10(1 + δ/M)).
+/// Relative rounding of a value recovered from its log10 (10^log10(M) differs from M by a few
+/// units in the last place): a lower error within this fraction of the value reaches zero.
+const LOWER_ERROR_ROUNDING: f64 = 1e-12;
+
 fn dex_errors(
     errors: &ErrorSyntax,
     log_value: f64,
@@ -339,7 +346,9 @@ fn dex_errors(
         };
         let delta_plus = to_linear(delta_plus, plus.unit);
         let delta_minus = to_linear(delta_minus, minus.unit);
-        if delta_minus >= m {
+        // Within rounding of the value: 3e8 −3e8 reaches zero although 10^log10(3e8) comes
+        // back a few units in the last place above 3e8.
+        if delta_minus >= m * (1.0 - LOWER_ERROR_ROUNDING) {
             return Err(EntryError::LowerErrorReachesZero {
                 quantity,
                 suggestion: format_compact(m + delta_plus),

@@ -61,9 +61,10 @@
 //! - commas inside numbers (`1,200`, `3,2e9`): a comma separates thousands in some countries
 //!   and decimals in others, so it is refused with the two readings spelled out;
 //! - non-finite numbers (`inf`, `nan`, `1e400`), zero and negative linear values;
-//! - a bare number such as `9.51` for a mass, luminosity or dispersion with [`Scale::Auto`]
-//!   when it is implausible as a linear value but plausible as a log10: the entry is refused
-//!   with the advice to choose the log scale or type `log 9.51`, rather than guessed;
+//! - a bare number such as `9.51` for a mass, luminosity or dispersion when it is implausible
+//!   as a linear value but plausible as a log10: the entry is refused with the advice to choose
+//!   the log scale or type `log 9.51` ([`Scale::Auto`]), or to set the scale to `log10`
+//!   ([`Scale::Linear`], the default of files and the API), rather than guessed;
 //! - a log scale together with a linear notation (`log 3.2e9`, `10^9.51` with
 //!   [`Scale::Log10`]), and the word `log` together with [`Scale::Linear`];
 //! - values outside the plausible range of the quantity (see the `*_MIN`/`*_MAX` constants,

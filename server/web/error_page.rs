@@ -49,10 +49,11 @@ fn title(error: &AppError) -> &'static str {
     }
 }
 
-/// What the page says: the error's sentence, then each field at fault.
-fn message(error: &AppError) -> String {
-    let mut text = error.public_message();
-    for f in error.fields() {
+/// What the page says: the error's sentence, then each field at fault (at most
+/// [`crate::error::MAX_PROBLEMS`], then a count of the rest).
+fn message(error: &AppError, method: &Method) -> String {
+    let mut text = error.public_message_for(method);
+    for f in crate::error::bounded_fields(error.fields()) {
         text.push_str(&format!(" {}: {}", f.field, f.message));
     }
     text
@@ -69,7 +70,7 @@ pub(crate) fn render(error: &AppError, asked: &Asked) -> Response {
         return Redirect::to(&target).into_response();
     }
     let status = error.status();
-    let (title, message) = (title(error), message(error));
+    let (title, message) = (title(error), message(error, &asked.method));
     let body = match &asked.principal {
         Some(principal) => SessionErrorPage {
             status_code: status.as_u16(),

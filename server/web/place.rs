@@ -97,9 +97,22 @@ pub(crate) async fn show_place(
     let pairs = crate::router::query_pairs(query)?;
     let (texts, unknown) = ObjectTexts::from_pairs(&pairs);
     if !unknown.is_empty() {
+        // Each unknown name once, at most a hundred of them: a long address of bare
+        // parameters does not make a long page.
+        let (names, more) = crate::error::distinct_capped(unknown, crate::error::MAX_PROBLEMS);
+        let more = if more > 0 {
+            format!(" and {more} more")
+        } else {
+            String::new()
+        };
+        let verb = if names.len() == 1 && more.is_empty() {
+            "is not a parameter"
+        } else {
+            "are not parameters"
+        };
         return Err(AppError::bad_request(format!(
-            "'{}' is not a parameter of this page (it accepts {}).",
-            unknown.join("', '"),
+            "'{}'{more} {verb} of this page (it accepts {}).",
+            names.join("', '"),
             OBJECT_FIELDS.join(", ")
         )));
     }

@@ -12,6 +12,7 @@ use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
 use super::display::{fixed, significant};
+use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
 use crate::catalog::relation_rows;
 use crate::charts::{
@@ -205,7 +206,7 @@ impl RelationQuery {
         if problems.is_empty() {
             Ok(q)
         } else {
-            Err(problems.join(" "))
+            Err(crate::error::join_problems(problems))
         }
     }
 
@@ -1208,15 +1209,6 @@ pub(crate) async fn download_fit(
     ))
 }
 
-/// A CSV cell that a spreadsheet will not read as a formula.
-fn csv_text(text: &str) -> String {
-    if text.starts_with(['=', '+', '-', '@', '\t', '\r']) {
-        format!("'{text}")
-    } else {
-        text.to_owned()
-    }
-}
-
 /// `/relations/{relation}/sample.csv`: the fitted sample, one galaxy a row.
 pub(crate) async fn download_sample(
     State(state): State<AppState>,
@@ -1247,12 +1239,13 @@ pub(crate) async fn download_sample(
     w.write_record(&header).map_err(anyhow::Error::from)?;
     for (p, m) in outcome.sample.points.iter().zip(&outcome.sample.members) {
         w.write_record([
-            csv_text(&m.name),
-            m.slug.clone(),
-            m.morphology.clone(),
-            m.bulge_kind.clone(),
-            m.centre_kind.clone(),
-            m.mass_method.clone(),
+            // Text columns pass through the formula guard; the numbers are ours.
+            guard_text_cell(&m.name).into_owned(),
+            guard_text_cell(&m.slug).into_owned(),
+            guard_text_cell(&m.morphology).into_owned(),
+            guard_text_cell(&m.bulge_kind).into_owned(),
+            guard_text_cell(&m.centre_kind).into_owned(),
+            guard_text_cell(&m.mass_method).into_owned(),
             format!("{:.4}", p.x),
             format!("{:.4}", p.x_err),
             p.x2.map_or(String::new(), |v| format!("{v:.4}")),
@@ -1348,11 +1341,5 @@ mod tests {
         assert!((half - 0.0088f64.sqrt()).abs() < 1e-12, "{half}");
         assert!(((first.upper + first.lower) / 2.0 - (8.3 - 1.5)).abs() < 1e-12);
         assert!(mean_band(&fit, 2.0, 2.0).is_empty());
-    }
-
-    #[test]
-    fn csv_cells_never_start_a_formula() {
-        assert_eq!(csv_text("=cmd()"), "'=cmd()");
-        assert_eq!(csv_text("Corvane 30"), "Corvane 30");
     }
 }

@@ -684,10 +684,30 @@ pub(crate) struct UploadForm {
     csv: String,
 }
 
+/// Why an upload could not be read.
+enum UploadFault {
+    /// The body is over the route's limit.
+    TooLarge,
+    /// A sentence for the upload page.
+    Message(String),
+}
+
 /// The catalog text of an upload: the file field `file` if a file was chosen, else the pasted
 /// `csv` field. Uploads come as `multipart/form-data` (file input) or url-encoded (paste only).
-async fn upload_text(state: &AppState, request: axum::extract::Request) -> Result<String, String> {
+async fn upload_text(
+    state: &AppState,
+    request: axum::extract::Request,
+) -> Result<String, UploadFault> {
+    use axum::extract::multipart::MultipartError;
     use axum::extract::{FromRequest, Multipart};
+    // A body over the route's limit is a 413, which the router draws with the limit.
+    let fault = |what: &str, e: MultipartError| {
+        if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+            UploadFault::TooLarge
+        } else {
+            UploadFault::Message(format!("{what} could not be read: {e}."))
+        }
+    };
     let multipart = request
         .headers()
         .get(axum::http::header::CONTENT_TYPE)
@@ -696,39 +716,41 @@ async fn upload_text(state: &AppState, request: axum::extract::Request) -> Resul
     if !multipart {
         let Form(form) = Form::<UploadForm>::from_request(request, state)
             .await
-            .map_err(|e| format!("The form could not be read: {e}."))?;
+            .map_err(|e| {
+                if e.status() == StatusCode::PAYLOAD_TOO_LARGE {
+                    UploadFault::TooLarge
+                } else {
+                    UploadFault::Message(format!("The form could not be read: {e}."))
+                }
+            })?;
         return Ok(form.csv);
     }
     let mut parts = Multipart::from_request(request, state)
         .await
-        .map_err(|e| format!("The upload could not be read: {e}."))?;
+        .map_err(|e| UploadFault::Message(format!("The upload could not be read: {e}.")))?;
     let mut file = None;
     let mut pasted = String::new();
     while let Some(field) = parts
         .next_field()
         .await
-        .map_err(|e| format!("The upload could not be read: {e}."))?
+        .map_err(|e| fault("The upload", e))?
     {
         match field.name() {
             Some("file") => {
-                let bytes = field
-                    .bytes()
-                    .await
-                    .map_err(|e| format!("The file could not be read: {e}."))?;
+                let bytes = field.bytes().await.map_err(|e| fault("The file", e))?;
                 if !bytes.is_empty() {
                     let text = String::from_utf8(bytes.to_vec()).map_err(|_| {
-                        "The file is not UTF-8 text; save it as UTF-8 CSV (or JSON) and upload it again."
-                            .to_owned()
+                        UploadFault::Message(
+                            "The file is not UTF-8 text; save it as UTF-8 CSV (or JSON) and upload it again."
+                                .to_owned(),
+                        )
                     })?;
                     // A UTF-8 byte-order mark (spreadsheet exports) is not part of the header.
                     file = Some(text.trim_start_matches('\u{feff}').to_owned());
                 }
             }
             Some("csv") => {
-                pasted = field
-                    .text()
-                    .await
-                    .map_err(|e| format!("The form could not be read: {e}."))?;
+                pasted = field.text().await.map_err(|e| fault("The form", e))?;
             }
             _ => {}
         }
@@ -750,7 +772,8 @@ pub(crate) async fn upload(
     let user = session_of(&principal)?;
     let text = match upload_text(&state, request).await {
         Ok(t) => t,
-        Err(message) => {
+        Err(UploadFault::TooLarge) => return Err(AppError::BodyTooLarge { limit_bytes: None }),
+        Err(UploadFault::Message(message)) => {
             let mut page = upload_page(nav, user, String::new());
             page.summary = Some(message);
             return Ok((StatusCode::BAD_REQUEST, page).into_response());
@@ -782,12 +805,10 @@ pub(crate) async fn upload(
                 String::new()
             };
             let mut page = upload_page(nav, user, echo);
-            page.summary = Some(format!(
-                "{} faulty row(s); nothing was imported.",
-                rows.len()
-            ));
-            page.faults = rows
-                .into_iter()
+            let (listed, summary) = crate::catalog::csv_io::reported_faults(&rows);
+            page.summary = Some(summary);
+            page.faults = listed
+                .iter()
                 .map(|r| (r.line, r.column.to_owned(), sentence(&r.message)))
                 .collect();
             Ok((StatusCode::BAD_REQUEST, page).into_response())

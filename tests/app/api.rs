@@ -771,3 +771,32 @@ async fn the_api_page_lists_every_endpoint_with_curl_and_python_and_no_inline_sc
     assert!(!body.contains("<script"), "the CSP forbids inline script");
     assert!(body.contains("/static/massline.css"));
 }
+
+#[tokio::test]
+async fn ten_thousand_bare_parameters_get_one_short_problem_that_stores_nothing_said() {
+    let app = private_demo().await;
+    let t = token(&app, "reader1", Role::Member, "read").await;
+    let query = "a&".repeat(10_000);
+    let r = get(&app, &format!("/api/v1/galaxies?{query}"), Some(&t)).await;
+    assert_eq!(r.status, 422, "{}", &r.body[..r.body.len().min(500)]);
+    assert!(r.body.len() < 2_000, "{} bytes", r.body.len());
+    let v: Value = serde_json::from_str(&r.body).unwrap();
+    assert_eq!(v["errors"].as_array().unwrap().len(), 1, "{v}");
+    assert_eq!(v["errors"][0]["field"], "a");
+    // A read is not told that nothing was stored.
+    assert!(!v["detail"].as_str().unwrap().contains("stored"), "{v}");
+    // Many distinct bad names: the first 100, then one entry counting the rest.
+    let query: String = (0..300).map(|i| format!("p{i}=1&")).collect();
+    let r = get(&app, &format!("/api/v1/galaxies?{query}"), Some(&t)).await;
+    assert_eq!(r.status, 422);
+    let v: Value = serde_json::from_str(&r.body).unwrap();
+    let errors = v["errors"].as_array().unwrap();
+    assert_eq!(errors.len(), 101, "{v}");
+    assert!(
+        errors[100]["message"]
+            .as_str()
+            .unwrap()
+            .contains("200 more"),
+        "{v}"
+    );
+}

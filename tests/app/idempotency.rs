@@ -388,3 +388,51 @@ async fn a_file_uploaded_twice_adds_nothing_and_the_json_export_is_stamped() {
         count(&app, "adopted_value").await
     );
 }
+
+#[tokio::test]
+async fn a_null_cell_bare_log_mass_and_formula_band_are_named_with_what_to_send() {
+    let app = spawn_demo_app().await;
+    let member = app.create_account("script-member2", Role::Member).await;
+    let (token, _) = app.make_token(member, "read submit").await;
+    let body = json!({
+        "new_galaxy": {
+            "name": "X 214", "morphology": "elliptical", "bulge_kind": "classical",
+            "centre_kind": "core", "distance_mpc": null, "distance_err_mpc": 1,
+            "distance_method": "sbf"
+        },
+        "measurements": [
+            {"quantity": "bh_mass", "value": "9.51", "method": "stellar_dynamics"},
+            {"quantity": "bulge_luminosity", "value": "2e10 ± 0.4e10", "band": "=1+1"},
+            {"quantity": "sigma", "value": "210 ± 10", "sigma_definition": "sigma_e",
+             "reference": null}
+        ]
+    });
+    let before = count(&app, "measurement").await;
+    let (status, _, answer) = post_api(&app, Some(&token), Some("nulls-1"), &body).await;
+    assert_eq!(status, 422, "{answer}");
+    let errors = answer["errors"].as_array().unwrap();
+    let message_of = |field: &str| -> String {
+        let hits: Vec<&Value> = errors.iter().filter(|e| e["field"] == field).collect();
+        assert_eq!(hits.len(), 1, "{field} in {answer}");
+        hits[0]["message"].as_str().unwrap().to_owned()
+    };
+    let null = message_of("new_galaxy.distance_mpc");
+    assert!(
+        null.contains("null is not a value") && null.contains("16.5"),
+        "{null}"
+    );
+    assert!(!null.contains("untagged"), "{null}");
+    let optional = message_of("measurements[2].reference");
+    assert!(optional.contains("leave the field out"), "{optional}");
+    let mass = message_of("measurements[0].value");
+    assert!(
+        mass.contains("log10 = 9.51") && mass.contains("`log10`"),
+        "{mass}"
+    );
+    let band = message_of("measurements[1].band");
+    assert!(
+        band.contains("not a band name") && band.contains("such as K"),
+        "{band}"
+    );
+    assert_eq!(count(&app, "measurement").await, before);
+}
