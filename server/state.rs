@@ -6,6 +6,7 @@ use sqlx::SqlitePool;
 
 use crate::auth::clock::Clock;
 use crate::auth::password::Passwords;
+use crate::auth::secret::FormKey;
 use crate::config::Settings;
 use crate::relations::{Catalog, FitCache, RunRegistry};
 
@@ -24,6 +25,8 @@ pub struct AppState {
     pub fits: FitCache,
     /// Bootstrap and posterior runs in the background (see `relations`).
     pub runs: RunRegistry,
+    /// The key the login form's anti-forgery token is made with, new at every start.
+    pub form_key: FormKey,
 }
 
 impl AppState {

@@ -28,7 +28,7 @@ const ALLOWED: &[(&str, &[&str])] = &[
         &["units", "astro", "fit", "charts", "catalog", "error"],
     ),
     // What every handler shares, and the request layers.
-    ("state", &["auth", "config", "relations"]),
+    ("state", &["auth", "auth::secret", "config", "relations"]),
     (
         "auth::middleware",
         &["auth", "auth::secret", "catalog", "error", "state"],
