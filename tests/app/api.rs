@@ -1,6 +1,6 @@
 //! The JSON API under /api/v1: every endpoint for each kind of caller, entity tags and 304,
 //! batch and body limits, the shape of every error (RFC 9457 problem details), 401 against
-//! 403, the per-token rate (429 with Retry-After), the OpenAPI document against the route
+//! 403, the API rate (429 with Retry-After), the OpenAPI document against the route
 //! table, and the numbers against the fits they come from.
 
 use std::collections::BTreeSet;
