@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Load test of the JSON API on loopback (a benchmark, not a test): builds the release binary,
-# starts `massline serve --demo --public-read` on a fresh database with the per-token rate off,
+# starts `massline serve --demo --public-read` on a fresh database with the API rate off,
 # warms the fit cache, and runs wrk against
 #   1. GET /api/v1/place?…            placing one object (σ, mass, distance, resolution)
 #   2. GET /api/v1/relations/m_sigma  reading the M–σ fit

@@ -14,10 +14,15 @@ pub const DEFAULT_BIND: &str = "127.0.0.1:8080";
 /// Default sphere-of-influence threshold: θ_infl / resolution at or above this counts as resolved
 /// (common practice: the sphere of influence should be at least as large as the resolution).
 pub const DEFAULT_SOI_THRESHOLD: f64 = 1.0;
-/// Default API requests per token and minute: 10 a second on average, far above what a script
-/// placing or fitting needs, low enough that one runaway loop cannot crowd out the others.
+/// Default API requests per account (or client address) and minute: 10 a second on average, far
+/// above what a script placing or fitting needs, low enough that one runaway loop cannot crowd
+/// out the others.
 pub const DEFAULT_API_RATE_PER_MINUTE: u32 = 600;
-/// Largest accepted API rate per token and minute.
+/// Default page requests per account (or client address) and minute: a minute's worth may come
+/// at once, far more than a person clicking through pages asks for (each page is one request;
+/// its charts are inline and the stylesheet is not counted).
+pub const DEFAULT_PAGE_RATE_PER_MINUTE: u32 = 600;
+/// Largest accepted rate of either budget, requests per minute.
 pub const MAX_API_RATE_PER_MINUTE: u32 = 1_000_000;
 
 /// Everything `massline serve` needs.
@@ -51,10 +56,18 @@ pub struct Settings {
     #[arg(long, env = "MASSLINE_SECURE_COOKIES", value_parser = parse_secure_cookies, default_value = "false", num_args = 0..=1, default_missing_value = "true")]
     pub secure_cookies: bool,
 
-    /// Requests per minute each API token may make to /api/ (a token bucket holding a minute's
-    /// worth; beyond it 429 with Retry-After); 0 turns the limit off.
+    /// API calls per minute of each account (all its tokens and sessions together), or of each
+    /// client address without an account: every request under /api/ and every request made
+    /// with an API token (a token bucket holding a minute's worth; beyond it 429 with
+    /// Retry-After); 0 turns the limit off.
     #[arg(long, env = "MASSLINE_API_RATE_PER_MINUTE", default_value_t = DEFAULT_API_RATE_PER_MINUTE, value_parser = parse_api_rate)]
     pub api_rate_per_minute: u32,
+
+    /// Page requests per minute of each logged-in account, or of each client address without
+    /// one (pages, forms and downloads outside /api/; the stylesheet and the health check are
+    /// not counted); beyond it 429 with Retry-After; 0 turns the limit off.
+    #[arg(long, env = "MASSLINE_PAGE_RATE_PER_MINUTE", default_value_t = DEFAULT_PAGE_RATE_PER_MINUTE, value_parser = parse_page_rate)]
+    pub page_rate_per_minute: u32,
 
     /// Milliseconds a write waits for the database lock before the request answers 503 with
     /// Retry-After (nothing written).
@@ -72,7 +85,9 @@ pub struct Settings {
 pub const DEFAULT_BUSY_TIMEOUT_MS: u64 = 5000;
 
 impl Settings {
-    /// Settings for tests: a given database file, a free loopback port, no demo data.
+    /// Settings for tests: a given database file, a free loopback port, no demo data, and no
+    /// page rate (tests of crash safety and throughput send forms as fast as they can; tests of
+    /// the limit set their own small budgets).
     pub fn for_tests(db_path: PathBuf) -> Self {
         Self {
             db_path,
@@ -82,6 +97,7 @@ impl Settings {
             public_read: false,
             secure_cookies: false,
             api_rate_per_minute: DEFAULT_API_RATE_PER_MINUTE,
+            page_rate_per_minute: 0,
             busy_timeout_ms: DEFAULT_BUSY_TIMEOUT_MS,
             max_db_pages: None,
         }
@@ -159,7 +175,16 @@ fn parse_api_rate(s: &str) -> Result<u32, String> {
     match s.trim().parse::<u32>() {
         Ok(v) if v <= MAX_API_RATE_PER_MINUTE => Ok(v),
         _ => Err(format!(
-            "the API rate (--api-rate-per-minute, MASSLINE_API_RATE_PER_MINUTE) '{s}' must be a whole number of requests per token and minute from 0 (no limit) to {MAX_API_RATE_PER_MINUTE} (default {DEFAULT_API_RATE_PER_MINUTE})"
+            "the API rate (--api-rate-per-minute, MASSLINE_API_RATE_PER_MINUTE) '{s}' must be a whole number of requests per account and minute from 0 (no limit) to {MAX_API_RATE_PER_MINUTE} (default {DEFAULT_API_RATE_PER_MINUTE})"
+        )),
+    }
+}
+
+fn parse_page_rate(s: &str) -> Result<u32, String> {
+    match s.trim().parse::<u32>() {
+        Ok(v) if v <= MAX_API_RATE_PER_MINUTE => Ok(v),
+        _ => Err(format!(
+            "the page rate (--page-rate-per-minute, MASSLINE_PAGE_RATE_PER_MINUTE) '{s}' must be a whole number of requests per account and minute from 0 (no limit) to {MAX_API_RATE_PER_MINUTE} (default {DEFAULT_PAGE_RATE_PER_MINUTE})"
         )),
     }
 }
@@ -278,7 +303,15 @@ mod tests {
                     .contains("MASSLINE_API_RATE_PER_MINUTE"),
                 "{bad}"
             );
+            assert!(
+                parse_page_rate(bad)
+                    .unwrap_err()
+                    .contains("--page-rate-per-minute"),
+                "{bad}"
+            );
         }
+        assert_eq!(parse_page_rate("120").unwrap(), 120);
+        assert_eq!(parse_page_rate("0").unwrap(), 0);
     }
 
     #[test]

@@ -174,10 +174,13 @@ pub enum AppError {
         /// Every field at fault.
         fields: Vec<FieldError>,
     },
-    /// 429: too many requests for this API token; retry after the given seconds.
-    #[error("This token may make {per_minute} requests a minute; try again in {retry_after_s} s.")]
+    /// 429: too many requests from this account (or client address) for pages or for the API;
+    /// retry after the given seconds.
+    #[error(
+        "Your account or address may make {per_minute} such requests a minute; wait {retry_after_s} s and try again."
+    )]
     TooManyRequests {
-        /// The token's rate.
+        /// The rate of the budget that ran out, requests per minute.
         per_minute: u32,
         /// Seconds until a request is allowed again.
         retry_after_s: u64,

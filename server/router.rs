@@ -11,7 +11,10 @@
 //! 2. [`render_errors`]: a [`REQUEST_TIMEOUT`] answering 503 (not 408: the client did nothing
 //!    wrong and may retry); an answer carrying an [`AppError`] is drawn by the door that owns
 //!    the path (an HTML page or problem+json) and logged, once;
-//! 3. `auth::middleware::refuse_cross_site` and `auth::middleware::authenticate`;
+//! 3. `auth::middleware::refuse_cross_site`, `auth::middleware::authenticate`, then
+//!    `auth::middleware::limit_rate` (the page and API budgets of each account or client
+//!    address, `auth::rate`), so every route a principal can call is counted, whichever door
+//!    serves it (and paths no route serves);
 //! 4. per route: its body limit, `auth::middleware::guard` with its access, and the
 //!    anti-forgery check on unsafe methods; then the door's own layers and the handler.
 //!
@@ -34,7 +37,10 @@ use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::set_header::SetResponseHeaderLayer;
 use tower_http::trace::TraceLayer;
 
-use crate::auth::middleware::{authenticate, guard, refuse_cross_site, require_form_token};
+use crate::auth::middleware::{
+    authenticate, guard, limit_rate, refuse_cross_site, require_form_token,
+};
+use crate::auth::rate::RateLimits;
 use crate::auth::{Access, Principal};
 use crate::error::{AppError, ErrorResponse};
 use crate::state::AppState;
@@ -251,8 +257,14 @@ pub fn build(state: AppState, doors: Vec<Door>) -> Router {
             .method_not_allowed_fallback(method_not_allowed);
         app = app.merge((door.layers)(routes, &state));
     }
+    let limits = RateLimits::new(
+        state.settings.page_rate_per_minute,
+        state.settings.api_rate_per_minute,
+        state.clock.clone(),
+    );
     let app = app
         .fallback(no_route)
+        .layer(axum::middleware::from_fn_with_state(limits, limit_rate))
         .layer(axum::middleware::from_fn_with_state(
             state.clone(),
             authenticate,

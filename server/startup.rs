@@ -129,6 +129,7 @@ impl Application {
                 passwords,
                 fits: crate::relations::FitCache::default(),
                 runs: crate::relations::RunRegistry::default(),
+                form_key: crate::auth::secret::FormKey::random(),
             },
             demo_accounts,
         })

@@ -7,6 +7,7 @@ use sqlx::SqlitePool;
 use crate::auth::clock::Clock;
 use crate::auth::password::Passwords;
 use crate::catalog::health::WriteCheck;
+use crate::auth::secret::FormKey;
 use crate::config::Settings;
 use crate::relations::{Catalog, FitCache, RunRegistry};
 
@@ -27,6 +28,8 @@ pub struct AppState {
     pub runs: RunRegistry,
     /// Whether the database can take a write, probed at most once a second (the health check).
     pub write_check: WriteCheck,
+    /// The key the login form's anti-forgery token is made with, new at every start.
+    pub form_key: FormKey,
 }
 
 impl AppState {

@@ -47,7 +47,7 @@ fn download(text: String, version: i64, content_type: &'static str, ext: &str) -
             headers(("Catalog-Version" = i64, description = "The catalog version exported"))),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]
@@ -90,7 +90,7 @@ pub struct CatalogJson {
             headers(("Catalog-Version" = i64, description = "The catalog version exported"))),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

@@ -361,7 +361,7 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         (status = 413, description = "More than 100,000 points, or a body over 16 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "The sample or a setting cannot be fitted (the field at fault is named)", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

@@ -199,7 +199,7 @@ fn row_of(t: &TableRow) -> GalaxyRow {
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]
@@ -352,7 +352,7 @@ pub struct GalaxyAnswer {
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
         (status = 404, description = "No such galaxy", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

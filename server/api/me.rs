@@ -32,7 +32,7 @@ pub struct Me {
     responses(
         (status = 200, description = "The caller", body = Me),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security((), ("bearer" = []))
 )]

@@ -7,8 +7,8 @@
 //! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`catalog`] (the accepted
 //! catalog as CSV or JSON), [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
 //! generated from the handlers' `#[utoipa::path]` attributes and the answers' `ToSchema`
-//! derives, so it cannot drift from the code), [`rate`] (the per-token request rate) and
-//! [`cache`] (what the API keeps per catalog version).
+//! derives, so it cannot drift from the code) and [`cache`] (what the API keeps per catalog
+//! version). The request rate is counted for every door by the router (`auth::rate`).
 
 pub mod cache;
 pub mod catalog;
@@ -18,7 +18,6 @@ pub mod me;
 pub mod openapi;
 pub mod place;
 pub mod problem;
-pub mod rate;
 pub mod relations;
 pub mod submissions;
 
@@ -55,15 +54,9 @@ pub fn door() -> Door {
     }
 }
 
-/// The API's own layers: what it keeps per catalog version, and the per-token rate (inside
-/// authentication, which it needs).
-fn layers(router: Router<AppState>, state: &AppState) -> Router<AppState> {
-    router
-        .layer(axum::Extension(cache::ApiCache::default()))
-        .layer(axum::middleware::from_fn_with_state(
-            rate::RateLimiter::new(state.settings.api_rate_per_minute, state.clock.clone()),
-            rate::limit_rate,
-        ))
+/// The API's own layer: what it keeps per catalog version.
+fn layers(router: Router<AppState>, _state: &AppState) -> Router<AppState> {
+    router.layer(axum::Extension(cache::ApiCache::default()))
 }
 
 fn routes() -> Routes {

@@ -46,7 +46,7 @@ impl Modify for BearerScheme {
     info(
         title = "massline JSON API",
         version = "1",
-        description = "The black-hole catalog and its scaling relations for scripts. Keys carry their units (log_mbh in log10 M☉, sigma_km_s, scatter_dex, distance_mpc); times are RFC 3339 UTC; every error is RFC 9457 problem details (application/problem+json), with field errors for invalid input. 401: no valid token or session; 403: the token lacks the scope or the role; 429 with Retry-After beyond the per-token rate."
+        description = "The black-hole catalog and its scaling relations for scripts. Keys carry their units (log_mbh in log10 M☉, sigma_km_s, scatter_dex, distance_mpc); times are RFC 3339 UTC; every error is RFC 9457 problem details (application/problem+json), with field errors for invalid input. 401: no valid token or session; 403: the token lacks the scope or the role; 429 with Retry-After beyond the API rate of the account (all its tokens and sessions together) or, without an account, of the client address."
     ),
     paths(
         super::me::me,
@@ -107,6 +107,7 @@ pub fn document_json() -> &'static str {
     operation_id = "openapi_document",
     responses(
         (status = 200, description = "The OpenAPI 3.1 document", body = Object, content_type = "application/json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     )
 )]
 pub async fn openapi_json() -> Response {

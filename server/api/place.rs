@@ -338,7 +338,7 @@ fn bands_of(relations: &[Relation]) -> Vec<String> {
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A value could not be read (each field at fault is listed)", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]
@@ -397,7 +397,7 @@ pub async fn place_one(
         (status = 413, description = "More than 10,000 objects, or a body over 4 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A value could not be read (each field at fault is listed, e.g. `[3].sigma`); nothing is placed", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

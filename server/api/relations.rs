@@ -518,7 +518,7 @@ pub struct RelationList {
         (status = 200, description = "The relations", body = RelationList),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]
@@ -573,7 +573,7 @@ pub async fn list_relations(
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
         (status = 404, description = "No such relation", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
-        (status = 429, description = "Too many requests for this token", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

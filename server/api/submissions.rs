@@ -166,6 +166,7 @@ fn token_of(principal: &Principal) -> ApiResult<&TokenUser> {
         (status = 413, description = "Body over 1 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "Not JSON", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "Invalid fields (every one listed), or the key reused with another body", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
         (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
@@ -419,6 +420,7 @@ fn json_path(cell: intake::Cell) -> String {
         (status = 200, description = "The submission", body = SubmissionStatus),
         (status = 401, description = "No valid token", body = Problem, content_type = "application/problem+json"),
         (status = 404, description = "No such submission visible to the caller", body = Problem, content_type = "application/problem+json"),
+        (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
 )]

@@ -6,19 +6,23 @@
 //! 2. [`authenticate`] (all routes): turns the session cookie or the `Authorization: Bearer`
 //!    header into a [`Principal`] stored in the request's extensions. Expired sessions are
 //!    deleted here, with their idle and absolute limits measured on the app's clock.
-//! 3. [`guard`] (per route, with the route's [`Access`]): refuses principals the route does not
+//! 3. [`limit_rate`] (all routes but the stylesheet and the health check): counts the request
+//!    against the page or API budget of its account (any session or token of it) or, without
+//!    one, of its client address; beyond it 429 with Retry-After.
+//! 4. [`guard`] (per route, with the route's [`Access`]): refuses principals the route does not
 //!    admit (401 or 403; the door draws it: pages redirect to the login page, `/api/` answers
 //!    problem+json).
-//! 4. [`require_form_token`] (per route, unsafe methods only): a browser's form must carry the
+//! 5. [`require_form_token`] (per route, unsafe methods only): a browser's form must carry the
 //!    session's anti-forgery token in the field `csrf` (compared in constant time). The login
-//!    form, sent before any session exists, carries the value of a separate login cookie instead.
+//!    form, sent before any session exists, carries instead the HMAC-SHA256 under the server's
+//!    key of the random nonce in a separate login cookie and of the client's network.
 //!    Requests authenticated by an API token need no form token: browsers never add that header
 //!    by themselves. A JSON endpoint also takes the session's token in the `X-CSRF-Token`
 //!    header (a JSON body has no form field).
 //!
 //! Refusals are [`AppError`]s; the door that owns the path draws them (`router`).
 
-use std::net::SocketAddr;
+use std::net::{IpAddr, SocketAddr};
 
 use axum::body::{Body, Bytes};
 use axum::extract::{ConnectInfo, Request, State};
@@ -26,7 +30,8 @@ use axum::http::{HeaderMap, HeaderName, HeaderValue, Method, header};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 
-use super::secret::{looks_like_api_token, same_secret, sha256_hex};
+use super::rate::{Budget, RateKey, RateLimits, client_network};
+use super::secret::{FormKey, is_hex_256, looks_like_api_token, same_secret, sha256_hex};
 use super::{Access, Denied, Principal, Role, Scope, SessionUser, TokenUser, check_access};
 use crate::catalog::accounts;
 use crate::error::AppError;
@@ -48,6 +53,8 @@ pub struct AuthContext {
     pub public_read: bool,
     /// Whether cookies are marked Secure and `__Host-` prefixed.
     pub secure_cookies: bool,
+    /// The key the login form's token is made with.
+    pub form_key: FormKey,
 }
 
 /// The session cookie's name: `__Host-` prefixed when served over HTTPS (the browser then
@@ -95,12 +102,32 @@ pub fn read_cookie(headers: &HeaderMap, name: &str) -> Option<String> {
         .map(|(_, v)| v.trim().to_string())
 }
 
+/// The nonce of the login cookie, when it has the shape the server gives it (64 lowercase hex).
+/// The login form carries not this value but its MAC under the server's key
+/// ([`FormKey::login_token`]), so a cookie planted by someone else matches no form they can
+/// make.
+pub fn login_nonce(headers: &HeaderMap, secure: bool) -> Option<String> {
+    read_cookie(headers, login_cookie_name(secure)).filter(|v| is_hex_256(v))
+}
+
+/// The login form's token for a login cookie's nonce, bound to the server's key and to the
+/// client's network ([`FormKey::login_token`]).
+pub fn login_token(ctx: &AuthContext, nonce: &str, extensions: &axum::http::Extensions) -> String {
+    ctx.form_key
+        .login_token(nonce, peer_ip(extensions).map(client_network))
+}
+
+/// The connection's peer address (`None` when not served with connect info).
+pub fn peer_ip(extensions: &axum::http::Extensions) -> Option<IpAddr> {
+    extensions
+        .get::<ConnectInfo<SocketAddr>>()
+        .map(|c| c.0.ip())
+}
+
 /// The connection's peer address as text ("unknown" when not served with connect info).
 /// Forwarded headers are not trusted: any client can write them.
 pub fn client_ip(request_extensions: &axum::http::Extensions) -> String {
-    request_extensions
-        .get::<ConnectInfo<SocketAddr>>()
-        .map_or_else(|| "unknown".to_string(), |c| c.0.ip().to_string())
+    peer_ip(request_extensions).map_or_else(|| "unknown".to_string(), |ip| ip.to_string())
 }
 
 fn is_unsafe(method: &Method) -> bool {
@@ -155,6 +182,7 @@ pub async fn authenticate(
     let context = AuthContext {
         public_read: state.settings.public_read,
         secure_cookies: secure,
+        form_key: state.form_key,
     };
     let mut clear_cookie = false;
     let principal = if let Some(auth) = request.headers().get(header::AUTHORIZATION) {
@@ -266,7 +294,47 @@ async fn session_principal(state: &AppState, id: &str) -> sqlx::Result<Option<Se
     }))
 }
 
-/// Layer 3: admit only the principals a route's [`Access`] allows.
+/// Paths no budget counts: the stylesheet every page loads and the health check monitors poll.
+fn rate_exempt(path: &str) -> bool {
+    path == "/healthz" || path.starts_with("/static/")
+}
+
+/// The budget a request draws on: an API token's requests and everything under `/api/` are API
+/// calls (so a script at its limit cannot go on through the pages' downloads); the rest are
+/// page views. `None` for the paths no budget counts.
+pub fn budget_of(path: &str, principal: &Principal) -> Option<Budget> {
+    if rate_exempt(path) {
+        None
+    } else if path.starts_with("/api/") || matches!(principal, Principal::Token(_)) {
+        Some(Budget::Api)
+    } else {
+        Some(Budget::Pages)
+    }
+}
+
+/// Layer 3: count the request against its principal's budget ([`crate::auth::rate`]): the
+/// account behind a session or token, else the client address; beyond the budget 429 with
+/// Retry-After, drawn by the door that owns the path.
+pub async fn limit_rate(
+    State(limits): State<RateLimits>,
+    request: Request,
+    next: Next,
+) -> Response {
+    let anonymous = Principal::Anonymous;
+    let principal = request
+        .extensions()
+        .get::<Principal>()
+        .unwrap_or(&anonymous);
+    if let Some(budget) = budget_of(request.uri().path(), principal) {
+        let key = RateKey::of(principal, peer_ip(request.extensions()));
+        if let Err(refused) = limits.take(budget, key) {
+            return refused.into_response();
+        }
+    }
+    next.run(request).await
+}
+
+/// Layer 4: admit only the principals a route's [`Access`] allows.
 pub async fn guard(access: Access, request: Request, next: Next) -> Response {
     let principal = request
         .extensions()
@@ -309,7 +377,7 @@ pub fn encode_query_value(text: &str) -> String {
     out
 }
 
-/// Layer 4: forms of a browser must carry the anti-forgery token (the body is buffered up to
+/// Layer 5: forms of a browser must carry the anti-forgery token (the body is buffered up to
 /// the route's `limit_bytes`). With `json_header` (a JSON endpoint), a session may send it in the
 /// [`CSRF_HEADER`] header instead.
 pub async fn require_form_token(
@@ -326,16 +394,15 @@ pub async fn require_form_token(
         .get::<Principal>()
         .cloned()
         .unwrap_or(Principal::Anonymous);
-    let secure = request
-        .extensions()
-        .get::<AuthContext>()
-        .is_some_and(|c| c.secure_cookies);
-    let expected = match &principal {
-        Principal::Token(_) => return next.run(request).await,
-        Principal::Session(s) => Some(s.csrf_token.clone()),
-        Principal::Anonymous | Principal::BadToken => {
-            read_cookie(request.headers(), login_cookie_name(secure)).filter(|v| v.len() == 64)
+    let context = request.extensions().get::<AuthContext>().copied();
+    let expected = match (&principal, context) {
+        (Principal::Token(_), _) => return next.run(request).await,
+        (Principal::Session(s), _) => Some(s.csrf_token.clone()),
+        (Principal::Anonymous | Principal::BadToken, Some(ctx)) => {
+            login_nonce(request.headers(), ctx.secure_cookies)
+                .map(|nonce| login_token(&ctx, &nonce, request.extensions()))
         }
+        (Principal::Anonymous | Principal::BadToken, None) => None,
     };
     if json_header
         && let (Principal::Session(s), Some(sent)) = (

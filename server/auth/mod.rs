@@ -9,14 +9,16 @@
 //! * [`password`]: Argon2id hashing off the async runtime, at most two at a time; the password
 //!   rules. [`secret`]: session ids, anti-forgery tokens and API tokens. [`clock`]: the clock the
 //!   session limits are measured with (tests move it). [`middleware`]: the layers that
-//!   authenticate, guard routes and refuse forged requests. [`accounts`]: creating an account
-//!   (the `massline user add` command and the demo accounts).
+//!   authenticate, limit rates, guard routes and refuse forged requests. [`rate`]: requests
+//!   per minute per account or client address. [`accounts`]: creating an account (the
+//!   `massline user add` command and the demo accounts).
 
 pub mod accounts;
 pub mod clock;
 pub mod login;
 pub mod middleware;
 pub mod password;
+pub mod rate;
 pub mod secret;
 
 use std::fmt;

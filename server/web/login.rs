@@ -13,7 +13,8 @@ use super::Nav;
 use crate::auth::Principal;
 use crate::auth::login::{LoginOutcome, log_in as log_in_as};
 use crate::auth::middleware::{
-    AuthContext, client_ip, login_cookie_name, read_cookie, session_cookie_name, set_cookie,
+    AuthContext, client_ip, login_cookie_name, login_nonce, login_token, read_cookie,
+    session_cookie_name, set_cookie,
 };
 use crate::auth::secret::random_hex_256;
 use crate::catalog::accounts;
@@ -60,15 +61,24 @@ pub(crate) fn safe_next(next: Option<&str>) -> String {
     }
 }
 
-/// The anti-forgery value of the login form: the session's token when someone is logged in,
-/// otherwise the login cookie's (made here when missing).
-fn login_form_token(principal: &Principal, headers: &HeaderMap, secure: bool) -> (String, bool) {
+/// The anti-forgery value of the login form, and the login cookie's nonce when a new one must
+/// be set: the session's token when someone is logged in, otherwise the server's MAC of the
+/// login cookie's nonce (a new nonce when the cookie is missing or malformed).
+fn login_form_token(
+    principal: &Principal,
+    headers: &HeaderMap,
+    extensions: &axum::http::Extensions,
+    ctx: &AuthContext,
+) -> (String, Option<String>) {
     if let Principal::Session(s) = principal {
-        return (s.csrf_token.clone(), false);
+        return (s.csrf_token.clone(), None);
     }
-    match read_cookie(headers, login_cookie_name(secure)).filter(|v| v.len() == 64) {
-        Some(v) => (v, false),
-        None => (random_hex_256(), true),
+    match login_nonce(headers, ctx.secure_cookies) {
+        Some(nonce) => (login_token(ctx, &nonce, extensions), None),
+        None => {
+            let nonce = random_hex_256();
+            (login_token(ctx, &nonce, extensions), Some(nonce))
+        }
     }
 }
 
@@ -76,26 +86,27 @@ fn login_form_token(principal: &Principal, headers: &HeaderMap, secure: bool) ->
 pub(crate) async fn show_login(
     Extension(principal): Extension<Principal>,
     Extension(ctx): Extension<AuthContext>,
+    request_extensions: axum::http::Extensions,
     headers: HeaderMap,
     nav: Nav,
     Query(query): Query<LoginQuery>,
 ) -> Response {
     let next = safe_next(query.next.as_deref());
-    let (csrf, new_cookie) = login_form_token(&principal, &headers, ctx.secure_cookies);
+    let (csrf, new_nonce) = login_form_token(&principal, &headers, &request_extensions, &ctx);
     let page = LoginPage {
         nav,
-        csrf: csrf.clone(),
+        csrf,
         next,
         username: String::new(),
         message: None,
     };
     let mut response = page.into_response();
-    if new_cookie {
+    if let Some(nonce) = new_nonce {
         response.headers_mut().append(
             header::SET_COOKIE,
             set_cookie(
                 login_cookie_name(ctx.secure_cookies),
-                &csrf,
+                &nonce,
                 ctx.secure_cookies,
                 None,
             ),
@@ -127,7 +138,7 @@ pub(crate) async fn log_in(
 ) -> AppResult<Response> {
     let ip = client_ip(&request_extensions);
     let now = state.clock.now_unix();
-    let (csrf, _) = login_form_token(&principal, &headers, ctx.secure_cookies);
+    let (csrf, _) = login_form_token(&principal, &headers, &request_extensions, &ctx);
     let username: String = form.username.trim().chars().take(64).collect();
     let again = |status: StatusCode, message: &'static str| {
         let page = LoginPage {

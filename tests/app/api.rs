@@ -1,6 +1,6 @@
 //! The JSON API under /api/v1: every endpoint for each kind of caller, entity tags and 304,
 //! batch and body limits, the shape of every error (RFC 9457 problem details), 401 against
-//! 403, the per-token rate (429 with Retry-After), the OpenAPI document against the route
+//! 403, the API rate (429 with Retry-After), the OpenAPI document against the route
 //! table, and the numbers against the fits they come from.
 
 use std::collections::BTreeSet;
@@ -739,7 +739,7 @@ async fn a_token_beyond_its_rate_gets_429_with_retry_after_until_the_bucket_refi
     let p = a.problem(429);
     // 3 a minute: one every 20 s.
     assert_eq!(a.header(RETRY_AFTER), "20", "{p}");
-    // Another token has its own allowance; pages are not counted.
+    // A token of another account has its own allowance.
     assert_eq!(get(&app, "/api/v1/me", Some(&other)).await.status, 200);
     app.clock.advance(20);
     assert_eq!(get(&app, "/api/v1/me", Some(&t)).await.status, 200);

@@ -5,7 +5,7 @@
 //!
 //! Run once with a member's token (scopes read and submit), once with a reviewer's, and once
 //! without a token, against a private demo server (no public read, so anonymous requests get
-//! 401 as documented; the per-token rate off, so the fuzzer is not throttled).
+//! 401 as documented; the API rate off, so the fuzzer is not throttled).
 //!
 //! `tests/schemathesis.toml` lets "valid data" checks accept 422: the place endpoints take
 //! values as people type them (`210 ± 10`, `<2e7`), whose grammar a JSON schema cannot state,

@@ -1,4 +1,4 @@
-//! Brute-force limits, the response headers, API tokens, and script injection.
+//! Brute-force limits, request rates, the response headers, API tokens, and script injection.
 
 use massline::auth::Role;
 use massline::catalog::accounts;
@@ -142,6 +142,178 @@ async fn an_unknown_name_gets_the_same_answer_and_the_same_hash_check() {
         before + 2,
         "an unknown name must cost a verification too"
     );
+}
+
+// ---------------------------------------------------------------------------- request rates
+
+/// Asserts a 429 drawn by the door owning the path (problem+json under `/api/`, an HTML page
+/// elsewhere) that says how long to wait: `per_minute` a minute is one every 60 / per_minute s.
+fn assert_limited(r: &Reply, path: &str, per_minute: u64) {
+    assert_eq!(r.status, 429, "{path}: {}", r.body);
+    let wait: u64 = r.header("retry-after").parse().unwrap_or_else(|_| {
+        panic!("{path}: no Retry-After in {:?}", r.headers);
+    });
+    assert_eq!(wait, 60 / per_minute, "{path}");
+    let content_type = r.header("content-type");
+    if path.starts_with("/api/") {
+        assert_eq!(content_type, "application/problem+json", "{path}");
+        r.problem(429);
+    } else {
+        assert!(
+            content_type.starts_with("text/html"),
+            "{path}: {content_type}"
+        );
+        assert!(r.body.contains("Too many requests"), "{path}: {}", r.body);
+    }
+    assert!(
+        r.body.contains(&format!("{wait} s")),
+        "{path}: the answer says how long to wait: {}",
+        r.body
+    );
+}
+
+#[tokio::test]
+async fn a_token_at_its_limit_on_the_api_is_refused_on_the_pages_downloads_too() {
+    const PER_MINUTE: u64 = 3;
+    let app = spawn_with(|s| {
+        s.demo = true;
+        s.api_rate_per_minute = PER_MINUTE as u32;
+        s.page_rate_per_minute = 600;
+    })
+    .await;
+    let id = app.create_account("member1", Role::Member).await;
+    let (token, _) = app.make_token(id, "read").await;
+    for _ in 0..PER_MINUTE {
+        assert_eq!(
+            app.get_with_token("/api/v1/me", Some(&token)).await.status,
+            200
+        );
+    }
+    let refused = app.get_with_token("/api/v1/relations", Some(&token)).await;
+    assert_limited(&refused, "/api/v1/relations", PER_MINUTE);
+    // The same data through the pages' door is the same budget when a token asks.
+    for path in ["/galaxies", "/catalog.csv", "/relations/m_sigma/fit.json"] {
+        let r = app.get_with_token(path, Some(&token)).await;
+        assert_limited(&r, path, PER_MINUTE);
+    }
+    // A person's browser of another account is not affected.
+    let mut other = app.login_as(Role::Member).await;
+    assert_eq!(other.get("/galaxies").await.status, 200);
+    // One request's worth later (20 s at 3 a minute) the token may go on.
+    app.clock.advance(60 / PER_MINUTE as i64);
+    assert_eq!(
+        app.get_with_token("/catalog.csv", Some(&token))
+            .await
+            .status,
+        200
+    );
+}
+
+#[tokio::test]
+async fn a_second_token_of_the_same_account_shares_its_budget() {
+    const PER_MINUTE: u64 = 4;
+    let app = spawn_with(|s| {
+        s.demo = true;
+        s.api_rate_per_minute = PER_MINUTE as u32;
+    })
+    .await;
+    let id = app.create_account("member1", Role::Member).await;
+    let (first, _) = app.make_token(id, "read").await;
+    let (second, _) = app.make_token(id, "read").await;
+    let other_id = app.create_account("member2", Role::Member).await;
+    let (other, _) = app.make_token(other_id, "read").await;
+    for _ in 0..PER_MINUTE {
+        assert_eq!(
+            app.get_with_token("/api/v1/me", Some(&first)).await.status,
+            200
+        );
+    }
+    let r = app.get_with_token("/api/v1/relations", Some(&second)).await;
+    assert_limited(&r, "/api/v1/relations", PER_MINUTE);
+    // Another account has its own budget.
+    assert_eq!(
+        app.get_with_token("/api/v1/me", Some(&other)).await.status,
+        200
+    );
+}
+
+#[tokio::test]
+async fn a_browser_session_calling_the_api_is_limited_and_its_pages_have_their_own_budget() {
+    const PER_MINUTE: u64 = 5;
+    let app = spawn_with(|s| {
+        s.demo = true;
+        s.api_rate_per_minute = PER_MINUTE as u32;
+        s.page_rate_per_minute = 600;
+    })
+    .await;
+    let mut member = app.login_as(Role::Member).await;
+    for _ in 0..PER_MINUTE {
+        assert_eq!(member.get("/api/v1/me").await.status, 200);
+    }
+    let r = member.get("/api/v1/relations").await;
+    assert_limited(&r, "/api/v1/relations", PER_MINUTE);
+    // The account's token draws on the same API budget as its session.
+    let id = massline::catalog::accounts::find_by_username(&app.pool, "test-member")
+        .await
+        .unwrap()
+        .unwrap()
+        .account_id;
+    let (token, _) = app.make_token(id, "read").await;
+    let r = app.get_with_token("/api/v1/me", Some(&token)).await;
+    assert_limited(&r, "/api/v1/me", PER_MINUTE);
+    // Pages are the larger budget of a person: still open.
+    assert_eq!(member.get("/galaxies").await.status, 200);
+    app.clock.advance(60 / PER_MINUTE as i64);
+    assert_eq!(member.get("/api/v1/me").await.status, 200);
+}
+
+#[tokio::test]
+async fn anonymous_visitors_are_limited_by_address_for_pages_and_for_the_api() {
+    const PAGES_PER_MINUTE: u64 = 6;
+    const API_PER_MINUTE: u64 = 2;
+    let app = spawn_with(|s| {
+        s.demo = true;
+        s.public_read = true;
+        s.page_rate_per_minute = PAGES_PER_MINUTE as u32;
+        s.api_rate_per_minute = API_PER_MINUTE as u32;
+    })
+    .await;
+    // Logging in is two anonymous page requests (the form and its answer) from this address.
+    let mut member = app.login_as(Role::Member).await;
+    let mut allowed = 0;
+    loop {
+        let r = app.get_with_token("/galaxies", None).await;
+        if r.status != 200 {
+            assert_limited(&r, "/galaxies", PAGES_PER_MINUTE);
+            break;
+        }
+        allowed += 1;
+        assert!(
+            allowed <= PAGES_PER_MINUTE,
+            "anonymous pages are never limited"
+        );
+    }
+    assert_eq!(allowed, PAGES_PER_MINUTE - 2);
+    // The login page too: everything an address asks counts, but for the stylesheet and the
+    // health check.
+    let r = app.get_with_token("/login", None).await;
+    assert_limited(&r, "/login", PAGES_PER_MINUTE);
+    assert_eq!(app.get("/static/massline.css").await.0, 200);
+    assert_eq!(app.get("/healthz").await.0, 200);
+    // The API budget of the address is separate, and limited too.
+    for _ in 0..API_PER_MINUTE {
+        assert_eq!(
+            app.get_with_token("/api/v1/relations", None).await.status,
+            200
+        );
+    }
+    let r = app.get_with_token("/api/v1/relations", None).await;
+    assert_limited(&r, "/api/v1/relations", API_PER_MINUTE);
+    // A logged-in person at the same address counts against the account, not the address.
+    assert_eq!(member.get("/galaxies").await.status, 200);
+    // One request's worth later the address may ask again.
+    app.clock.advance(60 / PAGES_PER_MINUTE as i64);
+    assert_eq!(app.get("/galaxies").await.0, 200);
 }
 
 // -------------------------------------------------------------------------------- headers

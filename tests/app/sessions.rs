@@ -386,6 +386,48 @@ async fn the_login_form_is_protected_against_forgery_too() {
 }
 
 #[tokio::test]
+async fn a_login_cookie_and_token_chosen_together_by_someone_else_do_not_log_in() {
+    let app = spawn_private_app().await;
+    app.create_account("quillfern", Role::Member).await;
+    // Someone who can set cookies for this host (another port of it, say) plants a login
+    // cookie and sends a form whose token is that same value, with no Origin or Sec-Fetch-Site
+    // header to give it away.
+    let chosen = "5e".repeat(32);
+    let mut b = app.browser();
+    b.cookies.insert("ml_login".into(), chosen.clone());
+    let forged = [
+        ("csrf", chosen.as_str()),
+        ("username", "quillfern"),
+        ("password", TEST_PASSWORD),
+    ];
+    let r = b.post_raw("/login", &forged, &[]).await;
+    assert_eq!(r.status, 403, "{}", r.body);
+    assert!(!b.cookies.contains_key("ml_session"));
+    assert_eq!(accounts::count_events(&app.pool, "login").await.unwrap(), 0);
+    // The server's form keeps the cookie's nonce and carries a value derived from it, so
+    // neither can be copied into the other.
+    let page = b.get("/login").await;
+    assert_eq!(page.status, 200);
+    let nonce = b.cookies["ml_login"].clone();
+    assert_eq!(nonce, chosen, "a well-formed cookie is kept");
+    assert_ne!(b.csrf, nonce);
+    assert_eq!(b.csrf.len(), 64);
+    // A form of this server carrying the token for another nonce is refused too.
+    let mut elsewhere = app.browser();
+    elsewhere.get("/login").await;
+    let foreign = elsewhere.csrf.clone();
+    let mixed = [
+        ("csrf", foreign.as_str()),
+        ("username", "quillfern"),
+        ("password", TEST_PASSWORD),
+    ];
+    assert_eq!(b.post_raw("/login", &mixed, &[]).await.status, 403);
+    // The server's own pair logs in.
+    assert_eq!(b.login("quillfern", TEST_PASSWORD).await.status, 303);
+    assert_eq!(accounts::count_events(&app.pool, "login").await.unwrap(), 1);
+}
+
+#[tokio::test]
 async fn get_requests_change_nothing() {
     let app = spawn_private_app().await;
     let (mut admin, victim, own_token) = arrange(&app).await;

@@ -211,6 +211,20 @@ impl TestApp {
         body
     }
 
+    /// GET a path with `Authorization: Bearer <token>` (none without a token), read completely.
+    pub(crate) async fn get_with_token(&self, path: &str, token: Option<&str>) -> Reply {
+        let mut request = self.client.get(format!("{}{path}", self.address));
+        if let Some(t) = token {
+            request = request.bearer_auth(t);
+        }
+        let response = request.send().await.expect("the request is answered");
+        Reply {
+            status: response.status().as_u16(),
+            headers: response.headers().clone(),
+            body: response.text().await.expect("a text body"),
+        }
+    }
+
     /// Create an account with [`TEST_PASSWORD`]; returns its key.
     pub(crate) async fn create_account(&self, username: &str, role: Role) -> i64 {
         create_account(&self.pool, username, role).await

@@ -64,8 +64,9 @@ pub(crate) struct ChildServer {
 }
 
 impl ChildServer {
-    /// Start `massline serve --db DB` on a free loopback port and wait until it answers
-    /// (`/livez`; the database is open and migrated before the server listens).
+    /// Start `massline serve --db DB` on a free loopback port, without the page rate (the
+    /// writers here send forms as fast as they can; the limit has its own tests), and wait
+    /// until it answers (`/livez`; the database is open and migrated before the server listens).
     pub(crate) async fn start(db_path: &Path) -> Self {
         Self::start_with_file_size_limit(db_path, None).await
     }
@@ -94,9 +95,12 @@ impl ChildServer {
             .arg(db_path)
             .arg("--bind")
             .arg(format!("127.0.0.1:{port}"))
+            .arg("--page-rate-per-minute")
+            .arg("0")
             .env("RUST_LOG", "warn")
             .env_remove("MASSLINE_DEMO")
             .env_remove("MASSLINE_PUBLIC_READ")
+            .env_remove("MASSLINE_PAGE_RATE_PER_MINUTE")
             .stdin(Stdio::null())
             .stdout(Stdio::null())
             .stderr(Stdio::null())
