@@ -6,8 +6,8 @@ use sqlx::SqlitePool;
 
 use crate::auth::clock::Clock;
 use crate::auth::password::Passwords;
-use crate::catalog::health::WriteCheck;
 use crate::auth::secret::FormKey;
+use crate::catalog::health::WriteCheck;
 use crate::config::Settings;
 use crate::relations::{Catalog, FitCache, RunRegistry};
 

@@ -28,7 +28,10 @@ const ALLOWED: &[(&str, &[&str])] = &[
         &["units", "astro", "fit", "charts", "catalog", "error"],
     ),
     // What every handler shares, and the request layers.
-    ("state", &["auth", "auth::secret", "catalog", "config", "relations"]),
+    (
+        "state",
+        &["auth", "auth::secret", "catalog", "config", "relations"],
+    ),
     (
         "auth::middleware",
         &["auth", "auth::secret", "catalog", "error", "state"],
