@@ -74,12 +74,21 @@ pub struct Settings {
     #[arg(long = "busy-timeout-ms", env = "MASSLINE_BUSY_TIMEOUT_MS", default_value_t = DEFAULT_BUSY_TIMEOUT_MS, value_parser = parse_busy_timeout_ms)]
     pub busy_timeout_ms: u64,
 
+    /// Seconds a request may take before it is answered 503 with Retry-After (an upload still
+    /// being stored when the time runs out is rolled back, whole). Raise it for very large
+    /// uploads on a slow machine.
+    #[arg(long = "request-timeout-s", env = "MASSLINE_REQUEST_TIMEOUT_S", default_value_t = DEFAULT_REQUEST_TIMEOUT_S, value_parser = parse_request_timeout_s)]
+    pub request_timeout_s: u64,
+
     /// Largest size of the database file in pages of 4096 bytes (SQLite's max_page_count): a
     /// write that would need more answers 507 and changes nothing, as on a full disk. Unset: only
     /// the disk limits it. A safeguard for a shared disk, and how the tests fill the database.
     #[arg(long = "max-db-pages", env = "MASSLINE_MAX_DB_PAGES", value_parser = parse_max_db_pages)]
     pub max_db_pages: Option<u32>,
 }
+
+/// Default of `--request-timeout-s`.
+pub const DEFAULT_REQUEST_TIMEOUT_S: u64 = 30;
 
 /// Default of `--busy-timeout-ms` (the catalog's `BUSY_TIMEOUT`, 5 s).
 pub const DEFAULT_BUSY_TIMEOUT_MS: u64 = 5000;
@@ -99,8 +108,14 @@ impl Settings {
             api_rate_per_minute: DEFAULT_API_RATE_PER_MINUTE,
             page_rate_per_minute: 0,
             busy_timeout_ms: DEFAULT_BUSY_TIMEOUT_MS,
+            request_timeout_s: DEFAULT_REQUEST_TIMEOUT_S,
             max_db_pages: None,
         }
+    }
+
+    /// How long a request may take, as a duration.
+    pub fn request_timeout(&self) -> Duration {
+        Duration::from_secs(self.request_timeout_s)
     }
 
     /// The busy timeout as a duration.
@@ -198,6 +213,15 @@ fn parse_busy_timeout_ms(s: &str) -> Result<u64, String> {
     }
 }
 
+fn parse_request_timeout_s(s: &str) -> Result<u64, String> {
+    match s.trim().parse::<u64>() {
+        Ok(v) if (1..=3600).contains(&v) => Ok(v),
+        _ => Err(format!(
+            "the request timeout (--request-timeout-s, MASSLINE_REQUEST_TIMEOUT_S) '{s}' must be a whole number of seconds from 1 to 3600 (default 30)"
+        )),
+    }
+}
+
 fn parse_max_db_pages(s: &str) -> Result<u32, String> {
     match s.trim().parse::<u32>() {
         Ok(v) if v >= MIN_DB_PAGES => Ok(v),
@@ -215,6 +239,19 @@ pub const MIN_DB_PAGES: u32 = 256;
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn request_timeout_is_a_whole_number_of_seconds_up_to_an_hour() {
+        assert_eq!(parse_request_timeout_s(" 120 ").unwrap(), 120);
+        for bad in ["0", "3601", "1.5", "", "-3"] {
+            assert!(
+                parse_request_timeout_s(bad)
+                    .unwrap_err()
+                    .contains("--request-timeout-s"),
+                "{bad}"
+            );
+        }
+    }
 
     #[test]
     fn busy_timeout_is_a_positive_number_of_milliseconds() {

@@ -8,7 +8,8 @@
 //! 1. trace, then the security headers (a strict Content-Security-Policy with no outside
 //!    sources and no inline script, nosniff, no framing, no referrer leaks, and
 //!    `Cache-Control: no-store` unless a handler says otherwise), on every answer;
-//! 2. [`render_errors`]: a [`REQUEST_TIMEOUT`] answering 503 (not 408: the client did nothing
+//! 2. [`render_errors`]: the request timeout (`--request-timeout-s`, 30 s by default) answering
+//!    503 (not 408: a slow request is the server's problem, and the client did nothing
 //!    wrong and may retry); an answer carrying an [`AppError`] is drawn by the door that owns
 //!    the path (an HTML page or problem+json) and logged, once;
 //! 3. `auth::middleware::refuse_cross_site`, `auth::middleware::authenticate`, then
@@ -52,10 +53,6 @@ pub const BODY_LIMIT_BYTES: usize = 1024 * 1024;
 /// The body limit of the catalog upload (`/submissions/upload`): 32 MB, room for a 50,000-row
 /// file (about 150 bytes a row).
 pub const UPLOAD_LIMIT_BYTES: usize = 32 * 1024 * 1024;
-
-/// Longest time a request may take before the server gives up with 503 (a slow request is the
-/// server's problem, not the client's, so not 408; clients may retry a 503).
-pub const REQUEST_TIMEOUT: Duration = Duration::from_secs(30);
 
 /// The Content-Security-Policy of every page: nothing from outside the server, no inline script.
 /// Inline `style` attributes are allowed for plotters' SVG output.
@@ -246,6 +243,7 @@ pub fn route_table(doors: &[Door]) -> Vec<RouteEntry> {
 /// The service: the doors' routes behind every layer (see the module doc).
 pub fn build(state: AppState, doors: Vec<Door>) -> Router {
     let secure = state.settings.secure_cookies;
+    let timeout = state.settings.request_timeout();
     let mut renderers = Vec::with_capacity(doors.len());
     let mut app = Router::new();
     for door in doors {
@@ -271,7 +269,7 @@ pub fn build(state: AppState, doors: Vec<Door>) -> Router {
         ))
         .layer(axum::middleware::from_fn(refuse_cross_site))
         .with_state(state);
-    with_baseline(app, REQUEST_TIMEOUT, secure, renderers.into())
+    with_baseline(app, timeout, secure, renderers.into())
 }
 
 async fn no_route(request: Request) -> AppError {
@@ -653,6 +651,7 @@ impl<T: AsyncWrite + Unpin> AsyncWrite for HeaderedIo<T> {
 
 #[cfg(test)]
 mod tests {
+    const TEST_TIMEOUT: Duration = Duration::from_secs(30);
     use super::*;
     use axum::body::Body;
     use axum::http::StatusCode;
@@ -729,7 +728,7 @@ mod tests {
                 axum::middleware::from_fn(|req, next| refuse_declared_body_over(10, req, next)),
             ),
         );
-        let app = with_baseline(echo, REQUEST_TIMEOUT, false, test_renderers());
+        let app = with_baseline(echo, TEST_TIMEOUT, false, test_renderers());
         let response = app
             .oneshot(
                 Request::builder()
@@ -761,7 +760,7 @@ mod tests {
                     refuse_declared_body_over(limit, req, next)
                 })),
         );
-        let app = with_baseline(echo, REQUEST_TIMEOUT, false, test_renderers());
+        let app = with_baseline(echo, TEST_TIMEOUT, false, test_renderers());
         let response = app
             .oneshot(
                 Request::builder()
@@ -815,7 +814,7 @@ mod tests {
         let app = |secure| {
             with_baseline(
                 Router::new().route("/", get(|| async { "ok" })),
-                REQUEST_TIMEOUT,
+                TEST_TIMEOUT,
                 secure,
                 test_renderers(),
             )

@@ -65,7 +65,9 @@ pub(crate) struct ChildServer {
 
 impl ChildServer {
     /// Start `massline serve --db DB` on a free loopback port, without the page rate (the
-    /// writers here send forms as fast as they can; the limit has its own tests), and wait
+    /// writers here send forms as fast as they can; the limit has its own tests) and with a
+    /// request timeout of 300 s (a 50,000-row upload takes about 25 s in a debug build on a busy
+    /// 2-core machine, close to the default 30 s; the timeout has its own tests), and wait
     /// until it answers (`/livez`; the database is open and migrated before the server listens).
     pub(crate) async fn start(db_path: &Path) -> Self {
         Self::start_with_file_size_limit(db_path, None).await
@@ -97,6 +99,8 @@ impl ChildServer {
             .arg(format!("127.0.0.1:{port}"))
             .arg("--page-rate-per-minute")
             .arg("0")
+            .arg("--request-timeout-s")
+            .arg("300")
             .env("RUST_LOG", "warn")
             .env_remove("MASSLINE_DEMO")
             .env_remove("MASSLINE_PUBLIC_READ")
