@@ -117,6 +117,16 @@ pub enum AppError {
         /// Every field at fault.
         fields: Vec<FieldError>,
     },
+    /// 409: the request was read, but it conflicts with what the catalog holds (a new galaxy
+    /// whose name looks like one in the catalog); the message and fields say how to resolve
+    /// it. Nothing was stored.
+    #[error("{message}")]
+    Conflict {
+        /// One sentence saying how to resolve the conflict.
+        message: String,
+        /// The fields at fault.
+        fields: Vec<FieldError>,
+    },
     /// 429: too many requests for this API token; retry after the given seconds.
     #[error("This token may make {per_minute} requests a minute; try again in {retry_after_s} s.")]
     TooManyRequests {
@@ -217,6 +227,14 @@ impl AppError {
         }
     }
 
+    /// [`AppError::Conflict`].
+    pub fn conflict(message: impl Into<String>, fields: Vec<FieldError>) -> Self {
+        Self::Conflict {
+            message: message.into(),
+            fields,
+        }
+    }
+
     /// [`AppError::TooLarge`].
     pub fn too_large(message: impl Into<String>) -> Self {
         Self::TooLarge {
@@ -258,7 +276,9 @@ impl AppError {
     /// The fields at fault (empty for most variants).
     pub fn fields(&self) -> &[FieldError] {
         match self {
-            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => fields,
+            Self::BadRequest { fields, .. }
+            | Self::Invalid { fields, .. }
+            | Self::Conflict { fields, .. } => fields,
             _ => &[],
         }
     }
@@ -283,6 +303,7 @@ impl AppError {
             Self::TooLarge { .. } | Self::BodyTooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             Self::Invalid { .. } => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::Conflict { .. } => StatusCode::CONFLICT,
             Self::TooManyRequests { .. } => StatusCode::TOO_MANY_REQUESTS,
             Self::Busy | Self::Unavailable => StatusCode::SERVICE_UNAVAILABLE,
             Self::StorageFull => StatusCode::INSUFFICIENT_STORAGE,

@@ -65,6 +65,7 @@ impl Problem {
                 ("Unsupported media type", message.clone())
             }
             AppError::Invalid { title, .. } => (title.unwrap_or("Invalid input"), error.to_string()),
+            AppError::Conflict { message, .. } => ("Conflict", message.clone()),
             AppError::TooManyRequests { .. } => ("Too many requests", error.to_string()),
             AppError::Busy => ("Busy", error.to_string()),
             AppError::Unavailable => ("Unavailable", error.to_string()),

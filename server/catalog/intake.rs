@@ -7,11 +7,12 @@
 
 use sqlx::SqlitePool;
 
-use super::galaxies::{SubmissionSource, find_by_slug};
+use super::galaxies::{NamedGalaxy, SubmissionSource, find_by_slug, look_alike};
 use super::model::{
     BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology, NewGalaxy,
     NewMeasurement, Quantity, SigmaDefinition,
 };
+use super::names::clean_name;
 use super::submissions::{self, Created, GalaxyChoice, SubmissionError};
 use crate::units::{self, Scale};
 
@@ -72,10 +73,7 @@ pub fn measurement_from_cells<'a>(
 pub(super) fn galaxy_from_fields<'a>(
     field: &impl Fn(&'static str) -> Field<'a>,
 ) -> Result<NewGalaxy, RowError> {
-    let name = field("name").required()?.to_string();
-    if name.chars().count() > 100 {
-        return Err(field("name").error("a name has at most 100 characters".into()));
-    }
+    let name = galaxy_name(&field("name"))?;
     let distance_mpc =
         field("distance_mpc").number(units::DISTANCE_MIN_MPC, units::DISTANCE_MAX_MPC, "Mpc")?;
     let distance_err_mpc = field("distance_err_mpc").number(0.0, distance_mpc, "Mpc")?;
@@ -92,6 +90,47 @@ pub(super) fn galaxy_from_fields<'a>(
         distance_err_mpc,
         distance_method: field("distance_method").word::<DistanceMethod>()?,
     })
+}
+
+/// A galaxy name cell by the name rules (`catalog::names`): NFC, spaces collapsed, nothing
+/// that does not show as text.
+pub(super) fn galaxy_name(field: &Field<'_>) -> Result<String, RowError> {
+    clean_name(field.text).map_err(|m| field.error(m))
+}
+
+/// The column (of a form, a JSON request or a catalog file) that confirms a new galaxy whose
+/// name looks like one in the catalog.
+pub const CONFIRM_COLUMN: &str = "new_galaxy_confirmed";
+
+/// Whether a confirmation cell says yes: `yes`, `true`, `1` or `on` (a ticked checkbox); blank,
+/// `no`, `false` or `0` say no.
+///
+/// # Errors
+/// Any other text, as a fragment saying what to type.
+pub fn confirmation(text: &str) -> Result<bool, String> {
+    match text.trim().to_ascii_lowercase().as_str() {
+        "yes" | "true" | "1" | "on" => Ok(true),
+        "" | "no" | "false" | "0" => Ok(false),
+        _ => Err(format!(
+            "type yes in {CONFIRM_COLUMN} to confirm that this is a new galaxy, or leave it blank"
+        )),
+    }
+}
+
+/// The sentence for a new galaxy whose name looks like one in the catalog.
+pub fn look_alike_message(name: &str, existing: &NamedGalaxy) -> String {
+    format!(
+        "“{name}” looks like the existing galaxy “{}” (slug {}): choose it, or confirm that this is a new galaxy.",
+        existing.name, existing.slug
+    )
+}
+
+/// The sentence for a new galaxy named exactly as one in the catalog.
+pub fn name_taken_message(existing: &NamedGalaxy) -> String {
+    format!(
+        "A galaxy named “{}” is already in the catalog (slug {}); choose it instead of describing it again.",
+        existing.name, existing.slug
+    )
 }
 
 /// Build a measurement from a row's named fields (shared by every catalog CSV reader).
@@ -306,6 +345,9 @@ pub enum Cell {
     Galaxy,
     /// A column of the new galaxy.
     NewGalaxy(&'static str),
+    /// The confirmation that a new galaxy whose name looks like one in the catalog is new
+    /// ([`CONFIRM_COLUMN`]); its fault names the galaxy it looks like.
+    NewGalaxyConfirmed,
     /// A column of measurement row `.0` (from 0).
     Measurement(usize, &'static str),
     /// The note.
@@ -353,7 +395,13 @@ pub async fn check(
             }
         },
         GalaxyCells::New(cell) => match galaxy_from_cells("form", 0, &|c| cell(c)) {
-            Ok(g) => Some(GalaxyChoice::New(g)),
+            Ok(g) => match new_galaxy_fault(pool, &g.name, cell(CONFIRM_COLUMN)).await? {
+                None => Some(GalaxyChoice::New(g)),
+                Some(fault) => {
+                    faults.push(fault);
+                    None
+                }
+            },
             Err(e) => {
                 faults.push(Fault {
                     cell: Cell::NewGalaxy(e.column),
@@ -385,6 +433,36 @@ pub async fn check(
             measurements,
         }),
         _ => Err(faults),
+    })
+}
+
+/// Why a new galaxy called `name` cannot be described: a galaxy of that very name is in the
+/// catalog, or one whose name looks like it and `confirm` does not say yes.
+async fn new_galaxy_fault(
+    pool: &SqlitePool,
+    name: &str,
+    confirm: &str,
+) -> sqlx::Result<Option<Fault>> {
+    let Some(existing) = look_alike(pool, name).await? else {
+        return Ok(None);
+    };
+    Ok(if existing.name == name {
+        Some(Fault {
+            cell: Cell::NewGalaxy("name"),
+            message: name_taken_message(&existing),
+        })
+    } else {
+        match confirmation(confirm) {
+            Ok(true) => None,
+            Ok(false) => Some(Fault {
+                cell: Cell::NewGalaxyConfirmed,
+                message: look_alike_message(name, &existing),
+            }),
+            Err(message) => Some(Fault {
+                cell: Cell::NewGalaxyConfirmed,
+                message: sentence(&message),
+            }),
+        }
     })
 }
 

@@ -18,6 +18,7 @@ pub mod galaxies;
 pub mod history;
 pub mod intake;
 pub mod model;
+pub mod names;
 pub mod overview;
 pub mod relation_rows;
 pub mod submissions;
@@ -75,6 +76,9 @@ pub async fn connect_with_busy_timeout(
         .run(&pool)
         .await
         .context("could not apply the database migrations")?;
+    galaxies::fill_name_keys(&pool)
+        .await
+        .context("could not store the look-alike keys of the galaxy names")?;
     Ok(pool)
 }
 

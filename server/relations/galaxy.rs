@@ -10,6 +10,8 @@ use super::{
     sphere_of_influence,
 };
 use crate::astro::SphereOfInfluence;
+use crate::auth::{Principal, Role};
+use crate::catalog::galaxies::Unreviewed;
 use crate::catalog::model::{Galaxy, Measurement};
 use crate::catalog::{galaxies, history, relation_rows};
 use crate::error::AppResult;
@@ -28,7 +30,7 @@ pub struct MeasurementAt {
     pub sphere_of_influence: Option<SphereOfInfluence>,
 }
 
-/// A galaxy with every measurement, in any state, adopted first within a quantity.
+/// A galaxy with every measurement its reader may see, adopted first within a quantity.
 #[derive(Debug, Clone)]
 pub struct GalaxyRecord {
     /// The galaxy as stored.
@@ -51,7 +53,23 @@ impl GalaxyRecord {
     }
 }
 
-/// The galaxy whose slug is `slug`, with its measurements; None when there is none.
+/// Whose unreviewed measurements `reader` may see: a reviewer or admin (by session or by
+/// token) everyone's, since reviewing them is their task; a member only their own, as on
+/// their own submission pages; a reader without an account (public read access) none.
+pub fn unreviewed_shown_to(reader: &Principal) -> Unreviewed {
+    match reader {
+        Principal::Session(s) if s.role.includes(Role::Reviewer) => Unreviewed::All,
+        Principal::Token(t) if t.role.includes(Role::Reviewer) => Unreviewed::All,
+        Principal::Session(s) => Unreviewed::OwnOf(s.account_id),
+        Principal::Token(t) => Unreviewed::OwnOf(t.account_id),
+        Principal::Anonymous | Principal::BadToken => Unreviewed::None,
+    }
+}
+
+/// The galaxy whose slug is `slug`, with the measurements `reader` may see (accepted and
+/// rejected ones to everyone, unreviewed ones as [`unreviewed_shown_to`] says); None when
+/// there is no such galaxy. Pages and the API both read a galaxy through here, so the rule is
+/// applied once.
 ///
 /// # Errors
 /// When the database fails.
@@ -59,11 +77,13 @@ pub async fn galaxy_record(
     pool: &SqlitePool,
     soi_threshold: f64,
     slug: &str,
+    reader: &Principal,
 ) -> sqlx::Result<Option<GalaxyRecord>> {
     let Some(galaxy) = galaxies::find_by_slug(pool, slug).await? else {
         return Ok(None);
     };
-    let measurements = galaxies::measurements_of(pool, galaxy.galaxy_id).await?;
+    let measurements =
+        galaxies::measurements_seen(pool, galaxy.galaxy_id, unreviewed_shown_to(reader)).await?;
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()

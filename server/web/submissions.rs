@@ -127,6 +127,10 @@ pub(crate) struct NewSubmissionPage {
     galaxies: Vec<(String, String, bool)>,
     galaxy_error: Option<String>,
     galaxy_inputs: Vec<Input>,
+    /// Why the new galaxy's name needs confirming: it looks like a galaxy in the catalog.
+    look_alike: Option<String>,
+    /// The confirmation box is ticked.
+    new_galaxy_confirmed: bool,
     measurement_rows: Vec<RowInputs>,
     /// The number of measurement rows (a hidden field, so "add a row" keeps what was typed).
     n_rows: usize,
@@ -198,6 +202,8 @@ async fn form_page(
         galaxies,
         galaxy_error: errors.get("galaxy").cloned(),
         galaxy_inputs,
+        look_alike: errors.get(intake::CONFIRM_COLUMN).cloned(),
+        new_galaxy_confirmed: intake::confirmation(&get(intake::CONFIRM_COLUMN)).unwrap_or(false),
         measurement_rows: rows,
         n_rows,
         can_add_row: n_rows < MAX_FORM_ROWS,
@@ -252,8 +258,14 @@ pub(crate) async fn create_submission(
         let form_error = read
             .form_error
             .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
+        // A look-alike name is no typing error: the form asks to choose or confirm (409).
+        let status = if read.errors.contains_key(intake::CONFIRM_COLUMN) {
+            StatusCode::CONFLICT
+        } else {
+            StatusCode::BAD_REQUEST
+        };
         let page = form_page(&state, user, nav, &fields, &read.errors, form_error).await?;
-        return Ok((StatusCode::BAD_REQUEST, page).into_response());
+        return Ok((status, page).into_response());
     };
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
@@ -346,6 +358,7 @@ fn form_field(cell: Cell) -> String {
     match cell {
         Cell::Galaxy => "galaxy".to_owned(),
         Cell::NewGalaxy(column) => column.to_owned(),
+        Cell::NewGalaxyConfirmed => intake::CONFIRM_COLUMN.to_owned(),
         Cell::Measurement(row, column) => format!("m{row}_{column}"),
         Cell::Note => "note".to_owned(),
     }
