@@ -205,6 +205,10 @@ pub async fn submit(
         e @ SubmissionError::NameTaken => {
             AppError::invalid(vec![FieldError::new("new_galaxy.name", e.to_string())])
         }
+        e @ SubmissionError::LooksLike { .. } => AppError::conflict(
+            "The new galaxy's name looks like a galaxy in the catalog; send that galaxy's slug as \"galaxy\", or send \"new_galaxy_confirmed\": true to store a new galaxy.",
+            vec![FieldError::new(intake::CONFIRM_COLUMN, e.to_string())],
+        ),
         e => AppError::invalid(vec![FieldError::new("galaxy", e.to_string())]),
     })?;
     let status = if created.replayed {
@@ -330,12 +334,6 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
     );
     // In the order of the request: the galaxy, the measurements one by one, the note.
     errors.sort_by_key(|e| request_order(&e.field));
-    if errors.iter().any(|e| e.field == intake::CONFIRM_COLUMN) {
-        return Err(AppError::conflict(
-            "The new galaxy's name looks like a galaxy in the catalog; send that galaxy's slug as \"galaxy\", or send \"new_galaxy_confirmed\": true to store a new galaxy.",
-            errors,
-        ));
-    }
     Err(AppError::invalid(errors))
 }
 

@@ -7,7 +7,7 @@
 
 use sqlx::SqlitePool;
 
-use super::galaxies::{NamedGalaxy, SubmissionSource, find_by_slug, look_alike};
+use super::galaxies::{NamedGalaxy, SubmissionSource, find_by_slug};
 use super::model::{
     BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology, NewGalaxy,
     NewMeasurement, Quantity, SigmaDefinition,
@@ -121,14 +121,6 @@ pub fn confirmation(text: &str) -> Result<bool, String> {
 pub fn look_alike_message(name: &str, existing: &NamedGalaxy) -> String {
     format!(
         "“{name}” looks like the existing galaxy “{}” (slug {}): choose it, or confirm that this is a new galaxy.",
-        existing.name, existing.slug
-    )
-}
-
-/// The sentence for a new galaxy named exactly as one in the catalog.
-pub fn name_taken_message(existing: &NamedGalaxy) -> String {
-    format!(
-        "A galaxy named “{}” is already in the catalog (slug {}); choose it instead of describing it again.",
         existing.name, existing.slug
     )
 }
@@ -368,6 +360,9 @@ pub struct Fault {
 pub struct Checked {
     /// The galaxy: in the catalog, or new.
     pub galaxy: GalaxyChoice,
+    /// A new galaxy is confirmed as new although its name may look like one in the catalog
+    /// (the [`CONFIRM_COLUMN`] said yes); checked when storing, under the write lock.
+    pub new_galaxy_confirmed: bool,
     /// The measurements, in canonical units.
     pub measurements: Vec<NewMeasurement>,
 }
@@ -381,6 +376,7 @@ pub async fn check(
     cells: &SubmissionCells<'_>,
 ) -> sqlx::Result<Result<Checked, Vec<Fault>>> {
     let mut faults = Vec::new();
+    let mut new_galaxy_confirmed = false;
     let galaxy = match &cells.galaxy {
         GalaxyCells::Slug(slug) => match find_by_slug(pool, slug.trim()).await? {
             Some(g) => Some(GalaxyChoice::Existing(g.galaxy_id)),
@@ -395,10 +391,16 @@ pub async fn check(
             }
         },
         GalaxyCells::New(cell) => match galaxy_from_cells("form", 0, &|c| cell(c)) {
-            Ok(g) => match new_galaxy_fault(pool, &g.name, cell(CONFIRM_COLUMN)).await? {
-                None => Some(GalaxyChoice::New(g)),
-                Some(fault) => {
-                    faults.push(fault);
+            Ok(g) => match confirmation(cell(CONFIRM_COLUMN)) {
+                Ok(yes) => {
+                    new_galaxy_confirmed = yes;
+                    Some(GalaxyChoice::New(g))
+                }
+                Err(message) => {
+                    faults.push(Fault {
+                        cell: Cell::NewGalaxyConfirmed,
+                        message: sentence(&message),
+                    });
                     None
                 }
             },
@@ -430,39 +432,10 @@ pub async fn check(
     Ok(match (galaxy, faults.is_empty()) {
         (Some(galaxy), true) => Ok(Checked {
             galaxy,
+            new_galaxy_confirmed,
             measurements,
         }),
         _ => Err(faults),
-    })
-}
-
-/// Why a new galaxy called `name` cannot be described: a galaxy of that very name is in the
-/// catalog, or one whose name looks like it and `confirm` does not say yes.
-async fn new_galaxy_fault(
-    pool: &SqlitePool,
-    name: &str,
-    confirm: &str,
-) -> sqlx::Result<Option<Fault>> {
-    let Some(existing) = look_alike(pool, name).await? else {
-        return Ok(None);
-    };
-    Ok(if existing.name == name {
-        Some(Fault {
-            cell: Cell::NewGalaxy("name"),
-            message: name_taken_message(&existing),
-        })
-    } else {
-        match confirmation(confirm) {
-            Ok(true) => None,
-            Ok(false) => Some(Fault {
-                cell: Cell::NewGalaxyConfirmed,
-                message: look_alike_message(name, &existing),
-            }),
-            Err(message) => Some(Fault {
-                cell: Cell::NewGalaxyConfirmed,
-                message: sentence(&message),
-            }),
-        }
     })
 }
 
@@ -488,7 +461,7 @@ pub async fn store(
         &checked.measurements,
         note,
     );
-    submissions::create(
+    submissions::create_confirming(
         pool,
         account_id,
         source,
@@ -496,6 +469,7 @@ pub async fn store(
         &checked.measurements,
         note,
         &request,
+        checked.new_galaxy_confirmed,
     )
     .await
 }

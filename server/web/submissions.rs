@@ -258,14 +258,8 @@ pub(crate) async fn create_submission(
         let form_error = read
             .form_error
             .or_else(|| Some("Nothing was saved; correct the fields marked below.".to_owned()));
-        // A look-alike name is no typing error: the form asks to choose or confirm (409).
-        let status = if read.errors.contains_key(intake::CONFIRM_COLUMN) {
-            StatusCode::CONFLICT
-        } else {
-            StatusCode::BAD_REQUEST
-        };
         let page = form_page(&state, user, nav, &fields, &read.errors, form_error).await?;
-        return Ok((status, page).into_response());
+        return Ok((StatusCode::BAD_REQUEST, page).into_response());
     };
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
@@ -384,6 +378,12 @@ async fn refused_submission(
                 "This form was already submitted with other values, so nothing was saved. Check the values below and submit again to store them as a new submission.",
             )
         }
+        // A look-alike name is no typing error: the form asks to choose or confirm.
+        e @ SubmissionError::LooksLike { .. } => (
+            StatusCode::CONFLICT,
+            HashMap::from([(intake::CONFIRM_COLUMN.to_owned(), e.to_string())]),
+            "Nothing was saved; choose the existing galaxy, or tick the box below if this is a new one.",
+        ),
         e => {
             let field = match e {
                 SubmissionError::NameTaken => "name",

@@ -176,6 +176,13 @@ async fn the_api_answers_a_look_alike_with_409_naming_the_galaxy_and_takes_a_con
     let (status, answer) = post_api(&app, &token, "k3", &api_body("\u{425} 214", Some(true))).await;
     assert_eq!(status, 201, "{answer}");
     assert_eq!(galaxies(&app).await, ["X 214", "\u{425} 214"]);
+    // A retry of the confirmed request is answered with its submission, not refused as a
+    // look-alike of the galaxy it created.
+    let (status, again) = post_api(&app, &token, "k3", &api_body("\u{425} 214", Some(true))).await;
+    assert_eq!(
+        (status, &again["submission_id"]),
+        (200, &answer["submission_id"])
+    );
 }
 
 #[tokio::test]
