@@ -284,6 +284,9 @@ async fn every_route_answers_each_caller_as_the_access_table_says() {
     );
 }
 
+/// The cell of a caller's column in a `[[pending]]` row.
+type Expected = fn(&PendingRow) -> &str;
+
 /// What a reader of a galaxy gets: its status and body.
 enum Reader {
     Browser(Browser),
@@ -377,7 +380,7 @@ async fn a_pending_value_is_seen_only_by_its_submitter_and_reviewers_as_the_acce
     let (member_token, _) = app.make_token(other_id, "read").await;
     let (reviewer_token, _) = app.make_token(reviewer_id, "read").await;
 
-    let mut readers: Vec<(&str, Reader, fn(&PendingRow) -> &str)> = vec![
+    let mut readers: Vec<(&str, Reader, Expected)> = vec![
         ("anonymous_public", Reader::Browser(app.browser()), |r| {
             &r.anonymous_public
         }),
