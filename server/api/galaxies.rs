@@ -364,14 +364,19 @@ pub async fn show_galaxy(
     Extension(principal): Extension<Principal>,
     Path(slug): Path<String>,
 ) -> ApiResult<Json<GalaxyAnswer>> {
-    let record = galaxy_record(&state.pool, state.settings.soi_threshold, &slug, &principal)
-        .await?
-        .ok_or_else(|| {
-            AppError::not_found_saying(format!(
-                "There is no galaxy '{}'.",
-                slug.chars().take(80).collect::<String>()
-            ))
-        })?;
+    let record = galaxy_record(
+        &state.pool,
+        state.settings.soi_threshold,
+        &slug,
+        principal.unreviewed_shown(),
+    )
+    .await?
+    .ok_or_else(|| {
+        AppError::not_found_saying(format!(
+            "There is no galaxy '{}'.",
+            slug.chars().take(80).collect::<String>()
+        ))
+    })?;
     let adopted = record
         .adopted()
         .map(|m| AdoptedValue {

@@ -10,7 +10,6 @@ use super::{
     sphere_of_influence,
 };
 use crate::astro::SphereOfInfluence;
-use crate::auth::{Principal, Role};
 use crate::catalog::galaxies::Unreviewed;
 use crate::catalog::model::{Galaxy, Measurement};
 use crate::catalog::{galaxies, history, relation_rows};
@@ -53,23 +52,10 @@ impl GalaxyRecord {
     }
 }
 
-/// Whose unreviewed measurements `reader` may see: a reviewer or admin (by session or by
-/// token) everyone's, since reviewing them is their task; a member only their own, as on
-/// their own submission pages; a reader without an account (public read access) none.
-pub fn unreviewed_shown_to(reader: &Principal) -> Unreviewed {
-    match reader {
-        Principal::Session(s) if s.role.includes(Role::Reviewer) => Unreviewed::All,
-        Principal::Token(t) if t.role.includes(Role::Reviewer) => Unreviewed::All,
-        Principal::Session(s) => Unreviewed::OwnOf(s.account_id),
-        Principal::Token(t) => Unreviewed::OwnOf(t.account_id),
-        Principal::Anonymous | Principal::BadToken => Unreviewed::None,
-    }
-}
-
-/// The galaxy whose slug is `slug`, with the measurements `reader` may see (accepted and
-/// rejected ones to everyone, unreviewed ones as [`unreviewed_shown_to`] says); None when
-/// there is no such galaxy. Pages and the API both read a galaxy through here, so the rule is
-/// applied once.
+/// The galaxy whose slug is `slug`, with the measurements its reader may see: accepted and
+/// rejected ones, and the unreviewed ones `shown` admits (the doors pass
+/// `Principal::unreviewed_shown` of who asks); None when there is no such galaxy. Pages and
+/// the API both read a galaxy through here, so the rule is applied once.
 ///
 /// # Errors
 /// When the database fails.
@@ -77,13 +63,12 @@ pub async fn galaxy_record(
     pool: &SqlitePool,
     soi_threshold: f64,
     slug: &str,
-    reader: &Principal,
+    shown: Unreviewed,
 ) -> sqlx::Result<Option<GalaxyRecord>> {
     let Some(galaxy) = galaxies::find_by_slug(pool, slug).await? else {
         return Ok(None);
     };
-    let measurements =
-        galaxies::measurements_seen(pool, galaxy.galaxy_id, unreviewed_shown_to(reader)).await?;
+    let measurements = galaxies::measurements_seen(pool, galaxy.galaxy_id, shown).await?;
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()

@@ -319,7 +319,7 @@ pub(crate) async fn show_galaxy(
 ) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
     let threshold = state.settings.soi_threshold;
-    let record = galaxy_record(&state.pool, threshold, &slug, &principal)
+    let record = galaxy_record(&state.pool, threshold, &slug, principal.unreviewed_shown())
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
     let galaxy = &record.galaxy;
