@@ -68,6 +68,19 @@ async fn a_look_alike_of_an_existing_name_is_asked_to_choose_or_confirm() {
     }
     assert_eq!(galaxies(&app).await, ["X 214"], "no look-alike was stored");
 
+    // "Check against the relations" says so before submitting, and stores nothing.
+    let mut check = form("X_214", "");
+    check.retain(|(k, _)| *k != "action");
+    check.push(("action", "check"));
+    let r = b.post("/submissions/new", &check).await;
+    assert_eq!(r.status, 200, "{}", r.body);
+    assert!(
+        r.body.contains("looks like the existing galaxy “X 214”"),
+        "{}",
+        r.body
+    );
+    assert_eq!(galaxies(&app).await, ["X 214"]);
+
     // The submitter confirms that the hyphenated name is another galaxy.
     let r = b.post("/submissions/new", &form("X-214", "yes")).await;
     assert_eq!(r.status, 303, "{}", r.body);
