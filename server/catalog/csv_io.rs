@@ -450,14 +450,24 @@ pub async fn import_rows(
         match (existing, described) {
             (Some(id), _) => choices.push(GalaxyChoice::Existing(id)),
             (None, Some(g)) => choices.push(GalaxyChoice::New(g.clone())),
-            (None, None) => faults.push(RowError {
-                file: FILE,
-                line: group[0].line,
-                column: "galaxy",
-                message: format!(
-                    "'{name}' is not in the catalog; describe it (morphology, distance, …) on one of its rows"
-                ),
-            }),
+            (None, None) => {
+                let message = match galaxies::look_alike(&mut *tx, name).await? {
+                    // A look-alike of a catalog name is most likely that galaxy, mistyped.
+                    Some(other) => format!(
+                        "'{name}' is not in the catalog, but “{}” is: write that name, or describe a new galaxy (morphology, distance, …) on one of its rows",
+                        other.name
+                    ),
+                    None => format!(
+                        "'{name}' is not in the catalog; describe it (morphology, distance, …) on one of its rows"
+                    ),
+                };
+                faults.push(RowError {
+                    file: FILE,
+                    line: group[0].line,
+                    column: "galaxy",
+                    message,
+                });
+            }
         }
     }
     if !faults.is_empty() {

@@ -226,6 +226,22 @@ async fn a_catalog_file_row_with_a_look_alike_is_a_fault_until_its_confirm_colum
     }
     assert_eq!(galaxies(&app).await, ["X 214"]);
 
+    // A row that only names a look-alike is pointed to the catalog's galaxy.
+    let rows =
+        parse_catalog_csv("galaxy,quantity,value,method\nx-214,bh_mass,2.4e8,stellar_dynamics\n")
+            .unwrap();
+    match import_rows(&app.pool, &rows, pending, &mut |_, _| {}).await {
+        Err(ImportError::Rows(faults)) => {
+            assert_eq!(faults[0].column, "galaxy");
+            assert!(
+                faults[0].message.contains("but “X 214” is"),
+                "{}",
+                faults[0].message
+            );
+        }
+        other => panic!("a row naming no catalog galaxy was not a fault: {other:?}"),
+    }
+
     let confirmed = format!("{header},new_galaxy_confirmed\n{row},yes\n");
     let rows = parse_catalog_csv(&confirmed).unwrap();
     let report = import_rows(&app.pool, &rows, pending, &mut |_, _| {})
