@@ -338,7 +338,7 @@ pub enum Cell {
     /// A column of the new galaxy.
     NewGalaxy(&'static str),
     /// The confirmation that a new galaxy whose name looks like one in the catalog is new
-    /// ([`CONFIRM_COLUMN`]); its fault names the galaxy it looks like.
+    /// ([`CONFIRM_COLUMN`]), when it is neither yes nor no.
     NewGalaxyConfirmed,
     /// A column of measurement row `.0` (from 0).
     Measurement(usize, &'static str),
