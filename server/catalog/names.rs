@@ -54,6 +54,10 @@ pub fn clean_name(text: &str) -> Result<String, String> {
 /// Whether a character does not show as text: Cc, Cf, Zl or Zp (a tab or line break inside a
 /// name counts; at either end it is trimmed with the spaces).
 fn hidden(c: char) -> bool {
+    // Most names are ASCII: no table lookup for them (catalog files have many thousand rows).
+    if c.is_ascii() {
+        return c.is_ascii_control();
+    }
     c.is_control()
         || matches!(
             c.general_category(),
