@@ -426,6 +426,23 @@ async fn a_pending_value_is_seen_only_by_its_submitter_and_reviewers_as_the_acce
             }
         }
     }
+    // Withdrawn before review, the value stays as it was: its submitter's and the reviewers'.
+    massline::catalog::submissions::withdraw(&app.pool, submitter, submission_id)
+        .await
+        .unwrap();
+    let path = format!("/api/v1/galaxies/{slug}");
+    for (index, shown) in [(0, false), (1, true), (2, false), (3, true)] {
+        let (column, reader, _) = &mut readers[index];
+        let (status, body) = reader.read(&app, &path).await;
+        assert_eq!(status, 200, "{column}: {body}");
+        let seen = body.contains(&submission_field);
+        if seen != shown {
+            failures.push(format!(
+                "{column}: {path} {} the withdrawn value",
+                if seen { "shows" } else { "hides" }
+            ));
+        }
+    }
     assert!(
         failures.is_empty(),
         "{} cells differ from the pending rows of tests/access.toml:\n{}",
