@@ -174,6 +174,16 @@ pub enum AppError {
         /// Every field at fault.
         fields: Vec<FieldError>,
     },
+    /// 409: the request was read, but it conflicts with what the catalog holds (a new galaxy
+    /// whose name looks like one in the catalog); the message and fields say how to resolve
+    /// it. Nothing was stored.
+    #[error("{message}")]
+    Conflict {
+        /// One sentence saying how to resolve the conflict.
+        message: String,
+        /// The fields at fault.
+        fields: Vec<FieldError>,
+    },
     /// 429: too many requests from this account (or client address) for pages or for the API;
     /// retry after the given seconds.
     #[error(
@@ -308,6 +318,14 @@ impl AppError {
         }
     }
 
+    /// [`AppError::Conflict`].
+    pub fn conflict(message: impl Into<String>, fields: Vec<FieldError>) -> Self {
+        Self::Conflict {
+            message: message.into(),
+            fields,
+        }
+    }
+
     /// [`AppError::TooLarge`].
     pub fn too_large(message: impl Into<String>) -> Self {
         Self::TooLarge {
@@ -351,7 +369,9 @@ impl AppError {
     /// The fields at fault (empty for most variants).
     pub fn fields(&self) -> &[FieldError] {
         match self {
-            Self::BadRequest { fields, .. } | Self::Invalid { fields, .. } => fields,
+            Self::BadRequest { fields, .. }
+            | Self::Invalid { fields, .. }
+            | Self::Conflict { fields, .. } => fields,
             _ => &[],
         }
     }
@@ -387,6 +407,7 @@ impl AppError {
             Self::TooLarge { .. } | Self::BodyTooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             Self::Invalid { .. } => StatusCode::UNPROCESSABLE_ENTITY,
+            Self::Conflict { .. } => StatusCode::CONFLICT,
             Self::TooManyRequests { .. } => StatusCode::TOO_MANY_REQUESTS,
             Self::Busy | Self::Unavailable => StatusCode::SERVICE_UNAVAILABLE,
             Self::StorageFull => StatusCode::INSUFFICIENT_STORAGE,

@@ -5,13 +5,14 @@
 
 use axum::Json;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Path, Query, State};
+use axum::extract::{Extension, Path, Query, State};
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
 use super::problem::Problem;
 use super::relations::{BulgeKindWord, MassMethodWord, MorphologyWord};
 use super::{ApiResult, query_pairs};
+use crate::auth::Principal;
 use crate::error::{AppError, FieldError};
 use crate::relations::galaxy::{MeasurementAt, galaxy_record};
 use crate::relations::table::{MAX_PER_PAGE, TableQuery, TableRow, table_page};
@@ -336,7 +337,9 @@ pub struct GalaxyAnswer {
     pub adopted: Vec<AdoptedValue>,
     /// The sphere-of-influence check of the adopted mass, when it can be made.
     pub sphere_of_influence: Option<super::place::SoiAnswer>,
-    /// Every measurement, in any state, adopted first within a quantity.
+    /// Every measurement the caller may see, adopted first within a quantity: accepted and
+    /// rejected ones; pending or withdrawn ones only the caller's own, or every one for a
+    /// reviewer or admin.
     pub measurements: Vec<MeasurementAnswer>,
 }
 
@@ -358,16 +361,22 @@ pub struct GalaxyAnswer {
 )]
 pub async fn show_galaxy(
     State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
     Path(slug): Path<String>,
 ) -> ApiResult<Json<GalaxyAnswer>> {
-    let record = galaxy_record(&state.pool, state.settings.soi_threshold, &slug)
-        .await?
-        .ok_or_else(|| {
-            AppError::not_found_saying(format!(
-                "There is no galaxy '{}'.",
-                slug.chars().take(80).collect::<String>()
-            ))
-        })?;
+    let record = galaxy_record(
+        &state.pool,
+        state.settings.soi_threshold,
+        &slug,
+        principal.unreviewed_shown(),
+    )
+    .await?
+    .ok_or_else(|| {
+        AppError::not_found_saying(format!(
+            "There is no galaxy '{}'.",
+            slug.chars().take(80).collect::<String>()
+        ))
+    })?;
     let adopted = record
         .adopted()
         .map(|m| AdoptedValue {

@@ -79,6 +79,7 @@ impl Problem {
                 title.unwrap_or("Invalid input"),
                 error.public_message_for(method),
             ),
+            AppError::Conflict { message, .. } => ("Conflict", message.clone()),
             AppError::TooManyRequests { .. } => ("Too many requests", error.to_string()),
             AppError::Busy => ("Busy", error.to_string()),
             AppError::Unavailable => ("Unavailable", error.to_string()),

@@ -98,6 +98,11 @@ pub struct SubmissionRequest {
     /// Note to the reviewer (at most 2000 characters).
     #[serde(default)]
     pub note: String,
+    /// `true` confirms that `new_galaxy` is a new galaxy although its name looks like one in
+    /// the catalog (the same up to case, spacing, punctuation, accents or look-alike letters of
+    /// other scripts); without it such a request is answered 409, naming that galaxy.
+    #[serde(default)]
+    pub new_galaxy_confirmed: bool,
 }
 
 /// The answer to a submission (and to its replay).
@@ -165,6 +170,7 @@ fn token_of(principal: &Principal) -> ApiResult<&TokenUser> {
         (status = 403, description = "The token lacks the submit scope", body = Problem, content_type = "application/problem+json"),
         (status = 413, description = "Body over 1 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "Not JSON", body = Problem, content_type = "application/problem+json"),
+        (status = 409, description = "The new galaxy's name looks like a galaxy in the catalog (named with its slug in `errors`); send that slug as `galaxy`, or `new_galaxy_confirmed: true`", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "Invalid fields (every one listed), or the key reused with another body", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
         (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
@@ -211,6 +217,10 @@ pub async fn submit(
         e @ SubmissionError::NameTaken => {
             AppError::invalid(vec![FieldError::new("new_galaxy.name", e.to_string())])
         }
+        e @ SubmissionError::LooksLike { .. } => AppError::conflict(
+            "The new galaxy's name looks like a galaxy in the catalog; send that galaxy's slug as \"galaxy\", or send \"new_galaxy_confirmed\": true to store a new galaxy.",
+            vec![FieldError::new(intake::CONFIRM_COLUMN, e.to_string())],
+        ),
         e => AppError::invalid(vec![FieldError::new("galaxy", e.to_string())]),
     })?;
     let status = if created.replayed {
@@ -287,6 +297,15 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
             ("distance_mpc", g.distance_mpc.text()),
             ("distance_err_mpc", g.distance_err_mpc.text()),
             ("distance_method", g.distance_method.clone()),
+            (
+                intake::CONFIRM_COLUMN,
+                if request.new_galaxy_confirmed {
+                    "yes"
+                } else {
+                    ""
+                }
+                .to_owned(),
+            ),
         ]
         .into_iter()
         .collect()
@@ -404,6 +423,7 @@ fn json_path(cell: intake::Cell) -> String {
     match cell {
         intake::Cell::Galaxy => "galaxy".to_owned(),
         intake::Cell::NewGalaxy(column) => format!("new_galaxy.{column}"),
+        intake::Cell::NewGalaxyConfirmed => intake::CONFIRM_COLUMN.to_owned(),
         intake::Cell::Measurement(i, column) => format!("measurements[{i}].{column}"),
         intake::Cell::Note => "note".to_owned(),
     }

@@ -25,6 +25,7 @@ use std::fmt;
 use std::str::FromStr;
 
 use crate::catalog::accounts::FailurePolicy;
+use crate::catalog::galaxies::Unreviewed;
 
 /// Idle limit of a member's or reviewer's session (ASVS 7.3.1; 15–30 min is the range the OWASP
 /// Session Management Cheat Sheet gives for low-risk applications).
@@ -212,6 +213,20 @@ impl Principal {
             Self::Session(s) => Some(s.role),
             Self::Token(t) => Some(t.role),
             _ => None,
+        }
+    }
+
+    /// Whose unreviewed measurements (pending, or withdrawn before review) this reader may
+    /// see: a reviewer or admin, by session or by token, everyone's, since reviewing them is
+    /// their task; a member only their own, as on their own submission pages; a reader without
+    /// an account (public read access) none.
+    pub fn unreviewed_shown(&self) -> Unreviewed {
+        match self {
+            Self::Session(s) if s.role.includes(Role::Reviewer) => Unreviewed::All,
+            Self::Token(t) if t.role.includes(Role::Reviewer) => Unreviewed::All,
+            Self::Session(s) => Unreviewed::OwnOf(s.account_id),
+            Self::Token(t) => Unreviewed::OwnOf(t.account_id),
+            Self::Anonymous | Self::BadToken => Unreviewed::None,
         }
     }
 }

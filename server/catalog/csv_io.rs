@@ -15,7 +15,10 @@ use sqlx::SqlitePool;
 
 use super::galaxies::{self, RowKey, SubmissionSource};
 use super::history::{self, NewEvent};
-use super::intake::{RowError, galaxy_from_cells, measurement_from_cells};
+use super::intake::{
+    CONFIRM_COLUMN, Field, RowError, confirmation, galaxy_from_cells, galaxy_name,
+    measurement_from_cells,
+};
 use super::model::{NewGalaxy, NewMeasurement, Quantity, SubmissionState};
 use super::submissions::{self, GalaxyChoice, SubmissionError};
 use crate::auth::secret::sha256_hex;
@@ -183,6 +186,9 @@ pub struct ImportRow {
     pub galaxy_name: String,
     /// Its description, when the row gives one.
     pub galaxy: Option<NewGalaxy>,
+    /// The row's `new_galaxy_confirmed` cell says yes: the galaxy is new even though its name
+    /// looks like one in the catalog.
+    pub new_galaxy_confirmed: bool,
     /// The measurement.
     pub measurement: NewMeasurement,
     /// The row's key: the `row_key` cell, or the SHA-256 of the content cells when that is
@@ -239,7 +245,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
     if let Some((_, first)) = rows.first() {
         let mut faults = Vec::new();
         for column in first.keys() {
-            if !COLUMNS.contains(&column.as_str()) {
+            if !COLUMNS.contains(&column.as_str()) && column != CONFIRM_COLUMN {
                 faults.push(RowError {
                     file: FILE,
                     line: 1,
@@ -273,16 +279,31 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
             let key = if c == "name" { "galaxy" } else { c };
             rec.get(key).map_or("", String::as_str)
         };
-        let name = cell("galaxy").trim();
-        if name.is_empty() {
-            faults.push(RowError {
-                file: FILE,
-                line,
-                column: "galaxy",
-                message: "this column is required".into(),
-            });
-            continue;
-        }
+        let name_cell = Field {
+            file: FILE,
+            line,
+            column: "galaxy",
+            text: cell("galaxy"),
+        };
+        let name = match galaxy_name(&name_cell) {
+            Ok(name) => name,
+            Err(e) => {
+                faults.push(e);
+                continue;
+            }
+        };
+        let new_galaxy_confirmed = match confirmation(cell(CONFIRM_COLUMN)) {
+            Ok(yes) => yes,
+            Err(message) => {
+                faults.push(RowError {
+                    file: FILE,
+                    line,
+                    column: CONFIRM_COLUMN,
+                    message,
+                });
+                continue;
+            }
+        };
         let described = GALAXY_COLUMNS.iter().any(|c| !cell(c).trim().is_empty());
         let galaxy = if described {
             match galaxy_from_cells(FILE, line, &cell) {
@@ -325,8 +346,9 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
         match measurement_from_cells(FILE, line, &cell) {
             Ok(measurement) => out.push(ImportRow {
                 line,
-                galaxy_name: name.to_owned(),
+                galaxy_name: name,
                 galaxy,
+                new_galaxy_confirmed,
                 measurement,
                 row,
             }),
@@ -457,6 +479,9 @@ pub async fn import_rows(
         entry.push(r);
     }
     let mut choices = Vec::with_capacity(order.len());
+    // New galaxies of this file by look-alike key: two rows may not describe look-alikes as two
+    // new galaxies either, unless the later one confirms it.
+    let mut new_keys: HashMap<String, (&str, u64)> = HashMap::new();
     for name in &order {
         let group = &by_galaxy[name];
         let existing: Option<i64> =
@@ -464,17 +489,53 @@ pub async fn import_rows(
                 .bind(name)
                 .fetch_optional(&mut *tx)
                 .await?;
-        match (existing, group.iter().find_map(|r| r.galaxy.as_ref())) {
+        let described = group.iter().find_map(|r| r.galaxy.as_ref());
+        if let (None, Some(g)) = (existing, described) {
+            let key = super::names::name_key(&g.name);
+            let confirmed = group.iter().any(|r| r.new_galaxy_confirmed);
+            let alike = match galaxies::look_alike(&mut *tx, name).await? {
+                Some(other) => Some(format!(
+                    "the galaxy “{}” of the catalog (slug {})",
+                    other.name, other.slug
+                )),
+                None => new_keys
+                    .get(&key)
+                    .map(|(other, line)| format!("the new galaxy “{other}” of line {line}")),
+            };
+            new_keys.entry(key).or_insert((*name, group[0].line));
+            if let (Some(other), false) = (alike, confirmed) {
+                faults.push(RowError {
+                    file: FILE,
+                    line: group[0].line,
+                    column: CONFIRM_COLUMN,
+                    message: format!(
+                        "“{name}” looks like {other}: write that name in the column galaxy, or type yes in the column {CONFIRM_COLUMN} on one of its rows if this is a new galaxy"
+                    ),
+                });
+                continue;
+            }
+        }
+        match (existing, described) {
             (Some(id), _) => choices.push(GalaxyChoice::Existing(id)),
             (None, Some(g)) => choices.push(GalaxyChoice::New(g.clone())),
-            (None, None) => faults.push(RowError {
-                file: FILE,
-                line: group[0].line,
-                column: "galaxy",
-                message: format!(
-                    "'{name}' is not in the catalog; describe it (morphology, distance, …) on one of its rows"
-                ),
-            }),
+            (None, None) => {
+                let message = match galaxies::look_alike(&mut *tx, name).await? {
+                    // A look-alike of a catalog name is most likely that galaxy, mistyped.
+                    Some(other) => format!(
+                        "'{name}' is not in the catalog, but “{}” is: write that name, or describe a new galaxy (morphology, distance, …) on one of its rows",
+                        other.name
+                    ),
+                    None => format!(
+                        "'{name}' is not in the catalog; describe it (morphology, distance, …) on one of its rows"
+                    ),
+                };
+                faults.push(RowError {
+                    file: FILE,
+                    line: group[0].line,
+                    column: "galaxy",
+                    message,
+                });
+            }
         }
     }
     if !faults.is_empty() {
@@ -854,7 +915,7 @@ pub fn parse_catalog_json(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
             if key == "derived" {
                 continue;
             }
-            if !COLUMNS.contains(&key.as_str()) {
+            if !COLUMNS.contains(&key.as_str()) && key != CONFIRM_COLUMN {
                 faults.push(RowError {
                     file: FILE,
                     line,
@@ -870,6 +931,7 @@ pub fn parse_catalog_json(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
                 serde_json::Value::String(v) => v.trim().to_owned(),
                 serde_json::Value::Number(n) => n.to_string(),
                 serde_json::Value::Null => String::new(),
+                serde_json::Value::Bool(b) if key == CONFIRM_COLUMN => b.to_string(),
                 _ => {
                     faults.push(RowError {
                         file: FILE,

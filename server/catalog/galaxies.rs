@@ -5,8 +5,10 @@ use sqlx::{Sqlite, SqlitePool, Transaction};
 use crate::auth::secret::sha256_hex;
 
 use super::model::{Galaxy, Measurement, NewGalaxy, NewMeasurement, SubmissionState, slugify};
+use super::names::name_key;
 
-/// Insert a galaxy and return it with its key and a unique slug.
+/// Insert a galaxy and return it with its key and a unique slug; its name's look-alike key
+/// ([`name_key`]) is stored beside it.
 ///
 /// # Errors
 /// A unique-name violation or any other database error.
@@ -29,8 +31,8 @@ pub async fn insert_galaxy(
     }
     sqlx::query_as(
         "insert into galaxy (name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                             distance_err_mpc, distance_method)
-         values (?, ?, ?, ?, ?, ?, ?, ?)
+                             distance_err_mpc, distance_method, name_key)
+         values (?, ?, ?, ?, ?, ?, ?, ?, ?)
          returning galaxy_id, name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
                    distance_err_mpc, distance_method",
     )
@@ -42,8 +44,71 @@ pub async fn insert_galaxy(
     .bind(new.distance_mpc)
     .bind(new.distance_err_mpc)
     .bind(new.distance_method.as_str())
+    .bind(name_key(&new.name))
     .fetch_one(&mut **tx)
     .await
+}
+
+/// A galaxy of the catalog as a name refers to it.
+#[derive(Debug, Clone, PartialEq, Eq, sqlx::FromRow)]
+pub struct NamedGalaxy {
+    /// Key.
+    pub galaxy_id: i64,
+    /// Its name.
+    pub name: String,
+    /// Its slug.
+    pub slug: String,
+}
+
+/// The galaxy whose name looks like `name` (the same [`name_key`]): the one of exactly that
+/// name when there is one, else the oldest look-alike; None when no name looks like it. One
+/// indexed lookup, however large the catalog.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn look_alike<'c>(
+    executor: impl sqlx::Executor<'c, Database = Sqlite>,
+    name: &str,
+) -> sqlx::Result<Option<NamedGalaxy>> {
+    sqlx::query_as(
+        "select galaxy_id, name, slug from galaxy where name_key = ?
+          order by (name = ?) desc, galaxy_id limit 1",
+    )
+    .bind(name_key(name))
+    .bind(name)
+    .fetch_optional(executor)
+    .await
+}
+
+/// Store the look-alike key of every galaxy that has none yet (those stored before
+/// `migrations/5_galaxy_name_key.sql`; SQL cannot compute the key), in one write transaction;
+/// returns how many were filled. Run when the catalog is opened.
+///
+/// # Errors
+/// When the database cannot be read or written.
+pub async fn fill_name_keys(pool: &SqlitePool) -> sqlx::Result<usize> {
+    // Most openings find nothing to fill: no write transaction then.
+    let any: Option<i64> =
+        sqlx::query_scalar("select galaxy_id from galaxy where name_key is null limit 1")
+            .fetch_optional(pool)
+            .await?;
+    if any.is_none() {
+        return Ok(0);
+    }
+    let mut tx = super::begin_write(pool).await?;
+    let missing: Vec<(i64, String)> =
+        sqlx::query_as("select galaxy_id, name from galaxy where name_key is null")
+            .fetch_all(&mut *tx)
+            .await?;
+    for (galaxy_id, name) in &missing {
+        sqlx::query("update galaxy set name_key = ? where galaxy_id = ?")
+            .bind(name_key(name))
+            .bind(galaxy_id)
+            .execute(&mut *tx)
+            .await?;
+    }
+    tx.commit().await?;
+    Ok(missing.len())
 }
 
 /// Where a submission came from.
@@ -314,6 +379,19 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
     .await
 }
 
+/// Whose unreviewed measurements (pending, or withdrawn before review) a reader may see.
+/// Accepted and rejected measurements are part of the catalog's record and shown to every
+/// reader.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Unreviewed {
+    /// Everyone's: reviewers and admins, and the domain's own computations.
+    All,
+    /// Only those this account submitted.
+    OwnOf(i64),
+    /// None: a reader without an account.
+    None,
+}
+
 /// Every measurement of a galaxy, in any state, with whether it is adopted; grouped by quantity
 /// in the order of [`Quantity::MEASURED`](super::model::Quantity::MEASURED), newest first
 /// within a quantity.
@@ -321,6 +399,25 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
 /// # Errors
 /// When the database cannot be read.
 pub async fn measurements_of(pool: &SqlitePool, galaxy_id: i64) -> sqlx::Result<Vec<Measurement>> {
+    measurements_seen(pool, galaxy_id, Unreviewed::All).await
+}
+
+/// The measurements of a galaxy as [`measurements_of`], leaving out the unreviewed ones that
+/// `shown` does not admit (the filter is in the query, so what is left out never leaves the
+/// database).
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn measurements_seen(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+    shown: Unreviewed,
+) -> sqlx::Result<Vec<Measurement>> {
+    let (all, own) = match shown {
+        Unreviewed::All => (true, None),
+        Unreviewed::OwnOf(account_id) => (false, Some(account_id)),
+        Unreviewed::None => (false, None),
+    };
     sqlx::query_as(
         "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
                 m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
@@ -331,11 +428,14 @@ pub async fn measurements_of(pool: &SqlitePool, galaxy_id: i64) -> sqlx::Result<
            join submission s on s.submission_id = m.submission_id
       left join adopted_value a on a.measurement_id = m.measurement_id
           where m.galaxy_id = ?
+            and (s.state in ('accepted', 'rejected') or ? or s.account_id = ?)
        order by case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
                                 when 'bulge_mass' then 2 else 3 end,
                 adopted desc, m.measurement_id desc",
     )
     .bind(galaxy_id)
+    .bind(all)
+    .bind(own)
     .fetch_all(pool)
     .await
 }

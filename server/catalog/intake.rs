@@ -7,11 +7,12 @@
 
 use sqlx::SqlitePool;
 
-use super::galaxies::{SubmissionSource, find_by_slug};
+use super::galaxies::{NamedGalaxy, SubmissionSource, find_by_slug};
 use super::model::{
     BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology, NewGalaxy,
     NewMeasurement, Quantity, SigmaDefinition,
 };
+use super::names::clean_name;
 use super::submissions::{self, Created, GalaxyChoice, SubmissionError};
 use crate::units::{self, Scale};
 
@@ -72,10 +73,7 @@ pub fn measurement_from_cells<'a>(
 pub(super) fn galaxy_from_fields<'a>(
     field: &impl Fn(&'static str) -> Field<'a>,
 ) -> Result<NewGalaxy, RowError> {
-    let name = field("name").required()?.to_string();
-    if name.chars().count() > 100 {
-        return Err(field("name").error("a name has at most 100 characters".into()));
-    }
+    let name = galaxy_name(&field("name"))?;
     let distance_mpc =
         field("distance_mpc").number(units::DISTANCE_MIN_MPC, units::DISTANCE_MAX_MPC, "Mpc")?;
     let distance_err_mpc = field("distance_err_mpc").number(0.0, distance_mpc, "Mpc")?;
@@ -92,6 +90,39 @@ pub(super) fn galaxy_from_fields<'a>(
         distance_err_mpc,
         distance_method: field("distance_method").word::<DistanceMethod>()?,
     })
+}
+
+/// A galaxy name cell by the name rules (`catalog::names`): NFC, spaces collapsed, nothing
+/// that does not show as text.
+pub(super) fn galaxy_name(field: &Field<'_>) -> Result<String, RowError> {
+    clean_name(field.text).map_err(|m| field.error(m))
+}
+
+/// The column (of a form, a JSON request or a catalog file) that confirms a new galaxy whose
+/// name looks like one in the catalog.
+pub const CONFIRM_COLUMN: &str = "new_galaxy_confirmed";
+
+/// Whether a confirmation cell says yes: `yes`, `true`, `1` or `on` (a ticked checkbox); blank,
+/// `no`, `false` or `0` say no.
+///
+/// # Errors
+/// Any other text, as a fragment saying what to type.
+pub fn confirmation(text: &str) -> Result<bool, String> {
+    match text.trim().to_ascii_lowercase().as_str() {
+        "yes" | "true" | "1" | "on" => Ok(true),
+        "" | "no" | "false" | "0" => Ok(false),
+        _ => Err(format!(
+            "type yes in {CONFIRM_COLUMN} to confirm that this is a new galaxy, or leave it blank"
+        )),
+    }
+}
+
+/// The sentence for a new galaxy whose name looks like one in the catalog.
+pub fn look_alike_message(name: &str, existing: &NamedGalaxy) -> String {
+    format!(
+        "“{name}” looks like the existing galaxy “{}” (slug {}): choose it, or confirm that this is a new galaxy.",
+        existing.name, existing.slug
+    )
 }
 
 /// Build a measurement from a row's named fields (shared by every catalog CSV reader).
@@ -365,6 +396,9 @@ pub enum Cell {
     Galaxy,
     /// A column of the new galaxy.
     NewGalaxy(&'static str),
+    /// The confirmation that a new galaxy whose name looks like one in the catalog is new
+    /// ([`CONFIRM_COLUMN`]), when it is neither yes nor no.
+    NewGalaxyConfirmed,
     /// A column of measurement row `.0` (from 0).
     Measurement(usize, &'static str),
     /// The note.
@@ -385,6 +419,9 @@ pub struct Fault {
 pub struct Checked {
     /// The galaxy: in the catalog, or new.
     pub galaxy: GalaxyChoice,
+    /// A new galaxy is confirmed as new although its name may look like one in the catalog
+    /// (the [`CONFIRM_COLUMN`] said yes); checked when storing, under the write lock.
+    pub new_galaxy_confirmed: bool,
     /// The measurements, in canonical units.
     pub measurements: Vec<NewMeasurement>,
 }
@@ -398,6 +435,7 @@ pub async fn check(
     cells: &SubmissionCells<'_>,
 ) -> sqlx::Result<Result<Checked, Vec<Fault>>> {
     let mut faults = Vec::new();
+    let mut new_galaxy_confirmed = false;
     let galaxy = match &cells.galaxy {
         GalaxyCells::Slug(slug) => match find_by_slug(pool, slug.trim()).await? {
             Some(g) => Some(GalaxyChoice::Existing(g.galaxy_id)),
@@ -412,7 +450,19 @@ pub async fn check(
             }
         },
         GalaxyCells::New(cell) => match galaxy_from_cells("form", 0, &|c| cell(c)) {
-            Ok(g) => Some(GalaxyChoice::New(g)),
+            Ok(g) => match confirmation(cell(CONFIRM_COLUMN)) {
+                Ok(yes) => {
+                    new_galaxy_confirmed = yes;
+                    Some(GalaxyChoice::New(g))
+                }
+                Err(message) => {
+                    faults.push(Fault {
+                        cell: Cell::NewGalaxyConfirmed,
+                        message: sentence(&message),
+                    });
+                    None
+                }
+            },
             Err(e) => {
                 faults.push(Fault {
                     cell: Cell::NewGalaxy(e.column),
@@ -441,6 +491,7 @@ pub async fn check(
     Ok(match (galaxy, faults.is_empty()) {
         (Some(galaxy), true) => Ok(Checked {
             galaxy,
+            new_galaxy_confirmed,
             measurements,
         }),
         _ => Err(faults),
@@ -469,7 +520,7 @@ pub async fn store(
         &checked.measurements,
         note,
     );
-    submissions::create(
+    submissions::create_confirming(
         pool,
         account_id,
         source,
@@ -477,6 +528,7 @@ pub async fn store(
         &checked.measurements,
         note,
         &request,
+        checked.new_galaxy_confirmed,
     )
     .await
 }

@@ -19,6 +19,7 @@ pub mod health;
 pub mod history;
 pub mod intake;
 pub mod model;
+pub mod names;
 pub mod overview;
 pub mod relation_rows;
 pub mod submissions;
@@ -117,6 +118,9 @@ pub async fn connect_with_limits(db_path: &Path, limits: Limits) -> anyhow::Resu
     galaxies::fill_row_key_digests(&pool)
         .await
         .context("could not give the stored row keys their exported form")?;
+    galaxies::fill_name_keys(&pool)
+        .await
+        .context("could not store the look-alike keys of the galaxy names")?;
     Ok(pool)
 }
 

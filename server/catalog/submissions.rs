@@ -35,6 +35,15 @@ pub enum SubmissionError {
     /// A galaxy of that name already exists.
     #[error("A galaxy with that name is already in the catalog; choose it instead.")]
     NameTaken,
+    /// A new galaxy's name looks like the name of a galaxy in the catalog, and the submitter
+    /// did not confirm that it is new.
+    #[error("{}", super::intake::look_alike_message(.name, .existing))]
+    LooksLike {
+        /// The new galaxy's name.
+        name: String,
+        /// The galaxy of the catalog it looks like.
+        existing: galaxies::NamedGalaxy,
+    },
     /// A submission needs at least one measurement.
     #[error("A submission needs at least one measurement.")]
     Empty,
@@ -129,6 +138,40 @@ pub async fn create(
     note: &str,
     request: &RequestKey,
 ) -> Result<Created, SubmissionError> {
+    create_confirming(
+        pool,
+        account_id,
+        source,
+        galaxy,
+        measurements,
+        note,
+        request,
+        true,
+    )
+    .await
+}
+
+/// [`create`], refusing a new galaxy whose name looks like one in the catalog
+/// ([`SubmissionError::LooksLike`]) unless `look_alike_confirmed`. The lookup runs in the write
+/// transaction after the replay check, so a retried request that created its galaxy is still
+/// answered with its first submission.
+///
+/// # Errors
+/// As [`create`], and [`SubmissionError::LooksLike`].
+#[expect(
+    clippy::too_many_arguments,
+    reason = "create's arguments and the submitter's confirmation"
+)]
+pub async fn create_confirming(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    source: SubmissionSource,
+    galaxy: &GalaxyChoice,
+    measurements: &[NewMeasurement],
+    note: &str,
+    request: &RequestKey,
+    look_alike_confirmed: bool,
+) -> Result<Created, SubmissionError> {
     let mut tx = super::begin_write(pool).await?;
     // Inside the write transaction: two copies of one request arriving together are serialised,
     // and the second finds the first.
@@ -171,6 +214,7 @@ pub async fn create(
         &rows,
         note,
         Some(request),
+        look_alike_confirmed,
     )
     .await?;
     tx.commit().await?;
@@ -191,6 +235,7 @@ pub async fn create_in(
     rows: &[RowKey],
     note: &str,
 ) -> Result<Created, SubmissionError> {
+    // Catalog files check look-alikes themselves, per file (`csv_io::import_rows`).
     store(
         tx,
         account_id,
@@ -200,6 +245,7 @@ pub async fn create_in(
         rows,
         note,
         None,
+        true,
     )
     .await
 }
@@ -217,6 +263,7 @@ async fn store(
     rows: &[RowKey],
     note: &str,
     request: Option<&RequestKey>,
+    look_alike_confirmed: bool,
 ) -> Result<Created, SubmissionError> {
     if measurements.is_empty() {
         return Err(SubmissionError::Empty);
@@ -242,6 +289,14 @@ async fn store(
                 .await?;
             if taken > 0 {
                 return Err(SubmissionError::NameTaken);
+            }
+            if !look_alike_confirmed
+                && let Some(existing) = galaxies::look_alike(&mut **tx, &new.name).await?
+            {
+                return Err(SubmissionError::LooksLike {
+                    name: new.name.clone(),
+                    existing,
+                });
             }
             let g = galaxies::insert_galaxy(tx, new).await?;
             (g.galaxy_id, g.name)

@@ -10,6 +10,7 @@ use super::{
     sphere_of_influence,
 };
 use crate::astro::SphereOfInfluence;
+use crate::catalog::galaxies::Unreviewed;
 use crate::catalog::model::{Galaxy, Measurement};
 use crate::catalog::{galaxies, history, relation_rows};
 use crate::error::AppResult;
@@ -28,7 +29,7 @@ pub struct MeasurementAt {
     pub sphere_of_influence: Option<SphereOfInfluence>,
 }
 
-/// A galaxy with every measurement, in any state, adopted first within a quantity.
+/// A galaxy with every measurement its reader may see, adopted first within a quantity.
 #[derive(Debug, Clone)]
 pub struct GalaxyRecord {
     /// The galaxy as stored.
@@ -51,7 +52,10 @@ impl GalaxyRecord {
     }
 }
 
-/// The galaxy whose slug is `slug`, with its measurements; None when there is none.
+/// The galaxy whose slug is `slug`, with the measurements its reader may see: accepted and
+/// rejected ones, and the unreviewed ones `shown` admits (the doors pass
+/// `Principal::unreviewed_shown` of who asks); None when there is no such galaxy. Pages and
+/// the API both read a galaxy through here, so the rule is applied once.
 ///
 /// # Errors
 /// When the database fails.
@@ -59,11 +63,12 @@ pub async fn galaxy_record(
     pool: &SqlitePool,
     soi_threshold: f64,
     slug: &str,
+    shown: Unreviewed,
 ) -> sqlx::Result<Option<GalaxyRecord>> {
     let Some(galaxy) = galaxies::find_by_slug(pool, slug).await? else {
         return Ok(None);
     };
-    let measurements = galaxies::measurements_of(pool, galaxy.galaxy_id).await?;
+    let measurements = galaxies::measurements_seen(pool, galaxy.galaxy_id, shown).await?;
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()

@@ -41,6 +41,7 @@ fn title(error: &AppError) -> &'static str {
         AppError::TooLarge { .. } | AppError::BodyTooLarge { .. } => "Too large",
         AppError::UnsupportedMediaType { .. } => "Unsupported format",
         AppError::Invalid { .. } => "Invalid input",
+        AppError::Conflict { .. } => "Conflict",
         AppError::TooManyRequests { .. } => "Too many requests",
         AppError::Busy => "Busy",
         AppError::Unavailable => "Unavailable",

@@ -3,9 +3,10 @@
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Path, Query, State};
+use axum::extract::{Extension, Path, Query, State};
 
 use super::display::{fixed, quantity_unit, significant};
+use crate::auth::Principal;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::error::{AppError, AppResult};
 use crate::relations::galaxy::{MeasurementAt, galaxy_record, place_left_out};
@@ -312,12 +313,13 @@ pub(crate) struct GalaxyShowPage {
 /// without it.
 pub(crate) async fn show_galaxy(
     State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
     nav: super::Nav,
     Path(slug): Path<String>,
 ) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
     let threshold = state.settings.soi_threshold;
-    let record = galaxy_record(&state.pool, threshold, &slug)
+    let record = galaxy_record(&state.pool, threshold, &slug, principal.unreviewed_shown())
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
     let galaxy = &record.galaxy;

@@ -12,6 +12,7 @@ mod admin;
 mod api_page;
 mod display;
 mod error_page;
+mod escape;
 mod galaxies;
 mod login;
 mod overview;

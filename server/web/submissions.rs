@@ -21,13 +21,13 @@ use super::account::session_of;
 use super::display::{fixed, significant};
 use super::place::{PlaceChart, PlaceRow};
 use crate::auth::{Principal, Role, SessionUser};
-use crate::catalog::galaxies::SubmissionSource;
+use crate::catalog::galaxies::{self, SubmissionSource};
 use crate::catalog::intake::{self, Cell, Cells, Checked, GalaxyCells, SubmissionCells, sentence};
 use crate::catalog::model::{
     BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Measurement, Morphology,
     Quantity, SigmaDefinition,
 };
-use crate::catalog::submissions::{self, SubmissionError, SubmissionSummary};
+use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError, SubmissionSummary};
 use crate::error::{AppError, AppResult};
 use crate::relations::assess::{Assessment, assess, assess_unstored};
 use crate::state::AppState;
@@ -127,6 +127,10 @@ pub(crate) struct NewSubmissionPage {
     galaxies: Vec<(String, String, bool)>,
     galaxy_error: Option<String>,
     galaxy_inputs: Vec<Input>,
+    /// Why the new galaxy's name needs confirming: it looks like a galaxy in the catalog.
+    look_alike: Option<String>,
+    /// The confirmation box is ticked.
+    new_galaxy_confirmed: bool,
     measurement_rows: Vec<RowInputs>,
     /// The number of measurement rows (a hidden field, so "add a row" keeps what was typed).
     n_rows: usize,
@@ -198,6 +202,8 @@ async fn form_page(
         galaxies,
         galaxy_error: errors.get("galaxy").cloned(),
         galaxy_inputs,
+        look_alike: errors.get(intake::CONFIRM_COLUMN).cloned(),
+        new_galaxy_confirmed: intake::confirmation(&get(intake::CONFIRM_COLUMN)).unwrap_or(false),
         measurement_rows: rows,
         n_rows,
         can_add_row: n_rows < MAX_FORM_ROWS,
@@ -257,7 +263,8 @@ pub(crate) async fn create_submission(
     };
     if action == "check" {
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
-        let mut page = form_page(&state, user, nav, &fields, &read.errors, None).await?;
+        let errors = name_warnings(&state, &checked).await?;
+        let mut page = form_page(&state, user, nav, &fields, &errors, None).await?;
         page.preview = Some(AssessmentView::with_charts(&a).await?);
         return Ok(page.into_response());
     }
@@ -275,6 +282,25 @@ pub(crate) async fn create_submission(
         Ok(c) => Ok(Redirect::to(&format!("/submissions/{}", c.submission_id)).into_response()),
         Err(e) => refused_submission(&state, user, nav, fields, e).await,
     }
+}
+
+/// What submitting would answer about a new galaxy's name, said before submitting: a galaxy of
+/// that name, or one whose name looks like it (unless confirmed), is in the catalog.
+async fn name_warnings(state: &AppState, checked: &Checked) -> AppResult<HashMap<String, String>> {
+    let mut errors = HashMap::new();
+    if let GalaxyChoice::New(g) = &checked.galaxy
+        && let Some(existing) = galaxies::look_alike(&state.pool, &g.name).await?
+    {
+        if existing.name == g.name {
+            errors.insert("name".to_owned(), SubmissionError::NameTaken.to_string());
+        } else if !checked.new_galaxy_confirmed {
+            errors.insert(
+                intake::CONFIRM_COLUMN.to_owned(),
+                intake::look_alike_message(&g.name, &existing),
+            );
+        }
+    }
+    Ok(errors)
 }
 
 /// What the form holds, read: the submission when every cell could be read, the message of
@@ -346,6 +372,7 @@ fn form_field(cell: Cell) -> String {
     match cell {
         Cell::Galaxy => "galaxy".to_owned(),
         Cell::NewGalaxy(column) => column.to_owned(),
+        Cell::NewGalaxyConfirmed => intake::CONFIRM_COLUMN.to_owned(),
         Cell::Measurement(row, column) => format!("m{row}_{column}"),
         Cell::Note => "note".to_owned(),
     }
@@ -371,6 +398,12 @@ async fn refused_submission(
                 "This form was already submitted with other values, so nothing was saved. Check the values below and submit again to store them as a new submission.",
             )
         }
+        // A look-alike name is no typing error: the form asks to choose or confirm.
+        e @ SubmissionError::LooksLike { .. } => (
+            StatusCode::CONFLICT,
+            HashMap::from([(intake::CONFIRM_COLUMN.to_owned(), e.to_string())]),
+            "Nothing was saved; choose the existing galaxy, or tick the box below if this is a new one.",
+        ),
         e => {
             let field = match e {
                 SubmissionError::NameTaken => "name",

@@ -12,6 +12,22 @@ use crate::helpers::{Browser, TestApp, spawn_with};
 #[derive(Debug, Deserialize)]
 struct Table {
     route: Vec<Row>,
+    #[serde(default)]
+    pending: Vec<PendingRow>,
+}
+
+/// Who sees a pending measurement at a path: "shown" or "hidden" per caller.
+#[derive(Debug, Deserialize)]
+struct PendingRow {
+    path: String,
+    anonymous_public: String,
+    submitter: String,
+    member: String,
+    reviewer: String,
+    admin: String,
+    submitter_token: String,
+    member_token: String,
+    reviewer_token: String,
 }
 
 #[derive(Debug, Deserialize)]
@@ -264,6 +280,173 @@ async fn every_route_answers_each_caller_as_the_access_table_says() {
         "{} of {} cells differ from tests/access.toml:\n{}",
         failures.len(),
         rows.len() * 9,
+        failures.join("\n")
+    );
+}
+
+/// The cell of a caller's column in a `[[pending]]` row.
+type Expected = fn(&PendingRow) -> &str;
+
+/// What a reader of a galaxy gets: its status and body.
+enum Reader {
+    Browser(Browser),
+    Token(String),
+}
+
+impl Reader {
+    async fn read(&mut self, app: &TestApp, path: &str) -> (u16, String) {
+        match self {
+            Self::Browser(b) => {
+                let r = b.get(path).await;
+                (r.status, r.body)
+            }
+            Self::Token(token) => {
+                let r = app
+                    .client
+                    .get(format!("{}{path}", app.address))
+                    .bearer_auth(token)
+                    .send()
+                    .await
+                    .unwrap();
+                let status = r.status().as_u16();
+                (status, r.text().await.unwrap())
+            }
+        }
+    }
+}
+
+#[tokio::test]
+async fn a_pending_value_is_seen_only_by_its_submitter_and_reviewers_as_the_access_table_says() {
+    let table = load_table();
+    assert!(
+        !table.pending.is_empty(),
+        "tests/access.toml lists who sees pending values"
+    );
+    let app = spawn_with(|s| {
+        s.demo = true;
+        s.public_read = true;
+    })
+    .await;
+    let slug: String = sqlx::query_scalar("select slug from galaxy order by galaxy_id limit 1")
+        .fetch_one(&app.pool)
+        .await
+        .expect("the demo catalog has galaxies");
+
+    // The submitter puts a black-hole mass of the demo galaxy forward; it stays pending.
+    let submitter = app.create_account("member1", Role::Member).await;
+    let mut own = app.browser();
+    own.log_in("member1").await;
+    let (value, reference) = ("4.321e7", "Pendref 2099");
+    let reply = own
+        .post(
+            "/submissions/new",
+            &[
+                ("galaxy", slug.as_str()),
+                ("m0_quantity", "bh_mass"),
+                ("m0_value", value),
+                ("m0_scale", "auto"),
+                ("m0_method", "stellar_dynamics"),
+                ("m0_reference", reference),
+                ("note", "unreviewed"),
+            ],
+        )
+        .await;
+    assert_eq!(
+        reply.status, 303,
+        "the submission is stored: {}",
+        reply.body
+    );
+    let submission_id: i64 = reply
+        .header("location")
+        .strip_prefix("/submissions/")
+        .and_then(|id| id.parse().ok())
+        .expect("the answer names the new submission");
+    let submission_field = format!("\"submission_id\":{submission_id}");
+
+    let other = app.login_as(Role::Member).await;
+    let reviewer = app.login_as(Role::Reviewer).await;
+    let admin = app.login_as(Role::Admin).await;
+    let other_id = accounts::find_by_username(&app.pool, "test-member")
+        .await
+        .unwrap()
+        .unwrap()
+        .account_id;
+    let reviewer_id = accounts::find_by_username(&app.pool, "test-reviewer")
+        .await
+        .unwrap()
+        .unwrap()
+        .account_id;
+    let (submitter_token, _) = app.make_token(submitter, "read").await;
+    let (member_token, _) = app.make_token(other_id, "read").await;
+    let (reviewer_token, _) = app.make_token(reviewer_id, "read").await;
+
+    let mut readers: Vec<(&str, Reader, Expected)> = vec![
+        ("anonymous_public", Reader::Browser(app.browser()), |r| {
+            &r.anonymous_public
+        }),
+        ("submitter", Reader::Browser(own), |r| &r.submitter),
+        ("member", Reader::Browser(other), |r| &r.member),
+        ("reviewer", Reader::Browser(reviewer), |r| &r.reviewer),
+        ("admin", Reader::Browser(admin), |r| &r.admin),
+        ("submitter_token", Reader::Token(submitter_token), |r| {
+            &r.submitter_token
+        }),
+        ("member_token", Reader::Token(member_token), |r| {
+            &r.member_token
+        }),
+        ("reviewer_token", Reader::Token(reviewer_token), |r| {
+            &r.reviewer_token
+        }),
+    ];
+    let mut failures = Vec::new();
+    for row in &table.pending {
+        let path = row.path.replace("{slug}", &slug);
+        let api = path.starts_with("/api/");
+        for (column, reader, expected) in &mut readers {
+            let (status, body) = reader.read(&app, &path).await;
+            assert_eq!(
+                status, 200,
+                "{column}: GET {path} answered {status}: {body}"
+            );
+            let body = body.replace(' ', "");
+            let mut marks = vec![value.to_owned(), reference.replace(' ', "")];
+            if api {
+                marks.push(submission_field.clone());
+            }
+            let seen: Vec<&String> = marks.iter().filter(|m| body.contains(m.as_str())).collect();
+            match expected(row) {
+                "shown" if seen.len() != marks.len() => failures.push(format!(
+                    "{column}: {path} should show the pending value, but lacks some of {marks:?}"
+                )),
+                "hidden" if !seen.is_empty() => failures.push(format!(
+                    "{column}: {path} should hide the pending value, but shows {seen:?}"
+                )),
+                "shown" | "hidden" => {}
+                other => failures.push(format!("{column}: '{other}' is not shown or hidden")),
+            }
+        }
+    }
+    // Withdrawn before review, the value stays as it was: its submitter's and the reviewers'.
+    massline::catalog::submissions::withdraw(&app.pool, submitter, submission_id)
+        .await
+        .unwrap();
+    let path = format!("/api/v1/galaxies/{slug}");
+    for (index, shown) in [(0, false), (1, true), (2, false), (3, true)] {
+        let (column, reader, _) = &mut readers[index];
+        let (status, body) = reader.read(&app, &path).await;
+        assert_eq!(status, 200, "{column}: {body}");
+        let seen = body.contains(&submission_field);
+        if seen != shown {
+            failures.push(format!(
+                "{column}: {path} {} the withdrawn value",
+                if seen { "shows" } else { "hides" }
+            ));
+        }
+    }
+    assert!(
+        failures.is_empty(),
+        "{} cells differ from the pending rows of tests/access.toml:\n{}",
+        failures.len(),
         failures.join("\n")
     );
 }

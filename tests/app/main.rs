@@ -9,6 +9,7 @@ mod access;
 mod accounts;
 mod api;
 mod api_fuzz;
+mod galaxy_names;
 mod galaxy_relations;
 mod idempotency;
 mod pages;
