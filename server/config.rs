@@ -64,8 +64,8 @@ pub struct Settings {
     pub api_rate_per_minute: u32,
 
     /// Page requests per minute of each logged-in account, or of each client address without
-    /// one (pages, forms and downloads outside /api/; the stylesheet and the health check are
-    /// not counted); beyond it 429 with Retry-After; 0 turns the limit off.
+    /// one (pages, forms and downloads outside /api/; the stylesheet and the health and liveness
+    /// checks are not counted); beyond it 429 with Retry-After; 0 turns the limit off.
     #[arg(long, env = "MASSLINE_PAGE_RATE_PER_MINUTE", default_value_t = DEFAULT_PAGE_RATE_PER_MINUTE, value_parser = parse_page_rate)]
     pub page_rate_per_minute: u32,
 

@@ -294,9 +294,10 @@ async fn session_principal(state: &AppState, id: &str) -> sqlx::Result<Option<Se
     }))
 }
 
-/// Paths no budget counts: the stylesheet every page loads and the health check monitors poll.
+/// Paths no budget counts: the stylesheet every page loads and the health and liveness checks
+/// monitors poll.
 fn rate_exempt(path: &str) -> bool {
-    path == "/healthz" || path.starts_with("/static/")
+    matches!(path, "/healthz" | "/livez") || path.starts_with("/static/")
 }
 
 /// The budget a request draws on: an API token's requests and everything under `/api/` are API

@@ -295,11 +295,12 @@ async fn anonymous_visitors_are_limited_by_address_for_pages_and_for_the_api() {
     }
     assert_eq!(allowed, PAGES_PER_MINUTE - 2);
     // The login page too: everything an address asks counts, but for the stylesheet and the
-    // health check.
+    // health and liveness checks.
     let r = app.get_with_token("/login", None).await;
     assert_limited(&r, "/login", PAGES_PER_MINUTE);
     assert_eq!(app.get("/static/massline.css").await.0, 200);
     assert_eq!(app.get("/healthz").await.0, 200);
+    assert_eq!(app.get("/livez").await.0, 200);
     // The API budget of the address is separate, and limited too.
     for _ in 0..API_PER_MINUTE {
         assert_eq!(
