@@ -520,7 +520,7 @@ pub async fn store(
         &checked.measurements,
         note,
     );
-    submissions::create_confirming(
+    submissions::create(
         pool,
         account_id,
         source,

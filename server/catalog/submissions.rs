@@ -125,44 +125,20 @@ pub fn validate_client_key(key: &str) -> Result<(), String> {
 /// the earlier submission is answered with `replayed = true`; the same key with other content is
 /// [`SubmissionError::KeyReused`]. The n-th measurement's row key is `<scoped key>#<n>`.
 ///
-/// # Errors
-/// [`SubmissionError::Empty`], [`SubmissionError::NoSuchGalaxy`],
-/// [`SubmissionError::NameTaken`], [`SubmissionError::KeyReused`] or a database failure;
-/// nothing is written then.
-pub async fn create(
-    pool: &SqlitePool,
-    account_id: Option<i64>,
-    source: SubmissionSource,
-    galaxy: &GalaxyChoice,
-    measurements: &[NewMeasurement],
-    note: &str,
-    request: &RequestKey,
-) -> Result<Created, SubmissionError> {
-    create_confirming(
-        pool,
-        account_id,
-        source,
-        galaxy,
-        measurements,
-        note,
-        request,
-        true,
-    )
-    .await
-}
-
-/// [`create`], refusing a new galaxy whose name looks like one in the catalog
+/// A new galaxy whose name looks like one in the catalog is refused
 /// ([`SubmissionError::LooksLike`]) unless `look_alike_confirmed`. The lookup runs in the write
 /// transaction after the replay check, so a retried request that created its galaxy is still
 /// answered with its first submission.
 ///
 /// # Errors
-/// As [`create`], and [`SubmissionError::LooksLike`].
+/// [`SubmissionError::Empty`], [`SubmissionError::NoSuchGalaxy`],
+/// [`SubmissionError::NameTaken`], [`SubmissionError::LooksLike`], [`SubmissionError::KeyReused`]
+/// or a database failure; nothing is written then.
 #[expect(
     clippy::too_many_arguments,
-    reason = "create's arguments and the submitter's confirmation"
+    reason = "what one submission is, its key, and the submitter's confirmation"
 )]
-pub async fn create_confirming(
+pub async fn create(
     pool: &SqlitePool,
     account_id: Option<i64>,
     source: SubmissionSource,
@@ -798,7 +774,7 @@ mod tests {
         }
     }
 
-    /// [`create`] with a fresh idempotency key.
+    /// [`create`] with a fresh idempotency key (look-alike names confirmed).
     async fn create_fresh(
         pool: &SqlitePool,
         account_id: Option<i64>,
@@ -810,10 +786,20 @@ mod tests {
         static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
         let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
         let key = request_key(account_id, &format!("k{n}"), galaxy, measurements, note);
-        create(pool, account_id, source, galaxy, measurements, note, &key).await
+        create(
+            pool,
+            account_id,
+            source,
+            galaxy,
+            measurements,
+            note,
+            &key,
+            true,
+        )
+        .await
     }
 
-    /// [`create`] through the API door with the note "n".
+    /// [`create`] through the API door with the note "n" (look-alike names confirmed).
     async fn api_submit(
         pool: &SqlitePool,
         account_id: i64,
@@ -829,6 +815,7 @@ mod tests {
             measurements,
             "n",
             key,
+            true,
         )
         .await
     }

@@ -478,6 +478,7 @@ async fn the_review_queue_is_paged_with_the_largest_z_first_across_pages() {
             &[m],
             "",
             &key,
+            true,
         )
         .await
         .unwrap();

@@ -101,6 +101,42 @@ async fn submit(address: &str, token: &str, n: usize) -> Reply {
     }
 }
 
+/// Send 100 more submissions (numbered after `*n`) and assert that all 100 answer 201.
+async fn hundred_writes_succeed(address: &str, token: &str, n: &mut usize, when: &str) {
+    let mut answers = Vec::new();
+    for _ in 0..100 {
+        *n += 1;
+        let r = submit(address, token, *n).await;
+        answers.push((r.status, r.body));
+    }
+    let failed: Vec<_> = answers
+        .iter()
+        .filter(|(status, _)| *status != 201)
+        .collect();
+    assert_eq!(
+        answers.len() - failed.len(),
+        100,
+        "writes {when}: {} failed, the first: {:?}",
+        failed.len(),
+        failed.first()
+    );
+}
+
+/// Assert that the file holds `expected` submissions (every 201 stored once, no 507 stored)
+/// and is sound, then close the connection.
+async fn assert_stored_once(mut outsider: sqlx::SqliteConnection, expected: i64, when: &str) {
+    let stored_rows: i64 = sqlx::query_scalar("select count(*) from submission")
+        .fetch_one(&mut outsider)
+        .await
+        .unwrap();
+    assert_eq!(
+        stored_rows, expected,
+        "every 201 stored once, no 507 stored"
+    );
+    assert_sound(&mut outsider, when).await;
+    outsider.close().await.unwrap();
+}
+
 #[tokio::test]
 async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_tells_the_truth() {
     let dir = tempfile::tempdir().unwrap();
@@ -201,39 +237,12 @@ async fn after_the_database_was_full_every_write_succeeds_and_the_health_check_t
     health_becomes(&app, 200, "after the ballast was deleted").await;
 
     // Every write after the fault cleared succeeds: 100 of 100.
-    let mut answers = Vec::new();
-    for _ in 0..100 {
-        n += 1;
-        let r = submit(&app.address, &token, n).await;
-        answers.push((r.status, r.body));
-    }
-    let succeeded = answers.iter().filter(|(status, _)| *status == 201).count();
-    let failed: Vec<_> = answers
-        .iter()
-        .filter(|(status, _)| *status != 201)
-        .collect();
-    assert_eq!(
-        succeeded,
-        100,
-        "writes after room came back: {} failed, the first: {:?}",
-        failed.len(),
-        failed.first()
-    );
+    hundred_writes_succeed(&app.address, &token, &mut n, "after room came back").await;
     member.log_in("member1").await;
     let (status, body) = health(&app).await;
     assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz after");
 
-    let stored_rows: i64 = sqlx::query_scalar("select count(*) from submission")
-        .fetch_one(&mut outsider)
-        .await
-        .unwrap();
-    assert_eq!(
-        stored_rows,
-        stored + 100,
-        "every 201 stored once, no 507 stored"
-    );
-    assert_sound(&mut outsider, "after the database was full").await;
-    outsider.close().await.unwrap();
+    assert_stored_once(outsider, stored + 100, "after the database was full").await;
 }
 
 /// The server's file size limit, in blocks of 512 bytes (`ulimit -f`): 150 KiB, room in the
@@ -299,37 +308,15 @@ async fn after_commits_failed_at_the_file_size_limit_every_write_succeeds_once_i
     assert!(lifted.success(), "prlimit lifted the limit");
     health_of_becomes(&address, 200, "after the limit was lifted").await;
 
-    let mut answers = Vec::new();
-    for _ in 0..100 {
-        n += 1;
-        let r = submit(&address, &token, n).await;
-        answers.push((r.status, r.body));
-    }
-    let failed: Vec<_> = answers
-        .iter()
-        .filter(|(status, _)| *status != 201)
-        .collect();
-    assert_eq!(
-        answers.len() - failed.len(),
-        100,
-        "writes after the limit was lifted: {} failed, the first: {:?}",
-        failed.len(),
-        failed.first()
-    );
+    hundred_writes_succeed(&address, &token, &mut n, "after the limit was lifted").await;
     let (status, body) = get(&address, "/healthz").await;
     assert_eq!((status, body.as_str()), (200, "ok\n"), "/healthz after");
 
-    let mut outsider = open_file(&db_path).await;
-    let stored_rows: i64 = sqlx::query_scalar("select count(*) from submission")
-        .fetch_one(&mut outsider)
-        .await
-        .unwrap();
-    assert_eq!(
-        stored_rows,
+    assert_stored_once(
+        open_file(&db_path).await,
         stored + 100,
-        "every 201 stored once, no 507 stored"
-    );
-    assert_sound(&mut outsider, "after commits failed at the file size limit").await;
-    outsider.close().await.unwrap();
+        "after commits failed at the file size limit",
+    )
+    .await;
     drop(server);
 }
