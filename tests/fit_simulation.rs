@@ -216,7 +216,7 @@ fn at_small_n_curvature_errors_under_cover_and_bootstrap_and_posterior_are_shown
     // computed for the same samples and shown beside it. With 100 samples the binomial s.e. of
     // a 68 % coverage is √(0.68 · 0.32/100) = 4.7 % (computed).
     let started = std::time::Instant::now();
-    let rows: Vec<(bool, bool, bool, f64, f64)> = (0..100_u64)
+    let rows: Vec<(bool, bool, bool, f64, f64)> = (0..800_u64)
         .into_par_iter()
         .map(|s| {
             let pts = simulate(12, 50_000 + s);
@@ -256,4 +256,108 @@ fn at_small_n_curvature_errors_under_cover_and_bootstrap_and_posterior_are_shown
         mean_post_half > mean_hess_err,
         "{mean_post_half} vs {mean_hess_err}"
     );
+}
+
+/// Bias and coverage of one parameter's reported value and intervals over many samples.
+#[derive(Debug)]
+struct Reported {
+    bias: f64,
+    /// Standard deviation of the estimates across samples (the true standard error).
+    se: f64,
+    cover68: f64,
+    cover95: f64,
+}
+
+fn reported(fits: &[Fit], name: &str, truth: f64) -> Reported {
+    let iv: Vec<_> = fits
+        .iter()
+        .map(|f| f.intervals.get(name).expect("parameter interval").clone())
+        .collect();
+    let n = iv.len() as f64;
+    let mean = iv.iter().map(|p| p.estimate).sum::<f64>() / n;
+    let var = iv.iter().map(|p| (p.estimate - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    Reported {
+        bias: mean - truth,
+        se: var.sqrt(),
+        cover68: iv.iter().filter(|p| p.covers68(truth)).count() as f64 / n,
+        cover95: iv.iter().filter(|p| p.covers95(truth)).count() as f64 / n,
+    }
+}
+
+/// The reported values and intervals of the default fit (`fit.intervals`) for `samples`
+/// seeded samples of `n` objects.
+fn default_fits(n: usize, samples: u64) -> Vec<Fit> {
+    (0..samples)
+        .into_par_iter()
+        .map(|s| {
+            let pts = simulate(n, 70_000 + 1_000 * n as u64 + s);
+            fit(&pts, &FitSpec::new(Method::Structural, PIVOT)).unwrap()
+        })
+        .collect()
+}
+
+#[test]
+fn reported_intervals_hold_their_coverage_and_eps_is_nearly_unbiased_at_small_n() {
+    // The default estimator (structural, one Gaussian x component) and the interval the
+    // service reports (`fit.intervals`, restricted likelihood; docs/methods.md §2.8), at 25
+    // and 60 objects with about 15 % upper limits (design in the module docs), 800 seeded
+    // samples each. The project's targets: |bias| of α and β under 0.25 of their standard
+    // error and of ε under 0.35 of its standard error (the standard error is the spread of
+    // the estimates over the samples); 68 % intervals covering the truth in 63–73 % of the
+    // samples and 95 % intervals in 92–97 % (binomial s.e. of a coverage of 0.68 over 800
+    // samples: √(0.68 · 0.32/800) = 1.6 %, of 0.95: 0.8 %; computed).
+    // Measured by this test (recorded in the README): N = 25: bias α −0.07, β +0.08,
+    // ε −0.09 se; 68 % coverage α 0.694, β 0.676, ε 0.708; 95 %: 0.943, 0.941, 0.941. The ML
+    // ε of the same samples is biased by −0.39 se and its curvature interval covers 0.642.
+    // N = 60: bias −0.11, +0.07, +0.06 se; 68 %: 0.662, 0.674, 0.672; 95 %: 0.955, 0.953, 0.950.
+    // N = 12 (printed, not asserted): 68 % 0.677, 0.698, 0.639; 95 % 0.944, 0.953, 0.940.
+    use massline::fit::IntervalKind;
+    for (n, check) in [(12_usize, false), (25, true), (60, true)] {
+        let started = std::time::Instant::now();
+        let fits = default_fits(n, 800);
+        let restricted = fits
+            .iter()
+            .filter(|f| f.intervals.kind == IntervalKind::Restricted)
+            .count();
+        let ml_eps = stats(&column(&fits, |f| (f.params.eps, f.errors.eps)), EPS);
+        for (name, truth, max_bias) in [
+            ("alpha", ALPHA, 0.25),
+            ("beta", BETA, 0.25),
+            ("eps", EPS, 0.35),
+        ] {
+            let r = reported(&fits, name, truth);
+            eprintln!(
+                "N = {n:>2} {name:<5} bias {:+.4} ({:+.2} se), se {:.4}, 68% coverage {:.3}, \
+                 95% coverage {:.3}",
+                r.bias,
+                r.bias / r.se,
+                r.se,
+                r.cover68,
+                r.cover95
+            );
+            if check {
+                assert!(r.bias.abs() < max_bias * r.se, "N = {n} {name}: {r:?}");
+                assert!((0.63..=0.73).contains(&r.cover68), "N = {n} {name}: {r:?}");
+                assert!((0.92..=0.97).contains(&r.cover95), "N = {n} {name}: {r:?}");
+            }
+        }
+        eprintln!(
+            "N = {n:>2}: {restricted} of {} fits restricted; ML ε bias {:+.4}, curvature 68% \
+             coverage {:.3}; {:.1} s",
+            fits.len(),
+            ml_eps.bias,
+            ml_eps.coverage,
+            started.elapsed().as_secs_f64()
+        );
+        if check {
+            // The restricted likelihood is what the fits report: it must not quietly fall
+            // back to the curvature intervals (3 and 2 of 800 samples do, measured).
+            assert!(
+                restricted as f64 >= 0.99 * fits.len() as f64,
+                "{restricted}"
+            );
+            // And it corrects a real bias: the ML ε of the same samples is biased low.
+            assert!(ml_eps.bias < 0.0, "{ml_eps:?}");
+        }
+    }
 }

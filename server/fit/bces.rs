@@ -2,6 +2,7 @@
 //! moment estimators behind many published M_BH–M_bulge fits. Straight lines only; no upper
 //! limits.
 
+use super::intervals::{IntervalKind, Intervals};
 use super::types::{Data, prepare};
 use super::{
     BcesLine, Fit, FitError, FitSpec, Method, Params, Point, Shape, Termination, min_points,
@@ -275,6 +276,11 @@ pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
             evaluations: 0,
         },
         x_model: None,
+        intervals: Intervals::from_errors(
+            IntervalKind::Estimator,
+            &Params::line(alpha, beta, eps),
+            &Params::line(va.sqrt(), vb.sqrt(), 0.0),
+        ),
     })
 }
 

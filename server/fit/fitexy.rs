@@ -2,6 +2,7 @@
 //! intrinsic scatter ε0 in y, tuned so that χ²/(N − 2) = 1. For comparison with published
 //! work; it cannot use upper limits.
 
+use super::intervals::{IntervalKind, Intervals};
 use super::optimize::{Sum, brent_min, hessian, illinois, invert_spd};
 use super::types::{Data, prepare};
 use super::{Fit, FitError, FitSpec, Params, Point, Shape, Termination, min_points, tolerance};
@@ -386,6 +387,11 @@ fn fit_inner(points: &[Point], spec: &FitSpec, fixed_eps: Option<f64>) -> Result
             evaluations,
         },
         x_model: None,
+        intervals: Intervals::from_errors(
+            IntervalKind::Estimator,
+            &Params::line(alpha, beta, eps),
+            &Params::line(sa, sb, 0.0),
+        ),
     })
 }
 

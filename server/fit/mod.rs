@@ -85,6 +85,7 @@ pub mod conditional;
 pub mod diagnostics;
 pub mod ensemble;
 pub mod fitexy;
+pub mod intervals;
 pub mod optimize;
 pub mod posterior;
 pub mod predict;
@@ -96,6 +97,7 @@ pub mod types;
 use serde::Serialize;
 
 pub use diagnostics::{Influence, Offset, Residual, leave_one_out, residuals, zero_point_offset};
+pub use intervals::{IntervalKind, Intervals, ParamInterval};
 pub use predict::{Placement, Prediction, invert, locate, place, predict, predict_plane};
 pub use types::{
     BcesLine, Fit, FitSpec, Method, MixtureComponent, Params, Point, Shape, Termination,

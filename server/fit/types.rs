@@ -10,6 +10,7 @@ use std::str::FromStr;
 use serde::{Deserialize, Serialize};
 
 use super::FitError;
+use super::intervals::{IntervalKind, Intervals};
 
 /// One object of a sample.
 ///
@@ -513,6 +514,10 @@ pub struct Fit {
     pub termination: Termination,
     /// Structural fits: the fitted true-x distribution.
     pub x_model: Option<Vec<MixtureComponent>>,
+    /// The reported value and 68 % / 95 % intervals of every relation parameter, and how they
+    /// were computed (`fit::intervals`). For the restricted kind ε's value differs from
+    /// `params.eps` (the maximum-likelihood ε, biased low at small N).
+    pub intervals: Intervals,
 }
 
 impl Fit {
@@ -521,6 +526,11 @@ impl Fit {
     /// likelihood). Errors are the square roots of the covariance's diagonal.
     pub fn given_line(spec: FitSpec, params: Params, cov: [[f64; 3]; 3]) -> Self {
         let sd = |i: usize| cov[i][i].max(0.0).sqrt();
+        let intervals = Intervals::from_errors(
+            IntervalKind::Estimator,
+            &params,
+            &Params::line(sd(0), sd(1), sd(2)),
+        );
         Self {
             spec,
             params,
@@ -540,6 +550,7 @@ impl Fit {
                 evaluations: 0,
             },
             x_model: None,
+            intervals,
         }
     }
 

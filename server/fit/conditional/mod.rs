@@ -8,6 +8,7 @@
 
 use nalgebra::DMatrix;
 
+use super::intervals::{IntervalKind, Intervals};
 use super::optimize::{self, MlResult, Objective, Sum};
 use super::special::{LN_2PI, NormCdf, ln_norm_cdf, norm_cdf_parts};
 use super::types::{Data, prepare};
@@ -627,14 +628,21 @@ pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> 
     let theta0 = model.initial();
     let ml = run(model, &theta0, true)?;
     bounded(ml.neg2, ml.theta[model.eps_index()], &model.data)?;
-    Ok(assemble(
+    let mut fit = assemble(
         spec,
         model.shape,
         &ml,
         model.data.n(),
         model.data.n_upper,
         None,
-    ))
+    );
+    if model.group.is_none()
+        && ml.cov.is_some()
+        && let Some(iv) = newton::restricted(model, &ml.theta)
+    {
+        fit.intervals = iv;
+    }
+    Ok(fit)
 }
 
 /// Refuses a maximum of an unbounded likelihood: −2 ln L not finite, or ε = 0 with detections
@@ -696,6 +704,7 @@ pub(crate) fn assemble(
     let sd: Vec<f64> = (0..k).map(|i| cov_full[(i, i)].max(0.0).sqrt()).collect();
     let params = theta_params(shape, &ml.theta);
     let errors = theta_params(shape, &sd);
+    let intervals = Intervals::from_errors(IntervalKind::Curvature, &params, &errors);
     let p = ml.theta.len();
     let mut reason = String::from("Converged.");
     for note in &ml.notes {
@@ -721,6 +730,7 @@ pub(crate) fn assemble(
             evaluations: ml.evaluations,
         },
         x_model,
+        intervals,
     }
 }
 

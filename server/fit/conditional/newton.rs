@@ -1,5 +1,6 @@
 //! Newton's method on the conditional likelihood with analytic derivatives.
 
+use super::super::intervals::{self, Intervals};
 use super::super::optimize::analytic::{self, A, Analytic, B, C, D, Derivs, E, NS};
 use super::super::optimize::{MlResult, Sum};
 use super::super::special::{LN_2PI, detection_terms, fy_terms, limit_terms, norm_cdf_parts};
@@ -286,14 +287,30 @@ struct LineSums {
 }
 
 /// Maximises the conditional likelihood by Newton's method; `None` to fall back.
-pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<MlResult> {
-    let slots = model.slots();
+/// The slots of θ (slot order, ε² in slot E).
+fn slots_of(model: &Model, theta: &[f64]) -> [f64; NS] {
     let mut p = [0.0; NS];
-    for (k, &s) in slots.iter().enumerate() {
-        p[s] = theta0[k];
+    for (k, &s) in model.slots().iter().enumerate() {
+        p[s] = theta[k];
     }
     p[E] *= p[E];
-    let r = analytic::maximise(model, p, want_cov)?;
+    p
+}
+
+/// The restricted-likelihood intervals at the maximum `theta`
+/// ([`crate::fit::intervals::restricted`]).
+pub(super) fn restricted(model: &Model, theta: &[f64]) -> Option<Intervals> {
+    intervals::restricted(
+        model,
+        super::super::relation_names(model.shape),
+        &slots_of(model, theta),
+        model.data.n(),
+    )
+}
+
+pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<MlResult> {
+    let slots = model.slots();
+    let r = analytic::maximise(model, slots_of(model, theta0), want_cov)?;
     debug_assert_eq!(r.p.len(), NS);
     let theta: Vec<f64> = slots
         .iter()

@@ -4,7 +4,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::super::tolerance;
-use super::{bisect, invert_spd};
+use super::{bisect, illinois, invert_spd};
 
 /// Slot of α.
 pub(crate) const A: usize = 0;
@@ -334,4 +334,164 @@ fn profile_eps<O: Analytic>(
         hi *= 2.0;
     }
     None
+}
+
+/// Δ(−2 ln L_R) of the 95 % interval: the 0.95 quantile of χ² with one degree of freedom,
+/// 1.959964² = 3.841459 (computed).
+pub(crate) const DELTA_95: f64 = 3.841_458_820_694_124;
+
+/// Absolute tolerance of the interval ends, relative to the scale of ε: 10⁻⁷ of it, far below
+/// anything shown.
+const INTERVAL_X_REL: f64 = 1e-7;
+
+/// The smallest ε searched, relative to the scale of ε (see [`restricted`]).
+const EPS_FLOOR_REL: f64 = 1e-4;
+
+/// Result of [`restricted`].
+pub(crate) struct Restricted {
+    /// The slots at the restricted ε (E holds ε²) with every other slot at its maximum for
+    /// that ε.
+    pub(crate) p: [f64; NS],
+    /// 68.27 % interval of ε: Δ(−2 ln L_R) ≤ 1 (a lower end of 0 when the interval reaches the
+    /// boundary).
+    pub(crate) eps_68: (f64, f64),
+    /// 95 % interval of ε: Δ(−2 ln L_R) ≤ 3.841.
+    pub(crate) eps_95: (f64, f64),
+    /// Inverse Hessian of −ln L over the model's slots in θ order (ε, not ε², in slot E) at
+    /// `p`, or `None` when it is not positive definite.
+    pub(crate) cov: Option<DMatrix<f64>>,
+}
+
+/// The restricted (Laplace-marginal) likelihood of ε and its maximum and intervals.
+///
+/// ```text
+/// −2 ln L_R(ε) = min_λ [−2 ln L(ε, λ)] + ln det H_mm(ε)
+/// ```
+///
+/// where λ are all the other parameters, re-maximised at each ε, and H_mm is the Hessian of
+/// −2 ln L over the relation's mean parameters m (α, β and, when fitted, β2 or γ and δ) at that
+/// maximum. Integrating m out of the likelihood with flat priors by Laplace's method gives this
+/// form (Cox & Reid 1987, JRSS B 49, 1, eq. 4.4 — the adjusted profile likelihood — from
+/// memory); for a linear model with Gaussian errors and no censoring it is exactly the REML
+/// likelihood of the variance (Patterson & Thompson 1971, Biometrika 58, 545; Harville 1974,
+/// Biometrika 61, 383). The ln det term charges ε for the degrees of freedom the fitted line
+/// takes from the residuals, which the ML ε ignores (its bias is about −p/(2N) ε for p mean
+/// parameters). docs/methods.md §2.8.
+///
+/// The estimate is the ε that minimises −2 ln L_R (Brent), and the intervals are
+/// {ε : −2 ln L_R(ε) − min ≤ 1 or 3.841} (bisection on each side), cut at 0.
+/// `None` when a maximum at fixed ε or the Hessian cannot be computed (the caller keeps the
+/// curvature errors).
+pub(crate) fn restricted<O: Analytic>(model: &O, ml: &[f64; NS]) -> Option<Restricted> {
+    let slots = model.slots();
+    let rest: Vec<usize> = slots.iter().copied().filter(|&s| s != E).collect();
+    let mean: Vec<usize> = slots
+        .iter()
+        .copied()
+        .filter(|s| matches!(*s, A | B | C | D))
+        .collect();
+    let km = mean.len();
+    let mut evals = 0_u64;
+    let mut start = *ml;
+    // −2 ln L_R at ε, and the slots of its inner maximum.
+    let mut objective = |e: f64, evals: &mut u64| -> Option<(f64, [f64; NS])> {
+        let mut p = start;
+        p[E] = e * e;
+        // Warm-started from the last ε; if Newton fails from there, from the ML point.
+        let (_, _, last) = newton(model, &mut p, &rest, evals).or_else(|| {
+            p = *ml;
+            p[E] = e * e;
+            newton(model, &mut p, &rest, evals)
+        })?;
+        let d = match last {
+            Some(d) => d,
+            None => {
+                *evals += 1;
+                model.derivs(&p, true, &rest)?
+            }
+        };
+        let hm = DMatrix::from_fn(km, km, |a, b| d.h[mean[a]][mean[b]]);
+        let chol = hm.cholesky()?;
+        let ln_det: f64 = (0..km).map(|i| 2.0 * chol.l()[(i, i)].ln()).sum();
+        start = p;
+        Some((d.f + ln_det, p))
+    };
+    let eps_ml = ml[E].max(0.0).sqrt();
+    let scale = model.mean_vy().sqrt().max(eps_ml).max(1e-6);
+    // Bracket the minimum: the restricted ε exceeds the ML one (the ln det term grows as ε
+    // shrinks the residual variance), so search up from 0 to where −2 ln L_R has risen by
+    // more than the 95 % level above its value at the ML ε.
+    let (f_ml, _) = objective(eps_ml, &mut evals)?;
+    let mut hi = eps_ml + scale;
+    for _ in 0..60 {
+        let (f_hi, _) = objective(hi, &mut evals)?;
+        if f_hi - f_ml > 2.0 * DELTA_95 {
+            break;
+        }
+        hi *= 2.0;
+    }
+    let mut failed = false;
+    let (eps_r, f_min, _) = super::brent_min(
+        |e| match objective(e, &mut evals) {
+            Some((f, _)) => f,
+            None => {
+                failed = true;
+                f64::INFINITY
+            }
+        },
+        0.0,
+        hi,
+        1e-9 * scale,
+    );
+    if failed || !f_min.is_finite() {
+        return None;
+    }
+    let (f_min, p_min) = objective(eps_r, &mut evals)?;
+    let mut excess = |e: f64, level: f64, evals: &mut u64| {
+        objective(e, evals).map_or(f64::NAN, |(f, _)| f - f_min - level)
+    };
+    // Lower end in [floor, hi]: below 10⁻⁴ of the scale of ε the likelihood is flat in ε to
+    // rounding (and the inner maximum at ε = 0 can be ill-conditioned), so an interval that
+    // reaches down there reaches 0.
+    let floor = EPS_FLOOR_REL * scale;
+    let mut lower = |level: f64, hi: f64, evals: &mut u64| -> Option<f64> {
+        if hi <= floor || excess(floor, level, evals) <= 0.0 {
+            return Some(0.0);
+        }
+        illinois(
+            |e| excess(e, level, evals),
+            floor,
+            hi,
+            INTERVAL_X_REL * scale,
+        )
+    };
+    let lo68 = lower(tolerance::DELTA_ONE_SIGMA, eps_r, &mut evals)?;
+    let lo95 = lower(DELTA_95, lo68, &mut evals)?;
+    // Upper ends: below `hi`, where −2 ln L_R is more than 2 × 3.84 above its minimum.
+    let hi68 = illinois(
+        |e| excess(e, tolerance::DELTA_ONE_SIGMA, &mut evals),
+        eps_r,
+        hi,
+        INTERVAL_X_REL * scale,
+    )?;
+    let hi95 = illinois(
+        |e| excess(e, DELTA_95, &mut evals),
+        hi68,
+        hi,
+        INTERVAL_X_REL * scale,
+    )?;
+    // Curvature of −ln L at (λ̂(ε_R), ε_R) over every slot, ε (not ε²) in slot E.
+    let mut pe = p_min;
+    pe[E] = p_min[E].sqrt();
+    let cov = model.derivs(&pe, false, &slots).and_then(|d| {
+        let k = slots.len();
+        let hm = DMatrix::from_fn(k, k, |a, b| 0.5 * d.h[slots[a]][slots[b]]);
+        invert_spd(&hm)
+    });
+    Some(Restricted {
+        p: p_min,
+        eps_68: (lo68, hi68),
+        eps_95: (lo95, hi95),
+        cov,
+    })
 }

@@ -817,6 +817,14 @@ pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> 
         model.data.n_upper,
         Some(x_model),
     );
+    if model.shape == Shape::Line
+        && model.k == 1
+        && model.group.is_none()
+        && ml.cov.is_some()
+        && let Some(iv) = newton::restricted(model, &ml.theta)
+    {
+        fit.intervals = iv;
+    }
     if model.shape == Shape::Quadratic {
         fit.termination
             .reason

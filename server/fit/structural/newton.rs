@@ -1,6 +1,7 @@
 //! Analytic derivatives of the K = 1 straight-line structural likelihood.
 
 use super::super::conditional::{CensoredSum, LnSum};
+use super::super::intervals::{self, Intervals};
 use super::super::optimize::analytic::{self, A, Analytic, B, D, Derivs, E, M, NS, T};
 use super::super::optimize::{MlResult, Sum};
 use super::super::special::{LN_2PI, detection_terms, limit_terms, norm_cdf_parts};
@@ -164,19 +165,34 @@ impl Analytic for Model {
     }
 }
 
+/// The slots of θ = α, β, ε, μ (unpivoted), τ, [δ] (ε² and τ² in theirs, μ pivoted).
+fn slots_of(model: &Model, theta: &[f64]) -> [f64; NS] {
+    let mut p = [0.0; NS];
+    p[A] = theta[0];
+    p[B] = theta[1];
+    p[E] = theta[2] * theta[2];
+    p[M] = theta[3] - model.pivot;
+    p[T] = theta[4] * theta[4];
+    if model.group.is_some() {
+        p[D] = theta[5];
+    }
+    p
+}
+
+/// The restricted-likelihood intervals of the K = 1 line at its maximum `theta`
+/// ([`crate::fit::intervals::restricted`]).
+pub(super) fn restricted(model: &Model, theta: &[f64]) -> Option<Intervals> {
+    intervals::restricted(
+        model,
+        super::super::relation_names(model.shape),
+        &slots_of(model, theta),
+        model.data.n(),
+    )
+}
+
 /// Maximises the K = 1 line by Newton's method; `None` to fall back.
 pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<MlResult> {
-    // θ = α, β, ε, μ (unpivoted), τ, [δ].
-    let mut p = [0.0; NS];
-    p[A] = theta0[0];
-    p[B] = theta0[1];
-    p[E] = theta0[2] * theta0[2];
-    p[M] = theta0[3] - model.pivot;
-    p[T] = theta0[4] * theta0[4];
-    if model.group.is_some() {
-        p[D] = theta0[5];
-    }
-    let r = analytic::maximise(model, p, want_cov)?;
+    let r = analytic::maximise(model, slots_of(model, theta0), want_cov)?;
     let mut theta = vec![
         r.p[A],
         r.p[B],
