@@ -22,7 +22,7 @@ use super::problem::Problem;
 use super::{ApiResult, entity_tag, matches_if_none_match, query_pairs, tagged_bytes};
 use crate::catalog::relation_rows;
 use crate::error::{AppError, FieldError};
-use crate::fit::Fit;
+use crate::fit::{Fit, Intervals};
 use crate::relations::{
     FILTER_PARAMS, FIT_PARAMS, FitChoice, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice,
     SoiChoice, fitted,
@@ -282,9 +282,69 @@ pub struct Covariance {
     pub matrix: Vec<Vec<f64>>,
 }
 
-/// Fitted parameters of log10 M_BH = α + β (x − x0) [+ γ (x2 − x02)] with intrinsic scatter ε.
+/// One parameter's reported value with its 68 % and 95 % intervals.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct IntervalAnswer {
+    /// `alpha`, `beta`, `gamma`, `beta2` or `eps`.
+    pub name: String,
+    /// The reported value (for `eps` of the restricted kind: the restricted-likelihood ε).
+    pub estimate: f64,
+    /// Half the width of the 68 % interval.
+    pub error: f64,
+    /// 68.27 % interval, lower end.
+    pub p16: f64,
+    /// 68.27 % interval, upper end.
+    pub p84: f64,
+    /// 95 % interval, lower end.
+    pub p2_5: f64,
+    /// 95 % interval, upper end.
+    pub p97_5: f64,
+}
+
+/// The intervals a fit reports and how they were computed.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct IntervalsAnswer {
+    /// `restricted` (the default where it can be computed: ε from the restricted likelihood,
+    /// which corrects the maximum-likelihood ε's small-sample bias, α and β with Student's t),
+    /// `curvature` (the maximum-likelihood values ± the inverse-Hessian errors) or `estimator`
+    /// (FITEXY's and BCES's own errors).
+    pub kind: String,
+    /// The kind in words.
+    pub label: String,
+    /// One entry per parameter.
+    pub params: Vec<IntervalAnswer>,
+}
+
+impl IntervalsAnswer {
+    /// The answer's view of a fit's intervals.
+    pub fn of(iv: &Intervals) -> Self {
+        Self {
+            kind: iv.kind.as_str().to_owned(),
+            label: iv.kind.label().to_owned(),
+            params: iv
+                .params
+                .iter()
+                .map(|p| IntervalAnswer {
+                    name: p.name.to_owned(),
+                    estimate: finite(p.estimate),
+                    error: finite(p.error),
+                    p16: finite(p.p16),
+                    p84: finite(p.p84),
+                    p2_5: finite(p.p2_5),
+                    p97_5: finite(p.p97_5),
+                })
+                .collect(),
+        }
+    }
+}
+
+/// Fitted parameters of log10 M_BH = α + β (x − x0) [+ γ (x2 − x02)] with intrinsic scatter ε:
+/// the maximum-likelihood (or moment) values with their curvature errors, and in `intervals`
+/// the values and intervals to quote.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct FitParameters {
+    /// The values and 68 % / 95 % intervals to quote, and how they were computed.
+    pub intervals: IntervalsAnswer,
     /// α: log10 M_BH/M☉ at the pivot.
     pub alpha_log_mbh: f64,
     /// 1σ error of α, dex.
@@ -297,7 +357,8 @@ pub struct FitParameters {
     pub gamma: Option<f64>,
     /// 1σ error of γ.
     pub gamma_err: Option<f64>,
-    /// ε: intrinsic scatter in log10 M_BH at fixed host property, dex.
+    /// ε: intrinsic scatter in log10 M_BH at fixed host property, dex (maximum likelihood,
+    /// biased low at small N; `intervals` has the corrected value).
     pub scatter_dex: f64,
     /// 1σ error of ε, dex (0 at the ε = 0 boundary; see `termination`).
     pub scatter_err_dex: f64,
@@ -335,6 +396,7 @@ impl FitParameters {
     /// The answer's view of a fit.
     pub fn of(fit: &Fit) -> Self {
         Self {
+            intervals: IntervalsAnswer::of(&fit.intervals),
             alpha_log_mbh: finite(fit.params.alpha),
             alpha_err_dex: finite(fit.errors.alpha),
             beta: finite(fit.params.beta),

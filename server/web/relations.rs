@@ -281,6 +281,13 @@ fn with_error(value: f64, err: f64) -> String {
     round_to_uncertainty(value, err).replace('-', "−")
 }
 
+/// A parameter's reported value ± its error (`fit.intervals`), if the fit has it.
+fn reported(fit: &Fit, name: &str) -> Option<String> {
+    fit.intervals
+        .get(name)
+        .map(|iv| with_error(iv.estimate, iv.error))
+}
+
 /// One relation on `/relations`.
 pub(crate) struct RelationSummary {
     label: String,
@@ -324,13 +331,10 @@ pub(crate) async fn list_relations(
                 label: relation.label(),
                 slug: relation.slug(),
                 x_label: relation.x_label(),
-                alpha: with_error(fit.params.alpha, fit.errors.alpha),
-                beta: with_error(fit.params.beta, fit.errors.beta),
-                gamma: fit
-                    .params
-                    .gamma
-                    .map(|g| with_error(g, fit.errors.gamma.unwrap_or(0.0))),
-                eps: with_error(fit.params.eps, fit.errors.eps),
+                alpha: reported(fit, "alpha").unwrap_or_default(),
+                beta: reported(fit, "beta").unwrap_or_default(),
+                gamma: reported(fit, "gamma"),
+                eps: reported(fit, "eps").unwrap_or_default(),
                 n,
                 problem: None,
             },
@@ -374,7 +378,24 @@ fn option(value: &str, label: &str, selected: bool) -> OptionView {
 pub(crate) struct ParamView {
     symbol: &'static str,
     value: String,
+    /// The 68 % interval, "lo – hi".
+    interval68: String,
+    /// The 95 % interval, "lo – hi".
+    interval95: String,
     unit: String,
+}
+
+/// "lo – hi" with as many decimals as the error's two significant digits need.
+fn interval_text(lo: f64, hi: f64, err: f64) -> String {
+    if !(lo.is_finite() && hi.is_finite()) {
+        return "—".to_owned();
+    }
+    let decimals = if err.is_finite() && err > 0.0 {
+        (1 - err.log10().floor() as i32).clamp(0, 8) as usize
+    } else {
+        3
+    };
+    format!("{lo:.decimals$} – {hi:.decimals$}").replace('-', "−")
 }
 
 /// A row of the covariance matrix.
@@ -448,6 +469,8 @@ pub(crate) struct RelationPage {
     summary: SampleSummary,
     fit_error: Option<String>,
     params: Vec<ParamView>,
+    /// How the values and intervals were computed, in words.
+    interval_label: String,
     cov_names: Vec<&'static str>,
     cov_rows: Vec<CovRow>,
     chart_svg: String,
@@ -824,6 +847,7 @@ pub(crate) async fn show_relation(
         summary: SampleSummary::of(&relation, &outcome, &q),
         fit_error: outcome.fit.as_ref().err().map(ToString::to_string),
         params,
+        interval_label: fit.map_or("", |f| f.intervals.kind.label()).to_owned(),
         cov_names,
         cov_rows,
         chart_svg,
@@ -848,33 +872,29 @@ pub(crate) async fn show_relation(
     })
 }
 
-/// The fitted parameters with their errors and units, and the covariance matrix.
+/// The fitted parameters with their errors, intervals and units, and the covariance matrix.
+/// Values and intervals are the ones the fit reports (`fit.intervals`; restricted likelihood
+/// by default); the covariance is the maximum-likelihood curvature's.
 fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<&'static str>, Vec<CovRow>) {
     let unit = relation.x_unit();
-    let mut params = vec![
-        ParamView {
-            symbol: "α",
-            value: with_error(f.params.alpha, f.errors.alpha),
-            unit: "log10 M☉ at the pivot".into(),
-        },
-        ParamView {
-            symbol: "β",
-            value: with_error(f.params.beta, f.errors.beta),
-            unit: format!("dex of M_BH per dex of x ({unit})"),
-        },
-    ];
-    if let Some(g) = f.params.gamma {
-        params.push(ParamView {
-            symbol: "γ",
-            value: with_error(g, f.errors.gamma.unwrap_or(0.0)),
-            unit: "dex of M_BH per dex of M_bulge".into(),
-        });
-    }
-    params.push(ParamView {
-        symbol: "ε",
-        value: with_error(f.params.eps, f.errors.eps),
-        unit: "dex (intrinsic scatter)".into(),
-    });
+    let view = |name: &str, symbol: &'static str, unit: String| {
+        f.intervals.get(name).map(|iv| ParamView {
+            symbol,
+            value: with_error(iv.estimate, iv.error),
+            interval68: interval_text(iv.p16, iv.p84, iv.error),
+            interval95: interval_text(iv.p2_5, iv.p97_5, iv.error),
+            unit,
+        })
+    };
+    let params: Vec<ParamView> = [
+        view("alpha", "α", "log10 M☉ at the pivot".into()),
+        view("beta", "β", format!("dex of M_BH per dex of x ({unit})")),
+        view("gamma", "γ", "dex of M_BH per dex of M_bulge".into()),
+        view("eps", "ε", "dex (intrinsic scatter)".into()),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     let cov_rows = f
         .cov_names
         .iter()

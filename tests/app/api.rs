@@ -311,6 +311,19 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
         f["beta"].as_f64().unwrap(),
         f["scatter_dex"].as_f64().unwrap(),
     );
+    // The values to quote sit beside the ML ones: restricted likelihood, ε at least the ML ε.
+    assert_eq!(f["intervals"]["kind"], "restricted", "{f}");
+    let quoted_eps = f["intervals"]["params"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["name"] == "eps")
+        .and_then(|p| p["estimate"].as_f64())
+        .unwrap();
+    assert!(
+        quoted_eps >= eps && quoted_eps < eps + 0.1,
+        "{quoted_eps} vs {eps}"
+    );
     let c = &f["covariance"]["matrix"];
     let cov = |i: usize, j: usize| c[i][j].as_f64().unwrap();
     // σ = 250 ± 10 km/s and a mass of 10^9 ± 10^8 M☉ with a distance and resolution.

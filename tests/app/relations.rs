@@ -55,6 +55,27 @@ async fn the_demo_m_sigma_slope_is_near_the_demo_model() {
     assert!((8.0..=8.6).contains(&alpha), "α = {alpha}");
     assert!((0.2..=0.7).contains(&eps), "ε = {eps}");
     assert_eq!(v["catalog_version"], 1);
+    // The values to quote: restricted likelihood by default. Its ε is at least the ML ε (the
+    // ln det term only penalises small ε; docs/methods.md §2.8) and lies inside its own
+    // 68 % interval, which lies inside the 95 % one.
+    let iv = &v["fit"]["intervals"];
+    assert_eq!(iv["kind"], "restricted", "{iv}");
+    let quoted = iv["params"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p["name"] == "eps")
+        .unwrap();
+    let num = |k: &str| quoted[k].as_f64().unwrap();
+    assert!(num("estimate") >= eps, "{quoted} vs ML {eps}");
+    assert!(
+        num("p2_5") <= num("p16") && num("p16") < num("estimate"),
+        "{quoted}"
+    );
+    assert!(
+        num("estimate") < num("p84") && num("p84") <= num("p97_5"),
+        "{quoted}"
+    );
     // Six σ_c objects are left out of the σ_e fit (seed-data/README.md, "σ_c").
     assert_eq!(v["left_out_sigma_definition"], 6);
 }
@@ -64,6 +85,20 @@ async fn the_relation_page_shows_parameters_chart_and_diagnostics() {
     let app = spawn_demo_app().await;
     let body = app.ok("/relations/m_sigma").await;
     assert!(body.contains("id=\"params\""), "{body}");
+    // The values to quote, their intervals and how they were computed.
+    assert!(body.contains("68 % interval") && body.contains("95 % interval"));
+    assert!(
+        body.contains("Values and intervals: restricted likelihood"),
+        "{body}"
+    );
+    // FITEXY quotes its own errors and says so.
+    let fitexy = app
+        .ok("/relations/m_sigma?method=fitexy&limits=exclude")
+        .await;
+    assert!(
+        fitexy.contains("Values and intervals: the estimator") && fitexy.contains("own errors"),
+        "{fitexy}"
+    );
     assert!(body.contains("<svg"), "the chart is inline");
     assert!(body.contains("log₁₀ σ [km/s]"), "axis label with units");
     assert!(body.contains("6 galaxies with a central σ_c were left out"));
