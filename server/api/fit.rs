@@ -303,7 +303,6 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         bootstrap: req.bootstrap.map(|n| n as usize),
         posterior_steps: req.posterior_steps.map(|n| n as usize),
         seed: req.seed.unwrap_or(1),
-        small_sample_bootstrap: false,
     };
     let own = fit_own_sample(&points, &settings).map_err(|e| match e {
         OwnSampleError::Fit(e) => fit_problem(&e),

@@ -253,7 +253,62 @@ mod tests {
             assert!((student_t_quantile(1.0, nu) - t68).abs() < 1e-4, "{nu}");
             assert!((student_t_quantile(Z95, nu) - t95).abs() < 1e-4, "{nu}");
         }
-        assert_eq!(student_t_quantile(Z95, f64::INFINITY), Z95);
+        assert!((student_t_quantile(Z95, f64::INFINITY) - Z95).abs() < 1e-15);
+    }
+
+    #[test]
+    fn restricted_eps_is_reml_for_a_homoscedastic_line() {
+        // No x errors, equal y errors s, no limits: the conditional likelihood is a linear
+        // Gaussian model with variance s² + ε² for every object, where ML gives
+        // s² + ε² = RSS/N and REML s² + ε² = RSS/(N − 2) (Patterson & Thompson 1971), RSS the
+        // least-squares residual sum of squares. Invented points on a line with ±0.4 dex
+        // offsets.
+        use crate::fit::{FitSpec, Method, Point, fit};
+        let s = 0.1;
+        let pts: Vec<Point> = (0..14)
+            .map(|i| {
+                let x = 2.0 + 0.04 * f64::from(i);
+                let off = [0.4, -0.3, 0.1, -0.5, 0.2, 0.35, -0.15][i as usize % 7];
+                Point::new(x, 0.0, 8.0 + 4.0 * (x - 2.3) + off, s)
+            })
+            .collect();
+        let n = pts.len() as f64;
+        let (mx, my) = (
+            pts.iter().map(|p| p.x).sum::<f64>() / n,
+            pts.iter().map(|p| p.y).sum::<f64>() / n,
+        );
+        let sxx: f64 = pts.iter().map(|p| (p.x - mx).powi(2)).sum();
+        let b = pts.iter().map(|p| (p.x - mx) * (p.y - my)).sum::<f64>() / sxx;
+        let rss: f64 = pts
+            .iter()
+            .map(|p| (p.y - my - b * (p.x - mx)).powi(2))
+            .sum();
+        let f = fit(&pts, &FitSpec::new(Method::Conditional, 2.3)).unwrap();
+        assert_eq!(f.intervals.kind, IntervalKind::Restricted);
+        let eps_ml = (rss / n - s * s).sqrt();
+        let eps_reml = (rss / (n - 2.0) - s * s).sqrt();
+        assert!(
+            (f.params.eps - eps_ml).abs() < 1e-7,
+            "{} vs {eps_ml}",
+            f.params.eps
+        );
+        let e = f.intervals.get("eps").unwrap();
+        assert!(
+            (e.estimate - eps_reml).abs() < 1e-6,
+            "{} vs {eps_reml}",
+            e.estimate
+        );
+        // The slope at the REML variance is the least-squares slope, with error
+        // √((s² + ε_R²)/Sxx) and Student-t intervals on N − 2 degrees of freedom.
+        let beta = f.intervals.get("beta").unwrap();
+        let se = (rss / (n - 2.0) / sxx).sqrt();
+        assert!((beta.estimate - b).abs() < 1e-7 && (beta.error - se).abs() < 1e-6 * se);
+        let t95 = student_t_quantile(Z95, n - 2.0);
+        assert!((beta.p97_5 - (b + t95 * se)).abs() < 1e-6 * se);
+        // ε's interval is the likelihood-ratio one: asymmetric about the estimate.
+        assert!(
+            e.p16 < e.estimate && e.estimate < e.p84 && e.p84 - e.estimate > e.estimate - e.p16
+        );
     }
 
     #[test]

@@ -48,12 +48,10 @@ pub const POSTERIOR_BURN_IN: usize = 1_000;
 /// Initial ball of the posterior walkers of a caller's own sample, in units of the ML errors.
 pub const POSTERIOR_INIT_SCATTER: f64 = 0.1;
 
-/// Samples smaller than this get an automatic bootstrap beside the curvature errors (when the
-/// caller asks for it: the command line does). Below it the errors from the likelihood's
-/// curvature are too small (tests/fit_simulation.rs measures it).
+/// Below this many objects a fit whose intervals come from the likelihood's curvature alone
+/// (not the restricted likelihood) gets a warning in `massline fit`: they are too small there
+/// (tests/fit_simulation.rs measures it).
 pub const SMALL_SAMPLE: usize = 30;
-/// Resamples of that automatic bootstrap.
-pub const SMALL_SAMPLE_BOOTSTRAP: usize = 1000;
 
 /// Default bootstrap replicates of a run started from the pages.
 pub const DEFAULT_REPLICATES: usize = 1000;

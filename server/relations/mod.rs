@@ -40,16 +40,14 @@ pub use cache::{
 pub use defaults::{
     DEFAULT_REPLICATES, DEFAULT_STEPS, LUMINOSITY_PIVOT_LOG, MBULGE_PIVOT_LOG, POSTERIOR_BURN_IN,
     POSTERIOR_INIT_SCATTER, POSTERIOR_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE, RUN_SEED,
-    SIGMA_PIVOT_LOG, SMALL_SAMPLE, SMALL_SAMPLE_BOOTSTRAP, STEPS_RANGE, default_pivot,
+    SIGMA_PIVOT_LOG, SMALL_SAMPLE, STEPS_RANGE, default_pivot,
 };
 #[cfg(test)]
 pub(crate) use filter::pairs as test_pairs;
 pub use filter::{
     FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
 };
-pub use own_sample::{
-    OwnSampleError, OwnSampleFit, OwnSampleSettings, PivotRule, SmallSampleNote, fit_own_sample,
-};
+pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, PivotRule, fit_own_sample};
 pub use runs::{
     BOOTSTRAP_CHUNK, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, filter_json,
     run_status, stored_run,

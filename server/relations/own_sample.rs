@@ -12,8 +12,7 @@
 //! [`POSTERIOR_BURN_IN`] steps or half the steps if fewer, `fit::posterior`).
 
 use super::defaults::{
-    POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, SMALL_SAMPLE,
-    SMALL_SAMPLE_BOOTSTRAP, default_pivot,
+    POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, default_pivot,
 };
 use crate::fit::bootstrap::{Bootstrap, bootstrap};
 use crate::fit::ensemble::EnsembleConfig;
@@ -33,10 +32,6 @@ pub struct OwnSampleSettings {
     pub posterior_steps: Option<usize>,
     /// Seed of the bootstrap and the posterior (the same seed gives the same numbers).
     pub seed: u64,
-    /// Whether a sample of fewer than [`SMALL_SAMPLE`] objects gets an automatic bootstrap of
-    /// [`SMALL_SAMPLE_BOOTSTRAP`] resamples when neither a bootstrap nor a posterior is asked
-    /// for (the command line does; the API does not).
-    pub small_sample_bootstrap: bool,
 }
 
 /// How the pivot was chosen.
@@ -48,18 +43,6 @@ pub enum PivotRule {
     Default(&'static str),
 }
 
-/// The note a small sample gets: its curvature errors tend to be too small, so an automatic
-/// bootstrap is shown beside them.
-#[derive(Debug, Clone, PartialEq)]
-pub struct SmallSampleNote {
-    /// Objects fitted.
-    pub n: usize,
-    /// Resamples of the automatic bootstrap.
-    pub resamples: usize,
-    /// Why the automatic bootstrap could not run, when it could not.
-    pub bootstrap_failure: Option<FitError>,
-}
-
 /// A caller's own sample, fitted.
 #[derive(Debug, Clone)]
 pub struct OwnSampleFit {
@@ -69,12 +52,10 @@ pub struct OwnSampleFit {
     pub pivot: f64,
     /// How the pivot was chosen.
     pub pivot_rule: PivotRule,
-    /// The bootstrap asked for, or the automatic one of a small sample.
+    /// The bootstrap asked for.
     pub bootstrap: Option<Bootstrap>,
     /// The posterior asked for.
     pub posterior: Option<Posterior>,
-    /// The small-sample note, when the automatic bootstrap was asked for and applies.
-    pub small_sample: Option<SmallSampleNote>,
 }
 
 /// Why a caller's own sample could not be fitted, by the setting at fault; the message is the
@@ -105,13 +86,14 @@ impl OwnSampleError {
 }
 
 /// Fits `points` with `settings`: picks the pivot, fits, then runs the posterior and the
-/// bootstrap asked for (in that order, so when both fail the posterior's error is reported),
-/// and for a small sample the automatic bootstrap when `settings` asks for it.
+/// bootstrap asked for (in that order, so when both fail the posterior's error is reported).
+/// The fit's own `intervals` are the values and intervals to quote at any N (restricted
+/// likelihood where it can be computed; docs/methods.md §2.8), so no resampling is added
+/// unasked.
 ///
 /// # Errors
 ///
-/// [`OwnSampleError`] naming the step at fault with the estimator's reason. A failed automatic
-/// bootstrap is not an error: the note carries its reason.
+/// [`OwnSampleError`] naming the step at fault with the estimator's reason.
 pub fn fit_own_sample(
     points: &[Point],
     settings: &OwnSampleSettings,
@@ -145,29 +127,9 @@ pub fn fit_own_sample(
         }
         None => None,
     };
-    let mut small_sample = None;
     let boot = match settings.bootstrap {
         Some(n) => {
             Some(bootstrap(points, &spec, n, settings.seed).map_err(OwnSampleError::Bootstrap)?)
-        }
-        // Below SMALL_SAMPLE objects the errors from the likelihood's curvature are too small
-        // (tests/fit_simulation.rs measures it), so a bootstrap is run and shown beside them
-        // unless the caller already asked for a posterior.
-        None if settings.small_sample_bootstrap
-            && fitted.n < SMALL_SAMPLE
-            && settings.posterior_steps.is_none() =>
-        {
-            let (boot, bootstrap_failure) =
-                match bootstrap(points, &spec, SMALL_SAMPLE_BOOTSTRAP, settings.seed) {
-                    Ok(b) => (Some(b), None),
-                    Err(e) => (None, Some(e)),
-                };
-            small_sample = Some(SmallSampleNote {
-                n: fitted.n,
-                resamples: SMALL_SAMPLE_BOOTSTRAP,
-                bootstrap_failure,
-            });
-            boot
         }
         None => None,
     };
@@ -177,7 +139,6 @@ pub fn fit_own_sample(
         pivot_rule,
         bootstrap: boot,
         posterior,
-        small_sample,
     })
 }
 
@@ -205,12 +166,11 @@ mod tests {
             bootstrap: None,
             posterior_steps: None,
             seed: 1,
-            small_sample_bootstrap: false,
         }
     }
 
     #[test]
-    fn the_automatic_bootstrap_runs_only_when_asked_for() {
+    fn a_small_sample_quotes_restricted_intervals_and_resamples_only_when_asked() {
         let points = small_sample();
         let plain = fit_own_sample(&points, &settings()).unwrap();
         assert_eq!(
@@ -218,19 +178,27 @@ mod tests {
             PivotRule::Default("log10(200): the x values look like log10 sigma in km/s")
         );
         assert!((plain.pivot - SIGMA_PIVOT_LOG).abs() < 1e-12);
-        assert!(plain.bootstrap.is_none() && plain.small_sample.is_none());
+        assert!(plain.bootstrap.is_none() && plain.posterior.is_none());
+        // Ten objects: the restricted ε exceeds the ML one (the fitted line's degrees of freedom).
+        let eps = plain.fit.intervals.get("eps").unwrap();
+        assert_eq!(
+            plain.fit.intervals.kind,
+            crate::fit::IntervalKind::Restricted
+        );
+        assert!(
+            eps.estimate > plain.fit.params.eps,
+            "{eps:?} vs {}",
+            plain.fit.params.eps
+        );
         let asked = fit_own_sample(
             &points,
             &OwnSampleSettings {
-                small_sample_bootstrap: true,
+                bootstrap: Some(200),
                 ..settings()
             },
         )
         .unwrap();
-        let note = asked.small_sample.unwrap();
-        assert_eq!((note.n, note.resamples), (10, SMALL_SAMPLE_BOOTSTRAP));
-        assert!(note.bootstrap_failure.is_none());
-        assert_eq!(asked.bootstrap.unwrap().n_boot, SMALL_SAMPLE_BOOTSTRAP);
+        assert_eq!(asked.bootstrap.unwrap().n_boot, 200);
     }
 
     #[test]
