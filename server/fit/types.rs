@@ -36,6 +36,12 @@ pub struct Point {
     pub x2: Option<f64>,
     /// Measurement error of `x2`, dex.
     pub x2_err: f64,
+    /// Covariance of the x2 and y measurement errors, dex²; 0 if unknown (planar fits only).
+    #[serde(default)]
+    pub x2_y_cov: f64,
+    /// Covariance of the x and x2 measurement errors, dex²; 0 if unknown (planar fits only).
+    #[serde(default)]
+    pub x_x2_cov: f64,
 }
 
 impl Point {
@@ -62,6 +68,8 @@ impl Point {
             upper_limit: false,
             x2: None,
             x2_err: 0.0,
+            x2_y_cov: 0.0,
+            x_x2_cov: 0.0,
         }
     }
 
@@ -134,6 +142,31 @@ impl Point {
     pub fn with_x2(mut self, x2: f64, x2_err: f64) -> Point {
         self.x2 = Some(x2);
         self.x2_err = x2_err;
+        self
+    }
+
+    /// The same point with the error covariances of the second host property (dex²): with y
+    /// (`x2_y_cov`) and with x (`x_x2_cov`), for planar fits.
+    ///
+    /// # Model
+    /// ```text
+    /// measurement covariance of (x, x2, y):
+    ///   [[σ_x²,    σ_x,x2,  σ_xy   ],
+    ///    [σ_x,x2,  σ_x2²,   σ_x2,y ],
+    ///    [σ_xy,    σ_x2,y,  σ_y²   ]]
+    /// σ_x2,y = x2_y_cov, σ_x,x2 = x_x2_cov, dex² (|σ_x2,y| ≤ σ_x2 σ_y, |σ_x,x2| ≤ σ_x σ_x2)
+    /// ```
+    ///
+    /// # Errors
+    /// None here; planar fits refuse a covariance larger than its two errors allow with
+    /// FitError::InvalidSetting.
+    ///
+    /// # References
+    /// docs/methods.md §3.2 (a shared distance error correlates every distance-dependent
+    /// quantity of a galaxy).
+    pub fn with_x2_covariances(mut self, x2_y_cov: f64, x_x2_cov: f64) -> Point {
+        self.x2_y_cov = x2_y_cov;
+        self.x_x2_cov = x_x2_cov;
         self
     }
 }
@@ -582,6 +615,10 @@ pub(crate) struct Data {
     pub(crate) d2: Vec<f64>,
     /// σ_x2² (0 unless Plane).
     pub(crate) vx2: Vec<f64>,
+    /// σ_x2,y, the x2–y error covariance (0 unless Plane).
+    pub(crate) cx2y: Vec<f64>,
+    /// σ_x,x2, the x–x2 error covariance (0 unless Plane).
+    pub(crate) cxx2: Vec<f64>,
     /// Number of upper limits.
     pub(crate) n_upper: usize,
 }
@@ -596,8 +633,9 @@ impl Data {
 /// Checks every row and builds the pivoted arrays.
 ///
 /// Order of checks: non-finite values (first row, first column), negative errors, an x–y error
-/// covariance the errors cannot carry, a missing x2 in a planar fit, all limits, too few
-/// detections (`min`), no spread in x (or x2) among the detections.
+/// covariance the errors cannot carry (for a plane also an x2–y or x–x2 one), a missing x2 in
+/// a planar fit, all limits, too few detections (`min`), no spread in x (or x2) among the
+/// detections.
 pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Data, FitError> {
     let plane = spec.shape == Shape::Plane;
     let n = points.len();
@@ -610,6 +648,8 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         lim: Vec::with_capacity(n),
         d2: Vec::with_capacity(n),
         vx2: Vec::with_capacity(n),
+        cx2y: Vec::with_capacity(n),
+        cxx2: Vec::with_capacity(n),
         n_upper: 0,
     };
     if !spec.pivot.is_finite() || !spec.pivot2.is_finite() {
@@ -634,23 +674,27 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         } else {
             0.0
         };
-        let cols: [(&'static str, f64); 7] = [
+        // The x2 covariances only enter a planar fit; other shapes ignore them.
+        let (x2_err, x2_y_cov, x_x2_cov) = if plane {
+            (p.x2_err, p.x2_y_cov, p.x_x2_cov)
+        } else {
+            (0.0, 0.0, 0.0)
+        };
+        let cols: [(&'static str, f64); 9] = [
             ("x", p.x),
             ("x_err", p.x_err),
             ("y", p.y),
             ("y_err", p.y_err),
             ("xy_cov", p.xy_cov),
             ("x2", x2),
-            ("x2_err", if plane { p.x2_err } else { 0.0 }),
+            ("x2_err", x2_err),
+            ("x2_y_cov", x2_y_cov),
+            ("x_x2_cov", x_x2_cov),
         ];
         if let Some((column, _)) = cols.iter().find(|(_, v)| !v.is_finite()) {
             return Err(FitError::NonFiniteInput { row, column });
         }
-        for (column, v) in [
-            ("x_err", p.x_err),
-            ("y_err", p.y_err),
-            ("x2_err", if plane { p.x2_err } else { 0.0 }),
-        ] {
+        for (column, v) in [("x_err", p.x_err), ("y_err", p.y_err), ("x2_err", x2_err)] {
             if v < 0.0 {
                 return Err(FitError::NegativeError { row, column });
             }
@@ -663,6 +707,24 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
                 ),
             });
         }
+        for (setting, cov, a, b, pair) in [
+            ("x2_y_cov", x2_y_cov, x2_err, p.y_err, "x2–y"),
+            ("x_x2_cov", x_x2_cov, p.x_err, x2_err, "x–x2"),
+        ] {
+            if cov.abs() > a * b * (1.0 + 1e-12) {
+                let (ea, eb) = if setting == "x2_y_cov" {
+                    ("x2_err", "y_err")
+                } else {
+                    ("x_err", "x2_err")
+                };
+                return Err(FitError::InvalidSetting {
+                    setting,
+                    reason: format!(
+                        "Row {row} has an {pair} error covariance larger than {ea} × {eb} allows."
+                    ),
+                });
+            }
+        }
         data.d.push(p.x - spec.pivot);
         data.vx.push(p.x_err * p.x_err);
         data.y.push(p.y);
@@ -670,7 +732,9 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         data.cxy.push(p.xy_cov);
         data.lim.push(p.upper_limit);
         data.d2.push(if plane { x2 - spec.pivot2 } else { 0.0 });
-        data.vx2.push(if plane { p.x2_err * p.x2_err } else { 0.0 });
+        data.vx2.push(x2_err * x2_err);
+        data.cx2y.push(x2_y_cov);
+        data.cxx2.push(x_x2_cov);
         if p.upper_limit {
             data.n_upper += 1;
         }
