@@ -853,6 +853,8 @@ mod tests {
             };
             p.x2 = Some(10.0 + 0.05 * (i % 11) as f64);
             p.x2_err = 0.04;
+            p.x2_y_cov = -sign * p.x2_err * p.y_err;
+            p.x_x2_cov = sign * p.x_err * p.x2_err;
             if p.upper_limit && i % 5 == 0 {
                 p.y -= 12.0;
             }
@@ -937,6 +939,88 @@ mod tests {
         let (r, f) = (model.neg2(&at_zero), sampler.log_likelihood(&at_zero));
         assert!(r.is_infinite() && r > 0.0, "{r}");
         assert!(f.is_infinite() && f < 0.0, "{f}");
+    }
+
+    #[test]
+    fn plane_variance_carries_the_x2_covariances_and_is_unchanged_without_them() {
+        // V_i = aᵀ S_i a + ε², a = (−β, −γ, 1), S_i the measurement covariance of (x, x2, y)
+        // (docs/methods.md §2.7), computed here as that quadratic form; with σ_x2y = σ_xx2 = 0
+        // it is the plane's variance without them, σ_y² + β²σ_x² − 2βσ_xy + γ²σ_x2² + ε².
+        use rand::rngs::StdRng;
+        use rand::{RngExt, SeedableRng};
+        let (pts, pivot) = mixed_sample(64, 47);
+        let zeroed: Vec<Point> = pts
+            .iter()
+            .map(|p| p.clone().with_x2_covariances(0.0, 0.0))
+            .collect();
+        let spec = FitSpec::new(Method::Conditional, pivot)
+            .with_shape(Shape::Plane)
+            .and_then(|s| s.with_pivot2(10.2))
+            .expect("spec");
+        let reference = |points: &[Point], t: &[f64]| -> f64 {
+            let (alpha, beta, gamma, eps) = (t[0], t[1], t[2], t[3]);
+            let a = [-beta, -gamma, 1.0];
+            points
+                .iter()
+                .map(|p| {
+                    let s = [
+                        [p.x_err * p.x_err, p.x_x2_cov, p.xy_cov],
+                        [p.x_x2_cov, p.x2_err * p.x2_err, p.x2_y_cov],
+                        [p.xy_cov, p.x2_y_cov, p.y_err * p.y_err],
+                    ];
+                    let quad: f64 = (0..3)
+                        .map(|j| (0..3).map(|k| a[j] * s[j][k] * a[k]).sum::<f64>())
+                        .sum();
+                    let v = quad + eps * eps;
+                    let x2 = p.x2.unwrap_or(f64::NAN);
+                    let r = p.y - (alpha + beta * (p.x - pivot) + gamma * (x2 - 10.2));
+                    if p.upper_limit {
+                        -2.0 * ln_norm_cdf(r / v.sqrt())
+                    } else {
+                        r * r / v + v.ln() + LN_2PI
+                    }
+                })
+                .sum()
+        };
+        let old_form = |points: &[Point], t: &[f64]| -> f64 {
+            let (alpha, beta, gamma, eps) = (t[0], t[1], t[2], t[3]);
+            points
+                .iter()
+                .map(|p| {
+                    let v = p.y_err.powi(2) + beta * beta * p.x_err.powi(2) - 2.0 * beta * p.xy_cov
+                        + gamma * gamma * p.x2_err.powi(2)
+                        + eps * eps;
+                    let x2 = p.x2.unwrap_or(f64::NAN);
+                    let r = p.y - (alpha + beta * (p.x - pivot) + gamma * (x2 - 10.2));
+                    if p.upper_limit {
+                        -2.0 * ln_norm_cdf(r / v.sqrt())
+                    } else {
+                        r * r / v + v.ln() + LN_2PI
+                    }
+                })
+                .sum()
+        };
+        let with = Model::new(&pts, &spec).expect("model");
+        let without = Model::new(&zeroed, &spec).expect("model");
+        let mut rng = StdRng::seed_from_u64(8);
+        let mut differs = false;
+        for _ in 0..50 {
+            let t = [
+                8.3 + rng.random_range(-0.3..0.3),
+                5.0 + rng.random_range(-1.0..1.0),
+                rng.random_range(-1.5..1.5),
+                0.3 + rng.random_range(-0.2..0.2),
+            ];
+            let (a, b) = (with.neg2(&t), reference(&pts, &t));
+            assert!((a - b).abs() <= 1e-12 * b.abs(), "{t:?}: {a} vs {b}");
+            let fast = -2.0 * with.sampler().log_likelihood(&t);
+            assert!((fast - b).abs() <= 1e-12 * b.abs(), "{t:?}: {fast} vs {b}");
+            let (a0, b0) = (without.neg2(&t), old_form(&zeroed, &t));
+            assert!((a0 - b0).abs() <= 1e-12 * b0.abs(), "{t:?}: {a0} vs {b0}");
+            assert!((reference(&zeroed, &t) - b0).abs() <= 1e-12 * b0.abs());
+            differs |= (a - a0).abs() > 1e-6 * a0.abs();
+        }
+        assert!(differs, "the covariances of this sample change −2 ln L");
     }
 
     #[test]

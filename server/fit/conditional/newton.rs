@@ -345,6 +345,9 @@ mod tests {
             };
             p.x2 = Some(0.1 * (i as f64 % 7.0));
             p.x2_err = 0.05;
+            // Plane: x2–y and x–x2 error covariances of both signs (a limit has no y error).
+            p.x2_y_cov = if i % 2 == 0 { 0.4 } else { -0.3 } * p.x2_err * p.y_err;
+            p.x_x2_cov = if i % 3 == 1 { -0.5 } else { 0.2 } * p.x_err * p.x2_err;
         }
         for shape in [Shape::Line, Shape::Quadratic, Shape::Plane] {
             let spec = FitSpec::new(Method::Conditional, s.pivot)
