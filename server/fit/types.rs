@@ -920,3 +920,77 @@ pub(crate) mod test_data {
             .collect()
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn plane_spec() -> FitSpec {
+        FitSpec::new(Method::Conditional, 2.3)
+            .with_shape(Shape::Plane)
+            .and_then(|s| s.with_pivot2(11.0))
+            .expect("spec")
+    }
+
+    /// Five invented plane points (x = log σ, x2 = log M_bulge) with errors of 0.02, 0.1 and
+    /// 0.2 dex on x, x2 and y.
+    fn plane_points() -> Vec<Point> {
+        (0..5)
+            .map(|i| {
+                let d = f64::from(i) * 0.05;
+                Point::new(2.2 + d, 0.02, 8.0 + 4.0 * d, 0.2).with_x2(10.8 + 2.0 * d * d, 0.1)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn points_written_before_the_x2_covariances_read_with_none() {
+        // A point serialized without the two fields reads as one without covariances, and a
+        // point with them survives a round trip.
+        let old = r#"{"name":"X 214","x":2.3,"x_err":0.02,"y":8.1,"y_err":0.1,"xy_cov":0.0,
+            "upper_limit":false,"x2":11.0,"x2_err":0.1}"#;
+        let p: Point = serde_json::from_str(old).expect("an older point reads");
+        assert_eq!(
+            p,
+            Point::new(2.3, 0.02, 8.1, 0.1)
+                .named("X 214")
+                .with_x2(11.0, 0.1)
+        );
+        assert_eq!((p.x2_y_cov, p.x_x2_cov), (0.0, 0.0));
+        let q = p.with_x2_covariances(0.004, -0.001);
+        let back: Point =
+            serde_json::from_str(&serde_json::to_string(&q).expect("json")).expect("reads");
+        assert_eq!(back, q);
+    }
+
+    #[test]
+    fn plane_covariances_larger_than_their_errors_are_refused() {
+        let spec = plane_spec();
+        let mut pts = plane_points();
+        // |σ_x2y| ≤ σ_x2 σ_y = 0.1 × 0.2 = 0.02 dex² is accepted, more is not.
+        pts[3] = pts[3].clone().with_x2_covariances(0.02, 0.0);
+        assert!(prepare(&pts, &spec, 4).is_ok());
+        pts[3] = pts[3].clone().with_x2_covariances(0.021, 0.0);
+        let e = prepare(&pts, &spec, 4).expect_err("too large");
+        assert!(
+            matches!(&e, FitError::InvalidSetting { setting: "x2_y_cov", reason } if reason.contains("Row 3")),
+            "{e}"
+        );
+        // |σ_xx2| ≤ σ_x σ_x2 = 0.002 dex².
+        pts[3] = pts[3].clone().with_x2_covariances(0.0, -0.0021);
+        let e = prepare(&pts, &spec, 4).expect_err("too large");
+        assert!(
+            matches!(
+                e,
+                FitError::InvalidSetting {
+                    setting: "x_x2_cov",
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        // A line ignores the plane's covariances (it has no x2).
+        let line = FitSpec::new(Method::Conditional, 2.3);
+        assert!(prepare(&pts, &line, 4).is_ok());
+    }
+}
