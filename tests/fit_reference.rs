@@ -16,7 +16,7 @@
 use std::path::PathBuf;
 
 use massline::fit::tolerance::close;
-use massline::fit::{BcesLine, FitSpec, Likelihood, Method, Point, fit};
+use massline::fit::{BcesLine, FitSpec, Likelihood, Method, Point, Shape, fit};
 use serde_json::Value;
 
 fn fixture_dir() -> PathBuf {
@@ -291,4 +291,79 @@ fn hogg_table_likelihood_agrees_with_the_ml_oracle() {
     let like = Likelihood::new(&pts, &spec).unwrap();
     let neg2 = -2.0 * like.log_likelihood(&[298.9693, 0.678_815, 84.9930]);
     assert_abs("Hogg -2lnL", neg2, 237.447_860, 1e-5);
+}
+
+/// The plane sample of `tests/reference/plane/plane_cov_12.json` (written by
+/// `tests/reference/plane_reference.py`), with or without its error covariances.
+fn plane_points(fx: &Value, with_covariances: bool) -> Vec<Point> {
+    let keep = if with_covariances { 1.0 } else { 0.0 };
+    fx["points"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| {
+            let mut pt = Point::new(num(p, "x"), num(p, "x_err"), num(p, "y"), num(p, "y_err"))
+                .named(p["name"].as_str().unwrap())
+                .with_xy_cov(keep * num(p, "xy_cov"))
+                .with_x2(num(p, "x2"), num(p, "x2_err"))
+                .with_x2_covariances(keep * num(p, "x2_y_cov"), keep * num(p, "x_x2_cov"));
+            pt.upper_limit = p["upper_limit"].as_bool().unwrap();
+            pt
+        })
+        .collect()
+}
+
+#[test]
+fn plane_likelihoods_with_error_covariances_match_the_scipy_reference() {
+    // tests/reference/plane_reference.py evaluates −2 ln L at fixed parameters from the
+    // equations of docs/methods.md §2.7: the conditional V as the quadratic form aᵀSa + ε²
+    // (a = (−β, −γ, 1), S the 3×3 measurement covariance of (x, x2, y)), the structural
+    // detections as scipy's trivariate normal density. Agreement to 1e-9 relative, with the
+    // covariances and with them set to zero.
+    let path =
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/reference/plane/plane_cov_12.json");
+    let fx: Value = serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let (t, xm) = (&fx["theta"], &fx["x_model"]);
+    let relation = [
+        num(t, "alpha"),
+        num(t, "beta"),
+        num(t, "gamma"),
+        num(t, "eps"),
+    ];
+    let x_model = ["mu_1", "tau_1", "mu2_1", "tau2_1", "rho_1"].map(|k| num(xm, k));
+    for (with, suffix) in [(true, ""), (false, "_without_covariances")] {
+        let pts = plane_points(&fx, with);
+        assert_eq!(pts.iter().filter(|p| p.upper_limit).count(), 2);
+        for (method, key) in [
+            (Method::Conditional, "conditional"),
+            (Method::Structural, "structural"),
+        ] {
+            let spec = FitSpec::new(method, num(&fx, "pivot"))
+                .with_shape(Shape::Plane)
+                .and_then(|s| s.with_pivot2(num(&fx, "pivot2")))
+                .unwrap();
+            let like = Likelihood::new(&pts, &spec).unwrap();
+            let mut theta = relation.to_vec();
+            if method == Method::Structural {
+                assert_eq!(
+                    like.names(),
+                    [
+                        "alpha", "beta", "gamma", "eps", "mu_1", "tau_1", "mu2_1", "tau2_1",
+                        "rho_1"
+                    ]
+                );
+                theta.extend(x_model);
+            }
+            let got = -2.0 * like.log_likelihood(&theta);
+            let want = num(&fx, &format!("{key}_neg2_log_l{suffix}"));
+            assert_rel(&format!("plane {key}{suffix} -2lnL"), got, want, 1e-9);
+        }
+    }
+    // The covariances matter here: the reference values with and without them differ.
+    assert!(
+        (num(&fx, "conditional_neg2_log_l")
+            - num(&fx, "conditional_neg2_log_l_without_covariances"))
+        .abs()
+            > 0.1
+    );
 }

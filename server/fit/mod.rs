@@ -39,11 +39,13 @@
 //! | method | Line | Quadratic | Plane | upper limits |
 //! |---|---|---|---|---|
 //! | structural | exact closed form | Gauss–Hermite quadrature over the true x | exact closed form (bivariate true-x model) | yes (x density kept) |
-//! | conditional | yes | yes (slope β + 2β2 d in the variance) | yes (γ² σ_x2² in the variance) | yes (censored Φ term) |
+//! | conditional | yes | yes (slope β + 2β2 d in the variance) | yes (γ² σ_x2² − 2γ σ_x2y + 2βγ σ_xx2 in the variance) | yes (censored Φ term) |
 //! | FITEXY | yes | `Unsupported` | `Unsupported` | `Unsupported` |
 //! | BCES | yes | `Unsupported` | `Unsupported` | `Unsupported` |
 //!
-//! The x1–x2 measurement-error covariance of a planar fit is not modelled (points carry none).
+//! A planar fit models the full measurement covariance of (x, x2, y): besides σ_xy, a point
+//! carries σ_x2y and σ_xx2 ([`Point::with_x2_covariances`]; both 0 unless given), e.g. from a
+//! distance error shared by M_BH and M_bulge (docs/methods.md §2.7, §3.2).
 //!
 //! What a fit can answer beyond its parameters lives in the `predict` module (prediction at
 //! new x with predictive intervals, placement of a new object, the x implied by a mass) and in

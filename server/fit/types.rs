@@ -37,6 +37,12 @@ pub struct Point {
     pub x2: Option<f64>,
     /// Measurement error of `x2`, dex.
     pub x2_err: f64,
+    /// Covariance of the x2 and y measurement errors, dex²; 0 if unknown (planar fits only).
+    #[serde(default)]
+    pub x2_y_cov: f64,
+    /// Covariance of the x and x2 measurement errors, dex²; 0 if unknown (planar fits only).
+    #[serde(default)]
+    pub x_x2_cov: f64,
 }
 
 impl Point {
@@ -63,6 +69,8 @@ impl Point {
             upper_limit: false,
             x2: None,
             x2_err: 0.0,
+            x2_y_cov: 0.0,
+            x_x2_cov: 0.0,
         }
     }
 
@@ -135,6 +143,31 @@ impl Point {
     pub fn with_x2(mut self, x2: f64, x2_err: f64) -> Point {
         self.x2 = Some(x2);
         self.x2_err = x2_err;
+        self
+    }
+
+    /// The same point with the error covariances of the second host property (dex²): with y
+    /// (`x2_y_cov`) and with x (`x_x2_cov`), for planar fits.
+    ///
+    /// # Model
+    /// ```text
+    /// measurement covariance of (x, x2, y):
+    ///   [[σ_x²,    σ_x,x2,  σ_xy   ],
+    ///    [σ_x,x2,  σ_x2²,   σ_x2,y ],
+    ///    [σ_xy,    σ_x2,y,  σ_y²   ]]
+    /// σ_x2,y = x2_y_cov, σ_x,x2 = x_x2_cov, dex² (|σ_x2,y| ≤ σ_x2 σ_y, |σ_x,x2| ≤ σ_x σ_x2)
+    /// ```
+    ///
+    /// # Errors
+    /// None here; planar fits refuse a covariance larger than its two errors allow with
+    /// FitError::InvalidSetting.
+    ///
+    /// # References
+    /// docs/methods.md §3.2 (a shared distance error correlates every distance-dependent
+    /// quantity of a galaxy).
+    pub fn with_x2_covariances(mut self, x2_y_cov: f64, x_x2_cov: f64) -> Point {
+        self.x2_y_cov = x2_y_cov;
+        self.x_x2_cov = x_x2_cov;
         self
     }
 }
@@ -593,6 +626,10 @@ pub(crate) struct Data {
     pub(crate) d2: Vec<f64>,
     /// σ_x2² (0 unless Plane).
     pub(crate) vx2: Vec<f64>,
+    /// σ_x2,y, the x2–y error covariance (0 unless Plane).
+    pub(crate) cx2y: Vec<f64>,
+    /// σ_x,x2, the x–x2 error covariance (0 unless Plane).
+    pub(crate) cxx2: Vec<f64>,
     /// Number of upper limits.
     pub(crate) n_upper: usize,
 }
@@ -607,8 +644,9 @@ impl Data {
 /// Checks every row and builds the pivoted arrays.
 ///
 /// Order of checks: non-finite values (first row, first column), negative errors, an x–y error
-/// covariance the errors cannot carry, a missing x2 in a planar fit, all limits, too few
-/// detections (`min`), no spread in x (or x2) among the detections.
+/// covariance the errors cannot carry (for a plane also an x2–y or x–x2 one), a missing x2 in
+/// a planar fit, all limits, too few detections (`min`), no spread in x (or x2) among the
+/// detections.
 pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Data, FitError> {
     let plane = spec.shape == Shape::Plane;
     let n = points.len();
@@ -621,6 +659,8 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         lim: Vec::with_capacity(n),
         d2: Vec::with_capacity(n),
         vx2: Vec::with_capacity(n),
+        cx2y: Vec::with_capacity(n),
+        cxx2: Vec::with_capacity(n),
         n_upper: 0,
     };
     if !spec.pivot.is_finite() || !spec.pivot2.is_finite() {
@@ -645,23 +685,27 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         } else {
             0.0
         };
-        let cols: [(&'static str, f64); 7] = [
+        // The x2 covariances only enter a planar fit; other shapes ignore them.
+        let (x2_err, x2_y_cov, x_x2_cov) = if plane {
+            (p.x2_err, p.x2_y_cov, p.x_x2_cov)
+        } else {
+            (0.0, 0.0, 0.0)
+        };
+        let cols: [(&'static str, f64); 9] = [
             ("x", p.x),
             ("x_err", p.x_err),
             ("y", p.y),
             ("y_err", p.y_err),
             ("xy_cov", p.xy_cov),
             ("x2", x2),
-            ("x2_err", if plane { p.x2_err } else { 0.0 }),
+            ("x2_err", x2_err),
+            ("x2_y_cov", x2_y_cov),
+            ("x_x2_cov", x_x2_cov),
         ];
         if let Some((column, _)) = cols.iter().find(|(_, v)| !v.is_finite()) {
             return Err(FitError::NonFiniteInput { row, column });
         }
-        for (column, v) in [
-            ("x_err", p.x_err),
-            ("y_err", p.y_err),
-            ("x2_err", if plane { p.x2_err } else { 0.0 }),
-        ] {
+        for (column, v) in [("x_err", p.x_err), ("y_err", p.y_err), ("x2_err", x2_err)] {
             if v < 0.0 {
                 return Err(FitError::NegativeError { row, column });
             }
@@ -674,6 +718,24 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
                 ),
             });
         }
+        for (setting, cov, a, b, pair) in [
+            ("x2_y_cov", x2_y_cov, x2_err, p.y_err, "x2–y"),
+            ("x_x2_cov", x_x2_cov, p.x_err, x2_err, "x–x2"),
+        ] {
+            if cov.abs() > a * b * (1.0 + 1e-12) {
+                let (ea, eb) = if setting == "x2_y_cov" {
+                    ("x2_err", "y_err")
+                } else {
+                    ("x_err", "x2_err")
+                };
+                return Err(FitError::InvalidSetting {
+                    setting,
+                    reason: format!(
+                        "Row {row} has an {pair} error covariance larger than {ea} × {eb} allows."
+                    ),
+                });
+            }
+        }
         data.d.push(p.x - spec.pivot);
         data.vx.push(p.x_err * p.x_err);
         data.y.push(p.y);
@@ -681,7 +743,9 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         data.cxy.push(p.xy_cov);
         data.lim.push(p.upper_limit);
         data.d2.push(if plane { x2 - spec.pivot2 } else { 0.0 });
-        data.vx2.push(if plane { p.x2_err * p.x2_err } else { 0.0 });
+        data.vx2.push(x2_err * x2_err);
+        data.cx2y.push(x2_y_cov);
+        data.cxx2.push(x_x2_cov);
         if p.upper_limit {
             data.n_upper += 1;
         }
@@ -865,5 +929,79 @@ pub(crate) mod test_data {
                 }
             })
             .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn plane_spec() -> FitSpec {
+        FitSpec::new(Method::Conditional, 2.3)
+            .with_shape(Shape::Plane)
+            .and_then(|s| s.with_pivot2(11.0))
+            .expect("spec")
+    }
+
+    /// Five invented plane points (x = log σ, x2 = log M_bulge) with errors of 0.02, 0.1 and
+    /// 0.2 dex on x, x2 and y.
+    fn plane_points() -> Vec<Point> {
+        (0..5)
+            .map(|i| {
+                let d = f64::from(i) * 0.05;
+                Point::new(2.2 + d, 0.02, 8.0 + 4.0 * d, 0.2).with_x2(10.8 + 2.0 * d * d, 0.1)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn points_written_before_the_x2_covariances_read_with_none() {
+        // A point serialized without the two fields reads as one without covariances, and a
+        // point with them survives a round trip.
+        let old = r#"{"name":"X 214","x":2.3,"x_err":0.02,"y":8.1,"y_err":0.1,"xy_cov":0.0,
+            "upper_limit":false,"x2":11.0,"x2_err":0.1}"#;
+        let p: Point = serde_json::from_str(old).expect("an older point reads");
+        assert_eq!(
+            p,
+            Point::new(2.3, 0.02, 8.1, 0.1)
+                .named("X 214")
+                .with_x2(11.0, 0.1)
+        );
+        assert_eq!((p.x2_y_cov, p.x_x2_cov), (0.0, 0.0));
+        let q = p.with_x2_covariances(0.004, -0.001);
+        let back: Point =
+            serde_json::from_str(&serde_json::to_string(&q).expect("json")).expect("reads");
+        assert_eq!(back, q);
+    }
+
+    #[test]
+    fn plane_covariances_larger_than_their_errors_are_refused() {
+        let spec = plane_spec();
+        let mut pts = plane_points();
+        // |σ_x2y| ≤ σ_x2 σ_y = 0.1 × 0.2 = 0.02 dex² is accepted, more is not.
+        pts[3] = pts[3].clone().with_x2_covariances(0.02, 0.0);
+        assert!(prepare(&pts, &spec, 4).is_ok());
+        pts[3] = pts[3].clone().with_x2_covariances(0.021, 0.0);
+        let e = prepare(&pts, &spec, 4).expect_err("too large");
+        assert!(
+            matches!(&e, FitError::InvalidSetting { setting: "x2_y_cov", reason } if reason.contains("Row 3")),
+            "{e}"
+        );
+        // |σ_xx2| ≤ σ_x σ_x2 = 0.002 dex².
+        pts[3] = pts[3].clone().with_x2_covariances(0.0, -0.0021);
+        let e = prepare(&pts, &spec, 4).expect_err("too large");
+        assert!(
+            matches!(
+                e,
+                FitError::InvalidSetting {
+                    setting: "x_x2_cov",
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        // A line ignores the plane's covariances (it has no x2).
+        let line = FitSpec::new(Method::Conditional, 2.3);
+        assert!(prepare(&pts, &line, 4).is_ok());
     }
 }

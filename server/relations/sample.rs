@@ -9,15 +9,17 @@
 //! σ_y    = √(σ_y,meas² + (p_y σ_logD)²)
 //! σ_x    = √(σ_x,meas² + (p_x σ_logD)²)
 //! σ_xy   = p_y p_x σ_logD²                                  shared distance error
+//! plane (x2 = log M_bulge, its distance error in quadrature like σ_x):
+//! σ_x2y  = p_y p_x2 σ_logD²,   σ_xx2 = p_x p_x2 σ_logD²
 //! ```
 //!
 //! p is the distance exponent of each quantity (quantity ∝ D^p): 1 for dynamical black-hole
 //! masses and dynamical bulge masses, 2 for luminosities and photometric bulge masses, 0 for σ
 //! and reverberation masses. D, D_src, σ_D in Mpc; logs and errors in dex, σ_xy in dex².
 //! An upper limit enters at its rescaled value with no error and no covariance (the fits take
-//! the limit itself as exact). For the plane, the bulge mass is the second property x2 with
-//! its distance error in quadrature; its covariance with y is not carried (fit points hold
-//! only the x–y covariance).
+//! the limit itself as exact). For the plane the bulge mass is the second property x2; it
+//! shares the galaxy's distance with M_BH, so it carries σ_x2y as the line carries σ_xy (a
+//! limit none), and σ_xx2 when x depends on distance too (σ does not: 0).
 
 use crate::astro::{
     DistanceScaling, SphereOfInfluence, distance_covariance_dex2, log_distance_error_dex,
@@ -278,8 +280,18 @@ pub fn build_sample(
             Point::new(x, x_err, y, y_err).with_xy_cov(covariance(kind_x))
         };
         point = point.named(&row.name);
-        if let Some((x2, x2_err, _)) = second {
-            point = point.with_x2(x2, x2_err);
+        if let Some((x2, x2_err, kind_x2)) = second {
+            let x_x2_cov =
+                distance_covariance_dex2(kind_x, kind_x2, row.distance_mpc, row.distance_err_mpc)
+                    .unwrap_or(0.0);
+            let x2_y_cov = if upper_limit {
+                0.0
+            } else {
+                covariance(kind_x2)
+            };
+            point = point
+                .with_x2(x2, x2_err)
+                .with_x2_covariances(x2_y_cov, x_x2_cov);
         }
         sample.points.push(point);
         sample.members.push(Member {
@@ -426,6 +438,49 @@ mod tests {
         assert_close(p.x, 10.5, 1e-12);
         assert_close(p.xy_cov, 2.0 * sld * sld, 1e-15);
         assert_close(p.x_err, (0.0049 + 4.0 * sld * sld).sqrt(), 1e-12);
+    }
+
+    #[test]
+    fn plane_points_carry_the_bulge_mass_distance_covariance() {
+        // x = log σ (no distance dependence), x2 = log M_bulge, y = log M_BH share D = 18 ± 1.8
+        // Mpc: σ_x2y = p_y p_x2 σ_logD², σ_xx2 = 0 (docs/methods.md §3.2, computed).
+        let sld = 1.8 / (18.0 * LN_10);
+        let plane = |r: RelationRow| {
+            build_sample(
+                &[r],
+                &[],
+                &Relation::SigmaBulgePlane,
+                &SampleFilter::default(),
+                1.0,
+            )
+            .points
+            .remove(0)
+        };
+        // Dynamical M_BH (p = 1) and photometric M_bulge (p = 2): 2 σ_logD².
+        let p = plane(row("Alpha 1"));
+        assert_close(p.x2_y_cov, 2.0 * sld * sld, 1e-15);
+        assert_close(p.x_x2_cov, 0.0, 1e-15);
+        assert_close(p.x2_err, 0.15f64.hypot(2.0 * sld), 1e-12);
+        // The same galaxy in the line keeps its x–y covariance as before.
+        assert_close(p.xy_cov, 0.0, 1e-15);
+        // A dynamical bulge mass (p = 1): σ_logD².
+        let mut dynamical = row("Alpha 1");
+        dynamical.mbulge_method = Some("dynamical".to_owned());
+        assert_close(plane(dynamical).x2_y_cov, sld * sld, 1e-15);
+        // A reverberation mass does not depend on D, and a limit carries no error: no
+        // covariance with y in either case.
+        let mut reverb = row("Alpha 1");
+        reverb.mbh_method = Some("reverberation".to_owned());
+        assert_close(plane(reverb).x2_y_cov, 0.0, 1e-15);
+        let mut limit = row("Alpha 1");
+        limit.mbh_upper_limit = Some(true);
+        let p = plane(limit);
+        assert!(p.upper_limit);
+        assert_close(p.x2_y_cov, 0.0, 1e-15);
+        // Without a distance error there is nothing shared.
+        let mut exact = row("Alpha 1");
+        exact.distance_err_mpc = 0.0;
+        assert_close(plane(exact).x2_y_cov, 0.0, 1e-15);
     }
 
     #[test]

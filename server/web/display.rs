@@ -33,6 +33,23 @@ pub(crate) fn signed(value: f64, decimals: usize) -> String {
     }
 }
 
+/// A probability (0 to 1) as a percentage with one decimal: "97.3 %". Beyond 99.9 % and below
+/// 0.1 % it says so ("> 99.9 %", "< 0.1 %") instead of rounding to a certain "100 %" or
+/// "0 %" that no fit can claim; a value that is not a number shows as "—". Pages only: the API
+/// keeps the number.
+pub(crate) fn probability(p: f64) -> String {
+    if !p.is_finite() {
+        "—".to_string()
+    } else if p > 0.999 {
+        "> 99.9 %".to_string()
+    } else if p < 0.001 {
+        "< 0.1 %".to_string()
+    } else {
+        // 0.1 ≤ 100 p ≤ 99.9, so one decimal never rounds to 0.0 or 100.0.
+        format!("{} %", fixed(100.0 * p, 1))
+    }
+}
+
 /// The unit of a stored quantity's canonical log value.
 pub(crate) fn quantity_unit(quantity: Quantity, band: &str) -> String {
     match quantity {
@@ -54,5 +71,30 @@ mod tests {
         assert_eq!(significant(0.22178, 3), "0.222");
         assert_eq!(significant(10.7523, 3), "10.8");
         assert_eq!(significant(1234.0, 2), "1234");
+    }
+
+    #[test]
+    fn probabilities_never_round_to_certainty() {
+        // Beyond the one-decimal range the bound is named, never "100 %" or "0 %".
+        for p in [1.0, 0.999_999_7, 0.999_5, 0.999_000_1] {
+            assert_eq!(probability(p), "> 99.9 %", "{p}");
+        }
+        for p in [0.0, 1e-12, 0.000_5, 0.000_999_9] {
+            assert_eq!(probability(p), "< 0.1 %", "{p}");
+        }
+        // At the bounds and between them: one decimal, which cannot reach 0.0 or 100.0.
+        assert_eq!(probability(0.999), "99.9 %");
+        assert_eq!(probability(0.001), "0.1 %");
+        assert_eq!(probability(0.5), "50.0 %");
+        assert_eq!(probability(0.973_26), "97.3 %");
+        assert_eq!(probability(0.012_34), "1.2 %");
+        for k in 0..=1000 {
+            let shown = probability(f64::from(k) / 1000.0);
+            assert!(
+                !shown.starts_with("100") && shown != "0.0 %",
+                "{k}: {shown}"
+            );
+        }
+        assert_eq!(probability(f64::NAN), "—");
     }
 }

@@ -11,7 +11,7 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Query, State};
 
-use super::display::{fixed, signed, significant};
+use super::display::{fixed, probability, signed, significant};
 use super::relations::{Grouping, chart_y, relation_chart};
 use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, relation_svg};
@@ -330,9 +330,7 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
         });
         row.z = Some(signed(z, 1));
         row.verdict = numbers.verdict;
-        row.prob_below = numbers
-            .prob_below_limit
-            .map(|p| format!("{}%", significant(100.0 * p, 2)));
+        row.prob_below = numbers.prob_below_limit.map(probability);
     }
     row.refit = p
         .refit

@@ -263,16 +263,20 @@ async fn the_place_page_predicts_and_judges_an_object() {
         body.contains("id=\"soi\""),
         "the sphere-of-influence check runs"
     );
-    // A mass on the line is consistent; an upper limit far above gives P(below) near 100 %.
+    // A mass on the line is consistent; an upper limit far above gives P(below) near 100 %,
+    // shown as "> 99.9 %" (escaped as &#62;), never as a certain "100 %".
     let body = app
         .ok(&format!("/place?sigma=200&mass={:.3e}", 10f64.powf(alpha)))
         .await;
     assert!(section(&body, "id=\"place-m_sigma\"", "</tr>").contains(">consistent<"));
     let body = app.ok("/place?sigma=200&mass=%3C1e11").await;
-    assert!(
-        section(&body, "id=\"place-m_sigma\"", "</tr>").contains("100%"),
-        "{body}"
-    );
+    let row = section(&body, "id=\"place-m_sigma\"", "</tr>");
+    assert!(row.contains(">&#62; 99.9 %<"), "{row}");
+    assert!(!row.contains("100%") && !row.contains("100 %"), "{row}");
+    // A limit far below the line: P(below) near 0, shown as "< 0.1 %".
+    let body = app.ok("/place?sigma=200&mass=%3C1e4").await;
+    let row = section(&body, "id=\"place-m_sigma\"", "</tr>");
+    assert!(row.contains(">&#60; 0.1 %<"), "{row}");
     // Partial input: only a bulge mass, and a luminosity in a band.
     let body = app
         .ok("/place?bulge_mass=1e11&luminosity=5e10&band=K")

@@ -239,6 +239,10 @@ struct Row {
     q: f64,
     /// σ_x2² (plane); 0 otherwise.
     vx2: f64,
+    /// 2 σ_x2,y (plane); 0 otherwise.
+    cx2y2: f64,
+    /// 2 σ_x,x2 (plane); 0 otherwise.
+    cxx22: f64,
 }
 
 /// The relation parameters of one evaluation, with the products every object needs.
@@ -274,7 +278,10 @@ fn residual_variance<const S: u8>(row: &Row, k: &Coef) -> (f64, f64) {
             (row.y - (k.alpha + k.beta * d + k.c2 * d * d), v)
         }
         _ => {
-            let v = row.vy + k.bb * row.vx - k.beta * row.cxy2 + k.c2c2 * row.vx2 + k.e2;
+            let v = row.vy + k.bb * row.vx - k.beta * row.cxy2 + k.c2c2 * row.vx2
+                - k.c2 * row.cx2y2
+                + k.beta * k.c2 * row.cxx22
+                + k.e2;
             (row.y - (k.alpha + k.beta * d + k.c2 * row.q), v)
         }
     }
@@ -314,6 +321,7 @@ impl Sampler {
                 Shape::Quadratic => dt.d[i] * dt.d[i],
                 Shape::Plane => dt.d2[i],
             };
+            let plane = model.shape == Shape::Plane;
             let row = Row {
                 d: dt.d[i],
                 y: dt.y[i],
@@ -321,11 +329,9 @@ impl Sampler {
                 vx: dt.vx[i],
                 cxy2: 2.0 * dt.cxy[i],
                 q,
-                vx2: if model.shape == Shape::Plane {
-                    dt.vx2[i]
-                } else {
-                    0.0
-                },
+                vx2: if plane { dt.vx2[i] } else { 0.0 },
+                cx2y2: if plane { 2.0 * dt.cx2y[i] } else { 0.0 },
+                cxx22: if plane { 2.0 * dt.cxx2[i] } else { 0.0 },
             };
             let side = if dt.lim[i] { &mut lim } else { &mut det };
             side.push(row);
@@ -478,6 +484,19 @@ pub(crate) fn ols_start(data: &Data) -> (f64, f64, f64) {
     (alpha, beta, eps)
 }
 
+/// The plane's terms of V_i beyond the line's: what the second host property adds.
+///
+/// ```text
+/// γ² σ_x2² − 2 γ σ_x2,y + 2 β γ σ_x,x2      (dex²; γ = the plane's second slope)
+/// ```
+/// From y − μ(x_obs, x2_obs) = e + δy − β δx − γ δx2 with (δx, δx2, δy) the measurement
+/// errors: its variance is σ_y² + β² σ_x² + γ² σ_x2² − 2β σ_xy − 2γ σ_x2,y + 2βγ σ_x,x2 + ε²
+/// (docs/methods.md §2.7).
+#[inline]
+fn plane_extra(beta: f64, gamma: f64, dt: &Data, i: usize) -> f64 {
+    gamma * gamma * dt.vx2[i] - 2.0 * gamma * dt.cx2y[i] + 2.0 * beta * gamma * dt.cxx2[i]
+}
+
 impl Objective for Model {
     fn dim(&self) -> usize {
         self.names.len()
@@ -502,7 +521,11 @@ impl Objective for Model {
             let (mean, g, extra) = match self.shape {
                 Shape::Line => (alpha + beta * d, beta, 0.0),
                 Shape::Quadratic => (alpha + beta * d + c2 * d * d, beta + 2.0 * c2 * d, 0.0),
-                Shape::Plane => (alpha + beta * d + c2 * dt.d2[i], beta, c2 * c2 * dt.vx2[i]),
+                Shape::Plane => (
+                    alpha + beta * d + c2 * dt.d2[i],
+                    beta,
+                    plane_extra(beta, c2, dt, i),
+                ),
             };
             let mean = match &self.group {
                 Some(gr) if gr[i] => mean + delta,
@@ -576,7 +599,7 @@ impl Objective for Model {
             let (rest, g, extra) = match self.shape {
                 Shape::Line => (beta * d, beta, 0.0),
                 Shape::Quadratic => (beta * d + c2 * d * d, beta + 2.0 * c2 * d, 0.0),
-                Shape::Plane => (beta * d + c2 * dt.d2[i], beta, c2 * c2 * dt.vx2[i]),
+                Shape::Plane => (beta * d + c2 * dt.d2[i], beta, plane_extra(beta, c2, dt, i)),
             };
             let v = dt.vy[i] + g * g * dt.vx[i] - 2.0 * g * dt.cxy[i] + extra + e2;
             if v <= 0.0 {
@@ -596,12 +619,14 @@ impl Objective for Model {
 /// ```text
 /// μ_i = α + β d_i [+ β2 d_i²] [+ γ d2_i],       d_i = x_i − x0, d2_i = x2_i − x02
 /// g_i = ∂μ_i/∂x = β [+ 2 β2 d_i]
-/// V_i = σ_y,i² + g_i² σ_x,i² − 2 g_i σ_xy,i [+ γ² σ_x2,i²] + ε²
+/// V_i = σ_y,i² + g_i² σ_x,i² − 2 g_i σ_xy,i [+ γ² σ_x2,i² − 2 γ σ_x2y,i + 2 β γ σ_xx2,i] + ε²
 /// detection:   −2 ln L_i = (y_i − μ_i)²/V_i + ln(2π V_i)
 /// upper limit: −2 ln L_i = −2 ln Φ((y_i − μ_i)/√V_i)
 /// ```
 /// y, x, x2 in log10 units; σ's and ε in dex; σ_xy in dex²; α in log10 M☉; β, γ dex/dex,
-/// β2 dex/dex². The x1–x2 error covariance of a plane is not modelled.
+/// β2 dex/dex²; σ_x2y, σ_xx2 (the plane's x2–y and x–x2 error covariances, e.g. from a shared
+/// distance) in dex². V_i is the variance of y − μ_i(x_obs, x2_obs) = e + δy − β δx − γ δx2
+/// over the intrinsic scatter e and the measurement errors (δx, δx2, δy).
 ///
 /// Without limits α is found in closed form, α̂ = Σ w_i (y_i − μ_i + α)/Σ w_i with w = 1/V,
 /// and the other parameters by a simplex search; with limits all are searched. A Newton
@@ -838,6 +863,8 @@ mod tests {
             };
             p.x2 = Some(10.0 + 0.05 * (i % 11) as f64);
             p.x2_err = 0.04;
+            p.x2_y_cov = -sign * p.x2_err * p.y_err;
+            p.x_x2_cov = sign * p.x_err * p.x2_err;
             if p.upper_limit && i % 5 == 0 {
                 p.y -= 12.0;
             }
@@ -922,6 +949,88 @@ mod tests {
         let (r, f) = (model.neg2(&at_zero), sampler.log_likelihood(&at_zero));
         assert!(r.is_infinite() && r > 0.0, "{r}");
         assert!(f.is_infinite() && f < 0.0, "{f}");
+    }
+
+    #[test]
+    fn plane_variance_carries_the_x2_covariances_and_is_unchanged_without_them() {
+        // V_i = aᵀ S_i a + ε², a = (−β, −γ, 1), S_i the measurement covariance of (x, x2, y)
+        // (docs/methods.md §2.7), computed here as that quadratic form; with σ_x2y = σ_xx2 = 0
+        // it is the plane's variance without them, σ_y² + β²σ_x² − 2βσ_xy + γ²σ_x2² + ε².
+        use rand::rngs::StdRng;
+        use rand::{RngExt, SeedableRng};
+        let (pts, pivot) = mixed_sample(64, 47);
+        let zeroed: Vec<Point> = pts
+            .iter()
+            .map(|p| p.clone().with_x2_covariances(0.0, 0.0))
+            .collect();
+        let spec = FitSpec::new(Method::Conditional, pivot)
+            .with_shape(Shape::Plane)
+            .and_then(|s| s.with_pivot2(10.2))
+            .expect("spec");
+        let reference = |points: &[Point], t: &[f64]| -> f64 {
+            let (alpha, beta, gamma, eps) = (t[0], t[1], t[2], t[3]);
+            let a = [-beta, -gamma, 1.0];
+            points
+                .iter()
+                .map(|p| {
+                    let s = [
+                        [p.x_err * p.x_err, p.x_x2_cov, p.xy_cov],
+                        [p.x_x2_cov, p.x2_err * p.x2_err, p.x2_y_cov],
+                        [p.xy_cov, p.x2_y_cov, p.y_err * p.y_err],
+                    ];
+                    let quad: f64 = (0..3)
+                        .map(|j| (0..3).map(|k| a[j] * s[j][k] * a[k]).sum::<f64>())
+                        .sum();
+                    let v = quad + eps * eps;
+                    let x2 = p.x2.unwrap_or(f64::NAN);
+                    let r = p.y - (alpha + beta * (p.x - pivot) + gamma * (x2 - 10.2));
+                    if p.upper_limit {
+                        -2.0 * ln_norm_cdf(r / v.sqrt())
+                    } else {
+                        r * r / v + v.ln() + LN_2PI
+                    }
+                })
+                .sum()
+        };
+        let old_form = |points: &[Point], t: &[f64]| -> f64 {
+            let (alpha, beta, gamma, eps) = (t[0], t[1], t[2], t[3]);
+            points
+                .iter()
+                .map(|p| {
+                    let v = p.y_err.powi(2) + beta * beta * p.x_err.powi(2) - 2.0 * beta * p.xy_cov
+                        + gamma * gamma * p.x2_err.powi(2)
+                        + eps * eps;
+                    let x2 = p.x2.unwrap_or(f64::NAN);
+                    let r = p.y - (alpha + beta * (p.x - pivot) + gamma * (x2 - 10.2));
+                    if p.upper_limit {
+                        -2.0 * ln_norm_cdf(r / v.sqrt())
+                    } else {
+                        r * r / v + v.ln() + LN_2PI
+                    }
+                })
+                .sum()
+        };
+        let with = Model::new(&pts, &spec).expect("model");
+        let without = Model::new(&zeroed, &spec).expect("model");
+        let mut rng = StdRng::seed_from_u64(8);
+        let mut differs = false;
+        for _ in 0..50 {
+            let t = [
+                8.3 + rng.random_range(-0.3..0.3),
+                5.0 + rng.random_range(-1.0..1.0),
+                rng.random_range(-1.5..1.5),
+                0.3 + rng.random_range(-0.2..0.2),
+            ];
+            let (a, b) = (with.neg2(&t), reference(&pts, &t));
+            assert!((a - b).abs() <= 1e-12 * b.abs(), "{t:?}: {a} vs {b}");
+            let fast = -2.0 * with.sampler().log_likelihood(&t);
+            assert!((fast - b).abs() <= 1e-12 * b.abs(), "{t:?}: {fast} vs {b}");
+            let (a0, b0) = (without.neg2(&t), old_form(&zeroed, &t));
+            assert!((a0 - b0).abs() <= 1e-12 * b0.abs(), "{t:?}: {a0} vs {b0}");
+            assert!((reference(&zeroed, &t) - b0).abs() <= 1e-12 * b0.abs());
+            differs |= (a - a0).abs() > 1e-6 * a0.abs();
+        }
+        assert!(differs, "the covariances of this sample change −2 ln L");
     }
 
     #[test]

@@ -32,7 +32,9 @@ impl Analytic for Model {
     ///
     /// ```text
     /// μ = α + β d + c q + δ g,  q = d² (quadratic) or d2 (plane),  s = β [+ 2 c d]
-    /// V = σ_y² + s² σ_x² − 2 s σ_xy [+ c² σ_x2²] + ε²
+    /// V = σ_y² + s² σ_x² − 2 s σ_xy [+ c² σ_x2² − 2 c σ_x2y + 2 s c σ_xx2] + ε²
+    /// plane: V_β = 2(β σ_x² − σ_xy + c σ_xx2), V_c = 2(c σ_x2² − σ_x2y + β σ_xx2),
+    ///        V_ββ = 2σ_x², V_cc = 2σ_x2², V_βc = 2σ_xx2
     /// H_pq = f_μμ μ_p μ_q + f_μV (μ_p V_q + V_p μ_q) + f_VV V_p V_q + f_V V_pq
     /// ```
     fn derivs(&self, p: &[f64; NS], squared: bool, act: &[usize]) -> Option<Derivs> {
@@ -64,8 +66,15 @@ impl Analytic for Model {
             };
             let s = if quad { beta + 2.0 * c * d } else { beta };
             let mu = alpha + beta * d + c * q + delta * gi;
-            let vx2 = if plane { dt.vx2[i] } else { 0.0 };
-            let v = dt.vy[i] + s * s * dt.vx[i] - 2.0 * s * dt.cxy[i] + c * c * vx2 + e2;
+            let (vx2, cx2y, cxx2) = if plane {
+                (dt.vx2[i], dt.cx2y[i], dt.cxx2[i])
+            } else {
+                (0.0, 0.0, 0.0)
+            };
+            let v = dt.vy[i] + s * s * dt.vx[i] - 2.0 * s * dt.cxy[i] + c * c * vx2
+                - 2.0 * c * cx2y
+                + 2.0 * s * c * cxx2
+                + e2;
             if v.is_nan() || v <= 0.0 {
                 return None;
             }
@@ -75,12 +84,12 @@ impl Analytic for Model {
             mp[B] = d;
             mp[C] = q;
             mp[D] = gi;
-            let vb = 2.0 * (s * dt.vx[i] - dt.cxy[i]);
+            let vb = 2.0 * (s * dt.vx[i] - dt.cxy[i] + c * cxx2);
             vp[B] = vb;
             vp[C] = if quad {
                 2.0 * d * vb
             } else if plane {
-                2.0 * c * vx2
+                2.0 * (c * vx2 - cx2y + s * cxx2)
             } else {
                 0.0
             };
@@ -99,6 +108,7 @@ impl Analytic for Model {
                 out.h[B][C] += t.fv * 4.0 * d * dt.vx[i];
                 out.h[C][C] += t.fv * 8.0 * d * d * dt.vx[i];
             } else if plane {
+                out.h[B][C] += t.fv * 2.0 * cxx2;
                 out.h[C][C] += t.fv * 2.0 * vx2;
             }
             out.h[E][E] += t.fv * vee;
@@ -352,6 +362,9 @@ mod tests {
             };
             p.x2 = Some(0.1 * (i as f64 % 7.0));
             p.x2_err = 0.05;
+            // Plane: x2–y and x–x2 error covariances of both signs (a limit has no y error).
+            p.x2_y_cov = if i % 2 == 0 { 0.4 } else { -0.3 } * p.x2_err * p.y_err;
+            p.x_x2_cov = if i % 3 == 1 { -0.5 } else { 0.2 } * p.x_err * p.x2_err;
         }
         for shape in [Shape::Line, Shape::Quadratic, Shape::Plane] {
             let spec = FitSpec::new(Method::Conditional, s.pivot)

@@ -371,9 +371,9 @@ impl Model {
                 lnx + ln_y(dt.y[i], m, s2, dt.lim[i])
             }
             Shape::Plane => {
-                // Σξ = [[t1², ρ t1 t2], [ρ t1 t2, t2²]]; A = Σξ + diag(σx², σx2²).
+                // Σξ = [[t1², ρ t1 t2], [ρ t1 t2, t2²]]; A = Σξ + [[σx², σxx2], [σxx2, σx2²]].
                 let (s11, s12, s22) = (comp.t2, comp.c12, comp.t22);
-                let (a11, a12, a22) = (s11 + vx, s12, s22 + dt.vx2[i]);
+                let (a11, a12, a22) = (s11 + vx, s12 + dt.cxx2[i], s22 + dt.vx2[i]);
                 let det = a11 * a22 - a12 * a12;
                 if det <= 0.0 {
                     return f64::NEG_INFINITY;
@@ -383,9 +383,9 @@ impl Model {
                 let q = i11 * dx1 * dx1 + 2.0 * i12 * dx1 * dx2 + i22 * dx2 * dx2;
                 let lnx = -LN_2PI - 0.5 * det.ln() - 0.5 * q;
                 let gamma = c2;
-                // c = Σξ (β, γ)ᵀ + (σxy, 0)ᵀ
+                // c = Cov((x, x2), y) = Σξ (β, γ)ᵀ + (σxy, σx2y)ᵀ
                 let c1 = s11 * beta + s12 * gamma + cxy;
-                let cc2 = s12 * beta + s22 * gamma;
+                let cc2 = s12 * beta + s22 * gamma + dt.cx2y[i];
                 let v =
                     beta * beta * s11 + 2.0 * beta * gamma * s12 + gamma * gamma * s22 + e2 + vy;
                 let (u1, u2) = (i11 * c1 + i12 * cc2, i12 * c1 + i22 * cc2);
@@ -768,7 +768,12 @@ mod newton;
 ///   p_k(x, y) = N(x | μ_k, a) · N(y | α + β m_k + b (d − m_k)/a,  c − b²/a)
 /// Upper limit y_lim (density of x kept):
 ///   p_k = N(x | μ_k, a) · Φ((y_lim − α − β m_k − b (d − m_k)/a) / √(c − b²/a))
-/// Plane: (ξ1, ξ2) ~ N2 per component; the same factorisation with 2×2 A = Σ_ξ + diag(σ_x², σ_x2²).
+/// Plane: (ξ1, ξ2) ~ N2(μ_k, Σ_ξ,k) per component; (x, x2, y) is trivariate normal and
+///   factorises the same way: with the measurement covariance of (x, x2, y)
+///   [[σ_x², σ_xx2, σ_xy], [σ_xx2, σ_x2², σ_x2y], [σ_xy, σ_x2y, σ_y²]],
+///   A = Σ_ξ + [[σ_x², σ_xx2], [σ_xx2, σ_x2²]],  c = Σ_ξ (β, γ)ᵀ + (σ_xy, σ_x2y)ᵀ,
+///   v = (β, γ) Σ_ξ (β, γ)ᵀ + ε² + σ_y²,
+///   p_k = N2((x, x2) | μ_k, A) · N(y | α + β m_k + γ m2_k + cᵀA⁻¹((d, d2) − (m_k, m2_k)), v − cᵀA⁻¹c).
 /// Quadratic: p_k = N(x | μ_k, a) · ∫ N(ξ | m_post, v_post) N(y | η(ξ) + (σ_xy/σ_x²)(x − ξ), ε² + σ_y² − σ_xy²/σ_x²) dξ
 ///   by 24-point Gauss–Hermite quadrature (Φ in place of N for a limit).
 /// −2 ln L = −2 Σ_i ln Σ_k π_k p_k(x_i, y_i)
