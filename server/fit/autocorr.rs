@@ -334,7 +334,7 @@ mod tests {
     fn constant_walkers_are_left_out_and_all_constant_has_no_settled_window() {
         let mut rng = StdRng::seed_from_u64(9);
         let moving = ar1(0.5, 400, &mut rng);
-        let alone = ensemble_autocorr_time(&[moving.clone()], SOKAL_C);
+        let alone = ensemble_autocorr_time(std::slice::from_ref(&moving), SOKAL_C);
         let with_stuck = ensemble_autocorr_time(&[moving, vec![3.0; 400]], SOKAL_C);
         assert!((alone.tau - with_stuck.tau).abs() < 1e-12);
         let stuck = ensemble_autocorr_time(&[vec![3.0; 10], vec![1.0; 10]], SOKAL_C);
