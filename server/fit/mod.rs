@@ -81,6 +81,7 @@
 //! See [`min_points`]: the likelihood estimators need more detections than relation parameters
 //! (α, β, [β2|γ], ε), FITEXY and BCES need three.
 
+pub mod autocorr;
 pub mod bces;
 pub mod bootstrap;
 pub mod conditional;
