@@ -300,6 +300,7 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
     let settings = OwnSampleSettings {
         method,
         pivot: req.pivot,
+        x_quantity: None,
         bootstrap: req.bootstrap.map(|n| n as usize),
         posterior_steps: req.posterior_steps.map(|n| n as usize),
         seed: req.seed.unwrap_or(1),
@@ -315,13 +316,13 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         }
     })?;
     let pivot_rule = match own.pivot_rule {
-        PivotRule::Given => "given",
-        PivotRule::Default(rule) => rule,
+        PivotRule::Given => "given".to_owned(),
+        rule => rule.label(),
     };
     Ok(FitAnswer {
         estimator: method.as_str().to_owned(),
         pivot: own.pivot,
-        pivot_rule: pivot_rule.to_owned(),
+        pivot_rule,
         fit: FitParameters::of(&own.fit),
         bootstrap: own.bootstrap.map(|b| BootstrapAnswer {
             n_boot: b.n_boot,

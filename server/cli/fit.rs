@@ -5,7 +5,8 @@
 //! ```text
 //! massline fit --input FILE.csv [--method structural|conditional|fitexy|bces-yx|bces-xy|
 //!              bces-bisector|bces-orthogonal] [--posterior] [--bootstrap N] [--pivot X0]
-//!              [--steps N] [--seed N] [--format json|table]
+//!              [--x-quantity sigma|mass|luminosity|other] [--steps N] [--seed N]
+//!              [--format json|table]
 //! ```
 //!
 //! # Input
@@ -21,10 +22,12 @@
 //!
 //! # Pivot
 //!
-//! `--pivot X0` sets x0. Without it, x0 = log10(200) = 2.30103 when every x lies in
-//! 1.3–2.8 (the x values look like log10 σ in km s⁻¹; Tremaine et al. 2002 used σ0 =
-//! 200 km s⁻¹), otherwise the median of x rounded to the nearest 0.5. The pivot used is always
-//! printed.
+//! `--pivot X0` sets x0. Otherwise `--x-quantity` names what x is and x0 is its convention:
+//! `sigma` log10(200) = 2.30103 (σ in km s⁻¹; Tremaine et al. 2002 used σ0 = 200 km s⁻¹),
+//! `mass` 11.0 (10¹¹ M☉), `luminosity` 11.0 (10¹¹ L☉ of the band), `other` the median of x
+//! rounded to 0.5. Without either, the median of x decides (`relations::default_pivot`):
+//! log10(200) when it lies in 1.3–2.8, else the median rounded to 0.5, and a warning says so
+//! and what to type. The pivot used is always printed.
 //!
 //! # Output
 //!
@@ -44,7 +47,8 @@ use crate::fit::ensemble::ParamSummary;
 use crate::fit::posterior::Posterior;
 use crate::fit::{Fit, Method, Point};
 use crate::relations::{
-    OwnSampleError, OwnSampleSettings, POSTERIOR_STEPS, PivotRule, fit_own_sample,
+    OwnSampleError, OwnSampleSettings, POSTERIOR_STEPS, PivotRule, PivotSettingNames,
+    UnknownXQuantity, XQuantity, fit_own_sample,
 };
 
 /// Columns every input file must have.
@@ -70,10 +74,15 @@ pub struct FitArgs {
     /// Also bootstrap the fit with N resamples of the objects.
     #[arg(long, value_name = "N")]
     pub bootstrap: Option<usize>,
-    /// Pivot x0 in the log10 units of x (default: log10(200) for log σ data, else the median
-    /// of x rounded to 0.5).
+    /// Pivot x0 in the log10 units of x (default: the convention of --x-quantity, else
+    /// log10(200) when the median of x lies in 1.3–2.8, else that median rounded to 0.5).
     #[arg(long, value_name = "X0")]
     pub pivot: Option<f64>,
+    /// What x is, for the pivot: sigma (log10 σ in km/s: x0 = log10 200), mass (log10 M☉ of a
+    /// bulge or stellar mass: x0 = 11), luminosity (log10 L☉ of the band: x0 = 11) or other
+    /// (x0 = the median of x rounded to 0.5); --pivot wins.
+    #[arg(long, value_name = "QUANTITY", value_parser = parse_x_quantity)]
+    pub x_quantity: Option<XQuantity>,
     /// Seed of the posterior sampler and the bootstrap.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -90,6 +99,17 @@ pub enum OutputFormat {
     /// One JSON object.
     Json,
 }
+
+/// Parses the quantity of x for clap.
+fn parse_x_quantity(s: &str) -> Result<XQuantity, UnknownXQuantity> {
+    s.parse()
+}
+
+/// How the command line names the pivot settings in the pivot warning.
+const PIVOT_SETTINGS: PivotSettingNames = PivotSettingNames {
+    x_quantity: |word| format!("--x-quantity {word}"),
+    pivot: "--pivot X0",
+};
 
 /// Parses a method name for clap.
 fn parse_method(s: &str) -> Result<Method, crate::fit::FitError> {
@@ -321,6 +341,7 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let settings = OwnSampleSettings {
         method: args.method,
         pivot: args.pivot,
+        x_quantity: args.x_quantity,
         bootstrap: args.bootstrap,
         posterior_steps: args.posterior.then_some(args.steps),
         seed: args.seed,
@@ -328,11 +349,12 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     };
     let own = fit_own_sample(&points, &settings).map_err(OwnSampleError::into_fit_error)?;
     let pivot_rule = match own.pivot_rule {
-        PivotRule::Given => "given with --pivot",
-        PivotRule::Default(rule) => rule,
+        PivotRule::Given => "given with --pivot".to_owned(),
+        rule => rule.label(),
     };
+    let pivot_warning = own.pivot_rule.warning(own.pivot, &PIVOT_SETTINGS);
     let (fit, post, boot) = (own.fit, own.posterior, own.bootstrap);
-    let mut warnings = Vec::new();
+    let mut warnings: Vec<String> = pivot_warning.into_iter().collect();
     if let Some(note) = &own.small_sample {
         warnings.push(format!(
             "With only {} objects the errors from the likelihood's curvature tend to be too \
@@ -348,13 +370,13 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     }
     match args.format {
         OutputFormat::Json => {
-            let mut v = to_json(&fit, pivot_rule, args.seed, post.as_ref(), boot.as_ref());
+            let mut v = to_json(&fit, &pivot_rule, args.seed, post.as_ref(), boot.as_ref());
             v["warnings"] = json!(warnings);
             serde_json::to_writer_pretty(&mut *out, &v)?;
             writeln!(out)?;
         }
         OutputFormat::Table => {
-            write_table(out, &fit, pivot_rule, post.as_ref(), boot.as_ref())?;
+            write_table(out, &fit, &pivot_rule, post.as_ref(), boot.as_ref())?;
             for w in &warnings {
                 writeln!(out, "\nNote: {w}")?;
             }
@@ -744,6 +766,8 @@ f,2.35,0.02,8.00,0.00,1,limit
             steps: 600,
             bootstrap: None,
             pivot: None,
+            // The invented samples are log σ: named, so that only the small-sample note warns.
+            x_quantity: Some(XQuantity::Sigma),
             seed: 3,
             format,
         }
