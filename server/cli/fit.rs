@@ -888,6 +888,136 @@ f,2.35,0.02,8.00,0.00,1,limit
         assert_eq!(beta_line.split_whitespace().count(), 4, "{beta_line}");
     }
 
+    /// 40 invented σ-like objects (log σ 2.0–2.47, median 2.234) on log M = 8.3 + 4.5 (x −
+    /// log10 200) with ±0.25 dex offsets: enough objects for no small-sample note.
+    fn sigma_csv() -> String {
+        let mut csv = String::from("x,x_err,y,y_err,upper_limit\n");
+        for i in 0..40 {
+            let x = 2.0 + 0.012 * f64::from(i);
+            let off = if i % 2 == 0 { 0.25 } else { -0.25 };
+            let y = 8.3 + 4.5 * (x - SIGMA_PIVOT_LOG) + off;
+            csv.push_str(&format!("{x},0.02,{y:.3},0.1,0\n"));
+        }
+        csv
+    }
+
+    /// The JSON output of `massline fit` on `path` with these pivot settings.
+    fn pivot_run(
+        path: &std::path::Path,
+        x_quantity: Option<XQuantity>,
+        pivot: Option<f64>,
+    ) -> Value {
+        let mut a = args(path.to_owned(), Method::Conditional, OutputFormat::Json);
+        a.x_quantity = x_quantity;
+        a.pivot = pivot;
+        let mut out = Vec::new();
+        run(&a, &mut out).unwrap();
+        serde_json::from_slice(&out).unwrap()
+    }
+
+    /// The warnings about the pivot.
+    fn pivot_warnings(v: &Value) -> Vec<String> {
+        v["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(Value::as_str)
+            .filter(|w| w.contains("pivot"))
+            .map(str::to_owned)
+            .collect()
+    }
+
+    #[test]
+    fn x_quantity_gives_its_convention_and_only_an_inferred_or_median_pivot_warns() {
+        let (_dir, path) = temp_csv(&sigma_csv());
+        // Conventions: log10 200 km/s (Tremaine et al. 2002), 10^11 M☉, 10^11 L☉.
+        for (q, x0) in [
+            (XQuantity::Sigma, SIGMA_PIVOT_LOG),
+            (XQuantity::Mass, 11.0),
+            (XQuantity::Luminosity, 11.0),
+        ] {
+            let v = pivot_run(&path, Some(q), None);
+            assert!(
+                (v["pivot"].as_f64().unwrap() - x0).abs() < 1e-12,
+                "{q:?}: {v}"
+            );
+            assert!(pivot_warnings(&v).is_empty(), "{q:?}: {v}");
+        }
+        // other: the median 2.234 rounded to 0.5 is 2.0 (computed), with a warning.
+        let v = pivot_run(&path, Some(XQuantity::Other), None);
+        assert!((v["pivot"].as_f64().unwrap() - 2.0).abs() < 1e-12, "{v}");
+        let w = pivot_warnings(&v);
+        assert_eq!(w.len(), 1, "{v}");
+        assert!(
+            w[0].contains("--x-quantity other") && w[0].contains("--pivot X0"),
+            "{w:?}"
+        );
+        // Unnamed: the median lies in 1.3–2.8, so log10 200, with a warning saying so.
+        let v = pivot_run(&path, None, None);
+        assert!(
+            (v["pivot"].as_f64().unwrap() - SIGMA_PIVOT_LOG).abs() < 1e-12,
+            "{v}"
+        );
+        let w = pivot_warnings(&v);
+        assert_eq!(w.len(), 1, "{v}");
+        for part in [
+            "x0 = 2.30103",
+            "median x = 2.23",
+            "--x-quantity sigma",
+            "--pivot X0",
+        ] {
+            assert!(w[0].contains(part), "{part}: {w:?}");
+        }
+        assert!(
+            v["pivot_rule"].as_str().unwrap().contains("inferred"),
+            "{v}"
+        );
+        // --pivot wins over --x-quantity, with no warning.
+        let v = pivot_run(&path, Some(XQuantity::Mass), Some(2.2));
+        assert!((v["pivot"].as_f64().unwrap() - 2.2).abs() < 1e-12, "{v}");
+        assert_eq!(v["pivot_rule"], "given with --pivot");
+        assert!(pivot_warnings(&v).is_empty(), "{v}");
+    }
+
+    #[test]
+    fn the_table_prints_the_inferred_pivot_and_its_warning() {
+        let (_dir, path) = temp_csv(&sigma_csv());
+        let mut a = args(path, Method::Conditional, OutputFormat::Table);
+        a.x_quantity = None;
+        let mut out = Vec::new();
+        run(&a, &mut out).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(
+            text.contains("pivot x0 = 2.30103 (log10 of 200 km/s"),
+            "{text}"
+        );
+        assert!(
+            text.contains("Note: The pivot x0 = 2.30103") && text.contains("--x-quantity sigma"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn an_unknown_x_quantity_is_refused_with_the_accepted_words() {
+        #[derive(clap::Parser, Debug)]
+        struct Command {
+            #[command(flatten)]
+            fit: FitArgs,
+        }
+        use clap::Parser as _;
+        let parse =
+            |word: &str| Command::try_parse_from(["fit", "--input", "s.csv", "--x-quantity", word]);
+        for q in XQuantity::ALL {
+            assert_eq!(parse(q.as_str()).unwrap().fit.x_quantity, Some(q));
+        }
+        let e = parse("velocity").unwrap_err().to_string();
+        assert!(
+            e.contains("'velocity' is not a quantity of x; type sigma (log10 σ in km/s), mass"),
+            "{e}"
+        );
+        assert!(e.contains("luminosity") && e.contains("or other."), "{e}");
+    }
+
     #[test]
     fn a_refused_file_reports_the_reason() {
         let (_dir, path) = temp_csv("x,x_err,y,y_err,upper_limit\n2.3,0.02,8,0.1,maybe\n");
