@@ -177,8 +177,10 @@ impl PivotRule {
 pub const SIGMA_LIKE_MEDIAN: (f64, f64) = (1.3, 2.8);
 
 /// The pivot for `points` when the caller gives none: the convention of `quantity` when it has
-/// one, otherwise the rule below, which reads the median of x only, so that no single point
-/// can flip it (moving one point moves the median at most to a neighbouring value).
+/// one, otherwise the rule below. It reads the median of x only, never the smallest or largest
+/// x, so that no single outlying point can flip it: moving one point anywhere moves the median
+/// at most to the neighbouring ordered x, and only a sample whose median itself lies at 1.3 or
+/// 2.8 can change rule.
 ///
 /// ```text
 /// m  = median(x)                       (log10 units of x; 0 for no points)
