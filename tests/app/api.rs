@@ -705,6 +705,18 @@ async fn a_posted_sample_takes_the_pivot_of_its_x_quantity_or_is_warned_of_the_i
     for word in ["'velocity'", "sigma", "mass", "luminosity", "other"] {
         assert!(m.contains(word), "{word}: {p}");
     }
+    // The OpenAPI document lists the words.
+    let doc: Value = serde_json::from_str(&app.ok("/api/v1/openapi.json").await).unwrap();
+    let field = &doc["components"]["schemas"]["FitRequest"]["properties"]["x_quantity"];
+    assert_eq!(
+        field["enum"],
+        json!(["sigma", "mass", "luminosity", "other"]),
+        "{field}"
+    );
+    assert!(
+        field["description"].as_str().unwrap().contains("2.30103"),
+        "{field}"
+    );
 }
 
 #[tokio::test]
