@@ -1,7 +1,8 @@
 //! `POST /api/v1/fit`: fit a sample the caller posts (up to [`MAX_POINTS`] objects) with any
 //! estimator `massline fit` offers, optionally with a bootstrap or a posterior, as the command
-//! line does (both call `relations::fit_own_sample`: the same default pivot rule and sampler
-//! settings; the API runs no automatic small-sample bootstrap).
+//! line does (both call `relations::fit_own_sample`: the same pivot rule, `x_quantity` as
+//! `--x-quantity`, the same pivot warning in `warnings`, and the same sampler settings; the API
+//! runs no automatic small-sample bootstrap).
 //!
 //! ```text
 //! log10 M_BH = α + β (x − x0),  intrinsic scatter ε (dex)
@@ -24,7 +25,9 @@ use super::{ApiJson, ApiResult};
 use crate::error::{AppError, FieldError};
 use crate::fit::ensemble::ParamSummary;
 use crate::fit::{FitError, Method, Point};
-use crate::relations::{OwnSampleError, OwnSampleSettings, PivotRule, fit_own_sample};
+use crate::relations::{
+    OwnSampleError, OwnSampleSettings, PivotRule, PivotSettingNames, XQuantity, fit_own_sample,
+};
 use crate::state::AppState;
 
 /// Most objects one request may fit.
@@ -75,10 +78,15 @@ pub struct FitRequest {
     pub points: Vec<FitPoint>,
     /// Estimator (default `structural`).
     pub method: Option<EstimatorName>,
-    /// Pivot x0 in the log10 units of x (default: log10 200 when every x lies in 1.3–2.8,
-    /// otherwise the median of x rounded to 0.5).
+    /// Pivot x0 in the log10 units of x (default: the convention of `x_quantity`, else
+    /// log10 200 when the median of x lies in 1.3–2.8, else that median rounded to 0.5, with a
+    /// warning).
     #[schema(minimum = -50.0, maximum = 50.0)]
     pub pivot: Option<f64>,
+    /// What x is, for the pivot: `sigma`, `mass`, `luminosity` or `other` (the schema gives
+    /// each word's pivot); `pivot` wins.
+    #[schema(schema_with = x_quantity_schema)]
+    pub x_quantity: Option<String>,
     /// Bootstrap replicates (100 to 5,000; samples of up to 5,000 objects).
     #[schema(minimum = 100, maximum = 5000)]
     pub bootstrap: Option<u32>,
@@ -89,6 +97,36 @@ pub struct FitRequest {
     /// Seed of the bootstrap and the posterior (default 1; the same seed gives the same
     /// numbers).
     pub seed: Option<u64>,
+}
+
+/// The OpenAPI schema of `x_quantity`: one of the words of [`XQuantity`], each with its
+/// conventional pivot.
+fn x_quantity_schema() -> utoipa::openapi::Object {
+    utoipa::openapi::ObjectBuilder::new()
+        .schema_type(utoipa::openapi::schema::Type::String)
+        .enum_values(Some(XQuantity::ALL.map(XQuantity::as_str)))
+        .description(Some(
+            "What x is, for the pivot: sigma (log10 σ in km/s; x0 = log10 200 = 2.30103), mass \
+             (log10 M☉ of a bulge or stellar mass; x0 = 11), luminosity (log10 L☉ of the band; \
+             x0 = 11) or other (x0 = the median of x rounded to 0.5, with a warning). Without \
+             it the median of x decides, with a warning; `pivot` wins over it.",
+        ))
+        .build()
+}
+
+/// How the API names the pivot settings in the pivot warning.
+const PIVOT_SETTINGS: PivotSettingNames = PivotSettingNames {
+    x_quantity: |word| format!("\"x_quantity\": \"{word}\""),
+    pivot: "\"pivot\": x0",
+};
+
+/// The request's `x_quantity`, read.
+fn x_quantity_of(req: &FitRequest) -> Result<Option<XQuantity>, FieldError> {
+    req.x_quantity
+        .as_deref()
+        .map(str::parse::<XQuantity>)
+        .transpose()
+        .map_err(|e| FieldError::new("x_quantity", e.to_string()))
 }
 
 /// A parameter's summary over bootstrap replicates or posterior samples.
@@ -171,6 +209,9 @@ pub struct FitAnswer {
     pub pivot: f64,
     /// How the pivot was chosen.
     pub pivot_rule: String,
+    /// Warnings about the fit, each one sentence saying what to send instead: the pivot's
+    /// when it was inferred from the median of x or is that median rounded to 0.5.
+    pub warnings: Vec<String>,
     /// The fitted parameters.
     pub fit: FitParameters,
     /// Bootstrap summary, when asked.
@@ -224,6 +265,9 @@ fn check(req: &FitRequest) -> Result<(), AppError> {
             "pivot",
             "The pivot must be a log10 value from −50 to 50.",
         ));
+    }
+    if let Err(e) = x_quantity_of(req) {
+        errors.push(e);
     }
     let resampled = req.bootstrap.is_some() || req.posterior_steps.is_some();
     if resampled && req.points.len() > MAX_POINTS_RESAMPLED {
@@ -297,9 +341,11 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         })
         .collect();
     let method = req.method.map_or(Method::Structural, method_of);
+    let x_quantity = x_quantity_of(&req).map_err(|e| AppError::invalid(vec![e]))?;
     let settings = OwnSampleSettings {
         method,
         pivot: req.pivot,
+        x_quantity,
         bootstrap: req.bootstrap.map(|n| n as usize),
         posterior_steps: req.posterior_steps.map(|n| n as usize),
         seed: req.seed.unwrap_or(1),
@@ -314,13 +360,15 @@ fn run(req: FitRequest) -> Result<FitAnswer, AppError> {
         }
     })?;
     let pivot_rule = match own.pivot_rule {
-        PivotRule::Given => "given",
-        PivotRule::Default(rule) => rule,
+        PivotRule::Given => "given".to_owned(),
+        rule => rule.label(),
     };
+    let warnings = own.pivot_rule.warning(own.pivot, &PIVOT_SETTINGS);
     Ok(FitAnswer {
         estimator: method.as_str().to_owned(),
         pivot: own.pivot,
-        pivot_rule: pivot_rule.to_owned(),
+        pivot_rule,
+        warnings: warnings.into_iter().collect(),
         fit: FitParameters::of(&own.fit),
         bootstrap: own.bootstrap.map(|b| BootstrapAnswer {
             n_boot: b.n_boot,
@@ -415,12 +463,19 @@ mod tests {
                 points: points.clone(),
                 method: Some(method),
                 pivot: None,
+                x_quantity: None,
                 bootstrap: None,
                 posterior_steps: None,
                 seed: None,
             })
             .unwrap();
             assert!((answer.pivot - x0).abs() < 1e-12);
+            // Inferred from the median of x (2.285), so the answer says what to send.
+            assert_eq!(answer.warnings.len(), 1, "{answer:?}");
+            assert!(
+                answer.warnings[0].contains(r#"give "x_quantity": "sigma" to make it explicit"#),
+                "{answer:?}"
+            );
             assert!((answer.fit.alpha_log_mbh - 8.3).abs() < 1e-3, "{answer:?}");
             assert!((answer.fit.beta - 4.5).abs() < 1e-2, "{answer:?}");
         }
@@ -432,6 +487,7 @@ mod tests {
             points: (0..n).map(|i| point(2.0 + 1e-5 * i as f64, 8.0)).collect(),
             method: None,
             pivot: Some(f64::INFINITY),
+            x_quantity: Some("speed".to_owned()),
             bootstrap,
             posterior_steps: Some(5),
             seed: None,
@@ -439,11 +495,21 @@ mod tests {
         let p = check(&req(0, Some(10))).unwrap_err();
         assert_eq!(p.status(), 422);
         let fields: Vec<&str> = p.fields().iter().map(|e| e.field.as_str()).collect();
-        assert_eq!(fields, ["points", "pivot", "bootstrap", "posterior_steps"]);
+        assert_eq!(
+            fields,
+            [
+                "points",
+                "pivot",
+                "x_quantity",
+                "bootstrap",
+                "posterior_steps"
+            ]
+        );
         assert_eq!(check(&req(MAX_POINTS + 1, None)).unwrap_err().status(), 413);
         // A negative error is named by point and column.
         let mut bad = req(5, None);
         bad.pivot = None;
+        bad.x_quantity = None;
         bad.posterior_steps = None;
         bad.points[3].y_err = -1.0;
         let p = run(bad).unwrap_err();

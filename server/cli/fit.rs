@@ -5,7 +5,8 @@
 //! ```text
 //! massline fit --input FILE.csv [--method structural|conditional|fitexy|bces-yx|bces-xy|
 //!              bces-bisector|bces-orthogonal] [--posterior] [--bootstrap N] [--pivot X0]
-//!              [--steps N] [--seed N] [--format json|table]
+//!              [--x-quantity sigma|mass|luminosity|other] [--steps N] [--seed N]
+//!              [--format json|table]
 //! ```
 //!
 //! # Input
@@ -21,10 +22,12 @@
 //!
 //! # Pivot
 //!
-//! `--pivot X0` sets x0. Without it, x0 = log10(200) = 2.30103 when every x lies in
-//! 1.3–2.8 (the x values look like log10 σ in km s⁻¹; Tremaine et al. 2002 used σ0 =
-//! 200 km s⁻¹), otherwise the median of x rounded to the nearest 0.5. The pivot used is always
-//! printed.
+//! `--pivot X0` sets x0. Otherwise `--x-quantity` names what x is and x0 is its convention:
+//! `sigma` log10(200) = 2.30103 (σ in km s⁻¹; Tremaine et al. 2002 used σ0 = 200 km s⁻¹),
+//! `mass` 11.0 (10¹¹ M☉), `luminosity` 11.0 (10¹¹ L☉ of the band), `other` the median of x
+//! rounded to 0.5. Without either, the median of x decides (`relations::default_pivot`):
+//! log10(200) when it lies in 1.3–2.8, else the median rounded to 0.5, and a warning says so
+//! and what to type. The pivot used is always printed.
 //!
 //! # Output
 //!
@@ -44,7 +47,8 @@ use crate::fit::ensemble::ParamSummary;
 use crate::fit::posterior::Posterior;
 use crate::fit::{Fit, IntervalKind, Method, Point};
 use crate::relations::{
-    OwnSampleError, OwnSampleSettings, POSTERIOR_STEPS, PivotRule, SMALL_SAMPLE, fit_own_sample,
+    OwnSampleError, OwnSampleSettings, POSTERIOR_STEPS, PivotRule, PivotSettingNames, SMALL_SAMPLE,
+    UnknownXQuantity, XQuantity, fit_own_sample,
 };
 
 /// Columns every input file must have.
@@ -70,10 +74,15 @@ pub struct FitArgs {
     /// Also bootstrap the fit with N resamples of the objects.
     #[arg(long, value_name = "N")]
     pub bootstrap: Option<usize>,
-    /// Pivot x0 in the log10 units of x (default: log10(200) for log σ data, else the median
-    /// of x rounded to 0.5).
+    /// Pivot x0 in the log10 units of x (default: the convention of --x-quantity, else
+    /// log10(200) when the median of x lies in 1.3–2.8, else that median rounded to 0.5).
     #[arg(long, value_name = "X0")]
     pub pivot: Option<f64>,
+    /// What x is, for the pivot: sigma (log10 σ in km/s: x0 = log10 200), mass (log10 M☉ of a
+    /// bulge or stellar mass: x0 = 11), luminosity (log10 L☉ of the band: x0 = 11) or other
+    /// (x0 = the median of x rounded to 0.5); --pivot wins.
+    #[arg(long, value_name = "QUANTITY", value_parser = parse_x_quantity)]
+    pub x_quantity: Option<XQuantity>,
     /// Seed of the posterior sampler and the bootstrap.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -90,6 +99,17 @@ pub enum OutputFormat {
     /// One JSON object.
     Json,
 }
+
+/// Parses the quantity of x for clap.
+fn parse_x_quantity(s: &str) -> Result<XQuantity, UnknownXQuantity> {
+    s.parse()
+}
+
+/// How the command line names the pivot settings in the pivot warning.
+const PIVOT_SETTINGS: PivotSettingNames = PivotSettingNames {
+    x_quantity: |word| format!("--x-quantity {word}"),
+    pivot: "--pivot X0",
+};
 
 /// Parses a method name for clap.
 fn parse_method(s: &str) -> Result<Method, crate::fit::FitError> {
@@ -321,27 +341,29 @@ pub fn run(args: &FitArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let settings = OwnSampleSettings {
         method: args.method,
         pivot: args.pivot,
+        x_quantity: args.x_quantity,
         bootstrap: args.bootstrap,
         posterior_steps: args.posterior.then_some(args.steps),
         seed: args.seed,
     };
     let own = fit_own_sample(&points, &settings).map_err(OwnSampleError::into_fit_error)?;
     let pivot_rule = match own.pivot_rule {
-        PivotRule::Given => "given with --pivot",
-        PivotRule::Default(rule) => rule,
+        PivotRule::Given => "given with --pivot".to_owned(),
+        rule => rule.label(),
     };
+    let pivot_warning = own.pivot_rule.warning(own.pivot, &PIVOT_SETTINGS);
     let (fit, post, boot) = (own.fit, own.posterior, own.bootstrap);
-    let mut warnings = Vec::new();
+    let mut warnings: Vec<String> = pivot_warning.into_iter().collect();
     warnings.extend(small_sample_warning(&fit));
     match args.format {
         OutputFormat::Json => {
-            let mut v = to_json(&fit, pivot_rule, args.seed, post.as_ref(), boot.as_ref());
+            let mut v = to_json(&fit, &pivot_rule, args.seed, post.as_ref(), boot.as_ref());
             v["warnings"] = json!(warnings);
             serde_json::to_writer_pretty(&mut *out, &v)?;
             writeln!(out)?;
         }
         OutputFormat::Table => {
-            write_table(out, &fit, pivot_rule, post.as_ref(), boot.as_ref())?;
+            write_table(out, &fit, &pivot_rule, post.as_ref(), boot.as_ref())?;
             for w in &warnings {
                 writeln!(out, "\nNote: {w}")?;
             }
@@ -772,6 +794,8 @@ f,2.35,0.02,8.00,0.00,1,limit
             steps: 600,
             bootstrap: None,
             pivot: None,
+            // The invented samples are log σ: named, so that only the small-sample note warns.
+            x_quantity: Some(XQuantity::Sigma),
             seed: 3,
             format,
         }
@@ -909,6 +933,136 @@ f,2.35,0.02,8.00,0.00,1,limit
         );
         let beta_line = text.lines().find(|l| l.starts_with("beta ")).unwrap();
         assert_eq!(beta_line.split_whitespace().count(), 4, "{beta_line}");
+    }
+
+    /// 40 invented σ-like objects (log σ 2.0–2.47, median 2.234) on log M = 8.3 + 4.5 (x −
+    /// log10 200) with ±0.25 dex offsets: enough objects for no small-sample note.
+    fn sigma_csv() -> String {
+        let mut csv = String::from("x,x_err,y,y_err,upper_limit\n");
+        for i in 0..40 {
+            let x = 2.0 + 0.012 * f64::from(i);
+            let off = if i % 2 == 0 { 0.25 } else { -0.25 };
+            let y = 8.3 + 4.5 * (x - SIGMA_PIVOT_LOG) + off;
+            csv.push_str(&format!("{x},0.02,{y:.3},0.1,0\n"));
+        }
+        csv
+    }
+
+    /// The JSON output of `massline fit` on `path` with these pivot settings.
+    fn pivot_run(
+        path: &std::path::Path,
+        x_quantity: Option<XQuantity>,
+        pivot: Option<f64>,
+    ) -> Value {
+        let mut a = args(path.to_owned(), Method::Conditional, OutputFormat::Json);
+        a.x_quantity = x_quantity;
+        a.pivot = pivot;
+        let mut out = Vec::new();
+        run(&a, &mut out).unwrap();
+        serde_json::from_slice(&out).unwrap()
+    }
+
+    /// The warnings about the pivot.
+    fn pivot_warnings(v: &Value) -> Vec<String> {
+        v["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter_map(Value::as_str)
+            .filter(|w| w.contains("pivot"))
+            .map(str::to_owned)
+            .collect()
+    }
+
+    #[test]
+    fn x_quantity_gives_its_convention_and_only_an_inferred_or_median_pivot_warns() {
+        let (_dir, path) = temp_csv(&sigma_csv());
+        // Conventions: log10 200 km/s (Tremaine et al. 2002), 10^11 M☉, 10^11 L☉.
+        for (q, x0) in [
+            (XQuantity::Sigma, SIGMA_PIVOT_LOG),
+            (XQuantity::Mass, 11.0),
+            (XQuantity::Luminosity, 11.0),
+        ] {
+            let v = pivot_run(&path, Some(q), None);
+            assert!(
+                (v["pivot"].as_f64().unwrap() - x0).abs() < 1e-12,
+                "{q:?}: {v}"
+            );
+            assert!(pivot_warnings(&v).is_empty(), "{q:?}: {v}");
+        }
+        // other: the median 2.234 rounded to 0.5 is 2.0 (computed), with a warning.
+        let v = pivot_run(&path, Some(XQuantity::Other), None);
+        assert!((v["pivot"].as_f64().unwrap() - 2.0).abs() < 1e-12, "{v}");
+        let w = pivot_warnings(&v);
+        assert_eq!(w.len(), 1, "{v}");
+        assert!(
+            w[0].contains("--x-quantity other") && w[0].contains("--pivot X0"),
+            "{w:?}"
+        );
+        // Unnamed: the median lies in 1.3–2.8, so log10 200, with a warning saying so.
+        let v = pivot_run(&path, None, None);
+        assert!(
+            (v["pivot"].as_f64().unwrap() - SIGMA_PIVOT_LOG).abs() < 1e-12,
+            "{v}"
+        );
+        let w = pivot_warnings(&v);
+        assert_eq!(w.len(), 1, "{v}");
+        for part in [
+            "x0 = 2.30103",
+            "median x = 2.23",
+            "--x-quantity sigma",
+            "--pivot X0",
+        ] {
+            assert!(w[0].contains(part), "{part}: {w:?}");
+        }
+        assert!(
+            v["pivot_rule"].as_str().unwrap().contains("inferred"),
+            "{v}"
+        );
+        // --pivot wins over --x-quantity, with no warning.
+        let v = pivot_run(&path, Some(XQuantity::Mass), Some(2.2));
+        assert!((v["pivot"].as_f64().unwrap() - 2.2).abs() < 1e-12, "{v}");
+        assert_eq!(v["pivot_rule"], "given with --pivot");
+        assert!(pivot_warnings(&v).is_empty(), "{v}");
+    }
+
+    #[test]
+    fn the_table_prints_the_inferred_pivot_and_its_warning() {
+        let (_dir, path) = temp_csv(&sigma_csv());
+        let mut a = args(path, Method::Conditional, OutputFormat::Table);
+        a.x_quantity = None;
+        let mut out = Vec::new();
+        run(&a, &mut out).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(
+            text.contains("pivot x0 = 2.30103 (log10 of 200 km/s"),
+            "{text}"
+        );
+        assert!(
+            text.contains("Note: The pivot x0 = 2.30103") && text.contains("--x-quantity sigma"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn an_unknown_x_quantity_is_refused_with_the_accepted_words() {
+        #[derive(clap::Parser, Debug)]
+        struct Command {
+            #[command(flatten)]
+            fit: FitArgs,
+        }
+        use clap::Parser as _;
+        let parse =
+            |word: &str| Command::try_parse_from(["fit", "--input", "s.csv", "--x-quantity", word]);
+        for q in XQuantity::ALL {
+            assert_eq!(parse(q.as_str()).unwrap().fit.x_quantity, Some(q));
+        }
+        let e = parse("velocity").unwrap_err().to_string();
+        assert!(
+            e.contains("'velocity' is not a quantity of x; type sigma (log10 σ in km/s), mass"),
+            "{e}"
+        );
+        assert!(e.contains("luminosity") && e.contains("or other."), "{e}");
     }
 
     #[test]

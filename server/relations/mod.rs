@@ -12,7 +12,8 @@
 //! * [`RunRegistry`]: bootstrap and posterior runs in the background, with progress; the
 //!   finished run is stored as a `fit_run` row that later visits reuse ([`stored_run`]).
 //! * [`fit_own_sample`]: a sample the caller brings (`massline fit`, `POST /api/v1/fit`)
-//!   fitted with the default pivot rule, an optional bootstrap and an optional posterior.
+//!   fitted with the pivot rule ([`default_pivot`], [`PivotRule`]), an optional bootstrap and
+//!   an optional posterior.
 //! * `defaults.rs`: the pivots ([`SIGMA_PIVOT_LOG`], [`default_pivot`]) and the sampler and
 //!   bootstrap settings every door shares, each defined once.
 //!
@@ -39,15 +40,16 @@ pub use cache::{
 };
 pub use defaults::{
     DEFAULT_REPLICATES, DEFAULT_STEPS, LUMINOSITY_PIVOT_LOG, MBULGE_PIVOT_LOG, POSTERIOR_BURN_IN,
-    POSTERIOR_INIT_SCATTER, POSTERIOR_STEPS, POSTERIOR_WALKERS, REPLICATES_RANGE, RUN_SEED,
-    SIGMA_PIVOT_LOG, SMALL_SAMPLE, STEPS_RANGE, default_pivot,
+    POSTERIOR_INIT_SCATTER, POSTERIOR_STEPS, POSTERIOR_WALKERS, PivotRule, PivotSettingNames,
+    REPLICATES_RANGE, RUN_SEED, SIGMA_LIKE_MEDIAN, SIGMA_PIVOT_LOG, SMALL_SAMPLE, STEPS_RANGE,
+    UnknownXQuantity, XQuantity, default_pivot,
 };
 #[cfg(test)]
 pub(crate) use filter::pairs as test_pairs;
 pub use filter::{
     FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
 };
-pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, PivotRule, fit_own_sample};
+pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, fit_own_sample};
 pub use runs::{
     BOOTSTRAP_CHUNK, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, filter_json,
     run_status, stored_run,

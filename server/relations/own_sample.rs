@@ -6,13 +6,16 @@
 //! x, y: log10 values (x in the host property's unit, y in M☉); errors in dex
 //! ```
 //!
-//! The pivot x0 is the caller's or [`default_pivot`]'s. The optional bootstrap resamples the
-//! objects and refits (`fit::bootstrap`); the optional posterior samples the likelihood with
-//! flat priors, starting from the fit ([`POSTERIOR_WALKERS`] walkers, burn-in
-//! [`POSTERIOR_BURN_IN`] steps or half the steps if fewer, `fit::posterior`).
+//! The pivot x0 is the caller's, or the convention of the quantity the caller names, or
+//! [`default_pivot`]'s rule on the median of x (with a warning, [`PivotRule::warning`]). The
+//! optional bootstrap resamples the objects and refits (`fit::bootstrap`); the optional
+//! posterior samples the likelihood with flat priors, starting from the fit
+//! ([`POSTERIOR_WALKERS`] walkers, burn-in [`POSTERIOR_BURN_IN`] steps or half the steps if
+//! fewer, `fit::posterior`).
 
 use super::defaults::{
-    POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, default_pivot,
+    POSTERIOR_BURN_IN, POSTERIOR_INIT_SCATTER, POSTERIOR_WALKERS, PivotRule, XQuantity,
+    default_pivot,
 };
 use crate::fit::bootstrap::{Bootstrap, bootstrap};
 use crate::fit::ensemble::EnsembleConfig;
@@ -26,21 +29,14 @@ pub struct OwnSampleSettings {
     pub method: Method,
     /// Pivot x0 in the log10 units of x; `None` lets [`default_pivot`] choose it.
     pub pivot: Option<f64>,
+    /// What x is, when the caller says so: its convention is the pivot unless `pivot` is given.
+    pub x_quantity: Option<XQuantity>,
     /// Bootstrap replicates, when a bootstrap is asked for.
     pub bootstrap: Option<usize>,
     /// Posterior steps per walker (burn-in included), when a posterior is asked for.
     pub posterior_steps: Option<usize>,
     /// Seed of the bootstrap and the posterior (the same seed gives the same numbers).
     pub seed: u64,
-}
-
-/// How the pivot was chosen.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum PivotRule {
-    /// The caller gave it.
-    Given,
-    /// [`default_pivot`] chose it; the text names its rule.
-    Default(&'static str),
 }
 
 /// A caller's own sample, fitted.
@@ -100,10 +96,7 @@ pub fn fit_own_sample(
 ) -> Result<OwnSampleFit, OwnSampleError> {
     let (pivot, pivot_rule) = match settings.pivot {
         Some(p) => (p, PivotRule::Given),
-        None => {
-            let (p, rule) = default_pivot(points);
-            (p, PivotRule::Default(rule))
-        }
+        None => default_pivot(points, settings.x_quantity),
     };
     let spec = FitSpec::new(settings.method, pivot)
         .with_pivot(pivot)
@@ -163,6 +156,7 @@ mod tests {
         OwnSampleSettings {
             method: Method::Conditional,
             pivot: None,
+            x_quantity: None,
             bootstrap: None,
             posterior_steps: None,
             seed: 1,
@@ -173,9 +167,10 @@ mod tests {
     fn a_small_sample_quotes_restricted_intervals_and_resamples_only_when_asked() {
         let points = small_sample();
         let plain = fit_own_sample(&points, &settings()).unwrap();
-        assert_eq!(
-            plain.pivot_rule,
-            PivotRule::Default("log10(200): the x values look like log10 sigma in km/s")
+        assert!(
+            matches!(plain.pivot_rule, PivotRule::InferredSigma { .. }),
+            "{:?}",
+            plain.pivot_rule
         );
         assert!((plain.pivot - SIGMA_PIVOT_LOG).abs() < 1e-12);
         assert!(plain.bootstrap.is_none() && plain.posterior.is_none());
@@ -199,6 +194,69 @@ mod tests {
         )
         .unwrap();
         assert_eq!(asked.bootstrap.unwrap().n_boot, 200);
+    }
+
+    /// Invented σ-like points on log M = 8.3 + 4.5 (x − log10 200) with ±0.3 dex offsets,
+    /// the first at `low` and the last at `high` (log10 σ/km s⁻¹).
+    fn sigma_sample(low: f64, high: f64) -> Vec<Point> {
+        let mut xs = vec![low];
+        xs.extend((0..28).map(|i| 1.95 + 0.025 * f64::from(i)));
+        xs.push(high);
+        xs.iter()
+            .enumerate()
+            .map(|(i, &x)| {
+                let off = if i % 2 == 0 { 0.3 } else { -0.3 };
+                let on_line = 8.3 + 4.5 * (x.clamp(1.95, 2.65) - SIGMA_PIVOT_LOG);
+                Point::new(x, 0.02, on_line + off, 0.1)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn moving_one_extreme_point_across_the_sigma_range_moves_neither_pivot_nor_alpha() {
+        // One point moved from log σ 2.80859 to 2.79, or from 1.31 to 1.29: the median stays
+        // near 2.3, so x0 stays log10 200 = 2.30103 and α moves by the one point's pull only
+        // (a few 0.01 dex at most for 30 objects; a pivot moved by 0.2 would move α by
+        // β·0.2 ≈ 0.9 dex).
+        for (before, after) in [
+            (sigma_sample(1.95, 2.808_59), sigma_sample(1.95, 2.79)),
+            (sigma_sample(1.31, 2.6), sigma_sample(1.29, 2.6)),
+        ] {
+            let a = fit_own_sample(&before, &settings()).unwrap();
+            let b = fit_own_sample(&after, &settings()).unwrap();
+            for f in [&a, &b] {
+                assert!(
+                    (f.pivot - SIGMA_PIVOT_LOG).abs() < 1e-12,
+                    "{:?}",
+                    f.pivot_rule
+                );
+                assert!(matches!(f.pivot_rule, PivotRule::InferredSigma { .. }));
+            }
+            let d_alpha = (a.fit.params.alpha - b.fit.params.alpha).abs();
+            assert!(d_alpha < 0.02, "α moved by {d_alpha} dex");
+        }
+    }
+
+    #[test]
+    fn a_named_quantity_or_a_given_pivot_decides_the_pivot() {
+        let points = small_sample();
+        let named = |x_quantity, pivot| {
+            fit_own_sample(
+                &points,
+                &OwnSampleSettings {
+                    x_quantity,
+                    pivot,
+                    ..settings()
+                },
+            )
+            .unwrap()
+        };
+        let mass = named(Some(XQuantity::Mass), None);
+        assert_eq!(mass.pivot_rule, PivotRule::Convention(XQuantity::Mass));
+        assert!((mass.pivot - 11.0).abs() < 1e-12);
+        let given = named(Some(XQuantity::Sigma), Some(2.0));
+        assert_eq!(given.pivot_rule, PivotRule::Given);
+        assert!((given.pivot - 2.0).abs() < 1e-12);
     }
 
     #[test]

@@ -647,6 +647,92 @@ async fn a_posted_sample_is_fitted_with_the_estimator_asked() {
 }
 
 #[tokio::test]
+async fn a_posted_sample_takes_the_pivot_of_its_x_quantity_or_is_warned_of_the_inferred_one() {
+    let app = private_demo().await;
+    let t = token(&app, "reader", Role::Member, "read").await;
+    // Invented σ-like points (log σ 1.9–2.68, median 2.29) on y = 8.2 + 4.0 (x − 2.3) ± 0.1 dex.
+    let points: Vec<Value> = (0..40)
+        .map(|i| {
+            let x = 1.9 + 0.02 * f64::from(i);
+            let off = if i % 2 == 0 { 0.1 } else { -0.1 };
+            json!({"x": x, "x_err": 0.0, "y": 8.2 + 4.0 * (x - 2.3) + off, "y_err": 0.1})
+        })
+        .collect();
+    let fit = |body: Value| {
+        let (app, t) = (&app, &t);
+        async move { post_json(app, "/api/v1/fit", Some(t), &body).await }
+    };
+    let sigma = massline::relations::SIGMA_PIVOT_LOG;
+    // Named quantities: their conventions (log10 200 km/s; 10^11 M☉; 10^11 L☉), no warning.
+    for (word, x0) in [("sigma", sigma), ("mass", 11.0), ("luminosity", 11.0)] {
+        let v = fit(json!({"points": points, "method": "bces-yx", "x_quantity": word})).await;
+        assert_eq!(v.status, 200, "{}", v.body);
+        let v = v.json();
+        assert!(
+            (v["pivot"].as_f64().unwrap() - x0).abs() < 1e-12,
+            "{word}: {v}"
+        );
+        assert_eq!(v["warnings"], json!([]), "{word}: {v}");
+    }
+    // Unnamed: inferred from the median, with a warning in the API's own words.
+    let v = fit(json!({"points": points, "method": "bces-yx"}))
+        .await
+        .json();
+    assert!((v["pivot"].as_f64().unwrap() - sigma).abs() < 1e-12, "{v}");
+    let w = v["warnings"][0].as_str().unwrap();
+    assert!(
+        w.contains("x0 = 2.30103") && w.contains(r#""x_quantity": "sigma""#),
+        "{w}"
+    );
+    assert!(
+        !w.contains("--"),
+        "the API names its fields, not flags: {w}"
+    );
+    // other: the median 2.29 rounded to 0.5 is 2.5 (computed), with a warning.
+    let v = fit(json!({"points": points, "method": "bces-yx", "x_quantity": "other"}))
+        .await
+        .json();
+    assert!((v["pivot"].as_f64().unwrap() - 2.5).abs() < 1e-12, "{v}");
+    assert!(
+        v["warnings"][0]
+            .as_str()
+            .unwrap()
+            .contains(r#""x_quantity": "other""#),
+        "{v}"
+    );
+    // A pivot wins over the quantity, with no warning.
+    let v = fit(json!({"points": points, "method": "bces-yx", "x_quantity": "mass", "pivot": 2.3}))
+        .await
+        .json();
+    assert!((v["pivot"].as_f64().unwrap() - 2.3).abs() < 1e-12, "{v}");
+    assert_eq!(
+        (v["pivot_rule"].as_str(), v["warnings"].clone()),
+        (Some("given"), json!([]))
+    );
+    // An unknown word: 422 naming the field, with the sentence listing the words.
+    let p = fit(json!({"points": points, "x_quantity": "velocity"}))
+        .await
+        .problem(422);
+    assert_eq!(p["errors"][0]["field"], "x_quantity", "{p}");
+    let m = p["errors"][0]["message"].as_str().unwrap();
+    for word in ["'velocity'", "sigma", "mass", "luminosity", "other"] {
+        assert!(m.contains(word), "{word}: {p}");
+    }
+    // The OpenAPI document lists the words.
+    let doc: Value = serde_json::from_str(&app.ok("/api/v1/openapi.json").await).unwrap();
+    let field = &doc["components"]["schemas"]["FitRequest"]["properties"]["x_quantity"];
+    assert_eq!(
+        field["enum"],
+        json!(["sigma", "mass", "luminosity", "other"]),
+        "{field}"
+    );
+    assert!(
+        field["description"].as_str().unwrap().contains("2.30103"),
+        "{field}"
+    );
+}
+
+#[tokio::test]
 async fn galaxies_are_listed_as_the_table_lists_them_and_shown_with_their_measurements() {
     let app = private_demo().await;
     let t = token(&app, "reader", Role::Member, "read").await;
