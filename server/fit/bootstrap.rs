@@ -129,11 +129,11 @@ pub fn bootstrap(
     }
     // The full sample must be fittable: otherwise every failure below would be the input's
     // fault, and the caller should hear that error instead.
-    let full = super::fit(points, spec)?;
+    let full = super::fit_params_only(points, spec)?;
     let names = full.params.names();
     let results: Vec<Result<Params, FitError>> = (0..n_boot as u64)
         .into_par_iter()
-        .map(|i| super::fit(&resample(points, seed, i), spec).map(|f| f.params))
+        .map(|i| super::fit_params_only(&resample(points, seed, i), spec).map(|f| f.params))
         .collect();
 
     let mut columns: Vec<Vec<f64>> = vec![Vec::with_capacity(n_boot); names.len()];

@@ -127,7 +127,7 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
 /// # References
 /// Cook 1977, Technometrics 19, 15 (influence of single observations); docs/methods.md §6.
 pub fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Influence>, FitError> {
-    let full = super::fit(points, spec)?;
+    let full = super::fit_params_only(points, spec)?;
     let cab = [
         [
             full.covariance("alpha", "alpha").unwrap_or(0.0),
@@ -148,7 +148,7 @@ pub fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Influence>,
                 .filter(|(j, _)| *j != i)
                 .map(|(_, p)| p.clone())
                 .collect();
-            let f = super::fit(&rest, spec)?;
+            let f = super::fit_params_only(&rest, spec)?;
             let da = f.params.alpha - full.params.alpha;
             let db = f.params.beta - full.params.beta;
             let shift_sigma = match &cinv {

@@ -186,9 +186,33 @@ pub enum FitError {
 /// Kelly 2007, ApJ 665, 1489; Gültekin et al. 2009, ApJ 698, 198; Tremaine et al. 2002,
 /// ApJ 574, 740; Akritas & Bershady 1996, ApJ 470, 706.
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
+    fit_with(points, spec, Quote::Restricted)
+}
+
+/// [`fit`] without the restricted-likelihood intervals (`fit.intervals` are then the curvature
+/// ones): for refits of which only the parameters are used (bootstrap replicates, leave-one-out
+/// refits, a refit with one object added), where the restricted computation would cost a few
+/// dozen inner maximisations per refit for nothing.
+///
+/// # Errors
+/// As [`fit`].
+pub fn fit_params_only(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
+    fit_with(points, spec, Quote::Curvature)
+}
+
+/// Which intervals a likelihood fit computes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Quote {
+    /// The restricted-likelihood intervals where they apply ([`intervals`]).
+    Restricted,
+    /// The curvature intervals only.
+    Curvature,
+}
+
+fn fit_with(points: &[Point], spec: &FitSpec, quote: Quote) -> Result<Fit, FitError> {
     match spec.method {
-        Method::Structural => structural::fit(points, spec),
-        Method::Conditional => conditional::fit(points, spec),
+        Method::Structural => structural::fit_quoted(points, spec, quote),
+        Method::Conditional => conditional::fit_quoted(points, spec, quote),
         Method::Fitexy => fitexy::fit(points, spec),
         Method::Bces(_) => bces::fit(points, spec),
     }

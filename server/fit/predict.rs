@@ -90,7 +90,10 @@ fn core(fit: &Fit, x: f64, x_err: f64, x2: Option<(f64, f64)>) -> Prediction {
         Shape::Quadratic => p.beta + 2.0 * third_val * d,
         _ => p.beta,
     };
-    let mut var = p.eps * p.eps + var_par.max(0.0) + slope * slope * x_err * x_err;
+    // The quoted ε (restricted likelihood where computed): the ML ε is low at small N and
+    // would narrow every predictive interval with it.
+    let eps = fit.quoted_eps();
+    let mut var = eps * eps + var_par.max(0.0) + slope * slope * x_err * x_err;
     if let (Shape::Plane, Some((_, e2))) = (fit.spec.shape, x2) {
         var += third_val * third_val * e2 * e2;
     }
@@ -111,6 +114,7 @@ fn core(fit: &Fit, x: f64, x_err: f64, x2: Option<(f64, f64)>) -> Prediction {
 /// ŷ = α + β d [+ β2 d²]
 /// s_pred² = ε² + gᵀ C g + (∂ŷ/∂x)² σ_x²,   g = (1, d [, d²]),  ∂ŷ/∂x = β [+ 2 β2 d]
 ///         = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) + β² σ_x²   for a line
+/// ε = the quoted scatter (Fit::quoted_eps: restricted likelihood where computed)
 /// 68 % interval ŷ ± s_pred, 95 % interval ŷ ± 1.959964 s_pred
 /// ```
 /// x, x0 in log10 units; ŷ in log10 M☉; s_pred, ε, σ_x in dex; C the covariance of the fitted

@@ -587,6 +587,15 @@ impl Fit {
         }
     }
 
+    /// The intrinsic scatter to quote and to predict with (dex): ε from `intervals` (the
+    /// restricted-likelihood ε where it was computed, docs/methods.md §2.8), else the fitted ε.
+    #[must_use]
+    pub fn quoted_eps(&self) -> f64 {
+        self.intervals
+            .get("eps")
+            .map_or(self.params.eps, |iv| iv.estimate)
+    }
+
     /// Covariance of two named parameters (`"alpha"`, `"beta"`, `"beta2"`, `"gamma"`, `"eps"`),
     /// or `None` if either is not in `cov_names`.
     ///

@@ -492,7 +492,7 @@ pub async fn place(
     let mut points = placement.outcome.sample.points.clone();
     points.push(point.named("new object"));
     let spec = fit.spec.clone();
-    let refitted = tokio::task::spawn_blocking(move || fit::fit(&points, &spec))
+    let refitted = tokio::task::spawn_blocking(move || fit::fit_params_only(&points, &spec))
         .await
         .map_err(anyhow::Error::from)?;
     placement.refit = Some(refitted.map_err(|e| e.to_string()));

@@ -227,7 +227,7 @@ fn compute(
                 let results: Vec<Result<Params, FitError>> = chunk
                     .par_iter()
                     .map(|i| {
-                        fit::fit(&fit::bootstrap::resample(points, RUN_SEED, *i), &spec)
+                        fit::fit_params_only(&fit::bootstrap::resample(points, RUN_SEED, *i), &spec)
                             .map(|f| f.params)
                     })
                     .collect();

@@ -794,7 +794,7 @@ pub(super) fn relation_chart(
             beta: f.params.beta,
             beta2: f.params.beta2,
             pivot: f.spec.pivot,
-            scatter_dex: f.params.eps.max(0.0),
+            scatter_dex: f.quoted_eps().max(0.0),
         }),
         mean_band: fit.map_or_else(Vec::new, |f| mean_band(f, x_min, x_max)),
         ..RelationChart::default()
@@ -942,7 +942,7 @@ fn residual_charts(
         x_label: relation.x_label(),
         points: vs_x,
         groups: groups.clone(),
-        scatter_dex: f.params.eps.max(0.0),
+        scatter_dex: f.quoted_eps().max(0.0),
         ..ResidualChart::default()
     };
     let against_other = ResidualChart {
@@ -954,7 +954,7 @@ fn residual_charts(
         x_label: q.versus.axis_label(),
         points: residual_points(&|m, _| q.versus.value(m)),
         groups,
-        scatter_dex: f.params.eps.max(0.0),
+        scatter_dex: f.quoted_eps().max(0.0),
         ..ResidualChart::default()
     };
     (

@@ -340,13 +340,13 @@ async fn placing_one_object_gives_the_prediction_of_the_fit_it_names() {
     assert_eq!(rows.len(), 1, "only M–σ can use σ alone: {v}");
     let r = &rows[0];
     assert_eq!(r["relation"], "m_sigma");
-    // ŷ = α + β d, s_pred² = ε² + Var α + d² Var β + 2 d Cov(α, β) + β² σ_x²
-    // (computed from the prediction formula, docs/methods.md §6).
+    // ŷ = α + β d, s_pred² = ε² + Var α + d² Var β + 2 d Cov(α, β) + β² σ_x² with the quoted
+    // ε (computed from the prediction formula, docs/methods.md §6 and §2.8).
     let x = 250f64.log10();
     let x_err = r["x_err_dex"].as_f64().unwrap();
     let d = x - massline::relations::SIGMA_PIVOT_LOG;
     let y_hat = alpha + beta * d;
-    let s2 = eps * eps
+    let s2 = quoted_eps * quoted_eps
         + cov(0, 0)
         + d * d * cov(1, 1)
         + 2.0 * d * cov(0, 1)

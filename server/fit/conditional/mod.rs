@@ -8,12 +8,12 @@
 
 use nalgebra::DMatrix;
 
-use super::intervals::{IntervalKind, Intervals};
+use super::intervals::{IntervalKind, Intervals, RESTRICTED_MAX_N};
 use super::optimize::{self, MlResult, Objective, Sum};
 use super::special::{LN_2PI, NormCdf, ln_norm_cdf, norm_cdf_parts};
 use super::types::{Data, prepare};
 use super::{
-    Fit, FitError, FitSpec, Method, Params, Shape, Termination, min_points, relation_names,
+    Fit, FitError, FitSpec, Method, Params, Quote, Shape, Termination, min_points, relation_names,
 };
 
 /// Factors multiplied together before one logarithm is taken (see [`LnSum`]).
@@ -645,11 +645,23 @@ impl Objective for Model {
 /// Tremaine et al. 2002, ApJ 574, 740 (the variance V_i); docs/methods.md §2.1, §2.2, §2.7.
 pub fn fit(points: &[super::Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let model = Model::new(points, spec)?;
-    fit_model(&model, spec)
+    fit_model(&model, spec, Quote::Restricted)
+}
+
+/// [`fit`], computing the restricted-likelihood intervals only when `quote` asks for them.
+pub(crate) fn fit_quoted(
+    points: &[super::Point],
+    spec: &FitSpec,
+    quote: Quote,
+) -> Result<Fit, FitError> {
+    let model = Model::new(points, spec)?;
+    fit_model(&model, spec, quote)
 }
 
 /// Fits a prepared conditional model and assembles the result.
-pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> {
+/// Fits a prepared model; `quote` decides whether the restricted-likelihood intervals are
+/// computed (only for samples of at most [`RESTRICTED_MAX_N`] objects).
+pub(crate) fn fit_model(model: &Model, spec: &FitSpec, quote: Quote) -> Result<Fit, FitError> {
     let theta0 = model.initial();
     let ml = run(model, &theta0, true)?;
     bounded(ml.neg2, ml.theta[model.eps_index()], &model.data)?;
@@ -661,7 +673,9 @@ pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> 
         model.data.n_upper,
         None,
     );
-    if model.group.is_none()
+    if quote == Quote::Restricted
+        && model.data.n() <= RESTRICTED_MAX_N
+        && model.group.is_none()
         && ml.cov.is_some()
         && let Some(iv) = newton::restricted(model, &ml.theta)
     {

@@ -22,11 +22,12 @@ use std::sync::OnceLock;
 use nalgebra::{DMatrix, SymmetricEigen};
 
 use super::conditional;
+use super::intervals::RESTRICTED_MAX_N;
 use super::optimize::{self, Objective, Sum};
 use super::special::{LN_2PI, ln_norm_cdf, norm_cdf_parts};
 use super::types::{Data, prepare};
 use super::{
-    Fit, FitError, FitSpec, Method, MixtureComponent, Params, Point, Shape, min_points,
+    Fit, FitError, FitSpec, Method, MixtureComponent, Params, Point, Quote, Shape, min_points,
     relation_names,
 };
 
@@ -792,11 +793,22 @@ mod newton;
 /// docs/methods.md §2.6; Golub & Welsch 1969, Math. Comp. 23, 221 (quadrature).
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
     let model = Model::new(points, spec)?;
-    fit_model(&model, spec)
+    fit_model(&model, spec, Quote::Restricted)
 }
 
-/// Fits a prepared structural model and assembles the result.
-pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> {
+/// [`fit`], computing the restricted-likelihood intervals only when `quote` asks for them.
+pub(crate) fn fit_quoted(
+    points: &[super::Point],
+    spec: &FitSpec,
+    quote: Quote,
+) -> Result<Fit, FitError> {
+    let model = Model::new(points, spec)?;
+    fit_model(&model, spec, quote)
+}
+
+/// Fits a prepared structural model and assembles the result; `quote` decides whether the restricted-likelihood intervals are
+/// computed (only for samples of at most [`RESTRICTED_MAX_N`] objects).
+pub(crate) fn fit_model(model: &Model, spec: &FitSpec, quote: Quote) -> Result<Fit, FitError> {
     let ml = maximise(model, true)?;
     conditional::bounded(ml.neg2, ml.theta[model.n_rel() - 1], &model.data)?;
     let nr = model.n_rel();
@@ -822,7 +834,9 @@ pub(crate) fn fit_model(model: &Model, spec: &FitSpec) -> Result<Fit, FitError> 
         model.data.n_upper,
         Some(x_model),
     );
-    if model.shape == Shape::Line
+    if quote == Quote::Restricted
+        && model.data.n() <= RESTRICTED_MAX_N
+        && model.shape == Shape::Line
         && model.k == 1
         && model.group.is_none()
         && ml.cov.is_some()
