@@ -644,8 +644,7 @@ impl Objective for Model {
 /// Gültekin et al. 2009, ApJ 698, 198 (ML with intrinsic scatter and censored limits);
 /// Tremaine et al. 2002, ApJ 574, 740 (the variance V_i); docs/methods.md §2.1, §2.2, §2.7.
 pub fn fit(points: &[super::Point], spec: &FitSpec) -> Result<Fit, FitError> {
-    let model = Model::new(points, spec)?;
-    fit_model(&model, spec, Quote::Restricted)
+    fit_quoted(points, spec, Quote::Restricted)
 }
 
 /// [`fit`], computing the restricted-likelihood intervals only when `quote` asks for them.
@@ -658,9 +657,9 @@ pub(crate) fn fit_quoted(
     fit_model(&model, spec, quote)
 }
 
-/// Fits a prepared conditional model and assembles the result.
-/// Fits a prepared model; `quote` decides whether the restricted-likelihood intervals are
-/// computed (only for samples of at most [`RESTRICTED_MAX_N`] objects).
+/// Fits a prepared conditional model and assembles the result; `quote` decides whether the
+/// restricted-likelihood intervals are computed (only for samples of at most
+/// [`RESTRICTED_MAX_N`] objects).
 pub(crate) fn fit_model(model: &Model, spec: &FitSpec, quote: Quote) -> Result<Fit, FitError> {
     let theta0 = model.initial();
     let ml = run(model, &theta0, true)?;

@@ -792,8 +792,7 @@ mod newton;
 /// Kelly 2007, ApJ 665, 1489, §4 (eqs. 16–17 for the mixture marginal) and §5.1 (censoring);
 /// docs/methods.md §2.6; Golub & Welsch 1969, Math. Comp. 23, 221 (quadrature).
 pub fn fit(points: &[Point], spec: &FitSpec) -> Result<Fit, FitError> {
-    let model = Model::new(points, spec)?;
-    fit_model(&model, spec, Quote::Restricted)
+    fit_quoted(points, spec, Quote::Restricted)
 }
 
 /// [`fit`], computing the restricted-likelihood intervals only when `quote` asks for them.
@@ -806,8 +805,9 @@ pub(crate) fn fit_quoted(
     fit_model(&model, spec, quote)
 }
 
-/// Fits a prepared structural model and assembles the result; `quote` decides whether the restricted-likelihood intervals are
-/// computed (only for samples of at most [`RESTRICTED_MAX_N`] objects).
+/// Fits a prepared structural model and assembles the result; `quote` decides whether the
+/// restricted-likelihood intervals are computed (only for samples of at most
+/// [`RESTRICTED_MAX_N`] objects).
 pub(crate) fn fit_model(model: &Model, spec: &FitSpec, quote: Quote) -> Result<Fit, FitError> {
     let ml = maximise(model, true)?;
     conditional::bounded(ml.neg2, ml.theta[model.n_rel() - 1], &model.data)?;
