@@ -418,9 +418,9 @@ pub(crate) fn restricted<O: Analytic>(model: &O, ml: &[f64; NS]) -> Option<Restr
     };
     let eps_ml = ml[E].max(0.0).sqrt();
     let scale = model.mean_vy().sqrt().max(eps_ml).max(1e-6);
-    // Bracket the minimum: the restricted ε exceeds the ML one (the ln det term grows as ε
-    // shrinks the residual variance), so search up from 0 to where −2 ln L_R has risen by
-    // more than the 95 % level above its value at the ML ε.
+    // Bracket the minimum: ln det H_mm grows as ε falls (the mean parameters are then better
+    // determined), which pushes the restricted ε above the ML one; the search runs from 0 up
+    // to where −2 ln L_R has risen by twice the 95 % level above its value at the ML ε.
     let (f_ml, _) = objective(eps_ml, &mut evals)?;
     let mut hi = eps_ml + scale;
     for _ in 0..60 {
