@@ -89,7 +89,8 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
             };
             match pred {
                 Ok(pr) if p.y.is_finite() && p.y_err.is_finite() && p.y_err >= 0.0 => {
-                    let pl = locate(fit, pr, p.x, p.y, p.y_err, p.xy_cov, p.upper_limit);
+                    let covs = (p.xy_cov, p.x2_y_cov);
+                    let pl = locate(fit, pr, p.x, p.y, p.y_err, covs, p.upper_limit);
                     Residual {
                         index,
                         residual_dex: pl.residual_dex,

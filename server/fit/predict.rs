@@ -205,12 +205,12 @@ pub fn place(
 ///
 /// # Model
 /// ```text
-/// r = y − ŷ,   z = r / √(s_pred² + σ_y² − 2 (∂ŷ/∂x) σ_xy)
-/// ∂ŷ/∂x = β [+ 2 β2 (x − x0)]
+/// r = y − ŷ,   z = r / √(s_pred² + σ_y² − 2 (∂ŷ/∂x) σ_xy − 2 γ σ_x2y)
+/// ∂ŷ/∂x = β [+ 2 β2 (x − x0)];  γ = 0 unless the fit is a plane
 /// limit: P(true log M_BH < y_lim) = Φ(r / s_pred)
 /// ```
-/// σ_xy is the covariance of the object's x and y errors (a shared distance error, 0 for
-/// independent values); it makes an error along the relation less surprising. When that
+/// σ_xy (σ_x2y) is the covariance of the object's x (x2) and y errors (a shared distance
+/// error, 0 for independent values); it makes an error along the relation less surprising. When that
 /// variance is not positive, z falls back to r / √(s_pred² + σ_y²). dex throughout.
 ///
 /// # References
@@ -223,13 +223,16 @@ pub fn locate(
     x: f64,
     y: f64,
     y_err: f64,
-    xy_cov: f64,
+    (xy_cov, x2_y_cov): (f64, f64),
     upper_limit: bool,
 ) -> Placement {
     let mut placed = placement_of(prediction, y, y_err, upper_limit);
     let slope = fit.params.beta + 2.0 * fit.params.beta2.unwrap_or(0.0) * (x - fit.spec.pivot);
-    let var = placed.prediction.sd_dex.powi(2) + y_err.powi(2) - 2.0 * slope * xy_cov;
-    if var > 0.0 && xy_cov.is_finite() {
+    let gamma = fit.params.gamma.unwrap_or(0.0);
+    let var = placed.prediction.sd_dex.powi(2) + y_err.powi(2)
+        - 2.0 * slope * xy_cov
+        - 2.0 * gamma * x2_y_cov;
+    if var > 0.0 && xy_cov.is_finite() && x2_y_cov.is_finite() {
         placed.z = placed.residual_dex / var.sqrt();
     }
     placed
@@ -387,6 +390,29 @@ mod tests {
         let p = predict(&f, f.spec.pivot + d, 0.0).expect("predict");
         let want = 0.09 + 0.0064 + d * d * 0.1681 + 2.0 * d * (-0.002);
         assert!((p.sd_dex - want.sqrt()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn z_of_a_plane_member_counts_the_mass_and_bulge_mass_shared_distance() {
+        // A fit with no parameter uncertainty and ε = 0.3 dex: s_pred = 0.3 at the pivot. An
+        // object 0.6 dex above it with σ_y = 0.2 dex and σ_x2y = 0.02 dex² on a plane with
+        // γ = 0.5: z = 0.6/√(0.09 + 0.04 − 2 · 0.5 · 0.02) = 0.6/√0.11 (computed from the
+        // formula above); without the covariance 0.6/√0.13.
+        let mut f = Fit::given_line(
+            FitSpec::new(Method::Conditional, 2.3),
+            Params::line(8.0, 4.0, 0.3),
+            [[0.0; 3]; 3],
+        );
+        let pr = predict(&f, 2.3, 0.0).unwrap();
+        f.params.gamma = Some(0.5);
+        let with = locate(&f, pr.clone(), 2.3, 8.6, 0.2, (0.0, 0.02), false);
+        let without = locate(&f, pr, 2.3, 8.6, 0.2, (0.0, 0.0), false);
+        assert!((with.z - 0.6 / 0.11_f64.sqrt()).abs() < 1e-12, "{}", with.z);
+        assert!(
+            (without.z - 0.6 / 0.13_f64.sqrt()).abs() < 1e-12,
+            "{}",
+            without.z
+        );
     }
 
     #[test]

@@ -105,6 +105,7 @@ pub async fn assess(
         err_plus_dex: m.err_plus_dex,
         err_dex: value(m).1,
         xy_cov: 0.0,
+        x2_y_cov: 0.0,
         upper_limit: m.upper_limit,
     });
     let bands: Vec<String> = relation_rows::luminosity_bands(&catalog.pool)

@@ -167,6 +167,7 @@ pub async fn place_left_out(catalog: &Catalog, galaxy_id: i64) -> AppResult<Left
                 err_plus_dex: p.y_err,
                 err_dex: p.y_err,
                 xy_cov: p.xy_cov,
+                x2_y_cov: p.x2_y_cov,
                 upper_limit: p.upper_limit,
             }),
             input: input_text(&relation, &shown(p.x, p.x_err), x2_text.as_deref()),

@@ -332,6 +332,8 @@ pub struct SubjectMass {
     pub err_dex: f64,
     /// Covariance of the mass's and x's errors (a shared distance), dex².
     pub xy_cov: f64,
+    /// Covariance of the mass's and x2's errors (a plane's second property), dex².
+    pub x2_y_cov: f64,
     /// Whether the mass is an upper limit.
     pub upper_limit: bool,
 }
@@ -345,6 +347,7 @@ impl SubjectMass {
             err_plus_dex: m.err_plus_dex,
             err_dex: m.err_dex,
             xy_cov: 0.0,
+            x2_y_cov: 0.0,
             upper_limit: m.upper_limit,
         }
     }
@@ -401,7 +404,7 @@ pub fn placement_numbers(fit: &Fit, subject: &Subject) -> Result<PlacementNumber
         x,
         m.log_mbh,
         m.err_dex,
-        m.xy_cov,
+        (m.xy_cov, m.x2_y_cov),
         m.upper_limit,
     );
     Ok(PlacementNumbers {
