@@ -129,6 +129,7 @@ impl Application {
                 passwords,
                 fits: crate::relations::FitCache::default(),
                 runs: crate::relations::RunRegistry::default(),
+                analyst: crate::relations::version_analysis::Analyst::default(),
                 form_key: crate::auth::secret::FormKey::random(),
             },
             demo_accounts,
@@ -165,12 +166,17 @@ impl Application {
         shutdown: impl Future<Output = ()> + Send + 'static,
     ) -> anyhow::Result<()> {
         let cleanup = tokio::spawn(clean_up_periodically(self.state.clone()));
+        let analysis = tokio::spawn(crate::relations::version_analysis::run(
+            self.state.catalog(),
+            self.state.analyst.clone(),
+        ));
         let secure = self.state.settings.secure_cookies;
         let router = app(self.state);
         let served = crate::router::serve(self.listener, router, secure, shutdown)
             .await
             .context("the server stopped with an error");
         cleanup.abort();
+        analysis.abort();
         served
     }
 

@@ -9,6 +9,7 @@ use crate::auth::password::Passwords;
 use crate::auth::secret::FormKey;
 use crate::catalog::health::WriteCheck;
 use crate::config::Settings;
+use crate::relations::version_analysis::Analyst;
 use crate::relations::{Catalog, FitCache, RunRegistry};
 
 /// State shared by every handler: cheap to clone.
@@ -26,6 +27,8 @@ pub struct AppState {
     pub fits: FitCache,
     /// Bootstrap and posterior runs in the background (see `relations`).
     pub runs: RunRegistry,
+    /// The background analysis of each catalog version (`relations::version_analysis`).
+    pub analyst: Analyst,
     /// Whether the database can take a write, probed at most once a second (the health check).
     pub write_check: WriteCheck,
     /// The key the login form's anti-forgery token is made with, new at every start.

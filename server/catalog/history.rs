@@ -4,15 +4,15 @@
 //! audit event carrying the new version; cached fits are keyed by the version, so they can never
 //! outlive the data they were fitted to.
 
-use sqlx::{Sqlite, SqlitePool, Transaction};
+use sqlx::{Sqlite, SqliteExecutor, SqlitePool, Transaction};
 
 /// The current catalog version.
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn current_version(pool: &SqlitePool) -> sqlx::Result<i64> {
+pub async fn current_version(db: impl SqliteExecutor<'_>) -> sqlx::Result<i64> {
     sqlx::query_scalar("select catalog_version from catalog_state where catalog_state_id = 1")
-        .fetch_one(pool)
+        .fetch_one(db)
         .await
 }
 

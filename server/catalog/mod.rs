@@ -22,6 +22,7 @@ pub mod model;
 pub mod names;
 pub mod overview;
 pub mod relation_rows;
+pub mod review_scores;
 pub mod submissions;
 
 use std::path::Path;

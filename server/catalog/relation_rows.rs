@@ -2,7 +2,7 @@
 //! luminosities, as published: the rows the catalog table and the scaling-relation fits are
 //! built from (the rescaling to the adopted distance happens in `relations`).
 
-use sqlx::SqlitePool;
+use sqlx::{SqliteExecutor, SqlitePool};
 
 /// One galaxy with its adopted values, as stored.
 #[derive(Debug, Clone, PartialEq, sqlx::FromRow)]
@@ -78,7 +78,7 @@ pub struct LuminosityRow {
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn relation_rows(pool: &SqlitePool) -> sqlx::Result<Vec<RelationRow>> {
+pub async fn relation_rows(db: impl SqliteExecutor<'_>) -> sqlx::Result<Vec<RelationRow>> {
     sqlx::query_as(
         "select g.galaxy_id, g.name, g.slug, g.morphology, g.bulge_kind, g.centre_kind,
                 g.distance_mpc, g.distance_err_mpc,
@@ -100,7 +100,7 @@ pub async fn relation_rows(pool: &SqlitePool) -> sqlx::Result<Vec<RelationRow>> 
       left join measurement bm on bm.measurement_id = abm.measurement_id
        order by g.name",
     )
-    .fetch_all(pool)
+    .fetch_all(db)
     .await
 }
 
@@ -108,14 +108,14 @@ pub async fn relation_rows(pool: &SqlitePool) -> sqlx::Result<Vec<RelationRow>> 
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn luminosity_rows(pool: &SqlitePool) -> sqlx::Result<Vec<LuminosityRow>> {
+pub async fn luminosity_rows(db: impl SqliteExecutor<'_>) -> sqlx::Result<Vec<LuminosityRow>> {
     sqlx::query_as(
         "select m.galaxy_id, m.band, m.log_value, m.err_dex, m.source_distance_mpc
            from adopted_value a join measurement m on m.measurement_id = a.measurement_id
           where a.quantity = 'bulge_luminosity'
        order by m.galaxy_id, m.band",
     )
-    .fetch_all(pool)
+    .fetch_all(db)
     .await
 }
 
@@ -129,4 +129,34 @@ pub async fn luminosity_bands(pool: &SqlitePool) -> sqlx::Result<Vec<String>> {
     )
     .fetch_all(pool)
     .await
+}
+
+/// The catalog version and every galaxy's adopted values as of that version, read in one read
+/// transaction (so the rows are exactly those of the version). The fits and the catalog table
+/// of one version share one snapshot instead of reading the catalog at every request.
+#[derive(Debug, Clone, Default)]
+pub struct RowsSnapshot {
+    /// The catalog version read.
+    pub version: i64,
+    /// [`relation_rows`] at that version.
+    pub rows: Vec<RelationRow>,
+    /// [`luminosity_rows`] at that version.
+    pub luminosities: Vec<LuminosityRow>,
+}
+
+/// Reads a [`RowsSnapshot`].
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn snapshot(pool: &SqlitePool) -> sqlx::Result<RowsSnapshot> {
+    let mut tx = pool.begin().await?;
+    let version = super::history::current_version(&mut *tx).await?;
+    let rows = relation_rows(&mut *tx).await?;
+    let luminosities = luminosity_rows(&mut *tx).await?;
+    tx.commit().await?;
+    Ok(RowsSnapshot {
+        version,
+        rows,
+        luminosities,
+    })
 }

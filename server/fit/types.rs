@@ -554,6 +554,32 @@ pub struct Fit {
 }
 
 impl Fit {
+    /// The same fit with α, β and ε moved by the given amounts (dex, dex per dex, dex), and the
+    /// quoted values and intervals moved with them; errors and covariance kept. How a page shows
+    /// the fit without one object from the one-step leave-one-out change (docs/methods.md §6):
+    /// at the sample sizes where it is used the errors change by about 1/(2N).
+    #[must_use]
+    pub fn shifted(&self, d_alpha: f64, d_beta: f64, d_eps: f64) -> Fit {
+        let mut out = self.clone();
+        out.params.alpha += d_alpha;
+        out.params.beta += d_beta;
+        out.params.eps = (out.params.eps + d_eps).max(0.0);
+        for iv in &mut out.intervals.params {
+            let d = match iv.name {
+                "alpha" => d_alpha,
+                "beta" => d_beta,
+                "eps" => d_eps,
+                _ => continue,
+            };
+            iv.estimate += d;
+            iv.p16 += d;
+            iv.p84 += d;
+            iv.p2_5 += d;
+            iv.p97_5 += d;
+        }
+        out
+    }
+
     /// A straight-line relation given from outside (a published fit, or a test's fixture): α, β,
     /// ε with the covariance of (α, β, ε) in that order, no sample behind it (n = 0, no
     /// likelihood). Errors are the square roots of the covariance's diagonal.

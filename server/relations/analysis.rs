@@ -3,6 +3,7 @@
 //! objects (leave-one-out refits), and the zero-point offset between two subsamples.
 
 use std::sync::Arc;
+use std::time::Duration;
 
 use super::place::{is_flagged, verdict};
 use super::{FitCache, FitOutcome, Member};
@@ -46,16 +47,22 @@ pub fn flagged(outcome: &FitOutcome) -> Vec<Flagged> {
     out
 }
 
-/// The `n` objects whose leaving out moves (α, β) most, in units of their errors.
+/// The `n` objects whose leaving out moves (α, β) most, in units of their errors, waiting at
+/// most `wait` for the influence computation (`None`: as long as it takes); `Ok(None)` while
+/// it is still being computed in the background.
 ///
 /// # Errors
-/// When the refitting task fails; `Ok(Err(reason))` when the influence cannot be computed.
+/// When the refitting task fails; `Ok(Some(Err(reason)))` when the influence cannot be computed.
 pub async fn most_influential(
     fits: &FitCache,
     outcome: &Arc<FitOutcome>,
     n: usize,
-) -> AppResult<Result<Vec<Influence>, String>> {
-    Ok(match fits.influence(outcome).await?.as_ref() {
+    wait: Option<Duration>,
+) -> AppResult<Option<Result<Vec<Influence>, String>>> {
+    let Some(result) = fits.influence_within(outcome, wait).await? else {
+        return Ok(None);
+    };
+    Ok(Some(match result.as_ref() {
         Ok(list) => {
             let mut sorted = list.clone();
             sorted.sort_by(|a, b| b.shift_sigma.total_cmp(&a.shift_sigma));
@@ -63,7 +70,7 @@ pub async fn most_influential(
             Ok(sorted)
         }
         Err(e) => Err(e.to_string()),
-    })
+    }))
 }
 
 /// A subsample for the zero-point offset: one value of one tag, e.g. morphology = elliptical.

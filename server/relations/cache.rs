@@ -5,12 +5,14 @@
 //! blocking thread pool (`tokio::task::spawn_blocking`), never on the async runtime.
 
 use std::collections::HashMap;
-use std::sync::{Arc, Mutex, PoisonError};
+use std::sync::{Arc, Condvar, Mutex, PoisonError};
+use std::time::Duration;
 
 use sqlx::SqlitePool;
 
 use super::{Relation, Sample, SampleFilter, build_sample};
-use crate::catalog::{history, relation_rows};
+use crate::catalog::history;
+use crate::catalog::relation_rows::{self, RowsSnapshot};
 use crate::fit::{self, Fit, FitError, FitSpec, Influence, Method, Shape};
 
 /// Leave-one-out influence of every object of a fit, or why it could not be computed.
@@ -93,12 +95,38 @@ pub struct FitOutcome {
     pub fitted_at: String,
 }
 
+/// A computation under way: its result is sent once, to every request waiting for it.
+type InFlight<T> = tokio::sync::watch::Receiver<Option<Arc<T>>>;
+
 /// The fit cache shared by every handler; cheap to clone.
+///
+/// Every computation runs once per key, on a task of its own: requests asking for a fit or an
+/// influence list that is being computed wait for that one computation (for at most the time
+/// they choose, [`FitCache::fit_within`]), and a request that gives up does not cancel it, so
+/// its result is there for the next visit. Nothing is computed twice because two people asked.
 #[derive(Debug, Clone, Default)]
 pub struct FitCache {
     inner: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
     influence: Arc<Mutex<HashMap<FitKey, Arc<InfluenceResult>>>>,
+    fits_under_way: Arc<Mutex<HashMap<FitKey, InFlight<FitOutcome>>>>,
+    influence_under_way: Arc<Mutex<HashMap<FitKey, InFlight<InfluenceResult>>>>,
+    /// The newest whole-sample fit of each (relation, estimator, sample, pivots), whatever its
+    /// version: what a page shows while the fit of a newer version is being computed.
+    latest: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
+    rows: Arc<tokio::sync::Mutex<Option<Arc<RowsSnapshot>>>>,
+    hold: Hold,
 }
+
+/// A key without its version: the slot of [`FitCache::latest`].
+fn unversioned(key: &FitKey) -> FitKey {
+    FitKey {
+        catalog_version: 0,
+        ..key.clone()
+    }
+}
+
+/// Most entries of [`FitCache::latest`]; beyond it the map starts afresh.
+const MAX_LATEST: usize = 64;
 
 impl FitCache {
     /// A cached fit, if any.
@@ -110,17 +138,43 @@ impl FitCache {
             .cloned()
     }
 
+    /// The newest fit for `key` at any catalog version up to `key`'s (the fit itself when it
+    /// is ready, else an older version's): what a page shows while the newer one is computed.
+    pub fn latest(&self, key: &FitKey) -> Option<Arc<FitOutcome>> {
+        self.latest
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .get(&unversioned(key))
+            .filter(|o| o.key.catalog_version <= key.catalog_version)
+            .cloned()
+    }
+
     /// Stores a fit and returns the stored one (the one already there if another request was
     /// faster, so every caller of one key shares one value). Fits of older catalog versions
     /// are dropped.
     pub fn insert(&self, outcome: FitOutcome) -> Arc<FitOutcome> {
-        let mut map = self.inner.lock().unwrap_or_else(PoisonError::into_inner);
-        let version = outcome.key.catalog_version;
-        map.retain(|k, _| k.catalog_version >= version);
-        make_room(&mut map);
-        map.entry(outcome.key.clone())
-            .or_insert_with(|| Arc::new(outcome))
-            .clone()
+        let stored = {
+            let mut map = self.inner.lock().unwrap_or_else(PoisonError::into_inner);
+            let version = outcome.key.catalog_version;
+            map.retain(|k, _| k.catalog_version >= version);
+            make_room(&mut map);
+            map.entry(outcome.key.clone())
+                .or_insert_with(|| Arc::new(outcome))
+                .clone()
+        };
+        if stored.key.left_out.is_none() {
+            let mut latest = self.latest.lock().unwrap_or_else(PoisonError::into_inner);
+            if latest.len() >= MAX_LATEST {
+                latest.clear();
+            }
+            let slot = latest
+                .entry(unversioned(&stored.key))
+                .or_insert_with(|| stored.clone());
+            if slot.key.catalog_version <= stored.key.catalog_version {
+                *slot = stored.clone();
+            }
+        }
+        stored
     }
 
     /// Number of fits held.
@@ -136,31 +190,67 @@ impl FitCache {
         self.len() == 0
     }
 
-    /// The cached fit for `key`, or `compute` run on the blocking pool and stored.
+    /// The cached fit for `key`, or `compute` run on the blocking pool and stored; waits as
+    /// long as the computation takes.
     ///
     /// # Errors
-    /// When the blocking task panicked or was cancelled.
+    /// When the computation panicked.
     pub async fn get_or_compute(
         &self,
         key: &FitKey,
         compute: impl FnOnce() -> FitOutcome + Send + 'static,
     ) -> anyhow::Result<Arc<FitOutcome>> {
-        if let Some(hit) = self.get(key) {
-            return Ok(hit);
-        }
-        let outcome = tokio::task::spawn_blocking(compute).await?;
-        Ok(self.insert(outcome))
+        self.fit_within(key, compute, None)
+            .await?
+            .ok_or_else(|| anyhow::anyhow!("a fit computation stopped without a result"))
     }
 
-    /// The leave-one-out influence of every object of a fit (one refit per object), cached
-    /// under the fit's key and computed on the blocking pool.
+    /// The cached fit for `key`; else the computation under way for it, or `compute` started on
+    /// the blocking pool, waited for at most `wait` (`None`: until it is done). `Ok(None)`
+    /// when the wait ran out: the computation goes on and stores its fit.
     ///
     /// # Errors
-    /// When the blocking task panicked or was cancelled.
+    /// When the computation panicked.
+    pub async fn fit_within(
+        &self,
+        key: &FitKey,
+        compute: impl FnOnce() -> FitOutcome + Send + 'static,
+        wait: Option<Duration>,
+    ) -> anyhow::Result<Option<Arc<FitOutcome>>> {
+        if let Some(hit) = self.get(key) {
+            return Ok(Some(hit));
+        }
+        let cache = self.clone();
+        let rx = under_way(&self.fits_under_way, key, self.hold.clone(), compute, {
+            move |outcome: FitOutcome| cache.insert(outcome)
+        });
+        wait_for(rx, wait).await
+    }
+
+    /// The leave-one-out influence of every object of a fit, cached under the fit's key and
+    /// computed on the blocking pool; waits as long as it takes.
+    ///
+    /// # Errors
+    /// When the computation panicked.
     pub async fn influence(
         &self,
         outcome: &Arc<FitOutcome>,
     ) -> anyhow::Result<Arc<InfluenceResult>> {
+        self.influence_within(outcome, None)
+            .await?
+            .ok_or_else(|| anyhow::anyhow!("an influence computation stopped without a result"))
+    }
+
+    /// The leave-one-out influence of every object of a fit (`fit::leave_one_out`), as
+    /// [`FitCache::fit_within`]: cached, computed once, waited for at most `wait`.
+    ///
+    /// # Errors
+    /// When the computation panicked.
+    pub async fn influence_within(
+        &self,
+        outcome: &Arc<FitOutcome>,
+        wait: Option<Duration>,
+    ) -> anyhow::Result<Option<Arc<InfluenceResult>>> {
         let key = outcome.key.clone();
         if let Some(hit) = self
             .influence
@@ -168,40 +258,176 @@ impl FitCache {
             .unwrap_or_else(PoisonError::into_inner)
             .get(&key)
         {
-            return Ok(hit.clone());
+            return Ok(Some(hit.clone()));
         }
         let source = outcome.clone();
-        let result = tokio::task::spawn_blocking(move || match &source.spec {
+        let compute = move || match &source.spec {
             Ok(spec) => fit::leave_one_out(&source.sample.points, spec),
             Err(e) => Err(e.clone()),
-        })
-        .await?;
-        let mut map = self
-            .influence
-            .lock()
-            .unwrap_or_else(PoisonError::into_inner);
-        map.retain(|k, _| k.catalog_version >= key.catalog_version);
-        make_room(&mut map);
-        Ok(map.entry(key).or_insert_with(|| Arc::new(result)).clone())
+        };
+        let map = self.influence.clone();
+        let store_key = key.clone();
+        let store = move |result: InfluenceResult| {
+            let mut map = map.lock().unwrap_or_else(PoisonError::into_inner);
+            // An older version's list never pushes out a newer one.
+            if map
+                .keys()
+                .any(|k| k.catalog_version > store_key.catalog_version)
+            {
+                return Arc::new(result);
+            }
+            map.retain(|k, _| k.catalog_version >= store_key.catalog_version);
+            make_room(&mut map);
+            map.entry(store_key)
+                .or_insert_with(|| Arc::new(result))
+                .clone()
+        };
+        let rx = under_way(
+            &self.influence_under_way,
+            &key,
+            self.hold.clone(),
+            compute,
+            store,
+        );
+        wait_for(rx, wait).await
+    }
+
+    /// The adopted rows of the current catalog version: read once per version, then shared by
+    /// every fit and table of that version.
+    ///
+    /// # Errors
+    /// When the database cannot be read.
+    pub async fn rows(&self, pool: &SqlitePool) -> sqlx::Result<Arc<RowsSnapshot>> {
+        let version = history::current_version(pool).await?;
+        let mut slot = self.rows.lock().await;
+        if let Some(snapshot) = slot.as_ref().filter(|s| s.version >= version) {
+            return Ok(snapshot.clone());
+        }
+        let snapshot = Arc::new(relation_rows::snapshot(pool).await?);
+        *slot = Some(snapshot.clone());
+        Ok(snapshot)
+    }
+
+    /// Holds every computation of this cache before it starts until the returned guard is
+    /// dropped: how the tests make a computation slow at will.
+    pub fn hold(&self) -> HoldGuard {
+        self.hold.take()
     }
 }
 
-/// The sample of a relation from the catalog as it is now.
+/// The computation under way for `key` in `map`, or `compute` started on a task of its own
+/// (its result goes through `store`, then to every waiter, then the entry goes).
+fn under_way<T, C, S>(
+    map: &Arc<Mutex<HashMap<FitKey, InFlight<T>>>>,
+    key: &FitKey,
+    hold: Hold,
+    compute: C,
+    store: S,
+) -> InFlight<T>
+where
+    T: Send + Sync + 'static,
+    C: FnOnce() -> T + Send + 'static,
+    S: FnOnce(T) -> Arc<T> + Send + 'static,
+{
+    let mut running = map.lock().unwrap_or_else(PoisonError::into_inner);
+    if let Some(rx) = running.get(key) {
+        return rx.clone();
+    }
+    let (tx, rx) = tokio::sync::watch::channel(None);
+    running.insert(key.clone(), rx.clone());
+    let (map, key) = (map.clone(), key.clone());
+    tokio::spawn(async move {
+        let done = tokio::task::spawn_blocking(move || {
+            hold.wait();
+            compute()
+        })
+        .await;
+        if let Ok(value) = done {
+            // Receivers may all have gone; the stored value stays for the next visit.
+            let _ = tx.send(Some(store(value)));
+        }
+        map.lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .remove(&key);
+    });
+    rx
+}
+
+/// Waits for a computation's result for at most `wait` (`None`: until it is done).
+async fn wait_for<T>(
+    mut rx: InFlight<T>,
+    wait: Option<Duration>,
+) -> anyhow::Result<Option<Arc<T>>> {
+    let done = async {
+        rx.wait_for(Option::is_some)
+            .await
+            .map(|v| v.clone())
+            .map_err(|_| anyhow::anyhow!("a background computation panicked"))
+    };
+    match wait {
+        None => done.await,
+        Some(limit) => match tokio::time::timeout(limit, done).await {
+            Ok(result) => result,
+            Err(_) => Ok(None),
+        },
+    }
+}
+
+/// See [`FitCache::hold`].
+#[derive(Debug, Clone, Default)]
+struct Hold(Arc<(Mutex<usize>, Condvar)>);
+
+impl Hold {
+    fn take(&self) -> HoldGuard {
+        *self.0.0.lock().unwrap_or_else(PoisonError::into_inner) += 1;
+        HoldGuard(self.clone())
+    }
+
+    /// Blocks the calling (blocking-pool) thread while a guard is held.
+    fn wait(&self) {
+        let (count, released) = &*self.0;
+        let mut held = count.lock().unwrap_or_else(PoisonError::into_inner);
+        while *held > 0 {
+            held = released.wait(held).unwrap_or_else(PoisonError::into_inner);
+        }
+    }
+}
+
+/// While alive, the cache's computations wait before they start ([`FitCache::hold`]).
+#[derive(Debug)]
+pub struct HoldGuard(Hold);
+
+impl Drop for HoldGuard {
+    fn drop(&mut self) {
+        let (count, released) = &*(self.0).0;
+        let mut held = count.lock().unwrap_or_else(PoisonError::into_inner);
+        *held = held.saturating_sub(1);
+        released.notify_all();
+    }
+}
+
+/// The sample of a relation from the catalog as it is now, and the version it was read at.
 ///
 /// # Errors
 /// When the database cannot be read.
 pub async fn load_sample(
     pool: &SqlitePool,
+    cache: &FitCache,
     relation: &Relation,
     filter: &SampleFilter,
     soi_threshold: f64,
-) -> sqlx::Result<Sample> {
-    let rows = relation_rows::relation_rows(pool).await?;
-    let lums = match relation {
-        Relation::Luminosity(_) => relation_rows::luminosity_rows(pool).await?,
-        _ => Vec::new(),
-    };
-    Ok(build_sample(&rows, &lums, relation, filter, soi_threshold))
+) -> sqlx::Result<(i64, Sample)> {
+    let snapshot = cache.rows(pool).await?;
+    Ok((
+        snapshot.version,
+        build_sample(
+            &snapshot.rows,
+            &snapshot.luminosities,
+            relation,
+            filter,
+            soi_threshold,
+        ),
+    ))
 }
 
 /// The specification of a fit of `relation` (its shape, the pivots).
@@ -237,26 +463,72 @@ pub async fn fitted(
     filter: &SampleFilter,
     pivots: (f64, f64),
 ) -> anyhow::Result<Arc<FitOutcome>> {
-    let version = history::current_version(pool).await?;
-    let key = FitKey::new(version, relation, method, filter, pivots.0, pivots.1);
+    fitted_within(
+        pool,
+        cache,
+        soi_threshold,
+        (relation, method, filter, pivots),
+        None,
+    )
+    .await?
+    .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))
+}
+
+/// What selects a fit: the relation, the estimator, the sample and the pivots.
+pub type FitChoiceRef<'a> = (&'a Relation, Method, &'a SampleFilter, (f64, f64));
+
+/// As [`fitted`], waiting for the fit at most `wait` (`None`: as long as it takes). When the
+/// wait runs out the fit goes on in the background and `Ok(Err(key))` names the fit being
+/// computed (pages then show [`FitCache::latest`] and say so).
+///
+/// # Errors
+/// As [`fitted`].
+pub async fn fitted_within(
+    pool: &SqlitePool,
+    cache: &FitCache,
+    soi_threshold: f64,
+    (relation, method, filter, pivots): FitChoiceRef<'_>,
+    wait: Option<Duration>,
+) -> anyhow::Result<Result<Arc<FitOutcome>, FitKey>> {
+    let snapshot = cache.rows(pool).await?;
+    let key = FitKey::new(
+        snapshot.version,
+        relation,
+        method,
+        filter,
+        pivots.0,
+        pivots.1,
+    );
     if let Some(hit) = cache.get(&key) {
-        return Ok(hit);
+        return Ok(Ok(hit));
     }
-    let sample = load_sample(pool, relation, filter, soi_threshold).await?;
     let spec = spec_for(relation, method, pivots.0, pivots.1);
     let compute_key = key.clone();
-    cache
-        .get_or_compute(&key, move || {
-            let fit = spec.clone().and_then(|s| fit::fit(&sample.points, &s));
-            FitOutcome {
-                key: compute_key,
-                sample,
-                fit,
-                spec,
-                fitted_at: now_rfc3339(),
-            }
-        })
-        .await
+    let (relation, filter) = (relation.clone(), filter.clone());
+    let done = cache
+        .fit_within(
+            &key,
+            move || {
+                let sample = build_sample(
+                    &snapshot.rows,
+                    &snapshot.luminosities,
+                    &relation,
+                    &filter,
+                    soi_threshold,
+                );
+                let fit = spec.clone().and_then(|s| fit::fit(&sample.points, &s));
+                FitOutcome {
+                    key: compute_key,
+                    sample,
+                    fit,
+                    spec,
+                    fitted_at: now_rfc3339(),
+                }
+            },
+            wait,
+        )
+        .await?;
+    Ok(done.ok_or(key))
 }
 
 /// The fit of `sample` with the galaxy `galaxy_id` left out, and that galaxy's index in

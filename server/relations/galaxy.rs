@@ -2,17 +2,20 @@
 //! adopted distance, the sphere-of-influence check of each black-hole mass, and the galaxy
 //! placed against each relation fitted without it.
 
+use std::sync::Arc;
+use std::time::Duration;
+
 use sqlx::SqlitePool;
 
 use super::place::{Placement, Subject, SubjectMass, input_text, place_against};
 use super::{
-    Catalog, FitKey, Relation, SampleFilter, at_adopted_distance, build_sample, fitted_leaving_out,
-    sphere_of_influence,
+    Catalog, FitKey, FitOutcome, Relation, Sample, SampleFilter, at_adopted_distance, build_sample,
+    fitted_leaving_out, sphere_of_influence,
 };
 use crate::astro::SphereOfInfluence;
 use crate::catalog::galaxies::Unreviewed;
 use crate::catalog::model::{Galaxy, Measurement};
-use crate::catalog::{galaxies, history, relation_rows};
+use crate::catalog::{galaxies, relation_rows};
 use crate::error::AppResult;
 use crate::fit::Method;
 use crate::units::{Quantity, format_log_with_errors};
@@ -116,19 +119,35 @@ pub struct LeftOutPlacements {
     pub placements: Vec<Placement>,
     /// Why no relation applies, when none does.
     pub none_because: Option<String>,
+    /// Relations whose fit (or influence list) is still being computed in the background.
+    pub computing: Vec<String>,
+    /// Relations placed against the one-step approximation of the fit without the galaxy.
+    pub approximate: Vec<String>,
 }
+
+/// Largest sample whose fit without one galaxy is refitted exactly on a galaxy page. Above it
+/// the page takes the fit without the galaxy from the whole sample's fit and the galaxy's
+/// one-step leave-one-out change (`fit::leave_one_out`, computed once per version by the
+/// background analysis): a refit of a survey-sized sample per page view, per relation, would
+/// cost seconds, and one object moves such a fit by far less than its errors.
+pub const LEFT_OUT_REFIT_MAX: usize = 2_000;
 
 /// The galaxy against every relation it has values for, each fitted (structural, default
 /// sample and pivots, as on the relations' pages) without the galaxy, so its own point cannot
-/// pull the relation towards itself. The left-out fits are cached per catalog version.
+/// pull the relation towards itself. The left-out fits are cached per catalog version; above
+/// [`LEFT_OUT_REFIT_MAX`] objects they come from the one-step approximation. A fit not ready
+/// within `wait` is named in `computing` instead of placed.
 ///
 /// # Errors
 /// When the catalog cannot be read or a fitting task fails.
-pub async fn place_left_out(catalog: &Catalog, galaxy_id: i64) -> AppResult<LeftOutPlacements> {
+pub async fn place_left_out(
+    catalog: &Catalog,
+    galaxy_id: i64,
+    wait: Option<Duration>,
+) -> AppResult<LeftOutPlacements> {
     let pool = &catalog.pool;
-    let version = history::current_version(pool).await?;
-    let rows = relation_rows::relation_rows(pool).await?;
-    let lums = relation_rows::luminosity_rows(pool).await?;
+    let snapshot = catalog.fits.rows(pool).await?;
+    let (rows, lums) = (&snapshot.rows, &snapshot.luminosities);
     let bands: Vec<String> = relation_rows::luminosity_bands(pool)
         .await?
         .into_iter()
@@ -137,44 +156,73 @@ pub async fn place_left_out(catalog: &Catalog, galaxy_id: i64) -> AppResult<Left
     let filter = SampleFilter::default();
     let method = Method::Structural;
     let mut placements = Vec::new();
+    let (mut computing, mut approximate) = (Vec::new(), Vec::new());
     for relation in Relation::all(&bands) {
         let pivots = (relation.default_pivot(), relation.default_pivot2());
-        let sample = build_sample(&rows, &lums, &relation, &filter, catalog.soi_threshold);
-        let full_key = FitKey::new(version, &relation, method, &filter, pivots.0, pivots.1);
-        let Some((outcome, index)) = fitted_leaving_out(
-            &catalog.fits,
-            &full_key,
-            &relation,
-            method,
-            &sample,
-            galaxy_id,
-        )
-        .await?
-        else {
+        let sample = build_sample(rows, lums, &relation, &filter, catalog.soi_threshold);
+        let Some(index) = sample.members.iter().position(|m| m.galaxy_id == galaxy_id) else {
             continue;
         };
-        let (p, m) = (&sample.points[index], &sample.members[index]);
-        let shown = |v: f64, e: f64| format_log_with_errors(v, e, e, false);
-        let x2_text = p.x2.map(|b| shown(b, p.x2_err));
-        let subject = Subject {
-            name: m.name.clone(),
-            href: Some(format!("/galaxies/{}", m.slug)),
-            x: (p.x, p.x_err),
-            x2: p.x2.map(|b| (b, p.x2_err)),
-            mass: Some(SubjectMass {
-                log_mbh: p.y,
-                err_minus_dex: p.y_err,
-                err_plus_dex: p.y_err,
-                err_dex: p.y_err,
-                xy_cov: p.xy_cov,
-                x2_y_cov: p.x2_y_cov,
-                upper_limit: p.upper_limit,
-            }),
-            input: input_text(&relation, &shown(p.x, p.x_err), x2_text.as_deref()),
+        let outcome = if sample.points.len() <= LEFT_OUT_REFIT_MAX {
+            let full_key = FitKey::new(
+                snapshot.version,
+                &relation,
+                method,
+                &filter,
+                pivots.0,
+                pivots.1,
+            );
+            match fitted_leaving_out(
+                &catalog.fits,
+                &full_key,
+                &relation,
+                method,
+                &sample,
+                galaxy_id,
+            )
+            .await?
+            {
+                Some((outcome, _)) => outcome,
+                None => continue,
+            }
+        } else {
+            let choice = (&relation, method, &filter, pivots);
+            let Ok(full) = catalog.fitted_within(choice, wait).await? else {
+                computing.push(relation.label());
+                continue;
+            };
+            let Some(influence) = catalog.fits.influence_within(&full, wait).await? else {
+                computing.push(relation.label());
+                continue;
+            };
+            let shift = influence.as_ref().as_ref().ok().and_then(|list| {
+                full.sample
+                    .members
+                    .iter()
+                    .position(|m| m.galaxy_id == galaxy_id)
+                    .and_then(|i| list.iter().find(|inf| inf.index == i))
+            });
+            let (Ok(fit), Some(shift)) = (&full.fit, shift) else {
+                // No fit, or no change known for this galaxy: placed against the whole sample.
+                placements_push_full(&mut placements, &relation, &full, &sample, index);
+                continue;
+            };
+            approximate.push(relation.label());
+            Arc::new(FitOutcome {
+                key: full.key.leaving_out(galaxy_id),
+                sample: full.sample.clone(),
+                fit: Ok(fit.shifted(shift.d_alpha, shift.d_beta, shift.d_eps)),
+                spec: full.spec.clone(),
+                fitted_at: full.fitted_at.clone(),
+            })
         };
-        placements.push(place_against(&relation, outcome, &subject));
+        placements.push(place_against(
+            &relation,
+            outcome,
+            &subject_of(&relation, &sample, index),
+        ));
     }
-    let none_because = placements.is_empty().then(|| {
+    let none_because = (placements.is_empty() && computing.is_empty()).then(|| {
         let why = match rows.iter().find(|r| r.galaxy_id == galaxy_id) {
             Some(r) if r.log_mbh.is_none() => {
                 "it has no adopted black-hole mass or upper limit".to_owned()
@@ -191,5 +239,45 @@ pub async fn place_left_out(catalog: &Catalog, galaxy_id: i64) -> AppResult<Left
     Ok(LeftOutPlacements {
         placements,
         none_because,
+        computing,
+        approximate,
     })
+}
+
+/// The galaxy `index` of `sample` as the object placed.
+fn subject_of(relation: &Relation, sample: &Sample, index: usize) -> Subject {
+    let (p, m) = (&sample.points[index], &sample.members[index]);
+    let shown = |v: f64, e: f64| format_log_with_errors(v, e, e, false);
+    let x2_text = p.x2.map(|b| shown(b, p.x2_err));
+    Subject {
+        name: m.name.clone(),
+        href: Some(format!("/galaxies/{}", m.slug)),
+        x: (p.x, p.x_err),
+        x2: p.x2.map(|b| (b, p.x2_err)),
+        mass: Some(SubjectMass {
+            log_mbh: p.y,
+            err_minus_dex: p.y_err,
+            err_plus_dex: p.y_err,
+            err_dex: p.y_err,
+            xy_cov: p.xy_cov,
+            x2_y_cov: p.x2_y_cov,
+            upper_limit: p.upper_limit,
+        }),
+        input: input_text(relation, &shown(p.x, p.x_err), x2_text.as_deref()),
+    }
+}
+
+/// Places the galaxy against the whole sample's fit (when no left-out change is known).
+fn placements_push_full(
+    placements: &mut Vec<Placement>,
+    relation: &Relation,
+    full: &Arc<FitOutcome>,
+    sample: &Sample,
+    index: usize,
+) {
+    placements.push(place_against(
+        relation,
+        full.clone(),
+        &subject_of(relation, sample, index),
+    ));
 }

@@ -31,12 +31,13 @@ pub mod place;
 mod runs;
 mod sample;
 pub mod table;
+pub mod version_analysis;
 
 use std::fmt;
 
 pub use cache::{
-    FitCache, FitKey, FitOutcome, InfluenceResult, fitted, fitted_leaving_out, load_sample,
-    spec_for,
+    FitCache, FitChoiceRef, FitKey, FitOutcome, HoldGuard, InfluenceResult, fitted,
+    fitted_leaving_out, fitted_within, load_sample, spec_for,
 };
 pub use defaults::{
     DEFAULT_REPLICATES, DEFAULT_STEPS, LUMINOSITY_PIVOT_LOG, MBULGE_PIVOT_LOG, POSTERIOR_BURN_IN,
@@ -99,6 +100,19 @@ impl Catalog {
             pivots,
         )
         .await
+    }
+
+    /// As [`Catalog::fitted`], waiting at most `wait`; `Ok(Err(key))` names the fit still being
+    /// computed in the background ([`fitted_within`]).
+    ///
+    /// # Errors
+    /// As [`Catalog::fitted`].
+    pub async fn fitted_within(
+        &self,
+        choice: FitChoiceRef<'_>,
+        wait: Option<std::time::Duration>,
+    ) -> anyhow::Result<Result<Arc<FitOutcome>, FitKey>> {
+        fitted_within(&self.pool, &self.fits, self.soi_threshold, choice, wait).await
     }
 }
 

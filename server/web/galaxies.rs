@@ -290,6 +290,10 @@ pub(crate) struct SoiView {
 #[template(path = "pages/galaxy_show.html")]
 pub(crate) struct GalaxyShowPage {
     nav: super::Nav,
+    /// Said while a fit without the galaxy is still being computed.
+    computing: Option<String>,
+    /// Said when a fit without the galaxy is the one-step approximation.
+    approximate: Option<String>,
     name: String,
     morphology: &'static str,
     bulge_kind: &'static str,
@@ -323,7 +327,8 @@ pub(crate) async fn show_galaxy(
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
     let galaxy = &record.galaxy;
-    let left_out = place_left_out(&state.catalog(), galaxy.galaxy_id).await?;
+    let left_out =
+        place_left_out(&state.catalog(), galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
     let mut reviews =
         crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?;
     for r in &mut reviews {
@@ -363,6 +368,19 @@ pub(crate) async fn show_galaxy(
         rows,
         charts,
         no_relation: left_out.none_because,
+        computing: (!left_out.computing.is_empty()).then(|| {
+            format!(
+                "Computing: the fits of {} without this galaxy are under way; this page reloads itself.",
+                left_out.computing.join(", ")
+            )
+        }),
+        approximate: (!left_out.approximate.is_empty()).then(|| {
+            format!(
+                "For {} (samples of more than {} objects) the fit without this galaxy is the whole sample's fit moved by the galaxy's one-step leave-one-out change, not a refit (docs/methods.md §6).",
+                left_out.approximate.join(", "),
+                crate::relations::galaxy::LEFT_OUT_REFIT_MAX
+            )
+        }),
         reviews,
     })
 }

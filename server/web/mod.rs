@@ -32,6 +32,10 @@ use crate::catalog::health::WriteHealth;
 use crate::router::{Door, Routes, UPLOAD_LIMIT_BYTES, no_layers};
 use crate::state::AppState;
 
+/// How long a page waits for a fit or an influence list being computed (by the background
+/// analysis or another request) before it answers with what it has, saying "computing".
+pub(crate) const PAGE_WAIT: std::time::Duration = std::time::Duration::from_millis(1_000);
+
 /// The pages' door: every path but the JSON API's.
 pub fn door() -> Door {
     Door {

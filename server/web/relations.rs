@@ -276,6 +276,56 @@ async fn fit_for(
     .await?)
 }
 
+/// A fit as a page shows it: the current version's, or while that is being computed the
+/// newest older one, with the version being computed.
+struct Shown {
+    outcome: Arc<FitOutcome>,
+    /// The catalog version whose fit is still being computed, when `outcome` is older.
+    computing: Option<i64>,
+}
+
+/// The fit a page shows ([`Shown`]), waiting at most [`super::PAGE_WAIT`]; `Err(version)` when no
+/// version's fit is ready yet.
+async fn fit_shown(
+    state: &AppState,
+    relation: &Relation,
+    q: &RelationQuery,
+) -> AppResult<Result<Shown, i64>> {
+    let choice = (
+        relation,
+        q.fit.method,
+        &q.fit.filter,
+        q.fit.pivots(relation),
+    );
+    Ok(
+        match state
+            .catalog()
+            .fitted_within(choice, Some(super::PAGE_WAIT))
+            .await?
+        {
+            Ok(outcome) => Ok(Shown {
+                outcome,
+                computing: None,
+            }),
+            Err(key) => state
+                .fits
+                .latest(&key)
+                .map(|outcome| Shown {
+                    outcome,
+                    computing: Some(key.catalog_version),
+                })
+                .ok_or(key.catalog_version),
+        },
+    )
+}
+
+/// The sentence a page shows while a newer version's fit is being computed.
+fn computing_note(shown_version: i64, computing: i64) -> String {
+    format!(
+        "Computing: the fit of catalog version {computing} is under way; shown meanwhile is the fit of version {shown_version}. This page reloads itself."
+    )
+}
+
 /// A parameter with its error, rounded to the error.
 fn with_error(value: f64, err: f64) -> String {
     round_to_uncertainty(value, err).replace('-', "−")
@@ -308,6 +358,8 @@ pub(crate) struct RelationsListPage {
     nav: super::Nav,
     relations: Vec<RelationSummary>,
     catalog_version: i64,
+    /// Said while a fit of the current version is still being computed.
+    computing: Option<String>,
 }
 
 /// Show every relation with its current structural fit.
@@ -318,9 +370,32 @@ pub(crate) async fn list_relations(
     let q = RelationQuery::default();
     let mut relations = Vec::new();
     let mut catalog_version = 0;
+    let mut computing = None;
     for relation in relations_of(&state).await? {
-        let outcome = fit_for(&state, &relation, &q).await?;
-        catalog_version = outcome.key.catalog_version;
+        let outcome = match fit_shown(&state, &relation, &q).await? {
+            Ok(shown) => {
+                computing = computing.or(shown.computing);
+                shown.outcome
+            }
+            Err(version) => {
+                computing = Some(version);
+                relations.push(RelationSummary {
+                    label: relation.label(),
+                    slug: relation.slug(),
+                    x_label: relation.x_label(),
+                    alpha: "—".into(),
+                    beta: "—".into(),
+                    gamma: None,
+                    eps: "—".into(),
+                    n: "—".into(),
+                    problem: Some(format!(
+                        "Computing: the fit of catalog version {version} is under way; this page reloads itself."
+                    )),
+                });
+                continue;
+            }
+        };
+        catalog_version = catalog_version.max(outcome.key.catalog_version);
         let n = format!(
             "{} + {} limits",
             outcome.sample.n_detections(),
@@ -356,6 +431,11 @@ pub(crate) async fn list_relations(
         nav,
         relations,
         catalog_version,
+        computing: computing.map(|v| {
+            format!(
+                "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
+            )
+        }),
     })
 }
 
@@ -489,6 +569,8 @@ pub(crate) struct RelationPage {
     runs: Vec<RunView>,
     refresh: bool,
     may_start: bool,
+    /// Said while the current version's fit is computed and an older one is shown.
+    computing: Option<String>,
 }
 
 /// A bootstrap or posterior run on the relation page.
@@ -818,10 +900,24 @@ pub(crate) async fn show_relation(
     nav: super::Nav,
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-) -> AppResult<RelationPage> {
+) -> AppResult<Response> {
     let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let shown = match fit_shown(&state, &relation, &q).await? {
+        Ok(shown) => shown,
+        Err(version) => {
+            return Ok(ComputingPage {
+                nav,
+                label: relation.label(),
+                version,
+            }
+            .into_response());
+        }
+    };
+    let outcome = shown.outcome;
+    let computing = shown
+        .computing
+        .map(|v| computing_note(outcome.key.catalog_version, v));
     let (chart_svg, chart_error) = match relation_chart_svg(&relation, &outcome, q.group) {
         Ok(svg) => (svg, None),
         Err(e) => (String::new(), Some(e)),
@@ -831,14 +927,14 @@ pub(crate) async fn show_relation(
     let (residual_svg, residual2_svg) = fit
         .map(|f| residual_charts(&relation, &outcome, f, &q))
         .unwrap_or_default();
-    let (influential, influence_note) = if fit.is_some() {
-        influence_views(&state, &outcome).await?
-    } else {
-        (Vec::new(), None)
+    let (influential, influence_note, influence_pending) = match (fit, computing.is_some()) {
+        (Some(_), false) => influence_views(&state, &outcome).await?,
+        _ => (Vec::new(), None, false),
     };
     let (offset, offset_note) = offset_view(&outcome, &q).await?;
     let runs = run_views(&state, &outcome, &q).await?;
-    let refresh = runs.iter().any(|r| r.status == "running");
+    let refresh =
+        runs.iter().any(|r| r.status == "running") || computing.is_some() || influence_pending;
     let may_start = nav.username.is_some();
     let query_plain = q.to_query_string();
     Ok(RelationPage {
@@ -869,7 +965,18 @@ pub(crate) async fn show_relation(
         runs,
         refresh,
         may_start,
-    })
+        computing,
+    }
+    .into_response())
+}
+
+/// A relation page asked for before any version's fit of that selection is ready.
+#[derive(Template, WebTemplate)]
+#[template(path = "pages/computing.html")]
+pub(crate) struct ComputingPage {
+    nav: super::Nav,
+    label: String,
+    version: i64,
 }
 
 /// The fitted parameters with their errors, intervals and units, and the covariance matrix.
@@ -984,14 +1091,15 @@ fn flagged_views(outcome: &FitOutcome) -> Vec<ObjectView> {
         .collect()
 }
 
-/// The most influential objects (leave-one-out refits), or why there are none.
+/// The most influential objects (leave-one-out), or why there are none; the flag is set while
+/// they are still being computed.
 async fn influence_views(
     state: &AppState,
     outcome: &Arc<FitOutcome>,
-) -> AppResult<(Vec<ObjectView>, Option<String>)> {
+) -> AppResult<(Vec<ObjectView>, Option<String>, bool)> {
     Ok(
-        match most_influential(&state.fits, outcome, TOP_INFLUENCE).await? {
-            Ok(list) => (
+        match most_influential(&state.fits, outcome, TOP_INFLUENCE, Some(super::PAGE_WAIT)).await? {
+            Some(Ok(list)) => (
                 list.iter()
                     .map(|i| {
                         let m = &outcome.sample.members[i.index];
@@ -1005,8 +1113,17 @@ async fn influence_views(
                     })
                     .collect(),
                 None,
+                false,
             ),
-            Err(why) => (Vec::new(), Some(why)),
+            Some(Err(why)) => (Vec::new(), Some(why), false),
+            None => (
+                Vec::new(),
+                Some(
+                    "Computing: the influence of each object is under way; this page reloads itself."
+                        .to_owned(),
+                ),
+                true,
+            ),
         },
     )
 }

@@ -55,6 +55,8 @@ pub(crate) struct ReviewPage {
     items: Vec<QueueItem>,
     /// Pending submissions in all.
     total: usize,
+    /// Pending submissions not yet placed against the current fits (listed last).
+    unscored: usize,
     page: usize,
     pages: usize,
 }
@@ -88,8 +90,10 @@ pub(crate) async fn show_queue(
             ))
         })?,
     };
-    let (entries, total) = review_queue_page(&state.catalog(), page, QUEUE_PAGE).await?;
-    let items = entries
+    let queue = review_queue_page(&state.catalog(), page, QUEUE_PAGE).await?;
+    let total = queue.total;
+    let items = queue
+        .entries
         .iter()
         .map(|e| QueueItem::of(e, user.role, user.account_id))
         .collect();
@@ -99,6 +103,7 @@ pub(crate) async fn show_queue(
         csrf: user.csrf_token.clone(),
         items,
         total,
+        unscored: queue.unscored,
         page,
         pages,
     })
