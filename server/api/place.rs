@@ -25,15 +25,15 @@ use utoipa::{IntoParams, ToSchema};
 
 use super::cache::ApiCache;
 use super::problem::Problem;
-use super::relations::{all_relations, current_fit};
+use super::relations::all_relations;
 use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
 use crate::error::{AppError, FieldError};
-use crate::fit::Method;
+use crate::fit::{FitError, Method};
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, placement_numbers, read_object,
 };
-use crate::relations::{FitOutcome, Relation};
+use crate::relations::{FitOutcome, REQUEST_WAIT, Relation};
 use crate::state::AppState;
 
 /// Most objects one batch may hold.
@@ -302,9 +302,24 @@ async fn fits_for(
             match cache.place_fit(version, &slug) {
                 Some(hit) => Some(hit),
                 None => {
-                    let made = current_fit(state, version, &relation, &settings).await?;
-                    cache.keep_place_fit(&slug, &made);
-                    Some(made)
+                    let pivots = settings.pivots(&relation);
+                    let choice = (&relation, settings.method, &settings.filter, pivots);
+                    let waited = state
+                        .catalog()
+                        .fitted_within(choice, Some(REQUEST_WAIT))
+                        .await?;
+                    // While the fit is being computed: the newest earlier one (the answer's
+                    // catalog version says which), or a relation that says "computing".
+                    Some(match waited {
+                        Ok(made) => {
+                            cache.keep_place_fit(&slug, &made);
+                            made
+                        }
+                        Err(key) => match state.fits.latest(&key) {
+                            Some(older) => older,
+                            None => Arc::new(computing_outcome(key)),
+                        },
+                    })
                 }
             }
         } else {
@@ -313,6 +328,24 @@ async fn fits_for(
         fits.push((relation, outcome));
     }
     Ok(fits)
+}
+
+/// A relation whose fit is still being computed, with no older one to show.
+fn computing_outcome(key: crate::relations::FitKey) -> FitOutcome {
+    let version = key.catalog_version;
+    FitOutcome {
+        key,
+        sample: crate::relations::Sample::default(),
+        fit: Err(FitError::Unsupported {
+            what: format!(
+                "Computing: the fit of catalog version {version} is under way; ask again in a few seconds."
+            ),
+        }),
+        spec: Err(FitError::Unsupported {
+            what: "No fit yet.".to_owned(),
+        }),
+        fitted_at: String::new(),
+    }
 }
 
 fn bands_of(relations: &[Relation]) -> Vec<String> {
@@ -373,7 +406,8 @@ pub async fn place_one(
     let fits = fits_for(&state, &cache, version, relations, &needed).await?;
     let version = fits
         .iter()
-        .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .filter_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .min()
         .unwrap_or(version);
     Ok(Json(PlaceResult {
         catalog_version: version,
@@ -437,7 +471,8 @@ pub async fn place_batch(
     let fits = fits_for(&state, &cache, version, relations, &needed).await?;
     let version = fits
         .iter()
-        .find_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .filter_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
+        .min()
         .unwrap_or(version);
     let threshold = state.settings.soi_threshold;
     let place_all = move || {

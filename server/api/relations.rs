@@ -24,8 +24,8 @@ use crate::catalog::relation_rows;
 use crate::error::{AppError, FieldError};
 use crate::fit::{Fit, Intervals};
 use crate::relations::{
-    FILTER_PARAMS, FIT_PARAMS, FitChoice, FitKey, FitOutcome, Relation, SampleFilter, SigmaChoice,
-    SoiChoice, fitted,
+    FILTER_PARAMS, FIT_PARAMS, FitChoice, FitKey, FitOutcome, REQUEST_WAIT, Relation, SampleFilter,
+    SigmaChoice, SoiChoice,
 };
 use crate::state::AppState;
 
@@ -238,7 +238,10 @@ pub async fn all_relations(
 }
 
 /// The fit of `relation` at catalog version `version`: from the cache without another query,
-/// or fitted now (off the async runtime) and cached.
+/// or fitted now (off the async runtime) and cached. A fit still being computed (by the
+/// background analysis or another request) is waited for [`REQUEST_WAIT`]; after that the
+/// newest earlier fit is answered (its catalog version says so, and the answer is not kept as
+/// the current version's), and only when none exists does the request wait for the fit.
 ///
 /// # Errors
 /// A database failure or a failed fitting task.
@@ -260,16 +263,20 @@ pub async fn current_fit(
     if let Some(hit) = state.fits.get(&key) {
         return Ok(hit);
     }
-    Ok(fitted(
-        &state.pool,
-        &state.fits,
-        state.settings.soi_threshold,
-        relation,
-        settings.method,
-        &settings.filter,
-        pivots,
+    let choice = (relation, settings.method, &settings.filter, pivots);
+    let catalog = state.catalog();
+    Ok(
+        match catalog.fitted_within(choice, Some(REQUEST_WAIT)).await? {
+            Ok(outcome) => outcome,
+            Err(key) => match state.fits.latest(&key) {
+                Some(older) => older,
+                None => catalog
+                    .fitted_within(choice, None)
+                    .await?
+                    .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))?,
+            },
+        },
     )
-    .await?)
 }
 
 /// A covariance matrix with the names of its rows and columns.

@@ -4,11 +4,11 @@
 //! the check before submitting and the review queue all assess through here.
 
 use std::sync::Arc;
-use std::time::Duration;
+use std::time::{Duration, Instant};
 
-use super::place::{Placement, Subject, SubjectMass, input_text, place, place_against};
+use super::place::{Placement, Subject, SubjectMass, input_text, place_against, place_within};
 use super::{Catalog, Relation, at_adopted_distance, distance_scaling, sphere_of_influence};
-use super::{FitOutcome, SampleFilter};
+use super::{FitOutcome, REQUEST_WAIT, SampleFilter};
 use crate::astro::{SphereOfInfluence, distance_covariance_dex2, log_distance_error_dex};
 use crate::catalog::model::NewMeasurement;
 use crate::catalog::model::{Galaxy, Measurement, Quantity, SigmaDefinition};
@@ -207,11 +207,28 @@ pub async fn assess(
     submitted: &[Measurement],
     refit: bool,
 ) -> AppResult<Assessment> {
+    let deadline = Instant::now() + REQUEST_WAIT;
+    assess_until(catalog, galaxy, submitted, refit, deadline).await
+}
+
+/// As [`assess`], waiting for fits being computed until `deadline` at the latest (then the
+/// placements say "computing"), so a page that assesses many submissions waits once.
+///
+/// # Errors
+/// As [`assess`].
+pub async fn assess_until(
+    catalog: &Catalog,
+    galaxy: &Galaxy,
+    submitted: &[Measurement],
+    refit: bool,
+    deadline: Instant,
+) -> AppResult<Assessment> {
     let all = galaxies::measurements_of(&catalog.pool, galaxy.galaxy_id).await?;
     let bands = valid_bands(&catalog.pool).await?;
     let mut placements = Vec::new();
     for (relation, subject) in subjects(galaxy, submitted, &all, &bands) {
-        placements.push(place(catalog, &relation, &subject, refit).await?);
+        let wait = deadline.saturating_duration_since(Instant::now());
+        placements.push(place_within(catalog, &relation, &subject, refit, wait).await?);
     }
     let at = AtAdopted::new(galaxy);
     let chosen = Chosen::of(submitted, &all);
@@ -302,9 +319,6 @@ pub struct QueueEntry {
 /// yet; more are left to the background analysis (`version_analysis`) so the page stays fast.
 pub const SCORE_ON_REQUEST: usize = 200;
 
-/// How long a request that scores the queue waits for a relation's fit.
-const SCORE_WAIT: Duration = Duration::from_millis(1_500);
-
 /// A page of the review queue.
 #[derive(Debug, Clone)]
 pub struct QueuePage {
@@ -354,7 +368,9 @@ pub async fn score_pending(catalog: &Catalog, wait: Option<Duration>) -> AppResu
     }
     let bands = valid_bands(&catalog.pool).await?;
     let mut outcomes = Vec::new();
+    let deadline = wait.map(|w| Instant::now() + w);
     for relation in Relation::all(&bands) {
+        let wait = deadline.map(|d| d.saturating_duration_since(Instant::now()));
         let pivots = (relation.default_pivot(), relation.default_pivot2());
         let choice = (
             &relation,
@@ -415,7 +431,7 @@ pub async fn review_queue_page(
     let version = history::current_version(&catalog.pool).await?;
     let missing = review_scores::unscored(&catalog.pool, version).await?.len();
     if (1..=SCORE_ON_REQUEST).contains(&missing) {
-        score_pending(catalog, Some(SCORE_WAIT)).await?;
+        score_pending(catalog, Some(REQUEST_WAIT)).await?;
     }
     let total = usize::try_from(review_scores::pending_count(&catalog.pool).await?).unwrap_or(0);
     let unscored = review_scores::unscored(&catalog.pool, version).await?.len();
@@ -427,6 +443,7 @@ pub async fn review_queue_page(
     )
     .await?;
     let ids: Vec<i64> = lines.iter().map(|l| l.submission_id).collect();
+    let deadline = Instant::now() + REQUEST_WAIT;
     let mut entries = Vec::new();
     for pending in review_scores::pending_by_ids(&catalog.pool, &ids).await? {
         let Some(galaxy) =
@@ -434,7 +451,8 @@ pub async fn review_queue_page(
         else {
             continue;
         };
-        let assessment = assess(catalog, &galaxy, &pending.measurements, true).await?;
+        let assessment =
+            assess_until(catalog, &galaxy, &pending.measurements, true, deadline).await?;
         entries.push(QueueEntry {
             pending,
             galaxy,

@@ -542,7 +542,7 @@ pub async fn fitted_within(
 ///
 /// # Errors
 /// When the fitting task fails; a fit that cannot be made (too few points, ...) is an `Ok`
-/// outcome whose `fit` says why.
+/// outcome whose `fit` says why. The fit is `None` when it was not ready within `wait`.
 pub async fn fitted_leaving_out(
     cache: &FitCache,
     full_key: &FitKey,
@@ -550,13 +550,14 @@ pub async fn fitted_leaving_out(
     method: Method,
     sample: &Sample,
     galaxy_id: i64,
-) -> anyhow::Result<Option<(Arc<FitOutcome>, usize)>> {
+    wait: Option<Duration>,
+) -> anyhow::Result<Option<(Option<Arc<FitOutcome>>, usize)>> {
     let Some(index) = sample.members.iter().position(|m| m.galaxy_id == galaxy_id) else {
         return Ok(None);
     };
     let key = full_key.leaving_out(galaxy_id);
     if let Some(hit) = cache.get(&key) {
-        return Ok(Some((hit, index)));
+        return Ok(Some((Some(hit), index)));
     }
     let mut others = sample.clone();
     others.points.remove(index);
@@ -568,16 +569,20 @@ pub async fn fitted_leaving_out(
     let spec = spec_for(relation, method, pivots.0, pivots.1);
     let compute_key = key.clone();
     let outcome = cache
-        .get_or_compute(&key, move || {
-            let fit = spec.clone().and_then(|s| fit::fit(&others.points, &s));
-            FitOutcome {
-                key: compute_key,
-                sample: others,
-                fit,
-                spec,
-                fitted_at: now_rfc3339(),
-            }
-        })
+        .fit_within(
+            &key,
+            move || {
+                let fit = spec.clone().and_then(|s| fit::fit(&others.points, &s));
+                FitOutcome {
+                    key: compute_key,
+                    sample: others,
+                    fit,
+                    spec,
+                    fitted_at: now_rfc3339(),
+                }
+            },
+            wait,
+        )
         .await?;
     Ok(Some((outcome, index)))
 }
@@ -704,10 +709,12 @@ mod tests {
                 Method::Structural,
                 &sample,
                 id,
+                None,
             )
         };
         assert!(leave(99).await.unwrap().is_none(), "not in the sample");
         let (outcome, index) = leave(12).await.unwrap().unwrap();
+        let outcome = outcome.unwrap();
         assert_eq!(index, 2);
         assert_eq!(outcome.key.left_out, Some(12));
         assert_ne!(outcome.key, full);
@@ -716,7 +723,7 @@ mod tests {
         assert_eq!(outcome.sample.points.len(), 3);
         assert!((outcome.sample.points[2].x - 2.3).abs() < 1e-12);
         // A second visit takes the cached fit.
-        let (again, _) = leave(12).await.unwrap().unwrap();
+        let again = leave(12).await.unwrap().unwrap().0.unwrap();
         assert!(Arc::ptr_eq(&outcome, &again));
         assert_eq!(cache.len(), 1);
     }

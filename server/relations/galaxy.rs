@@ -179,10 +179,15 @@ pub async fn place_left_out(
                 method,
                 &sample,
                 galaxy_id,
+                wait,
             )
             .await?
             {
-                Some((outcome, _)) => outcome,
+                Some((Some(outcome), _)) => outcome,
+                Some((None, _)) => {
+                    computing.push(relation.label());
+                    continue;
+                }
                 None => continue,
             }
         } else {

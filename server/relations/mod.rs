@@ -65,6 +65,10 @@ use sqlx::SqlitePool;
 
 use crate::fit::{Method, Shape};
 
+/// How long a request waits for a fit or an influence list being computed (by the background
+/// analysis or another request) before it answers with what it has, saying "computing".
+pub const REQUEST_WAIT: std::time::Duration = std::time::Duration::from_millis(1_000);
+
 /// The catalog and its fits, as the computations on them read them (cheap to clone).
 #[derive(Clone)]
 pub struct Catalog {

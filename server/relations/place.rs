@@ -14,7 +14,7 @@
 
 use std::sync::Arc;
 
-use super::{Catalog, FitOutcome, Relation, SampleFilter};
+use super::{Catalog, FitKey, FitOutcome, REQUEST_WAIT, Relation, SampleFilter};
 use crate::astro::SphereOfInfluence;
 use crate::error::{AppResult, FieldError};
 use crate::fit::{self, Fit, FitError, Method, Point, Prediction, Shape};
@@ -429,6 +429,8 @@ pub struct Placement {
     pub numbers: Result<PlacementNumbers, String>,
     /// With a mass and when asked for: the fit with the object included, or why it failed.
     pub refit: Option<Result<Fit, String>>,
+    /// The catalog version whose fit is still being computed, when `outcome` is an older one.
+    pub computing: Option<i64>,
 }
 
 impl Placement {
@@ -454,6 +456,33 @@ pub fn place_against(
         outcome,
         numbers,
         refit: None,
+        computing: None,
+    }
+}
+
+/// A placement that could not be made yet: the fit it needs is still being computed.
+fn computing_placement(relation: &Relation, subject: &Subject, key: FitKey) -> Placement {
+    let version = key.catalog_version;
+    let numbers = Err(format!(
+        "Computing: the fit of catalog version {version} is under way; ask again in a few seconds."
+    ));
+    Placement {
+        relation: relation.clone(),
+        subject: subject.clone(),
+        outcome: Arc::new(FitOutcome {
+            key,
+            sample: super::Sample::default(),
+            fit: Err(FitError::Unsupported {
+                what: format!("The fit of catalog version {version} is being computed."),
+            }),
+            spec: Err(FitError::Unsupported {
+                what: "No fit yet.".to_owned(),
+            }),
+            fitted_at: String::new(),
+        }),
+        numbers,
+        refit: None,
+        computing: Some(version),
     }
 }
 
@@ -470,16 +499,38 @@ pub async fn place(
     subject: &Subject,
     refit: bool,
 ) -> AppResult<Placement> {
+    place_within(catalog, relation, subject, refit, REQUEST_WAIT).await
+}
+
+/// As [`place`], waiting at most `wait` for a fit being computed.
+///
+/// # Errors
+/// As [`place`].
+pub async fn place_within(
+    catalog: &Catalog,
+    relation: &Relation,
+    subject: &Subject,
+    refit: bool,
+    wait: std::time::Duration,
+) -> AppResult<Placement> {
     let pivots = (relation.default_pivot(), relation.default_pivot2());
-    let outcome = catalog
-        .fitted(
-            relation,
-            Method::Structural,
-            &SampleFilter::default(),
-            pivots,
-        )
-        .await?;
+    let choice = (
+        relation,
+        Method::Structural,
+        &SampleFilter::default(),
+        pivots,
+    );
+    let (outcome, computing) = match catalog.fitted_within(choice, Some(wait)).await? {
+        Ok(outcome) => (outcome, None),
+        // Being computed: the newest earlier fit (its catalog version goes with it), or a
+        // placement that says so.
+        Err(key) => match catalog.fits.latest(&key) {
+            Some(older) => (older, Some(key.catalog_version)),
+            None => return Ok(computing_placement(relation, subject, key)),
+        },
+    };
     let mut placement = place_against(relation, outcome, subject);
+    placement.computing = computing;
     let (Some(m), Some(fit), true) = (subject.mass, placement.fit(), refit) else {
         return Ok(placement);
     };

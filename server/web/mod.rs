@@ -34,7 +34,7 @@ use crate::state::AppState;
 
 /// How long a page waits for a fit or an influence list being computed (by the background
 /// analysis or another request) before it answers with what it has, saying "computing".
-pub(crate) const PAGE_WAIT: std::time::Duration = std::time::Duration::from_millis(1_000);
+pub(crate) const PAGE_WAIT: std::time::Duration = crate::relations::REQUEST_WAIT;
 
 /// The pages' door: every path but the JSON API's.
 pub fn door() -> Door {

@@ -307,6 +307,12 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
         refit: None,
         problem: None,
     };
+    if let (Some(v), Ok(_)) = (p.computing, &p.numbers) {
+        row.problem = Some(format!(
+            "Computing: the fit of catalog version {v} is under way; placed meanwhile against the fit of version {}.",
+            p.outcome.key.catalog_version
+        ));
+    }
     let numbers = match &p.numbers {
         Ok(n) => n,
         Err(problem) => {

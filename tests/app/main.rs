@@ -7,6 +7,7 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod analysis;
 mod api;
 mod api_fuzz;
 mod galaxy_names;
