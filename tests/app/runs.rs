@@ -173,7 +173,7 @@ async fn two_accounts_runs_compute_while_a_third_waits_with_its_place_in_the_que
 }
 
 /// The form fields of a new galaxy with a σ_e and a black-hole mass (invented values).
-fn new_galaxy_form<'a>(name: &'a str) -> Vec<(&'a str, &'a str)> {
+fn new_galaxy_form(name: &str) -> Vec<(&str, &str)> {
     vec![
         ("galaxy", ""),
         ("name", name),
