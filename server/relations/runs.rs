@@ -34,6 +34,9 @@ use crate::error::AppError;
 use crate::fit::ensemble::{EnsembleConfig, ParamSummary};
 use crate::fit::{self, FitError, Params};
 
+/// How often a computing run's catalog version is read.
+const VERSION_CHECK: std::time::Duration = std::time::Duration::from_secs(1);
+
 /// Replicates per progress step of a bootstrap run.
 pub const BOOTSTRAP_CHUNK: usize = 25;
 
@@ -489,13 +492,10 @@ impl RunRegistry {
         let work = {
             let registry = self.clone();
             let outcome = w.outcome.clone();
-            let pool = w.pool.clone();
-            let handle = tokio::runtime::Handle::current();
+            let progress = progress.clone();
             tokio::task::spawn_blocking(move || {
                 registry.wait_while_held();
-                // Between chunks the run reads the catalog version: a cheap query, and the
-                // only way a run learns of a change no request has seen yet.
-                let superseded = || handle.block_on(newer_version(&pool, &progress));
+                let superseded = || progress.newer_version();
                 // One thread per run, so the cap on running runs bounds the cores used.
                 let threads = rayon::ThreadPoolBuilder::new()
                     .num_threads(1)
@@ -507,7 +507,22 @@ impl RunRegistry {
                 threads.install(|| compute(&outcome, kind_of(&progress), &progress, &superseded))
             })
         };
-        match work.await {
+        // While it computes, the catalog version is read every VERSION_CHECK (a cheap query,
+        // and the only way a run learns of a change no request has seen yet); the computation
+        // looks at the flag this raises between chunks.
+        let watch = async {
+            loop {
+                tokio::time::sleep(VERSION_CHECK).await;
+                if let Some(to) = newer_version(&w.pool, &progress).await {
+                    progress.superseded_by.store(to, Ordering::Relaxed);
+                }
+            }
+        };
+        let work = tokio::select! {
+            done = work => done,
+            never = watch => never,
+        };
+        match work {
             Ok(Ok(Computed::Done(result))) => {
                 if let Some(to) = newer_version(&w.pool, &w.progress).await {
                     return RunState::Cancelled {
