@@ -37,6 +37,9 @@ use crate::fit::{self, FitError, Params};
 /// How often a computing run's catalog version is read.
 const VERSION_CHECK: std::time::Duration = std::time::Duration::from_secs(1);
 
+/// Finished runs whose status the registry keeps (each holds its fit's sample).
+const KEPT_FINISHED: usize = 200;
+
 /// Replicates per progress step of a bootstrap run.
 pub const BOOTSTRAP_CHUNK: usize = 25;
 
@@ -290,6 +293,25 @@ impl Books {
     fn finished(&mut self, account_id: i64) {
         if let Some(i) = self.running.iter().position(|a| *a == account_id) {
             self.running.swap_remove(i);
+        }
+        // Finished runs are kept for their status (a stored one is found in the database
+        // anyway); beyond KEPT_FINISHED the oldest are forgotten, so one catalog version with
+        // many runs cannot hold their samples in memory for ever.
+        let mut over: Vec<u64> = self
+            .by_id
+            .values()
+            .filter(|p| p.state().is_over())
+            .map(|p| p.id)
+            .collect();
+        if over.len() > KEPT_FINISHED {
+            over.sort_unstable();
+            for id in &over[..over.len() - KEPT_FINISHED] {
+                if let Some(p) = self.by_id.remove(id)
+                    && self.by_key.get(&p.key).is_some_and(|q| q.id == p.id)
+                {
+                    self.by_key.remove(&p.key);
+                }
+            }
         }
     }
 }
@@ -989,5 +1011,85 @@ mod tests {
             assert!((a.p16 - b.p16).abs() < 1e-12, "{name}");
         }
         assert_eq!(ours.settings["kind"], "bootstrap");
+    }
+
+    /// A waiting run of `account` (a bootstrap of `size` at catalog `version`), put in `books`.
+    fn waiting(books: &mut Books, pool: &SqlitePool, account: i64, size: usize, version: i64) {
+        let outcome = Arc::new(FitOutcome {
+            key: FitKey::new(
+                version,
+                &Relation::MSigma,
+                Method::Conditional,
+                &SampleFilter::default(),
+                2.3,
+                11.0,
+            ),
+            sample: Sample::default(),
+            fit: Err(FitError::Unsupported {
+                what: String::new(),
+            }),
+            spec: Err(FitError::Unsupported {
+                what: String::new(),
+            }),
+            fitted_at: String::new(),
+        });
+        let key = RunKey {
+            fit: outcome.key.clone(),
+            kind: RunKind::Bootstrap,
+            size,
+        };
+        books.next_id += 1;
+        let progress = Arc::new(RunProgress::new(
+            books.next_id,
+            key,
+            account,
+            outcome.clone(),
+        ));
+        books.by_id.insert(progress.id, progress.clone());
+        books.queue.push_back(Waiting {
+            progress,
+            outcome,
+            pool: pool.clone(),
+        });
+    }
+
+    #[tokio::test]
+    async fn the_queue_is_first_come_first_served_one_run_per_account_and_per_slot() {
+        let pool = SqlitePool::connect_lazy("sqlite::memory:").unwrap();
+        let mut books = Books::default();
+        for (account, size) in [(1, 20), (1, 21), (2, 22), (3, 23), (2, 24)] {
+            waiting(&mut books, &pool, account, size, 1);
+        }
+        let sizes = |ws: &[Waiting]| ws.iter().map(|w| w.progress.total).collect::<Vec<_>>();
+        // Two slots: account 1's first run, then account 2's (account 1's second is passed over).
+        assert_eq!(sizes(&books.take_startable(2)), [20, 22]);
+        let queued: Vec<usize> = books.queue.iter().map(|w| w.progress.total).collect();
+        assert_eq!(queued, [21, 23, 24]);
+        // Account 1 finishes: its second run goes first, being the oldest waiting.
+        books.finished(1);
+        assert_eq!(sizes(&books.take_startable(2)), [21]);
+        books.finished(2);
+        assert_eq!(sizes(&books.take_startable(2)), [23]);
+        assert!(books.take_startable(2).is_empty());
+    }
+
+    #[tokio::test]
+    async fn a_newer_version_drops_the_waiting_runs_of_older_ones_and_flags_running_ones() {
+        let pool = SqlitePool::connect_lazy("sqlite::memory:").unwrap();
+        let mut books = Books::default();
+        books.supersede(4);
+        waiting(&mut books, &pool, 1, 20, 4);
+        waiting(&mut books, &pool, 2, 21, 4);
+        let running = books.take_startable(1);
+        books.supersede(5);
+        assert!(books.queue.is_empty());
+        let dropped = books.by_id[&2].state();
+        assert_eq!(dropped, RunState::Cancelled { from: 4, to: 5 });
+        assert_eq!(running[0].progress.newer_version(), Some(5));
+        assert!(
+            cancelled_sentence(4, 5).contains("the catalog changed (version 4 → 5)"),
+            "{}",
+            cancelled_sentence(4, 5)
+        );
     }
 }
