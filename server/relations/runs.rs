@@ -217,6 +217,7 @@ pub struct RunKey {
 }
 
 /// A run waiting for a slot, with what it needs to compute and store.
+#[derive(Clone)]
 struct Waiting {
     progress: Arc<RunProgress>,
     outcome: Arc<FitOutcome>,
@@ -489,7 +490,16 @@ impl RunRegistry {
         let registry = self.clone();
         tokio::spawn(async move {
             let account_id = w.progress.account_id;
-            let state = registry.run(&w).await;
+            // Its own task, so that even a panic ends as a failed run and frees the slot.
+            let job = {
+                let registry = registry.clone();
+                let w = w.clone();
+                tokio::spawn(async move { registry.run(&w).await })
+            };
+            let state = job.await.unwrap_or_else(|e| {
+                tracing::error!(error = %e, "a fit run stopped");
+                RunState::Failed("The run stopped unexpectedly.".to_owned())
+            });
             w.progress.set(state);
             let startable = {
                 let mut books = registry.books();
