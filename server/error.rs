@@ -195,6 +195,13 @@ pub enum AppError {
         /// Seconds until a request is allowed again.
         retry_after_s: u64,
     },
+    /// 429: the account has as many background runs waiting as it may; the sentence says how
+    /// many and to wait for one to finish (no Retry-After: when a run ends is not known).
+    #[error("{message}")]
+    TooManyRuns {
+        /// One sentence: how many runs wait and what to do.
+        message: String,
+    },
     /// 503: the database is busy (another writer held the lock for longer than the busy
     /// timeout). Nothing was written; the client may retry.
     #[error("The catalog is busy; nothing was changed. Please try again in a moment.")]
@@ -408,7 +415,9 @@ impl AppError {
             Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             Self::Invalid { .. } => StatusCode::UNPROCESSABLE_ENTITY,
             Self::Conflict { .. } => StatusCode::CONFLICT,
-            Self::TooManyRequests { .. } => StatusCode::TOO_MANY_REQUESTS,
+            Self::TooManyRequests { .. } | Self::TooManyRuns { .. } => {
+                StatusCode::TOO_MANY_REQUESTS
+            }
             Self::Busy | Self::Unavailable => StatusCode::SERVICE_UNAVAILABLE,
             Self::StorageFull => StatusCode::INSUFFICIENT_STORAGE,
             Self::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,

@@ -19,6 +19,7 @@ pub mod openapi;
 pub mod place;
 pub mod problem;
 pub mod relations;
+pub mod runs;
 pub mod submissions;
 
 pub use crate::router::query_pairs;
@@ -80,6 +81,19 @@ fn routes() -> Routes {
             "/api/v1/relations/{relation}",
             Read,
             get(relations::relation_fit),
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/relations/{relation}/runs",
+            Read,
+            post(runs::start_run),
+            runs::RUN_LIMIT_BYTES,
+        )
+        .add(
+            Method::GET,
+            "/api/v1/runs/{id}",
+            Read,
+            get(runs::run_status_by_id),
         )
         .add(Method::GET, "/api/v1/place", Read, get(place::place_one))
         .add_json(

@@ -81,6 +81,7 @@ impl Problem {
             ),
             AppError::Conflict { message, .. } => ("Conflict", message.clone()),
             AppError::TooManyRequests { .. } => ("Too many requests", error.to_string()),
+            AppError::TooManyRuns { message } => ("Too many runs waiting", message.clone()),
             AppError::Busy => ("Busy", error.to_string()),
             AppError::Unavailable => ("Unavailable", error.to_string()),
             AppError::StorageFull => ("Storage full", error.to_string()),

@@ -52,8 +52,8 @@ pub use filter::{
 };
 pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, fit_own_sample};
 pub use runs::{
-    BOOTSTRAP_CHUNK, RunKey, RunKind, RunProgress, RunRegistry, RunState, RunStatus, filter_json,
-    run_status, stored_run,
+    BOOTSTRAP_CHUNK, MAX_QUEUED_PER_ACCOUNT, RunKey, RunKind, RunProgress, RunRegistry, RunState,
+    RunStatus, cancelled_sentence, filter_json, run_status, run_status_of, stored_run,
 };
 pub use sample::{
     Member, Sample, at_adopted_distance, build_sample, distance_scaling, sphere_of_influence,

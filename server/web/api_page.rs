@@ -106,6 +106,20 @@ const ENDPOINTS: &[Endpoint] = &[
         Example::Get("/api/v1/relations/m_sigma?method=conditional&limits=exclude"),
     ),
     Endpoint(
+        "POST",
+        "/api/v1/relations/{relation}/runs",
+        "token with scope read, or a session sending X-CSRF-Token",
+        "Queue a bootstrap (size = replicates) or posterior (size = steps) run of the relation's current fit for the fit query parameters; 202 with the run (status queued with queue_position, running, or stored with params) and its status_url. The same run again answers the one already queued, running or stored; 429 when your account has 3 runs waiting.",
+        Example::Post(r#"{"kind": "bootstrap", "size": 1000}"#),
+    ),
+    Endpoint(
+        "GET",
+        "/api/v1/runs/{id}",
+        READ,
+        "Where a run stands: queued (queue_position of queue_length), running (done of size), stored (params), failed or cancelled (message; a run of a catalog version that changed is cancelled).",
+        Example::Get("/api/v1/runs/{id}"),
+    ),
+    Endpoint(
         "GET",
         "/api/v1/place",
         READ,

@@ -42,7 +42,7 @@ fn title(error: &AppError) -> &'static str {
         AppError::UnsupportedMediaType { .. } => "Unsupported format",
         AppError::Invalid { .. } => "Invalid input",
         AppError::Conflict { .. } => "Conflict",
-        AppError::TooManyRequests { .. } => "Too many requests",
+        AppError::TooManyRequests { .. } | AppError::TooManyRuns { .. } => "Too many requests",
         AppError::Busy => "Busy",
         AppError::Unavailable => "Unavailable",
         AppError::StorageFull => "Storage full",

@@ -7,11 +7,12 @@ use std::sync::Arc;
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Path, Query, State};
+use axum::extract::{Extension, Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
 use super::display::{fixed, significant};
+use crate::auth::Principal;
 use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
 use crate::catalog::relation_rows;
@@ -578,7 +579,7 @@ pub(crate) struct RunView {
     kind: &'static str,
     title: String,
     size: usize,
-    /// "stored", "running", "failed" or "none".
+    /// "stored", "queued", "running", "failed", "cancelled" or "none".
     status: &'static str,
     progress: String,
     note: Option<String>,
@@ -650,10 +651,26 @@ impl RunView {
                 view.status = "failed";
                 view.note = Some(why);
             }
+            RunStatus::Queued {
+                position,
+                of,
+                asked_at,
+                ..
+            } => {
+                view.status = "queued";
+                view.progress = format!(
+                    "position {position} of {of}; it starts when a run before it finishes (asked {asked_at})"
+                );
+            }
+            RunStatus::Cancelled(why) => {
+                view.status = "cancelled";
+                view.note = Some(why);
+            }
             RunStatus::Running {
                 done,
                 total,
                 started_at,
+                ..
             } => {
                 view.status = "running";
                 view.progress = match kind {
@@ -712,13 +729,17 @@ pub(crate) struct RunForm {
     query: String,
 }
 
-/// `POST /relations/{relation}/runs`: start a bootstrap or posterior run in the background
-/// and go back to the relation page, which shows its progress.
+/// `POST /relations/{relation}/runs`: queue a bootstrap or posterior run in the background
+/// and go back to the relation page, which shows its place in the queue, then its progress
+/// (a run of the same settings already waiting, running or stored is shown instead; 429 when
+/// the account has as many runs waiting as it may).
 pub(crate) async fn start_run(
     State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
     Path(slug): Path<String>,
     axum::Form(form): axum::Form<RunForm>,
 ) -> AppResult<Redirect> {
+    let user = super::account::session_of(&principal)?;
     let pairs: Vec<(String, String)> = serde_urlencoded::from_str(&form.query)
         .map_err(|_| AppError::bad_request("The relation's settings could not be read."))?;
     let q = RelationQuery::parse(&pairs).map_err(AppError::bad_request)?;
@@ -741,7 +762,9 @@ pub(crate) async fn start_run(
         .await?
         .is_none()
     {
-        state.runs.start(state.pool.clone(), outcome, kind, size);
+        state
+            .runs
+            .start(state.pool.clone(), user.account_id, outcome, kind, size)?;
     }
     let mut back = q.clone();
     match kind {
@@ -933,8 +956,11 @@ pub(crate) async fn show_relation(
     };
     let (offset, offset_note) = offset_view(&outcome, &q).await?;
     let runs = run_views(&state, &outcome, &q).await?;
-    let refresh =
-        runs.iter().any(|r| r.status == "running") || computing.is_some() || influence_pending;
+    let refresh = runs
+        .iter()
+        .any(|r| r.status == "running" || r.status == "queued")
+        || computing.is_some()
+        || influence_pending;
     let may_start = nav.username.is_some();
     let query_plain = q.to_query_string();
     Ok(RelationPage {

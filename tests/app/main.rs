@@ -15,6 +15,7 @@ mod galaxy_relations;
 mod idempotency;
 mod pages;
 mod relations;
+mod runs;
 mod security;
 mod sessions;
 mod storage;
