@@ -235,7 +235,7 @@ pub async fn list_galaxies(
         )]));
     }
     let q = TableQuery::parse(&pairs).map_err(AppError::invalid_saying)?;
-    let (page_rows, total) = table_page(&state.pool, state.settings.soi_threshold, &q).await?;
+    let (page_rows, total) = table_page(&state.catalog(), &q).await?;
     debug_assert!(q.per_page <= MAX_PER_PAGE);
     Ok(Json(GalaxyPage {
         total,

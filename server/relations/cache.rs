@@ -32,6 +32,32 @@ fn make_room<V>(map: &mut HashMap<FitKey, V>) {
     }
 }
 
+/// Most objects held in the samples of the cached fits (and again in [`FitCache::latest`]):
+/// a fit keeps its sample (about 0.5 kB an object with its galaxy's names and tags), so a
+/// catalog of 100,000 objects fitted with many selections would otherwise fill the memory.
+/// 600,000 objects is six survey-sized fits, about 300 MB.
+const MAX_OBJECTS_HELD: usize = 600_000;
+
+/// Makes room for a sample of `adding` objects: left-out fits go first, then every fit but
+/// the default selections (structural, whole sample: what the pages show first), then all.
+fn keep_objects_below(map: &mut HashMap<FitKey, Arc<FitOutcome>>, cap: usize, adding: usize) {
+    let held = |map: &HashMap<FitKey, Arc<FitOutcome>>| -> usize {
+        map.values().map(|o| o.sample.points.len()).sum::<usize>() + adding
+    };
+    if held(map) <= cap {
+        return;
+    }
+    map.retain(|k, _| k.left_out.is_none());
+    if held(map) <= cap {
+        return;
+    }
+    let default_filter = SampleFilter::default().canonical();
+    map.retain(|k, _| k.method == Method::Structural.as_str() && k.filter == default_filter);
+    if held(map) > cap {
+        map.clear();
+    }
+}
+
 /// What identifies a fit.
 #[derive(Debug, Clone, PartialEq, Eq, Hash)]
 pub struct FitKey {
@@ -158,6 +184,7 @@ impl FitCache {
             let version = outcome.key.catalog_version;
             map.retain(|k, _| k.catalog_version >= version);
             make_room(&mut map);
+            keep_objects_below(&mut map, MAX_OBJECTS_HELD, outcome.sample.points.len());
             map.entry(outcome.key.clone())
                 .or_insert_with(|| Arc::new(outcome))
                 .clone()
@@ -167,6 +194,7 @@ impl FitCache {
             if latest.len() >= MAX_LATEST {
                 latest.clear();
             }
+            keep_objects_below(&mut latest, MAX_OBJECTS_HELD, stored.sample.points.len());
             let slot = latest
                 .entry(unversioned(&stored.key))
                 .or_insert_with(|| stored.clone());
@@ -671,6 +699,34 @@ mod tests {
             "the whole-sample fit was evicted"
         );
         assert!(cache.len() <= MAX_ENTRIES);
+    }
+
+    #[test]
+    fn held_samples_stay_under_the_object_cap_keeping_the_default_fits() {
+        let filter = SampleFilter::default();
+        let other = SampleFilter {
+            exclude_limits: true,
+            ..SampleFilter::default()
+        };
+        let sized = |key: FitKey, n: usize| {
+            let mut o = outcome(&key);
+            o.sample.points = vec![crate::fit::Point::new(2.0, 0.02, 8.0, 0.1); n];
+            Arc::new(o)
+        };
+        let default_key = FitKey::new(1, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        let other_key = FitKey::new(1, &Relation::MSigma, Method::Structural, &other, 2.3, 11.0);
+        let mut map = HashMap::new();
+        map.insert(default_key.clone(), sized(default_key.clone(), 40));
+        map.insert(other_key.clone(), sized(other_key.clone(), 40));
+        map.insert(default_key.leaving_out(3), sized(default_key.leaving_out(3), 39));
+        keep_objects_below(&mut map, 200, 10);
+        assert_eq!(map.len(), 3, "under the cap nothing goes");
+        keep_objects_below(&mut map, 100, 10);
+        assert_eq!(map.len(), 2, "the left-out fit goes first");
+        keep_objects_below(&mut map, 60, 10);
+        assert!(map.contains_key(&default_key) && map.len() == 1, "the default stays");
+        keep_objects_below(&mut map, 30, 10);
+        assert!(map.is_empty());
     }
 
     fn member(galaxy_id: i64) -> super::super::Member {

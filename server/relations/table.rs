@@ -8,11 +8,10 @@
 
 use std::cmp::Ordering;
 
-use sqlx::SqlitePool;
 
 use super::{at_adopted_distance, sphere_of_influence};
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
-use crate::catalog::relation_rows::{RelationRow, relation_rows};
+use crate::catalog::relation_rows::RelationRow;
 use crate::units::Quantity;
 
 /// Rows per page of the catalog table unless the reader asks for another count.
@@ -358,14 +357,16 @@ pub fn select_page(rows: Vec<TableRow>, q: &TableQuery) -> (Vec<TableRow>, usize
 /// # Errors
 /// When the database fails.
 pub async fn table_page(
-    pool: &SqlitePool,
-    soi_threshold: f64,
+    catalog: &super::Catalog,
     q: &TableQuery,
 ) -> sqlx::Result<(Vec<TableRow>, usize)> {
-    let rows = relation_rows(pool)
-        .await?
-        .into_iter()
-        .map(|r| TableRow::new(r, soi_threshold))
+    // The adopted rows of the current version, read once per version and shared with the fits.
+    let snapshot = catalog.fits.rows(&catalog.pool).await?;
+    let rows = snapshot
+        .rows
+        .iter()
+        .cloned()
+        .map(|r| TableRow::new(r, catalog.soi_threshold))
         .collect();
     Ok(select_page(rows, q))
 }

@@ -76,7 +76,7 @@ pub(crate) async fn list_galaxies(
     let pairs = crate::router::query_pairs(query)?;
     let q = TableQuery::parse(&pairs).map_err(AppError::bad_request)?;
     let threshold = state.settings.soi_threshold;
-    let (page_rows, total) = table_page(&state.pool, threshold, &q).await?;
+    let (page_rows, total) = table_page(&state.catalog(), &q).await?;
     let pages = total.div_ceil(q.per_page).max(1);
     if q.page > pages {
         return Err(AppError::bad_request(format!(
