@@ -195,6 +195,29 @@ fn influence_of(
     }
 }
 
+/// Re-expresses derivatives over ε (slot E) as derivatives over u = ln ε, by the chain rule:
+///
+/// ```text
+/// ∂f/∂u = ε f_ε,   ∂²f/∂x∂u = ε f_xε,   ∂²f/∂u² = ε² f_εε + ε f_ε
+/// ```
+///
+/// A step in ln ε follows how −2 ln L bends in the scatter (for a Gaussian sample, −2 ln L in
+/// ln V is N u + S e^(−u), much closer to its quadratic model than in ε); no-op when ε is held.
+fn to_log_eps(d: &mut super::optimize::analytic::Derivs, eps: f64, free: &[usize]) {
+    if !free.contains(&E) {
+        return;
+    }
+    let ge = d.g[E];
+    d.g[E] = eps * ge;
+    for &x in free {
+        if x != E {
+            d.h[x][E] *= eps;
+            d.h[E][x] = d.h[x][E];
+        }
+    }
+    d.h[E][E] = eps * eps * d.h[E][E] + eps * ge;
+}
+
 /// The slots at the maximum of `fit`, the free slots (ε left out at its floor 0, as the
 /// optimiser's active set holds it there) and −2 ln L's gradient and Hessian over them.
 fn at_maximum<O: PerObject>(
@@ -207,8 +230,14 @@ fn at_maximum<O: PerObject>(
         .into_iter()
         .filter(|&s| s != E || p[E] > 0.0)
         .collect();
-    let total = model.derivs(&p, false, &free)?;
+    let mut total = model.derivs(&p, false, &free)?;
+    to_log_eps(&mut total, p[E], &free);
     Some((p, free, total))
+}
+
+/// The change of ε for a step `du` in ln ε: ε (e^du − 1) (0 when ε is held at 0).
+fn eps_change(eps: f64, du: f64) -> f64 {
+    if eps > 0.0 { eps * du.exp_m1() } else { 0.0 }
 }
 
 /// The one-step leave-one-out shift of every object of `model` at the maximum of `fit`:
@@ -220,8 +249,8 @@ fn at_maximum<O: PerObject>(
 /// with g, H the gradient and Hessian of −2 ln L over the free slots at θ̂ (g ≈ 0 there; it is
 /// kept so the step aims at the maximum of the sample without i, not at rounding), g_i, H_i
 /// object i's own. When H − H_i is singular (an object the fit cannot do without) the step
-/// falls back to the influence function H⁻¹ (g_i − g). ε moves by at most −ε (it cannot
-/// cross its floor). O(N p²); the objects are swept in parallel, each on its own, so the
+/// falls back to the influence function H⁻¹ (g_i − g). The scatter's step is taken in ln ε
+/// ([`to_log_eps`]), so ε cannot cross its floor. O(N p²); the objects are swept in parallel, each on its own, so the
 /// result does not depend on the number of threads.
 fn sweep<O: PerObject + Sync + Send>(model: &O, fit: &Fit, shape: Shape) -> Option<Vec<Step>> {
     let (p, free, total) = at_maximum(model, fit)?;
@@ -234,7 +263,8 @@ fn sweep<O: PerObject + Sync + Send>(model: &O, fit: &Fit, shape: Shape) -> Opti
             || model.one(0),
             |one, i| {
                 one.load(model, i);
-                let d = one.derivs(&p, false, &free)?;
+                let mut d = one.derivs(&p, false, &free)?;
+                to_log_eps(&mut d, p[E], &free);
                 let mut m = [[0.0; NS]; NS];
                 let mut full = [[0.0; NS]; NS];
                 let mut r = [0.0; NS];
@@ -250,7 +280,7 @@ fn sweep<O: PerObject + Sync + Send>(model: &O, fit: &Fit, shape: Shape) -> Opti
                 for (a, &sa) in free.iter().enumerate() {
                     dp[sa] = x[a];
                 }
-                dp[E] = dp[E].max(-p[E]);
+                dp[E] = eps_change(p[E], dp[E]);
                 let mut at = p;
                 for s in 0..NS {
                     at[s] += dp[s];
@@ -523,7 +553,7 @@ fn newton_step<O: PerObject>(model: &O, fit: &Fit) -> Option<[f64; NS]> {
     for (a, &sa) in free.iter().enumerate() {
         dp[sa] = x[a];
     }
-    dp[E] = dp[E].max(-p[E]);
+    dp[E] = eps_change(p[E], dp[E]);
     Some(dp)
 }
 
