@@ -367,13 +367,6 @@ impl PerObject for Model {
         p[E] = p[E].sqrt();
         p
     }
-
-    fn theta_of_slots(&self, p: &[f64; NS]) -> Vec<f64> {
-        self.slots()
-            .iter()
-            .map(|&s| if s == E { p[E].abs() } else { p[s] })
-            .collect()
-    }
 }
 
 #[cfg(test)]

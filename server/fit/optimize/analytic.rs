@@ -511,6 +511,4 @@ pub(crate) trait PerObject: Analytic + Sized {
     fn load(&mut self, from: &Self, i: usize);
     /// The slots of a fit's maximum, with ε (not ε²) in slot E.
     fn slots_of_fit(&self, fit: &super::super::Fit) -> [f64; NS];
-    /// θ of the slots `p` (ε, not ε², in slot E), to start a refit from.
-    fn theta_of_slots(&self, p: &[f64; NS]) -> Vec<f64>;
 }

@@ -246,21 +246,6 @@ impl PerObject for Model {
         p[E] = p[E].sqrt();
         p
     }
-
-    fn theta_of_slots(&self, p: &[f64; NS]) -> Vec<f64> {
-        // τ² is kept positive: a one-step estimate can overshoot it on a tiny sample.
-        let mut theta = vec![
-            p[A],
-            p[B],
-            p[E].abs(),
-            p[M] + self.pivot,
-            p[T].max(f64::MIN_POSITIVE).sqrt(),
-        ];
-        if self.group.is_some() {
-            theta.push(p[D]);
-        }
-        theta
-    }
 }
 
 #[cfg(test)]
