@@ -155,8 +155,9 @@ fn solve(k: usize, mut m: [[f64; NS]; NS], mut r: [f64; NS]) -> Option<[f64; NS]
         r.swap(col, piv);
         for row in col + 1..k {
             let f = m[row][col] / m[col][col];
-            for c in col..k {
-                m[row][c] -= f * m[col][c];
+            let (upper, lower) = m.split_at_mut(row);
+            for (x, &pv) in lower[0][col..k].iter_mut().zip(&upper[col][col..k]) {
+                *x -= f * pv;
             }
             r[row] -= f * r[col];
         }
