@@ -13,7 +13,7 @@ use criterion::{Criterion, criterion_group, criterion_main};
 use massline::fit::bootstrap::bootstrap;
 use massline::fit::ensemble::{self, EnsembleConfig};
 use massline::fit::posterior::posterior;
-use massline::fit::{FitSpec, Likelihood, Method, Point, fit, fit_params_only};
+use massline::fit::{FitSpec, Likelihood, Method, Point, fit, fit_params_only, leave_one_out};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
@@ -41,6 +41,36 @@ fn sample(n: usize, seed: u64) -> Vec<Point> {
             }
         })
         .collect()
+}
+
+/// The sample of [`sample`] with every 10th object an upper limit instead of every 7th.
+fn sample_tenth_limits(n: usize, seed: u64) -> Vec<Point> {
+    let mut pts = sample(n, seed);
+    for (i, p) in pts.iter_mut().enumerate() {
+        if i % 7 == 3 && i % 10 != 3 {
+            // Back to a detection 0.3 dex below the limit, with a typical mass error.
+            *p = Point::new(p.x, p.x_err, p.y - 0.3, 0.15);
+        } else if i % 10 == 3 && !p.upper_limit {
+            *p = Point::limit(p.x, p.x_err, p.y + 0.3);
+        }
+    }
+    pts
+}
+
+/// Leave-one-out influence of every object, structural line, 10 % upper limits: one fit, the
+/// one-step shift of each object and refits of the top 20 (docs/methods.md §6.1).
+fn influence_benches(c: &mut Criterion) {
+    let structural = FitSpec::new(Method::Structural, PIVOT);
+    let mut g = c.benchmark_group("leave_one_out");
+    g.sample_size(10);
+    g.measurement_time(Duration::from_secs(10));
+    for n in [10_000, 100_000] {
+        let pts = sample_tenth_limits(n, 3);
+        g.bench_function(format!("structural_{n}"), |b| {
+            b.iter(|| leave_one_out(black_box(&pts), &structural).unwrap())
+        });
+    }
+    g.finish();
 }
 
 fn benches(c: &mut Criterion) {
@@ -116,5 +146,5 @@ fn benches(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(fit_benches, benches);
+criterion_group!(fit_benches, benches, influence_benches);
 criterion_main!(fit_benches);

@@ -1,10 +1,8 @@
 //! What a fit says about individual objects and subsamples: residuals and z-scores,
 //! leave-one-out influence, and the zero-point offset of one subsample against another.
 
-use rayon::prelude::*;
 use serde::Serialize;
 
-use super::optimize::invert_spd;
 use super::predict::locate;
 use super::types::prepare;
 use super::{
@@ -35,11 +33,18 @@ pub struct Influence {
     pub d_alpha: f64,
     /// β without the object minus β with it.
     pub d_beta: f64,
+    /// β2 without the object minus β2 with it, for a quadratic (dex/dex²).
+    pub d_beta2: Option<f64>,
+    /// γ without the object minus γ with it, for a plane (dex/dex).
+    pub d_gamma: Option<f64>,
     /// ε without the object minus ε with it (dex).
     pub d_eps: f64,
     /// Size of the (α, β) shift in units of the full fit's errors: √(Δᵀ C⁻¹ Δ) with C the
     /// (α, β) covariance; 0 if C is singular.
     pub shift_sigma: f64,
+    /// True when the shift comes from a refit without the object, false when it is the
+    /// one-step approximation (docs/methods.md §6.1).
+    pub exact: bool,
 }
 
 /// Zero-point offset of subsample b relative to subsample a at a shared slope.
@@ -111,62 +116,37 @@ pub fn residuals(fit: &Fit, points: &[Point]) -> Vec<Residual> {
         .collect()
 }
 
-/// Refits the sample once without each object and reports the parameter shifts.
+/// How much each object moves the fit: the parameter shifts when it is left out.
 ///
 /// # Model
 /// ```text
-/// Δθ_(i) = θ̂(sample without i) − θ̂(sample),   θ = (α, β, ε)
+/// Δθ_(i) = θ̂(sample without i) − θ̂(sample),   θ = (α, β, [β2|γ], ε)
 /// shift_sigma_i = √(Δ_(i)ᵀ C⁻¹ Δ_(i)),  Δ = (Δα, Δβ), C the full fit's (α, β) covariance
+/// one step (N > EXACT_MAX_N):  Δθ_(i) ≈ (H − H_i)⁻¹ (g_i − g)     (see influence::approximate)
 /// ```
-/// α, ε in dex; β dex/dex. The refits run in parallel; the result is in input order and does
-/// not depend on the number of threads.
+/// α, ε in dex; β dex/dex. Up to [`super::influence::EXACT_MAX_N`] objects every object is
+/// refitted (`exact = true`). Above it, for the conditional likelihood and the structural
+/// straight line with one x component, every object gets the one-step approximation from the
+/// one fit and the [`super::influence::EXACT_TOP`] it ranks highest by `shift_sigma` are
+/// refitted (their entries replaced, `exact = true`; a refit that fails keeps the
+/// approximation). For FITEXY, BCES and the other structural models above that size, the
+/// objects are ranked by the one-step shifts under a likelihood that has them (the structural
+/// K = 1 line for mixtures, the conditional likelihood of the same shape otherwise), and only
+/// the top `EXACT_TOP`, refitted, are returned. The result is in input order and does not
+/// depend on the number of threads.
 ///
 /// # Errors
-/// The errors of [`super::fit`] for the full sample or any leave-one-out sample (e.g.
-/// [`FitError::TooFewPoints`] when the sample has exactly the minimum number of detections).
+/// The errors of [`super::fit`] for the full sample; up to `EXACT_MAX_N` objects (and for the
+/// refitted top of estimators without the one-step form) those of any leave-one-out sample
+/// (e.g. [`FitError::TooFewPoints`] when the sample has exactly the minimum number of
+/// detections).
 ///
 /// # References
-/// Cook 1977, Technometrics 19, 15 (influence of single observations); docs/methods.md §6.
+/// Cook 1977, Technometrics 19, 15 (influence of single observations); Cook & Weisberg 1982,
+/// *Residuals and Influence in Regression*, Chapman & Hall (the one-step approximation; from
+/// memory); docs/methods.md §6, §6.1.
 pub fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Influence>, FitError> {
-    let full = super::fit_params_only(points, spec)?;
-    let cab = [
-        [
-            full.covariance("alpha", "alpha").unwrap_or(0.0),
-            full.covariance("alpha", "beta").unwrap_or(0.0),
-        ],
-        [
-            full.covariance("alpha", "beta").unwrap_or(0.0),
-            full.covariance("beta", "beta").unwrap_or(0.0),
-        ],
-    ];
-    let cinv = invert_spd(&nalgebra::DMatrix::from_fn(2, 2, |i, j| cab[i][j]));
-    (0..points.len())
-        .into_par_iter()
-        .map(|i| {
-            let rest: Vec<Point> = points
-                .iter()
-                .enumerate()
-                .filter(|(j, _)| *j != i)
-                .map(|(_, p)| p.clone())
-                .collect();
-            let f = super::fit_params_only(&rest, spec)?;
-            let da = f.params.alpha - full.params.alpha;
-            let db = f.params.beta - full.params.beta;
-            let shift_sigma = match &cinv {
-                Some(c) => (c[(0, 0)] * da * da + 2.0 * c[(0, 1)] * da * db + c[(1, 1)] * db * db)
-                    .max(0.0)
-                    .sqrt(),
-                None => 0.0,
-            };
-            Ok(Influence {
-                index: i,
-                d_alpha: da,
-                d_beta: db,
-                d_eps: f.params.eps - full.params.eps,
-                shift_sigma,
-            })
-        })
-        .collect()
+    super::influence::leave_one_out(points, spec)
 }
 
 /// Zero-point offset between two subsamples that share slope (and curvature or γ) and

@@ -1,9 +1,11 @@
 //! Newton's method on the conditional likelihood with analytic derivatives.
 
+use super::super::influence;
 use super::super::intervals::{self, Intervals};
-use super::super::optimize::analytic::{self, A, Analytic, B, C, D, Derivs, E, NS};
+use super::super::optimize::analytic::{self, A, Analytic, B, C, D, Derivs, E, NS, PerObject};
 use super::super::optimize::{MlResult, Sum};
 use super::super::special::{LN_2PI, detection_terms, fy_terms, limit_terms, norm_cdf_parts};
+use super::super::types::Fit;
 use std::ops::Range;
 
 use rayon::prelude::*;
@@ -334,6 +336,37 @@ pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<
         evaluations: r.evaluations,
         notes: r.notes,
     })
+}
+
+/// Object by object, for the one-step influence of each object (docs/methods.md §6.1); the
+/// derivatives are those of [`Analytic::derivs`], restricted to one row.
+impl PerObject for Model {
+    fn n_objects(&self) -> usize {
+        self.data.n()
+    }
+
+    fn one(&self, i: usize) -> Model {
+        Model {
+            data: influence::row(&self.data, i),
+            shape: self.shape,
+            names: self.names.clone(),
+            group: self.group.as_ref().map(|g| vec![g[i]]),
+            y_center: self.y_center,
+        }
+    }
+
+    fn load(&mut self, from: &Model, i: usize) {
+        influence::set_row(&mut self.data, &from.data, i);
+        if let (Some(g), Some(f)) = (self.group.as_mut(), from.group.as_ref()) {
+            g[0] = f[i];
+        }
+    }
+
+    fn slots_of_fit(&self, fit: &Fit) -> [f64; NS] {
+        let mut p = slots_of(self, &self.start(fit));
+        p[E] = p[E].sqrt();
+        p
+    }
 }
 
 #[cfg(test)]

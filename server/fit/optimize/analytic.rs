@@ -495,3 +495,20 @@ pub(crate) fn restricted<O: Analytic>(model: &O, ml: &[f64; NS]) -> Option<Restr
         cov,
     })
 }
+
+/// A likelihood that is a sum of one term per object, whose terms can be taken one at a time:
+/// −2 ln L(θ) = Σ_i f_i(θ), so the gradient and Hessian are sums of per-object ones
+/// (g = Σ g_i, H = Σ H_i). The one-step influence of each object needs its own g_i and H_i
+/// (docs/methods.md §6.1).
+pub(crate) trait PerObject: Analytic + Sized {
+    /// Number of objects.
+    fn n_objects(&self) -> usize;
+    /// The model of object `i` alone (same shape and pivots): its −2 ln L and derivatives are
+    /// object i's term f_i of the sample's.
+    fn one(&self, i: usize) -> Self;
+    /// Makes `self`, a model from [`PerObject::one`], the model of object `i` of `from`
+    /// (no allocation: the per-object sweep reuses one buffer).
+    fn load(&mut self, from: &Self, i: usize);
+    /// The slots of a fit's maximum, with ε (not ε²) in slot E.
+    fn slots_of_fit(&self, fit: &super::super::Fit) -> [f64; NS];
+}

@@ -1,10 +1,12 @@
 //! Analytic derivatives of the K = 1 straight-line structural likelihood.
 
 use super::super::conditional::{CensoredSum, LnSum};
+use super::super::influence;
 use super::super::intervals::{self, Intervals};
-use super::super::optimize::analytic::{self, A, Analytic, B, D, Derivs, E, M, NS, T};
+use super::super::optimize::analytic::{self, A, Analytic, B, D, Derivs, E, M, NS, PerObject, T};
 use super::super::optimize::{MlResult, Sum};
 use super::super::special::{LN_2PI, detection_terms, limit_terms, norm_cdf_parts};
+use super::super::types::Fit;
 use super::Model;
 
 impl Analytic for Model {
@@ -211,6 +213,39 @@ pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<
         evaluations: r.evaluations,
         notes: r.notes,
     })
+}
+
+/// Object by object, for the one-step influence of each object (docs/methods.md §6.1); the
+/// derivatives are those of [`Analytic::derivs`] of the K = 1 line, restricted to one row.
+impl PerObject for Model {
+    fn n_objects(&self) -> usize {
+        self.data.n()
+    }
+
+    fn one(&self, i: usize) -> Model {
+        Model {
+            data: influence::row(&self.data, i),
+            shape: self.shape,
+            k: self.k,
+            pivot: self.pivot,
+            pivot2: self.pivot2,
+            names: self.names.clone(),
+            group: self.group.as_ref().map(|g| vec![g[i]]),
+        }
+    }
+
+    fn load(&mut self, from: &Model, i: usize) {
+        influence::set_row(&mut self.data, &from.data, i);
+        if let (Some(g), Some(f)) = (self.group.as_mut(), from.group.as_ref()) {
+            g[0] = f[i];
+        }
+    }
+
+    fn slots_of_fit(&self, fit: &Fit) -> [f64; NS] {
+        let mut p = slots_of(self, &self.start(fit));
+        p[E] = p[E].sqrt();
+        p
+    }
 }
 
 #[cfg(test)]
