@@ -236,6 +236,7 @@ fn point(name: &str, x: f64, y: f64, group: usize) -> ChartPoint {
         y_err_plus: 0.1,
         upper_limit: false,
         group,
+        emphasis: false,
     }
 }
 

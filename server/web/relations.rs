@@ -752,7 +752,28 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         y_err_plus: p.y_err,
         upper_limit: p.upper_limit,
         group,
+        emphasis: false,
     }
+}
+
+/// For each object of the sample: whether the charts draw it one by one even when they draw the
+/// sample as a density. These are the objects at least in tension with the fit
+/// (`relations::place::is_flagged`: |z| ≥ 2, limits only when that far below), the largest |z|
+/// first, at most `charts::MAX_EMPHASISED` of them: beyond that a chart would grow past its
+/// weight budget, and the list of flagged objects below the chart names them all.
+fn emphasised(residuals: &[crate::fit::Residual], len: usize) -> Vec<bool> {
+    let mut flagged: Vec<&crate::fit::Residual> = residuals
+        .iter()
+        .filter(|r| crate::relations::place::is_flagged(r.z, r.upper_limit))
+        .collect();
+    flagged.sort_by(|a, b| b.z.abs().total_cmp(&a.z.abs()));
+    let mut marks = vec![false; len];
+    for r in flagged.into_iter().take(crate::charts::MAX_EMPHASISED) {
+        if let Some(mark) = marks.get_mut(r.index) {
+            *mark = true;
+        }
+    }
+    marks
 }
 
 /// The relation chart of a fit outcome.
@@ -763,13 +784,23 @@ pub(super) fn relation_chart(
 ) -> RelationChart {
     let fit = outcome.fit.as_ref().ok();
     let (groups, index) = groups_of(grouping, &outcome.sample.members);
-    let points: Vec<ChartPoint> = outcome
-        .sample
-        .points
+    let sample = &outcome.sample.points;
+    // Only a chart above the density threshold reads the marks.
+    let marks = match fit {
+        Some(f) if sample.len() > crate::charts::DENSITY_THRESHOLD => {
+            emphasised(&crate::fit::residuals(f, sample), sample.len())
+        }
+        _ => vec![false; sample.len()],
+    };
+    let points: Vec<ChartPoint> = sample
         .iter()
         .zip(&outcome.sample.members)
         .zip(&index)
-        .map(|((p, m), g)| chart_point(m, p, p.x, chart_y(fit, p), *g))
+        .zip(&marks)
+        .map(|(((p, m), g), &emphasis)| ChartPoint {
+            emphasis,
+            ..chart_point(m, p, p.x, chart_y(fit, p), *g)
+        })
         .collect();
     let (x_min, x_max) = points
         .iter()
@@ -916,6 +947,7 @@ fn residual_charts(
 ) -> (String, String) {
     let sample = &outcome.sample;
     let residuals = crate::fit::residuals(f, &sample.points);
+    let marks = emphasised(&residuals, sample.points.len());
     let (groups, index) = groups_of(q.group, &sample.members);
     let residual_points = |x_of: &dyn Fn(&Member, &Point) -> Option<f64>| -> Vec<ChartPoint> {
         sample
@@ -924,11 +956,13 @@ fn residual_charts(
             .zip(&sample.members)
             .zip(&residuals)
             .zip(&index)
-            .filter_map(|(((p, m), r), g)| {
+            .zip(&marks)
+            .filter_map(|((((p, m), r), g), &emphasis)| {
                 let x = x_of(m, p)?;
                 // The second property's error is not carried in the sample: no x bar.
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
+                c.emphasis = emphasis;
                 Some(c)
             })
             .collect()
