@@ -566,7 +566,7 @@ fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
         rows.push(LegendEntry {
             symbol: Symbol::Blank,
             label: format!(
-                "{} upper limits among them, at the limit",
+                "{} upper limits among them",
                 density::grouped(thin.limits_in_density as u64)
             ),
         });
