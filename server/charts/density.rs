@@ -10,7 +10,7 @@
 use std::fmt::Write as _;
 
 use super::markup::num;
-use super::style::Rgb;
+use super::style::{Rgb, Tint};
 use super::{
     ChartPoint, DENSITY_THRESHOLD, MAX_EMPHASISED, MAX_INDIVIDUAL, MAX_LIMITS_DRAWN, SMALL_GROUP,
 };
@@ -23,16 +23,17 @@ pub(super) const MIN_CELL_PX: i32 = 8;
 pub(super) const MAX_CELLS_PER_SIDE: i32 = 60;
 /// Number of shade levels; fewer when the fullest cell holds only a few objects.
 pub(super) const LEVELS: usize = 4;
-/// Shades from the emptiest level to the fullest: one hue, light enough that every group colour
-/// and the highlight star stay readable on the darkest.
+/// Shades from the emptiest level to the fullest: one warm grey, so the shading is not mistaken
+/// for the blue-grey bands drawn over it, light enough that every group colour and the highlight
+/// star stay readable on the darkest.
 pub(super) const SHADES: [Rgb; LEVELS] = [
-    Rgb(0xDD, 0xE3, 0xEA),
-    Rgb(0xBD, 0xC8, 0xD4),
-    Rgb(0x95, 0xA4, 0xB6),
-    Rgb(0x6A, 0x7C, 0x92),
+    Rgb(0xEC, 0xE6, 0xDC),
+    Rgb(0xD6, 0xCC, 0xBB),
+    Rgb(0xB8, 0xA9, 0x92),
+    Rgb(0x94, 0x82, 0x68),
 ];
-/// Opacity of the shading: the grid and the scatter bands show faintly through it.
-pub(super) const SHADE_OPACITY: f64 = 0.85;
+/// Opacity of the shading: the grid shows faintly through it.
+pub(super) const SHADE_OPACITY: f64 = 0.9;
 
 /// Which points a chart draws one by one.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -298,6 +299,22 @@ pub(super) fn density_markup(out: &mut String, grid: &Grid, objects: usize) {
 /// fullest cell is always drawn darkest.
 pub(super) fn shades_for(levels: usize) -> &'static [Rgb] {
     &SHADES[LEVELS - levels.min(LEVELS)..]
+}
+
+/// A translucent band through pixel points, written as plotters writes its bands.
+pub(super) fn polygon_element(points: &[(f64, f64)], tint: Tint) -> String {
+    let mut list = String::new();
+    for (i, &(x, y)) in points.iter().enumerate() {
+        if i > 0 {
+            list.push(' ');
+        }
+        let _ = write!(list, "{},{}", num(x), num(y));
+    }
+    format!(
+        r#"<polygon opacity="{}" fill="{}" points="{list}"/>"#,
+        tint.opacity,
+        tint.colour.hex()
+    )
 }
 
 /// A line through pixel points, as one open path (the fitted line redrawn over the

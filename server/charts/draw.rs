@@ -15,7 +15,9 @@ use plotters::prelude::{
 use plotters::style::colors::{TRANSPARENT, WHITE};
 use plotters::style::{Color as _, IntoFont as _};
 
-use super::density::{self, Area, Grid, Thinning, polyline_path, shades_for, thinning};
+use super::density::{
+    self, Area, Grid, Thinning, polygon_element, polyline_path, shades_for, thinning,
+};
 use super::geometry::{
     Bounds, Extent, Xy, band_outline, clip_polygon, clip_polyline, padded, sample_line,
     tick_decimals,
@@ -652,8 +654,14 @@ fn draw_frame(buf: &mut String, scene: &Scene<'_>) -> Result<Frame, ChartError> 
         .build_cartesian_2d(b.x_min..b.x_max, b.y_min..b.y_max)
         .map_err(drawing_error)?;
 
-    // Bands first, so the grid and everything else stay visible through them.
-    for fill in &scene.fills {
+    // Bands first, so the grid and everything else stay visible through them. Over a density they
+    // are drawn later, on the shading (see `overlay`).
+    let fills: &[Fill] = if scene.thinning.dense {
+        &[]
+    } else {
+        &scene.fills
+    };
+    for fill in fills {
         let style = fill.tint.colour.plotters().mix(fill.tint.opacity).filled();
         chart
             .draw_series(std::iter::once(Polygon::new(fill.outline.clone(), style)))
@@ -753,7 +761,16 @@ fn overlay(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
         }
         debug_assert_eq!(grid.total(), scene.thinning.in_density as u64);
         density::density_markup(out, &grid, scene.thinning.in_density);
-        // The shading covers what plotters drew; the lines must stay on top.
+        // The shading covers what plotters drew: the translucent bands go on it, the lines on top.
+        for fill in &scene.fills {
+            let px: Vec<(f64, f64)> = fill
+                .outline
+                .iter()
+                .map(|&(x, y)| to_px(&frame.spec, x, y))
+                .collect();
+            out.push_str(&polygon_element(&px, fill.tint));
+            out.push('\n');
+        }
         for stroke in &scene.strokes {
             for run in &stroke.runs {
                 let px: Vec<(f64, f64)> =

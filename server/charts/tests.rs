@@ -1265,7 +1265,10 @@ fn large_residuals(chart: &RelationChart) -> ResidualChart {
             .collect(),
         groups: chart.groups.clone(),
         scatter_dex: 0.4,
-        highlight: chart.highlight.clone(),
+        highlight: chart.highlight.clone().map(|h| ChartPoint {
+            y: h.y - line.y_at(h.x),
+            ..h
+        }),
         ..ResidualChart::default()
     }
 }
@@ -1483,6 +1486,11 @@ fn the_density_is_drawn_under_the_line_in_a_few_compact_paths() {
         .find(&format!("stroke=\"{}\" stroke-width=\"2\"", LINE.hex()))
         .expect("the fitted line is redrawn over the shading");
     assert!(line > 0);
+    // The bands lie on the shading, the three of them once each.
+    for tint in [SCATTER_2, SCATTER_1, MEAN_BAND] {
+        assert_eq!(band_polygons(&svg[density..], tint), 1);
+        assert_eq!(band_polygons(&svg, tint), 1);
+    }
     let block = &svg[density..density + svg[density..].find("</g>").expect("closed")];
     let paths = count(block, "<path ");
     assert!((1..=density::LEVELS).contains(&paths), "{paths} paths");
