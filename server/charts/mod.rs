@@ -12,6 +12,12 @@
 //!    plotters used. plotters cannot emit `<a>` or `<title>`, and each point must name its galaxy on
 //!    hover and open the galaxy's page on a click, with no script in the browser.
 //!
+//! A large sample (more than [`DENSITY_THRESHOLD`] points) is drawn as a density: shaded cells of
+//! a pixel grid, a few shades whose counts the legend gives with the number of objects shaded, and
+//! on it, one by one, only the points that matter (marked with [`ChartPoint::emphasis`], few upper
+//! limits, small groups, the highlighted object). A chart of 100,000 objects then weighs about
+//! 120 KB instead of 50 MB. Below the threshold every point is drawn, as before.
+//!
 //! Every piece of caller text is XML-escaped (plotters escapes what it draws; this module escapes
 //! what it appends), links must be site-relative paths, and every number is checked to be finite
 //! before anything is drawn, so the output never contains `NaN`. The SVG uses presentation
@@ -307,7 +313,8 @@ pub enum ChartError {
 /// Draws a scaling-relation chart: every galaxy with its error bars (upper limits as downward
 /// arrows), markers by group, the fitted line, the band of the mean relation, the ±1ε and ±2ε
 /// scatter bands and the highlighted object, with a legend. Each point is wrapped in a link to its
-/// page and carries a `<title>` naming it.
+/// page and carries a `<title>` naming it. Above [`DENSITY_THRESHOLD`] points the sample is drawn as
+/// a density and only the points that matter one by one (see the module's documentation).
 ///
 /// With no points the chart is a frame with the axis labels and [`EMPTY_MESSAGE`]. A single point
 /// or a zero range is padded to a readable range.
