@@ -1396,4 +1396,70 @@ mod tests {
         assert!(((first.upper + first.lower) / 2.0 - (8.3 - 1.5)).abs() < 1e-12);
         assert!(mean_band(&fit, 2.0, 2.0).is_empty());
     }
+
+    #[test]
+    fn charts_mark_the_objects_off_the_relation_largest_z_first() {
+        use crate::fit::FitSpec;
+        // Invented line and sample: 2,400 objects on the line with 0.1 dex errors, of which
+        // those at k = 0 mod 6 sit 0.2 + 0.001 k dex off it (above for even k / 6, below for
+        // odd), and every 50th object is an upper limit, 0.5 dex above the line or 3 dex below.
+        let fit = Fit::given_line(
+            FitSpec::new(Method::Structural, 2.3),
+            crate::fit::Params::line(8.3, 5.0, 0.1),
+            [[1e-6, 0.0, 0.0], [0.0, 1e-6, 0.0], [0.0, 0.0, 1e-6]],
+        );
+        let points: Vec<Point> = (0..2_400)
+            .map(|k| {
+                let x = 2.0 + 0.0002 * f64::from(k);
+                let on = 8.3 + 5.0 * (x - 2.3);
+                if k % 50 == 25 {
+                    let off = if k % 100 == 25 { 0.5 } else { -3.0 };
+                    Point::limit(x, 0.0, on + off)
+                } else if k % 6 == 0 {
+                    let sign = if (k / 6) % 2 == 0 { 1.0 } else { -1.0 };
+                    Point::new(x, 0.0, on + sign * (0.2 + 0.001 * f64::from(k)), 0.1)
+                } else {
+                    Point::new(x, 0.0, on, 0.1)
+                }
+            })
+            .collect();
+        let residuals = crate::fit::residuals(&fit, &points);
+        let marks = emphasised(&residuals, points.len());
+        assert_eq!(marks.len(), points.len());
+        // Exactly the flagged ones, up to the cap; here more are flagged than the cap allows.
+        let flagged: Vec<&crate::fit::Residual> = residuals
+            .iter()
+            .filter(|r| crate::relations::place::is_flagged(r.z, r.upper_limit))
+            .collect();
+        assert!(flagged.len() > crate::charts::MAX_EMPHASISED);
+        assert_eq!(
+            marks.iter().filter(|m| **m).count(),
+            crate::charts::MAX_EMPHASISED
+        );
+        let smallest_marked = residuals
+            .iter()
+            .filter(|r| marks[r.index])
+            .map(|r| r.z.abs())
+            .fold(f64::INFINITY, f64::min);
+        for r in &residuals {
+            if marks[r.index] {
+                assert!(crate::relations::place::is_flagged(r.z, r.upper_limit));
+            } else if crate::relations::place::is_flagged(r.z, r.upper_limit) {
+                assert!(r.z.abs() <= smallest_marked, "a larger |z| left unmarked");
+            }
+        }
+        // Limits above the line are never marked; those far below are.
+        assert!(!marks[25] && points[25].upper_limit);
+        assert!(marks[75] && points[75].upper_limit);
+        // Few flagged objects: every one of them is marked.
+        let few = &residuals[..120];
+        let marks = emphasised(few, 120);
+        for r in few {
+            assert_eq!(
+                marks[r.index],
+                crate::relations::place::is_flagged(r.z, r.upper_limit)
+            );
+        }
+        assert!(marks.iter().any(|m| *m));
+    }
 }
