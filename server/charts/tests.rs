@@ -1549,3 +1549,34 @@ fn shade_levels_are_round_increasing_and_end_at_the_fullest_cell() {
     assert_eq!(density::grouped(999), "999");
     assert_eq!(density::grouped(1_234_567), "1,234,567");
 }
+
+#[test]
+fn the_fullest_density_chart_stays_under_the_bound() {
+    // The most a density chart draws: a sample spread over the whole plot (every cell shaded),
+    // the most marked objects, then as many limits as fit in the budget of single points, long
+    // names and links.
+    let mut chart = large_chart(100_000, MAX_EMPHASISED);
+    let limits = MAX_INDIVIDUAL - MAX_EMPHASISED;
+    let mut state: u64 = 7;
+    let mut uniform = move || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (state >> 11) as f64 / (1_u64 << 53) as f64
+    };
+    let mut limits_left = limits;
+    for p in &mut chart.points {
+        p.x = 1.9 + 0.7 * uniform();
+        p.y = 6.0 + 4.5 * uniform();
+        p.name = format!("{} of the long-named survey field", p.name);
+        p.upper_limit = !p.emphasis && limits_left > 0 && {
+            limits_left -= 1;
+            true
+        };
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<g class=\"pt\""), MAX_INDIVIDUAL);
+    assert!(svg.len() <= 300_000, "{} bytes", svg.len());
+    let residual = residual_svg(&large_residuals(&chart)).expect("chart draws");
+    assert!(residual.len() <= 300_000, "{} bytes", residual.len());
+}
