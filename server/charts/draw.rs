@@ -46,6 +46,9 @@ const Y_LABEL_AREA: u32 = 70;
 const TITLE_AREA: u32 = 36;
 /// Vertical distance between legend rows, in pixels.
 const LEGEND_ROW: i32 = 22;
+/// Vertical distance between legend rows on a density chart, whose legend has up to seven more
+/// rows, in pixels (still half a line between rows of 13-pixel text).
+const LEGEND_ROW_DENSE: i32 = 20;
 /// Extra height of each wrapped line of a legend label, in pixels.
 const LEGEND_LINE: i32 = 15;
 
@@ -551,11 +554,8 @@ fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
     let objects = thin.in_density as u64;
     let mut rows = vec![LegendEntry {
         symbol: Symbol::Blank,
-        label: format!(
-            "{} {}, drawn as density:",
-            density::grouped(objects),
-            if objects == 1 { "object" } else { "objects" }
-        ),
+        // Short enough for one line of the narrowest legend.
+        label: format!("{} as density:", density::grouped(objects)),
     }];
     // Fullest first, as the darkest shade reads as "most".
     for k in (0..bounds.len()).rev() {
@@ -568,7 +568,7 @@ fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
         rows.push(LegendEntry {
             symbol: Symbol::Blank,
             label: format!(
-                "{} upper limits among them",
+                "incl. {} limits",
                 density::grouped(thin.limits_in_density as u64)
             ),
         });
@@ -577,7 +577,7 @@ fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
         rows.push(LegendEntry {
             symbol: Symbol::Blank,
             label: format!(
-                "{} marked objects among them",
+                "incl. {} marked",
                 density::grouped(thin.emphasised_in_density as u64)
             ),
         });
@@ -955,16 +955,17 @@ fn legend_markup(out: &mut String, legend: &[&LegendEntry], scene: &Scene<'_>, f
         INK.hex()
     );
     let last_row = frame.plot.bottom - 10;
+    let row = if scene.thinning.dense {
+        LEGEND_ROW_DENSE
+    } else {
+        LEGEND_ROW
+    };
     let mut cy = frame.plot.top + 12;
     for (index, entry) in legend.iter().enumerate() {
         let lines = wrap_label(&entry.label, max_chars);
         let extra = LEGEND_LINE * i32::try_from(lines.len() - 1).unwrap_or(0);
         // Keep one row free for the "+ n more" line unless this is the last entry.
-        let reserve = if index + 1 < legend.len() {
-            LEGEND_ROW
-        } else {
-            0
-        };
+        let reserve = if index + 1 < legend.len() { row } else { 0 };
         if cy + extra + reserve > last_row {
             let _ = writeln!(
                 out,
@@ -1026,7 +1027,7 @@ fn legend_markup(out: &mut String, legend: &[&LegendEntry], scene: &Scene<'_>, f
             );
         }
         out.push_str("</text></g>\n");
-        cy += LEGEND_ROW + extra;
+        cy += row + extra;
     }
     out.push_str("</g>\n");
 }

@@ -1319,10 +1319,7 @@ fn the_density_legend_counts_the_objects_it_shades() {
         let shaded = density_objects(&svg).expect("drawn as a density");
         assert_eq!(shaded + one_by_one, chart.points.len());
         // 2,000 of the 20,000 are limits: too many to draw, so they are shaded too.
-        let label = format!(
-            "{} objects, drawn as density:",
-            density::grouped(shaded as u64)
-        );
+        let label = format!("{} as density:", density::grouped(shaded as u64));
         assert!(
             plain_texts(&svg).contains(&label),
             "legend names {shaded} objects: {:?}",
@@ -1333,10 +1330,7 @@ fn the_density_legend_counts_the_objects_it_shades() {
             .iter()
             .filter(|p| p.upper_limit && !p.emphasis)
             .count();
-        let note = format!(
-            "{} upper limits among them",
-            density::grouped(limits as u64)
-        );
+        let note = format!("incl. {} limits", density::grouped(limits as u64));
         assert!(
             plain_texts(&svg).contains(&note),
             "legend says the limits are shaded"
@@ -1417,7 +1411,7 @@ fn marks_beyond_the_cap_join_the_density_and_the_legend_says_so() {
     assert!(has_hover(&svg, &chart.points[MAX_EMPHASISED - 1].name));
     assert!(!has_hover(&svg, &chart.points[MAX_EMPHASISED].name));
     assert!(
-        plain_texts(&svg).contains(&"40 marked objects among them".to_owned()),
+        plain_texts(&svg).contains(&"incl. 40 marked".to_owned()),
         "{:?}",
         plain_texts(&svg)
     );
@@ -1449,7 +1443,7 @@ fn few_upper_limits_and_small_groups_stay_visible_in_a_density() {
     assert_eq!(count(&svg, "class=\"limit-arrow\""), limits + 1);
     let legend = texts(&svg);
     assert!(legend.contains(&"Rare type"));
-    assert!(!legend.iter().any(|t| t.contains("upper limits among them")));
+    assert!(!legend.iter().any(|t| t.contains("limits")));
     assert_eq!(
         density_objects(&svg),
         Some(chart.points.len() - limits - 25)
