@@ -1574,3 +1574,24 @@ fn the_fullest_density_chart_stays_under_the_bound() {
     let residual = residual_svg(&large_residuals(&chart)).expect("chart draws");
     assert!(residual.len() <= 300_000, "{} bytes", residual.len());
 }
+
+#[test]
+fn a_density_legend_with_five_groups_fits_beside_the_default_chart() {
+    let mut chart = large_chart(20_000, 200);
+    chart.groups = ["Type A", "Type B", "Type C", "Type D", "Type E"]
+        .iter()
+        .map(|l| Group {
+            label: (*l).to_owned(),
+        })
+        .collect();
+    for (i, p) in chart.points.iter_mut().enumerate() {
+        // Four large groups and a small fifth one, which has limits of its own drawn as arrows.
+        p.group = if i % 997 == 0 { 4 } else { (i / 7) % 4 };
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    let legend = plain_texts(&svg);
+    assert!(!svg.contains("legend-more"), "legend overflows: {legend:?}");
+    for label in ["Type E", "Upper limit", "±2ε = 0.80 dex"] {
+        assert!(legend.contains(&label.to_owned()), "{label} in {legend:?}");
+    }
+}
