@@ -75,7 +75,7 @@ enum Symbol {
     Swatch(Vec<Tint>),
     /// A density shade.
     Shade(Rgb),
-    /// No symbol: a note about the row above.
+    /// No symbol: a heading or a note in the legend (the density's count, what it includes).
     Blank,
 }
 
