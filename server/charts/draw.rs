@@ -15,6 +15,9 @@ use plotters::prelude::{
 use plotters::style::colors::{TRANSPARENT, WHITE};
 use plotters::style::{Color as _, IntoFont as _};
 
+use super::density::{
+    self, Area, Grid, Thinning, polygon_element, polyline_path, shades_for, thinning,
+};
 use super::geometry::{
     Bounds, Extent, Xy, band_outline, clip_polygon, clip_polyline, padded, sample_line,
     tick_decimals,
@@ -43,6 +46,9 @@ const Y_LABEL_AREA: u32 = 70;
 const TITLE_AREA: u32 = 36;
 /// Vertical distance between legend rows, in pixels.
 const LEGEND_ROW: i32 = 22;
+/// Vertical distance between legend rows on a density chart, whose legend has up to seven more
+/// rows, in pixels (still half a line between rows of 13-pixel text).
+const LEGEND_ROW_DENSE: i32 = 20;
 /// Extra height of each wrapped line of a legend label, in pixels.
 const LEGEND_LINE: i32 = 15;
 
@@ -67,6 +73,10 @@ enum Symbol {
     Line(Rgb, u32),
     /// Translucent layers stacked as they stack on the chart.
     Swatch(Vec<Tint>),
+    /// A density shade.
+    Shade(Rgb),
+    /// No symbol: a heading or a note in the legend (the density's count, what it includes).
+    Blank,
 }
 
 struct LegendEntry {
@@ -84,10 +94,14 @@ struct Scene<'a> {
     points: &'a [ChartPoint],
     groups: &'a [Group],
     highlight: Option<&'a ChartPoint>,
+    /// Which points are drawn one by one; the others form the density.
+    thinning: Thinning,
     bounds: Bounds,
     fills: Vec<Fill>,
     strokes: Vec<Stroke>,
     legend: Vec<LegendEntry>,
+    /// Where the density's rows go in the legend (after the groups and the highlighted object).
+    density_slot: usize,
 }
 
 impl Scene<'_> {
@@ -156,12 +170,9 @@ pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, Chart
 
     let mut fills = Vec::new();
     let mut strokes = Vec::new();
-    let mut legend = group_legend(
-        &chart.groups,
-        empty,
-        highlight,
-        drawn().any(|p| p.upper_limit),
-    );
+    let thin = thinning(&chart.points, chart.groups.len());
+    let mut legend = group_legend(&chart.groups, empty, highlight, &chart.points, &thin);
+    let density_slot = legend_slot(&legend);
     if !empty {
         let samples = chart
             .line
@@ -229,10 +240,12 @@ pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, Chart
         points: &chart.points,
         groups: &chart.groups,
         highlight,
+        thinning: thin,
         bounds,
         fills,
         strokes,
         legend,
+        density_slot,
     })
 }
 
@@ -265,12 +278,9 @@ pub(super) fn residual_rendered(chart: &ResidualChart) -> Result<Rendered, Chart
 
     let mut fills = Vec::new();
     let mut strokes = Vec::new();
-    let mut legend = group_legend(
-        &chart.groups,
-        empty,
-        highlight,
-        drawn().any(|p| p.upper_limit),
-    );
+    let thin = thinning(&chart.points, chart.groups.len());
+    let mut legend = group_legend(&chart.groups, empty, highlight, &chart.points, &thin);
+    let density_slot = legend_slot(&legend);
     if !empty {
         let (x0, x1) = (bounds.x_min, bounds.x_max);
         if scatter > 0.0 {
@@ -303,10 +313,12 @@ pub(super) fn residual_rendered(chart: &ResidualChart) -> Result<Rendered, Chart
         points: &chart.points,
         groups: &chart.groups,
         highlight,
+        thinning: thin,
         bounds,
         fills,
         strokes,
         legend,
+        density_slot,
     })
 }
 
@@ -480,20 +492,36 @@ fn push_fill(fills: &mut Vec<Fill>, outline: &[Xy], tint: Tint, bounds: Bounds) 
     }
 }
 
-/// Legend rows common to both charts: the groups (unless the chart is empty), the highlighted
-/// object, and the upper-limit arrow when one is drawn.
+/// Legend rows common to both charts: the groups (unless the chart is empty; on a density chart
+/// only the groups with a point drawn one by one), the highlighted object, and the upper-limit
+/// arrow when one is drawn.
 fn group_legend(
     groups: &[Group],
     empty: bool,
     highlight: Option<&ChartPoint>,
-    any_limit: bool,
+    points: &[ChartPoint],
+    thin: &Thinning,
 ) -> Vec<LegendEntry> {
     let mut legend = Vec::new();
+    let drawn = || {
+        points
+            .iter()
+            .zip(&thin.individual)
+            .filter(|(_, one)| **one)
+            .map(|(p, _)| p)
+    };
+    let any_limit = drawn().any(|p| p.upper_limit) || highlight.is_some_and(|h| h.upper_limit);
     if !empty {
-        legend.extend(groups.iter().enumerate().map(|(i, g)| LegendEntry {
-            symbol: Symbol::Marker(style::group_style(i)),
-            label: g.label.clone(),
-        }));
+        legend.extend(
+            groups
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !thin.dense || drawn().any(|p| p.group == *i))
+                .map(|(i, g)| LegendEntry {
+                    symbol: Symbol::Marker(style::group_style(i)),
+                    label: g.label.clone(),
+                }),
+        );
     }
     if let Some(h) = highlight {
         legend.push(LegendEntry {
@@ -508,6 +536,53 @@ fn group_legend(
         });
     }
     legend
+}
+
+/// The legend index after the group rows and the highlighted object's row.
+fn legend_slot(legend: &[LegendEntry]) -> usize {
+    legend
+        .iter()
+        .take_while(|e| matches!(e.symbol, Symbol::Marker(_) | Symbol::Star))
+        .count()
+}
+
+/// The density's legend rows: how many objects it holds, its shade levels, and which kinds of
+/// point it took in.
+fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
+    let bounds = density::level_bounds(grid.max());
+    let shades = shades_for(bounds.len());
+    let objects = thin.in_density as u64;
+    let mut rows = vec![LegendEntry {
+        symbol: Symbol::Blank,
+        // Short enough for one line of the narrowest legend.
+        label: format!("{} as density:", density::grouped(objects)),
+    }];
+    // Fullest first, as the darkest shade reads as "most".
+    for k in (0..bounds.len()).rev() {
+        rows.push(LegendEntry {
+            symbol: Symbol::Shade(shades[k]),
+            label: density::level_label(&bounds, k),
+        });
+    }
+    if thin.limits_in_density > 0 {
+        rows.push(LegendEntry {
+            symbol: Symbol::Blank,
+            label: format!(
+                "incl. {} limits",
+                density::grouped(thin.limits_in_density as u64)
+            ),
+        });
+    }
+    if thin.emphasised_in_density > 0 {
+        rows.push(LegendEntry {
+            symbol: Symbol::Blank,
+            label: format!(
+                "incl. {} marked",
+                density::grouped(thin.emphasised_in_density as u64)
+            ),
+        });
+    }
+    rows
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -579,8 +654,14 @@ fn draw_frame(buf: &mut String, scene: &Scene<'_>) -> Result<Frame, ChartError> 
         .build_cartesian_2d(b.x_min..b.x_max, b.y_min..b.y_max)
         .map_err(drawing_error)?;
 
-    // Bands first, so the grid and everything else stay visible through them.
-    for fill in &scene.fills {
+    // Bands first, so the grid and everything else stay visible through them. Over a density they
+    // are drawn later, on the shading (see `overlay`).
+    let fills: &[Fill] = if scene.thinning.dense {
+        &[]
+    } else {
+        &scene.fills
+    };
+    for fill in fills {
         let style = fill.tint.colour.plotters().mix(fill.tint.opacity).filled();
         chart
             .draw_series(std::iter::once(Polygon::new(fill.outline.clone(), style)))
@@ -657,10 +738,56 @@ fn to_px(spec: &Spec, x: f64, y: f64) -> (f64, f64) {
     (f64::from(px), f64::from(py))
 }
 
-/// The raw layer: points, highlight, legend, and the empty message.
+/// The raw layer: the density (with the lines redrawn over it), points, highlight, legend, and the
+/// empty message.
 fn overlay(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
+    let mut density_rows = Vec::new();
+    if scene.thinning.dense {
+        let plot = frame.plot;
+        let mut grid = Grid::new(Area {
+            left: plot.left,
+            right: plot.right,
+            top: plot.top,
+            bottom: plot.bottom,
+        });
+        for (p, _) in scene
+            .points
+            .iter()
+            .zip(&scene.thinning.individual)
+            .filter(|(_, one)| !**one)
+        {
+            let (x, y) = to_px(&frame.spec, p.x, p.y);
+            grid.add(x, y);
+        }
+        debug_assert_eq!(grid.total(), scene.thinning.in_density as u64);
+        density::density_markup(out, &grid, scene.thinning.in_density);
+        // The shading covers what plotters drew: the translucent bands go on it, the lines on top.
+        for fill in &scene.fills {
+            let px: Vec<(f64, f64)> = fill
+                .outline
+                .iter()
+                .map(|&(x, y)| to_px(&frame.spec, x, y))
+                .collect();
+            out.push_str(&polygon_element(&px, fill.tint));
+            out.push('\n');
+        }
+        for stroke in &scene.strokes {
+            for run in &stroke.runs {
+                let px: Vec<(f64, f64)> =
+                    run.iter().map(|&(x, y)| to_px(&frame.spec, x, y)).collect();
+                out.push_str(&polyline_path(&px, stroke.colour, stroke.width));
+                out.push('\n');
+            }
+        }
+        density_rows = density_legend(&grid, &scene.thinning);
+    }
     out.push_str("<g class=\"points\">\n");
-    for p in scene.points {
+    for (p, _) in scene
+        .points
+        .iter()
+        .zip(&scene.thinning.individual)
+        .filter(|(_, one)| **one)
+    {
         let group = scene.groups.get(p.group).map(|g| g.label.as_str());
         point_markup(
             out,
@@ -677,7 +804,10 @@ fn overlay(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
         point_markup(out, h, None, None, scene, frame);
         out.push_str("</g>\n");
     }
-    legend_markup(out, scene, frame);
+    let mut legend: Vec<&LegendEntry> = scene.legend.iter().collect();
+    let at = scene.density_slot.min(legend.len());
+    legend.splice(at..at, density_rows.iter());
+    legend_markup(out, &legend, scene, frame);
     if scene.is_empty() {
         // Near the top of the frame, on a white backing, clear of a highlighted object that sits
         // in the middle of its padded range.
@@ -801,8 +931,8 @@ fn point_markup(
 
 /// The legend column to the right of the plot, one row per entry (a long label wraps onto a
 /// second line); rows that do not fit are summarised in a last "+ n more" row.
-fn legend_markup(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
-    if scene.legend.is_empty() {
+fn legend_markup(out: &mut String, legend: &[&LegendEntry], scene: &Scene<'_>, frame: &Frame) {
+    if legend.is_empty() {
         return;
     }
     let symbol_x = f64::from(frame.legend_left + 22);
@@ -825,21 +955,22 @@ fn legend_markup(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
         INK.hex()
     );
     let last_row = frame.plot.bottom - 10;
+    let row = if scene.thinning.dense {
+        LEGEND_ROW_DENSE
+    } else {
+        LEGEND_ROW
+    };
     let mut cy = frame.plot.top + 12;
-    for (index, entry) in scene.legend.iter().enumerate() {
+    for (index, entry) in legend.iter().enumerate() {
         let lines = wrap_label(&entry.label, max_chars);
         let extra = LEGEND_LINE * i32::try_from(lines.len() - 1).unwrap_or(0);
         // Keep one row free for the "+ n more" line unless this is the last entry.
-        let reserve = if index + 1 < scene.legend.len() {
-            LEGEND_ROW
-        } else {
-            0
-        };
+        let reserve = if index + 1 < legend.len() { row } else { 0 };
         if cy + extra + reserve > last_row {
             let _ = writeln!(
                 out,
                 r#"<text class="legend-more" x="{text_x}" y="{cy}" dy="0.35em">+ {} more</text>"#,
-                scene.legend.len() - index
+                legend.len() - index
             );
             break;
         }
@@ -859,6 +990,17 @@ fn legend_markup(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
                     colour.hex()
                 );
             }
+            Symbol::Shade(colour) => {
+                let _ = write!(
+                    out,
+                    r#"<rect x="{}" y="{}" width="24" height="12" fill="{}" opacity="{}"/>"#,
+                    num(symbol_x - 12.0),
+                    num(y - 6.0),
+                    colour.hex(),
+                    density::SHADE_OPACITY
+                );
+            }
+            Symbol::Blank => {}
             Symbol::Swatch(layers) => {
                 for tint in layers {
                     let _ = write!(
@@ -885,7 +1027,7 @@ fn legend_markup(out: &mut String, scene: &Scene<'_>, frame: &Frame) {
             );
         }
         out.push_str("</text></g>\n");
-        cy += LEGEND_ROW + extra;
+        cy += row + extra;
     }
     out.push_str("</g>\n");
 }

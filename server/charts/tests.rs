@@ -6,6 +6,7 @@
 use plotters::coord::CoordTranslate as _;
 use plotters::coord::ReverseCoordTranslate as _;
 
+use super::density;
 use super::draw::{relation_rendered, residual_rendered};
 use super::geometry::{Bounds, clip_polygon, clip_polyline, padded, tick_decimals};
 use super::markup::{escape, is_site_relative};
@@ -236,6 +237,7 @@ fn point(name: &str, x: f64, y: f64, group: usize) -> ChartPoint {
         y_err_plus: 0.1,
         upper_limit: false,
         group,
+        emphasis: false,
     }
 }
 
@@ -1195,4 +1197,401 @@ fn axis_label_helpers_carry_units() {
     assert_eq!(luminosity_axis_label("K"), "log₁₀ L_K [L☉,K]");
     assert_eq!(black_hole_mass_axis_label(), "log₁₀ M_BH [M☉]");
     assert_eq!(residual_axis_label(), "Δ log₁₀ M_BH [dex]");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Large samples: density
+
+/// A catalog-sized sample of `n` invented objects ("X 1", "X 2", …) scattered about the small
+/// chart's line by a fixed pseudo-random sequence; every tenth is an upper limit, the objects
+/// whose index is a multiple of `n / emphasised` are marked, all in two groups.
+fn large_points(n: usize, emphasised: usize, line: LineSpec) -> Vec<ChartPoint> {
+    // A 64-bit linear congruential sequence (Knuth's MMIX constants), mapped to 0..1.
+    let mut state: u64 = 0x2545_F491_4F6C_DD1D;
+    let mut uniform = move || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (state >> 11) as f64 / (1_u64 << 53) as f64
+    };
+    let every = n / emphasised.max(1);
+    (0..n)
+        .map(|i| {
+            let x = 1.9 + 0.7 * uniform();
+            // Sum of three uniforms: a bell-shaped scatter of about 0.4 dex.
+            let scatter = 0.8 * (uniform() + uniform() + uniform() - 1.5);
+            ChartPoint {
+                name: format!("X {}", i + 1),
+                href: Some(format!("/galaxies/x-{}", i + 1)),
+                x,
+                x_err: 0.02,
+                y: line.y_at(x) + scatter,
+                y_err_minus: 0.1,
+                y_err_plus: 0.1,
+                upper_limit: i % 10 == 3,
+                group: i % 2,
+                emphasis: emphasised > 0 && i % every == 0,
+            }
+        })
+        .collect()
+}
+
+fn large_chart(n: usize, emphasised: usize) -> RelationChart {
+    let chart = small_chart();
+    let line = chart.line.expect("small chart has a line");
+    RelationChart {
+        points: large_points(n, emphasised, line),
+        highlight: Some(ChartPoint {
+            name: "Placed <object> & co".to_owned(),
+            href: Some("/galaxies/placed".to_owned()),
+            ..point("Placed", 2.2, 7.8, 0)
+        }),
+        ..chart
+    }
+}
+
+fn large_residuals(chart: &RelationChart) -> ResidualChart {
+    let line = chart.line.expect("large chart has a line");
+    ResidualChart {
+        title: "Residuals".to_owned(),
+        x_label: sigma_axis_label(),
+        points: chart
+            .points
+            .iter()
+            .map(|p| ChartPoint {
+                y: p.y - line.y_at(p.x),
+                ..p.clone()
+            })
+            .collect(),
+        groups: chart.groups.clone(),
+        scatter_dex: 0.4,
+        highlight: chart.highlight.clone().map(|h| ChartPoint {
+            y: h.y - line.y_at(h.x),
+            ..h
+        }),
+        ..ResidualChart::default()
+    }
+}
+
+/// The number in `data-objects` of the density group, if the chart has one.
+fn density_objects(svg: &str) -> Option<usize> {
+    let k = svg.find("<g class=\"density\"")?;
+    let element = &svg[k..k + svg[k..].find('>').expect("closed")];
+    Some(
+        attr(element, "data-objects")
+            .expect("density counts its objects")
+            .parse()
+            .expect("a whole number"),
+    )
+}
+
+/// Whether some `<title>` starts with `name` followed by the colon of the hover text.
+fn has_hover(svg: &str, name: &str) -> bool {
+    let key = format!("{}:", escape(name));
+    titles(svg).iter().any(|t| t.starts_with(&key))
+}
+
+#[test]
+fn charts_of_a_hundred_thousand_objects_stay_light() {
+    let chart = large_chart(100_000, 200);
+    let relation = relation_svg(&chart).expect("chart draws");
+    let residual = residual_svg(&large_residuals(&chart)).expect("chart draws");
+    for svg in [&relation, &residual] {
+        assert_clean(svg);
+        assert!(
+            svg.len() <= 300_000,
+            "a chart of 100,000 objects weighs {} bytes",
+            svg.len()
+        );
+        assert!(density_objects(svg).is_some(), "drawn as a density");
+    }
+}
+
+#[test]
+fn the_density_legend_counts_the_objects_it_shades() {
+    let chart = large_chart(20_000, 200);
+    for svg in [
+        relation_svg(&chart).expect("chart draws"),
+        residual_svg(&large_residuals(&chart)).expect("chart draws"),
+    ] {
+        // The highlighted object has its own group, outside the points.
+        let one_by_one = count(&svg, "<g class=\"pt\"");
+        let shaded = density_objects(&svg).expect("drawn as a density");
+        assert_eq!(shaded + one_by_one, chart.points.len());
+        // 2,000 of the 20,000 are limits: too many to draw, so they are shaded too.
+        let label = format!("{} as density:", density::grouped(shaded as u64));
+        assert!(
+            plain_texts(&svg).contains(&label),
+            "legend names {shaded} objects: {:?}",
+            plain_texts(&svg)
+        );
+        let limits = chart
+            .points
+            .iter()
+            .filter(|p| p.upper_limit && !p.emphasis)
+            .count();
+        let note = format!("incl. {} limits", density::grouped(limits as u64));
+        assert!(
+            plain_texts(&svg).contains(&note),
+            "legend says the limits are shaded"
+        );
+        assert_eq!(
+            count(&svg, "class=\"limit-arrow\""),
+            count_limit_arrows(&chart)
+        );
+    }
+}
+
+/// Arrows a large chart draws: its emphasised limits, and one in the legend if there are any.
+fn count_limit_arrows(chart: &RelationChart) -> usize {
+    let drawn = chart
+        .points
+        .iter()
+        .filter(|p| p.upper_limit && p.emphasis)
+        .count();
+    drawn + usize::from(drawn > 0)
+}
+
+/// The legend's and the axes' texts with wrapped lines joined by a space.
+fn plain_texts(svg: &str) -> Vec<String> {
+    texts(svg)
+        .iter()
+        .map(|t| {
+            let mut out = String::new();
+            let mut rest = *t;
+            while let Some(k) = rest.find('<') {
+                out.push_str(&rest[..k]);
+                let end = rest[k..].find('>').expect("tag closed");
+                if rest[k..].starts_with("<tspan") {
+                    out.push(' ');
+                }
+                rest = &rest[k + end + 1..];
+            }
+            out.push_str(rest);
+            out
+        })
+        .collect()
+}
+
+#[test]
+fn marked_and_highlighted_objects_are_drawn_one_by_one_in_a_density() {
+    let chart = large_chart(20_000, 200);
+    let svg = relation_svg(&chart).expect("chart draws");
+    let marked: Vec<&ChartPoint> = chart.points.iter().filter(|p| p.emphasis).collect();
+    assert_eq!(marked.len(), 200);
+    for p in &marked {
+        assert!(has_hover(&svg, &p.name), "{} is drawn one by one", p.name);
+    }
+    assert!(has_hover(&svg, "Placed <object> & co"));
+    assert!(svg.contains("Placed &lt;object&gt; &amp; co"));
+    assert_eq!(count(&svg, "class=\"pt highlight\""), 1);
+    // Unmarked objects of the large groups are only shaded.
+    let unmarked = chart
+        .points
+        .iter()
+        .filter(|p| !p.emphasis)
+        .take(50)
+        .filter(|p| has_hover(&svg, &p.name))
+        .count();
+    assert_eq!(unmarked, 0);
+    assert_eq!(count(&svg, "<g class=\"pt\""), 200);
+}
+
+#[test]
+fn marks_beyond_the_cap_join_the_density_and_the_legend_says_so() {
+    let mut chart = large_chart(20_000, 0);
+    for p in &mut chart.points {
+        p.upper_limit = false;
+    }
+    for p in chart.points.iter_mut().take(MAX_EMPHASISED + 40) {
+        p.emphasis = true;
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<g class=\"pt\""), MAX_EMPHASISED);
+    assert!(has_hover(&svg, &chart.points[MAX_EMPHASISED - 1].name));
+    assert!(!has_hover(&svg, &chart.points[MAX_EMPHASISED].name));
+    assert!(
+        plain_texts(&svg).contains(&"incl. 40 marked".to_owned()),
+        "{:?}",
+        plain_texts(&svg)
+    );
+}
+
+#[test]
+fn few_upper_limits_and_small_groups_stay_visible_in_a_density() {
+    let mut chart = large_chart(10_000, 0);
+    chart.highlight = None;
+    chart.groups.push(Group {
+        label: "Rare type".to_owned(),
+    });
+    for (i, p) in chart.points.iter_mut().enumerate() {
+        p.upper_limit = i % 100 == 7;
+        if i % 400 == 5 {
+            p.group = 2;
+        }
+    }
+    let limits = chart.points.iter().filter(|p| p.upper_limit).count();
+    let rare: Vec<&ChartPoint> = chart.points.iter().filter(|p| p.group == 2).collect();
+    assert!(limits <= MAX_LIMITS_DRAWN && rare.len() <= SMALL_GROUP);
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<g class=\"pt\""), limits + rare.len());
+    for p in rare {
+        assert!(has_hover(&svg, &p.name));
+    }
+    // One arrow per limit and one in the legend; the rare group has its legend row, the shaded
+    // groups do not.
+    assert_eq!(count(&svg, "class=\"limit-arrow\""), limits + 1);
+    let legend = texts(&svg);
+    assert!(legend.contains(&"Rare type"));
+    assert!(!legend.iter().any(|t| t.contains("limits")));
+    assert_eq!(
+        density_objects(&svg),
+        Some(chart.points.len() - limits - 25)
+    );
+}
+
+#[test]
+fn at_the_threshold_every_object_is_drawn_with_its_name() {
+    let chart = RelationChart {
+        highlight: None,
+        ..large_chart(DENSITY_THRESHOLD, 20)
+    };
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert!(density_objects(&svg).is_none());
+    assert_eq!(count(&svg, "<g class=\"pt\""), DENSITY_THRESHOLD);
+    for p in &chart.points {
+        assert!(has_hover(&svg, &p.name), "{} is drawn", p.name);
+    }
+    // One more object turns the chart into a density.
+    let over = RelationChart {
+        highlight: None,
+        ..large_chart(DENSITY_THRESHOLD + 1, 20)
+    };
+    let svg = relation_svg(&over).expect("chart draws");
+    assert!(density_objects(&svg).is_some());
+}
+
+#[test]
+fn the_density_is_drawn_under_the_line_in_a_few_compact_paths() {
+    let chart = large_chart(100_000, 200);
+    let svg = relation_svg(&chart).expect("chart draws");
+    let density = svg.find("<g class=\"density\"").expect("a density");
+    let line = svg[density..]
+        .find(&format!("stroke=\"{}\" stroke-width=\"2\"", LINE.hex()))
+        .expect("the fitted line is redrawn over the shading");
+    assert!(line > 0);
+    // The bands lie on the shading, the three of them once each.
+    for tint in [SCATTER_2, SCATTER_1, MEAN_BAND] {
+        assert_eq!(band_polygons(&svg[density..], tint), 1);
+        assert_eq!(band_polygons(&svg, tint), 1);
+    }
+    let block = &svg[density..density + svg[density..].find("</g>").expect("closed")];
+    let paths = count(block, "<path ");
+    assert!((1..=density::LEVELS).contains(&paths), "{paths} paths");
+    // Rectangles with whole-pixel corners only.
+    for d in block.match_indices(" d=\"").map(|(k, m)| {
+        let rest = &block[k + m.len()..];
+        &rest[..rest.find('"').expect("closed")]
+    }) {
+        assert!(
+            d.chars()
+                .all(|c| c.is_ascii_digit() || "Mhvz -".contains(c)),
+            "{d}"
+        );
+    }
+}
+
+#[test]
+fn text_on_a_density_chart_is_readable() {
+    let chart = large_chart(50_000, 100);
+    for svg in [
+        relation_svg(&chart).expect("chart draws"),
+        residual_svg(&large_residuals(&chart)).expect("chart draws"),
+    ] {
+        let sizes: Vec<f64> = svg
+            .match_indices("font-size=\"")
+            .map(|(k, m)| {
+                let rest = &svg[k + m.len()..];
+                rest[..rest.find('"').expect("closed")]
+                    .parse()
+                    .expect("number")
+            })
+            .collect();
+        assert!(sizes.iter().all(|&s| s >= 10.0), "font sizes {sizes:?}");
+    }
+}
+
+#[test]
+fn shade_levels_are_round_increasing_and_end_at_the_fullest_cell() {
+    for max in [1, 2, 3, 7, 40, 125, 999, 2_000, 65_000] {
+        let bounds = density::level_bounds(max);
+        assert_eq!(bounds.last(), Some(&max));
+        assert!(bounds.len() <= density::LEVELS);
+        assert!(bounds.windows(2).all(|w| w[0] < w[1]), "{bounds:?}");
+        for &b in &bounds[..bounds.len() - 1] {
+            let mut m = b;
+            while m % 10 == 0 {
+                m /= 10;
+            }
+            assert!(matches!(m, 1 | 2 | 5), "{b} is not round");
+        }
+    }
+    assert_eq!(density::level_bounds(125), vec![5, 10, 50, 125]);
+    assert_eq!(density::level_label(&[5, 10, 50, 125], 0), "1–5 per cell");
+    assert_eq!(density::level_label(&[1, 2], 1), "2 per cell");
+    assert_eq!(density::grouped(20_000), "20,000");
+    assert_eq!(density::grouped(999), "999");
+    assert_eq!(density::grouped(1_234_567), "1,234,567");
+}
+
+#[test]
+fn the_fullest_density_chart_stays_under_the_bound() {
+    // The most a density chart draws: a sample spread over the whole plot (every cell shaded),
+    // the most marked objects, then as many limits as fit in the budget of single points, long
+    // names and links.
+    let mut chart = large_chart(100_000, MAX_EMPHASISED);
+    let limits = MAX_INDIVIDUAL - MAX_EMPHASISED;
+    let mut state: u64 = 7;
+    let mut uniform = move || {
+        state = state
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
+        (state >> 11) as f64 / (1_u64 << 53) as f64
+    };
+    let mut limits_left = limits;
+    for p in &mut chart.points {
+        p.x = 1.9 + 0.7 * uniform();
+        p.y = 6.0 + 4.5 * uniform();
+        p.name = format!("{} of the long-named survey field", p.name);
+        p.upper_limit = !p.emphasis && limits_left > 0 && {
+            limits_left -= 1;
+            true
+        };
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<g class=\"pt\""), MAX_INDIVIDUAL);
+    assert!(svg.len() <= 300_000, "{} bytes", svg.len());
+    let residual = residual_svg(&large_residuals(&chart)).expect("chart draws");
+    assert!(residual.len() <= 300_000, "{} bytes", residual.len());
+}
+
+#[test]
+fn a_density_legend_with_five_groups_fits_beside_the_default_chart() {
+    let mut chart = large_chart(20_000, 200);
+    chart.groups = ["Type A", "Type B", "Type C", "Type D", "Type E"]
+        .iter()
+        .map(|l| Group {
+            label: (*l).to_owned(),
+        })
+        .collect();
+    for (i, p) in chart.points.iter_mut().enumerate() {
+        // Four large groups and a small fifth one, which has limits of its own drawn as arrows.
+        p.group = if i % 997 == 0 { 4 } else { (i / 7) % 4 };
+    }
+    let svg = relation_svg(&chart).expect("chart draws");
+    let legend = plain_texts(&svg);
+    assert!(!svg.contains("legend-more"), "legend overflows: {legend:?}");
+    for label in ["Type E", "Upper limit", "±2ε = 0.80 dex"] {
+        assert!(legend.contains(&label.to_owned()), "{label} in {legend:?}");
+    }
 }

@@ -389,6 +389,8 @@ fn chart(p: &Placement) -> Option<PlaceChart> {
         y_err_plus: subject.mass.map_or(prediction.sd_dex, |m| m.err_plus_dex),
         upper_limit: subject.mass.is_some_and(|m| m.upper_limit),
         group: 0,
+        // The highlighted object is always drawn one by one, as a star.
+        emphasis: true,
     });
     relation_svg(&drawn).ok().map(|svg| PlaceChart {
         label: p.relation.label(),

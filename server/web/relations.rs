@@ -857,7 +857,28 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         y_err_plus: p.y_err,
         upper_limit: p.upper_limit,
         group,
+        emphasis: false,
     }
+}
+
+/// For each object of the sample: whether the charts draw it one by one even when they draw the
+/// sample as a density. These are the objects at least in tension with the fit
+/// (`relations::place::is_flagged`: |z| ≥ 2, limits only when that far below), the largest |z|
+/// first, at most `charts::MAX_EMPHASISED` of them: beyond that a chart would grow past its
+/// weight budget, and the list of flagged objects below the chart names them all.
+fn emphasised(residuals: &[crate::fit::Residual], len: usize) -> Vec<bool> {
+    let mut flagged: Vec<&crate::fit::Residual> = residuals
+        .iter()
+        .filter(|r| crate::relations::place::is_flagged(r.z, r.upper_limit))
+        .collect();
+    flagged.sort_by(|a, b| b.z.abs().total_cmp(&a.z.abs()));
+    let mut marks = vec![false; len];
+    for r in flagged.into_iter().take(crate::charts::MAX_EMPHASISED) {
+        if let Some(mark) = marks.get_mut(r.index) {
+            *mark = true;
+        }
+    }
+    marks
 }
 
 /// The relation chart of a fit outcome.
@@ -868,13 +889,23 @@ pub(super) fn relation_chart(
 ) -> RelationChart {
     let fit = outcome.fit.as_ref().ok();
     let (groups, index) = groups_of(grouping, &outcome.sample.members);
-    let points: Vec<ChartPoint> = outcome
-        .sample
-        .points
+    let sample = &outcome.sample.points;
+    // Only a chart above the density threshold reads the marks.
+    let marks = match fit {
+        Some(f) if sample.len() > crate::charts::DENSITY_THRESHOLD => {
+            emphasised(&crate::fit::residuals(f, sample), sample.len())
+        }
+        _ => vec![false; sample.len()],
+    };
+    let points: Vec<ChartPoint> = sample
         .iter()
         .zip(&outcome.sample.members)
         .zip(&index)
-        .map(|((p, m), g)| chart_point(m, p, p.x, chart_y(fit, p), *g))
+        .zip(&marks)
+        .map(|(((p, m), g), &emphasis)| ChartPoint {
+            emphasis,
+            ..chart_point(m, p, p.x, chart_y(fit, p), *g)
+        })
         .collect();
     let (x_min, x_max) = points
         .iter()
@@ -1049,6 +1080,7 @@ fn residual_charts(
 ) -> (String, String) {
     let sample = &outcome.sample;
     let residuals = crate::fit::residuals(f, &sample.points);
+    let marks = emphasised(&residuals, sample.points.len());
     let (groups, index) = groups_of(q.group, &sample.members);
     let residual_points = |x_of: &dyn Fn(&Member, &Point) -> Option<f64>| -> Vec<ChartPoint> {
         sample
@@ -1057,11 +1089,13 @@ fn residual_charts(
             .zip(&sample.members)
             .zip(&residuals)
             .zip(&index)
-            .filter_map(|(((p, m), r), g)| {
+            .zip(&marks)
+            .filter_map(|((((p, m), r), g), &emphasis)| {
                 let x = x_of(m, p)?;
                 // The second property's error is not carried in the sample: no x bar.
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
+                c.emphasis = emphasis;
                 Some(c)
             })
             .collect()
@@ -1504,5 +1538,71 @@ mod tests {
         assert!((half - 0.0088f64.sqrt()).abs() < 1e-12, "{half}");
         assert!(((first.upper + first.lower) / 2.0 - (8.3 - 1.5)).abs() < 1e-12);
         assert!(mean_band(&fit, 2.0, 2.0).is_empty());
+    }
+
+    #[test]
+    fn charts_mark_the_objects_off_the_relation_largest_z_first() {
+        use crate::fit::FitSpec;
+        // Invented line and sample: 2,400 objects on the line with 0.1 dex errors, of which
+        // those at k = 0 mod 6 sit 0.2 + 0.001 k dex off it (above for even k / 6, below for
+        // odd), and every 50th object is an upper limit, 0.5 dex above the line or 3 dex below.
+        let fit = Fit::given_line(
+            FitSpec::new(Method::Structural, 2.3),
+            crate::fit::Params::line(8.3, 5.0, 0.1),
+            [[1e-6, 0.0, 0.0], [0.0, 1e-6, 0.0], [0.0, 0.0, 1e-6]],
+        );
+        let points: Vec<Point> = (0..2_400)
+            .map(|k| {
+                let x = 2.0 + 0.0002 * f64::from(k);
+                let on = 8.3 + 5.0 * (x - 2.3);
+                if k % 50 == 25 {
+                    let off = if k % 100 == 25 { 0.5 } else { -3.0 };
+                    Point::limit(x, 0.0, on + off)
+                } else if k % 6 == 0 {
+                    let sign = if (k / 6) % 2 == 0 { 1.0 } else { -1.0 };
+                    Point::new(x, 0.0, on + sign * (0.2 + 0.001 * f64::from(k)), 0.1)
+                } else {
+                    Point::new(x, 0.0, on, 0.1)
+                }
+            })
+            .collect();
+        let residuals = crate::fit::residuals(&fit, &points);
+        let marks = emphasised(&residuals, points.len());
+        assert_eq!(marks.len(), points.len());
+        // Exactly the flagged ones, up to the cap; here more are flagged than the cap allows.
+        let flagged: Vec<&crate::fit::Residual> = residuals
+            .iter()
+            .filter(|r| crate::relations::place::is_flagged(r.z, r.upper_limit))
+            .collect();
+        assert!(flagged.len() > crate::charts::MAX_EMPHASISED);
+        assert_eq!(
+            marks.iter().filter(|m| **m).count(),
+            crate::charts::MAX_EMPHASISED
+        );
+        let smallest_marked = residuals
+            .iter()
+            .filter(|r| marks[r.index])
+            .map(|r| r.z.abs())
+            .fold(f64::INFINITY, f64::min);
+        for r in &residuals {
+            if marks[r.index] {
+                assert!(crate::relations::place::is_flagged(r.z, r.upper_limit));
+            } else if crate::relations::place::is_flagged(r.z, r.upper_limit) {
+                assert!(r.z.abs() <= smallest_marked, "a larger |z| left unmarked");
+            }
+        }
+        // Limits above the line are never marked; those far below are.
+        assert!(!marks[25] && points[25].upper_limit);
+        assert!(marks[75] && points[75].upper_limit);
+        // Few flagged objects: every one of them is marked.
+        let few = &residuals[..120];
+        let marks = emphasised(few, 120);
+        for r in few {
+            assert_eq!(
+                marks[r.index],
+                crate::relations::place::is_flagged(r.z, r.upper_limit)
+            );
+        }
+        assert!(marks.iter().any(|m| *m));
     }
 }

@@ -299,3 +299,47 @@ async fn error_pages_show_the_visitors_session_links() {
     // The security headers stay on the redrawn page.
     assert!(!refused.header("content-security-policy").is_empty());
 }
+
+/// A catalog file of `n` invented galaxies ("X 0", "X 1", …) on the M–σ relation
+/// log M = 8.3 + 5 (log σ − log 200), except those with `off(i)`, 1.5 dex above it.
+fn large_catalog(n: usize, off: impl Fn(usize) -> bool) -> String {
+    let mut text = String::from(
+        "galaxy,morphology,bulge_kind,centre_kind,distance_mpc,distance_err_mpc,distance_method,quantity,value,scale,method,sigma_definition,aperture,source_distance_mpc,resolution_arcsec,reference\n",
+    );
+    for i in 0..n {
+        let sigma_km_s = 100.0 + 200.0 * (i as f64) / (n as f64);
+        let shift = if off(i) { 1.5 } else { 0.0 };
+        let log_mbh = 8.3 + 5.0 * (sigma_km_s / 200.0).log10() + shift;
+        text.push_str(&format!(
+            "X {i},elliptical,classical,core,20,1,sbf,sigma,{sigma_km_s:.1} ± 10,,,sigma_e,r_e,,,Invented et al. 2030\n\
+             X {i},,,,,,,bh_mass,{log_mbh:.2} ± 0.1,log10,stellar_dynamics,,,20,0.1,Invented et al. 2030\n"
+        ));
+    }
+    text
+}
+
+#[tokio::test]
+async fn a_large_catalog_draws_its_relation_chart_as_a_density_with_the_outliers_named() {
+    let app = spawn_app().await;
+    let n = 2_100;
+    let off = |i: usize| i % 300 == 7;
+    massline::catalog::csv_io::import_csv(
+        &app.pool,
+        &large_catalog(n, off),
+        massline::catalog::csv_io::ImportMode::Accepted,
+        &mut |_, _| {},
+    )
+    .await
+    .expect("the invented catalog is imported");
+    let svg = app.ok("/relations/m_sigma/chart.svg").await;
+    assert!(svg.len() <= 300_000, "the chart weighs {} bytes", svg.len());
+    assert!(svg.contains("<g class=\"density\""), "drawn as a density");
+    let hover = |i: usize| format!("<title>X {i}: ");
+    for i in (0..n).filter(|&i| off(i)) {
+        assert!(svg.contains(&hover(i)), "X {i}, off the relation, is named");
+    }
+    let named_on_it = (0..n)
+        .filter(|&i| !off(i) && svg.contains(&hover(i)))
+        .count();
+    assert_eq!(named_on_it, 0, "objects on the relation are only shaded");
+}
