@@ -718,13 +718,19 @@ mod tests {
         let mut map = HashMap::new();
         map.insert(default_key.clone(), sized(default_key.clone(), 40));
         map.insert(other_key.clone(), sized(other_key.clone(), 40));
-        map.insert(default_key.leaving_out(3), sized(default_key.leaving_out(3), 39));
+        map.insert(
+            default_key.leaving_out(3),
+            sized(default_key.leaving_out(3), 39),
+        );
         keep_objects_below(&mut map, 200, 10);
         assert_eq!(map.len(), 3, "under the cap nothing goes");
         keep_objects_below(&mut map, 100, 10);
         assert_eq!(map.len(), 2, "the left-out fit goes first");
         keep_objects_below(&mut map, 60, 10);
-        assert!(map.contains_key(&default_key) && map.len() == 1, "the default stays");
+        assert!(
+            map.contains_key(&default_key) && map.len() == 1,
+            "the default stays"
+        );
         keep_objects_below(&mut map, 30, 10);
         assert!(map.is_empty());
     }

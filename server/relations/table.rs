@@ -8,7 +8,6 @@
 
 use std::cmp::Ordering;
 
-
 use super::{at_adopted_distance, sphere_of_influence};
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::catalog::relation_rows::RelationRow;

@@ -344,7 +344,7 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
         .zip(p.fit())
         .map(|(refit, fit)| match refit {
             Ok(new) => format!(
-                "α {} → {} ({}), β {} → {} ({}), ε {} → {} ({})",
+                "α {} → {} ({}), β {} → {} ({}), ε {} → {} ({}){}",
                 fixed(fit.params.alpha, 3),
                 fixed(new.params.alpha, 3),
                 signed(new.params.alpha - fit.params.alpha, 3),
@@ -354,8 +354,13 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
                 fixed(fit.params.eps, 3),
                 fixed(new.params.eps, 3),
                 signed(new.params.eps - fit.params.eps, 3),
+                if p.refit_exact {
+                    ""
+                } else {
+                    " (one-step estimate, docs/methods.md §6.1)"
+                },
             ),
-            Err(e) => format!("The refit failed: {e}"),
+            Err(why) => why.clone(),
         });
     row
 }
