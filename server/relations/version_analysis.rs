@@ -1,9 +1,10 @@
 //! The analysis of each catalog version, computed once in the background.
 //!
 //! When the catalog version changes, one job fits every relation with the defaults (the
-//! structural estimator, the whole sample, the conventional pivots), computes the influence of
-//! every object, and places every pending submission against the new fits (storing its |z|
-//! for the review queue, `catalog::review_scores`). Everything goes into the shared
+//! structural estimator, the whole sample, the conventional pivots), places every pending
+//! submission against the new fits (storing its |z| for the review queue,
+//! `catalog::review_scores`), and computes the influence of every object of the samples above
+//! `fit::influence::EXACT_MAX_N` objects. Everything goes into the shared
 //! [`FitCache`](super::FitCache), so pages read the results; a page that asks for a result
 //! still being computed joins the job's computation for a moment and otherwise answers at once
 //! with what it has, saying "computing". A newer version supersedes the job: it stops between
@@ -16,7 +17,7 @@ use std::time::{Duration, Instant};
 
 use super::{Catalog, Relation, SampleFilter, assess};
 use crate::catalog::{history, relation_rows};
-use crate::fit::Method;
+use crate::fit::{Method, influence};
 
 /// How often the job looks for a new catalog version or new submissions: a one-row read.
 const POLL_EVERY: Duration = Duration::from_millis(500);
@@ -120,14 +121,18 @@ async fn superseded(catalog: &Catalog, version: i64) -> Result<bool, Stopped> {
     Ok(history::current_version(&catalog.pool).await? > version)
 }
 
-/// The default fits of every relation, their influence lists, then the pending submissions'
-/// scores, at `version`; stops between steps when a newer version arrives.
+/// The default fits of every relation, then the pending submissions' scores (what pages and
+/// the review queue need first), then the influence lists of the samples large enough for
+/// them to cost (smaller ones take milliseconds on a page's first visit), at `version`; stops
+/// between steps when a newer version arrives.
 async fn analyse(catalog: &Catalog, version: i64) -> Result<(), Stopped> {
+    let started = Instant::now();
     let bands: Vec<String> = relation_rows::luminosity_bands(&catalog.pool)
         .await?
         .into_iter()
         .filter(|b| Relation::valid_band(b))
         .collect();
+    let mut outcomes = Vec::new();
     for relation in Relation::all(&bands) {
         if superseded(catalog, version).await? {
             return Err(Stopped::Superseded);
@@ -144,13 +149,24 @@ async fn analyse(catalog: &Catalog, version: i64) -> Result<(), Stopped> {
         if outcome.key.catalog_version != version {
             return Err(Stopped::Superseded);
         }
-        if outcome.fit.is_ok() {
-            catalog.fits.influence(&outcome).await?;
-        }
+        outcomes.push(outcome);
     }
     if superseded(catalog, version).await? {
         return Err(Stopped::Superseded);
     }
     assess::score_pending(catalog, None).await?;
+    tracing::info!(
+        version,
+        took_ms = started.elapsed().as_millis(),
+        "default fits and review scores ready"
+    );
+    for outcome in outcomes {
+        if superseded(catalog, version).await? {
+            return Err(Stopped::Superseded);
+        }
+        if outcome.fit.is_ok() && outcome.sample.points.len() > influence::EXACT_MAX_N {
+            catalog.fits.influence(&outcome).await?;
+        }
+    }
     Ok(())
 }
