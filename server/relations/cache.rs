@@ -140,8 +140,16 @@ pub struct FitCache {
     /// version: what a page shows while the fit of a newer version is being computed.
     latest: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
     rows: Arc<tokio::sync::Mutex<Option<Arc<RowsSnapshot>>>>,
+    drawn: Arc<Mutex<HashMap<(FitKey, String), Arc<Drawn>>>>,
     hold: Hold,
 }
+
+/// Texts drawn from a fit (a page's charts as SVG, or why one could not be drawn): drawing a
+/// survey-sized sample takes a tenth of a second, so a page keeps what it drew for the fit.
+pub type Drawn = Vec<Result<String, String>>;
+
+/// Most drawn entries kept; beyond it the map starts afresh (they are redrawn on demand).
+const MAX_DRAWN: usize = 64;
 
 /// A key without its version: the slot of [`FitCache::latest`].
 fn unversioned(key: &FitKey) -> FitKey {
@@ -334,6 +342,27 @@ impl FitCache {
         let snapshot = Arc::new(relation_rows::snapshot(pool).await?);
         *slot = Some(snapshot.clone());
         Ok(snapshot)
+    }
+
+    /// What `draw` draws from the fit `key` under the name `what` (e.g. the chart settings),
+    /// drawn once per fit and kept while the fit's catalog version is current.
+    pub fn drawn(&self, key: &FitKey, what: &str, draw: impl FnOnce() -> Drawn) -> Arc<Drawn> {
+        let slot = (key.clone(), what.to_owned());
+        if let Some(hit) = self
+            .drawn
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .get(&slot)
+        {
+            return hit.clone();
+        }
+        let made = Arc::new(draw());
+        let mut map = self.drawn.lock().unwrap_or_else(PoisonError::into_inner);
+        map.retain(|(k, _), _| k.catalog_version >= key.catalog_version);
+        if map.len() >= MAX_DRAWN {
+            map.clear();
+        }
+        map.entry(slot).or_insert(made).clone()
     }
 
     /// Holds every computation of this cache before it starts until the returned guard is

@@ -36,7 +36,7 @@ pub mod version_analysis;
 use std::fmt;
 
 pub use cache::{
-    FitCache, FitChoiceRef, FitKey, FitOutcome, HoldGuard, InfluenceResult, fitted,
+    Drawn, FitCache, FitChoiceRef, FitKey, FitOutcome, HoldGuard, InfluenceResult, fitted,
     fitted_leaving_out, fitted_within, load_sample, spec_for,
 };
 pub use defaults::{

@@ -32,6 +32,15 @@ use crate::units::round_to_uncertainty;
 
 /// How many of the most influential objects are listed.
 const TOP_INFLUENCE: usize = 5;
+
+/// Objects the two residual charts of a relation page draw one by one above the density
+/// threshold (the relation chart draws up to `charts::MAX_EMPHASISED`): the page carries three
+/// charts and stays under 500 kB.
+const RESIDUAL_EMPHASISED: usize = 100;
+
+/// Rows of the page's list of objects in tension or outliers; the rest are counted (the sample
+/// download and the API list them all).
+const FLAGGED_ROWS: usize = 100;
 /// Samples of the mean-relation band across the x range.
 const BAND_SAMPLES: usize = 41;
 
@@ -560,6 +569,8 @@ pub(crate) struct RelationPage {
     residual2_label: String,
     chart_error: Option<String>,
     outliers: Vec<ObjectView>,
+    /// Objects in tension or outliers beyond the rows shown.
+    outliers_more: usize,
     influential: Vec<ObjectView>,
     influence_note: Option<String>,
     offset: Option<OffsetView>,
@@ -864,16 +875,17 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
 /// For each object of the sample: whether the charts draw it one by one even when they draw the
 /// sample as a density. These are the objects at least in tension with the fit
 /// (`relations::place::is_flagged`: |z| ≥ 2, limits only when that far below), the largest |z|
-/// first, at most `charts::MAX_EMPHASISED` of them: beyond that a chart would grow past its
-/// weight budget, and the list of flagged objects below the chart names them all.
-fn emphasised(residuals: &[crate::fit::Residual], len: usize) -> Vec<bool> {
+/// first, at most `cap` of them (`charts::MAX_EMPHASISED` for the relation chart,
+/// [`RESIDUAL_EMPHASISED`] for the residual charts): beyond that a chart would grow past its
+/// weight budget, and the list of flagged objects below the chart names them.
+fn emphasised(residuals: &[crate::fit::Residual], len: usize, cap: usize) -> Vec<bool> {
     let mut flagged: Vec<&crate::fit::Residual> = residuals
         .iter()
         .filter(|r| crate::relations::place::is_flagged(r.z, r.upper_limit))
         .collect();
     flagged.sort_by(|a, b| b.z.abs().total_cmp(&a.z.abs()));
     let mut marks = vec![false; len];
-    for r in flagged.into_iter().take(crate::charts::MAX_EMPHASISED) {
+    for r in flagged.into_iter().take(cap) {
         if let Some(mark) = marks.get_mut(r.index) {
             *mark = true;
         }
@@ -892,9 +904,11 @@ pub(super) fn relation_chart(
     let sample = &outcome.sample.points;
     // Only a chart above the density threshold reads the marks.
     let marks = match fit {
-        Some(f) if sample.len() > crate::charts::DENSITY_THRESHOLD => {
-            emphasised(&crate::fit::residuals(f, sample), sample.len())
-        }
+        Some(f) if sample.len() > crate::charts::DENSITY_THRESHOLD => emphasised(
+            &crate::fit::residuals(f, sample),
+            sample.len(),
+            crate::charts::MAX_EMPHASISED,
+        ),
         _ => vec![false; sample.len()],
     };
     let points: Vec<ChartPoint> = sample
@@ -972,15 +986,29 @@ pub(crate) async fn show_relation(
     let computing = shown
         .computing
         .map(|v| computing_note(outcome.key.catalog_version, v));
-    let (chart_svg, chart_error) = match relation_chart_svg(&relation, &outcome, q.group) {
-        Ok(svg) => (svg, None),
-        Err(e) => (String::new(), Some(e)),
-    };
     let fit = outcome.fit.as_ref().ok();
+    // The charts are drawn once per fit and chart settings, and kept with the fit.
+    let charts = state.fits.drawn(
+        &outcome.key,
+        &format!("page;group={:?};versus={:?}", q.group, q.versus),
+        || {
+            let (residual_svg, residual2_svg) = fit
+                .map(|f| residual_charts(&relation, &outcome, f, &q))
+                .unwrap_or_default();
+            vec![
+                relation_chart_svg(&relation, &outcome, q.group),
+                Ok(residual_svg),
+                Ok(residual2_svg),
+            ]
+        },
+    );
+    let (chart_svg, chart_error) = match &charts[0] {
+        Ok(svg) => (svg.clone(), None),
+        Err(e) => (String::new(), Some(e.clone())),
+    };
+    let drawn_text = |i: usize| charts[i].clone().unwrap_or_default();
+    let (residual_svg, residual2_svg) = (drawn_text(1), drawn_text(2));
     let (params, cov_names, cov_rows) = fit.map(|f| fit_views(&relation, f)).unwrap_or_default();
-    let (residual_svg, residual2_svg) = fit
-        .map(|f| residual_charts(&relation, &outcome, f, &q))
-        .unwrap_or_default();
     let (influential, influence_note, influence_pending) = match (fit, computing.is_some()) {
         (Some(_), false) => influence_views(&state, &outcome).await?,
         _ => (Vec::new(), None, false),
@@ -1008,6 +1036,7 @@ pub(crate) async fn show_relation(
         residual2_svg,
         residual2_label: q.versus.axis_label(),
         chart_error,
+        outliers_more: flagged_count(&outcome).saturating_sub(FLAGGED_ROWS),
         outliers: flagged_views(&outcome),
         influential,
         influence_note,
@@ -1080,7 +1109,7 @@ fn residual_charts(
 ) -> (String, String) {
     let sample = &outcome.sample;
     let residuals = crate::fit::residuals(f, &sample.points);
-    let marks = emphasised(&residuals, sample.points.len());
+    let marks = emphasised(&residuals, sample.points.len(), RESIDUAL_EMPHASISED);
     let (groups, index) = groups_of(q.group, &sample.members);
     let residual_points = |x_of: &dyn Fn(&Member, &Point) -> Option<f64>| -> Vec<ChartPoint> {
         sample
@@ -1130,10 +1159,17 @@ fn residual_charts(
     )
 }
 
-/// The objects in tension with the relation or outliers, largest |z| first.
+/// How many objects are in tension with the relation or outliers.
+fn flagged_count(outcome: &FitOutcome) -> usize {
+    flagged(outcome).len()
+}
+
+/// The objects in tension with the relation or outliers, largest |z| first, the first
+/// [`FLAGGED_ROWS`].
 fn flagged_views(outcome: &FitOutcome) -> Vec<ObjectView> {
     flagged(outcome)
         .into_iter()
+        .take(FLAGGED_ROWS)
         .map(|r| {
             let m = &outcome.sample.members[r.index];
             ObjectView {
@@ -1361,7 +1397,12 @@ pub(crate) async fn download_chart(
     let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
     let outcome = fit_for(&state, &relation, &q).await?;
-    let svg = relation_chart_svg(&relation, &outcome, q.group).map_err(AppError::bad_request)?;
+    let drawn = state
+        .fits
+        .drawn(&outcome.key, &format!("svg;group={:?}", q.group), || {
+            vec![relation_chart_svg(&relation, &outcome, q.group)]
+        });
+    let svg = drawn[0].clone().map_err(AppError::bad_request)?;
     Ok(download(
         "image/svg+xml; charset=utf-8",
         &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
@@ -1567,7 +1608,7 @@ mod tests {
             })
             .collect();
         let residuals = crate::fit::residuals(&fit, &points);
-        let marks = emphasised(&residuals, points.len());
+        let marks = emphasised(&residuals, points.len(), crate::charts::MAX_EMPHASISED);
         assert_eq!(marks.len(), points.len());
         // Exactly the flagged ones, up to the cap; here more are flagged than the cap allows.
         let flagged: Vec<&crate::fit::Residual> = residuals
@@ -1596,7 +1637,7 @@ mod tests {
         assert!(marks[75] && points[75].upper_limit);
         // Few flagged objects: every one of them is marked.
         let few = &residuals[..120];
-        let marks = emphasised(few, 120);
+        let marks = emphasised(few, 120, crate::charts::MAX_EMPHASISED);
         for r in few {
             assert_eq!(
                 marks[r.index],

@@ -342,4 +342,34 @@ async fn a_large_catalog_draws_its_relation_chart_as_a_density_with_the_outliers
         .filter(|&i| !off(i) && svg.contains(&hover(i)))
         .count();
     assert_eq!(named_on_it, 0, "objects on the relation are only shaded");
+
+    // Every page stays light (under 500 kB) with its three charts, once the version's analysis
+    // is done; the galaxy page of a sample above 2,000 objects places the galaxy against the
+    // one-step fit without it, and says so.
+    let mut galaxy = String::new();
+    for _ in 0..1200 {
+        galaxy = app.ok("/galaxies/x-7").await;
+        if !galaxy.contains("id=\"computing\"") {
+            break;
+        }
+        tokio::time::sleep(std::time::Duration::from_millis(100)).await;
+    }
+    assert!(galaxy.contains("id=\"left-out-approximate\""), "{galaxy}");
+    assert!(
+        galaxy.contains(">outlier<"),
+        "X 7 lies 1.5 dex above the relation"
+    );
+    for (path, body) in [
+        ("/galaxies/x-7", galaxy),
+        ("/relations/m_sigma", app.ok("/relations/m_sigma").await),
+        ("/relations", app.ok("/relations").await),
+        ("/galaxies", app.ok("/galaxies").await),
+        (
+            "/place?sigma=200&mass=1e8",
+            app.ok("/place?sigma=200&mass=1e8").await,
+        ),
+    ] {
+        assert!(body.len() < 500_000, "{path} weighs {} bytes", body.len());
+        assert!(!body.contains("NaN"), "{path}");
+    }
 }
