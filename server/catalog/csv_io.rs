@@ -228,6 +228,9 @@ pub fn reported_faults(rows: &[RowError]) -> (&[RowError], String) {
     (listed, summary)
 }
 
+/// Rows stored between two calls of an import's progress callback.
+const PROGRESS_ROWS: usize = 5_000;
+
 /// File name used in row reports.
 const FILE: &str = "import";
 
@@ -435,10 +438,23 @@ pub async fn import_rows(
     let mut tx = super::begin_write(pool).await?;
     // Rows imported before (same key) are skipped: importing a file twice adds nothing. A key
     // stored with other content is a fault, not a silent skip.
+    // Plain keys are read in batches; a key of the exported form may also be another row's
+    // digest, and is looked up alone (only files made by an export carry such keys).
+    let plain: Vec<&str> = rows
+        .iter()
+        .map(|r| r.row.key.as_str())
+        .filter(|k| !galaxies::is_public_row_key(k))
+        .collect();
+    let mut known = galaxies::stored_row_keys(&mut tx, &plain).await?;
     let mut faults = Vec::new();
     let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
     for r in rows {
-        let stored = match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
+        let found = if galaxies::is_public_row_key(&r.row.key) {
+            galaxies::stored_row_key(&mut tx, &r.row.key).await?
+        } else {
+            known.remove(&r.row.key)
+        };
+        let stored = match found {
             None => {
                 fresh.push(r);
                 continue;
@@ -479,21 +495,28 @@ pub async fn import_rows(
         entry.push(r);
     }
     let mut choices = Vec::with_capacity(order.len());
+    // The catalog is read once per batch of names, not once per galaxy: the galaxies named
+    // exactly so, then the look-alikes of the other names.
+    let existing_ids = galaxies::ids_by_name(&mut tx, &order).await?;
+    let name_keys: HashMap<&str, String> = order
+        .iter()
+        .filter(|name| !existing_ids.contains_key(**name))
+        .map(|name| (*name, super::names::name_key(name)))
+        .collect();
+    let wanted: Vec<&str> = name_keys.values().map(String::as_str).collect();
+    let look_alikes = galaxies::look_alikes(&mut tx, &wanted).await?;
+    let look_alike = |name: &str| name_keys.get(name).and_then(|k| look_alikes.get(k));
     // New galaxies of this file by look-alike key: two rows may not describe look-alikes as two
     // new galaxies either, unless the later one confirms it.
     let mut new_keys: HashMap<String, (&str, u64)> = HashMap::new();
     for name in &order {
         let group = &by_galaxy[name];
-        let existing: Option<i64> =
-            sqlx::query_scalar("select galaxy_id from galaxy where name = ?")
-                .bind(name)
-                .fetch_optional(&mut *tx)
-                .await?;
+        let existing: Option<i64> = existing_ids.get(*name).copied();
         let described = group.iter().find_map(|r| r.galaxy.as_ref());
         if let (None, Some(g)) = (existing, described) {
             let key = super::names::name_key(&g.name);
             let confirmed = group.iter().any(|r| r.new_galaxy_confirmed);
-            let alike = match galaxies::look_alike(&mut *tx, name).await? {
+            let alike = match look_alike(name) {
                 Some(other) => Some(format!(
                     "the galaxy “{}” of the catalog (slug {})",
                     other.name, other.slug
@@ -519,7 +542,7 @@ pub async fn import_rows(
             (Some(id), _) => choices.push(GalaxyChoice::Existing(id)),
             (None, Some(g)) => choices.push(GalaxyChoice::New(g.clone())),
             (None, None) => {
-                let message = match galaxies::look_alike(&mut *tx, name).await? {
+                let message = match look_alike(name) {
                     // A look-alike of a catalog name is most likely that galaxy, mistyped.
                     Some(other) => format!(
                         "'{name}' is not in the catalog, but “{}” is: write that name, or describe a new galaxy (morphology, distance, …) on one of its rows",
@@ -593,27 +616,36 @@ pub async fn import_rows(
             )
             .await?;
             report.submissions = 1;
+            let new: Vec<&NewGalaxy> = choices
+                .iter()
+                .filter_map(|c| match c {
+                    GalaxyChoice::New(g) => Some(g),
+                    GalaxyChoice::Existing(_) => None,
+                })
+                .collect();
+            let mut new_ids = galaxies::insert_galaxies(&mut tx, &new).await?.into_iter();
+            let mut stored: Vec<(galaxies::MeasurementRow<'_>, u64)> = Vec::with_capacity(total);
             for (name, choice) in order.iter().zip(&choices) {
                 let galaxy_id = match choice {
                     GalaxyChoice::Existing(id) => *id,
-                    GalaxyChoice::New(g) => galaxies::insert_galaxy(&mut tx, g).await?.galaxy_id,
+                    GalaxyChoice::New(_) => new_ids.next().ok_or(sqlx::Error::RowNotFound)?,
                 };
                 for r in &by_galaxy[name] {
-                    let id = galaxies::insert_measurement(
-                        &mut tx,
-                        galaxy_id,
-                        submission_id,
-                        &r.measurement,
-                        &r.row,
-                    )
-                    .await
-                    .map_err(|e| row_fault(SubmissionError::Db(e), r.line))?;
-                    galaxies::adopt(&mut tx, id).await?;
-                    done += 1;
-                    report.measurements += 1;
-                    progress(done, total);
+                    stored.push(((galaxy_id, &r.measurement, &r.row), r.line));
                 }
             }
+            // In slices, so that the progress line moves while a large file is stored.
+            for part in stored.chunks(PROGRESS_ROWS) {
+                let batch: Vec<galaxies::MeasurementRow<'_>> =
+                    part.iter().map(|(row, _)| *row).collect();
+                galaxies::insert_measurements(&mut tx, submission_id, &batch)
+                    .await
+                    .map_err(|(i, e)| row_fault(SubmissionError::Db(e), part[i].1))?;
+                done += part.len();
+                report.measurements += part.len();
+                progress(done, total);
+            }
+            galaxies::adopt_submission(&mut tx, submission_id).await?;
             history::bump_version(&mut tx).await?;
             history::record(
                 &mut tx,
