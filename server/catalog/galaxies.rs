@@ -381,7 +381,8 @@ pub async fn stored_row_keys(
             "select row_key, measurement_id, row_sha256 from measurement where row_key in ({})",
             vec!["?"; chunk.len()].join(", ")
         );
-        let mut query = sqlx::query_as::<_, (String, i64, Option<String>)>(sqlx::AssertSqlSafe(sql));
+        let mut query =
+            sqlx::query_as::<_, (String, i64, Option<String>)>(sqlx::AssertSqlSafe(sql));
         for key in chunk {
             query = query.bind(*key);
         }
@@ -438,7 +439,8 @@ pub async fn look_alikes(
               order by galaxy_id",
             vec!["?"; chunk.len()].join(", ")
         );
-        let mut query = sqlx::query_as::<_, (String, i64, String, String)>(sqlx::AssertSqlSafe(sql));
+        let mut query =
+            sqlx::query_as::<_, (String, i64, String, String)>(sqlx::AssertSqlSafe(sql));
         for key in chunk {
             query = query.bind(*key);
         }
