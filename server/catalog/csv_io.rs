@@ -88,6 +88,21 @@ impl LineCounter<'_> {
 /// # Errors
 /// The first line the CSV reader refuses.
 pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
+    let mut out = Vec::new();
+    for_each_record(text, file, |line, record| out.push((line, record)))?;
+    Ok(out)
+}
+
+/// Hand each record of a CSV text, with the line it starts on, to `each` as it is read: a large
+/// file is never held as cell maps all at once (each map is about 2 KB).
+///
+/// # Errors
+/// The first line the CSV reader refuses; the records before it have been handed over.
+pub(super) fn for_each_record(
+    text: &str,
+    file: &'static str,
+    mut each: impl FnMut(u64, Record),
+) -> Result<(), RowError> {
     let mut lines = LineCounter {
         text: text.as_bytes(),
         at: 0,
@@ -105,23 +120,28 @@ pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record
             message: e.to_string(),
         })?
         .clone();
-    let mut out = Vec::new();
-    for rec in reader.records() {
-        let rec = rec.map_err(|e| RowError {
-            file,
-            line: e.position().map_or(0, |p| lines.line_at(p.byte())),
-            column: "(row)",
-            message: e.to_string(),
-        })?;
+    let mut rec = csv::StringRecord::new();
+    loop {
+        match reader.read_record(&mut rec) {
+            Ok(true) => {}
+            Ok(false) => return Ok(()),
+            Err(e) => {
+                return Err(RowError {
+                    file,
+                    line: e.position().map_or(0, |p| lines.line_at(p.byte())),
+                    column: "(row)",
+                    message: e.to_string(),
+                });
+            }
+        }
         let line = rec.position().map_or(0, |p| lines.line_at(p.byte()));
         let map = headers
             .iter()
             .zip(rec.iter())
             .map(|(h, v)| (h.to_string(), unguard_cell(v).to_string()))
             .collect();
-        out.push((line, map));
+        each(line, map);
     }
-    Ok(out)
 }
 
 /// The columns, in the order export writes them. `row_key` is optional on import (see
@@ -239,13 +259,44 @@ const FILE: &str = "import";
 /// # Errors
 /// Every faulty row (line, column, message); an unreadable header or record stops the reading.
 pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
-    let rows = records(text, FILE).map_err(|e| vec![e])?;
-    parse_records(rows)
+    let mut reader = RowReader::default();
+    for_each_record(text, FILE, |line, record| reader.push(line, &record)).map_err(|e| vec![e])?;
+    reader.finish()
 }
 
 /// Read catalog rows given as cell maps (from CSV records or JSON objects).
 fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowError>> {
-    if let Some((_, first)) = rows.first() {
+    let mut reader = RowReader::default();
+    for (line, record) in rows {
+        reader.push(line, &record);
+    }
+    reader.finish()
+}
+
+/// Catalog rows read one cell map at a time: the rows, every fault, the row keys seen.
+#[derive(Default)]
+struct RowReader {
+    /// The first map has been checked for the columns of the format.
+    header_read: bool,
+    /// The columns are at fault: the rows are not read.
+    header_faulty: bool,
+    out: Vec<ImportRow>,
+    faults: Vec<RowError>,
+    seen: HashMap<String, u64>,
+}
+
+impl RowReader {
+    /// The rows, or every fault (only the column faults when the columns are at fault).
+    fn finish(self) -> Result<Vec<ImportRow>, Vec<RowError>> {
+        if self.faults.is_empty() {
+            Ok(self.out)
+        } else {
+            Err(self.faults)
+        }
+    }
+
+    /// Whether the first map names the columns of the format; records the faults.
+    fn check_columns(&mut self, first: &Record) -> bool {
         let mut faults = Vec::new();
         for column in first.keys() {
             if !COLUMNS.contains(&column.as_str()) && column != CONFIRM_COLUMN {
@@ -270,14 +321,21 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                 });
             }
         }
-        if !faults.is_empty() {
-            return Err(faults);
-        }
+        let fine = faults.is_empty();
+        self.faults.extend(faults);
+        fine
     }
-    let mut out = Vec::with_capacity(rows.len());
-    let mut faults = Vec::new();
-    let mut seen: HashMap<String, u64> = HashMap::new();
-    for (line, rec) in rows {
+
+    /// Read one row.
+    fn push(&mut self, line: u64, rec: &Record) {
+        if !self.header_read {
+            self.header_read = true;
+            self.header_faulty = !self.check_columns(rec);
+        }
+        if self.header_faulty {
+            return;
+        }
+        let (out, faults, seen) = (&mut self.out, &mut self.faults, &mut self.seen);
         let cell = |c: &'static str| {
             let key = if c == "name" { "galaxy" } else { c };
             rec.get(key).map_or("", String::as_str)
@@ -292,7 +350,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
             Ok(name) => name,
             Err(e) => {
                 faults.push(e);
-                continue;
+                return;
             }
         };
         let new_galaxy_confirmed = match confirmation(cell(CONFIRM_COLUMN)) {
@@ -304,7 +362,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     column: CONFIRM_COLUMN,
                     message,
                 });
-                continue;
+                return;
             }
         };
         let described = GALAXY_COLUMNS.iter().any(|c| !cell(c).trim().is_empty());
@@ -316,7 +374,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                         e.column = "galaxy";
                     }
                     faults.push(e);
-                    continue;
+                    return;
                 }
             }
         } else {
@@ -331,7 +389,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     column: "row_key",
                     message,
                 });
-                continue;
+                return;
             }
         };
         if let Some(first) = seen.get(&row.key) {
@@ -343,7 +401,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     "line {first} has the same row key; every row needs its own (a blank key is made from the row's values, so a repeated row gets the same one)"
                 ),
             });
-            continue;
+            return;
         }
         seen.insert(row.key.clone(), line);
         match measurement_from_cells(FILE, line, &cell) {
@@ -357,11 +415,6 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
             }),
             Err(e) => faults.push(e),
         }
-    }
-    if faults.is_empty() {
-        Ok(out)
-    } else {
-        Err(faults)
     }
 }
 
@@ -442,6 +495,55 @@ pub async fn import_rows(
     progress: &mut (dyn FnMut(usize, usize) + Send),
 ) -> Result<ImportReport, ImportError> {
     let mut tx = super::begin_write(pool).await?;
+    // A larger page cache for this transaction only: the indexes of a large file (row keys and
+    // their digests, names, slugs) are updated at random places, and with SQLite's default of
+    // 2 MB their pages are written out and read back again and again. Durability is the
+    // connection's (WAL, synchronous=FULL at commit); the cache only holds uncommitted pages.
+    let cache_before: i64 = sqlx::query_scalar("pragma cache_size")
+        .fetch_one(&mut *tx)
+        .await?;
+    sqlx::query(sqlx::AssertSqlSafe(format!(
+        "pragma cache_size = -{IMPORT_CACHE_KIB}"
+    )))
+    .execute(&mut *tx)
+    .await?;
+    let stored = store_rows(&mut tx, rows, mode, progress).await;
+    // The connection goes back to the pool with its own cache size, whatever happened.
+    let restored = sqlx::query(sqlx::AssertSqlSafe(format!(
+        "pragma cache_size = {cache_before}"
+    )))
+    .execute(&mut *tx)
+    .await;
+    match stored? {
+        (report, Outcome::Commit) => {
+            restored?;
+            tx.commit().await?;
+            Ok(report)
+        }
+        (report, Outcome::Nothing) => {
+            tx.rollback().await?;
+            Ok(report)
+        }
+    }
+}
+
+/// The largest page cache of an import's connection, KiB (the pages of a 100,000-galaxy
+/// catalog's indexes fit; the cache takes memory only as pages are read).
+const IMPORT_CACHE_KIB: i64 = 131_072;
+
+/// Whether [`store_rows`] wrote anything to commit.
+enum Outcome {
+    Commit,
+    Nothing,
+}
+
+/// The work of [`import_rows`] inside its transaction.
+async fn store_rows(
+    tx: &mut sqlx::Transaction<'_, sqlx::Sqlite>,
+    rows: &[ImportRow],
+    mode: ImportMode,
+    progress: &mut (dyn FnMut(usize, usize) + Send),
+) -> Result<(ImportReport, Outcome), ImportError> {
     // Rows imported before (same key) are skipped: importing a file twice adds nothing. A key
     // stored with other content is a fault, not a silent skip.
     // Plain keys are read in batches; a key of the exported form may also be another row's
@@ -451,12 +553,12 @@ pub async fn import_rows(
         .map(|r| r.row.key.as_str())
         .filter(|k| !galaxies::is_public_row_key(k))
         .collect();
-    let mut known = galaxies::stored_row_keys(&mut tx, &plain).await?;
+    let mut known = galaxies::stored_row_keys(tx, &plain).await?;
     let mut faults = Vec::new();
     let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
     for r in rows {
         let found = if galaxies::is_public_row_key(&r.row.key) {
-            galaxies::stored_row_key(&mut tx, &r.row.key).await?
+            galaxies::stored_row_key(tx, &r.row.key).await?
         } else {
             known.remove(&r.row.key)
         };
@@ -469,7 +571,7 @@ pub async fn import_rows(
         };
         // A row carrying an exported key is compared with what the export wrote for it.
         let sha = match (stored.row_sha256, stored.by_digest) {
-            (Some(_), true) => exported_fingerprint(&mut tx, stored.measurement_id).await?,
+            (Some(_), true) => exported_fingerprint(tx, stored.measurement_id).await?,
             (sha, _) => sha,
         };
         match sha {
@@ -503,14 +605,14 @@ pub async fn import_rows(
     let mut choices = Vec::with_capacity(order.len());
     // The catalog is read once per batch of names, not once per galaxy: the galaxies named
     // exactly so, then the look-alikes of the other names.
-    let existing_ids = galaxies::ids_by_name(&mut tx, &order).await?;
+    let existing_ids = galaxies::ids_by_name(tx, &order).await?;
     let name_keys: HashMap<&str, String> = order
         .iter()
         .filter(|name| !existing_ids.contains_key(**name))
         .map(|name| (*name, super::names::name_key(name)))
         .collect();
     let wanted: Vec<&str> = name_keys.values().map(String::as_str).collect();
-    let look_alikes = galaxies::look_alikes(&mut tx, &wanted).await?;
+    let look_alikes = galaxies::look_alikes(tx, &wanted).await?;
     let look_alike = |name: &str| name_keys.get(name).and_then(|k| look_alikes.get(k));
     // New galaxies of this file by look-alike key: two rows may not describe look-alikes as two
     // new galaxies either, unless the later one confirms it.
@@ -583,8 +685,7 @@ pub async fn import_rows(
     };
     if rows.is_empty() {
         // Nothing new: no submission, no version bump, no audit event.
-        tx.rollback().await?;
-        return Ok(report);
+        return Ok((report, Outcome::Nothing));
     }
     match mode {
         ImportMode::Pending { account_id, source } => {
@@ -595,7 +696,7 @@ pub async fn import_rows(
                     .collect();
                 let keys: Vec<RowKey> = by_galaxy[name].iter().map(|r| r.row.clone()).collect();
                 submissions::create_in(
-                    &mut tx,
+                    tx,
                     account_id,
                     source,
                     choice,
@@ -613,7 +714,7 @@ pub async fn import_rows(
         }
         ImportMode::Accepted => {
             let submission_id = galaxies::insert_submission(
-                &mut tx,
+                tx,
                 None,
                 SubmissionSource::Import,
                 SubmissionState::Accepted,
@@ -629,7 +730,7 @@ pub async fn import_rows(
                     GalaxyChoice::Existing(_) => None,
                 })
                 .collect();
-            let mut new_ids = galaxies::insert_galaxies(&mut tx, &new).await?.into_iter();
+            let mut new_ids = galaxies::insert_galaxies(tx, &new).await?.into_iter();
             let mut stored: Vec<(galaxies::MeasurementRow<'_>, u64)> = Vec::with_capacity(total);
             for (name, choice) in order.iter().zip(&choices) {
                 let galaxy_id = match choice {
@@ -645,7 +746,7 @@ pub async fn import_rows(
             for part in stored.chunks(PROGRESS_ROWS) {
                 let batch: Vec<galaxies::MeasurementRow<'_>> =
                     part.iter().map(|(row, _)| *row).collect();
-                galaxies::insert_measurements(&mut tx, submission_id, &batch)
+                galaxies::insert_measurements(tx, submission_id, &batch)
                     .await
                     .map_err(|(i, e)| row_fault(SubmissionError::Db(e), part[i].1))?;
                 for _ in part {
@@ -654,10 +755,10 @@ pub async fn import_rows(
                     progress(done, total);
                 }
             }
-            galaxies::adopt_submission(&mut tx, submission_id).await?;
-            history::bump_version(&mut tx).await?;
+            galaxies::adopt_submission(tx, submission_id).await?;
+            history::bump_version(tx).await?;
             history::record(
-                &mut tx,
+                tx,
                 &NewEvent {
                     account_id: None,
                     action: "catalog_imported",
@@ -672,8 +773,7 @@ pub async fn import_rows(
             .await?;
         }
     }
-    tx.commit().await?;
-    Ok(report)
+    Ok((report, Outcome::Commit))
 }
 
 /// A failure while writing one row: a schema check becomes a row fault, the rest stays a
