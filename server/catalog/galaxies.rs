@@ -482,12 +482,14 @@ pub async fn insert_galaxies(
     for base in bases {
         let mut slug = base.clone();
         let mut n = 2;
+        // `taken` knows whether a base is in the catalog; a numbered slug is looked up.
         while taken.contains(&slug)
-            || sqlx::query_scalar::<_, i64>("select count(*) from galaxy where slug = ?")
-                .bind(&slug)
-                .fetch_one(&mut **tx)
-                .await?
-                > 0
+            || (slug != base
+                && sqlx::query_scalar::<_, i64>("select count(*) from galaxy where slug = ?")
+                    .bind(&slug)
+                    .fetch_one(&mut **tx)
+                    .await?
+                    > 0)
         {
             slug = format!("{base}-{n}");
             n += 1;
