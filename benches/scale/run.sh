@@ -15,7 +15,9 @@
 # It prints one markdown table; results go in benches/README.md ("Scale").
 #
 #   benches/scale/run.sh [N ...]            default: 1000 10000 100000
-#   RUNS=3 PENDING=10000 benches/scale/run.sh 20000
+#   RUNS=3 PENDING=10000 MAX_TIME=300 benches/scale/run.sh 20000
+#
+# A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a.
 #
 # Needs python3 (standard library) and curl. Only URLs are used, never the pages' content,
 # except the login form's hidden anti-forgery field and the word "computing".
@@ -27,6 +29,7 @@ SIZES=("$@")
 [[ ${#SIZES[@]} -gt 0 ]] || SIZES=(1000 10000 100000)
 RUNS="${RUNS:-3}"
 PENDING="${PENDING:-10000}"
+MAX_TIME="${MAX_TIME:-300}"
 BIN="$ROOT/target/release/massline"
 
 cargo build --release --quiet
@@ -68,7 +71,7 @@ free_port() {
 # the time of one request in milliseconds; fails unless it answers 200
 request_ms() {
     local out code t
-    out="$(curl -s -o /dev/null -w '%{http_code} %{time_total}' "${@}")"
+    out="$(curl -s -o /dev/null --max-time "$MAX_TIME" -w '%{http_code} %{time_total}' "${@}")" || true
     code="${out%% *}"
     t="${out##* }"
     [[ "$code" == 200 ]] || { echo "HTTP $code from ${*: -1}" >&2; return 1; }
@@ -150,10 +153,10 @@ print(sqlite3.connect(sys.argv[1]).execute('select slug from galaxy order by gal
 
     cached=() galaxy=() review=() placed=()
     for _ in $(seq 1 "$RUNS"); do
-        cached+=("$(request_ms "$base/relations/m_sigma")")
-        galaxy+=("$(request_ms "$base/galaxies/$slug")")
+        cached+=("$(request_ms "$base/relations/m_sigma" || echo nan)")
+        galaxy+=("$(request_ms "$base/galaxies/$slug" || echo nan)")
         review+=("$(request_ms -b "$jar" "$base/review" || echo nan)")
-        placed+=("$(request_ms "$place")")
+        placed+=("$(request_ms "$place" || echo nan)")
     done
     hwm_kb="$(sed -n 's/^VmHWM:[[:space:]]*\([0-9]*\) kB/\1/p' /proc/"$SERVER_PID"/status)"
     stop_server
