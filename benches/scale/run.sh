@@ -17,7 +17,7 @@
 #   benches/scale/run.sh [N ...]            default: 1000 10000 100000
 #   RUNS=3 PENDING=10000 MAX_TIME=300 FIRST_WAIT=900 benches/scale/run.sh 20000
 #
-# A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a; so
+# KEEP_LOG=FILE keeps the servers' log. A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a; so
 # does a first relation page not complete FIRST_WAIT seconds after the start.
 #
 # Needs python3 (standard library) and curl. Only URLs are used, never the pages' content,
@@ -47,6 +47,7 @@ stop_server() {
 }
 cleanup() {
     stop_server
+    [[ -z "${KEEP_LOG:-}" ]] || cp "$WORK/server.log" "$KEEP_LOG" 2>/dev/null || true
     rm -rf "$WORK"
 }
 trap cleanup EXIT
@@ -102,7 +103,11 @@ first_page() {
             FIRST_S="$(elapsed "$t0" "$(now)")"
             return 0
         fi
-        kill -0 "$SERVER_PID" 2>/dev/null || { cat "$WORK/server.log" >&2; return 1; }
+        if ! kill -0 "$SERVER_PID" 2>/dev/null; then
+            echo "the server stopped; the end of its log:" >&2
+            tail -n 5 "$WORK/server.log" >&2
+            exit 1
+        fi
         sleep 0.05
     done
     echo "no complete relation page after $FIRST_WAIT s" >&2
