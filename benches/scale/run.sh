@@ -17,8 +17,9 @@
 #   benches/scale/run.sh [N ...]            default: 1000 10000 100000
 #   RUNS=3 PENDING=10000 MAX_TIME=300 FIRST_WAIT=900 benches/scale/run.sh 20000
 #
-# KEEP_LOG=FILE keeps the servers' log. A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a; so
-# does a first relation page not complete FIRST_WAIT seconds after the start.
+# A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a; so
+# does a first relation page not complete FIRST_WAIT seconds after the start. KEEP_LOG=FILE
+# keeps the servers' log.
 #
 # Needs python3 (standard library) and curl. Only URLs are used, never the pages' content,
 # except the login form's hidden anti-forgery field and the word "computing".
