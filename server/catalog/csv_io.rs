@@ -88,6 +88,21 @@ impl LineCounter<'_> {
 /// # Errors
 /// The first line the CSV reader refuses.
 pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record)>, RowError> {
+    let mut out = Vec::new();
+    for_each_record(text, file, |line, record| out.push((line, record)))?;
+    Ok(out)
+}
+
+/// Hand each record of a CSV text, with the line it starts on, to `each` as it is read: a large
+/// file is never held as cell maps all at once (each map is about 2 KB).
+///
+/// # Errors
+/// The first line the CSV reader refuses; the records before it have been handed over.
+pub(super) fn for_each_record(
+    text: &str,
+    file: &'static str,
+    mut each: impl FnMut(u64, Record),
+) -> Result<(), RowError> {
     let mut lines = LineCounter {
         text: text.as_bytes(),
         at: 0,
@@ -105,23 +120,28 @@ pub(super) fn records(text: &str, file: &'static str) -> Result<Vec<(u64, Record
             message: e.to_string(),
         })?
         .clone();
-    let mut out = Vec::new();
-    for rec in reader.records() {
-        let rec = rec.map_err(|e| RowError {
-            file,
-            line: e.position().map_or(0, |p| lines.line_at(p.byte())),
-            column: "(row)",
-            message: e.to_string(),
-        })?;
+    let mut rec = csv::StringRecord::new();
+    loop {
+        match reader.read_record(&mut rec) {
+            Ok(true) => {}
+            Ok(false) => return Ok(()),
+            Err(e) => {
+                return Err(RowError {
+                    file,
+                    line: e.position().map_or(0, |p| lines.line_at(p.byte())),
+                    column: "(row)",
+                    message: e.to_string(),
+                });
+            }
+        }
         let line = rec.position().map_or(0, |p| lines.line_at(p.byte()));
         let map = headers
             .iter()
             .zip(rec.iter())
             .map(|(h, v)| (h.to_string(), unguard_cell(v).to_string()))
             .collect();
-        out.push((line, map));
+        each(line, map);
     }
-    Ok(out)
 }
 
 /// The columns, in the order export writes them. `row_key` is optional on import (see
@@ -228,6 +248,9 @@ pub fn reported_faults(rows: &[RowError]) -> (&[RowError], String) {
     (listed, summary)
 }
 
+/// Rows stored between two calls of an import's progress callback.
+const PROGRESS_ROWS: usize = 5_000;
+
 /// File name used in row reports.
 const FILE: &str = "import";
 
@@ -236,13 +259,44 @@ const FILE: &str = "import";
 /// # Errors
 /// Every faulty row (line, column, message); an unreadable header or record stops the reading.
 pub fn parse_catalog_csv(text: &str) -> Result<Vec<ImportRow>, Vec<RowError>> {
-    let rows = records(text, FILE).map_err(|e| vec![e])?;
-    parse_records(rows)
+    let mut reader = RowReader::default();
+    for_each_record(text, FILE, |line, record| reader.push(line, &record)).map_err(|e| vec![e])?;
+    reader.finish()
 }
 
 /// Read catalog rows given as cell maps (from CSV records or JSON objects).
 fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowError>> {
-    if let Some((_, first)) = rows.first() {
+    let mut reader = RowReader::default();
+    for (line, record) in rows {
+        reader.push(line, &record);
+    }
+    reader.finish()
+}
+
+/// Catalog rows read one cell map at a time: the rows, every fault, the row keys seen.
+#[derive(Default)]
+struct RowReader {
+    /// The first map has been checked for the columns of the format.
+    header_read: bool,
+    /// The columns are at fault: the rows are not read.
+    header_faulty: bool,
+    out: Vec<ImportRow>,
+    faults: Vec<RowError>,
+    seen: HashMap<String, u64>,
+}
+
+impl RowReader {
+    /// The rows, or every fault (only the column faults when the columns are at fault).
+    fn finish(self) -> Result<Vec<ImportRow>, Vec<RowError>> {
+        if self.faults.is_empty() {
+            Ok(self.out)
+        } else {
+            Err(self.faults)
+        }
+    }
+
+    /// Whether the first map names the columns of the format; records the faults.
+    fn check_columns(&mut self, first: &Record) -> bool {
         let mut faults = Vec::new();
         for column in first.keys() {
             if !COLUMNS.contains(&column.as_str()) && column != CONFIRM_COLUMN {
@@ -267,14 +321,21 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                 });
             }
         }
-        if !faults.is_empty() {
-            return Err(faults);
-        }
+        let fine = faults.is_empty();
+        self.faults.extend(faults);
+        fine
     }
-    let mut out = Vec::with_capacity(rows.len());
-    let mut faults = Vec::new();
-    let mut seen: HashMap<String, u64> = HashMap::new();
-    for (line, rec) in rows {
+
+    /// Read one row.
+    fn push(&mut self, line: u64, rec: &Record) {
+        if !self.header_read {
+            self.header_read = true;
+            self.header_faulty = !self.check_columns(rec);
+        }
+        if self.header_faulty {
+            return;
+        }
+        let (out, faults, seen) = (&mut self.out, &mut self.faults, &mut self.seen);
         let cell = |c: &'static str| {
             let key = if c == "name" { "galaxy" } else { c };
             rec.get(key).map_or("", String::as_str)
@@ -289,7 +350,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
             Ok(name) => name,
             Err(e) => {
                 faults.push(e);
-                continue;
+                return;
             }
         };
         let new_galaxy_confirmed = match confirmation(cell(CONFIRM_COLUMN)) {
@@ -301,7 +362,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     column: CONFIRM_COLUMN,
                     message,
                 });
-                continue;
+                return;
             }
         };
         let described = GALAXY_COLUMNS.iter().any(|c| !cell(c).trim().is_empty());
@@ -313,7 +374,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                         e.column = "galaxy";
                     }
                     faults.push(e);
-                    continue;
+                    return;
                 }
             }
         } else {
@@ -328,7 +389,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     column: "row_key",
                     message,
                 });
-                continue;
+                return;
             }
         };
         if let Some(first) = seen.get(&row.key) {
@@ -340,7 +401,7 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
                     "line {first} has the same row key; every row needs its own (a blank key is made from the row's values, so a repeated row gets the same one)"
                 ),
             });
-            continue;
+            return;
         }
         seen.insert(row.key.clone(), line);
         match measurement_from_cells(FILE, line, &cell) {
@@ -354,11 +415,6 @@ fn parse_records(rows: Vec<(u64, Record)>) -> Result<Vec<ImportRow>, Vec<RowErro
             }),
             Err(e) => faults.push(e),
         }
-    }
-    if faults.is_empty() {
-        Ok(out)
-    } else {
-        Err(faults)
     }
 }
 
@@ -421,7 +477,13 @@ pub struct ImportReport {
     pub skipped: usize,
 }
 
-/// Import parsed rows in one transaction; `progress(done, total)` is called after each row.
+/// Import parsed rows in one transaction; `progress(done, total)` is called for each row stored
+/// (for an adopted catalog, after each slice of [`PROGRESS_ROWS`] rows is stored).
+///
+/// What is read from the catalog is read in batches (the known row keys, the galaxies by name,
+/// the look-alikes of new names), and an adopted catalog is written by multi-row statements:
+/// a statement costs a round trip to the database's thread, which dominated the time of a large
+/// file when every row took five.
 ///
 /// # Errors
 /// [`ImportError::Rows`] when a galaxy is neither in the catalog nor described, or a row breaks
@@ -433,12 +495,74 @@ pub async fn import_rows(
     progress: &mut (dyn FnMut(usize, usize) + Send),
 ) -> Result<ImportReport, ImportError> {
     let mut tx = super::begin_write(pool).await?;
+    // A larger page cache for this transaction only: the indexes of a large file (row keys and
+    // their digests, names, slugs) are updated at random places, and with SQLite's default of
+    // 2 MB their pages are written out and read back again and again. Durability is the
+    // connection's (WAL, synchronous=FULL at commit); the cache only holds uncommitted pages.
+    let cache_before: i64 = sqlx::query_scalar("pragma cache_size")
+        .fetch_one(&mut *tx)
+        .await?;
+    sqlx::query(sqlx::AssertSqlSafe(format!(
+        "pragma cache_size = -{IMPORT_CACHE_KIB}"
+    )))
+    .execute(&mut *tx)
+    .await?;
+    let stored = store_rows(&mut tx, rows, mode, progress).await;
+    // The connection goes back to the pool with its own cache size, whatever happened.
+    let restored = sqlx::query(sqlx::AssertSqlSafe(format!(
+        "pragma cache_size = {cache_before}"
+    )))
+    .execute(&mut *tx)
+    .await;
+    match stored? {
+        (report, Outcome::Commit) => {
+            restored?;
+            tx.commit().await?;
+            Ok(report)
+        }
+        (report, Outcome::Nothing) => {
+            tx.rollback().await?;
+            Ok(report)
+        }
+    }
+}
+
+/// The largest page cache of an import's connection, KiB (the pages of a 100,000-galaxy
+/// catalog's indexes fit; the cache takes memory only as pages are read).
+const IMPORT_CACHE_KIB: i64 = 131_072;
+
+/// Whether [`store_rows`] wrote anything to commit.
+enum Outcome {
+    Commit,
+    Nothing,
+}
+
+/// The work of [`import_rows`] inside its transaction.
+async fn store_rows(
+    tx: &mut sqlx::Transaction<'_, sqlx::Sqlite>,
+    rows: &[ImportRow],
+    mode: ImportMode,
+    progress: &mut (dyn FnMut(usize, usize) + Send),
+) -> Result<(ImportReport, Outcome), ImportError> {
     // Rows imported before (same key) are skipped: importing a file twice adds nothing. A key
     // stored with other content is a fault, not a silent skip.
+    // Plain keys are read in batches; a key of the exported form may also be another row's
+    // digest, and is looked up alone (only files made by an export carry such keys).
+    let plain: Vec<&str> = rows
+        .iter()
+        .map(|r| r.row.key.as_str())
+        .filter(|k| !galaxies::is_public_row_key(k))
+        .collect();
+    let mut known = galaxies::stored_row_keys(tx, &plain).await?;
     let mut faults = Vec::new();
     let mut fresh: Vec<&ImportRow> = Vec::with_capacity(rows.len());
     for r in rows {
-        let stored = match galaxies::stored_row_key(&mut tx, &r.row.key).await? {
+        let found = if galaxies::is_public_row_key(&r.row.key) {
+            galaxies::stored_row_key(tx, &r.row.key).await?
+        } else {
+            known.remove(&r.row.key)
+        };
+        let stored = match found {
             None => {
                 fresh.push(r);
                 continue;
@@ -447,7 +571,7 @@ pub async fn import_rows(
         };
         // A row carrying an exported key is compared with what the export wrote for it.
         let sha = match (stored.row_sha256, stored.by_digest) {
-            (Some(_), true) => exported_fingerprint(&mut tx, stored.measurement_id).await?,
+            (Some(_), true) => exported_fingerprint(tx, stored.measurement_id).await?,
             (sha, _) => sha,
         };
         match sha {
@@ -479,21 +603,28 @@ pub async fn import_rows(
         entry.push(r);
     }
     let mut choices = Vec::with_capacity(order.len());
+    // The catalog is read once per batch of names, not once per galaxy: the galaxies named
+    // exactly so, then the look-alikes of the other names.
+    let existing_ids = galaxies::ids_by_name(tx, &order).await?;
+    let name_keys: HashMap<&str, String> = order
+        .iter()
+        .filter(|name| !existing_ids.contains_key(**name))
+        .map(|name| (*name, super::names::name_key(name)))
+        .collect();
+    let wanted: Vec<&str> = name_keys.values().map(String::as_str).collect();
+    let look_alikes = galaxies::look_alikes(tx, &wanted).await?;
+    let look_alike = |name: &str| name_keys.get(name).and_then(|k| look_alikes.get(k));
     // New galaxies of this file by look-alike key: two rows may not describe look-alikes as two
     // new galaxies either, unless the later one confirms it.
     let mut new_keys: HashMap<String, (&str, u64)> = HashMap::new();
     for name in &order {
         let group = &by_galaxy[name];
-        let existing: Option<i64> =
-            sqlx::query_scalar("select galaxy_id from galaxy where name = ?")
-                .bind(name)
-                .fetch_optional(&mut *tx)
-                .await?;
+        let existing: Option<i64> = existing_ids.get(*name).copied();
         let described = group.iter().find_map(|r| r.galaxy.as_ref());
         if let (None, Some(g)) = (existing, described) {
             let key = super::names::name_key(&g.name);
             let confirmed = group.iter().any(|r| r.new_galaxy_confirmed);
-            let alike = match galaxies::look_alike(&mut *tx, name).await? {
+            let alike = match look_alike(name) {
                 Some(other) => Some(format!(
                     "the galaxy “{}” of the catalog (slug {})",
                     other.name, other.slug
@@ -519,7 +650,7 @@ pub async fn import_rows(
             (Some(id), _) => choices.push(GalaxyChoice::Existing(id)),
             (None, Some(g)) => choices.push(GalaxyChoice::New(g.clone())),
             (None, None) => {
-                let message = match galaxies::look_alike(&mut *tx, name).await? {
+                let message = match look_alike(name) {
                     // A look-alike of a catalog name is most likely that galaxy, mistyped.
                     Some(other) => format!(
                         "'{name}' is not in the catalog, but “{}” is: write that name, or describe a new galaxy (morphology, distance, …) on one of its rows",
@@ -554,8 +685,7 @@ pub async fn import_rows(
     };
     if rows.is_empty() {
         // Nothing new: no submission, no version bump, no audit event.
-        tx.rollback().await?;
-        return Ok(report);
+        return Ok((report, Outcome::Nothing));
     }
     match mode {
         ImportMode::Pending { account_id, source } => {
@@ -566,7 +696,7 @@ pub async fn import_rows(
                     .collect();
                 let keys: Vec<RowKey> = by_galaxy[name].iter().map(|r| r.row.clone()).collect();
                 submissions::create_in(
-                    &mut tx,
+                    tx,
                     account_id,
                     source,
                     choice,
@@ -584,7 +714,7 @@ pub async fn import_rows(
         }
         ImportMode::Accepted => {
             let submission_id = galaxies::insert_submission(
-                &mut tx,
+                tx,
                 None,
                 SubmissionSource::Import,
                 SubmissionState::Accepted,
@@ -593,30 +723,42 @@ pub async fn import_rows(
             )
             .await?;
             report.submissions = 1;
+            let new: Vec<&NewGalaxy> = choices
+                .iter()
+                .filter_map(|c| match c {
+                    GalaxyChoice::New(g) => Some(g),
+                    GalaxyChoice::Existing(_) => None,
+                })
+                .collect();
+            let mut new_ids = galaxies::insert_galaxies(tx, &new).await?.into_iter();
+            let mut stored: Vec<(galaxies::MeasurementRow<'_>, u64)> = Vec::with_capacity(total);
             for (name, choice) in order.iter().zip(&choices) {
                 let galaxy_id = match choice {
                     GalaxyChoice::Existing(id) => *id,
-                    GalaxyChoice::New(g) => galaxies::insert_galaxy(&mut tx, g).await?.galaxy_id,
+                    GalaxyChoice::New(_) => new_ids.next().ok_or(sqlx::Error::RowNotFound)?,
                 };
                 for r in &by_galaxy[name] {
-                    let id = galaxies::insert_measurement(
-                        &mut tx,
-                        galaxy_id,
-                        submission_id,
-                        &r.measurement,
-                        &r.row,
-                    )
+                    stored.push(((galaxy_id, &r.measurement, &r.row), r.line));
+                }
+            }
+            // In slices, so that the progress line moves while a large file is stored; the
+            // callback still hears of every row (it draws only when its bar grows).
+            for part in stored.chunks(PROGRESS_ROWS) {
+                let batch: Vec<galaxies::MeasurementRow<'_>> =
+                    part.iter().map(|(row, _)| *row).collect();
+                galaxies::insert_measurements(tx, submission_id, &batch)
                     .await
-                    .map_err(|e| row_fault(SubmissionError::Db(e), r.line))?;
-                    galaxies::adopt(&mut tx, id).await?;
+                    .map_err(|(i, e)| row_fault(SubmissionError::Db(e), part[i].1))?;
+                for _ in part {
                     done += 1;
                     report.measurements += 1;
                     progress(done, total);
                 }
             }
-            history::bump_version(&mut tx).await?;
+            galaxies::adopt_submission(tx, submission_id).await?;
+            history::bump_version(tx).await?;
             history::record(
-                &mut tx,
+                tx,
                 &NewEvent {
                     account_id: None,
                     action: "catalog_imported",
@@ -631,8 +773,7 @@ pub async fn import_rows(
             .await?;
         }
     }
-    tx.commit().await?;
-    Ok(report)
+    Ok((report, Outcome::Commit))
 }
 
 /// A failure while writing one row: a schema check becomes a row fault, the rest stays a
@@ -1102,6 +1243,160 @@ mod tests {
             matches!(err, ImportError::Rows(ref r) if r[0].line == 2),
             "{err}"
         );
+    }
+
+    /// `n` invented galaxies, three rows each (σ, black-hole mass, bulge mass), as catalog CSV
+    /// with row keys; galaxy `i` has σ = 100 + i/10 km/s.
+    fn survey_csv(n: usize) -> String {
+        let mut text = format!("{HEADER},row_key\n");
+        for i in 0..n {
+            let sigma = format!("{:.1}", 100.0 + i as f64 / 10.0);
+            text.push_str(&format!(
+                "X {i:04},elliptical,classical,unknown,20,1,hubble_flow,sigma,{sigma} ± 5,,,,sigma_e,r_e,,,,Survey (invented),,x{i}-sigma\n\
+                 X {i:04},,,,,,,bh_mass,8.1 ± 0.2,log10,,stellar_dynamics,,,,20,0.1,Survey (invented),,x{i}-mass\n\
+                 X {i:04},,,,,,,bulge_mass,10.9 ± 0.12,log10,,photometric,,,,20,,Survey (invented),,x{i}-bulge\n"
+            ));
+        }
+        text
+    }
+
+    async fn catalog_version(pool: &SqlitePool) -> i64 {
+        history::current_version(pool).await.unwrap()
+    }
+
+    #[tokio::test]
+    async fn a_large_file_is_adopted_whole_with_one_version_and_a_later_row_adopted() {
+        let (_d, pool) = temp_pool().await;
+        // 1,000 galaxies (3,000 rows: several batches of every statement), and a second σ of
+        // X 0500 at the end, which replaces its first.
+        let mut text = survey_csv(1000);
+        text.push_str(
+            "X 0500,,,,,,,sigma,321 ± 9,,,,sigma_e,r_e,,,,Later (invented),,x500-sigma-2\n",
+        );
+        let mut calls = 0;
+        let report = import_csv(&pool, &text, ImportMode::Accepted, &mut |done, total| {
+            calls += 1;
+            assert_eq!(total, 3001);
+            assert_eq!(done, calls);
+        })
+        .await
+        .unwrap();
+        assert_eq!(
+            report,
+            ImportReport {
+                measurements: 3001,
+                new_galaxies: 1000,
+                submissions: 1,
+                skipped: 0,
+            }
+        );
+        assert_eq!(calls, 3001);
+        assert_eq!(count(&pool, "galaxy").await, 1000);
+        assert_eq!(count(&pool, "measurement").await, 3001);
+        assert_eq!(count(&pool, "adopted_value").await, 3000);
+        assert_eq!(catalog_version(&pool).await, 1);
+        let events: Vec<(String, i64)> =
+            sqlx::query_as("select action, catalog_version from audit_event")
+                .fetch_all(&pool)
+                .await
+                .unwrap();
+        assert_eq!(events, vec![("catalog_imported".to_owned(), 1)]);
+        // Every galaxy has its own slug and its own adopted σ; X 0500 the later one.
+        let slugs: i64 = sqlx::query_scalar("select count(distinct slug) from galaxy")
+            .fetch_one(&pool)
+            .await
+            .unwrap();
+        assert_eq!(slugs, 1000);
+        let adopted_sigma = |name: &'static str| {
+            let pool = pool.clone();
+            async move {
+                sqlx::query_scalar::<_, String>(
+                    "select m.value_text from adopted_value a join measurement m using (measurement_id)
+                       join galaxy g on g.galaxy_id = a.galaxy_id
+                      where g.name = ? and a.quantity = 'sigma'",
+                )
+                .bind(name)
+                .fetch_one(&pool)
+                .await
+                .unwrap()
+            }
+        };
+        assert_eq!(adopted_sigma("X 0500").await, "321 ± 9");
+        assert_eq!(adopted_sigma("X 0499").await, "149.9 ± 5");
+        // Again: every row known (looked up in batches), nothing written, no version.
+        let again = import_csv(&pool, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!((again.measurements, again.skipped), (0, 3001));
+        assert_eq!(catalog_version(&pool).await, 1);
+        // A later file naming these galaxies finds them by name, and a new look-alike of one
+        // of them ("X 05OO", letter O for zero) is refused.
+        let more = format!(
+            "{HEADER},row_key\n\
+             X 0999,,,,,,,bh_mass,8.3 ± 0.2,log10,,stellar_dynamics,,,,20,0.1,Survey (invented),,x999-mass-2\n\
+             X 05OO,spiral,pseudo,unknown,12,1,cepheid,sigma,90 ± 5,,,,sigma_e,r_e,,,,Survey (invented),,xO-sigma\n"
+        );
+        let err = import_csv(&pool, &more, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap_err();
+        let ImportError::Rows(rows) = err else {
+            panic!("expected row faults, got {err}")
+        };
+        assert_eq!(rows.len(), 1, "{rows:?}");
+        assert_eq!(
+            (rows[0].line, rows[0].column),
+            (3, CONFIRM_COLUMN),
+            "{rows:?}"
+        );
+        assert!(rows[0].message.contains("X 0500"), "{rows:?}");
+        assert_eq!(count(&pool, "measurement").await, 3001);
+    }
+
+    #[tokio::test]
+    async fn a_large_file_with_one_faulty_row_in_the_middle_stores_nothing() {
+        let (_d, pool) = temp_pool().await;
+        let text = survey_csv(1000);
+        // A mass the reader refuses (log 81), on line 1503 (row 1502 of 3,000).
+        let mut lines: Vec<String> = text.lines().map(str::to_owned).collect();
+        lines[1502] = lines[1502].replacen("8.1 ± 0.2", "81 ± 0.2", 1);
+        assert!(lines[1502].contains(",81 ± 0.2"), "{}", lines[1502]);
+        let faulty = lines.join("\n");
+        let err = import_csv(&pool, &faulty, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap_err();
+        let ImportError::Rows(rows) = err else {
+            panic!("expected row faults, got {err}")
+        };
+        assert_eq!(rows.iter().map(|r| r.line).collect::<Vec<_>>(), vec![1503]);
+        // A value only the database's checks refuse (an error of 5 dex), on the row of line
+        // 2203: the multi-row statement holding it fails, and the row is still named.
+        let mut parsed = parse_catalog_csv(&text).unwrap();
+        let middle = parsed.iter().position(|r| r.line == 2203).unwrap();
+        parsed[middle].measurement.err_dex = 5.0;
+        let err = import_rows(&pool, &parsed, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap_err();
+        let ImportError::Rows(rows) = err else {
+            panic!("expected row faults, got {err}")
+        };
+        assert_eq!(rows.iter().map(|r| r.line).collect::<Vec<_>>(), vec![2203]);
+        for table in [
+            "galaxy",
+            "submission",
+            "measurement",
+            "adopted_value",
+            "audit_event",
+        ] {
+            assert_eq!(count(&pool, table).await, 0, "{table}");
+        }
+        assert_eq!(catalog_version(&pool).await, 0);
+        // The same file without the fault imports whole.
+        parsed[middle].measurement.err_dex = 0.2;
+        let report = import_rows(&pool, &parsed, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(report.measurements, 3000);
+        assert_eq!(catalog_version(&pool).await, 1);
     }
 
     fn pending() -> ImportMode {

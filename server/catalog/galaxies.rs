@@ -210,7 +210,7 @@ pub fn public_row_key(stored: &str) -> String {
 }
 
 /// Whether `key` has the form of an exported key (`rk-` and 64 lower-case hex digits).
-fn is_public_row_key(key: &str) -> bool {
+pub fn is_public_row_key(key: &str) -> bool {
     key.strip_prefix(PUBLIC_ROW_KEY_PREFIX).is_some_and(|hex| {
         hex.len() == 64 && hex.bytes().all(|b| matches!(b, b'0'..=b'9' | b'a'..=b'f'))
     })
@@ -349,6 +349,268 @@ pub async fn adopt(tx: &mut Transaction<'_, Sqlite>, measurement_id: i64) -> sql
                 adopted_at = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')",
     )
     .bind(measurement_id)
+    .execute(&mut **tx)
+    .await?;
+    Ok(())
+}
+
+/// Rows per multi-row statement of the bulk functions below: 22 parameters a measurement row
+/// stay far below SQLite's 32,766 bound parameters, and a fixed size means at most two
+/// statement texts per function, each prepared once per connection and reused.
+const BATCH_ROWS: usize = 500;
+
+/// `(?, ?, …)` with `columns` parameters, `rows` times, separated by commas.
+fn placeholders(rows: usize, columns: usize) -> String {
+    let one = format!("({})", vec!["?"; columns].join(", "));
+    vec![one; rows].join(", ")
+}
+
+/// [`stored_row_key`] for many keys at once, by the stored key only (the key of a row never
+/// exported; [`stored_row_key`] also matches exported keys, which callers look up one by one):
+/// the rows found, by key. One indexed statement per [`BATCH_ROWS`] keys.
+///
+/// # Errors
+/// Any database error.
+pub async fn stored_row_keys(
+    tx: &mut Transaction<'_, Sqlite>,
+    keys: &[&str],
+) -> sqlx::Result<std::collections::HashMap<String, StoredRow>> {
+    let mut found = std::collections::HashMap::new();
+    for chunk in keys.chunks(BATCH_ROWS) {
+        let sql = format!(
+            "select row_key, measurement_id, row_sha256 from measurement where row_key in ({})",
+            vec!["?"; chunk.len()].join(", ")
+        );
+        let mut query =
+            sqlx::query_as::<_, (String, i64, Option<String>)>(sqlx::AssertSqlSafe(sql));
+        for key in chunk {
+            query = query.bind(*key);
+        }
+        for (key, measurement_id, row_sha256) in query.fetch_all(&mut **tx).await? {
+            found.insert(
+                key,
+                StoredRow {
+                    measurement_id,
+                    row_sha256,
+                    by_digest: false,
+                },
+            );
+        }
+    }
+    Ok(found)
+}
+
+/// The keys of the galaxies named exactly `names` (those in the catalog), by name.
+///
+/// # Errors
+/// Any database error.
+pub async fn ids_by_name(
+    tx: &mut Transaction<'_, Sqlite>,
+    names: &[&str],
+) -> sqlx::Result<std::collections::HashMap<String, i64>> {
+    let mut found = std::collections::HashMap::new();
+    for chunk in names.chunks(BATCH_ROWS) {
+        let sql = format!(
+            "select name, galaxy_id from galaxy where name in ({})",
+            vec!["?"; chunk.len()].join(", ")
+        );
+        let mut query = sqlx::query_as::<_, (String, i64)>(sqlx::AssertSqlSafe(sql));
+        for name in chunk {
+            query = query.bind(*name);
+        }
+        found.extend(query.fetch_all(&mut **tx).await?);
+    }
+    Ok(found)
+}
+
+/// For names not in the catalog: the oldest galaxy sharing each look-alike key ([`name_key`]),
+/// by key; what [`look_alike`] answers for such a name, for many keys at once.
+///
+/// # Errors
+/// Any database error.
+pub async fn look_alikes(
+    tx: &mut Transaction<'_, Sqlite>,
+    keys: &[&str],
+) -> sqlx::Result<std::collections::HashMap<String, NamedGalaxy>> {
+    let mut found = std::collections::HashMap::new();
+    for chunk in keys.chunks(BATCH_ROWS) {
+        let sql = format!(
+            "select name_key, galaxy_id, name, slug from galaxy where name_key in ({})
+              order by galaxy_id",
+            vec!["?"; chunk.len()].join(", ")
+        );
+        let mut query =
+            sqlx::query_as::<_, (String, i64, String, String)>(sqlx::AssertSqlSafe(sql));
+        for key in chunk {
+            query = query.bind(*key);
+        }
+        for (key, galaxy_id, name, slug) in query.fetch_all(&mut **tx).await? {
+            found.entry(key).or_insert(NamedGalaxy {
+                galaxy_id,
+                name,
+                slug,
+            });
+        }
+    }
+    Ok(found)
+}
+
+/// [`insert_galaxy`] for many galaxies at once; returns their keys in the order given. Slugs
+/// are numbered as [`insert_galaxy`] numbers them: the slugs already taken are read once per
+/// [`BATCH_ROWS`] names, and only a taken slug is looked up again, candidate by candidate.
+///
+/// # Errors
+/// A unique-name violation or any other database error.
+pub async fn insert_galaxies(
+    tx: &mut Transaction<'_, Sqlite>,
+    news: &[&NewGalaxy],
+) -> sqlx::Result<Vec<i64>> {
+    let bases: Vec<String> = news.iter().map(|g| slugify(&g.name)).collect();
+    let mut taken = std::collections::HashSet::new();
+    for chunk in bases.chunks(BATCH_ROWS) {
+        let sql = format!(
+            "select slug from galaxy where slug in ({})",
+            vec!["?"; chunk.len()].join(", ")
+        );
+        let mut query = sqlx::query_scalar::<_, String>(sqlx::AssertSqlSafe(sql));
+        for base in chunk {
+            query = query.bind(base);
+        }
+        taken.extend(query.fetch_all(&mut **tx).await?);
+    }
+    let mut slugs = Vec::with_capacity(news.len());
+    for base in bases {
+        let mut slug = base.clone();
+        let mut n = 2;
+        // `taken` knows whether a base is in the catalog; a numbered slug is looked up.
+        while taken.contains(&slug)
+            || (slug != base
+                && sqlx::query_scalar::<_, i64>("select count(*) from galaxy where slug = ?")
+                    .bind(&slug)
+                    .fetch_one(&mut **tx)
+                    .await?
+                    > 0)
+        {
+            slug = format!("{base}-{n}");
+            n += 1;
+        }
+        taken.insert(slug.clone());
+        slugs.push(slug);
+    }
+    let mut ids = Vec::with_capacity(news.len());
+    for (chunk, chunk_slugs) in news.chunks(BATCH_ROWS).zip(slugs.chunks(BATCH_ROWS)) {
+        let sql = format!(
+            "insert into galaxy (name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
+                                 distance_err_mpc, distance_method, name_key)
+             values {} returning slug, galaxy_id",
+            placeholders(chunk.len(), 9)
+        );
+        let mut query = sqlx::query_as::<_, (String, i64)>(sqlx::AssertSqlSafe(sql));
+        for (new, slug) in chunk.iter().zip(chunk_slugs) {
+            query = query
+                .bind(&new.name)
+                .bind(slug)
+                .bind(new.morphology.as_str())
+                .bind(new.bulge_kind.as_str())
+                .bind(new.centre_kind.as_str())
+                .bind(new.distance_mpc)
+                .bind(new.distance_err_mpc)
+                .bind(new.distance_method.as_str())
+                .bind(name_key(&new.name));
+        }
+        // RETURNING does not promise the order of its rows: match them by the unique slug.
+        let by_slug: std::collections::HashMap<String, i64> =
+            query.fetch_all(&mut **tx).await?.into_iter().collect();
+        for slug in chunk_slugs {
+            ids.push(by_slug[slug]);
+        }
+    }
+    Ok(ids)
+}
+
+/// A measurement to store with [`insert_measurements`]: its galaxy, its values and its row key.
+pub type MeasurementRow<'a> = (i64, &'a NewMeasurement, &'a RowKey);
+
+/// [`insert_measurement`] for many rows of one submission, in the order given (their keys
+/// increase in that order), [`BATCH_ROWS`] rows a statement.
+///
+/// # Errors
+/// The index of the row at fault with its error: a multi-row statement that fails is undone
+/// alone, and its rows are then stored one by one to find the row a check refuses.
+pub async fn insert_measurements(
+    tx: &mut Transaction<'_, Sqlite>,
+    submission_id: i64,
+    rows: &[MeasurementRow<'_>],
+) -> Result<(), (usize, sqlx::Error)> {
+    for (c, chunk) in rows.chunks(BATCH_ROWS).enumerate() {
+        let sql = format!(
+            "insert into measurement (galaxy_id, submission_id, quantity, log_value, err_minus_dex,
+                                      err_plus_dex, err_dex, upper_limit, limit_confidence_sigma,
+                                      method, sigma_definition, aperture, band, source_distance_mpc,
+                                      resolution_arcsec, reference, note, value_text, value_scale,
+                                      row_key, row_sha256, row_key_digest)
+             values {}",
+            placeholders(chunk.len(), 22)
+        );
+        let mut query = sqlx::query(sqlx::AssertSqlSafe(sql));
+        for (galaxy_id, m, row) in chunk {
+            query = query
+                .bind(galaxy_id)
+                .bind(submission_id)
+                .bind(m.quantity.as_str())
+                .bind(m.log_value)
+                .bind(m.err_minus_dex)
+                .bind(m.err_plus_dex)
+                .bind(m.err_dex)
+                .bind(m.upper_limit)
+                .bind(m.limit_confidence_sigma)
+                .bind(&m.method)
+                .bind(&m.sigma_definition)
+                .bind(&m.aperture)
+                .bind(&m.band)
+                .bind(m.source_distance_mpc)
+                .bind(m.resolution_arcsec)
+                .bind(&m.reference)
+                .bind(&m.note)
+                .bind(&m.value_text)
+                .bind(&m.value_scale)
+                .bind(&row.key)
+                .bind(&row.sha256)
+                .bind(public_row_key(&row.key));
+        }
+        if let Err(batch_error) = query.execute(&mut **tx).await {
+            for (i, (galaxy_id, m, row)) in chunk.iter().enumerate() {
+                if let Err(e) = insert_measurement(tx, *galaxy_id, submission_id, m, row).await {
+                    return Err((c * BATCH_ROWS + i, e));
+                }
+            }
+            // Every row stored alone: the batch failed for a reason of its own.
+            return Err((c * BATCH_ROWS, batch_error));
+        }
+    }
+    Ok(())
+}
+
+/// [`adopt`] every measurement of a submission, in the order of their keys (a later one of the
+/// same galaxy, quantity and band replaces an earlier one), in one statement.
+///
+/// # Errors
+/// Any database error.
+pub async fn adopt_submission(
+    tx: &mut Transaction<'_, Sqlite>,
+    submission_id: i64,
+) -> sqlx::Result<()> {
+    // SQLite needs the WHERE of an INSERT … SELECT with an upsert (it reads ON CONFLICT as a
+    // join's ON otherwise); ORDER BY fixes the order the rows are inserted in.
+    sqlx::query(
+        "insert into adopted_value (galaxy_id, quantity, band, measurement_id)
+         select galaxy_id, quantity, band, measurement_id from measurement
+          where submission_id = ? order by measurement_id
+         on conflict (galaxy_id, quantity, band) do update
+            set measurement_id = excluded.measurement_id,
+                adopted_at = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')",
+    )
+    .bind(submission_id)
     .execute(&mut **tx)
     .await?;
     Ok(())
