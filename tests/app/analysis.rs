@@ -81,7 +81,10 @@ async fn a_slow_analysis_never_blocks_a_request() {
         .expect("the API's fit waited on the held analysis");
     assert_eq!(fit.0, 200, "{}", fit.1);
     let fit: serde_json::Value = serde_json::from_str(&fit.1).unwrap();
-    assert_eq!(fit["catalog_version"], 1, "the older fit names its own version: {fit}");
+    assert_eq!(
+        fit["catalog_version"], 1,
+        "the older fit names its own version: {fit}"
+    );
     let queue = tokio::time::timeout(STUCK, reviewer.get("/review"))
         .await
         .expect("the review queue waited on the held analysis");

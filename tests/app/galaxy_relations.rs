@@ -84,7 +84,11 @@ async fn a_galaxy_with_sigma_and_a_mass_is_placed_against_fits_without_it() {
     let v: serde_json::Value = serde_json::from_str(&whole).unwrap();
     let galaxies = v["galaxies"].as_array().unwrap();
     assert!(galaxies.iter().any(|g| g == slug.as_str()));
-    assert_eq!(app.state.fits.len(), fits, "the whole-sample fit was there already");
+    assert_eq!(
+        app.state.fits.len(),
+        fits,
+        "the whole-sample fit was there already"
+    );
 }
 
 #[tokio::test]
