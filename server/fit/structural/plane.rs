@@ -184,10 +184,12 @@ pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<
     let mut iterations = 0_u64;
     let mut converged = false;
     let mut trial = u.clone();
+    let mut last = None;
     while iterations < MAX_ITERATIONS {
         iterations += 1;
         let hm = hessian(model, &u, &h)?;
         evaluations += 2 * n as u64;
+        last = Some(hm.clone());
         let gv = DVector::from_vec(g.clone());
         // Levenberg shift ν, grown from 0 until the matrix is positive definite.
         let scale = (0..n).map(|i| hm[(i, i)].abs()).fold(0.0_f64, f64::max);
@@ -258,10 +260,10 @@ pub(super) fn maximise(model: &Model, theta0: &[f64], want_cov: bool) -> Option<
         return None;
     }
     let cov = if want_cov {
-        // Steps of 1e-3 of each standard error for the covariance's own Hessian.
-        let hm = hessian(model, &u, &h)?;
-        evaluations += 2 * n as u64;
-        let first = invert_spd(&(0.5 * &hm))?;
+        // Steps of 1e-3 of each standard error for the covariance's own Hessian, the errors
+        // from the last Newton Hessian (taken at this point; the sign of u_ε does not change
+        // the diagonal of its inverse).
+        let first = invert_spd(&(0.5 * last?))?;
         for (i, hi) in h.iter_mut().enumerate() {
             let sd = first[(i, i)].sqrt();
             if sd.is_finite() && sd > 0.0 {
@@ -294,12 +296,12 @@ mod tests {
     use rand::{RngExt, SeedableRng};
     use rand_distr::{Distribution, StandardNormal};
 
-    /// An invented plane: log M = 8.3 + 4 (x − 2.3) + 0.6 (x2 − 11) + N(0, 0.3²), with
+    /// An invented plane: log M = 8.3 + 4 (x − 2.3) + 0.6 (x2 − 11) + N(0, eps²), with
     /// true (x, x2) of correlation `corr` (sd 0.12 and 0.4 dex), errors 0.02–0.04 dex on x,
     /// 0.05–0.15 on x2, 0.1–0.3 on y, an x–x2 error correlation of 0.3 and an x2–y one of
     /// −0.2 on every third object, and a fraction `limits` of upper limits 0.1–0.5 dex above
     /// the true mass.
-    fn plane_sample(n: usize, limits: f64, corr: f64, seed: u64) -> Vec<Point> {
+    fn plane_sample(n: usize, limits: f64, corr: f64, eps: f64, seed: u64) -> Vec<Point> {
         let mut rng = StdRng::seed_from_u64(seed);
         (0..n)
             .map(|i| {
@@ -307,7 +309,7 @@ mod tests {
                 let (z1, z2) = (g(), g());
                 let xi = 2.3 + 0.12 * z1;
                 let xi2 = 11.0 + 0.4 * (corr * z1 + (1.0 - corr * corr).sqrt() * z2);
-                let eta = 8.3 + 4.0 * (xi - 2.3) + 0.6 * (xi2 - 11.0) + 0.3 * g();
+                let eta = 8.3 + 4.0 * (xi - 2.3) + 0.6 * (xi2 - 11.0) + eps * g();
                 let (ex, ex2, ey) = (
                     rng.random_range(0.02..0.04),
                     rng.random_range(0.05..0.15),
@@ -354,7 +356,7 @@ mod tests {
         // The analytic gradient against five-point central differences of the model's own
         // −2 ln L, at the start and at random points around it, with limits, error
         // covariances, correlated (x, x2) and the subsample offset.
-        let pts = plane_sample(120, 0.2, 0.5, 3);
+        let pts = plane_sample(120, 0.2, 0.5, 0.3, 3);
         let mut rng = StdRng::seed_from_u64(8);
         for group in [None, Some((0..120).map(|i| i % 2 == 1).collect())] {
             let model = model_of(&pts, group);
@@ -408,7 +410,7 @@ mod tests {
             (500, 0.1, -0.4, 4),
             (5000, 0.1, 0.6, 5),
         ] {
-            let pts = plane_sample(n, limits, corr, seed);
+            let pts = plane_sample(n, limits, corr, 0.3, seed);
             let model = model_of(&pts, None);
             let t0 = model.initial();
             let a = maximise(&model, &t0, true).expect("newton converges");
@@ -444,5 +446,25 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn a_maximum_at_zero_scatter_goes_to_the_simplex_path() {
+        // No intrinsic scatter and y errors of 0.1–0.3 dex: the maximum sits at ε = 0, where
+        // Newton in u_ε stops short; the dispatch must then give the simplex path's answer.
+        // The first of the seeded samples whose maximum is on the boundary.
+        let (model, t0, b) = (1..60)
+            .find_map(|seed| {
+                let model = model_of(&plane_sample(25, 0.0, 0.3, 0.0, seed), None);
+                let t0 = model.initial();
+                let budget = tolerance::NM_ITERATIONS_PER_PARAM * t0.len() as u64;
+                let b = optimize::maximise_likelihood(&model, &t0, budget, true).ok()?;
+                (b.theta[3] == 0.0).then_some((model, t0, b))
+            })
+            .expect("a sample with its maximum at ε = 0");
+        assert!(maximise(&model, &t0, true).is_none());
+        let a = super::super::maximise(&model, true).expect("fit");
+        assert_eq!(a.theta, b.theta);
+        assert_eq!(a.neg2, b.neg2);
     }
 }
