@@ -31,8 +31,10 @@ use super::super::special::{LN_2PI, fy_terms, ln_norm_cdf};
 use super::super::tolerance;
 use super::{Model, Shape};
 
-/// Newton iterations before the maximiser gives up (and the simplex path takes over).
-const MAX_ITERATIONS: u64 = 100;
+/// Newton iterations before the maximiser gives up (and the simplex path takes over): a
+/// converging run takes 5–10, and each costs about 20 gradients, so a run that has not
+/// converged by 40 should not delay the fall-back further.
+const MAX_ITERATIONS: u64 = 40;
 
 /// Newton stops when the predicted decrease of −2 ln L, gᵀH⁻¹g/2, is below this (in units of
 /// −2 ln L; far below the 1e-6 to which the simplex path's maximum is known).
@@ -425,10 +427,9 @@ mod tests {
             let (ca, cb) = (a.cov.expect("cov"), b.cov.expect("cov"));
             for i in 0..t0.len() {
                 let sd = cb[(i, i)].sqrt();
-                // The same point: within a small fraction of a standard error (1e-5 absolute
-                // for parameters known to 1e-3 or better).
+                // The same point: every parameter within 1e-5 (log10 units or dex).
                 assert!(
-                    (a.theta[i] - b.theta[i]).abs() <= 1e-5_f64.max(1e-3 * sd),
+                    (a.theta[i] - b.theta[i]).abs() <= 1e-5,
                     "N {n}, {i}: {} {} (sd {sd})",
                     a.theta[i],
                     b.theta[i]
