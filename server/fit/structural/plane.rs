@@ -31,9 +31,10 @@ use super::super::special::{LN_2PI, fy_terms, ln_norm_cdf};
 use super::super::tolerance;
 use super::{Model, Shape};
 
-/// Newton iterations before the maximiser gives up (and the simplex path takes over): a
-/// converging run takes 5–10, and each costs about 20 gradients, so a run that has not
-/// converged by 40 should not delay the fall-back further.
+/// Newton iterations before the maximiser gives up (and the simplex path takes over): on the
+/// simulated planes of the tests it converges in 3 steps from the start, each costing 2 × 9
+/// gradients for the Hessian, so a run that has not converged by 40 should not delay the
+/// fall-back further.
 const MAX_ITERATIONS: u64 = 40;
 
 /// Newton stops when the predicted decrease of −2 ln L, gᵀH⁻¹g/2, is below this (in units of
