@@ -13,7 +13,9 @@ use criterion::{Criterion, criterion_group, criterion_main};
 use massline::fit::bootstrap::bootstrap;
 use massline::fit::ensemble::{self, EnsembleConfig};
 use massline::fit::posterior::posterior;
-use massline::fit::{FitSpec, Likelihood, Method, Point, fit, fit_params_only, leave_one_out};
+use massline::fit::{
+    FitSpec, Likelihood, Method, Point, Shape, fit, fit_params_only, leave_one_out,
+};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use rand_distr::{Distribution, Normal};
@@ -146,5 +148,51 @@ fn benches(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(fit_benches, benches, influence_benches);
+/// Invented plane sample: true (log σ, log M_bulge) bivariate normal (sd 0.14 and 0.4 dex,
+/// correlation 0.6), log M = 8.3 + 3 (x − x0) + 0.5 (x2 − 11) + N(0, 0.3²), errors 0.01–0.035
+/// dex on x, 0.05–0.15 on x2, 0.05–0.3 on y, every 10th object an upper limit 0.3 dex above its
+/// mass.
+fn plane_sample(n: usize, seed: u64) -> Vec<Point> {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let unit = Normal::new(0.0, 1.0).unwrap();
+    (0..n)
+        .map(|i| {
+            let (z1, z2) = (unit.sample(&mut rng), unit.sample(&mut rng));
+            let xi = 2.3 + 0.14 * z1;
+            let xi2 = 11.0 + 0.4 * (0.6 * z1 + 0.8 * z2);
+            let eta = 8.3 + 3.0 * (xi - PIVOT) + 0.5 * (xi2 - 11.0) + 0.3 * unit.sample(&mut rng);
+            let x_err = rng.random_range(0.01..0.035);
+            let x2_err = rng.random_range(0.05..0.15);
+            let y_err = rng.random_range(0.05..0.3);
+            let x = xi + x_err * unit.sample(&mut rng);
+            let x2 = xi2 + x2_err * unit.sample(&mut rng);
+            if i % 10 == 3 {
+                Point::limit(x, x_err, eta + 0.3).with_x2(x2, x2_err)
+            } else {
+                Point::new(x, x_err, eta + y_err * unit.sample(&mut rng), y_err).with_x2(x2, x2_err)
+            }
+        })
+        .collect()
+}
+
+/// The structural plane (one Gaussian for the true (x, x2)) on large samples: the background
+/// analysis of a catalog version fits it with every other relation.
+fn structural_plane(c: &mut Criterion) {
+    let spec = FitSpec::new(Method::Structural, PIVOT)
+        .with_shape(Shape::Plane)
+        .and_then(|s| s.with_pivot2(11.0))
+        .unwrap();
+    let mut g = c.benchmark_group("structural_plane_fit");
+    g.sample_size(10);
+    g.measurement_time(Duration::from_secs(10));
+    for n in [20_000, 100_000] {
+        let pts = plane_sample(n, 3);
+        g.bench_function(n.to_string(), |b| {
+            b.iter(|| fit(black_box(&pts), &spec).unwrap())
+        });
+    }
+    g.finish();
+}
+
+criterion_group!(fit_benches, benches, influence_benches, structural_plane);
 criterion_main!(fit_benches);

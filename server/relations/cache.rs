@@ -561,7 +561,7 @@ pub async fn fitted_within(
     }
     let spec = spec_for(relation, method, pivots.0, pivots.1);
     let compute_key = key.clone();
-    let (relation, filter) = (relation.clone(), filter.clone());
+    let (relation, filter) = (relation.clone(), *filter);
     let done = cache
         .fit_within(
             &key,

@@ -725,8 +725,8 @@ impl Objective for Model {
 }
 
 /// Maximises a structural model: Newton's method with analytic derivatives for a line with a
-/// one-Gaussian x model, otherwise (or if Newton fails) the simplex driver with a numerical
-/// Hessian.
+/// one-Gaussian x model, Newton on the analytic gradient for a plane with one ([`plane`]),
+/// otherwise (or if Newton fails) the simplex driver with a numerical Hessian.
 /// Maximises a structural model from its own start: for the K = 1 line, Newton from the cheap
 /// moment start first; otherwise (or if that fails) from the conditional-likelihood start.
 pub(crate) fn maximise(model: &Model, want_cov: bool) -> Result<optimize::MlResult, FitError> {
@@ -736,6 +736,7 @@ pub(crate) fn maximise(model: &Model, want_cov: bool) -> Result<optimize::MlResu
     {
         return Ok(ml);
     }
+    // The K = 1 plane's Newton maximiser is tried first inside `run`.
     run(model, &model.initial(), want_cov)
 }
 
@@ -750,11 +751,17 @@ pub(crate) fn run(
     {
         return Ok(ml);
     }
+    if plane::applies(model)
+        && let Some(ml) = plane::maximise(model, theta0, want_cov)
+    {
+        return Ok(ml);
+    }
     let budget = super::tolerance::NM_ITERATIONS_PER_PARAM * model.names.len() as u64;
     optimize::maximise_likelihood(model, theta0, budget, want_cov)
 }
 
 mod newton;
+mod plane;
 
 /// Structural (Kelly 2007) maximum-likelihood fit.
 ///
