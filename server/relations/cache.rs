@@ -140,13 +140,16 @@ pub struct FitCache {
     /// version: what a page shows while the fit of a newer version is being computed.
     latest: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
     rows: Arc<tokio::sync::Mutex<Option<Arc<RowsSnapshot>>>>,
-    drawn: Arc<Mutex<HashMap<(FitKey, String), Arc<Drawn>>>>,
+    drawn: Arc<Mutex<DrawnMap>>,
     hold: Hold,
 }
 
 /// Texts drawn from a fit (a page's charts as SVG, or why one could not be drawn): drawing a
 /// survey-sized sample takes a tenth of a second, so a page keeps what it drew for the fit.
 pub type Drawn = Vec<Result<String, String>>;
+
+/// Drawn texts by fit and by what was drawn (a page's name).
+type DrawnMap = HashMap<(FitKey, String), Arc<Drawn>>;
 
 /// Most drawn entries kept; beyond it the map starts afresh (they are redrawn on demand).
 const MAX_DRAWN: usize = 64;

@@ -60,6 +60,42 @@ pub(crate) fn quantity_unit(quantity: Quantity, band: &str) -> String {
     }
 }
 
+/// How a page shows a verdict: a CSS class (colour), a symbol (shape, hidden from screen
+/// readers) and the words. Colour is never the only signal: the symbol and the words say it too.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct Badge {
+    /// `v-consistent`, `v-tension`, `v-outlier`, `v-limit-ok`, `soi-resolved`, `soi-unresolved`.
+    pub(crate) class: &'static str,
+    /// ✓, ▲ or ✕.
+    pub(crate) mark: &'static str,
+    /// The verdict in words, as the domain states it.
+    pub(crate) text: &'static str,
+}
+
+/// The badge of a relation verdict ([`crate::relations::verdict`]'s words). A limit far above
+/// the prediction is consistent; a limit below it is in tension or an outlier like a measurement.
+pub(crate) fn verdict_badge(text: &'static str) -> Badge {
+    let (class, mark) = if text.starts_with("outlier") {
+        ("v-outlier", "✕")
+    } else if text.starts_with("in tension") {
+        ("v-tension", "▲")
+    } else {
+        ("v-consistent", "✓")
+    };
+    Badge { class, mark, text }
+}
+
+/// The badge of a sphere-of-influence check: resolved, not resolved (a flag for reviewers, not a
+/// cut), or `unknown` (the words to show when the resolution is missing).
+pub(crate) fn soi_badge(resolved: Option<bool>, unknown: &'static str) -> Badge {
+    let (class, mark, text) = match resolved {
+        Some(true) => ("soi-resolved", "✓", "resolved"),
+        Some(false) => ("soi-unresolved", "✕", "not resolved"),
+        None => ("soi-unknown", "?", unknown),
+    };
+    Badge { class, mark, text }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -96,5 +132,29 @@ mod tests {
             );
         }
         assert_eq!(probability(f64::NAN), "—");
+    }
+
+    #[test]
+    fn every_verdict_has_a_class_a_mark_and_its_words() {
+        use crate::relations::place::verdict;
+        let shown = |z, limit| verdict_badge(verdict(z, limit));
+        assert_eq!(shown(0.5, false).class, "v-consistent");
+        assert_eq!(shown(-2.5, false).class, "v-tension");
+        assert_eq!(shown(5.8, false).class, "v-outlier");
+        assert_eq!(shown(5.8, false).text, "outlier");
+        // A limit far above the prediction is consistent; far below, an outlier.
+        assert_eq!(shown(5.8, true).class, "v-consistent");
+        assert_eq!(shown(-3.5, true).class, "v-outlier");
+        assert_eq!(shown(-2.5, true).text, "in tension (limit below)");
+        let marks: Vec<&str> = [0.0, 2.5, 3.5]
+            .iter()
+            .map(|&z| shown(z, false).mark)
+            .collect();
+        assert_eq!(marks, ["✓", "▲", "✕"], "each state has its own shape");
+        assert_eq!(soi_badge(Some(false), "unknown").class, "soi-unresolved");
+        assert_eq!(
+            soi_badge(None, "unknown (no resolution)").text,
+            "unknown (no resolution)"
+        );
     }
 }

@@ -5,7 +5,7 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
 
-use super::display::{fixed, quantity_unit, significant};
+use super::display::{Badge, fixed, quantity_unit, significant, soi_badge};
 use crate::auth::Principal;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::error::{AppError, AppResult};
@@ -282,7 +282,7 @@ pub(crate) struct SoiView {
     theta_arcsec: String,
     resolution_arcsec: String,
     ratio: String,
-    verdict: &'static str,
+    verdict: Badge,
 }
 
 /// `/galaxies/{slug}`.
@@ -397,11 +397,7 @@ impl MeasurementView {
                 .resolution_arcsec
                 .map_or("not recorded".into(), |r| format!("{}″", significant(r, 2))),
             ratio: s.ratio.map_or("—".into(), |r| significant(r, 2)),
-            verdict: match s.resolved {
-                Some(true) => "resolved",
-                Some(false) => "not resolved",
-                None => "unknown (no resolution recorded)",
-            },
+            verdict: soi_badge(s.resolved, "unknown (no resolution recorded)"),
         });
         let at_adopted = if (rescaled - m.log_value).abs() > 5e-4 {
             log_with_errors(rescaled, m.err_minus_dex, m.err_plus_dex, m.upper_limit)

@@ -11,7 +11,7 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Query, State};
 
-use super::display::{fixed, probability, signed, significant};
+use super::display::{Badge, fixed, probability, signed, significant, soi_badge, verdict_badge};
 use super::relations::{Grouping, chart_y, relation_chart};
 use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, relation_svg};
@@ -50,7 +50,7 @@ pub(crate) struct PlaceRow {
     pub(crate) interval95: String,
     pub(crate) residual: Option<String>,
     pub(crate) z: Option<String>,
-    pub(crate) verdict: Option<&'static str>,
+    pub(crate) verdict: Option<Badge>,
     pub(crate) prob_below: Option<String>,
     pub(crate) refit: Option<String>,
     pub(crate) problem: Option<String>,
@@ -68,7 +68,7 @@ pub(crate) struct SoiView {
     radius_pc: String,
     theta_arcsec: String,
     ratio: String,
-    verdict: &'static str,
+    verdict: Badge,
 }
 
 /// `/place`.
@@ -255,11 +255,7 @@ fn soi_view(values: &ObjectValues, threshold: f64) -> (Option<SoiView>, Option<S
                 radius_pc: significant(sp.radius_pc, 3),
                 theta_arcsec: significant(sp.theta_arcsec, 3),
                 ratio: sp.ratio.map_or("—".into(), |r| significant(r, 2)),
-                verdict: match sp.resolved {
-                    Some(true) => "resolved",
-                    Some(false) => "not resolved",
-                    None => "unknown (no resolution given)",
-                },
+                verdict: soi_badge(sp.resolved, "unknown (no resolution given)"),
             }),
             None,
         ),
@@ -335,7 +331,7 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
             signed(r, 2)
         });
         row.z = Some(signed(z, 1));
-        row.verdict = numbers.verdict;
+        row.verdict = numbers.verdict.map(verdict_badge);
         row.prob_below = numbers.prob_below_limit.map(probability);
     }
     row.refit = p

@@ -63,9 +63,13 @@ async fn a_galaxy_with_sigma_and_a_mass_is_placed_against_fits_without_it() {
     let m_sigma = row(&body, "m_sigma");
     assert!(m_sigma.contains("class=\"num predicted\">"), "{m_sigma}");
     assert!(
-        [">consistent<", ">in tension<", ">outlier<"]
-            .iter()
-            .any(|v| m_sigma.contains(v)),
+        [
+            "v-consistent\"><span aria-hidden=\"true\">✓</span> consistent<",
+            "v-tension\"><span aria-hidden=\"true\">▲</span> in tension<",
+            "v-outlier\"><span aria-hidden=\"true\">✕</span> outlier<"
+        ]
+        .iter()
+        .any(|v| m_sigma.contains(v)),
         "no verdict in {m_sigma}"
     );
     // The thresholds are stated.
@@ -109,10 +113,14 @@ async fn planted_outliers_are_flagged_on_their_own_pages() {
         let slug = slugify(&demo.galaxies[gi].name);
         let body = app.ok(&format!("/galaxies/{slug}")).await;
         let table = &body[body.find("id=\"placements\"").expect("a placement table")..];
-        let flagged = count(table, ">in tension<")
-            + count(table, ">outlier<")
-            + count(table, ">in tension (limit below)<")
-            + count(table, ">outlier (limit far below)<");
+        // Flagged in words and in the badge's class (its colour and mark).
+        let flagged = count(
+            table,
+            "v-tension\"><span aria-hidden=\"true\">▲</span> in tension",
+        ) + count(
+            table,
+            "v-outlier\"><span aria-hidden=\"true\">✕</span> outlier",
+        );
         assert!(
             flagged >= 1,
             "{slug} is not flagged against any relation: {table}"
