@@ -19,7 +19,7 @@
 #
 # A request that takes longer than MAX_TIME seconds, or does not answer 200, counts as n/a; so
 # does a first relation page not complete FIRST_WAIT seconds after the start. KEEP_LOG=FILE
-# keeps the servers' log.
+# keeps the servers' log (SERVER_LOG=info logs when each version's analysis is done).
 #
 # Needs python3 (standard library) and curl. Only URLs are used, never the pages' content,
 # except the login form's hidden anti-forgery field and the word "computing".
@@ -83,7 +83,7 @@ request_ms() {
 }
 start_server() {
     local db="$1" port="$2"
-    RUST_LOG=warn "$BIN" serve --public-read --db "$db" --bind "127.0.0.1:$port" \
+    RUST_LOG="${SERVER_LOG:-warn}" "$BIN" serve --public-read --db "$db" --bind "127.0.0.1:$port" \
         --page-rate-per-minute 0 --api-rate-per-minute 0 >>"$WORK/server.log" 2>&1 &
     SERVER_PID=$!
 }
