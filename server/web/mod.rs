@@ -221,6 +221,9 @@ pub(crate) struct Nav {
     pub(crate) is_reviewer: bool,
     /// The session's anti-forgery token ("" without a session).
     pub(crate) csrf: String,
+    /// The path asked for, which marks the navigation link of the current section
+    /// (`aria-current="page"`); "" when unknown.
+    pub(crate) path: String,
 }
 
 impl Nav {
@@ -231,9 +234,30 @@ impl Nav {
                 is_admin: s.role.includes(Role::Admin),
                 is_reviewer: s.role.includes(Role::Reviewer),
                 csrf: s.csrf_token.clone(),
+                path: String::new(),
             },
             _ => Self::default(),
         }
+    }
+
+    /// The same visitor on `path` (its query, if any, ignored).
+    pub(crate) fn on(mut self, path: &str) -> Self {
+        path.split(['?', '#'])
+            .next()
+            .unwrap_or_default()
+            .clone_into(&mut self.path);
+        self
+    }
+
+    /// Whether `section` is the section of the page shown: the overview only on `/`, any
+    /// other section on its own path and every path below it.
+    pub(crate) fn is_current(&self, section: &str) -> bool {
+        if section == "/" {
+            return self.path == "/";
+        }
+        self.path
+            .strip_prefix(section)
+            .is_some_and(|rest| rest.is_empty() || rest.starts_with('/'))
     }
 }
 
@@ -245,7 +269,8 @@ impl<S: Send + Sync> FromRequestParts<S> for Nav {
             .extensions
             .get::<Principal>()
             .map(Self::from_principal)
-            .unwrap_or_default())
+            .unwrap_or_default()
+            .on(parts.uri.path()))
     }
 }
 
