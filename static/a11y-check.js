@@ -11,7 +11,9 @@
 // - text contrast of every visible text node, from computed colours composited over the
 //   backgrounds behind it and the opacity of its ancestors: 4.5:1, 3:1 for large text
 //   (24 px, or 18.66 px bold) (1.4.3). Text inside SVG (the charts) is drawn with `fill`
-//   and not measured here; disabled controls are exempt, as WCAG allows.
+//   and not measured here; disabled controls are exempt, as WCAG allows;
+// - the focus ring of the focused element, if any: drawn (an outline of at least 2 px) with
+//   3:1 against the background around it (2.4.7, 1.4.11).
 const problems = [];
 const short = (el) => el.outerHTML.replace(/\s+/g, ' ').slice(0, 100);
 
@@ -127,6 +129,21 @@ for (let t = walker.nextNode(); t; t = walker.nextNode()) {
     problems.push('text contrast ' + got.toFixed(2) + ':1 (needs ' + need + ':1), '
       + s.color + ' on rgb(' + back.slice(0, 3).map(Math.round).join(', ') + '): “'
       + t.textContent.trim().slice(0, 40) + '” in ' + short(el));
+  }
+}
+const focused = document.activeElement;
+if (focused && focused !== document.body && focused.matches(':focus-visible')) {
+  const s = getComputedStyle(focused);
+  const ring = rgba(s.outlineColor);
+  const around = backgroundOf(focused.parentElement || document.body);
+  if (s.outlineStyle === 'none' || parseFloat(s.outlineWidth) < 2 || !ring) {
+    problems.push('the focused element shows no focus ring: ' + short(focused));
+  } else if (around) {
+    const got = ratio(over(ring, around), around);
+    if (got < 3) {
+      problems.push('focus ring contrast ' + got.toFixed(2) + ':1 (needs 3:1), ' + s.outlineColor
+        + ' on rgb(' + around.slice(0, 3).map(Math.round).join(', ') + '): ' + short(focused));
+    }
   }
 }
 return problems;
