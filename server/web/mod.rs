@@ -317,3 +317,24 @@ async fn stylesheet() -> Response {
     )
         .into_response()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::Nav;
+
+    #[test]
+    fn the_current_section_is_the_path_or_a_path_below_it_and_the_overview_only_itself() {
+        let on = |path: &str| Nav::default().on(path);
+        assert!(on("/").is_current("/"));
+        assert!(!on("/galaxies").is_current("/"));
+        assert!(on("/galaxies").is_current("/galaxies"));
+        assert!(on("/galaxies/some-galaxy?x=1").is_current("/galaxies"));
+        assert!(on("/galaxies?sort=sigma").is_current("/galaxies"));
+        assert!(!on("/galaxies-other").is_current("/galaxies"));
+        assert!(!on("/api/v1/fit").is_current("/place"));
+        assert!(
+            !Nav::default().is_current("/"),
+            "an unknown path marks nothing"
+        );
+    }
+}

@@ -257,7 +257,7 @@ async fn the_place_page_predicts_and_judges_an_object() {
         ))
         .await;
     let row = section(&body, "id=\"place-m_sigma\"", "</tr>");
-    assert!(row.contains(">outlier<"), "{row}");
+    assert!(row.contains("</span> outlier</span>"), "{row}");
     assert!(body.contains("With this object in the fit: α"), "{body}");
     assert!(
         body.contains("id=\"soi\""),
@@ -268,7 +268,7 @@ async fn the_place_page_predicts_and_judges_an_object() {
     let body = app
         .ok(&format!("/place?sigma=200&mass={:.3e}", 10f64.powf(alpha)))
         .await;
-    assert!(section(&body, "id=\"place-m_sigma\"", "</tr>").contains(">consistent<"));
+    assert!(section(&body, "id=\"place-m_sigma\"", "</tr>").contains("</span> consistent</span>"));
     let body = app.ok("/place?sigma=200&mass=%3C1e11").await;
     let row = section(&body, "id=\"place-m_sigma\"", "</tr>");
     assert!(row.contains(">&#62; 99.9 %<"), "{row}");

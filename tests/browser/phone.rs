@@ -31,7 +31,11 @@ async fn on_a_phone_no_page_is_wider_than_the_screen_and_z_and_the_verdict_show_
                 .json()
                 .clone();
             let at = |i: usize| span[i].as_f64().expect("a number");
-            assert_eq!(at(2), f64::from(PHONE_WIDTH), "the window is phone-wide");
+            assert_eq!(
+                span[2].as_u64(),
+                Some(u64::from(PHONE_WIDTH)),
+                "the window is phone-wide"
+            );
             assert!(
                 at(0) >= 0.0 && at(1) <= at(2),
                 "{css} lies at {}–{} px, outside the {} px screen",
