@@ -18,6 +18,8 @@ struct ErrorPage<'a> {
     status_code: u16,
     title: &'a str,
     message: &'a str,
+    /// No session links, but the navigation still marks the section asked for.
+    nav: Nav,
 }
 
 /// The error page with the visitor's session links.
@@ -77,13 +79,14 @@ pub(crate) fn render(error: &AppError, asked: &Asked) -> Response {
             status_code: status.as_u16(),
             title,
             message: &message,
-            nav: Nav::from_principal(principal),
+            nav: Nav::from_principal(principal).on(&asked.target),
         }
         .render(),
         None => ErrorPage {
             status_code: status.as_u16(),
             title,
             message: &message,
+            nav: Nav::default().on(&asked.target),
         }
         .render(),
     }

@@ -221,6 +221,9 @@ pub(crate) struct Nav {
     pub(crate) is_reviewer: bool,
     /// The session's anti-forgery token ("" without a session).
     pub(crate) csrf: String,
+    /// The path asked for, which marks the navigation link of the current section
+    /// (`aria-current="page"`); "" when unknown.
+    pub(crate) path: String,
 }
 
 impl Nav {
@@ -231,9 +234,30 @@ impl Nav {
                 is_admin: s.role.includes(Role::Admin),
                 is_reviewer: s.role.includes(Role::Reviewer),
                 csrf: s.csrf_token.clone(),
+                path: String::new(),
             },
             _ => Self::default(),
         }
+    }
+
+    /// The same visitor on `path` (its query, if any, ignored).
+    pub(crate) fn on(mut self, path: &str) -> Self {
+        path.split(['?', '#'])
+            .next()
+            .unwrap_or_default()
+            .clone_into(&mut self.path);
+        self
+    }
+
+    /// Whether `section` is the section of the page shown: the overview only on `/`, any
+    /// other section on its own path and every path below it.
+    pub(crate) fn is_current(&self, section: &str) -> bool {
+        if section == "/" {
+            return self.path == "/";
+        }
+        self.path
+            .strip_prefix(section)
+            .is_some_and(|rest| rest.is_empty() || rest.starts_with('/'))
     }
 }
 
@@ -245,7 +269,8 @@ impl<S: Send + Sync> FromRequestParts<S> for Nav {
             .extensions
             .get::<Principal>()
             .map(Self::from_principal)
-            .unwrap_or_default())
+            .unwrap_or_default()
+            .on(parts.uri.path()))
     }
 }
 
@@ -291,4 +316,25 @@ async fn stylesheet() -> Response {
         STYLESHEET,
     )
         .into_response()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Nav;
+
+    #[test]
+    fn the_current_section_is_the_path_or_a_path_below_it_and_the_overview_only_itself() {
+        let on = |path: &str| Nav::default().on(path);
+        assert!(on("/").is_current("/"));
+        assert!(!on("/galaxies").is_current("/"));
+        assert!(on("/galaxies").is_current("/galaxies"));
+        assert!(on("/galaxies/some-galaxy?x=1").is_current("/galaxies"));
+        assert!(on("/galaxies?sort=sigma").is_current("/galaxies"));
+        assert!(!on("/galaxies-other").is_current("/galaxies"));
+        assert!(!on("/api/v1/fit").is_current("/place"));
+        assert!(
+            !Nav::default().is_current("/"),
+            "an unknown path marks nothing"
+        );
+    }
 }

@@ -21,7 +21,10 @@ pub(crate) struct CountView {
 
 /// A recent change.
 pub(crate) struct EventView {
+    /// Readable UTC, "2026-03-04 05:06".
     at: String,
+    /// The stored RFC 3339 time, for `<time datetime>`.
+    datetime: String,
     who: String,
     summary: String,
     catalog_version: i64,
@@ -85,6 +88,7 @@ pub(crate) async fn show_overview(
             .into_iter()
             .map(|e| EventView {
                 at: e.at.get(..16).unwrap_or(&e.at).replace('T', " "),
+                datetime: e.at,
                 who: e.username.unwrap_or_else(|| "system".into()),
                 summary: e.summary,
                 catalog_version: e.catalog_version,

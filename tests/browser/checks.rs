@@ -19,7 +19,7 @@ async fn failure_after(page: &Page, script: &str, shot: &str) -> String {
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-async fn the_page_checks_fail_on_a_dialog_a_console_error_an_outside_resource_and_an_unlabelled_field()
+async fn the_page_checks_fail_on_a_dialog_a_console_error_an_outside_resource_an_unlabelled_field_an_accessibility_fault_and_a_wide_page()
  {
     support::run("j0-checks", Reading::Public, |journey| async move {
         let page = journey.browser("visitor").await;
@@ -62,6 +62,33 @@ async fn the_page_checks_fail_on_a_dialog_a_console_error_an_outside_resource_an
         )
         .await;
         assert!(m.contains("not right-aligned"), "{m}");
+
+        page.open("/place", "clean-6").await;
+        let m = failure_after(
+            &page,
+            "const p = document.createElement('p'); p.textContent = 'pale words'; p.style.color = '#b0b0b0'; document.querySelector('main').append(p); \
+             document.querySelector('header nav').removeAttribute('aria-label'); \
+             const b = document.createElement('button'); document.querySelector('main').append(b); \
+             const s = document.createElementNS('http://www.w3.org/2000/svg', 'svg'); document.querySelector('main').append(s); \
+             document.documentElement.removeAttribute('lang'); return true;",
+            "accessibility",
+        )
+        .await;
+        assert!(m.contains("text contrast") && m.contains("pale words"), "{m}");
+        assert!(m.contains("navigation without a label"), "{m}");
+        assert!(m.contains("button without a name"), "{m}");
+        assert!(m.contains("SVG without an accessible name"), "{m}");
+        assert!(m.contains("no lang attribute"), "{m}");
+
+        page.open("/place", "clean-7").await;
+        let m = failure_after(
+            &page,
+            "const d = document.createElement('div'); d.textContent = 'wide'; d.style.width = '600px'; document.querySelector('main').append(d); return true;",
+            "overflow",
+        )
+        .await;
+        assert!(m.contains("at 390 px: the page is"), "{m}");
+        assert!(!m.contains("at 1400 px"), "600 px fit the desktop window: {m}");
     })
     .await;
 }

@@ -12,6 +12,7 @@ mod checks;
 
 mod api_token;
 mod csv_upload;
+mod phone;
 mod place_link;
 mod review_accept;
 mod review_reject;

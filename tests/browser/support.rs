@@ -7,11 +7,12 @@
 //! panics) before passing the panic on. [`Page`] is one browser session; [`Page::check`] runs
 //! the per-page checks (no dialog open, the document's status, no console errors, no failed
 //! requests, no Content-Security-Policy violations, nothing from another origin, every field
-//! labelled with numeric fields showing their unit) and writes a screenshot under
-//! `target/browser-screenshots/`.
+//! labelled with numeric fields showing their unit, nothing wider than the window at either
+//! width, and the accessibility checks of `static/a11y-check.js`) and writes a screenshot at
+//! both widths under `target/browser-screenshots/`.
 
 use std::path::PathBuf;
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicU32, AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
@@ -36,9 +37,28 @@ pub(crate) const PAYLOADS: [&str; 2] = [
 const CHROMEDRIVER: &str = "/usr/bin/chromedriver";
 const CHROMIUM: &str = "/usr/bin/chromium";
 
-/// Laptop width: the charts must be legible at it.
-const WINDOW_WIDTH: u32 = 1280;
+/// Desktop width: the charts must be legible at it.
+pub(crate) const WINDOW_WIDTH: u32 = 1400;
 const WINDOW_HEIGHT: u32 = 900;
+/// Phone width (and height): no page may be wider than this.
+pub(crate) const PHONE_WIDTH: u32 = 390;
+pub(crate) const PHONE_HEIGHT: u32 = 844;
+/// The accessibility checks every page gets (never served by the app).
+const A11Y_SCRIPT: &str = include_str!("../../static/a11y-check.js");
+/// Whether the document is wider than the window, naming the elements that reach past it.
+const OVERFLOW_SCRIPT: &str = r#"
+const width = window.innerWidth;
+if (document.documentElement.scrollWidth <= width) return [];
+const out = [];
+for (const el of document.querySelectorAll('body *')) {
+  const r = el.getBoundingClientRect();
+  if (r.width > 0 && r.right > width + 0.5 && !(el.parentElement && el.parentElement.getBoundingClientRect().right > width + 0.5)) {
+    out.push(el.outerHTML.replace(/\s+/g, ' ').slice(0, 90));
+    if (out.length >= 5) break;
+  }
+}
+return ['the page is ' + document.documentElement.scrollWidth + ' px wide in a window of ' + width + ' px; past the edge: ' + out.join(' | ')];
+"#;
 /// Full-page screenshots stop at this height.
 const MAX_SHOT_HEIGHT: u32 = 7000;
 
@@ -236,6 +256,7 @@ impl Journey {
             driver,
             journey: self.clone(),
             who,
+            width: Arc::new(AtomicU32::new(WINDOW_WIDTH)),
         }
     }
 }
@@ -247,6 +268,8 @@ pub(crate) struct Page {
     pub(crate) driver: WebDriver,
     journey: Arc<Journey>,
     who: &'static str,
+    /// The window's width the journey reads at (the checks visit the other width and return).
+    width: Arc<AtomicU32>,
 }
 
 /// What the page-wide script finds wrong (see `PAGE_SCRIPT`).
@@ -366,7 +389,10 @@ impl Page {
                 problems.push(format!("console {}: {}", entry.level, entry.message));
             }
         }
-        self.screenshot(shot).await;
+        for p in self.script_list(A11Y_SCRIPT).await {
+            problems.push(format!("accessibility: {p}"));
+        }
+        problems.extend(self.screenshots(shot).await);
         assert!(
             problems.is_empty(),
             "{who} on {shot} ({url}):\n  {}",
@@ -374,9 +400,72 @@ impl Page {
         );
     }
 
-    /// A full-page screenshot at laptop width, `target/browser-screenshots/<journey>-<n>-<who>-<shot>.png`.
-    async fn screenshot(&self, shot: &str) {
+    /// Read the page at phone width from now on (390 × 844), or back at desktop width.
+    pub(crate) async fn set_phone(&self, phone: bool) {
+        let (w, h) = if phone {
+            (PHONE_WIDTH, PHONE_HEIGHT)
+        } else {
+            (WINDOW_WIDTH, WINDOW_HEIGHT)
+        };
+        self.width.store(w, Ordering::SeqCst);
+        self.driver
+            .set_window_rect(0, 0, w, h)
+            .await
+            .unwrap_or_else(|e| panic!("{}: the window cannot be resized: {e}", self.who));
+    }
+
+    /// A script's list of sentences.
+    async fn script_list(&self, js: &str) -> Vec<String> {
+        self.script(js)
+            .await
+            .as_array()
+            .map(|a| {
+                a.iter()
+                    .filter_map(|v| v.as_str().map(str::to_owned))
+                    .collect()
+            })
+            .unwrap_or_default()
+    }
+
+    /// Full-page screenshots at both widths,
+    /// `target/browser-screenshots/<journey>-<n>-<who>-<shot>-<width>.png`, checking at each
+    /// width that the document is no wider than the window; returns what is too wide. The
+    /// window is back at the journey's width afterwards.
+    async fn screenshots(&self, shot: &str) -> Vec<String> {
         let n = self.journey.shots.fetch_add(1, Ordering::SeqCst) + 1;
+        let current = self.width.load(Ordering::SeqCst);
+        let mut problems = Vec::new();
+        for (w, h) in [(WINDOW_WIDTH, WINDOW_HEIGHT), (PHONE_WIDTH, PHONE_HEIGHT)] {
+            if self.driver.set_window_rect(0, 0, w, h).await.is_err() {
+                problems.push(format!("the window could not be made {w} px wide"));
+                continue;
+            }
+            let inner = self.script("return window.innerWidth;").await.as_u64();
+            if inner != Some(u64::from(w)) {
+                problems.push(format!("the window is {inner:?} px wide inside, not {w}"));
+            }
+            for p in self.script_list(OVERFLOW_SCRIPT).await {
+                problems.push(format!("at {w} px: {p}"));
+            }
+            self.screenshot(
+                &format!("{}-{n:02}-{}-{shot}-{w}.png", self.journey.name, self.who),
+                w,
+                h,
+            )
+            .await;
+        }
+        let h = if current == PHONE_WIDTH {
+            PHONE_HEIGHT
+        } else {
+            WINDOW_HEIGHT
+        };
+        let _ = self.driver.set_window_rect(0, 0, current, h).await;
+        problems
+    }
+
+    /// A full-page screenshot at the window's width `w` (and height `h`), up to
+    /// `MAX_SHOT_HEIGHT` high.
+    async fn screenshot(&self, file: &str, w: u32, h: u32) {
         // The window's height that shows the whole document: its height plus what the
         // browser itself takes of the window.
         let height = self
@@ -389,26 +478,14 @@ impl Page {
             .ok()
             .and_then(|r| r.json().as_u64())
             .and_then(|h| u32::try_from(h).ok())
-            .unwrap_or(WINDOW_HEIGHT)
-            .clamp(WINDOW_HEIGHT, MAX_SHOT_HEIGHT);
-        let resized = height > WINDOW_HEIGHT
-            && self
-                .driver
-                .set_window_rect(0, 0, WINDOW_WIDTH, height)
-                .await
-                .is_ok();
-        let path = screenshot_dir().join(format!(
-            "{}-{n:02}-{}-{shot}.png",
-            self.journey.name, self.who
-        ));
+            .unwrap_or(h)
+            .clamp(h, MAX_SHOT_HEIGHT);
+        if height > h {
+            let _ = self.driver.set_window_rect(0, 0, w, height).await;
+        }
+        let path = screenshot_dir().join(file);
         if let Err(e) = self.driver.screenshot(&path).await {
             eprintln!("screenshot {} failed: {e}", path.display());
-        }
-        if resized {
-            let _ = self
-                .driver
-                .set_window_rect(0, 0, WINDOW_WIDTH, WINDOW_HEIGHT)
-                .await;
         }
     }
 

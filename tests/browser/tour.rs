@@ -1,6 +1,6 @@
 //! The pages not on any journey's path, opened once so each gets the page checks and a
 //! screenshot: the overview, the catalog table (and its empty state), the relations, an error
-//! page.
+//! page. The focus ring is measured in the header and on the page.
 
 use crate::support::{self, Reading};
 
@@ -13,7 +13,27 @@ async fn a_visitor_reads_every_public_page_and_each_passes_the_page_checks() {
             support::number(&visitor.text("#galaxy-count").await) > 0.0,
             "the demo catalog is loaded"
         );
+        // The focus ring shows, with 3:1, on the dark header and on the page (the checks
+        // measure the focused element's ring).
+        visitor.tab_to("header nav a[href='/galaxies']").await;
+        visitor.check("focus-in-header").await;
+        visitor.tab_to("main a").await;
+        visitor.check("focus-in-main").await;
+        assert_eq!(
+            visitor
+                .script("return document.querySelector('header nav a[aria-current=page]').getAttribute('href');")
+                .await,
+            "/",
+            "the overview's link is marked as the current page"
+        );
         visitor.open("/galaxies", "catalog").await;
+        assert_eq!(
+            visitor
+                .texts("header nav a[aria-current=page]")
+                .await,
+            ["Catalog"],
+            "only the catalog's link is marked as the current page"
+        );
         assert!(visitor.count("table.catalog tbody tr").await > 0);
         visitor
             .open("/galaxies?sort=sigma&dir=desc", "catalog-by-sigma")
