@@ -14,6 +14,7 @@ mod api_token;
 mod csv_upload;
 mod place_link;
 mod review_accept;
+mod review_keyboard;
 mod review_reject;
 mod submit_outlier;
 mod tour;
