@@ -44,13 +44,16 @@ pub(crate) const FORM_ROWS: usize = 3;
 /// At most this many measurement rows on one form ("Add a measurement row" stops there).
 pub(crate) const MAX_FORM_ROWS: usize = 20;
 
+/// A group of measurement fields: (heading, quantities, [(name suffix, label)]).
+type FieldGroupSpec = (&'static str, &'static str, &'static [(&'static str, &'static str)]);
+
 /// The measurement fields of the form, grouped by the quantities they apply to: (heading,
 /// the stored words of those quantities, space-separated, empty for every quantity, and the
 /// fields as (name suffix, label)). The columns are the CSV files' (`catalog::intake`), except
 /// that the method has one list per quantity (`method_bh`, `method_bulge`, read as `method`).
 /// Without a script every group shows under its heading; `static/submission.js` shows only the
 /// groups of the chosen quantity.
-const MEASUREMENT_GROUPS: [(&str, &str, &[(&str, &str)]); 7] = [
+const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
     (
         "",
         "",
