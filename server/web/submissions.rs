@@ -45,7 +45,11 @@ pub(crate) const FORM_ROWS: usize = 3;
 pub(crate) const MAX_FORM_ROWS: usize = 20;
 
 /// A group of measurement fields: (heading, quantities, [(name suffix, label)]).
-type FieldGroupSpec = (&'static str, &'static str, &'static [(&'static str, &'static str)]);
+type FieldGroupSpec = (
+    &'static str,
+    &'static str,
+    &'static [(&'static str, &'static str)],
+);
 
 /// The measurement fields of the form, grouped by the quantities they apply to: (heading,
 /// the stored words of those quantities, space-separated, empty for every quantity, and the
