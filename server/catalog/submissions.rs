@@ -718,6 +718,45 @@ pub async fn reviews_of_galaxy(pool: &SqlitePool, galaxy_id: i64) -> sqlx::Resul
     .await
 }
 
+/// Every review of the submissions of one account, newest first (the submitter's own pages).
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn reviews_for_account(
+    pool: &SqlitePool,
+    account_id: i64,
+) -> sqlx::Result<Vec<ReviewNote>> {
+    sqlx::query_as(
+        "select r.submission_id, r.decision, a.username as reviewer, r.note, r.created_at
+           from review r join account a on a.account_id = r.account_id
+           join submission s on s.submission_id = r.submission_id
+          where s.account_id = ?
+       order by r.review_id desc",
+    )
+    .bind(account_id)
+    .fetch_all(pool)
+    .await
+}
+
+/// Every review of one submission, newest first.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn reviews_of_submission(
+    pool: &SqlitePool,
+    submission_id: i64,
+) -> sqlx::Result<Vec<ReviewNote>> {
+    sqlx::query_as(
+        "select r.submission_id, r.decision, a.username as reviewer, r.note, r.created_at
+           from review r join account a on a.account_id = r.account_id
+          where r.submission_id = ?
+       order by r.review_id desc",
+    )
+    .bind(submission_id)
+    .fetch_all(pool)
+    .await
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

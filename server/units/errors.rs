@@ -40,7 +40,7 @@ pub enum EntryError {
     },
     /// The entry stops where something more was expected (`3.2e9 ±`, `log`).
     #[error(
-        "The {quantity} entry `{text}` stops too early; type a number in {} such as {}.",
+        "The {quantity} entry “{text}” stops too early; type a number in {} such as {}.",
         quantity.unit_label(),
         quantity.examples()
     )]
@@ -53,7 +53,7 @@ pub enum EntryError {
     /// A number contains a comma, which is a thousands separator in some countries and a
     /// decimal mark in others.
     #[error(
-        "The {quantity} entry `{fragment}` contains a comma, which separates thousands in some countries and decimals in others, so type {suggestion} instead, with no separators and a point for decimals."
+        "The {quantity} entry “{fragment}” contains a comma, which separates thousands in some countries and decimals in others, so type {suggestion} instead, with no separators and a point for decimals."
     )]
     CommaInNumber {
         /// What the value measures.
@@ -64,7 +64,7 @@ pub enum EntryError {
         suggestion: String,
     },
     /// A number is infinite, not a number, or too large to be represented.
-    #[error("The {quantity} entry `{fragment}` is not a finite number (or is too large to store).")]
+    #[error("The {quantity} entry “{fragment}” is not a finite number (or is too large to store).")]
     NonFinite {
         /// What the value measures.
         quantity: Quantity,
@@ -73,7 +73,7 @@ pub enum EntryError {
     },
     /// A linear value is zero or negative (or so small it rounds to zero).
     #[error(
-        "The {quantity} must be greater than zero, but `{fragment}` was entered{}.",
+        "The {quantity} must be greater than zero, but “{fragment}” was entered{}.",
         quantity.non_positive_advice()
     )]
     NonPositive {
@@ -85,7 +85,7 @@ pub enum EntryError {
     /// With [`Scale::Auto`](super::Scale::Auto), a bare number is implausible as a linear value but plausible as a
     /// log10, so it is refused rather than guessed.
     #[error(
-        "The {quantity} `{fragment}` reads as {fragment} {}, which is implausible, so if you meant log10 = {fragment}, choose the log scale or type `log {fragment}`.",
+        "The {quantity} “{fragment}” reads as {fragment} {}, which is implausible, so if you meant log10 = {fragment}, choose the log scale or type “log {fragment}”.",
         quantity.unit_label()
     )]
     AmbiguousScale {
@@ -97,7 +97,7 @@ pub enum EntryError {
     /// With [`Scale::Linear`](super::Scale::Linear) (the default of files and the API), a
     /// bare number is implausible as a linear value but plausible as a log10.
     #[error(
-        "The {quantity} `{fragment}` reads as {fragment} {} on the linear scale, which is implausible, so if you meant log10 = {fragment}, set the scale to `log10` (or type `log {fragment}` with the scale `auto`).",
+        "The {quantity} “{fragment}” reads as {fragment} {} on the linear scale, which is implausible, so if you meant log10 = {fragment}, set the scale to “log10” (or type “log {fragment}” with the scale “auto”).",
         quantity.unit_label()
     )]
     LinearLooksLog {
@@ -109,7 +109,7 @@ pub enum EntryError {
     /// The log scale was chosen (or `log` typed) but the number is written in a linear
     /// notation (`3.2e9`, `3.2x10^9`, `10^9.51`).
     #[error(
-        "The {quantity} is on the log scale, but `{fragment}` is written as a linear value, so either enter the linear value alone with the linear or automatic scale, or enter its log10 as a plain number such as `9.51`."
+        "The {quantity} is on the log scale, but “{fragment}” is written as a linear value, so either enter the linear value alone with the linear or automatic scale, or enter its log10 as a plain number such as “9.51”."
     )]
     LogScaleLinearNotation {
         /// What the value measures.
@@ -119,7 +119,7 @@ pub enum EntryError {
     },
     /// The linear scale was chosen but the text says `log`.
     #[error(
-        "The linear scale was chosen for the {quantity}, but the entry says `log`, so choose the log scale or remove the word `log`."
+        "The linear scale was chosen for the {quantity}, but the entry says “log”, so choose the log scale or remove the word “log”."
     )]
     LinearScaleLogText {
         /// What the value measures.
@@ -135,7 +135,7 @@ pub enum EntryError {
     },
     /// A linear lower error reaches zero or below: the value is not a detection.
     #[error(
-        "The lower error reaches zero or below, so the {quantity} is not a detection; enter it as an upper limit instead, such as `<{suggestion}` (the top of the error bar)."
+        "The lower error reaches zero or below, so the {quantity} is not a detection; enter it as an upper limit instead, such as “<{suggestion}” (the top of the error bar)."
     )]
     LowerErrorReachesZero {
         /// What the value measures.
@@ -145,7 +145,7 @@ pub enum EntryError {
     },
     /// An upper limit was typed with error bars.
     #[error(
-        "An upper limit on the {quantity} takes no error bars, so enter either the limit alone (such as `<2e7`) or a measured value with its errors."
+        "An upper limit on the {quantity} takes no error bars, so enter either the limit alone (such as “<2e7”) or a measured value with its errors."
     )]
     LimitWithErrors {
         /// What the value measures.
@@ -153,7 +153,7 @@ pub enum EntryError {
     },
     /// A lower limit (`>`, `>=`, `≥`) was typed.
     #[error(
-        "Lower limits (`>`) on the {quantity} are not supported; enter a measured value, or an upper limit with `<`."
+        "Lower limits (“>”) on the {quantity} are not supported; enter a measured value, or an upper limit with “<”."
     )]
     LowerLimit {
         /// What the value measures.
@@ -187,21 +187,21 @@ pub enum EntryError {
     },
     /// A percentage error was given for a log10 value.
     #[error(
-        "A percentage error cannot apply to a log10 value of the {quantity}; give the error in dex, such as `log 9.51 ± 0.1`."
+        "A percentage error cannot apply to a log10 value of the {quantity}; give the error in dex, such as “log 9.51 ± 0.1”."
     )]
     PercentOnLogScale {
         /// What the value measures.
         quantity: Quantity,
     },
     /// The two errors mix `dex` and `%`.
-    #[error("The errors on the {quantity} mix `dex` and `%`; give both in the same unit.")]
+    #[error("The errors on the {quantity} mix “dex” and “%”; give both in the same unit.")]
     MixedErrorUnits {
         /// What the value measures.
         quantity: Quantity,
     },
     /// A word after the number is not the quantity's unit.
     #[error(
-        "The word `{found}` is not the unit of the {quantity}; enter the value in {} (the unit may be left out).",
+        "The word “{found}” is not the unit of the {quantity}; enter the value in {} (the unit may be left out).",
         quantity.unit_label()
     )]
     WrongUnit {
@@ -276,19 +276,19 @@ pub(super) mod tests {
                 "1,200",
                 Quantity::VelocityDispersion,
                 auto,
-                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "`1200` or `1.200`"),
+                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "“1200” or “1.200”"),
             ),
             (
                 "3,2e9",
                 bh,
                 auto,
-                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "`32e9` or `3.2e9`"),
+                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "“3.2e9”"),
             ),
             (
                 "1,200,000,000",
                 bh,
                 auto,
-                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "`1200000000`"),
+                |e| matches!(e, E::CommaInNumber { suggestion, .. } if suggestion == "“1200000000”"),
             ),
             ("inf", bh, auto, |e| matches!(e, E::NonFinite { .. })),
             ("NaN", bh, auto, |e| matches!(e, E::NonFinite { .. })),
@@ -511,34 +511,62 @@ pub(super) mod tests {
             .unwrap_err()
             .to_string();
         assert!(message.contains("log10 = 9.51"), "{message}");
-        assert!(message.contains("`log 9.51`"), "{message}");
+        assert!(message.contains("“log 9.51”"), "{message}");
         assert!(message.contains("9.51 M☉"), "{message}");
         let message = parse_entry("9.51", Quantity::BlackHoleMass, Scale::Linear)
             .unwrap_err()
             .to_string();
         assert!(message.contains("log10 = 9.51"), "{message}");
-        assert!(message.contains("`log10`"), "{message}");
+        assert!(message.contains("“log10”"), "{message}");
         let message = parse_entry("3e8 +1e8/-3e8", Quantity::BlackHoleMass, Scale::Auto)
             .unwrap_err()
             .to_string();
-        assert!(message.contains("`<4e8`"), "{message}");
+        assert!(message.contains("“<4e8”"), "{message}");
         let message = parse_entry("1e7 +2e7/-1e7", Quantity::BlackHoleMass, Scale::Auto)
             .unwrap_err()
             .to_string();
         assert!(message.contains("upper limit"), "{message}");
-        assert!(message.contains("`<3e7`"), "{message}");
+        assert!(message.contains("“<3e7”"), "{message}");
         let message = parse_entry("1,200", Quantity::VelocityDispersion, Scale::Auto)
             .unwrap_err()
             .to_string();
         assert!(
-            message.contains("`1,200`") && message.contains("`1200`"),
+            message.contains("“1,200”") && message.contains("“1200”"),
             "{message}"
         );
+        // A decimal comma before an exponent is no thousands separator: the point, never the
+        // value ten times too large.
+        let message = parse_entry("2,1e8", Quantity::BlackHoleMass, Scale::Auto)
+            .unwrap_err()
+            .to_string();
+        assert!(message.contains("“2.1e8”"), "{message}");
+        assert!(!message.contains("21e8"), "{message}");
+        let message = parse_entry("0,5", Quantity::Resolution, Scale::Auto)
+            .unwrap_err()
+            .to_string();
+        assert!(
+            message.contains("“0.5”") && !message.contains("“05”"),
+            "{message}"
+        );
+        // Messages are sentences for people: no Markdown code marks.
+        for text in [
+            "2,1e8",
+            "9.51",
+            "-5",
+            "1e7 +2e7/-1e7",
+            "log 3e8",
+            "abc",
+            "8 dex %",
+        ] {
+            if let Err(e) = parse_entry(text, Quantity::BlackHoleMass, Scale::Auto) {
+                assert!(!e.to_string().contains('`'), "{text}: {e}");
+            }
+        }
         let message = parse_entry("-5", Quantity::BlackHoleMass, Scale::Auto)
             .unwrap_err()
             .to_string();
         assert!(
-            message.contains("`-5`") && message.contains("`<2e7`"),
+            message.contains("“-5”") && message.contains("“<2e7”"),
             "{message}"
         );
     }

@@ -13,7 +13,7 @@ use super::ranges::{
 
 /// A stable name (of a [`Quantity`] or [`Scale`]) that is not known.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-#[error("The name `{name}` is not a known {kind}; expected one of {expected}.")]
+#[error("The name “{name}” is not a known {kind}; expected one of {expected}.")]
 pub struct UnknownNameError {
     /// What was being named: "quantity" or "scale".
     pub kind: &'static str,
@@ -164,24 +164,24 @@ impl Quantity {
     /// Examples of accepted entries, quoted for messages.
     pub(super) fn examples(self) -> &'static str {
         match self {
-            Quantity::BlackHoleMass => "`3.2e9`, `3.2x10^9 +0.5e9/-0.3e9` or `log 9.51 ± 0.1`",
-            Quantity::BulgeMass => "`2e11`, `2x10^11 ± 10%` or `log 11.3 ± 0.1`",
-            Quantity::BulgeLuminosity => "`5e10`, `5x10^10 ± 1e10` or `log 10.7 ± 0.1`",
-            Quantity::VelocityDispersion => "`210`, `210 ± 10` or `210 km/s`",
-            Quantity::Distance => "`16.5` or `16.5 ± 0.8`",
-            Quantity::Resolution => "`0.1` or `0.05\"`",
+            Quantity::BlackHoleMass => "“3.2e9”, “3.2x10^9 +0.5e9/-0.3e9” or “log 9.51 ± 0.1”",
+            Quantity::BulgeMass => "“2e11”, “2x10^11 ± 10%” or “log 11.3 ± 0.1”",
+            Quantity::BulgeLuminosity => "“5e10”, “5x10^10 ± 1e10” or “log 10.7 ± 0.1”",
+            Quantity::VelocityDispersion => "“210”, “210 ± 10” or “210 km/s”",
+            Quantity::Distance => "“16.5” or “16.5 ± 0.8”",
+            Quantity::Resolution => "“0.1” or “0.05\"”",
         }
     }
 
     /// An example of an entry with a symmetric error, quoted for messages.
     pub(super) fn error_example(self) -> &'static str {
         match self {
-            Quantity::BlackHoleMass => "`3.2e9 ± 0.4e9` or `3.2e9 +0.5e9/-0.3e9`",
-            Quantity::BulgeMass => "`2e11 ± 0.3e11`",
-            Quantity::BulgeLuminosity => "`5e10 ± 1e10`",
-            Quantity::VelocityDispersion => "`210 ± 10`",
-            Quantity::Distance => "`16.5 ± 0.8`",
-            Quantity::Resolution => "`0.1 ± 0.01`",
+            Quantity::BlackHoleMass => "“3.2e9 ± 0.4e9” or “3.2e9 +0.5e9/-0.3e9”",
+            Quantity::BulgeMass => "“2e11 ± 0.3e11”",
+            Quantity::BulgeLuminosity => "“5e10 ± 1e10”",
+            Quantity::VelocityDispersion => "“210 ± 10”",
+            Quantity::Distance => "“16.5 ± 0.8”",
+            Quantity::Resolution => "“0.1 ± 0.01”",
         }
     }
 
@@ -201,7 +201,7 @@ impl Quantity {
     pub(super) fn non_positive_advice(self) -> &'static str {
         match self {
             Quantity::BlackHoleMass => {
-                "; for an undetected black hole, enter an upper limit such as `<2e7`"
+                "; for an undetected black hole, enter an upper limit such as “<2e7”"
             }
             _ => "",
         }

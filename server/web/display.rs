@@ -60,6 +60,136 @@ pub(crate) fn quantity_unit(quantity: Quantity, band: &str) -> String {
     }
 }
 
+/// A stored UTC time (RFC 3339, as the catalog writes it: "2026-12-02T14:05:31.123Z") as people
+/// read it: "2 Dec 2026, 14:05 UTC". Text that is not such a time is shown as it is.
+pub(crate) fn readable_utc(iso: &str) -> String {
+    const MONTHS: [&str; 12] = [
+        "Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec",
+    ];
+    let number = |range: std::ops::Range<usize>| {
+        iso.get(range)
+            .filter(|t| t.bytes().all(|b| b.is_ascii_digit()))
+            .and_then(|t| t.parse::<usize>().ok())
+    };
+    let shape = iso.as_bytes();
+    let separators = shape.len() >= 16
+        && shape[4] == b'-'
+        && shape[7] == b'-'
+        && matches!(shape[10], b'T' | b' ')
+        && shape[13] == b':';
+    match (
+        separators,
+        number(0..4),
+        number(5..7),
+        number(8..10),
+        number(11..13),
+        number(14..16),
+    ) {
+        (
+            true,
+            Some(year),
+            Some(month @ 1..=12),
+            Some(day @ 1..=31),
+            Some(hour @ 0..=23),
+            Some(minute @ 0..=59),
+        ) => {
+            format!(
+                "{day} {} {year}, {hour:02}:{minute:02} UTC",
+                MONTHS[month - 1]
+            )
+        }
+        _ => iso.to_owned(),
+    }
+}
+
+/// A count with its noun, singular for one: "1 galaxy", "3 galaxies", "0 measurements".
+pub(crate) fn count<N>(n: N, singular: &str, plural: &str) -> String
+where
+    N: std::fmt::Display + PartialEq + From<u8>,
+{
+    let one = n == N::from(1);
+    format!("{n} {}", if one { singular } else { plural })
+}
+
+/// The words for a stored code (a method, a σ definition, a morphology, a distance method, a
+/// submission state, a fit parameter): "stellar_dynamics" → "stellar dynamics", "sigma_e" →
+/// "σ_e (within r_e)", "tau_1" → "τ₁". A code this does not know is shown with its underscores
+/// as spaces, never as a code.
+pub(crate) fn code_label(code: &str) -> String {
+    use crate::catalog::model::{
+        BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology,
+        SigmaDefinition,
+    };
+    let known = MassMethod::pairs()
+        .into_iter()
+        .chain(BulgeMassMethod::pairs())
+        .chain(SigmaDefinition::pairs())
+        .chain(Morphology::pairs())
+        .chain(BulgeKind::pairs())
+        .chain(CentreKind::pairs())
+        .chain(DistanceMethod::pairs())
+        .find(|(word, _)| *word == code)
+        .map(|(_, label)| label.to_owned());
+    if let Some(label) = known {
+        return label;
+    }
+    let greek = [
+        ("alpha", "α"),
+        ("beta", "β"),
+        ("gamma", "γ"),
+        ("eps", "ε"),
+        ("mu", "μ"),
+        ("tau", "τ"),
+        ("w", "w"),
+    ];
+    if let Some((name, index)) = code.split_once('_')
+        && let Some((_, letter)) = greek.iter().find(|(g, _)| *g == name)
+        && !index.is_empty()
+        && index.bytes().all(|b| b.is_ascii_digit())
+    {
+        let sub: String = index
+            .chars()
+            .map(|c| char::from_u32(0x2080 + c.to_digit(10).unwrap_or(0)).unwrap_or(c))
+            .collect();
+        return format!("{letter}{sub}");
+    }
+    if let Some((_, letter)) = greek.iter().find(|(g, _)| *g == code) {
+        return (*letter).to_owned();
+    }
+    code.replace('_', " ")
+}
+
+/// A measurement's method, σ definition, aperture and band in words: "stellar dynamics",
+/// "σ_e within r_e", "σ_c within 0.5 arcsec", "band K". Empty parts are left out.
+pub(crate) fn measurement_detail(
+    method: &str,
+    sigma_definition: &str,
+    aperture: &str,
+    band: &str,
+) -> String {
+    let mut parts = Vec::new();
+    if !method.is_empty() {
+        parts.push(code_label(method));
+    }
+    match (sigma_definition, aperture) {
+        ("", "") => {}
+        ("", a) => parts.push(format!("aperture {a}")),
+        (d, "") => parts.push(code_label(d)),
+        (d, a) => {
+            let symbol = match d {
+                "sigma_e" => "σ_e".to_owned(),
+                "sigma_c" => "σ_c".to_owned(),
+                other => code_label(other),
+            };
+            parts.push(format!("{symbol} within {a}"));
+        }
+    }
+    if !band.is_empty() {
+        parts.push(format!("band {band}"));
+    }
+    parts.join(", ")
+}
+
 /// How a page shows a verdict: a CSS class (colour), a symbol (shape, hidden from screen
 /// readers) and the words. Colour is never the only signal: the symbol and the words say it too.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -155,6 +285,55 @@ mod tests {
         assert_eq!(
             soi_badge(None, "unknown (no resolution)").text,
             "unknown (no resolution)"
+        );
+    }
+
+    #[test]
+    fn times_read_as_day_month_year_and_utc() {
+        assert_eq!(
+            readable_utc("2026-12-02T14:05:31.123Z"),
+            "2 Dec 2026, 14:05 UTC"
+        );
+        assert_eq!(
+            readable_utc("2026-01-09T00:00:00Z"),
+            "9 Jan 2026, 00:00 UTC"
+        );
+        assert_eq!(readable_utc("2026-12-02 23:59"), "2 Dec 2026, 23:59 UTC");
+        // Not a stored time: shown as it is, never a made-up date.
+        assert_eq!(readable_utc("yesterday"), "yesterday");
+        assert_eq!(readable_utc("2026-13-02T14:05:00Z"), "2026-13-02T14:05:00Z");
+    }
+
+    #[test]
+    fn counts_agree_with_their_noun() {
+        assert_eq!(count(1, "galaxy", "galaxies"), "1 galaxy");
+        assert_eq!(count(0, "galaxy", "galaxies"), "0 galaxies");
+        assert_eq!(
+            count(12_i64, "measurement", "measurements"),
+            "12 measurements"
+        );
+    }
+
+    #[test]
+    fn codes_show_as_words() {
+        assert_eq!(code_label("stellar_dynamics"), "stellar dynamics");
+        assert_eq!(code_label("reverberation"), "reverberation mapping");
+        assert_eq!(code_label("tau_1"), "τ₁");
+        assert_eq!(code_label("mu_12"), "μ₁₂");
+        assert_eq!(code_label("eps"), "ε");
+        assert_eq!(code_label("some_new_code"), "some new code");
+        assert_eq!(
+            measurement_detail("", "sigma_e", "r_e", ""),
+            "σ_e within r_e"
+        );
+        assert_eq!(
+            measurement_detail("stellar_dynamics", "", "", ""),
+            "stellar dynamics"
+        );
+        assert_eq!(measurement_detail("", "", "", "K"), "band K");
+        assert_eq!(
+            measurement_detail("gas_dynamics", "sigma_c", "", ""),
+            "gas dynamics, σ_c (central)"
         );
     }
 }

@@ -97,6 +97,12 @@ fn routes() -> Routes {
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
+        .add(
+            Method::GET,
+            "/static/submission.js",
+            Public,
+            get(submission_script),
+        )
         .add(Method::GET, "/login", Public, get(login::show_login))
         .add(Method::POST, "/login", Public, post(login::log_in))
         .add(Method::POST, "/logout", Session, post(login::log_out))
@@ -306,6 +312,20 @@ fn plain_text(status: StatusCode, body: String) -> Response {
 }
 
 const STYLESHEET: &str = include_str!("../../static/massline.css");
+
+/// The submission form's script (progressive: the form works without it).
+const SUBMISSION_SCRIPT: &str = include_str!("../../static/submission.js");
+
+async fn submission_script() -> Response {
+    (
+        [
+            (header::CONTENT_TYPE, "text/javascript; charset=utf-8"),
+            (header::CACHE_CONTROL, "public, max-age=3600"),
+        ],
+        SUBMISSION_SCRIPT,
+    )
+        .into_response()
+}
 
 async fn stylesheet() -> Response {
     (

@@ -17,8 +17,11 @@ use axum::response::Redirect;
 
 use super::Nav;
 use super::account::session_of;
+use super::display::{Badge, readable_utc, signed};
 use super::place::PlaceRow;
-use super::submissions::{AssessmentView, ClashView, MeasurementView, parse_id};
+use super::submissions::{
+    AssessmentView, ClashView, FlashQuery, MeasurementView, flag_id, parse_id,
+};
 use crate::auth::{Principal, may_review};
 use crate::catalog::intake::check_note;
 use crate::catalog::submissions::{self, SubmissionError};
@@ -36,14 +39,21 @@ pub(crate) struct QueueItem {
     galaxy_name: String,
     galaxy_slug: String,
     submitter: String,
+    /// "2 Dec 2026, 14:05 UTC".
     created_at: String,
+    /// The stored RFC 3339 time, for `<time datetime>`.
+    created_iso: String,
     note: String,
     own: bool,
     measurements: Vec<MeasurementView>,
     rows: Vec<PlaceRow>,
     soi: Option<String>,
+    soi_badge: Option<Badge>,
     mass_at_adopted: Option<String>,
     clashes: Vec<ClashView>,
+    /// Why "keep the adopted value" is preselected on each clash: the submission makes its
+    /// galaxy an outlier ([`keep_old_reason`]). None: "adopt the submitted value" is.
+    keep_old_reason: Option<String>,
 }
 
 /// `/review`.
@@ -59,6 +69,8 @@ pub(crate) struct ReviewPage {
     unscored: usize,
     page: usize,
     pages: usize,
+    /// After accepting or rejecting: the submission and what this reviewer decided on it.
+    flash: Option<(i64, String)>,
 }
 
 /// Submissions per page of the queue.
@@ -79,8 +91,13 @@ pub(crate) async fn show_queue(
     Extension(principal): Extension<Principal>,
     nav: Nav,
     axum::extract::Query(query): axum::extract::Query<QueueQuery>,
+    axum::extract::Query(flags): axum::extract::Query<FlashQuery>,
 ) -> AppResult<ReviewPage> {
     let user = session_of(&principal)?;
+    let flash = match flag_id(flags.decided.as_ref()) {
+        Some(id) => decided_flash(&state, &user.username, id).await?,
+        None => None,
+    };
     let page = match query.page.as_deref().map(str::trim) {
         None | Some("") => 1,
         Some(p) => p.parse::<usize>().ok().filter(|p| *p >= 1).ok_or_else(|| {
@@ -106,7 +123,60 @@ pub(crate) async fn show_queue(
         unscored: queue.unscored,
         page,
         pages,
+        flash,
     })
+}
+
+/// The confirmation of a decision: only when the newest review of the submission is this
+/// reviewer's, and in the words of what is stored.
+async fn decided_flash(
+    state: &AppState,
+    reviewer: &str,
+    id: i64,
+) -> AppResult<Option<(i64, String)>> {
+    let Some(summary) = submissions::find(&state.pool, id).await? else {
+        return Ok(None);
+    };
+    let reviews = submissions::reviews_of_submission(&state.pool, id).await?;
+    Ok(reviews.first().filter(|r| r.reviewer == reviewer).map(|r| {
+        (
+            id,
+            format!(
+                "for {} was {}; the submitter sees your decision{}.",
+                summary.galaxy_name,
+                r.decision,
+                if r.note.is_empty() {
+                    ""
+                } else {
+                    " and its note"
+                }
+            ),
+        )
+    }))
+}
+
+/// Whether accepting should keep the adopted values by default: when, with the submitted
+/// values in place, the galaxy is an outlier against a relation (the verdict of
+/// `relations::place`: |z| ≥ 3, common practice), the sentence saying so; the largest such |z|
+/// is named. A reviewer may still choose to adopt.
+fn keep_old_reason(e: &QueueEntry) -> Option<String> {
+    let worst = e
+        .assessment
+        .placements
+        .iter()
+        .filter_map(|p| {
+            let n = p.numbers.as_ref().ok()?;
+            let z = n.z?;
+            n.verdict
+                .filter(|v| v.starts_with("outlier"))
+                .map(|_| (z, p.relation.label()))
+        })
+        .max_by(|a, b| a.0.abs().total_cmp(&b.0.abs()))?;
+    Some(format!(
+        "Preselected: keep the adopted value, because with the submitted values this galaxy is an outlier (z = {} against {}; |z| ≥ 3). Choose “adopt” only if you have checked the new value.",
+        signed(worst.0, 1),
+        worst.1
+    ))
 }
 
 impl QueueItem {
@@ -121,11 +191,8 @@ impl QueueItem {
                 .username
                 .clone()
                 .unwrap_or_else(|| "command line".to_owned()),
-            created_at: s
-                .created_at
-                .get(..16)
-                .unwrap_or(&s.created_at)
-                .replace('T', " "),
+            created_at: readable_utc(&s.created_at),
+            created_iso: s.created_at.clone(),
             note: s.note.clone(),
             own: !may_review(role, account_id, s.account_id),
             measurements: e
@@ -136,8 +203,10 @@ impl QueueItem {
                 .collect(),
             rows: a.rows,
             soi: a.soi,
+            soi_badge: a.soi_badge,
             mass_at_adopted: a.mass_at_adopted,
             clashes: a.clashes,
+            keep_old_reason: keep_old_reason(e),
         }
     }
 }
@@ -191,7 +260,7 @@ pub(crate) async fn accept(
     submissions::accept(&state.pool, reviewer, id, &keep_old, &note)
         .await
         .map_err(decision_error)?;
-    Ok(Redirect::to("/review"))
+    Ok(Redirect::to(&format!("/review?decided={id}")))
 }
 
 /// The reject form's fields.
@@ -220,5 +289,5 @@ pub(crate) async fn reject(
     submissions::reject(&state.pool, reviewer, id, note)
         .await
         .map_err(decision_error)?;
-    Ok(Redirect::to("/review"))
+    Ok(Redirect::to(&format!("/review?decided={id}")))
 }

@@ -12,14 +12,17 @@ use std::collections::HashMap;
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::Form;
-use axum::extract::{Extension, Path, State};
+use axum::extract::{Extension, Path, Query, State};
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Redirect, Response};
 
 use super::Nav;
 use super::account::session_of;
-use super::display::{fixed, significant};
+use super::display::{
+    Badge, count, fixed, measurement_detail, readable_utc, significant, soi_badge,
+};
 use super::place::{PlaceChart, PlaceRow};
+use crate::auth::middleware::{AuthContext, read_cookie, set_cookie};
 use crate::auth::{Principal, Role, SessionUser};
 use crate::catalog::galaxies::{self, SubmissionSource};
 use crate::catalog::intake::{self, Cell, Cells, Checked, GalaxyCells, SubmissionCells, sentence};
@@ -27,7 +30,9 @@ use crate::catalog::model::{
     BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Measurement, Morphology,
     Quantity, SigmaDefinition,
 };
-use crate::catalog::submissions::{self, GalaxyChoice, SubmissionError, SubmissionSummary};
+use crate::catalog::submissions::{
+    self, GalaxyChoice, ReviewNote, SubmissionError, SubmissionSummary,
+};
 use crate::error::{AppError, AppResult};
 use crate::relations::assess::{Assessment, assess, assess_unstored};
 use crate::state::AppState;
@@ -39,20 +44,72 @@ pub(crate) const FORM_ROWS: usize = 3;
 /// At most this many measurement rows on one form ("Add a measurement row" stops there).
 pub(crate) const MAX_FORM_ROWS: usize = 20;
 
-/// The measurement columns of the form (and of the CSV files), with their labels.
-const MEASUREMENT_COLUMNS: [(&str, &str); 12] = [
-    ("quantity", "Quantity"),
-    ("value", "Value as published"),
-    ("scale", "Scale"),
-    ("limit_confidence_sigma", "Limit confidence [σ]"),
-    ("method", "Method"),
-    ("sigma_definition", "σ definition"),
-    ("aperture", "Aperture"),
-    ("band", "Band"),
-    ("source_distance_mpc", "Source distance [Mpc]"),
-    ("resolution_arcsec", "Resolution [arcsec]"),
-    ("reference", "Reference"),
-    ("note", "Note"),
+/// A group of measurement fields: (heading, quantities, [(name suffix, label)]).
+type FieldGroupSpec = (
+    &'static str,
+    &'static str,
+    &'static [(&'static str, &'static str)],
+);
+
+/// The measurement fields of the form, grouped by the quantities they apply to: (heading,
+/// the stored words of those quantities, space-separated, empty for every quantity, and the
+/// fields as (name suffix, label)). The columns are the CSV files' (`catalog::intake`), except
+/// that the method has one list per quantity (`method_bh`, `method_bulge`, read as `method`).
+/// Without a script every group shows under its heading; `static/submission.js` shows only the
+/// groups of the chosen quantity.
+const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
+    (
+        "",
+        "",
+        &[
+            ("quantity", "Quantity"),
+            ("value", "Value as published"),
+            ("scale", "Scale"),
+            (
+                "limit_confidence_sigma",
+                "Limit confidence [σ], for an upper limit (<)",
+            ),
+        ],
+    ),
+    (
+        "Black-hole mass only",
+        "bh_mass",
+        &[
+            ("method_bh", "How the mass was measured"),
+            ("resolution_arcsec", "Resolution [arcsec]"),
+        ],
+    ),
+    (
+        "Bulge mass only",
+        "bulge_mass",
+        &[("method_bulge", "How the bulge mass was measured")],
+    ),
+    (
+        "Velocity dispersion (σ) only",
+        "sigma",
+        &[
+            ("sigma_definition", "σ definition"),
+            ("aperture", "Aperture (such as r_e)"),
+        ],
+    ),
+    (
+        "Bulge luminosity only",
+        "bulge_luminosity",
+        &[("band", "Band (such as K or V)")],
+    ),
+    (
+        "Masses and luminosities (they scale with distance)",
+        "bh_mass bulge_mass bulge_luminosity",
+        &[("source_distance_mpc", "Distance the source assumed [Mpc]")],
+    ),
+    (
+        "",
+        "",
+        &[
+            ("reference", "Reference"),
+            ("note", "Note on this measurement"),
+        ],
+    ),
 ];
 
 /// The new-galaxy columns, with their labels.
@@ -85,10 +142,8 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
             ("log10", "log10"),
         ],
         "limit_confidence_sigma" => vec![("1", "1σ"), ("2", "2σ"), ("3", "3σ")],
-        "method" => MassMethod::pairs()
-            .into_iter()
-            .chain(BulgeMassMethod::pairs())
-            .collect(),
+        "method_bh" => MassMethod::pairs(),
+        "method_bulge" => BulgeMassMethod::pairs(),
         "sigma_definition" => SigmaDefinition::pairs(),
         "morphology" => Morphology::pairs(),
         "bulge_kind" => BulgeKind::pairs(),
@@ -97,11 +152,14 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
         _ => return Vec::new(),
     };
     let mut out = Vec::with_capacity(pairs.len() + 1);
-    if !matches!(
-        column,
-        "scale" | "morphology" | "bulge_kind" | "centre_kind" | "distance_method"
-    ) {
-        out.push((String::new(), "—".to_owned(), value.is_empty()));
+    // A new galaxy's kinds are asked, never assumed: "choose…" must be changed (each list has
+    // "unknown" or "other" for what is not known).
+    match column {
+        "scale" => {}
+        "morphology" | "bulge_kind" | "centre_kind" | "distance_method" => {
+            out.push((String::new(), "choose…".to_owned(), value.is_empty()));
+        }
+        _ => out.push((String::new(), "—".to_owned(), value.is_empty())),
     }
     out.extend(
         pairs
@@ -111,10 +169,19 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
     out
 }
 
+/// The fields of a measurement row that apply to some quantities.
+pub(crate) struct FieldGroup {
+    /// Which quantities, in words ("Black-hole mass only"); empty for the fields of every one.
+    legend: &'static str,
+    /// The stored words of those quantities, space-separated (for the script).
+    quantities: &'static str,
+    inputs: Vec<Input>,
+}
+
 /// One measurement row of the form.
 pub(crate) struct RowInputs {
     number: usize,
-    inputs: Vec<Input>,
+    groups: Vec<FieldGroup>,
 }
 
 /// `/submissions/new`.
@@ -123,8 +190,10 @@ pub(crate) struct RowInputs {
 pub(crate) struct NewSubmissionPage {
     nav: Nav,
     csrf: String,
-    /// (slug, name, selected)
-    galaxies: Vec<(String, String, bool)>,
+    /// Every galaxy's name, for the picker's list.
+    galaxies: Vec<String>,
+    /// What is in the picker: a name or a slug, as typed.
+    galaxy: String,
     galaxy_error: Option<String>,
     galaxy_inputs: Vec<Input>,
     /// Why the new galaxy's name needs confirming: it looks like a galaxy in the catalog.
@@ -136,6 +205,7 @@ pub(crate) struct NewSubmissionPage {
     n_rows: usize,
     can_add_row: bool,
     note: String,
+    note_error: Option<String>,
     form_error: Option<String>,
     /// The form's idempotency key: a retried POST of this form stores nothing new.
     request_key: String,
@@ -163,14 +233,10 @@ async fn form_page(
     form_error: Option<String>,
 ) -> AppResult<NewSubmissionPage> {
     let get = |name: &str| fields.get(name).cloned().unwrap_or_default();
-    let chosen = get("galaxy");
     let galaxies = submissions::galaxy_names(&state.pool)
         .await?
         .into_iter()
-        .map(|(_, name, slug)| {
-            let selected = slug == chosen;
-            (slug, name, selected)
-        })
+        .map(|(_, name, _)| name)
         .collect();
     let input = |name: String, column: &str, label: &'static str| {
         let value = get(&name);
@@ -190,9 +256,16 @@ async fn form_page(
     let rows = (0..n_rows)
         .map(|i| RowInputs {
             number: i + 1,
-            inputs: MEASUREMENT_COLUMNS
+            groups: MEASUREMENT_GROUPS
                 .iter()
-                .map(|(c, l)| input(format!("m{i}_{c}"), c, l))
+                .map(|(legend, quantities, columns)| FieldGroup {
+                    legend,
+                    quantities,
+                    inputs: columns
+                        .iter()
+                        .map(|(c, l)| input(format!("m{i}_{c}"), c, l))
+                        .collect(),
+                })
                 .collect(),
         })
         .collect();
@@ -200,6 +273,7 @@ async fn form_page(
         nav,
         csrf: user.csrf_token.clone(),
         galaxies,
+        galaxy: get("galaxy"),
         galaxy_error: errors.get("galaxy").cloned(),
         galaxy_inputs,
         look_alike: errors.get(intake::CONFIRM_COLUMN).cloned(),
@@ -208,6 +282,7 @@ async fn form_page(
         n_rows,
         can_add_row: n_rows < MAX_FORM_ROWS,
         note: get("note"),
+        note_error: errors.get("note").cloned(),
         form_error,
         request_key: fields
             .get("request_key")
@@ -234,6 +309,7 @@ pub(crate) async fn new_submission(
 pub(crate) async fn create_submission(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
+    Extension(ctx): Extension<AuthContext>,
     nav: Nav,
     Form(pairs): Form<Vec<(String, String)>>,
 ) -> AppResult<Response> {
@@ -279,7 +355,20 @@ pub(crate) async fn create_submission(
     .await;
     match created {
         // A replay (the same form posted twice) lands on the same submission.
-        Ok(c) => Ok(Redirect::to(&format!("/submissions/{}", c.submission_id)).into_response()),
+        Ok(c) => {
+            let mut response =
+                Redirect::to(&format!("/submissions/{}", c.submission_id)).into_response();
+            response.headers_mut().append(
+                axum::http::header::SET_COOKIE,
+                set_cookie(
+                    flash_cookie_name(ctx.secure_cookies),
+                    &format!("saved-{}", c.submission_id),
+                    ctx.secure_cookies,
+                    Some(FLASH_MAX_AGE_S),
+                ),
+            );
+            Ok(response)
+        }
         Err(e) => refused_submission(&state, user, nav, fields, e).await,
     }
 }
@@ -315,11 +404,19 @@ struct FormReading {
 /// Read the submission form's cells through `catalog::intake` (rows left blank are skipped).
 async fn read_form(state: &AppState, fields: &Fields) -> AppResult<FormReading> {
     let get = |name: &str| fields.get(name).map_or("", |v| v.as_str());
-    let slug = get("galaxy").trim();
+    let typed = get("galaxy").trim();
+    let (slug, unknown_galaxy) = if typed.is_empty() {
+        (String::new(), None)
+    } else {
+        match resolve_galaxy(state, typed).await? {
+            Ok(slug) => (slug, None),
+            Err(message) => (typed.to_owned(), Some(message)),
+        }
+    };
     let galaxy = if slug.is_empty() {
         GalaxyCells::New(Box::new(|c| get(c)))
     } else {
-        GalaxyCells::Slug(slug)
+        GalaxyCells::Slug(&slug)
     };
     let rows: Vec<(usize, Box<Cells<'_>>)> = (0..rows_of(fields))
         .filter(|i| {
@@ -327,7 +424,18 @@ async fn read_form(state: &AppState, fields: &Fields) -> AppResult<FormReading> 
                 .iter()
                 .any(|c| !get(&format!("m{i}_{c}")).trim().is_empty())
         })
-        .map(|i| -> (usize, Box<Cells<'_>>) { (i, Box::new(move |c| get(&format!("m{i}_{c}")))) })
+        .map(|i| -> (usize, Box<Cells<'_>>) {
+            (
+                i,
+                Box::new(move |c| {
+                    if c == "method" {
+                        method_cell(&get, i)
+                    } else {
+                        get(&format!("m{i}_{c}"))
+                    }
+                }),
+            )
+        })
         .collect();
     let filled = !rows.is_empty();
     let cells = SubmissionCells {
@@ -335,16 +443,20 @@ async fn read_form(state: &AppState, fields: &Fields) -> AppResult<FormReading> 
         rows,
         note: get("note"),
     };
-    let (checked, errors) = match intake::check(&state.pool, &cells).await? {
+    let (mut checked, mut errors) = match intake::check(&state.pool, &cells).await? {
         Ok(c) => (Some(c), HashMap::new()),
         Err(faults) => (
             None,
             faults
                 .into_iter()
-                .map(|f| (form_field(f.cell), f.message))
-                .collect(),
+                .map(|f| (form_field(f.cell, fields), f.message))
+                .collect::<HashMap<_, _>>(),
         ),
     };
+    if let Some(message) = unknown_galaxy {
+        checked = None;
+        errors.insert("galaxy".to_owned(), message);
+    }
     let mut form_error = (!filled && errors.keys().all(|k| !k.starts_with('m')))
         .then(|| "Give at least one measurement: a quantity and its value.".to_owned());
     // A form always carries its key; a client posting without one gets a fresh key (no retry
@@ -367,15 +479,67 @@ async fn read_form(state: &AppState, fields: &Fields) -> AppResult<FormReading> 
     })
 }
 
-/// The form's name of an intake cell.
-fn form_field(cell: Cell) -> String {
+/// The form's name of an intake cell (the method: the list of the row's quantity).
+fn form_field(cell: Cell, fields: &Fields) -> String {
     match cell {
         Cell::Galaxy => "galaxy".to_owned(),
         Cell::NewGalaxy(column) => column.to_owned(),
         Cell::NewGalaxyConfirmed => intake::CONFIRM_COLUMN.to_owned(),
+        Cell::Measurement(row, "method") => {
+            let quantity = fields
+                .get(&format!("m{row}_quantity"))
+                .map_or("", |q| q.trim());
+            if quantity == "bulge_mass" {
+                format!("m{row}_method_bulge")
+            } else {
+                format!("m{row}_method_bh")
+            }
+        }
         Cell::Measurement(row, column) => format!("m{row}_{column}"),
         Cell::Note => "note".to_owned(),
     }
+}
+
+/// A row's `method` cell: the list of its quantity (`method_bh`, `method_bulge`); a posted
+/// `method` (a client writing the file columns) comes first.
+fn method_cell<'a>(get: &impl Fn(&str) -> &'a str, row: usize) -> &'a str {
+    let posted = get(&format!("m{row}_method"));
+    if !posted.trim().is_empty() {
+        return posted;
+    }
+    match get(&format!("m{row}_quantity")).trim() {
+        "bh_mass" => get(&format!("m{row}_method_bh")),
+        "bulge_mass" => get(&format!("m{row}_method_bulge")),
+        _ => "",
+    }
+}
+
+/// The slug of the galaxy typed in the picker: its slug, or its name (letter case and spaces
+/// aside). Anything else is the sentence naming it, with the name to type when one looks
+/// like it.
+async fn resolve_galaxy(state: &AppState, typed: &str) -> AppResult<Result<String, String>> {
+    let folded = |t: &str| {
+        t.split_whitespace()
+            .collect::<Vec<_>>()
+            .join(" ")
+            .to_lowercase()
+    };
+    let wanted = folded(typed);
+    let all = submissions::galaxy_names(&state.pool).await?;
+    if let Some((_, _, slug)) = all
+        .iter()
+        .find(|(_, name, slug)| slug == typed || folded(name) == wanted)
+    {
+        return Ok(Ok(slug.clone()));
+    }
+    let shown: String = typed.chars().take(60).collect();
+    let hint = match galaxies::look_alike(&state.pool, typed).await? {
+        Some(g) => format!("did you mean “{}”? Type", g.name),
+        None => "type".to_owned(),
+    };
+    Ok(Err(format!(
+        "No galaxy in the catalog is called “{shown}”: {hint} a name from the list that opens as you type, or empty this box to describe a new galaxy below."
+    )))
 }
 
 /// The form again when storing was refused: 409 when the form was sent before with other
@@ -420,33 +584,107 @@ async fn refused_submission(
     Ok((status, page).into_response())
 }
 
+/// A reviewer's decision on a submission, as its submitter reads it.
+pub(crate) struct DecisionView {
+    /// "accepted" or "rejected".
+    pub(crate) decision: String,
+    /// `decision-accepted` or `decision-rejected`.
+    pub(crate) class: &'static str,
+    /// ✓ or ✕ (hidden from screen readers: the word says it).
+    pub(crate) mark: &'static str,
+    pub(crate) reviewer: String,
+    pub(crate) note: String,
+    /// "2 Dec 2026, 14:05 UTC".
+    pub(crate) when: String,
+    /// The stored RFC 3339 time, for `<time datetime>`.
+    pub(crate) when_iso: String,
+}
+
+impl DecisionView {
+    pub(crate) fn new(r: &ReviewNote) -> Self {
+        let accepted = r.decision == "accepted";
+        Self {
+            decision: r.decision.clone(),
+            class: if accepted {
+                "decision-accepted"
+            } else {
+                "decision-rejected"
+            },
+            mark: if accepted { "✓" } else { "✕" },
+            reviewer: r.reviewer.clone(),
+            note: r.note.clone(),
+            when: readable_utc(&r.created_at),
+            when_iso: r.created_at.clone(),
+        }
+    }
+}
+
 /// A submission in a list.
 pub(crate) struct SummaryView {
     id: i64,
     galaxy_name: String,
     galaxy_slug: String,
     state: String,
+    /// "2 Dec 2026, 14:05 UTC".
     created_at: String,
+    /// The stored RFC 3339 time, for `<time datetime>`.
+    created_iso: String,
     n_measurements: i64,
+    /// "1 measurement", "3 measurements".
+    measurements_text: String,
     pending: bool,
+    /// The reviewers' decisions on it, newest first, each with its note.
+    decisions: Vec<DecisionView>,
 }
 
 impl SummaryView {
-    fn new(s: &SubmissionSummary) -> Self {
+    fn new(s: &SubmissionSummary, reviews: &[ReviewNote]) -> Self {
         Self {
             id: s.submission_id,
             galaxy_name: s.galaxy_name.clone(),
             galaxy_slug: s.galaxy_slug.clone(),
             state: s.state.clone(),
-            created_at: s
-                .created_at
-                .get(..16)
-                .unwrap_or(&s.created_at)
-                .replace('T', " "),
+            created_at: readable_utc(&s.created_at),
+            created_iso: s.created_at.clone(),
             n_measurements: s.n_measurements,
+            measurements_text: count(s.n_measurements, "measurement", "measurements"),
             pending: s.state == "pending",
+            decisions: reviews
+                .iter()
+                .filter(|r| r.submission_id == s.submission_id)
+                .map(DecisionView::new)
+                .collect(),
         }
     }
+}
+
+/// The flags a page reads after an action, to confirm it (`?withdrawn=N`, `?decided=N`). A flag only names a submission: the page says what happened to it from the
+/// catalog, and only to its submitter (or to the reviewer who decided), so an address cannot
+/// make a page claim something that did not happen.
+#[derive(Debug, Default, serde::Deserialize)]
+pub(crate) struct FlashQuery {
+    #[serde(default)]
+    pub(crate) withdrawn: Option<String>,
+    #[serde(default)]
+    pub(crate) decided: Option<String>,
+}
+
+/// The cookie that carries "this submission was just saved" from the form's redirect to the
+/// submission's page (read once, then cleared); the page confirms it only to the submitter.
+fn flash_cookie_name(secure: bool) -> &'static str {
+    if secure {
+        "__Host-ml_flash"
+    } else {
+        "ml_flash"
+    }
+}
+
+/// How long a confirmation waits to be shown, in seconds.
+const FLASH_MAX_AGE_S: i64 = 300;
+
+/// A flag's submission number, when it is one.
+pub(crate) fn flag_id(flag: Option<&String>) -> Option<i64> {
+    flag.and_then(|v| v.trim().parse().ok())
 }
 
 /// `/submissions`.
@@ -456,6 +694,8 @@ pub(crate) struct SubmissionsListPage {
     nav: Nav,
     csrf: String,
     submissions: Vec<SummaryView>,
+    /// "Submission 12 for … was withdrawn." after withdrawing.
+    flash: Option<String>,
 }
 
 /// The logged-in person's submissions, newest first.
@@ -463,13 +703,22 @@ pub(crate) async fn list_submissions(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     nav: Nav,
+    Query(flags): Query<FlashQuery>,
 ) -> AppResult<SubmissionsListPage> {
     let user = session_of(&principal)?;
     let list = submissions::list_for_account(&state.pool, user.account_id).await?;
+    let reviews = submissions::reviews_for_account(&state.pool, user.account_id).await?;
+    // Only a submission of this list that is withdrawn is confirmed as withdrawn.
+    let flash = flag_id(flags.withdrawn.as_ref()).and_then(|id| {
+        list.iter()
+            .find(|s| s.submission_id == id && s.state == "withdrawn")
+            .map(|s| format!("Submission {id} for {} was withdrawn.", s.galaxy_name))
+    });
     Ok(SubmissionsListPage {
         nav,
         csrf: user.csrf_token.clone(),
-        submissions: list.iter().map(SummaryView::new).collect(),
+        submissions: list.iter().map(|s| SummaryView::new(s, &reviews)).collect(),
+        flash,
     })
 }
 
@@ -488,7 +737,7 @@ pub(crate) async fn withdraw_submission(
     let user = session_of(&principal)?;
     let id = parse_id(&id)?;
     match submissions::withdraw(&state.pool, user.account_id, id).await {
-        Ok(()) => Ok(Redirect::to("/submissions")),
+        Ok(()) => Ok(Redirect::to(&format!("/submissions?withdrawn={id}"))),
         // Someone else's submission is as good as absent: its existence is not theirs to know.
         Err(SubmissionError::NotFound | SubmissionError::NotYours) => {
             Err(AppError::not_found(format!("Your submission number {id}")))
@@ -510,17 +759,7 @@ pub(crate) struct MeasurementView {
 impl MeasurementView {
     pub(crate) fn new(m: &Measurement) -> Self {
         let quantity = m.quantity.label();
-        let detail = [
-            m.method.as_str(),
-            m.sigma_definition.as_str(),
-            m.aperture.as_str(),
-            m.band.as_str(),
-        ]
-        .iter()
-        .filter(|t| !t.is_empty())
-        .copied()
-        .collect::<Vec<_>>()
-        .join(", ");
+        let detail = measurement_detail(&m.method, &m.sigma_definition, &m.aperture, &m.band);
         Self {
             quantity,
             value_text: m.value_text.clone(),
@@ -541,6 +780,8 @@ pub(crate) struct AssessmentView {
     pub(crate) rows: Vec<PlaceRow>,
     pub(crate) charts: Vec<PlaceChart>,
     pub(crate) soi: Option<String>,
+    /// Resolved, not resolved or unknown, as a badge beside [`Self::soi`].
+    pub(crate) soi_badge: Option<Badge>,
     pub(crate) mass_at_adopted: Option<String>,
     pub(crate) clashes: Vec<ClashView>,
 }
@@ -568,19 +809,28 @@ impl AssessmentView {
     /// The assessment formatted, without charts (the review queue).
     pub(crate) fn of(a: &Assessment) -> Self {
         let rows = a.placements.iter().map(super::place::row).collect();
-        let soi = a.sphere_of_influence.as_ref().map(|s| {
-            format!(
-                "r_infl = {} pc = {}″; resolution/θ = {} ({})",
+        // ratio = θ_infl / resolution (astro::influence; docs/methods.md): resolved when it
+        // reaches the threshold.
+        let soi = a.sphere_of_influence.as_ref().map(|s| match (s.ratio, s.resolution_arcsec) {
+            (Some(r), Some(res)) => format!(
+                "r_infl = {} pc = {}″; θ_infl / resolution = {}″ / {}″ = {} (resolved when ≥ {})",
                 significant(s.radius_pc, 3),
                 significant(s.theta_arcsec, 3),
-                s.ratio.map_or("—".into(), |r| significant(r, 2)),
-                match s.resolved {
-                    Some(true) => "resolved",
-                    Some(false) => "not resolved",
-                    None => "unknown: no resolution given",
-                }
-            )
+                significant(s.theta_arcsec, 3),
+                significant(res, 3),
+                significant(r, 2),
+                significant(s.threshold, 2),
+            ),
+            _ => format!(
+                "r_infl = {} pc = {}″; no resolution was given",
+                significant(s.radius_pc, 3),
+                significant(s.theta_arcsec, 3),
+            ),
         });
+        let soi_state = a
+            .sphere_of_influence
+            .as_ref()
+            .map(|s| soi_badge(s.resolved, "unknown (no resolution)"));
         let mass_at_adopted = a.mass_at_adopted.as_ref().map(|m| {
             format!(
                 "{} log10 M☉ at {} Mpc (as published: {}{})",
@@ -613,6 +863,7 @@ impl AssessmentView {
             rows,
             charts: Vec::new(),
             soi,
+            soi_badge: soi_state,
             mass_at_adopted,
             clashes,
         }
@@ -632,8 +883,11 @@ pub(crate) struct SubmissionPage {
     rows: Vec<PlaceRow>,
     charts: Vec<PlaceChart>,
     soi: Option<String>,
+    soi_badge: Option<Badge>,
     mass_at_adopted: Option<String>,
     clashes: Vec<ClashView>,
+    /// "Submission 12 for … was saved …" after submitting, to the submitter only.
+    flash: Option<String>,
 }
 
 /// One submission: its measurements and where its galaxy falls against each relation. The
@@ -642,8 +896,10 @@ pub(crate) async fn show_submission(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     nav: Nav,
+    Extension(ctx): Extension<AuthContext>,
+    headers: axum::http::HeaderMap,
     Path(id): Path<String>,
-) -> AppResult<SubmissionPage> {
+) -> AppResult<Response> {
     let user = session_of(&principal)?;
     let id = parse_id(&id)?;
     let summary = submissions::find(&state.pool, id).await?;
@@ -659,19 +915,38 @@ pub(crate) async fn show_submission(
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
     let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
     let a = AssessmentView::with_charts(&a).await?;
-    Ok(SubmissionPage {
+    let reviews = submissions::reviews_of_submission(&state.pool, id).await?;
+    let cookie = flash_cookie_name(ctx.secure_cookies);
+    let saved = read_cookie(&headers, cookie).is_some_and(|v| v == format!("saved-{id}"));
+    let flash = (own && saved).then(|| {
+        format!(
+            "Submission {id} for {} was saved; a reviewer will accept or reject it.",
+            summary.galaxy_name
+        )
+    });
+    let page = SubmissionPage {
         nav,
         csrf: user.csrf_token.clone(),
         own,
         note: summary.note.clone(),
-        summary: SummaryView::new(&summary),
+        summary: SummaryView::new(&summary, &reviews),
+        flash,
         measurements: measured.iter().map(MeasurementView::new).collect(),
         rows: a.rows,
         charts: a.charts,
         soi: a.soi,
+        soi_badge: a.soi_badge,
         mass_at_adopted: a.mass_at_adopted,
         clashes: a.clashes,
-    })
+    };
+    let mut response = page.into_response();
+    if saved {
+        response.headers_mut().append(
+            axum::http::header::SET_COOKIE,
+            set_cookie(cookie, "", ctx.secure_cookies, Some(0)),
+        );
+    }
+    Ok(response)
 }
 
 /// `/submissions/upload`.
@@ -825,8 +1100,16 @@ pub(crate) async fn upload(
         Ok(report) => {
             let mut page = upload_page(nav, user, String::new());
             page.done = Some(format!(
-                "Imported {} measurement(s) as {} pending submission(s) ({} new galaxies); {} row(s) already in the catalog were skipped.",
-                report.measurements, report.submissions, report.new_galaxies, report.skipped
+                "Imported {} as {} ({}); {} already in the catalog {} skipped.",
+                count(report.measurements, "measurement", "measurements"),
+                count(
+                    report.submissions,
+                    "pending submission",
+                    "pending submissions"
+                ),
+                count(report.new_galaxies, "new galaxy", "new galaxies"),
+                count(report.skipped, "row", "rows"),
+                if report.skipped == 1 { "was" } else { "were" },
             ));
             Ok(page.into_response())
         }

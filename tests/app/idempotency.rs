@@ -353,14 +353,22 @@ async fn a_file_uploaded_twice_adds_nothing_and_the_json_export_is_stamped() {
         .post_file("/submissions/upload", &[], "file", "tesk.csv", csv)
         .await;
     assert_eq!(r.status, 200, "{}", r.body);
-    assert!(r.body.contains("Imported 2 measurement(s)"), "{}", r.body);
+    assert!(
+        r.body
+            .contains("Imported 2 measurements as 1 pending submission (1 new galaxy)"),
+        "{}",
+        r.body
+    );
     assert_eq!(count(&app, "measurement").await, before + 2);
     let r = member
         .post_file("/submissions/upload", &[], "file", "tesk.csv", csv)
         .await;
     assert_eq!(r.status, 200);
-    assert!(r.body.contains("Imported 0 measurement(s)"), "{}", r.body);
-    assert!(r.body.contains("2 row(s) already in the catalog"));
+    assert!(r.body.contains("Imported 0 measurements"), "{}", r.body);
+    assert!(
+        r.body
+            .contains("2 rows already in the catalog were skipped")
+    );
     assert_eq!(count(&app, "measurement").await, before + 2);
     // A file without this session's anti-forgery token is refused, nothing written.
     let other = csv.replace("Tesk 1401", "Tesk 1402");
@@ -426,7 +434,7 @@ async fn a_null_cell_bare_log_mass_and_formula_band_are_named_with_what_to_send(
     assert!(optional.contains("leave the field out"), "{optional}");
     let mass = message_of("measurements[0].value");
     assert!(
-        mass.contains("log10 = 9.51") && mass.contains("`log10`"),
+        mass.contains("log10 = 9.51") && mass.contains("“log10”"),
         "{mass}"
     );
     let band = message_of("measurements[1].band");

@@ -571,3 +571,361 @@ async fn the_distance_error_widens_the_z_of_a_submission() {
         "z with the wide distance error {z1}, expected {expected_z1:.3} from {shown:?}"
     );
 }
+
+/// The body of the first element with this id, up to its closing tag's start.
+fn element<'a>(body: &'a str, id: &str) -> &'a str {
+    let at = body
+        .find(&format!("id=\"{id}\""))
+        .unwrap_or_else(|| panic!("no #{id} in {body}"));
+    &body[at..]
+}
+
+#[tokio::test]
+async fn the_submitter_reads_the_decision_its_note_reviewer_and_date() {
+    let app = spawn_demo_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    let r = member
+        .post(
+            "/submissions/new",
+            &new_galaxy_form("Tesk 921", "2e8 ± 0.3e8"),
+        )
+        .await;
+    let id = submission_id(&r.header("location"));
+    let mut reviewer = app.login_as(Role::Reviewer).await;
+    reviewer.get("/review").await;
+    let note = "the aperture is smaller than the seeing disc";
+    let r = reviewer
+        .post(&format!("/review/{id}/reject"), &[("note", note)])
+        .await;
+    assert_eq!(r.status, 303, "{}", r.body);
+    let (reviewer_name, stored_at): (String, String) = sqlx::query_as(
+        "select a.username, r.created_at from review r join account a using (account_id)
+          where r.submission_id = ?",
+    )
+    .bind(id)
+    .fetch_one(&app.pool)
+    .await
+    .unwrap();
+    for path in ["/submissions".to_owned(), format!("/submissions/{id}")] {
+        let page = member.get(&path).await;
+        assert_eq!(page.status, 200, "{path}");
+        assert!(page.body.contains(note), "{path}: {}", page.body);
+        assert!(page.body.contains(&reviewer_name), "{path}");
+        // The date for people, the stored time for machines.
+        assert!(
+            page.body
+                .contains(&format!("<time datetime=\"{stored_at}\">")),
+            "{path}: {}",
+            page.body
+        );
+        assert!(
+            !page.body.contains(&format!(">{stored_at}<")),
+            "{path}: a raw stored time is shown"
+        );
+        assert!(page.body.contains(" UTC</time>"), "{path}");
+        assert!(page.body.contains("rejected"), "{path}");
+    }
+}
+
+/// Submit a black-hole mass of `log_value` (± 0.1 dex) for an existing galaxy; returns the
+/// submission's number and its measurement's.
+async fn submit_log_mass(
+    app: &TestApp,
+    member: &mut crate::helpers::Browser,
+    slug: &str,
+    log_value: f64,
+) -> (i64, i64) {
+    let value = format!("log {log_value:.2} ± 0.1");
+    let r = member
+        .post(
+            "/submissions/new",
+            &[
+                ("galaxy", slug),
+                ("m0_quantity", "bh_mass"),
+                ("m0_value", value.as_str()),
+                ("m0_scale", "auto"),
+                ("m0_method", "stellar_dynamics"),
+            ],
+        )
+        .await;
+    assert_eq!(r.status, 303, "{}", r.body);
+    let id = submission_id(&r.header("location"));
+    let measurement: i64 =
+        sqlx::query_scalar("select measurement_id from measurement where submission_id = ?")
+            .bind(id)
+            .fetch_one(&app.pool)
+            .await
+            .unwrap();
+    (id, measurement)
+}
+
+#[tokio::test]
+async fn an_outlier_clash_preselects_keeping_the_adopted_value_and_says_why() {
+    let app = spawn_demo_app().await;
+    // A galaxy with an adopted mass and σ, so the mass places it against M–σ.
+    let (slug, log_mass): (String, f64) = sqlx::query_as(
+        "select g.slug, m.log_value from galaxy g
+           join adopted_value a on a.galaxy_id = g.galaxy_id and a.quantity = 'bh_mass'
+           join measurement m on m.measurement_id = a.measurement_id
+          where exists (select 1 from adopted_value s
+                         where s.galaxy_id = g.galaxy_id and s.quantity = 'sigma')
+            and m.log_value between 7.0 and 9.0
+       order by g.galaxy_id limit 1",
+    )
+    .fetch_one(&app.pool)
+    .await
+    .unwrap();
+    let mut member = app.login_as(Role::Member).await;
+    // Two dex above its adopted mass: far beyond 3σ of any relation's scatter.
+    let (outlier, outlier_m) = submit_log_mass(&app, &mut member, &slug, log_mass + 2.0).await;
+    // Its adopted mass again: consistent wherever the adopted one is.
+    let (same, same_m) = submit_log_mass(&app, &mut member, &slug, log_mass).await;
+    let mut reviewer = app.login_as(Role::Reviewer).await;
+    let queue = reviewer.get("/review").await.body;
+    let item = |id: i64| {
+        let start = element(&queue, &format!("review-{id}"));
+        start[..start.find("</section>").unwrap()].to_owned()
+    };
+    let outlier_item = item(outlier);
+    assert!(
+        outlier_item.contains("class=\"verdict v-outlier\""),
+        "{outlier_item}"
+    );
+    assert!(
+        outlier_item.contains(&format!("name=\"keep_{outlier_m}\" value=\"old\" checked")),
+        "{outlier_item}"
+    );
+    assert!(
+        !outlier_item.contains(&format!("name=\"keep_{outlier_m}\" value=\"new\" checked")),
+        "{outlier_item}"
+    );
+    assert!(
+        outlier_item.contains("keep the adopted value, because"),
+        "{outlier_item}"
+    );
+    let same_item = item(same);
+    assert!(
+        same_item.contains(&format!("name=\"keep_{same_m}\" value=\"new\" checked")),
+        "{same_item}"
+    );
+    assert!(!same_item.contains("because with the submitted values"));
+    // The buttons say which action is the main one and which destroys.
+    assert!(outlier_item.contains("<button type=\"submit\" class=\"primary\">Accept"));
+    assert!(outlier_item.contains("<button type=\"submit\" class=\"danger\">Reject"));
+}
+
+#[tokio::test]
+async fn each_action_is_confirmed_to_the_one_who_did_it_and_an_address_forges_nothing() {
+    let app = spawn_demo_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    let r = member
+        .post(
+            "/submissions/new",
+            &new_galaxy_form("Tesk 922", "2e8 ± 0.3e8"),
+        )
+        .await;
+    let location = r.header("location");
+    let id = submission_id(&location);
+    let page = member.get(&location).await.body;
+    assert!(
+        element(&page, "flash").contains(&format!("Submission {id} for Tesk 922 was saved")),
+        "{page}"
+    );
+    assert!(page.contains("<p class=\"flash\" role=\"status\""));
+    // Shown once.
+    let again = member.get(&location).await.body;
+    assert!(!again.contains("class=\"flash\""), "{again}");
+    // A pending submission is not confirmed as withdrawn by an address.
+    let list = member
+        .get(&format!("/submissions?withdrawn={id}"))
+        .await
+        .body;
+    assert!(!list.contains("class=\"flash\""), "{list}");
+    // Nor decided on, to a reviewer who did not decide.
+    let mut reviewer = app.login_as(Role::Reviewer).await;
+    let queue = reviewer.get(&format!("/review?decided={id}")).await.body;
+    assert!(!queue.contains("class=\"flash\""), "{queue}");
+    let r = reviewer
+        .post(&format!("/review/{id}/accept"), &[("note", "")])
+        .await;
+    assert_eq!(r.status, 303, "{}", r.body);
+    let queue = reviewer.get(&r.header("location")).await.body;
+    assert!(
+        element(&queue, "flash").contains("for Tesk 922 was accepted"),
+        "{queue}"
+    );
+    app.create_account("second-reviewer", Role::Reviewer).await;
+    let mut other = app.browser();
+    other
+        .login("second-reviewer", crate::helpers::TEST_PASSWORD)
+        .await;
+    let queue = other.get(&format!("/review?decided={id}")).await.body;
+    assert!(!queue.contains("class=\"flash\""), "{queue}");
+    // Withdrawing is confirmed on the list.
+    let r = member
+        .post(
+            "/submissions/new",
+            &new_galaxy_form("Tesk 923", "2e8 ± 0.3e8"),
+        )
+        .await;
+    let second = submission_id(&r.header("location"));
+    let r = member
+        .post(&format!("/submissions/{second}/withdraw"), &[])
+        .await;
+    assert_eq!(r.status, 303);
+    let list = member.get(&r.header("location")).await.body;
+    assert!(
+        element(&list, "flash")
+            .contains(&format!("Submission {second} for Tesk 923 was withdrawn")),
+        "{list}"
+    );
+}
+
+#[tokio::test]
+async fn measurement_details_show_words_not_codes() {
+    let app = spawn_demo_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    let r = member
+        .post(
+            "/submissions/new",
+            &new_galaxy_form("Tesk 924", "2e8 ± 0.3e8"),
+        )
+        .await;
+    let id = submission_id(&r.header("location"));
+    let page = member.get(&format!("/submissions/{id}")).await.body;
+    let table = element(&page, "measurements");
+    let table = &table[..table.find("</table>").unwrap()];
+    assert!(table.contains("σ_e within r_e"), "{table}");
+    assert!(table.contains("stellar dynamics"), "{table}");
+    assert!(
+        !table.contains("stellar_dynamics") && !table.contains("sigma_e"),
+        "{table}"
+    );
+    // θ_infl / resolution, worked out on the page.
+    assert!(page.contains("θ_infl / resolution"), "{page}");
+    assert!(!page.contains("resolution/θ"));
+}
+
+#[tokio::test]
+async fn the_form_asks_only_what_each_quantity_needs_and_resolves_typed_galaxy_names() {
+    let app = spawn_demo_app().await;
+    let mut member = app.login_as(Role::Member).await;
+    let form = member.get("/submissions/new").await.body;
+    // The picker is a text box with the catalog's names to choose from; a script file, no
+    // inline script.
+    assert!(
+        form.contains("name=\"galaxy\" list=\"galaxy-names\""),
+        "{form}"
+    );
+    assert!(form.contains("<datalist id=\"galaxy-names\">"));
+    assert!(form.contains("<script src=\"/static/submission.js\" defer></script>"));
+    assert!(
+        app.ok("/static/submission.js")
+            .await
+            .contains("for-quantity")
+    );
+    // One method list per quantity, each under a heading naming it.
+    let bh = element(&form, "f-m0_method_bh");
+    let bh = &bh[..bh.find("</select>").unwrap()];
+    assert!(
+        bh.contains("stellar dynamics") && !bh.contains("photometric"),
+        "{bh}"
+    );
+    let bulge = element(&form, "f-m0_method_bulge");
+    let bulge = &bulge[..bulge.find("</select>").unwrap()];
+    assert!(
+        bulge.contains("photometric") && !bulge.contains("maser"),
+        "{bulge}"
+    );
+    assert!(form.contains("<legend>Black-hole mass only</legend>"));
+    assert!(form.contains("data-quantities=\"sigma\""));
+    // A new galaxy's kinds are asked, not assumed.
+    for field in ["morphology", "bulge_kind", "centre_kind", "distance_method"] {
+        let select = element(&form, &format!("f-{field}"));
+        let first = &select[select.find("<option").unwrap()..];
+        assert!(
+            first.starts_with("<option value=\"\" selected>choose…</option>"),
+            "{field}: {}",
+            &first[..80.min(first.len())]
+        );
+    }
+    // "Check" opens the page at its result.
+    assert!(form.contains("formaction=\"/submissions/new#preview\""));
+
+    // A galaxy typed by its name (any letter case) is that galaxy.
+    let (name, slug): (String, String) =
+        sqlx::query_as("select name, slug from galaxy order by galaxy_id limit 1")
+            .fetch_one(&app.pool)
+            .await
+            .unwrap();
+    let typed = name.to_uppercase();
+    let r = member
+        .post(
+            "/submissions/new",
+            &[
+                ("galaxy", typed.as_str()),
+                ("m0_quantity", "bh_mass"),
+                ("m0_value", "2e8 ± 0.3e8"),
+                ("m0_scale", "auto"),
+                ("m0_method_bh", "gas_dynamics"),
+            ],
+        )
+        .await;
+    assert_eq!(r.status, 303, "{}", r.body);
+    let id = submission_id(&r.header("location"));
+    let (stored_slug, method): (String, String) = sqlx::query_as(
+        "select g.slug, m.method from measurement m join galaxy g using (galaxy_id)
+          where m.submission_id = ?",
+    )
+    .bind(id)
+    .fetch_one(&app.pool)
+    .await
+    .unwrap();
+    assert_eq!(
+        (stored_slug.as_str(), method.as_str()),
+        (slug.as_str(), "gas_dynamics")
+    );
+
+    // A name not in the catalog is named beside the picker, and everything typed stays.
+    let before = count(&app, "submission").await;
+    let r = member
+        .post(
+            "/submissions/new",
+            &[
+                ("galaxy", "Nowhere 12345"),
+                ("m0_quantity", "sigma"),
+                ("m0_value", "185 ± 9"),
+                ("m0_sigma_definition", "sigma_e"),
+                ("m0_aperture", "r_e"),
+                ("m0_reference", "Invented et al. 2034"),
+                ("note", "kept as typed"),
+            ],
+        )
+        .await;
+    assert_eq!(r.status, 400, "{}", r.body);
+    let error = element(&r.body, "e-galaxy");
+    assert!(
+        error.contains("No galaxy in the catalog is called “Nowhere 12345”"),
+        "{error}"
+    );
+    assert!(r.body.contains("aria-describedby=\"e-galaxy\""));
+    for kept in [
+        "value=\"Nowhere 12345\"",
+        "value=\"185 ± 9\"",
+        "value=\"r_e\"",
+        "value=\"Invented et al. 2034\"",
+        ">kept as typed</textarea>",
+        "<option value=\"sigma_e\" selected>",
+    ] {
+        assert!(r.body.contains(kept), "{kept} kept: {}", r.body);
+    }
+    assert_eq!(count(&app, "submission").await, before, "nothing stored");
+    // A new galaxy whose kinds were not chosen: each is named, nothing stored.
+    let mut fields = new_galaxy_form("Tesk 925", "2e8 ± 0.3e8");
+    fields.retain(|(k, _)| *k != "morphology");
+    let r = member.post("/submissions/new", &fields).await;
+    assert_eq!(r.status, 400, "{}", r.body);
+    assert!(r.body.contains("id=\"e-morphology\""), "{}", r.body);
+    assert!(r.body.contains("value=\"Tesk 925\""));
+    assert_eq!(count(&app, "submission").await, before, "nothing stored");
+}

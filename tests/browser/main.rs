@@ -15,6 +15,7 @@ mod csv_upload;
 mod phone;
 mod place_link;
 mod review_accept;
+mod review_keyboard;
 mod review_reject;
 mod submit_outlier;
 mod tour;

@@ -40,17 +40,34 @@ async fn a_reviewer_accepts_a_submission_and_the_relation_page_shows_the_new_ver
             })
             .await;
 
-        // Accept with the keyboard alone (the clash with the adopted mass: adopt the new one,
-        // the form's default).
+        // The clash with the adopted mass: the new mass makes the galaxy an outlier, so the
+        // form preselects keeping the adopted one and says why; the reviewer adopts the new one.
         reviewer.open("/review", "queue").await;
         let item = format!("#review-{id}");
+        let accept_form = reviewer
+            .text(&format!("{item} form[action$='/accept']"))
+            .await;
         assert!(
-            reviewer
-                .text(&format!("{item} form[action$='/accept']"))
-                .await
-                .contains("adopt the submitted value"),
-            "the clash with the adopted mass is offered"
+            accept_form.contains("adopt the submitted value")
+                && accept_form.contains("keep the adopted value, because"),
+            "the clash with the adopted mass is offered, with the reason for the preselection: {accept_form}"
         );
+        assert_eq!(
+            reviewer
+                .script(&format!(
+                    "return document.querySelector(\"{item} input[type=radio][value=old]\").checked;"
+                ))
+                .await,
+            serde_json::Value::Bool(true),
+            "keeping the adopted value is preselected on an outlier"
+        );
+        reviewer
+            .element(&format!("{item} input[type=radio][value=new]"))
+            .await
+            .click()
+            .await
+            .expect("the reviewer chooses to adopt the new mass");
+        // Then the note and Enter with the keyboard alone.
         reviewer
             .tab_and_type(
                 &format!("{item} form[action$='/accept'] input[name=note]"),
@@ -61,6 +78,13 @@ async fn a_reviewer_accepts_a_submission_and_the_relation_page_shows_the_new_ver
             .navigating(reviewer.press(thirtyfour::Key::Enter))
             .await;
         reviewer.check("queue-after-accept").await;
+        assert!(
+            reviewer
+                .text("p.flash[role=status]")
+                .await
+                .contains(&format!("Submission {id}")),
+            "the decision is confirmed"
+        );
         assert_eq!(
             reviewer.count(&item).await,
             0,

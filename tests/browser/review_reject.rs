@@ -1,6 +1,6 @@
 //! Journey 2: a reviewer logs in, finds the far-off submission at the top of the review queue
-//! with its influence on the fit, rejects it with a note; the member sees the note on the
-//! galaxy page.
+//! with its influence on the fit, rejects it with a note; the member reads the note on the
+//! galaxy page, on their list of submissions and on the submission's page.
 
 use massline::auth::Role;
 
@@ -115,6 +115,11 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             .navigating(reviewer.press(thirtyfour::Key::Enter))
             .await;
         reviewer.check("queue-after-reject").await;
+        let flash = reviewer.text("p.flash[role=status]").await;
+        assert!(
+            flash.contains(&format!("Submission {id}")) && flash.contains("was rejected"),
+            "the rejection is confirmed: {flash}"
+        );
         assert_eq!(
             reviewer.count(&item).await,
             0,
@@ -135,10 +140,33 @@ async fn a_reviewer_rejects_the_far_off_submission_at_the_top_of_the_queue_and_t
             note,
             "the note is shown exactly as typed"
         );
+        // And on their own submission pages, with who decided and when.
+        member.open("/submissions", "my-submissions-rejected").await;
+        let row = member.text(&format!("#submission-{id}")).await;
+        assert!(row.contains("rejected"), "the list says rejected: {row}");
+        assert_eq!(
+            member.text(&format!("#submission-{id} .review-note")).await,
+            note,
+            "the list shows the reviewer's note exactly as typed"
+        );
+        assert!(
+            row.contains("rhea") && row.contains(" UTC"),
+            "with the reviewer and a readable date: {row}"
+        );
         member
             .open(&format!("/submissions/{id}"), "submission-rejected")
             .await;
         assert_eq!(member.text("#submission-state").await, "rejected");
+        assert_eq!(
+            member.text("#decisions .review-note").await,
+            note,
+            "the submission page shows the reviewer's note exactly as typed"
+        );
+        let decision = member.text("#decisions").await;
+        assert!(
+            decision.contains("rhea") && decision.contains(" UTC"),
+            "with the reviewer and a readable date: {decision}"
+        );
     })
     .await;
 }

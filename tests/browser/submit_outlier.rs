@@ -86,6 +86,11 @@ async fn a_member_submits_a_mass_far_off_m_sigma_and_sees_z_verdict_and_chart_be
             .click_button("#submission-form", "Submit for review")
             .await;
         member.check("submission-sent").await;
+        let flash = member.text("p.flash[role=status]").await;
+        assert!(
+            flash.contains("was saved"),
+            "the submission is confirmed: {flash}"
+        );
         let url = member.url().await;
         let id: i64 = url
             .rsplit('/')

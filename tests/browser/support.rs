@@ -611,6 +611,18 @@ impl Page {
             .expect("a key press works");
     }
 
+    /// Press keys together (a chord such as Shift+Tab), then release them.
+    pub(crate) async fn driver_keys(&self, keys: &[Key]) {
+        let mut chain = self.driver.action_chain();
+        for key in keys {
+            chain = chain.key_down(key.clone());
+        }
+        for key in keys.iter().rev() {
+            chain = chain.key_up(key.clone());
+        }
+        chain.perform().await.expect("a chord of keys works");
+    }
+
     /// Tab to a field, select what it holds and type over it.
     pub(crate) async fn tab_and_type(&self, css: &str, text: &str) {
         self.tab_to(css).await;
@@ -731,10 +743,11 @@ impl Page {
     /// Fill `/submissions/new` with one black-hole mass for an existing galaxy (the page must
     /// be open), leaving the sending to the caller.
     pub(crate) async fn fill_mass_submission(&self, s: &MassSubmission<'_>) {
-        self.fill("select[name=galaxy]", &s.galaxy.slug).await;
+        // The picker takes the galaxy's name as typed (its list suggests names).
+        self.fill("input[name=galaxy]", &s.galaxy.name).await;
         self.fill("select[name=m0_quantity]", "bh_mass").await;
         self.fill("input[name=m0_value]", s.value).await;
-        self.fill("select[name=m0_method]", "stellar_dynamics")
+        self.fill("select[name=m0_method_bh]", "stellar_dynamics")
             .await;
         self.fill(
             "input[name=m0_source_distance_mpc]",

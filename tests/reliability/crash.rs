@@ -149,7 +149,7 @@ async fn one_trial(csv: &str, kill_after: Option<Duration>) -> (Outcome, Duratio
     if let Ok((status, body)) = &upload_status {
         assert_eq!(*status, 200, "the upload answered {status}:\n{body}");
         assert!(
-            body.contains(&format!("Imported {BATCH_ROWS} measurement(s)")),
+            body.contains(&format!("Imported {BATCH_ROWS} measurements")),
             "{body}"
         );
     }

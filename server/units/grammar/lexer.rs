@@ -217,10 +217,26 @@ fn exponent_len(chars: &[(usize, char)]) -> usize {
 
 fn comma_error(quantity: Quantity, fragment: &str) -> EntryError {
     let without = fragment.replace(',', "");
+    let with_point = fragment.replace(',', ".");
+    // One comma can be a thousands separator only when exactly three digits follow it and no
+    // exponent does ("1,200"); then both readings are offered. Otherwise ("2,1e8", "0,5") it
+    // is a decimal comma, and removing it would give a value ten or more times too large.
     let suggestion = if fragment.matches(',').count() == 1 && !fragment.contains('.') {
-        format!("`{without}` or `{}`", fragment.replace(',', "."))
+        let after: String = fragment
+            .split(',')
+            .nth(1)
+            .unwrap_or("")
+            .chars()
+            .take_while(char::is_ascii_digit)
+            .collect();
+        let rest = &fragment[fragment.find(',').map_or(0, |i| i + 1) + after.len()..];
+        if after.len() == 3 && rest.is_empty() {
+            format!("“{without}” or “{with_point}”")
+        } else {
+            format!("“{with_point}”")
+        }
     } else {
-        format!("`{without}`")
+        format!("“{without}”")
     };
     EntryError::CommaInNumber {
         quantity,
