@@ -97,6 +97,12 @@ fn routes() -> Routes {
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
+        .add(
+            Method::GET,
+            "/static/runs.js",
+            Public,
+            get(relations::runs_script),
+        )
         .add(Method::GET, "/login", Public, get(login::show_login))
         .add(Method::POST, "/login", Public, post(login::log_in))
         .add(Method::POST, "/logout", Session, post(login::log_out))
