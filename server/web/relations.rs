@@ -909,7 +909,7 @@ impl RunParamView {
             3
         };
         RunParamView {
-            name: param_symbol(p.name).0,
+            name: p.name,
             median: fixed(p.median, decimals),
             interval68: format!("{} to {}", fixed(p.p16, decimals), fixed(p.p84, decimals)),
             interval95: format!(
