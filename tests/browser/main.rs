@@ -13,6 +13,7 @@ mod checks;
 mod api_token;
 mod csv_upload;
 mod place_link;
+mod relation_form;
 mod review_accept;
 mod review_reject;
 mod submit_outlier;
