@@ -33,6 +33,22 @@ async fn a_member_fits_with_fitexy_types_the_pivot_in_km_s_and_is_told_of_a_bad_
         assert!(note.contains(&count), "the notice counts the limits: {note}");
         assert_eq!(member.text("#n-limits").await.trim(), "0");
 
+        // On a 390 px phone the covariance (each pair a row) is no wider than the screen.
+        member
+            .driver
+            .set_window_rect(0, 0, 390, 844)
+            .await
+            .expect("the window can be narrowed");
+        let fits = member
+            .script("const t = document.getElementById('covariance'); return t.getBoundingClientRect().right <= document.documentElement.clientWidth + 0.5 && t.scrollWidth <= t.clientWidth + 1;")
+            .await;
+        assert_eq!(fits, true, "the covariance fits a 390 px screen");
+        member
+            .driver
+            .set_window_rect(0, 0, 1280, 900)
+            .await
+            .expect("the window can be widened again");
+
         // The pivot typed in km/s, with the keyboard alone: read and echoed.
         member.tab_and_type("input[name=pivot]", "200 km/s").await;
         member.navigating(member.press(thirtyfour::Key::Enter)).await;
