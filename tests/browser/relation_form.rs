@@ -1,6 +1,7 @@
 //! Journey 8: a group member fits M–σ with FITEXY from the relation page's form and is told
 //! how many upper limits were left out, types the pivot in km/s and sees how it was read, then
-//! types a pivot that cannot be read and gets the message beside the field with the form kept.
+//! types a pivot that cannot be read and gets the message beside the field with the form kept,
+//! then starts a bootstrap run and watches the page follow it to its result.
 
 use massline::auth::Role;
 
@@ -76,6 +77,39 @@ async fn a_member_fits_with_fitexy_types_the_pivot_in_km_s_and_is_told_of_a_bad_
             "the other choices are kept"
         );
         assert_eq!(member.count("form.filters").await, 1);
+
+        // A bootstrap run started from the page: its progress follows by itself
+        // (static/runs.js) and the page lands on the stored result without anyone reloading.
+        member
+            .open("/relations/m_sigma?replicates=400", "m_sigma-before-run")
+            .await;
+        // (The charts' point links put the button beyond the Tab key's reach: clicked.)
+        let start = member.element("#run-bootstrap button[type=submit]").await;
+        member
+            .navigating(async {
+                start.click().await.expect("the button can be clicked");
+            })
+            .await;
+        member.check("m_sigma-run-started").await;
+        assert_eq!(
+            member.count("[data-run-id][aria-live=polite]").await,
+            1,
+            "the page shows the run waiting or running"
+        );
+        let mut stored = false;
+        for _ in 0..600 {
+            let shown = member
+                .script("return document.querySelector('#run-bootstrap table') !== null;")
+                .await;
+            if shown.as_bool() == Some(true) {
+                stored = true;
+                break;
+            }
+            tokio::time::sleep(std::time::Duration::from_millis(200)).await;
+        }
+        assert!(stored, "the run's result was not shown within 2 minutes");
+        member.check("m_sigma-run-stored").await;
+        assert!(member.text("#run-bootstrap").await.contains("Stored"));
     })
     .await;
 }
