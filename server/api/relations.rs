@@ -127,9 +127,12 @@ pub enum SigmaWord {
 #[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum LimitsWord {
-    /// Upper limits enter the fit (default).
+    /// As the estimator allows (default): included for `structural` and `conditional`, left
+    /// out (and counted in `limits_left_out`) for FITEXY and BCES, which cannot use them.
+    Auto,
+    /// Upper limits enter the fit; FITEXY and BCES then refuse the sample (`problem`).
     Include,
-    /// Detections only (FITEXY and BCES need this).
+    /// Detections only.
     Exclude,
 }
 
@@ -151,7 +154,7 @@ pub struct FitQuery {
     pub soi: Option<SoiWord>,
     /// Which σ the relations using σ take (default `sigma_e`; never mixed).
     pub sigma_definition: Option<SigmaWord>,
-    /// Whether upper limits enter (default `include`).
+    /// Whether upper limits enter (default `auto`: as the estimator allows).
     pub limits: Option<LimitsWord>,
     /// Pivot x0, log10 in the relation's x unit (default: log10 200 km/s for σ, 11 for masses
     /// and luminosities).
@@ -256,7 +259,7 @@ pub async fn current_fit(
         version,
         relation,
         settings.method,
-        &settings.filter,
+        &settings.filter.for_method(settings.method),
         pivots.0,
         pivots.1,
     );
@@ -447,7 +450,10 @@ pub struct FilterAnswer {
     pub soi: String,
     /// `sigma_e` or `sigma_c`.
     pub sigma_definition: String,
-    /// `include` or `exclude`.
+    /// `include` or `exclude`: as used by the estimator. Without `limits` in the query, limits
+    /// are included for the likelihood estimators and left out for FITEXY and BCES, which
+    /// cannot use them (`limits_left_out` says how many); `limits=include` with those
+    /// estimators is answered with the estimator's refusal in `problem`.
     pub limits: String,
 }
 
@@ -468,7 +474,7 @@ impl FilterAnswer {
                 SigmaChoice::Central => "sigma_c",
             }
             .to_owned(),
-            limits: if f.exclude_limits {
+            limits: if f.limits == crate::relations::LimitsChoice::Exclude {
                 "exclude"
             } else {
                 "include"
@@ -512,6 +518,11 @@ pub struct RelationFit {
     pub left_out_sigma_definition: usize,
     /// Galaxies left out because they lack a value the relation needs.
     pub left_out_missing: usize,
+    /// Upper limits of the selection left out of the fit (asked with `limits=exclude`, or
+    /// because the estimator cannot use them).
+    pub limits_left_out: usize,
+    /// How many upper limits were left out and why, in one sentence; null when none were.
+    pub limits_notice: Option<String>,
     /// The fit, or null when none could be made (`problem` says why).
     pub fit: Option<FitParameters>,
     /// Why there is no fit (too few objects, limits with an estimator that cannot use them…).
@@ -530,7 +541,7 @@ impl RelationFit {
             x2_label: relation.x2_label(),
             y_label: relation.y_label(),
             estimator: settings.method.as_str().to_owned(),
-            sample_filter: FilterAnswer::of(&settings.filter),
+            sample_filter: FilterAnswer::of(&settings.filter.for_method(settings.method)),
             pivot_log: pivot,
             pivot2_log: plane.then_some(pivot2),
             catalog_version: outcome.key.catalog_version,
@@ -539,6 +550,10 @@ impl RelationFit {
             n_limits: outcome.sample.n_limits(),
             left_out_sigma_definition: outcome.sample.left_out_sigma_definition,
             left_out_missing: outcome.sample.left_out_missing,
+            limits_left_out: outcome.sample.left_out_limits,
+            limits_notice: settings
+                .limits_left_out(&outcome.sample)
+                .map(|l| l.sentence),
             fit: outcome.fit.as_ref().ok().map(FitParameters::of),
             problem: outcome.fit.as_ref().err().map(ToString::to_string),
         }
@@ -704,7 +719,7 @@ mod tests {
         ]))
         .unwrap();
         assert_eq!(s.method.as_str(), "bces-bisector");
-        assert!(s.filter.exclude_limits);
+        assert_eq!(s.filter.limits, crate::relations::LimitsChoice::Exclude);
         assert_eq!(s.pivots(&Relation::MSigma).0.to_bits(), 2.2f64.to_bits());
         let err = read_fit_choice(&pairs(&[
             ("method", "ols"),

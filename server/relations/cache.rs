@@ -51,7 +51,9 @@ fn keep_objects_below(map: &mut HashMap<FitKey, Arc<FitOutcome>>, cap: usize, ad
     if held(map) <= cap {
         return;
     }
-    let default_filter = SampleFilter::default().canonical();
+    let default_filter = SampleFilter::default()
+        .for_method(Method::Structural)
+        .canonical();
     map.retain(|k, _| k.method == Method::Structural.as_str() && k.filter == default_filter);
     if held(map) > cap {
         map.clear();
@@ -551,6 +553,8 @@ pub async fn fitted_within(
     wait: Option<Duration>,
 ) -> anyhow::Result<Result<Arc<FitOutcome>, FitKey>> {
     let snapshot = cache.rows(pool).await?;
+    // Limits left out for an estimator that cannot use them: the same fit as asking for it.
+    let filter = &filter.for_method(method);
     let key = FitKey::new(
         snapshot.version,
         relation,
@@ -735,9 +739,9 @@ mod tests {
 
     #[test]
     fn held_samples_stay_under_the_object_cap_keeping_the_default_fits() {
-        let filter = SampleFilter::default();
+        let filter = SampleFilter::default().for_method(Method::Structural);
         let other = SampleFilter {
-            exclude_limits: true,
+            limits: super::super::LimitsChoice::Exclude,
             ..SampleFilter::default()
         };
         let sized = |key: FitKey, n: usize| {

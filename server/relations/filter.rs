@@ -2,9 +2,10 @@
 //! estimator and the pivots), read from query parameters. The relation pages and the API's
 //! relation endpoint read the same parameters here.
 
-use super::Relation;
+use super::{Relation, Sample};
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology, SigmaDefinition};
 use crate::fit::Method;
+use crate::units::{Quantity, Scale, parse_entry};
 
 /// Sphere-of-influence selection.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
@@ -39,6 +40,38 @@ impl SigmaChoice {
     }
 }
 
+/// Whether upper limits on the black-hole mass enter a fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub enum LimitsChoice {
+    /// As the estimator allows (the default): included for the likelihood estimators, left
+    /// out, and counted, for FITEXY and BCES, which take no censored points
+    /// (docs/methods.md §2.2).
+    #[default]
+    Auto,
+    /// Included whatever the estimator: FITEXY and BCES then refuse the sample.
+    Include,
+    /// Left out whatever the estimator.
+    Exclude,
+}
+
+impl LimitsChoice {
+    /// The query word: `auto`, `include` or `exclude`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            LimitsChoice::Auto => "auto",
+            LimitsChoice::Include => "include",
+            LimitsChoice::Exclude => "exclude",
+        }
+    }
+}
+
+/// Whether an estimator can use upper limits: the likelihood estimators can (a limit enters as
+/// the probability of lying below it); FITEXY (Press et al. 1992; Tremaine et al. 2002) and BCES
+/// (Akritas & Bershady 1996) are built on detected values only (docs/methods.md §2.2).
+pub fn takes_limits(method: Method) -> bool {
+    matches!(method, Method::Structural | Method::Conditional)
+}
+
 /// A selection of galaxies for a fit. `None` means any.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
 pub struct SampleFilter {
@@ -55,7 +88,7 @@ pub struct SampleFilter {
     /// σ definition (relations using σ only).
     pub sigma: SigmaChoice,
     /// Whether upper limits on the black-hole mass enter (FITEXY and BCES cannot use them).
-    pub exclude_limits: bool,
+    pub limits: LimitsChoice,
 }
 
 /// The query parameters [`SampleFilter::set`] reads.
@@ -111,11 +144,14 @@ impl SampleFilter {
                 };
             }
             "limits" => {
-                self.exclude_limits = match value {
-                    "" | "include" => false,
-                    "exclude" => true,
+                self.limits = match value {
+                    "" | "auto" => LimitsChoice::Auto,
+                    "include" => LimitsChoice::Include,
+                    "exclude" => LimitsChoice::Exclude,
                     other => {
-                        return Err(named(format!("'{other}' is not one of: include, exclude")));
+                        return Err(named(format!(
+                            "'{other}' is not one of: auto, include, exclude"
+                        )));
                     }
                 };
             }
@@ -163,12 +199,32 @@ impl SampleFilter {
                 SoiChoice::Resolved => "resolved",
             },
             self.sigma.definition().as_str(),
-            if self.exclude_limits {
-                "exclude"
-            } else {
-                "include"
-            },
+            self.limits.as_str(),
         )
+    }
+
+    /// Whether upper limits are left out of a fit by `method`: when asked, or automatically
+    /// when the estimator cannot use them ([`takes_limits`]).
+    pub fn excludes_limits(&self, method: Method) -> bool {
+        match self.limits {
+            LimitsChoice::Include => false,
+            LimitsChoice::Exclude => true,
+            LimitsChoice::Auto => !takes_limits(method),
+        }
+    }
+
+    /// The filter a fit by `method` uses: [`LimitsChoice::Auto`] made definite (include or
+    /// exclude), so that the automatic exclusion and an explicit one share one fit and one key.
+    #[must_use]
+    pub fn for_method(&self, method: Method) -> SampleFilter {
+        SampleFilter {
+            limits: if self.excludes_limits(method) {
+                LimitsChoice::Exclude
+            } else {
+                LimitsChoice::Include
+            },
+            ..*self
+        }
     }
 
     /// The non-default parameters as (key, value) pairs, for links.
@@ -192,8 +248,8 @@ impl SampleFilter {
         if self.sigma == SigmaChoice::Central {
             out.push(("sigma_definition", "sigma_c"));
         }
-        if self.exclude_limits {
-            out.push(("limits", "exclude"));
+        if self.limits != LimitsChoice::Auto {
+            out.push(("limits", self.limits.as_str()));
         }
         out
     }
@@ -248,7 +304,125 @@ pub fn read_pivot(value: &str) -> Result<f64, String> {
     }
 }
 
+/// Upper limits left out of a fit, and why ([`FitChoice::limits_left_out`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct LimitsLeftOut {
+    /// How many upper limits of the selection were left out.
+    pub count: usize,
+    /// Whether they were left out because the estimator cannot use them (rather than asked).
+    pub automatic: bool,
+    /// One sentence saying how many and why, for every door.
+    pub sentence: String,
+}
+
+/// "1 upper limit", "2 upper limits".
+fn upper_limits(n: usize) -> String {
+    if n == 1 {
+        "1 upper limit".to_owned()
+    } else {
+        format!("{n} upper limits")
+    }
+}
+
+/// A pivot read from what was typed: its log10 value and, when it was typed in the linear unit,
+/// how it was read.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TypedPivot {
+    /// log10 in the quantity's unit.
+    pub log_value: f64,
+    /// "200 km/s, log10 = 2.3010" when typed in the linear unit (or with `log`); None for a
+    /// bare log10 number.
+    pub read_as: Option<String>,
+}
+
+/// Reads a pivot as a person types it for `quantity` (σ in km/s, masses in M☉, luminosities in
+/// L☉): a bare number inside the quantity's plausible log10 range (`Quantity::accepted_range`,
+/// e.g. 1.30–2.78 for σ) is a log10 value, as links and the API write it; anything else goes
+/// through the unit grammar (`units::parse_entry` on the automatic scale), so `200`,
+/// `200 km/s`, `1e11 Msun` and `log 2.3` are read, and echoed as read.
+///
+/// # Errors
+/// One sentence (without a full stop) giving both accepted forms with an example.
+pub fn read_pivot_typed(value: &str, quantity: Quantity) -> Result<TypedPivot, String> {
+    let text = value.trim();
+    let (lo, hi) = quantity.accepted_range();
+    if let Ok(v) = text.parse::<f64>()
+        && v.is_finite()
+        && (lo..=hi).contains(&v)
+    {
+        return Ok(TypedPivot {
+            log_value: v,
+            read_as: None,
+        });
+    }
+    let unit = quantity.unit_label();
+    let example = match quantity {
+        Quantity::VelocityDispersion => "200 km/s",
+        Quantity::BulgeLuminosity => "1e10 Lsun",
+        _ => "1e11 Msun",
+    };
+    let refused = |why: String| {
+        format!(
+            "'{}' is neither a log10 value from {lo:.2} to {hi:.2} nor a value in {unit} such as '{example}' ({why})",
+            text.chars().take(40).collect::<String>(),
+        )
+    };
+    let entry = parse_entry(text, quantity, Scale::Auto)
+        .map_err(|e| refused(e.to_string().trim_end_matches('.').to_owned()))?;
+    if entry.upper_limit || entry.errors_given {
+        return Err(refused("a pivot takes no limit and no error".to_owned()));
+    }
+    Ok(TypedPivot {
+        log_value: entry.log_value,
+        read_as: Some(format!(
+            "{} {unit}, log10 = {:.4}",
+            linear_text(entry.log_value),
+            entry.log_value
+        )),
+    })
+}
+
+/// 10^log_value for an echo: "200", "1.5×10^11" (four significant digits at most).
+fn linear_text(log_value: f64) -> String {
+    let exponent = log_value.floor();
+    let mantissa = 10f64.powf(log_value - exponent);
+    let mantissa = (mantissa * 1_000.0).round() / 1_000.0;
+    if (0.0..4.0).contains(&exponent) {
+        let value = (10f64.powf(log_value) * 10.0).round() / 10.0;
+        format!("{value}")
+    } else {
+        format!("{mantissa}×10^{exponent}")
+    }
+}
+
 impl FitChoice {
+    /// The upper limits this choice leaves out of `sample` (built with
+    /// [`SampleFilter::for_method`]), with the sentence every door shows; None when none were.
+    pub fn limits_left_out(&self, sample: &Sample) -> Option<LimitsLeftOut> {
+        let count = sample.left_out_limits;
+        if count == 0 {
+            return None;
+        }
+        let automatic = self.filter.limits == LimitsChoice::Auto;
+        let sentence = if automatic {
+            let (name, source) = match self.method {
+                Method::Fitexy => ("modified FITEXY", "Press et al. 1992; Tremaine et al. 2002"),
+                _ => ("BCES", "Akritas & Bershady 1996"),
+            };
+            format!(
+                "{} left out: {name} takes no upper limits ({source}). Choose the structural or conditional estimator to fit them.",
+                upper_limits(count)
+            )
+        } else {
+            format!("{} left out, as asked.", upper_limits(count))
+        };
+        Some(LimitsLeftOut {
+            count,
+            automatic,
+            sentence,
+        })
+    }
+
     /// Reads one query parameter: a filter parameter, `method`, `pivot` or `pivot2`. Returns
     /// `Ok(false)` when `key` is none of them, `Ok(true)` when it was read; an empty value keeps
     /// the default.
@@ -363,7 +537,7 @@ mod tests {
         assert_eq!(SampleFilter::parse(&back).unwrap(), f);
         assert_eq!(
             SampleFilter::default().canonical(),
-            "morphology=any;bulge_kind=any;centre_kind=any;mass_method=any;soi=all;sigma_definition=sigma_e;limits=include"
+            "morphology=any;bulge_kind=any;centre_kind=any;mass_method=any;soi=all;sigma_definition=sigma_e;limits=auto"
         );
     }
 

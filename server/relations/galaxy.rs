@@ -153,8 +153,8 @@ pub async fn place_left_out(
         .into_iter()
         .filter(|b| Relation::valid_band(b))
         .collect();
-    let filter = SampleFilter::default();
     let method = Method::Structural;
+    let filter = SampleFilter::default().for_method(method);
     let mut placements = Vec::new();
     let (mut computing, mut approximate) = (Vec::new(), Vec::new());
     for relation in Relation::all(&bands) {

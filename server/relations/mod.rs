@@ -48,7 +48,8 @@ pub use defaults::{
 #[cfg(test)]
 pub(crate) use filter::pairs as test_pairs;
 pub use filter::{
-    FILTER_PARAMS, FIT_PARAMS, FitChoice, SampleFilter, SigmaChoice, SoiChoice, read_pivot,
+    FILTER_PARAMS, FIT_PARAMS, FitChoice, LimitsChoice, LimitsLeftOut, SampleFilter, SigmaChoice,
+    SoiChoice, TypedPivot, read_pivot, read_pivot_typed, takes_limits,
 };
 pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, fit_own_sample};
 pub use runs::{
@@ -224,6 +225,17 @@ impl Relation {
             Relation::MSigma | Relation::SigmaBulgePlane => "log10 km/s".to_owned(),
             Relation::MBulge => "log10 M☉".to_owned(),
             Relation::Luminosity(band) => format!("log10 L☉,{band}"),
+        }
+    }
+
+    /// What the first host property measures (its unit and plausible range: the pivot's).
+    pub fn x_quantity(&self) -> crate::units::Quantity {
+        match self {
+            Relation::MSigma | Relation::SigmaBulgePlane => {
+                crate::units::Quantity::VelocityDispersion
+            }
+            Relation::MBulge => crate::units::Quantity::BulgeMass,
+            Relation::Luminosity(_) => crate::units::Quantity::BulgeLuminosity,
         }
     }
 

@@ -29,7 +29,7 @@ use crate::catalog::relation_rows::{LuminosityRow, RelationRow};
 use crate::fit::Point;
 use crate::units::Quantity;
 
-use super::{Relation, SampleFilter, SoiChoice};
+use super::{LimitsChoice, Relation, SampleFilter, SoiChoice};
 
 /// How a stored measurement scales with distance (docs/methods.md §3.2): dynamical masses ∝ D,
 /// luminosities and photometric bulge masses ∝ D², dispersions and reverberation masses not at
@@ -135,6 +135,10 @@ pub struct Sample {
     pub left_out_sigma_definition: usize,
     /// Galaxies that matched the filter but lack a value the relation needs.
     pub left_out_missing: usize,
+    /// Upper limits that matched the filter and had every value but were left out
+    /// ([`LimitsChoice::Exclude`], asked or made so for an estimator that cannot use them:
+    /// `SampleFilter::for_method`).
+    pub left_out_limits: usize,
 }
 
 impl Sample {
@@ -195,8 +199,7 @@ pub fn build_sample(
                 .centre_kind
                 .is_none_or(|c| row.centre_kind == c.as_str())
             && filter.mass_method.is_none_or(|m| method == m.as_str())
-            && (filter.soi == SoiChoice::All || resolved == Some(true))
-            && !(filter.exclude_limits && row.mbh_upper_limit == Some(true));
+            && (filter.soi == SoiChoice::All || resolved == Some(true));
         if !tags_match {
             continue;
         }
@@ -272,6 +275,10 @@ pub fn build_sample(
             && row.sigma_definition.as_deref() != Some(filter.sigma.definition().as_str())
         {
             sample.left_out_sigma_definition += 1;
+            continue;
+        }
+        if upper_limit && filter.limits == LimitsChoice::Exclude {
+            sample.left_out_limits += 1;
             continue;
         }
         let mut point = if upper_limit {
@@ -497,7 +504,7 @@ mod tests {
         let mut r = row("Limit 1");
         r.mbh_upper_limit = Some(true);
         let detections_only = SampleFilter {
-            exclude_limits: true,
+            limits: LimitsChoice::Exclude,
             ..SampleFilter::default()
         };
         let s = build_sample(
@@ -508,6 +515,83 @@ mod tests {
             1.0,
         );
         assert_eq!((s.n_detections(), s.n_limits()), (1, 0));
+        assert_eq!(s.left_out_limits, 1);
+    }
+
+    /// Invented rows on M–σ: ten detections at σ = 150…285 km/s near log M = 8.3 + 4 (x − 2.3),
+    /// and two upper limits.
+    fn rows_with_limits() -> Vec<RelationRow> {
+        let mut rows: Vec<RelationRow> = (0..12)
+            .map(|i| {
+                let mut r = row(&format!("Object {i}"));
+                r.galaxy_id = i;
+                let x = (150.0 + 15.0 * i as f64).log10();
+                r.log_sigma = Some(x);
+                let wiggle = if i % 2 == 0 { 0.15 } else { -0.15 };
+                r.log_mbh = Some(8.3 + 4.0 * (x - 2.3) + wiggle);
+                r
+            })
+            .collect();
+        rows[3].mbh_upper_limit = Some(true);
+        rows[8].mbh_upper_limit = Some(true);
+        rows
+    }
+
+    #[test]
+    fn estimators_without_limits_leave_them_out_by_default_and_fit_the_rest() {
+        use crate::fit::{FitSpec, Method};
+        let rows = rows_with_limits();
+        let chosen = SampleFilter::default();
+        assert_eq!(chosen.limits, LimitsChoice::Auto);
+        for method in [
+            Method::Fitexy,
+            Method::Bces(crate::fit::BcesLine::YOnX),
+            Method::Bces(crate::fit::BcesLine::Orthogonal),
+        ] {
+            let filter = chosen.for_method(method);
+            assert_eq!(filter.limits, LimitsChoice::Exclude);
+            let s = build_sample(&rows, &[], &Relation::MSigma, &filter, 1.0);
+            assert_eq!(s.left_out_limits, 2, "{method:?}");
+            assert_eq!((s.n_detections(), s.n_limits()), (10, 0));
+            let fit = crate::fit::fit(&s.points, &FitSpec::new(method, 2.3));
+            assert!(fit.is_ok(), "{method:?}: {fit:?}");
+            let choice = crate::relations::FitChoice {
+                method,
+                ..Default::default()
+            };
+            let told = choice.limits_left_out(&s).expect("a notice");
+            assert!(told.automatic && told.count == 2);
+            assert!(
+                told.sentence.starts_with("2 upper limits left out"),
+                "{}",
+                told.sentence
+            );
+        }
+        // The likelihood estimators keep them; asking for them with FITEXY keeps them too, and
+        // the estimator then refuses the sample.
+        for method in [Method::Structural, Method::Conditional] {
+            let s = build_sample(
+                &rows,
+                &[],
+                &Relation::MSigma,
+                &chosen.for_method(method),
+                1.0,
+            );
+            assert_eq!((s.n_limits(), s.left_out_limits), (2, 0));
+        }
+        let asked = SampleFilter {
+            limits: LimitsChoice::Include,
+            ..SampleFilter::default()
+        };
+        let s = build_sample(
+            &rows,
+            &[],
+            &Relation::MSigma,
+            &asked.for_method(Method::Fitexy),
+            1.0,
+        );
+        assert_eq!(s.n_limits(), 2);
+        assert!(crate::fit::fit(&s.points, &FitSpec::new(Method::Fitexy, 2.3)).is_err());
     }
 
     #[test]

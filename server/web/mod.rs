@@ -103,6 +103,12 @@ fn routes() -> Routes {
             Public,
             get(submission_script),
         )
+        .add(
+            Method::GET,
+            "/static/runs.js",
+            Public,
+            get(relations::runs_script),
+        )
         .add(Method::GET, "/login", Public, get(login::show_login))
         .add(Method::POST, "/login", Public, post(login::log_in))
         .add(Method::POST, "/logout", Session, post(login::log_out))

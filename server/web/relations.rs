@@ -24,8 +24,8 @@ use crate::error::{AppError, AppResult};
 use crate::fit::{Fit, Method, Point, Shape};
 use crate::relations::analysis::{Subset, flagged, most_influential, offset_between};
 use crate::relations::{
-    DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, Member, Relation, RunKind, RunStatus,
-    fitted, run_status, stored_run,
+    DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, LimitsChoice, Member, Relation,
+    RunKind, RunStatus, fitted, read_pivot_typed, run_status, stored_run,
 };
 use crate::state::AppState;
 use crate::units::round_to_uncertainty;
@@ -168,17 +168,88 @@ fn run_size(kind: RunKind, value: &str) -> Result<usize, String> {
         .map_err(|e| e.trim_end_matches('.').to_owned())
 }
 
+/// A query value the page could not use: the parameter and one sentence.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct QueryProblem {
+    /// The parameter as given (cut to 40 characters).
+    pub(crate) field: String,
+    /// What is wrong and what to type.
+    pub(crate) message: String,
+}
+
+/// What the reader typed into the pivot fields and how it was read.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub(crate) struct PivotEcho {
+    /// The text of `pivot` as typed, when it was not a bare log10 value or was refused.
+    pub(crate) pivot_text: Option<String>,
+    /// "read as …" of `pivot`.
+    pub(crate) pivot_read_as: Option<String>,
+    /// As `pivot_text`, for `pivot2`.
+    pub(crate) pivot2_text: Option<String>,
+    /// As `pivot_read_as`, for `pivot2`.
+    pub(crate) pivot2_read_as: Option<String>,
+}
+
+/// A query as read: the values the page uses (the default for each parameter at fault), the
+/// problems, and what the pivot fields echo.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct QueryRead {
+    pub(crate) query: RelationQuery,
+    pub(crate) problems: Vec<QueryProblem>,
+    pub(crate) echo: PivotEcho,
+}
+
 impl RelationQuery {
-    /// Reads the query parameters; every problem becomes one sentence naming the parameter.
-    pub(crate) fn parse(pairs: &[(String, String)]) -> Result<Self, String> {
+    /// Reads the query parameters for `relation`, keeping the default of each parameter at
+    /// fault and saying why in one sentence naming it. Pivots are read as typed
+    /// (`relations::read_pivot_typed`: `200`, `200 km/s` or a log10 value).
+    pub(crate) fn read(pairs: &[(String, String)], relation: &Relation) -> QueryRead {
         let mut q = Self::default();
         let mut problems = Vec::new();
+        let mut echo = PivotEcho::default();
         for (key, value) in pairs {
+            let field = key.chars().take(40).collect::<String>();
+            let mut problem = |message: String| {
+                problems.push(QueryProblem {
+                    field: field.clone(),
+                    message,
+                });
+            };
+            if (key == "pivot" || key == "pivot2") && !value.trim().is_empty() {
+                let quantity = if key == "pivot" {
+                    relation.x_quantity()
+                } else {
+                    crate::units::Quantity::BulgeMass
+                };
+                let (text, read_as) = if key == "pivot" {
+                    (&mut echo.pivot_text, &mut echo.pivot_read_as)
+                } else {
+                    (&mut echo.pivot2_text, &mut echo.pivot2_read_as)
+                };
+                match read_pivot_typed(value, quantity) {
+                    Ok(typed) => {
+                        if key == "pivot" {
+                            q.fit.pivot = Some(typed.log_value);
+                        } else {
+                            q.fit.pivot2 = Some(typed.log_value);
+                        }
+                        if typed.read_as.is_some() {
+                            *text = Some(value.trim().chars().take(40).collect());
+                        }
+                        *read_as = typed.read_as;
+                    }
+                    Err(e) => {
+                        *text = Some(value.trim().chars().take(40).collect());
+                        problem(format!("Parameter '{key}': {e}."));
+                    }
+                }
+                continue;
+            }
             match q.fit.set(key, value) {
                 Ok(true) => continue,
                 Ok(false) => {}
                 Err(e) => {
-                    problems.push(e);
+                    problem(e);
                     continue;
                 }
             }
@@ -201,22 +272,37 @@ impl RelationQuery {
                 "offset_b" => Subset::parse(value).map(|s| q.offset_b = Some(s)),
                 "replicates" => run_size(RunKind::Bootstrap, value).map(|n| q.replicates = n),
                 "steps" => run_size(RunKind::Posterior, value).map(|n| q.steps = n),
-                other => {
-                    problems.push(format!(
-                        "'{}' is not a parameter of this page (it accepts {RELATION_PARAMS}).",
-                        other.chars().take(40).collect::<String>()
+                _ => {
+                    problem(format!(
+                        "'{field}' is not a parameter of this page (it accepts {RELATION_PARAMS})."
                     ));
                     continue;
                 }
             };
             if let Err(e) = result {
-                problems.push(format!("Parameter '{key}': {e}."));
+                problem(format!("Parameter '{key}': {e}."));
             }
         }
-        if problems.is_empty() {
-            Ok(q)
+        QueryRead {
+            query: q,
+            problems,
+            echo,
+        }
+    }
+
+    /// Reads the query parameters strictly (downloads and the run form): every problem becomes
+    /// one sentence naming the parameter.
+    pub(crate) fn parse(pairs: &[(String, String)], relation: &Relation) -> Result<Self, String> {
+        let read = Self::read(pairs, relation);
+        if read.problems.is_empty() {
+            Ok(read.query)
         } else {
-            Err(crate::error::join_problems(problems))
+            Err(crate::error::join_problems(
+                read.problems
+                    .into_iter()
+                    .map(|p| p.message)
+                    .collect::<Vec<_>>(),
+            ))
         }
     }
 
@@ -264,9 +350,10 @@ async fn relation_named(state: &AppState, slug: &str) -> AppResult<Relation> {
 
 fn read_query(
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+    relation: &Relation,
 ) -> AppResult<RelationQuery> {
     let pairs = crate::router::query_pairs(query)?;
-    RelationQuery::parse(&pairs).map_err(AppError::bad_request)
+    RelationQuery::parse(&pairs, relation).map_err(AppError::bad_request)
 }
 
 async fn fit_for(
@@ -336,9 +423,48 @@ fn computing_note(shown_version: i64, computing: i64) -> String {
     )
 }
 
-/// A parameter with its error, rounded to the error.
+/// A parameter with its error, rounded to the error; without an error (FITEXY's and BCES's
+/// ε have none), to three decimals, a thousandth of a dex.
 fn with_error(value: f64, err: f64) -> String {
-    round_to_uncertainty(value, err).replace('-', "−")
+    if err.is_finite() && err > 0.0 {
+        round_to_uncertainty(value, err).replace('-', "−")
+    } else {
+        fixed(value, 3)
+    }
+}
+
+/// "1 galaxy", "2 galaxies".
+fn count(n: usize, one: &str, many: &str) -> String {
+    if n == 1 {
+        format!("1 {one}")
+    } else {
+        format!("{n} {many}")
+    }
+}
+
+/// A time for a page: readable UTC text, with the RFC 3339 form for `<time datetime>`.
+pub(crate) struct TimeView {
+    iso: String,
+    text: String,
+}
+
+/// "2 December 2026, 23:33 UTC" from an RFC 3339 time; the text as given if it cannot be read.
+fn utc_time(iso: &str) -> TimeView {
+    use time::format_description::well_known::Rfc3339;
+    let text = time::OffsetDateTime::parse(iso, &Rfc3339)
+        .ok()
+        .map(|t| t.to_offset(time::UtcOffset::UTC))
+        .and_then(|t| {
+            let format = time::macros::format_description!(
+                "[day padding:none] [month repr:long] [year], [hour]:[minute] UTC"
+            );
+            t.format(&format).ok()
+        })
+        .unwrap_or_else(|| iso.to_owned());
+    TimeView {
+        iso: iso.to_owned(),
+        text,
+    }
 }
 
 /// A parameter's reported value ± its error (`fit.intervals`), if the fit has it.
@@ -406,11 +532,7 @@ pub(crate) async fn list_relations(
             }
         };
         catalog_version = catalog_version.max(outcome.key.catalog_version);
-        let n = format!(
-            "{} + {} limits",
-            outcome.sample.n_detections(),
-            outcome.sample.n_limits()
-        );
+        let n = sample_size(outcome.sample.n_detections(), outcome.sample.n_limits());
         let summary = match &outcome.fit {
             Ok(fit) => RelationSummary {
                 label: relation.label(),
@@ -447,6 +569,15 @@ pub(crate) async fn list_relations(
             )
         }),
     })
+}
+
+/// "17 measurements and 1 upper limit".
+fn sample_size(detections: usize, limits: usize) -> String {
+    format!(
+        "{} and {}",
+        count(detections, "measurement", "measurements"),
+        count(limits, "upper limit", "upper limits")
+    )
 }
 
 /// A select's option.
@@ -488,10 +619,36 @@ fn interval_text(lo: f64, hi: f64, err: f64) -> String {
     format!("{lo:.decimals$} – {hi:.decimals$}").replace('-', "−")
 }
 
-/// A row of the covariance matrix.
+/// One entry of the parameters' covariance (each pair once): narrow enough for a phone.
 pub(crate) struct CovRow {
-    name: &'static str,
-    cells: Vec<String>,
+    /// "Var(α)" or "Cov(α, β)".
+    pair: String,
+    value: String,
+    /// Its unit: the product of the two parameters' units ("dex²", "dex", "none").
+    unit: &'static str,
+}
+
+/// A parameter's symbol and the power of dex of its unit (α, ε: dex; β, γ: dex per dex; the
+/// curvature β₂: per dex).
+fn param_symbol(name: &str) -> (&'static str, i32) {
+    match name {
+        "alpha" => ("α", 1),
+        "beta" => ("β", 0),
+        "beta2" => ("β₂", -1),
+        "gamma" => ("γ", 0),
+        "eps" => ("ε", 1),
+        _ => ("?", 0),
+    }
+}
+
+fn dex_power(power: i32) -> &'static str {
+    match power {
+        2 => "dex²",
+        1 => "dex",
+        0 => "none",
+        -1 => "dex⁻¹",
+        _ => "dex⁻²",
+    }
 }
 
 /// An object named in a list, with a link.
@@ -525,12 +682,22 @@ pub(crate) struct Controls {
     centre_options: Vec<OptionView>,
     mass_method_options: Vec<OptionView>,
     soi_resolved: bool,
-    exclude_limits: bool,
+    limits_options: Vec<OptionView>,
     uses_sigma: bool,
     sigma_central: bool,
+    /// The pivot field's text: as typed, or the log10 value in use.
     pivot: String,
     pivot2: String,
+    /// The log10 pivots in use, for the equation.
+    pivot_log: String,
+    pivot2_log: String,
     pivot_unit: String,
+    /// The pivot's linear unit ("km/s", "M☉", "L☉").
+    pivot_linear_unit: &'static str,
+    pivot_error: Option<String>,
+    pivot2_error: Option<String>,
+    pivot_read_as: Option<String>,
+    pivot2_read_as: Option<String>,
     group_options: Vec<OptionView>,
     versus_options: Vec<OptionView>,
     offset_a_options: Vec<OptionView>,
@@ -540,7 +707,11 @@ pub(crate) struct Controls {
 /// What the relation page says was fitted.
 pub(crate) struct SampleSummary {
     catalog_version: i64,
-    fitted_at: String,
+    fitted_at: TimeView,
+    /// "17 measurements and 1 upper limit".
+    size: String,
+    /// How many upper limits were left out and why.
+    limits_note: Option<String>,
     method: &'static str,
     filter_text: String,
     n_detections: usize,
@@ -558,10 +729,11 @@ pub(crate) struct RelationPage {
     controls: Controls,
     summary: SampleSummary,
     fit_error: Option<String>,
+    /// Query values the page could not use (each replaced by its default), one sentence each.
+    problems: Vec<String>,
     params: Vec<ParamView>,
     /// How the values and intervals were computed, in words.
     interval_label: String,
-    cov_names: Vec<&'static str>,
     cov_rows: Vec<CovRow>,
     chart_svg: String,
     residual_svg: String,
@@ -579,7 +751,10 @@ pub(crate) struct RelationPage {
     /// The query string without '?', for the run form.
     query_plain: String,
     runs: Vec<RunView>,
+    /// Reload by itself (a fit or the influence list being computed).
     refresh: bool,
+    /// A run waits or runs: `static/runs.js` follows it (without script, the page reloads).
+    runs_pending: bool,
     may_start: bool,
     /// Said while the current version's fit is computed and an older one is shown.
     computing: Option<String>,
@@ -593,9 +768,16 @@ pub(crate) struct RunView {
     /// "stored", "queued", "running", "failed", "cancelled" or "none".
     status: &'static str,
     progress: String,
+    /// When it was asked for (queued) or started (running).
+    since: Option<TimeView>,
+    /// The run's number on this server, which `static/runs.js` polls
+    /// (`GET /api/v1/runs/{id}`) while it waits or runs.
+    run_id: Option<u64>,
+    /// Replicates fitted or steps done, while running (the number the script updates).
+    done: usize,
     note: Option<String>,
     params: Vec<RunParamView>,
-    stored_at: String,
+    stored_at: Option<TimeView>,
 }
 
 /// One parameter of a finished run.
@@ -652,9 +834,12 @@ impl RunView {
             size,
             status: "none",
             progress: String::new(),
+            since: None,
+            run_id: None,
+            done: 0,
             note: None,
             params: Vec::new(),
-            stored_at: String::new(),
+            stored_at: None,
         };
         match status {
             RunStatus::None => {}
@@ -663,35 +848,32 @@ impl RunView {
                 view.note = Some(why);
             }
             RunStatus::Queued {
+                id,
                 position,
                 of,
                 asked_at,
-                ..
             } => {
                 view.status = "queued";
-                view.progress = format!(
-                    "position {position} of {of}; it starts when a run before it finishes (asked {asked_at})"
-                );
+                view.run_id = Some(id);
+                view.since = Some(utc_time(&asked_at));
+                view.progress =
+                    format!("position {position} of {of}; it starts when a run before it finishes");
             }
             RunStatus::Cancelled(why) => {
                 view.status = "cancelled";
                 view.note = Some(why);
             }
             RunStatus::Running {
+                id,
                 done,
                 total,
                 started_at,
-                ..
             } => {
                 view.status = "running";
-                view.progress = match kind {
-                    RunKind::Bootstrap => {
-                        format!("{done} of {total} resamples fitted (started {started_at})")
-                    }
-                    RunKind::Posterior => format!(
-                        "{done} of {total} sampler steps done, burn-in included (started {started_at})"
-                    ),
-                };
+                view.run_id = Some(id);
+                view.since = Some(utc_time(&started_at));
+                view.done = done;
+                view.progress = run_progress(kind, total);
             }
             RunStatus::Stored {
                 params,
@@ -699,12 +881,21 @@ impl RunView {
                 stored_at,
             } => {
                 view.status = "stored";
-                view.stored_at = stored_at;
+                view.stored_at = Some(utc_time(&stored_at));
                 view.note = note;
                 view.params = params.iter().map(RunParamView::of).collect();
             }
         }
         view
+    }
+}
+
+/// What follows the count done: "of 1000 resamples fitted" (`static/runs.js` updates the
+/// count before it).
+fn run_progress(kind: RunKind, total: usize) -> String {
+    match kind {
+        RunKind::Bootstrap => format!("of {total} resamples fitted"),
+        RunKind::Posterior => format!("of {total} sampler steps done, burn-in included"),
     }
 }
 
@@ -753,7 +944,8 @@ pub(crate) async fn start_run(
     let user = super::account::session_of(&principal)?;
     let pairs: Vec<(String, String)> = serde_urlencoded::from_str(&form.query)
         .map_err(|_| AppError::bad_request("The relation's settings could not be read."))?;
-    let q = RelationQuery::parse(&pairs).map_err(AppError::bad_request)?;
+    let relation = relation_named(&state, &slug).await?;
+    let q = RelationQuery::parse(&pairs, &relation).map_err(AppError::bad_request)?;
     let size = if form.size.trim().is_empty() {
         0
     } else {
@@ -762,7 +954,6 @@ pub(crate) async fn start_run(
         })?
     };
     let (kind, size) = RunKind::parse(form.kind.trim(), size).map_err(AppError::bad_request)?;
-    let relation = relation_named(&state, &slug).await?;
     let outcome = fit_for(&state, &relation, &q).await?;
     if let Err(e) = &outcome.fit {
         return Err(AppError::bad_request(format!(
@@ -969,8 +1160,9 @@ pub(crate) async fn show_relation(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
+    let read = RelationQuery::read(&crate::router::query_pairs(query)?, &relation);
+    let q = read.query.clone();
     let shown = match fit_shown(&state, &relation, &q).await? {
         Ok(shown) => shown,
         Err(version) => {
@@ -1008,28 +1200,27 @@ pub(crate) async fn show_relation(
     };
     let drawn_text = |i: usize| charts[i].clone().unwrap_or_default();
     let (residual_svg, residual2_svg) = (drawn_text(1), drawn_text(2));
-    let (params, cov_names, cov_rows) = fit.map(|f| fit_views(&relation, f)).unwrap_or_default();
+    let (params, cov_rows) = fit.map(|f| fit_views(&relation, f)).unwrap_or_default();
     let (influential, influence_note, influence_pending) = match (fit, computing.is_some()) {
         (Some(_), false) => influence_views(&state, &outcome).await?,
         _ => (Vec::new(), None, false),
     };
     let (offset, offset_note) = offset_view(&outcome, &q).await?;
     let runs = run_views(&state, &outcome, &q).await?;
-    let refresh = runs
+    let runs_pending = runs
         .iter()
-        .any(|r| r.status == "running" || r.status == "queued")
-        || computing.is_some()
-        || influence_pending;
+        .any(|r| r.status == "running" || r.status == "queued");
+    let refresh = computing.is_some() || influence_pending;
     let may_start = nav.username.is_some();
     let query_plain = q.to_query_string();
     Ok(RelationPage {
         nav,
-        controls: Controls::of(&relation, &q),
+        controls: Controls::of(&relation, &read),
+        problems: read.problems.iter().map(|p| p.message.clone()).collect(),
         summary: SampleSummary::of(&relation, &outcome, &q),
         fit_error: outcome.fit.as_ref().err().map(ToString::to_string),
         params,
         interval_label: fit.map_or("", |f| f.intervals.kind.label()).to_owned(),
-        cov_names,
         cov_rows,
         chart_svg,
         residual_svg,
@@ -1050,6 +1241,7 @@ pub(crate) async fn show_relation(
         query_plain,
         runs,
         refresh,
+        runs_pending,
         may_start,
         computing,
     }
@@ -1068,7 +1260,7 @@ pub(crate) struct ComputingPage {
 /// The fitted parameters with their errors, intervals and units, and the covariance matrix.
 /// Values and intervals are the ones the fit reports (`fit.intervals`; restricted likelihood
 /// by default); the covariance is the maximum-likelihood curvature's.
-fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<&'static str>, Vec<CovRow>) {
+fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
     let unit = relation.x_unit();
     let view = |name: &str, symbol: &'static str, unit: String| {
         f.intervals.get(name).map(|iv| ParamView {
@@ -1088,16 +1280,22 @@ fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<&'static str>
     .into_iter()
     .flatten()
     .collect();
-    let cov_rows = f
-        .cov_names
-        .iter()
-        .zip(&f.cov)
-        .map(|(name, row)| CovRow {
-            name,
-            cells: row.iter().map(|v| significant(*v, 3)).collect(),
-        })
-        .collect();
-    (params, f.cov_names.clone(), cov_rows)
+    let mut cov_rows = Vec::new();
+    for (i, (a, row)) in f.cov_names.iter().zip(&f.cov).enumerate() {
+        for (b, v) in f.cov_names.iter().zip(row).skip(i) {
+            let ((sa, pa), (sb, pb)) = (param_symbol(a), param_symbol(b));
+            cov_rows.push(CovRow {
+                pair: if a == b {
+                    format!("Var({sa})")
+                } else {
+                    format!("Cov({sa}, {sb})")
+                },
+                value: significant(*v, 3),
+                unit: dex_power(pa + pb),
+            });
+        }
+    }
+    (params, cov_rows)
 }
 
 /// The residual charts: against x, and against the property the reader picked.
@@ -1263,9 +1461,18 @@ async fn offset_view(
 }
 
 impl Controls {
-    /// The page's form, filled in from the query.
-    fn of(relation: &Relation, q: &RelationQuery) -> Self {
+    /// The page's form, filled in from the query as read (what was typed, how it was read,
+    /// and the error of each pivot at fault).
+    fn of(relation: &Relation, read: &QueryRead) -> Self {
+        let q = &read.query;
         let pivots = q.fit.pivots(relation);
+        let field_error = |field: &str| {
+            read.problems
+                .iter()
+                .find(|p| p.field == field)
+                .map(|p| p.message.clone())
+        };
+        let log_text = |v: f64| format!("{}", (v * 1e4).round() / 1e4);
         let filter = &q.fit.filter;
         let enum_options = |items: Vec<(&'static str, &'static str)>, selected: Option<&str>| {
             items
@@ -1305,12 +1512,34 @@ impl Controls {
                 filter.mass_method.map(MassMethod::as_str),
             ),
             soi_resolved: filter.soi == crate::relations::SoiChoice::Resolved,
-            exclude_limits: filter.exclude_limits,
+            limits_options: [
+                (LimitsChoice::Auto, "as the estimator allows"),
+                (LimitsChoice::Include, "included"),
+                (LimitsChoice::Exclude, "left out"),
+            ]
+            .into_iter()
+            .map(|(c, l)| option(c.as_str(), l, filter.limits == c))
+            .collect(),
             uses_sigma: relation.uses_sigma(),
             sigma_central: filter.sigma == crate::relations::SigmaChoice::Central,
-            pivot: format!("{}", (pivots.0 * 1e4).round() / 1e4),
-            pivot2: format!("{}", (pivots.1 * 1e4).round() / 1e4),
+            pivot: read
+                .echo
+                .pivot_text
+                .clone()
+                .unwrap_or_else(|| log_text(pivots.0)),
+            pivot2: read
+                .echo
+                .pivot2_text
+                .clone()
+                .unwrap_or_else(|| log_text(pivots.1)),
+            pivot_log: log_text(pivots.0),
+            pivot2_log: log_text(pivots.1),
             pivot_unit: relation.x_unit(),
+            pivot_linear_unit: relation.x_quantity().unit_label(),
+            pivot_error: field_error("pivot"),
+            pivot2_error: field_error("pivot2"),
+            pivot_read_as: read.echo.pivot_read_as.clone(),
+            pivot2_read_as: read.echo.pivot2_read_as.clone(),
             group_options: Grouping::ALL
                 .iter()
                 .map(|(g, v, l)| option(v, l, *g == q.group))
@@ -1331,7 +1560,9 @@ impl SampleSummary {
         let sample = &outcome.sample;
         SampleSummary {
             catalog_version: outcome.key.catalog_version,
-            fitted_at: outcome.fitted_at.clone(),
+            fitted_at: utc_time(&outcome.fitted_at),
+            size: sample_size(sample.n_detections(), sample.n_limits()),
+            limits_note: q.fit.limits_left_out(sample).map(|l| l.sentence),
             method: q.fit.method.as_str(),
             filter_text: outcome.key.filter.replace(';', "; "),
             n_detections: sample.n_detections(),
@@ -1339,8 +1570,8 @@ impl SampleSummary {
             sigma_note: (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(
                 || {
                     format!(
-                        "{} galaxies with a {} were left out: σ definitions are never mixed in one fit.",
-                        sample.left_out_sigma_definition,
+                        "{} with a {} left out: σ definitions are never mixed in one fit.",
+                        count(sample.left_out_sigma_definition, "galaxy", "galaxies"),
                         match q.fit.filter.sigma {
                             crate::relations::SigmaChoice::Effective => "central σ_c",
                             crate::relations::SigmaChoice::Central => "σ_e",
@@ -1349,10 +1580,14 @@ impl SampleSummary {
                 },
             ),
             missing_note: (sample.left_out_missing > 0).then(|| {
-                format!(
-                    "{} galaxies matching the selection lack a value this relation needs.",
-                    sample.left_out_missing
-                )
+                if sample.left_out_missing == 1 {
+                    "1 galaxy matching the selection lacks a value this relation needs.".to_owned()
+                } else {
+                    format!(
+                        "{} galaxies matching the selection lack a value this relation needs.",
+                        sample.left_out_missing
+                    )
+                }
             }),
             fit_note: method_note(q.fit.method).to_owned(),
         }
@@ -1380,12 +1615,27 @@ fn method_note(m: Method) -> &'static str {
             "Maximum likelihood of log M_BH given the observed x: flattens the slope when x errors matter."
         }
         Method::Fitexy => {
-            "Modified FITEXY (Tremaine et al. 2002, ApJ 574, 740): cannot use upper limits."
+            "Modified FITEXY (Press et al. 1992; Tremaine et al. 2002, ApJ 574, 740): takes no upper limits."
         }
         Method::Bces(_) => {
-            "BCES (Akritas & Bershady 1996, ApJ 470, 706): moment estimators, cannot use upper limits."
+            "BCES (Akritas & Bershady 1996, ApJ 470, 706): moment estimators, take no upper limits."
         }
     }
+}
+
+/// The script that follows a relation page's runs (`static/runs.js`; the page works without).
+const RUNS_SCRIPT: &str = include_str!("../../static/runs.js");
+
+/// `/static/runs.js`.
+pub(crate) async fn runs_script() -> Response {
+    (
+        [
+            (header::CONTENT_TYPE, "text/javascript; charset=utf-8"),
+            (header::CACHE_CONTROL, "public, max-age=3600"),
+        ],
+        RUNS_SCRIPT,
+    )
+        .into_response()
 }
 
 /// `/relations/{relation}/chart.svg`: the relation chart as a file.
@@ -1394,8 +1644,8 @@ pub(crate) async fn download_chart(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
+    let q = read_query(query, &relation)?;
     let outcome = fit_for(&state, &relation, &q).await?;
     let drawn = state
         .fits
@@ -1416,8 +1666,8 @@ pub(crate) async fn download_fit(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
+    let q = read_query(query, &relation)?;
     let outcome = fit_for(&state, &relation, &q).await?;
     let (pivot, pivot2) = q.fit.pivots(&relation);
     let body = serde_json::json!({
@@ -1435,6 +1685,8 @@ pub(crate) async fn download_fit(
         "n_detections": outcome.sample.n_detections(),
         "n_upper": outcome.sample.n_limits(),
         "left_out_sigma_definition": outcome.sample.left_out_sigma_definition,
+        "limits_left_out": outcome.sample.left_out_limits,
+        "limits_notice": q.fit.limits_left_out(&outcome.sample).map(|l| l.sentence),
         "galaxies": outcome.sample.members.iter().map(|m| m.slug.as_str()).collect::<Vec<_>>(),
         "fit": outcome.fit.as_ref().ok(),
         "error": outcome.fit.as_ref().err().map(ToString::to_string),
@@ -1453,8 +1705,8 @@ pub(crate) async fn download_sample(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
+    let q = read_query(query, &relation)?;
     let outcome = fit_for(&state, &relation, &q).await?;
     let unit = relation.x_unit();
     let mut w = csv::Writer::from_writer(Vec::new());
@@ -1529,29 +1781,35 @@ mod tests {
 
     #[test]
     fn the_query_round_trips_and_names_bad_parameters() {
-        let q = RelationQuery::parse(&pairs(&[
-            ("method", "bces-bisector"),
-            ("morphology", "elliptical"),
-            ("pivot", "2.2"),
-            ("group", "bulge_kind"),
-            ("versus", "sigma"),
-            ("offset_a", "morphology:elliptical"),
-            ("offset_b", "bulge_kind:pseudo"),
-        ]))
+        let q = RelationQuery::parse(
+            &pairs(&[
+                ("method", "bces-bisector"),
+                ("morphology", "elliptical"),
+                ("pivot", "2.2"),
+                ("group", "bulge_kind"),
+                ("versus", "sigma"),
+                ("offset_a", "morphology:elliptical"),
+                ("offset_b", "bulge_kind:pseudo"),
+            ]),
+            &Relation::MSigma,
+        )
         .unwrap();
         assert_eq!(q.fit.method.as_str(), "bces-bisector");
         assert_eq!(q.fit.pivot, Some(2.2));
         let text = q.to_query_string();
         let back: Vec<(String, String)> = serde_urlencoded::from_str(&text).unwrap();
-        assert_eq!(RelationQuery::parse(&back).unwrap(), q);
+        assert_eq!(RelationQuery::parse(&back, &Relation::MSigma).unwrap(), q);
         assert_eq!(RelationQuery::default().to_query_string(), "");
 
-        let err = RelationQuery::parse(&pairs(&[
-            ("method", "eyeball"),
-            ("pivot", "NaN"),
-            ("offset_a", "colour:red"),
-            ("fish", "1"),
-        ]))
+        let err = RelationQuery::parse(
+            &pairs(&[
+                ("method", "eyeball"),
+                ("pivot", "NaN"),
+                ("offset_a", "colour:red"),
+                ("fish", "1"),
+            ]),
+            &Relation::MSigma,
+        )
         .unwrap_err();
         assert!(
             err.contains("Parameter 'method': 'eyeball' is not one of"),
@@ -1560,6 +1818,87 @@ mod tests {
         assert!(err.contains("Parameter 'pivot'"), "{err}");
         assert!(err.contains("Parameter 'offset_a'"), "{err}");
         assert!(err.contains("'fish' is not a parameter"), "{err}");
+    }
+
+    #[test]
+    fn pivots_are_read_in_log10_or_in_the_unit_and_bad_values_keep_the_defaults() {
+        // 200 km/s: log10 200 = 2.30103 (computed).
+        for typed in ["200", "200 km/s", "2.30103"] {
+            let read = RelationQuery::read(&pairs(&[("pivot", typed)]), &Relation::MSigma);
+            assert!(read.problems.is_empty(), "{typed}: {:?}", read.problems);
+            let p = read.query.fit.pivot.unwrap();
+            assert!((p - 200f64.log10()).abs() < 1e-5, "{typed}: {p}");
+            assert_eq!(
+                read.echo.pivot_read_as.is_some(),
+                typed != "2.30103",
+                "{typed}"
+            );
+        }
+        let read = RelationQuery::read(&pairs(&[("pivot", "200")]), &Relation::MSigma);
+        assert_eq!(
+            read.echo.pivot_read_as.as_deref(),
+            Some("200 km/s, log10 = 2.3010")
+        );
+        // A bulge mass typed linearly: 1e11 M☉ is log10 11.
+        let read = RelationQuery::read(&pairs(&[("pivot", "1e11 Msun")]), &Relation::MBulge);
+        assert!((read.query.fit.pivot.unwrap() - 11.0).abs() < 1e-9);
+        // Bad values: the default is kept and each problem names its parameter.
+        let read = RelationQuery::read(
+            &pairs(&[
+                ("pivot", "fast"),
+                ("replicates", "many"),
+                ("steps", "3"),
+                ("morphology", "blob"),
+                ("method", "fitexy"),
+            ]),
+            &Relation::MSigma,
+        );
+        assert_eq!(read.query.fit.pivot, None);
+        assert_eq!(read.query.replicates, DEFAULT_REPLICATES);
+        assert_eq!(read.query.fit.method, Method::Fitexy);
+        let fields: Vec<&str> = read.problems.iter().map(|p| p.field.as_str()).collect();
+        assert_eq!(fields, ["pivot", "replicates", "steps", "morphology"]);
+        assert_eq!(read.echo.pivot_text.as_deref(), Some("fast"));
+        assert!(
+            read.problems[0].message.contains("200 km/s"),
+            "{:?}",
+            read.problems
+        );
+    }
+
+    #[test]
+    fn the_covariance_names_each_pair_once_with_symbols_and_units() {
+        use crate::fit::FitSpec;
+        let fit = Fit::given_line(
+            FitSpec::new(Method::Structural, 2.3),
+            crate::fit::Params::line(8.3, 5.0, 0.35),
+            [[0.0025, 0.003, 0.0], [0.003, 0.09, 0.0], [0.0, 0.0, 0.0009]],
+        );
+        let (_, rows) = fit_views(&Relation::MSigma, &fit);
+        let pairs: Vec<(&str, &str)> = rows.iter().map(|r| (r.pair.as_str(), r.unit)).collect();
+        assert_eq!(
+            pairs,
+            [
+                ("Var(α)", "dex²"),
+                ("Cov(α, β)", "dex"),
+                ("Cov(α, ε)", "dex²"),
+                ("Var(β)", "none"),
+                ("Cov(β, ε)", "dex"),
+                ("Var(ε)", "dex²"),
+            ]
+        );
+        assert_eq!(rows[1].value, "0.00300");
+    }
+
+    #[test]
+    fn counts_times_and_errorless_values_read_as_words() {
+        assert_eq!(sample_size(17, 1), "17 measurements and 1 upper limit");
+        assert_eq!(sample_size(1, 0), "1 measurement and 0 upper limits");
+        assert_eq!(with_error(0.4404799159333157, 0.0), "0.440");
+        assert_eq!(with_error(-0.4404799159333157, f64::NAN), "−0.440");
+        let t = utc_time("2026-12-02T23:33:04Z");
+        assert_eq!(t.text, "2 December 2026, 23:33 UTC");
+        assert_eq!(t.iso, "2026-12-02T23:33:04Z");
     }
 
     #[test]

@@ -278,8 +278,13 @@ async fn a_fit_answer_has_its_parameters_covariance_counts_and_time() {
             && t_text.ends_with('Z'),
         "{t_text}"
     );
-    // An estimator that cannot use the sample says why instead of failing.
-    let v = get(&app, "/api/v1/relations/m_sigma?method=fitexy", Some(&t)).await;
+    // An estimator asked to use limits it cannot take says why instead of failing.
+    let v = get(
+        &app,
+        "/api/v1/relations/m_sigma?method=fitexy&limits=include",
+        Some(&t),
+    )
+    .await;
     assert_eq!(v.status, 200);
     let v = v.json();
     assert!(v["fit"].is_null() && v["problem"].is_string(), "{v}");

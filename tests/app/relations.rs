@@ -101,7 +101,7 @@ async fn the_relation_page_shows_parameters_chart_and_diagnostics() {
     );
     assert!(body.contains("<svg"), "the chart is inline");
     assert!(body.contains("log₁₀ σ [km/s]"), "axis label with units");
-    assert!(body.contains("6 galaxies with a central σ_c were left out"));
+    assert!(body.contains("6 galaxies with a central σ_c left out"));
     assert!(
         body.contains("id=\"outliers\""),
         "planted outliers are listed"
@@ -142,9 +142,17 @@ async fn every_estimator_and_relation_answers() {
             .ok(&format!("/relations/m_mbulge?method={method}"))
             .await;
         assert!(!body.contains("NaN"), "{method}");
-        // FITEXY and BCES refuse upper limits: the page says so instead of failing.
+        // FITEXY and BCES take no upper limits: they are left out by themselves and the fit
+        // is made.
+        assert!(body.contains("id=\"params\""), "{method}: {body}");
+        // Asked to include them, those estimators refuse the sample and the page says so.
         if method.starts_with("bces") || method == "fitexy" {
-            assert!(body.contains("id=\"fit-error\""), "{method}");
+            let asked = app
+                .ok(&format!(
+                    "/relations/m_mbulge?method={method}&limits=include"
+                ))
+                .await;
+            assert!(asked.contains("id=\"fit-error\""), "{method}");
         }
     }
     for method in ["fitexy", "bces-bisector"] {
@@ -187,21 +195,189 @@ async fn downloads_have_their_types() {
 }
 
 #[tokio::test]
-async fn bad_parameters_get_the_400_page_and_unknown_relations_404() {
+async fn bad_parameters_come_back_beside_the_form_and_unknown_relations_404() {
     let app = spawn_demo_app().await;
     let (status, body) = app.get("/relations/m_sigma?method=eyeball").await;
-    assert_eq!(status, 400);
+    assert_eq!(status, 200);
+    assert!(body.contains("id=\"query-errors\""), "{body}");
     assert!(body.contains("is not one of: structural"), "{body}");
-    let (status, _) = app.get("/relations/m_sigma?pivot=abc").await;
-    assert_eq!(status, 400);
+    assert!(body.contains("<form class=\"filters\""), "the form is kept");
+    assert!(body.contains("id=\"params\""), "the default fit is shown");
+    // A bad pivot: the field keeps what was typed, is marked and says why beside it.
+    let (status, body) = app.get("/relations/m_sigma?pivot=abc").await;
+    assert_eq!(status, 200);
+    assert!(body.contains("name=\"pivot\" value=\"abc\""), "{body}");
+    assert!(body.contains("aria-invalid=\"true\""), "{body}");
+    assert!(
+        body.contains("<p class=\"field-error\" id=\"e-pivot\">"),
+        "{body}"
+    );
+    assert!(
+        body.contains("200 km/s"),
+        "the message gives an example: {body}"
+    );
+    // Run sizes and filters too.
+    for bad in ["replicates=many", "steps=3", "soi=maybe", "fish=1"] {
+        let (status, body) = app.get(&format!("/relations/m_sigma?{bad}")).await;
+        assert_eq!(status, 200, "{bad}");
+        assert!(body.contains("id=\"query-errors\""), "{bad}: {body}");
+    }
     let (status, body) = app.get("/relations/m_l_r").await;
     assert_eq!(status, 404);
     assert!(body.contains("m_sigma"), "{body}");
     let (status, body) = app
         .get("/relations/m_sigma?morphology=%3Cscript%3Ealert(1)%3C/script%3E")
         .await;
-    assert_eq!(status, 400);
+    assert_eq!(status, 200);
     assert!(!body.contains("<script>alert(1)"), "{body}");
+    // The downloads are files: a bad value there is still a 400.
+    let (status, _) = app.get("/relations/m_sigma/fit.json?pivot=abc").await;
+    assert_eq!(status, 400);
+}
+
+#[tokio::test]
+async fn estimators_without_limits_leave_them_out_and_every_door_says_how_many() {
+    let app = spawn_demo_app().await;
+    let body = app.ok("/relations/m_sigma").await;
+    let detections = dd_number(&body, "n-detections");
+    let limits = dd_number(&body, "n-limits");
+    assert!(limits > 0, "the demo sample has limits");
+    assert!(!body.contains("id=\"limits-note\""));
+    for method in ["fitexy", "bces-yx", "bces-orthogonal"] {
+        let body = app.ok(&format!("/relations/m_sigma?method={method}")).await;
+        assert!(body.contains("id=\"params\""), "{method}: {body}");
+        assert_eq!(dd_number(&body, "n-limits"), 0, "{method}");
+        assert_eq!(dd_number(&body, "n-detections"), detections, "{method}");
+        let words = if limits == 1 {
+            "1 upper limit left out".to_owned()
+        } else {
+            format!("{limits} upper limits left out")
+        };
+        assert!(body.contains(&words), "{method}: {body}");
+        assert!(body.contains("id=\"limits-note\""), "{method}");
+    }
+    let json = app.ok("/relations/m_sigma/fit.json?method=fitexy").await;
+    let v: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(v["limits_left_out"], limits);
+    assert_eq!(v["n_upper"], 0);
+    assert!(v["fit"].is_object(), "{v}");
+    assert!(
+        v["limits_notice"].as_str().unwrap().contains("FITEXY"),
+        "{v}"
+    );
+    let csv = app.ok("/relations/m_sigma/sample.csv?method=fitexy").await;
+    assert_eq!(csv.lines().count() - 1, detections);
+    // The API answers the same, and keeps the estimator's refusal when limits are asked for.
+    let reader = app.login_as(massline::auth::Role::Member).await;
+    let mut reader = reader;
+    let r = reader
+        .get("/api/v1/relations/m_sigma?method=bces-bisector")
+        .await;
+    assert_eq!(r.status, 200, "{}", r.body);
+    let v = r.json();
+    assert_eq!(v["limits_left_out"], limits, "{v}");
+    assert_eq!(v["sample_filter"]["limits"], "exclude");
+    assert!(v["fit"].is_object() && v["problem"].is_null(), "{v}");
+    assert!(v["limits_notice"].as_str().unwrap().contains("BCES"), "{v}");
+    let r = reader
+        .get("/api/v1/relations/m_sigma?method=bces-bisector&limits=include")
+        .await;
+    let v = r.json();
+    assert!(v["fit"].is_null() && v["problem"].is_string(), "{v}");
+    let r = reader.get("/api/v1/relations/m_sigma").await;
+    let v = r.json();
+    assert_eq!(v["limits_left_out"], 0);
+    assert_eq!(v["n_limits"], limits);
+}
+
+#[tokio::test]
+async fn a_pivot_typed_in_km_s_is_read_and_echoed() {
+    let app = spawn_demo_app().await;
+    for typed in ["200", "200%20km%2Fs"] {
+        let (status, body) = app.get(&format!("/relations/m_sigma?pivot={typed}")).await;
+        assert_eq!(status, 200, "{typed}");
+        assert!(
+            body.contains("read as 200 km/s, log10 = 2.3010"),
+            "{typed}: {body}"
+        );
+        assert!(body.contains("id=\"params\""), "{typed}");
+        assert!(!body.contains("id=\"query-errors\""), "{typed}");
+    }
+    // The same fit as the log10 pivot (log10 200 = 2.30103, computed).
+    let a = app.ok("/relations/m_sigma/fit.json?pivot=200").await;
+    let b = app.ok("/relations/m_sigma/fit.json").await;
+    let (a, b): (serde_json::Value, serde_json::Value) = (
+        serde_json::from_str(&a).unwrap(),
+        serde_json::from_str(&b).unwrap(),
+    );
+    let (pa, pb) = (
+        a["pivot_log"].as_f64().unwrap(),
+        b["pivot_log"].as_f64().unwrap(),
+    );
+    assert!((pa - pb).abs() < 1e-12, "{pa} vs {pb}");
+    // A bulge mass in M☉.
+    let body = app.ok("/relations/m_mbulge?pivot=1e11%20Msun").await;
+    assert!(
+        body.contains("read as 1×10^11 M☉, log10 = 11.0000"),
+        "{body}"
+    );
+}
+
+#[tokio::test]
+async fn the_relation_pages_say_counts_times_and_parameters_in_words() {
+    let app = spawn_demo_app().await;
+    let list = app.ok("/relations").await;
+    assert!(list.contains("measurements and"), "{list}");
+    assert!(
+        list.matches("upper limit").count() >= 5,
+        "each relation says its sample in words: {list}"
+    );
+    assert!(
+        list.contains("/relations/m_sigma/fit.json"),
+        "downloads on the list"
+    );
+    assert!(list.contains("href=\"/api\""), "the API page is linked");
+    let body = app.ok("/relations/m_sigma?method=fitexy").await;
+    // ε of FITEXY has no error of its own: rounded, not every digit.
+    let long_number = regex_free_long_number(&body);
+    assert!(long_number.is_none(), "{long_number:?}");
+    assert!(
+        body.contains("Cov(α, β)") && body.contains("Var(ε)"),
+        "{body}"
+    );
+    assert!(!body.contains(">alpha<") && !body.contains(">eps<"));
+    assert!(!body.contains(" 1 galaxies"));
+    assert!(body.contains("<time datetime=\""), "{body}");
+    assert!(body.contains(" UTC</time>"), "{body}");
+    assert!(body.contains("id=\"downloads\""));
+    assert!(body.contains("href=\"/api\""));
+}
+
+/// The first run of ten or more digits after a decimal point in a page, outside its SVG charts
+/// (whose coordinates are numbers), if any.
+fn regex_free_long_number(body: &str) -> Option<String> {
+    let mut text = String::new();
+    let mut rest = body;
+    while let Some(start) = rest.find("<svg") {
+        text.push_str(&rest[..start]);
+        rest = rest[start..]
+            .find("</svg>")
+            .map_or("", |end| &rest[start + end..]);
+    }
+    text.push_str(rest);
+    let bytes: Vec<char> = text.chars().collect();
+    for (i, c) in bytes.iter().enumerate() {
+        if *c == '.' {
+            let digits = bytes[i + 1..]
+                .iter()
+                .take_while(|d| d.is_ascii_digit())
+                .count();
+            if digits >= 10 {
+                return Some(bytes[i.saturating_sub(3)..i + 1 + digits].iter().collect());
+            }
+        }
+    }
+    None
 }
 
 #[tokio::test]

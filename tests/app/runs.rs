@@ -270,3 +270,75 @@ async fn the_openapi_document_describes_the_queue_position_and_the_429_of_a_run(
     assert!(refusal.contains("runs waiting"), "{start}");
     assert!(doc["paths"]["/api/v1/runs/{id}"]["get"].is_object());
 }
+
+#[tokio::test]
+async fn a_run_started_on_the_page_is_followed_by_its_script_with_the_page_session() {
+    let app = spawn_demo_app().await;
+    let _held = Held::new(&app, 1);
+    let mut member = app.login_as(Role::Member).await;
+    let page = member.get("/relations/m_sigma").await;
+    assert_eq!(page.status, 200);
+    assert!(
+        !page.body.contains("/static/runs.js"),
+        "no script without a run"
+    );
+    let r = member
+        .post(
+            "/relations/m_sigma/runs",
+            &[("kind", "bootstrap"), ("size", "150"), ("query", "")],
+        )
+        .await;
+    assert_eq!(r.status, 303, "{}", r.body);
+    let back = r.headers["location"].to_str().unwrap().to_owned();
+    assert!(back.ends_with("#runs"), "{back}");
+    let page = member.get(back.trim_end_matches("#runs")).await;
+    // The progress line names the run for the script and is announced politely; without
+    // script the page reloads itself and offers a link.
+    assert!(
+        page.body
+            .contains("<script src=\"/static/runs.js\" defer></script>")
+    );
+    assert!(page.body.contains("<noscript><meta http-equiv=\"refresh\""));
+    let at = page
+        .body
+        .find("data-run-id=\"")
+        .expect("a run id on the page")
+        + 13;
+    let id: u64 = page.body[at..at + page.body[at..].find('"').unwrap()]
+        .parse()
+        .unwrap();
+    assert!(page.body.contains("aria-live=\"polite\""));
+    assert!(page.body.contains(">Refresh</a>"));
+    // The script's question, asked with the page's session.
+    let status = member.get(&format!("/api/v1/runs/{id}")).await;
+    assert_eq!(status.status, 200, "{}", status.body);
+    let v = status.json();
+    assert!(v["status"] == "running" || v["status"] == "queued", "{v}");
+    // The script is served from the server itself, as a script.
+    let script = member.get("/static/runs.js").await;
+    assert_eq!(script.status, 200);
+    assert!(
+        script.headers["content-type"]
+            .to_str()
+            .unwrap()
+            .starts_with("text/javascript")
+    );
+    assert!(script.body.contains("/api/v1/runs/"));
+    assert!(script.body.contains("location.reload"));
+    // Once the run is done, the page shows its result without a script.
+    app.state.runs.hold_runs(false);
+    for _ in 0..2000 {
+        let v = member.get(&format!("/api/v1/runs/{id}")).await.json();
+        if v["status"] == "stored" {
+            break;
+        }
+        tokio::time::sleep(std::time::Duration::from_millis(25)).await;
+    }
+    let page = member.get(back.trim_end_matches("#runs")).await;
+    assert!(!page.body.contains("data-run-id"), "{}", page.body);
+    assert!(
+        page.body.contains("Stored <time datetime="),
+        "{}",
+        page.body
+    );
+}

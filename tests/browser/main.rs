@@ -14,6 +14,7 @@ mod api_token;
 mod csv_upload;
 mod phone;
 mod place_link;
+mod relation_form;
 mod review_accept;
 mod review_keyboard;
 mod review_reject;
