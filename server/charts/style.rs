@@ -75,6 +75,18 @@ pub(super) const HIGHLIGHT_FILL: Rgb = Rgb(0xF2, 0xB7, 0x05);
 /// Outline of the highlighted object's star, dark so it reads against any band or marker.
 pub(super) const HIGHLIGHT_STROKE: Rgb = Rgb(0x11, 0x11, 0x11);
 
+/// The ring around an outlier's marker: a dark red that is not one of the group colours, and a
+/// shape of its own (a ring), so it reads without colour too (7.3:1 against white).
+pub(super) const OUTLIER_RING: Rgb = Rgb(0xA1, 0x1D, 0x2B);
+/// Radius of the outlier ring in pixels: clear of every marker shape.
+pub(super) const RING_RADIUS: f64 = 9.5;
+/// The marker drawn inside the legend's ring: a neutral open circle.
+pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
+    colour: Rgb(0x6B, 0x7B, 0x8C),
+    shape: Shape::Circle,
+    filled: false,
+};
+
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
 /// Outer radius of the highlight star in pixels.
@@ -261,5 +273,16 @@ pub(super) fn arrow_element(x: f64, y: f64, length: f64, colour: Rgb) -> String 
         r = num(x + head_w),
         h = num(tip - head_h),
         c = colour.hex()
+    )
+}
+
+/// The ring around an outlier's marker, centred at (cx, cy) pixels, with `class="outlier-ring"`.
+pub(super) fn ring_element(cx: f64, cy: f64) -> String {
+    format!(
+        r#"<circle class="outlier-ring" cx="{}" cy="{}" r="{}" fill="none" stroke="{}" stroke-width="2"/>"#,
+        num(cx),
+        num(cy),
+        num(RING_RADIUS),
+        OUTLIER_RING.hex()
     )
 }

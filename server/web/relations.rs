@@ -869,6 +869,7 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         upper_limit: p.upper_limit,
         group,
         emphasis: false,
+        outlier: false,
     }
 }
 
@@ -911,13 +912,24 @@ pub(super) fn relation_chart(
         ),
         _ => vec![false; sample.len()],
     };
+    // The outliers the page lists are ringed on the chart.
+    let mut outliers = vec![false; sample.len()];
+    for r in fit
+        .map(|f| crate::fit::residuals(f, sample))
+        .unwrap_or_default()
+    {
+        if let Some(o) = outliers.get_mut(r.index) {
+            *o = crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
+        }
+    }
     let points: Vec<ChartPoint> = sample
         .iter()
         .zip(&outcome.sample.members)
         .zip(&index)
-        .zip(&marks)
-        .map(|(((p, m), g), &emphasis)| ChartPoint {
+        .zip(marks.iter().zip(&outliers))
+        .map(|(((p, m), g), (&emphasis, &outlier))| ChartPoint {
             emphasis,
+            outlier,
             ..chart_point(m, p, p.x, chart_y(fit, p), *g)
         })
         .collect();
