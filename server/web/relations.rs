@@ -1412,7 +1412,12 @@ pub(crate) async fn download_chart(
     let drawn = state
         .fits
         .drawn(&outcome.key, &format!("svg;group={:?}", q.group), || {
-            vec![relation_chart_svg(&relation, &outcome, q.group)]
+            // A file opened on its own draws its title; the page's heading names the page chart.
+            let chart = RelationChart {
+                show_title: true,
+                ..relation_chart(&relation, &outcome, q.group)
+            };
+            vec![relation_svg(&chart).map_err(|e| e.to_string())]
         });
     let svg = drawn[0].clone().map_err(AppError::bad_request)?;
     Ok(download(

@@ -119,6 +119,10 @@ async fn outliers_are_ringed_and_chart_points_are_no_tab_stops() {
     assert!(svg[k..end].contains("class=\"outlier-ring\""), "X 7 ringed");
     assert!(svg.contains(">Outlier (ringed)</text>"));
     assert!(svg.contains("outlier ringed: X 7."), "the summary names it");
-    // The page heading names the chart; the chart itself draws no title.
     assert!(svg.contains("role=\"img\""));
+    // The downloaded file stands alone with its drawn title; the page's chart leaves it to the
+    // page heading.
+    assert!(svg.contains("M_BH–σ\n</text>"), "the file is titled");
+    let page = app.ok("/relations/m_sigma").await;
+    assert!(!page.contains("M_BH–σ\n</text>"), "the page chart is not");
 }
