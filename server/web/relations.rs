@@ -1137,6 +1137,8 @@ fn residual_charts(
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
                 c.emphasis = emphasis;
+                c.outlier =
+                    crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
                 Some(c)
             })
             .collect()

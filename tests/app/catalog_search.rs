@@ -120,6 +120,16 @@ async fn outliers_are_ringed_and_chart_points_are_no_tab_stops() {
     assert!(svg.contains(">Outlier (ringed)</text>"));
     assert!(svg.contains("outlier ringed: X 7."), "the summary names it");
     assert!(svg.contains("role=\"img\""));
+    // The residual charts on the page ring it too.
+    let page_rings = count(
+        &app.ok("/relations/m_sigma").await,
+        "class=\"outlier-ring\"",
+    );
+    assert_eq!(
+        page_rings,
+        3 * 2,
+        "one point and one legend ring on each of three charts"
+    );
     // The downloaded file stands alone with its drawn title; the page's chart leaves it to the
     // page heading.
     assert!(svg.contains("M_BH–σ\n</text>"), "the file is titled");
