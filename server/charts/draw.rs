@@ -189,6 +189,15 @@ pub(super) fn residual(chart: &ResidualChart) -> Result<String, ChartError> {
 }
 
 pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, ChartError> {
+    render(&relation_scene(chart)?)
+}
+
+/// The relation chart as a PNG at print resolution (see [`super::relation_png`]).
+pub(super) fn relation_png(chart: &RelationChart) -> Result<Vec<u8>, ChartError> {
+    render_png(&relation_scene(chart)?)
+}
+
+fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
     check_size(chart.width, chart.height)?;
     check_points(&chart.points, chart.groups.len())?;
     if let Some(h) = &chart.highlight {
@@ -298,7 +307,7 @@ pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, Chart
         text.push('.');
         text
     });
-    render(&Scene {
+    Ok(Scene {
         title: &chart.title,
         show_title: chart.show_title,
         summary: summary(
@@ -824,6 +833,7 @@ fn render(scene: &Scene<'_>) -> Result<Rendered, ChartError> {
 
 /// The plotters pass: background, title, underlay fills, grid, axes with labels, lines.
 fn draw_frame(buf: &mut String, scene: &Scene<'_>) -> Result<Frame, ChartError> {
+    style::register_font();
     let b = scene.bounds;
     let root = SVGBackend::with_string(buf, (scene.width, scene.height)).into_drawing_area();
     root.fill(&WHITE).map_err(drawing_error)?;
@@ -1277,4 +1287,298 @@ fn wrap_label(label: &str, max_chars: usize) -> Vec<String> {
         ],
         _ => vec![truncate(label, max_chars)],
     }
+}
+
+// ---------------------------------------------------------------------------------------------
+// PNG
+
+/// Draws a scene on a bitmap of [`super::PNG_WIDTH`] × [`super::PNG_HEIGHT`] pixels, every size
+/// scaled from the chart's own, and encodes it as PNG marked with [`super::PNG_DPI`]. Every point
+/// is drawn one by one (a bitmap's weight does not grow with them), with its error bars, limit
+/// arrow, marker and outlier ring, and the legend without the density's rows.
+fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
+    use plotters::prelude::{BitMapBackend, Circle, Polygon, Text};
+    use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+    style::register_font();
+    let (w, h) = (super::PNG_WIDTH, super::PNG_HEIGHT);
+    let k = f64::from(w) / f64::from(scene.width);
+    let px = |v: f64| -> i32 {
+        #[expect(clippy::cast_possible_truncation, reason = "pixel sizes are small")]
+        let p = (v * k).round() as i32;
+        p
+    };
+    let upx = |v: u32| u32::try_from(px(f64::from(v))).unwrap_or(1).max(1);
+    let b = scene.bounds;
+    let ink = INK.plotters();
+    let mut buf = vec![255u8; (w as usize) * (h as usize) * 3];
+    {
+        let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
+        root.fill(&WHITE).map_err(drawing_error)?;
+        let area = if !scene.show_title || scene.title.trim().is_empty() {
+            root.clone()
+        } else {
+            let font = (FONT_FAMILY, TITLE_FONT * k).into_font().color(&ink);
+            root.titled(&clean(scene.title), font)
+                .map_err(drawing_error)?
+        };
+        let (plot_area, legend_area) = area.split_horizontally(w - upx(legend_width(scene.width)));
+        let mut chart = ChartBuilder::on(&plot_area)
+            .margin(upx(MARGIN))
+            .x_label_area_size(upx(X_LABEL_AREA))
+            .y_label_area_size(upx(Y_LABEL_AREA))
+            .build_cartesian_2d(b.x_min..b.x_max, b.y_min..b.y_max)
+            .map_err(drawing_error)?;
+        let (prx, pry) = chart.plotting_area().get_pixel_range();
+        if !scene.is_blank() {
+            let x_ticks = usize::try_from((prx.end - prx.start) / px(80.0).max(1))
+                .unwrap_or(5)
+                .clamp(3, 10);
+            let y_ticks = usize::try_from((pry.end - pry.start) / px(60.0).max(1))
+                .unwrap_or(5)
+                .clamp(3, 10);
+            let x_decimals = tick_decimals(b.x_min, b.x_max, x_ticks);
+            let y_decimals = tick_decimals(b.y_min, b.y_max, y_ticks);
+            let x_fmt = |v: &f64| tick_label(*v, x_decimals);
+            let y_fmt = |v: &f64| tick_label(*v, y_decimals);
+            chart
+                .configure_mesh()
+                .x_desc(clean(scene.x_label))
+                .y_desc(clean(scene.y_label))
+                .x_labels(x_ticks)
+                .y_labels(y_ticks)
+                .x_label_formatter(&x_fmt)
+                .y_label_formatter(&y_fmt)
+                .label_style((FONT_FAMILY, TICK_FONT * k).into_font().color(&ink))
+                .axis_desc_style((FONT_FAMILY, AXIS_FONT * k).into_font().color(&ink))
+                .bold_line_style(GRID.plotters().stroke_width(upx(1)))
+                .light_line_style(TRANSPARENT)
+                .axis_style(ink.stroke_width(upx(1)))
+                .draw()
+                .map_err(drawing_error)?;
+            for fill in &scene.fills {
+                let style = fill.tint.colour.plotters().mix(fill.tint.opacity).filled();
+                chart
+                    .draw_series(std::iter::once(Polygon::new(fill.outline.clone(), style)))
+                    .map_err(drawing_error)?;
+            }
+            for stroke in &scene.strokes {
+                let style = stroke.colour.plotters().stroke_width(upx(stroke.width));
+                chart
+                    .draw_series(
+                        stroke
+                            .runs
+                            .iter()
+                            .map(|run| PathElement::new(run.clone(), style)),
+                    )
+                    .map_err(drawing_error)?;
+            }
+        }
+        let at = |x: f64, y: f64| chart.backend_coord(&(x, y));
+        let offset = |c: (i32, i32), pts: &[(f64, f64)]| -> Vec<(i32, i32)> {
+            pts.iter()
+                .map(|&(dx, dy)| (c.0 + px(dx), c.1 + px(dy)))
+                .collect()
+        };
+        let marker = |c: (i32, i32), m: MarkerStyle| -> Result<(), ChartError> {
+            let colour = m.colour.plotters();
+            let fill = if m.filled {
+                colour.filled()
+            } else {
+                WHITE.filled()
+            };
+            let edge = colour.stroke_width(upx(if m.filled { 1 } else { 2 }));
+            match style::marker_offsets(m.shape, style::MARKER_RADIUS) {
+                None => {
+                    let r = px(style::MARKER_RADIUS);
+                    root.draw(&Circle::new(c, r, fill)).map_err(drawing_error)?;
+                    root.draw(&Circle::new(c, r, edge)).map_err(drawing_error)?;
+                }
+                Some(o) => {
+                    let mut outline = offset(c, &o);
+                    root.draw(&Polygon::new(outline.clone(), fill))
+                        .map_err(drawing_error)?;
+                    outline.push(outline[0]);
+                    root.draw(&PathElement::new(outline, edge))
+                        .map_err(drawing_error)?;
+                }
+            }
+            Ok(())
+        };
+        let ring = |c: (i32, i32)| {
+            root.draw(&Circle::new(
+                c,
+                px(style::RING_RADIUS),
+                style::OUTLIER_RING.plotters().stroke_width(upx(2)),
+            ))
+            .map_err(drawing_error)
+        };
+        let arrow = |c: (i32, i32), length: f64, colour: Rgb| {
+            let tip = (c.0, c.1 + px(length));
+            let stroke = colour.plotters().stroke_width(upx(2));
+            root.draw(&PathElement::new(vec![c, tip], stroke))
+                .map_err(drawing_error)?;
+            root.draw(&PathElement::new(
+                vec![
+                    (tip.0 - px(4.5), tip.1 - px(6.0)),
+                    tip,
+                    (tip.0 + px(4.5), tip.1 - px(6.0)),
+                ],
+                stroke,
+            ))
+            .map_err(drawing_error)
+        };
+        let bars = |p: &ChartPoint, colour: Rgb| -> Result<(), ChartError> {
+            let c = at(p.x, p.y);
+            let stroke = colour.plotters().mix(0.75).stroke_width(upx(1));
+            if p.x_err > 0.0 {
+                root.draw(&PathElement::new(
+                    vec![at(p.x - p.x_err, p.y), at(p.x + p.x_err, p.y)],
+                    stroke,
+                ))
+                .map_err(drawing_error)?;
+            }
+            if p.upper_limit {
+                let room = f64::from(pry.end - 2 - c.1) / k;
+                let length = f64::from(ARROW_PX).min(room).max(f64::from(ARROW_MIN_PX));
+                arrow(c, length, colour)?;
+            } else if p.y_err_minus > 0.0 || p.y_err_plus > 0.0 {
+                root.draw(&PathElement::new(
+                    vec![at(p.x, p.y - p.y_err_minus), at(p.x, p.y + p.y_err_plus)],
+                    stroke,
+                ))
+                .map_err(drawing_error)?;
+            }
+            Ok(())
+        };
+        if !scene.is_empty() {
+            for p in scene.points {
+                let m = style::group_style(p.group);
+                bars(p, m.colour)?;
+                marker(at(p.x, p.y), m)?;
+                if p.outlier {
+                    ring(at(p.x, p.y))?;
+                }
+            }
+        }
+        if let Some(hl) = scene.highlight {
+            let c = at(hl.x, hl.y);
+            let star = offset(c, &style::star_offsets(HIGHLIGHT_RADIUS));
+            root.draw(&Polygon::new(
+                star.clone(),
+                style::HIGHLIGHT_FILL.plotters().filled(),
+            ))
+            .map_err(drawing_error)?;
+            let mut edge = star;
+            edge.push(edge[0]);
+            root.draw(&PathElement::new(
+                edge,
+                HIGHLIGHT_STROKE.plotters().stroke_width(upx(2)),
+            ))
+            .map_err(drawing_error)?;
+            bars(hl, HIGHLIGHT_STROKE)?;
+        }
+
+        // The legend: one row per entry, the label on one line (shortened if needed).
+        let left = legend_area.get_base_pixel().0;
+        let sx = left + px(22.0);
+        let tx = left + px(40.0);
+        let font = (FONT_FAMILY, LEGEND_FONT_PX * k * 1.24)
+            .into_font()
+            .color(&ink)
+            .pos(Pos::new(HPos::Left, VPos::Center));
+        let room = f64::from(i32::try_from(w).unwrap_or(i32::MAX) - tx) / k - 6.0;
+        #[expect(
+            clippy::cast_possible_truncation,
+            clippy::cast_sign_loss,
+            reason = "the value is floored and at least 4"
+        )]
+        let max_chars = (room / (LEGEND_FONT_PX * GLYPH_EM)).floor().max(4.0) as usize;
+        let mut y = pry.start + px(12.0);
+        for entry in &scene.legend {
+            if y > pry.end - px(10.0) {
+                break;
+            }
+            let c = (sx, y);
+            match &entry.symbol {
+                Symbol::Marker(m) => marker(c, *m)?,
+                Symbol::Star => {
+                    let star = offset(c, &style::star_offsets(8.0));
+                    root.draw(&Polygon::new(
+                        star,
+                        style::HIGHLIGHT_FILL.plotters().filled(),
+                    ))
+                    .map_err(drawing_error)?;
+                }
+                Symbol::Arrow => arrow((sx, y - px(9.0)), 18.0, INK)?,
+                Symbol::Ring => {
+                    marker(c, style::RING_SAMPLE)?;
+                    ring(c)?;
+                }
+                Symbol::Line(colour, width) => {
+                    root.draw(&PathElement::new(
+                        vec![(sx - px(12.0), y), (sx + px(12.0), y)],
+                        colour.plotters().stroke_width(upx(*width)),
+                    ))
+                    .map_err(drawing_error)?;
+                }
+                Symbol::Swatch(layers) => {
+                    for tint in layers {
+                        root.draw(&plotters::element::Rectangle::new(
+                            [(sx - px(12.0), y - px(6.0)), (sx + px(12.0), y + px(6.0))],
+                            tint.colour.plotters().mix(tint.opacity).filled(),
+                        ))
+                        .map_err(drawing_error)?;
+                    }
+                }
+                Symbol::Shade(_) | Symbol::Blank => {}
+            }
+            root.draw(&Text::new(
+                truncate(&clean(&entry.label), max_chars),
+                (tx, y),
+                font.clone(),
+            ))
+            .map_err(drawing_error)?;
+            y += px(f64::from(LEGEND_ROW));
+        }
+        if scene.is_empty() {
+            let centre = Pos::new(HPos::Center, VPos::Center);
+            let cx = (prx.start + prx.end) / 2;
+            let cy = (pry.start + pry.end) / 2;
+            for (i, line) in [EMPTY_MESSAGE, EMPTY_HINT].iter().enumerate() {
+                root.draw(&Text::new(
+                    (*line).to_owned(),
+                    (cx, cy + px(22.0) * i32::try_from(i).unwrap_or(0)),
+                    (FONT_FAMILY, 15.0 * k * 1.24)
+                        .into_font()
+                        .color(&ink)
+                        .pos(centre),
+                ))
+                .map_err(drawing_error)?;
+            }
+        }
+        root.present().map_err(drawing_error)?;
+    }
+    let mut out = Vec::new();
+    {
+        let mut encoder = png::Encoder::new(&mut out, w, h);
+        encoder.set_color(png::ColorType::Rgb);
+        encoder.set_depth(png::BitDepth::Eight);
+        // Pixels per metre: dpi / 0.0254 m.
+        let ppm = (f64::from(super::PNG_DPI) / 0.0254).round();
+        #[expect(
+            clippy::cast_possible_truncation,
+            clippy::cast_sign_loss,
+            reason = "a few thousand pixels per metre"
+        )]
+        let ppm = ppm as u32;
+        encoder.set_pixel_dims(Some(png::PixelDimensions {
+            xppu: ppm,
+            yppu: ppm,
+            unit: png::Unit::Meter,
+        }));
+        let mut writer = encoder.write_header().map_err(drawing_error)?;
+        writer.write_image_data(&buf).map_err(drawing_error)?;
+    }
+    Ok(out)
 }

@@ -355,6 +355,25 @@ pub fn residual_svg(chart: &ResidualChart) -> Result<String, ChartError> {
     draw::residual(chart)
 }
 
+/// Width of the PNG chart in pixels: 3.5 inches at [`PNG_DPI`], a single journal column
+/// (common practice: single columns are about 3.3–3.5 inches wide).
+pub const PNG_WIDTH: u32 = 1050;
+/// Height of the PNG chart in pixels (the SVG chart's 3:2 proportions).
+pub const PNG_HEIGHT: u32 = 700;
+/// Resolution written into the PNG, in dots per inch (common practice for print figures).
+pub const PNG_DPI: u32 = 300;
+
+/// Draws the relation chart as a PNG of [`PNG_WIDTH`] × [`PNG_HEIGHT`] pixels marked with
+/// [`PNG_DPI`], for print: as [`relation_svg`], with every point drawn one by one, without
+/// links, and text in the embedded DejaVu Sans.
+///
+/// # Errors
+///
+/// As [`relation_svg`].
+pub fn relation_png(chart: &RelationChart) -> Result<Vec<u8>, ChartError> {
+    draw::relation_png(chart)
+}
+
 /// x-axis label for the M_BH–σ relation: `log₁₀ σ [km/s]`.
 #[must_use]
 pub fn sigma_axis_label() -> String {

@@ -1799,3 +1799,35 @@ fn the_highlighted_objects_error_bars_are_drawn_over_its_star() {
     let halo = chunk.find("class=\"halo\"").expect("halo");
     assert!(star < halo && halo < bar, "star, then halo, then bar");
 }
+
+#[test]
+fn the_png_is_a_png_of_the_print_size_with_its_resolution() {
+    let chart = RelationChart {
+        show_title: true,
+        ..small_chart()
+    };
+    let mut chart = chart;
+    chart.points[1].outlier = true;
+    chart.highlight = Some(point("Placed", 2.25, 8.0, 0));
+    let png = relation_png(&chart).expect("chart draws");
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
+    let decoder = ::png::Decoder::new(std::io::Cursor::new(png.as_slice()));
+    let reader = decoder.read_info().expect("a readable PNG");
+    let info = reader.info();
+    assert_eq!((info.width, info.height), (PNG_WIDTH, PNG_HEIGHT));
+    let dims = info.pixel_dims.expect("resolution recorded");
+    // 300 dpi = 11,811 pixels per metre (300 / 0.0254, rounded).
+    assert_eq!((dims.xppu, dims.yppu), (11_811, 11_811));
+    // Not a blank page: the points, line and text put many dark pixels on it.
+    let mut reader = reader;
+    let mut pixels = vec![0; reader.output_buffer_size()];
+    reader.next_frame(&mut pixels).expect("pixels");
+    let dark = pixels
+        .chunks(3)
+        .filter(|p| p.iter().all(|&c| c < 100))
+        .count();
+    assert!(dark > 2_000, "{dark} dark pixels");
+    // A blank selection draws too.
+    let empty = relation_png(&RelationChart::default()).expect("empty chart draws");
+    assert_eq!(&empty[..8], b"\x89PNG\r\n\x1a\n");
+}

@@ -1429,6 +1429,36 @@ pub(crate) async fn download_chart(
     ))
 }
 
+/// `/relations/{relation}/chart.png`: the relation chart for print (`charts::relation_png`),
+/// titled, for the same query as `chart.svg`.
+pub(crate) async fn download_chart_png(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let q = read_query(query)?;
+    let relation = relation_named(&state, &slug).await?;
+    let outcome = fit_for(&state, &relation, &q).await?;
+    let chart = RelationChart {
+        show_title: true,
+        ..relation_chart(&relation, &outcome, q.group)
+    };
+    let png =
+        crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
+    let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
+    Ok((
+        [
+            (header::CONTENT_TYPE, "image/png".to_owned()),
+            (
+                header::CONTENT_DISPOSITION,
+                format!("attachment; filename=\"{filename}\""),
+            ),
+        ],
+        png,
+    )
+        .into_response())
+}
+
 /// `/relations/{relation}/fit.json`: the fit and its settings.
 pub(crate) async fn download_fit(
     State(state): State<AppState>,

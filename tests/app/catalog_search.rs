@@ -136,3 +136,44 @@ async fn outliers_are_ringed_and_chart_points_are_no_tab_stops() {
     let page = app.ok("/relations/m_sigma").await;
     assert!(!page.contains("M_BH–σ\n</text>"), "the page chart is not");
 }
+
+#[tokio::test]
+async fn the_chart_comes_as_a_png_for_print() {
+    let app = app_with(25, |i| i == 7).await;
+    let r = app
+        .client
+        .get(format!(
+            "{}/relations/m_sigma/chart.png?morphology=elliptical",
+            app.address
+        ))
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status(), 200);
+    assert_eq!(r.headers()["content-type"], "image/png");
+    let disposition = r.headers()["content-disposition"]
+        .to_str()
+        .unwrap()
+        .to_owned();
+    assert!(
+        disposition.starts_with("attachment; filename=\"m_sigma-")
+            && disposition.ends_with(".png\""),
+        "{disposition}"
+    );
+    let bytes = r.bytes().await.unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
+    // Width and height from the IHDR chunk, big-endian, after the signature and chunk header.
+    let width = u32::from_be_bytes(bytes[16..20].try_into().unwrap());
+    let height = u32::from_be_bytes(bytes[20..24].try_into().unwrap());
+    assert_eq!(
+        (width, height),
+        (massline::charts::PNG_WIDTH, massline::charts::PNG_HEIGHT)
+    );
+    let page = app.ok("/relations/m_sigma").await;
+    assert!(
+        page.contains("href=\"/relations/m_sigma/chart.png"),
+        "linked beside the SVG"
+    );
+    let (status, _) = app.get("/relations/m_sigma/chart.png?method=eyeball").await;
+    assert_eq!(status, 400);
+}
