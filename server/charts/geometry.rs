@@ -219,3 +219,69 @@ pub(super) fn tick_decimals(lo: f64, hi: f64, max_ticks: usize) -> usize {
         _ => 1,
     }
 }
+
+/// The band of the mean relation, sorted by x, carried on to `x_min` and `x_max` when its samples
+/// stop short of them, so the band ends at the frame with the line instead of in vertical cuts at
+/// the data's extremes.
+///
+/// For a straight-line fit the band's half-width is √(σ²_α + 2 cov(α, β) Δx + σ²_β Δx²), so its
+/// square is a quadratic in x (the variance of a linear combination of the parameters; any
+/// regression text, e.g. Press et al., Numerical Recipes, §15.2, from memory). The square of the
+/// half-width is therefore interpolated through the first, middle and last samples and evaluated
+/// at the frame's edges (never narrower than the narrowest sample). The centre follows `line`
+/// when there is one, otherwise the straight continuation of the two end samples. With fewer than
+/// three samples the band is returned as it is.
+pub(super) fn extend_band(
+    band: &[super::BandPoint],
+    line: Option<&LineSpec>,
+    x_min: f64,
+    x_max: f64,
+) -> Vec<super::BandPoint> {
+    let mut out: Vec<super::BandPoint> = band.to_vec();
+    out.sort_by(|a, b| a.x.total_cmp(&b.x));
+    let n = out.len();
+    if n < 3 {
+        return out;
+    }
+    let half = |s: &super::BandPoint| 0.5 * (s.upper - s.lower);
+    let centre = |s: &super::BandPoint| 0.5 * (s.upper + s.lower);
+    let (a, m, z) = (out[0], out[n / 2], out[n - 1]);
+    let (x0, x1, x2) = (a.x, m.x, z.x);
+    if !(x0 < x1 && x1 < x2) {
+        return out;
+    }
+    let (w0, w1, w2) = (half(&a).powi(2), half(&m).powi(2), half(&z).powi(2));
+    let floor = out.iter().map(half).fold(f64::INFINITY, f64::min).max(0.0);
+    // Lagrange interpolation of w² through the three samples.
+    let width_at = |x: f64| {
+        let sq = w0 * (x - x1) * (x - x2) / ((x0 - x1) * (x0 - x2))
+            + w1 * (x - x0) * (x - x2) / ((x1 - x0) * (x1 - x2))
+            + w2 * (x - x0) * (x - x1) / ((x2 - x0) * (x2 - x1));
+        sq.max(0.0).sqrt().max(floor)
+    };
+    let centre_at = |x: f64, near: &super::BandPoint, next: &super::BandPoint| match line {
+        Some(l) => l.y_at(x),
+        None => {
+            let slope = (centre(next) - centre(near)) / (next.x - near.x);
+            centre(near) + slope * (x - near.x)
+        }
+    };
+    let sample = |x: f64, near: &super::BandPoint, next: &super::BandPoint| {
+        let (c, w) = (centre_at(x, near, next), width_at(x));
+        super::BandPoint {
+            x,
+            lower: c - w,
+            upper: c + w,
+        }
+    };
+    if x_min < x0 {
+        let s = sample(x_min, &out[0], &out[1]);
+        out.insert(0, s);
+    }
+    if x_max > x2 {
+        let last = out.len() - 1;
+        let s = sample(x_max, &out[last], &out[last - 1]);
+        out.push(s);
+    }
+    out
+}

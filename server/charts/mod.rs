@@ -46,7 +46,9 @@ pub const MIN_HEIGHT: u32 = 320;
 /// Largest accepted chart width or height in pixels.
 pub const MAX_SIZE: u32 = 4000;
 /// The message an empty chart shows in its frame.
-pub const EMPTY_MESSAGE: &str = "No objects match this selection";
+pub const EMPTY_MESSAGE: &str = "No object matches this selection";
+/// The second line of the empty chart's message: what to change.
+pub const EMPTY_HINT: &str = "Widen or clear the filters above to include objects.";
 
 /// Above this many points a chart draws the sample as a density (shaded cells of a grid over the
 /// plot) and only the points that matter one by one. Each individually drawn point costs about
@@ -101,6 +103,9 @@ pub struct ChartPoint {
     /// sample as a density (above [`DENSITY_THRESHOLD`] points), e.g. an object off the relation.
     /// It changes nothing on a chart with fewer points, where every point is drawn.
     pub emphasis: bool,
+    /// `true` when the object is an outlier from the fitted relation (the page lists it): the
+    /// chart rings its marker and names the ring in the legend.
+    pub outlier: bool,
 }
 
 /// A group of points sharing one marker style, named in the legend (e.g. a morphology).
@@ -168,8 +173,12 @@ pub struct BandPoint {
 /// and nothing to draw.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RelationChart {
-    /// Title above the chart; empty for none.
+    /// Name of the chart: its accessible name, and drawn above the chart when `show_title` is
+    /// set; empty for none.
     pub title: String,
+    /// `true` draws `title` above the chart, for a file that must stand alone (a download); a
+    /// page chart leaves it off, as the page heading already names the chart.
+    pub show_title: bool,
     /// x-axis label with its unit, e.g. [`sigma_axis_label`].
     pub x_label: String,
     /// y-axis label with its unit, e.g. [`black_hole_mass_axis_label`].
@@ -195,6 +204,7 @@ impl Default for RelationChart {
     fn default() -> Self {
         Self {
             title: String::new(),
+            show_title: false,
             x_label: String::new(),
             y_label: black_hole_mass_axis_label(),
             points: Vec::new(),
@@ -212,8 +222,12 @@ impl Default for RelationChart {
 /// property the caller names, with a zero line and a ±1ε band.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ResidualChart {
-    /// Title above the chart; empty for none.
+    /// Name of the chart: its accessible name, and drawn above the chart when `show_title` is
+    /// set; empty for none.
     pub title: String,
+    /// `true` draws `title` above the chart, for a file that must stand alone (a download); a
+    /// page chart leaves it off, as the page heading already names the chart.
+    pub show_title: bool,
     /// x-axis label with its unit (the relation's x, or a second property).
     pub x_label: String,
     /// y-axis label with its unit, e.g. [`residual_axis_label`].
@@ -236,6 +250,7 @@ impl Default for ResidualChart {
     fn default() -> Self {
         Self {
             title: String::new(),
+            show_title: false,
             x_label: String::new(),
             y_label: residual_axis_label(),
             points: Vec::new(),
@@ -338,6 +353,25 @@ pub fn relation_svg(chart: &RelationChart) -> Result<String, ChartError> {
 /// As [`relation_svg`].
 pub fn residual_svg(chart: &ResidualChart) -> Result<String, ChartError> {
     draw::residual(chart)
+}
+
+/// Width of the PNG chart in pixels: 3.5 inches at [`PNG_DPI`], a single journal column
+/// (common practice: single columns are about 3.3–3.5 inches wide).
+pub const PNG_WIDTH: u32 = 1050;
+/// Height of the PNG chart in pixels (the SVG chart's 3:2 proportions).
+pub const PNG_HEIGHT: u32 = 700;
+/// Resolution written into the PNG, in dots per inch (common practice for print figures).
+pub const PNG_DPI: u32 = 300;
+
+/// Draws the relation chart as a PNG of [`PNG_WIDTH`] × [`PNG_HEIGHT`] pixels marked with
+/// [`PNG_DPI`], for print: as [`relation_svg`], with every point drawn one by one, without
+/// links, and text in the embedded DejaVu Sans.
+///
+/// # Errors
+///
+/// As [`relation_svg`].
+pub fn relation_png(chart: &RelationChart) -> Result<Vec<u8>, ChartError> {
+    draw::relation_png(chart)
 }
 
 /// x-axis label for the M_BH–σ relation: `log₁₀ σ [km/s]`.

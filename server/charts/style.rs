@@ -75,6 +75,18 @@ pub(super) const HIGHLIGHT_FILL: Rgb = Rgb(0xF2, 0xB7, 0x05);
 /// Outline of the highlighted object's star, dark so it reads against any band or marker.
 pub(super) const HIGHLIGHT_STROKE: Rgb = Rgb(0x11, 0x11, 0x11);
 
+/// The ring around an outlier's marker: a dark red that is not one of the group colours, and a
+/// shape of its own (a ring), so it reads without colour too (7.3:1 against white).
+pub(super) const OUTLIER_RING: Rgb = Rgb(0xA1, 0x1D, 0x2B);
+/// Radius of the outlier ring in pixels: clear of every marker shape.
+pub(super) const RING_RADIUS: f64 = 9.5;
+/// The marker drawn inside the legend's ring: a neutral open circle.
+pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
+    colour: Rgb(0x6B, 0x7B, 0x8C),
+    shape: Shape::Circle,
+    filled: false,
+};
+
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
 /// Outer radius of the highlight star in pixels.
@@ -165,26 +177,34 @@ fn polygon_points(cx: f64, cy: f64, offsets: &[(f64, f64)]) -> String {
 
 /// One SVG element drawing a group marker centred at (cx, cy) pixels, with `class="mk"`.
 pub(super) fn marker_element(cx: f64, cy: f64, style: MarkerStyle) -> String {
-    let r = MARKER_RADIUS;
     let paint = paint(style);
+    let Some(offsets) = marker_offsets(style.shape, MARKER_RADIUS) else {
+        return format!(
+            r#"<circle class="mk" cx="{}" cy="{}" r="{}" {paint}/>"#,
+            num(cx),
+            num(cy),
+            num(MARKER_RADIUS)
+        );
+    };
+    format!(
+        r#"<polygon class="mk" points="{}" {paint}/>"#,
+        polygon_points(cx, cy, &offsets)
+    )
+}
+
+/// The outline of a marker of radius `r` as offsets around its centre; `None` for the circle.
+pub(super) fn marker_offsets(shape: Shape, r: f64) -> Option<Vec<(f64, f64)>> {
     // Shapes other than the circle are sized to roughly the circle's area so no group looks
     // heavier than another: a square of side √π r, triangles of circumradius 1.35 r, etc.
-    let offsets: Vec<(f64, f64)> = match style.shape {
-        Shape::Circle => {
-            return format!(
-                r#"<circle class="mk" cx="{}" cy="{}" r="{}" {paint}/>"#,
-                num(cx),
-                num(cy),
-                num(r)
-            );
-        }
+    let offsets: Vec<(f64, f64)> = match shape {
+        Shape::Circle => return None,
         Shape::Square => {
             let h = 0.886 * r;
             vec![(-h, -h), (h, -h), (h, h), (-h, h)]
         }
         Shape::TriangleUp | Shape::TriangleDown => {
             let big = 1.35 * r;
-            let sign = if style.shape == Shape::TriangleUp {
+            let sign = if shape == Shape::TriangleUp {
                 1.0
             } else {
                 -1.0
@@ -220,30 +240,32 @@ pub(super) fn marker_element(cx: f64, cy: f64, style: MarkerStyle) -> String {
             ]
         }
     };
-    format!(
-        r#"<polygon class="mk" points="{}" {paint}/>"#,
-        polygon_points(cx, cy, &offsets)
-    )
+    Some(offsets)
 }
 
 /// A five-pointed star centred at (cx, cy) with outer radius `r` pixels, for the highlighted
 /// object, with `class="mk star"`.
 pub(super) fn star_element(cx: f64, cy: f64, r: f64) -> String {
-    let inner = 0.45 * r;
-    let offsets: Vec<(f64, f64)> = (0..10)
-        .map(|k| {
-            let radius = if k % 2 == 0 { r } else { inner };
-            // Start at the top (−90°) and step 36° between outer and inner vertices.
-            let angle = (f64::from(k) * 36.0 - 90.0).to_radians();
-            (radius * angle.cos(), radius * angle.sin())
-        })
-        .collect();
+    let offsets = star_offsets(r);
     format!(
         r#"<polygon class="mk star" points="{}" fill="{}" stroke="{}" stroke-width="1.5" stroke-linejoin="round"/>"#,
         polygon_points(cx, cy, &offsets),
         HIGHLIGHT_FILL.hex(),
         HIGHLIGHT_STROKE.hex()
     )
+}
+
+/// The outline of a five-pointed star of outer radius `r`, as offsets around its centre.
+pub(super) fn star_offsets(r: f64) -> Vec<(f64, f64)> {
+    let inner = 0.45 * r;
+    (0..10)
+        .map(|k| {
+            let radius = if k % 2 == 0 { r } else { inner };
+            // Start at the top (−90°) and step 36° between outer and inner vertices.
+            let angle = (f64::from(k) * 36.0 - 90.0).to_radians();
+            (radius * angle.cos(), radius * angle.sin())
+        })
+        .collect()
 }
 
 /// A downward arrow from (x, y) pixels, `length` pixels long, as one open path with
@@ -262,4 +284,34 @@ pub(super) fn arrow_element(x: f64, y: f64, length: f64, colour: Rgb) -> String 
         h = num(tip - head_h),
         c = colour.hex()
     )
+}
+
+/// The ring around an outlier's marker, centred at (cx, cy) pixels, with `class="outlier-ring"`.
+pub(super) fn ring_element(cx: f64, cy: f64) -> String {
+    format!(
+        r#"<circle class="outlier-ring" cx="{}" cy="{}" r="{}" fill="none" stroke="{}" stroke-width="2"/>"#,
+        num(cx),
+        num(cy),
+        num(RING_RADIUS),
+        OUTLIER_RING.hex()
+    )
+}
+
+/// DejaVu Sans, embedded so text measures and renders the same on every machine (its licence is
+/// in `fonts/DejaVuSans-LICENSE.txt`).
+static FONT_BYTES: &[u8] = include_bytes!("fonts/DejaVuSans.ttf");
+
+/// Registers the embedded font as [`FONT_FAMILY`] for plotters, once per process. plotters
+/// measures text with it for the SVG (which the browser renders with its own sans-serif) and
+/// draws text with it on the PNG.
+pub(super) fn register_font() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        // The embedded file is a valid font; were it not, plotters would report each text.
+        let _ = plotters::style::register_font(
+            FONT_FAMILY,
+            plotters::style::FontStyle::Normal,
+            FONT_BYTES,
+        );
+    });
 }

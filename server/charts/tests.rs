@@ -4,11 +4,10 @@
 //! All objects here are invented (names like "A-1"); no real galaxy or measurement is used.
 
 use plotters::coord::CoordTranslate as _;
-use plotters::coord::ReverseCoordTranslate as _;
 
 use super::density;
-use super::draw::{relation_rendered, residual_rendered};
-use super::geometry::{Bounds, clip_polygon, clip_polyline, padded, tick_decimals};
+use super::draw::{Spec, relation_rendered, residual_rendered};
+use super::geometry::{Bounds, clip_polygon, clip_polyline, extend_band, padded, tick_decimals};
 use super::markup::{escape, is_site_relative};
 use super::style::{self, LINE, MEAN_BAND, SCATTER_1, SCATTER_2};
 use super::*;
@@ -196,22 +195,51 @@ fn attr<'a>(element: &'a str, name: &str) -> Option<&'a str> {
     Some(&element[start..start + end])
 }
 
-/// Vertices of every `<polyline>` with the given stroke colour and width, one Vec per element.
-fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(i32, i32)>> {
-    svg.match_indices("<polyline")
-        .map(|(k, _)| &svg[k..k + svg[k..].find("/>").expect("polyline is closed")])
+/// Vertices of every line path (`<path class="line" d="M x yL x y…">`) with the given stroke
+/// colour and width, one Vec per element.
+fn polylines(svg: &str, stroke: &str, width: &str) -> Vec<Vec<(f64, f64)>> {
+    svg.match_indices("<path class=\"line\"")
+        .map(|(k, _)| &svg[k..k + svg[k..].find("/>").expect("path is closed")])
         .filter(|el| attr(el, "stroke") == Some(stroke) && attr(el, "stroke-width") == Some(width))
         .map(|el| {
-            attr(el, "points")
-                .expect("polyline has points")
-                .split_whitespace()
+            attr(el, "d")
+                .expect("path has data")
+                .split(['M', 'L'])
+                .filter(|pair| !pair.is_empty())
                 .map(|pair| {
-                    let (x, y) = pair.split_once(',').expect("x,y pair");
-                    (x.parse().expect("integer x"), y.parse().expect("integer y"))
+                    let (x, y) = pair.split_once(' ').expect("x y pair");
+                    (x.parse().expect("number x"), y.parse().expect("number y"))
                 })
                 .collect()
         })
         .collect()
+}
+
+/// The pixel position of a data point without plotters' rounding (the affine map through the
+/// frame's corners, as the charts place their raw layer).
+fn exact_px(spec: &Spec, x: f64, y: f64) -> (f64, f64) {
+    let xr = spec.get_x_range();
+    let yr = spec.get_y_range();
+    let (x0, y0) = spec.translate(&(xr.start, yr.start));
+    let (x1, y1) = spec.translate(&(xr.end, yr.end));
+    let tx = (x - xr.start) / (xr.end - xr.start);
+    let ty = (y - yr.start) / (yr.end - yr.start);
+    (
+        f64::from(x0) + tx * f64::from(x1 - x0),
+        f64::from(y0) + ty * f64::from(y1 - y0),
+    )
+}
+
+/// The data point at a pixel position, inverting [`exact_px`].
+fn exact_data(spec: &Spec, px: f64, py: f64) -> (f64, f64) {
+    let xr = spec.get_x_range();
+    let yr = spec.get_y_range();
+    let (x0, y0) = spec.translate(&(xr.start, yr.start));
+    let (x1, y1) = spec.translate(&(xr.end, yr.end));
+    (
+        xr.start + (px - f64::from(x0)) / f64::from(x1 - x0) * (xr.end - xr.start),
+        yr.start + (py - f64::from(y0)) / f64::from(y1 - y0) * (yr.end - yr.start),
+    )
 }
 
 /// Number of `<polygon>` elements filled with `tint` (plotters writes opacity and fill).
@@ -238,6 +266,7 @@ fn point(name: &str, x: f64, y: f64, group: usize) -> ChartPoint {
         upper_limit: false,
         group,
         emphasis: false,
+        outlier: false,
     }
 }
 
@@ -366,7 +395,10 @@ fn every_point_gets_one_title_and_one_link_naming_it() {
             p.name
         );
         let href = p.href.as_deref().expect("fixture points are linked");
-        assert_eq!(count(&svg, &format!("<a href=\"{href}\">")), 1);
+        assert_eq!(
+            count(&svg, &format!("<a href=\"{href}\" tabindex=\"-1\">")),
+            1
+        );
     }
     assert_eq!(point_chunks(&svg).len(), chart.points.len());
 }
@@ -428,7 +460,7 @@ fn limit_arrows_point_down_from_the_limit() {
         .iter()
         .find(|p| p.upper_limit)
         .expect("fixture has a limit");
-    let (px, py) = rendered.spec.translate(&(limit.x, limit.y));
+    let (px, py) = exact_px(&rendered.spec, limit.x, limit.y);
     let chunk = point_chunks(&rendered.svg)
         .into_iter()
         .find(|c| c.contains("A-6:"))
@@ -444,12 +476,9 @@ fn limit_arrows_point_down_from_the_limit() {
         .parse()
         .expect("tip number");
     let (sx, sy) = start.split_once(' ').expect("x y");
-    assert_eq!(sx.parse::<i32>().expect("x"), px);
-    assert_eq!(sy.parse::<i32>().expect("y"), py);
-    assert!(
-        tip > f64::from(py) + 10.0,
-        "arrow points down: tip {tip}, start {py}"
-    );
+    assert!((sx.parse::<f64>().expect("x") - px).abs() <= 0.05);
+    assert!((sy.parse::<f64>().expect("y") - py).abs() <= 0.05);
+    assert!(tip > py + 10.0, "arrow points down: tip {tip}, start {py}");
 }
 
 #[test]
@@ -495,15 +524,14 @@ fn the_line_passes_through_the_pivot_at_alpha() {
     let rendered = relation_rendered(&chart).expect("chart draws");
     let runs = polylines(&rendered.svg, &LINE.hex(), "2");
     assert_eq!(runs.len(), 1, "one visible run of the fitted line");
-    let target = rendered.spec.translate(&(line.pivot, line.alpha));
+    let target = exact_px(&rendered.spec, line.pivot, line.alpha);
     let nearest = runs[0]
         .iter()
         .map(|&(x, y)| (x - target.0).abs() + (y - target.1).abs())
-        .min()
-        .expect("vertices");
+        .fold(f64::INFINITY, f64::min);
     assert!(
-        nearest <= 1,
-        "a vertex within 1 px of (x₀, α), nearest {nearest} px"
+        nearest <= 0.1,
+        "a vertex within 0.1 px of (x₀, α), nearest {nearest} px"
     );
 }
 
@@ -527,8 +555,8 @@ fn every_vertex_of_a_curved_line_lies_on_the_relation() {
         let r = rendered.spec.get_y_range();
         (r.start, r.end)
     };
-    // Pixels are integers: allow 1.5 px of the y axis in data units, plus the slope times 1.5 px
-    // of the x axis.
+    // Coordinates carry one decimal: allow 0.1 px of the y axis in data units, plus the slope
+    // times 0.1 px of the x axis (whole pixels would need 1.5 px and draw a staircase).
     let px_range = rendered.spec.get_x_axis_pixel_range();
     let py_range = rendered.spec.get_y_axis_pixel_range();
     let x_range = rendered.spec.get_x_range();
@@ -537,13 +565,10 @@ fn every_vertex_of_a_curved_line_lies_on_the_relation() {
         (x_range.end - x_range.start) / f64::from(px_range.end - px_range.start).abs();
     let mut checked = 0;
     for &(px, py) in runs.iter().flatten() {
-        let (x, y) = rendered
-            .spec
-            .reverse_translate((px, py))
-            .expect("inside the plot");
+        let (x, y) = exact_data(&rendered.spec, px, py);
         let dx = x - line.pivot;
         let slope = (line.beta + 2.0 * 1.6 * dx).abs();
-        let tolerance = 1.5 * dex_per_px_y + 1.5 * slope * dex_per_px_x;
+        let tolerance = 0.1 * dex_per_px_y + 0.1 * slope * dex_per_px_x;
         assert!(
             (y - line.y_at(x)).abs() <= tolerance,
             "vertex ({px},{py}) → ({x:.4},{y:.4}) is off the curve by {:.4}",
@@ -598,12 +623,14 @@ fn two_epsilon_band_is_lighter_and_wider_than_one_epsilon() {
         );
         let k = rendered.svg.find(&key).expect("band drawn");
         let el = &rendered.svg[k..k + rendered.svg[k..].find("/>").expect("closed")];
-        let ys: Vec<i32> = attr(el, "points")
+        let ys: Vec<f64> = attr(el, "points")
             .expect("points")
             .split_whitespace()
             .map(|p| p.split_once(',').expect("pair").1.parse().expect("y"))
             .collect();
-        ys.iter().max().expect("y") - ys.iter().min().expect("y")
+        let hi = ys.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let lo = ys.iter().copied().fold(f64::INFINITY, f64::min);
+        hi - lo
     };
     assert!(height(SCATTER_2) >= height(SCATTER_1));
 }
@@ -640,6 +667,7 @@ fn hostile_text_comes_out_escaped() {
     let hostile = r#"<script>alert("x")</script> & 'q'"#;
     let mut chart = small_chart();
     chart.title = hostile.to_owned();
+    chart.show_title = true;
     chart.x_label = format!("{hostile} x");
     chart.groups[0].label = hostile.to_owned();
     chart.points[0].name = hostile.to_owned();
@@ -666,8 +694,8 @@ fn hostile_text_comes_out_escaped() {
             .any(|t| t.starts_with("&lt;script&gt;alert(&quot;x&quot;)")),
         "legend label is escaped"
     );
-    assert!(svg.contains(r#"<a href="/galaxies/3?a=1&amp;b=&quot;2&quot;">"#));
-    assert!(svg.contains(&format!("aria-label=\"{escaped}\"")));
+    assert!(svg.contains(r#"<a href="/galaxies/3?a=1&amp;b=&quot;2&quot;" tabindex="-1">"#));
+    assert!(svg.contains(&format!("aria-label=\"{escaped}: ")));
 }
 
 #[test]
@@ -850,7 +878,13 @@ fn empty_chart_is_a_frame_with_a_message() {
     };
     let svg = relation_svg(&chart).expect("empty chart draws");
     assert_clean(&svg);
-    assert!(svg.contains(&format!(">{EMPTY_MESSAGE}</text>")));
+    assert!(svg.contains(&format!(">{EMPTY_MESSAGE}<tspan")));
+    assert!(svg.contains(EMPTY_HINT), "the message says what to change");
+    // No 0–1 axes: no tick label at all.
+    assert!(
+        !texts(&svg).iter().any(|t| t.parse::<f64>().is_ok()),
+        "no tick labels in a blank chart"
+    );
     assert_eq!(count(&svg, "class=\"empty-message\""), 1);
     assert_eq!(point_chunks(&svg).len(), 0);
     assert_eq!(count(&svg, "class=\"legend-entry\""), 0);
@@ -1034,7 +1068,7 @@ fn relation_snapshot_structure() {
     let texts = texts(&svg);
     assert!(texts.contains(&"log₁₀ σ [km/s]"), "x label with unit");
     assert!(texts.contains(&"log₁₀ M_BH [M☉]"), "y label with unit");
-    assert!(texts.contains(&"M_BH–σ"), "title");
+    assert!(!texts.contains(&"M_BH–σ"), "no drawn title on a page chart");
     // Group 0 filled circles, group 1 open squares.
     assert!(svg.contains("<circle class=\"mk\""));
     assert!(svg.contains("fill=\"#FFFFFF\" stroke=\"#D0701A\""));
@@ -1072,20 +1106,25 @@ fn residual_chart_has_zero_line_band_points_and_links() {
 
     let zero = polylines(svg, &LINE.hex(), "1");
     assert_eq!(zero.len(), 1, "one zero line");
-    let (_, y0) = rendered.spec.translate(&(2.3, 0.0));
-    assert!(zero[0].iter().all(|&(_, y)| y == y0), "zero line at y = 0");
+    let (_, y0) = exact_px(&rendered.spec, 2.3, 0.0);
+    assert!(
+        zero[0].iter().all(|&(_, y)| (y - y0).abs() <= 0.05),
+        "zero line at y = 0"
+    );
     // The band spans ±ε around zero.
-    let (_, top) = rendered.spec.translate(&(2.3, 0.4));
-    let (_, bottom) = rendered.spec.translate(&(2.3, -0.4));
+    let (_, top) = exact_px(&rendered.spec, 2.3, 0.4);
+    let (_, bottom) = exact_px(&rendered.spec, 2.3, -0.4);
     let k = svg.find("<polygon opacity=").expect("band");
     let band = &svg[k..k + svg[k..].find("/>").expect("closed")];
-    let ys: Vec<i32> = attr(band, "points")
+    let ys: Vec<f64> = attr(band, "points")
         .expect("points")
         .split_whitespace()
         .map(|p| p.split_once(',').expect("pair").1.parse().expect("y"))
         .collect();
-    assert_eq!(ys.iter().min(), Some(&top));
-    assert_eq!(ys.iter().max(), Some(&bottom));
+    let lo = ys.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = ys.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    assert!((lo - top).abs() <= 0.05, "band top {lo} at {top}");
+    assert!((hi - bottom).abs() <= 0.05, "band bottom {hi} at {bottom}");
 }
 
 #[test]
@@ -1231,6 +1270,7 @@ fn large_points(n: usize, emphasised: usize, line: LineSpec) -> Vec<ChartPoint> 
                 upper_limit: i % 10 == 3,
                 group: i % 2,
                 emphasis: emphasised > 0 && i % every == 0,
+                outlier: false,
             }
         })
         .collect()
@@ -1594,4 +1634,200 @@ fn a_density_legend_with_five_groups_fits_beside_the_default_chart() {
     for label in ["Type E", "Upper limit", "±2ε = 0.80 dex"] {
         assert!(legend.contains(&label.to_owned()), "{label} in {legend:?}");
     }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Publication finish: sub-pixel geometry, whole marks, outliers, title, keyboard, summary
+
+#[test]
+fn the_fitted_line_has_sub_pixel_coordinates() {
+    let svg = relation_svg(&small_chart()).expect("chart draws");
+    let runs = polylines(&svg, &LINE.hex(), "2");
+    assert_eq!(runs.len(), 1);
+    let fractional = runs[0]
+        .iter()
+        .filter(|(x, y)| x.fract() != 0.0 || y.fract() != 0.0)
+        .count();
+    assert!(
+        fractional * 2 > runs[0].len(),
+        "most vertices off the whole-pixel grid: {fractional} of {}",
+        runs[0].len()
+    );
+}
+
+#[test]
+fn marks_and_limit_arrows_stay_inside_the_plot_area() {
+    // A limit far below the rest and points at the extremes of x, as on a luminosity chart.
+    let mut chart = small_chart();
+    chart.points[5].y = 5.0;
+    chart.points[0].x = 1.5;
+    chart.points[0].x_err = 0.0;
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    let xr = rendered.spec.get_x_range();
+    let yr = rendered.spec.get_y_range();
+    let (left, bottom) = exact_px(&rendered.spec, xr.start, yr.start);
+    let (right, top) = exact_px(&rendered.spec, xr.end, yr.end);
+    for p in &chart.points {
+        let (px, py) = exact_px(&rendered.spec, p.x, p.y);
+        assert!(px - 9.5 > left && px + 9.5 < right, "{} whole in x", p.name);
+        assert!(py - 9.5 > top && py + 9.5 < bottom, "{} whole in y", p.name);
+    }
+    let chunk = point_chunks(&rendered.svg)
+        .into_iter()
+        .find(|c| c.contains("A-6:"))
+        .expect("limit drawn");
+    let arrow = &chunk[chunk.find("class=\"limit-arrow\"").expect("arrow")..];
+    let d = attr(arrow, "d").expect("arrow path");
+    let tip: f64 = d[1..]
+        .split_once('V')
+        .expect("shaft")
+        .1
+        .split('M')
+        .next()
+        .expect("tip")
+        .parse()
+        .expect("number");
+    let (_, start) = exact_px(&rendered.spec, 2.05, 5.0);
+    assert!(
+        (tip - start - f64::from(style::ARROW_PX)).abs() < 0.1,
+        "full arrow"
+    );
+    assert!(tip < bottom, "arrow tip {tip} above the axis at {bottom}");
+}
+
+#[test]
+fn the_mean_band_reaches_the_frame() {
+    let chart = small_chart();
+    let rendered = relation_rendered(&chart).expect("chart draws");
+    let xr = rendered.spec.get_x_range();
+    // The fixture's band samples stop at x = 2.0 and 2.5, inside the frame.
+    assert!(xr.start < 2.0 && xr.end > 2.5);
+    let band = extend_band(&chart.mean_band, chart.line.as_ref(), xr.start, xr.end);
+    assert!((band[0].x - xr.start).abs() < 1e-12);
+    assert!((band[band.len() - 1].x - xr.end).abs() < 1e-12);
+    // A band of constant width stays that width, centred on the line.
+    let line = chart.line.expect("line");
+    for s in [band[0], band[band.len() - 1]] {
+        assert!((s.upper - s.lower - 0.16).abs() < 1e-9);
+        assert!((0.5 * (s.upper + s.lower) - line.y_at(s.x)).abs() < 1e-9);
+    }
+    // A band of a straight-line fit, w² = a + b (x − c)², is continued exactly.
+    let hyperbolic: Vec<BandPoint> = (0..=10)
+        .map(|k| {
+            let x = 2.0 + 0.05 * f64::from(k);
+            let w = (0.01 + 0.5 * (x - 2.3f64).powi(2)).sqrt();
+            BandPoint {
+                x,
+                lower: line.y_at(x) - w,
+                upper: line.y_at(x) + w,
+            }
+        })
+        .collect();
+    let out = extend_band(&hyperbolic, Some(&line), 1.8, 2.7);
+    let w = |x: f64| (0.01 + 0.5 * (x - 2.3f64).powi(2)).sqrt();
+    assert!((0.5 * (out[0].upper - out[0].lower) - w(1.8)).abs() < 1e-9);
+    assert!((0.5 * (out[out.len() - 1].upper - out[out.len() - 1].lower) - w(2.7)).abs() < 1e-9);
+}
+
+#[test]
+fn outliers_are_ringed_with_a_legend_entry() {
+    let mut chart = small_chart();
+    let plain = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&plain, "class=\"outlier-ring\""), 0);
+    assert!(!texts(&plain).contains(&"Outlier (ringed)"));
+    chart.points[1].outlier = true;
+    chart.points[4].outlier = true;
+    let svg = relation_svg(&chart).expect("chart draws");
+    let ringed: Vec<&str> = point_chunks(&svg)
+        .into_iter()
+        .filter(|c| c.contains("class=\"outlier-ring\""))
+        .collect();
+    assert_eq!(ringed.len(), 2);
+    assert!(ringed.iter().any(|c| c.contains("A-2:")));
+    assert!(ringed.iter().any(|c| c.contains("A-5:")));
+    // Points and the legend's sample.
+    assert_eq!(count(&svg, "class=\"outlier-ring\""), 3);
+    assert!(texts(&svg).contains(&"Outlier (ringed)"));
+    // The text summary names them.
+    assert!(svg.contains("2 outliers ringed: A-2, A-5."));
+}
+
+#[test]
+fn page_charts_carry_no_drawn_title_but_downloads_can() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert!(!texts(&svg).contains(&"M_BH–σ"));
+    // The name stays for assistive technology.
+    assert!(svg.contains("role=\"img\" aria-label=\"M_BH–σ: "));
+    let standalone = RelationChart {
+        show_title: true,
+        ..chart
+    };
+    let svg = relation_svg(&standalone).expect("chart draws");
+    assert!(texts(&svg).contains(&"M_BH–σ"));
+}
+
+#[test]
+fn points_are_no_tab_stops_and_the_chart_has_a_text_summary() {
+    let chart = small_chart();
+    let svg = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&svg, "<a href="), chart.points.len());
+    assert_eq!(count(&svg, "tabindex=\"-1\""), chart.points.len());
+    let k = svg.find("<desc>").expect("description");
+    let desc = &svg[k + 6..k + svg[k..].find("</desc>").expect("closed")];
+    assert!(desc.contains("6 objects (1 upper limit)"), "{desc}");
+    assert!(
+        desc.contains("Fitted line: y = 8.30 + 5.00 (x − 2.30)"),
+        "{desc}"
+    );
+    assert!(desc.contains("intrinsic scatter 0.40 dex"), "{desc}");
+    assert!(desc.contains("No outlier marked."), "{desc}");
+}
+
+#[test]
+fn the_highlighted_objects_error_bars_are_drawn_over_its_star() {
+    let mut chart = small_chart();
+    chart.highlight = Some(ChartPoint {
+        name: "Placed".to_owned(),
+        ..point("Placed", 2.25, 8.0, 0)
+    });
+    let svg = relation_svg(&chart).expect("chart draws");
+    let k = svg.find("<g class=\"pt highlight\">").expect("highlight");
+    let chunk = &svg[k..k + svg[k..].find("</g>").expect("closed")];
+    let star = chunk.find("class=\"mk star\"").expect("star");
+    let bar = chunk.find("class=\"err-y\"").expect("bar");
+    let halo = chunk.find("class=\"halo\"").expect("halo");
+    assert!(star < halo && halo < bar, "star, then halo, then bar");
+}
+
+#[test]
+fn the_png_is_a_png_of_the_print_size_with_its_resolution() {
+    let chart = RelationChart {
+        show_title: true,
+        ..small_chart()
+    };
+    let mut chart = chart;
+    chart.points[1].outlier = true;
+    chart.highlight = Some(point("Placed", 2.25, 8.0, 0));
+    let png = relation_png(&chart).expect("chart draws");
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n", "PNG signature");
+    let decoder = ::png::Decoder::new(std::io::Cursor::new(png.as_slice()));
+    let reader = decoder.read_info().expect("a readable PNG");
+    let info = reader.info();
+    assert_eq!((info.width, info.height), (PNG_WIDTH, PNG_HEIGHT));
+    let dims = info.pixel_dims.expect("resolution recorded");
+    // 300 dpi = 11,811 pixels per metre (300 / 0.0254, rounded).
+    assert_eq!((dims.xppu, dims.yppu), (11_811, 11_811));
+    // Not a blank page: the points, line and text put many dark pixels on it.
+    let mut reader = reader;
+    let mut pixels = vec![0; reader.output_buffer_size()];
+    reader.next_frame(&mut pixels).expect("pixels");
+    let dark = pixels
+        .chunks(3)
+        .filter(|p| p.iter().all(|&c| c < 100))
+        .count();
+    assert!(dark > 2_000, "{dark} dark pixels");
+    // A blank selection draws too.
+    let empty = relation_png(&RelationChart::default()).expect("empty chart draws");
+    assert_eq!(&empty[..8], b"\x89PNG\r\n\x1a\n");
 }

@@ -96,6 +96,9 @@ pub struct TableQuery {
     pub sort: SortKey,
     /// Sort descending.
     pub descending: bool,
+    /// Name search (`q`, trimmed): rows whose name contains this text, ignoring case; `None` for
+    /// all. The catalog has no alternative names, so the name is all there is to search.
+    pub name: Option<String>,
     /// Page number, from 1.
     pub page: usize,
     /// Rows per page.
@@ -112,13 +115,19 @@ impl Default for TableQuery {
             soi: SoiFilter::All,
             sort: SortKey::Name,
             descending: false,
+            name: None,
             page: 1,
             per_page: DEFAULT_PER_PAGE,
         }
     }
 }
 
-const TABLE_PARAMS: &str = "morphology, bulge_kind, method, limits, soi, sort, dir, page, per_page";
+const TABLE_PARAMS: &str =
+    "q, morphology, bulge_kind, method, limits, soi, sort, dir, page, per_page";
+
+/// Longest name search accepted, in characters: a search costs one substring test per catalog
+/// row, so its length bounds the work of a request.
+pub const MAX_SEARCH_CHARS: usize = 100;
 
 impl TableQuery {
     /// Read the query parameters; every problem becomes one sentence naming the parameter.
@@ -131,6 +140,16 @@ impl TableQuery {
                 continue; // an empty select means "any"
             }
             let result: Result<(), String> = match key.as_str() {
+                "q" => {
+                    if value.chars().count() > MAX_SEARCH_CHARS {
+                        Err(format!(
+                            "a name search is at most {MAX_SEARCH_CHARS} characters long"
+                        ))
+                    } else {
+                        q.name = Some(value.to_owned());
+                        Ok(())
+                    }
+                }
                 "morphology" => value.parse().map(|v| q.morphology = Some(v)),
                 "bulge_kind" => value.parse().map(|v| q.bulge_kind = Some(v)),
                 "method" => value.parse().map(|v| q.method = Some(v)),
@@ -191,6 +210,9 @@ impl TableQuery {
     /// The query string for this query with some changes (used by links), without the '?'.
     pub fn to_query_string(&self) -> String {
         let mut parts = Vec::new();
+        if let Some(name) = &self.name {
+            parts.push(serde_urlencoded::to_string([("q", name)]).unwrap_or_default());
+        }
         if let Some(m) = self.morphology {
             parts.push(format!("morphology={}", m.as_str()));
         }
@@ -292,7 +314,10 @@ impl TableRow {
     /// Whether the row passes the query's filters.
     pub fn matches(&self, q: &TableQuery) -> bool {
         let r = &self.row;
-        q.morphology.is_none_or(|m| r.morphology == m.as_str())
+        q.name
+            .as_deref()
+            .is_none_or(|needle| r.name.to_lowercase().contains(&needle.to_lowercase()))
+            && q.morphology.is_none_or(|m| r.morphology == m.as_str())
             && q.bulge_kind.is_none_or(|b| r.bulge_kind == b.as_str())
             && q.method
                 .is_none_or(|m| r.mbh_method.as_deref() == Some(m.as_str()))
@@ -311,13 +336,49 @@ impl TableRow {
     fn compare(&self, other: &Self, key: SortKey) -> Ordering {
         let (a, b) = (&self.row, &other.row);
         match key {
-            SortKey::Name => a.name.to_lowercase().cmp(&b.name.to_lowercase()),
+            SortKey::Name => natural_cmp(&a.name, &b.name),
             SortKey::LogMbh => cmp_opt(self.log_mbh_adopted_d, other.log_mbh_adopted_d),
             SortKey::Sigma => cmp_opt(a.log_sigma, b.log_sigma),
             SortKey::LogMbulge => cmp_opt(self.log_mbulge_adopted_d, other.log_mbulge_adopted_d),
             SortKey::Distance => a.distance_mpc.total_cmp(&b.distance_mpc),
             SortKey::Morphology => a.morphology.cmp(&b.morphology),
             SortKey::Method => a.mbh_method.cmp(&b.mbh_method),
+        }
+    }
+}
+
+/// Compares names as a reader expects: ignoring case, and with runs of digits compared as
+/// numbers, so "X 4" comes before "X 359". Leading zeros do not change a number's value; a tie
+/// falls back to the plain comparison, so the order is total and stable.
+pub fn natural_cmp(a: &str, b: &str) -> Ordering {
+    let (la, lb) = (a.to_lowercase(), b.to_lowercase());
+    let (mut x, mut y) = (la.as_str(), lb.as_str());
+    loop {
+        match (x.chars().next(), y.chars().next()) {
+            (None, None) => return a.cmp(b),
+            (None, Some(_)) => return Ordering::Less,
+            (Some(_), None) => return Ordering::Greater,
+            (Some(c), Some(d)) if c.is_ascii_digit() && d.is_ascii_digit() => {
+                let end_x = x.find(|ch: char| !ch.is_ascii_digit()).unwrap_or(x.len());
+                let end_y = y.find(|ch: char| !ch.is_ascii_digit()).unwrap_or(y.len());
+                let nx = x[..end_x].trim_start_matches('0');
+                let ny = y[..end_y].trim_start_matches('0');
+                // Without leading zeros, the longer run is the larger number; equal lengths
+                // compare digit by digit. No overflow, however long the run.
+                let order = nx.len().cmp(&ny.len()).then_with(|| nx.cmp(ny));
+                if order != Ordering::Equal {
+                    return order;
+                }
+                x = &x[end_x..];
+                y = &y[end_y..];
+            }
+            (Some(c), Some(d)) => {
+                if c != d {
+                    return c.cmp(&d);
+                }
+                x = &x[c.len_utf8()..];
+                y = &y[d.len_utf8()..];
+            }
         }
     }
 }
@@ -374,6 +435,34 @@ pub async fn table_page(
 mod tests {
     use super::*;
     use crate::relations::test_pairs as pairs;
+
+    #[test]
+    fn names_sort_naturally() {
+        let mut names = vec!["X 359", "x 4", "X 40", "Y 1", "X 004a", "X 4b", "X"];
+        names.sort_by(|a, b| natural_cmp(a, b));
+        assert_eq!(
+            names,
+            ["X", "x 4", "X 004a", "X 4b", "X 40", "X 359", "Y 1"]
+        );
+        assert_eq!(natural_cmp("A 10", "A 9"), Ordering::Greater);
+        assert_eq!(
+            natural_cmp("B 99999999999999999999999", "B 100000000000000000000000"),
+            Ordering::Less
+        );
+        assert_eq!(natural_cmp("C 2", "c 2"), "C 2".cmp("c 2"));
+    }
+
+    #[test]
+    fn name_search_is_parsed_bounded_and_kept_in_links() {
+        let q = TableQuery::parse(&pairs(&[("q", "  Ab C ")])).expect("parses");
+        assert_eq!(q.name.as_deref(), Some("Ab C"));
+        assert!(q.to_query_string().starts_with("q=Ab+C&"));
+        let long = "x".repeat(MAX_SEARCH_CHARS + 1);
+        let err = TableQuery::parse(&pairs(&[("q", long.as_str())])).expect_err("too long");
+        assert!(err.contains("Parameter 'q'"), "{err}");
+        let empty = TableQuery::parse(&pairs(&[("q", " ")])).expect("parses");
+        assert_eq!(empty.name, None);
+    }
 
     #[test]
     fn table_query_reads_every_parameter() {

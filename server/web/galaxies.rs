@@ -62,6 +62,8 @@ pub(crate) struct GalaxiesListPage {
     prev_href: Option<String>,
     next_href: Option<String>,
     filters: Filters,
+    /// The name search as typed (`q`), empty for none.
+    search: String,
     sort: &'static str,
     dir: &'static str,
     soi_threshold: String,
@@ -101,6 +103,7 @@ pub(crate) async fn list_galaxies(
         prev_href: (q.page > 1).then(|| link(&q, |n| n.page -= 1)),
         next_href: (q.page < pages).then(|| link(&q, |n| n.page += 1)),
         filters: Filters::of(&q),
+        search: q.name.clone().unwrap_or_default(),
         sort: q.sort.as_str(),
         dir: if q.descending { "desc" } else { "asc" },
         soi_threshold: significant(threshold, 2),

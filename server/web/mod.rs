@@ -77,6 +77,12 @@ fn routes() -> Routes {
         )
         .add(
             Method::GET,
+            "/relations/{relation}/chart.png",
+            Read,
+            get(relations::download_chart_png),
+        )
+        .add(
+            Method::GET,
             "/relations/{relation}/fit.json",
             Read,
             get(relations::download_fit),

@@ -392,6 +392,7 @@ fn chart(p: &Placement) -> Option<PlaceChart> {
         group: 0,
         // The highlighted object is always drawn one by one, as a star.
         emphasis: true,
+        outlier: false,
     });
     relation_svg(&drawn).ok().map(|svg| PlaceChart {
         label: p.relation.label(),

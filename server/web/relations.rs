@@ -1060,6 +1060,7 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         upper_limit: p.upper_limit,
         group,
         emphasis: false,
+        outlier: false,
     }
 }
 
@@ -1102,13 +1103,24 @@ pub(super) fn relation_chart(
         ),
         _ => vec![false; sample.len()],
     };
+    // The outliers the page lists are ringed on the chart.
+    let mut outliers = vec![false; sample.len()];
+    for r in fit
+        .map(|f| crate::fit::residuals(f, sample))
+        .unwrap_or_default()
+    {
+        if let Some(o) = outliers.get_mut(r.index) {
+            *o = crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
+        }
+    }
     let points: Vec<ChartPoint> = sample
         .iter()
         .zip(&outcome.sample.members)
         .zip(&index)
-        .zip(&marks)
-        .map(|(((p, m), g), &emphasis)| ChartPoint {
+        .zip(marks.iter().zip(&outliers))
+        .map(|(((p, m), g), (&emphasis, &outlier))| ChartPoint {
             emphasis,
+            outlier,
             ..chart_point(m, p, p.x, chart_y(fit, p), *g)
         })
         .collect();
@@ -1323,6 +1335,8 @@ fn residual_charts(
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
                 c.emphasis = emphasis;
+                c.outlier =
+                    crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
                 Some(c)
             })
             .collect()
@@ -1650,7 +1664,12 @@ pub(crate) async fn download_chart(
     let drawn = state
         .fits
         .drawn(&outcome.key, &format!("svg;group={:?}", q.group), || {
-            vec![relation_chart_svg(&relation, &outcome, q.group)]
+            // A file opened on its own draws its title; the page's heading names the page chart.
+            let chart = RelationChart {
+                show_title: true,
+                ..relation_chart(&relation, &outcome, q.group)
+            };
+            vec![relation_svg(&chart).map_err(|e| e.to_string())]
         });
     let svg = drawn[0].clone().map_err(AppError::bad_request)?;
     Ok(download(
@@ -1658,6 +1677,36 @@ pub(crate) async fn download_chart(
         &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
         svg,
     ))
+}
+
+/// `/relations/{relation}/chart.png`: the relation chart for print (`charts::relation_png`),
+/// titled, for the same query as `chart.svg`.
+pub(crate) async fn download_chart_png(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let q = read_query(query)?;
+    let relation = relation_named(&state, &slug).await?;
+    let outcome = fit_for(&state, &relation, &q).await?;
+    let chart = RelationChart {
+        show_title: true,
+        ..relation_chart(&relation, &outcome, q.group)
+    };
+    let png =
+        crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
+    let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
+    Ok((
+        [
+            (header::CONTENT_TYPE, "image/png".to_owned()),
+            (
+                header::CONTENT_DISPOSITION,
+                format!("attachment; filename=\"{filename}\""),
+            ),
+        ],
+        png,
+    )
+        .into_response())
 }
 
 /// `/relations/{relation}/fit.json`: the fit and its settings.

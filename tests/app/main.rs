@@ -10,6 +10,7 @@ mod accounts;
 mod analysis;
 mod api;
 mod api_fuzz;
+mod catalog_search;
 mod galaxy_names;
 mod galaxy_relations;
 mod idempotency;

@@ -11,6 +11,7 @@ mod support;
 mod checks;
 
 mod api_token;
+mod chart_reading;
 mod csv_upload;
 mod phone;
 mod place_link;
