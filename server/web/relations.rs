@@ -1686,8 +1686,8 @@ pub(crate) async fn download_chart_png(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let q = read_query(query)?;
     let relation = relation_named(&state, &slug).await?;
+    let q = read_query(query, &relation)?;
     let outcome = fit_for(&state, &relation, &q).await?;
     let chart = RelationChart {
         show_title: true,
