@@ -530,6 +530,9 @@ pub(super) fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Infl
             .map(|i| exact(points, spec, &full, prec, i))
             .collect();
     }
+    if let Some(list) = plane_ranked_and_refitted(points, spec, &full, prec)? {
+        return Ok(list);
+    }
     let analytic = match spec.method {
         _ if !has_one_step(spec) => None,
         Method::Structural => {
@@ -554,6 +557,70 @@ pub(super) fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Infl
         .par_iter()
         .map(|&i| exact(points, spec, &full, prec, i))
         .collect()
+}
+
+/// The structural plane with one Gaussian x model (whose likelihood has per-object analytic
+/// gradients but not the per-object Hessians of [`PerObject`]): every object's one-step
+/// shift, per-object Hessians by central differences, and the [`EXACT_TOP`] ranked highest
+/// replaced by chord refits from their one-step estimates ([`structural::PlaneLeaveOneOut`]),
+/// or by refits from scratch where the chord does not converge. `None` for other
+/// specifications, or where ε sits at 0 or a step cannot be formed: the caller then ranks by
+/// the proxy likelihood.
+fn plane_ranked_and_refitted(
+    points: &[Point],
+    spec: &FitSpec,
+    full: &Fit,
+    prec: Option<[[f64; 2]; 2]>,
+) -> Result<Option<Vec<Influence>>, FitError> {
+    if !(spec.method == Method::Structural && spec.shape == Shape::Plane && spec.components == 1) {
+        return Ok(None);
+    }
+    let model = structural::Model::new(points, spec)?;
+    let Some(loo) = structural::PlaneLeaveOneOut::new(&model, &model.start(full)) else {
+        return Ok(None);
+    };
+    let hat = loo.relation_at_maximum();
+    let entry = |i: usize, r: [f64; 4], exact: bool| {
+        let (d_alpha, d_beta) = (r[0] - hat[0], r[1] - hat[1]);
+        Influence {
+            index: i,
+            d_alpha,
+            d_beta,
+            d_beta2: None,
+            d_gamma: Some(r[2] - hat[2]),
+            d_eps: r[3] - hat[3],
+            shift_sigma: sigma_of(prec, d_alpha, d_beta),
+            exact,
+        }
+    };
+    let Some(starts) = (0..points.len())
+        .into_par_iter()
+        .map(|i| loo.one_step(i))
+        .collect::<Option<Vec<Vec<f64>>>>()
+    else {
+        return Ok(None);
+    };
+    let mut list: Vec<Influence> = starts
+        .iter()
+        .enumerate()
+        .map(|(i, u)| entry(i, loo.relation(u), false))
+        .collect();
+    let refits: Vec<(usize, Option<Influence>)> = top(&list, EXACT_TOP)
+        .par_iter()
+        .map(|&i| {
+            let r = match loo.refit(i, &starts[i]) {
+                Some(u) => Some(entry(i, loo.relation(&u), true)),
+                None => exact(points, spec, full, prec, i).ok(),
+            };
+            (i, r)
+        })
+        .collect();
+    for (i, r) in refits {
+        if let Some(r) = r {
+            list[i] = r;
+        }
+    }
+    Ok(Some(list))
 }
 
 /// How the relation would move if `new` joined `points`: the one-step approximation above
