@@ -994,10 +994,10 @@ mod tests {
                 0.5,
                 11.0,
             ),
-            sample: Sample {
+            sample: Arc::new(Sample {
                 points: points.clone(),
                 ..Sample::default()
-            },
+            }),
             fit: Ok(fit),
             spec: Ok(spec.clone()),
             fitted_at: String::new(),
@@ -1034,7 +1034,7 @@ mod tests {
                 2.3,
                 11.0,
             ),
-            sample: Sample::default(),
+            sample: Arc::default(),
             fit: Err(FitError::Unsupported {
                 what: String::new(),
             }),

@@ -341,7 +341,7 @@ pub(crate) async fn show_galaxy(
             .unwrap_or(&r.created_at)
             .replace('T', " ");
     }
-    let (rows, charts) = super::place::views(&left_out.placements).await?;
+    let (rows, charts) = super::place::views(&state.fits, &left_out.placements).await?;
     Ok(GalaxyShowPage {
         nav,
         name: galaxy.name.clone(),
