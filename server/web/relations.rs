@@ -1139,13 +1139,17 @@ pub(super) fn chart_points(outcome: &FitOutcome, grouping: Grouping) -> ChartPoi
     }
 }
 
-/// The chart points of the whole-sample fit `key` (no galaxy left out), made once per fit and
-/// kept in the fit cache; `None` when that fit is not in the cache.
+/// The chart points of the whole-sample fit `key` (no galaxy left out) for charts that place
+/// one object (galaxy, place and submission pages), made once per fit and kept in the fit
+/// cache; `None` when that fit is not in the cache.
 ///
 /// A galaxy page places the galaxy against the fit without it, which above the left-out refit
 /// size is the whole fit shifted by the galaxy's one-step influence (far less than the line's
-/// width on a chart): its chart draws the shared points of the whole fit, marked by the whole
-/// fit's residuals, under the shifted line.
+/// width on a chart): its chart draws the shared points of the whole fit under the shifted
+/// line. These charts are about the placed object, so no sample point is emphasised: above the
+/// density threshold the sample is the density and the placed object is the only point drawn
+/// on its own (outliers still ringed where a point is drawn). A page with one such chart per
+/// relation then stays far below its weight budget; the relation page draws the outliers.
 pub(super) fn shared_points(
     fits: &crate::relations::FitCache,
     key: &crate::relations::FitKey,
@@ -1157,8 +1161,12 @@ pub(super) fn shared_points(
     };
     let full = fits.get(&base)?;
     Some(
-        fits.made_from(&base, &format!("chart points;{grouping:?}"), || {
-            chart_points(&full, grouping)
+        fits.made_from(&base, &format!("placing chart points;{grouping:?}"), || {
+            let mut made = chart_points(&full, grouping);
+            for p in &mut made.points {
+                p.emphasis = false;
+            }
+            made
         }),
     )
 }
