@@ -738,9 +738,15 @@ impl AddingBase {
     /// # Errors
     /// The input errors of [`super::fit`] for `new`; the errors of a refit.
     pub fn shift(&self, points: &[Point], new: &Point) -> Result<Shift, FitError> {
-        let row = super::types::prepare(std::slice::from_ref(new), &self.spec, 0)
-            .map_err(|e| renumbered(e, points.len()))?;
-        if let Some(dp) = self.step.as_ref().and_then(|b| b.newton_step(row)) {
+        let step = match &self.step {
+            Some(base) => {
+                let row = super::types::prepare_rows(std::slice::from_ref(new), &self.spec)
+                    .map_err(|e| renumbered(e, points.len()))?;
+                base.newton_step(row)
+            }
+            None => None,
+        };
+        if let Some(dp) = step {
             return Ok(Shift {
                 d_alpha: dp[A],
                 d_beta: dp[B],
@@ -774,6 +780,10 @@ fn renumbered(e: FitError, n: usize) -> FitError {
     match e {
         FitError::NonFiniteInput { column, .. } => FitError::NonFiniteInput { row: n, column },
         FitError::NegativeError { column, .. } => FitError::NegativeError { row: n, column },
+        FitError::InvalidSetting { setting, reason } => FitError::InvalidSetting {
+            setting,
+            reason: reason.replacen("Row 0 ", &format!("Row {n} "), 1),
+        },
         other => other,
     }
 }
