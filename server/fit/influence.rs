@@ -901,6 +901,98 @@ mod tests {
         }
     }
 
+    /// A row prepared on its own and set into a one-object model has the derivatives of the
+    /// same row loaded from the sample's model (what `AddingBase` relies on), for the
+    /// structural line and the conditional plane, detections and limits.
+    #[test]
+    fn a_row_set_alone_has_the_derivatives_of_the_same_row_in_the_sample() {
+        let s = Sim {
+            n: 40,
+            seed: 72,
+            limit_fraction: 0.2,
+            ..Sim::default()
+        };
+        let mut pts = simulate(&s);
+        for (i, p) in pts.iter_mut().enumerate() {
+            p.x2 = Some(11.0 + 0.1 * (i as f64 % 7.0));
+            p.x2_err = 0.05;
+        }
+        let mut p = [0.0; NS];
+        p[A] = 8.2;
+        p[B] = 4.6;
+        p[C] = 0.4;
+        p[E] = 0.25;
+        p[super::super::optimize::analytic::M] = 0.01;
+        p[super::super::optimize::analytic::T] = 0.015;
+        fn check<O: PerObject>(model: &O, spec: &FitSpec, pts: &[Point], p: &[f64; NS]) {
+            let act = model.slots();
+            let (mut loaded, mut alone) = (model.one(0), model.one(0));
+            for i in [0, 7, 19, 33] {
+                loaded.load(model, i);
+                let row = super::super::types::prepare_rows(&pts[i..=i], spec).expect("row");
+                alone.set_row(row);
+                let (a, b) = (
+                    loaded.derivs(p, false, &act).expect("derivs"),
+                    alone.derivs(p, false, &act).expect("derivs"),
+                );
+                assert_eq!(a.f.to_bits(), b.f.to_bits(), "row {i}");
+                let bits = |g: &[f64; NS]| g.map(f64::to_bits);
+                assert_eq!(bits(&a.g), bits(&b.g), "row {i}");
+            }
+        }
+        let spec = FitSpec::new(Method::Structural, s.pivot);
+        check(
+            &structural::Model::new(&pts, &spec).expect("model"),
+            &spec,
+            &pts,
+            &p,
+        );
+        let spec = FitSpec::new(Method::Conditional, s.pivot)
+            .with_shape(Shape::Plane)
+            .and_then(|sp| sp.with_pivot2(11.0))
+            .expect("spec");
+        check(
+            &conditional::Model::new(&pts, &spec).expect("model"),
+            &spec,
+            &pts,
+            &p,
+        );
+    }
+
+    /// `Fit::shifted` moves the plane's γ with α, β and ε, values and intervals alike.
+    #[test]
+    fn a_shifted_plane_moves_gamma_too() {
+        let s = Sim {
+            n: 60,
+            seed: 73,
+            ..Sim::default()
+        };
+        let mut pts = simulate(&s);
+        for (i, p) in pts.iter_mut().enumerate() {
+            p.x2 = Some(11.0 + 0.1 * (i as f64 % 7.0));
+            p.x2_err = 0.05;
+        }
+        let spec = FitSpec::new(Method::Conditional, s.pivot)
+            .with_shape(Shape::Plane)
+            .and_then(|sp| sp.with_pivot2(11.0))
+            .expect("spec");
+        let fit = super::super::fit(&pts, &spec).expect("fit");
+        let moved = fit.shifted(0.01, -0.02, Some(0.03), 0.004);
+        let (g0, g1) = (fit.params.gamma.expect("γ"), moved.params.gamma.expect("γ"));
+        assert!((g1 - g0 - 0.03).abs() < 1e-12);
+        assert!((moved.params.beta - fit.params.beta + 0.02).abs() < 1e-12);
+        let iv = |f: &Fit, name: &str| {
+            f.intervals
+                .params
+                .iter()
+                .find(|i| i.name == name)
+                .map(|i| i.p16)
+                .expect("interval")
+        };
+        assert!((iv(&moved, "gamma") - iv(&fit, "gamma") - 0.03).abs() < 1e-12);
+        assert_eq!(moved.params.beta2, None);
+    }
+
     #[test]
     fn the_small_solver_solves_a_pivoting_system() {
         // [[0, 2, 1], [1, 1, 0], [3, 0, 1]] x = (7, 3, 6) has x = (1, 2, 3) (computed by hand);

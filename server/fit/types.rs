@@ -554,20 +554,26 @@ pub struct Fit {
 }
 
 impl Fit {
-    /// The same fit with α, β and ε moved by the given amounts (dex, dex per dex, dex), and the
-    /// quoted values and intervals moved with them; errors and covariance kept. How a page shows
-    /// the fit without one object from the one-step leave-one-out change (docs/methods.md §6):
-    /// at the sample sizes where it is used the errors change by about 1/(2N).
+    /// The same fit with α, β, the third parameter (β2 of a quadratic or γ of a plane, where
+    /// the fit has one) and ε moved by the given amounts (dex, dex per dex, dex per dex², dex),
+    /// and the quoted values and intervals moved with them; errors and covariance kept. How a
+    /// page shows the fit without one object, or with one more, from the one-step change
+    /// (docs/methods.md §6.1): at the sample sizes where it is used the errors change by about
+    /// 1/(2N).
     #[must_use]
-    pub fn shifted(&self, d_alpha: f64, d_beta: f64, d_eps: f64) -> Fit {
+    pub fn shifted(&self, d_alpha: f64, d_beta: f64, d_third: Option<f64>, d_eps: f64) -> Fit {
         let mut out = self.clone();
+        let d_third = d_third.unwrap_or(0.0);
         out.params.alpha += d_alpha;
         out.params.beta += d_beta;
+        out.params.beta2 = out.params.beta2.map(|b| b + d_third);
+        out.params.gamma = out.params.gamma.map(|g| g + d_third);
         out.params.eps = (out.params.eps + d_eps).max(0.0);
         for iv in &mut out.intervals.params {
             let d = match iv.name {
                 "alpha" => d_alpha,
                 "beta" => d_beta,
+                "beta2" | "gamma" => d_third,
                 "eps" => d_eps,
                 _ => continue,
             };

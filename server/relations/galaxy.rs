@@ -237,7 +237,12 @@ pub async fn place_left_out(
             Arc::new(FitOutcome {
                 key: full.key.leaving_out(galaxy_id),
                 sample: full.sample.clone(),
-                fit: Ok(fit.shifted(shift.d_alpha, shift.d_beta, shift.d_eps)),
+                fit: Ok(fit.shifted(
+                    shift.d_alpha,
+                    shift.d_beta,
+                    shift.d_beta2.or(shift.d_gamma),
+                    shift.d_eps,
+                )),
                 spec: full.spec.clone(),
                 fitted_at: full.fitted_at.clone(),
             })

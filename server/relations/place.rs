@@ -579,7 +579,12 @@ pub async fn place_within(
         };
         shift.map(|shift| {
             (
-                fit.shifted(shift.d_alpha, shift.d_beta, shift.d_eps),
+                fit.shifted(
+                    shift.d_alpha,
+                    shift.d_beta,
+                    shift.d_beta2.or(shift.d_gamma),
+                    shift.d_eps,
+                ),
                 shift.exact,
             )
         })
