@@ -374,6 +374,12 @@ async fn a_large_catalog_draws_its_relation_chart_as_a_density_with_the_outliers
         galaxy.contains("</span> outlier</span>"),
         "X 7 lies 1.5 dex above the relation"
     );
+    // Its chart is about X 7: the sample is shaded, and the other objects off the relation are
+    // left to the relation page's chart (a page of one chart per relation stays light).
+    let others_named = (0..n)
+        .filter(|&i| i != 7 && galaxy.contains(&hover(i)))
+        .count();
+    assert_eq!(others_named, 0, "the galaxy page's charts name only X 7");
     for (path, body) in [
         ("/galaxies/x-7", galaxy),
         ("/relations/m_sigma", app.ok("/relations/m_sigma").await),
