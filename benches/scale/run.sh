@@ -11,8 +11,11 @@
 #      word "computing"), then waits until the server's log says the version's analysis is
 #      done (default fits, review scores, influence lists) and records how long that took;
 #   4. times (median of RUNS requests) the cached M–σ page, a galaxy page, the review queue
-#      (logged in as reviewer1 through the login form) and one placement through the API, and
-#      reads the server's peak resident memory (VmHWM in /proc/PID/status).
+#      (logged in as reviewer1 through the login form) and one placement through the API;
+#   5. changes the catalog version under the running server (one more galaxy imported with
+#      --accept) and times the M–σ page until it is complete at the new version, and the new
+#      version's analysis; then reads the server's peak resident memory (VmHWM in
+#      /proc/PID/status).
 # It prints one markdown table; results go in benches/README.md ("Scale").
 #
 #   benches/scale/run.sh [N ...]            default: 1000 10000 100000
@@ -200,15 +203,40 @@ print(sqlite3.connect(sys.argv[1]).execute('select slug from galaxy order by gal
         review+=("$(request_ms -b "$jar" "$base/review" || echo nan)")
         placed+=("$(request_ms "$place" || echo nan)")
     done
+    # A version change while the server runs: one more galaxy accepted from the command line
+    # (the server notices the new catalog version itself); the time until the M–σ page is
+    # complete at the new version, and until that version's analysis is done.
+    head -n 4 "$dir/catalog.csv" | sed '2,4s/^[^,]*,/Velmora 1,/; 2,4s/,s0-/,v1-/' >"$dir/one.csv"
+    old_version="$(python3 -c "
+import sqlite3, sys
+print(sqlite3.connect(sys.argv[1]).execute('select catalog_version from catalog_state').fetchone()[0])" "$db")"
+    LOG_FROM=$(($(wc -l <"$WORK/server.log") + 1))
+    t0="$(now)"
+    "$BIN" import "$dir/one.csv" --accept --db "$db" >"$dir/one.log" 2>&1 ||
+        { cat "$dir/one.log" >&2; exit 1; }
+    changed_s=nan
+    deadline=$((SECONDS + FIRST_WAIT))
+    while ((SECONDS < deadline)); do
+        curl -s -o "$WORK/page.html" "$base/relations/m_sigma" || true
+        if grep -q "<dd>$((old_version + 1))</dd>" "$WORK/page.html" &&
+            ! grep -qi computing "$WORK/page.html"; then
+            changed_s="$(elapsed "$t0" "$(now)")"
+            break
+        fi
+        sleep 0.05
+    done
+    wait_analysis
+    echo "N=$n version change: page complete after $changed_s s, analysis ${ANALYSED_S} s" >&2
+    changed_analysis_s="$ANALYSED_S"
     hwm_kb="$(sed -n 's/^VmHWM:[[:space:]]*\([0-9]*\) kB/\1/p' /proc/"$SERVER_PID"/status)"
     stop_server
 
-    ROWS+=("| $n | $((3 * n)) | $(median "${imports[@]}") | $pending_s | $(median "${firsts[@]}") | $(median "${readies[@]}") | $(median "${analysed[@]}") | $(median "${cached[@]}") | $(median "${galaxy[@]}") | $(median "${review[@]}") | $(median "${placed[@]}") | $((hwm_kb / 1024)) |")
+    ROWS+=("| $n | $((3 * n)) | $(median "${imports[@]}") | $pending_s | $(median "${firsts[@]}") | $(median "${readies[@]}") | $(median "${analysed[@]}") | $(median "${cached[@]}") | $(median "${galaxy[@]}") | $(median "${review[@]}") | $(median "${placed[@]}") | $changed_s | $changed_analysis_s | $((hwm_kb / 1024)) |")
 done
 
 echo
-echo "| galaxies | rows | import --accept, s | $PENDING pending galaxies --as member1, s | first M–σ page after start, s | analysis: fits and review scores, s | analysis done, s | cached M–σ page, ms | galaxy page, ms | /review, ms | GET /api/v1/place, ms | server peak RSS, MiB |"
-echo "|---|---|---|---|---|---|---|---|---|---|---|---|"
+echo "| galaxies | rows | import --accept, s | $PENDING pending galaxies --as member1, s | first M–σ page after start, s | analysis: fits and review scores, s | analysis done, s | cached M–σ page, ms | galaxy page, ms | /review, ms | GET /api/v1/place, ms | after a version change: M–σ page complete, s | its analysis done, s | server peak RSS, MiB |"
+echo "|---|---|---|---|---|---|---|---|---|---|---|---|---|---|"
 printf '%s\n' "${ROWS[@]}"
 echo
 echo "median of $RUNS (every run in brackets); $(date -u +%Y-%m-%d), $(nproc) cores, load average $(cut -d' ' -f1-3 /proc/loadavg)"
