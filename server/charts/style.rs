@@ -87,6 +87,15 @@ pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
     filled: false,
 };
 
+/// The dashed square around the marker of an object whose sphere of influence is not resolved:
+/// an indigo far from the outlier ring's dark red under every simulated colour-vision deficiency
+/// (blue against red-brown), 10:1 against white, and a shape of its own (a dashed square), so it
+/// reads without colour and beside a ring.
+pub(super) const UNRESOLVED_MARK: Rgb = Rgb(0x3A, 0x2D, 0x8F);
+/// Half the side of the unresolved square in pixels: outside the outlier ring, inside the frame's
+/// padding.
+pub(super) const UNRESOLVED_HALF: f64 = 12.0;
+
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
 /// Outer radius of the highlight star in pixels.
@@ -294,6 +303,18 @@ pub(super) fn ring_element(cx: f64, cy: f64) -> String {
         num(cy),
         num(RING_RADIUS),
         OUTLIER_RING.hex()
+    )
+}
+
+/// The dashed square around the marker of an object whose sphere of influence is not resolved,
+/// centred at (cx, cy) pixels, with `class="unresolved-mark"`.
+pub(super) fn unresolved_element(cx: f64, cy: f64) -> String {
+    format!(
+        r#"<rect class="unresolved-mark" x="{}" y="{}" width="{side}" height="{side}" fill="none" stroke="{}" stroke-width="1.5" stroke-dasharray="4 2"/>"#,
+        num(cx - UNRESOLVED_HALF),
+        num(cy - UNRESOLVED_HALF),
+        UNRESOLVED_MARK.hex(),
+        side = num(2.0 * UNRESOLVED_HALF),
     )
 }
 

@@ -393,6 +393,9 @@ fn chart(p: &Placement) -> Option<PlaceChart> {
         // The highlighted object is always drawn one by one, as a star.
         emphasis: true,
         outlier: false,
+        // The star stands alone; the placement table beside the chart gives its sphere of
+        // influence.
+        unresolved: false,
     });
     relation_svg(&drawn).ok().map(|svg| PlaceChart {
         label: p.relation.label(),

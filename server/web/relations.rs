@@ -1061,6 +1061,8 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         group,
         emphasis: false,
         outlier: false,
+        // Marked on the chart as on the galaxy's page: known to be unresolved, not merely unknown.
+        unresolved: m.resolved == Some(false),
     }
 }
 
