@@ -23,6 +23,132 @@ pub(crate) fn significant(value: f64, digits: usize) -> String {
     fixed(value, decimals)
 }
 
+/// A value with its errors, as a page shows it: linear (σ in km/s, a distance in Mpc) or a log10
+/// value with errors in dex. Errors are magnitudes; an error that is zero or not a number is
+/// absent.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Uncertain {
+    pub(crate) value: f64,
+    pub(crate) err_minus: f64,
+    pub(crate) err_plus: f64,
+    /// `value` is an upper limit: shown as "< value", errors ignored.
+    pub(crate) upper_limit: bool,
+}
+
+impl Uncertain {
+    /// value ± err.
+    pub(crate) fn symmetric(value: f64, err: f64) -> Self {
+        Uncertain {
+            value,
+            err_minus: err,
+            err_plus: err,
+            upper_limit: false,
+        }
+    }
+
+    /// value +err_plus/−err_minus, or an upper limit.
+    pub(crate) fn asymmetric(value: f64, err_minus: f64, err_plus: f64, upper_limit: bool) -> Self {
+        Uncertain {
+            value,
+            err_minus,
+            err_plus,
+            upper_limit,
+        }
+    }
+
+    /// The power of ten of the last digit shown: the error that sets it (the smaller of two)
+    /// keeps two significant digits, `floor(log10 err) − 1`, one place higher when rounding
+    /// carries into a third digit (9.96 → 10, not 10.0). `None` without an error.
+    fn place(&self) -> Option<i32> {
+        if self.upper_limit {
+            return None;
+        }
+        let err = [self.err_minus, self.err_plus]
+            .into_iter()
+            .map(f64::abs)
+            .filter(|e| e.is_finite() && *e > 0.0)
+            .reduce(f64::min)?;
+        #[expect(
+            clippy::cast_possible_truncation,
+            reason = "the floor of log10 of a finite positive f64 lies within ±330"
+        )]
+        let mut place = err.log10().floor() as i32 - 1;
+        if (err / 10f64.powi(place)).round() >= 100.0 {
+            place += 1;
+        }
+        Some(place)
+    }
+}
+
+/// How many decimals a place (a power of ten) shows: 10^−2 → 2, 10^0 or above → 0.
+fn decimals_of(place: i32) -> usize {
+    usize::try_from(-place).unwrap_or(0)
+}
+
+/// Every value of one table column with its errors, by one rule (common practice in astronomy
+/// tables): each error is rounded to two significant digits and its value to the same decimal
+/// place; then the column shares the decimals of its finest row, a row taking at most one digit
+/// more than its own error needs (so "185.0 ± 9.0" stands above "247.0 ± 14.0", never
+/// "247.000 ± 14.000"). An error of 100 or more rounds the value to its tens or beyond
+/// ("123500 ± 1200"). A value without an error, and an upper limit ("< 7.30"), take the column's
+/// decimals, or `bare_decimals` when no row has an error. A value that is not a number is "—".
+/// Asymmetric errors show as "8.32 +0.10/−0.12", "± 0.11" when both round alike; the minus is
+/// U+2212.
+pub(crate) fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<String> {
+    let places: Vec<Option<i32>> = items.iter().map(Uncertain::place).collect();
+    let column = places
+        .iter()
+        .flatten()
+        .map(|&p| decimals_of(p))
+        .max();
+    items
+        .iter()
+        .zip(&places)
+        .map(|(item, place)| {
+            if !item.value.is_finite() {
+                return "—".to_owned();
+            }
+            let Some(place) = *place else {
+                let value = fixed(item.value, column.unwrap_or(bare_decimals));
+                return if item.upper_limit {
+                    format!("< {value}")
+                } else {
+                    value
+                };
+            };
+            // An absent error beside a present one shows as zero.
+            let err = |e: f64| if e.is_finite() { e.abs() } else { 0.0 };
+            let (minus, plus) = (err(item.err_minus), err(item.err_plus));
+            if place > 0 {
+                // Tens or beyond: round to that place, write whole numbers.
+                let step = 10f64.powi(place);
+                let round = |x: f64| fixed((x / step).round() * step, 0);
+                return join_errors(round(item.value), round(minus), round(plus));
+            }
+            let own = decimals_of(place);
+            let decimals = column.unwrap_or(own).min(own + 1).max(own);
+            let show = |x: f64| fixed(x, decimals);
+            join_errors(show(item.value), show(minus), show(plus))
+        })
+        .collect()
+}
+
+/// One value with its errors by the rule of [`with_errors_column`], alone (a column of one).
+pub(crate) fn with_errors(item: Uncertain, bare_decimals: usize) -> String {
+    with_errors_column(&[item], bare_decimals)
+        .pop()
+        .unwrap_or_default()
+}
+
+/// "v ± e" when the two rounded errors agree, "v +plus/−minus" when not.
+fn join_errors(value: String, minus: String, plus: String) -> String {
+    if minus == plus {
+        format!("{value} ± {plus}")
+    } else {
+        format!("{value} +{plus}/\u{2212}{minus}")
+    }
+}
+
 /// A number with a fixed count of decimals and its sign always shown (+0.12, −0.30).
 pub(crate) fn signed(value: f64, decimals: usize) -> String {
     let text = fixed(value, decimals);
@@ -137,12 +263,18 @@ pub(crate) fn code_label(code: &str) -> String {
         ("alpha", "α"),
         ("beta", "β"),
         ("gamma", "γ"),
+        ("delta", "δ"),
         ("eps", "ε"),
         ("mu", "μ"),
         ("tau", "τ"),
         ("w", "w"),
     ];
-    if let Some((name, index)) = code.split_once('_')
+    // "tau_1" and "beta2" alike: a letter's name, then its index.
+    let split = code.split_once('_').or_else(|| {
+        let digits = code.find(|c: char| c.is_ascii_digit())?;
+        Some(code.split_at(digits))
+    });
+    if let Some((name, index)) = split
         && let Some((_, letter)) = greek.iter().find(|(g, _)| *g == name)
         && !index.is_empty()
         && index.bytes().all(|b| b.is_ascii_digit())
@@ -240,6 +372,69 @@ mod tests {
     }
 
     #[test]
+    fn values_round_to_two_significant_digits_of_their_error() {
+        let one = |v: f64, e: f64| with_errors(Uncertain::symmetric(v, e), 2);
+        assert_eq!(one(8.3214, 0.1234), "8.32 ± 0.12");
+        // A carry into a third digit keeps two: 9.96 → 10, 0.0996 → 0.10.
+        assert_eq!(one(123.456, 9.96), "123 ± 10");
+        assert_eq!(one(8.3214, 0.0996), "8.32 ± 0.10");
+        assert_eq!(one(1.234_56, 0.001_23), "1.2346 ± 0.0012");
+        // An error at or above the value, and above 100.
+        assert_eq!(one(5.0, 15.0), "5 ± 15");
+        assert_eq!(one(0.5, 0.99), "0.50 ± 0.99");
+        assert_eq!(one(123_456.0, 1234.0), "123500 ± 1200");
+        // Negative values (a log below zero, a residual) with a true minus.
+        assert_eq!(one(-2.345, 0.05), "−2.345 ± 0.050");
+        assert_eq!(one(-0.004, 0.3), "0.00 ± 0.30");
+        // No error: the value with the bare decimals; not a number: a dash.
+        assert_eq!(one(2.0, 0.0), "2.00");
+        assert_eq!(one(2.5, f64::NAN), "2.50");
+        assert_eq!(one(f64::INFINITY, 0.1), "—");
+        // Logs in dex with asymmetric errors: the smaller error sets the place.
+        let log = |v, lo, hi, limit| with_errors(Uncertain::asymmetric(v, lo, hi, limit), 2);
+        assert_eq!(log(8.32, 0.12, 0.10, false), "8.32 +0.10/−0.12");
+        assert_eq!(log(8.32, 0.112, 0.114, false), "8.32 ± 0.11");
+        assert_eq!(log(8.3214, 0.045, 0.30, false), "8.321 +0.300/−0.045");
+        assert_eq!(log(7.3, 0.2, 0.1, true), "< 7.30");
+        assert_eq!(log(8.3, -0.1, 0.1, false), "8.30 ± 0.10");
+        assert_eq!(log(8.3, f64::NAN, 0.1, false), "8.30 +0.10/−0.00");
+    }
+
+    #[test]
+    fn a_column_shares_its_decimals_within_one_extra_digit() {
+        let column = |rows: &[(f64, f64)]| {
+            let items: Vec<Uncertain> = rows
+                .iter()
+                .map(|&(v, e)| Uncertain::symmetric(v, e))
+                .collect();
+            with_errors_column(&items, 0)
+        };
+        assert_eq!(
+            column(&[(185.04, 9.0), (247.2, 14.3)]),
+            ["185.0 ± 9.0", "247.2 ± 14.3"]
+        );
+        assert_eq!(
+            column(&[(247.2, 14.3), (210.0, 21.0)]),
+            ["247 ± 14", "210 ± 21"]
+        );
+        // Two digits finer than a row needs would be noise: that row keeps one extra only.
+        assert_eq!(
+            column(&[(8.3, 0.05), (8.1, 5.0), (9.0, 0.0)]),
+            ["8.300 ± 0.050", "8.10 ± 5.00", "9.000"]
+        );
+        // Tens keep their own rounding; upper limits take the column's decimals.
+        let items = [
+            Uncertain::symmetric(1234.0, 150.0),
+            Uncertain::asymmetric(7.3, 0.0, 0.0, true),
+            Uncertain::symmetric(16.5, 0.8),
+        ];
+        assert_eq!(
+            with_errors_column(&items, 0),
+            ["1230 ± 150", "< 7.30", "16.50 ± 0.80"]
+        );
+    }
+
+    #[test]
     fn probabilities_never_round_to_certainty() {
         // Beyond the one-decimal range the bound is named, never "100 %" or "0 %".
         for p in [1.0, 0.999_999_7, 0.999_5, 0.999_000_1] {
@@ -321,6 +516,9 @@ mod tests {
         assert_eq!(code_label("tau_1"), "τ₁");
         assert_eq!(code_label("mu_12"), "μ₁₂");
         assert_eq!(code_label("eps"), "ε");
+        assert_eq!(code_label("beta2"), "β₂");
+        assert_eq!(code_label("alpha"), "α");
+        assert_eq!(code_label("w_1"), "w₁");
         assert_eq!(code_label("some_new_code"), "some new code");
         assert_eq!(
             measurement_detail("", "sigma_e", "r_e", ""),

@@ -11,7 +11,10 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Query, State};
 
-use super::display::{Badge, fixed, probability, signed, significant, soi_badge, verdict_badge};
+use super::display::{
+    Badge, Uncertain, fixed, probability, signed, significant, soi_badge, verdict_badge,
+    with_errors,
+};
 use super::relations::{Grouping, chart_y, relation_chart};
 use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, relation_svg};
@@ -213,7 +216,7 @@ fn field_views(
             values
                 .distance
                 .as_ref()
-                .map(|e| format!("{} Mpc", crate::units::round_to_uncertainty(e.value, e.err))),
+                .map(|e| format!("{} Mpc", with_errors(Uncertain::symmetric(e.value, e.err), 1))),
         ),
         (
             "resolution",
@@ -317,10 +320,9 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
         }
     };
     let prediction = &numbers.prediction;
-    row.predicted = format!(
-        "{} ± {}",
-        fixed(prediction.log_mbh, 2),
-        fixed(prediction.sd_dex, 2)
+    row.predicted = with_errors(
+        Uncertain::symmetric(prediction.log_mbh, prediction.sd_dex),
+        2,
     );
     row.interval68 = interval(prediction.interval68);
     row.interval95 = interval(prediction.interval95);

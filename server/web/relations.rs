@@ -11,7 +11,7 @@ use axum::extract::{Extension, Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
-use super::display::{fixed, significant};
+use super::display::{Uncertain, fixed, significant, with_errors};
 use crate::auth::Principal;
 use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
@@ -28,7 +28,6 @@ use crate::relations::{
     RunKind, RunStatus, fitted, read_pivot_typed, run_status, stored_run,
 };
 use crate::state::AppState;
-use crate::units::round_to_uncertainty;
 
 /// How many of the most influential objects are listed.
 const TOP_INFLUENCE: usize = 5;
@@ -426,11 +425,7 @@ fn computing_note(shown_version: i64, computing: i64) -> String {
 /// A parameter with its error, rounded to the error; without an error (FITEXY's and BCES's
 /// ε have none), to three decimals, a thousandth of a dex.
 fn with_error(value: f64, err: f64) -> String {
-    if err.is_finite() && err > 0.0 {
-        round_to_uncertainty(value, err).replace('-', "−")
-    } else {
-        fixed(value, 3)
-    }
+    with_errors(Uncertain::symmetric(value, err), 3)
 }
 
 /// "1 galaxy", "2 galaxies".
@@ -603,7 +598,24 @@ pub(crate) struct ParamView {
     interval68: String,
     /// The 95 % interval, "lo – hi".
     interval95: String,
+    /// Said instead of the intervals when the estimator gives the parameter without one (FITEXY
+    /// and BCES give ε so).
+    no_interval: Option<&'static str>,
     unit: String,
+}
+
+/// Why a parameter has no interval, for the estimators that give a value without an error: FITEXY
+/// sets ε so that χ²/dof = 1 (Tremaine et al. 2002); BCES takes it from the residual variance
+/// less the measurement variance (docs/methods.md §2.3, §2.4). `None` when it has an error.
+fn no_interval_note(method: Method, error: f64) -> Option<&'static str> {
+    if error.is_finite() && error > 0.0 {
+        return None;
+    }
+    Some(match method {
+        Method::Fitexy => "set so that χ²/dof = 1; no interval",
+        Method::Bces(_) => "residual variance less the measurement variance; no interval",
+        _ => "no interval reported",
+    })
 }
 
 /// "lo – hi" with as many decimals as the error's two significant digits need.
@@ -782,7 +794,8 @@ pub(crate) struct RunView {
 
 /// One parameter of a finished run.
 pub(crate) struct RunParamView {
-    name: &'static str,
+    /// The parameter's symbol ("α", "τ₁"), never its code.
+    name: String,
     median: String,
     interval68: String,
     interval95: String,
@@ -909,7 +922,7 @@ impl RunParamView {
             3
         };
         RunParamView {
-            name: p.name,
+            name: super::display::code_label(p.name),
             median: fixed(p.median, decimals),
             interval68: format!("{} to {}", fixed(p.p16, decimals), fixed(p.p84, decimals)),
             interval95: format!(
@@ -1282,6 +1295,7 @@ fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
             value: with_error(iv.estimate, iv.error),
             interval68: interval_text(iv.p16, iv.p84, iv.error),
             interval95: interval_text(iv.p2_5, iv.p97_5, iv.error),
+            no_interval: no_interval_note(f.spec.method, iv.error),
             unit,
         })
     };
