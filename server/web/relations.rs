@@ -1351,6 +1351,9 @@ fn residual_charts(
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
                 c.emphasis = emphasis;
+                // Above the density threshold the residual charts draw only their emphasised
+                // objects one by one (the page's weight); the relation chart marks the others.
+                c.unresolved &= emphasis || sample.points.len() <= crate::charts::DENSITY_THRESHOLD;
                 c.outlier =
                     crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
                 Some(c)
