@@ -85,22 +85,20 @@ fn decimals_of(place: i32) -> usize {
     usize::try_from(-place).unwrap_or(0)
 }
 
-/// Every value of one table column with its errors, by one rule (common practice in astronomy
-/// tables): each error is rounded to two significant digits and its value to the same decimal
-/// place; then the column shares the decimals of its finest row, a row taking at most one digit
-/// more than its own error needs (so "185.0 ± 9.0" stands above "247.0 ± 14.0", never
-/// "247.000 ± 14.000"). An error of 100 or more rounds the value to its tens or beyond
-/// ("123500 ± 1200"). A value without an error, and an upper limit ("< 7.30"), take the column's
-/// decimals, or `bare_decimals` when no row has an error. A value that is not a number is "—".
-/// Asymmetric errors show as "8.32 +0.10/−0.12", "± 0.11" when both round alike; the minus is
-/// U+2212.
+/// Every value of one table column with its errors, by one rule. Each row's own place is where
+/// its error shows two significant digits (common practice in astronomy tables), the value
+/// rounded to the same place. The column then takes the place of its coarsest row, and a finer
+/// row moves up by at most one place (its error then shows one significant digit): "185 ± 9"
+/// stands above "247 ± 14", never "185.0 ± 9.0" above "247 ± 14", and no error shows digits its
+/// measurement lacks ("247.0 ± 14.0"). Every error thus shows one or two significant digits; a
+/// column of one keeps two. A place of tens or beyond rounds the value there ("123500 ± 1200").
+/// A value without an error, and an upper limit ("< 7.30"), take the column's decimals, or
+/// `bare_decimals` when no row has an error; a value that is not a number is "—". Asymmetric
+/// errors show as "8.32 +0.10/−0.12" (the smaller sets the place), "± 0.11" when both round
+/// alike. The minus is U+2212.
 pub(crate) fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<String> {
     let places: Vec<Option<i32>> = items.iter().map(Uncertain::place).collect();
-    let column = places
-        .iter()
-        .flatten()
-        .map(|&p| decimals_of(p))
-        .max();
+    let coarsest = places.iter().flatten().copied().max();
     items
         .iter()
         .zip(&places)
@@ -108,26 +106,27 @@ pub(crate) fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> V
             if !item.value.is_finite() {
                 return "—".to_owned();
             }
-            let Some(place) = *place else {
-                let value = fixed(item.value, column.unwrap_or(bare_decimals));
+            let Some(own) = *place else {
+                let value = fixed(item.value, coarsest.map_or(bare_decimals, decimals_of));
                 return if item.upper_limit {
                     format!("< {value}")
                 } else {
                     value
                 };
             };
+            let place = coarsest.map_or(own, |c| c.min(own + 1));
             // An absent error beside a present one shows as zero.
             let err = |e: f64| if e.is_finite() { e.abs() } else { 0.0 };
             let (minus, plus) = (err(item.err_minus), err(item.err_plus));
-            if place > 0 {
-                // Tens or beyond: round to that place, write whole numbers.
-                let step = 10f64.powi(place);
-                let round = |x: f64| fixed((x / step).round() * step, 0);
-                return join_errors(round(item.value), round(minus), round(plus));
-            }
-            let own = decimals_of(place);
-            let decimals = column.unwrap_or(own).min(own + 1).max(own);
-            let show = |x: f64| fixed(x, decimals);
+            let show = |x: f64| {
+                if place > 0 {
+                    // Tens or beyond: round to that place, write whole numbers.
+                    let step = 10f64.powi(place);
+                    fixed((x / step).round() * step, 0)
+                } else {
+                    fixed(x, decimals_of(place))
+                }
+            };
             join_errors(show(item.value), show(minus), show(plus))
         })
         .collect()
@@ -401,7 +400,7 @@ mod tests {
     }
 
     #[test]
-    fn a_column_shares_its_decimals_within_one_extra_digit() {
+    fn a_column_takes_its_coarsest_place_within_one() {
         let column = |rows: &[(f64, f64)]| {
             let items: Vec<Uncertain> = rows
                 .iter()
@@ -409,28 +408,36 @@ mod tests {
                 .collect();
             with_errors_column(&items, 0)
         };
+        // σ in km/s: one count of decimals for the column, none invented.
         assert_eq!(
-            column(&[(185.04, 9.0), (247.2, 14.3)]),
-            ["185.0 ± 9.0", "247.2 ± 14.3"]
+            column(&[(185.04, 9.0), (247.2, 14.3), (115.3, 4.2)]),
+            ["185 ± 9", "247 ± 14", "115 ± 4"]
         );
+        // An error of 9.96 rounds to 10, two digits, and sets the place like 14 does.
         assert_eq!(
-            column(&[(247.2, 14.3), (210.0, 21.0)]),
-            ["247 ± 14", "210 ± 21"]
+            column(&[(185.04, 9.96), (247.2, 14.3)]),
+            ["185 ± 10", "247 ± 14"]
         );
-        // Two digits finer than a row needs would be noise: that row keeps one extra only.
+        // A row more than one place finer keeps one significant digit, never none.
         assert_eq!(
             column(&[(8.3, 0.05), (8.1, 5.0), (9.0, 0.0)]),
-            ["8.300 ± 0.050", "8.10 ± 5.00", "9.000"]
+            ["8.30 ± 0.05", "8.1 ± 5.0", "9.0"]
         );
-        // Tens keep their own rounding; upper limits take the column's decimals.
+        // Tens set the place; a finer row stays within one place of its own.
+        assert_eq!(
+            column(&[(1234.0, 150.0), (16.54, 0.8)]),
+            ["1230 ± 150", "16.5 ± 0.8"]
+        );
+        // Logs in dex: an upper limit takes the column's decimals.
         let items = [
-            Uncertain::symmetric(1234.0, 150.0),
+            Uncertain::asymmetric(8.3214, 0.12, 0.12, false),
             Uncertain::asymmetric(7.3, 0.0, 0.0, true),
-            Uncertain::symmetric(16.5, 0.8),
+            Uncertain::asymmetric(7.519, 0.027, 0.026, false),
+            Uncertain::asymmetric(-0.2, 0.3, 0.3, false),
         ];
         assert_eq!(
             with_errors_column(&items, 0),
-            ["1230 ± 150", "< 7.30", "16.50 ± 0.80"]
+            ["8.32 ± 0.12", "< 7.30", "7.52 ± 0.03", "−0.20 ± 0.30"]
         );
     }
 
