@@ -351,7 +351,16 @@ pub(crate) struct GalaxyShowPage {
     no_relation: Option<String>,
     /// Reviewers' decisions on submissions that measured it, newest first (reviewer names
     /// stay off this page, which may be public).
-    reviews: Vec<crate::catalog::submissions::ReviewNote>,
+    reviews: Vec<ReviewView>,
+}
+
+/// A review decision on the galaxy page: its time as stored (for `<time datetime>`) and as read.
+pub(crate) struct ReviewView {
+    submission_id: i64,
+    decision: String,
+    note: String,
+    created_iso: String,
+    created_text: String,
 }
 
 /// Show one galaxy with every measurement, and where it falls against each relation fitted
@@ -370,15 +379,17 @@ pub(crate) async fn show_galaxy(
     let galaxy = &record.galaxy;
     let left_out =
         place_left_out(&state.catalog(), galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
-    let mut reviews =
-        crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?;
-    for r in &mut reviews {
-        r.created_at = r
-            .created_at
-            .get(..16)
-            .unwrap_or(&r.created_at)
-            .replace('T', " ");
-    }
+    let reviews = crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id)
+        .await?
+        .into_iter()
+        .map(|r| ReviewView {
+            submission_id: r.submission_id,
+            created_text: super::display::readable_utc(&r.created_at),
+            created_iso: r.created_at,
+            decision: r.decision,
+            note: r.note,
+        })
+        .collect();
     let (rows, charts) = super::place::views(&left_out.placements).await?;
     Ok(GalaxyShowPage {
         nav,

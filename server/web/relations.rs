@@ -1596,8 +1596,8 @@ impl SampleSummary {
             fitted_at: utc_time(&outcome.fitted_at),
             size: sample_size(sample.n_detections(), sample.n_limits()),
             limits_note: q.fit.limits_left_out(sample).map(|l| l.sentence),
-            method: q.fit.method.as_str(),
-            filter_text: outcome.key.filter.replace(';', "; "),
+            method: method_label(q.fit.method),
+            filter_text: filter_words(&outcome.key.filter),
             n_detections: sample.n_detections(),
             n_limits: sample.n_limits(),
             sigma_note: (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(
@@ -1625,6 +1625,37 @@ impl SampleSummary {
             fit_note: method_note(q.fit.method).to_owned(),
         }
     }
+}
+
+/// A fit's canonical sample text (`SampleFilter::canonical`: "morphology=any;bulge_kind=pseudo;…")
+/// in words: "morphology any; bulge pseudo; …". A part it cannot read is shown as it is.
+fn filter_words(canonical: &str) -> String {
+    canonical
+        .split(';')
+        .map(|part| {
+            let Some((key, value)) = part.split_once('=') else {
+                return super::display::code_label(part);
+            };
+            let name = match key {
+                "bulge_kind" => "bulge",
+                "centre_kind" => "centre",
+                "mass_method" => "mass method",
+                "soi" => "sphere of influence",
+                "sigma_definition" => "σ definition",
+                "limits" => "upper limits",
+                other => other,
+            };
+            let value = match (key, value) {
+                ("soi", "resolved") => "resolved only".to_owned(),
+                ("limits", "include") => "included".to_owned(),
+                ("limits", "exclude") => "left out".to_owned(),
+                ("limits", "auto") => "as the estimator allows".to_owned(),
+                (_, v) => super::display::code_label(v),
+            };
+            format!("{name} {value}")
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 fn method_label(m: Method) -> &'static str {
@@ -1846,6 +1877,17 @@ fn download(content_type: &'static str, filename: &str, body: String) -> Respons
 mod tests {
     use super::*;
     use crate::relations::test_pairs as pairs;
+
+    #[test]
+    fn the_sample_is_described_in_words_not_codes() {
+        let words = filter_words(
+            "morphology=any;bulge_kind=pseudo;centre_kind=power_law;mass_method=stellar_dynamics;soi=resolved;sigma_definition=sigma_e;limits=exclude",
+        );
+        assert_eq!(
+            words,
+            "morphology any; bulge pseudo; centre power law; mass method stellar dynamics; sphere of influence resolved only; σ definition σ_e (within r_e); upper limits left out"
+        );
+    }
 
     #[test]
     fn the_query_round_trips_and_names_bad_parameters() {
