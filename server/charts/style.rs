@@ -92,9 +92,9 @@ pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
 /// (blue against red-brown), 10:1 against white, and a shape of its own (a dashed square), so it
 /// reads without colour and beside a ring.
 pub(super) const UNRESOLVED_MARK: Rgb = Rgb(0x3A, 0x2D, 0x8F);
-/// Half the side of the unresolved square in pixels: outside the outlier ring, inside the frame's
-/// padding.
-pub(super) const UNRESOLVED_HALF: f64 = 12.0;
+/// Half the side of the unresolved square in pixels: clear of every marker shape, its sides inside
+/// the outlier ring (so the two read together), small enough not to crowd a dense sample.
+pub(super) const UNRESOLVED_HALF: f64 = 7.5;
 
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
@@ -310,7 +310,7 @@ pub(super) fn ring_element(cx: f64, cy: f64) -> String {
 /// centred at (cx, cy) pixels, with `class="unresolved-mark"`.
 pub(super) fn unresolved_element(cx: f64, cy: f64) -> String {
     format!(
-        r#"<rect class="unresolved-mark" x="{}" y="{}" width="{side}" height="{side}" fill="none" stroke="{}" stroke-width="1.5" stroke-dasharray="4 2"/>"#,
+        r#"<rect class="unresolved-mark" x="{}" y="{}" width="{side}" height="{side}" fill="none" stroke="{}" stroke-width="1.3" stroke-dasharray="3 2"/>"#,
         num(cx - UNRESOLVED_HALF),
         num(cy - UNRESOLVED_HALF),
         UNRESOLVED_MARK.hex(),

@@ -171,8 +171,15 @@ fn field_views(
     values: &ObjectValues,
     faults: &[FieldError],
 ) -> Vec<FieldView> {
-    let log =
-        |e: &Option<Entry>, unit: &str| e.as_ref().map(|e| format!("{} {unit}", e.display_log()));
+    let log = |e: &Option<Entry>, unit: &str| {
+        e.as_ref().map(|e| {
+            let shown = with_errors(
+                Uncertain::asymmetric(e.log_value, e.err_minus_dex, e.err_plus_dex, e.upper_limit),
+                2,
+            );
+            format!("{shown} {unit}")
+        })
+    };
     let fields: [(
         &'static str,
         &'static str,
