@@ -220,10 +220,12 @@ fn field_views(
             "Distance",
             "Mpc, e.g. 16.5 ± 0.8",
             &texts.distance,
-            values
-                .distance
-                .as_ref()
-                .map(|e| format!("{} Mpc", with_errors(Uncertain::symmetric(e.value, e.err), 1))),
+            values.distance.as_ref().map(|e| {
+                format!(
+                    "{} Mpc",
+                    with_errors(Uncertain::symmetric(e.value, e.err), 1)
+                )
+            }),
         ),
         (
             "resolution",

@@ -764,12 +764,7 @@ impl MeasurementView {
             quantity,
             value_text: m.value_text.clone(),
             log_value: with_errors(
-                Uncertain::asymmetric(
-                    m.log_value,
-                    m.err_minus_dex,
-                    m.err_plus_dex,
-                    m.upper_limit,
-                ),
+                Uncertain::asymmetric(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
                 2,
             ),
             detail,

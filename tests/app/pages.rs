@@ -184,7 +184,10 @@ async fn fitexy_says_why_its_scatter_has_no_interval() {
         .split("<tr>")
         .find(|row| row.contains("<th scope=\"row\">α</th>"))
         .expect("α row");
-    assert!(alpha.contains(" – ") && !alpha.contains("no interval"), "{alpha}");
+    assert!(
+        alpha.contains(" – ") && !alpha.contains("no interval"),
+        "{alpha}"
+    );
 }
 
 #[tokio::test]
