@@ -73,7 +73,7 @@ enum Symbol {
     Arrow,
     /// The ring drawn around an outlier's marker.
     Ring,
-    /// The dashed square drawn around the marker of an object whose sphere of influence is not
+    /// The slash drawn through the marker of an object whose sphere of influence is not
     /// resolved.
     Unresolved,
     Line(Rgb, u32),
@@ -410,7 +410,7 @@ fn summary(
     if unresolved > 0 {
         let _ = write!(
             text,
-            " {} object{} with the sphere of influence not resolved (dashed square).",
+            " {} object{} with the sphere of influence not resolved (slashed).",
             density::grouped(unresolved as u64),
             if unresolved == 1 { "" } else { "s" }
         );
@@ -1441,10 +1441,10 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
             ))
             .map_err(drawing_error)
         };
-        let square = |c: (i32, i32)| {
+        let slash = |c: (i32, i32)| {
             let h = px(style::UNRESOLVED_HALF);
-            root.draw(&plotters::element::Rectangle::new(
-                [(c.0 - h, c.1 - h), (c.0 + h, c.1 + h)],
+            root.draw(&PathElement::new(
+                vec![(c.0 - h, c.1 + h), (c.0 + h, c.1 - h)],
                 style::UNRESOLVED_MARK.plotters().stroke_width(upx(2)),
             ))
             .map_err(drawing_error)
@@ -1496,7 +1496,7 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
                     ring(at(p.x, p.y))?;
                 }
                 if p.unresolved {
-                    square(at(p.x, p.y))?;
+                    slash(at(p.x, p.y))?;
                 }
             }
         }
@@ -1556,7 +1556,7 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
                 }
                 Symbol::Unresolved => {
                     marker(c, style::RING_SAMPLE)?;
-                    square(c)?;
+                    slash(c)?;
                 }
                 Symbol::Line(colour, width) => {
                     root.draw(&PathElement::new(

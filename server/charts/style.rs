@@ -87,14 +87,14 @@ pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
     filled: false,
 };
 
-/// The dashed square around the marker of an object whose sphere of influence is not resolved:
-/// an indigo far from the outlier ring's dark red under every simulated colour-vision deficiency
-/// (blue against red-brown), 10:1 against white, and a shape of its own (a dashed square), so it
-/// reads without colour and beside a ring.
+/// The slash through the marker of an object whose sphere of influence is not resolved: an indigo
+/// far from the outlier ring's dark red under every simulated colour-vision deficiency (blue
+/// against red-brown), 10:1 against white, and a shape of its own (a diagonal stroke, which no
+/// marker, error bar or ring has), so it reads without colour and beside a ring.
 pub(super) const UNRESOLVED_MARK: Rgb = Rgb(0x3A, 0x2D, 0x8F);
-/// Half the side of the unresolved square in pixels: clear of every marker shape, its sides inside
-/// the outlier ring (so the two read together), small enough not to crowd a dense sample.
-pub(super) const UNRESOLVED_HALF: f64 = 7.5;
+/// Half the slash's extent along each axis, in pixels: past every marker shape, inside the
+/// outlier ring (so the two read together), short enough not to crowd a dense sample.
+pub(super) const UNRESOLVED_HALF: f64 = 6.5;
 
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
@@ -306,15 +306,16 @@ pub(super) fn ring_element(cx: f64, cy: f64) -> String {
     )
 }
 
-/// The dashed square around the marker of an object whose sphere of influence is not resolved,
-/// centred at (cx, cy) pixels, with `class="unresolved-mark"`.
+/// The slash through the marker of an object whose sphere of influence is not resolved, from
+/// lower left to upper right about (cx, cy) pixels, with `class="unresolved-mark"`.
 pub(super) fn unresolved_element(cx: f64, cy: f64) -> String {
     format!(
-        r#"<rect class="unresolved-mark" x="{}" y="{}" width="{side}" height="{side}" fill="none" stroke="{}" stroke-width="1.3" stroke-dasharray="3 2"/>"#,
+        r#"<path class="unresolved-mark" d="M{} {}L{} {}" fill="none" stroke="{}" stroke-width="2" stroke-linecap="round"/>"#,
         num(cx - UNRESOLVED_HALF),
+        num(cy + UNRESOLVED_HALF),
+        num(cx + UNRESOLVED_HALF),
         num(cy - UNRESOLVED_HALF),
         UNRESOLVED_MARK.hex(),
-        side = num(2.0 * UNRESOLVED_HALF),
     )
 }
 

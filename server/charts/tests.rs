@@ -1778,7 +1778,7 @@ fn unresolved_spheres_of_influence_get_a_square_and_a_legend_entry_only_when_pre
     let plain = relation_svg(&chart).expect("chart draws");
     assert_eq!(count(&plain, "class=\"unresolved-mark\""), 0);
     assert!(!legend_words(&plain).contains("Sphere of influence"));
-    assert!(!plain.contains("not resolved (dashed square)"));
+    assert!(!plain.contains("not resolved (slashed)"));
     chart.points[2].unresolved = true;
     chart.points[4].outlier = true;
     chart.points[4].unresolved = true;
@@ -1795,7 +1795,7 @@ fn unresolved_spheres_of_influence_get_a_square_and_a_legend_entry_only_when_pre
     // Points and the legend's sample.
     assert_eq!(count(&svg, "class=\"unresolved-mark\""), 3);
     assert!(legend_words(&svg).contains("Sphere of influence not resolved"));
-    assert!(svg.contains("2 objects with the sphere of influence not resolved (dashed square)."));
+    assert!(svg.contains("2 objects with the sphere of influence not resolved (slashed)."));
     // On a density chart they are drawn one by one, like the emphasised points.
     let mut large = large_chart(3_000, 0);
     large.points[7].unresolved = true;
