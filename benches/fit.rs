@@ -192,6 +192,16 @@ fn structural_plane(c: &mut Criterion) {
         });
     }
     g.finish();
+    // The plane's influence list: one fit, every object's one-step shift and chord refits of
+    // the top 20 (docs/methods.md §6.1).
+    let mut g = c.benchmark_group("leave_one_out");
+    g.sample_size(10);
+    g.measurement_time(Duration::from_secs(10));
+    let pts = plane_sample(100_000, 3);
+    g.bench_function("structural_plane_100000", |b| {
+        b.iter(|| leave_one_out(black_box(&pts), &spec).unwrap())
+    });
+    g.finish();
 }
 
 criterion_group!(fit_benches, benches, influence_benches, structural_plane);

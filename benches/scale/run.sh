@@ -8,7 +8,8 @@
 #      (`massline import PENDING --as member1`, timed);
 #   3. starts `massline serve --public-read` on that database RUNS times and times the first
 #      complete M–σ page after the start (the page is polled until it answers 200 without the
-#      word "computing");
+#      word "computing"), then waits until the server's log says the version's analysis is
+#      done (default fits, review scores, influence lists) and records how long that took;
 #   4. times (median of RUNS requests) the cached M–σ page, a galaxy page, the review queue
 #      (logged in as reviewer1 through the login form) and one placement through the API, and
 #      reads the server's peak resident memory (VmHWM in /proc/PID/status).
@@ -22,7 +23,9 @@
 # keeps the servers' log (SERVER_LOG=info logs when each version's analysis is done).
 #
 # Needs python3 (standard library) and curl. Only URLs are used, never the pages' content,
-# except the login form's hidden anti-forgery field and the word "computing".
+# except the login form's hidden anti-forgery field and the word "computing"; the analysis
+# times come from the server's own log lines ("default fits and review scores ready",
+# "catalog version analysed"), which the script always enables.
 set -euo pipefail
 
 cd "$(dirname "$0")/../.."
@@ -83,7 +86,7 @@ request_ms() {
 }
 start_server() {
     local db="$1" port="$2"
-    RUST_LOG="${SERVER_LOG:-warn}" "$BIN" serve --public-read --db "$db" --bind "127.0.0.1:$port" \
+    RUST_LOG="${SERVER_LOG:-warn},massline::relations::version_analysis=info" "$BIN" serve --public-read --db "$db" --bind "127.0.0.1:$port" \
         --page-rate-per-minute 0 --api-rate-per-minute 0 >>"$WORK/server.log" 2>&1 &
     SERVER_PID=$!
 }
@@ -94,6 +97,8 @@ first_page() {
     local db="$1" port t0 code
     port="$(free_port)"
     BASE="http://127.0.0.1:$port"
+    LOG_FROM=1
+    [[ ! -f "$WORK/server.log" ]] || LOG_FROM=$(($(wc -l <"$WORK/server.log") + 1))
     t0="$(now)"
     start_server "$db" "$port"
     local deadline=$((SECONDS + FIRST_WAIT))
@@ -113,6 +118,29 @@ first_page() {
     done
     echo "no complete relation page after $FIRST_WAIT s" >&2
     FIRST_S=nan
+}
+
+# Wait until the server started by `first_page` logs that its catalog version is analysed;
+# set READY_S and ANALYSED_S to the seconds the analysis took to the default fits and review
+# scores, and to its end (from the log's took_ms), or nan after FIRST_WAIT seconds.
+wait_analysis() {
+    local deadline=$((SECONDS + FIRST_WAIT)) line
+    while ((SECONDS < deadline)); do
+        line="$(tail -n +"$LOG_FROM" "$WORK/server.log" | grep -m1 'catalog version analysed' || true)"
+        if [[ -n "$line" ]]; then
+            ANALYSED_S="$(sed -n 's/.*took_ms=\([0-9]*\).*/\1/p' <<<"$line" |
+                python3 -c "import sys; print(f'{int(sys.stdin.read()) / 1000:.2f}')")"
+            READY_S="$(tail -n +"$LOG_FROM" "$WORK/server.log" |
+                grep -m1 'default fits and review scores ready' |
+                sed -n 's/.*took_ms=\([0-9]*\).*/\1/p' |
+                python3 -c "import sys; t = sys.stdin.read().strip(); print(f'{int(t) / 1000:.2f}' if t else 'nan')")"
+            return 0
+        fi
+        sleep 0.1
+    done
+    echo "the analysis did not finish within $FIRST_WAIT s" >&2
+    READY_S=nan
+    ANALYSED_S=nan
 }
 
 ROWS=()
@@ -140,11 +168,15 @@ for n in "${SIZES[@]}"; do
     pending_s="$(elapsed "$t0" "$(now)")"
     echo "N=$n pending import: $pending_s s" >&2
 
-    firsts=()
+    firsts=() readies=() analysed=()
     for run in $(seq 1 "$RUNS"); do
         first_page "$db"
         firsts+=("$FIRST_S")
         echo "N=$n first relation page $run: ${firsts[-1]} s" >&2
+        wait_analysis
+        readies+=("$READY_S")
+        analysed+=("$ANALYSED_S")
+        echo "N=$n analysis $run: fits and scores ${READY_S} s, done ${ANALYSED_S} s" >&2
         [[ $run == "$RUNS" ]] || stop_server
     done
     base="$BASE"
@@ -171,12 +203,12 @@ print(sqlite3.connect(sys.argv[1]).execute('select slug from galaxy order by gal
     hwm_kb="$(sed -n 's/^VmHWM:[[:space:]]*\([0-9]*\) kB/\1/p' /proc/"$SERVER_PID"/status)"
     stop_server
 
-    ROWS+=("| $n | $((3 * n)) | $(median "${imports[@]}") | $pending_s | $(median "${firsts[@]}") | $(median "${cached[@]}") | $(median "${galaxy[@]}") | $(median "${review[@]}") | $(median "${placed[@]}") | $((hwm_kb / 1024)) |")
+    ROWS+=("| $n | $((3 * n)) | $(median "${imports[@]}") | $pending_s | $(median "${firsts[@]}") | $(median "${readies[@]}") | $(median "${analysed[@]}") | $(median "${cached[@]}") | $(median "${galaxy[@]}") | $(median "${review[@]}") | $(median "${placed[@]}") | $((hwm_kb / 1024)) |")
 done
 
 echo
-echo "| galaxies | rows | import --accept, s | $PENDING pending galaxies --as member1, s | first M–σ page after start, s | cached M–σ page, ms | galaxy page, ms | /review, ms | GET /api/v1/place, ms | server peak RSS, MiB |"
-echo "|---|---|---|---|---|---|---|---|---|---|"
+echo "| galaxies | rows | import --accept, s | $PENDING pending galaxies --as member1, s | first M–σ page after start, s | analysis: fits and review scores, s | analysis done, s | cached M–σ page, ms | galaxy page, ms | /review, ms | GET /api/v1/place, ms | server peak RSS, MiB |"
+echo "|---|---|---|---|---|---|---|---|---|---|---|---|"
 printf '%s\n' "${ROWS[@]}"
 echo
 echo "median of $RUNS (every run in brackets); $(date -u +%Y-%m-%d), $(nproc) cores, load average $(cut -d' ' -f1-3 /proc/loadavg)"

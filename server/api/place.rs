@@ -335,7 +335,7 @@ fn computing_outcome(key: crate::relations::FitKey) -> FitOutcome {
     let version = key.catalog_version;
     FitOutcome {
         key,
-        sample: crate::relations::Sample::default(),
+        sample: std::sync::Arc::default(),
         fit: Err(FitError::Unsupported {
             what: format!(
                 "Computing: the fit of catalog version {version} is under way; ask again in a few seconds."

@@ -192,17 +192,29 @@ pub(super) fn residual(chart: &ResidualChart) -> Result<String, ChartError> {
 }
 
 pub(super) fn relation_rendered(chart: &RelationChart) -> Result<Rendered, ChartError> {
-    render(&relation_scene(chart)?)
+    render(&relation_scene(chart, &chart.points)?)
+}
+
+/// The relation chart with `points` in place of its own (see [`super::relation_svg_of`]).
+pub(super) fn relation_of(
+    chart: &RelationChart,
+    points: &[ChartPoint],
+) -> Result<String, ChartError> {
+    render(&relation_scene(chart, points)?).map(|r| r.svg)
 }
 
 /// The relation chart as a PNG at print resolution (see [`super::relation_png`]).
 pub(super) fn relation_png(chart: &RelationChart) -> Result<Vec<u8>, ChartError> {
-    render_png(&relation_scene(chart)?)
+    render_png(&relation_scene(chart, &chart.points)?)
 }
 
-fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
+/// The scene of `chart` with the objects `points` (the chart's own, or a shared list).
+fn relation_scene<'a>(
+    chart: &'a RelationChart,
+    points: &'a [ChartPoint],
+) -> Result<Scene<'a>, ChartError> {
     check_size(chart.width, chart.height)?;
-    check_points(&chart.points, chart.groups.len())?;
+    check_points(points, chart.groups.len())?;
     if let Some(h) = &chart.highlight {
         check_point(h, &highlight_item(h), None)?;
     }
@@ -212,8 +224,8 @@ fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
     check_band(&chart.mean_band)?;
 
     let highlight = chart.highlight.as_ref();
-    let drawn = || chart.points.iter().chain(highlight);
-    let empty = chart.points.is_empty();
+    let drawn = || points.iter().chain(highlight);
+    let empty = points.is_empty();
 
     // Without any object the frame still needs a range: around the line's pivot if there is one.
     let fallback = chart.line.map_or(((0.0, 1.0), (0.0, 1.0)), |l| {
@@ -229,8 +241,8 @@ fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
 
     let mut fills = Vec::new();
     let mut strokes = Vec::new();
-    let thin = thinning(&chart.points, chart.groups.len());
-    let mut legend = group_legend(&chart.groups, empty, highlight, &chart.points, &thin);
+    let thin = thinning(points, chart.groups.len());
+    let mut legend = group_legend(&chart.groups, empty, highlight, points, &thin);
     let density_slot = legend_slot(&legend);
     if !empty {
         let samples = chart
@@ -317,7 +329,7 @@ fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
             &chart.title,
             &chart.x_label,
             &chart.y_label,
-            &chart.points,
+            points,
             highlight,
             line_text,
         ),
@@ -325,7 +337,7 @@ fn relation_scene(chart: &RelationChart) -> Result<Scene<'_>, ChartError> {
         y_label: &chart.y_label,
         width: chart.width,
         height: chart.height,
-        points: &chart.points,
+        points: points,
         groups: &chart.groups,
         highlight,
         thinning: thin,

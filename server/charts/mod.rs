@@ -349,6 +349,17 @@ pub fn relation_svg(chart: &RelationChart) -> Result<String, ChartError> {
     draw::relation(chart)
 }
 
+/// Draws `chart` as [`relation_svg`] does, with `points` in place of `chart.points` (which
+/// are not read): several charts of one sample (a galaxy page's placement against a
+/// survey-sized relation, one per galaxy) share one list of points instead of copying it.
+///
+/// # Errors
+///
+/// As [`relation_svg`].
+pub fn relation_svg_of(chart: &RelationChart, points: &[ChartPoint]) -> Result<String, ChartError> {
+    draw::relation_of(chart, points)
+}
+
 /// Draws a residual chart: residuals in dex against the property in `x`, with a zero line, the
 /// ±1ε band, error bars, upper limits as downward arrows, markers by group and the highlighted
 /// object; points are linked and titled as in [`relation_svg`].

@@ -1,13 +1,16 @@
 //! `massline serve`: build the assembled server ([`crate::startup::Application`]) and run it
 //! until Ctrl-C.
 
+use std::io::IsTerminal;
+
 use tracing_subscriber::EnvFilter;
 
 use crate::config::Settings;
 use crate::startup::Application;
 
 /// Runs the web service with `settings`, printing the demo accounts it created (once) and
-/// logging to standard output (`RUST_LOG` chooses the level; default `info,sqlx=warn`).
+/// logging to standard output (`RUST_LOG` chooses the level; default `info,sqlx=warn`; colours
+/// only on a terminal, so a log written to a file or a collector stays plain text).
 ///
 /// # Errors
 /// When the server cannot be built (database, demo catalog, address) or fails while running.
@@ -16,6 +19,7 @@ pub fn run(settings: Settings) -> anyhow::Result<()> {
         .with_env_filter(
             EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new("info,sqlx=warn")),
         )
+        .with_ansi(std::io::stdout().is_terminal())
         .init();
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async move {

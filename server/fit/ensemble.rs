@@ -369,20 +369,30 @@ where
     sample_with_progress(log_prob, start, scale, names, cfg, None)
 }
 
-/// As [`sample_with_scale`], and stores the number of completed steps (burn-in included, out
-/// of `cfg.steps`) in `progress` after each step, so a caller on another thread can show how
-/// far a long run has got. The counter has no influence on the chain.
+/// How a caller on another thread follows a long sampler run and stops it.
+pub struct Progress<'a> {
+    /// The number of completed steps (burn-in included, out of `cfg.steps`), stored after
+    /// each step.
+    pub done: &'a AtomicUsize,
+    /// Asked after each step; `true` ends the run with [`FitError::Unsupported`] ("stopped
+    /// before its end"): a background run whose catalog version was superseded.
+    pub stop: &'a (dyn Fn() -> bool + Sync),
+}
+
+/// As [`sample_with_scale`], and stores the number of completed steps in `progress` after each
+/// step, so a caller on another thread can show how far a long run has got, and stops when
+/// `progress` says so. Neither has any influence on the chain.
 ///
 /// # Errors
 ///
-/// As [`sample_with_scale`].
+/// As [`sample_with_scale`]; [`FitError::Unsupported`] when stopped.
 pub fn sample_with_progress<F>(
     log_prob: F,
     start: &[f64],
     scale: &[f64],
     names: &[&'static str],
     cfg: &EnsembleConfig,
-    progress: Option<&AtomicUsize>,
+    progress: Option<&Progress<'_>>,
 ) -> Result<Chain, FitError>
 where
     F: Fn(&[f64]) -> f64 + Sync,
@@ -521,8 +531,17 @@ where
             samples.extend(pos.iter().cloned());
             sample_lp.extend_from_slice(&lp);
         }
-        if let Some(counter) = progress {
-            counter.store(step + 1, Ordering::Relaxed);
+        if let Some(progress) = progress {
+            progress.done.store(step + 1, Ordering::Relaxed);
+            if (progress.stop)() {
+                return Err(FitError::Unsupported {
+                    what: format!(
+                        "The sampler was stopped after {} of {} steps.",
+                        step + 1,
+                        cfg.steps
+                    ),
+                });
+            }
         }
     }
 
@@ -603,19 +622,49 @@ mod progress_tests {
         let log_prob = |t: &[f64]| -0.5 * (t[0] * t[0] + t[1] * t[1]);
         let cfg = EnsembleConfig::new(8, 120, 20, 5).unwrap();
         let counter = AtomicUsize::new(0);
+        let never = || false;
+        let progress = Progress {
+            done: &counter,
+            stop: &never,
+        };
         let with = sample_with_progress(
             log_prob,
             &[0.0, 0.0],
             &[1.0, 1.0],
             &["a", "b"],
             &cfg,
-            Some(&counter),
+            Some(&progress),
         )
         .unwrap();
         let without =
             sample_with_scale(log_prob, &[0.0, 0.0], &[1.0, 1.0], &["a", "b"], &cfg).unwrap();
         assert_eq!(counter.load(Ordering::Relaxed), 120);
         assert_eq!(with.samples, without.samples);
+    }
+
+    #[test]
+    fn a_stop_ends_the_run_after_the_step_it_is_seen() {
+        let log_prob = |t: &[f64]| -0.5 * (t[0] * t[0] + t[1] * t[1]);
+        let cfg = EnsembleConfig::new(8, 1_000, 100, 5).unwrap();
+        let counter = AtomicUsize::new(0);
+        let after_30 = || counter.load(Ordering::Relaxed) >= 30;
+        let progress = Progress {
+            done: &counter,
+            stop: &after_30,
+        };
+        let r = sample_with_progress(
+            log_prob,
+            &[0.0, 0.0],
+            &[1.0, 1.0],
+            &["a", "b"],
+            &cfg,
+            Some(&progress),
+        );
+        assert!(
+            matches!(&r, Err(FitError::Unsupported { what }) if what.contains("30 of 1000")),
+            "{r:?}"
+        );
+        assert_eq!(counter.load(Ordering::Relaxed), 30);
     }
 }
 

@@ -7,7 +7,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::diagnostics::Influence;
-use super::optimize::analytic::{A, B, C, E, NS, PerObject};
+use super::optimize::analytic::{A, Analytic, B, C, E, NS, PerObject};
 use super::optimize::invert_spd;
 use super::types::Data;
 use super::{
@@ -530,6 +530,9 @@ pub(super) fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Infl
             .map(|i| exact(points, spec, &full, prec, i))
             .collect();
     }
+    if let Some(list) = plane_ranked_and_refitted(points, spec, &full, prec)? {
+        return Ok(list);
+    }
     let analytic = match spec.method {
         _ if !has_one_step(spec) => None,
         Method::Structural => {
@@ -556,6 +559,70 @@ pub(super) fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Infl
         .collect()
 }
 
+/// The structural plane with one Gaussian x model (whose likelihood has per-object analytic
+/// gradients but not the per-object Hessians of [`PerObject`]): every object's one-step
+/// shift, per-object Hessians by central differences, and the [`EXACT_TOP`] ranked highest
+/// replaced by chord refits from their one-step estimates ([`structural::PlaneLeaveOneOut`]),
+/// or by refits from scratch where the chord does not converge. `None` for other
+/// specifications, or where ε sits at 0 or a step cannot be formed: the caller then ranks by
+/// the proxy likelihood.
+fn plane_ranked_and_refitted(
+    points: &[Point],
+    spec: &FitSpec,
+    full: &Fit,
+    prec: Option<[[f64; 2]; 2]>,
+) -> Result<Option<Vec<Influence>>, FitError> {
+    if !(spec.method == Method::Structural && spec.shape == Shape::Plane && spec.components == 1) {
+        return Ok(None);
+    }
+    let model = structural::Model::new(points, spec)?;
+    let Some(loo) = structural::PlaneLeaveOneOut::new(&model, &model.start(full)) else {
+        return Ok(None);
+    };
+    let hat = loo.relation_at_maximum();
+    let entry = |i: usize, r: [f64; 4], exact: bool| {
+        let (d_alpha, d_beta) = (r[0] - hat[0], r[1] - hat[1]);
+        Influence {
+            index: i,
+            d_alpha,
+            d_beta,
+            d_beta2: None,
+            d_gamma: Some(r[2] - hat[2]),
+            d_eps: r[3] - hat[3],
+            shift_sigma: sigma_of(prec, d_alpha, d_beta),
+            exact,
+        }
+    };
+    let Some(starts) = (0..points.len())
+        .into_par_iter()
+        .map(|i| loo.one_step(i))
+        .collect::<Option<Vec<Vec<f64>>>>()
+    else {
+        return Ok(None);
+    };
+    let mut list: Vec<Influence> = starts
+        .iter()
+        .enumerate()
+        .map(|(i, u)| entry(i, loo.relation(u), false))
+        .collect();
+    let refits: Vec<(usize, Option<Influence>)> = top(&list, EXACT_TOP)
+        .par_iter()
+        .map(|&i| {
+            let r = match loo.refit(i, &starts[i]) {
+                Some(u) => Some(entry(i, loo.relation(&u), true)),
+                None => exact(points, spec, full, prec, i).ok(),
+            };
+            (i, r)
+        })
+        .collect();
+    for (i, r) in refits {
+        if let Some(r) = r {
+            list[i] = r;
+        }
+    }
+    Ok(Some(list))
+}
+
 /// How the relation would move if `new` joined `points`: the one-step approximation above
 /// [`EXACT_MAX_N`] objects for likelihoods with per-object derivatives ([`has_one_step`]), a
 /// refit otherwise.
@@ -567,7 +634,8 @@ pub(super) fn leave_one_out(points: &[Point], spec: &FitSpec) -> Result<Vec<Infl
 /// shift_sigma = √(Δᵀ C⁻¹ Δ),  Δ = (Δα, Δβ),  C the fit's (α, β) covariance
 /// ```
 /// over the free parameters as in [`approximate`] (ε held at 0 when the fit has it there). α,
-/// ε in dex; β dex/dex.
+/// ε in dex; β dex/dex. The sample's g and H are the same for every new object: a caller that
+/// asks for many keeps them with [`AddingBase`].
 ///
 /// # Errors
 /// [`FitError::InvalidSetting`] (setting `fit`) when `fit` was not made with `spec`; the
@@ -583,70 +651,177 @@ pub fn adding_one(
     fit: &Fit,
     new: &Point,
 ) -> Result<Shift, FitError> {
-    if fit.spec != *spec {
-        return Err(FitError::InvalidSetting {
-            setting: "fit",
-            reason: "Pass the fit made of the same sample with the same settings.".to_owned(),
-        });
-    }
-    let mut all = points.to_vec();
-    all.push(new.clone());
-    let prec = ab_precision(fit);
-    let approx = if points.len() > EXACT_MAX_N
-        && has_one_step(spec)
-        && (spec.method != Method::Structural || fit.x_model.is_some())
-    {
-        match spec.method {
-            Method::Structural => newton_step(&structural::Model::new(&all, spec)?, fit),
-            _ => newton_step(&conditional::Model::new(&all, spec)?, fit),
-        }
-    } else {
-        None
-    };
-    if let Some(dp) = approx {
-        return Ok(Shift {
-            d_alpha: dp[A],
-            d_beta: dp[B],
-            d_beta2: (spec.shape == Shape::Quadratic).then_some(dp[C]),
-            d_gamma: (spec.shape == Shape::Plane).then_some(dp[C]),
-            d_eps: dp[E],
-            shift_sigma: sigma_of(prec, dp[A], dp[B]),
-            exact: false,
-        });
-    }
-    let refitted = fit_params_only(&all, spec)?;
-    let (d_alpha, d_beta, d_beta2, d_gamma, d_eps) = difference(&refitted.params, &fit.params);
-    Ok(Shift {
-        d_alpha,
-        d_beta,
-        d_beta2,
-        d_gamma,
-        d_eps,
-        shift_sigma: sigma_of(prec, d_alpha, d_beta),
-        exact: true,
-    })
+    AddingBase::new(points, spec, fit)?.shift(points, new)
 }
 
-/// One Newton step of `model` (the sample with the new object) from the maximum of `fit`:
-/// −H⁻¹ g over the free slots, ε kept from crossing 0.
-fn newton_step<O: PerObject>(model: &O, fit: &Fit) -> Option<[f64; NS]> {
-    let (p, free, total) = at_maximum(model, fit)?;
-    let k = free.len();
-    let mut m = [[0.0; NS]; NS];
-    let mut r = [0.0; NS];
-    for (a, &sa) in free.iter().enumerate() {
-        r[a] = -total.g[sa];
-        for (b, &sb) in free.iter().enumerate() {
-            m[a][b] = total.h[sa][sb];
+/// The sample's side of [`adding_one`] for one fit: the gradient and Hessian of its −2 ln L
+/// at the maximum, so that the one-step change for each new object costs one object's terms
+/// (O(1)) instead of a pass over the sample.
+#[derive(Clone, Debug)]
+pub struct AddingBase {
+    spec: FitSpec,
+    fit: Fit,
+    prec: Option<[[f64; 2]; 2]>,
+    /// `None` where [`adding_one`] refits: at most [`EXACT_MAX_N`] objects, no per-object
+    /// likelihood, or a structural fit without its x model.
+    step: Option<StepBase>,
+}
+
+/// The slots at the maximum, the free slots, the sample's derivatives there (ε stepped in
+/// ln ε) and a one-object model to evaluate a new object's terms with.
+#[derive(Clone, Debug)]
+struct StepBase {
+    p: [f64; NS],
+    free: Vec<usize>,
+    total: super::optimize::analytic::Derivs,
+    one: OneObject,
+}
+
+#[derive(Clone, Debug)]
+enum OneObject {
+    Structural(structural::Model),
+    Conditional(conditional::Model),
+}
+
+impl AddingBase {
+    /// The sample's side for `fit` of `points` (one pass over the sample).
+    ///
+    /// # Errors
+    /// [`FitError::InvalidSetting`] (setting `fit`) when `fit` was not made with `spec`; the
+    /// input errors of [`super::fit`] for `points`.
+    pub fn new(points: &[Point], spec: &FitSpec, fit: &Fit) -> Result<AddingBase, FitError> {
+        if fit.spec != *spec {
+            return Err(FitError::InvalidSetting {
+                setting: "fit",
+                reason: "Pass the fit made of the same sample with the same settings.".to_owned(),
+            });
         }
+        let one_step = points.len() > EXACT_MAX_N
+            && has_one_step(spec)
+            && (spec.method != Method::Structural || fit.x_model.is_some());
+        let step = if one_step {
+            match spec.method {
+                Method::Structural => {
+                    let model = structural::Model::new(points, spec)?;
+                    at_maximum(&model, fit).map(|(p, free, total)| StepBase {
+                        p,
+                        free,
+                        total,
+                        one: OneObject::Structural(model.one(0)),
+                    })
+                }
+                _ => {
+                    let model = conditional::Model::new(points, spec)?;
+                    at_maximum(&model, fit).map(|(p, free, total)| StepBase {
+                        p,
+                        free,
+                        total,
+                        one: OneObject::Conditional(model.one(0)),
+                    })
+                }
+            }
+        } else {
+            None
+        };
+        Ok(AddingBase {
+            spec: spec.clone(),
+            fit: fit.clone(),
+            prec: ab_precision(fit),
+            step,
+        })
     }
-    let x = solve(k, m, r)?;
-    let mut dp = [0.0; NS];
-    for (a, &sa) in free.iter().enumerate() {
-        dp[sa] = x[a];
+
+    /// How the relation would move if `new` joined `points` (the sample this base was made
+    /// from), as [`adding_one`]: by one step where the base has the sample's derivatives, by
+    /// a refit otherwise or when the step cannot be formed.
+    ///
+    /// # Errors
+    /// The input errors of [`super::fit`] for `new`; the errors of a refit.
+    pub fn shift(&self, points: &[Point], new: &Point) -> Result<Shift, FitError> {
+        let step = match &self.step {
+            Some(base) => {
+                let row = super::types::prepare_rows(std::slice::from_ref(new), &self.spec)
+                    .map_err(|e| renumbered(e, points.len()))?;
+                base.newton_step(row)
+            }
+            None => None,
+        };
+        if let Some(dp) = step {
+            return Ok(Shift {
+                d_alpha: dp[A],
+                d_beta: dp[B],
+                d_beta2: (self.spec.shape == Shape::Quadratic).then_some(dp[C]),
+                d_gamma: (self.spec.shape == Shape::Plane).then_some(dp[C]),
+                d_eps: dp[E],
+                shift_sigma: sigma_of(self.prec, dp[A], dp[B]),
+                exact: false,
+            });
+        }
+        let mut all = points.to_vec();
+        all.push(new.clone());
+        let refitted = fit_params_only(&all, &self.spec)?;
+        let (d_alpha, d_beta, d_beta2, d_gamma, d_eps) =
+            difference(&refitted.params, &self.fit.params);
+        Ok(Shift {
+            d_alpha,
+            d_beta,
+            d_beta2,
+            d_gamma,
+            d_eps,
+            shift_sigma: sigma_of(self.prec, d_alpha, d_beta),
+            exact: true,
+        })
     }
-    dp[E] = eps_change(p[E], dp[E]);
-    Some(dp)
+}
+
+/// An input error of the one-row sample `[new]` as the error of the sample with `new` as its
+/// last row (row `n`), as a refit of that sample would report it.
+fn renumbered(e: FitError, n: usize) -> FitError {
+    match e {
+        FitError::NonFiniteInput { column, .. } => FitError::NonFiniteInput { row: n, column },
+        FitError::NegativeError { column, .. } => FitError::NegativeError { row: n, column },
+        FitError::InvalidSetting { setting, reason } => FitError::InvalidSetting {
+            setting,
+            reason: reason.replacen("Row 0 ", &format!("Row {n} "), 1),
+        },
+        other => other,
+    }
+}
+
+impl StepBase {
+    /// One Newton step of the sample with the object of `row` from the maximum:
+    /// −(H + H_new)⁻¹ (g + g_new) over the free slots, ε kept from crossing 0.
+    fn newton_step(&self, row: super::types::Data) -> Option<[f64; NS]> {
+        let mut d = match &self.one {
+            OneObject::Structural(m) => {
+                let mut m = m.clone();
+                m.set_row(row);
+                m.derivs(&self.p, false, &self.free)?
+            }
+            OneObject::Conditional(m) => {
+                let mut m = m.clone();
+                m.set_row(row);
+                m.derivs(&self.p, false, &self.free)?
+            }
+        };
+        to_log_eps(&mut d, self.p[E], &self.free);
+        let k = self.free.len();
+        let mut m = [[0.0; NS]; NS];
+        let mut r = [0.0; NS];
+        for (a, &sa) in self.free.iter().enumerate() {
+            r[a] = -(self.total.g[sa] + d.g[sa]);
+            for (b, &sb) in self.free.iter().enumerate() {
+                m[a][b] = self.total.h[sa][sb] + d.h[sa][sb];
+            }
+        }
+        let x = solve(k, m, r)?;
+        let mut dp = [0.0; NS];
+        for (a, &sa) in self.free.iter().enumerate() {
+            dp[sa] = x[a];
+        }
+        dp[E] = eps_change(self.p[E], dp[E]);
+        Some(dp)
+    }
 }
 
 #[cfg(test)]

@@ -101,7 +101,7 @@ pub mod types;
 use serde::Serialize;
 
 pub use diagnostics::{Influence, Offset, Residual, leave_one_out, residuals, zero_point_offset};
-pub use influence::{Shift, adding_one};
+pub use influence::{AddingBase, Shift, adding_one};
 pub use intervals::{IntervalKind, Intervals, ParamInterval};
 pub use predict::{Placement, Prediction, invert, locate, place, predict, predict_plane};
 pub use types::{

@@ -170,17 +170,18 @@ pub fn posterior_from_fit(
 }
 
 /// As [`posterior_from_fit`], counting completed sampler steps (out of `cfg.steps`) in
-/// `progress` for a caller that shows how far a background run has got.
+/// `progress` for a caller that shows how far a background run has got, and stopping when
+/// `progress` asks (`ensemble::Progress`).
 ///
 /// # Errors
 ///
-/// As [`posterior_from_fit`].
+/// As [`posterior_from_fit`]; [`FitError::Unsupported`] when stopped.
 pub fn posterior_with_progress(
     points: &[Point],
     spec: &FitSpec,
     fit: &Fit,
     cfg: &EnsembleConfig,
-    progress: Option<&std::sync::atomic::AtomicUsize>,
+    progress: Option<&super::ensemble::Progress<'_>>,
 ) -> Result<(Posterior, Chain), FitError> {
     if !matches!(spec.method, Method::Structural | Method::Conditional) {
         return Err(FitError::Unsupported {

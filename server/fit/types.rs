@@ -683,6 +683,38 @@ impl Data {
 /// a planar fit, all limits, too few detections (`min`), no spread in x (or x2) among the
 /// detections.
 pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Data, FitError> {
+    let data = prepare_rows(points, spec)?;
+    let n = points.len();
+    if n > 0 && data.n_upper == n {
+        return Err(FitError::AllUpperLimits);
+    }
+    let n_det = n - data.n_upper;
+    if n_det < min {
+        return Err(FitError::TooFewPoints {
+            n: n_det,
+            min,
+            method: spec.method.as_str(),
+        });
+    }
+    let spread = |v: &[f64]| {
+        let mut it = v
+            .iter()
+            .zip(&data.lim)
+            .filter(|(_, l)| !**l)
+            .map(|(x, _)| *x);
+        let first = it.next().unwrap_or(0.0);
+        it.any(|x| (x - first).abs() > 0.0)
+    };
+    if !spread(&data.d) || (spec.shape == Shape::Plane && !spread(&data.d2)) {
+        return Err(FitError::NoSpreadInX);
+    }
+    Ok(data)
+}
+
+/// The row checks of [`prepare`] (the first four) and the pivoted arrays, without the checks
+/// of the sample as a whole: for rows evaluated against another sample's fit (an object
+/// added to it).
+pub(crate) fn prepare_rows(points: &[Point], spec: &FitSpec) -> Result<Data, FitError> {
     let plane = spec.shape == Shape::Plane;
     let n = points.len();
     let mut data = Data {
@@ -784,29 +816,6 @@ pub(crate) fn prepare(points: &[Point], spec: &FitSpec, min: usize) -> Result<Da
         if p.upper_limit {
             data.n_upper += 1;
         }
-    }
-    if n > 0 && data.n_upper == n {
-        return Err(FitError::AllUpperLimits);
-    }
-    let n_det = n - data.n_upper;
-    if n_det < min {
-        return Err(FitError::TooFewPoints {
-            n: n_det,
-            min,
-            method: spec.method.as_str(),
-        });
-    }
-    let spread = |v: &[f64]| {
-        let mut it = v
-            .iter()
-            .zip(&data.lim)
-            .filter(|(_, l)| !**l)
-            .map(|(x, _)| *x);
-        let first = it.next().unwrap_or(0.0);
-        it.any(|x| (x - first).abs() > 0.0)
-    };
-    if !spread(&data.d) || (plane && !spread(&data.d2)) {
-        return Err(FitError::NoSpreadInX);
     }
     Ok(data)
 }

@@ -113,8 +113,9 @@ impl FitKey {
 pub struct FitOutcome {
     /// Its key.
     pub key: FitKey,
-    /// The sample (points and galaxies, same order).
-    pub sample: Sample,
+    /// The sample (points and galaxies, same order); shared, so an outcome derived from
+    /// another (a fit shifted by one object's influence) does not copy a survey-sized sample.
+    pub sample: Arc<Sample>,
     /// The fit, or why there is none (too few points, limits with FITEXY, ...).
     pub fit: Result<Fit, FitError>,
     /// The specification used (method, shape, pivots).
@@ -150,8 +151,9 @@ pub struct FitCache {
 /// survey-sized sample takes a tenth of a second, so a page keeps what it drew for the fit.
 pub type Drawn = Vec<Result<String, String>>;
 
-/// Drawn texts by fit and by what was drawn (a page's name).
-type DrawnMap = HashMap<(FitKey, String), Arc<Drawn>>;
+/// What was made from a fit, by fit and by name (a page's charts, a chart's points), of any
+/// type: the cache knows fits, not what the doors make of them.
+type DrawnMap = HashMap<(FitKey, String), Arc<dyn std::any::Any + Send + Sync>>;
 
 /// Most drawn entries kept; beyond it the map starts afresh (they are redrawn on demand).
 const MAX_DRAWN: usize = 64;
@@ -352,22 +354,36 @@ impl FitCache {
     /// What `draw` draws from the fit `key` under the name `what` (e.g. the chart settings),
     /// drawn once per fit and kept while the fit's catalog version is current.
     pub fn drawn(&self, key: &FitKey, what: &str, draw: impl FnOnce() -> Drawn) -> Arc<Drawn> {
+        self.made_from(key, what, draw)
+    }
+
+    /// What `make` makes from the fit `key` under the name `what` (e.g. a chart's points, so
+    /// that every galaxy page of a survey-sized sample does not rebuild them), made once per
+    /// fit and kept while the fit's catalog version is current. A name keeps one type.
+    pub fn made_from<T: std::any::Any + Send + Sync>(
+        &self,
+        key: &FitKey,
+        what: &str,
+        make: impl FnOnce() -> T,
+    ) -> Arc<T> {
         let slot = (key.clone(), what.to_owned());
-        if let Some(hit) = self
+        let hit = self
             .drawn
             .lock()
             .unwrap_or_else(PoisonError::into_inner)
             .get(&slot)
-        {
-            return hit.clone();
+            .cloned();
+        if let Some(hit) = hit.and_then(|h| h.downcast::<T>().ok()) {
+            return hit;
         }
-        let made = Arc::new(draw());
+        let made = Arc::new(make());
         let mut map = self.drawn.lock().unwrap_or_else(PoisonError::into_inner);
         map.retain(|(k, _), _| k.catalog_version >= key.catalog_version);
         if map.len() >= MAX_DRAWN {
             map.clear();
         }
-        map.entry(slot).or_insert(made).clone()
+        let stored = map.entry(slot).or_insert_with(|| made.clone()).clone();
+        stored.downcast::<T>().unwrap_or(made)
     }
 
     /// Holds every computation of this cache before it starts until the returned guard is
@@ -583,7 +599,7 @@ pub async fn fitted_within(
                 let fit = spec.clone().and_then(|s| fit::fit(&sample.points, &s));
                 FitOutcome {
                     key: compute_key,
-                    sample,
+                    sample: Arc::new(sample),
                     fit,
                     spec,
                     fitted_at: now_rfc3339(),
@@ -639,7 +655,7 @@ pub async fn fitted_leaving_out(
                 let fit = spec.clone().and_then(|s| fit::fit(&others.points, &s));
                 FitOutcome {
                     key: compute_key,
-                    sample: others,
+                    sample: Arc::new(others),
                     fit,
                     spec,
                     fitted_at: now_rfc3339(),
@@ -670,7 +686,7 @@ mod tests {
     fn outcome(key: &FitKey) -> FitOutcome {
         FitOutcome {
             key: key.clone(),
-            sample: Sample::default(),
+            sample: Arc::default(),
             fit: Err(FitError::AllUpperLimits),
             spec: Ok(FitSpec::new(Method::Structural, 2.3)),
             fitted_at: now_rfc3339(),
@@ -746,7 +762,8 @@ mod tests {
         };
         let sized = |key: FitKey, n: usize| {
             let mut o = outcome(&key);
-            o.sample.points = vec![crate::fit::Point::new(2.0, 0.02, 8.0, 0.1); n];
+            Arc::make_mut(&mut o.sample).points =
+                vec![crate::fit::Point::new(2.0, 0.02, 8.0, 0.1); n];
             Arc::new(o)
         };
         let default_key = FitKey::new(1, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);

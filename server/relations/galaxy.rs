@@ -159,19 +159,34 @@ pub async fn place_left_out(
     let (mut computing, mut approximate) = (Vec::new(), Vec::new());
     for relation in Relation::all(&bands) {
         let pivots = (relation.default_pivot(), relation.default_pivot2());
-        let sample = build_sample(rows, lums, &relation, &filter, catalog.soi_threshold);
+        let full_key = FitKey::new(
+            snapshot.version,
+            &relation,
+            method,
+            &filter,
+            pivots.0,
+            pivots.1,
+        );
+        // A survey-sized sample is read from the whole sample's cached fit (the background
+        // analysis made it) rather than rebuilt from every catalog row on each page view.
+        let cached = catalog
+            .fits
+            .get(&full_key)
+            .filter(|full| full.sample.points.len() > LEFT_OUT_REFIT_MAX);
+        let sample = match &cached {
+            Some(full) => full.sample.clone(),
+            None => Arc::new(build_sample(
+                rows,
+                lums,
+                &relation,
+                &filter,
+                catalog.soi_threshold,
+            )),
+        };
         let Some(index) = sample.members.iter().position(|m| m.galaxy_id == galaxy_id) else {
             continue;
         };
         let outcome = if sample.points.len() <= LEFT_OUT_REFIT_MAX {
-            let full_key = FitKey::new(
-                snapshot.version,
-                &relation,
-                method,
-                &filter,
-                pivots.0,
-                pivots.1,
-            );
             match fitted_leaving_out(
                 &catalog.fits,
                 &full_key,
@@ -191,10 +206,16 @@ pub async fn place_left_out(
                 None => continue,
             }
         } else {
-            let choice = (&relation, method, &filter, pivots);
-            let Ok(full) = catalog.fitted_within(choice, wait).await? else {
-                computing.push(relation.label());
-                continue;
+            let full = match cached {
+                Some(full) => full,
+                None => {
+                    let choice = (&relation, method, &filter, pivots);
+                    let Ok(full) = catalog.fitted_within(choice, wait).await? else {
+                        computing.push(relation.label());
+                        continue;
+                    };
+                    full
+                }
             };
             let Some(influence) = catalog.fits.influence_within(&full, wait).await? else {
                 computing.push(relation.label());

@@ -475,7 +475,7 @@ fn computing_placement(relation: &Relation, subject: &Subject, key: FitKey) -> P
         subject: subject.clone(),
         outcome: Arc::new(FitOutcome {
             key,
-            sample: super::Sample::default(),
+            sample: Arc::default(),
             fit: Err(FitError::Unsupported {
                 what: format!("The fit of catalog version {version} is being computed."),
             }),
@@ -506,6 +506,10 @@ pub async fn place(
 ) -> AppResult<Placement> {
     place_within(catalog, relation, subject, refit, REQUEST_WAIT).await
 }
+
+/// The fit cache's name for a fit's [`fit::AddingBase`] (what adding one object to the sample
+/// needs from the sample, made once per fit).
+pub const ADDING_BASE: &str = "adding one object";
 
 /// As [`place`], waiting at most `wait` for a fit being computed.
 ///
@@ -549,7 +553,8 @@ pub async fn place_within(
         point = point.with_x2(b, b_err);
     }
     // How the fit moves with the object in: an exact refit of a small sample, the one-step
-    // change above `fit::influence::EXACT_MAX_N` objects (docs/methods.md §6.1), so placing an
+    // change above `fit::influence::EXACT_MAX_N` objects (docs/methods.md §6.1) from the
+    // sample's derivatives at the maximum, kept once per fit in the cache, so placing an
     // object costs the same against 100 or 100,000 catalog objects.
     let n = placement.outcome.sample.points.len();
     if n > fit::influence::EXACT_MAX_N && !fit::influence::has_one_step(&fit.spec) {
@@ -562,8 +567,17 @@ pub async fn place_within(
     }
     let (outcome, fit) = (placement.outcome.clone(), fit.clone());
     let new = point.named("new object");
+    let fits = catalog.fits.clone();
     let moved = tokio::task::spawn_blocking(move || {
-        fit::adding_one(&outcome.sample.points, &fit.spec, &fit, &new).map(|shift| {
+        let points = &outcome.sample.points;
+        let base = fits.made_from(&outcome.key, ADDING_BASE, || {
+            fit::AddingBase::new(points, &fit.spec, &fit)
+        });
+        let shift = match base.as_ref() {
+            Ok(base) => base.shift(points, &new),
+            Err(e) => Err(e.clone()),
+        };
+        shift.map(|shift| {
             (
                 fit.shifted(shift.d_alpha, shift.d_beta, shift.d_eps),
                 shift.exact,

@@ -11,7 +11,8 @@
 //! first-come-first-served queue (an account's later runs are passed over while its earlier one
 //! runs), and an account may keep at most [`MAX_QUEUED_PER_ACCOUNT`] waiting. A run of a
 //! catalog version that has been superseded is cancelled: when it would start, between
-//! bootstrap chunks, and whenever a newer version is seen by the registry.
+//! bootstrap chunks, after any posterior sampler step, and whenever a newer version is seen by
+//! the registry.
 //!
 //! The bootstrap runs in chunks of [`BOOTSTRAP_CHUNK`] replicates so its progress can be
 //! counted; replicate i is drawn with `fit::bootstrap::resample(points, seed, i)`, exactly as
@@ -619,7 +620,7 @@ fn compute(
     outcome: &FitOutcome,
     kind: RunKind,
     progress: &RunProgress,
-    superseded: &dyn Fn() -> Option<i64>,
+    superseded: &(dyn Fn() -> Option<i64> + Sync),
 ) -> Result<Computed, FitError> {
     let size = progress.total;
     let spec = outcome.spec.clone()?;
@@ -680,14 +681,24 @@ fn compute(
         }
         RunKind::Posterior => {
             let cfg = EnsembleConfig::new(POSTERIOR_WALKERS, size, size / 5, RUN_SEED)?;
-            // The sampler counts its steps into the run's progress (`size` = steps).
-            let (post, _) = fit::posterior::posterior_with_progress(
-                points,
-                &spec,
-                &full,
-                &cfg,
-                Some(&progress.done),
-            )?;
+            // The sampler counts its steps into the run's progress (`size` = steps) and stops
+            // after the step in which the catalog is seen to have changed.
+            let stop = || superseded().is_some();
+            let watch = fit::ensemble::Progress {
+                done: &progress.done,
+                stop: &stop,
+            };
+            let post =
+                fit::posterior::posterior_with_progress(points, &spec, &full, &cfg, Some(&watch));
+            let (post, _) = match post {
+                Ok(post) => post,
+                Err(e) => {
+                    return match superseded() {
+                        Some(to) => Ok(Computed::Superseded(to)),
+                        None => Err(e),
+                    };
+                }
+            };
             progress.done.store(size, Ordering::Relaxed);
             let wanted = full.params.names();
             let params = post
@@ -994,10 +1005,10 @@ mod tests {
                 0.5,
                 11.0,
             ),
-            sample: Sample {
+            sample: Arc::new(Sample {
                 points: points.clone(),
                 ..Sample::default()
-            },
+            }),
             fit: Ok(fit),
             spec: Ok(spec.clone()),
             fitted_at: String::new(),
@@ -1034,7 +1045,7 @@ mod tests {
                 2.3,
                 11.0,
             ),
-            sample: Sample::default(),
+            sample: Arc::default(),
             fit: Err(FitError::Unsupported {
                 what: String::new(),
             }),

@@ -123,8 +123,9 @@ async fn superseded(catalog: &Catalog, version: i64) -> Result<bool, Stopped> {
 
 /// The default fits of every relation, then the pending submissions' scores (what pages and
 /// the review queue need first), then the influence lists of the samples large enough for
-/// them to cost (smaller ones take milliseconds on a page's first visit), at `version`; stops
-/// between steps when a newer version arrives.
+/// them to cost (smaller ones take milliseconds on a page's first visit) and their sample's
+/// side of adding one object (`fit::AddingBase`), at `version`; stops between steps when a
+/// newer version arrives.
 async fn analyse(catalog: &Catalog, version: i64) -> Result<(), Stopped> {
     let started = Instant::now();
     let bands: Vec<String> = relation_rows::luminosity_bands(&catalog.pool)
@@ -166,6 +167,16 @@ async fn analyse(catalog: &Catalog, version: i64) -> Result<(), Stopped> {
         }
         if outcome.fit.is_ok() && outcome.sample.points.len() > influence::EXACT_MAX_N {
             catalog.fits.influence(&outcome).await?;
+            // What the review queue's "with this object in the fit" needs from the sample.
+            let fits = catalog.fits.clone();
+            tokio::task::spawn_blocking(move || {
+                if let Ok(fit) = &outcome.fit {
+                    fits.made_from(&outcome.key, super::place::ADDING_BASE, || {
+                        crate::fit::AddingBase::new(&outcome.sample.points, &fit.spec, fit)
+                    });
+                }
+            })
+            .await?;
         }
     }
     Ok(())

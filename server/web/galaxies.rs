@@ -390,7 +390,7 @@ pub(crate) async fn show_galaxy(
             note: r.note,
         })
         .collect();
-    let (rows, charts) = super::place::views(&left_out.placements).await?;
+    let (rows, charts) = super::place::views(&state.fits, &left_out.placements).await?;
     Ok(GalaxyShowPage {
         nav,
         name: galaxy.name.clone(),

@@ -5,7 +5,7 @@ use askama_web::WebTemplate;
 use axum::extract::State;
 
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
-use crate::catalog::{accounts, history, overview};
+use crate::catalog::{accounts, history, overview, review_scores};
 use crate::error::AppResult;
 use crate::state::AppState;
 
@@ -51,7 +51,9 @@ pub(crate) async fn show_overview(
     State(state): State<AppState>,
     nav: super::Nav,
 ) -> AppResult<OverviewPage> {
-    let o = overview::overview(&state.pool).await?;
+    let snapshot = state.fits.rows(&state.pool).await?;
+    let pending = review_scores::pending_count(&state.pool).await?;
+    let o = overview::of_rows(&snapshot.rows, pending);
     let version = history::current_version(&state.pool).await?;
     // Account events (logins, failures, tokens) are for the admin audit page only.
     let events = accounts::recent_catalog_events(&state.pool, RECENT_EVENTS).await?;

@@ -15,15 +15,15 @@ use super::display::{
     Badge, Uncertain, fixed, probability, signed, significant, soi_badge, verdict_badge,
     with_errors,
 };
-use super::relations::{Grouping, chart_y, relation_chart};
+use super::relations::{Grouping, chart_y, relation_chart, relation_chart_frame, shared_points};
 use crate::catalog::relation_rows;
-use crate::charts::{ChartPoint, relation_svg};
+use crate::charts::{ChartPoint, DENSITY_THRESHOLD, RelationChart, relation_svg, relation_svg_of};
 use crate::error::{AppError, AppResult, FieldError};
 use crate::fit::Point;
-use crate::relations::Relation;
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, Placement, place_everywhere, read_object,
 };
+use crate::relations::{FitCache, Relation};
 use crate::state::AppState;
 use crate::units::Entry;
 
@@ -128,9 +128,14 @@ pub(crate) async fn show_place(
     let asked = !texts.is_empty();
     let placed = if asked {
         let relations = Relation::all(&bands);
-        place_everywhere(&state.catalog(), relations, &values, "this object", |p| {
-            (row(&p), chart(&p))
-        })
+        let fits = state.fits.clone();
+        place_everywhere(
+            &state.catalog(),
+            relations,
+            &values,
+            "this object",
+            move |p| (row(&p), chart(&fits, &p)),
+        )
         .await?
     } else {
         Vec::new()
@@ -280,12 +285,18 @@ fn soi_view(values: &ObjectValues, threshold: f64) -> (Option<SoiView>, Option<S
 ///
 /// # Errors
 /// When a drawing task fails.
-pub(crate) async fn views(placements: &[Placement]) -> AppResult<(Vec<PlaceRow>, Vec<PlaceChart>)> {
+pub(crate) async fn views(
+    fits: &FitCache,
+    placements: &[Placement],
+) -> AppResult<(Vec<PlaceRow>, Vec<PlaceChart>)> {
     let rows = placements.iter().map(row).collect();
     let tasks: Vec<_> = placements
         .iter()
         .cloned()
-        .map(|p| tokio::task::spawn_blocking(move || chart(&p)))
+        .map(|p| {
+            let fits = fits.clone();
+            tokio::task::spawn_blocking(move || chart(&fits, &p))
+        })
         .collect();
     let mut charts = Vec::with_capacity(tasks.len());
     for task in tasks {
@@ -373,8 +384,10 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
 }
 
 /// The relation chart with the placed object highlighted (for the plane, the chart's y is
-/// log M_BH − γ (x2 − x02), as on the relation page).
-fn chart(p: &Placement) -> Option<PlaceChart> {
+/// log M_BH − γ (x2 − x02), as on the relation page). Above the density threshold the
+/// sample's points come from the fit cache ([`shared_points`]), built once per fit rather
+/// than once per page.
+fn chart(fits: &FitCache, p: &Placement) -> Option<PlaceChart> {
     let (fit, Ok(numbers)) = (p.fit()?, &p.numbers) else {
         return None;
     };
@@ -390,7 +403,16 @@ fn chart(p: &Placement) -> Option<PlaceChart> {
     if let Some((b, b_err)) = subject.x2 {
         at = at.with_x2(b, b_err);
     }
-    let mut drawn = relation_chart(&p.relation, &p.outcome, Grouping::Morphology);
+    let shared = (p.outcome.sample.points.len() > DENSITY_THRESHOLD)
+        .then(|| shared_points(fits, &p.outcome.key, Grouping::Morphology))
+        .flatten();
+    let mut drawn = match &shared {
+        Some(s) => RelationChart {
+            groups: s.groups.clone(),
+            ..relation_chart_frame(&p.relation, &p.outcome, s.x_range)
+        },
+        None => relation_chart(&p.relation, &p.outcome, Grouping::Morphology),
+    };
     drawn.highlight = Some(ChartPoint {
         name: subject.name.clone(),
         href: subject.href.clone(),
@@ -408,7 +430,11 @@ fn chart(p: &Placement) -> Option<PlaceChart> {
         // influence.
         unresolved: false,
     });
-    relation_svg(&drawn).ok().map(|svg| PlaceChart {
+    let svg = match &shared {
+        Some(s) => relation_svg_of(&drawn, &s.points),
+        None => relation_svg(&drawn),
+    };
+    svg.ok().map(|svg| PlaceChart {
         label: p.relation.label(),
         slug: p.relation.slug(),
         svg,

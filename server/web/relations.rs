@@ -1100,30 +1100,33 @@ fn emphasised(residuals: &[crate::fit::Residual], len: usize, cap: usize) -> Vec
     marks
 }
 
-/// The relation chart of a fit outcome.
-pub(super) fn relation_chart(
-    relation: &Relation,
-    outcome: &FitOutcome,
-    grouping: Grouping,
-) -> RelationChart {
+/// The objects of a fit outcome as chart points, with their marker groups and the x range
+/// they span: the part of a relation chart that grows with the sample (a galaxy page of a
+/// survey-sized relation reads it from the fit's cache, [`shared_points`]).
+pub(super) struct ChartPoints {
+    pub(super) points: Vec<ChartPoint>,
+    pub(super) groups: Vec<crate::charts::Group>,
+    pub(super) x_range: (f64, f64),
+}
+
+/// The chart points of `outcome`: emphasised (above the density threshold) and ringed by their
+/// residuals from the outcome's fit.
+pub(super) fn chart_points(outcome: &FitOutcome, grouping: Grouping) -> ChartPoints {
     let fit = outcome.fit.as_ref().ok();
     let (groups, index) = groups_of(grouping, &outcome.sample.members);
     let sample = &outcome.sample.points;
+    let residuals = fit
+        .map(|f| crate::fit::residuals(f, sample))
+        .unwrap_or_default();
     // Only a chart above the density threshold reads the marks.
-    let marks = match fit {
-        Some(f) if sample.len() > crate::charts::DENSITY_THRESHOLD => emphasised(
-            &crate::fit::residuals(f, sample),
-            sample.len(),
-            crate::charts::MAX_EMPHASISED,
-        ),
-        _ => vec![false; sample.len()],
+    let marks = if fit.is_some() && sample.len() > crate::charts::DENSITY_THRESHOLD {
+        emphasised(&residuals, sample.len(), crate::charts::MAX_EMPHASISED)
+    } else {
+        vec![false; sample.len()]
     };
     // The outliers the page lists are ringed on the chart.
     let mut outliers = vec![false; sample.len()];
-    for r in fit
-        .map(|f| crate::fit::residuals(f, sample))
-        .unwrap_or_default()
-    {
+    for r in &residuals {
         if let Some(o) = outliers.get_mut(r.index) {
             *o = crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
         }
@@ -1139,11 +1142,79 @@ pub(super) fn relation_chart(
             ..chart_point(m, p, p.x, chart_y(fit, p), *g)
         })
         .collect();
-    let (x_min, x_max) = points
+    let x_range = points
         .iter()
         .fold((f64::INFINITY, f64::NEG_INFINITY), |acc, p| {
             (acc.0.min(p.x), acc.1.max(p.x))
         });
+    ChartPoints {
+        points,
+        groups,
+        x_range,
+    }
+}
+
+/// The chart points of the whole-sample fit `key` (no galaxy left out) for charts that place
+/// one object (galaxy, place and submission pages), made once per fit and kept in the fit
+/// cache; `None` when that fit is not in the cache.
+///
+/// A galaxy page places the galaxy against the fit without it, which above the left-out refit
+/// size is the whole fit shifted by the galaxy's one-step influence (far less than the line's
+/// width on a chart): its chart draws the shared points of the whole fit under the shifted
+/// line. These charts are about the placed object, so no sample point is emphasised: above the
+/// density threshold the sample is the density and the placed object is the only point drawn
+/// on its own (outliers still ringed where a point is drawn). A page with one such chart per
+/// relation then stays far below its weight budget; the relation page draws the outliers.
+pub(super) fn shared_points(
+    fits: &crate::relations::FitCache,
+    key: &crate::relations::FitKey,
+    grouping: Grouping,
+) -> Option<Arc<ChartPoints>> {
+    let base = crate::relations::FitKey {
+        left_out: None,
+        ..key.clone()
+    };
+    let full = fits.get(&base)?;
+    Some(
+        fits.made_from(&base, &format!("placing chart points;{grouping:?}"), || {
+            let mut made = chart_points(&full, grouping);
+            // Nor marked as unresolved: above the density threshold such points would be drawn
+            // one by one; the relation page marks them.
+            for p in &mut made.points {
+                p.emphasis = false;
+                p.unresolved = false;
+            }
+            made
+        }),
+    )
+}
+
+/// The relation chart of a fit outcome.
+pub(super) fn relation_chart(
+    relation: &Relation,
+    outcome: &FitOutcome,
+    grouping: Grouping,
+) -> RelationChart {
+    let ChartPoints {
+        points,
+        groups,
+        x_range,
+    } = chart_points(outcome, grouping);
+    RelationChart {
+        points,
+        groups,
+        ..relation_chart_frame(relation, outcome, x_range)
+    }
+}
+
+/// Everything of the relation chart of `outcome` but its points and groups: titles, labels,
+/// the fitted line and its mean band over `x_range`.
+pub(super) fn relation_chart_frame(
+    relation: &Relation,
+    outcome: &FitOutcome,
+    (x_min, x_max): (f64, f64),
+) -> RelationChart {
+    let fit = outcome.fit.as_ref().ok();
     let y_label = match fit {
         Some(f) if f.spec.shape == Shape::Plane => format!(
             "log₁₀ M_BH − γ (log₁₀ M_bulge − {}) [M☉]",
@@ -1155,8 +1226,6 @@ pub(super) fn relation_chart(
         title: relation.label(),
         x_label: relation.x_label(),
         y_label,
-        points,
-        groups,
         line: fit.map(|f| LineSpec {
             alpha: f.params.alpha,
             beta: f.params.beta,

@@ -35,6 +35,7 @@ use crate::catalog::submissions::{
     self, GalaxyChoice, ReviewNote, SubmissionError, SubmissionSummary,
 };
 use crate::error::{AppError, AppResult};
+use crate::relations::FitCache;
 use crate::relations::assess::{Assessment, assess, assess_unstored};
 use crate::state::AppState;
 
@@ -341,7 +342,7 @@ pub(crate) async fn create_submission(
         let a = assess_unstored(&state.catalog(), &checked.galaxy, &checked.measurements).await?;
         let errors = name_warnings(&state, &checked).await?;
         let mut page = form_page(&state, user, nav, &fields, &errors, None).await?;
-        page.preview = Some(AssessmentView::with_charts(&a).await?);
+        page.preview = Some(AssessmentView::with_charts(&state.fits, &a).await?);
         return Ok(page.into_response());
     }
     let created = intake::store(
@@ -795,8 +796,8 @@ impl AssessmentView {
     ///
     /// # Errors
     /// When a drawing task fails.
-    pub(crate) async fn with_charts(a: &Assessment) -> AppResult<Self> {
-        let (rows, charts) = super::place::views(&a.placements).await?;
+    pub(crate) async fn with_charts(fits: &FitCache, a: &Assessment) -> AppResult<Self> {
+        let (rows, charts) = super::place::views(fits, &a.placements).await?;
         Ok(Self {
             rows,
             charts,
@@ -912,7 +913,7 @@ pub(crate) async fn show_submission(
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
     let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
-    let a = AssessmentView::with_charts(&a).await?;
+    let a = AssessmentView::with_charts(&state.fits, &a).await?;
     let reviews = submissions::reviews_of_submission(&state.pool, id).await?;
     let cookie = flash_cookie_name(ctx.secure_cookies);
     let saved = read_cookie(&headers, cookie).is_some_and(|v| v == format!("saved-{id}"));

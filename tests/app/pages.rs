@@ -5,6 +5,21 @@ use massline::catalog::model::{Morphology, Quantity};
 
 use crate::helpers::{count, spawn_app, spawn_demo_app};
 
+/// The overview page counts one version's rows in memory; the database's aggregate queries
+/// give the same counts, on the demo catalog with pending submissions and a few edits.
+#[tokio::test]
+async fn overview_counts_in_memory_agree_with_the_database() {
+    use massline::catalog::{overview, relation_rows, review_scores};
+    let app = spawn_demo_app().await;
+    let snapshot = relation_rows::snapshot(&app.pool).await.unwrap();
+    let pending = review_scores::pending_count(&app.pool).await.unwrap();
+    let in_memory = overview::of_rows(&snapshot.rows, pending);
+    let from_sql = overview::overview(&app.pool).await.unwrap();
+    assert_eq!(in_memory, from_sql);
+    assert!(in_memory.galaxies > 50 && in_memory.upper_limits > 0);
+    assert!(in_memory.by_method.len() >= 3, "{:?}", in_memory.by_method);
+}
+
 #[tokio::test]
 async fn overview_counts_the_demo_catalog() {
     let app = spawn_demo_app().await;

@@ -362,6 +362,13 @@ impl PerObject for Model {
         }
     }
 
+    fn set_row(&mut self, row: super::super::types::Data) {
+        self.data = row;
+        if let Some(g) = self.group.as_mut() {
+            g[0] = false;
+        }
+    }
+
     fn slots_of_fit(&self, fit: &Fit) -> [f64; NS] {
         let mut p = slots_of(self, &self.start(fit));
         p[E] = p[E].sqrt();

@@ -24,6 +24,7 @@ pub(crate) const T: usize = 6;
 pub(crate) const NS: usize = 7;
 
 /// −2 ln L with its gradient and Hessian over the slots.
+#[derive(Clone, Debug)]
 pub(crate) struct Derivs {
     pub(crate) f: f64,
     pub(crate) g: [f64; NS],
@@ -509,6 +510,9 @@ pub(crate) trait PerObject: Analytic + Sized {
     /// Makes `self`, a model from [`PerObject::one`], the model of object `i` of `from`
     /// (no allocation: the per-object sweep reuses one buffer).
     fn load(&mut self, from: &Self, i: usize);
+    /// Makes `self`, a model from [`PerObject::one`], the model of the prepared one-row
+    /// `row` (an object not in the sample; outside any offset group).
+    fn set_row(&mut self, row: super::super::types::Data);
     /// The slots of a fit's maximum, with ε (not ε²) in slot E.
     fn slots_of_fit(&self, fit: &super::super::Fit) -> [f64; NS];
 }

@@ -763,6 +763,8 @@ pub(crate) fn run(
 mod newton;
 mod plane;
 
+pub(crate) use plane::LeaveOneOut as PlaneLeaveOneOut;
+
 /// Structural (Kelly 2007) maximum-likelihood fit.
 ///
 /// # Model
