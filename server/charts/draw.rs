@@ -337,7 +337,7 @@ fn relation_scene<'a>(
         y_label: &chart.y_label,
         width: chart.width,
         height: chart.height,
-        points: points,
+        points,
         groups: &chart.groups,
         highlight,
         thinning: thin,
