@@ -46,12 +46,13 @@ pub(super) struct Thinning {
     pub(super) in_density: usize,
     /// Upper limits drawn as density.
     pub(super) limits_in_density: usize,
-    /// Emphasised points drawn as density (those beyond [`MAX_EMPHASISED`]).
+    /// Emphasised or unresolved points drawn as density (those beyond [`MAX_EMPHASISED`]).
     pub(super) emphasised_in_density: usize,
 }
 
 /// Chooses the points drawn one by one: all of them up to [`DENSITY_THRESHOLD`]; above it, first
-/// the emphasised points (in the caller's order, at most [`MAX_EMPHASISED`]), then every upper
+/// the emphasised points (in the caller's order, at most [`MAX_EMPHASISED`]), then the points
+/// with an unresolved sphere of influence (within the same [`MAX_EMPHASISED`]), then every upper
 /// limit if there are at most [`MAX_LIMITS_DRAWN`] of them, then each group of at most
 /// [`SMALL_GROUP`] points, whole, in group order, while the total stays within [`MAX_INDIVIDUAL`].
 pub(super) fn thinning(points: &[ChartPoint], groups: usize) -> Thinning {
@@ -70,6 +71,18 @@ pub(super) fn thinning(points: &[ChartPoint], groups: usize) -> Thinning {
     let mut emphasised_in_density = 0;
     for (i, p) in points.iter().enumerate() {
         if p.emphasis {
+            if drawn < MAX_EMPHASISED {
+                individual[i] = true;
+                drawn += 1;
+            } else {
+                emphasised_in_density += 1;
+            }
+        }
+    }
+    // Points with an unresolved sphere of influence carry a mark of their own: drawn one by one
+    // after the emphasised points, within the same cap.
+    for (i, p) in points.iter().enumerate() {
+        if p.unresolved && !individual[i] {
             if drawn < MAX_EMPHASISED {
                 individual[i] = true;
                 drawn += 1;

@@ -73,6 +73,9 @@ enum Symbol {
     Arrow,
     /// The ring drawn around an outlier's marker.
     Ring,
+    /// The slash drawn through the marker of an object whose sphere of influence is not
+    /// resolved.
+    Unresolved,
     Line(Rgb, u32),
     /// Translucent layers stacked as they stack on the chart.
     Swatch(Vec<Tint>),
@@ -346,6 +349,9 @@ fn relation_scene<'a>(
     })
 }
 
+/// The legend row of the points whose sphere of influence is not resolved.
+const UNRESOLVED_LABEL: &str = "Sphere of influence not resolved";
+
 /// Most outliers a chart's text summary names; the rest are counted.
 const SUMMARY_NAMES: usize = 10;
 
@@ -411,6 +417,15 @@ fn summary(
             }
             text.push('.');
         }
+    }
+    let unresolved = points.iter().filter(|p| p.unresolved).count();
+    if unresolved > 0 {
+        let _ = write!(
+            text,
+            " {} object{} with the sphere of influence not resolved (slashed).",
+            density::grouped(unresolved as u64),
+            if unresolved == 1 { "" } else { "s" }
+        );
     }
     if let Some(h) = highlight {
         let _ = write!(text, " Highlighted: {}.", h.name);
@@ -736,6 +751,12 @@ fn group_legend(
         legend.push(LegendEntry {
             symbol: Symbol::Ring,
             label: "Outlier (ringed)".to_owned(),
+        });
+    }
+    if !empty && drawn().any(|p| p.unresolved) {
+        legend.push(LegendEntry {
+            symbol: Symbol::Unresolved,
+            label: UNRESOLVED_LABEL.to_owned(),
         });
     }
     if any_limit && (!empty || highlight.is_some_and(|h| h.upper_limit)) {
@@ -1166,6 +1187,9 @@ fn point_markup(
     if p.outlier && style.is_some() {
         out.push_str(&style::ring_element(cx, cy));
     }
+    if p.unresolved && style.is_some() {
+        out.push_str(&style::unresolved_element(cx, cy));
+    }
     out.push_str("</g>");
     if p.href.is_some() {
         out.push_str("</a>");
@@ -1227,6 +1251,10 @@ fn legend_markup(out: &mut String, legend: &[&LegendEntry], scene: &Scene<'_>, f
             Symbol::Ring => {
                 out.push_str(&style::marker_element(symbol_x, y, style::RING_SAMPLE));
                 out.push_str(&style::ring_element(symbol_x, y));
+            }
+            Symbol::Unresolved => {
+                out.push_str(&style::marker_element(symbol_x, y, style::RING_SAMPLE));
+                out.push_str(&style::unresolved_element(symbol_x, y));
             }
             Symbol::Line(colour, width) => {
                 let _ = write!(
@@ -1425,6 +1453,14 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
             ))
             .map_err(drawing_error)
         };
+        let slash = |c: (i32, i32)| {
+            let h = px(style::UNRESOLVED_HALF);
+            root.draw(&PathElement::new(
+                vec![(c.0 - h, c.1 + h), (c.0 + h, c.1 - h)],
+                style::UNRESOLVED_MARK.plotters().stroke_width(upx(2)),
+            ))
+            .map_err(drawing_error)
+        };
         let arrow = |c: (i32, i32), length: f64, colour: Rgb| {
             let tip = (c.0, c.1 + px(length));
             let stroke = colour.plotters().stroke_width(upx(2));
@@ -1470,6 +1506,9 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
                 marker(at(p.x, p.y), m)?;
                 if p.outlier {
                     ring(at(p.x, p.y))?;
+                }
+                if p.unresolved {
+                    slash(at(p.x, p.y))?;
                 }
             }
         }
@@ -1526,6 +1565,10 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
                 Symbol::Ring => {
                     marker(c, style::RING_SAMPLE)?;
                     ring(c)?;
+                }
+                Symbol::Unresolved => {
+                    marker(c, style::RING_SAMPLE)?;
+                    slash(c)?;
                 }
                 Symbol::Line(colour, width) => {
                     root.draw(&PathElement::new(

@@ -106,6 +106,11 @@ pub struct ChartPoint {
     /// `true` when the object is an outlier from the fitted relation (the page lists it): the
     /// chart rings its marker and names the ring in the legend.
     pub outlier: bool,
+    /// `true` when the object's sphere of influence is known to be unresolved (θ_infl over the
+    /// resolution below the threshold; `relations::place`): the chart draws an indigo slash
+    /// through its marker and names it in the legend. On a density chart these points are drawn
+    /// one by one after the emphasised ones, sharing [`MAX_EMPHASISED`].
+    pub unresolved: bool,
 }
 
 /// A group of points sharing one marker style, named in the legend (e.g. a morphology).

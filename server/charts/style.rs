@@ -87,6 +87,15 @@ pub(super) const RING_SAMPLE: MarkerStyle = MarkerStyle {
     filled: false,
 };
 
+/// The slash through the marker of an object whose sphere of influence is not resolved: an indigo
+/// far from the outlier ring's dark red under every simulated colour-vision deficiency (blue
+/// against red-brown), 10:1 against white, and a shape of its own (a diagonal stroke, which no
+/// marker, error bar or ring has), so it reads without colour and beside a ring.
+pub(super) const UNRESOLVED_MARK: Rgb = Rgb(0x3A, 0x2D, 0x8F);
+/// Half the slash's extent along each axis, in pixels: past every marker shape, inside the
+/// outlier ring (so the two read together), short enough not to crowd a dense sample.
+pub(super) const UNRESOLVED_HALF: f64 = 6.5;
+
 /// Marker size: circle radius in pixels; the other shapes are scaled to a similar area.
 pub(super) const MARKER_RADIUS: f64 = 5.0;
 /// Outer radius of the highlight star in pixels.
@@ -294,6 +303,19 @@ pub(super) fn ring_element(cx: f64, cy: f64) -> String {
         num(cy),
         num(RING_RADIUS),
         OUTLIER_RING.hex()
+    )
+}
+
+/// The slash through the marker of an object whose sphere of influence is not resolved, from
+/// lower left to upper right about (cx, cy) pixels, with `class="unresolved-mark"`.
+pub(super) fn unresolved_element(cx: f64, cy: f64) -> String {
+    format!(
+        r#"<path class="unresolved-mark" d="M{} {}L{} {}" fill="none" stroke="{}" stroke-width="2" stroke-linecap="round"/>"#,
+        num(cx - UNRESOLVED_HALF),
+        num(cy + UNRESOLVED_HALF),
+        num(cx + UNRESOLVED_HALF),
+        num(cy - UNRESOLVED_HALF),
+        UNRESOLVED_MARK.hex(),
     )
 }
 

@@ -267,6 +267,7 @@ fn point(name: &str, x: f64, y: f64, group: usize) -> ChartPoint {
         group,
         emphasis: false,
         outlier: false,
+        unresolved: false,
     }
 }
 
@@ -1271,6 +1272,7 @@ fn large_points(n: usize, emphasised: usize, line: LineSpec) -> Vec<ChartPoint> 
                 group: i % 2,
                 emphasis: emphasised > 0 && i % every == 0,
                 outlier: false,
+                unresolved: false,
             }
         })
         .collect()
@@ -1750,6 +1752,62 @@ fn outliers_are_ringed_with_a_legend_entry() {
     assert!(texts(&svg).contains(&"Outlier (ringed)"));
     // The text summary names them.
     assert!(svg.contains("2 outliers ringed: A-2, A-5."));
+}
+
+/// Every text of a chart, wrapped lines joined, tags dropped and spaces collapsed.
+fn legend_words(svg: &str) -> String {
+    let mut plain = String::new();
+    let mut inside_tag = false;
+    for c in texts(svg).join(" ").chars() {
+        match c {
+            '<' => inside_tag = true,
+            '>' => {
+                inside_tag = false;
+                plain.push(' ');
+            }
+            _ if !inside_tag => plain.push(c),
+            _ => {}
+        }
+    }
+    plain.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+#[test]
+fn unresolved_spheres_of_influence_get_a_square_and_a_legend_entry_only_when_present() {
+    let mut chart = small_chart();
+    let plain = relation_svg(&chart).expect("chart draws");
+    assert_eq!(count(&plain, "class=\"unresolved-mark\""), 0);
+    assert!(!legend_words(&plain).contains("Sphere of influence"));
+    assert!(!plain.contains("not resolved (slashed)"));
+    chart.points[2].unresolved = true;
+    chart.points[4].outlier = true;
+    chart.points[4].unresolved = true;
+    let svg = relation_svg(&chart).expect("chart draws");
+    let squared: Vec<&str> = point_chunks(&svg)
+        .into_iter()
+        .filter(|c| c.contains("class=\"unresolved-mark\""))
+        .collect();
+    assert_eq!(squared.len(), 2);
+    assert!(squared.iter().any(|c| c.contains("A-3:")));
+    // The square is a mark of its own beside the outlier ring, not the ring.
+    let both = squared.iter().find(|c| c.contains("A-5:")).expect("A-5");
+    assert!(both.contains("class=\"outlier-ring\""));
+    // Points and the legend's sample.
+    assert_eq!(count(&svg, "class=\"unresolved-mark\""), 3);
+    assert!(legend_words(&svg).contains("Sphere of influence not resolved"));
+    assert!(svg.contains("2 objects with the sphere of influence not resolved (slashed)."));
+    // On a density chart they are drawn one by one, like the emphasised points.
+    let mut large = large_chart(3_000, 0);
+    large.points[7].unresolved = true;
+    let svg = relation_svg(&large).expect("chart draws");
+    let squared = point_chunks(&svg)
+        .into_iter()
+        .filter(|c| c.contains("class=\"unresolved-mark\""))
+        .count();
+    assert_eq!(squared, 1);
+    assert!(legend_words(&svg).contains("Sphere of influence not resolved"));
+    // The print version draws too.
+    assert!(relation_png(&chart).is_ok());
 }
 
 #[test]

@@ -1,98 +1,166 @@
 //! Numbers written for people: values with their errors for pages, and compact numbers for
 //! messages.
 
-/// A log10 value with its errors, to two decimals, for pages.
-///
-/// "8.32 +0.10/−0.12" for different errors, "8.32 ± 0.11" when both round to the same two
-/// decimals, "8.32" when both round to zero, "< 7.30" for an upper limit (errors ignored).
-/// Errors are taken as magnitudes (their sign is ignored) and a non-finite error is treated as
-/// absent; a non-finite value is shown as "—". The minus sign is U+2212.
+/// A log10 value with its errors for pages, by the rule of [`with_errors_column`] for a value
+/// alone: "8.32 +0.10/−0.12", "8.32 ± 0.11" when both round alike, "8.321 ± 0.045" (two
+/// significant digits of the error), "8.32" without errors, "< 7.30" for an upper limit (errors
+/// ignored). Errors are taken as magnitudes and a non-finite error is treated as absent; a
+/// non-finite value is shown as "—". The minus sign is U+2212.
+#[must_use]
 pub fn format_log_with_errors(
     log_value: f64,
     err_minus_dex: f64,
     err_plus_dex: f64,
     upper_limit: bool,
 ) -> String {
-    if !log_value.is_finite() {
-        return "—".to_owned();
-    }
-    let value = two_decimals(log_value);
-    if upper_limit {
-        return format!("< {value}");
-    }
-    let shown_err = |err: f64| {
-        if err.is_finite() {
-            two_decimals(err.abs())
-        } else {
-            two_decimals(0.0)
+    with_errors(
+        Uncertain::asymmetric(log_value, err_minus_dex, err_plus_dex, upper_limit),
+        2,
+    )
+}
+
+/// A value with its errors, as a page shows it: linear (σ in km/s, a distance in Mpc) or a log10
+/// value with errors in dex. Errors are magnitudes; an error that is zero or not a number is
+/// absent.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Uncertain {
+    /// The value (a log10 value or a linear one).
+    pub value: f64,
+    /// The error below the value, same unit (a magnitude).
+    pub err_minus: f64,
+    /// The error above the value, same unit (a magnitude).
+    pub err_plus: f64,
+    /// `value` is an upper limit: shown as "< value", errors ignored.
+    pub upper_limit: bool,
+}
+
+impl Uncertain {
+    /// value ± err.
+    #[must_use]
+    pub fn symmetric(value: f64, err: f64) -> Self {
+        Uncertain {
+            value,
+            err_minus: err,
+            err_plus: err,
+            upper_limit: false,
         }
-    };
-    let minus = shown_err(err_minus_dex);
-    let plus = shown_err(err_plus_dex);
-    let zero = two_decimals(0.0);
-    if minus == zero && plus == zero {
-        value
-    } else if minus == plus {
+    }
+
+    /// value +err_plus/−err_minus, or an upper limit.
+    #[must_use]
+    pub fn asymmetric(value: f64, err_minus: f64, err_plus: f64, upper_limit: bool) -> Self {
+        Uncertain {
+            value,
+            err_minus,
+            err_plus,
+            upper_limit,
+        }
+    }
+
+    /// The power of ten of the last digit shown: the error that sets it (the smaller of two)
+    /// keeps two significant digits, `floor(log10 err) − 1`, one place higher when rounding
+    /// carries into a third digit (9.96 → 10, not 10.0). `None` without an error.
+    fn place(&self) -> Option<i32> {
+        if self.upper_limit {
+            return None;
+        }
+        let err = [self.err_minus, self.err_plus]
+            .into_iter()
+            .map(f64::abs)
+            .filter(|e| e.is_finite() && *e > 0.0)
+            .reduce(f64::min)?;
+        #[expect(
+            clippy::cast_possible_truncation,
+            reason = "the floor of log10 of a finite positive f64 lies within ±330"
+        )]
+        let mut place = err.log10().floor() as i32 - 1;
+        if (err / 10f64.powi(place)).round() >= 100.0 {
+            place += 1;
+        }
+        Some(place)
+    }
+}
+
+/// How many decimals a place (a power of ten) shows: 10^−2 → 2, 10^0 or above → 0.
+fn decimals_of(place: i32) -> usize {
+    usize::try_from(-place).unwrap_or(0)
+}
+
+/// Every value of one table column with its errors, by one rule. Each row's own place is where
+/// its error shows two significant digits (common practice in astronomy tables), the value
+/// rounded to the same place. The column then takes the place of its coarsest row, and a finer
+/// row moves up by at most one place (its error then shows one significant digit): "185 ± 9"
+/// stands above "247 ± 14", never "185.0 ± 9.0" above "247 ± 14", and no error shows digits its
+/// measurement lacks ("247.0 ± 14.0"). Every error thus shows one or two significant digits; a
+/// column of one keeps two. A place of tens or beyond rounds the value there ("123500 ± 1200").
+/// A value without an error, and an upper limit ("< 7.30"), take the column's decimals, or
+/// `bare_decimals` when no row has an error; a value that is not a number is "—". Asymmetric
+/// errors show as "8.32 +0.10/−0.12" (the smaller sets the place), "± 0.11" when both round
+/// alike. The minus is U+2212.
+#[must_use]
+pub fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<String> {
+    let places: Vec<Option<i32>> = items.iter().map(Uncertain::place).collect();
+    let coarsest = places.iter().flatten().copied().max();
+    items
+        .iter()
+        .zip(&places)
+        .map(|(item, place)| {
+            if !item.value.is_finite() {
+                return "—".to_owned();
+            }
+            let Some(own) = *place else {
+                let value = fixed_minus(item.value, coarsest.map_or(bare_decimals, decimals_of));
+                return if item.upper_limit {
+                    format!("< {value}")
+                } else {
+                    value
+                };
+            };
+            let place = coarsest.map_or(own, |c| c.min(own + 1));
+            // An absent error beside a present one shows as zero.
+            let err = |e: f64| if e.is_finite() { e.abs() } else { 0.0 };
+            let (minus, plus) = (err(item.err_minus), err(item.err_plus));
+            let show = |x: f64| {
+                if place > 0 {
+                    // Tens or beyond: round to that place, write whole numbers.
+                    let step = 10f64.powi(place);
+                    fixed_minus((x / step).round() * step, 0)
+                } else {
+                    fixed_minus(x, decimals_of(place))
+                }
+            };
+            join_errors(show(item.value), show(minus), show(plus))
+        })
+        .collect()
+}
+
+/// One value with its errors by the rule of [`with_errors_column`], alone (a column of one).
+#[must_use]
+pub fn with_errors(item: Uncertain, bare_decimals: usize) -> String {
+    with_errors_column(&[item], bare_decimals)
+        .pop()
+        .unwrap_or_default()
+}
+
+/// "v ± e" when the two rounded errors agree, "v +plus/−minus" when not.
+fn join_errors(value: String, minus: String, plus: String) -> String {
+    if minus == plus {
         format!("{value} ± {plus}")
     } else {
         format!("{value} +{plus}/\u{2212}{minus}")
     }
 }
 
-/// Two decimals, without a negative zero ("-0.00" would suggest a sign that is not there).
-fn two_decimals(x: f64) -> String {
-    let s = format!("{x:.2}");
-    if s == "-0.00" { "0.00".to_owned() } else { s }
-}
-
-/// A value and its error, the error rounded to two significant digits and the value to the
-/// same decimal place (common practice), as "8.32 ± 0.12", "123500 ± 1200" or "0.10 ± 0.10".
-///
-/// ```text
-/// k = floor(log10 err) − 1          place of the last kept digit, 10^k
-/// err′ = round(err / 10^k) · 10^k   (if err′ reaches 100 · 10^k, k grows by one)
-/// value′ = round(value / 10^k) · 10^k
-/// ```
-///
-/// A non-finite value is shown as "—"; with an error that is zero, negative or not finite, the
-/// value alone is shown in Rust's shortest round-trip form.
-pub fn round_to_uncertainty(value: f64, err: f64) -> String {
-    if !value.is_finite() {
-        return "—".to_owned();
+/// A number with a fixed count of decimals and a true minus sign (U+2212), never a negative zero.
+fn fixed_minus(value: f64, decimals: usize) -> String {
+    let text = format!("{value:.decimals$}");
+    match text.strip_prefix('-') {
+        Some(rest) if rest.chars().any(|c| c.is_ascii_digit() && c != '0') => {
+            format!("\u{2212}{rest}")
+        }
+        Some(rest) => rest.to_string(),
+        None => text,
     }
-    if !(err.is_finite() && err > 0.0) {
-        return format!("{value}");
-    }
-    let mut place = err.log10().floor() as i32 - 1;
-    // Rounding can carry into a new leading digit (0.0996 → 0.100): keep two digits, not three.
-    if scale_round(err, place) >= 100.0 {
-        place += 1;
-    }
-    if place >= 0 {
-        let step = 10f64.powi(place);
-        let value = scale_round(value, place) * step;
-        let err = scale_round(err, place) * step;
-        format!("{} ± {}", two_decimals_free(value), two_decimals_free(err))
-    } else {
-        let decimals = (-place) as usize;
-        format!("{value:.decimals$} ± {err:.decimals$}")
-    }
-}
-
-/// x / 10^place, rounded to an integer (multiplying by 10^−place when place < 0, which is
-/// exact for the small powers involved more often than dividing by an inexact 10^place).
-fn scale_round(x: f64, place: i32) -> f64 {
-    if place >= 0 {
-        (x / 10f64.powi(place)).round()
-    } else {
-        (x * 10f64.powi(-place)).round()
-    }
-}
-
-/// A whole number without decimals or a negative zero.
-fn two_decimals_free(x: f64) -> String {
-    let s = format!("{x:.0}");
-    if s == "-0" { "0".to_owned() } else { s }
 }
 
 /// A number written with at most three significant digits, in exponent form when very large
@@ -154,7 +222,8 @@ mod tests {
 
     #[test]
     fn values_are_rounded_to_two_significant_digits_of_their_error() {
-        // Common practice: two significant digits in the error, the value to the same place.
+        // Common practice: two significant digits in the error, the value to the same place
+        // (a value alone; a column is in `web::display`'s tests).
         let cases: &[(f64, f64, &str)] = &[
             (8.3214, 0.1234, "8.32 ± 0.12"),
             (8.3214, 0.0996, "8.32 ± 0.10"),
@@ -164,14 +233,14 @@ mod tests {
             (123_456.0, 1234.0, "123500 ± 1200"),
             (1234.4, 96.0, "1234 ± 96"),
             (5.0, 15.0, "5 ± 15"),
-            (-2.345, 0.05, "-2.345 ± 0.050"),
-            (2.0, 0.0, "2"),
+            (-2.345, 0.05, "\u{2212}2.345 ± 0.050"),
+            (2.0, 0.0, "2.0"),
             (2.5, f64::NAN, "2.5"),
             (f64::INFINITY, 0.1, "—"),
         ];
         for &(value, err, expected) in cases {
             assert_eq!(
-                round_to_uncertainty(value, err),
+                with_errors(Uncertain::symmetric(value, err), 1),
                 expected,
                 "{value} ± {err}"
             );

@@ -100,7 +100,8 @@
 //!   [`LinearEntry`], with its lexer and parser;
 //! - `errors`: [`EntryError`], the one-sentence reason for each refusal, and
 //!   [`UnknownNameError`];
-//! - `format`: values for pages ([`format_log_with_errors`], [`round_to_uncertainty`]).
+//! - `format`: values for pages: the one rounding rule of values with errors
+//!   ([`with_errors_column`], [`with_errors`], [`format_log_with_errors`]).
 
 mod errors;
 mod format;
@@ -109,7 +110,7 @@ mod quantity;
 mod ranges;
 
 pub use errors::EntryError;
-pub use format::{format_log_with_errors, round_to_uncertainty};
+pub use format::{Uncertain, format_log_with_errors, with_errors, with_errors_column};
 pub use grammar::{Entry, LinearEntry, parse_entry, parse_linear};
 pub use quantity::{Quantity, Scale, UnknownNameError};
 pub use ranges::{

@@ -23,6 +23,8 @@ pub(crate) fn significant(value: f64, digits: usize) -> String {
     fixed(value, decimals)
 }
 
+pub(crate) use crate::units::{Uncertain, with_errors, with_errors_column};
+
 /// A number with a fixed count of decimals and its sign always shown (+0.12, −0.30).
 pub(crate) fn signed(value: f64, decimals: usize) -> String {
     let text = fixed(value, decimals);
@@ -137,12 +139,18 @@ pub(crate) fn code_label(code: &str) -> String {
         ("alpha", "α"),
         ("beta", "β"),
         ("gamma", "γ"),
+        ("delta", "δ"),
         ("eps", "ε"),
         ("mu", "μ"),
         ("tau", "τ"),
         ("w", "w"),
     ];
-    if let Some((name, index)) = code.split_once('_')
+    // "tau_1" and "beta2" alike: a letter's name, then its index.
+    let split = code.split_once('_').or_else(|| {
+        let digits = code.find(|c: char| c.is_ascii_digit())?;
+        Some(code.split_at(digits))
+    });
+    if let Some((name, index)) = split
         && let Some((_, letter)) = greek.iter().find(|(g, _)| *g == name)
         && !index.is_empty()
         && index.bytes().all(|b| b.is_ascii_digit())
@@ -240,6 +248,77 @@ mod tests {
     }
 
     #[test]
+    fn values_round_to_two_significant_digits_of_their_error() {
+        let one = |v: f64, e: f64| with_errors(Uncertain::symmetric(v, e), 2);
+        assert_eq!(one(8.3214, 0.1234), "8.32 ± 0.12");
+        // A carry into a third digit keeps two: 9.96 → 10, 0.0996 → 0.10.
+        assert_eq!(one(123.456, 9.96), "123 ± 10");
+        assert_eq!(one(8.3214, 0.0996), "8.32 ± 0.10");
+        assert_eq!(one(1.234_56, 0.001_23), "1.2346 ± 0.0012");
+        // An error at or above the value, and above 100.
+        assert_eq!(one(5.0, 15.0), "5 ± 15");
+        assert_eq!(one(0.5, 0.99), "0.50 ± 0.99");
+        assert_eq!(one(123_456.0, 1234.0), "123500 ± 1200");
+        // Negative values (a log below zero, a residual) with a true minus.
+        assert_eq!(one(-2.345, 0.05), "−2.345 ± 0.050");
+        assert_eq!(one(-0.004, 0.3), "0.00 ± 0.30");
+        // No error: the value with the bare decimals; not a number: a dash.
+        assert_eq!(one(2.0, 0.0), "2.00");
+        assert_eq!(one(2.5, f64::NAN), "2.50");
+        assert_eq!(one(f64::INFINITY, 0.1), "—");
+        // Logs in dex with asymmetric errors: the smaller error sets the place.
+        let log = |v, lo, hi, limit| with_errors(Uncertain::asymmetric(v, lo, hi, limit), 2);
+        assert_eq!(log(8.32, 0.12, 0.10, false), "8.32 +0.10/−0.12");
+        assert_eq!(log(8.32, 0.112, 0.114, false), "8.32 ± 0.11");
+        assert_eq!(log(8.3214, 0.045, 0.30, false), "8.321 +0.300/−0.045");
+        assert_eq!(log(7.3, 0.2, 0.1, true), "< 7.30");
+        assert_eq!(log(8.3, -0.1, 0.1, false), "8.30 ± 0.10");
+        assert_eq!(log(8.3, f64::NAN, 0.1, false), "8.30 +0.10/−0.00");
+    }
+
+    #[test]
+    fn a_column_takes_its_coarsest_place_within_one() {
+        let column = |rows: &[(f64, f64)]| {
+            let items: Vec<Uncertain> = rows
+                .iter()
+                .map(|&(v, e)| Uncertain::symmetric(v, e))
+                .collect();
+            with_errors_column(&items, 0)
+        };
+        // σ in km/s: one count of decimals for the column, none invented.
+        assert_eq!(
+            column(&[(185.04, 9.0), (247.2, 14.3), (115.3, 4.2)]),
+            ["185 ± 9", "247 ± 14", "115 ± 4"]
+        );
+        // An error of 9.96 rounds to 10, two digits, and sets the place like 14 does.
+        assert_eq!(
+            column(&[(185.04, 9.96), (247.2, 14.3)]),
+            ["185 ± 10", "247 ± 14"]
+        );
+        // A row more than one place finer keeps one significant digit, never none.
+        assert_eq!(
+            column(&[(8.3, 0.05), (8.1, 5.0), (9.0, 0.0)]),
+            ["8.30 ± 0.05", "8.1 ± 5.0", "9.0"]
+        );
+        // Tens set the place; a finer row stays within one place of its own.
+        assert_eq!(
+            column(&[(1234.0, 150.0), (16.54, 0.8)]),
+            ["1230 ± 150", "16.5 ± 0.8"]
+        );
+        // Logs in dex: an upper limit takes the column's decimals.
+        let items = [
+            Uncertain::asymmetric(8.3214, 0.12, 0.12, false),
+            Uncertain::asymmetric(7.3, 0.0, 0.0, true),
+            Uncertain::asymmetric(7.519, 0.027, 0.026, false),
+            Uncertain::asymmetric(-0.2, 0.3, 0.3, false),
+        ];
+        assert_eq!(
+            with_errors_column(&items, 0),
+            ["8.32 ± 0.12", "< 7.30", "7.52 ± 0.03", "−0.20 ± 0.30"]
+        );
+    }
+
+    #[test]
     fn probabilities_never_round_to_certainty() {
         // Beyond the one-decimal range the bound is named, never "100 %" or "0 %".
         for p in [1.0, 0.999_999_7, 0.999_5, 0.999_000_1] {
@@ -321,6 +400,9 @@ mod tests {
         assert_eq!(code_label("tau_1"), "τ₁");
         assert_eq!(code_label("mu_12"), "μ₁₂");
         assert_eq!(code_label("eps"), "ε");
+        assert_eq!(code_label("beta2"), "β₂");
+        assert_eq!(code_label("alpha"), "α");
+        assert_eq!(code_label("w_1"), "w₁");
         assert_eq!(code_label("some_new_code"), "some new code");
         assert_eq!(
             measurement_detail("", "sigma_e", "r_e", ""),

@@ -5,7 +5,9 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
 
-use super::display::{Badge, fixed, quantity_unit, significant, soi_badge};
+use super::display::{
+    Badge, Uncertain, fixed, quantity_unit, significant, soi_badge, with_errors, with_errors_column,
+};
 use crate::auth::Principal;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::error::{AppError, AppResult};
@@ -13,9 +15,6 @@ use crate::relations::galaxy::{MeasurementAt, galaxy_record, place_left_out};
 use crate::relations::table::{LimitFilter, SoiFilter, SortKey, TableQuery, TableRow, table_page};
 use crate::state::AppState;
 use crate::units::Quantity;
-use crate::units::{
-    format_log_with_errors as log_with_errors, round_to_uncertainty as linear_with_error,
-};
 
 /// One displayed row.
 pub(crate) struct RowView {
@@ -85,7 +84,7 @@ pub(crate) async fn list_galaxies(
             "Parameter 'page': there are only {pages} page(s) for this selection."
         )));
     }
-    let rows = page_rows.iter().map(row_view).collect();
+    let rows = row_views(&page_rows);
     let first_shown = if total == 0 {
         0
     } else {
@@ -208,29 +207,68 @@ fn options(
         .collect()
 }
 
-fn row_view(t: &TableRow) -> RowView {
+/// A missing value: shown as "—".
+const MISSING: Uncertain = Uncertain {
+    value: f64::NAN,
+    err_minus: 0.0,
+    err_plus: 0.0,
+    upper_limit: false,
+};
+
+/// The table's four columns of values with errors (log M_BH, σ, log M_bulge, distance) for one
+/// row, in their units.
+fn value_cells(t: &TableRow) -> [Uncertain; 4] {
     let r = &t.row;
     let log_mbh = match (t.log_mbh_adopted_d, r.mbh_upper_limit) {
-        (Some(v), Some(limit)) => log_with_errors(
+        (Some(v), Some(limit)) => Uncertain::asymmetric(
             v,
             r.mbh_err_minus_dex.unwrap_or(0.0),
             r.mbh_err_plus_dex.unwrap_or(0.0),
             limit,
         ),
-        _ => "—".into(),
+        _ => MISSING,
     };
     let sigma = match (r.log_sigma, r.sigma_err_dex) {
         (Some(ls), Some(e)) => {
             let s = 10f64.powf(ls);
             // A dex error e maps to the linear half-width s·(10^e − 10^−e)/2.
-            linear_with_error(s, s * (10f64.powf(e) - 10f64.powf(-e)) / 2.0)
+            Uncertain::symmetric(s, s * (10f64.powf(e) - 10f64.powf(-e)) / 2.0)
         }
-        _ => "—".into(),
+        _ => MISSING,
     };
     let log_mbulge = match (t.log_mbulge_adopted_d, r.mbulge_err_dex) {
-        (Some(v), Some(e)) => log_with_errors(v, e, e, false),
-        _ => "—".into(),
+        (Some(v), Some(e)) => Uncertain::symmetric(v, e),
+        _ => MISSING,
     };
+    [
+        log_mbh,
+        sigma,
+        log_mbulge,
+        Uncertain::symmetric(r.distance_mpc, r.distance_err_mpc),
+    ]
+}
+
+/// The rows of one page of the table, each column's numbers written alike
+/// ([`with_errors_column`]).
+fn row_views(rows: &[TableRow]) -> Vec<RowView> {
+    let cells: Vec<[Uncertain; 4]> = rows.iter().map(value_cells).collect();
+    // Bare values: logs to 0.01 dex, σ to 1 km/s, distances to 0.1 Mpc.
+    let mut columns = [(0, 2), (1, 0), (2, 2), (3, 1)].map(|(k, bare)| {
+        let items: Vec<Uncertain> = cells.iter().map(|c| c[k]).collect();
+        with_errors_column(&items, bare).into_iter()
+    });
+    rows.iter()
+        .map(|t| {
+            let mut next = |k: usize| columns[k].next().unwrap_or_default();
+            let shown = [next(0), next(1), next(2), next(3)];
+            row_view(t, shown)
+        })
+        .collect()
+}
+
+fn row_view(t: &TableRow, shown: [String; 4]) -> RowView {
+    let r = &t.row;
+    let [log_mbh, sigma, log_mbulge, distance] = shown;
     RowView {
         name: r.name.clone(),
         slug: r.slug.clone(),
@@ -253,7 +291,7 @@ fn row_view(t: &TableRow) -> RowView {
             .to_string(),
         sigma,
         log_mbulge,
-        distance: linear_with_error(r.distance_mpc, r.distance_err_mpc),
+        distance,
         soi: match t.resolved {
             Some(true) => "resolved",
             Some(false) => "not resolved",
@@ -313,7 +351,16 @@ pub(crate) struct GalaxyShowPage {
     no_relation: Option<String>,
     /// Reviewers' decisions on submissions that measured it, newest first (reviewer names
     /// stay off this page, which may be public).
-    reviews: Vec<crate::catalog::submissions::ReviewNote>,
+    reviews: Vec<ReviewView>,
+}
+
+/// A review decision on the galaxy page: its time as stored (for `<time datetime>`) and as read.
+pub(crate) struct ReviewView {
+    submission_id: i64,
+    decision: String,
+    note: String,
+    created_iso: String,
+    created_text: String,
 }
 
 /// Show one galaxy with every measurement, and where it falls against each relation fitted
@@ -332,15 +379,17 @@ pub(crate) async fn show_galaxy(
     let galaxy = &record.galaxy;
     let left_out =
         place_left_out(&state.catalog(), galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
-    let mut reviews =
-        crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?;
-    for r in &mut reviews {
-        r.created_at = r
-            .created_at
-            .get(..16)
-            .unwrap_or(&r.created_at)
-            .replace('T', " ");
-    }
+    let reviews = crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id)
+        .await?
+        .into_iter()
+        .map(|r| ReviewView {
+            submission_id: r.submission_id,
+            created_text: super::display::readable_utc(&r.created_at),
+            created_iso: r.created_at,
+            decision: r.decision,
+            note: r.note,
+        })
+        .collect();
     let (rows, charts) = super::place::views(&state.fits, &left_out.placements).await?;
     Ok(GalaxyShowPage {
         nav,
@@ -357,7 +406,10 @@ pub(crate) async fn show_galaxy(
             .centre_kind
             .parse::<CentreKind>()
             .map_or("unknown", CentreKind::label),
-        distance: linear_with_error(galaxy.distance_mpc, galaxy.distance_err_mpc),
+        distance: with_errors(
+            Uncertain::symmetric(galaxy.distance_mpc, galaxy.distance_err_mpc),
+            1,
+        ),
         distance_method: galaxy
             .distance_method
             .parse::<DistanceMethod>()
@@ -403,7 +455,10 @@ impl MeasurementView {
             verdict: soi_badge(s.resolved, "unknown (no resolution recorded)"),
         });
         let at_adopted = if (rescaled - m.log_value).abs() > 5e-4 {
-            log_with_errors(rescaled, m.err_minus_dex, m.err_plus_dex, m.upper_limit)
+            with_errors(
+                Uncertain::asymmetric(rescaled, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
+                2,
+            )
         } else {
             "same".into()
         };
@@ -425,7 +480,10 @@ impl MeasurementView {
         MeasurementView {
             quantity: m.quantity.label(),
             value_text: m.value_text.clone(),
-            canonical: log_with_errors(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
+            canonical: with_errors(
+                Uncertain::asymmetric(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
+                2,
+            ),
             unit: quantity_unit(m.quantity, &m.band),
             at_adopted_distance: at_adopted,
             method: method_label(m.quantity, &m.method),

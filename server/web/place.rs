@@ -11,7 +11,10 @@ use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Query, State};
 
-use super::display::{Badge, fixed, probability, signed, significant, soi_badge, verdict_badge};
+use super::display::{
+    Badge, Uncertain, fixed, probability, signed, significant, soi_badge, verdict_badge,
+    with_errors,
+};
 use super::relations::{Grouping, chart_y, relation_chart, relation_chart_frame, shared_points};
 use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, DENSITY_THRESHOLD, RelationChart, relation_svg, relation_svg_of};
@@ -173,8 +176,15 @@ fn field_views(
     values: &ObjectValues,
     faults: &[FieldError],
 ) -> Vec<FieldView> {
-    let log =
-        |e: &Option<Entry>, unit: &str| e.as_ref().map(|e| format!("{} {unit}", e.display_log()));
+    let log = |e: &Option<Entry>, unit: &str| {
+        e.as_ref().map(|e| {
+            let shown = with_errors(
+                Uncertain::asymmetric(e.log_value, e.err_minus_dex, e.err_plus_dex, e.upper_limit),
+                2,
+            );
+            format!("{shown} {unit}")
+        })
+    };
     let fields: [(
         &'static str,
         &'static str,
@@ -215,10 +225,12 @@ fn field_views(
             "Distance",
             "Mpc, e.g. 16.5 ± 0.8",
             &texts.distance,
-            values
-                .distance
-                .as_ref()
-                .map(|e| format!("{} Mpc", crate::units::round_to_uncertainty(e.value, e.err))),
+            values.distance.as_ref().map(|e| {
+                format!(
+                    "{} Mpc",
+                    with_errors(Uncertain::symmetric(e.value, e.err), 1)
+                )
+            }),
         ),
         (
             "resolution",
@@ -328,10 +340,9 @@ pub(crate) fn row(p: &Placement) -> PlaceRow {
         }
     };
     let prediction = &numbers.prediction;
-    row.predicted = format!(
-        "{} ± {}",
-        fixed(prediction.log_mbh, 2),
-        fixed(prediction.sd_dex, 2)
+    row.predicted = with_errors(
+        Uncertain::symmetric(prediction.log_mbh, prediction.sd_dex),
+        2,
     );
     row.interval68 = interval(prediction.interval68);
     row.interval95 = interval(prediction.interval95);
@@ -415,6 +426,9 @@ fn chart(fits: &FitCache, p: &Placement) -> Option<PlaceChart> {
         // The highlighted object is always drawn one by one, as a star.
         emphasis: true,
         outlier: false,
+        // The star stands alone; the placement table beside the chart gives its sphere of
+        // influence.
+        unresolved: false,
     });
     let svg = match &shared {
         Some(s) => relation_svg_of(&drawn, &s.points),

@@ -11,7 +11,7 @@ use axum::extract::{Extension, Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
-use super::display::{fixed, significant};
+use super::display::{Uncertain, fixed, significant, with_errors};
 use crate::auth::Principal;
 use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
@@ -28,7 +28,6 @@ use crate::relations::{
     RunKind, RunStatus, fitted, read_pivot_typed, run_status, stored_run,
 };
 use crate::state::AppState;
-use crate::units::round_to_uncertainty;
 
 /// How many of the most influential objects are listed.
 const TOP_INFLUENCE: usize = 5;
@@ -426,11 +425,7 @@ fn computing_note(shown_version: i64, computing: i64) -> String {
 /// A parameter with its error, rounded to the error; without an error (FITEXY's and BCES's
 /// ε have none), to three decimals, a thousandth of a dex.
 fn with_error(value: f64, err: f64) -> String {
-    if err.is_finite() && err > 0.0 {
-        round_to_uncertainty(value, err).replace('-', "−")
-    } else {
-        fixed(value, 3)
-    }
+    with_errors(Uncertain::symmetric(value, err), 3)
 }
 
 /// "1 galaxy", "2 galaxies".
@@ -603,7 +598,24 @@ pub(crate) struct ParamView {
     interval68: String,
     /// The 95 % interval, "lo – hi".
     interval95: String,
+    /// Said instead of the intervals when the estimator gives the parameter without one (FITEXY
+    /// and BCES give ε so).
+    no_interval: Option<&'static str>,
     unit: String,
+}
+
+/// Why a parameter has no interval, for the estimators that give a value without an error: FITEXY
+/// sets ε so that χ²/dof = 1 (Tremaine et al. 2002); BCES takes it from the residual variance
+/// less the measurement variance (docs/methods.md §2.3, §2.4). `None` when it has an error.
+fn no_interval_note(method: Method, error: f64) -> Option<&'static str> {
+    if error.is_finite() && error > 0.0 {
+        return None;
+    }
+    Some(match method {
+        Method::Fitexy => "set so that χ²/dof = 1; no interval",
+        Method::Bces(_) => "residual variance less the measurement variance; no interval",
+        _ => "no interval reported",
+    })
 }
 
 /// "lo – hi" with as many decimals as the error's two significant digits need.
@@ -782,7 +794,8 @@ pub(crate) struct RunView {
 
 /// One parameter of a finished run.
 pub(crate) struct RunParamView {
-    name: &'static str,
+    /// The parameter's symbol ("α", "τ₁"), never its code.
+    name: String,
     median: String,
     interval68: String,
     interval95: String,
@@ -909,7 +922,7 @@ impl RunParamView {
             3
         };
         RunParamView {
-            name: p.name,
+            name: super::display::code_label(p.name),
             median: fixed(p.median, decimals),
             interval68: format!("{} to {}", fixed(p.p16, decimals), fixed(p.p84, decimals)),
             interval95: format!(
@@ -1061,6 +1074,8 @@ fn chart_point(m: &Member, p: &Point, x: f64, y: f64, group: usize) -> ChartPoin
         group,
         emphasis: false,
         outlier: false,
+        // Marked on the chart as on the galaxy's page: known to be unresolved, not merely unknown.
+        unresolved: m.resolved == Some(false),
     }
 }
 
@@ -1163,8 +1178,11 @@ pub(super) fn shared_points(
     Some(
         fits.made_from(&base, &format!("placing chart points;{grouping:?}"), || {
             let mut made = chart_points(&full, grouping);
+            // Nor marked as unresolved: above the density threshold such points would be drawn
+            // one by one; the relation page marks them.
             for p in &mut made.points {
                 p.emphasis = false;
+                p.unresolved = false;
             }
             made
         }),
@@ -1346,6 +1364,7 @@ fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
             value: with_error(iv.estimate, iv.error),
             interval68: interval_text(iv.p16, iv.p84, iv.error),
             interval95: interval_text(iv.p2_5, iv.p97_5, iv.error),
+            no_interval: no_interval_note(f.spec.method, iv.error),
             unit,
         })
     };
@@ -1401,6 +1420,9 @@ fn residual_charts(
                 let mut c = chart_point(m, p, x, r.residual_dex, *g);
                 c.x_err = 0.0;
                 c.emphasis = emphasis;
+                // Above the density threshold the residual charts draw only their emphasised
+                // objects one by one (the page's weight); the relation chart marks the others.
+                c.unresolved &= emphasis || sample.points.len() <= crate::charts::DENSITY_THRESHOLD;
                 c.outlier =
                     crate::relations::place::verdict(r.z, r.upper_limit).starts_with("outlier");
                 Some(c)
@@ -1643,8 +1665,8 @@ impl SampleSummary {
             fitted_at: utc_time(&outcome.fitted_at),
             size: sample_size(sample.n_detections(), sample.n_limits()),
             limits_note: q.fit.limits_left_out(sample).map(|l| l.sentence),
-            method: q.fit.method.as_str(),
-            filter_text: outcome.key.filter.replace(';', "; "),
+            method: method_label(q.fit.method),
+            filter_text: filter_words(&outcome.key.filter),
             n_detections: sample.n_detections(),
             n_limits: sample.n_limits(),
             sigma_note: (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(
@@ -1672,6 +1694,37 @@ impl SampleSummary {
             fit_note: method_note(q.fit.method).to_owned(),
         }
     }
+}
+
+/// A fit's canonical sample text (`SampleFilter::canonical`: "morphology=any;bulge_kind=pseudo;…")
+/// in words: "morphology any; bulge pseudo; …". A part it cannot read is shown as it is.
+fn filter_words(canonical: &str) -> String {
+    canonical
+        .split(';')
+        .map(|part| {
+            let Some((key, value)) = part.split_once('=') else {
+                return super::display::code_label(part);
+            };
+            let name = match key {
+                "bulge_kind" => "bulge",
+                "centre_kind" => "centre",
+                "mass_method" => "mass method",
+                "soi" => "sphere of influence",
+                "sigma_definition" => "σ definition",
+                "limits" => "upper limits",
+                other => other,
+            };
+            let value = match (key, value) {
+                ("soi", "resolved") => "resolved only".to_owned(),
+                ("limits", "include") => "included".to_owned(),
+                ("limits", "exclude") => "left out".to_owned(),
+                ("limits", "auto") => "as the estimator allows".to_owned(),
+                (_, v) => super::display::code_label(v),
+            };
+            format!("{name} {value}")
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 fn method_label(m: Method) -> &'static str {
@@ -1893,6 +1946,17 @@ fn download(content_type: &'static str, filename: &str, body: String) -> Respons
 mod tests {
     use super::*;
     use crate::relations::test_pairs as pairs;
+
+    #[test]
+    fn the_sample_is_described_in_words_not_codes() {
+        let words = filter_words(
+            "morphology=any;bulge_kind=pseudo;centre_kind=power_law;mass_method=stellar_dynamics;soi=resolved;sigma_definition=sigma_e;limits=exclude",
+        );
+        assert_eq!(
+            words,
+            "morphology any; bulge pseudo; centre power law; mass method stellar dynamics; sphere of influence resolved only; σ definition σ_e (within r_e); upper limits left out"
+        );
+    }
 
     #[test]
     fn the_query_round_trips_and_names_bad_parameters() {

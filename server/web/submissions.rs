@@ -19,7 +19,8 @@ use axum::response::{IntoResponse, Redirect, Response};
 use super::Nav;
 use super::account::session_of;
 use super::display::{
-    Badge, count, fixed, measurement_detail, readable_utc, significant, soi_badge,
+    Badge, Uncertain, count, fixed, measurement_detail, readable_utc, significant, soi_badge,
+    with_errors,
 };
 use super::place::{PlaceChart, PlaceRow};
 use crate::auth::middleware::{AuthContext, read_cookie, set_cookie};
@@ -37,7 +38,6 @@ use crate::error::{AppError, AppResult};
 use crate::relations::FitCache;
 use crate::relations::assess::{Assessment, assess, assess_unstored};
 use crate::state::AppState;
-use crate::units::format_log_with_errors;
 
 /// Measurement rows on a fresh form.
 pub(crate) const FORM_ROWS: usize = 3;
@@ -764,11 +764,9 @@ impl MeasurementView {
         Self {
             quantity,
             value_text: m.value_text.clone(),
-            log_value: format_log_with_errors(
-                m.log_value,
-                m.err_minus_dex,
-                m.err_plus_dex,
-                m.upper_limit,
+            log_value: with_errors(
+                Uncertain::asymmetric(m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit),
+                2,
             ),
             detail,
             reference: m.reference.clone(),

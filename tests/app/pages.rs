@@ -100,10 +100,116 @@ async fn catalog_table_pages_through_every_galaxy_once() {
     }
 }
 
+/// Decimals shown in a number ("8.320" → 3, "247" → 0).
+fn decimals(number: &str) -> usize {
+    number.split_once('.').map_or(0, |(_, f)| f.len())
+}
+
+/// Significant digits shown in a number ("0.050" → 2, "14.3" → 3, "10" → 2).
+fn significant_digits(number: &str) -> usize {
+    number
+        .chars()
+        .filter(char::is_ascii_digit)
+        .skip_while(|&c| c == '0')
+        .count()
+}
+
+#[tokio::test]
+async fn catalog_table_writes_each_column_of_values_with_errors_alike() {
+    let app = spawn_demo_app().await;
+    let body = app.ok("/galaxies?per_page=500").await;
+    let rows: Vec<Vec<String>> = body
+        .split("<tr>")
+        .filter(|row| row.contains("<td><a href=\"/galaxies/"))
+        .map(|row| {
+            row.split("<td")
+                .map(|c| {
+                    let text = c.split_once('>').map_or("", |(_, t)| t);
+                    text.split('<').next().unwrap_or("").trim().to_owned()
+                })
+                .collect()
+        })
+        .collect();
+    assert!(rows.len() >= 80);
+    let mut checked = 0;
+    // log M_BH, σ, log M_bulge, distance.
+    for column in [3, 5, 6, 7] {
+        // (value, the smaller error) of each cell with an error below 100.
+        let cells: Vec<(String, String)> = rows
+            .iter()
+            .filter_map(|row| {
+                let words: Vec<&str> = row[column].split(' ').collect();
+                match words.as_slice() {
+                    [v, "±", e] => Some((v.to_string(), e.to_string())),
+                    [v, pm] => {
+                        let (plus, minus) = pm.strip_prefix('+')?.split_once("/−")?;
+                        let smaller = if plus.parse::<f64>().ok()? <= minus.parse::<f64>().ok()? {
+                            plus
+                        } else {
+                            minus
+                        };
+                        Some((v.to_string(), smaller.to_string()))
+                    }
+                    _ => None,
+                }
+            })
+            .filter(|(_, e)| e.parse::<f64>().is_ok_and(|e| e < 100.0))
+            .collect();
+        assert!(cells.len() >= 20, "column {column}: {cells:?}");
+        let coarsest = cells.iter().map(|(v, _)| decimals(v)).min().unwrap();
+        for (value, err) in &cells {
+            // The value to the error's place; one or two significant digits in the error, one
+            // only where the column's coarser rows call for it.
+            assert_eq!(decimals(value), decimals(err), "{value} ± {err}");
+            let digits = significant_digits(err);
+            assert!(
+                (1..=2).contains(&digits),
+                "column {column}: {value} ± {err}"
+            );
+            assert!(
+                decimals(value) == coarsest || digits == 1,
+                "column {column}: {value} ± {err} beside {coarsest} decimals"
+            );
+            checked += 1;
+        }
+    }
+    assert!(checked >= 80);
+}
+
+#[tokio::test]
+async fn fitexy_says_why_its_scatter_has_no_interval() {
+    let app = spawn_demo_app().await;
+    let body = app
+        .ok("/relations/m_sigma?method=fitexy&limits=exclude")
+        .await;
+    let params = body
+        .split("id=\"params\"")
+        .nth(1)
+        .and_then(|t| t.split("</table>").next())
+        .expect("parameter table");
+    let eps = params
+        .split("<tr>")
+        .find(|row| row.contains("<th scope=\"row\">ε</th>"))
+        .expect("ε row");
+    assert!(eps.contains("set so that χ²/dof = 1; no interval"), "{eps}");
+    // No interval from a number to itself.
+    assert!(!eps.contains(" – "), "{eps}");
+    // α and β keep theirs.
+    let alpha = params
+        .split("<tr>")
+        .find(|row| row.contains("<th scope=\"row\">α</th>"))
+        .expect("α row");
+    assert!(
+        alpha.contains(" – ") && !alpha.contains("no interval"),
+        "{alpha}"
+    );
+}
+
 #[tokio::test]
 async fn catalog_table_sorts_by_a_column_in_both_directions() {
     let app = spawn_demo_app().await;
-    let distances = |body: &str| -> Vec<f64> {
+    // (shown distance, half its last digit): a shown value stands for anything that rounds to it.
+    let distances = |body: &str| -> Vec<(f64, f64)> {
         // Distance is the 7th cell: take the cells that end with " Mpc"-less "a ± b" in that column.
         body.split("<tr>")
             .filter(|row| row.contains("<td><a href=\"/galaxies/"))
@@ -111,10 +217,13 @@ async fn catalog_table_sorts_by_a_column_in_both_directions() {
                 let cells: Vec<&str> = row.split("<td").collect();
                 let cell = cells[7];
                 let text = cell.split('>').nth(1).unwrap().split('<').next().unwrap();
-                text.split(" ± ").next().unwrap().parse::<f64>().unwrap()
+                let shown = text.split(" ± ").next().unwrap();
+                let half = 0.5 * 10f64.powi(-(decimals(shown) as i32));
+                (shown.parse::<f64>().unwrap(), half)
             })
             .collect()
     };
+    let in_order = |a: (f64, f64), b: (f64, f64)| a.0 - a.1 <= b.0 + b.1;
     let asc = distances(&app.ok("/galaxies?sort=distance&dir=asc&per_page=500").await);
     let desc = distances(
         &app.ok("/galaxies?sort=distance&dir=desc&per_page=500")
@@ -122,11 +231,11 @@ async fn catalog_table_sorts_by_a_column_in_both_directions() {
     );
     assert!(asc.len() >= 80);
     assert!(
-        asc.windows(2).all(|w| w[0] <= w[1]),
+        asc.windows(2).all(|w| in_order(w[0], w[1])),
         "not ascending: {asc:?}"
     );
     assert!(
-        desc.windows(2).all(|w| w[0] >= w[1]),
+        desc.windows(2).all(|w| in_order(w[1], w[0])),
         "not descending: {desc:?}"
     );
 }
@@ -353,10 +462,20 @@ async fn a_large_catalog_draws_its_relation_chart_as_a_density_with_the_outliers
     for i in (0..n).filter(|&i| off(i)) {
         assert!(svg.contains(&hover(i)), "X {i}, off the relation, is named");
     }
-    let named_on_it = (0..n)
+    // On the relation, only objects whose sphere of influence is not resolved are drawn one by
+    // one, each with its mark, within the chart's cap; the rest are shaded.
+    let named_on_it: Vec<usize> = (0..n)
         .filter(|&i| !off(i) && svg.contains(&hover(i)))
-        .count();
-    assert_eq!(named_on_it, 0, "objects on the relation are only shaded");
+        .collect();
+    for &i in &named_on_it {
+        let k = svg.find(&hover(i)).expect("named");
+        let point = &svg[k..k + svg[k..].find("</g>").expect("closed")];
+        assert!(
+            point.contains("class=\"unresolved-mark\""),
+            "X {i}, on the relation, is drawn one by one without a reason"
+        );
+    }
+    assert!(named_on_it.len() <= massline::charts::MAX_EMPHASISED);
 
     // Every page stays light (under 500 kB) with its three charts, once the version's analysis
     // is done; the galaxy page of a sample above 2,000 objects places the galaxy against the

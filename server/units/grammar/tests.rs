@@ -234,7 +234,7 @@ fn errors_convert_to_dex_as_methods_section_2_5_option_1() {
         "mean of u and l: got {}, expected 0.05290186308401945",
         entry.err_dex
     );
-    assert_eq!(entry.display_log(), "9.51 +0.06/\u{2212}0.04");
+    assert_eq!(entry.display_log(), "9.505 +0.063/\u{2212}0.043");
 }
 
 #[test]
