@@ -336,6 +336,79 @@ pub async fn insert_measurement(
     .await
 }
 
+/// A galaxy's new adopted distance.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewDistance {
+    /// Distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1-σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// Stored distance-method word.
+    pub distance_method: String,
+}
+
+/// Adopt a new distance for a galaxy: a new catalog version (bumped first, so the history span
+/// of the new distance starts at it), the galaxy's row updated (the old distance stays in the
+/// history, migration 8) and an audit event `distance_changed` naming old and new, with the
+/// note. Returns the new catalog version, or None when the galaxy does not exist.
+///
+/// # Errors
+/// Any database error (a distance outside the schema's range fails its CHECK).
+pub async fn change_distance(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    galaxy_id: i64,
+    new: &NewDistance,
+    note: &str,
+) -> sqlx::Result<Option<i64>> {
+    let mut tx = super::begin_write(pool).await?;
+    let old: Option<(String, f64, f64, String)> = sqlx::query_as(
+        "select name, distance_mpc, distance_err_mpc, distance_method from galaxy where galaxy_id = ?",
+    )
+    .bind(galaxy_id)
+    .fetch_optional(&mut *tx)
+    .await?;
+    let Some((name, old_d, old_err, old_method)) = old else {
+        return Ok(None);
+    };
+    let version = super::history::bump_version(&mut tx).await?;
+    sqlx::query(
+        "update galaxy set distance_mpc = ?, distance_err_mpc = ?, distance_method = ?,
+                updated_at = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')
+          where galaxy_id = ?",
+    )
+    .bind(new.distance_mpc)
+    .bind(new.distance_err_mpc)
+    .bind(&new.distance_method)
+    .bind(galaxy_id)
+    .execute(&mut *tx)
+    .await?;
+    let note = note.trim();
+    super::history::record(
+        &mut tx,
+        &super::history::NewEvent {
+            account_id,
+            action: "distance_changed",
+            entity: "galaxy",
+            entity_id: Some(galaxy_id),
+            summary: format!(
+                "Distance of {name}: {old_d} ± {old_err} Mpc ({old_method}) → {} ± {} Mpc ({}).{}",
+                new.distance_mpc,
+                new.distance_err_mpc,
+                new.distance_method,
+                if note.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {}", note.chars().take(500).collect::<String>())
+                }
+            ),
+        },
+    )
+    .await?;
+    tx.commit().await?;
+    Ok(Some(version))
+}
+
 /// Make a measurement the adopted value for its galaxy, quantity and band (replacing any other).
 ///
 /// # Errors

@@ -45,6 +45,10 @@ pub struct ExportArgs {
     /// File format.
     #[arg(long, value_enum, default_value_t = ExportFormat::Csv)]
     pub format: ExportFormat,
+    /// Catalog version to export (any version since the history began); the current one
+    /// when left out.
+    #[arg(long)]
+    pub version: Option<i64>,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
@@ -169,9 +173,17 @@ pub fn run_export(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
+        let version = match args.version {
+            None => None,
+            Some(n) => Some(
+                catalog::history::resolve(&pool, &catalog::history::VersionAsk::Number(n))
+                    .await?
+                    .version,
+            ),
+        };
         let (text, version) = match args.format {
-            ExportFormat::Csv => export_csv(&pool).await?,
-            ExportFormat::Json => export_json(&pool).await?,
+            ExportFormat::Csv => export_csv(&pool, version).await?,
+            ExportFormat::Json => export_json(&pool, version).await?,
         };
         out.write_all(text.as_bytes())?;
         writeln!(err, "exported catalog version {version}")?;

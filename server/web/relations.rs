@@ -14,8 +14,8 @@ use axum::response::{IntoResponse, Redirect, Response};
 use super::display::{Uncertain, fixed, significant, with_errors};
 use crate::auth::Principal;
 use crate::catalog::csv_io::guard_text_cell;
+use crate::catalog::history::{Pinned, VersionAsk};
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
-use crate::catalog::relation_rows;
 use crate::charts::{
     BandPoint, ChartPoint, Group, LineSpec, RelationChart, ResidualChart, relation_svg,
     residual_svg,
@@ -24,8 +24,8 @@ use crate::error::{AppError, AppResult};
 use crate::fit::{Fit, Method, Point, Shape};
 use crate::relations::analysis::{Subset, flagged, most_influential, offset_between};
 use crate::relations::{
-    DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, LimitsChoice, Member, Relation,
-    RunKind, RunStatus, fitted, read_pivot_typed, run_status, stored_run,
+    Catalog, DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, LimitsChoice, Member,
+    Relation, RunKind, RunStatus, read_pivot_typed, run_status, stored_run,
 };
 use crate::state::AppState;
 
@@ -330,9 +330,9 @@ impl RelationQuery {
     }
 }
 
-/// The relations of the catalog as it is now.
-async fn relations_of(state: &AppState) -> AppResult<Vec<Relation>> {
-    let bands = relation_rows::luminosity_bands(&state.pool).await?;
+/// The relations of the catalog at `catalog`'s version.
+async fn relations_of(catalog: &Catalog) -> AppResult<Vec<Relation>> {
+    let bands = catalog.bands().await?;
     Ok(Relation::all(
         &bands
             .into_iter()
@@ -341,35 +341,104 @@ async fn relations_of(state: &AppState) -> AppResult<Vec<Relation>> {
     ))
 }
 
-/// The relation named in the URL, or 404.
-async fn relation_named(state: &AppState, slug: &str) -> AppResult<Relation> {
-    let bands = relation_rows::luminosity_bands(&state.pool).await?;
-    Relation::from_slug(slug, &bands).map_err(|e| AppError::not_found(e.to_string()))
+/// What a relation page or download is asked for: the catalog at the version asked for, the
+/// relation, and the page's own query parameters.
+pub(crate) struct Target {
+    /// The catalog at the version asked for.
+    pub(crate) catalog: Catalog,
+    /// That version, resolved.
+    pub(crate) pinned: Pinned,
+    /// How it was asked for (repeated in the page's links).
+    pub(crate) ask: VersionAsk,
+    /// The relation named in the URL.
+    pub(crate) relation: Relation,
+    /// The query parameters without `version` and `release`.
+    pub(crate) pairs: Vec<(String, String)>,
 }
 
-fn read_query(
-    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-    relation: &Relation,
-) -> AppResult<RelationQuery> {
-    let pairs = crate::router::query_pairs(query)?;
-    RelationQuery::parse(&pairs, relation).map_err(AppError::bad_request)
+impl Target {
+    /// The query text (without '?') that asks for `q` at this version again.
+    pub(crate) fn query_plain(&self, q: &RelationQuery) -> String {
+        with_version(q.to_query_string(), &self.ask)
+    }
 }
 
-async fn fit_for(
+/// `plain` (a query without '?') with the version asked for appended.
+pub(crate) fn with_version(plain: String, ask: &VersionAsk) -> String {
+    let version = ask.query();
+    match (plain.is_empty(), version.is_empty()) {
+        (_, true) => plain,
+        (true, false) => version,
+        (false, false) => format!("{plain}&{version}"),
+    }
+}
+
+/// The catalog version a request names (`version`, `release`) and its other parameters.
+///
+/// # Errors
+/// 400 for a query that cannot be read or a version that is not a number; 404 for a version
+/// not made yet or an unknown release; 410 for a version older than the history.
+pub(crate) async fn versioned(
     state: &AppState,
-    relation: &Relation,
-    q: &RelationQuery,
-) -> AppResult<Arc<FitOutcome>> {
-    Ok(fitted(
-        &state.pool,
-        &state.fits,
-        state.settings.soi_threshold,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<(Catalog, Pinned, VersionAsk, Vec<(String, String)>)> {
+    versioned_pairs(state, crate::router::query_pairs(query)?).await
+}
+
+/// [`versioned`] for query pairs already read.
+///
+/// # Errors
+/// As [`versioned`].
+pub(crate) async fn versioned_pairs(
+    state: &AppState,
+    pairs: Vec<(String, String)>,
+) -> AppResult<(Catalog, Pinned, VersionAsk, Vec<(String, String)>)> {
+    let (ask, pairs) = VersionAsk::split(pairs).map_err(AppError::bad_request)?;
+    let (catalog, pinned) = state.catalog_at(&ask).await?;
+    Ok((catalog, pinned, ask, pairs))
+}
+
+/// The [`Target`] of a relation page or download, or 404 for a relation the version lacks.
+pub(crate) async fn target(
+    state: &AppState,
+    slug: &str,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Target> {
+    target_of(state, slug, crate::router::query_pairs(query)?).await
+}
+
+/// [`target`] for query pairs already read.
+async fn target_of(
+    state: &AppState,
+    slug: &str,
+    pairs: Vec<(String, String)>,
+) -> AppResult<Target> {
+    let (catalog, pinned, ask, pairs) = versioned_pairs(state, pairs).await?;
+    let bands = catalog.bands().await?;
+    let relation =
+        Relation::from_slug(slug, &bands).map_err(|e| AppError::not_found(e.to_string()))?;
+    Ok(Target {
+        catalog,
+        pinned,
+        ask,
         relation,
-        q.fit.method,
-        &q.fit.filter,
-        q.fit.pivots(relation),
-    )
-    .await?)
+        pairs,
+    })
+}
+
+pub(crate) fn read_query(t: &Target) -> AppResult<RelationQuery> {
+    RelationQuery::parse(&t.pairs, &t.relation).map_err(AppError::bad_request)
+}
+
+pub(crate) async fn fit_for(t: &Target, q: &RelationQuery) -> AppResult<Arc<FitOutcome>> {
+    Ok(t.catalog
+        .fitted(
+            &t.relation,
+            q.fit.method,
+            &q.fit.filter,
+            q.fit.pivots(&t.relation),
+        )
+        .await?)
 }
 
 /// A fit as a page shows it: the current version's, or while that is being computed the
@@ -383,7 +452,7 @@ struct Shown {
 /// The fit a page shows ([`Shown`]), waiting at most [`super::PAGE_WAIT`]; `Err(version)` when no
 /// version's fit is ready yet.
 async fn fit_shown(
-    state: &AppState,
+    catalog: &Catalog,
     relation: &Relation,
     q: &RelationQuery,
 ) -> AppResult<Result<Shown, i64>> {
@@ -394,8 +463,7 @@ async fn fit_shown(
         q.fit.pivots(relation),
     );
     Ok(
-        match state
-            .catalog()
+        match catalog
             .fitted_within(choice, Some(super::PAGE_WAIT))
             .await?
         {
@@ -403,7 +471,7 @@ async fn fit_shown(
                 outcome,
                 computing: None,
             }),
-            Err(key) => state
+            Err(key) => catalog
                 .fits
                 .latest(&key)
                 .map(|outcome| Shown {
@@ -502,8 +570,9 @@ pub(crate) async fn list_relations(
     let mut relations = Vec::new();
     let mut catalog_version = 0;
     let mut computing = None;
-    for relation in relations_of(&state).await? {
-        let outcome = match fit_shown(&state, &relation, &q).await? {
+    let catalog = state.catalog();
+    for relation in relations_of(&catalog).await? {
+        let outcome = match fit_shown(&catalog, &relation, &q).await? {
             Ok(shown) => {
                 computing = computing.or(shown.computing);
                 shown.outcome
@@ -957,8 +1026,8 @@ pub(crate) async fn start_run(
     let user = super::account::session_of(&principal)?;
     let pairs: Vec<(String, String)> = serde_urlencoded::from_str(&form.query)
         .map_err(|_| AppError::bad_request("The relation's settings could not be read."))?;
-    let relation = relation_named(&state, &slug).await?;
-    let q = RelationQuery::parse(&pairs, &relation).map_err(AppError::bad_request)?;
+    let t = target_of(&state, &slug, pairs).await?;
+    let q = read_query(&t)?;
     let size = if form.size.trim().is_empty() {
         0
     } else {
@@ -967,7 +1036,7 @@ pub(crate) async fn start_run(
         })?
     };
     let (kind, size) = RunKind::parse(form.kind.trim(), size).map_err(AppError::bad_request)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let outcome = fit_for(&t, &q).await?;
     if let Err(e) = &outcome.fit {
         return Err(AppError::bad_request(format!(
             "There is no fit to start a run from: {e}"
@@ -986,10 +1055,10 @@ pub(crate) async fn start_run(
         RunKind::Bootstrap => back.replicates = size,
         RunKind::Posterior => back.steps = size,
     }
-    let query = back.to_query_string();
+    let query = t.query_plain(&back);
     Ok(Redirect::to(&format!(
         "/relations/{}{}#runs",
-        relation.slug(),
+        t.relation.slug(),
         if query.is_empty() {
             String::new()
         } else {
@@ -1256,10 +1325,11 @@ pub(crate) async fn show_relation(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let read = RelationQuery::read(&crate::router::query_pairs(query)?, &relation);
+    let t = target(&state, &slug, query).await?;
+    let relation = t.relation.clone();
+    let read = RelationQuery::read(&t.pairs, &relation);
     let q = read.query.clone();
-    let shown = match fit_shown(&state, &relation, &q).await? {
+    let shown = match fit_shown(&t.catalog, &relation, &q).await? {
         Ok(shown) => shown,
         Err(version) => {
             return Ok(ComputingPage {
@@ -1308,7 +1378,7 @@ pub(crate) async fn show_relation(
         .any(|r| r.status == "running" || r.status == "queued");
     let refresh = computing.is_some() || influence_pending;
     let may_start = nav.username.is_some();
-    let query_plain = q.to_query_string();
+    let query_plain = t.query_plain(&q);
     Ok(RelationPage {
         nav,
         controls: Controls::of(&relation, &read),
@@ -1777,9 +1847,10 @@ pub(crate) async fn download_chart(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     let drawn = state
         .fits
         .drawn(&outcome.key, &format!("svg;group={:?}", q.group), || {
@@ -1792,6 +1863,7 @@ pub(crate) async fn download_chart(
         });
     let svg = drawn[0].clone().map_err(AppError::bad_request)?;
     Ok(download(
+        &t.pinned,
         "image/svg+xml; charset=utf-8",
         &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
         svg,
@@ -1805,9 +1877,10 @@ pub(crate) async fn download_chart_png(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     let chart = RelationChart {
         show_title: true,
         ..relation_chart(&relation, &outcome, q.group)
@@ -1815,17 +1888,7 @@ pub(crate) async fn download_chart_png(
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
     let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
-    Ok((
-        [
-            (header::CONTENT_TYPE, "image/png".to_owned()),
-            (
-                header::CONTENT_DISPOSITION,
-                format!("attachment; filename=\"{filename}\""),
-            ),
-        ],
-        png,
-    )
-        .into_response())
+    Ok(download(&t.pinned, "image/png", &filename, png))
 }
 
 /// `/relations/{relation}/fit.json`: the fit and its settings.
@@ -1834,10 +1897,14 @@ pub(crate) async fn download_fit(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
-    let (pivot, pivot2) = q.fit.pivots(&relation);
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
+    let (pivot, pivot2) = q.fit.pivots(relation);
+    let made_at =
+        crate::catalog::history::made_at(&state.pool, outcome.key.catalog_version).await?;
+    let fit_id = crate::relations::citation::cite(&t.catalog, &outcome).await;
     let body = serde_json::json!({
         "relation": relation.slug(),
         "label": relation.label(),
@@ -1849,7 +1916,10 @@ pub(crate) async fn download_fit(
         "pivot_log": pivot,
         "pivot2_log": (relation.shape() == Shape::Plane).then_some(pivot2),
         "catalog_version": outcome.key.catalog_version,
-        "fitted_at": outcome.fitted_at,
+        // When the version was made, not when this copy was computed: a past version's file
+        // is the same whenever it is asked for.
+        "catalog_version_made_at": made_at,
+        "fit_id": fit_id,
         "n_detections": outcome.sample.n_detections(),
         "n_upper": outcome.sample.n_limits(),
         "left_out_sigma_definition": outcome.sample.left_out_sigma_definition,
@@ -1861,6 +1931,7 @@ pub(crate) async fn download_fit(
     });
     let text = serde_json::to_string_pretty(&body).map_err(anyhow::Error::from)?;
     Ok(download(
+        &t.pinned,
         "application/json",
         &format!("{}-{}.json", relation.slug(), q.fit.method.as_str()),
         text,
@@ -1873,9 +1944,10 @@ pub(crate) async fn download_sample(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     let unit = relation.x_unit();
     let mut w = csv::Writer::from_writer(Vec::new());
     let header = [
@@ -1922,24 +1994,40 @@ pub(crate) async fn download_sample(
     let bytes = w.into_inner().map_err(|e| anyhow::anyhow!("{e}"))?;
     let text = String::from_utf8(bytes).map_err(anyhow::Error::from)?;
     Ok(download(
+        &t.pinned,
         "text/csv; charset=utf-8",
         &format!("{}-sample.csv", relation.slug()),
         text,
     ))
 }
 
-fn download(content_type: &'static str, filename: &str, body: String) -> Response {
-    (
+/// A file for `pinned`'s catalog version: it names its version in `Catalog-Version`, and a
+/// past version's file never changes ([`crate::router::Immutable`]).
+pub(crate) fn download(
+    pinned: &Pinned,
+    content_type: &'static str,
+    filename: &str,
+    body: impl axum::response::IntoResponse,
+) -> Response {
+    let mut response = (
         [
             (header::CONTENT_TYPE, content_type.to_owned()),
             (
                 header::CONTENT_DISPOSITION,
                 format!("attachment; filename=\"{filename}\""),
             ),
+            (
+                header::HeaderName::from_static("catalog-version"),
+                pinned.version.to_string(),
+            ),
         ],
         body,
     )
-        .into_response()
+        .into_response();
+    if pinned.is_past() {
+        response.extensions_mut().insert(crate::router::Immutable);
+    }
+    response
 }
 
 #[cfg(test)]

@@ -13,6 +13,7 @@ mod api_fuzz;
 mod catalog_search;
 mod galaxy_names;
 mod galaxy_relations;
+mod history;
 mod idempotency;
 mod pages;
 mod relations;
