@@ -73,6 +73,15 @@ pub async fn asked_version(
     Option<(crate::relations::Catalog, crate::catalog::history::Pinned)>,
     Vec<(String, String)>,
 )> {
+    // As everywhere in the API, an empty value is refused rather than read as "any".
+    if let Some((key, _)) = pairs.iter().find(|(k, v)| {
+        crate::catalog::history::VERSION_PARAMS.contains(&k.as_str()) && v.trim().is_empty()
+    }) {
+        return Err(AppError::invalid(vec![crate::error::FieldError::new(
+            key.as_str(),
+            EMPTY_VALUE,
+        )]));
+    }
     let (ask, rest) = crate::catalog::history::VersionAsk::split(pairs).map_err(|e| {
         let field = if e.contains("'release'") {
             "release"

@@ -84,10 +84,11 @@ macro_rules! held_at {
     };
 }
 
-/// Every galaxy with at least one adopted value at catalog version `version`, with its
-/// properties and its adopted black-hole mass, σ and bulge mass as they stood at that version,
-/// ordered by name (read from the history spans, migration 8; the current version reads the
-/// same way, so a version's rows are the same whenever they are read).
+/// Every galaxy of catalog version `version`, with its properties and its adopted black-hole
+/// mass, σ and bulge mass as they stood at that version, ordered by name (read from the
+/// history spans, migration 8; the current version reads the same way, so a version's rows
+/// are the same whenever they are read). A galaxy is in from the version current when it was
+/// stored, with or without adopted values (a galaxy named by a pending submission has none).
 ///
 /// The catalog table filters, sorts and pages these rows in Rust, because some of its filters
 /// (sphere of influence resolved or not, values at the adopted distance) are computed there.
@@ -129,9 +130,6 @@ pub async fn relation_rows_at(
           where ",
         held_at!("g"),
         "
-            and exists (select 1 from adopted_value_span a where a.galaxy_id = g.galaxy_id and ",
-        held_at!("a"),
-        ")
        order by g.name, g.galaxy_id"
     ))
     .bind(version)
