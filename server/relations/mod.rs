@@ -248,6 +248,18 @@ impl Relation {
         }
     }
 
+    /// [`Relation::label`] in LaTeX, e.g. `$M_\mathrm{BH}$--$\sigma$` (BibTeX titles, tables).
+    pub fn label_tex(&self) -> String {
+        match self {
+            Relation::MSigma => "$M_\\mathrm{BH}$--$\\sigma$".to_owned(),
+            Relation::MBulge => "$M_\\mathrm{BH}$--$M_\\mathrm{bulge}$".to_owned(),
+            Relation::Luminosity(band) => format!("$M_\\mathrm{{BH}}$--$L_{{{band}}}$"),
+            Relation::SigmaBulgePlane => {
+                "$M_\\mathrm{BH}$--($\\sigma$, $M_\\mathrm{bulge}$) plane".to_owned()
+            }
+        }
+    }
+
     /// x-axis label with its unit (the first host property for the plane).
     pub fn x_label(&self) -> String {
         match self {

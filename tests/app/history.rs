@@ -335,3 +335,74 @@ async fn the_history_cannot_be_rewritten() {
         assert!(result.is_err(), "{statement} was allowed");
     }
 }
+
+#[tokio::test]
+async fn a_cited_fit_keeps_its_page_and_is_made_again_equal_after_the_catalog_moves_on() {
+    let app = spawn_demo_app().await;
+    let version = history::current_version(&app.pool).await.unwrap();
+    let page = app.ok("/relations/m_sigma?method=conditional").await;
+    let start = page.find("href=\"/fits/fit-").expect("a cite box") + "href=\"/fits/".len();
+    let id = page[start..start + 20].to_owned();
+    assert!(page.contains("@misc{"), "BibTeX on the page");
+    assert!(
+        page.contains(&format!("catalog version {version}")),
+        "the sentence names the version"
+    );
+    let galaxy: i64 = sqlx::query_scalar("select min(galaxy_id) from galaxy")
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc: 40.0,
+            distance_err_mpc: 3.0,
+            distance_method: "cepheid".into(),
+        },
+        "",
+    )
+    .await
+    .unwrap();
+    // The current fit has another identifier now; the old one still has its page.
+    let now = app.ok("/relations/m_sigma?method=conditional").await;
+    assert!(
+        !now.contains(&format!("/fits/{id}")),
+        "a new version, a new identifier"
+    );
+    let fit_page = app.ok(&format!("/fits/{id}")).await;
+    assert!(fit_page.contains("equals, to the last digit"), "{fit_page}");
+    assert!(
+        fit_page.contains("The catalog has changed since"),
+        "{fit_page}"
+    );
+    assert!(
+        fit_page.contains(&format!("version={version}")),
+        "links carry the version"
+    );
+    // Its fit.json at that version names the same identifier.
+    let (status, json) = app
+        .get(&format!(
+            "/relations/m_sigma/fit.json?method=conditional&version={version}"
+        ))
+        .await;
+    assert_eq!(status, 200);
+    let doc: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(doc["fit_id"], id.as_str());
+    assert_eq!(doc["catalog_version"], version);
+    // A forged result is caught: the page says the fit differs.
+    sqlx::query("update cited_fit set result_json = '{}' where fit_id = ?")
+        .bind(&id)
+        .execute(&app.pool)
+        .await
+        .unwrap();
+    let forged = app.ok(&format!("/fits/{id}")).await;
+    assert!(
+        forged.contains("differs from the result recorded"),
+        "{forged}"
+    );
+    let (status, body) = app.get("/fits/fit-0123456789abcdef").await;
+    assert_eq!(status, 404);
+    assert!(body.contains("How to cite this fit"), "{body}");
+}
