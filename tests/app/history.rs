@@ -406,3 +406,59 @@ async fn a_cited_fit_keeps_its_page_and_is_made_again_equal_after_the_catalog_mo
     assert_eq!(status, 404);
     assert!(body.contains("How to cite this fit"), "{body}");
 }
+
+#[tokio::test]
+async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
+    let app = spawn_demo_app().await;
+    let demo = history::current_version(&app.pool).await.unwrap();
+    let (galaxy, slug, old_d): (i64, String, f64) = sqlx::query_as(
+        "select g.galaxy_id, g.slug, g.distance_mpc from galaxy g
+           join adopted_value a on a.galaxy_id = g.galaxy_id and a.quantity = 'bh_mass'
+       order by g.galaxy_id limit 1",
+    )
+    .fetch_one(&app.pool)
+    .await
+    .unwrap();
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc: old_d * 2.0,
+            distance_err_mpc: 1.0,
+            distance_method: "trgb".into(),
+        },
+        "",
+    )
+    .await
+    .unwrap();
+    let json = |body: &str| serde_json::from_str::<serde_json::Value>(body).unwrap();
+    let (status, then) = app
+        .get(&format!("/api/v1/galaxies/{slug}?version={demo}"))
+        .await;
+    assert_eq!(status, 200, "{then}");
+    let (_, now) = app.get(&format!("/api/v1/galaxies/{slug}")).await;
+    let (then, now) = (json(&then), json(&now));
+    assert_eq!(then["catalog_version"], demo);
+    assert_eq!(then["distance_mpc"].as_f64().unwrap(), old_d);
+    assert_eq!(now["distance_mpc"].as_f64().unwrap(), old_d * 2.0);
+    assert_eq!(now["catalog_version"], demo + 1);
+    let (status, list) = app
+        .get(&format!("/api/v1/galaxies?version={demo}&per_page=5"))
+        .await;
+    assert_eq!(status, 200, "{list}");
+    assert_eq!(json(&list)["catalog_version"], demo);
+    // The page of that version shows the old distance too.
+    let page = app.ok(&format!("/galaxies/{slug}?version={demo}")).await;
+    assert!(page.contains("You are reading catalog version"), "{page}");
+    // Placing against a past version uses that version's fits.
+    let (status, placed) = app
+        .get(&format!(
+            "/api/v1/place?sigma=200&mass=2e8&distance=20&version={demo}"
+        ))
+        .await;
+    assert_eq!(status, 200, "{placed}");
+    assert_eq!(json(&placed)["catalog_version"], demo);
+    let (status, _) = app.get("/api/v1/galaxies?version=-3").await;
+    assert_eq!(status, 422);
+}
