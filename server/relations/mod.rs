@@ -103,10 +103,7 @@ impl Catalog {
             &self.pool,
             &self.fits,
             self.soi_threshold,
-            relation,
-            method,
-            filter,
-            pivots,
+            (relation, method, filter, pivots),
             self.pinned,
         )
         .await

@@ -559,18 +559,31 @@ pub(crate) struct RelationsListPage {
     catalog_version: i64,
     /// Said while a fit of the current version is still being computed.
     computing: Option<String>,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links of a named version, else empty.
+    gq: String,
 }
 
-/// Show every relation with its current structural fit.
+/// Show every relation with its structural fit, at the current version or the one named.
 pub(crate) async fn list_relations(
     State(state): State<AppState>,
     nav: super::Nav,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<RelationsListPage> {
+    let (catalog, pinned, ask, rest) = versioned(&state, query).await?;
+    if let Some((key, _)) = rest.first() {
+        return Err(AppError::bad_request(format!(
+            "'{}' is not a parameter of this page (it accepts version, release).",
+            key.chars().take(40).collect::<String>()
+        )));
+    }
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note = VersionNote::of(&pinned, &ask, made_at.as_deref(), "/relations".into());
     let q = RelationQuery::default();
     let mut relations = Vec::new();
     let mut catalog_version = 0;
     let mut computing = None;
-    let catalog = state.catalog();
     for relation in relations_of(&catalog).await? {
         let outcome = match fit_shown(&catalog, &relation, &q).await? {
             Ok(shown) => {
@@ -632,6 +645,8 @@ pub(crate) async fn list_relations(
                 "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
             )
         }),
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
     })
 }
 
@@ -1940,7 +1955,7 @@ pub(crate) async fn download_chart(
             // A file opened on its own draws its title; the page's heading names the page chart.
             let chart = RelationChart {
                 show_title: true,
-                ..relation_chart(&relation, &outcome, q.group)
+                ..relation_chart(relation, &outcome, q.group)
             };
             vec![relation_svg(&chart).map_err(|e| e.to_string())]
         });
@@ -1966,7 +1981,7 @@ pub(crate) async fn download_chart_png(
     let relation = &t.relation;
     let chart = RelationChart {
         show_title: true,
-        ..relation_chart(&relation, &outcome, q.group)
+        ..relation_chart(relation, &outcome, q.group)
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;

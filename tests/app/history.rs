@@ -440,8 +440,15 @@ async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
     let (_, now) = app.get(&format!("/api/v1/galaxies/{slug}")).await;
     let (then, now) = (json(&then), json(&now));
     assert_eq!(then["catalog_version"], demo);
-    assert_eq!(then["distance_mpc"].as_f64().unwrap(), old_d);
-    assert_eq!(now["distance_mpc"].as_f64().unwrap(), old_d * 2.0);
+    // Stored and read back as the same double: compared by their bits.
+    assert_eq!(
+        then["distance_mpc"].as_f64().unwrap().to_bits(),
+        old_d.to_bits()
+    );
+    assert_eq!(
+        now["distance_mpc"].as_f64().unwrap().to_bits(),
+        (old_d * 2.0).to_bits()
+    );
     assert_eq!(now["catalog_version"], demo + 1);
     let (status, list) = app
         .get(&format!("/api/v1/galaxies?version={demo}&per_page=5"))
