@@ -1963,7 +1963,12 @@ pub(crate) async fn download_chart(
     Ok(download(
         &t.pinned,
         "image/svg+xml; charset=utf-8",
-        &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
+        &format!(
+            "{}-{}-v{}.svg",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         svg,
     ))
 }
@@ -1985,7 +1990,12 @@ pub(crate) async fn download_chart_png(
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
-    let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
+    let filename = format!(
+        "{}-{}-v{}.png",
+        relation.slug(),
+        q.fit.method.as_str(),
+        outcome.key.catalog_version
+    );
     Ok(download(&t.pinned, "image/png", &filename, png))
 }
 
@@ -2031,7 +2041,12 @@ pub(crate) async fn download_fit(
     Ok(download(
         &t.pinned,
         "application/json",
-        &format!("{}-{}.json", relation.slug(), q.fit.method.as_str()),
+        &format!(
+            "{}-{}-v{}.json",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         text,
     ))
 }
@@ -2094,7 +2109,12 @@ pub(crate) async fn download_sample(
     Ok(download(
         &t.pinned,
         "text/csv; charset=utf-8",
-        &format!("{}-sample.csv", relation.slug()),
+        &format!(
+            "{}-{}-v{}-sample.csv",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         text,
     ))
 }
