@@ -332,13 +332,7 @@ impl RelationQuery {
 
 /// The relations of the catalog at `catalog`'s version.
 async fn relations_of(catalog: &Catalog) -> AppResult<Vec<Relation>> {
-    let bands = catalog.bands().await?;
-    Ok(Relation::all(
-        &bands
-            .into_iter()
-            .filter(|b| Relation::valid_band(b))
-            .collect::<Vec<_>>(),
-    ))
+    Ok(catalog.relations().await?)
 }
 
 /// What a relation page or download is asked for: the catalog at the version asked for, the
