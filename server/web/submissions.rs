@@ -1150,7 +1150,12 @@ pub(crate) async fn download_catalog_json(State(state): State<AppState>) -> AppR
 }
 
 /// A catalog export as a download named after its version, with the version in a header too.
-fn catalog_file(text: String, version: i64, extension: &str, content_type: &str) -> Response {
+pub(super) fn catalog_file(
+    text: String,
+    version: i64,
+    extension: &str,
+    content_type: &str,
+) -> Response {
     (
         [
             (axum::http::header::CONTENT_TYPE, content_type.to_owned()),

@@ -1,0 +1,99 @@
+//! The downloads for papers and astronomy software (`export`): the fitted sample as a VOTable
+//! and as an AASTeX table, the fit as a LaTeX table row, a methods paragraph, and the adopted
+//! catalog as a VOTable. Each reads the same query as `fit.json` and hands the fit to `export`.
+
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, State};
+use axum::response::Response;
+
+use super::relations::{download, fit_for, read_query, relation_named};
+use crate::error::AppResult;
+use crate::relations::{FitOutcome, Relation};
+use crate::state::AppState;
+
+/// The media type of a VOTable (IVOA VOTable 1.4, appendix on media types).
+const VOTABLE: &str = "application/x-votable+xml";
+/// The media type of LaTeX text.
+const TEX: &str = "text/x-tex; charset=utf-8";
+
+/// The relation in the URL and its fit for the query.
+async fn fit_of(
+    state: &AppState,
+    slug: &str,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<(Relation, std::sync::Arc<FitOutcome>)> {
+    let relation = relation_named(state, slug).await?;
+    let q = read_query(query, &relation)?;
+    let outcome = fit_for(state, &relation, &q).await?;
+    Ok((relation, outcome))
+}
+
+/// `/relations/{relation}/sample.vot`: the fitted sample as a VOTable.
+pub(crate) async fn sample_vot(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let (relation, outcome) = fit_of(&state, &slug, query).await?;
+    let text = crate::export::sample_votable(&outcome, &relation)?;
+    Ok(download(
+        VOTABLE,
+        &format!("{}-sample.vot", relation.slug()),
+        text,
+    ))
+}
+
+/// `/relations/{relation}/fit.tex`: the fit as one row of a LaTeX table of relations.
+pub(crate) async fn fit_tex(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let (relation, outcome) = fit_of(&state, &slug, query).await?;
+    let text = crate::export::latex::fit_tex_file(&outcome, &relation);
+    Ok(download(
+        TEX,
+        &format!("{}-{}-fit.tex", relation.slug(), outcome.key.method),
+        text,
+    ))
+}
+
+/// `/relations/{relation}/sample.tex`: the fitted sample as an AASTeX `deluxetable`.
+pub(crate) async fn sample_tex(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let (relation, outcome) = fit_of(&state, &slug, query).await?;
+    let text = crate::export::sample_table(&outcome, &relation);
+    Ok(download(
+        TEX,
+        &format!("{}-sample.tex", relation.slug()),
+        text,
+    ))
+}
+
+/// `/relations/{relation}/methods.txt`: a paragraph for a methods section.
+pub(crate) async fn methods_txt(
+    State(state): State<AppState>,
+    Path(slug): Path<String>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let (relation, outcome) = fit_of(&state, &slug, query).await?;
+    let mut text = crate::export::methods_paragraph(&outcome, &relation);
+    text.push('\n');
+    Ok(download(
+        "text/plain; charset=utf-8",
+        &format!("{}-{}-methods.txt", relation.slug(), outcome.key.method),
+        text,
+    ))
+}
+
+/// `/catalog.vot`: the adopted catalog as a VOTable, named with its version.
+pub(crate) async fn catalog_vot(State(state): State<AppState>) -> AppResult<Response> {
+    let (rows, version) = crate::catalog::csv_io::adopted_catalog(&state.pool).await?;
+    let text = crate::export::catalog_votable(&rows, version)?;
+    Ok(super::submissions::catalog_file(
+        text, version, "vot", VOTABLE,
+    ))
+}
