@@ -1,4 +1,4 @@
-//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json]`: the
+//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json|votable]`: the
 //! catalog file formats (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
 //! server's database file is its administrator; the audit log records the import with no
 //! account.
@@ -37,6 +37,9 @@ pub enum ExportFormat {
     Csv,
     /// The same rows as JSON, stamped with the catalog version and the time of export.
     Json,
+    /// The same rows as an IVOA VOTable 1.4 (`export::catalog_votable`), with units and UCDs;
+    /// for reading, not for import.
+    Votable,
 }
 
 /// Arguments of `massline export`.
@@ -157,7 +160,7 @@ fn progress_bar() -> impl FnMut(usize, usize) {
     }
 }
 
-/// Write the adopted catalog as CSV or JSON to `out`; the catalog version goes to `err`.
+/// Write the adopted catalog as CSV, JSON or VOTable to `out`; the catalog version goes to `err`.
 ///
 /// # Errors
 /// When the database cannot be read.
@@ -172,6 +175,10 @@ pub fn run_export(
         let (text, version) = match args.format {
             ExportFormat::Csv => export_csv(&pool).await?,
             ExportFormat::Json => export_json(&pool).await?,
+            ExportFormat::Votable => {
+                let (rows, version) = crate::catalog::csv_io::adopted_catalog(&pool).await?;
+                (crate::export::catalog_votable(&rows, version)?, version)
+            }
         };
         out.write_all(text.as_bytes())?;
         writeln!(err, "exported catalog version {version}")?;

@@ -486,7 +486,8 @@ mod tests {
             "{tex}"
         );
         assert!(tex.contains("catalog version 7"), "{tex}");
-        assert!(tex.starts_with("\\begin{deluxetable}{lccl c}".replace(' ', "").as_str()));
+        // Galaxy, D, log σ, log M_BH, method, reference.
+        assert!(tex.starts_with("\\begin{deluxetable}{lccclc}\n"), "{tex}");
     }
 
     #[test]
@@ -497,6 +498,61 @@ mod tests {
         let tex = sample_table(&outcome, &Relation::MSigma);
         assert!(!tex.contains("\\tablerefs"), "{tex}");
         assert!(!tex.contains("Ref."), "{tex}");
+    }
+
+    /// An invented sample of 24 galaxies about log M = 8.3 + 5 log(σ/200) with a scatter of
+    /// ±0.3 dex, fitted by `method`.
+    fn fitted(method: crate::fit::Method) -> FitOutcome {
+        let points: Vec<Point> = (0..24)
+            .map(|i| {
+                let x = 2.0 + 0.025 * f64::from(i);
+                let scatter = if i % 2 == 0 { 0.3 } else { -0.3 };
+                Point::new(x, 0.02, 8.3 + 5.0 * (x - 2.301_03) + scatter, 0.1)
+            })
+            .collect();
+        let members = (0..24).map(|i| member(i, &format!("Galaxy {i}"))).collect();
+        let mut outcome = outcome_of(points, members);
+        let spec = crate::fit::FitSpec::new(method, Relation::MSigma.default_pivot());
+        outcome.fit = crate::fit::fit(&outcome.sample.points, &spec);
+        outcome.spec = Ok(spec);
+        outcome
+    }
+
+    #[test]
+    fn a_fit_row_quotes_each_parameter_with_its_interval() {
+        let outcome = fitted(crate::fit::Method::Structural);
+        let fit = outcome.fit.as_ref().unwrap();
+        let row = fit_table_row(&outcome, &Relation::MSigma);
+        let cells: Vec<&str> = row.row.trim_end_matches(" \\\\").split(" & ").collect();
+        assert_eq!(cells.len(), 8, "{}", row.row);
+        assert_eq!(cells[1], "structural");
+        assert_eq!(cells[2], "24 (0)");
+        assert_eq!(cells[5], "\\nodata", "a line has no γ");
+        for (cell, name) in [(cells[3], "alpha"), (cells[4], "beta"), (cells[6], "eps")] {
+            let iv = fit.intervals.get(name).unwrap();
+            assert!(cell.contains("^{+") || cell.contains("\\pm"), "{name}: {cell}");
+            // The value written is the estimate rounded to the interval's precision.
+            let value: f64 = cell
+                .trim_start_matches('$')
+                .split(|c| c == '^' || c == ' ')
+                .next()
+                .unwrap()
+                .parse()
+                .unwrap();
+            assert!((value - iv.estimate).abs() <= 0.05 * iv.error, "{name}: {cell} vs {iv:?}");
+        }
+        assert!(row.notes.is_empty());
+    }
+
+    #[test]
+    fn an_estimate_without_an_interval_gets_a_table_note() {
+        let outcome = fitted(crate::fit::Method::Fitexy);
+        let row = fit_table_row(&outcome, &Relation::MSigma);
+        let eps = row.row.split(" & ").nth(6).unwrap();
+        assert!(eps.ends_with("$\\tablenotemark{a}"), "{}", row.row);
+        assert_eq!(row.notes.len(), 1, "{:?}", row.notes);
+        assert!(row.notes[0].contains("$\\chi$$^2$/dof = 1"), "{:?}", row.notes);
+        assert!(row.row.contains("& FITEXY &"), "{}", row.row);
     }
 
     #[test]

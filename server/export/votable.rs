@@ -387,14 +387,10 @@ fn catalog_field(name: &str) -> (Datatype, &'static str, &'static str, &'static 
     }
 }
 
-/// The adopted catalog as a VOTable: the columns of the catalog CSV (`csv_io::COLUMNS`), then
-/// the stored canonical numbers (log10 value and its errors in dex, the upper-limit flag),
-/// one measurement a row, with the catalog version as INFO.
-///
-/// # Errors
-/// As [`write_votable`].
-pub fn catalog_votable(rows: &[CatalogRow], version: i64) -> anyhow::Result<String> {
-    let mut fields: Vec<Field<'_>> = COLUMNS
+/// The FIELDs of the catalog VOTable: the catalog CSV's columns (`csv_io::COLUMNS`), then the
+/// stored canonical numbers.
+pub fn catalog_fields() -> Vec<Field<'static>> {
+    let mut fields: Vec<Field<'static>> = COLUMNS
         .iter()
         .map(|name| {
             let (datatype, unit, ucd, description) = catalog_field(name);
@@ -437,6 +433,17 @@ pub fn catalog_votable(rows: &[CatalogRow], version: i64) -> anyhow::Result<Stri
             description: "Whether the value is an upper limit",
         },
     ]);
+    fields
+}
+
+/// The adopted catalog as a VOTable: the columns of the catalog CSV (`csv_io::COLUMNS`), then
+/// the stored canonical numbers (log10 value and its errors in dex, the upper-limit flag),
+/// one measurement a row, with the catalog version as INFO.
+///
+/// # Errors
+/// As [`write_votable`].
+pub fn catalog_votable(rows: &[CatalogRow], version: i64) -> anyhow::Result<String> {
+    let fields = catalog_fields();
     let table_rows = rows.iter().map(|r| {
         let mut tds: Vec<Td<'_>> = COLUMNS
             .iter()
