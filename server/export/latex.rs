@@ -202,7 +202,9 @@ pub fn fit_table_row(outcome: &FitOutcome, relation: &Relation) -> FitTableRow {
                     ));
                     format!(
                         "{}\\tablenotemark{{{mark}}}",
-                        value_math(&rounded_column(&[Uncertain::symmetric(iv.estimate, 0.0)], 3)[0])
+                        value_math(
+                            &rounded_column(&[Uncertain::symmetric(iv.estimate, 0.0)], 3)[0]
+                        )
                     )
                 }
             })
@@ -262,10 +264,7 @@ pub fn fit_tex_file(outcome: &FitOutcome, relation: &Relation) -> String {
 /// The head and unit of a sample column in the LaTeX table.
 fn column_head(column: &Column, relation: &Relation) -> (String, String) {
     match column.name.as_str() {
-        "log_sigma" => (
-            "$\\log\\sigma$".to_owned(),
-            "(km\\,s$^{-1}$)".to_owned(),
-        ),
+        "log_sigma" => ("$\\log\\sigma$".to_owned(), "(km\\,s$^{-1}$)".to_owned()),
         "log_mbulge" => (
             "$\\log M_{\\rm bulge}$".to_owned(),
             "($M_\\odot$)".to_owned(),
@@ -291,10 +290,8 @@ pub fn sample_table(outcome: &FitOutcome, relation: &Relation) -> String {
     let columns: Vec<Column> = super::sample::written_columns(relation)
         .into_iter()
         .filter(|c| {
-            matches!(
-                c.name.as_str(),
-                "log_sigma" | "log_mbulge" | "log_mbh"
-            ) || c.name.starts_with("log_l_")
+            matches!(c.name.as_str(), "log_sigma" | "log_mbulge" | "log_mbh")
+                || c.name.starts_with("log_l_")
         })
         .collect();
     // The references, numbered in order of first use.
@@ -331,12 +328,9 @@ pub fn sample_table(outcome: &FitOutcome, relation: &Relation) -> String {
                 .iter()
                 .zip(&sample.members)
                 .map(|(p, m)| match c.name.as_str() {
-                    "log_mbh" => Uncertain::asymmetric(
-                        p.y,
-                        m.mbh_err_dex.0,
-                        m.mbh_err_dex.1,
-                        p.upper_limit,
-                    ),
+                    "log_mbh" => {
+                        Uncertain::asymmetric(p.y, m.mbh_err_dex.0, m.mbh_err_dex.1, p.upper_limit)
+                    }
                     "log_mbulge" if relation.shape() == Shape::Plane => {
                         Uncertain::symmetric(p.x2.unwrap_or(f64::NAN), p.x2_err)
                     }
@@ -450,7 +444,10 @@ mod tests {
             one(Uncertain::asymmetric(8.3214, 0.051, 0.049, false)),
             "$8.321^{+0.049}_{-0.051}$"
         );
-        assert_eq!(one(Uncertain::symmetric(8.3214, 0.05)), "$8.321 \\pm 0.050$");
+        assert_eq!(
+            one(Uncertain::symmetric(8.3214, 0.05)),
+            "$8.321 \\pm 0.050$"
+        );
         assert_eq!(
             one(Uncertain::asymmetric(-0.3, 0.11, 0.114, false)),
             "$-0.30 \\pm 0.11$"
@@ -530,7 +527,10 @@ mod tests {
         assert_eq!(cells[5], "\\nodata", "a line has no γ");
         for (cell, name) in [(cells[3], "alpha"), (cells[4], "beta"), (cells[6], "eps")] {
             let iv = fit.intervals.get(name).unwrap();
-            assert!(cell.contains("^{+") || cell.contains("\\pm"), "{name}: {cell}");
+            assert!(
+                cell.contains("^{+") || cell.contains("\\pm"),
+                "{name}: {cell}"
+            );
             // The value written is the estimate rounded to the interval's precision.
             let value: f64 = cell
                 .trim_start_matches('$')
@@ -539,7 +539,10 @@ mod tests {
                 .unwrap()
                 .parse()
                 .unwrap();
-            assert!((value - iv.estimate).abs() <= 0.05 * iv.error, "{name}: {cell} vs {iv:?}");
+            assert!(
+                (value - iv.estimate).abs() <= 0.05 * iv.error,
+                "{name}: {cell} vs {iv:?}"
+            );
         }
         assert!(row.notes.is_empty());
     }
@@ -551,14 +554,24 @@ mod tests {
         let eps = row.row.split(" & ").nth(6).unwrap();
         assert!(eps.ends_with("$\\tablenotemark{a}"), "{}", row.row);
         assert_eq!(row.notes.len(), 1, "{:?}", row.notes);
-        assert!(row.notes[0].contains("$\\chi$$^2$/dof = 1"), "{:?}", row.notes);
+        assert!(
+            row.notes[0].contains("$\\chi$$^2$/dof = 1"),
+            "{:?}",
+            row.notes
+        );
         assert!(row.row.contains("& FITEXY &"), "{}", row.row);
     }
 
     #[test]
     fn a_sample_that_cannot_be_fitted_gives_a_row_with_a_note() {
         let row = fit_table_row(&small_outcome(), &Relation::MSigma);
-        assert!(row.row.starts_with("$M_{\\rm BH}$--$\\sigma$ & structural & 2 (1) & \\nodata\\tablenotemark{a}"), "{}", row.row);
+        assert!(
+            row.row.starts_with(
+                "$M_{\\rm BH}$--$\\sigma$ & structural & 2 (1) & \\nodata\\tablenotemark{a}"
+            ),
+            "{}",
+            row.row
+        );
         assert!(row.row.ends_with("$200$~km\\,s$^{-1}$ \\\\"), "{}", row.row);
         assert_eq!(row.notes.len(), 1);
         assert!(row.notes[0].starts_with("\\tablenotetext{a}{No fit"));

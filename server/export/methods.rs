@@ -12,16 +12,16 @@ use crate::units::Quantity;
 fn estimator_sentence(method: Method) -> &'static str {
     match method {
         Method::Structural => {
-            "We fitted it with the structural maximum-likelihood estimator of Kelly (2007, ApJ 665, 1489), which models the distribution of the true host property, takes measurement errors on both axes, an intrinsic scatter ε in log M_BH at fixed host property, and upper limits on M_BH as censored terms."
+            "We used the structural maximum-likelihood estimator of Kelly (2007, ApJ 665, 1489), which models the distribution of the true host property, takes measurement errors on both axes, an intrinsic scatter ε in log M_BH at fixed host property, and upper limits on M_BH as censored terms."
         }
         Method::Conditional => {
-            "We fitted it by maximising the likelihood of log M_BH given the observed host property, with measurement errors on both axes carried through the slope, an intrinsic scatter ε in log M_BH and upper limits on M_BH as censored terms (the likelihood behind Gültekin et al. 2009, ApJ 698, 198)."
+            "We maximised the likelihood of log M_BH given the observed host property, with measurement errors on both axes carried through the slope, an intrinsic scatter ε in log M_BH and upper limits on M_BH as censored terms (the likelihood behind Gültekin et al. 2009, ApJ 698, 198)."
         }
         Method::Fitexy => {
-            "We fitted it with the modified FITEXY estimator (Press et al. 1992; Tremaine et al. 2002, ApJ 574, 740), which minimises χ² with errors on both axes and sets the intrinsic scatter ε so that the reduced χ² is one; it takes no upper limits."
+            "We used the modified FITEXY estimator (Press et al. 1992; Tremaine et al. 2002, ApJ 574, 740), which minimises χ² with errors on both axes and sets the intrinsic scatter ε so that the reduced χ² is one; it takes no upper limits."
         }
         Method::Bces(_) => {
-            "We fitted it with the BCES moment estimators (Akritas & Bershady 1996, ApJ 470, 706), which allow for errors on both axes, their covariance and intrinsic scatter; they take no upper limits."
+            "We used the BCES moment estimators (Akritas & Bershady 1996, ApJ 470, 706), which allow for errors on both axes, their covariance and intrinsic scatter; they take no upper limits."
         }
     }
 }
@@ -31,10 +31,7 @@ fn equation(relation: &Relation, outcome: &FitOutcome) -> String {
     let (pivot, pivot2) = pivots_of(outcome);
     let term = |quantity: Quantity, log_pivot: f64| -> String {
         match quantity {
-            Quantity::VelocityDispersion => format!(
-                "log10(σ / {:.0} km/s)",
-                10f64.powf(log_pivot)
-            ),
+            Quantity::VelocityDispersion => format!("log10(σ / {:.0} km/s)", 10f64.powf(log_pivot)),
             Quantity::BulgeLuminosity => {
                 let band = match relation {
                     Relation::Luminosity(b) => b.as_str(),
@@ -77,7 +74,11 @@ pub fn methods_paragraph(outcome: &FitOutcome, relation: &Relation) -> String {
         relation.label(),
         equation(relation, outcome),
         count(sample.members.len(), "galaxy", "galaxies"),
-        count(sample.n_detections(), "black-hole mass measurement", "black-hole mass measurements"),
+        count(
+            sample.n_detections(),
+            "black-hole mass measurement",
+            "black-hole mass measurements"
+        ),
         count(sample.n_limits(), "upper limit", "upper limits"),
         outcome.key.catalog_version,
     )];
@@ -99,11 +100,7 @@ pub fn methods_paragraph(outcome: &FitOutcome, relation: &Relation) -> String {
         ));
     }
     if sample.left_out_limits > 0 {
-        left_out.push(count(
-            sample.left_out_limits,
-            "upper limit",
-            "upper limits",
-        ));
+        left_out.push(count(sample.left_out_limits, "upper limit", "upper limits"));
     }
     if !left_out.is_empty() {
         parts.push(format!(
@@ -141,7 +138,10 @@ mod tests {
     fn the_paragraph_names_sample_estimator_distances_and_version() {
         let outcome = small_outcome();
         let text = methods_paragraph(&outcome, &Relation::MSigma);
-        assert!(text.contains("to 3 galaxies (2 black-hole mass measurements and 1 upper limit)"), "{text}");
+        assert!(
+            text.contains("to 3 galaxies (2 black-hole mass measurements and 1 upper limit)"),
+            "{text}"
+        );
         assert!(text.contains("version 7 of the massline catalog"), "{text}");
         assert!(text.contains("log10(σ / 200 km/s)"), "{text}");
         assert!(text.contains("Kelly (2007, ApJ 665, 1489)"), "{text}");

@@ -90,7 +90,9 @@ fn x_names(relation: &Relation) -> (String, &'static str, &'static str, String) 
             format!("log_l_{}", band.to_lowercase()),
             "phys.luminosity",
             "stat.error;phys.luminosity",
-            format!("bulge luminosity in the {band} band in solar luminosities, at the adopted distance"),
+            format!(
+                "bulge luminosity in the {band} band in solar luminosities, at the adopted distance"
+            ),
         ),
     }
 }
@@ -356,7 +358,11 @@ pub(crate) mod tests {
         );
         // A name that a spreadsheet would take for a formula gets its quote.
         assert!(lines[2].starts_with("'=Galaxy Two,"), "{}", lines[2]);
-        assert!(lines[3].ends_with(",7.1234,0.0000,0.000000,1"), "{}", lines[3]);
+        assert!(
+            lines[3].ends_with(",7.1234,0.0000,0.000000,1"),
+            "{}",
+            lines[3]
+        );
         assert_eq!(lines.len(), 4);
     }
 

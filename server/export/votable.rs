@@ -135,15 +135,16 @@ pub fn write_votable<'r>(
         ("xmlns:xsi", "http://www.w3.org/2001/XMLSchema-instance"),
         ("xsi:schemaLocation", SCHEMA_LOCATION),
     ])))?;
-    w.write_event(Event::Start(BytesStart::new("RESOURCE").with_attributes([("type", "results")])))?;
+    w.write_event(Event::Start(
+        BytesStart::new("RESOURCE").with_attributes([("type", "results")]),
+    ))?;
     w.write_event(Event::Start(BytesStart::new("TABLE")))?;
     w.create_element("DESCRIPTION")
         .write_text_content(BytesText::new(&xml_text(description)))?;
     for i in infos {
-        let element = w.create_element("INFO").with_attributes([
-            ("name", i.name),
-            ("value", xml_text(&i.value).as_ref()),
-        ]);
+        let element = w
+            .create_element("INFO")
+            .with_attributes([("name", i.name), ("value", xml_text(&i.value).as_ref())]);
         if i.text.is_empty() {
             element.write_empty()?;
         } else {
@@ -230,14 +231,14 @@ pub fn fit_infos(outcome: &FitOutcome, relation: &Relation) -> Vec<Info> {
         info(
             "pivot_log",
             pivot,
-            format!("Pivot x0 of x, log10 ({})", relation.x_unit()),
+            format!("Pivot x0 of x ({})", relation.x_unit()),
         ),
     ];
     if relation.shape() == Shape::Plane {
         infos.push(info(
             "pivot2_log",
             pivot2,
-            "Pivot of the bulge mass, log10 (M☉)",
+            "Pivot of the bulge mass (log10 M☉)",
         ));
     }
     infos.push(info(
@@ -362,7 +363,12 @@ fn catalog_field(name: &str) -> (Datatype, &'static str, &'static str, &'static 
         "method" => (Char, "", "meta.code", "Measurement method"),
         "sigma_definition" => (Char, "", "meta.code", "σ definition (sigma_e or sigma_c)"),
         "aperture" => (UnicodeChar, "", "meta.note", "Aperture of σ, as entered"),
-        "band" => (Char, "", "instr.bandpass", "Photometric band of a luminosity"),
+        "band" => (
+            Char,
+            "",
+            "instr.bandpass",
+            "Photometric band of a luminosity",
+        ),
         "source_distance_mpc" => (
             Double,
             "Mpc",
@@ -582,7 +588,10 @@ pub(crate) mod tests {
             assert_eq!(row.len(), doc.fields.len());
             assert_eq!(row[column("galaxy")], m.name);
             assert_eq!(row[column("log_sigma")].parse::<f64>().unwrap(), p.x);
-            assert_eq!(row[column("log_sigma_err")].parse::<f64>().unwrap(), p.x_err);
+            assert_eq!(
+                row[column("log_sigma_err")].parse::<f64>().unwrap(),
+                p.x_err
+            );
             assert_eq!(row[column("log_mbh")].parse::<f64>().unwrap(), p.y);
             assert_eq!(row[column("log_mbh_err")].parse::<f64>().unwrap(), p.y_err);
             assert_eq!(row[column("xy_cov")].parse::<f64>().unwrap(), p.xy_cov);

@@ -324,8 +324,14 @@ pub fn build_sample(
                 (0.0, 0.0)
             } else {
                 (
-                    with_distance(row.mbh_err_minus_dex.or(row.mbh_err_dex).unwrap_or(0.0), kind_y),
-                    with_distance(row.mbh_err_plus_dex.or(row.mbh_err_dex).unwrap_or(0.0), kind_y),
+                    with_distance(
+                        row.mbh_err_minus_dex.or(row.mbh_err_dex).unwrap_or(0.0),
+                        kind_y,
+                    ),
+                    with_distance(
+                        row.mbh_err_plus_dex.or(row.mbh_err_dex).unwrap_or(0.0),
+                        kind_y,
+                    ),
                 )
             },
             mbh_reference: row.mbh_reference.clone().unwrap_or_default(),

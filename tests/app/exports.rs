@@ -158,8 +158,7 @@ async fn the_demo_sample_and_catalog_votables_read_back_with_units_and_ucds() {
 }
 
 #[tokio::test]
-async fn the_demo_sample_tex_has_one_row_per_galaxy_of_the_fit_and_the_methods_name_the_version()
-{
+async fn the_demo_sample_tex_has_one_row_per_galaxy_of_the_fit_and_the_methods_name_the_version() {
     let app = spawn_demo_app().await;
     let reply = app
         .get_with_token("/relations/m_sigma/sample.tex", None)
@@ -179,12 +178,21 @@ async fn the_demo_sample_tex_has_one_row_per_galaxy_of_the_fit_and_the_methods_n
     assert!(rows.iter().all(|r| r.matches(" & ").count() == columns));
     // The demo has upper limits in its M–σ sample (seed-data/README.md).
     assert!(rows.iter().any(|r| r.contains("$<")), "{tex}");
-    assert!(tex.contains("\\tablecomments{massline catalog version 1."), "{tex}");
+    assert!(
+        tex.contains("\\tablecomments{massline catalog version 1."),
+        "{tex}"
+    );
 
     let row = app.ok("/relations/m_sigma/fit.tex").await;
-    assert!(row.contains("$M_{\\rm BH}$--$\\sigma$ & structural & "), "{row}");
+    assert!(
+        row.contains("$M_{\\rm BH}$--$\\sigma$ & structural & "),
+        "{row}"
+    );
     let methods = app.ok("/relations/m_sigma/methods.txt").await;
-    assert!(methods.contains("version 1 of the massline catalog"), "{methods}");
+    assert!(
+        methods.contains("version 1 of the massline catalog"),
+        "{methods}"
+    );
     assert!(
         methods.contains(&format!("to {} galaxies", slugs.len())),
         "{methods}"
@@ -237,7 +245,10 @@ async fn astropy_reads_the_demo_votables_with_their_units_ucds_and_rows() {
     ]);
     let expected_path = dir.path().join("expected.json");
     std::fs::write(&expected_path, expected.to_string()).unwrap();
-    let script = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/read_votable.py");
+    let script = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/reference/read_votable.py"
+    );
     let out = Command::new("python3")
         .arg(script)
         .arg(&expected_path)
@@ -294,11 +305,7 @@ async fn pdflatex_compiles_the_demo_fit_rows_and_sample_table_with_aastex() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("exports.tex"), &document).unwrap();
     let out = Command::new("pdflatex")
-        .args([
-            "-interaction=nonstopmode",
-            "-halt-on-error",
-            "exports.tex",
-        ])
+        .args(["-interaction=nonstopmode", "-halt-on-error", "exports.tex"])
         .current_dir(dir.path())
         .stdin(Stdio::null())
         .output()
@@ -312,5 +319,8 @@ async fn pdflatex_compiles_the_demo_fit_rows_and_sample_table_with_aastex() {
             .collect::<Vec<_>>()
             .join("\n")
     );
-    assert!(!log.contains("Missing character"), "a character the font lacks");
+    assert!(
+        !log.contains("Missing character"),
+        "a character the font lacks"
+    );
 }
