@@ -534,7 +534,7 @@ mod tests {
             // The value written is the estimate rounded to the interval's precision.
             let value: f64 = cell
                 .trim_start_matches('$')
-                .split(|c| c == '^' || c == ' ')
+                .split(['^', ' '])
                 .next()
                 .unwrap()
                 .parse()

@@ -502,6 +502,13 @@ pub(crate) mod tests {
         pub(crate) rows: Vec<Vec<String>>,
     }
 
+    /// Asserts that a TD's text reads back to exactly `value` (the same bits).
+    #[track_caller]
+    fn assert_same(text: &str, value: f64) {
+        let read: f64 = text.parse().unwrap_or_else(|e| panic!("{text:?}: {e}"));
+        assert_eq!(read.to_bits(), value.to_bits(), "{text} vs {value}");
+    }
+
     pub(crate) fn read_back(text: &str) -> ReadBack {
         let mut reader = Reader::from_str(text);
         let mut out = ReadBack::default();
@@ -587,14 +594,11 @@ pub(crate) mod tests {
         {
             assert_eq!(row.len(), doc.fields.len());
             assert_eq!(row[column("galaxy")], m.name);
-            assert_eq!(row[column("log_sigma")].parse::<f64>().unwrap(), p.x);
-            assert_eq!(
-                row[column("log_sigma_err")].parse::<f64>().unwrap(),
-                p.x_err
-            );
-            assert_eq!(row[column("log_mbh")].parse::<f64>().unwrap(), p.y);
-            assert_eq!(row[column("log_mbh_err")].parse::<f64>().unwrap(), p.y_err);
-            assert_eq!(row[column("xy_cov")].parse::<f64>().unwrap(), p.xy_cov);
+            assert_same(&row[column("log_sigma")], p.x);
+            assert_same(&row[column("log_sigma_err")], p.x_err);
+            assert_same(&row[column("log_mbh")], p.y);
+            assert_same(&row[column("log_mbh_err")], p.y_err);
+            assert_same(&row[column("xy_cov")], p.xy_cov);
             assert_eq!(
                 row[column("upper_limit")],
                 if p.upper_limit { "T" } else { "F" }
@@ -654,10 +658,10 @@ pub(crate) mod tests {
         assert_eq!(doc.rows.len(), 1);
         let row = &doc.rows[0];
         assert_eq!(row[0], "Galaxy & Co");
-        assert_eq!(row[4].parse::<f64>().unwrap(), 16.5);
+        assert_same(&row[4], 16.5);
         assert_eq!(row[5], "", "an empty number stays empty");
         assert_eq!(row[8], "2.4e8 +0.6e8/-0.5e8");
-        assert_eq!(row[20].parse::<f64>().unwrap(), rows[0].log_value);
+        assert_same(&row[20], rows[0].log_value);
         assert_eq!(row[23], "F");
         assert_eq!(doc.infos, [("catalog_version".to_owned(), "3".to_owned())]);
         for f in &doc.fields {
