@@ -37,8 +37,8 @@ pub enum ExportFormat {
     Csv,
     /// The same rows as JSON, stamped with the catalog version and the time of export.
     Json,
-    /// The same rows as an IVOA VOTable 1.4 (`export::catalog_votable`), with units and UCDs;
-    /// for reading, not for import.
+    /// The same rows as an IVOA VOTable 1.4, with units and UCDs, for astronomy software (not
+    /// for import).
     Votable,
 }
 
@@ -209,5 +209,35 @@ mod tests {
             format!("importing [{}] 1000/1000 rows 100%", "#".repeat(30))
         );
         assert!(progress_line(0, 0).ends_with("100%"));
+    }
+
+    #[test]
+    fn the_votable_export_writes_a_row_per_adopted_measurement() {
+        let dir = tempfile::tempdir().unwrap();
+        let db_path = dir.path().join("catalog.db");
+        let runtime = tokio::runtime::Runtime::new().unwrap();
+        let csv_rows = runtime.block_on(async {
+            let pool = catalog::connect(&db_path).await.unwrap();
+            crate::catalog::demo::load_demo(&pool).await.unwrap();
+            let (text, _) = export_csv(&pool).await.unwrap();
+            pool.close().await;
+            csv::Reader::from_reader(text.as_bytes()).records().count()
+        });
+        drop(runtime);
+        let args = ExportArgs {
+            format: ExportFormat::Votable,
+            db_path,
+        };
+        let (mut out, mut err) = (Vec::new(), Vec::new());
+        run_export(&args, &mut out, &mut err).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(text.starts_with("<?xml version=\"1.0\""), "{text}");
+        assert!(csv_rows > 100, "the demo catalog has its rows");
+        assert_eq!(text.matches("<TR>").count(), csv_rows);
+        assert!(
+            String::from_utf8(err)
+                .unwrap()
+                .starts_with("exported catalog version ")
+        );
     }
 }
