@@ -132,6 +132,13 @@ pub enum AppError {
         /// One sentence, e.g. "There is no galaxy 'corvane-17'."
         message: String,
     },
+    /// 410: the thing named existed once but can no longer be served (a catalog version from
+    /// before the history began); the message says since when what is kept.
+    #[error("{message}")]
+    Gone {
+        /// One sentence, with what can be asked for instead.
+        message: String,
+    },
     /// 404: no page or endpoint answers at this path.
     #[error("There is no page at {path}.")]
     NoRoute {
@@ -410,6 +417,7 @@ impl AppError {
             Self::NotLoggedIn { .. } | Self::BadToken => StatusCode::UNAUTHORIZED,
             Self::Forbidden { .. } => StatusCode::FORBIDDEN,
             Self::NotFound { .. } | Self::NoRoute { .. } => StatusCode::NOT_FOUND,
+            Self::Gone { .. } => StatusCode::GONE,
             Self::MethodNotAllowed { .. } => StatusCode::METHOD_NOT_ALLOWED,
             Self::TooLarge { .. } | Self::BodyTooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
@@ -430,6 +438,21 @@ impl AppError {
             Self::Busy | Self::Unavailable => Some(2),
             Self::TooManyRequests { retry_after_s, .. } => Some(*retry_after_s),
             _ => None,
+        }
+    }
+}
+
+impl From<crate::catalog::history::VersionError> for AppError {
+    fn from(err: crate::catalog::history::VersionError) -> Self {
+        use crate::catalog::history::VersionError;
+        match err {
+            VersionError::Db(e) => e.into(),
+            VersionError::BeforeHistory { .. } => Self::Gone {
+                message: err.to_string(),
+            },
+            VersionError::NotYet { .. } | VersionError::NoRelease { .. } => {
+                Self::not_found_saying(err.to_string())
+            }
         }
     }
 }

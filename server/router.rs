@@ -262,6 +262,7 @@ pub fn build(state: AppState, doors: Vec<Door>) -> Router {
     );
     let app = app
         .fallback(no_route)
+        .layer(axum::middleware::from_fn(immutable))
         .layer(axum::middleware::from_fn_with_state(limits, limit_rate))
         .layer(axum::middleware::from_fn_with_state(
             state.clone(),
@@ -270,6 +271,59 @@ pub fn build(state: AppState, doors: Vec<Door>) -> Router {
         .layer(axum::middleware::from_fn(refuse_cross_site))
         .with_state(state);
     with_baseline(app, timeout, secure, renderers.into())
+}
+
+/// Marks an answer that never changes (a past catalog version's page or file): [`immutable`]
+/// gives it a strong `ETag` from its bytes and a year-long cache lifetime, and answers a
+/// matching `If-None-Match` with 304. A handler inserts it into the response's extensions.
+#[derive(Debug, Clone, Copy)]
+pub struct Immutable;
+
+/// The `Cache-Control` of an [`Immutable`] answer: private, because what a principal may read
+/// depends on who asks; a year, because the answer cannot change.
+pub const IMMUTABLE_CACHE_CONTROL: &str = "private, max-age=31536000, immutable";
+
+/// Largest answer [`immutable`] reads into memory to digest; a larger one keeps its body and
+/// goes without an `ETag` (no catalog answer comes near it).
+const IMMUTABLE_MAX_BYTES: usize = 256 * 1024 * 1024;
+
+/// The layer of [`Immutable`] answers (see there).
+pub async fn immutable(request: Request, next: Next) -> Response {
+    let if_none_match = request.headers().get(header::IF_NONE_MATCH).cloned();
+    let response = next.run(request).await;
+    if response.extensions().get::<Immutable>().is_none()
+        || response.status() != axum::http::StatusCode::OK
+    {
+        return response;
+    }
+    let (mut parts, body) = response.into_parts();
+    let Ok(bytes) = axum::body::to_bytes(body, IMMUTABLE_MAX_BYTES).await else {
+        return (
+            axum::http::StatusCode::INTERNAL_SERVER_ERROR,
+            "the answer could not be read",
+        )
+            .into_response();
+    };
+    use sha2::Digest as _;
+    let digest = hex::encode(sha2::Sha256::digest(&bytes));
+    let etag = format!("\"sha256-{digest}\"");
+    let matches = if_none_match.is_some_and(|v| {
+        v.to_str()
+            .is_ok_and(|v| v.split(',').any(|t| t.trim() == etag || t.trim() == "*"))
+    });
+    if let Ok(value) = HeaderValue::from_str(&etag) {
+        parts.headers.insert(header::ETAG, value);
+    }
+    parts.headers.insert(
+        header::CACHE_CONTROL,
+        HeaderValue::from_static(IMMUTABLE_CACHE_CONTROL),
+    );
+    if matches {
+        parts.status = axum::http::StatusCode::NOT_MODIFIED;
+        parts.headers.remove(header::CONTENT_LENGTH);
+        return Response::from_parts(parts, axum::body::Body::empty());
+    }
+    Response::from_parts(parts, axum::body::Body::from(bytes))
 }
 
 async fn no_route(request: Request) -> AppError {

@@ -42,6 +42,23 @@ impl AppState {
             pool: self.pool.clone(),
             fits: self.fits.clone(),
             soi_threshold: self.settings.soi_threshold,
+            pinned: None,
         }
+    }
+
+    /// The catalog at the version a request asks for (`?version=N`, `?release=NAME`, or the
+    /// current one), with the version resolved.
+    ///
+    /// # Errors
+    /// A version not made yet or from before the history, an unknown release, or a database
+    /// failure (`catalog::history::VersionError`).
+    pub async fn catalog_at(
+        &self,
+        ask: &crate::catalog::history::VersionAsk,
+    ) -> Result<(Catalog, crate::catalog::history::Pinned), crate::catalog::history::VersionError>
+    {
+        let pinned = crate::catalog::history::resolve(&self.pool, ask).await?;
+        let catalog = self.catalog().at(pinned.asked.then_some(pinned.version));
+        Ok((catalog, pinned))
     }
 }

@@ -45,6 +45,68 @@ pub type ApiResult<T> = Result<T, AppError>;
 pub const EMPTY_VALUE: &str =
     "The value is empty; leave the parameter out to mean any (or the default).";
 
+/// The query parameters that choose a catalog version, on every endpoint that reads the
+/// catalog (`catalog::history::VersionAsk`).
+#[derive(Debug, serde::Deserialize, utoipa::IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct VersionQuery {
+    /// A past catalog version (any since the history began); the current one when left out.
+    /// Answers for a past version never change: they carry a strong ETag and a year's cache
+    /// lifetime.
+    #[param(minimum = 0)]
+    pub version: Option<i64>,
+    /// A named release (see `/releases`), instead of `version`.
+    #[param(pattern = "^[A-Za-z0-9._-]{1,40}$")]
+    pub release: Option<String>,
+}
+
+/// The catalog version a request asks for and its other query pairs; `None` when it names
+/// none (the current catalog).
+///
+/// # Errors
+/// 422 for an unreadable version; 404 for a version not made yet or an unknown release; 410
+/// for a version older than the history.
+pub async fn asked_version(
+    state: &AppState,
+    pairs: Vec<(String, String)>,
+) -> ApiResult<(
+    Option<(crate::relations::Catalog, crate::catalog::history::Pinned)>,
+    Vec<(String, String)>,
+)> {
+    // As everywhere in the API, an empty value is refused rather than read as "any".
+    if let Some((key, _)) = pairs.iter().find(|(k, v)| {
+        crate::catalog::history::VERSION_PARAMS.contains(&k.as_str()) && v.trim().is_empty()
+    }) {
+        return Err(AppError::invalid(vec![crate::error::FieldError::new(
+            key.as_str(),
+            EMPTY_VALUE,
+        )]));
+    }
+    let (ask, rest) = crate::catalog::history::VersionAsk::split(pairs).map_err(|e| {
+        let field = if e.contains("'release'") {
+            "release"
+        } else {
+            "version"
+        };
+        AppError::invalid(vec![crate::error::FieldError::new(field, e)])
+    })?;
+    if ask == crate::catalog::history::VersionAsk::Current {
+        return Ok((None, rest));
+    }
+    Ok((Some(state.catalog_at(&ask).await?), rest))
+}
+
+/// Marks an answer for a past version as never changing ([`crate::router::Immutable`]).
+pub fn immutable_if_past(
+    pinned: &crate::catalog::history::Pinned,
+    mut response: Response,
+) -> Response {
+    if pinned.is_past() {
+        response.extensions_mut().insert(crate::router::Immutable);
+    }
+    response
+}
+
 /// The JSON API's door: every path under `/api/`.
 pub fn door() -> Door {
     Door {

@@ -53,6 +53,7 @@ impl Problem {
             AppError::BadToken => ("Unauthorized", error.to_string()),
             AppError::Forbidden { message } => ("Forbidden", message.clone()),
             AppError::NotFound { message } => ("Not found", message.clone()),
+            AppError::Gone { message } => ("No longer kept", message.clone()),
             AppError::NoRoute { .. } => (
                 "Not found",
                 "There is no such endpoint; /api/v1/openapi.json lists them.".to_owned(),

@@ -507,9 +507,13 @@ pub struct RelationFit {
     pub pivot2_log: Option<f64>,
     /// Catalog version the sample was read at.
     pub catalog_version: i64,
-    /// When the fit was made, RFC 3339 UTC.
+    /// When the fit was made, RFC 3339 UTC; for an answer at a named version (`version`,
+    /// `release`), when that version was made, so the answer never changes.
     #[schema(format = DateTime)]
     pub fitted_at: String,
+    /// The fit's identifier to cite (`/fits/{id}` shows it); derived from the relation,
+    /// estimator, sample, pivots, catalog version and fitting code.
+    pub fit_id: String,
     /// Detections in the sample.
     pub n_detections: usize,
     /// Upper limits in the sample.
@@ -546,6 +550,7 @@ impl RelationFit {
             pivot2_log: plane.then_some(pivot2),
             catalog_version: outcome.key.catalog_version,
             fitted_at: outcome.fitted_at.clone(),
+            fit_id: crate::relations::citation::fit_id(&outcome.key),
             n_detections: outcome.sample.n_detections(),
             n_limits: outcome.sample.n_limits(),
             left_out_sigma_definition: outcome.sample.left_out_sigma_definition,
@@ -646,16 +651,18 @@ pub async fn list_relations(
     params(
         ("relation" = String, Path, description = "Relation slug: m_sigma, m_mbulge, m_l_<band>, m_sigma_mbulge", example = "m_sigma"),
         FitQuery,
+        super::VersionQuery,
         ("If-None-Match" = Option<String>, Header, description = "An ETag of an earlier answer: 304 when the fit is unchanged"),
     ),
     responses(
         (status = 200, description = "The fit (or why there is none)", body = RelationFit,
             headers(("ETag" = String, description = "Catalog version and settings"))),
+        (status = 410, description = "A catalog version from before the history began", body = Problem, content_type = "application/problem+json"),
         (status = 304, description = "Unchanged since the ETag given in If-None-Match"),
         (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 404, description = "No such relation", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such relation, catalog version or release", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
@@ -668,7 +675,41 @@ pub async fn relation_fit(
     headers: HeaderMap,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> ApiResult<Response> {
-    let settings = read_fit_choice(&query_pairs(query)?)?;
+    let (pinned, pairs) = super::asked_version(&state, query_pairs(query)?).await?;
+    let settings = read_fit_choice(&pairs)?;
+    if let Some((catalog, pinned)) = pinned {
+        let bands = catalog.bands().await?;
+        let relation = Relation::from_slug(&slug, &bands)
+            .map_err(|e| AppError::not_found_saying(e.to_string()))?;
+        let canonical = settings.canonical(&relation);
+        let etag = entity_tag(pinned.version, &canonical);
+        if matches_if_none_match(&headers, &etag) {
+            return Ok(super::immutable_if_past(
+                &pinned,
+                tagged_bytes(&headers, &etag, Bytes::new()),
+            ));
+        }
+        let outcome = catalog
+            .fitted(
+                &relation,
+                settings.method,
+                &settings.filter,
+                settings.pivots(&relation),
+            )
+            .await?;
+        let mut answer = RelationFit::of(&relation, &settings, &outcome);
+        // A named version's answer is the same whenever it is asked for: its time is the
+        // version's, not this computation's.
+        answer.fitted_at = crate::catalog::history::made_at(&state.pool, pinned.version)
+            .await?
+            .unwrap_or_default();
+        answer.fit_id = crate::relations::citation::cite(&catalog, &outcome).await;
+        let body = Bytes::from(serde_json::to_vec(&answer).map_err(anyhow::Error::from)?);
+        return Ok(super::immutable_if_past(
+            &pinned,
+            tagged_bytes(&headers, &etag, body),
+        ));
+    }
     let relation = relation_named(&state, &slug).await?;
     let version = cache
         .catalog_version(&state.pool, &state.settings.db_path)
@@ -689,10 +730,9 @@ pub async fn relation_fit(
     } else {
         entity_tag(made_at, &canonical)
     };
-    let body = Bytes::from(
-        serde_json::to_vec(&RelationFit::of(&relation, &settings, &outcome))
-            .map_err(anyhow::Error::from)?,
-    );
+    let mut answer = RelationFit::of(&relation, &settings, &outcome);
+    answer.fit_id = crate::relations::citation::cite(&state.catalog(), &outcome).await;
+    let body = Bytes::from(serde_json::to_vec(&answer).map_err(anyhow::Error::from)?);
     cache.keep_answer(
         made_at,
         &canonical,

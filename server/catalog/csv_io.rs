@@ -713,6 +713,9 @@ async fn store_rows(
             }
         }
         ImportMode::Accepted => {
+            // First the version, so the history spans of what follows start at it
+            // (migration 8).
+            history::bump_version(tx).await?;
             let submission_id = galaxies::insert_submission(
                 tx,
                 None,
@@ -756,7 +759,6 @@ async fn store_rows(
                 }
             }
             galaxies::adopt_submission(tx, submission_id).await?;
-            history::bump_version(tx).await?;
             history::record(
                 tx,
                 &NewEvent {
@@ -911,25 +913,38 @@ async fn exported_fingerprint(
     }))
 }
 
-/// The adopted rows and the catalog version, read in one transaction so the two agree.
-async fn adopted_rows(pool: &SqlitePool) -> anyhow::Result<(Vec<ExportRow>, i64)> {
+/// The rows adopted at catalog version `version` (`None`: the current one), with the version
+/// and when it was made, read in one transaction so they agree. Read from the history
+/// (migration 8) whichever the version, so a version's export is the same whenever it is made.
+async fn adopted_rows(
+    pool: &SqlitePool,
+    version: Option<i64>,
+) -> anyhow::Result<(Vec<ExportRow>, i64, String)> {
     let mut tx = pool.begin().await?;
-    let version: i64 =
-        sqlx::query_scalar("select catalog_version from catalog_state where catalog_state_id = 1")
-            .fetch_one(&mut *tx)
-            .await?;
+    let version = match version {
+        Some(v) => v,
+        None => super::history::current_version(&mut *tx).await?,
+    };
+    let made_at = super::history::made_at(&mut *tx, version)
+        .await?
+        .unwrap_or_default();
     let rows: Vec<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
         "{EXPORT_SELECT}
-           from adopted_value a
+           from adopted_value_span a
            join measurement m on m.measurement_id = a.measurement_id
-           join galaxy g on g.galaxy_id = a.galaxy_id
+           join galaxy_span g on g.galaxy_id = a.galaxy_id
+          where a.valid_from_version <= ?1
+            and (a.valid_until_version is null or a.valid_until_version > ?1)
+            and g.valid_from_version <= ?1
+            and (g.valid_until_version is null or g.valid_until_version > ?1)
        order by g.name, case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
                                         when 'bulge_mass' then 2 else 3 end, m.band"
     )))
+    .bind(version)
     .fetch_all(&mut *tx)
     .await?;
     tx.commit().await?;
-    Ok((rows, version))
+    Ok((rows, version, made_at))
 }
 
 /// One adopted measurement as the catalog exports write it: its cells in [`COLUMNS`] order (the
@@ -948,13 +963,16 @@ pub struct CatalogRow {
     pub upper_limit: bool,
 }
 
-/// The adopted catalog's rows, as every catalog export writes them (the CSV and JSON here, the
-/// VOTable in `export`), and the catalog version they were read at.
+/// The rows adopted at `version` (`None`: the current one) as every catalog export writes them
+/// (the CSV and JSON here, the VOTable in `export`), and the catalog version they were read at.
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn adopted_catalog(pool: &SqlitePool) -> anyhow::Result<(Vec<CatalogRow>, i64)> {
-    let (rows, version) = adopted_rows(pool).await?;
+pub async fn adopted_catalog(
+    pool: &SqlitePool,
+    version: Option<i64>,
+) -> anyhow::Result<(Vec<CatalogRow>, i64)> {
+    let (rows, version, _) = adopted_rows(pool, version).await?;
     let rows = rows
         .iter()
         .map(|r| CatalogRow {
@@ -968,14 +986,15 @@ pub async fn adopted_catalog(pool: &SqlitePool) -> anyhow::Result<(Vec<CatalogRo
     Ok((rows, version))
 }
 
-/// The adopted catalog as CSV text in the import format, galaxies by name, and the catalog
+/// The catalog adopted at `version` (`None`: the current one) as CSV text in the import
+/// format, galaxies by name, and the catalog
 /// version it was read at (one read transaction, so the two agree). Each row carries its row
 /// key, so importing the export again adds nothing.
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn export_csv(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
-    let (rows, version) = adopted_rows(pool).await?;
+pub async fn export_csv(pool: &SqlitePool, version: Option<i64>) -> anyhow::Result<(String, i64)> {
+    let (rows, version, _) = adopted_rows(pool, version).await?;
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(COLUMNS)?;
     for r in &rows {
@@ -1003,7 +1022,7 @@ pub const JSON_FORMAT: &str = "massline-catalog";
 ///
 /// ```json
 /// {"format": "massline-catalog", "format_version": 1, "catalog_version": 7,
-///  "exported_at": "2026-12-02T04:00:00Z", "columns": ["galaxy", …, "row_key"],
+///  "catalog_version_made_at": "2026-12-02T04:00:00.000Z", "columns": ["galaxy", …, "row_key"],
 ///  "rows": [{"galaxy": "…", …, "row_key": "…",
 ///            "derived": {"log_value": 8.38, "err_minus_dex": 0.1, "err_plus_dex": 0.1,
 ///                        "upper_limit": false}}]}
@@ -1016,11 +1035,8 @@ pub const JSON_FORMAT: &str = "massline-catalog";
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn export_json(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
-    let (rows, version) = adopted_rows(pool).await?;
-    let exported_at = time::OffsetDateTime::now_utc()
-        .replace_nanosecond(0)?
-        .format(&time::format_description::well_known::Rfc3339)?;
+pub async fn export_json(pool: &SqlitePool, version: Option<i64>) -> anyhow::Result<(String, i64)> {
+    let (rows, version, made_at) = adopted_rows(pool, version).await?;
     let rows: Vec<serde_json::Value> = rows
         .iter()
         .map(|r| {
@@ -1045,7 +1061,7 @@ pub async fn export_json(pool: &SqlitePool) -> anyhow::Result<(String, i64)> {
         "format": JSON_FORMAT,
         "format_version": 1,
         "catalog_version": version,
-        "exported_at": exported_at,
+        "catalog_version_made_at": made_at,
         "columns": COLUMNS,
         "rows": rows,
     });
@@ -1167,7 +1183,7 @@ mod tests {
     async fn the_demo_catalog_exports_and_reimports_to_the_same_adopted_values() {
         let (_a, first) = temp_pool().await;
         load_demo(&first).await.unwrap();
-        let (text, version) = export_csv(&first).await.unwrap();
+        let (text, version) = export_csv(&first, None).await.unwrap();
         assert_eq!(version, 1);
         let (_b, second) = temp_pool().await;
         let mut calls = 0;
@@ -1179,7 +1195,7 @@ mod tests {
             report.measurements as i64,
             count(&first, "adopted_value").await
         );
-        let (again, version2) = export_csv(&second).await.unwrap();
+        let (again, version2) = export_csv(&second, None).await.unwrap();
         assert_eq!(again, text, "export → import → export is the identity");
         assert_eq!(version2, 1);
         // The adopted canonical values agree to the bit (the same text, the same parser).
@@ -1601,7 +1617,7 @@ mod tests {
         import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
             .await
             .unwrap();
-        let (exported, _) = export_csv(&first).await.unwrap();
+        let (exported, _) = export_csv(&first, None).await.unwrap();
         for secret in ["7:", "client-key-123", "member1", "private-batch"] {
             assert!(!exported.contains(secret), "{secret} in {exported}");
         }
@@ -1623,7 +1639,7 @@ mod tests {
         import_csv(&second, &exported, ImportMode::Accepted, &mut |_, _| {})
             .await
             .unwrap();
-        assert_eq!(export_csv(&second).await.unwrap().0, exported);
+        assert_eq!(export_csv(&second, None).await.unwrap().0, exported);
         let twice = import_csv(&second, &exported, ImportMode::Accepted, &mut |_, _| {})
             .await
             .unwrap();
@@ -1636,7 +1652,7 @@ mod tests {
         let path = dir.path().join("t.sqlite");
         let pool = crate::catalog::connect(&path).await.unwrap();
         load_demo(&pool).await.unwrap();
-        let (before, _) = export_csv(&pool).await.unwrap();
+        let (before, _) = export_csv(&pool, None).await.unwrap();
         sqlx::query("update measurement set row_key_digest = null")
             .execute(&pool)
             .await
@@ -1695,7 +1711,7 @@ mod tests {
         import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
             .await
             .unwrap();
-        let (exported, _) = export_csv(&first).await.unwrap();
+        let (exported, _) = export_csv(&first, None).await.unwrap();
         let mut reader = csv::Reader::from_reader(exported.as_bytes());
         let header = reader.headers().unwrap().clone();
         for record in reader.records() {
@@ -1723,7 +1739,7 @@ mod tests {
         let b: Vec<(String, String)> = sqlx::query_as(q).fetch_all(&second).await.unwrap();
         assert_eq!(a, b);
         assert!(a.contains(&("@Invented 2031".to_owned(), "'=kept as typed".to_owned())));
-        assert_eq!(export_csv(&second).await.unwrap().0, exported);
+        assert_eq!(export_csv(&second, None).await.unwrap().0, exported);
         // Into the catalog it came from: nothing new.
         let again = import_csv(&first, &exported, ImportMode::Accepted, &mut |_, _| {})
             .await
@@ -1735,11 +1751,16 @@ mod tests {
     async fn the_json_export_is_stamped_and_reimports_to_the_same_catalog() {
         let (_a, first) = temp_pool().await;
         load_demo(&first).await.unwrap();
-        let (json, version) = export_json(&first).await.unwrap();
+        let (json, version) = export_json(&first, None).await.unwrap();
         let doc: serde_json::Value = serde_json::from_str(&json).unwrap();
         assert_eq!(doc["format"], JSON_FORMAT);
         assert_eq!(doc["catalog_version"], version);
-        assert!(doc["exported_at"].as_str().unwrap().ends_with('Z'));
+        assert!(
+            doc["catalog_version_made_at"]
+                .as_str()
+                .unwrap()
+                .ends_with('Z')
+        );
         let n_rows = doc["rows"].as_array().unwrap().len();
         assert_eq!(n_rows as i64, count(&first, "adopted_value").await);
         // Into an empty catalog: the same CSV export comes out of both.
@@ -1749,8 +1770,8 @@ mod tests {
             .unwrap();
         assert_eq!(report.measurements, n_rows);
         assert_eq!(
-            export_csv(&first).await.unwrap().0,
-            export_csv(&second).await.unwrap().0
+            export_csv(&first, None).await.unwrap().0,
+            export_csv(&second, None).await.unwrap().0
         );
         // Into the catalog it came from: nothing new, the version unchanged.
         let again = import_csv(&first, &json, ImportMode::Accepted, &mut |_, _| {})

@@ -60,6 +60,8 @@ pub async fn load_demo(pool: &SqlitePool) -> anyhow::Result<DemoLoad> {
         tx.rollback().await?;
         return Ok(DemoLoad::Skipped { existing });
     }
+    // First the version, so the history spans of what follows start at it (migration 8).
+    history::bump_version(&mut tx).await?;
     let submission_id = galaxies::insert_submission(
         &mut tx,
         None,
@@ -84,7 +86,6 @@ pub async fn load_demo(pool: &SqlitePool) -> anyhow::Result<DemoLoad> {
             galaxies::adopt(&mut tx, id).await?;
         }
     }
-    history::bump_version(&mut tx).await?;
     history::record(
         &mut tx,
         &NewEvent {

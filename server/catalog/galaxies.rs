@@ -336,6 +336,79 @@ pub async fn insert_measurement(
     .await
 }
 
+/// A galaxy's new adopted distance.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewDistance {
+    /// Distance, Mpc.
+    pub distance_mpc: f64,
+    /// Its 1-σ error, Mpc.
+    pub distance_err_mpc: f64,
+    /// Stored distance-method word.
+    pub distance_method: String,
+}
+
+/// Adopt a new distance for a galaxy: a new catalog version (bumped first, so the history span
+/// of the new distance starts at it), the galaxy's row updated (the old distance stays in the
+/// history, migration 8) and an audit event `distance_changed` naming old and new, with the
+/// note. Returns the new catalog version, or None when the galaxy does not exist.
+///
+/// # Errors
+/// Any database error (a distance outside the schema's range fails its CHECK).
+pub async fn change_distance(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    galaxy_id: i64,
+    new: &NewDistance,
+    note: &str,
+) -> sqlx::Result<Option<i64>> {
+    let mut tx = super::begin_write(pool).await?;
+    let old: Option<(String, f64, f64, String)> = sqlx::query_as(
+        "select name, distance_mpc, distance_err_mpc, distance_method from galaxy where galaxy_id = ?",
+    )
+    .bind(galaxy_id)
+    .fetch_optional(&mut *tx)
+    .await?;
+    let Some((name, old_d, old_err, old_method)) = old else {
+        return Ok(None);
+    };
+    let version = super::history::bump_version(&mut tx).await?;
+    sqlx::query(
+        "update galaxy set distance_mpc = ?, distance_err_mpc = ?, distance_method = ?,
+                updated_at = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')
+          where galaxy_id = ?",
+    )
+    .bind(new.distance_mpc)
+    .bind(new.distance_err_mpc)
+    .bind(&new.distance_method)
+    .bind(galaxy_id)
+    .execute(&mut *tx)
+    .await?;
+    let note = note.trim();
+    super::history::record(
+        &mut tx,
+        &super::history::NewEvent {
+            account_id,
+            action: "distance_changed",
+            entity: "galaxy",
+            entity_id: Some(galaxy_id),
+            summary: format!(
+                "Distance of {name}: {old_d} ± {old_err} Mpc ({old_method}) → {} ± {} Mpc ({}).{}",
+                new.distance_mpc,
+                new.distance_err_mpc,
+                new.distance_method,
+                if note.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {}", note.chars().take(500).collect::<String>())
+                }
+            ),
+        },
+    )
+    .await?;
+    tx.commit().await?;
+    Ok(Some(version))
+}
+
 /// Make a measurement the adopted value for its galaxy, quantity and band (replacing any other).
 ///
 /// # Errors
@@ -638,6 +711,60 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
     )
     .bind(slug)
     .fetch_optional(pool)
+    .await
+}
+
+/// A galaxy as it stood at catalog version `version` (its properties from the history,
+/// migration 8), or None when it was not in the catalog then.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn find_by_slug_at(
+    pool: &SqlitePool,
+    slug: &str,
+    version: i64,
+) -> sqlx::Result<Option<Galaxy>> {
+    sqlx::query_as(
+        "select s.galaxy_id, s.name, s.slug, s.morphology, s.bulge_kind, s.centre_kind,
+                s.distance_mpc, s.distance_err_mpc, s.distance_method
+           from galaxy g join galaxy_span s on s.galaxy_id = g.galaxy_id
+          where g.slug = ? and s.valid_from_version <= ?2
+            and (s.valid_until_version is null or s.valid_until_version > ?2)",
+    )
+    .bind(slug)
+    .bind(version)
+    .fetch_optional(pool)
+    .await
+}
+
+/// The measurements of a galaxy adopted at catalog version `version` (each marked adopted),
+/// in the order of [`measurements_of`]: what the catalog of that version held for it.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn measurements_adopted_at(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+    version: i64,
+) -> sqlx::Result<Vec<Measurement>> {
+    sqlx::query_as(
+        "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
+                m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
+                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
+                m.value_scale, s.state, 1 as adopted, m.created_at
+           from adopted_value_span a
+           join measurement m on m.measurement_id = a.measurement_id
+           join submission s on s.submission_id = m.submission_id
+          where a.galaxy_id = ?1 and a.valid_from_version <= ?2
+            and (a.valid_until_version is null or a.valid_until_version > ?2)
+       order by case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
+                                when 'bulge_mass' then 2 else 3 end,
+                m.band, m.measurement_id desc",
+    )
+    .bind(galaxy_id)
+    .bind(version)
+    .fetch_all(pool)
     .await
 }
 

@@ -72,16 +72,36 @@ pub struct LuminosityRow {
     pub source_distance_mpc: Option<f64>,
 }
 
-/// Every galaxy with its adopted black-hole mass, σ and bulge mass, ordered by name.
+/// `alias` is in force at version `?1`: the span condition of migration 8.
+macro_rules! held_at {
+    ($alias:literal) => {
+        concat!(
+            $alias,
+            ".valid_from_version <= ?1 and (",
+            $alias,
+            ".valid_until_version is null or ",
+            $alias,
+            ".valid_until_version > ?1)"
+        )
+    };
+}
+
+/// Every galaxy of catalog version `version`, with its properties and its adopted black-hole
+/// mass, σ and bulge mass as they stood at that version, ordered by name (read from the
+/// history spans, migration 8; the current version reads the same way, so a version's rows
+/// are the same whenever they are read). A galaxy is in from the version current when it was
+/// stored, with or without adopted values (a galaxy named by a pending submission has none).
 ///
 /// The catalog table filters, sorts and pages these rows in Rust, because some of its filters
-/// (sphere of influence resolved or not, values at the adopted distance) are computed there; a
-/// group's catalog of a few thousand rows is read in a few milliseconds.
+/// (sphere of influence resolved or not, values at the adopted distance) are computed there.
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn relation_rows(db: impl SqliteExecutor<'_>) -> sqlx::Result<Vec<RelationRow>> {
-    sqlx::query_as(
+pub async fn relation_rows_at(
+    db: impl SqliteExecutor<'_>,
+    version: i64,
+) -> sqlx::Result<Vec<RelationRow>> {
+    sqlx::query_as(concat!(
         "select g.galaxy_id, g.name, g.slug, g.morphology, g.bulge_kind, g.centre_kind,
                 g.distance_mpc, g.distance_err_mpc,
                 bh.log_value as log_mbh, bh.err_dex as mbh_err_dex,
@@ -93,30 +113,69 @@ pub async fn relation_rows(db: impl SqliteExecutor<'_>) -> sqlx::Result<Vec<Rela
                 sg.sigma_definition as sigma_definition,
                 bm.log_value as log_mbulge, bm.err_dex as mbulge_err_dex,
                 bm.method as mbulge_method, bm.source_distance_mpc as mbulge_source_distance_mpc
-           from galaxy g
-      left join adopted_value abh on abh.galaxy_id = g.galaxy_id and abh.quantity = 'bh_mass'
+           from galaxy_span g
+      left join adopted_value_span abh on abh.galaxy_id = g.galaxy_id and abh.quantity = 'bh_mass'
+                and ",
+        held_at!("abh"),
+        "
       left join measurement bh on bh.measurement_id = abh.measurement_id
-      left join adopted_value asg on asg.galaxy_id = g.galaxy_id and asg.quantity = 'sigma'
+      left join adopted_value_span asg on asg.galaxy_id = g.galaxy_id and asg.quantity = 'sigma'
+                and ",
+        held_at!("asg"),
+        "
       left join measurement sg on sg.measurement_id = asg.measurement_id
-      left join adopted_value abm on abm.galaxy_id = g.galaxy_id and abm.quantity = 'bulge_mass'
+      left join adopted_value_span abm on abm.galaxy_id = g.galaxy_id
+                and abm.quantity = 'bulge_mass' and ",
+        held_at!("abm"),
+        "
       left join measurement bm on bm.measurement_id = abm.measurement_id
-       order by g.name",
-    )
+          where ",
+        held_at!("g"),
+        "
+       order by g.name, g.galaxy_id"
+    ))
+    .bind(version)
     .fetch_all(db)
     .await
 }
 
-/// Every adopted bulge luminosity, by galaxy and band.
+/// Every bulge luminosity adopted at catalog version `version`, by galaxy and band.
 ///
 /// # Errors
 /// When the database cannot be read.
-pub async fn luminosity_rows(db: impl SqliteExecutor<'_>) -> sqlx::Result<Vec<LuminosityRow>> {
-    sqlx::query_as(
+pub async fn luminosity_rows_at(
+    db: impl SqliteExecutor<'_>,
+    version: i64,
+) -> sqlx::Result<Vec<LuminosityRow>> {
+    sqlx::query_as(concat!(
         "select m.galaxy_id, m.band, m.log_value, m.err_dex, m.source_distance_mpc
-           from adopted_value a join measurement m on m.measurement_id = a.measurement_id
-          where a.quantity = 'bulge_luminosity'
-       order by m.galaxy_id, m.band",
-    )
+           from adopted_value_span a join measurement m on m.measurement_id = a.measurement_id
+          where a.quantity = 'bulge_luminosity' and ",
+        held_at!("a"),
+        "
+       order by m.galaxy_id, m.band"
+    ))
+    .bind(version)
+    .fetch_all(db)
+    .await
+}
+
+/// The photometric bands with at least one bulge luminosity adopted at catalog version
+/// `version`, sorted.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn luminosity_bands_at(
+    db: impl SqliteExecutor<'_>,
+    version: i64,
+) -> sqlx::Result<Vec<String>> {
+    sqlx::query_scalar(concat!(
+        "select distinct band from adopted_value_span a
+          where a.quantity = 'bulge_luminosity' and ",
+        held_at!("a"),
+        " order by band"
+    ))
+    .bind(version)
     .fetch_all(db)
     .await
 }
@@ -153,8 +212,26 @@ pub struct RowsSnapshot {
 pub async fn snapshot(pool: &SqlitePool) -> sqlx::Result<RowsSnapshot> {
     let mut tx = pool.begin().await?;
     let version = super::history::current_version(&mut *tx).await?;
-    let rows = relation_rows(&mut *tx).await?;
-    let luminosities = luminosity_rows(&mut *tx).await?;
+    let rows = relation_rows_at(&mut *tx, version).await?;
+    let luminosities = luminosity_rows_at(&mut *tx, version).await?;
+    tx.commit().await?;
+    Ok(RowsSnapshot {
+        version,
+        rows,
+        luminosities,
+    })
+}
+
+/// The [`RowsSnapshot`] of a past (or the current) catalog version, from the history; the
+/// caller has checked that the version is one the history holds
+/// ([`super::history::resolve`]).
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn snapshot_at(pool: &SqlitePool, version: i64) -> sqlx::Result<RowsSnapshot> {
+    let mut tx = pool.begin().await?;
+    let rows = relation_rows_at(&mut *tx, version).await?;
+    let luminosities = luminosity_rows_at(&mut *tx, version).await?;
     tx.commit().await?;
     Ok(RowsSnapshot {
         version,

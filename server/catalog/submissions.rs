@@ -577,6 +577,8 @@ pub async fn accept(
     .bind(submission_id)
     .fetch_all(&mut *tx)
     .await?;
+    // First the version, so the history spans of what is adopted start at it (migration 8).
+    let version = history::bump_version(&mut tx).await?;
     let mut adopted = 0;
     for (id, has_adopted) in rows {
         if has_adopted == 1 && keep_old.contains(&id) {
@@ -587,7 +589,6 @@ pub async fn accept(
     }
     set_state(&mut tx, submission_id, SubmissionState::Accepted).await?;
     insert_review(&mut tx, submission_id, reviewer_id, "accepted", note).await?;
-    let version = history::bump_version(&mut tx).await?;
     history::record(
         &mut tx,
         &NewEvent {

@@ -48,6 +48,10 @@ pub struct ExportArgs {
     /// File format.
     #[arg(long, value_enum, default_value_t = ExportFormat::Csv)]
     pub format: ExportFormat,
+    /// Catalog version to export (any version since the history began); the current one
+    /// when left out.
+    #[arg(long)]
+    pub version: Option<i64>,
     /// SQLite database file.
     #[arg(long = "db", env = "MASSLINE_DB", default_value = DEFAULT_DB_PATH)]
     pub db_path: PathBuf,
@@ -172,11 +176,20 @@ pub fn run_export(
     let runtime = tokio::runtime::Runtime::new()?;
     runtime.block_on(async {
         let pool = catalog::connect(&args.db_path).await?;
+        let version = match args.version {
+            None => None,
+            Some(n) => Some(
+                catalog::history::resolve(&pool, &catalog::history::VersionAsk::Number(n))
+                    .await?
+                    .version,
+            ),
+        };
         let (text, version) = match args.format {
-            ExportFormat::Csv => export_csv(&pool).await?,
-            ExportFormat::Json => export_json(&pool).await?,
+            ExportFormat::Csv => export_csv(&pool, version).await?,
+            ExportFormat::Json => export_json(&pool, version).await?,
             ExportFormat::Votable => {
-                let (rows, version) = crate::catalog::csv_io::adopted_catalog(&pool).await?;
+                let (rows, version) =
+                    crate::catalog::csv_io::adopted_catalog(&pool, version).await?;
                 (crate::export::catalog_votable(&rows, version)?, version)
             }
         };
@@ -219,13 +232,14 @@ mod tests {
         let csv_rows = runtime.block_on(async {
             let pool = catalog::connect(&db_path).await.unwrap();
             crate::catalog::demo::load_demo(&pool).await.unwrap();
-            let (text, _) = export_csv(&pool).await.unwrap();
+            let (text, _) = export_csv(&pool, None).await.unwrap();
             pool.close().await;
             csv::Reader::from_reader(text.as_bytes()).records().count()
         });
         drop(runtime);
         let args = ExportArgs {
             format: ExportFormat::Votable,
+            version: None,
             db_path,
         };
         let (mut out, mut err) = (Vec::new(), Vec::new());

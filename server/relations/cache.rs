@@ -143,7 +143,12 @@ pub struct FitCache {
     /// version: what a page shows while the fit of a newer version is being computed.
     latest: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
     rows: Arc<tokio::sync::Mutex<Option<Arc<RowsSnapshot>>>>,
+    /// Rows of past versions asked for by number (`?version=N`), a few at a time.
+    past_rows: Arc<tokio::sync::Mutex<HashMap<i64, Arc<RowsSnapshot>>>>,
     drawn: Arc<Mutex<DrawnMap>>,
+    /// Fit identifiers this server has recorded (`relations::citation::cite`), so that showing
+    /// a fit again writes nothing.
+    cited: Arc<Mutex<std::collections::HashSet<String>>>,
     hold: Hold,
 }
 
@@ -165,6 +170,10 @@ fn unversioned(key: &FitKey) -> FitKey {
         ..key.clone()
     }
 }
+
+/// Most past versions whose rows are kept ([`FitCache::rows_at`]); beyond it the map starts
+/// afresh (rows of a past version are read again from the history, identical).
+const MAX_PAST_ROWS: usize = 4;
 
 /// Most entries of [`FitCache::latest`]; beyond it the map starts afresh.
 const MAX_LATEST: usize = 64;
@@ -351,6 +360,52 @@ impl FitCache {
         Ok(snapshot)
     }
 
+    /// The rows of catalog version `version` (`None`: the current one), from the history for a
+    /// past version; the caller has resolved the version (`catalog::history::resolve`).
+    ///
+    /// # Errors
+    /// When the database cannot be read.
+    pub async fn rows_at(
+        &self,
+        pool: &SqlitePool,
+        version: Option<i64>,
+    ) -> sqlx::Result<Arc<RowsSnapshot>> {
+        let Some(version) = version else {
+            return self.rows(pool).await;
+        };
+        if let Some(current) = self.rows.lock().await.as_ref()
+            && current.version == version
+        {
+            return Ok(current.clone());
+        }
+        let mut past = self.past_rows.lock().await;
+        if let Some(hit) = past.get(&version) {
+            return Ok(hit.clone());
+        }
+        let snapshot = Arc::new(relation_rows::snapshot_at(pool, version).await?);
+        if past.len() >= MAX_PAST_ROWS {
+            past.clear();
+        }
+        past.insert(version, snapshot.clone());
+        Ok(snapshot)
+    }
+
+    /// Whether `id` is cited for the first time by this server (and notes it).
+    pub fn first_citation(&self, id: &str) -> bool {
+        self.cited
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .insert(id.to_owned())
+    }
+
+    /// Forgets that `id` was cited (its record could not be written).
+    pub fn forget_citation(&self, id: &str) {
+        self.cited
+            .lock()
+            .unwrap_or_else(PoisonError::into_inner)
+            .remove(id);
+    }
+
     /// What `draw` draws from the fit `key` under the name `what` (e.g. the chart settings),
     /// drawn once per fit and kept while the fit's catalog version is current.
     pub fn drawn(&self, key: &FitKey, what: &str, draw: impl FnOnce() -> Drawn) -> Arc<Drawn> {
@@ -526,8 +581,9 @@ pub fn spec_for(
     }
 }
 
-/// The fit of `relation` with `method` over the galaxies `filter` selects, at the current
-/// catalog version: from the cache, or fitted now off the async runtime and cached.
+/// The fit of `relation` with `method` over the galaxies `filter` selects, at catalog version
+/// `version` (`None`: the current one; a past version is rebuilt from the history): from the
+/// cache, or fitted now off the async runtime and cached.
 ///
 /// # Errors
 /// When the database cannot be read or the fitting task fails; a fit that cannot be made
@@ -536,20 +592,12 @@ pub async fn fitted(
     pool: &SqlitePool,
     cache: &FitCache,
     soi_threshold: f64,
-    relation: &Relation,
-    method: Method,
-    filter: &SampleFilter,
-    pivots: (f64, f64),
+    choice: FitChoiceRef<'_>,
+    version: Option<i64>,
 ) -> anyhow::Result<Arc<FitOutcome>> {
-    fitted_within(
-        pool,
-        cache,
-        soi_threshold,
-        (relation, method, filter, pivots),
-        None,
-    )
-    .await?
-    .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))
+    fitted_within(pool, cache, soi_threshold, choice, None, version)
+        .await?
+        .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))
 }
 
 /// What selects a fit: the relation, the estimator, the sample and the pivots.
@@ -567,8 +615,9 @@ pub async fn fitted_within(
     soi_threshold: f64,
     (relation, method, filter, pivots): FitChoiceRef<'_>,
     wait: Option<Duration>,
+    version: Option<i64>,
 ) -> anyhow::Result<Result<Arc<FitOutcome>, FitKey>> {
-    let snapshot = cache.rows(pool).await?;
+    let snapshot = cache.rows_at(pool, version).await?;
     // Limits left out for an estimator that cannot use them: the same fit as asking for it.
     let filter = &filter.for_method(method);
     let key = FitKey::new(

@@ -23,6 +23,7 @@
 pub mod analysis;
 pub mod assess;
 mod cache;
+pub mod citation;
 mod defaults;
 mod filter;
 pub mod galaxy;
@@ -79,6 +80,9 @@ pub struct Catalog {
     pub fits: FitCache,
     /// θ_infl / resolution from which a sphere of influence counts as resolved.
     pub soi_threshold: f64,
+    /// The catalog version everything is read at: `None` for the current one, `Some(N)` for a
+    /// version a request named (`?version=N`, resolved by `catalog::history::resolve`).
+    pub pinned: Option<i64>,
 }
 
 impl Catalog {
@@ -99,12 +103,42 @@ impl Catalog {
             &self.pool,
             &self.fits,
             self.soi_threshold,
-            relation,
-            method,
-            filter,
-            pivots,
+            (relation, method, filter, pivots),
+            self.pinned,
         )
         .await
+    }
+
+    /// The same catalog read at a resolved version (`catalog::history::resolve`): `None` for
+    /// the current one.
+    #[must_use]
+    pub fn at(&self, version: Option<i64>) -> Catalog {
+        Catalog {
+            pinned: version,
+            ..self.clone()
+        }
+    }
+
+    /// The adopted rows at this catalog's version ([`FitCache::rows_at`]).
+    ///
+    /// # Errors
+    /// When the database cannot be read.
+    pub async fn rows(&self) -> sqlx::Result<Arc<crate::catalog::relation_rows::RowsSnapshot>> {
+        self.fits.rows_at(&self.pool, self.pinned).await
+    }
+
+    /// The photometric bands with an adopted bulge luminosity at this catalog's version,
+    /// sorted: which luminosity relations exist.
+    ///
+    /// # Errors
+    /// When the database cannot be read.
+    pub async fn bands(&self) -> sqlx::Result<Vec<String>> {
+        match self.pinned {
+            None => crate::catalog::relation_rows::luminosity_bands(&self.pool).await,
+            Some(version) => {
+                crate::catalog::relation_rows::luminosity_bands_at(&self.pool, version).await
+            }
+        }
     }
 
     /// As [`Catalog::fitted`], waiting at most `wait`; `Ok(Err(key))` names the fit still being
@@ -117,7 +151,18 @@ impl Catalog {
         choice: FitChoiceRef<'_>,
         wait: Option<std::time::Duration>,
     ) -> anyhow::Result<Result<Arc<FitOutcome>, FitKey>> {
-        fitted_within(&self.pool, &self.fits, self.soi_threshold, choice, wait).await
+        // A named version is answered with its own fit only: never an older one shown while
+        // it is computed.
+        let wait = if self.pinned.is_some() { None } else { wait };
+        fitted_within(
+            &self.pool,
+            &self.fits,
+            self.soi_threshold,
+            choice,
+            wait,
+            self.pinned,
+        )
+        .await
     }
 }
 
@@ -197,6 +242,18 @@ impl Relation {
             Relation::MBulge => "M_BH–M_bulge".to_owned(),
             Relation::Luminosity(band) => format!("M_BH–L_{band}"),
             Relation::SigmaBulgePlane => "M_BH–(σ, M_bulge) plane".to_owned(),
+        }
+    }
+
+    /// [`Relation::label`] in LaTeX, e.g. `$M_\mathrm{BH}$--$\sigma$` (BibTeX titles, tables).
+    pub fn label_tex(&self) -> String {
+        match self {
+            Relation::MSigma => "$M_\\mathrm{BH}$--$\\sigma$".to_owned(),
+            Relation::MBulge => "$M_\\mathrm{BH}$--$M_\\mathrm{bulge}$".to_owned(),
+            Relation::Luminosity(band) => format!("$M_\\mathrm{{BH}}$--$L_{{{band}}}$"),
+            Relation::SigmaBulgePlane => {
+                "$M_\\mathrm{BH}$--($\\sigma$, $M_\\mathrm{bulge}$) plane".to_owned()
+            }
         }
     }
 

@@ -421,7 +421,7 @@ pub async fn table_page(
     q: &TableQuery,
 ) -> sqlx::Result<(Vec<TableRow>, usize)> {
     // The adopted rows of the current version, read once per version and shared with the fits.
-    let snapshot = catalog.fits.rows(&catalog.pool).await?;
+    let snapshot = catalog.rows().await?;
     let rows = snapshot
         .rows
         .iter()

@@ -39,6 +39,7 @@ fn title(error: &AppError) -> &'static str {
         AppError::NotLoggedIn { .. } | AppError::BadToken => "Not logged in",
         AppError::Forbidden { .. } => "Not allowed",
         AppError::NotFound { .. } | AppError::NoRoute { .. } => "Not found",
+        AppError::Gone { .. } => "No longer kept",
         AppError::MethodNotAllowed { .. } => "Method not allowed",
         AppError::TooLarge { .. } | AppError::BodyTooLarge { .. } => "Too large",
         AppError::UnsupportedMediaType { .. } => "Unsupported format",

@@ -1,14 +1,15 @@
 //! The downloads for papers and astronomy software (`export`): the fitted sample as a VOTable
 //! and as an AASTeX table, the fit as a LaTeX table row, a methods paragraph, and the adopted
-//! catalog as a VOTable. Each reads the same query as `fit.json` and hands the fit to `export`.
+//! catalog as a VOTable. Each reads the same query as `fit.json` (the catalog version included)
+//! and hands the fit to `export`.
 
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::response::Response;
 
-use super::relations::{download, fit_for, read_query, relation_named};
+use super::relations::{Target, download, fit_for, read_query, target};
 use crate::error::AppResult;
-use crate::relations::{FitOutcome, Relation};
+use crate::relations::FitOutcome;
 use crate::state::AppState;
 
 /// The media type of a VOTable (IVOA VOTable 1.4, appendix on media types).
@@ -16,16 +17,16 @@ const VOTABLE: &str = "application/x-votable+xml";
 /// The media type of LaTeX text.
 const TEX: &str = "text/x-tex; charset=utf-8";
 
-/// The relation in the URL and its fit for the query.
+/// The relation in the URL at the version asked for, and its fit for the query.
 async fn fit_of(
     state: &AppState,
     slug: &str,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-) -> AppResult<(Relation, std::sync::Arc<FitOutcome>)> {
-    let relation = relation_named(state, slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(state, &relation, &q).await?;
-    Ok((relation, outcome))
+) -> AppResult<(Target, std::sync::Arc<FitOutcome>)> {
+    let t = target(state, slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    Ok((t, outcome))
 }
 
 /// `/relations/{relation}/sample.vot`: the fitted sample as a VOTable.
@@ -34,9 +35,11 @@ pub(crate) async fn sample_vot(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (relation, outcome) = fit_of(&state, &slug, query).await?;
-    let text = crate::export::sample_votable(&outcome, &relation)?;
+    let (t, outcome) = fit_of(&state, &slug, query).await?;
+    let relation = &t.relation;
+    let text = crate::export::sample_votable(&outcome, relation)?;
     Ok(download(
+        &t.pinned,
         VOTABLE,
         &format!("{}-sample.vot", relation.slug()),
         text,
@@ -49,9 +52,11 @@ pub(crate) async fn fit_tex(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (relation, outcome) = fit_of(&state, &slug, query).await?;
-    let text = crate::export::latex::fit_tex_file(&outcome, &relation);
+    let (t, outcome) = fit_of(&state, &slug, query).await?;
+    let relation = &t.relation;
+    let text = crate::export::latex::fit_tex_file(&outcome, relation);
     Ok(download(
+        &t.pinned,
         TEX,
         &format!("{}-{}-fit.tex", relation.slug(), outcome.key.method),
         text,
@@ -64,9 +69,11 @@ pub(crate) async fn sample_tex(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (relation, outcome) = fit_of(&state, &slug, query).await?;
-    let text = crate::export::sample_table(&outcome, &relation);
+    let (t, outcome) = fit_of(&state, &slug, query).await?;
+    let relation = &t.relation;
+    let text = crate::export::sample_table(&outcome, relation);
     Ok(download(
+        &t.pinned,
         TEX,
         &format!("{}-sample.tex", relation.slug()),
         text,
@@ -79,21 +86,29 @@ pub(crate) async fn methods_txt(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (relation, outcome) = fit_of(&state, &slug, query).await?;
-    let mut text = crate::export::methods_paragraph(&outcome, &relation);
+    let (t, outcome) = fit_of(&state, &slug, query).await?;
+    let relation = &t.relation;
+    let mut text = crate::export::methods_paragraph(&outcome, relation);
     text.push('\n');
     Ok(download(
+        &t.pinned,
         "text/plain; charset=utf-8",
         &format!("{}-{}-methods.txt", relation.slug(), outcome.key.method),
         text,
     ))
 }
 
-/// `/catalog.vot`: the adopted catalog as a VOTable, named with its version.
-pub(crate) async fn catalog_vot(State(state): State<AppState>) -> AppResult<Response> {
-    let (rows, version) = crate::catalog::csv_io::adopted_catalog(&state.pool).await?;
+/// `/catalog.vot`: the adopted catalog as a VOTable, named with its version; any past version
+/// with `?version=N` or `?release=NAME`, as the other catalog files.
+pub(crate) async fn catalog_vot(
+    State(state): State<AppState>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let pinned = super::submissions::file_version(&state, query).await?;
+    let (rows, version) =
+        crate::catalog::csv_io::adopted_catalog(&state.pool, Some(pinned.version)).await?;
     let text = crate::export::catalog_votable(&rows, version)?;
     Ok(super::submissions::catalog_file(
-        text, version, "vot", VOTABLE,
+        &pinned, text, version, "vot", VOTABLE,
     ))
 }

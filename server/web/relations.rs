@@ -11,10 +11,10 @@ use axum::extract::{Extension, Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
-use super::display::{Uncertain, fixed, significant, with_errors};
+use super::display::{Uncertain, VersionNote, fixed, significant, with_errors};
 use crate::auth::Principal;
+use crate::catalog::history::{Pinned, VersionAsk};
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
-use crate::catalog::relation_rows;
 use crate::charts::{
     BandPoint, ChartPoint, Group, LineSpec, RelationChart, ResidualChart, relation_svg,
     residual_svg,
@@ -23,8 +23,8 @@ use crate::error::{AppError, AppResult};
 use crate::fit::{Fit, Method, Point, Shape};
 use crate::relations::analysis::{Subset, flagged, most_influential, offset_between};
 use crate::relations::{
-    DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, LimitsChoice, Member, Relation,
-    RunKind, RunStatus, fitted, read_pivot_typed, run_status, stored_run,
+    Catalog, DEFAULT_REPLICATES, DEFAULT_STEPS, FitChoice, FitOutcome, LimitsChoice, Member,
+    Relation, RunKind, RunStatus, read_pivot_typed, run_status, stored_run,
 };
 use crate::state::AppState;
 
@@ -329,9 +329,9 @@ impl RelationQuery {
     }
 }
 
-/// The relations of the catalog as it is now.
-async fn relations_of(state: &AppState) -> AppResult<Vec<Relation>> {
-    let bands = relation_rows::luminosity_bands(&state.pool).await?;
+/// The relations of the catalog at `catalog`'s version.
+async fn relations_of(catalog: &Catalog) -> AppResult<Vec<Relation>> {
+    let bands = catalog.bands().await?;
     Ok(Relation::all(
         &bands
             .into_iter()
@@ -340,35 +340,104 @@ async fn relations_of(state: &AppState) -> AppResult<Vec<Relation>> {
     ))
 }
 
-/// The relation named in the URL, or 404.
-pub(crate) async fn relation_named(state: &AppState, slug: &str) -> AppResult<Relation> {
-    let bands = relation_rows::luminosity_bands(&state.pool).await?;
-    Relation::from_slug(slug, &bands).map_err(|e| AppError::not_found(e.to_string()))
+/// What a relation page or download is asked for: the catalog at the version asked for, the
+/// relation, and the page's own query parameters.
+pub(crate) struct Target {
+    /// The catalog at the version asked for.
+    pub(crate) catalog: Catalog,
+    /// That version, resolved.
+    pub(crate) pinned: Pinned,
+    /// How it was asked for (repeated in the page's links).
+    pub(crate) ask: VersionAsk,
+    /// The relation named in the URL.
+    pub(crate) relation: Relation,
+    /// The query parameters without `version` and `release`.
+    pub(crate) pairs: Vec<(String, String)>,
 }
 
-pub(crate) fn read_query(
-    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-    relation: &Relation,
-) -> AppResult<RelationQuery> {
-    let pairs = crate::router::query_pairs(query)?;
-    RelationQuery::parse(&pairs, relation).map_err(AppError::bad_request)
+impl Target {
+    /// The query text (without '?') that asks for `q` at this version again.
+    pub(crate) fn query_plain(&self, q: &RelationQuery) -> String {
+        with_version(q.to_query_string(), &self.ask)
+    }
 }
 
-pub(crate) async fn fit_for(
+/// `plain` (a query without '?') with the version asked for appended.
+pub(crate) fn with_version(plain: String, ask: &VersionAsk) -> String {
+    let version = ask.query();
+    match (plain.is_empty(), version.is_empty()) {
+        (_, true) => plain,
+        (true, false) => version,
+        (false, false) => format!("{plain}&{version}"),
+    }
+}
+
+/// The catalog version a request names (`version`, `release`) and its other parameters.
+///
+/// # Errors
+/// 400 for a query that cannot be read or a version that is not a number; 404 for a version
+/// not made yet or an unknown release; 410 for a version older than the history.
+pub(crate) async fn versioned(
     state: &AppState,
-    relation: &Relation,
-    q: &RelationQuery,
-) -> AppResult<Arc<FitOutcome>> {
-    Ok(fitted(
-        &state.pool,
-        &state.fits,
-        state.settings.soi_threshold,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<(Catalog, Pinned, VersionAsk, Vec<(String, String)>)> {
+    versioned_pairs(state, crate::router::query_pairs(query)?).await
+}
+
+/// [`versioned`] for query pairs already read.
+///
+/// # Errors
+/// As [`versioned`].
+pub(crate) async fn versioned_pairs(
+    state: &AppState,
+    pairs: Vec<(String, String)>,
+) -> AppResult<(Catalog, Pinned, VersionAsk, Vec<(String, String)>)> {
+    let (ask, pairs) = VersionAsk::split(pairs).map_err(AppError::bad_request)?;
+    let (catalog, pinned) = state.catalog_at(&ask).await?;
+    Ok((catalog, pinned, ask, pairs))
+}
+
+/// The [`Target`] of a relation page or download, or 404 for a relation the version lacks.
+pub(crate) async fn target(
+    state: &AppState,
+    slug: &str,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Target> {
+    target_of(state, slug, crate::router::query_pairs(query)?).await
+}
+
+/// [`target`] for query pairs already read.
+async fn target_of(
+    state: &AppState,
+    slug: &str,
+    pairs: Vec<(String, String)>,
+) -> AppResult<Target> {
+    let (catalog, pinned, ask, pairs) = versioned_pairs(state, pairs).await?;
+    let bands = catalog.bands().await?;
+    let relation =
+        Relation::from_slug(slug, &bands).map_err(|e| AppError::not_found(e.to_string()))?;
+    Ok(Target {
+        catalog,
+        pinned,
+        ask,
         relation,
-        q.fit.method,
-        &q.fit.filter,
-        q.fit.pivots(relation),
-    )
-    .await?)
+        pairs,
+    })
+}
+
+pub(crate) fn read_query(t: &Target) -> AppResult<RelationQuery> {
+    RelationQuery::parse(&t.pairs, &t.relation).map_err(AppError::bad_request)
+}
+
+pub(crate) async fn fit_for(t: &Target, q: &RelationQuery) -> AppResult<Arc<FitOutcome>> {
+    Ok(t.catalog
+        .fitted(
+            &t.relation,
+            q.fit.method,
+            &q.fit.filter,
+            q.fit.pivots(&t.relation),
+        )
+        .await?)
 }
 
 /// A fit as a page shows it: the current version's, or while that is being computed the
@@ -382,7 +451,7 @@ struct Shown {
 /// The fit a page shows ([`Shown`]), waiting at most [`super::PAGE_WAIT`]; `Err(version)` when no
 /// version's fit is ready yet.
 async fn fit_shown(
-    state: &AppState,
+    catalog: &Catalog,
     relation: &Relation,
     q: &RelationQuery,
 ) -> AppResult<Result<Shown, i64>> {
@@ -393,8 +462,7 @@ async fn fit_shown(
         q.fit.pivots(relation),
     );
     Ok(
-        match state
-            .catalog()
+        match catalog
             .fitted_within(choice, Some(super::PAGE_WAIT))
             .await?
         {
@@ -402,7 +470,7 @@ async fn fit_shown(
                 outcome,
                 computing: None,
             }),
-            Err(key) => state
+            Err(key) => catalog
                 .fits
                 .latest(&key)
                 .map(|outcome| Shown {
@@ -490,19 +558,33 @@ pub(crate) struct RelationsListPage {
     catalog_version: i64,
     /// Said while a fit of the current version is still being computed.
     computing: Option<String>,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links of a named version, else empty.
+    gq: String,
 }
 
-/// Show every relation with its current structural fit.
+/// Show every relation with its structural fit, at the current version or the one named.
 pub(crate) async fn list_relations(
     State(state): State<AppState>,
     nav: super::Nav,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<RelationsListPage> {
+    let (catalog, pinned, ask, rest) = versioned(&state, query).await?;
+    if let Some((key, _)) = rest.first() {
+        return Err(AppError::bad_request(format!(
+            "'{}' is not a parameter of this page (it accepts version, release).",
+            key.chars().take(40).collect::<String>()
+        )));
+    }
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note = VersionNote::of(&pinned, &ask, made_at.as_deref(), "/relations".into());
     let q = RelationQuery::default();
     let mut relations = Vec::new();
     let mut catalog_version = 0;
     let mut computing = None;
-    for relation in relations_of(&state).await? {
-        let outcome = match fit_shown(&state, &relation, &q).await? {
+    for relation in relations_of(&catalog).await? {
+        let outcome = match fit_shown(&catalog, &relation, &q).await? {
             Ok(shown) => {
                 computing = computing.or(shown.computing);
                 shown.outcome
@@ -562,6 +644,8 @@ pub(crate) async fn list_relations(
                 "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
             )
         }),
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
     })
 }
 
@@ -591,16 +675,16 @@ fn option(value: &str, label: &str, selected: bool) -> OptionView {
 
 /// A fitted parameter.
 pub(crate) struct ParamView {
-    symbol: &'static str,
-    value: String,
+    pub(crate) symbol: &'static str,
+    pub(crate) value: String,
     /// The 68 % interval, "lo – hi".
-    interval68: String,
+    pub(crate) interval68: String,
     /// The 95 % interval, "lo – hi".
-    interval95: String,
+    pub(crate) interval95: String,
     /// Said instead of the intervals when the estimator gives the parameter without one (FITEXY
     /// and BCES give ε so).
-    no_interval: Option<&'static str>,
-    unit: String,
+    pub(crate) no_interval: Option<&'static str>,
+    pub(crate) unit: String,
 }
 
 /// "lo – hi" with as many decimals as the error's two significant digits need.
@@ -619,10 +703,10 @@ fn interval_text(lo: f64, hi: f64, err: f64) -> String {
 /// One entry of the parameters' covariance (each pair once): narrow enough for a phone.
 pub(crate) struct CovRow {
     /// "Var(α)" or "Cov(α, β)".
-    pair: String,
-    value: String,
+    pub(crate) pair: String,
+    pub(crate) value: String,
     /// Its unit: the product of the two parameters' units ("dex²", "dex", "none").
-    unit: &'static str,
+    pub(crate) unit: &'static str,
 }
 
 /// A parameter's symbol and the power of dex of its unit (α, ε: dex; β, γ: dex per dex; the
@@ -755,6 +839,67 @@ pub(crate) struct RelationPage {
     may_start: bool,
     /// Said while the current version's fit is computed and an older one is shown.
     computing: Option<String>,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links to galaxy pages of a named version, else empty.
+    gq: String,
+    /// How to cite the fit shown.
+    cite: Option<CiteView>,
+}
+
+/// The "how to cite" box of a fit.
+pub(crate) struct CiteView {
+    /// The fit's identifier.
+    pub(crate) fit_id: String,
+    /// One sentence for a paper's text.
+    pub(crate) sentence: String,
+    /// A BibTeX entry.
+    pub(crate) bibtex: String,
+}
+
+impl CiteView {
+    /// The box for a whole-sample fit (recording its identifier, `relations::citation::cite`).
+    pub(crate) async fn of(
+        catalog: &Catalog,
+        relation: &Relation,
+        outcome: &Arc<FitOutcome>,
+    ) -> AppResult<Option<CiteView>> {
+        use crate::relations::citation;
+        if outcome.fit.is_err() {
+            return Ok(None);
+        }
+        let fit_id = citation::cite(catalog, outcome).await;
+        let version = outcome.key.catalog_version;
+        let releases = crate::catalog::citations::releases_of(&catalog.pool, version).await?;
+        let made = crate::catalog::history::made_at(&catalog.pool, version)
+            .await?
+            .unwrap_or_default();
+        let method = outcome
+            .key
+            .method
+            .parse::<Method>()
+            .unwrap_or(Method::Structural);
+        let label = method_label(method);
+        Ok(Some(CiteView {
+            sentence: citation::cite_sentence(
+                &relation.label(),
+                label,
+                (outcome.sample.n_detections(), outcome.sample.n_limits()),
+                version,
+                &releases,
+                &fit_id,
+            ),
+            bibtex: citation::bibtex(
+                &relation.label_tex(),
+                label,
+                version,
+                &releases,
+                &fit_id,
+                made.get(..4).unwrap_or("0000"),
+            ),
+            fit_id,
+        }))
+    }
 }
 
 /// A bootstrap or posterior run on the relation page.
@@ -942,8 +1087,8 @@ pub(crate) async fn start_run(
     let user = super::account::session_of(&principal)?;
     let pairs: Vec<(String, String)> = serde_urlencoded::from_str(&form.query)
         .map_err(|_| AppError::bad_request("The relation's settings could not be read."))?;
-    let relation = relation_named(&state, &slug).await?;
-    let q = RelationQuery::parse(&pairs, &relation).map_err(AppError::bad_request)?;
+    let t = target_of(&state, &slug, pairs).await?;
+    let q = read_query(&t)?;
     let size = if form.size.trim().is_empty() {
         0
     } else {
@@ -952,7 +1097,7 @@ pub(crate) async fn start_run(
         })?
     };
     let (kind, size) = RunKind::parse(form.kind.trim(), size).map_err(AppError::bad_request)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let outcome = fit_for(&t, &q).await?;
     if let Err(e) = &outcome.fit {
         return Err(AppError::bad_request(format!(
             "There is no fit to start a run from: {e}"
@@ -971,10 +1116,10 @@ pub(crate) async fn start_run(
         RunKind::Bootstrap => back.replicates = size,
         RunKind::Posterior => back.steps = size,
     }
-    let query = back.to_query_string();
+    let query = t.query_plain(&back);
     Ok(Redirect::to(&format!(
         "/relations/{}{}#runs",
-        relation.slug(),
+        t.relation.slug(),
         if query.is_empty() {
             String::new()
         } else {
@@ -1224,7 +1369,7 @@ pub(super) fn relation_chart_frame(
 }
 
 /// Draw the relation chart, or say why not.
-fn relation_chart_svg(
+pub(crate) fn relation_chart_svg(
     relation: &Relation,
     outcome: &FitOutcome,
     grouping: Grouping,
@@ -1241,10 +1386,11 @@ pub(crate) async fn show_relation(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let read = RelationQuery::read(&crate::router::query_pairs(query)?, &relation);
+    let t = target(&state, &slug, query).await?;
+    let relation = t.relation.clone();
+    let read = RelationQuery::read(&t.pairs, &relation);
     let q = read.query.clone();
-    let shown = match fit_shown(&state, &relation, &q).await? {
+    let shown = match fit_shown(&t.catalog, &relation, &q).await? {
         Ok(shown) => shown,
         Err(version) => {
             return Ok(ComputingPage {
@@ -1293,7 +1439,26 @@ pub(crate) async fn show_relation(
         .any(|r| r.status == "running" || r.status == "queued");
     let refresh = computing.is_some() || influence_pending;
     let may_start = nav.username.is_some();
-    let query_plain = q.to_query_string();
+    let query_plain = t.query_plain(&q);
+    let made_at = crate::catalog::history::made_at(&state.pool, t.pinned.version).await?;
+    let version_note = VersionNote::of(
+        &t.pinned,
+        &t.ask,
+        made_at.as_deref(),
+        format!("/relations/{}{}", relation.slug(), {
+            let plain = q.to_query_string();
+            if plain.is_empty() {
+                plain
+            } else {
+                format!("?{plain}")
+            }
+        }),
+    );
+    let cite = if computing.is_none() {
+        CiteView::of(&t.catalog, &relation, &outcome).await?
+    } else {
+        None
+    };
     Ok(RelationPage {
         nav,
         controls: Controls::of(&relation, &read),
@@ -1325,6 +1490,9 @@ pub(crate) async fn show_relation(
         runs_pending,
         may_start,
         computing,
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
+        cite,
     }
     .into_response())
 }
@@ -1341,7 +1509,7 @@ pub(crate) struct ComputingPage {
 /// The fitted parameters with their errors, intervals and units, and the covariance matrix.
 /// Values and intervals are the ones the fit reports (`fit.intervals`; restricted likelihood
 /// by default); the covariance is the maximum-likelihood curvature's.
-fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
+pub(crate) fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
     let unit = relation.x_unit();
     let view = |name: &str, symbol: &'static str, unit: String| {
         f.intervals.get(name).map(|iv| ParamView {
@@ -1681,7 +1849,7 @@ impl SampleSummary {
     }
 }
 
-fn method_label(m: Method) -> &'static str {
+pub(crate) fn method_label(m: Method) -> &'static str {
     match m {
         Method::Structural => "structural maximum likelihood (default)",
         Method::Conditional => "conditional maximum likelihood",
@@ -1731,21 +1899,23 @@ pub(crate) async fn download_chart(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     let drawn = state
         .fits
         .drawn(&outcome.key, &format!("svg;group={:?}", q.group), || {
             // A file opened on its own draws its title; the page's heading names the page chart.
             let chart = RelationChart {
                 show_title: true,
-                ..relation_chart(&relation, &outcome, q.group)
+                ..relation_chart(relation, &outcome, q.group)
             };
             vec![relation_svg(&chart).map_err(|e| e.to_string())]
         });
     let svg = drawn[0].clone().map_err(AppError::bad_request)?;
     Ok(download(
+        &t.pinned,
         "image/svg+xml; charset=utf-8",
         &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
         svg,
@@ -1759,27 +1929,18 @@ pub(crate) async fn download_chart_png(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     let chart = RelationChart {
         show_title: true,
-        ..relation_chart(&relation, &outcome, q.group)
+        ..relation_chart(relation, &outcome, q.group)
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
     let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
-    Ok((
-        [
-            (header::CONTENT_TYPE, "image/png".to_owned()),
-            (
-                header::CONTENT_DISPOSITION,
-                format!("attachment; filename=\"{filename}\""),
-            ),
-        ],
-        png,
-    )
-        .into_response())
+    Ok(download(&t.pinned, "image/png", &filename, png))
 }
 
 /// `/relations/{relation}/fit.json`: the fit and its settings.
@@ -1788,10 +1949,14 @@ pub(crate) async fn download_fit(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
-    let (pivot, pivot2) = q.fit.pivots(&relation);
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
+    let (pivot, pivot2) = q.fit.pivots(relation);
+    let made_at =
+        crate::catalog::history::made_at(&state.pool, outcome.key.catalog_version).await?;
+    let fit_id = crate::relations::citation::cite(&t.catalog, &outcome).await;
     let body = serde_json::json!({
         "relation": relation.slug(),
         "label": relation.label(),
@@ -1803,7 +1968,10 @@ pub(crate) async fn download_fit(
         "pivot_log": pivot,
         "pivot2_log": (relation.shape() == Shape::Plane).then_some(pivot2),
         "catalog_version": outcome.key.catalog_version,
-        "fitted_at": outcome.fitted_at,
+        // When the version was made, not when this copy was computed: a past version's file
+        // is the same whenever it is asked for.
+        "catalog_version_made_at": made_at,
+        "fit_id": fit_id,
         "n_detections": outcome.sample.n_detections(),
         "n_upper": outcome.sample.n_limits(),
         "left_out_sigma_definition": outcome.sample.left_out_sigma_definition,
@@ -1815,6 +1983,7 @@ pub(crate) async fn download_fit(
     });
     let text = serde_json::to_string_pretty(&body).map_err(anyhow::Error::from)?;
     Ok(download(
+        &t.pinned,
         "application/json",
         &format!("{}-{}.json", relation.slug(), q.fit.method.as_str()),
         text,
@@ -1827,30 +1996,47 @@ pub(crate) async fn download_sample(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let relation = relation_named(&state, &slug).await?;
-    let q = read_query(query, &relation)?;
-    let outcome = fit_for(&state, &relation, &q).await?;
+    let t = target(&state, &slug, query).await?;
+    let q = read_query(&t)?;
+    let outcome = fit_for(&t, &q).await?;
+    let relation = &t.relation;
     // The columns are `export::sample`'s, shared with the VOTable and LaTeX files.
-    let text = crate::export::sample_csv(&outcome, &relation)?;
+    let text = crate::export::sample_csv(&outcome, relation)?;
     Ok(download(
+        &t.pinned,
         "text/csv; charset=utf-8",
         &format!("{}-sample.csv", relation.slug()),
         text,
     ))
 }
 
-pub(crate) fn download(content_type: &'static str, filename: &str, body: String) -> Response {
-    (
+/// A file for `pinned`'s catalog version: it names its version in `Catalog-Version`, and a
+/// past version's file never changes ([`crate::router::Immutable`]).
+pub(crate) fn download(
+    pinned: &Pinned,
+    content_type: &'static str,
+    filename: &str,
+    body: impl axum::response::IntoResponse,
+) -> Response {
+    let mut response = (
         [
             (header::CONTENT_TYPE, content_type.to_owned()),
             (
                 header::CONTENT_DISPOSITION,
                 format!("attachment; filename=\"{filename}\""),
             ),
+            (
+                header::HeaderName::from_static("catalog-version"),
+                pinned.version.to_string(),
+            ),
         ],
         body,
     )
-        .into_response()
+        .into_response();
+    if pinned.is_past() {
+        response.extensions_mut().insert(crate::router::Immutable);
+    }
+    response
 }
 
 #[cfg(test)]

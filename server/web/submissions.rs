@@ -12,6 +12,7 @@ use std::collections::HashMap;
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::Form;
+use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Redirect, Response};
@@ -1132,10 +1133,17 @@ pub(crate) async fn upload(
     }
 }
 
-/// The adopted catalog as CSV (the import format), named with its catalog version.
-pub(crate) async fn download_catalog(State(state): State<AppState>) -> AppResult<Response> {
-    let (text, version) = crate::catalog::csv_io::export_csv(&state.pool).await?;
+/// The adopted catalog as CSV (the import format), named with its catalog version; any past
+/// version with `?version=N` or `?release=NAME`.
+pub(crate) async fn download_catalog(
+    State(state): State<AppState>,
+    query: Result<axum::extract::Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let pinned = file_version(&state, query).await?;
+    let (text, version) =
+        crate::catalog::csv_io::export_csv(&state.pool, Some(pinned.version)).await?;
     Ok(catalog_file(
+        &pinned,
         text,
         version,
         "csv",
@@ -1144,31 +1152,50 @@ pub(crate) async fn download_catalog(State(state): State<AppState>) -> AppResult
 }
 
 /// `/catalog.json`: the adopted catalog as JSON, stamped with the catalog version inside.
-pub(crate) async fn download_catalog_json(State(state): State<AppState>) -> AppResult<Response> {
-    let (text, version) = crate::catalog::csv_io::export_json(&state.pool).await?;
-    Ok(catalog_file(text, version, "json", "application/json"))
+pub(crate) async fn download_catalog_json(
+    State(state): State<AppState>,
+    query: Result<axum::extract::Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<Response> {
+    let pinned = file_version(&state, query).await?;
+    let (text, version) =
+        crate::catalog::csv_io::export_json(&state.pool, Some(pinned.version)).await?;
+    Ok(catalog_file(
+        &pinned,
+        text,
+        version,
+        "json",
+        "application/json",
+    ))
 }
 
-/// A catalog export as a download named after its version, with the version in a header too.
+/// The version a catalog file is asked for; it takes no other parameter.
+pub(super) async fn file_version(
+    state: &AppState,
+    query: Result<axum::extract::Query<Vec<(String, String)>>, QueryRejection>,
+) -> AppResult<crate::catalog::history::Pinned> {
+    let (_, pinned, _, rest) = super::relations::versioned(state, query).await?;
+    if let Some((key, _)) = rest.first() {
+        return Err(AppError::bad_request(format!(
+            "'{}' is not a parameter of this file (it accepts version, release).",
+            key.chars().take(40).collect::<String>()
+        )));
+    }
+    Ok(pinned)
+}
+
+/// A catalog export as a download named after its version, with the version in a header too;
+/// a past version's file never changes ([`crate::router::Immutable`]).
 pub(super) fn catalog_file(
+    pinned: &crate::catalog::history::Pinned,
     text: String,
     version: i64,
     extension: &str,
-    content_type: &str,
+    content_type: &'static str,
 ) -> Response {
-    (
-        [
-            (axum::http::header::CONTENT_TYPE, content_type.to_owned()),
-            (
-                axum::http::header::CONTENT_DISPOSITION,
-                format!("attachment; filename=\"massline-catalog-v{version}.{extension}\""),
-            ),
-            (
-                axum::http::HeaderName::from_static("catalog-version"),
-                version.to_string(),
-            ),
-        ],
+    super::relations::download(
+        pinned,
+        content_type,
+        &format!("massline-catalog-v{version}.{extension}"),
         text,
     )
-        .into_response()
 }

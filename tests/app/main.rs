@@ -14,6 +14,7 @@ mod catalog_search;
 mod exports;
 mod galaxy_names;
 mod galaxy_relations;
+mod history;
 mod idempotency;
 mod pages;
 mod relations;
