@@ -6,8 +6,8 @@
 //! errors as `$v^{+a}_{-b}$`, errors that round alike as `$v \pm e$`, upper limits as `$<v$`.
 //! Text (names, references, words) goes through [`latex_escape`].
 
-use super::sample::Column;
-use super::{filter_words, method_of, method_short_name, no_interval_note, pivots_of};
+use super::sample::{Column, Kind};
+use super::{count, filter_words, method_of, method_short_name, no_interval_note, pivots_of};
 use crate::catalog::model::code_label;
 use crate::fit::Shape;
 use crate::relations::{FitOutcome, Relation};
@@ -289,9 +289,9 @@ pub fn sample_table(outcome: &FitOutcome, relation: &Relation) -> String {
     let sample = &outcome.sample;
     let columns: Vec<Column> = super::sample::written_columns(relation)
         .into_iter()
+        // The values; their errors go beside them.
         .filter(|c| {
-            matches!(c.name.as_str(), "log_sigma" | "log_mbulge" | "log_mbh")
-                || c.name.starts_with("log_l_")
+            c.kind == Kind::Number && c.name.starts_with("log_") && !c.name.ends_with("_err")
         })
         .collect();
     // The references, numbered in order of first use.
@@ -375,15 +375,15 @@ pub fn sample_table(outcome: &FitOutcome, relation: &Relation) -> String {
     }
     let method_words = method_of(outcome).map_or(outcome.key.method, method_short_name);
     let comments = format!(
-        "massline catalog version {}. Estimator: {}. Sample: {}; {} galaxies ({} upper limits). \
+        "massline catalog version {}. Estimator: {}. Sample: {}; {} ({}). \
          Values are log10 at each galaxy's adopted distance $D$: masses, luminosities and bulge masses were rescaled from the distance their source assumed, \
          and their errors are as fitted, with the adopted distance's error added in quadrature (each side of an asymmetric black-hole mass error so; the fit uses their mean). \
          Upper limits on the black-hole mass are written $<$value.",
         outcome.key.catalog_version,
         latex_escape(method_words),
         latex_escape(&filter_words(&outcome.key.filter)),
-        sample.members.len(),
-        sample.n_limits(),
+        count(sample.members.len(), "galaxy", "galaxies"),
+        count(sample.n_limits(), "upper limit", "upper limits"),
     );
     let mut out = String::new();
     out.push_str(&format!("\\begin{{deluxetable}}{{{spec}}}\n"));
@@ -485,6 +485,26 @@ mod tests {
         assert!(tex.contains("catalog version 7"), "{tex}");
         // Galaxy, D, log σ, log M_BH, method, reference.
         assert!(tex.starts_with("\\begin{deluxetable}{lccclc}\n"), "{tex}");
+    }
+
+    #[test]
+    fn a_luminosity_table_has_one_column_per_value() {
+        let tex = sample_table(&small_outcome(), &Relation::Luminosity("K".to_owned()));
+        // Galaxy, D, log L_K, log M_BH, method, reference.
+        assert!(tex.starts_with("\\begin{deluxetable}{lccclc}\n"), "{tex}");
+        assert_eq!(
+            tex.matches("\\colhead{$\\log L_{\\rm K}$}").count(),
+            1,
+            "{tex}"
+        );
+        let first = tex
+            .split("\\startdata\n")
+            .nth(1)
+            .unwrap()
+            .lines()
+            .next()
+            .unwrap();
+        assert_eq!(first.matches(" & ").count(), 5, "{first}");
     }
 
     #[test]

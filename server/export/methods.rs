@@ -3,14 +3,14 @@
 //! docs/methods.md §2 cites it), how distances and errors were treated (docs/methods.md §2.5,
 //! §3.2), and the catalog version. Plain text, the same for the same fit.
 
-use super::{filter_words, method_of, pivots_of};
+use super::{count, filter_words, method_of, pivots_of};
 use crate::fit::{Method, Shape};
 use crate::relations::{FitOutcome, Relation};
 use crate::units::Quantity;
 
 /// What an estimator does, with the published method it follows (docs/methods.md §2.1–§2.6).
-fn estimator_sentence(method: Method) -> &'static str {
-    match method {
+fn estimator_sentence(method: Method) -> String {
+    let text = match method {
         Method::Structural => {
             "We used the structural maximum-likelihood estimator of Kelly (2007, ApJ 665, 1489), which models the distribution of the true host property, takes measurement errors on both axes, an intrinsic scatter ε in log M_BH at fixed host property, and upper limits on M_BH as censored terms."
         }
@@ -21,9 +21,13 @@ fn estimator_sentence(method: Method) -> &'static str {
             "We used the modified FITEXY estimator (Press et al. 1992; Tremaine et al. 2002, ApJ 574, 740), which minimises χ² with errors on both axes and sets the intrinsic scatter ε so that the reduced χ² is one; it takes no upper limits."
         }
         Method::Bces(_) => {
-            "We used the BCES moment estimators (Akritas & Bershady 1996, ApJ 470, 706), which allow for errors on both axes, their covariance and intrinsic scatter; they take no upper limits."
+            return format!(
+                "We used the {} line of the BCES moment estimators (Akritas & Bershady 1996, ApJ 470, 706), which allow for errors on both axes, their covariance and intrinsic scatter; they take no upper limits.",
+                super::method_short_name(method)
+            );
         }
-    }
+    };
+    text.to_owned()
 }
 
 /// The line (or plane) fitted, with its pivots in their units.
@@ -50,15 +54,6 @@ fn equation(relation: &Relation, outcome: &FitOutcome) -> String {
         )
     } else {
         format!("log10(M_BH / M☉) = α + β {first}")
-    }
-}
-
-/// "1 galaxy", "3 galaxies".
-fn count(n: usize, one: &str, many: &str) -> String {
-    if n == 1 {
-        format!("1 {one}")
-    } else {
-        format!("{n} {many}")
     }
 }
 
@@ -109,19 +104,21 @@ pub fn methods_paragraph(outcome: &FitOutcome, relation: &Relation) -> String {
         ));
     }
     if let Some(method) = method_of(outcome) {
-        parts.push(estimator_sentence(method).to_owned());
+        parts.push(estimator_sentence(method));
     }
     parts.push(
         "Every black-hole mass, bulge mass and luminosity was rescaled from the distance its source assumed to the galaxy's adopted distance (dynamical masses in proportion to D, luminosities and photometric bulge masses to D², velocity dispersions and reverberation masses not at all), the adopted distance's error was added in quadrature to each distance-dependent value, and the covariance that the shared distance induces between the errors of the host property and of log M_BH was included in the fit."
             .to_owned(),
     );
-    parts.push(
+    parts.push(if sample.n_limits() > 0 {
         "Published asymmetric errors were turned into dex and their mean used as one symmetric error; an upper limit enters at its value without an error."
-            .to_owned(),
-    );
+    } else {
+        "Published asymmetric errors were turned into dex and their mean used as one symmetric error."
+    }
+    .to_owned());
     match &outcome.fit {
         Ok(fit) => parts.push(format!(
-            "The quoted uncertainties are 68 % intervals from the {}.",
+            "The quoted uncertainties are 68 % intervals ({}).",
             fit.intervals.kind.label()
         )),
         Err(e) => parts.push(format!("No fit could be made: {e}")),

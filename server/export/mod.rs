@@ -89,6 +89,15 @@ pub fn pivots_of(outcome: &FitOutcome) -> (f64, f64) {
     )
 }
 
+/// "1 galaxy", "3 galaxies".
+fn count(n: usize, one: &str, many: &str) -> String {
+    if n == 1 {
+        format!("1 {one}")
+    } else {
+        format!("{n} {many}")
+    }
+}
+
 /// A fitted parameter's symbol: "α", "β", "γ", "ε" (the name itself for any other).
 pub fn param_symbol(name: &str) -> &str {
     match name {

@@ -290,13 +290,15 @@ async fn pdflatex_compiles_the_demo_fit_rows_and_sample_table_with_aastex() {
         .lines()
         .find_map(|l| l.strip_prefix("% Column heads (AASTeX): "))
         .unwrap_or_else(|| panic!("no heads in {structural}"));
+    let luminosity = app.ok("/relations/m_l_k/fit.tex").await;
     let sample = app.ok("/relations/m_sigma/sample.tex").await;
     let plane_sample = app.ok("/relations/m_sigma_mbulge/sample.tex").await;
+    let luminosity_sample = app.ok("/relations/m_l_k/sample.tex").await;
     let document = format!(
         "\\documentclass{{aastex631}}\n\\begin{{document}}\n\
          \\begin{{deluxetable}}{{llcccccl}}\n\\tablecaption{{Fitted relations}}\n{head}\n\\startdata\n\
-         {structural}{}{}\\enddata\n{}\\end{{deluxetable}}\n\
-         {sample}\n{plane_sample}\n\\end{{document}}\n",
+         {structural}{}{}{luminosity}\\enddata\n{}\\end{{deluxetable}}\n\
+         {sample}\n{plane_sample}\n{luminosity_sample}\n\\end{{document}}\n",
         // Only the first file's notes are used: the marks are per row.
         fitexy.replace("\\tablenotemark{a}", "\\tablenotemark{b}"),
         plane,
