@@ -29,6 +29,17 @@ async fn fit_of(
     Ok((t, outcome))
 }
 
+/// A download's name, as the other relation files are named: relation, estimator, catalog
+/// version and what it is ("m_sigma-structural-v12-sample.vot").
+fn file_name(relation: &crate::relations::Relation, outcome: &FitOutcome, what: &str) -> String {
+    format!(
+        "{}-{}-v{}-{what}",
+        relation.slug(),
+        outcome.key.method,
+        outcome.key.catalog_version
+    )
+}
+
 /// `/relations/{relation}/sample.vot`: the fitted sample as a VOTable.
 pub(crate) async fn sample_vot(
     State(state): State<AppState>,
@@ -41,7 +52,7 @@ pub(crate) async fn sample_vot(
     Ok(download(
         &t.pinned,
         VOTABLE,
-        &format!("{}-sample.vot", relation.slug()),
+        &file_name(relation, &outcome, "sample.vot"),
         text,
     ))
 }
@@ -58,7 +69,7 @@ pub(crate) async fn fit_tex(
     Ok(download(
         &t.pinned,
         TEX,
-        &format!("{}-{}-fit.tex", relation.slug(), outcome.key.method),
+        &file_name(relation, &outcome, "fit.tex"),
         text,
     ))
 }
@@ -75,7 +86,7 @@ pub(crate) async fn sample_tex(
     Ok(download(
         &t.pinned,
         TEX,
-        &format!("{}-sample.tex", relation.slug()),
+        &file_name(relation, &outcome, "sample.tex"),
         text,
     ))
 }
@@ -93,7 +104,7 @@ pub(crate) async fn methods_txt(
     Ok(download(
         &t.pinned,
         "text/plain; charset=utf-8",
-        &format!("{}-{}-methods.txt", relation.slug(), outcome.key.method),
+        &file_name(relation, &outcome, "methods.txt"),
         text,
     ))
 }
