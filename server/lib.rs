@@ -14,6 +14,8 @@
 //! * [`relations`]: the scaling relations the catalog supports, fit samples built from the
 //!   adopted values (rescaled to the adopted distance, distance errors and covariances), and
 //!   the fit cache keyed by catalog version.
+//! * [`export`]: files for papers and astronomy software (VOTable, LaTeX tables, a methods
+//!   paragraph) written from a fit or the adopted catalog. Pure functions.
 //! * [`auth`]: roles, sessions, API tokens, password rules and the layers that authenticate
 //!   every request and refuse forged ones.
 //! * [`web`]: HTML pages; thin handlers over the layers above. [`api`]: the JSON API.
@@ -29,6 +31,7 @@ pub mod charts;
 pub mod cli;
 pub mod config;
 pub mod error;
+pub mod export;
 pub mod fit;
 pub mod relations;
 pub mod router;

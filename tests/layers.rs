@@ -27,6 +27,11 @@ const ALLOWED: &[(&str, &[&str])] = &[
         "relations",
         &["units", "astro", "fit", "charts", "catalog", "error"],
     ),
+    // Files for papers and astronomy software, written from a fit or the catalog.
+    (
+        "export",
+        &["units", "astro", "fit", "catalog", "relations", "error"],
+    ),
     // What every handler shares, and the request layers.
     (
         "state",
@@ -52,6 +57,7 @@ const ALLOWED: &[(&str, &[&str])] = &[
             "auth::secret",
             "auth::middleware",
             "relations",
+            "export",
             "state",
             "router",
         ],
@@ -84,6 +90,7 @@ const ALLOWED: &[(&str, &[&str])] = &[
             "auth",
             "auth::secret",
             "relations",
+            "export",
             "state",
             "router",
             "web",
@@ -103,6 +110,7 @@ const ALLOWED: &[(&str, &[&str])] = &[
             "auth",
             "auth::secret",
             "relations",
+            "export",
             "startup",
         ],
     ),

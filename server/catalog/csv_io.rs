@@ -947,6 +947,45 @@ async fn adopted_rows(
     Ok((rows, version, made_at))
 }
 
+/// One adopted measurement as the catalog exports write it: its cells in [`COLUMNS`] order (the
+/// strings of the CSV file, before the formula guard) and the stored canonical numbers.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CatalogRow {
+    /// The cells, in [`COLUMNS`] order.
+    pub cells: [String; 20],
+    /// log10 of the value in its quantity's unit.
+    pub log_value: f64,
+    /// Lower error, dex.
+    pub err_minus_dex: f64,
+    /// Upper error, dex.
+    pub err_plus_dex: f64,
+    /// Whether the value is an upper limit.
+    pub upper_limit: bool,
+}
+
+/// The rows adopted at `version` (`None`: the current one) as every catalog export writes them
+/// (the CSV and JSON here, the VOTable in `export`), and the catalog version they were read at.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn adopted_catalog(
+    pool: &SqlitePool,
+    version: Option<i64>,
+) -> anyhow::Result<(Vec<CatalogRow>, i64)> {
+    let (rows, version, _) = adopted_rows(pool, version).await?;
+    let rows = rows
+        .iter()
+        .map(|r| CatalogRow {
+            cells: r.cells(),
+            log_value: r.log_value,
+            err_minus_dex: r.err_minus_dex,
+            err_plus_dex: r.err_plus_dex,
+            upper_limit: r.upper_limit,
+        })
+        .collect();
+    Ok((rows, version))
+}
+
 /// The catalog adopted at `version` (`None`: the current one) as CSV text in the import
 /// format, galaxies by name, and the catalog
 /// version it was read at (one read transaction, so the two agree). Each row carries its row

@@ -365,6 +365,56 @@ pub fn slugify(name: &str) -> String {
     out
 }
 
+/// The words for a stored code (a method, a σ definition, a morphology, a distance method, a
+/// submission state, a fit parameter): "stellar_dynamics" → "stellar dynamics", "sigma_e" →
+/// "σ_e (within r_e)", "tau_1" → "τ₁". A code this does not know is shown with its underscores
+/// as spaces, never as a code.
+pub fn code_label(code: &str) -> String {
+    let known = MassMethod::pairs()
+        .into_iter()
+        .chain(BulgeMassMethod::pairs())
+        .chain(SigmaDefinition::pairs())
+        .chain(Morphology::pairs())
+        .chain(BulgeKind::pairs())
+        .chain(CentreKind::pairs())
+        .chain(DistanceMethod::pairs())
+        .find(|(word, _)| *word == code)
+        .map(|(_, label)| label.to_owned());
+    if let Some(label) = known {
+        return label;
+    }
+    let greek = [
+        ("alpha", "α"),
+        ("beta", "β"),
+        ("gamma", "γ"),
+        ("delta", "δ"),
+        ("eps", "ε"),
+        ("mu", "μ"),
+        ("tau", "τ"),
+        ("w", "w"),
+    ];
+    // "tau_1" and "beta2" alike: a letter's name, then its index.
+    let split = code.split_once('_').or_else(|| {
+        let digits = code.find(|c: char| c.is_ascii_digit())?;
+        Some(code.split_at(digits))
+    });
+    if let Some((name, index)) = split
+        && let Some((_, letter)) = greek.iter().find(|(g, _)| *g == name)
+        && !index.is_empty()
+        && index.bytes().all(|b| b.is_ascii_digit())
+    {
+        let sub: String = index
+            .chars()
+            .map(|c| char::from_u32(0x2080 + c.to_digit(10).unwrap_or(0)).unwrap_or(c))
+            .collect();
+        return format!("{letter}{sub}");
+    }
+    if let Some((_, letter)) = greek.iter().find(|(g, _)| *g == code) {
+        return (*letter).to_owned();
+    }
+    code.replace('_', " ")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -39,6 +39,8 @@ pub struct RelationRow {
     pub mbh_source_distance_mpc: Option<f64>,
     /// Spatial resolution of the mass measurement, arcsec.
     pub mbh_resolution_arcsec: Option<f64>,
+    /// Where the mass was published (the measurement's reference, as stored).
+    pub mbh_reference: Option<String>,
     /// Adopted velocity dispersion, log10 km/s.
     pub log_sigma: Option<f64>,
     /// Its symmetric error, dex.
@@ -106,7 +108,7 @@ pub async fn relation_rows_at(
                 bh.err_minus_dex as mbh_err_minus_dex, bh.err_plus_dex as mbh_err_plus_dex,
                 bh.upper_limit as mbh_upper_limit, bh.method as mbh_method,
                 bh.source_distance_mpc as mbh_source_distance_mpc,
-                bh.resolution_arcsec as mbh_resolution_arcsec,
+                bh.resolution_arcsec as mbh_resolution_arcsec, bh.reference as mbh_reference,
                 sg.log_value as log_sigma, sg.err_dex as sigma_err_dex,
                 sg.sigma_definition as sigma_definition,
                 bm.log_value as log_mbulge, bm.err_dex as mbulge_err_dex,

@@ -1,4 +1,4 @@
-//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json]`: the
+//! `massline import FILE [--accept | --as USER]` and `massline export [--format csv|json|votable]`: the
 //! catalog file formats (`catalog::csv_io`, README "Catalog CSV") from a shell. Whoever can run these on the
 //! server's database file is its administrator; the audit log records the import with no
 //! account.
@@ -37,6 +37,9 @@ pub enum ExportFormat {
     Csv,
     /// The same rows as JSON, stamped with the catalog version and the time of export.
     Json,
+    /// The same rows as an IVOA VOTable 1.4, with units and UCDs, for astronomy software (not
+    /// for import).
+    Votable,
 }
 
 /// Arguments of `massline export`.
@@ -161,7 +164,7 @@ fn progress_bar() -> impl FnMut(usize, usize) {
     }
 }
 
-/// Write the adopted catalog as CSV or JSON to `out`; the catalog version goes to `err`.
+/// Write the adopted catalog as CSV, JSON or VOTable to `out`; the catalog version goes to `err`.
 ///
 /// # Errors
 /// When the database cannot be read.
@@ -184,6 +187,11 @@ pub fn run_export(
         let (text, version) = match args.format {
             ExportFormat::Csv => export_csv(&pool, version).await?,
             ExportFormat::Json => export_json(&pool, version).await?,
+            ExportFormat::Votable => {
+                let (rows, version) =
+                    crate::catalog::csv_io::adopted_catalog(&pool, version).await?;
+                (crate::export::catalog_votable(&rows, version)?, version)
+            }
         };
         out.write_all(text.as_bytes())?;
         writeln!(err, "exported catalog version {version}")?;
@@ -214,5 +222,36 @@ mod tests {
             format!("importing [{}] 1000/1000 rows 100%", "#".repeat(30))
         );
         assert!(progress_line(0, 0).ends_with("100%"));
+    }
+
+    #[test]
+    fn the_votable_export_writes_a_row_per_adopted_measurement() {
+        let dir = tempfile::tempdir().unwrap();
+        let db_path = dir.path().join("catalog.db");
+        let runtime = tokio::runtime::Runtime::new().unwrap();
+        let csv_rows = runtime.block_on(async {
+            let pool = catalog::connect(&db_path).await.unwrap();
+            crate::catalog::demo::load_demo(&pool).await.unwrap();
+            let (text, _) = export_csv(&pool, None).await.unwrap();
+            pool.close().await;
+            csv::Reader::from_reader(text.as_bytes()).records().count()
+        });
+        drop(runtime);
+        let args = ExportArgs {
+            format: ExportFormat::Votable,
+            version: None,
+            db_path,
+        };
+        let (mut out, mut err) = (Vec::new(), Vec::new());
+        run_export(&args, &mut out, &mut err).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(text.starts_with("<?xml version=\"1.0\""), "{text}");
+        assert!(csv_rows > 100, "the demo catalog has its rows");
+        assert_eq!(text.matches("<TR>").count(), csv_rows);
+        assert!(
+            String::from_utf8(err)
+                .unwrap()
+                .starts_with("exported catalog version ")
+        );
     }
 }

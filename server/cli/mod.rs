@@ -7,7 +7,7 @@
 //! massline user add NAME --role ROLE [--generate]     create an account (see `user --help`)
 //! massline user set-role NAME ROLE | disable NAME | list
 //! massline import FILE.csv [--accept]                 load a catalog CSV (pending, or adopted)
-//! massline export > FILE.csv                          write the adopted catalog as CSV
+//! massline export > FILE.csv                          write the adopted catalog (CSV, JSON or VOTable)
 //! massline backup PATH [--db DB] [--force]            a checked copy of the live database
 //! ```
 //!
@@ -44,7 +44,7 @@ enum Command {
     User(user::UserArgs),
     /// Import a catalog CSV: rows become pending submissions, or with --accept are adopted.
     Import(catalog_files::ImportArgs),
-    /// Write the adopted catalog as CSV (the import format) to standard output.
+    /// Write the adopted catalog to standard output: CSV (the import format), JSON or VOTable.
     Export(catalog_files::ExportArgs),
     /// Copy the database, even while the server runs, to a checked file (see README "Backups").
     Backup(backup::BackupArgs),

@@ -927,6 +927,8 @@ mod tests {
             log_distance: 1.2,
             log_sigma: None,
             log_mbulge: None,
+            mbh_err_dex: (0.1, 0.1),
+            mbh_reference: String::new(),
         }
     }
 

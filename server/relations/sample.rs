@@ -121,6 +121,13 @@ pub struct Member {
     pub log_sigma: Option<f64>,
     /// Adopted log M_bulge at the adopted distance (M☉), if any.
     pub log_mbulge: Option<f64>,
+    /// The black-hole mass's lower and upper errors as fitted (dex): the published errors, kept
+    /// apart where they are asymmetric, each with the adopted distance's error in quadrature
+    /// (the fit itself uses their mean's, `Point::y_err`; docs/methods.md §2.5, §3.2). Zero for
+    /// an upper limit.
+    pub mbh_err_dex: (f64, f64),
+    /// Where the adopted black-hole mass was published ("" when not recorded).
+    pub mbh_reference: String,
 }
 
 /// A fit sample: points and the galaxies they come from, in the same order.
@@ -313,6 +320,21 @@ pub fn build_sample(
             log_distance: row.distance_mpc.log10(),
             log_sigma: row.log_sigma,
             log_mbulge,
+            mbh_err_dex: if upper_limit {
+                (0.0, 0.0)
+            } else {
+                (
+                    with_distance(
+                        row.mbh_err_minus_dex.or(row.mbh_err_dex).unwrap_or(0.0),
+                        kind_y,
+                    ),
+                    with_distance(
+                        row.mbh_err_plus_dex.or(row.mbh_err_dex).unwrap_or(0.0),
+                        kind_y,
+                    ),
+                )
+            },
+            mbh_reference: row.mbh_reference.clone().unwrap_or_default(),
         });
     }
     sample
@@ -345,6 +367,7 @@ mod tests {
             mbh_method: Some("stellar_dynamics".to_owned()),
             mbh_source_distance_mpc: Some(16.5),
             mbh_resolution_arcsec: Some(0.1),
+            mbh_reference: Some("Invented et al. 2020".to_owned()),
             log_sigma: Some(200f64.log10()),
             sigma_err_dex: Some(0.02),
             sigma_definition: Some("sigma_e".to_owned()),

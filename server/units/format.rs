@@ -99,6 +99,50 @@ fn decimals_of(place: i32) -> usize {
 /// alike. The minus is U+2212.
 #[must_use]
 pub fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<String> {
+    rounded_column(items, bare_decimals)
+        .into_iter()
+        .map(|r| match r {
+            Rounded::Missing => "—".to_owned(),
+            Rounded::Bare(value) => value,
+            Rounded::Limit(value) => format!("< {value}"),
+            Rounded::WithErrors { value, minus, plus } => join_errors(value, minus, plus),
+        })
+        .collect()
+}
+
+/// One value of a column rounded by the rule of [`with_errors_column`], in parts, for formats
+/// that write the value and its errors their own way (a LaTeX table's `^{+a}_{-b}`). Numbers
+/// use the minus sign U+2212.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Rounded {
+    /// The value is not a number.
+    Missing,
+    /// A value without an error.
+    Bare(String),
+    /// An upper limit: its value.
+    Limit(String),
+    /// A value with its lower and upper errors (magnitudes), rounded to the same place.
+    WithErrors {
+        /// The value.
+        value: String,
+        /// The error below it.
+        minus: String,
+        /// The error above it.
+        plus: String,
+    },
+}
+
+impl Rounded {
+    /// Whether the two errors read alike once rounded (written "± e" rather than "+a/−b").
+    #[must_use]
+    pub fn symmetric(&self) -> bool {
+        matches!(self, Rounded::WithErrors { minus, plus, .. } if minus == plus)
+    }
+}
+
+/// Every value of one table column rounded by the rule of [`with_errors_column`], in parts.
+#[must_use]
+pub fn rounded_column(items: &[Uncertain], bare_decimals: usize) -> Vec<Rounded> {
     let places: Vec<Option<i32>> = items.iter().map(Uncertain::place).collect();
     let coarsest = places.iter().flatten().copied().max();
     items
@@ -106,14 +150,14 @@ pub fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<Stri
         .zip(&places)
         .map(|(item, place)| {
             if !item.value.is_finite() {
-                return "—".to_owned();
+                return Rounded::Missing;
             }
             let Some(own) = *place else {
                 let value = fixed_minus(item.value, coarsest.map_or(bare_decimals, decimals_of));
                 return if item.upper_limit {
-                    format!("< {value}")
+                    Rounded::Limit(value)
                 } else {
-                    value
+                    Rounded::Bare(value)
                 };
             };
             let place = coarsest.map_or(own, |c| c.min(own + 1));
@@ -129,7 +173,11 @@ pub fn with_errors_column(items: &[Uncertain], bare_decimals: usize) -> Vec<Stri
                     fixed_minus(x, decimals_of(place))
                 }
             };
-            join_errors(show(item.value), show(minus), show(plus))
+            Rounded::WithErrors {
+                value: show(item.value),
+                minus: show(minus),
+                plus: show(plus),
+            }
         })
         .collect()
 }

@@ -110,7 +110,9 @@ mod quantity;
 mod ranges;
 
 pub use errors::EntryError;
-pub use format::{Uncertain, format_log_with_errors, with_errors, with_errors_column};
+pub use format::{
+    Rounded, Uncertain, format_log_with_errors, rounded_column, with_errors, with_errors_column,
+};
 pub use grammar::{Entry, LinearEntry, parse_entry, parse_linear};
 pub use quantity::{Quantity, Scale, UnknownNameError};
 pub use ranges::{

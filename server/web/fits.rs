@@ -8,11 +8,12 @@ use axum::extract::{Path, State};
 
 use super::display::{Uncertain, VersionNote, readable_utc, with_errors};
 use super::relations::{
-    CiteView, CovRow, Grouping, ParamView, RelationQuery, filter_words, fit_views, method_label,
+    CiteView, CovRow, Grouping, ParamView, RelationQuery, fit_views, method_label,
     relation_chart_svg, with_version,
 };
 use crate::catalog::history::{Pinned, VersionAsk};
 use crate::error::AppResult;
+use crate::export::filter_words;
 use crate::relations::citation::{self, FIT_CODE_VERSION};
 use crate::state::AppState;
 

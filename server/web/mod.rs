@@ -13,6 +13,7 @@ mod api_page;
 mod display;
 mod error_page;
 mod escape;
+mod exports;
 mod fits;
 mod galaxies;
 mod login;
@@ -93,6 +94,30 @@ fn routes() -> Routes {
             "/relations/{relation}/sample.csv",
             Read,
             get(relations::download_sample),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/sample.vot",
+            Read,
+            get(exports::sample_vot),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/sample.tex",
+            Read,
+            get(exports::sample_tex),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/fit.tex",
+            Read,
+            get(exports::fit_tex),
+        )
+        .add(
+            Method::GET,
+            "/relations/{relation}/methods.txt",
+            Read,
+            get(exports::methods_txt),
         )
         .add(
             Method::POST,
@@ -201,6 +226,7 @@ fn routes() -> Routes {
             Read,
             get(submissions::download_catalog_json),
         )
+        .add(Method::GET, "/catalog.vot", Read, get(exports::catalog_vot))
         .add(
             Method::GET,
             "/submissions/{id}",

@@ -13,7 +13,6 @@ use axum::response::{IntoResponse, Redirect, Response};
 
 use super::display::{Uncertain, VersionNote, fixed, significant, with_errors};
 use crate::auth::Principal;
-use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::history::{Pinned, VersionAsk};
 use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology};
 use crate::charts::{
@@ -680,20 +679,6 @@ pub(crate) struct ParamView {
     /// and BCES give ε so).
     pub(crate) no_interval: Option<&'static str>,
     pub(crate) unit: String,
-}
-
-/// Why a parameter has no interval, for the estimators that give a value without an error: FITEXY
-/// sets ε so that χ²/dof = 1 (Tremaine et al. 2002); BCES takes it from the residual variance
-/// less the measurement variance (docs/methods.md §2.3, §2.4). `None` when it has an error.
-fn no_interval_note(method: Method, error: f64) -> Option<&'static str> {
-    if error.is_finite() && error > 0.0 {
-        return None;
-    }
-    Some(match method {
-        Method::Fitexy => "set so that χ²/dof = 1; no interval",
-        Method::Bces(_) => "residual variance less the measurement variance; no interval",
-        _ => "no interval reported",
-    })
 }
 
 /// "lo – hi" with as many decimals as the error's two significant digits need.
@@ -1526,7 +1511,7 @@ pub(crate) fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<Co
             value: with_error(iv.estimate, iv.error),
             interval68: interval_text(iv.p16, iv.p84, iv.error),
             interval95: interval_text(iv.p2_5, iv.p97_5, iv.error),
-            no_interval: no_interval_note(f.spec.method, iv.error),
+            no_interval: crate::export::no_interval_note(f.spec.method, iv.error),
             unit,
         })
     };
@@ -1828,7 +1813,7 @@ impl SampleSummary {
             size: sample_size(sample.n_detections(), sample.n_limits()),
             limits_note: q.fit.limits_left_out(sample).map(|l| l.sentence),
             method: method_label(q.fit.method),
-            filter_text: filter_words(&outcome.key.filter),
+            filter_text: crate::export::filter_words(&outcome.key.filter),
             n_detections: sample.n_detections(),
             n_limits: sample.n_limits(),
             sigma_note: (relation.uses_sigma() && sample.left_out_sigma_definition > 0).then(
@@ -1856,37 +1841,6 @@ impl SampleSummary {
             fit_note: method_note(q.fit.method).to_owned(),
         }
     }
-}
-
-/// A fit's canonical sample text (`SampleFilter::canonical`: "morphology=any;bulge_kind=pseudo;…")
-/// in words: "morphology any; bulge pseudo; …". A part it cannot read is shown as it is.
-pub(crate) fn filter_words(canonical: &str) -> String {
-    canonical
-        .split(';')
-        .map(|part| {
-            let Some((key, value)) = part.split_once('=') else {
-                return super::display::code_label(part);
-            };
-            let name = match key {
-                "bulge_kind" => "bulge",
-                "centre_kind" => "centre",
-                "mass_method" => "mass method",
-                "soi" => "sphere of influence",
-                "sigma_definition" => "σ definition",
-                "limits" => "upper limits",
-                other => other,
-            };
-            let value = match (key, value) {
-                ("soi", "resolved") => "resolved only".to_owned(),
-                ("limits", "include") => "included".to_owned(),
-                ("limits", "exclude") => "left out".to_owned(),
-                ("limits", "auto") => "as the estimator allows".to_owned(),
-                (_, v) => super::display::code_label(v),
-            };
-            format!("{name} {value}")
-        })
-        .collect::<Vec<_>>()
-        .join("; ")
 }
 
 pub(crate) fn method_label(m: Method) -> &'static str {
@@ -2055,51 +2009,8 @@ pub(crate) async fn download_sample(
     let q = read_query(&t)?;
     let outcome = fit_for(&t, &q).await?;
     let relation = &t.relation;
-    let unit = relation.x_unit();
-    let mut w = csv::Writer::from_writer(Vec::new());
-    let header = [
-        "galaxy".to_owned(),
-        "slug".to_owned(),
-        "morphology".to_owned(),
-        "bulge_kind".to_owned(),
-        "centre_kind".to_owned(),
-        "mass_method".to_owned(),
-        format!("x [{unit}]"),
-        "x_err [dex]".to_owned(),
-        "x2 [log10 M_sun]".to_owned(),
-        "x2_err [dex]".to_owned(),
-        "log_mbh [log10 M_sun, at adopted distance]".to_owned(),
-        "log_mbh_err [dex]".to_owned(),
-        "xy_cov [dex^2]".to_owned(),
-        "upper_limit".to_owned(),
-    ];
-    w.write_record(&header).map_err(anyhow::Error::from)?;
-    for (p, m) in outcome.sample.points.iter().zip(&outcome.sample.members) {
-        w.write_record([
-            // Text columns pass through the formula guard; the numbers are ours.
-            guard_text_cell(&m.name).into_owned(),
-            guard_text_cell(&m.slug).into_owned(),
-            guard_text_cell(&m.morphology).into_owned(),
-            guard_text_cell(&m.bulge_kind).into_owned(),
-            guard_text_cell(&m.centre_kind).into_owned(),
-            guard_text_cell(&m.mass_method).into_owned(),
-            format!("{:.4}", p.x),
-            format!("{:.4}", p.x_err),
-            p.x2.map_or(String::new(), |v| format!("{v:.4}")),
-            if p.x2.is_some() {
-                format!("{:.4}", p.x2_err)
-            } else {
-                String::new()
-            },
-            format!("{:.4}", p.y),
-            format!("{:.4}", p.y_err),
-            format!("{:.6}", p.xy_cov),
-            if p.upper_limit { "1" } else { "0" }.to_owned(),
-        ])
-        .map_err(anyhow::Error::from)?;
-    }
-    let bytes = w.into_inner().map_err(|e| anyhow::anyhow!("{e}"))?;
-    let text = String::from_utf8(bytes).map_err(anyhow::Error::from)?;
+    // The columns are `export::sample`'s, shared with the VOTable and LaTeX files.
+    let text = crate::export::sample_csv(&outcome, relation)?;
     Ok(download(
         &t.pinned,
         "text/csv; charset=utf-8",
@@ -2146,17 +2057,6 @@ pub(crate) fn download(
 mod tests {
     use super::*;
     use crate::relations::test_pairs as pairs;
-
-    #[test]
-    fn the_sample_is_described_in_words_not_codes() {
-        let words = filter_words(
-            "morphology=any;bulge_kind=pseudo;centre_kind=power_law;mass_method=stellar_dynamics;soi=resolved;sigma_definition=sigma_e;limits=exclude",
-        );
-        assert_eq!(
-            words,
-            "morphology any; bulge pseudo; centre power law; mass method stellar dynamics; sphere of influence resolved only; σ definition σ_e (within r_e); upper limits left out"
-        );
-    }
 
     #[test]
     fn the_query_round_trips_and_names_bad_parameters() {

@@ -1169,7 +1169,7 @@ pub(crate) async fn download_catalog_json(
 }
 
 /// The version a catalog file is asked for; it takes no other parameter.
-async fn file_version(
+pub(super) async fn file_version(
     state: &AppState,
     query: Result<axum::extract::Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<crate::catalog::history::Pinned> {
@@ -1185,7 +1185,7 @@ async fn file_version(
 
 /// A catalog export as a download named after its version, with the version in a header too;
 /// a past version's file never changes ([`crate::router::Immutable`]).
-fn catalog_file(
+pub(super) fn catalog_file(
     pinned: &crate::catalog::history::Pinned,
     text: String,
     version: i64,

@@ -30,12 +30,15 @@ impl Dice {
 }
 
 /// The files whose bytes a version must keep.
-const FILES: [&str; 5] = [
+const FILES: [&str; 8] = [
     "/relations/m_sigma/fit.json",
     "/relations/m_sigma/sample.csv",
     "/relations/m_mbulge/fit.json?method=conditional",
     "/catalog.csv",
     "/catalog.json",
+    "/relations/m_sigma/sample.vot",
+    "/relations/m_sigma/sample.tex",
+    "/catalog.vot",
 ];
 
 /// The file at `path`, `?version=N` (or `&version=N`) added when `version` is given.
