@@ -108,3 +108,135 @@ pub async fn releases_of(pool: &SqlitePool, version: i64) -> sqlx::Result<Vec<St
         .fetch_all(pool)
         .await
 }
+
+/// Longest release name (migration 8).
+pub const RELEASE_NAME_MAX: usize = 40;
+/// Longest release note (migration 8).
+pub const RELEASE_NOTE_MAX: usize = 2000;
+
+/// Why a release cannot be named; each message one sentence.
+#[derive(Debug, thiserror::Error)]
+pub enum ReleaseError {
+    /// The name breaks the naming rule.
+    #[error(
+        "A release name has 1 to 40 letters, digits, '.', '-' or '_' (for example 2027A); '{0}' does not."
+    )]
+    BadName(String),
+    /// The name is taken: a release never changes or moves.
+    #[error(
+        "The name '{name}' already names catalog version {version}; a release never changes or moves, so choose another name."
+    )]
+    Taken {
+        /// The name.
+        name: String,
+        /// The version it names.
+        version: i64,
+    },
+    /// The version is not one the history can rebuild.
+    #[error(
+        "Catalog version {asked} cannot be released: releases name versions {from} to {current}, the versions the history keeps."
+    )]
+    NoSuchVersion {
+        /// The version asked for.
+        asked: i64,
+        /// The first version the history holds.
+        from: i64,
+        /// The current version.
+        current: i64,
+    },
+    /// The note is too long.
+    #[error("A release note has at most 2000 characters; this one has {0}.")]
+    NoteTooLong(usize),
+    /// The database failed.
+    #[error(transparent)]
+    Db(#[from] sqlx::Error),
+}
+
+/// Whether `name` may name a release: 1 to [`RELEASE_NAME_MAX`] ASCII letters, digits, `.`,
+/// `-`, `_` (the schema's check).
+pub fn valid_release_name(name: &str) -> bool {
+    (1..=RELEASE_NAME_MAX).contains(&name.len())
+        && name
+            .bytes()
+            .all(|b| b.is_ascii_alphanumeric() || b"._-".contains(&b))
+}
+
+/// Names catalog version `version` as release `name` with `note`, in one transaction with the
+/// audit event `release_named`. A release adopts nothing, so the catalog version stays. Returns
+/// the release as stored.
+///
+/// # Errors
+/// [`ReleaseError`]: a bad name or note, a taken name, a version outside the history, or a
+/// database failure.
+pub async fn name_release(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    name: &str,
+    version: i64,
+    note: &str,
+) -> Result<Release, ReleaseError> {
+    let name = name.trim();
+    let note = note.trim();
+    if !valid_release_name(name) {
+        return Err(ReleaseError::BadName(name.chars().take(60).collect()));
+    }
+    let note_chars = note.chars().count();
+    if note_chars > RELEASE_NOTE_MAX {
+        return Err(ReleaseError::NoteTooLong(note_chars));
+    }
+    let mut tx = super::begin_write(pool).await?;
+    let (current, from): (i64, i64) = sqlx::query_as(
+        "select catalog_version, history_from_version from catalog_state where catalog_state_id = 1",
+    )
+    .fetch_one(&mut *tx)
+    .await?;
+    if version < from || version > current {
+        return Err(ReleaseError::NoSuchVersion {
+            asked: version,
+            from,
+            current,
+        });
+    }
+    let taken: Option<i64> =
+        sqlx::query_scalar("select catalog_version from catalog_release where name = ?")
+            .bind(name)
+            .fetch_optional(&mut *tx)
+            .await?;
+    if let Some(taken) = taken {
+        return Err(ReleaseError::Taken {
+            name: name.to_owned(),
+            version: taken,
+        });
+    }
+    let id: i64 = sqlx::query_scalar(
+        "insert into catalog_release (name, catalog_version, note, account_id)
+         values (?, ?, ?, ?) returning catalog_release_id",
+    )
+    .bind(name)
+    .bind(version)
+    .bind(note)
+    .bind(account_id)
+    .fetch_one(&mut *tx)
+    .await?;
+    super::history::record(
+        &mut tx,
+        &super::history::NewEvent {
+            account_id,
+            action: "release_named",
+            entity: "catalog_release",
+            entity_id: Some(id),
+            summary: format!("Catalog version {version} released as {name}."),
+        },
+    )
+    .await?;
+    let release = sqlx::query_as(
+        "select r.name, r.catalog_version, r.note, a.username, r.created_at
+           from catalog_release r left join account a on a.account_id = r.account_id
+          where r.catalog_release_id = ?",
+    )
+    .bind(id)
+    .fetch_one(&mut *tx)
+    .await?;
+    tx.commit().await?;
+    Ok(release)
+}
