@@ -240,3 +240,16 @@ pub async fn name_release(
     tx.commit().await?;
     Ok(release)
 }
+
+/// The version a "what changed" link of `releases[index]` starts from: the newest older
+/// version among the releases after it in the list (newest first, as [`releases`] reads
+/// them), else the first version of the history; None when the release names that version.
+pub fn previous_version(releases: &[Release], index: usize, history_from: i64) -> Option<i64> {
+    let version = releases.get(index)?.catalog_version;
+    releases
+        .iter()
+        .skip(index + 1)
+        .map(|r| r.catalog_version)
+        .find(|v| *v < version)
+        .or((history_from < version).then_some(history_from))
+}

@@ -557,20 +557,38 @@ pub(crate) struct RelationsListPage {
     nav: super::Nav,
     relations: Vec<RelationSummary>,
     catalog_version: i64,
+    /// The release asked for, if any.
+    release: Option<String>,
+    /// `?version=N` or `?release=NAME` for the links, empty for the current version.
+    version_query: String,
     /// Said while a fit of the current version is still being computed.
     computing: Option<String>,
 }
 
-/// Show every relation with its current structural fit.
+/// Show every relation with its structural fit at the version asked for (`?version=N`,
+/// `?release=NAME`; the current one by default).
 pub(crate) async fn list_relations(
     State(state): State<AppState>,
     nav: super::Nav,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<RelationsListPage> {
-    let (relations, catalog_version, computing) = summaries(&state.catalog()).await?;
+    let (catalog, pinned, ask, _) = versioned(&state, query).await?;
+    let (relations, catalog_version, computing) = summaries(&catalog).await?;
+    let version_query = ask.query();
     Ok(RelationsListPage {
         nav,
         relations,
-        catalog_version,
+        catalog_version: if pinned.asked {
+            pinned.version
+        } else {
+            catalog_version
+        },
+        release: pinned.release,
+        version_query: if version_query.is_empty() {
+            String::new()
+        } else {
+            format!("?{version_query}")
+        },
         computing: computing.map(|v| {
             format!(
                 "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."

@@ -68,11 +68,7 @@ async fn page(
     let list = citations::releases(&state.pool).await?;
     let mut releases = Vec::with_capacity(list.len());
     for (i, r) in list.iter().enumerate() {
-        let previous = list[i + 1..]
-            .iter()
-            .map(|p| p.catalog_version)
-            .find(|v| *v < r.catalog_version)
-            .or((history_from < r.catalog_version).then_some(history_from));
+        let previous = citations::previous_version(&list, i, history_from);
         let (fits, _, _) = summaries(&state.catalog().at(Some(r.catalog_version))).await?;
         let made_iso = history::made_at(&state.pool, r.catalog_version)
             .await?
