@@ -28,7 +28,7 @@ pub struct ChangesQuery {
     pub to: Option<i64>,
 }
 
-/// A galaxy first seen in the range.
+/// A galaxy whose first value was adopted in the range.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct GalaxyAddedJson {
     /// Name at the version `to`.

@@ -7,7 +7,7 @@
 
 use sqlx::SqlitePool;
 
-/// A galaxy whose first span starts in the range.
+/// A galaxy whose first adopted value came in the range.
 #[derive(Debug, Clone, PartialEq, Eq, sqlx::FromRow)]
 pub struct AddedGalaxy {
     /// Key.
@@ -16,7 +16,7 @@ pub struct AddedGalaxy {
     pub name: String,
     /// Its URL form at the range's end.
     pub slug: String,
-    /// The version that added it.
+    /// The version that adopted its first value.
     pub catalog_version: i64,
 }
 
@@ -89,14 +89,19 @@ pub struct DistanceChange {
     pub summary: Option<String>,
 }
 
-/// Galaxies first seen in (from, to], with their name at `to`, by version and name.
+/// Galaxies whose first adopted value came in (from, to], with their name at `to`, by
+/// version and name. A galaxy's own first span starts when the submission that names it
+/// arrives, pending; it joins the catalog's values only when one is adopted, so that is the
+/// version that added it (a galaxy whose submission was rejected is never added).
 ///
 /// # Errors
 /// Any database error.
 pub async fn galaxies_added(pool: &SqlitePool, from: i64, to: i64) -> sqlx::Result<Vec<AddedGalaxy>> {
     sqlx::query_as(
         "with first as (
-             select galaxy_id, min(valid_from_version) as v from galaxy_span group by galaxy_id
+             select galaxy_id, min(valid_from_version) as v from adopted_value_span
+              where valid_until_version is null or valid_until_version > valid_from_version
+           group by galaxy_id
          )
          select f.galaxy_id, s.name, s.slug, f.v as catalog_version
            from first f

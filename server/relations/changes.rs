@@ -172,7 +172,7 @@ pub struct Changes {
     pub from_made_at: Option<String>,
     /// The same for `to`.
     pub to_made_at: Option<String>,
-    /// Galaxies first seen in the range.
+    /// Galaxies whose first value was adopted in the range.
     pub galaxies_added: Vec<GalaxyAdded>,
     /// Values adopted or replaced in the range.
     pub values: Vec<stored::AdoptedChange>,
