@@ -278,6 +278,9 @@ pub async fn catalog_changes(
             RangeError::NotForward => {
                 AppError::invalid(vec![FieldError::new("from", e.to_string())])
             }
+            RangeError::NothingBefore(_) => {
+                AppError::invalid(vec![FieldError::new("to", e.to_string())])
+            }
             RangeError::Version(v) => v.into(),
         })?;
     let c = changes(&state.catalog(), from, to).await?;

@@ -81,6 +81,12 @@ pub enum RangeError {
     /// from ≥ to.
     #[error("{NOT_FORWARD}")]
     NotForward,
+    /// `to` is the first version the history keeps and `from` was left out: there is no
+    /// earlier version to compare with.
+    #[error(
+        "Catalog version {0} is the first the history keeps: there is no earlier version to compare it with; give a later 'to'."
+    )]
+    NothingBefore(i64),
     /// A version outside the history or not made yet (`history::resolve`).
     #[error(transparent)]
     Version(#[from] history::VersionError),
@@ -90,7 +96,8 @@ pub enum RangeError {
 /// version and `from` to `to − 1`.
 ///
 /// # Errors
-/// [`RangeError::NotForward`] when from ≥ to; a version not made yet, older than the history,
+/// [`RangeError::NotForward`] when from ≥ to, [`RangeError::NothingBefore`] when `to` is
+/// the first version of the history and `from` is left out; a version not made yet, older than the history,
 /// or a database failure ([`RangeError::Version`]).
 pub async fn resolve_range(
     pool: &sqlx::SqlitePool,
@@ -104,7 +111,13 @@ pub async fn resolve_range(
         &ask.to.map_or(VersionAsk::Current, VersionAsk::Number),
     )
     .await?;
-    let from = ask.from.unwrap_or(to.version - 1);
+    let from = match ask.from {
+        Some(from) => from,
+        None if to.version <= history::history_from(pool).await.map_err(history::VersionError::Db)? => {
+            return Err(RangeError::NothingBefore(to.version));
+        }
+        None => to.version - 1,
+    };
     if from >= to.version {
         return Err(RangeError::NotForward);
     }

@@ -224,7 +224,9 @@ pub(crate) async fn range(
     let ask = RangeAsk::read(&pairs)
         .map_err(|e| AppError::bad_request(join_problems(e.into_iter().map(|f| f.message))))?;
     let (from, to) = resolve_range(&state.pool, ask).await.map_err(|e| match e {
-        RangeError::NotForward => AppError::bad_request(e.to_string()),
+        RangeError::NotForward | RangeError::NothingBefore(_) => {
+            AppError::bad_request(e.to_string())
+        }
         RangeError::Version(v) => v.into(),
     })?;
     Ok(changes(&state.catalog(), from, to).await?)
