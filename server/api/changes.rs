@@ -272,17 +272,13 @@ pub async fn catalog_changes(
 ) -> ApiResult<Response> {
     let pairs = super::query_pairs(query)?;
     let ask = RangeAsk::read(&pairs).map_err(AppError::invalid)?;
-    let (from, to) = resolve_range(&state.pool, ask)
-        .await
-        .map_err(|e| match e {
-            RangeError::NotForward => {
-                AppError::invalid(vec![FieldError::new("from", e.to_string())])
-            }
-            RangeError::NothingBefore(_) => {
-                AppError::invalid(vec![FieldError::new("to", e.to_string())])
-            }
-            RangeError::Version(v) => v.into(),
-        })?;
+    let (from, to) = resolve_range(&state.pool, ask).await.map_err(|e| match e {
+        RangeError::NotForward => AppError::invalid(vec![FieldError::new("from", e.to_string())]),
+        RangeError::NothingBefore(_) => {
+            AppError::invalid(vec![FieldError::new("to", e.to_string())])
+        }
+        RangeError::Version(v) => v.into(),
+    })?;
     let c = changes(&state.catalog(), from, to).await?;
     let past = c.to.is_past();
     let mut response = axum::Json(ChangesJson::of(&c)).into_response();

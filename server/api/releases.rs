@@ -69,9 +69,8 @@ pub async fn list_releases(State(state): State<AppState>) -> ApiResult<axum::Jso
             named_by: r.username.clone(),
             named_at: r.created_at.clone(),
             catalog_url: format!("/api/v1/catalog.json?release={}", r.name),
-            changes_url: previous.map(|p| {
-                format!("/api/v1/changes?from={p}&to={}", r.catalog_version)
-            }),
+            changes_url: previous
+                .map(|p| format!("/api/v1/changes?from={p}&to={}", r.catalog_version)),
         });
     }
     Ok(axum::Json(ReleaseList {

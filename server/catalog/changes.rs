@@ -96,7 +96,11 @@ pub struct DistanceChange {
 ///
 /// # Errors
 /// Any database error.
-pub async fn galaxies_added(pool: &SqlitePool, from: i64, to: i64) -> sqlx::Result<Vec<AddedGalaxy>> {
+pub async fn galaxies_added(
+    pool: &SqlitePool,
+    from: i64,
+    to: i64,
+) -> sqlx::Result<Vec<AddedGalaxy>> {
     sqlx::query_as(
         "with first as (
              select galaxy_id, min(valid_from_version) as v from adopted_value_span

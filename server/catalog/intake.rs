@@ -114,9 +114,10 @@ pub fn distance_from_cells<'a>(
     let mut errors = Vec::new();
     let err = match (&distance, err) {
         (Ok(d), Ok(e)) if e >= *d => {
-            errors.push(field("distance_err_mpc").error(
-                "the distance error must be smaller than the distance".into(),
-            ));
+            errors.push(
+                field("distance_err_mpc")
+                    .error("the distance error must be smaller than the distance".into()),
+            );
             None
         }
         (_, Ok(e)) => Some(e),

@@ -46,10 +46,7 @@ impl RangeAsk {
             };
             let text = value.trim();
             if slot.is_some() {
-                problems.push(FieldError::new(
-                    key.as_str(),
-                    format!("Give '{key}' once."),
-                ));
+                problems.push(FieldError::new(key.as_str(), format!("Give '{key}' once.")));
                 continue;
             }
             match text.parse::<i64>() {
@@ -113,7 +110,11 @@ pub async fn resolve_range(
     .await?;
     let from = match ask.from {
         Some(from) => from,
-        None if to.version <= history::history_from(pool).await.map_err(history::VersionError::Db)? => {
+        None if to.version
+            <= history::history_from(pool)
+                .await
+                .map_err(history::VersionError::Db)? =>
+        {
             return Err(RangeError::NothingBefore(to.version));
         }
         None => to.version - 1,
@@ -212,8 +213,7 @@ pub fn accepted_by(change: &stored::AdoptedChange) -> String {
 /// None when both errors are zero or any input is not finite.
 pub fn significance(delta: f64, err_from: f64, err_to: f64) -> Option<f64> {
     let denominator = err_from.hypot(err_to);
-    (delta.is_finite() && denominator.is_finite() && denominator > 0.0)
-        .then(|| delta / denominator)
+    (delta.is_finite() && denominator.is_finite() && denominator > 0.0).then(|| delta / denominator)
 }
 
 /// The relations of a catalog version (those with a valid band).
@@ -254,7 +254,11 @@ async fn default_fit(
             fit.n,
             COMPARED
                 .iter()
-                .filter_map(|name| fit.intervals.get(name).map(|iv| (*name, iv.estimate, iv.error)))
+                .filter_map(|name| {
+                    fit.intervals
+                        .get(name)
+                        .map(|iv| (*name, iv.estimate, iv.error))
+                })
                 .collect(),
         )),
         Err(e) => Err(e.to_string()),

@@ -11,8 +11,7 @@ use super::display::{Uncertain, code_label, fixed, readable_utc, signed, with_er
 use crate::catalog::changes::{AdoptedChange, DistanceChange};
 use crate::error::{AppError, AppResult, join_problems};
 use crate::relations::changes::{
-    Changes, GalaxyAdded, RangeAsk, RangeError, RelationChange, accepted_by, changes,
-    resolve_range,
+    Changes, GalaxyAdded, RangeAsk, RangeError, RelationChange, accepted_by, changes, resolve_range,
 };
 use crate::state::AppState;
 use crate::units::Quantity;
@@ -85,7 +84,8 @@ pub(crate) struct ChangesPage {
 
 /// A quantity and band in words ("black-hole mass", "bulge luminosity (K)").
 pub(crate) fn quantity_words(quantity: &str, band: &str) -> String {
-    let label = Quantity::parse_measured(quantity).map_or_else(|_| code_label(quantity), |q| q.label().to_owned());
+    let label = Quantity::parse_measured(quantity)
+        .map_or_else(|_| code_label(quantity), |q| q.label().to_owned());
     if band.is_empty() {
         label
     } else {
@@ -126,7 +126,10 @@ impl ValueView {
             galaxy: c.galaxy_name.clone(),
             slug: c.slug.clone(),
             quantity: quantity_words(&c.quantity, &c.band),
-            old: c.old_value_text.clone().unwrap_or_else(|| "none".to_owned()),
+            old: c
+                .old_value_text
+                .clone()
+                .unwrap_or_else(|| "none".to_owned()),
             new: c.new_value_text.clone(),
             version: c.catalog_version,
             by: accepted_by(c),

@@ -15,10 +15,7 @@ use crate::helpers::{TestApp, spawn_demo_app};
 /// A measurement from the cells a form or file would carry.
 fn measurement(cells: &[(&str, &str)]) -> massline::catalog::model::NewMeasurement {
     massline::catalog::intake::measurement_from_cells("test", 0, &|c| {
-        cells
-            .iter()
-            .find(|(k, _)| *k == c)
-            .map_or("", |(_, v)| *v)
+        cells.iter().find(|(k, _)| *k == c).map_or("", |(_, v)| *v)
     })
     .expect("a valid measurement")
 }
@@ -227,18 +224,35 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
             ],
         }])
     );
-    let change = |galaxy: &str, slug: &str, q: &str, old: Option<&str>, new: &str, v: i64, note: &str| {
-        json!({
-            "galaxy": galaxy, "slug": slug, "quantity": q, "band": "",
-            "old_value_text": old, "new_value_text": new, "catalog_version": v,
-            "accepted_by": "chg-reviewer", "review_note": note,
-        })
-    };
+    let change =
+        |galaxy: &str, slug: &str, q: &str, old: Option<&str>, new: &str, v: i64, note: &str| {
+            json!({
+                "galaxy": galaxy, "slug": slug, "quantity": q, "band": "",
+                "old_value_text": old, "new_value_text": new, "catalog_version": v,
+                "accepted_by": "chg-reviewer", "review_note": note,
+            })
+        };
     assert_eq!(
         c["values"],
         json!([
-            change(&replaced_name, &replaced_slug, "bh_mass", Some(old_mass.as_str()), new_mass, v_replaced, "model checked"),
-            change(&new_name, &new_slug, "bh_mass", None, "log 8.9 ± 0.1", last, ""),
+            change(
+                &replaced_name,
+                &replaced_slug,
+                "bh_mass",
+                Some(old_mass.as_str()),
+                new_mass,
+                v_replaced,
+                "model checked"
+            ),
+            change(
+                &new_name,
+                &new_slug,
+                "bh_mass",
+                None,
+                "log 8.9 ± 0.1",
+                last,
+                ""
+            ),
             change(&new_name, &new_slug, "sigma", None, "250 ± 10", last, ""),
         ])
     );
@@ -253,7 +267,10 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
             "changed_by": "chg-reviewer", "note": "new calibration",
         }])
     );
-    assert!(!r.body.contains(rejected_value), "the rejected value is listed");
+    assert!(
+        !r.body.contains(rejected_value),
+        "the rejected value is listed"
+    );
 
     // Each relation's change is the difference of the two versions' fits.
     let relations = c["relations"].as_array().unwrap();
@@ -269,7 +286,11 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
             let (_, a, ea) = before.iter().find(|(n, ..)| n == name).unwrap();
             let (_, b, eb) = after.iter().find(|(n, ..)| n == name).unwrap();
             let delta = p["delta"].as_f64().unwrap();
-            assert!((delta - (b - a)).abs() < 1e-12, "{slug} {name}: {delta} vs {}", b - a);
+            assert!(
+                (delta - (b - a)).abs() < 1e-12,
+                "{slug} {name}: {delta} vs {}",
+                b - a
+            );
             let sig = p["significance_sigma"].as_f64().unwrap();
             assert!(
                 (sig - (b - a) / (ea * ea + eb * eb).sqrt()).abs() < 1e-9,
@@ -277,7 +298,10 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
             );
         }
     }
-    let m_sigma = relations.iter().find(|r| r["relation"] == "m_sigma").unwrap();
+    let m_sigma = relations
+        .iter()
+        .find(|r| r["relation"] == "m_sigma")
+        .unwrap();
     assert_eq!(
         m_sigma["n_to"].as_u64().unwrap(),
         m_sigma["n_from"].as_u64().unwrap() + 1,
@@ -305,7 +329,10 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
         assert_eq!(demo.status, 200, "{}", demo.body);
         let values = demo.json()["values"].as_array().unwrap().clone();
         assert!(!values.is_empty());
-        assert!(values.iter().all(|v| v["accepted_by"] == "demo load"), "{values:?}");
+        assert!(
+            values.iter().all(|v| v["accepted_by"] == "demo load"),
+            "{values:?}"
+        );
     } else {
         // Nothing before the first version of the history to compare with.
         demo.problem(422);
@@ -335,7 +362,9 @@ async fn bad_ranges_are_refused_with_a_sentence_and_past_ranges_never_change() {
         .await
         .unwrap();
     }
-    let (status, body) = app.get(&format!("/changes?from={}&to={first}", first + 1)).await;
+    let (status, body) = app
+        .get(&format!("/changes?from={}&to={first}", first + 1))
+        .await;
     assert_eq!(status, 400);
     assert!(body.contains("from must be before to"), "{body}");
     let (status, body) = app.get("/changes?from=soon").await;
@@ -344,17 +373,27 @@ async fn bad_ranges_are_refused_with_a_sentence_and_past_ranges_never_change() {
     let (status, _) = app.get("/changes?to=9999").await;
     assert_eq!(status, 404);
     let r = app
-        .get_with_token(&format!("/api/v1/changes?from={}&to={first}", first + 2), None)
+        .get_with_token(
+            &format!("/api/v1/changes?from={}&to={first}", first + 2),
+            None,
+        )
         .await;
     r.problem(422);
     let r = app.get_with_token("/api/v1/changes?to=-3", None).await;
     r.problem(422);
     // Past only: immutable; up to the current version: not.
     let r = app
-        .get_with_token(&format!("/api/v1/changes?from={first}&to={}", first + 1), None)
+        .get_with_token(
+            &format!("/api/v1/changes?from={first}&to={}", first + 1),
+            None,
+        )
         .await;
     assert_eq!(r.status, 200, "{}", r.body);
-    assert!(r.header("cache-control").contains("immutable"), "{:?}", r.headers);
+    assert!(
+        r.header("cache-control").contains("immutable"),
+        "{:?}",
+        r.headers
+    );
     assert_eq!(r.json()["distances"].as_array().unwrap().len(), 1);
     let r = app.get_with_token("/api/v1/changes", None).await;
     assert_eq!(r.status, 200, "{}", r.body);
@@ -371,7 +410,11 @@ async fn an_admin_names_a_release_that_never_moves_and_its_pages_read_that_versi
     let r = admin
         .post(
             "/releases",
-            &[("name", "2027A"), ("version", ""), ("note", "for the survey paper")],
+            &[
+                ("name", "2027A"),
+                ("version", ""),
+                ("note", "for the survey paper"),
+            ],
         )
         .await;
     assert_eq!(r.status, 303, "{}", r.body);
@@ -414,7 +457,10 @@ async fn an_admin_names_a_release_that_never_moves_and_its_pages_read_that_versi
         taken.body
     );
     let bad = admin
-        .post("/releases", &[("name", "a b"), ("version", "1"), ("note", "")])
+        .post(
+            "/releases",
+            &[("name", "a b"), ("version", "1"), ("note", "")],
+        )
         .await;
     assert_eq!(bad.status, 400);
     assert!(bad.body.contains("id=\"e-name\""), "{}", bad.body);
@@ -425,7 +471,10 @@ async fn an_admin_names_a_release_that_never_moves_and_its_pages_read_that_versi
     let mut member = app.login_as(Role::Member).await;
     member.get("/releases").await;
     let r = member
-        .post("/releases", &[("name", "2027B"), ("version", ""), ("note", "")])
+        .post(
+            "/releases",
+            &[("name", "2027B"), ("version", ""), ("note", "")],
+        )
         .await;
     assert_eq!(r.status, 403);
 
@@ -439,7 +488,10 @@ async fn an_admin_names_a_release_that_never_moves_and_its_pages_read_that_versi
     let (status, page) = app.get("/relations/m_sigma?release=2027A").await;
     assert_eq!(status, 200, "{page}");
     let (_, list) = app.get("/relations?release=2027A").await;
-    assert!(list.contains(&format!("id=\"catalog-version\">{released}<")), "{list}");
+    assert!(
+        list.contains(&format!("id=\"catalog-version\">{released}<")),
+        "{list}"
+    );
 
     // /releases shows it with its fits: the α of M–σ as the relations list of that version
     // shows it.
@@ -457,7 +509,10 @@ async fn an_admin_names_a_release_that_never_moves_and_its_pages_read_that_versi
     assert!(page.contains("for the survey paper"));
     assert!(page.contains("/relations?release=2027A"));
     assert!(page.contains("/catalog.csv?release=2027A"));
-    assert!(page.contains(&format!("<td class=\"num\">{alpha}</td>")), "α {alpha} not on {page}");
+    assert!(
+        page.contains(&format!("<td class=\"num\">{alpha}</td>")),
+        "α {alpha} not on {page}"
+    );
     let api = app.get_with_token("/api/v1/releases", None).await;
     assert_eq!(api.status, 200);
     assert_eq!(api.json()["releases"][0]["name"], "2027A");
@@ -477,11 +532,19 @@ async fn a_reviewer_changes_a_distance_from_the_galaxy_page_and_bad_input_names_
 
     let mut member = app.login_as(Role::Member).await;
     let page = member.get(&format!("/galaxies/{slug}")).await;
-    assert!(!page.body.contains("name=\"distance_mpc\""), "a member sees no form");
+    assert!(
+        !page.body.contains("name=\"distance_mpc\""),
+        "a member sees no form"
+    );
     let r = member
         .post(
             &path,
-            &[("distance_mpc", "40"), ("distance_err_mpc", "2"), ("distance_method", "sbf"), ("note", "")],
+            &[
+                ("distance_mpc", "40"),
+                ("distance_err_mpc", "2"),
+                ("distance_method", "sbf"),
+                ("note", ""),
+            ],
         )
         .await;
     assert_eq!(r.status, 403);
@@ -492,13 +555,25 @@ async fn a_reviewer_changes_a_distance_from_the_galaxy_page_and_bad_input_names_
     let bad = reviewer
         .post(
             &path,
-            &[("distance_mpc", "far"), ("distance_err_mpc", ""), ("distance_method", "guess"), ("note", "")],
+            &[
+                ("distance_mpc", "far"),
+                ("distance_err_mpc", ""),
+                ("distance_method", "guess"),
+                ("note", ""),
+            ],
         )
         .await;
     assert_eq!(bad.status, 400, "{}", bad.body);
     for field in ["distance_mpc", "distance_err_mpc", "distance_method"] {
-        assert!(bad.body.contains(&format!("id=\"e-{field}\"")), "{field} not named: {}", bad.body);
-        assert!(bad.body.contains(&format!("aria-describedby=\"e-{field}\"")));
+        assert!(
+            bad.body.contains(&format!("id=\"e-{field}\"")),
+            "{field} not named: {}",
+            bad.body
+        );
+        assert!(
+            bad.body
+                .contains(&format!("aria-describedby=\"e-{field}\""))
+        );
     }
     assert_eq!(history::current_version(&app.pool).await.unwrap(), before);
 
@@ -519,10 +594,14 @@ async fn a_reviewer_changes_a_distance_from_the_galaxy_page_and_bad_input_names_
     let version = history::current_version(&app.pool).await.unwrap();
     assert_eq!(version, before + 1);
     let location = r.header("location");
-    assert_eq!(location, format!("/galaxies/{slug}?distance_changed={version}#distance"));
+    assert_eq!(
+        location,
+        format!("/galaxies/{slug}?distance_changed={version}#distance")
+    );
     let shown = reviewer.get(location.split('#').next().unwrap()).await;
     assert!(
-        shown.body.contains(&format!("catalog version {version}")) && shown.body.contains("class=\"flash\""),
+        shown.body.contains(&format!("catalog version {version}"))
+            && shown.body.contains("class=\"flash\""),
         "{}",
         shown.body
     );
@@ -530,7 +609,9 @@ async fn a_reviewer_changes_a_distance_from_the_galaxy_page_and_bad_input_names_
     assert_eq!((d, err, method.as_str()), (new_d, 2.5, "cepheid"));
     assert!(shown.body.contains("(Cepheids)"), "the new method is shown");
     // The address alone does not make the page claim a change to someone else.
-    let (_, other) = app.get(&format!("/galaxies/{slug}?distance_changed={version}")).await;
+    let (_, other) = app
+        .get(&format!("/galaxies/{slug}?distance_changed={version}"))
+        .await;
     assert!(!other.contains("class=\"flash\""));
 
     let changes = app.ok(&format!("/changes?to={version}")).await;
