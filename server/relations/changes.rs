@@ -227,12 +227,16 @@ async fn relations_at(catalog: &Catalog) -> anyhow::Result<Vec<Relation>> {
     ))
 }
 
-/// A relation's default fit at one version: (n, parameters by name) or why there is none.
+/// A default fit's size and its parameters as (name, reported value, error), or why there is
+/// none.
+type FitAt = Result<(usize, Vec<(&'static str, f64, f64)>), String>;
+
+/// A relation's default fit at one version.
 async fn default_fit(
     catalog: &Catalog,
     relation: &Relation,
     present: bool,
-) -> anyhow::Result<Result<(usize, Vec<(&'static str, f64, f64)>), String>> {
+) -> anyhow::Result<FitAt> {
     if !present {
         return Ok(Err(format!(
             "catalog version {} has no {} relation",
@@ -308,7 +312,7 @@ pub async fn changes(catalog: &Catalog, from: Pinned, to: Pinned) -> anyhow::Res
         let params = COMPARED
             .iter()
             .filter_map(|name| {
-                let find = |fit: &Result<(usize, Vec<(&'static str, f64, f64)>), String>| {
+                let find = |fit: &FitAt| {
                     fit.as_ref().ok().and_then(|(_, ps)| {
                         ps.iter()
                             .find(|(n, _, _)| n == name)

@@ -445,16 +445,16 @@ pub(crate) async fn change_distance(
             })
             .collect(),
     };
-    if let Ok(new) = &read {
-        if new.distance_mpc == galaxy.distance_mpc
-            && new.distance_err_mpc == galaxy.distance_err_mpc
-            && new.distance_method == galaxy.distance_method
-        {
-            errors.push((
-                "distance_mpc".into(),
-                "Distance: this is the distance already adopted; change the distance, its error or its method.".into(),
-            ));
-        }
+    // The same numbers as stored, bit for bit: a change nobody could see is refused.
+    if let Ok(new) = &read
+        && new.distance_mpc.to_bits() == galaxy.distance_mpc.to_bits()
+        && new.distance_err_mpc.to_bits() == galaxy.distance_err_mpc.to_bits()
+        && new.distance_method == galaxy.distance_method
+    {
+        errors.push((
+            "distance_mpc".into(),
+            "Distance: this is the distance already adopted; change the distance, its error or its method.".into(),
+        ));
     }
     let note_chars = fields.note.trim().chars().count();
     if note_chars > DISTANCE_NOTE_MAX {
