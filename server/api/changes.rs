@@ -118,7 +118,7 @@ pub struct ParamChangeJson {
     /// value_to − value_from.
     pub delta: Option<f64>,
     /// delta / √(error_from² + error_to²), treating the fits as independent: conservative
-    /// when the samples overlap (docs/methods.md §9).
+    /// when the samples overlap (docs/methods.md §10).
     pub significance_sigma: Option<f64>,
 }
 

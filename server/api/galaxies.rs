@@ -6,6 +6,7 @@
 use axum::Json;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
+use axum::response::IntoResponse;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
@@ -14,7 +15,7 @@ use super::relations::{BulgeKindWord, MassMethodWord, MorphologyWord};
 use super::{ApiResult, query_pairs};
 use crate::auth::Principal;
 use crate::error::{AppError, FieldError};
-use crate::relations::galaxy::{MeasurementAt, galaxy_record};
+use crate::relations::galaxy::{MeasurementAt, galaxy_record_at};
 use crate::relations::table::{MAX_PER_PAGE, TableQuery, TableRow, table_page};
 use crate::state::AppState;
 
@@ -149,6 +150,8 @@ pub struct GalaxyRow {
 /// One page of the catalog table.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct GalaxyPage {
+    /// The catalog version the table was read at.
+    pub catalog_version: i64,
     /// Galaxies matching the filters.
     pub total: usize,
     /// This page, from 1.
@@ -193,9 +196,11 @@ fn row_of(t: &TableRow) -> GalaxyRow {
     path = "/api/v1/galaxies",
     tag = "galaxies",
     operation_id = "list_galaxies",
-    params(GalaxyQuery),
+    params(GalaxyQuery, super::VersionQuery),
     responses(
         (status = 200, description = "One page of galaxies", body = GalaxyPage),
+        (status = 404, description = "No such catalog version or release", body = Problem, content_type = "application/problem+json"),
+        (status = 410, description = "A catalog version from before the history began", body = Problem, content_type = "application/problem+json"),
         (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
@@ -207,8 +212,8 @@ fn row_of(t: &TableRow) -> GalaxyRow {
 pub async fn list_galaxies(
     State(state): State<AppState>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-) -> ApiResult<Json<GalaxyPage>> {
-    let pairs = query_pairs(query)?;
+) -> ApiResult<axum::response::Response> {
+    let (pinned, pairs) = super::asked_version(&state, query_pairs(query)?).await?;
     // The page's parser, one parameter at a time, so each one at fault is named. An empty
     // value, which a page's form sends for "any", is refused here: leave the parameter out.
     let errors: Vec<FieldError> = pairs
@@ -235,15 +240,25 @@ pub async fn list_galaxies(
         )]));
     }
     let q = TableQuery::parse(&pairs).map_err(AppError::invalid_saying)?;
-    let (page_rows, total) = table_page(&state.catalog(), &q).await?;
+    let catalog = pinned
+        .as_ref()
+        .map_or_else(|| state.catalog(), |(c, _)| c.clone());
+    let catalog_version = catalog.rows().await?.version;
+    let (page_rows, total) = table_page(&catalog, &q).await?;
     debug_assert!(q.per_page <= MAX_PER_PAGE);
-    Ok(Json(GalaxyPage {
+    let answer = Json(GalaxyPage {
+        catalog_version,
         total,
         page: q.page,
         per_page: q.per_page,
         pages: total.div_ceil(q.per_page).max(1),
         galaxies: page_rows.iter().map(row_of).collect(),
-    }))
+    })
+    .into_response();
+    Ok(match &pinned {
+        Some((_, p)) => super::immutable_if_past(p, answer),
+        None => answer,
+    })
 }
 
 /// One measurement of a galaxy.
@@ -317,6 +332,9 @@ pub struct AdoptedValue {
 /// One galaxy with every measurement.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct GalaxyAnswer {
+    /// The catalog version the galaxy was read at (its properties and adopted values then;
+    /// at a past version, `measurements` are the ones adopted then).
+    pub catalog_version: i64,
     /// Name.
     pub name: String,
     /// URL form of the name.
@@ -349,12 +367,14 @@ pub struct GalaxyAnswer {
     path = "/api/v1/galaxies/{slug}",
     tag = "galaxies",
     operation_id = "show_galaxy",
-    params(("slug" = String, Path, description = "The galaxy's slug (from the list)")),
+    params(("slug" = String, Path, description = "The galaxy's slug (from the list)"), super::VersionQuery),
     responses(
         (status = 200, description = "The galaxy", body = GalaxyAnswer),
+        (status = 410, description = "A catalog version from before the history began", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "A parameter is invalid", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 404, description = "No such galaxy", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such galaxy (at that version), catalog version or release", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security(("bearer" = []))
@@ -363,18 +383,34 @@ pub async fn show_galaxy(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     Path(slug): Path<String>,
-) -> ApiResult<Json<GalaxyAnswer>> {
-    let record = galaxy_record(
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+) -> ApiResult<axum::response::Response> {
+    let (pinned, rest) = super::asked_version(&state, query_pairs(query)?).await?;
+    if let Some((key, _)) = rest.first() {
+        let name = key.chars().take(40).collect::<String>();
+        return Err(AppError::invalid(vec![FieldError::new(
+            name.as_str(),
+            format!("'{name}' is not a parameter of this endpoint (it accepts version, release)."),
+        )]));
+    }
+    let version = pinned.as_ref().map(|(_, p)| p.version);
+    let catalog_version = match version {
+        Some(v) => v,
+        None => crate::catalog::history::current_version(&state.pool).await?,
+    };
+    let record = galaxy_record_at(
         &state.pool,
         state.settings.soi_threshold,
         &slug,
         principal.unreviewed_shown(),
+        version,
     )
     .await?
     .ok_or_else(|| {
         AppError::not_found_saying(format!(
-            "There is no galaxy '{}'.",
-            slug.chars().take(80).collect::<String>()
+            "There is no galaxy '{}'{}.",
+            slug.chars().take(80).collect::<String>(),
+            version.map_or(String::new(), |v| format!(" in catalog version {v}"))
         ))
     })?;
     let adopted = record
@@ -397,7 +433,8 @@ pub async fn show_galaxy(
         .map(MeasurementAnswer::of)
         .collect();
     let g = record.galaxy;
-    Ok(Json(GalaxyAnswer {
+    let answer = Json(GalaxyAnswer {
+        catalog_version,
         name: g.name,
         slug: g.slug,
         morphology: g.morphology,
@@ -409,7 +446,12 @@ pub async fn show_galaxy(
         adopted,
         sphere_of_influence: soi,
         measurements,
-    }))
+    })
+    .into_response();
+    Ok(match &pinned {
+        Some((_, p)) => super::immutable_if_past(p, answer),
+        None => answer,
+    })
 }
 
 impl MeasurementAnswer {

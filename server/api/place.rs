@@ -15,6 +15,7 @@
 //! Fits: the structural fit of the whole catalog at its default pivots (as on the place
 //! page), from the fit cache.
 
+use axum::response::{IntoResponse, Response};
 use std::sync::Arc;
 
 use axum::Json;
@@ -293,10 +294,30 @@ async fn fits_for(
     version: i64,
     relations: Vec<Relation>,
     needed: &[bool],
+    pinned: Option<&crate::relations::Catalog>,
 ) -> ApiResult<Vec<(Relation, Option<Arc<FitOutcome>>)>> {
     let settings = crate::relations::FitChoice::default();
     let mut fits = Vec::with_capacity(relations.len());
     for (relation, need) in relations.into_iter().zip(needed) {
+        // A named version: its own fits, waited for (never an older version's).
+        if let Some(catalog) = pinned {
+            let outcome = if *need {
+                Some(
+                    catalog
+                        .fitted(
+                            &relation,
+                            settings.method,
+                            &settings.filter,
+                            settings.pivots(&relation),
+                        )
+                        .await?,
+                )
+            } else {
+                None
+            };
+            fits.push((relation, outcome));
+            continue;
+        }
         let outcome = if *need {
             let slug = relation.slug();
             match cache.place_fit(version, &slug) {
@@ -364,8 +385,10 @@ fn bands_of(relations: &[Relation]) -> Vec<String> {
     path = "/api/v1/place",
     tag = "place",
     operation_id = "place_object",
-    params(PlaceObject),
+    params(PlaceObject, super::VersionQuery),
     responses(
+        (status = 404, description = "No such catalog version or release", body = Problem, content_type = "application/problem+json"),
+        (status = 410, description = "A catalog version from before the history began", body = Problem, content_type = "application/problem+json"),
         (status = 200, description = "The object's placement", body = PlaceResult),
         (status = 400, description = "The query could not be decoded", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
@@ -379,8 +402,8 @@ pub async fn place_one(
     State(state): State<AppState>,
     Extension(cache): Extension<ApiCache>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
-) -> ApiResult<Json<PlaceResult>> {
-    let pairs = query_pairs(query)?;
+) -> ApiResult<Response> {
+    let (pinned, pairs) = super::asked_version(&state, query_pairs(query)?).await?;
     let (texts, unknown) = ObjectTexts::from_pairs(&pairs);
     let mut errors: Vec<FieldError> = unknown
         .into_iter()
@@ -388,32 +411,61 @@ pub async fn place_one(
             FieldError::new(
                 name,
                 format!(
-                    "This is not a parameter of this endpoint (it accepts {}).",
+                    "This is not a parameter of this endpoint (it accepts {}, version, release).",
                     OBJECT_FIELDS.join(", ")
                 ),
             )
         })
         .collect();
-    let version = cache
-        .catalog_version(&state.pool, &state.settings.db_path)
-        .await?;
-    let relations = all_relations(&state, &cache, version).await?;
+    let (version, relations) = version_and_relations(&state, &cache, pinned.as_ref()).await?;
     let values = read(texts, &bands_of(&relations), "", &mut errors);
     if !errors.is_empty() {
         return Err(AppError::invalid(errors));
     }
     let needed = used_by(&values, &relations);
-    let fits = fits_for(&state, &cache, version, relations, &needed).await?;
+    let catalog = pinned.as_ref().map(|(c, _)| c);
+    let fits = fits_for(&state, &cache, version, relations, &needed, catalog).await?;
     let version = fits
         .iter()
         .filter_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
         .min()
         .unwrap_or(version);
-    Ok(Json(PlaceResult {
+    let answer = Json(PlaceResult {
         catalog_version: version,
         estimator: Method::Structural.as_str().to_owned(),
         object: place_object(&values, &fits, state.settings.soi_threshold),
-    }))
+    })
+    .into_response();
+    Ok(match &pinned {
+        Some((_, p)) => super::immutable_if_past(p, answer),
+        None => answer,
+    })
+}
+
+/// The catalog version placed against and its relations: a named version's (`pinned`), or the
+/// current one's from the API's per-version cache.
+async fn version_and_relations(
+    state: &AppState,
+    cache: &ApiCache,
+    pinned: Option<&(crate::relations::Catalog, crate::catalog::history::Pinned)>,
+) -> ApiResult<(i64, Vec<Relation>)> {
+    match pinned {
+        Some((catalog, p)) => {
+            let bands: Vec<String> = catalog
+                .bands()
+                .await?
+                .into_iter()
+                .filter(|b| Relation::valid_band(b))
+                .collect();
+            Ok((p.version, Relation::all(&bands)))
+        }
+        None => {
+            let version = cache
+                .catalog_version(&state.pool, &state.settings.db_path)
+                .await?;
+            Ok((version, all_relations(state, cache, version).await?))
+        }
+    }
 }
 
 /// Where each object of a batch (a JSON array of up to 10,000 objects) falls.
@@ -422,12 +474,15 @@ pub async fn place_one(
     path = "/api/v1/place",
     tag = "place",
     operation_id = "place_batch",
+    params(super::VersionQuery),
     request_body(content = Vec<PlaceObject>, description = "Up to 10,000 objects (body up to 4 MB)", content_type = "application/json"),
     responses(
         (status = 200, description = "One placement per object, in order", body = PlaceBatchResult),
         (status = 400, description = "The body is not JSON", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope, or a session sent no anti-forgery token", body = Problem, content_type = "application/problem+json"),
+        (status = 404, description = "No such catalog version or release", body = Problem, content_type = "application/problem+json"),
+        (status = 410, description = "A catalog version from before the history began", body = Problem, content_type = "application/problem+json"),
         (status = 413, description = "More than 10,000 objects, or a body over 4 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
         (status = 422, description = "A value could not be read (each field at fault is listed, e.g. `[3].sigma`); nothing is placed", body = Problem, content_type = "application/problem+json"),
@@ -438,8 +493,19 @@ pub async fn place_one(
 pub async fn place_batch(
     State(state): State<AppState>,
     Extension(cache): Extension<ApiCache>,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
     ApiJson(objects): ApiJson<Vec<PlaceObject>>,
-) -> ApiResult<Json<PlaceBatchResult>> {
+) -> ApiResult<Response> {
+    let (pinned, rest) = super::asked_version(&state, query_pairs(query)?).await?;
+    if let Some((key, _)) = rest.first() {
+        let name = key.chars().take(40).collect::<String>();
+        return Err(AppError::invalid(vec![FieldError::new(
+            name.as_str(),
+            format!(
+                "'{name}' is not a query parameter of this endpoint (it accepts version, release); the objects go in the body."
+            ),
+        )]));
+    }
     if objects.len() > MAX_BATCH {
         return Err(AppError::too_large(format!(
             "The batch has {} objects; at most {MAX_BATCH} are placed per request, so send it in parts.",
@@ -447,10 +513,7 @@ pub async fn place_batch(
         ))
         .titled("Too many objects"));
     }
-    let version = cache
-        .catalog_version(&state.pool, &state.settings.db_path)
-        .await?;
-    let relations = all_relations(&state, &cache, version).await?;
+    let (version, relations) = version_and_relations(&state, &cache, pinned.as_ref()).await?;
     let bands = bands_of(&relations);
     let mut errors = Vec::new();
     let n_objects = objects.len();
@@ -468,7 +531,8 @@ pub async fn place_batch(
             *n |= used;
         }
     }
-    let fits = fits_for(&state, &cache, version, relations, &needed).await?;
+    let catalog = pinned.as_ref().map(|(c, _)| c);
+    let fits = fits_for(&state, &cache, version, relations, &needed, catalog).await?;
     let version = fits
         .iter()
         .filter_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
@@ -488,9 +552,12 @@ pub async fn place_batch(
     } else {
         place_all()
     };
-    Ok(Json(PlaceBatchResult {
+    let answer = Json(PlaceBatchResult {
         catalog_version: version,
         estimator: Method::Structural.as_str().to_owned(),
         objects,
-    }))
+    })
+    .into_response();
+    // An answer to a POST is not cached, whatever the version.
+    Ok(answer)
 }

@@ -734,6 +734,60 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
     .await
 }
 
+/// A galaxy as it stood at catalog version `version` (its properties from the history,
+/// migration 8), or None when it was not in the catalog then.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn find_by_slug_at(
+    pool: &SqlitePool,
+    slug: &str,
+    version: i64,
+) -> sqlx::Result<Option<Galaxy>> {
+    sqlx::query_as(
+        "select s.galaxy_id, s.name, s.slug, s.morphology, s.bulge_kind, s.centre_kind,
+                s.distance_mpc, s.distance_err_mpc, s.distance_method
+           from galaxy g join galaxy_span s on s.galaxy_id = g.galaxy_id
+          where g.slug = ? and s.valid_from_version <= ?2
+            and (s.valid_until_version is null or s.valid_until_version > ?2)",
+    )
+    .bind(slug)
+    .bind(version)
+    .fetch_optional(pool)
+    .await
+}
+
+/// The measurements of a galaxy adopted at catalog version `version` (each marked adopted),
+/// in the order of [`measurements_of`]: what the catalog of that version held for it.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn measurements_adopted_at(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+    version: i64,
+) -> sqlx::Result<Vec<Measurement>> {
+    sqlx::query_as(
+        "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
+                m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
+                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
+                m.value_scale, s.state, 1 as adopted, m.created_at
+           from adopted_value_span a
+           join measurement m on m.measurement_id = a.measurement_id
+           join submission s on s.submission_id = m.submission_id
+          where a.galaxy_id = ?1 and a.valid_from_version <= ?2
+            and (a.valid_until_version is null or a.valid_until_version > ?2)
+       order by case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
+                                when 'bulge_mass' then 2 else 3 end,
+                m.band, m.measurement_id desc",
+    )
+    .bind(galaxy_id)
+    .bind(version)
+    .fetch_all(pool)
+    .await
+}
+
 /// Whose unreviewed measurements (pending, or withdrawn before review) a reader may see.
 /// Accepted and rejected measurements are part of the catalog's record and shown to every
 /// reader.

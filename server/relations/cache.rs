@@ -592,22 +592,12 @@ pub async fn fitted(
     pool: &SqlitePool,
     cache: &FitCache,
     soi_threshold: f64,
-    relation: &Relation,
-    method: Method,
-    filter: &SampleFilter,
-    pivots: (f64, f64),
+    choice: FitChoiceRef<'_>,
     version: Option<i64>,
 ) -> anyhow::Result<Arc<FitOutcome>> {
-    fitted_within(
-        pool,
-        cache,
-        soi_threshold,
-        (relation, method, filter, pivots),
-        None,
-        version,
-    )
-    .await?
-    .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))
+    fitted_within(pool, cache, soi_threshold, choice, None, version)
+        .await?
+        .map_err(|_| anyhow::anyhow!("a fit computation stopped without a result"))
 }
 
 /// What selects a fit: the relation, the estimator, the sample and the pivots.

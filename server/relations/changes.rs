@@ -1,7 +1,7 @@
 //! What changed between two catalog versions: the galaxies added, the values adopted or
 //! replaced, the distances changed (`catalog::changes`), and how each relation's default fit
 //! (structural estimator, default sample and pivots) moved, with the significance of each
-//! parameter's change (docs/methods.md §9). The page `/changes` and the API's
+//! parameter's change (docs/methods.md §10). The page `/changes` and the API's
 //! `/api/v1/changes` both answer from [`changes`].
 
 use super::{Catalog, FitChoice, Relation};
@@ -207,7 +207,7 @@ pub fn accepted_by(change: &stored::AdoptedChange) -> String {
 }
 
 /// The significance of a parameter's change between two fits, in standard deviations:
-/// Δ / √(σ_from² + σ_to²) (docs/methods.md §9). It treats the two fits as independent; when
+/// Δ / √(σ_from² + σ_to²) (docs/methods.md §10). It treats the two fits as independent; when
 /// their samples overlap, as two versions of one catalog mostly do, the true error of Δ is
 /// smaller, so this overstates the error and understates the significance (conservative).
 /// None when both errors are zero or any input is not finite.

@@ -11,7 +11,7 @@ use std::sync::Arc;
 
 use sha2::Digest as _;
 
-use super::{Catalog, FitKey, FitOutcome};
+use super::{Catalog, FitChoice, FitKey, FitOutcome, Relation, SampleFilter};
 use crate::catalog::citations::{self, CitedFit};
 
 /// The fitting code's version as identifiers include it: the package version and a counter
@@ -91,6 +91,131 @@ pub async fn cite(catalog: &Catalog, outcome: &Arc<FitOutcome>) -> String {
 /// float so that it reads back to the same bits.
 pub fn result_json(fit: &crate::fit::Fit) -> String {
     serde_json::to_string(fit).unwrap_or_default()
+}
+
+/// A recorded fit made again from the catalog version it names.
+#[derive(Clone)]
+pub struct Remade {
+    /// What was recorded when the identifier was first shown.
+    pub record: CitedFit,
+    /// The relation.
+    pub relation: Relation,
+    /// The estimator, sample and pivots, as a relation page reads them.
+    pub choice: FitChoice,
+    /// The catalog at the fit's version.
+    pub catalog: Catalog,
+    /// The fit made now from that version's rows.
+    pub outcome: Arc<FitOutcome>,
+    /// Whether the fit made now equals the recorded result (every float to the bit).
+    pub same_result: bool,
+    /// Whether the fitting code is the one the record was made with.
+    pub same_code: bool,
+}
+
+/// Why a recorded fit cannot be made again.
+#[derive(Debug, thiserror::Error)]
+pub enum RemakeError {
+    /// No identifier of that form, or none recorded.
+    #[error(
+        "There is no fit with the identifier '{0}'. Identifiers (fit- and 16 hexadecimal digits) appear under \"How to cite this fit\" on relation pages and as fit_id in fit.json and the API."
+    )]
+    Unknown(String),
+    /// The record names a relation, estimator or sample this code no longer reads.
+    #[error("The fit '{id}' was recorded with settings this server no longer reads: {reason}")]
+    Unreadable {
+        /// The identifier.
+        id: String,
+        /// What could not be read.
+        reason: String,
+    },
+    /// The version cannot be served (before the history).
+    #[error(transparent)]
+    Version(#[from] crate::catalog::history::VersionError),
+    /// The database or the fitting task failed.
+    #[error(transparent)]
+    Failed(#[from] anyhow::Error),
+}
+
+impl From<sqlx::Error> for RemakeError {
+    fn from(e: sqlx::Error) -> Self {
+        Self::Failed(e.into())
+    }
+}
+
+impl From<RemakeError> for crate::error::AppError {
+    fn from(err: crate::relations::citation::RemakeError) -> Self {
+        match err {
+            RemakeError::Unknown(_) | RemakeError::Unreadable { .. } => {
+                Self::not_found_saying(err.to_string())
+            }
+            RemakeError::Version(e) => e.into(),
+            RemakeError::Failed(e) => Self::Internal(e),
+        }
+    }
+}
+
+/// The fit recorded under `id`, made again from its catalog version (the history rebuilds the
+/// version's rows; `catalog` is the current catalog, moved to that version here) and checked
+/// against the recorded result.
+///
+/// # Errors
+/// [`RemakeError`].
+pub async fn remake(catalog: &Catalog, id: &str) -> Result<Remade, RemakeError> {
+    let unknown = || RemakeError::Unknown(id.chars().take(40).collect());
+    if !looks_like_fit_id(id) {
+        return Err(unknown());
+    }
+    let record = citations::find(&catalog.pool, id)
+        .await?
+        .ok_or_else(unknown)?;
+    let pinned = crate::catalog::history::resolve(
+        &catalog.pool,
+        &crate::catalog::history::VersionAsk::Number(record.catalog_version),
+    )
+    .await?;
+    let at = catalog.at(Some(pinned.version));
+    let unreadable = |reason: String| RemakeError::Unreadable {
+        id: record.fit_id.clone(),
+        reason,
+    };
+    let bands = at.bands().await?;
+    let relation =
+        Relation::from_slug(&record.relation, &bands).map_err(|e| unreadable(e.to_string()))?;
+    let method = record
+        .method
+        .parse::<crate::fit::Method>()
+        .map_err(|e| unreadable(e.to_string()))?;
+    let pairs: Vec<(String, String)> = record
+        .sample_filter
+        .split(';')
+        .filter_map(|kv| kv.split_once('='))
+        .map(|(k, v)| (k.to_owned(), v.to_owned()))
+        .collect();
+    let filter = SampleFilter::parse(&pairs).map_err(unreadable)?;
+    let differs = |a: f64, b: f64| a.to_bits() != b.to_bits();
+    let choice = FitChoice {
+        method,
+        filter,
+        pivot: differs(record.pivot_log, relation.default_pivot()).then_some(record.pivot_log),
+        pivot2: differs(record.pivot2_log, relation.default_pivot2()).then_some(record.pivot2_log),
+    };
+    let outcome = at
+        .fitted(&relation, method, &choice.filter, choice.pivots(&relation))
+        .await?;
+    let same_result = outcome
+        .fit
+        .as_ref()
+        .is_ok_and(|f| result_json(f) == record.result_json);
+    let same_code = record.code_version == FIT_CODE_VERSION;
+    Ok(Remade {
+        record,
+        relation,
+        choice,
+        catalog: at,
+        outcome,
+        same_result,
+        same_code,
+    })
 }
 
 /// The one sentence a paper's text can quote for a fit.

@@ -13,9 +13,9 @@ use super::{
     fitted_leaving_out, sphere_of_influence,
 };
 use crate::astro::SphereOfInfluence;
+use crate::catalog::galaxies;
 use crate::catalog::galaxies::Unreviewed;
 use crate::catalog::model::{Galaxy, Measurement};
-use crate::catalog::{galaxies, relation_rows};
 use crate::error::AppResult;
 use crate::fit::Method;
 use crate::units::{Quantity, format_log_with_errors};
@@ -68,10 +68,33 @@ pub async fn galaxy_record(
     slug: &str,
     shown: Unreviewed,
 ) -> sqlx::Result<Option<GalaxyRecord>> {
-    let Some(galaxy) = galaxies::find_by_slug(pool, slug).await? else {
+    galaxy_record_at(pool, soi_threshold, slug, shown, None).await
+}
+
+/// [`galaxy_record`] at catalog version `version` (`None`: now). At a past version the galaxy
+/// has the properties it had then, and its measurements are the ones adopted then: the
+/// catalog's record of that version, whoever reads it.
+///
+/// # Errors
+/// When the database fails.
+pub async fn galaxy_record_at(
+    pool: &SqlitePool,
+    soi_threshold: f64,
+    slug: &str,
+    shown: Unreviewed,
+    version: Option<i64>,
+) -> sqlx::Result<Option<GalaxyRecord>> {
+    let galaxy = match version {
+        None => galaxies::find_by_slug(pool, slug).await?,
+        Some(v) => galaxies::find_by_slug_at(pool, slug, v).await?,
+    };
+    let Some(galaxy) = galaxy else {
         return Ok(None);
     };
-    let measurements = galaxies::measurements_seen(pool, galaxy.galaxy_id, shown).await?;
+    let measurements = match version {
+        None => galaxies::measurements_seen(pool, galaxy.galaxy_id, shown).await?,
+        Some(v) => galaxies::measurements_adopted_at(pool, galaxy.galaxy_id, v).await?,
+    };
     // The adopted σ is what the sphere-of-influence check uses.
     let adopted_log_sigma = measurements
         .iter()
@@ -145,10 +168,10 @@ pub async fn place_left_out(
     galaxy_id: i64,
     wait: Option<Duration>,
 ) -> AppResult<LeftOutPlacements> {
-    let pool = &catalog.pool;
-    let snapshot = catalog.fits.rows(pool).await?;
+    let snapshot = catalog.rows().await?;
     let (rows, lums) = (&snapshot.rows, &snapshot.luminosities);
-    let bands: Vec<String> = relation_rows::luminosity_bands(pool)
+    let bands: Vec<String> = catalog
+        .bands()
         .await?
         .into_iter()
         .filter(|b| Relation::valid_band(b))

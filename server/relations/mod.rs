@@ -104,10 +104,7 @@ impl Catalog {
             &self.pool,
             &self.fits,
             self.soi_threshold,
-            relation,
-            method,
-            filter,
-            pivots,
+            (relation, method, filter, pivots),
             self.pinned,
         )
         .await
@@ -246,6 +243,18 @@ impl Relation {
             Relation::MBulge => "M_BH–M_bulge".to_owned(),
             Relation::Luminosity(band) => format!("M_BH–L_{band}"),
             Relation::SigmaBulgePlane => "M_BH–(σ, M_bulge) plane".to_owned(),
+        }
+    }
+
+    /// [`Relation::label`] in LaTeX, e.g. `$M_\mathrm{BH}$--$\sigma$` (BibTeX titles, tables).
+    pub fn label_tex(&self) -> String {
+        match self {
+            Relation::MSigma => "$M_\\mathrm{BH}$--$\\sigma$".to_owned(),
+            Relation::MBulge => "$M_\\mathrm{BH}$--$M_\\mathrm{bulge}$".to_owned(),
+            Relation::Luminosity(band) => format!("$M_\\mathrm{{BH}}$--$L_{{{band}}}$"),
+            Relation::SigmaBulgePlane => {
+                "$M_\\mathrm{BH}$--($\\sigma$, $M_\\mathrm{bulge}$) plane".to_owned()
+            }
         }
     }
 

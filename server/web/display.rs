@@ -419,3 +419,44 @@ mod tests {
         );
     }
 }
+
+/// What a page read at a named catalog version says about it (`partials/version_note.html`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct VersionNote {
+    pub(crate) version: i64,
+    pub(crate) release: Option<String>,
+    /// When the version was made, for people ("3 December 2026, 07:13 UTC").
+    pub(crate) made_text: String,
+    /// Whether the catalog has changed since.
+    pub(crate) past: bool,
+    pub(crate) current: i64,
+    /// The same page at the current version.
+    pub(crate) current_href: String,
+    /// `version=N` or `release=NAME`, for the page's own links (empty for none).
+    pub(crate) query: String,
+}
+
+impl VersionNote {
+    /// The note for a request that named a version; None when it named none.
+    pub(crate) fn of(
+        pinned: &crate::catalog::history::Pinned,
+        ask: &crate::catalog::history::VersionAsk,
+        made_at: Option<&str>,
+        current_href: String,
+    ) -> Option<Self> {
+        pinned.asked.then(|| Self {
+            version: pinned.version,
+            release: pinned.release.clone(),
+            made_text: made_at.map(readable_utc).unwrap_or_default(),
+            past: pinned.is_past(),
+            current: pinned.current,
+            current_href,
+            query: ask.query(),
+        })
+    }
+
+    /// `?version=N` (or `&…` after `sep`), for links on a page of a named version.
+    pub(crate) fn suffix(note: Option<&Self>, sep: char) -> String {
+        note.map_or(String::new(), |n| format!("{sep}{}", n.query))
+    }
+}

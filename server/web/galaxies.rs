@@ -6,12 +6,13 @@ use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, Path, Query, State};
 
 use super::display::{
-    Badge, Uncertain, fixed, quantity_unit, significant, soi_badge, with_errors, with_errors_column,
+    Badge, Uncertain, VersionNote, fixed, quantity_unit, significant, soi_badge, with_errors,
+    with_errors_column,
 };
 use crate::auth::Principal;
 use crate::catalog::model::{BulgeKind, MassMethod, Morphology};
 use crate::error::{AppError, AppResult};
-use crate::relations::galaxy::{MeasurementAt, galaxy_record, place_left_out};
+use crate::relations::galaxy::{MeasurementAt, galaxy_record_at, place_left_out};
 use crate::relations::table::{LimitFilter, SoiFilter, SortKey, TableQuery, TableRow, table_page};
 use crate::state::AppState;
 use crate::units::Quantity;
@@ -66,6 +67,10 @@ pub(crate) struct GalaxiesListPage {
     sort: &'static str,
     dir: &'static str,
     soi_threshold: String,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links of a named version, else empty.
+    gq: String,
 }
 
 /// Show the catalog table.
@@ -74,10 +79,19 @@ pub(crate) async fn list_galaxies(
     nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<GalaxiesListPage> {
-    let pairs = crate::router::query_pairs(query)?;
+    let (catalog, pinned, ask, pairs) = super::relations::versioned(&state, query).await?;
     let q = TableQuery::parse(&pairs).map_err(AppError::bad_request)?;
     let threshold = state.settings.soi_threshold;
-    let (page_rows, total) = table_page(&state.catalog(), &q).await?;
+    let (page_rows, total) = table_page(&catalog, &q).await?;
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note = VersionNote::of(
+        &pinned,
+        &ask,
+        made_at.as_deref(),
+        format!("/galaxies?{}", q.to_query_string()),
+    );
+    let gq = VersionNote::suffix(version_note.as_ref(), '?');
+    let vq = VersionNote::suffix(version_note.as_ref(), '&');
     let pages = total.div_ceil(q.per_page).max(1);
     if q.page > pages {
         return Err(AppError::bad_request(format!(
@@ -92,38 +106,40 @@ pub(crate) async fn list_galaxies(
     };
     Ok(GalaxiesListPage {
         nav,
-        headers: headers(&q),
+        headers: headers(&q, &vq),
         rows,
         total,
         first_shown,
         last_shown: (first_shown + page_rows.len()).saturating_sub(1),
         page: q.page,
         pages,
-        prev_href: (q.page > 1).then(|| link(&q, |n| n.page -= 1)),
-        next_href: (q.page < pages).then(|| link(&q, |n| n.page += 1)),
+        prev_href: (q.page > 1).then(|| link(&q, &vq, |n| n.page -= 1)),
+        next_href: (q.page < pages).then(|| link(&q, &vq, |n| n.page += 1)),
         filters: Filters::of(&q),
         search: q.name.clone().unwrap_or_default(),
         sort: q.sort.as_str(),
         dir: if q.descending { "desc" } else { "asc" },
         soi_threshold: significant(threshold, 2),
+        version_note,
+        gq,
     })
 }
 
-/// The table's address for `q` changed by `change`.
-fn link(q: &TableQuery, change: impl FnOnce(&mut TableQuery)) -> String {
+/// The table's address for `q` changed by `change`, with `vq` (`&version=N` or empty).
+fn link(q: &TableQuery, vq: &str, change: impl FnOnce(&mut TableQuery)) -> String {
     let mut next = q.clone();
     change(&mut next);
-    format!("/galaxies?{}", next.to_query_string())
+    format!("/galaxies?{}{vq}", next.to_query_string())
 }
 
 /// The column headers, each a link that sorts by it (again: the other way).
-fn headers(q: &TableQuery) -> Vec<HeaderView> {
+fn headers(q: &TableQuery, vq: &str) -> Vec<HeaderView> {
     let header = |label, unit, key: SortKey| {
         let active = q.sort == key;
         HeaderView {
             label,
             unit,
-            href: link(q, |n| {
+            href: link(q, vq, |n| {
                 n.sort = key;
                 n.descending = active && !q.descending;
                 n.page = 1;
@@ -331,6 +347,8 @@ pub(crate) struct SoiView {
 #[template(path = "pages/galaxy_show.html")]
 pub(crate) struct GalaxyShowPage {
     nav: super::Nav,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
     /// Said while a fit without the galaxy is still being computed.
     computing: Option<String>,
     /// Said when a fit without the galaxy is the one-step approximation.
@@ -489,7 +507,8 @@ pub(crate) async fn change_distance(
                 ..DistanceForm::default()
             }
             .with_method(fields.distance_method.trim());
-            let page = galaxy_page(&state, &principal, nav, &slug, Some(form), None).await?;
+            let page =
+                galaxy_page(&state, &principal, nav, &slug, Vec::new(), Some(form), None).await?;
             Ok((axum::http::StatusCode::BAD_REQUEST, page).into_response())
         }
     }
@@ -523,12 +542,13 @@ pub(crate) async fn show_galaxy(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<GalaxyShowPage> {
-    let pairs = crate::router::query_pairs(query)?;
+    let (changed, pairs): (Vec<_>, Vec<_>) = crate::router::query_pairs(query)?
+        .into_iter()
+        .partition(|(k, _)| k == "distance_changed");
     // The confirmation is worded from the audit log, and only for the person who made the
     // change, so an address cannot make the page claim something.
-    let changed_at = pairs
-        .iter()
-        .find(|(k, _)| k == "distance_changed")
+    let changed_at = changed
+        .first()
         .and_then(|(_, v)| v.trim().parse::<i64>().ok());
     let flash = match (changed_at, &principal) {
         (Some(version), Principal::Session(s)) => {
@@ -551,27 +571,50 @@ pub(crate) async fn show_galaxy(
         }
         _ => None,
     };
-    galaxy_page(&state, &principal, nav, &slug, None, flash).await
+    galaxy_page(&state, &principal, nav, &slug, pairs, None, flash).await
 }
 
-/// The galaxy page, with the distance form as given (or, for reviewers and admins, filled
-/// with the adopted distance) and a confirmation.
+/// The galaxy page at the version `pairs` ask for, with the distance form (for reviewers and
+/// admins on the current version: as given, or filled with the adopted distance) and a
+/// confirmation.
 async fn galaxy_page(
     state: &AppState,
     principal: &Principal,
     nav: super::Nav,
     slug: &str,
+    pairs: Vec<(String, String)>,
     form: Option<DistanceForm>,
     flash: Option<String>,
 ) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
+    let (catalog, pinned, ask, rest) = super::relations::versioned_pairs(state, pairs).await?;
+    if let Some((key, _)) = rest.first() {
+        return Err(AppError::bad_request(format!(
+            "'{}' is not a parameter of this page (it accepts version, release).",
+            key.chars().take(40).collect::<String>()
+        )));
+    }
+    let version = pinned.asked.then_some(pinned.version);
     let threshold = state.settings.soi_threshold;
-    let record = galaxy_record(&state.pool, threshold, slug, principal.unreviewed_shown())
-        .await?
-        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+    let record = galaxy_record_at(
+        &state.pool,
+        threshold,
+        slug,
+        principal.unreviewed_shown(),
+        version,
+    )
+    .await?
+    .ok_or_else(|| match version {
+        None => AppError::not_found(format!("The galaxy '{slug}'")),
+        Some(v) => AppError::not_found_saying(format!(
+            "The galaxy '{slug}' was not in catalog version {v}."
+        )),
+    })?;
     let galaxy = &record.galaxy;
     let distance_form = match principal {
-        Principal::Session(s) if s.role.includes(crate::auth::Role::Reviewer) => {
+        Principal::Session(s)
+            if version.is_none() && s.role.includes(crate::auth::Role::Reviewer) =>
+        {
             Some(form.unwrap_or_else(|| {
                 DistanceForm {
                     csrf: s.csrf_token.clone(),
@@ -584,10 +627,22 @@ async fn galaxy_page(
         }
         _ => None,
     };
-    let left_out =
-        place_left_out(&state.catalog(), galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
-    let reviews = crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id)
-        .await?
+    let left_out = place_left_out(&catalog, galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note = VersionNote::of(
+        &pinned,
+        &ask,
+        made_at.as_deref(),
+        format!("/galaxies/{}", galaxy.slug),
+    );
+    // A past version's page is the catalog's record of that version: its adopted values, not
+    // the decisions made since.
+    let reviews = if version.is_some() {
+        Vec::new()
+    } else {
+        crate::catalog::submissions::reviews_of_galaxy(&state.pool, galaxy.galaxy_id).await?
+    };
+    let reviews = reviews
         .into_iter()
         .map(|r| ReviewView {
             submission_id: r.submission_id,
@@ -647,6 +702,7 @@ async fn galaxy_page(
         slug: galaxy.slug.clone(),
         distance_form,
         flash,
+        version_note,
     })
 }
 

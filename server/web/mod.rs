@@ -14,6 +14,7 @@ mod changes;
 mod display;
 mod error_page;
 mod escape;
+mod fits;
 mod galaxies;
 mod login;
 mod overview;
@@ -115,6 +116,7 @@ fn routes() -> Routes {
             Session,
             post(relations::start_run),
         )
+        .add(Method::GET, "/fits/{id}", Read, get(fits::show_fit))
         .add(Method::GET, "/place", Read, get(place::show_place))
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))

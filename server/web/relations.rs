@@ -11,7 +11,7 @@ use axum::extract::{Extension, Path, Query, State};
 use axum::http::header;
 use axum::response::{IntoResponse, Redirect, Response};
 
-use super::display::{Uncertain, fixed, significant, with_errors};
+use super::display::{Uncertain, VersionNote, fixed, significant, with_errors};
 use crate::auth::Principal;
 use crate::catalog::csv_io::guard_text_cell;
 use crate::catalog::history::{Pinned, VersionAsk};
@@ -557,43 +557,41 @@ pub(crate) struct RelationsListPage {
     nav: super::Nav,
     relations: Vec<RelationSummary>,
     catalog_version: i64,
-    /// The release asked for, if any.
-    release: Option<String>,
-    /// `?version=N` or `?release=NAME` for the links, empty for the current version.
-    version_query: String,
     /// Said while a fit of the current version is still being computed.
     computing: Option<String>,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links of a named version, else empty.
+    gq: String,
 }
 
-/// Show every relation with its structural fit at the version asked for (`?version=N`,
-/// `?release=NAME`; the current one by default).
+/// Show every relation with its structural fit, at the current version or the one named.
 pub(crate) async fn list_relations(
     State(state): State<AppState>,
     nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<RelationsListPage> {
-    let (catalog, pinned, ask, _) = versioned(&state, query).await?;
+    let (catalog, pinned, ask, rest) = versioned(&state, query).await?;
+    if let Some((key, _)) = rest.first() {
+        return Err(AppError::bad_request(format!(
+            "'{}' is not a parameter of this page (it accepts version, release).",
+            key.chars().take(40).collect::<String>()
+        )));
+    }
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note = VersionNote::of(&pinned, &ask, made_at.as_deref(), "/relations".into());
     let (relations, catalog_version, computing) = summaries(&catalog).await?;
-    let version_query = ask.query();
     Ok(RelationsListPage {
         nav,
         relations,
-        catalog_version: if pinned.asked {
-            pinned.version
-        } else {
-            catalog_version
-        },
-        release: pinned.release,
-        version_query: if version_query.is_empty() {
-            String::new()
-        } else {
-            format!("?{version_query}")
-        },
+        catalog_version,
         computing: computing.map(|v| {
             format!(
                 "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
             )
         }),
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
     })
 }
 
@@ -691,16 +689,16 @@ fn option(value: &str, label: &str, selected: bool) -> OptionView {
 
 /// A fitted parameter.
 pub(crate) struct ParamView {
-    symbol: &'static str,
-    value: String,
+    pub(crate) symbol: &'static str,
+    pub(crate) value: String,
     /// The 68 % interval, "lo – hi".
-    interval68: String,
+    pub(crate) interval68: String,
     /// The 95 % interval, "lo – hi".
-    interval95: String,
+    pub(crate) interval95: String,
     /// Said instead of the intervals when the estimator gives the parameter without one (FITEXY
     /// and BCES give ε so).
-    no_interval: Option<&'static str>,
-    unit: String,
+    pub(crate) no_interval: Option<&'static str>,
+    pub(crate) unit: String,
 }
 
 /// Why a parameter has no interval, for the estimators that give a value without an error: FITEXY
@@ -733,10 +731,10 @@ fn interval_text(lo: f64, hi: f64, err: f64) -> String {
 /// One entry of the parameters' covariance (each pair once): narrow enough for a phone.
 pub(crate) struct CovRow {
     /// "Var(α)" or "Cov(α, β)".
-    pair: String,
-    value: String,
+    pub(crate) pair: String,
+    pub(crate) value: String,
     /// Its unit: the product of the two parameters' units ("dex²", "dex", "none").
-    unit: &'static str,
+    pub(crate) unit: &'static str,
 }
 
 /// A parameter's symbol and the power of dex of its unit (α, ε: dex; β, γ: dex per dex; the
@@ -869,6 +867,67 @@ pub(crate) struct RelationPage {
     may_start: bool,
     /// Said while the current version's fit is computed and an older one is shown.
     computing: Option<String>,
+    /// The catalog version named in the address, if any.
+    version_note: Option<VersionNote>,
+    /// `?version=N` for links to galaxy pages of a named version, else empty.
+    gq: String,
+    /// How to cite the fit shown.
+    cite: Option<CiteView>,
+}
+
+/// The "how to cite" box of a fit.
+pub(crate) struct CiteView {
+    /// The fit's identifier.
+    pub(crate) fit_id: String,
+    /// One sentence for a paper's text.
+    pub(crate) sentence: String,
+    /// A BibTeX entry.
+    pub(crate) bibtex: String,
+}
+
+impl CiteView {
+    /// The box for a whole-sample fit (recording its identifier, `relations::citation::cite`).
+    pub(crate) async fn of(
+        catalog: &Catalog,
+        relation: &Relation,
+        outcome: &Arc<FitOutcome>,
+    ) -> AppResult<Option<CiteView>> {
+        use crate::relations::citation;
+        if outcome.fit.is_err() {
+            return Ok(None);
+        }
+        let fit_id = citation::cite(catalog, outcome).await;
+        let version = outcome.key.catalog_version;
+        let releases = crate::catalog::citations::releases_of(&catalog.pool, version).await?;
+        let made = crate::catalog::history::made_at(&catalog.pool, version)
+            .await?
+            .unwrap_or_default();
+        let method = outcome
+            .key
+            .method
+            .parse::<Method>()
+            .unwrap_or(Method::Structural);
+        let label = method_label(method);
+        Ok(Some(CiteView {
+            sentence: citation::cite_sentence(
+                &relation.label(),
+                label,
+                (outcome.sample.n_detections(), outcome.sample.n_limits()),
+                version,
+                &releases,
+                &fit_id,
+            ),
+            bibtex: citation::bibtex(
+                &relation.label_tex(),
+                label,
+                version,
+                &releases,
+                &fit_id,
+                made.get(..4).unwrap_or("0000"),
+            ),
+            fit_id,
+        }))
+    }
 }
 
 /// A bootstrap or posterior run on the relation page.
@@ -1338,7 +1397,7 @@ pub(super) fn relation_chart_frame(
 }
 
 /// Draw the relation chart, or say why not.
-fn relation_chart_svg(
+pub(crate) fn relation_chart_svg(
     relation: &Relation,
     outcome: &FitOutcome,
     grouping: Grouping,
@@ -1409,6 +1468,25 @@ pub(crate) async fn show_relation(
     let refresh = computing.is_some() || influence_pending;
     let may_start = nav.username.is_some();
     let query_plain = t.query_plain(&q);
+    let made_at = crate::catalog::history::made_at(&state.pool, t.pinned.version).await?;
+    let version_note = VersionNote::of(
+        &t.pinned,
+        &t.ask,
+        made_at.as_deref(),
+        format!("/relations/{}{}", relation.slug(), {
+            let plain = q.to_query_string();
+            if plain.is_empty() {
+                plain
+            } else {
+                format!("?{plain}")
+            }
+        }),
+    );
+    let cite = if computing.is_none() {
+        CiteView::of(&t.catalog, &relation, &outcome).await?
+    } else {
+        None
+    };
     Ok(RelationPage {
         nav,
         controls: Controls::of(&relation, &read),
@@ -1440,6 +1518,9 @@ pub(crate) async fn show_relation(
         runs_pending,
         may_start,
         computing,
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
+        cite,
     }
     .into_response())
 }
@@ -1456,7 +1537,7 @@ pub(crate) struct ComputingPage {
 /// The fitted parameters with their errors, intervals and units, and the covariance matrix.
 /// Values and intervals are the ones the fit reports (`fit.intervals`; restricted likelihood
 /// by default); the covariance is the maximum-likelihood curvature's.
-fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
+pub(crate) fn fit_views(relation: &Relation, f: &Fit) -> (Vec<ParamView>, Vec<CovRow>) {
     let unit = relation.x_unit();
     let view = |name: &str, symbol: &'static str, unit: String| {
         f.intervals.get(name).map(|iv| ParamView {
@@ -1798,7 +1879,7 @@ impl SampleSummary {
 
 /// A fit's canonical sample text (`SampleFilter::canonical`: "morphology=any;bulge_kind=pseudo;…")
 /// in words: "morphology any; bulge pseudo; …". A part it cannot read is shown as it is.
-fn filter_words(canonical: &str) -> String {
+pub(crate) fn filter_words(canonical: &str) -> String {
     canonical
         .split(';')
         .map(|part| {
@@ -1827,7 +1908,7 @@ fn filter_words(canonical: &str) -> String {
         .join("; ")
 }
 
-fn method_label(m: Method) -> &'static str {
+pub(crate) fn method_label(m: Method) -> &'static str {
     match m {
         Method::Structural => "structural maximum likelihood (default)",
         Method::Conditional => "conditional maximum likelihood",
@@ -1887,7 +1968,7 @@ pub(crate) async fn download_chart(
             // A file opened on its own draws its title; the page's heading names the page chart.
             let chart = RelationChart {
                 show_title: true,
-                ..relation_chart(&relation, &outcome, q.group)
+                ..relation_chart(relation, &outcome, q.group)
             };
             vec![relation_svg(&chart).map_err(|e| e.to_string())]
         });
@@ -1913,7 +1994,7 @@ pub(crate) async fn download_chart_png(
     let relation = &t.relation;
     let chart = RelationChart {
         show_title: true,
-        ..relation_chart(&relation, &outcome, q.group)
+        ..relation_chart(relation, &outcome, q.group)
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;

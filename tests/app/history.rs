@@ -335,3 +335,137 @@ async fn the_history_cannot_be_rewritten() {
         assert!(result.is_err(), "{statement} was allowed");
     }
 }
+
+#[tokio::test]
+async fn a_cited_fit_keeps_its_page_and_is_made_again_equal_after_the_catalog_moves_on() {
+    let app = spawn_demo_app().await;
+    let version = history::current_version(&app.pool).await.unwrap();
+    let page = app.ok("/relations/m_sigma?method=conditional").await;
+    let start = page.find("href=\"/fits/fit-").expect("a cite box") + "href=\"/fits/".len();
+    let id = page[start..start + 20].to_owned();
+    assert!(page.contains("@misc{"), "BibTeX on the page");
+    assert!(
+        page.contains(&format!("catalog version {version}")),
+        "the sentence names the version"
+    );
+    let galaxy: i64 = sqlx::query_scalar("select min(galaxy_id) from galaxy")
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc: 40.0,
+            distance_err_mpc: 3.0,
+            distance_method: "cepheid".into(),
+        },
+        "",
+    )
+    .await
+    .unwrap();
+    // The current fit has another identifier now; the old one still has its page.
+    let now = app.ok("/relations/m_sigma?method=conditional").await;
+    assert!(
+        !now.contains(&format!("/fits/{id}")),
+        "a new version, a new identifier"
+    );
+    let fit_page = app.ok(&format!("/fits/{id}")).await;
+    assert!(fit_page.contains("equals, to the last digit"), "{fit_page}");
+    assert!(
+        fit_page.contains("The catalog has changed since"),
+        "{fit_page}"
+    );
+    assert!(
+        fit_page.contains(&format!("version={version}")),
+        "links carry the version"
+    );
+    // Its fit.json at that version names the same identifier.
+    let (status, json) = app
+        .get(&format!(
+            "/relations/m_sigma/fit.json?method=conditional&version={version}"
+        ))
+        .await;
+    assert_eq!(status, 200);
+    let doc: serde_json::Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(doc["fit_id"], id.as_str());
+    assert_eq!(doc["catalog_version"], version);
+    // A forged result is caught: the page says the fit differs.
+    sqlx::query("update cited_fit set result_json = '{}' where fit_id = ?")
+        .bind(&id)
+        .execute(&app.pool)
+        .await
+        .unwrap();
+    let forged = app.ok(&format!("/fits/{id}")).await;
+    assert!(
+        forged.contains("differs from the result recorded"),
+        "{forged}"
+    );
+    let (status, body) = app.get("/fits/fit-0123456789abcdef").await;
+    assert_eq!(status, 404);
+    assert!(body.contains("How to cite this fit"), "{body}");
+}
+
+#[tokio::test]
+async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
+    let app = spawn_demo_app().await;
+    let demo = history::current_version(&app.pool).await.unwrap();
+    let (galaxy, slug, old_d): (i64, String, f64) = sqlx::query_as(
+        "select g.galaxy_id, g.slug, g.distance_mpc from galaxy g
+           join adopted_value a on a.galaxy_id = g.galaxy_id and a.quantity = 'bh_mass'
+       order by g.galaxy_id limit 1",
+    )
+    .fetch_one(&app.pool)
+    .await
+    .unwrap();
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc: old_d * 2.0,
+            distance_err_mpc: 1.0,
+            distance_method: "trgb".into(),
+        },
+        "",
+    )
+    .await
+    .unwrap();
+    let json = |body: &str| serde_json::from_str::<serde_json::Value>(body).unwrap();
+    let (status, then) = app
+        .get(&format!("/api/v1/galaxies/{slug}?version={demo}"))
+        .await;
+    assert_eq!(status, 200, "{then}");
+    let (_, now) = app.get(&format!("/api/v1/galaxies/{slug}")).await;
+    let (then, now) = (json(&then), json(&now));
+    assert_eq!(then["catalog_version"], demo);
+    // Stored and read back as the same double: compared by their bits.
+    assert_eq!(
+        then["distance_mpc"].as_f64().unwrap().to_bits(),
+        old_d.to_bits()
+    );
+    assert_eq!(
+        now["distance_mpc"].as_f64().unwrap().to_bits(),
+        (old_d * 2.0).to_bits()
+    );
+    assert_eq!(now["catalog_version"], demo + 1);
+    let (status, list) = app
+        .get(&format!("/api/v1/galaxies?version={demo}&per_page=5"))
+        .await;
+    assert_eq!(status, 200, "{list}");
+    assert_eq!(json(&list)["catalog_version"], demo);
+    // The page of that version shows the old distance too.
+    let page = app.ok(&format!("/galaxies/{slug}?version={demo}")).await;
+    assert!(page.contains("You are reading catalog version"), "{page}");
+    // Placing against a past version uses that version's fits.
+    let (status, placed) = app
+        .get(&format!(
+            "/api/v1/place?sigma=200&mass=2e8&distance=20&version={demo}"
+        ))
+        .await;
+    assert_eq!(status, 200, "{placed}");
+    assert_eq!(json(&placed)["catalog_version"], demo);
+    let (status, _) = app.get("/api/v1/galaxies?version=-3").await;
+    assert_eq!(status, 422);
+}
