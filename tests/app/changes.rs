@@ -293,7 +293,7 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
             );
             let sig = p["significance_sigma"].as_f64().unwrap();
             assert!(
-                (sig - (b - a) / (ea * ea + eb * eb).sqrt()).abs() < 1e-9,
+                (sig - (b - a) / ea.hypot(*eb)).abs() < 1e-9,
                 "{slug} {name}"
             );
         }
