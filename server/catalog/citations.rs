@@ -253,3 +253,45 @@ pub fn previous_version(releases: &[Release], index: usize, history_from: i64) -
         .find(|v| *v < version)
         .or((history_from < version).then_some(history_from))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn release(name: &str, catalog_version: i64) -> Release {
+        Release {
+            name: name.to_owned(),
+            catalog_version,
+            note: String::new(),
+            username: None,
+            created_at: String::new(),
+        }
+    }
+
+    #[test]
+    fn release_names_are_letters_digits_dots_dashes_and_underscores_up_to_40() {
+        for good in ["2027A", "v1.2-rc_3", &"x".repeat(40)] {
+            assert!(valid_release_name(good), "{good}");
+        }
+        for bad in ["", "a b", "ä", "2027/A", "x?", &"x".repeat(41)] {
+            assert!(!valid_release_name(bad), "{bad}");
+        }
+    }
+
+    #[test]
+    fn a_release_changes_from_the_newest_older_release_or_the_start_of_the_history() {
+        // Newest first, two names for version 9.
+        let list = [
+            release("c", 12),
+            release("b2", 9),
+            release("b", 9),
+            release("a", 4),
+        ];
+        assert_eq!(previous_version(&list, 0, 2), Some(9));
+        assert_eq!(previous_version(&list, 1, 2), Some(4));
+        assert_eq!(previous_version(&list, 2, 2), Some(4));
+        assert_eq!(previous_version(&list, 3, 2), Some(2));
+        assert_eq!(previous_version(&list, 3, 4), None);
+        assert_eq!(previous_version(&list, 9, 0), None);
+    }
+}

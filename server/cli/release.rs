@@ -47,3 +47,41 @@ pub fn run(args: &ReleaseArgs, out: &mut dyn Write) -> anyhow::Result<()> {
         Ok(())
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn args(db: &std::path::Path, name: &str, version: Option<i64>) -> ReleaseArgs {
+        ReleaseArgs {
+            db_path: db.to_path_buf(),
+            name: name.to_owned(),
+            version,
+            note: "for the paper".to_owned(),
+        }
+    }
+
+    #[test]
+    fn the_command_names_the_current_version_and_refuses_a_taken_name_or_a_future_version() {
+        let dir = tempfile::tempdir().unwrap();
+        let db = dir.path().join("catalog.db");
+        let mut out = Vec::new();
+        run(&args(&db, "2027A", None), &mut out).unwrap();
+        let said = String::from_utf8(out).unwrap();
+        assert_eq!(said, "Release 2027A names catalog version 0.\n");
+        let taken = run(&args(&db, "2027A", Some(0)), &mut Vec::new()).unwrap_err();
+        assert!(
+            taken
+                .to_string()
+                .contains("already names catalog version 0"),
+            "{taken}"
+        );
+        let future = run(&args(&db, "2027B", Some(5)), &mut Vec::new()).unwrap_err();
+        assert!(
+            future.to_string().contains("cannot be released"),
+            "{future}"
+        );
+        let bad = run(&args(&db, "new release", None), &mut Vec::new()).unwrap_err();
+        assert!(bad.to_string().contains("letters, digits"), "{bad}");
+    }
+}
