@@ -450,15 +450,7 @@ async fn version_and_relations(
     pinned: Option<&(crate::relations::Catalog, crate::catalog::history::Pinned)>,
 ) -> ApiResult<(i64, Vec<Relation>)> {
     match pinned {
-        Some((catalog, p)) => {
-            let bands: Vec<String> = catalog
-                .bands()
-                .await?
-                .into_iter()
-                .filter(|b| Relation::valid_band(b))
-                .collect();
-            Ok((p.version, Relation::all(&bands)))
-        }
+        Some((catalog, p)) => Ok((p.version, catalog.relations().await?)),
         None => {
             let version = cache
                 .catalog_version(&state.pool, &state.settings.db_path)

@@ -734,6 +734,18 @@ pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<
     .await
 }
 
+/// The columns of a [`Measurement`] over `measurement m` and `submission s`, up to `adopted`,
+/// which each query says in its own way, and `created_at`.
+macro_rules! measurement_columns {
+    () => {
+        "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
+                m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
+                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
+                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
+                m.value_scale, s.state, "
+    };
+}
+
 /// A galaxy as it stood at catalog version `version` (its properties from the history,
 /// migration 8), or None when it was not in the catalog then.
 ///
@@ -767,12 +779,9 @@ pub async fn measurements_adopted_at(
     galaxy_id: i64,
     version: i64,
 ) -> sqlx::Result<Vec<Measurement>> {
-    sqlx::query_as(
-        "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
-                m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
-                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
-                m.value_scale, s.state, 1 as adopted, m.created_at
+    sqlx::query_as(concat!(
+        measurement_columns!(),
+        "1 as adopted, m.created_at
            from adopted_value_span a
            join measurement m on m.measurement_id = a.measurement_id
            join submission s on s.submission_id = m.submission_id
@@ -780,8 +789,8 @@ pub async fn measurements_adopted_at(
             and (a.valid_until_version is null or a.valid_until_version > ?2)
        order by case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
                                 when 'bulge_mass' then 2 else 3 end,
-                m.band, m.measurement_id desc",
-    )
+                m.band, m.measurement_id desc"
+    ))
     .bind(galaxy_id)
     .bind(version)
     .fetch_all(pool)
@@ -827,12 +836,9 @@ pub async fn measurements_seen(
         Unreviewed::OwnOf(account_id) => (false, Some(account_id)),
         Unreviewed::None => (false, None),
     };
-    sqlx::query_as(
-        "select m.measurement_id, m.galaxy_id, m.submission_id, m.quantity, m.log_value,
-                m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
-                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
-                m.value_scale, s.state, (a.measurement_id is not null) as adopted, m.created_at
+    sqlx::query_as(concat!(
+        measurement_columns!(),
+        "(a.measurement_id is not null) as adopted, m.created_at
            from measurement m
            join submission s on s.submission_id = m.submission_id
       left join adopted_value a on a.measurement_id = m.measurement_id
@@ -840,8 +846,8 @@ pub async fn measurements_seen(
             and (s.state in ('accepted', 'rejected') or ? or s.account_id = ?)
        order by case m.quantity when 'bh_mass' then 0 when 'sigma' then 1
                                 when 'bulge_mass' then 2 else 3 end,
-                adopted desc, m.measurement_id desc",
-    )
+                adopted desc, m.measurement_id desc"
+    ))
     .bind(galaxy_id)
     .bind(all)
     .bind(own)

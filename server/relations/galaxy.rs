@@ -170,17 +170,11 @@ pub async fn place_left_out(
 ) -> AppResult<LeftOutPlacements> {
     let snapshot = catalog.rows().await?;
     let (rows, lums) = (&snapshot.rows, &snapshot.luminosities);
-    let bands: Vec<String> = catalog
-        .bands()
-        .await?
-        .into_iter()
-        .filter(|b| Relation::valid_band(b))
-        .collect();
     let method = Method::Structural;
     let filter = SampleFilter::default().for_method(method);
     let mut placements = Vec::new();
     let (mut computing, mut approximate) = (Vec::new(), Vec::new());
-    for relation in Relation::all(&bands) {
+    for relation in catalog.relations().await? {
         let pivots = (relation.default_pivot(), relation.default_pivot2());
         let full_key = FitKey::new(
             snapshot.version,

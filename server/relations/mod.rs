@@ -142,6 +142,21 @@ impl Catalog {
         }
     }
 
+    /// Every relation this catalog's version supports (the luminosity relations of the bands
+    /// it has values in).
+    ///
+    /// # Errors
+    /// When the database cannot be read.
+    pub async fn relations(&self) -> sqlx::Result<Vec<Relation>> {
+        let bands: Vec<String> = self
+            .bands()
+            .await?
+            .into_iter()
+            .filter(|b| Relation::valid_band(b))
+            .collect();
+        Ok(Relation::all(&bands))
+    }
+
     /// As [`Catalog::fitted`], waiting at most `wait`; `Ok(Err(key))` names the fit still being
     /// computed in the background ([`fitted_within`]).
     ///

@@ -6,7 +6,7 @@ use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::{Path, State};
 
-use super::display::{VersionNote, readable_utc};
+use super::display::{Uncertain, VersionNote, readable_utc, with_errors};
 use super::relations::{
     CiteView, CovRow, Grouping, ParamView, RelationQuery, filter_words, fit_views, method_label,
     relation_chart_svg, with_version,
@@ -43,7 +43,24 @@ pub(crate) struct FitPage {
     recorded_at: String,
     cite: Option<CiteView>,
     fit_error: Option<String>,
+    /// The first rows of the fitted sample.
+    sample_rows: Vec<SampleRowView>,
+    /// Objects of the sample beyond those rows.
+    sample_more: usize,
+    x_label: String,
 }
+
+/// One object of the fitted sample, as the fit read it.
+pub(crate) struct SampleRowView {
+    name: String,
+    slug: String,
+    x: String,
+    y: String,
+    limit: bool,
+}
+
+/// Rows of the sample the page lists; `sample.csv` has every object.
+const SAMPLE_ROWS: usize = 100;
 
 /// Show a fit by its identifier.
 pub(crate) async fn show_fit(
@@ -85,6 +102,23 @@ pub(crate) async fn show_fit(
     let (params, cov_rows) = fit
         .map(|f| fit_views(&remade.relation, f))
         .unwrap_or_default();
+    let sample_rows = outcome
+        .sample
+        .members
+        .iter()
+        .zip(&outcome.sample.points)
+        .take(SAMPLE_ROWS)
+        .map(|(m, p)| SampleRowView {
+            name: m.name.clone(),
+            slug: m.slug.clone(),
+            x: with_errors(Uncertain::symmetric(p.x, p.x_err), 2),
+            y: with_errors(
+                Uncertain::asymmetric(p.y, p.y_err, p.y_err, p.upper_limit),
+                2,
+            ),
+            limit: p.upper_limit,
+        })
+        .collect();
     let chart_svg =
         relation_chart_svg(&remade.relation, outcome, Grouping::Morphology).unwrap_or_default();
     Ok(FitPage {
@@ -112,5 +146,8 @@ pub(crate) async fn show_fit(
         recorded_at: readable_utc(&remade.record.created_at),
         cite: CiteView::of(&remade.catalog, &remade.relation, outcome).await?,
         fit_error: outcome.fit.as_ref().err().map(ToString::to_string),
+        sample_rows,
+        sample_more: outcome.sample.points.len().saturating_sub(SAMPLE_ROWS),
+        x_label: remade.relation.x_label(),
     })
 }

@@ -332,13 +332,7 @@ impl RelationQuery {
 
 /// The relations of the catalog at `catalog`'s version.
 async fn relations_of(catalog: &Catalog) -> AppResult<Vec<Relation>> {
-    let bands = catalog.bands().await?;
-    Ok(Relation::all(
-        &bands
-            .into_iter()
-            .filter(|b| Relation::valid_band(b))
-            .collect::<Vec<_>>(),
-    ))
+    Ok(catalog.relations().await?)
 }
 
 /// What a relation page or download is asked for: the catalog at the version asked for, the
@@ -1976,7 +1970,12 @@ pub(crate) async fn download_chart(
     Ok(download(
         &t.pinned,
         "image/svg+xml; charset=utf-8",
-        &format!("{}-{}.svg", relation.slug(), q.fit.method.as_str()),
+        &format!(
+            "{}-{}-v{}.svg",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         svg,
     ))
 }
@@ -1998,7 +1997,12 @@ pub(crate) async fn download_chart_png(
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
-    let filename = format!("{}-{}.png", relation.slug(), q.fit.method.as_str());
+    let filename = format!(
+        "{}-{}-v{}.png",
+        relation.slug(),
+        q.fit.method.as_str(),
+        outcome.key.catalog_version
+    );
     Ok(download(&t.pinned, "image/png", &filename, png))
 }
 
@@ -2044,7 +2048,12 @@ pub(crate) async fn download_fit(
     Ok(download(
         &t.pinned,
         "application/json",
-        &format!("{}-{}.json", relation.slug(), q.fit.method.as_str()),
+        &format!(
+            "{}-{}-v{}.json",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         text,
     ))
 }
@@ -2107,7 +2116,12 @@ pub(crate) async fn download_sample(
     Ok(download(
         &t.pinned,
         "text/csv; charset=utf-8",
-        &format!("{}-sample.csv", relation.slug()),
+        &format!(
+            "{}-{}-v{}-sample.csv",
+            relation.slug(),
+            q.fit.method.as_str(),
+            outcome.key.catalog_version
+        ),
         text,
     ))
 }

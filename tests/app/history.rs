@@ -469,3 +469,54 @@ async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
     let (status, _) = app.get("/api/v1/galaxies?version=-3").await;
     assert_eq!(status, 422);
 }
+
+#[tokio::test]
+async fn the_command_line_exports_any_version_as_the_server_serves_it() {
+    let app = spawn_demo_app().await;
+    let demo = history::current_version(&app.pool).await.unwrap();
+    let galaxy: i64 = sqlx::query_scalar("select max(galaxy_id) from galaxy")
+        .fetch_one(&app.pool)
+        .await
+        .unwrap();
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc: 12.5,
+            distance_err_mpc: 0.5,
+            distance_method: "cepheid".into(),
+        },
+        "",
+    )
+    .await
+    .unwrap();
+    let bin = env!("CARGO_BIN_EXE_massline");
+    let export = |version: i64| {
+        std::process::Command::new(bin)
+            .args(["export", "--version", &version.to_string(), "--db"])
+            .arg(&app.db_path)
+            .output()
+            .unwrap()
+    };
+    let old = export(demo);
+    assert!(
+        old.status.success(),
+        "{}",
+        String::from_utf8_lossy(&old.stderr)
+    );
+    let (_, served) = app.get(&format!("/catalog.csv?version={demo}")).await;
+    assert_eq!(String::from_utf8(old.stdout).unwrap(), served);
+    let (_, current) = app.get("/catalog.csv").await;
+    assert_ne!(
+        served, current,
+        "the distance change is in the current catalog only"
+    );
+    let later = export(demo + 5);
+    assert!(!later.status.success());
+    assert!(
+        String::from_utf8_lossy(&later.stderr).contains("does not exist yet"),
+        "{}",
+        String::from_utf8_lossy(&later.stderr)
+    );
+}
