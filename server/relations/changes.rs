@@ -216,17 +216,6 @@ pub fn significance(delta: f64, err_from: f64, err_to: f64) -> Option<f64> {
     (delta.is_finite() && denominator.is_finite() && denominator > 0.0).then(|| delta / denominator)
 }
 
-/// The relations of a catalog version (those with a valid band).
-async fn relations_at(catalog: &Catalog) -> anyhow::Result<Vec<Relation>> {
-    let bands = catalog.bands().await?;
-    Ok(Relation::all(
-        &bands
-            .into_iter()
-            .filter(|b| Relation::valid_band(b))
-            .collect::<Vec<_>>(),
-    ))
-}
-
 /// A default fit's size and its parameters as (name, reported value, error), or why there is
 /// none.
 type FitAt = Result<(usize, Vec<(&'static str, f64, f64)>), String>;
@@ -297,8 +286,8 @@ pub async fn changes(catalog: &Catalog, from: Pinned, to: Pinned) -> anyhow::Res
     let distances = stored::distances_changed(pool, a, b).await?;
     let at_from = catalog.at(Some(a));
     let at_to = catalog.at(Some(b));
-    let relations_from = relations_at(&at_from).await?;
-    let relations_to = relations_at(&at_to).await?;
+    let relations_from = at_from.relations().await?;
+    let relations_to = at_to.relations().await?;
     let mut all = relations_to.clone();
     for r in &relations_from {
         if !all.contains(r) {
