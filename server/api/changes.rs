@@ -96,7 +96,7 @@ pub struct DistanceChangeJson {
     pub new_distance_method: String,
     /// The catalog version it happened at.
     pub catalog_version: i64,
-    /// Who changed it; null from the command line.
+    /// Who changed it; null when no account did (the system).
     pub changed_by: Option<String>,
     /// The note given with the change.
     pub note: String,

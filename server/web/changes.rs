@@ -149,7 +149,7 @@ impl DistanceView {
             by: c
                 .changed_by
                 .clone()
-                .unwrap_or_else(|| "command line".to_owned()),
+                .unwrap_or_else(|| "no account (the system)".to_owned()),
             note: c.note(),
         }
     }
@@ -188,7 +188,7 @@ impl RelationView {
                     delta: p.delta().map_or_else(|| "—".to_owned(), |d| signed(d, 3)),
                     significance: p
                         .significance()
-                        .map_or_else(|| "—".to_owned(), |s| format!("{} σ", fixed(s, 1))),
+                        .map_or_else(|| "—".to_owned(), |s| fixed(s, 1)),
                 })
                 .collect(),
             problems: r.problems.clone(),
