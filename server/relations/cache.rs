@@ -137,6 +137,11 @@ type InFlight<T> = tokio::sync::watch::Receiver<Option<Arc<T>>>;
 pub struct FitCache {
     inner: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
     influence: Arc<Mutex<HashMap<FitKey, Arc<InfluenceResult>>>>,
+    /// Fits and influence lists of versions older than the newest one computed, asked for by
+    /// number (`?version=N`): kept apart, a few at a time, so that a past version's page does
+    /// not compute them again at every visit and the current version's are never pushed out.
+    past_fits: Arc<Mutex<HashMap<FitKey, Arc<FitOutcome>>>>,
+    past_influence: Arc<Mutex<HashMap<FitKey, Arc<InfluenceResult>>>>,
     fits_under_way: Arc<Mutex<HashMap<FitKey, InFlight<FitOutcome>>>>,
     influence_under_way: Arc<Mutex<HashMap<FitKey, InFlight<InfluenceResult>>>>,
     /// The newest whole-sample fit of each (relation, estimator, sample, pivots), whatever its
@@ -171,9 +176,15 @@ fn unversioned(key: &FitKey) -> FitKey {
     }
 }
 
+/// Most fits (and, apart, influence lists) of past versions kept ([`FitCache::insert`]).
+const MAX_PAST_ENTRIES: usize = 16;
+
+/// Most objects held in the samples of past versions' fits: two survey-sized fits.
+const MAX_PAST_OBJECTS: usize = 200_000;
+
 /// Most past versions whose rows are kept ([`FitCache::rows_at`]); beyond it the map starts
 /// afresh (rows of a past version are read again from the history, identical).
-const MAX_PAST_ROWS: usize = 4;
+const MAX_PAST_ROWS: usize = 2;
 
 /// Most entries of [`FitCache::latest`]; beyond it the map starts afresh.
 const MAX_LATEST: usize = 64;
@@ -181,11 +192,19 @@ const MAX_LATEST: usize = 64;
 impl FitCache {
     /// A cached fit, if any.
     pub fn get(&self, key: &FitKey) -> Option<Arc<FitOutcome>> {
-        self.inner
+        let hit = self
+            .inner
             .lock()
             .unwrap_or_else(PoisonError::into_inner)
             .get(key)
-            .cloned()
+            .cloned();
+        hit.or_else(|| {
+            self.past_fits
+                .lock()
+                .unwrap_or_else(PoisonError::into_inner)
+                .get(key)
+                .cloned()
+        })
     }
 
     /// The newest fit for `key` at any catalog version up to `key`'s (the fit itself when it
@@ -206,6 +225,22 @@ impl FitCache {
         let stored = {
             let mut map = self.inner.lock().unwrap_or_else(PoisonError::into_inner);
             let version = outcome.key.catalog_version;
+            if map.keys().any(|k| k.catalog_version > version) {
+                // A past version's fit (`?version=N`): kept apart, never in `latest`.
+                drop(map);
+                let mut past = self
+                    .past_fits
+                    .lock()
+                    .unwrap_or_else(PoisonError::into_inner);
+                if past.len() >= MAX_PAST_ENTRIES {
+                    past.clear();
+                }
+                keep_objects_below(&mut past, MAX_PAST_OBJECTS, outcome.sample.points.len());
+                return past
+                    .entry(outcome.key.clone())
+                    .or_insert_with(|| Arc::new(outcome))
+                    .clone();
+            }
             map.retain(|k, _| k.catalog_version >= version);
             make_room(&mut map);
             keep_objects_below(&mut map, MAX_OBJECTS_HELD, outcome.sample.points.len());
@@ -304,13 +339,10 @@ impl FitCache {
         wait: Option<Duration>,
     ) -> anyhow::Result<Option<Arc<InfluenceResult>>> {
         let key = outcome.key.clone();
-        if let Some(hit) = self
-            .influence
-            .lock()
-            .unwrap_or_else(PoisonError::into_inner)
-            .get(&key)
-        {
-            return Ok(Some(hit.clone()));
+        for map in [&self.influence, &self.past_influence] {
+            if let Some(hit) = map.lock().unwrap_or_else(PoisonError::into_inner).get(&key) {
+                return Ok(Some(hit.clone()));
+            }
         }
         let source = outcome.clone();
         let compute = move || match &source.spec {
@@ -318,15 +350,23 @@ impl FitCache {
             Err(e) => Err(e.clone()),
         };
         let map = self.influence.clone();
+        let past = self.past_influence.clone();
         let store_key = key.clone();
         let store = move |result: InfluenceResult| {
             let mut map = map.lock().unwrap_or_else(PoisonError::into_inner);
-            // An older version's list never pushes out a newer one.
+            // An older version's list never pushes out a newer one: it is kept apart.
             if map
                 .keys()
                 .any(|k| k.catalog_version > store_key.catalog_version)
             {
-                return Arc::new(result);
+                let mut past = past.lock().unwrap_or_else(PoisonError::into_inner);
+                if past.len() >= MAX_PAST_ENTRIES {
+                    past.clear();
+                }
+                return past
+                    .entry(store_key)
+                    .or_insert_with(|| Arc::new(result))
+                    .clone();
             }
             map.retain(|k, _| k.catalog_version >= store_key.catalog_version);
             make_room(&mut map);
@@ -784,6 +824,43 @@ mod tests {
         assert_eq!(runs.load(Ordering::SeqCst), 2);
         assert!(cache.get(&key1).is_none());
         assert_eq!(cache.len(), 1);
+    }
+
+    #[tokio::test]
+    async fn a_past_versions_fit_and_influence_are_kept_apart_and_push_nothing_out() {
+        let cache = FitCache::default();
+        let filter = SampleFilter::default();
+        let key = |v| FitKey::new(v, &Relation::MSigma, Method::Structural, &filter, 2.3, 11.0);
+        let current = cache.insert(outcome(&key(5)));
+        let past = cache.insert(outcome(&key(2)));
+        assert!(Arc::ptr_eq(&cache.get(&key(5)).unwrap(), &current));
+        assert!(
+            Arc::ptr_eq(&cache.get(&key(2)).unwrap(), &past),
+            "asked again: no refit"
+        );
+        assert_eq!(
+            cache.len(),
+            1,
+            "the current version's map holds only its own fits"
+        );
+        assert_eq!(cache.latest(&key(5)).unwrap().key.catalog_version, 5);
+        // Influence lists: the past one is kept apart (asked again, the same list), and the
+        // current one stays where it was.
+        let now = cache
+            .influence_within(&current, None)
+            .await
+            .unwrap()
+            .unwrap();
+        let then = cache.influence_within(&past, None).await.unwrap().unwrap();
+        let again = cache.influence_within(&past, None).await.unwrap().unwrap();
+        assert!(Arc::ptr_eq(&then, &again));
+        let now_again = cache
+            .influence_within(&current, None)
+            .await
+            .unwrap()
+            .unwrap();
+        assert!(Arc::ptr_eq(&now, &now_again));
+        assert!(cache.past_influence.lock().unwrap().contains_key(&key(2)));
     }
 
     #[test]
