@@ -97,6 +97,7 @@ pub mod special;
 pub mod structural;
 pub mod tolerance;
 pub mod types;
+pub mod virial;
 
 use serde::Serialize;
 
