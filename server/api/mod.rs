@@ -5,13 +5,15 @@
 //!
 //! One file per area: [`relations`] (the relations and their fits, with ETags), [`place`] (one
 //! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`catalog`] (the accepted
-//! catalog as CSV or JSON), [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
+//! catalog as CSV or JSON), [`changes`] (what changed between two versions), [`releases`],
+//! [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
 //! generated from the handlers' `#[utoipa::path]` attributes and the answers' `ToSchema`
 //! derives, so it cannot drift from the code) and [`cache`] (what the API keeps per catalog
 //! version). The request rate is counted for every door by the router (`auth::rate`).
 
 pub mod cache;
 pub mod catalog;
+pub mod changes;
 pub mod fit;
 pub mod galaxies;
 pub mod me;
@@ -19,6 +21,7 @@ pub mod openapi;
 pub mod place;
 pub mod problem;
 pub mod relations;
+pub mod releases;
 pub mod runs;
 pub mod submissions;
 
@@ -195,6 +198,18 @@ fn routes() -> Routes {
             "/api/v1/catalog.json",
             Read,
             get(catalog::catalog_json),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/changes",
+            Read,
+            get(changes::catalog_changes),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/releases",
+            Read,
+            get(releases::list_releases),
         )
         .add(
             Method::POST,

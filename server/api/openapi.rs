@@ -61,6 +61,8 @@ impl Modify for BearerScheme {
         super::fit::fit_sample,
         super::catalog::catalog_csv,
         super::catalog::catalog_json,
+        super::changes::catalog_changes,
+        super::releases::list_releases,
         super::submissions::submit,
         super::submissions::status,
         openapi_json,

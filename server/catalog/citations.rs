@@ -108,3 +108,190 @@ pub async fn releases_of(pool: &SqlitePool, version: i64) -> sqlx::Result<Vec<St
         .fetch_all(pool)
         .await
 }
+
+/// Longest release name (migration 8).
+pub const RELEASE_NAME_MAX: usize = 40;
+/// Longest release note (migration 8).
+pub const RELEASE_NOTE_MAX: usize = 2000;
+
+/// Why a release cannot be named; each message one sentence.
+#[derive(Debug, thiserror::Error)]
+pub enum ReleaseError {
+    /// The name breaks the naming rule.
+    #[error(
+        "A release name has 1 to 40 letters, digits, '.', '-' or '_' (for example 2027A); '{0}' does not."
+    )]
+    BadName(String),
+    /// The name is taken: a release never changes or moves.
+    #[error(
+        "The name '{name}' already names catalog version {version}; a release never changes or moves, so choose another name."
+    )]
+    Taken {
+        /// The name.
+        name: String,
+        /// The version it names.
+        version: i64,
+    },
+    /// The version is not one the history can rebuild.
+    #[error(
+        "Catalog version {asked} cannot be released: releases name versions {from} to {current}, the versions the history keeps."
+    )]
+    NoSuchVersion {
+        /// The version asked for.
+        asked: i64,
+        /// The first version the history holds.
+        from: i64,
+        /// The current version.
+        current: i64,
+    },
+    /// The note is too long.
+    #[error("A release note has at most 2000 characters; this one has {0}.")]
+    NoteTooLong(usize),
+    /// The database failed.
+    #[error(transparent)]
+    Db(#[from] sqlx::Error),
+}
+
+/// Whether `name` may name a release: 1 to [`RELEASE_NAME_MAX`] ASCII letters, digits, `.`,
+/// `-`, `_` (the schema's check).
+pub fn valid_release_name(name: &str) -> bool {
+    (1..=RELEASE_NAME_MAX).contains(&name.len())
+        && name
+            .bytes()
+            .all(|b| b.is_ascii_alphanumeric() || b"._-".contains(&b))
+}
+
+/// Names catalog version `version` as release `name` with `note`, in one transaction with the
+/// audit event `release_named`. A release adopts nothing, so the catalog version stays. Returns
+/// the release as stored.
+///
+/// # Errors
+/// [`ReleaseError`]: a bad name or note, a taken name, a version outside the history, or a
+/// database failure.
+pub async fn name_release(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    name: &str,
+    version: i64,
+    note: &str,
+) -> Result<Release, ReleaseError> {
+    let name = name.trim();
+    let note = note.trim();
+    if !valid_release_name(name) {
+        return Err(ReleaseError::BadName(name.chars().take(60).collect()));
+    }
+    let note_chars = note.chars().count();
+    if note_chars > RELEASE_NOTE_MAX {
+        return Err(ReleaseError::NoteTooLong(note_chars));
+    }
+    let mut tx = super::begin_write(pool).await?;
+    let (current, from): (i64, i64) = sqlx::query_as(
+        "select catalog_version, history_from_version from catalog_state where catalog_state_id = 1",
+    )
+    .fetch_one(&mut *tx)
+    .await?;
+    if version < from || version > current {
+        return Err(ReleaseError::NoSuchVersion {
+            asked: version,
+            from,
+            current,
+        });
+    }
+    let taken: Option<i64> =
+        sqlx::query_scalar("select catalog_version from catalog_release where name = ?")
+            .bind(name)
+            .fetch_optional(&mut *tx)
+            .await?;
+    if let Some(taken) = taken {
+        return Err(ReleaseError::Taken {
+            name: name.to_owned(),
+            version: taken,
+        });
+    }
+    let id: i64 = sqlx::query_scalar(
+        "insert into catalog_release (name, catalog_version, note, account_id)
+         values (?, ?, ?, ?) returning catalog_release_id",
+    )
+    .bind(name)
+    .bind(version)
+    .bind(note)
+    .bind(account_id)
+    .fetch_one(&mut *tx)
+    .await?;
+    super::history::record(
+        &mut tx,
+        &super::history::NewEvent {
+            account_id,
+            action: "release_named",
+            entity: "catalog_release",
+            entity_id: Some(id),
+            summary: format!("Catalog version {version} released as {name}."),
+        },
+    )
+    .await?;
+    let release = sqlx::query_as(
+        "select r.name, r.catalog_version, r.note, a.username, r.created_at
+           from catalog_release r left join account a on a.account_id = r.account_id
+          where r.catalog_release_id = ?",
+    )
+    .bind(id)
+    .fetch_one(&mut *tx)
+    .await?;
+    tx.commit().await?;
+    Ok(release)
+}
+
+/// The version a "what changed" link of `releases[index]` starts from: the newest older
+/// version among the releases after it in the list (newest first, as [`releases`] reads
+/// them), else the first version of the history; None when the release names that version.
+pub fn previous_version(releases: &[Release], index: usize, history_from: i64) -> Option<i64> {
+    let version = releases.get(index)?.catalog_version;
+    releases
+        .iter()
+        .skip(index + 1)
+        .map(|r| r.catalog_version)
+        .find(|v| *v < version)
+        .or((history_from < version).then_some(history_from))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn release(name: &str, catalog_version: i64) -> Release {
+        Release {
+            name: name.to_owned(),
+            catalog_version,
+            note: String::new(),
+            username: None,
+            created_at: String::new(),
+        }
+    }
+
+    #[test]
+    fn release_names_are_letters_digits_dots_dashes_and_underscores_up_to_40() {
+        for good in ["2027A", "v1.2-rc_3", &"x".repeat(40)] {
+            assert!(valid_release_name(good), "{good}");
+        }
+        for bad in ["", "a b", "ä", "2027/A", "x?", &"x".repeat(41)] {
+            assert!(!valid_release_name(bad), "{bad}");
+        }
+    }
+
+    #[test]
+    fn a_release_changes_from_the_newest_older_release_or_the_start_of_the_history() {
+        // Newest first, two names for version 9.
+        let list = [
+            release("c", 12),
+            release("b2", 9),
+            release("b", 9),
+            release("a", 4),
+        ];
+        assert_eq!(previous_version(&list, 0, 2), Some(9));
+        assert_eq!(previous_version(&list, 1, 2), Some(4));
+        assert_eq!(previous_version(&list, 2, 2), Some(4));
+        assert_eq!(previous_version(&list, 3, 2), Some(2));
+        assert_eq!(previous_version(&list, 3, 4), None);
+        assert_eq!(previous_version(&list, 9, 0), None);
+    }
+}

@@ -392,10 +392,16 @@ pub async fn change_distance(
             entity: "galaxy",
             entity_id: Some(galaxy_id),
             summary: format!(
-                "Distance of {name}: {old_d} ± {old_err} Mpc ({old_method}) → {} ± {} Mpc ({}).{}",
-                new.distance_mpc,
-                new.distance_err_mpc,
-                new.distance_method,
+                "{}{}",
+                distance_summary(
+                    &name,
+                    &NewDistance {
+                        distance_mpc: old_d,
+                        distance_err_mpc: old_err,
+                        distance_method: old_method,
+                    },
+                    new
+                ),
                 if note.is_empty() {
                     String::new()
                 } else {
@@ -407,6 +413,20 @@ pub async fn change_distance(
     .await?;
     tx.commit().await?;
     Ok(Some(version))
+}
+
+/// The sentence of a `distance_changed` audit event before its note; the note is what
+/// follows it (`catalog::changes::distance_note`).
+pub fn distance_summary(name: &str, old: &NewDistance, new: &NewDistance) -> String {
+    format!(
+        "Distance of {name}: {} ± {} Mpc ({}) → {} ± {} Mpc ({}).",
+        old.distance_mpc,
+        old.distance_err_mpc,
+        old.distance_method,
+        new.distance_mpc,
+        new.distance_err_mpc,
+        new.distance_method
+    )
 }
 
 /// Make a measurement the adopted value for its galaxy, quantity and band (replacing any other).

@@ -92,6 +92,54 @@ pub(super) fn galaxy_from_fields<'a>(
     })
 }
 
+/// Read a galaxy's new adopted distance from named cells (the galaxy page's form):
+/// `distance_mpc`, `distance_err_mpc`, `distance_method`, with the same rules as a new
+/// galaxy's distance. Every cell at fault is one error.
+///
+/// # Errors
+/// Each cell that cannot be read.
+pub fn distance_from_cells<'a>(
+    cell: &impl Fn(&'static str) -> &'a str,
+) -> Result<super::galaxies::NewDistance, Vec<RowError>> {
+    let field = |column: &'static str| Field {
+        file: "form",
+        line: 0,
+        column,
+        text: cell(column),
+    };
+    let distance =
+        field("distance_mpc").number(units::DISTANCE_MIN_MPC, units::DISTANCE_MAX_MPC, "Mpc");
+    let err = field("distance_err_mpc").number(0.0, units::DISTANCE_MAX_MPC, "Mpc");
+    let method = field("distance_method").word::<DistanceMethod>();
+    let mut errors = Vec::new();
+    let err = match (&distance, err) {
+        (Ok(d), Ok(e)) if e >= *d => {
+            errors.push(
+                field("distance_err_mpc")
+                    .error("the distance error must be smaller than the distance".into()),
+            );
+            None
+        }
+        (_, Ok(e)) => Some(e),
+        (_, Err(e)) => {
+            errors.push(e);
+            None
+        }
+    };
+    let distance = distance.map_err(|e| errors.insert(0, e)).ok();
+    let method = method.map_err(|e| errors.push(e)).ok();
+    match (distance, err, method) {
+        (Some(distance_mpc), Some(distance_err_mpc), Some(method)) if errors.is_empty() => {
+            Ok(super::galaxies::NewDistance {
+                distance_mpc,
+                distance_err_mpc,
+                distance_method: method.as_str().to_owned(),
+            })
+        }
+        _ => Err(errors),
+    }
+}
+
 /// A galaxy name cell by the name rules (`catalog::names`): NFC, spaces collapsed, nothing
 /// that does not show as text.
 pub(super) fn galaxy_name(field: &Field<'_>) -> Result<String, RowError> {

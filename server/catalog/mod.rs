@@ -11,6 +11,7 @@
 
 pub mod accounts;
 pub mod backup;
+pub mod changes;
 pub mod citations;
 pub mod csv_io;
 pub mod demo;

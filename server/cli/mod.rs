@@ -9,16 +9,18 @@
 //! massline import FILE.csv [--accept]                 load a catalog CSV (pending, or adopted)
 //! massline export > FILE.csv                          write the adopted catalog (CSV, JSON or VOTable)
 //! massline backup PATH [--db DB] [--force]            a checked copy of the live database
+//! massline release NAME [--version N] [--note TEXT]   name a catalog version as a release
 //! ```
 //!
 //! The command line is one of the three doors (pages and the JSON API are the others): each
 //! subcommand reads its arguments and files, calls the layers below and writes the result.
 //! [`main`] parses the arguments and dispatches to [`serve`], [`fit`], [`user`],
-//! [`catalog_files`] (import and export) and [`backup`].
+//! [`catalog_files`] (import and export), [`backup`] and [`release`].
 
 pub mod backup;
 pub mod catalog_files;
 pub mod fit;
+pub mod release;
 pub mod serve;
 pub mod user;
 
@@ -48,6 +50,8 @@ enum Command {
     Export(catalog_files::ExportArgs),
     /// Copy the database, even while the server runs, to a checked file (see README "Backups").
     Backup(backup::BackupArgs),
+    /// Name a catalog version as a release (e.g. for a paper); a release never moves.
+    Release(release::ReleaseArgs),
 }
 
 /// Parses the command line, runs the subcommand and turns its outcome into the exit code: 0,
@@ -70,6 +74,7 @@ pub fn main() -> std::process::ExitCode {
             &mut std::io::stderr().lock(),
         ),
         Command::Backup(args) => backup::run(&args),
+        Command::Release(args) => release::run(&args, &mut std::io::stdout().lock()),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,

@@ -23,6 +23,7 @@
 pub mod analysis;
 pub mod assess;
 mod cache;
+pub mod changes;
 pub mod citation;
 mod defaults;
 mod filter;

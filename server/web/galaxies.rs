@@ -370,6 +370,158 @@ pub(crate) struct GalaxyShowPage {
     /// Reviewers' decisions on submissions that measured it, newest first (reviewer names
     /// stay off this page, which may be public).
     reviews: Vec<ReviewView>,
+    /// The galaxy's URL form.
+    slug: String,
+    /// The distance form, for reviewers and admins.
+    distance_form: Option<DistanceForm>,
+    /// Said to the person who just changed the distance.
+    flash: Option<String>,
+}
+
+/// The distance form as shown: what was typed, the methods, and what is wrong with each field.
+#[derive(Default)]
+pub(crate) struct DistanceForm {
+    csrf: String,
+    distance_mpc: String,
+    distance_err_mpc: String,
+    /// (value, label, selected).
+    methods: Vec<(&'static str, &'static str, bool)>,
+    note: String,
+    /// (field, sentence).
+    errors: Vec<(String, String)>,
+}
+
+impl DistanceForm {
+    /// The error of `field`, if any.
+    fn error(&self, field: &str) -> Option<&str> {
+        self.errors
+            .iter()
+            .find(|(f, _)| f == field)
+            .map(|(_, m)| m.as_str())
+    }
+
+    /// A form for `method` selected (the stored word).
+    fn with_method(mut self, method: &str) -> Self {
+        self.methods = crate::catalog::model::DistanceMethod::pairs()
+            .into_iter()
+            .map(|(value, label)| (value, label, value == method))
+            .collect();
+        self
+    }
+}
+
+/// Longest note of a distance change (the audit sentence keeps 500 characters).
+const DISTANCE_NOTE_MAX: usize = 500;
+
+/// The distance form's fields.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct DistanceFields {
+    #[serde(default)]
+    distance_mpc: String,
+    #[serde(default)]
+    distance_err_mpc: String,
+    #[serde(default)]
+    distance_method: String,
+    #[serde(default)]
+    note: String,
+}
+
+/// Adopt a new distance for a galaxy (reviewers and admins): a new catalog version, then back
+/// to the galaxy's page, which names it. A field at fault is named beside it (400).
+pub(crate) async fn change_distance(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: super::Nav,
+    Path(slug): Path<String>,
+    axum::Form(fields): axum::Form<DistanceFields>,
+) -> AppResult<axum::response::Response> {
+    use axum::response::IntoResponse;
+    let me = super::account::session_of(&principal)?;
+    let galaxy = crate::catalog::galaxies::find_by_slug(&state.pool, &slug)
+        .await?
+        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+    let cell = |c: &'static str| match c {
+        "distance_mpc" => fields.distance_mpc.as_str(),
+        "distance_err_mpc" => fields.distance_err_mpc.as_str(),
+        "distance_method" => fields.distance_method.as_str(),
+        _ => "",
+    };
+    let read = crate::catalog::intake::distance_from_cells(&cell);
+    let mut errors: Vec<(String, String)> = match &read {
+        Ok(_) => Vec::new(),
+        Err(faults) => faults
+            .iter()
+            .map(|f| {
+                (
+                    f.column.to_owned(),
+                    crate::catalog::intake::sentence(&format!(
+                        "{}: {}",
+                        field_label(f.column),
+                        f.message
+                    )),
+                )
+            })
+            .collect(),
+    };
+    // The same numbers as stored, bit for bit: a change nobody could see is refused.
+    if let Ok(new) = &read
+        && new.distance_mpc.to_bits() == galaxy.distance_mpc.to_bits()
+        && new.distance_err_mpc.to_bits() == galaxy.distance_err_mpc.to_bits()
+        && new.distance_method == galaxy.distance_method
+    {
+        errors.push((
+            "distance_mpc".into(),
+            "Distance: this is the distance already adopted; change the distance, its error or its method.".into(),
+        ));
+    }
+    let note_chars = fields.note.trim().chars().count();
+    if note_chars > DISTANCE_NOTE_MAX {
+        errors.push((
+            "note".into(),
+            format!("Note: at most {DISTANCE_NOTE_MAX} characters; this one has {note_chars}."),
+        ));
+    }
+    match read {
+        Ok(new) if errors.is_empty() => {
+            let version = crate::catalog::galaxies::change_distance(
+                &state.pool,
+                Some(me.account_id),
+                galaxy.galaxy_id,
+                &new,
+                &fields.note,
+            )
+            .await?
+            .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+            Ok(axum::response::Redirect::to(&format!(
+                "/galaxies/{slug}?distance_changed={version}#distance"
+            ))
+            .into_response())
+        }
+        _ => {
+            let form = DistanceForm {
+                csrf: me.csrf_token.clone(),
+                distance_mpc: fields.distance_mpc.clone(),
+                distance_err_mpc: fields.distance_err_mpc.clone(),
+                note: fields.note.clone(),
+                errors,
+                ..DistanceForm::default()
+            }
+            .with_method(fields.distance_method.trim());
+            let page =
+                galaxy_page(&state, &principal, nav, &slug, Vec::new(), Some(form), None).await?;
+            Ok((axum::http::StatusCode::BAD_REQUEST, page).into_response())
+        }
+    }
+}
+
+/// The distance form's field names in words.
+fn field_label(column: &str) -> &'static str {
+    match column {
+        "distance_mpc" => "Distance",
+        "distance_err_mpc" => "Distance error",
+        "distance_method" => "Distance method",
+        _ => "Note",
+    }
 }
 
 /// A review decision on the galaxy page: its time as stored (for `<time datetime>`) and as read.
@@ -390,8 +542,52 @@ pub(crate) async fn show_galaxy(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<GalaxyShowPage> {
+    let (changed, pairs): (Vec<_>, Vec<_>) = crate::router::query_pairs(query)?
+        .into_iter()
+        .partition(|(k, _)| k == "distance_changed");
+    // The confirmation is worded from the audit log, and only for the person who made the
+    // change, so an address cannot make the page claim something.
+    let changed_at = changed
+        .first()
+        .and_then(|(_, v)| v.trim().parse::<i64>().ok());
+    let flash = match (changed_at, &principal) {
+        (Some(version), Principal::Session(s)) => {
+            match crate::catalog::galaxies::find_by_slug(&state.pool, &slug).await? {
+                Some(g)
+                    if crate::catalog::changes::distance_changed_by(
+                        &state.pool,
+                        g.galaxy_id,
+                        version,
+                        s.account_id,
+                    )
+                    .await? =>
+                {
+                    Some(format!(
+                        "New distance adopted: catalog version {version}. See what changed on /changes?to={version}."
+                    ))
+                }
+                _ => None,
+            }
+        }
+        _ => None,
+    };
+    galaxy_page(&state, &principal, nav, &slug, pairs, None, flash).await
+}
+
+/// The galaxy page at the version `pairs` ask for, with the distance form (for reviewers and
+/// admins on the current version: as given, or filled with the adopted distance) and a
+/// confirmation.
+async fn galaxy_page(
+    state: &AppState,
+    principal: &Principal,
+    nav: super::Nav,
+    slug: &str,
+    pairs: Vec<(String, String)>,
+    form: Option<DistanceForm>,
+    flash: Option<String>,
+) -> AppResult<GalaxyShowPage> {
     use crate::catalog::model::{CentreKind, DistanceMethod};
-    let (catalog, pinned, ask, rest) = super::relations::versioned(&state, query).await?;
+    let (catalog, pinned, ask, rest) = super::relations::versioned_pairs(state, pairs).await?;
     if let Some((key, _)) = rest.first() {
         return Err(AppError::bad_request(format!(
             "'{}' is not a parameter of this page (it accepts version, release).",
@@ -403,7 +599,7 @@ pub(crate) async fn show_galaxy(
     let record = galaxy_record_at(
         &state.pool,
         threshold,
-        &slug,
+        slug,
         principal.unreviewed_shown(),
         version,
     )
@@ -415,6 +611,22 @@ pub(crate) async fn show_galaxy(
         )),
     })?;
     let galaxy = &record.galaxy;
+    let distance_form = match principal {
+        Principal::Session(s)
+            if version.is_none() && s.role.includes(crate::auth::Role::Reviewer) =>
+        {
+            Some(form.unwrap_or_else(|| {
+                DistanceForm {
+                    csrf: s.csrf_token.clone(),
+                    distance_mpc: galaxy.distance_mpc.to_string(),
+                    distance_err_mpc: galaxy.distance_err_mpc.to_string(),
+                    ..DistanceForm::default()
+                }
+                .with_method(&galaxy.distance_method)
+            }))
+        }
+        _ => None,
+    };
     let left_out = place_left_out(&catalog, galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
     let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
     let version_note = VersionNote::of(
@@ -487,6 +699,9 @@ pub(crate) async fn show_galaxy(
             )
         }),
         reviews,
+        slug: galaxy.slug.clone(),
+        distance_form,
+        flash,
         version_note,
     })
 }

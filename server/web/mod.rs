@@ -10,6 +10,7 @@
 mod account;
 mod admin;
 mod api_page;
+mod changes;
 mod display;
 mod error_page;
 mod escape;
@@ -20,6 +21,7 @@ mod login;
 mod overview;
 mod place;
 mod relations;
+mod releases;
 mod review;
 mod submissions;
 
@@ -58,6 +60,20 @@ fn routes() -> Routes {
             "/galaxies/{slug}",
             Read,
             get(galaxies::show_galaxy),
+        )
+        .add(
+            Method::POST,
+            "/galaxies/{slug}/distance",
+            Review,
+            post(galaxies::change_distance),
+        )
+        .add(Method::GET, "/changes", Read, get(changes::show_changes))
+        .add(Method::GET, "/releases", Read, get(releases::list_releases))
+        .add(
+            Method::POST,
+            "/releases",
+            Admin,
+            post(releases::create_release),
         )
         .add(
             Method::GET,

@@ -532,15 +532,15 @@ fn reported(fit: &Fit, name: &str) -> Option<String> {
 
 /// One relation on `/relations`.
 pub(crate) struct RelationSummary {
-    label: String,
-    slug: String,
-    x_label: String,
-    alpha: String,
-    beta: String,
-    gamma: Option<String>,
-    eps: String,
-    n: String,
-    problem: Option<String>,
+    pub(crate) label: String,
+    pub(crate) slug: String,
+    pub(crate) x_label: String,
+    pub(crate) alpha: String,
+    pub(crate) beta: String,
+    pub(crate) gamma: Option<String>,
+    pub(crate) eps: String,
+    pub(crate) n: String,
+    pub(crate) problem: Option<String>,
 }
 
 /// `/relations`.
@@ -573,12 +573,36 @@ pub(crate) async fn list_relations(
     }
     let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
     let version_note = VersionNote::of(&pinned, &ask, made_at.as_deref(), "/relations".into());
+    let (relations, catalog_version, computing) = summaries(&catalog).await?;
+    Ok(RelationsListPage {
+        nav,
+        relations,
+        catalog_version,
+        computing: computing.map(|v| {
+            format!(
+                "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
+            )
+        }),
+        gq: VersionNote::suffix(version_note.as_ref(), '?'),
+        version_note,
+    })
+}
+
+/// Every relation of `catalog`'s version with its default structural fit, the newest version
+/// fitted, and the version still being computed, if any (a pinned catalog waits for its own
+/// fits: `Catalog::fitted_within`).
+///
+/// # Errors
+/// When the catalog cannot be read or a fitting task fails.
+pub(crate) async fn summaries(
+    catalog: &Catalog,
+) -> AppResult<(Vec<RelationSummary>, i64, Option<i64>)> {
     let q = RelationQuery::default();
     let mut relations = Vec::new();
     let mut catalog_version = 0;
     let mut computing = None;
-    for relation in relations_of(&catalog).await? {
-        let outcome = match fit_shown(&catalog, &relation, &q).await? {
+    for relation in relations_of(catalog).await? {
+        let outcome = match fit_shown(catalog, &relation, &q).await? {
             Ok(shown) => {
                 computing = computing.or(shown.computing);
                 shown.outcome
@@ -629,18 +653,7 @@ pub(crate) async fn list_relations(
         };
         relations.push(summary);
     }
-    Ok(RelationsListPage {
-        nav,
-        relations,
-        catalog_version,
-        computing: computing.map(|v| {
-            format!(
-                "Computing: the fits of catalog version {v} are under way; where they are not ready the newest earlier fit is shown. This page reloads itself."
-            )
-        }),
-        gq: VersionNote::suffix(version_note.as_ref(), '?'),
-        version_note,
-    })
+    Ok((relations, catalog_version, computing))
 }
 
 /// "17 measurements and 1 upper limit".

@@ -11,6 +11,7 @@ mod analysis;
 mod api;
 mod api_fuzz;
 mod catalog_search;
+mod changes;
 mod exports;
 mod galaxy_names;
 mod galaxy_relations;
