@@ -16,7 +16,6 @@ use super::display::{
     with_errors,
 };
 use super::relations::{Grouping, chart_y, relation_chart, relation_chart_frame, shared_points};
-use crate::catalog::relation_rows;
 use crate::charts::{ChartPoint, DENSITY_THRESHOLD, RelationChart, relation_svg, relation_svg_of};
 use crate::error::{AppError, AppResult, FieldError};
 use crate::fit::Point;
@@ -89,6 +88,8 @@ pub(crate) struct PlacePage {
     soi_threshold: String,
     charts: Vec<PlaceChart>,
     nothing_usable: bool,
+    /// The catalog version named in the address, if any.
+    version_note: Option<super::display::VersionNote>,
 }
 
 /// Show the place form and, when values were given, where the object falls.
@@ -97,7 +98,7 @@ pub(crate) async fn show_place(
     nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<PlacePage> {
-    let pairs = crate::router::query_pairs(query)?;
+    let (catalog, pinned, ask, pairs) = super::relations::versioned(&state, query).await?;
     let (texts, unknown) = ObjectTexts::from_pairs(&pairs);
     if !unknown.is_empty() {
         // Each unknown name once, at most a hundred of them: a long address of bare
@@ -114,28 +115,28 @@ pub(crate) async fn show_place(
             "are not parameters"
         };
         return Err(AppError::bad_request(format!(
-            "'{}'{more} {verb} of this page (it accepts {}).",
+            "'{}'{more} {verb} of this page (it accepts {}, version, release).",
             names.join("', '"),
             OBJECT_FIELDS.join(", ")
         )));
     }
-    let bands = relation_rows::luminosity_bands(&state.pool).await?;
-    let bands: Vec<String> = bands
+    let bands: Vec<String> = catalog
+        .bands()
+        .await?
         .into_iter()
         .filter(|b| Relation::valid_band(b))
         .collect();
+    let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
+    let version_note =
+        super::display::VersionNote::of(&pinned, &ask, made_at.as_deref(), "/place".to_owned());
     let (values, faults) = read_object(&texts, &bands);
     let asked = !texts.is_empty();
     let placed = if asked {
         let relations = Relation::all(&bands);
         let fits = state.fits.clone();
-        place_everywhere(
-            &state.catalog(),
-            relations,
-            &values,
-            "this object",
-            move |p| (row(&p), chart(&fits, &p)),
-        )
+        place_everywhere(&catalog, relations, &values, "this object", move |p| {
+            (row(&p), chart(&fits, &p))
+        })
         .await?
     } else {
         Vec::new()
@@ -167,6 +168,7 @@ pub(crate) async fn show_place(
         soi_note: if asked { soi_note } else { None },
         soi_threshold: significant(state.settings.soi_threshold, 2),
         charts,
+        version_note,
     })
 }
 

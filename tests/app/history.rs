@@ -469,6 +469,16 @@ async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
         .await;
     assert_eq!(status, 200, "{placed}");
     assert_eq!(json(&placed)["catalog_version"], demo);
+    let page = app
+        .ok(&format!(
+            "/place?sigma=200&mass=2e8&distance=20&version={demo}"
+        ))
+        .await;
+    assert!(page.contains("You are reading catalog version"), "{page}");
+    assert!(
+        page.contains(&format!("name=\"version\" value=\"{demo}\"")),
+        "the form keeps it"
+    );
     let (status, _) = app.get("/api/v1/galaxies?version=-3").await;
     assert_eq!(status, 422);
 }
