@@ -118,6 +118,78 @@ impl RadiusLuminosity {
     }
 }
 
+/// A single-epoch Hβ mass calibration of the form
+///
+/// ```text
+/// log₁₀(M / M☉) = a + log₁₀[ (FWHM(Hβ) / 1000 km s⁻¹)² (λL_λ(5100 Å) / 10⁴⁴ erg s⁻¹)^b ]
+/// ```
+///
+/// with its scatter about reverberation masses, which a single-epoch mass carries as an error
+/// floor. The default is [`VESTERGAARD_PETERSON_2006`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SingleEpoch {
+    /// a: the zero point, dex.
+    pub zero_point_dex: f64,
+    /// b: the luminosity exponent, dimensionless.
+    pub luminosity_exponent: f64,
+    /// Scatter of the calibration about reverberation masses, dex.
+    pub scatter_dex: f64,
+}
+
+/// The Hβ single-epoch calibration of Vestergaard & Peterson 2006: a = 6.91, b = 0.50,
+/// scatter 0.43 dex.
+///
+/// # References
+/// Vestergaard & Peterson 2006, ApJ 641, 689: zero point 6.91 ± 0.02, exponent 0.50, scatter
+/// 0.43 dex (from memory; docs/methods.md §4.2).
+pub const VESTERGAARD_PETERSON_2006: SingleEpoch = SingleEpoch {
+    zero_point_dex: 6.91,
+    luminosity_exponent: 0.50,
+    scatter_dex: 0.43,
+};
+
+impl SingleEpoch {
+    /// log₁₀ of the single-epoch mass (M☉) from FWHM(Hβ) (km/s) and λL_λ(5100 Å) (erg/s), by the
+    /// formula of [`SingleEpoch`].
+    ///
+    /// # Errors
+    /// [`AstroError::NotFinite`] or [`AstroError::NotPositive`] for an input that is not a
+    /// finite number greater than zero.
+    pub fn log_mass_msun(
+        self,
+        fwhm_km_s: f64,
+        luminosity_5100_erg_s: f64,
+    ) -> Result<f64, AstroError> {
+        let fwhm_km_s = positive("fwhm_km_s", fwhm_km_s)?;
+        let luminosity_5100_erg_s = positive("luminosity_5100_erg_s", luminosity_5100_erg_s)?;
+        Ok(self.zero_point_dex
+            + 2.0 * (fwhm_km_s / 1000.0).log10()
+            + self.luminosity_exponent * (luminosity_5100_erg_s / R_L_PIVOT_ERG_S).log10())
+    }
+}
+
+/// A single-epoch mass through a radius–luminosity relation and a virial factor, in M☉:
+///
+/// ```text
+/// τ = R_BLR(λL_λ(5100 Å)) / c      (the relation gives R in light-days, i.e. τ in days)
+/// M = f · c τ Δv² / G
+/// ```
+///
+/// # Errors
+/// As [`RadiusLuminosity::radius_lt_days`], [`virial_product_msun`] and [`virial_mass_msun`].
+pub fn single_epoch_mass_msun(
+    relation: RadiusLuminosity,
+    luminosity_5100_erg_s: f64,
+    line_width_km_s: f64,
+    virial_factor: f64,
+) -> Result<f64, AstroError> {
+    let lag_days = relation.radius_lt_days(luminosity_5100_erg_s)?;
+    virial_mass_msun(
+        virial_product_msun(lag_days, line_width_km_s)?,
+        virial_factor,
+    )
+}
+
 /// Eddington luminosity, in erg/s, of a black hole of mass M (M☉).
 ///
 /// ```text
@@ -302,6 +374,32 @@ mod tests {
         let mass = virial_mass_msun(vp, 4.31).unwrap();
         assert_rel(mass, 3.365e7, 2e-4);
         assert_abs(mass.log10(), 7.527, 5e-4);
+    }
+
+    #[test]
+    fn the_virial_product_of_one_day_and_1000_km_s() {
+        // VP = c τ Δv²/G for τ = 1 d, Δv = 1000 km/s: 2.99792458e8 m/s × 86400 s × (1e6 m/s)² /
+        // 1.3271244e20 m³/s² = 1.95174e5 M☉ (computed from CODATA c and the IAU nominal GM☉).
+        assert_rel(virial_product_msun(1.0, 1000.0).unwrap(), 1.951_744e5, 1e-6);
+    }
+
+    #[test]
+    fn single_epoch_masses_by_calibration_and_by_radius_luminosity() {
+        // Vestergaard & Peterson 2006 (from memory): FWHM 4000 km/s at 10⁴⁴ erg/s →
+        // 6.91 + 2 log 4 = 8.114 (computed); ten times the luminosity adds 0.5 dex.
+        let vp06 = VESTERGAARD_PETERSON_2006;
+        assert_abs(vp06.log_mass_msun(4000.0, 1.0e44).unwrap(), 8.114_12, 1e-5);
+        assert_abs(
+            vp06.log_mass_msun(4000.0, 1.0e45).unwrap()
+                - vp06.log_mass_msun(4000.0, 1.0e44).unwrap(),
+            0.5,
+            1e-12,
+        );
+        assert!(vp06.log_mass_msun(0.0, 1.0e44).is_err());
+        // Through Bentz et al. 2013 at 10⁴⁴ erg/s: τ = 33.65 d; with σ_line 2000 km/s and
+        // f = 4.31: 10^1.527 × 1.95174e5 × 4 × 4.31 = 1.1323e8 M☉ (computed).
+        let m = single_epoch_mass_msun(BENTZ_2013, 1.0e44, 2000.0, 4.31).unwrap();
+        assert_rel(m, 1.1323e8, 5e-4);
     }
 
     #[test]
