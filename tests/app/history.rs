@@ -29,6 +29,24 @@ impl Dice {
     }
 }
 
+/// Adopts a new distance for a galaxy (a new catalog version), as the system.
+async fn move_galaxy(app: &TestApp, galaxy: i64, distance_mpc: f64, err_mpc: f64, method: &str) {
+    galaxies::change_distance(
+        &app.pool,
+        None,
+        galaxy,
+        &NewDistance {
+            distance_mpc,
+            distance_err_mpc: err_mpc,
+            distance_method: method.into(),
+        },
+        "",
+    )
+    .await
+    .unwrap()
+    .expect("the galaxy exists");
+}
+
 /// The files whose bytes a version must keep.
 const FILES: [&str; 8] = [
     "/relations/m_sigma/fit.json",
@@ -236,19 +254,7 @@ async fn a_past_version_is_immutable_and_versions_outside_the_history_say_why() 
         .fetch_one(&app.pool)
         .await
         .unwrap();
-    galaxies::change_distance(
-        &app.pool,
-        None,
-        galaxy,
-        &NewDistance {
-            distance_mpc: 33.0,
-            distance_err_mpc: 2.0,
-            distance_method: "trgb".into(),
-        },
-        "",
-    )
-    .await
-    .unwrap();
+    move_galaxy(&app, galaxy, 33.0, 2.0, "trgb").await;
     // A past version's file: strong ETag, a year's cache, 304 when the tag is sent back.
     let path = format!("/relations/m_sigma/sample.csv?version={demo}");
     let r = app
@@ -355,19 +361,7 @@ async fn a_cited_fit_keeps_its_page_and_is_made_again_equal_after_the_catalog_mo
         .fetch_one(&app.pool)
         .await
         .unwrap();
-    galaxies::change_distance(
-        &app.pool,
-        None,
-        galaxy,
-        &NewDistance {
-            distance_mpc: 40.0,
-            distance_err_mpc: 3.0,
-            distance_method: "cepheid".into(),
-        },
-        "",
-    )
-    .await
-    .unwrap();
+    move_galaxy(&app, galaxy, 40.0, 3.0, "cepheid").await;
     // The current fit has another identifier now; the old one still has its page.
     let now = app.ok("/relations/m_sigma?method=conditional").await;
     assert!(
@@ -422,19 +416,7 @@ async fn the_api_answers_galaxies_and_placements_at_a_past_version() {
     .fetch_one(&app.pool)
     .await
     .unwrap();
-    galaxies::change_distance(
-        &app.pool,
-        None,
-        galaxy,
-        &NewDistance {
-            distance_mpc: old_d * 2.0,
-            distance_err_mpc: 1.0,
-            distance_method: "trgb".into(),
-        },
-        "",
-    )
-    .await
-    .unwrap();
+    move_galaxy(&app, galaxy, old_d * 2.0, 1.0, "trgb").await;
     let json = |body: &str| serde_json::from_str::<serde_json::Value>(body).unwrap();
     let (status, then) = app
         .get(&format!("/api/v1/galaxies/{slug}?version={demo}"))
@@ -491,19 +473,7 @@ async fn the_command_line_exports_any_version_as_the_server_serves_it() {
         .fetch_one(&app.pool)
         .await
         .unwrap();
-    galaxies::change_distance(
-        &app.pool,
-        None,
-        galaxy,
-        &NewDistance {
-            distance_mpc: 12.5,
-            distance_err_mpc: 0.5,
-            distance_method: "cepheid".into(),
-        },
-        "",
-    )
-    .await
-    .unwrap();
+    move_galaxy(&app, galaxy, 12.5, 0.5, "cepheid").await;
     let bin = env!("CARGO_BIN_EXE_massline");
     let export = |version: i64| {
         std::process::Command::new(bin)
