@@ -102,17 +102,24 @@ pub async fn galaxies_added(
     to: i64,
 ) -> sqlx::Result<Vec<AddedGalaxy>> {
     sqlx::query_as(
+        // The spans that start in the range (an index range), of galaxies with no span that
+        // held before it: not a scan of every span of the catalog.
         "with first as (
-             select galaxy_id, min(valid_from_version) as v from adopted_value_span
-              where valid_until_version is null or valid_until_version > valid_from_version
-           group by galaxy_id
+             select a.galaxy_id, min(a.valid_from_version) as v from adopted_value_span a
+              where a.valid_from_version > ?1 and a.valid_from_version <= ?2
+                and (a.valid_until_version is null or a.valid_until_version > a.valid_from_version)
+                and not exists (
+                    select 1 from adopted_value_span e
+                     where e.galaxy_id = a.galaxy_id and e.valid_from_version <= ?1
+                       and (e.valid_until_version is null
+                            or e.valid_until_version > e.valid_from_version))
+           group by a.galaxy_id
          )
          select f.galaxy_id, s.name, s.slug, f.v as catalog_version
            from first f
            join galaxy_span s on s.galaxy_id = f.galaxy_id
                               and s.valid_from_version <= ?2
                               and (s.valid_until_version is null or s.valid_until_version > ?2)
-          where f.v > ?1 and f.v <= ?2
        order by f.v, s.name",
     )
     .bind(from)

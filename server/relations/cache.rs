@@ -179,8 +179,9 @@ fn unversioned(key: &FitKey) -> FitKey {
 /// Most fits (and, apart, influence lists) of past versions kept ([`FitCache::insert`]).
 const MAX_PAST_ENTRIES: usize = 16;
 
-/// Most objects held in the samples of past versions' fits: two survey-sized fits.
-const MAX_PAST_OBJECTS: usize = 200_000;
+/// Most objects held in the samples of past versions' fits: the five default fits of one
+/// survey-sized version (what `/changes` and `/releases` read), about 250 MB.
+const MAX_PAST_OBJECTS: usize = 500_000;
 
 /// Most past versions whose rows are kept ([`FitCache::rows_at`]); beyond it the map starts
 /// afresh (rows of a past version are read again from the history, identical).
