@@ -1,5 +1,5 @@
-//! Journey 8: a visitor on a phone (390 × 844) places an object, reads a relation and a
-//! galaxy: no page is wider than the screen, and on /place the placement's z and verdict can
+//! Journey 8: a visitor on a phone (390 × 844) places an object, reads a relation, its fit's
+//! permanent page, what changed and the releases, and a galaxy: no page is wider than the screen, and on /place the placement's z and verdict can
 //! be read without scrolling sideways (the table becomes cards at this width).
 
 use crate::support::{self, PHONE_WIDTH, Reading};
@@ -72,6 +72,16 @@ async fn on_a_phone_no_page_is_wider_than_the_screen_and_z_and_the_verdict_show_
         );
 
         visitor.open("/relations/m_sigma", "relation").await;
+        // The fit's permanent page, from the relation page's how-to-cite box, and the pages of
+        // versions and releases: none wider than the screen either.
+        let fit_page = visitor
+            .script("return document.querySelector('section.cite a').getAttribute('href');")
+            .await;
+        let fit_page = fit_page.as_str().expect("a how-to-cite link").to_owned();
+        visitor.open(&fit_page, "fit-page").await;
+        visitor.open("/relations/m_sigma?version=1", "relation-version").await;
+        visitor.open("/changes", "changes").await;
+        visitor.open("/releases", "releases").await;
         let galaxy = support::planted_outliers()
             .into_iter()
             .next()
