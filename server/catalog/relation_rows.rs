@@ -160,26 +160,6 @@ pub async fn luminosity_rows_at(
     .await
 }
 
-/// The photometric bands with at least one bulge luminosity adopted at catalog version
-/// `version`, sorted.
-///
-/// # Errors
-/// When the database cannot be read.
-pub async fn luminosity_bands_at(
-    db: impl SqliteExecutor<'_>,
-    version: i64,
-) -> sqlx::Result<Vec<String>> {
-    sqlx::query_scalar(concat!(
-        "select distinct band from adopted_value_span a
-          where a.quantity = 'bulge_luminosity' and ",
-        held_at!("a"),
-        " order by band"
-    ))
-    .bind(version)
-    .fetch_all(db)
-    .await
-}
-
 /// The photometric bands that have at least one adopted bulge luminosity, sorted.
 ///
 /// # Errors

@@ -136,8 +136,18 @@ impl Catalog {
     pub async fn bands(&self) -> sqlx::Result<Vec<String>> {
         match self.pinned {
             None => crate::catalog::relation_rows::luminosity_bands(&self.pool).await,
-            Some(version) => {
-                crate::catalog::relation_rows::luminosity_bands_at(&self.pool, version).await
+            // A named version's rows are read (and kept) for its fits anyway.
+            Some(_) => {
+                let mut bands: Vec<String> = self
+                    .rows()
+                    .await?
+                    .luminosities
+                    .iter()
+                    .map(|l| l.band.clone())
+                    .collect();
+                bands.sort();
+                bands.dedup();
+                Ok(bands)
             }
         }
     }

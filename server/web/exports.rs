@@ -7,9 +7,9 @@ use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::response::Response;
 
-use super::relations::{Target, download, fit_for, read_query, target};
+use super::relations::{Target, download, file_name, fit_for, read_query, target};
 use crate::error::AppResult;
-use crate::relations::FitOutcome;
+use crate::relations::{FitOutcome, Relation};
 use crate::state::AppState;
 
 /// The media type of a VOTable (IVOA VOTable 1.4, appendix on media types).
@@ -29,15 +29,24 @@ async fn fit_of(
     Ok((t, outcome))
 }
 
-/// A download's name, as the other relation files are named: relation, estimator, catalog
-/// version and what it is ("m_sigma-structural-v12-sample.vot").
-fn file_name(relation: &crate::relations::Relation, outcome: &FitOutcome, what: &str) -> String {
-    format!(
-        "{}-{}-v{}-{what}",
-        relation.slug(),
-        outcome.key.method,
-        outcome.key.catalog_version
-    )
+/// A relation's export for the query: `make` writes the file from the fit, named as the other
+/// relation files with `tail` ("-sample.vot").
+async fn export_file(
+    state: &AppState,
+    slug: &str,
+    query: Result<Query<Vec<(String, String)>>, QueryRejection>,
+    content_type: &'static str,
+    tail: &str,
+    make: impl FnOnce(&FitOutcome, &Relation) -> AppResult<String>,
+) -> AppResult<Response> {
+    let (t, outcome) = fit_of(state, slug, query).await?;
+    let text = make(&outcome, &t.relation)?;
+    Ok(download(
+        &t.pinned,
+        content_type,
+        &file_name(&t.relation, &outcome, tail),
+        text,
+    ))
 }
 
 /// `/relations/{relation}/sample.vot`: the fitted sample as a VOTable.
@@ -46,15 +55,10 @@ pub(crate) async fn sample_vot(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (t, outcome) = fit_of(&state, &slug, query).await?;
-    let relation = &t.relation;
-    let text = crate::export::sample_votable(&outcome, relation)?;
-    Ok(download(
-        &t.pinned,
-        VOTABLE,
-        &file_name(relation, &outcome, "sample.vot"),
-        text,
-    ))
+    export_file(&state, &slug, query, VOTABLE, "-sample.vot", |o, r| {
+        Ok(crate::export::sample_votable(o, r)?)
+    })
+    .await
 }
 
 /// `/relations/{relation}/fit.tex`: the fit as one row of a LaTeX table of relations.
@@ -63,15 +67,10 @@ pub(crate) async fn fit_tex(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (t, outcome) = fit_of(&state, &slug, query).await?;
-    let relation = &t.relation;
-    let text = crate::export::latex::fit_tex_file(&outcome, relation);
-    Ok(download(
-        &t.pinned,
-        TEX,
-        &file_name(relation, &outcome, "fit.tex"),
-        text,
-    ))
+    export_file(&state, &slug, query, TEX, "-fit.tex", |o, r| {
+        Ok(crate::export::latex::fit_tex_file(o, r))
+    })
+    .await
 }
 
 /// `/relations/{relation}/sample.tex`: the fitted sample as an AASTeX `deluxetable`.
@@ -80,15 +79,10 @@ pub(crate) async fn sample_tex(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (t, outcome) = fit_of(&state, &slug, query).await?;
-    let relation = &t.relation;
-    let text = crate::export::sample_table(&outcome, relation);
-    Ok(download(
-        &t.pinned,
-        TEX,
-        &file_name(relation, &outcome, "sample.tex"),
-        text,
-    ))
+    export_file(&state, &slug, query, TEX, "-sample.tex", |o, r| {
+        Ok(crate::export::sample_table(o, r))
+    })
+    .await
 }
 
 /// `/relations/{relation}/methods.txt`: a paragraph for a methods section.
@@ -97,16 +91,15 @@ pub(crate) async fn methods_txt(
     Path(slug): Path<String>,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let (t, outcome) = fit_of(&state, &slug, query).await?;
-    let relation = &t.relation;
-    let mut text = crate::export::methods_paragraph(&outcome, relation);
-    text.push('\n');
-    Ok(download(
-        &t.pinned,
+    export_file(
+        &state,
+        &slug,
+        query,
         "text/plain; charset=utf-8",
-        &file_name(relation, &outcome, "methods.txt"),
-        text,
-    ))
+        "-methods.txt",
+        |o, r| Ok(crate::export::methods_paragraph(o, r) + "\n"),
+    )
+    .await
 }
 
 /// `/catalog.vot`: the adopted catalog as a VOTable, named with its version; any past version

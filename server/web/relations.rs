@@ -329,11 +329,6 @@ impl RelationQuery {
     }
 }
 
-/// The relations of the catalog at `catalog`'s version.
-async fn relations_of(catalog: &Catalog) -> AppResult<Vec<Relation>> {
-    Ok(catalog.relations().await?)
-}
-
 /// What a relation page or download is asked for: the catalog at the version asked for, the
 /// relation, and the page's own query parameters.
 pub(crate) struct Target {
@@ -601,7 +596,7 @@ pub(crate) async fn summaries(
     let mut relations = Vec::new();
     let mut catalog_version = 0;
     let mut computing = None;
-    for relation in relations_of(catalog).await? {
+    for relation in catalog.relations().await? {
         let outcome = match fit_shown(catalog, &relation, &q).await? {
             Ok(shown) => {
                 computing = computing.or(shown.computing);
@@ -1924,12 +1919,7 @@ pub(crate) async fn download_chart(
     Ok(download(
         &t.pinned,
         "image/svg+xml; charset=utf-8",
-        &format!(
-            "{}-{}-v{}.svg",
-            relation.slug(),
-            q.fit.method.as_str(),
-            outcome.key.catalog_version
-        ),
+        &file_name(relation, &outcome, ".svg"),
         svg,
     ))
 }
@@ -1951,12 +1941,7 @@ pub(crate) async fn download_chart_png(
     };
     let png =
         crate::charts::relation_png(&chart).map_err(|e| AppError::bad_request(e.to_string()))?;
-    let filename = format!(
-        "{}-{}-v{}.png",
-        relation.slug(),
-        q.fit.method.as_str(),
-        outcome.key.catalog_version
-    );
+    let filename = file_name(relation, &outcome, ".png");
     Ok(download(&t.pinned, "image/png", &filename, png))
 }
 
@@ -2002,12 +1987,7 @@ pub(crate) async fn download_fit(
     Ok(download(
         &t.pinned,
         "application/json",
-        &format!(
-            "{}-{}-v{}.json",
-            relation.slug(),
-            q.fit.method.as_str(),
-            outcome.key.catalog_version
-        ),
+        &file_name(relation, &outcome, ".json"),
         text,
     ))
 }
@@ -2027,14 +2007,20 @@ pub(crate) async fn download_sample(
     Ok(download(
         &t.pinned,
         "text/csv; charset=utf-8",
-        &format!(
-            "{}-{}-v{}-sample.csv",
-            relation.slug(),
-            q.fit.method.as_str(),
-            outcome.key.catalog_version
-        ),
+        &file_name(relation, &outcome, "-sample.csv"),
         text,
     ))
+}
+
+/// A relation download's name: relation, estimator, catalog version, then `tail` (".svg",
+/// "-sample.csv"), e.g. "m_sigma-structural-v12-sample.csv".
+pub(crate) fn file_name(relation: &Relation, outcome: &FitOutcome, tail: &str) -> String {
+    format!(
+        "{}-{}-v{}{tail}",
+        relation.slug(),
+        outcome.key.method,
+        outcome.key.catalog_version
+    )
 }
 
 /// A file for `pinned`'s catalog version: it names its version in `Catalog-Version`, and a
