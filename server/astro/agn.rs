@@ -168,6 +168,18 @@ impl SingleEpoch {
     }
 }
 
+/// The error floor of a single-epoch mass made through the radius–luminosity relation and
+/// ⟨f⟩, dex: √(0.19² + 0.40²) = 0.443 (computed), the scatter of the Bentz et al. 2013
+/// relation (0.19 dex, abstract) with a scatter of the AGN's virial factors about ⟨f⟩ of
+/// 0.40 dex (Woo et al. 2010 found 0.43 ± 0.08 for the AGN's scatter about M–σ, abstract).
+/// docs/methods.md §4.2.
+pub const R_L_ROUTE_SCATTER_DEX: f64 = 0.443;
+
+/// The bolometric correction at 5100 Å that massline states with every Eddington ratio:
+/// L_bol = 9.26 λL_λ(5100 Å) (Richards et al. 2006, ApJS 166, 470; from memory;
+/// docs/methods.md §4.7).
+pub const BOLOMETRIC_CORRECTION_5100: f64 = 9.26;
+
 /// A single-epoch mass through a radius–luminosity relation and a virial factor, in M☉:
 ///
 /// ```text

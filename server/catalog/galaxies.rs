@@ -31,10 +31,10 @@ pub async fn insert_galaxy(
     }
     sqlx::query_as(
         "insert into galaxy (name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                             distance_err_mpc, distance_method, name_key)
-         values (?, ?, ?, ?, ?, ?, ?, ?, ?)
+                             distance_err_mpc, distance_method, name_key, activity)
+         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)
          returning galaxy_id, name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                   distance_err_mpc, distance_method",
+                   distance_err_mpc, distance_method, activity",
     )
     .bind(&new.name)
     .bind(&slug)
@@ -45,6 +45,7 @@ pub async fn insert_galaxy(
     .bind(new.distance_err_mpc)
     .bind(new.distance_method.as_str())
     .bind(name_key(&new.name))
+    .bind(new.activity.as_str())
     .fetch_one(&mut **tx)
     .await
 }
@@ -301,7 +302,7 @@ pub async fn insert_measurement(
     m: &NewMeasurement,
     row: &RowKey,
 ) -> sqlx::Result<i64> {
-    sqlx::query_scalar(
+    let id: i64 = sqlx::query_scalar(
         "insert into measurement (galaxy_id, submission_id, quantity, log_value, err_minus_dex,
                                   err_plus_dex, err_dex, upper_limit, limit_confidence_sigma,
                                   method, sigma_definition, aperture, band, source_distance_mpc,
@@ -333,7 +334,45 @@ pub async fn insert_measurement(
     .bind(&row.sha256)
     .bind(public_row_key(&row.key))
     .fetch_one(&mut **tx)
-    .await
+    .await?;
+    if let Some(virial) = &m.virial {
+        insert_virial(tx, id, virial).await?;
+    }
+    Ok(id)
+}
+
+/// Store what lies behind a virial mass (table `virial_measurement`, migration 9).
+///
+/// # Errors
+/// A range check of the schema or any database error.
+async fn insert_virial(
+    tx: &mut Transaction<'_, Sqlite>,
+    measurement_id: i64,
+    v: &super::model::VirialEntry,
+) -> sqlx::Result<()> {
+    sqlx::query(
+        "insert into virial_measurement (measurement_id, line, width_definition, width_spectrum,
+                                         lag_days, lag_err_minus_days, lag_err_plus_days,
+                                         width_km_s, width_err_km_s, log_l5100_erg_s,
+                                         log_l5100_err_dex, assumed_log_f, calibration)
+         values (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+    )
+    .bind(measurement_id)
+    .bind(&v.line)
+    .bind(v.width_definition.as_str())
+    .bind(v.width_spectrum.as_str())
+    .bind(v.lag_days.map(|l| l.0))
+    .bind(v.lag_days.map(|l| l.1))
+    .bind(v.lag_days.map(|l| l.2))
+    .bind(v.width_km_s.map(|w| w.0))
+    .bind(v.width_km_s.map(|w| w.1))
+    .bind(v.log_l5100_erg_s.map(|l| l.0))
+    .bind(v.log_l5100_erg_s.map(|l| l.1))
+    .bind(v.assumed_log_f)
+    .bind(v.calibration.map_or("", |c| c.as_str()))
+    .execute(&mut **tx)
+    .await?;
+    Ok(())
 }
 
 /// A galaxy's new adopted distance.
@@ -594,9 +633,9 @@ pub async fn insert_galaxies(
     for (chunk, chunk_slugs) in news.chunks(BATCH_ROWS).zip(slugs.chunks(BATCH_ROWS)) {
         let sql = format!(
             "insert into galaxy (name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                                 distance_err_mpc, distance_method, name_key)
+                                 distance_err_mpc, distance_method, name_key, activity)
              values {} returning slug, galaxy_id",
-            placeholders(chunk.len(), 9)
+            placeholders(chunk.len(), 10)
         );
         let mut query = sqlx::query_as::<_, (String, i64)>(sqlx::AssertSqlSafe(sql));
         for (new, slug) in chunk.iter().zip(chunk_slugs) {
@@ -609,7 +648,8 @@ pub async fn insert_galaxies(
                 .bind(new.distance_mpc)
                 .bind(new.distance_err_mpc)
                 .bind(new.distance_method.as_str())
-                .bind(name_key(&new.name));
+                .bind(name_key(&new.name))
+                .bind(new.activity.as_str());
         }
         // RETURNING does not promise the order of its rows: match them by the unique slug.
         let by_slug: std::collections::HashMap<String, i64> =
@@ -680,6 +720,23 @@ pub async fn insert_measurements(
             // Every row stored alone: the batch failed for a reason of its own.
             return Err((c * BATCH_ROWS, batch_error));
         }
+        // Virial masses are few: their rows are found by their unique row keys.
+        for (i, (_, m, row)) in chunk.iter().enumerate() {
+            if let Some(virial) = &m.virial {
+                let stored = async {
+                    let id: i64 = sqlx::query_scalar(
+                        "select measurement_id from measurement where row_key = ?",
+                    )
+                    .bind(&row.key)
+                    .fetch_one(&mut **tx)
+                    .await?;
+                    insert_virial(tx, id, virial).await
+                };
+                if let Err(e) = stored.await {
+                    return Err((c * BATCH_ROWS + i, e));
+                }
+            }
+        }
     }
     Ok(())
 }
@@ -726,7 +783,7 @@ pub async fn count(pool: &SqlitePool) -> sqlx::Result<i64> {
 pub async fn find_by_slug(pool: &SqlitePool, slug: &str) -> sqlx::Result<Option<Galaxy>> {
     sqlx::query_as(
         "select galaxy_id, name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                distance_err_mpc, distance_method
+                distance_err_mpc, distance_method, activity
            from galaxy where slug = ?",
     )
     .bind(slug)

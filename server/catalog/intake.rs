@@ -9,8 +9,8 @@ use sqlx::SqlitePool;
 
 use super::galaxies::{NamedGalaxy, SubmissionSource, find_by_slug};
 use super::model::{
-    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology, NewGalaxy,
-    NewMeasurement, Quantity, SigmaDefinition,
+    Activity, BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Morphology,
+    NewGalaxy, NewMeasurement, Quantity, SigmaDefinition,
 };
 use super::names::clean_name;
 use super::submissions::{self, Created, GalaxyChoice, SubmissionError};
@@ -89,6 +89,10 @@ pub(super) fn galaxy_from_fields<'a>(
         distance_mpc,
         distance_err_mpc,
         distance_method: field("distance_method").word::<DistanceMethod>()?,
+        activity: match field("activity").text.trim() {
+            "" => Activity::Unknown,
+            _ => field("activity").word::<Activity>()?,
+        },
     })
 }
 
@@ -187,10 +191,57 @@ pub(super) fn measurement_from_fields<'a>(
         }
     };
     let value = field("value");
-    let entry =
-        units::parse_entry(value.text, quantity, scale).map_err(|e| value.error(e.to_string()))?;
+    let mass_method = match quantity {
+        Quantity::BlackHoleMass => Some(field("method").word::<MassMethod>()?),
+        _ => None,
+    };
+    let virial =
+        super::virial::virial_from_fields(field, mass_method, !value.text.trim().is_empty())?;
+    let entry = match virial.as_ref().and_then(|v| v.computed) {
+        Some(c) => units::Entry {
+            quantity,
+            text: c.value_text.to_owned(),
+            log_value: c.log_value,
+            err_minus_dex: c.err_minus_dex,
+            err_plus_dex: c.err_plus_dex,
+            err_dex: 0.5 * (c.err_minus_dex + c.err_plus_dex),
+            errors_given: true,
+            upper_limit: false,
+            scale_used: Scale::Linear,
+        },
+        None => units::parse_entry(value.text, quantity, scale)
+            .map_err(|e| value.error(e.to_string()))?,
+    };
+    let entry = match virial.as_ref().map(|v| &v.entry) {
+        Some(_) if entry.upper_limit => {
+            return Err(value.error(
+                "a reverberation or single-epoch mass is a detection; an upper limit on a black-hole mass comes from dynamics".into(),
+            ));
+        }
+        // A single-epoch mass carries its calibration's scatter as an error floor
+        // (docs/methods.md §4.2).
+        Some(v)
+            if virial.as_ref().is_some_and(|m| m.computed.is_none()) && v.calibration.is_some() =>
+        {
+            let floor = match v.calibration {
+                Some(crate::catalog::model::SingleEpochCalibration::Vp06) => {
+                    crate::astro::agn::VESTERGAARD_PETERSON_2006.scatter_dex
+                }
+                _ => crate::astro::agn::R_L_ROUTE_SCATTER_DEX,
+            };
+            let minus = entry.err_minus_dex.max(floor);
+            let plus = entry.err_plus_dex.max(floor);
+            units::Entry {
+                err_minus_dex: minus,
+                err_plus_dex: plus,
+                err_dex: 0.5 * (minus + plus),
+                ..entry
+            }
+        }
+        _ => entry,
+    };
     let method = match quantity {
-        Quantity::BlackHoleMass => field("method").word::<MassMethod>()?.as_str(),
+        Quantity::BlackHoleMass => mass_method.map_or("", MassMethod::as_str),
         Quantity::BulgeMass => field("method").word::<BulgeMassMethod>()?.as_str(),
         _ => field("method").empty_for(quantity)?,
     };
@@ -264,6 +315,7 @@ pub(super) fn measurement_from_fields<'a>(
             _ => "linear",
         }
         .to_string(),
+        virial: virial.map(|v| v.entry),
     })
 }
 
@@ -351,7 +403,7 @@ impl<'a> Field<'a> {
         }
     }
 
-    fn empty_for(&self, q: Quantity) -> Result<&'static str, RowError> {
+    pub(super) fn empty_for(&self, q: Quantity) -> Result<&'static str, RowError> {
         if self.text.trim().is_empty() {
             Ok("")
         } else {
@@ -359,7 +411,7 @@ impl<'a> Field<'a> {
         }
     }
 
-    fn word<T: std::str::FromStr<Err = String>>(&self) -> Result<T, RowError> {
+    pub(super) fn word<T: std::str::FromStr<Err = String>>(&self) -> Result<T, RowError> {
         self.required()?.parse().map_err(|e: String| self.error(e))
     }
 
@@ -368,7 +420,7 @@ impl<'a> Field<'a> {
         Quantity::parse_measured(self.required()?).map_err(|e| self.error(e))
     }
 
-    fn number(&self, min: f64, max: f64, unit: &str) -> Result<f64, RowError> {
+    pub(super) fn number(&self, min: f64, max: f64, unit: &str) -> Result<f64, RowError> {
         let t = self.required()?;
         match t.parse::<f64>() {
             Ok(v) if v.is_finite() && (min..=max).contains(&v) => Ok(v),
@@ -377,7 +429,12 @@ impl<'a> Field<'a> {
         }
     }
 
-    fn optional_number(&self, min: f64, max: f64, unit: &str) -> Result<Option<f64>, RowError> {
+    pub(super) fn optional_number(
+        &self,
+        min: f64,
+        max: f64,
+        unit: &str,
+    ) -> Result<Option<f64>, RowError> {
         if self.text.trim().is_empty() {
             Ok(None)
         } else {

@@ -26,6 +26,7 @@ pub mod overview;
 pub mod relation_rows;
 pub mod review_scores;
 pub mod submissions;
+pub mod virial;
 
 use std::path::Path;
 use std::str::FromStr;

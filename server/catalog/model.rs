@@ -130,10 +130,121 @@ text_enum!(
         GasDynamics => "gas_dynamics", "gas dynamics";
         /// Water masers.
         Maser => "maser", "maser";
-        /// Reverberation mapping.
+        /// Reverberation mapping: a lag and a line width, times the adopted virial factor.
         Reverberation => "reverberation", "reverberation mapping";
+        /// One spectrum: a radius–luminosity relation or a published calibration
+        /// (docs/methods.md §4.2); flagged, and in no default relation sample.
+        SingleEpoch => "single_epoch", "single-epoch spectrum";
     }
 );
+
+impl MassMethod {
+    /// Whether a mass by this method is dynamical (stellar or gas dynamics, masers): the
+    /// default relation sample holds these only (docs/methods.md §4.7).
+    pub fn is_dynamical(self) -> bool {
+        matches!(
+            self,
+            MassMethod::StellarDynamics | MassMethod::GasDynamics | MassMethod::Maser
+        )
+    }
+
+    /// Whether a mass by this method is a virial (broad-line) mass, f · VP: it carries a
+    /// virial factor and has no sphere of influence to resolve.
+    pub fn is_virial(self) -> bool {
+        matches!(self, MassMethod::Reverberation | MassMethod::SingleEpoch)
+    }
+}
+
+/// Whether a stored mass-method word names a virial (broad-line) mass.
+pub fn is_virial_method(method: &str) -> bool {
+    method
+        .parse::<MassMethod>()
+        .is_ok_and(MassMethod::is_virial)
+}
+
+text_enum!(
+    /// What the galaxy's nucleus is: quiescent, a kind of active nucleus, or not known.
+    Activity {
+        /// No active nucleus.
+        Quiescent => "quiescent", "quiescent";
+        /// Seyfert 1 (broad lines seen).
+        Seyfert1 => "seyfert1", "Seyfert 1";
+        /// Seyfert 2 (narrow lines only).
+        Seyfert2 => "seyfert2", "Seyfert 2";
+        /// Low-ionisation nuclear emission-line region.
+        Liner => "liner", "LINER";
+        /// Quasar.
+        Quasar => "quasar", "quasar";
+        /// Radio galaxy.
+        RadioGalaxy => "radio_galaxy", "radio galaxy";
+        /// Not known.
+        Unknown => "unknown", "unknown";
+    }
+);
+
+impl Activity {
+    /// Whether the nucleus is active (any class but quiescent and unknown).
+    pub fn is_active(self) -> bool {
+        !matches!(self, Activity::Quiescent | Activity::Unknown)
+    }
+}
+
+text_enum!(
+    /// The broad-line width measure a virial mass uses; each has its own virial factor.
+    WidthDefinition {
+        /// Line dispersion (second moment), σ_line.
+        SigmaLine => "sigma_line", "line dispersion σ_line";
+        /// Full width at half maximum.
+        Fwhm => "fwhm", "FWHM";
+    }
+);
+
+text_enum!(
+    /// The spectrum a broad-line width was measured on.
+    WidthSpectrum {
+        /// The rms (variable) spectrum of a reverberation campaign.
+        Rms => "rms", "rms spectrum";
+        /// The mean spectrum of a campaign.
+        Mean => "mean", "mean spectrum";
+        /// A single spectrum.
+        Single => "single", "single spectrum";
+    }
+);
+
+text_enum!(
+    /// How a single-epoch mass was made (docs/methods.md §4.2).
+    SingleEpochCalibration {
+        /// Vestergaard & Peterson 2006 Hβ calibration: its own virial factor, never rescaled.
+        Vp06 => "vp06", "Vestergaard & Peterson 2006 (Hβ, FWHM)";
+        /// Bentz et al. 2013 radius–luminosity relation and the adopted ⟨f⟩.
+        RlBentz13 => "r_l_bentz13", "Bentz et al. 2013 radius–luminosity and ⟨f⟩";
+    }
+);
+
+/// What lies behind a reverberation or single-epoch mass, as measured (table
+/// `virial_measurement`, migration 9). The stored mass is for the virial factor
+/// `assumed_log_f`; what is shown and fitted is rescaled to the adopted ⟨f⟩ of
+/// `width_definition` (docs/methods.md §4.1).
+#[derive(Debug, Clone, PartialEq)]
+pub struct VirialEntry {
+    /// The broad line, e.g. "Hbeta".
+    pub line: String,
+    /// The width measure.
+    pub width_definition: WidthDefinition,
+    /// The spectrum the width was measured on.
+    pub width_spectrum: WidthSpectrum,
+    /// Rest-frame lag, days, with its lower and upper errors (days).
+    pub lag_days: Option<(f64, f64, f64)>,
+    /// Line width, km/s, with its error (km/s).
+    pub width_km_s: Option<(f64, f64)>,
+    /// log10 λL_λ(5100 Å), erg/s, with its error (dex).
+    pub log_l5100_erg_s: Option<(f64, f64)>,
+    /// log10 of the virial factor the stored mass assumed (0 for a virial product; None when
+    /// the source's factor is not known: never rescaled).
+    pub assumed_log_f: Option<f64>,
+    /// How a single-epoch mass was made; None for reverberation.
+    pub calibration: Option<SingleEpochCalibration>,
+}
 
 text_enum!(
     /// How a bulge mass was obtained.
@@ -190,6 +301,8 @@ pub struct Galaxy {
     pub distance_err_mpc: f64,
     /// Stored form of [`DistanceMethod`].
     pub distance_method: String,
+    /// Stored form of [`Activity`].
+    pub activity: String,
 }
 
 /// A new galaxy, validated.
@@ -209,6 +322,8 @@ pub struct NewGalaxy {
     pub distance_err_mpc: f64,
     /// Distance method.
     pub distance_method: DistanceMethod,
+    /// The nucleus' activity class.
+    pub activity: Activity,
 }
 
 /// A measurement as stored, with its submission's state and whether it is adopted.
@@ -300,6 +415,8 @@ pub struct NewMeasurement {
     pub value_text: String,
     /// 'linear' or 'log10'.
     pub value_scale: String,
+    /// For a virial mass (reverberation, single epoch): the lag, width and factor behind it.
+    pub virial: Option<VirialEntry>,
 }
 
 impl NewMeasurement {
@@ -378,6 +495,8 @@ pub fn code_label(code: &str) -> String {
         .chain(BulgeKind::pairs())
         .chain(CentreKind::pairs())
         .chain(DistanceMethod::pairs())
+        .chain(Activity::pairs())
+        .chain(WidthDefinition::pairs())
         .find(|(word, _)| *word == code)
         .map(|(_, label)| label.to_owned());
     if let Some(label) = known {

@@ -19,12 +19,20 @@ pub struct RelationRow {
     pub bulge_kind: String,
     /// Stored centre kind word.
     pub centre_kind: String,
+    /// Stored activity class word.
+    pub activity: String,
     /// Adopted distance, Mpc.
     pub distance_mpc: f64,
     /// Its 1-σ error, Mpc.
     pub distance_err_mpc: f64,
-    /// Adopted black-hole mass, log10 M☉, at `mbh_source_distance_mpc`.
+    /// Adopted black-hole mass, log10 M☉, at `mbh_source_distance_mpc`; a virial mass with a
+    /// known assumed factor is already moved to the ⟨f⟩ adopted at the version read
+    /// (`log_value + log ⟨f⟩ − assumed log f`, docs/methods.md §4.1).
     pub log_mbh: Option<f64>,
+    /// For a virial mass moved to the adopted factor: log10 ⟨f⟩ applied (None otherwise).
+    pub mbh_log_f: Option<f64>,
+    /// For a virial mass: the width measure word ('sigma_line' or 'fwhm').
+    pub mbh_width_definition: Option<String>,
     /// Its symmetric error, dex (0 for a limit).
     pub mbh_err_dex: Option<f64>,
     /// Its lower error, dex.
@@ -102,9 +110,15 @@ pub async fn relation_rows_at(
     version: i64,
 ) -> sqlx::Result<Vec<RelationRow>> {
     sqlx::query_as(concat!(
-        "select g.galaxy_id, g.name, g.slug, g.morphology, g.bulge_kind, g.centre_kind,
-                g.distance_mpc, g.distance_err_mpc,
-                bh.log_value as log_mbh, bh.err_dex as mbh_err_dex,
+        "with f as (",
+        crate::catalog::virial::factors_at_sql!(),
+        ")
+         select g.galaxy_id, g.name, g.slug, g.morphology, g.bulge_kind, g.centre_kind,
+                g.activity, g.distance_mpc, g.distance_err_mpc,
+                bh.log_value + coalesce(f.log_f - vm.assumed_log_f, 0) as log_mbh,
+                case when vm.assumed_log_f is not null then f.log_f end as mbh_log_f,
+                vm.width_definition as mbh_width_definition,
+                bh.err_dex as mbh_err_dex,
                 bh.err_minus_dex as mbh_err_minus_dex, bh.err_plus_dex as mbh_err_plus_dex,
                 bh.upper_limit as mbh_upper_limit, bh.method as mbh_method,
                 bh.source_distance_mpc as mbh_source_distance_mpc,
@@ -119,6 +133,8 @@ pub async fn relation_rows_at(
         held_at!("abh"),
         "
       left join measurement bh on bh.measurement_id = abh.measurement_id
+      left join virial_measurement vm on vm.measurement_id = bh.measurement_id
+      left join f on f.width_definition = vm.width_definition
       left join adopted_value_span asg on asg.galaxy_id = g.galaxy_id and asg.quantity = 'sigma'
                 and ",
         held_at!("asg"),

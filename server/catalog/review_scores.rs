@@ -159,7 +159,7 @@ pub async fn pending_batch(pool: &SqlitePool) -> sqlx::Result<PendingBatch> {
     .await?;
     let galaxies: Vec<Galaxy> = sqlx::query_as(
         "select galaxy_id, name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                distance_err_mpc, distance_method
+                distance_err_mpc, distance_method, activity
            from galaxy
           where galaxy_id in (select m.galaxy_id from measurement m
                                 join submission s on s.submission_id = m.submission_id

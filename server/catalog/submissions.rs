@@ -680,7 +680,7 @@ pub async fn galaxy_names(pool: &SqlitePool) -> sqlx::Result<Vec<(i64, String, S
 pub async fn galaxy_by_id(pool: &SqlitePool, galaxy_id: i64) -> sqlx::Result<Option<Galaxy>> {
     sqlx::query_as(
         "select galaxy_id, name, slug, morphology, bulge_kind, centre_kind, distance_mpc,
-                distance_err_mpc, distance_method
+                distance_err_mpc, distance_method, activity
            from galaxy where galaxy_id = ?",
     )
     .bind(galaxy_id)
@@ -761,7 +761,9 @@ pub async fn reviews_of_submission(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::catalog::model::{BulgeKind, CentreKind, DistanceMethod, Morphology, Quantity};
+    use crate::catalog::model::{
+        Activity, BulgeKind, CentreKind, DistanceMethod, Morphology, Quantity,
+    };
     use crate::units::{self, Scale};
 
     async fn temp_pool() -> (tempfile::TempDir, SqlitePool) {
@@ -788,6 +790,7 @@ mod tests {
             distance_mpc: 20.0,
             distance_err_mpc: 1.0,
             distance_method: DistanceMethod::Sbf,
+            activity: Activity::Unknown,
         }
     }
 
@@ -811,6 +814,7 @@ mod tests {
             note: String::new(),
             value_text: e.text,
             value_scale: "linear".into(),
+            virial: None,
         }
     }
 

@@ -301,6 +301,7 @@ pub(crate) mod tests {
             log_mbulge: None,
             mbh_err_dex: (0.08, 0.12),
             mbh_reference: format!("Invented & Made {}", 2000 + i),
+            activity: "quiescent".to_owned(),
         }
     }
 

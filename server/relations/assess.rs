@@ -295,6 +295,7 @@ pub async fn assess_unstored(
             distance_mpc: g.distance_mpc,
             distance_err_mpc: g.distance_err_mpc,
             distance_method: g.distance_method.as_str().to_owned(),
+            activity: g.activity.as_str().to_owned(),
         },
     };
     let typed: Vec<Measurement> = measurements

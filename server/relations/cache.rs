@@ -930,6 +930,7 @@ mod tests {
             log_mbulge: None,
             mbh_err_dex: (0.1, 0.1),
             mbh_reference: String::new(),
+            activity: "quiescent".to_owned(),
         }
     }
 

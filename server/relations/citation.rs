@@ -185,12 +185,16 @@ pub async fn remake(catalog: &Catalog, id: &str) -> Result<Remade, RemakeError> 
         .method
         .parse::<crate::fit::Method>()
         .map_err(|e| unreadable(e.to_string()))?;
-    let pairs: Vec<(String, String)> = record
+    let mut pairs: Vec<(String, String)> = record
         .sample_filter
         .split(';')
         .filter_map(|kv| kv.split_once('='))
         .map(|(k, v)| (k.to_owned(), v.to_owned()))
         .collect();
+    // Fits recorded before the `masses` choice existed took every mass method.
+    if !pairs.iter().any(|(k, _)| k == "masses") {
+        pairs.push(("masses".to_owned(), "all".to_owned()));
+    }
     let filter = SampleFilter::parse(&pairs).map_err(unreadable)?;
     let differs = |a: f64, b: f64| a.to_bits() != b.to_bits();
     let choice = FitChoice {

@@ -3,7 +3,9 @@
 //! relation endpoint read the same parameters here.
 
 use super::{Relation, Sample};
-use crate::catalog::model::{BulgeKind, CentreKind, MassMethod, Morphology, SigmaDefinition};
+use crate::catalog::model::{
+    Activity, BulgeKind, CentreKind, MassMethod, Morphology, SigmaDefinition,
+};
 use crate::fit::Method;
 use crate::units::{Quantity, Scale, parse_entry};
 
@@ -36,6 +38,59 @@ impl SigmaChoice {
         match self {
             SigmaChoice::Effective => SigmaDefinition::Effective,
             SigmaChoice::Central => SigmaDefinition::Central,
+        }
+    }
+}
+
+/// Which kinds of black-hole mass enter a fit (docs/methods.md §4.7). A mass method chosen
+/// with `mass_method` overrides this: choosing one method is itself a visible choice.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub enum MassesChoice {
+    /// Dynamical masses only (stellar and gas dynamics, masers): the default, because a
+    /// virial mass is calibrated on the relation it would be fitted to.
+    #[default]
+    Dynamical,
+    /// Dynamical and reverberation masses.
+    WithReverberation,
+    /// Every mass, single-epoch masses included.
+    All,
+}
+
+impl MassesChoice {
+    /// Every choice, in display order.
+    pub const ALL: [MassesChoice; 3] = [
+        MassesChoice::Dynamical,
+        MassesChoice::WithReverberation,
+        MassesChoice::All,
+    ];
+
+    /// The query word: `dynamical`, `with_reverberation` or `all`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            MassesChoice::Dynamical => "dynamical",
+            MassesChoice::WithReverberation => "with_reverberation",
+            MassesChoice::All => "all",
+        }
+    }
+
+    /// Words for people.
+    pub fn label(self) -> &'static str {
+        match self {
+            MassesChoice::Dynamical => "dynamical masses only (stellar, gas, maser)",
+            MassesChoice::WithReverberation => "dynamical and reverberation masses",
+            MassesChoice::All => "every mass, single-epoch included",
+        }
+    }
+
+    /// Whether a mass measured by the stored method word enters.
+    pub fn admits(self, method: &str) -> bool {
+        let Ok(method) = method.parse::<MassMethod>() else {
+            return false;
+        };
+        match self {
+            MassesChoice::Dynamical => method.is_dynamical(),
+            MassesChoice::WithReverberation => method != MassMethod::SingleEpoch,
+            MassesChoice::All => true,
         }
     }
 }
@@ -81,8 +136,12 @@ pub struct SampleFilter {
     pub bulge_kind: Option<BulgeKind>,
     /// Centre kind.
     pub centre_kind: Option<CentreKind>,
-    /// How the black-hole mass was measured.
+    /// How the black-hole mass was measured (overrides `masses` when set).
     pub mass_method: Option<MassMethod>,
+    /// Which kinds of mass enter (dynamical only by default).
+    pub masses: MassesChoice,
+    /// The nucleus' activity class.
+    pub activity: Option<Activity>,
     /// Sphere of influence resolved, or all.
     pub soi: SoiChoice,
     /// σ definition (relations using σ only).
@@ -92,11 +151,13 @@ pub struct SampleFilter {
 }
 
 /// The query parameters [`SampleFilter::set`] reads.
-pub const FILTER_PARAMS: [&str; 7] = [
+pub const FILTER_PARAMS: [&str; 9] = [
     "morphology",
     "bulge_kind",
     "centre_kind",
     "mass_method",
+    "masses",
+    "activity",
     "soi",
     "sigma_definition",
     "limits",
@@ -124,6 +185,22 @@ impl SampleFilter {
             }
             "mass_method" => {
                 self.mass_method = optional(value).map_err(named)?;
+            }
+            "masses" => {
+                self.masses = match value {
+                    "" => MassesChoice::default(),
+                    v => MassesChoice::ALL
+                        .into_iter()
+                        .find(|c| c.as_str() == v)
+                        .ok_or_else(|| {
+                            named(format!(
+                                "'{v}' is not one of: dynamical, with_reverberation, all"
+                            ))
+                        })?,
+                };
+            }
+            "activity" => {
+                self.activity = optional(value).map_err(named)?;
             }
             "soi" => {
                 self.soi = match value {
@@ -189,11 +266,13 @@ impl SampleFilter {
     /// for unset ones, e.g. `morphology=any;bulge_kind=pseudo;…;limits=include`.
     pub fn canonical(&self) -> String {
         format!(
-            "morphology={};bulge_kind={};centre_kind={};mass_method={};soi={};sigma_definition={};limits={}",
+            "morphology={};bulge_kind={};centre_kind={};mass_method={};masses={};activity={};soi={};sigma_definition={};limits={}",
             self.morphology.map_or("any", Morphology::as_str),
             self.bulge_kind.map_or("any", BulgeKind::as_str),
             self.centre_kind.map_or("any", CentreKind::as_str),
             self.mass_method.map_or("any", MassMethod::as_str),
+            self.masses.as_str(),
+            self.activity.map_or("any", Activity::as_str),
             match self.soi {
                 SoiChoice::All => "all",
                 SoiChoice::Resolved => "resolved",
@@ -201,6 +280,15 @@ impl SampleFilter {
             self.sigma.definition().as_str(),
             self.limits.as_str(),
         )
+    }
+
+    /// Whether a black-hole mass measured by the stored method word enters: the chosen method
+    /// when one is chosen, else the kinds `masses` admits.
+    pub fn admits_method(&self, method: &str) -> bool {
+        match self.mass_method {
+            Some(m) => method == m.as_str(),
+            None => self.masses.admits(method),
+        }
     }
 
     /// Whether upper limits are left out of a fit by `method`: when asked, or automatically
@@ -241,6 +329,12 @@ impl SampleFilter {
         }
         if let Some(m) = self.mass_method {
             out.push(("mass_method", m.as_str()));
+        }
+        if self.masses != MassesChoice::default() {
+            out.push(("masses", self.masses.as_str()));
+        }
+        if let Some(a) = self.activity {
+            out.push(("activity", a.as_str()));
         }
         if self.soi == SoiChoice::Resolved {
             out.push(("soi", "resolved"));
@@ -511,12 +605,48 @@ mod tests {
     use super::*;
 
     #[test]
+    fn the_default_sample_holds_dynamical_masses_and_a_chosen_method_overrides_it() {
+        let default = SampleFilter::default();
+        for (method, admitted) in [
+            ("stellar_dynamics", true),
+            ("gas_dynamics", true),
+            ("maser", true),
+            ("reverberation", false),
+            ("single_epoch", false),
+            ("", false),
+        ] {
+            assert_eq!(default.admits_method(method), admitted, "{method}");
+        }
+        let with_rm = SampleFilter {
+            masses: MassesChoice::WithReverberation,
+            ..SampleFilter::default()
+        };
+        assert!(with_rm.admits_method("reverberation"));
+        assert!(!with_rm.admits_method("single_epoch"));
+        let all = SampleFilter {
+            masses: MassesChoice::All,
+            ..SampleFilter::default()
+        };
+        assert!(all.admits_method("single_epoch"));
+        let chosen = SampleFilter {
+            mass_method: Some(MassMethod::Reverberation),
+            ..SampleFilter::default()
+        };
+        assert!(chosen.admits_method("reverberation"));
+        assert!(!chosen.admits_method("maser"));
+        let err = SampleFilter::parse(&pairs(&[("masses", "agn")])).unwrap_err();
+        assert!(err.contains("dynamical, with_reverberation, all"), "{err}");
+    }
+
+    #[test]
     fn every_parameter_is_read_and_the_canonical_form_is_fixed() {
         let f = SampleFilter::parse(&pairs(&[
             ("morphology", "spiral"),
             ("bulge_kind", "pseudo"),
             ("centre_kind", "power_law"),
             ("mass_method", "maser"),
+            ("masses", "with_reverberation"),
+            ("activity", "seyfert1"),
             ("soi", "resolved"),
             ("sigma_definition", "sigma_c"),
             ("limits", "exclude"),
@@ -524,9 +654,11 @@ mod tests {
         .unwrap();
         assert_eq!(f.morphology, Some(Morphology::Spiral));
         assert_eq!(f.sigma, SigmaChoice::Central);
+        assert_eq!(f.masses, MassesChoice::WithReverberation);
+        assert_eq!(f.activity, Some(Activity::Seyfert1));
         assert_eq!(
             f.canonical(),
-            "morphology=spiral;bulge_kind=pseudo;centre_kind=power_law;mass_method=maser;soi=resolved;sigma_definition=sigma_c;limits=exclude"
+            "morphology=spiral;bulge_kind=pseudo;centre_kind=power_law;mass_method=maser;masses=with_reverberation;activity=seyfert1;soi=resolved;sigma_definition=sigma_c;limits=exclude"
         );
         // The link pairs read back to the same filter.
         let back: Vec<(String, String)> = f
@@ -537,7 +669,7 @@ mod tests {
         assert_eq!(SampleFilter::parse(&back).unwrap(), f);
         assert_eq!(
             SampleFilter::default().canonical(),
-            "morphology=any;bulge_kind=any;centre_kind=any;mass_method=any;soi=all;sigma_definition=sigma_e;limits=auto"
+            "morphology=any;bulge_kind=any;centre_kind=any;mass_method=any;masses=dynamical;activity=any;soi=all;sigma_definition=sigma_e;limits=auto"
         );
     }
 

@@ -50,8 +50,8 @@ pub use defaults::{
 #[cfg(test)]
 pub(crate) use filter::pairs as test_pairs;
 pub use filter::{
-    FILTER_PARAMS, FIT_PARAMS, FitChoice, LimitsChoice, LimitsLeftOut, SampleFilter, SigmaChoice,
-    SoiChoice, TypedPivot, read_pivot, read_pivot_typed, takes_limits,
+    FILTER_PARAMS, FIT_PARAMS, FitChoice, LimitsChoice, LimitsLeftOut, MassesChoice, SampleFilter,
+    SigmaChoice, SoiChoice, TypedPivot, read_pivot, read_pivot_typed, takes_limits,
 };
 pub use own_sample::{OwnSampleError, OwnSampleFit, OwnSampleSettings, fit_own_sample};
 pub use runs::{

@@ -37,6 +37,8 @@ use super::{LimitsChoice, Relation, SampleFilter, SoiChoice};
 pub fn distance_scaling(quantity: Quantity, method: &str) -> DistanceScaling {
     match (quantity, method) {
         (Quantity::BlackHoleMass, "reverberation") => DistanceScaling::ReverberationMass,
+        // A single-epoch mass goes as L^b with L ∝ D²: D^1 for the vp06 calibration (b = 0.5),
+        // D^1.07 for the Bentz et al. 2013 slope, taken as D^1 (docs/methods.md §4.2).
         (Quantity::BlackHoleMass, _) => DistanceScaling::DynamicalMass,
         (Quantity::BulgeMass, "photometric") => DistanceScaling::PhotometricBulgeMass,
         (Quantity::BulgeMass, _) => DistanceScaling::DynamicalBulgeMass,
@@ -82,7 +84,7 @@ pub fn sphere_of_influence(
     resolution_arcsec: Option<f64>,
     threshold: f64,
 ) -> Option<SphereOfInfluence> {
-    if method == "reverberation" {
+    if crate::catalog::model::is_virial_method(method) {
         return None;
     }
     let sigma_km_s = 10f64.powf(log_sigma?);
@@ -113,6 +115,8 @@ pub struct Member {
     pub centre_kind: String,
     /// Stored black-hole mass method word.
     pub mass_method: String,
+    /// Stored activity class word.
+    pub activity: String,
     /// Whether the sphere of influence is resolved (None when it cannot be said).
     pub resolved: Option<bool>,
     /// log10 of the adopted distance (Mpc).
@@ -205,7 +209,8 @@ pub fn build_sample(
             && filter
                 .centre_kind
                 .is_none_or(|c| row.centre_kind == c.as_str())
-            && filter.mass_method.is_none_or(|m| method == m.as_str())
+            && filter.admits_method(method)
+            && filter.activity.is_none_or(|a| row.activity == a.as_str())
             && (filter.soi == SoiChoice::All || resolved == Some(true));
         if !tags_match {
             continue;
@@ -316,6 +321,7 @@ pub fn build_sample(
             bulge_kind: row.bulge_kind.clone(),
             centre_kind: row.centre_kind.clone(),
             mass_method: method.to_owned(),
+            activity: row.activity.clone(),
             resolved,
             log_distance: row.distance_mpc.log10(),
             log_sigma: row.log_sigma,
@@ -343,6 +349,15 @@ pub fn build_sample(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Every mass method: these tests check how values and errors are built, whatever the
+    /// default sample admits.
+    fn every_mass() -> SampleFilter {
+        SampleFilter {
+            masses: super::super::MassesChoice::All,
+            ..SampleFilter::default()
+        }
+    }
     use crate::catalog::model::{MassMethod, Morphology};
     use crate::fit::tolerance::close;
     use crate::relations::SigmaChoice;
@@ -375,6 +390,9 @@ mod tests {
             mbulge_err_dex: Some(0.15),
             mbulge_method: Some("photometric".to_owned()),
             mbulge_source_distance_mpc: Some(16.5),
+            activity: "unknown".to_owned(),
+            mbh_log_f: None,
+            mbh_width_definition: None,
         }
     }
 
@@ -390,7 +408,7 @@ mod tests {
             &[row("Alpha 1")],
             &[],
             &Relation::MSigma,
-            &SampleFilter::default(),
+            &every_mass(),
             1.0,
         );
         assert_eq!(s.points.len(), 1);
@@ -417,7 +435,7 @@ mod tests {
             std::slice::from_ref(&r),
             &[],
             &Relation::MBulge,
-            &SampleFilter::default(),
+            &every_mass(),
             1.0,
         );
         let p = &s.points[0];
@@ -428,24 +446,12 @@ mod tests {
         // A dynamical bulge mass ∝ D: cov = σ_logD².
         let mut dynamical = r.clone();
         dynamical.mbulge_method = Some("dynamical".to_owned());
-        let s = build_sample(
-            &[dynamical],
-            &[],
-            &Relation::MBulge,
-            &SampleFilter::default(),
-            1.0,
-        );
+        let s = build_sample(&[dynamical], &[], &Relation::MBulge, &every_mass(), 1.0);
         assert_close(s.points[0].xy_cov, sld * sld, 1e-15);
         // A reverberation mass does not depend on D: no covariance, no distance error in y.
         let mut reverb = r.clone();
         reverb.mbh_method = Some("reverberation".to_owned());
-        let s = build_sample(
-            &[reverb],
-            &[],
-            &Relation::MBulge,
-            &SampleFilter::default(),
-            1.0,
-        );
+        let s = build_sample(&[reverb], &[], &Relation::MBulge, &every_mass(), 1.0);
         assert_close(s.points[0].xy_cov, 0.0, 1e-15);
         assert_close(s.points[0].y_err, 0.1, 1e-12);
         assert_close(s.points[0].y, 8.0, 1e-12);
@@ -461,7 +467,7 @@ mod tests {
             &[r],
             &[lum],
             &Relation::Luminosity("K".to_owned()),
-            &SampleFilter::default(),
+            &every_mass(),
             1.0,
         );
         let p = &s.points[0];
@@ -476,15 +482,9 @@ mod tests {
         // Mpc: σ_x2y = p_y p_x2 σ_logD², σ_xx2 = 0 (docs/methods.md §3.2, computed).
         let sld = 1.8 / (18.0 * LN_10);
         let plane = |r: RelationRow| {
-            build_sample(
-                &[r],
-                &[],
-                &Relation::SigmaBulgePlane,
-                &SampleFilter::default(),
-                1.0,
-            )
-            .points
-            .remove(0)
+            build_sample(&[r], &[], &Relation::SigmaBulgePlane, &every_mass(), 1.0)
+                .points
+                .remove(0)
         };
         // Dynamical M_BH (p = 1) and photometric M_bulge (p = 2): 2 σ_logD².
         let p = plane(row("Alpha 1"));
@@ -681,7 +681,7 @@ mod tests {
             &[row("Alpha 1"), no_bulge],
             &[],
             &Relation::SigmaBulgePlane,
-            &SampleFilter::default(),
+            &every_mass(),
             1.0,
         );
         assert_eq!((s.points.len(), s.left_out_missing), (1, 1));

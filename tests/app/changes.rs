@@ -174,6 +174,7 @@ async fn what_changed_lists_exactly_the_changes_made_in_between_and_the_fits_mov
         distance_mpc: 21.0,
         distance_err_mpc: 1.0,
         distance_method: DistanceMethod::Sbf,
+        activity: massline::catalog::model::Activity::Unknown,
     });
     let id = submit(
         &app,

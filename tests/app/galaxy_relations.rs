@@ -144,6 +144,7 @@ async fn a_galaxy_without_host_values_or_mass_says_no_relation_applies() {
             distance_mpc: 20.0,
             distance_err_mpc: 1.0,
             distance_method: DistanceMethod::Sbf,
+            activity: massline::catalog::model::Activity::Unknown,
         },
     )
     .await

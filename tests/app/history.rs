@@ -185,6 +185,7 @@ async fn every_version_serves_later_exactly_what_it_served_when_current() {
                     distance_mpc: dice.uniform(10.0, 60.0),
                     distance_err_mpc: 1.0,
                     distance_method: DistanceMethod::Sbf,
+                    activity: massline::catalog::model::Activity::Unknown,
                 });
                 let ms = vec![
                     measurement(&[

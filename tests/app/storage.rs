@@ -55,6 +55,7 @@ fn good_mass() -> NewMeasurement {
         note: String::new(),
         value_text: "1.6e8 ± 0.4e8".into(),
         value_scale: "linear".into(),
+        virial: None,
     }
 }
 
@@ -67,6 +68,7 @@ fn new_galaxy(name: &str) -> model::NewGalaxy {
         distance_mpc: 16.5,
         distance_err_mpc: 0.8,
         distance_method: model::DistanceMethod::Sbf,
+        activity: massline::catalog::model::Activity::Unknown,
     }
 }
 
