@@ -146,6 +146,9 @@ pub struct Sample {
     pub left_out_sigma_definition: usize,
     /// Galaxies that matched the filter but lack a value the relation needs.
     pub left_out_missing: usize,
+    /// Reverberation and single-epoch masses that matched the rest of the filter but were left
+    /// out by the choice of mass kinds (dynamical only by default, docs/methods.md §4.7).
+    pub left_out_virial: usize,
     /// Upper limits that matched the filter and had every value but were left out
     /// ([`LimitsChoice::Exclude`], asked or made so for an estimator that cannot use them:
     /// `SampleFilter::for_method`).
@@ -209,10 +212,15 @@ pub fn build_sample(
             && filter
                 .centre_kind
                 .is_none_or(|c| row.centre_kind == c.as_str())
-            && filter.admits_method(method)
             && filter.activity.is_none_or(|a| row.activity == a.as_str())
             && (filter.soi == SoiChoice::All || resolved == Some(true));
         if !tags_match {
+            continue;
+        }
+        if !filter.admits_method(method) {
+            if filter.mass_method.is_none() && crate::catalog::model::is_virial_method(method) {
+                sample.left_out_virial += 1;
+            }
             continue;
         }
         let mbulge_method = row.mbulge_method.as_deref().unwrap_or("");
