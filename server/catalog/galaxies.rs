@@ -799,7 +799,10 @@ macro_rules! measurement_columns {
                 m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
                 m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
                 m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
-                m.value_scale, s.state, "
+                m.value_scale, s.state, (select vm.assumed_log_f from virial_measurement vm
+                                   where vm.measurement_id = m.measurement_id) as assumed_log_f,
+                (select vm.width_definition from virial_measurement vm
+                  where vm.measurement_id = m.measurement_id) as virial_width, "
     };
 }
 
@@ -815,7 +818,7 @@ pub async fn find_by_slug_at(
 ) -> sqlx::Result<Option<Galaxy>> {
     sqlx::query_as(
         "select s.galaxy_id, s.name, s.slug, s.morphology, s.bulge_kind, s.centre_kind,
-                s.distance_mpc, s.distance_err_mpc, s.distance_method
+                s.distance_mpc, s.distance_err_mpc, s.distance_method, s.activity
            from galaxy g join galaxy_span s on s.galaxy_id = g.galaxy_id
           where g.slug = ? and s.valid_from_version <= ?2
             and (s.valid_until_version is null or s.valid_until_version > ?2)",
