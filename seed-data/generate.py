@@ -12,8 +12,15 @@ Output (next to this script):
                             dispersion, bulge mass, bulge luminosity)
 
 Run:  python3 seed-data/generate.py [--seed 20261202]
-The output is a pure function of the seed (random.Random(seed), no other source of
-randomness, no clock, no hash ordering).
+The output is a pure function of the seed (random.Random(seed) for the first wave,
+random.Random(seed + 1) for the second; no other source of randomness, no clock, no
+hash ordering).
+
+Two waves: the first (`build`, the model just below) makes 96 galaxies and their rows;
+the second (`add_agn`, "Second wave" further down) draws from its own generator after
+the first is complete, so the first wave's values, names and planted features are the
+same with or without it. The second wave appends the galaxy column `activity` and the
+ten virial measurement columns, and adds 36 active nuclei.
 
 Model (all relations are invented for the demo; they are not published fits)
 ---------------------------------------------------------------------------
@@ -105,6 +112,52 @@ Typed values: 2-3 significant digits, in the forms "2.4e8 +0.6e8/-0.5e8",
 Notes: "planted outlier", "planted: sphere of influence not resolved",
     "sphere of influence not resolved" (natural), "superseded by <ref>;
     seeing-limited", "source used an older distance".
+
+Second wave (random.Random(seed + 1); all invented)
+---------------------------------------------------
+Activity of the first wave (fixed counts): the 7 reverberation hosts seyfert1; 4 of the
+    9 maser hosts seyfert2; of the other spirals and lenticulars 5 seyfert2 and 6 liner;
+    3 core ellipticals radio_galaxy; 4 of the rest unknown; the rest quiescent. Their
+    7 reverberation masses stay typed, with no virial factor recorded (shown as published,
+    never rescaled).
+Reverberation AGN: 26 Seyfert 1 (15 S, 9 S0, 2 E); bulge kind S 0.45/0.45/0.10, S0
+    0.60/0.30/0.10 classical/pseudo/unknown, E classical; centre kind by the first wave's
+    rules.
+    true log sigma_e ~ N(log10 120, 0.10), redrawn until 60 <= sigma_e <= 350;
+    true log M = 8.30 + 5.0 log10(sigma_e / 200) + offset + N(0, eps), the demo M-sigma
+        relation with the first wave's offsets and scatters, redrawn until 4.0..10.9;
+    log f_i = 0.70 + N(0, 0.20) (demo truth log <f> = 0.70, not the service's 0.64);
+    true log VP = log M - log f_i;
+    log lambda L(5100) ~ U(42.6, 44.6) erg/s, written with N(0, 0.03) noise, 2 decimals;
+    true lag: log tau[d] = 1.527 + 0.533 log10(L / 1e44) + N(0, 0.13) (Bentz et al. 2013
+        R-L relation; tau in days = R in light-days);
+    true sigma_line (rms spectrum) from VP = c tau sigma_line^2 / G with
+        c = 299792.458 km/s, GM_sun = 1.3271244e20 m^3/s^2, 1 day = 86400 s;
+    observed lag = true x (1 + N(0, e_tau)), e_tau ~ U(0.08, 0.20), redrawn if below 0.3 x
+        true, 3 significant digits; error e_tau x lag (2 significant digits), for 10 of
+        them asymmetric "+a/-b" with a = U(1.0, 1.4) and b = U(0.7, 1.0) times that;
+    observed width = true x (1 + N(0, e_w)), e_w ~ U(0.04, 0.08), rounded to km/s,
+        error e_w x width;
+    value EMPTY (the service computes the virial product), line Hbeta, width_definition
+        sigma_line, width_spectrum rms; 4 of them instead typed as published masses
+        5.5 x VP_obs (virial_factor 5.5) with the propagated error (at least 0.05 dex),
+        the lag and width kept;
+    sigma_e observed as in the first wave; distance log-uniform 15-150 Mpc, hubble_flow
+        with p = 0.75, else tully_fisher (spirals) or sbf; 12 of them a bulge mass from
+        the first wave's M_BH-M_bulge relation at the true mass (dynamical p = 0.3);
+        resolution empty; source distance = adopted distance.
+Single-epoch AGN: 10; log lambda L(5100) ~ U(43.0, 45.3) (2 decimals), FWHM(Hbeta) ~
+    U(1500, 6000) km/s (to 10 km/s), error U(0.05, 0.10) of it; the 3 most luminous
+    quasar, the rest seyfert1; hosts: quasars E/S0/S 0.6/0.2/0.2, Seyferts S/S0/E
+    0.6/0.3/0.1, bulge classical for E, else unknown/classical 0.6/0.4; centre unknown;
+    distance log-uniform 60-400 Mpc, hubble_flow; value EMPTY, width_definition fwhm,
+    width_spectrum single; 7 calibration vp06, 3 r_l_bentz13; source distance = adopted;
+    5 with an observed sigma_e, whose true value puts the host on the demo M-sigma relation
+    at the vp06 mass of its spectrum, N(0, 0.07) dex in sigma.
+    vp06: log M = 6.91 + 2 log10(FWHM / 1000 km/s) + 0.50 log10(L / 1e44);
+    r_l_bentz13: log VP = log10(c tau FWHM^2 / G), tau from the Bentz relation.
+References: invented surnames, ending in "(demo)"; sigma and bulge masses from the first
+    wave's pools.
 """
 
 from __future__ import annotations
@@ -799,7 +852,7 @@ VIRIAL_COLUMNS = [
 
 # Invented name stems for the second wave (not used by the first).
 AGN_STEMS = [
-    "Belvane", "Carrowen", "Dellisk", "Eskaron", "Fallowin", "Garnesse", "Hethrin",
+    "Sandrel", "Carrowen", "Dellisk", "Eskaron", "Fallowin", "Garnesse", "Hethrin",
     "Jolvane", "Kessamor", "Lorrick", "Nessaly", "Orvelle", "Pryndel", "Rossaly",
     "Tervoss", "Wyndrel",
 ]

@@ -12,6 +12,7 @@ mod analysis;
 mod api;
 mod api_fuzz;
 mod catalog_search;
+mod demo_agn;
 mod changes;
 mod exports;
 mod galaxy_names;
