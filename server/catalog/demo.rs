@@ -235,7 +235,10 @@ mod tests {
         });
         assert!(typed_with_f >= 3, "{typed_with_f} typed with a factor");
         let typed_without_f = count(&|m, v| reverberation(m) && v.assumed_log_f.is_none());
-        assert!(typed_without_f >= 5, "{typed_without_f} typed without a factor");
+        assert!(
+            typed_without_f >= 5,
+            "{typed_without_f} typed without a factor"
+        );
         for calibration in SingleEpochCalibration::ALL {
             let n = count(&|m, v| {
                 m.method == MassMethod::SingleEpoch.as_str()

@@ -128,11 +128,13 @@ async fn the_default_m_sigma_fit_leaves_every_virial_mass_out_and_says_how_many(
 async fn asking_for_reverberation_masses_adds_them_and_all_adds_single_epoch_ones() {
     let app = spawn_demo_app().await;
     let demo = demo_galaxies();
-    let reverberation =
-        how_many(&demo, |g| g.measured_by(MassMethod::Reverberation) && g.has_sigma_e());
+    let reverberation = how_many(&demo, |g| {
+        g.measured_by(MassMethod::Reverberation) && g.has_sigma_e()
+    });
     let single_epoch = how_many(&demo, |g| g.measured_by(MassMethod::SingleEpoch));
-    let single_epoch_sigma_e =
-        how_many(&demo, |g| g.measured_by(MassMethod::SingleEpoch) && g.has_sigma_e());
+    let single_epoch_sigma_e = how_many(&demo, |g| {
+        g.measured_by(MassMethod::SingleEpoch) && g.has_sigma_e()
+    });
     assert!(reverberation >= 20 && single_epoch_sigma_e >= 1);
 
     let default = fit(&app, "").await;
@@ -168,9 +170,7 @@ async fn the_activity_filter_selects_the_nuclei_of_one_class() {
         g.activity == Activity::Seyfert1 && is_virial_method(&g.mass_method)
     });
     let seyfert1_dynamical = how_many(&demo, |g| {
-        g.activity == Activity::Seyfert1
-            && !is_virial_method(&g.mass_method)
-            && g.has_sigma_e()
+        g.activity == Activity::Seyfert1 && !is_virial_method(&g.mass_method) && g.has_sigma_e()
     });
     let v = fit(&app, "?activity=seyfert1").await;
     assert_eq!(v["sample_filter"]["activity"], "seyfert1", "{v}");
