@@ -1600,12 +1600,13 @@ def main() -> int:
     mean_f = sum(truths["rm_log_f"]) / len(truths["rm_log_f"])
     print(f"  drawn log f_i: mean {mean_f:.3f} over {len(truths['rm_log_f'])} "
           f"(model {DEMO_LOG_F:.2f})")
-    log_f, err, eps = held_slope_log_f(agn_points(rows, meas_csv), README_MSIGMA_ALPHA,
-                                       README_MSIGMA_BETA, math.log10(MSIGMA_PIVOT_KM_S))
+    points = agn_points(rows, meas_csv)
+    pivot = math.log10(MSIGMA_PIVOT_KM_S)
+    log_f, err, eps = held_slope_log_f(points, README_MSIGMA_ALPHA, README_MSIGMA_BETA, pivot)
+    log_f_model = held_slope_log_f(points, MSIGMA_ZERO, MSIGMA_SLOPE, pivot)[0]
     print(f"  held-slope log <f> against the default M-sigma fit (alpha {README_MSIGMA_ALPHA}, "
           f"beta {README_MSIGMA_BETA}): {log_f:.2f} +/- {err:.2f} (AGN part), "
-          f"eps_AGN {eps:.2f}; at the model slope {MSIGMA_SLOPE}: "
-          f"{held_slope_log_f(agn_points(rows, meas_csv), MSIGMA_ZERO, MSIGMA_SLOPE, math.log10(MSIGMA_PIVOT_KM_S))[0]:.2f}")
+          f"eps_AGN {eps:.2f}; at the model slope {MSIGMA_SLOPE}: {log_f_model:.2f}")
     print("  all self-checks passed")
     return 0
 
