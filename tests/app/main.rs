@@ -13,6 +13,7 @@ mod api;
 mod api_fuzz;
 mod catalog_search;
 mod changes;
+mod demo_agn;
 mod exports;
 mod galaxy_names;
 mod galaxy_relations;
