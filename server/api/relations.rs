@@ -101,6 +101,8 @@ pub enum MassMethodWord {
     Maser,
     /// Reverberation mapping.
     Reverberation,
+    /// A single-epoch spectrum (in no default fit).
+    SingleEpoch,
 }
 
 /// Sphere-of-influence selection (`soi`).

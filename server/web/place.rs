@@ -169,6 +169,12 @@ pub(crate) struct PlacePage {
     soi_threshold: String,
     charts: Vec<PlaceChart>,
     nothing_usable: bool,
+    /// The activity classes for the select: (value, label, selected).
+    activity_options: Vec<(&'static str, &'static str, bool)>,
+    /// The Eddington quantities, when a mass and λL(5100 Å) were given.
+    eddington: Option<EddingtonView>,
+    /// Why there are none although λL(5100 Å) was given.
+    eddington_note: Option<String>,
     /// The catalog version named in the address, if any.
     version_note: Option<super::display::VersionNote>,
 }
@@ -223,6 +229,21 @@ pub(crate) async fn show_place(
         Vec::new()
     };
     let (soi, soi_note) = soi_view(&values, state.settings.soi_threshold);
+    let (eddington, eddington_note) = match values.eddington() {
+        None => (None, None),
+        Some(Ok(e)) => {
+            let basis = values
+                .activity
+                .map(|a| format!("a nucleus classed {}", a.label()))
+                .unwrap_or_default();
+            (Some(EddingtonView::of(&e, basis)), None)
+        }
+        Some(Err(note)) => (None, Some(note)),
+    };
+    let activity_options = crate::catalog::model::Activity::pairs()
+        .into_iter()
+        .map(|(v, l)| (v, l, values.activity.map(|a| a.as_str()) == Some(v)))
+        .collect();
     let (rows, charts): (Vec<PlaceRow>, Vec<Option<PlaceChart>>) = placed.into_iter().unzip();
     let charts = charts.into_iter().flatten().collect();
     let fault = |name: &str| {
@@ -250,6 +271,9 @@ pub(crate) async fn show_place(
         soi_threshold: significant(state.settings.soi_threshold, 2),
         charts,
         version_note,
+        activity_options,
+        eddington,
+        eddington_note,
     })
 }
 
@@ -274,7 +298,7 @@ fn field_views(
         &'static str,
         &String,
         Option<String>,
-    ); 6] = [
+    ); 8] = [
         (
             "sigma",
             "Velocity dispersion σ_e",
@@ -324,6 +348,20 @@ fn field_views(
                 .resolution
                 .as_ref()
                 .map(|e| format!("{}″", significant(e.value, 3))),
+        ),
+        (
+            "log_l5100_erg_s",
+            "λL(5100 Å), for the Eddington quantities",
+            "log10 erg/s, e.g. 44.2",
+            &texts.log_l5100_erg_s,
+            None,
+        ),
+        (
+            "activity",
+            "Activity class of the nucleus",
+            "optional",
+            &texts.activity,
+            None,
         ),
     ];
     fields
