@@ -1425,6 +1425,249 @@ mod tests {
         }
     }
 
+    /// A catalog CSV line from (column, cell) pairs, every other column of [`COLUMNS`] (but
+    /// `row_key`) empty.
+    fn line_of(cells: &[(&str, &str)]) -> String {
+        COLUMNS[..30]
+            .iter()
+            .map(|c| {
+                cells
+                    .iter()
+                    .find(|(k, _)| k == c)
+                    .map_or("", |(_, v)| v)
+                    .to_owned()
+            })
+            .collect::<Vec<_>>()
+            .join(",")
+    }
+
+    /// Invented AGN rows: a computed reverberation mass, typed ones with a known and an
+    /// unknown factor, computed single-epoch masses by both calibrations, a typed single-epoch
+    /// mass, and a quiescent galaxy with a dynamical mass; five activity classes.
+    fn agn_catalog() -> String {
+        let galaxy = |name: &'static str, activity: &'static str| {
+            vec![
+                ("galaxy", name),
+                ("morphology", "elliptical"),
+                ("bulge_kind", "classical"),
+                ("centre_kind", "core"),
+                ("distance_mpc", "20"),
+                ("distance_err_mpc", "1"),
+                ("distance_method", "sbf"),
+                ("activity", activity),
+            ]
+        };
+        let with = |mut base: Vec<(&'static str, &'static str)>,
+                    more: &[(&'static str, &'static str)]| {
+            base.extend_from_slice(more);
+            line_of(&base)
+        };
+        let sigma = [
+            ("quantity", "sigma"),
+            ("value", "150 ± 10"),
+            ("sigma_definition", "sigma_e"),
+        ];
+        let lines = [
+            COLUMNS[..30].join(","),
+            with(galaxy("Tesk 61", "seyfert1"), &sigma),
+            with(
+                galaxy("Tesk 61", "seyfert1"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "reverberation"),
+                    ("source_distance_mpc", "21"),
+                    ("lag_days", "10.3"),
+                    ("lag_err_days", "+1.4/-1.1"),
+                    ("width_km_s", "2000"),
+                    ("width_err_km_s", "100"),
+                    ("log_l5100_erg_s", "43.5"),
+                ],
+            ),
+            with(galaxy("Tesk 62", "quasar"), &sigma),
+            with(
+                galaxy("Tesk 62", "quasar"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "3e7 ± 0.5e7"),
+                    ("method", "reverberation"),
+                    ("width_definition", "fwhm"),
+                    ("width_spectrum", "mean"),
+                    ("lag_days", "12"),
+                    ("lag_err_days", "2"),
+                    ("virial_factor", "5.5"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 63", "seyfert2"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "log 7.3 ± 0.2"),
+                    ("scale", "log10"),
+                    ("method", "reverberation"),
+                    ("line", "MgII"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 64", "quasar"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "single_epoch"),
+                    ("width_km_s", "4000"),
+                    ("log_l5100_erg_s", "44"),
+                    ("calibration", "vp06"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 65", "liner"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "single_epoch"),
+                    ("width_km_s", "3000"),
+                    ("width_err_km_s", "300"),
+                    ("log_l5100_erg_s", "44.5"),
+                    ("calibration", "r_l_bentz13"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 66", ""),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "5e7 ± 1e7"),
+                    ("method", "single_epoch"),
+                    ("virial_factor", "4.3"),
+                    ("calibration", "r_l_bentz13"),
+                ],
+            ),
+            with(galaxy("Tesk 67", "quiescent"), &sigma),
+            with(
+                galaxy("Tesk 67", "quiescent"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "2e8 ± 0.3e8"),
+                    ("method", "stellar_dynamics"),
+                    ("source_distance_mpc", "20"),
+                    ("resolution_arcsec", "0.1"),
+                ],
+            ),
+        ];
+        lines.join("\n") + "\n"
+    }
+
+    #[tokio::test]
+    async fn agn_rows_export_and_reimport_to_the_same_file_and_the_same_fitted_rows() {
+        let (_a, first) = temp_pool().await;
+        import_csv(&first, &agn_catalog(), ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (text, version) = export_csv(&first, None).await.unwrap();
+        let (_b, second) = temp_pool().await;
+        import_csv(&second, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (again, version2) = export_csv(&second, None).await.unwrap();
+        assert_eq!(again, text, "export → import → export is the identity");
+        let (json, _) = export_json(&first, None).await.unwrap();
+        let (json2, _) = export_json(&second, None).await.unwrap();
+        let strip = |t: &str| {
+            let mut v: serde_json::Value = serde_json::from_str(t).unwrap();
+            v["catalog_version_made_at"] = serde_json::Value::Null;
+            v
+        };
+        assert_eq!(strip(&json), strip(&json2));
+        // The rows the fits read agree to the bit: the same masses at the adopted factors.
+        let a = super::super::relation_rows::relation_rows_at(&first, version)
+            .await
+            .unwrap();
+        let b = super::super::relation_rows::relation_rows_at(&second, version2)
+            .await
+            .unwrap();
+        assert_eq!(a.len(), 7);
+        assert_eq!(a, b);
+        // What the file says: computed rows have an empty value, typed ones their text and f.
+        let rows = parse_catalog_csv(&text).unwrap();
+        let by = |name: &str| {
+            rows.iter()
+                .find(|r| {
+                    r.galaxy_name == name && r.measurement.quantity == Quantity::BlackHoleMass
+                })
+                .unwrap()
+        };
+        assert!(text.contains(",10.3,'+1.4/-1.1,2000,100,43.5,,,"), "{text}");
+        assert_eq!(
+            by("Tesk 61").measurement.value_text,
+            super::super::virial::COMPUTED_VALUE_TEXT
+        );
+        let typed = by("Tesk 62").measurement.virial.clone().unwrap();
+        assert_eq!(typed.assumed_log_f, Some(5.5f64.log10()));
+        assert!(text.contains(",5.5,"), "{text}");
+        assert_eq!(
+            by("Tesk 63")
+                .measurement
+                .virial
+                .clone()
+                .unwrap()
+                .assumed_log_f,
+            None
+        );
+        assert_eq!(
+            by("Tesk 64").measurement.value_text,
+            super::super::virial::COMPUTED_SINGLE_EPOCH_TEXT
+        );
+        // Activity classes travel; "unknown" is the empty cell.
+        let activity: Vec<(String, String)> =
+            sqlx::query_as("select name, activity from galaxy order by name")
+                .fetch_all(&second)
+                .await
+                .unwrap();
+        let words: Vec<&str> = activity.iter().map(|(_, a)| a.as_str()).collect();
+        assert_eq!(
+            words,
+            [
+                "seyfert1",
+                "quasar",
+                "seyfert2",
+                "quasar",
+                "liner",
+                "unknown",
+                "quiescent"
+            ]
+        );
+        // The virial factor applied is the adopted one: log ⟨f⟩ = 0.64 for σ_line at version
+        // 0 (migration 9), 0.05 for the FWHM; none for the unknown factor and vp06.
+        let f = |name: &str| a.iter().find(|r| r.name == name).unwrap().mbh_log_f;
+        assert_eq!(f("Tesk 61"), Some(0.64));
+        assert_eq!(f("Tesk 62"), Some(0.05));
+        assert_eq!(f("Tesk 63"), None);
+        assert_eq!(f("Tesk 64"), None);
+        assert_eq!(f("Tesk 67"), None);
+        // Importing the export into the catalog it came from adds nothing.
+        let report = import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(report.skipped, 10);
+        assert_eq!(report.measurements, 0);
+    }
+
+    #[test]
+    fn a_row_without_the_agn_cells_keeps_its_old_fingerprint() {
+        let cells = [
+            ("galaxy", "Tesk 70"),
+            ("morphology", "elliptical"),
+            ("quantity", "sigma"),
+            ("value", "150 ± 10"),
+            ("sigma_definition", "sigma_e"),
+        ];
+        let cell = |c: &'static str| cells.iter().find(|(k, _)| *k == c).map_or("", |(_, v)| *v);
+        // The fingerprint as it was before the AGN columns: the 19 content cells joined by
+        // U+001F.
+        let old: Vec<&str> = FINGERPRINT_COLUMNS.iter().map(|c| cell(c)).collect();
+        let expected = sha256_hex(&old.join("\u{1f}"));
+        assert_eq!(row_key_of(&cell).unwrap().sha256, Some(expected.clone()));
+        // An AGN cell changes it.
+        let with_activity = |c: &'static str| if c == "activity" { "seyfert1" } else { cell(c) };
+        assert_ne!(row_key_of(&with_activity).unwrap().sha256, Some(expected));
+    }
+
     #[tokio::test]
     async fn one_bad_row_writes_nothing_and_every_bad_row_is_reported() {
         let (_d, pool) = temp_pool().await;
@@ -1685,10 +1928,14 @@ mod tests {
     }
 
     #[test]
-    fn the_measurement_columns_run_from_quantity_to_note() {
+    fn the_measurement_columns_run_from_quantity_to_calibration() {
         assert_eq!(MEASUREMENT_COLUMNS.first(), Some(&"quantity"));
-        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"note"));
-        assert_eq!(MEASUREMENT_COLUMNS.len(), 12);
+        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"calibration"));
+        assert_eq!(MEASUREMENT_COLUMNS.len(), 22);
+        for column in super::super::virial::VIRIAL_COLUMNS {
+            assert!(MEASUREMENT_COLUMNS.contains(&column), "{column}");
+        }
+        assert!(!MEASUREMENT_COLUMNS.contains(&"activity"));
     }
 
     #[test]

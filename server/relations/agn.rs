@@ -126,9 +126,7 @@ impl VirialDetail {
             (Some(l), Some(w)) => agn::virial_product_msun(l.0, w.0).ok().map(f64::log10),
             _ => None,
         };
-        let applied_log_f = v
-            .assumed_log_f
-            .map(|_| factors.of(width_definition).0);
+        let applied_log_f = v.assumed_log_f.map(|_| factors.of(width_definition).0);
         let shift = match (applied_log_f, v.assumed_log_f) {
             (Some(f), Some(a)) => f - a,
             _ => 0.0,
@@ -164,8 +162,7 @@ impl VirialDetail {
                 "the vp06 calibration carries its own factor: shown as published, not rescaled"
                     .to_owned()
             }
-            _ => "the source's factor is not recorded: shown as published, not rescaled"
-                .to_owned(),
+            _ => "the source's factor is not recorded: shown as published, not rescaled".to_owned(),
         }
     }
 

@@ -327,7 +327,7 @@ impl ObjectValues {
         let log_l = self.log_l5100_erg_s?;
         let Some(m) = self.mass.as_ref() else {
             return Some(Err(
-                "The Eddington quantities need the black-hole mass as well.".to_owned()
+                "The Eddington quantities need the black-hole mass as well.".to_owned(),
             ));
         };
         if m.upper_limit {

@@ -352,7 +352,11 @@ impl VirialView {
     fn of(d: &crate::relations::agn::VirialDetail) -> Self {
         let log_f = |v: Option<f64>, none: &str| {
             v.map_or(none.to_owned(), |l| {
-                format!("f = {} (log f = {})", significant(10f64.powf(l), 3), fixed(l, 2))
+                format!(
+                    "f = {} (log f = {})",
+                    significant(10f64.powf(l), 3),
+                    fixed(l, 2)
+                )
             })
         };
         VirialView {
@@ -535,10 +539,9 @@ pub(crate) async fn change_activity(
         }
     });
     match read {
-        Ok(a) if a.as_str() == galaxy.activity => Ok(axum::response::Redirect::to(&format!(
-            "/galaxies/{slug}#activity"
-        ))
-        .into_response()),
+        Ok(a) if a.as_str() == galaxy.activity => {
+            Ok(axum::response::Redirect::to(&format!("/galaxies/{slug}#activity")).into_response())
+        }
         Ok(a) => {
             crate::catalog::galaxies::change_activity(
                 &state.pool,

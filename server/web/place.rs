@@ -129,10 +129,7 @@ impl EddingtonView {
         let raw = |v: f64| format!("{v:e}");
         EddingtonView {
             mass: format!("log M = {} [M☉]", fixed(e.log_mass_msun, 2)),
-            l5100: format!(
-                "log λL(5100 Å) = {} [erg/s]",
-                fixed(e.log_l5100_erg_s, 2)
-            ),
+            l5100: format!("log λL(5100 Å) = {} [erg/s]", fixed(e.log_l5100_erg_s, 2)),
             correction: significant(e.bolometric_correction, 3),
             l_bol: (scientific(e.l_bol_erg_s), raw(e.l_bol_erg_s)),
             l_edd: (scientific(e.l_edd_erg_s), raw(e.l_edd_erg_s)),
