@@ -923,7 +923,7 @@ pub async fn find_by_slug_at(
 ) -> sqlx::Result<Option<Galaxy>> {
     sqlx::query_as(
         "select s.galaxy_id, s.name, s.slug, s.morphology, s.bulge_kind, s.centre_kind,
-                s.distance_mpc, s.distance_err_mpc, s.distance_method
+                s.distance_mpc, s.distance_err_mpc, s.distance_method, s.activity
            from galaxy g join galaxy_span s on s.galaxy_id = g.galaxy_id
           where g.slug = ? and s.valid_from_version <= ?2
             and (s.valid_until_version is null or s.valid_until_version > ?2)",
