@@ -364,7 +364,7 @@ impl VirialView {
             lag: d.lag_days.map(|(l, minus, plus)| {
                 let e = if minus == 0.0 && plus == 0.0 {
                     String::new()
-                } else if minus == plus {
+                } else if minus.to_bits() == plus.to_bits() {
                     format!(" ± {}", significant(minus, 2))
                 } else {
                     format!(" +{}/−{}", significant(plus, 2), significant(minus, 2))
