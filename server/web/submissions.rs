@@ -89,8 +89,14 @@ const MEASUREMENT_GROUPS: [FieldGroupSpec; 8] = [
         "bh_mass",
         &[
             ("line", "Broad line [such as Hbeta; empty: Hbeta]"),
-            ("width_definition", "Width measure"),
-            ("width_spectrum", "Spectrum the width was measured on"),
+            (
+                "width_definition",
+                "Width measure [empty: σ_line; fwhm for single epoch]",
+            ),
+            (
+                "width_spectrum",
+                "Width spectrum [empty: rms; single for single epoch]",
+            ),
             ("lag_days", "Rest-frame lag [days]"),
             ("lag_err_days", "Lag error [days: 1.2, or +1.4/-1.1]"),
             ("width_km_s", "Line width [km/s]"),
@@ -183,7 +189,11 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
         "activity" => Activity::pairs(),
         "width_definition" => WidthDefinition::pairs(),
         "width_spectrum" => WidthSpectrum::pairs(),
-        "calibration" => SingleEpochCalibration::pairs(),
+        // Short labels: a select is as wide as its longest option, and the form fits a phone.
+        "calibration" => SingleEpochCalibration::pairs()
+            .into_iter()
+            .map(|(word, _)| (word, calibration_label(word)))
+            .collect(),
         _ => return Vec::new(),
     };
     let mut out = Vec::with_capacity(pairs.len() + 1);
@@ -200,16 +210,9 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
             "not stated (unknown)".to_owned(),
             value.is_empty(),
         )),
-        "width_definition" => out.push((
-            String::new(),
-            "— (σ_line; FWHM for single epoch)".to_owned(),
-            value.is_empty(),
-        )),
-        "width_spectrum" => out.push((
-            String::new(),
-            "— (rms; single for single epoch)".to_owned(),
-            value.is_empty(),
-        )),
+        "width_definition" | "width_spectrum" => {
+            out.push((String::new(), "— (default)".to_owned(), value.is_empty()));
+        }
         _ => out.push((String::new(), "—".to_owned(), value.is_empty())),
     }
     out.extend(
@@ -218,6 +221,14 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
             .map(|(v, l)| (v.to_owned(), l.to_owned(), v == value)),
     );
     out
+}
+
+/// A single-epoch calibration in a few words (the select's option).
+fn calibration_label(word: &str) -> &'static str {
+    match word {
+        "vp06" => "vp06 (Hβ, own f)",
+        _ => "r_l_bentz13 (R–L, ⟨f⟩)",
+    }
 }
 
 /// The fields of a measurement row that apply to some quantities.
