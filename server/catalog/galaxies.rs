@@ -483,6 +483,29 @@ pub async fn change_activity(
     Ok(Some(version))
 }
 
+/// Whether account `account_id` changed the activity class of galaxy `galaxy_id` at catalog
+/// version `version` (the galaxy page confirms it to that person only).
+///
+/// # Errors
+/// Any database error.
+pub async fn activity_changed_by(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+    version: i64,
+    account_id: i64,
+) -> sqlx::Result<bool> {
+    sqlx::query_scalar(
+        "select exists (select 1 from audit_event
+                         where action = 'activity_changed' and entity = 'galaxy'
+                           and entity_id = ? and catalog_version = ? and account_id = ?)",
+    )
+    .bind(galaxy_id)
+    .bind(version)
+    .bind(account_id)
+    .fetch_one(pool)
+    .await
+}
+
 /// A galaxy's new adopted distance.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NewDistance {

@@ -543,7 +543,7 @@ pub(crate) async fn change_activity(
             Ok(axum::response::Redirect::to(&format!("/galaxies/{slug}#activity")).into_response())
         }
         Ok(a) => {
-            crate::catalog::galaxies::change_activity(
+            let version = crate::catalog::galaxies::change_activity(
                 &state.pool,
                 Some(me.account_id),
                 galaxy.galaxy_id,
@@ -552,7 +552,10 @@ pub(crate) async fn change_activity(
             )
             .await?
             .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
-            Ok(axum::response::Redirect::to(&format!("/galaxies/{slug}#activity")).into_response())
+            Ok(axum::response::Redirect::to(&format!(
+                "/galaxies/{slug}?activity_changed={version}#activity"
+            ))
+            .into_response())
         }
         Err(message) => {
             let form = ActivityForm::new(&me.csrf_token, fields.activity.trim(), Some(message));
@@ -698,26 +701,41 @@ pub(crate) async fn show_galaxy(
 ) -> AppResult<GalaxyShowPage> {
     let (changed, pairs): (Vec<_>, Vec<_>) = crate::router::query_pairs(query)?
         .into_iter()
-        .partition(|(k, _)| k == "distance_changed");
+        .partition(|(k, _)| k == "distance_changed" || k == "activity_changed");
     // The confirmation is worded from the audit log, and only for the person who made the
     // change, so an address cannot make the page claim something.
     let changed_at = changed
         .first()
-        .and_then(|(_, v)| v.trim().parse::<i64>().ok());
+        .and_then(|(k, v)| Some((k.as_str(), v.trim().parse::<i64>().ok()?)));
     let flash = match (changed_at, &principal) {
-        (Some(version), Principal::Session(s)) => {
+        (Some((what, version)), Principal::Session(s)) => {
             match crate::catalog::galaxies::find_by_slug(&state.pool, &slug).await? {
                 Some(g)
-                    if crate::catalog::changes::distance_changed_by(
-                        &state.pool,
-                        g.galaxy_id,
-                        version,
-                        s.account_id,
-                    )
-                    .await? =>
+                    if what == "distance_changed"
+                        && crate::catalog::changes::distance_changed_by(
+                            &state.pool,
+                            g.galaxy_id,
+                            version,
+                            s.account_id,
+                        )
+                        .await? =>
                 {
                     Some(format!(
                         "New distance adopted: catalog version {version}. See what changed on /changes?to={version}."
+                    ))
+                }
+                Some(g)
+                    if what == "activity_changed"
+                        && crate::catalog::galaxies::activity_changed_by(
+                            &state.pool,
+                            g.galaxy_id,
+                            version,
+                            s.account_id,
+                        )
+                        .await? =>
+                {
+                    Some(format!(
+                        "New activity class adopted: catalog version {version}."
                     ))
                 }
                 _ => None,

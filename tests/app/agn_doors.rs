@@ -470,6 +470,24 @@ async fn reviewers_change_the_activity_class_in_a_new_catalog_version() {
         .await;
     assert_eq!(r.status, 303, "{}", r.body);
     assert_eq!(version(&app).await, before + 1);
+    let confirmed = reviewer.get(&r.header("location")).await;
+    assert!(
+        confirmed.body.contains(&format!(
+            "New activity class adopted: catalog version {}.",
+            before + 1
+        )),
+        "{}",
+        confirmed.body
+    );
+    // The address alone claims nothing to anyone else.
+    let other = app.ok(&r.header("location")).await;
+    assert!(!other.contains("New activity class adopted"));
+    // The class already stored changes nothing.
+    let r = reviewer
+        .post("/galaxies/tesk-991/activity", &[("activity", "quasar")])
+        .await;
+    assert_eq!(r.status, 303);
+    assert_eq!(version(&app).await, before + 1);
     let page = app.ok("/galaxies/tesk-991").await;
     assert!(page.contains("id=\"activity-class\">quasar<"), "{page}");
     // The old class stays in the history.
