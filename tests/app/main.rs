@@ -8,6 +8,7 @@ mod helpers;
 mod access;
 mod accounts;
 mod agn_doors;
+mod agn_relations;
 mod analysis;
 mod api;
 mod api_fuzz;
