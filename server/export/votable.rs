@@ -680,7 +680,17 @@ pub(crate) mod tests {
                 row[column("upper_limit")],
                 if p.upper_limit { "T" } else { "F" }
             );
+            assert_eq!(row[column("activity")], m.activity);
+            assert_eq!(row[column("mbh_width_definition")], m.mbh_width_definition);
+            match m.mbh_log_f {
+                Some(f) => assert_same(&row[column("mbh_log_f")], f),
+                None => assert_eq!(row[column("mbh_log_f")], ""),
+            }
         }
+        assert!(
+            outcome.sample.members.iter().any(|m| m.mbh_log_f.is_some()),
+            "the sample has a virial mass"
+        );
         let infos: std::collections::BTreeMap<_, _> = doc.infos.into_iter().collect();
         assert_eq!(infos["catalog_version"], "7");
         assert_eq!(infos["relation"], "m_sigma");
