@@ -491,7 +491,7 @@ pub async fn show_galaxy(
             version.map_or(String::new(), |v| format!(" in catalog version {v}"))
         ))
     })?;
-    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record, catalog_version).await?;
+    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record).await?;
     let virial_of = |id: i64| agn.virial.iter().find(|d| d.measurement_id == id);
     let adopted = record
         .adopted()

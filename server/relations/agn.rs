@@ -11,7 +11,7 @@ use crate::catalog::galaxies::{StoredVirial, virial_measurements};
 use crate::catalog::model::{
     Activity, MassMethod, Measurement, SingleEpochCalibration, WidthDefinition, WidthSpectrum,
 };
-use crate::catalog::virial::{Factors, factors_at};
+use crate::catalog::virial::Factors;
 use crate::units::Quantity;
 
 /// The thin-disk spins whose radiative efficiencies bound the accretion rate: a non-rotating
@@ -214,26 +214,19 @@ pub struct GalaxyAgn {
     pub eddington_basis: String,
 }
 
-/// The AGN record of a galaxy read at catalog `version` (the factors in force then).
+/// The AGN record of a galaxy (at the factors of the version the record was read at).
 ///
 /// # Errors
 /// When the database fails.
-pub async fn galaxy_agn(
-    pool: &SqlitePool,
-    record: &GalaxyRecord,
-    version: i64,
-) -> sqlx::Result<GalaxyAgn> {
+pub async fn galaxy_agn(pool: &SqlitePool, record: &GalaxyRecord) -> sqlx::Result<GalaxyAgn> {
     let galaxy = &record.galaxy;
     let activity = galaxy
         .activity
         .parse::<Activity>()
         .unwrap_or(Activity::Unknown);
     let stored = virial_measurements(pool, galaxy.galaxy_id).await?;
-    let factors = if stored.is_empty() {
-        None
-    } else {
-        Some(factors_at(pool, version).await?)
-    };
+    // The factors the record's values were moved to (the version read).
+    let factors = (!stored.is_empty()).then_some(record.virial_factors);
     let mut virial = Vec::new();
     // (λL at the adopted distance, whether it belongs to the adopted mass)
     let mut luminosities: Vec<(f64, bool)> = Vec::new();
@@ -245,8 +238,10 @@ pub async fn galaxy_agn(
         let Some(f) = &factors else { continue };
         if let Some(detail) = VirialDetail::of(m, v, f) {
             let mut detail = detail;
-            // The mass shown is also moved to the adopted distance (docs/methods.md §3.2).
-            detail.log_mass_shown += at.log_value_at_adopted_distance - m.log_value;
+            // The mass shown is also moved to the adopted distance (docs/methods.md §3.2):
+            // the record's value is at the adopted factor and distance, so the distance's part
+            // is what remains once the factor's is taken off.
+            detail.log_mass_shown += at.log_value_at_adopted_distance - m.log_at_factor(f);
             if let Some(l) = detail.log_l5100_erg_s {
                 let moved = match m.source_distance_mpc {
                     Some(d) if d > 0.0 => l + 2.0 * (galaxy.distance_mpc / d).log10(),

@@ -784,7 +784,7 @@ async fn galaxy_page(
         )),
     })?;
     let galaxy = &record.galaxy;
-    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record, pinned.version).await?;
+    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record).await?;
     let activity_form = match principal {
         Principal::Session(s)
             if version.is_none() && s.role.includes(crate::auth::Role::Reviewer) =>
