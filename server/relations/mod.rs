@@ -34,6 +34,7 @@ mod runs;
 mod sample;
 pub mod table;
 pub mod version_analysis;
+pub mod virial;
 
 use std::fmt;
 
