@@ -24,3 +24,4 @@ mod security;
 mod sessions;
 mod storage;
 mod submissions;
+mod virial;
