@@ -101,6 +101,41 @@ pub enum MassMethodWord {
     Maser,
     /// Reverberation mapping.
     Reverberation,
+    /// A single-epoch spectrum.
+    SingleEpoch,
+}
+
+/// Which kinds of black-hole mass enter (`masses`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum MassesWord {
+    /// Stellar dynamics, gas dynamics and masers only (default): a virial mass is calibrated
+    /// on the relation it would be fitted to (docs/methods.md §4.7).
+    Dynamical,
+    /// Dynamical and reverberation masses.
+    WithReverberation,
+    /// Every mass, single-epoch masses included.
+    All,
+}
+
+/// The nucleus' activity class (`activity`).
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum ActivityWord {
+    /// No active nucleus.
+    Quiescent,
+    /// Seyfert 1.
+    Seyfert1,
+    /// Seyfert 2.
+    Seyfert2,
+    /// LINER.
+    Liner,
+    /// Quasar.
+    Quasar,
+    /// Radio galaxy.
+    RadioGalaxy,
+    /// Not known.
+    Unknown,
 }
 
 /// Sphere-of-influence selection (`soi`).
@@ -148,8 +183,12 @@ pub struct FitQuery {
     pub bulge_kind: Option<BulgeKindWord>,
     /// Only galaxies with this centre kind.
     pub centre_kind: Option<CentreKindWord>,
-    /// Only black-hole masses measured this way.
+    /// Only black-hole masses measured this way (overrides `masses`).
     pub mass_method: Option<MassMethodWord>,
+    /// Which kinds of black-hole mass enter (default `dynamical`).
+    pub masses: Option<MassesWord>,
+    /// Only galaxies whose nucleus has this activity class.
+    pub activity: Option<ActivityWord>,
     /// `resolved`: only masses whose sphere of influence is resolved.
     pub soi: Option<SoiWord>,
     /// Which σ the relations using σ take (default `sigma_e`; never mixed).
@@ -446,6 +485,10 @@ pub struct FilterAnswer {
     pub centre_kind: Option<String>,
     /// Mass method, or null for any.
     pub mass_method: Option<String>,
+    /// `dynamical`, `with_reverberation` or `all` (overridden by `mass_method` when set).
+    pub masses: String,
+    /// Activity class, or null for any.
+    pub activity: Option<String>,
     /// `all` or `resolved`.
     pub soi: String,
     /// `sigma_e` or `sigma_c`.
@@ -464,6 +507,8 @@ impl FilterAnswer {
             bulge_kind: f.bulge_kind.map(|m| m.as_str().to_owned()),
             centre_kind: f.centre_kind.map(|m| m.as_str().to_owned()),
             mass_method: f.mass_method.map(|m| m.as_str().to_owned()),
+            masses: f.masses.as_str().to_owned(),
+            activity: f.activity.map(|a| a.as_str().to_owned()),
             soi: match f.soi {
                 SoiChoice::All => "all",
                 SoiChoice::Resolved => "resolved",
@@ -522,6 +567,8 @@ pub struct RelationFit {
     pub left_out_sigma_definition: usize,
     /// Galaxies left out because they lack a value the relation needs.
     pub left_out_missing: usize,
+    /// Reverberation and single-epoch masses left out by `masses` (dynamical only by default).
+    pub left_out_virial: usize,
     /// Upper limits of the selection left out of the fit (asked with `limits=exclude`, or
     /// because the estimator cannot use them).
     pub limits_left_out: usize,
@@ -555,6 +602,7 @@ impl RelationFit {
             n_limits: outcome.sample.n_limits(),
             left_out_sigma_definition: outcome.sample.left_out_sigma_definition,
             left_out_missing: outcome.sample.left_out_missing,
+            left_out_virial: outcome.sample.left_out_virial,
             limits_left_out: outcome.sample.left_out_limits,
             limits_notice: settings
                 .limits_left_out(&outcome.sample)

@@ -589,6 +589,205 @@ mod tests {
         assert!(virial_from_fields(&empty, None, true).unwrap().is_none());
     }
 
+    /// Stores one galaxy per mass (cells as a form or file carries them), all adopted, in one
+    /// new catalog version; returns the galaxies' keys in order.
+    async fn store(pool: &SqlitePool, masses: &[&[(&'static str, &str)]]) -> Vec<i64> {
+        use crate::catalog::galaxies::{self, RowKey, SubmissionSource};
+        use crate::catalog::model::SubmissionState;
+        let mut tx = begin_write(pool).await.unwrap();
+        history::bump_version(&mut tx).await.unwrap();
+        let submission = galaxies::insert_submission(
+            &mut tx,
+            None,
+            SubmissionSource::Import,
+            SubmissionState::Accepted,
+            "",
+            None,
+        )
+        .await
+        .unwrap();
+        let mut ids = Vec::new();
+        for (n, cells) in masses.iter().enumerate() {
+            let name = format!("Test nucleus {n}");
+            let cell = |c: &'static str| -> &str {
+                match c {
+                    "name" => name.as_str(),
+                    "morphology" => "spiral",
+                    "bulge_kind" | "centre_kind" => "unknown",
+                    "distance_mpc" => "50",
+                    "distance_err_mpc" => "5",
+                    "distance_method" => "hubble_flow",
+                    "activity" => "seyfert1",
+                    "quantity" => "bh_mass",
+                    _ => cells.iter().find(|x| x.0 == c).map_or("", |x| x.1),
+                }
+            };
+            let g = super::super::intake::galaxy_from_cells("test", 1, &cell).unwrap();
+            let m = super::super::intake::measurement_from_cells("test", 1, &cell).unwrap();
+            let gid = galaxies::insert_galaxy(&mut tx, &g)
+                .await
+                .unwrap()
+                .galaxy_id;
+            let row = RowKey {
+                key: format!("t-{n}"),
+                sha256: None,
+            };
+            let mid = galaxies::insert_measurement(&mut tx, gid, submission, &m, &row)
+                .await
+                .unwrap();
+            galaxies::adopt(&mut tx, mid).await.unwrap();
+            ids.push(gid);
+        }
+        tx.commit().await.unwrap();
+        ids
+    }
+
+    #[tokio::test]
+    async fn adopting_a_factor_moves_the_virial_masses_of_its_width_measure_only_from_its_version_on()
+     {
+        let dir = tempfile::tempdir().unwrap();
+        let pool = crate::catalog::connect(&dir.path().join("t.sqlite"))
+            .await
+            .unwrap();
+        let ids = store(
+            &pool,
+            &[
+                &[
+                    ("method", "reverberation"),
+                    ("lag_days", "10"),
+                    ("width_km_s", "2000"),
+                ],
+                &[
+                    ("method", "reverberation"),
+                    ("value", "1e8 ± 0.3e8"),
+                    ("virial_factor", "5.5"),
+                ],
+                &[("method", "reverberation"), ("value", "2e7 ± 0.5e7")],
+                &[
+                    ("method", "single_epoch"),
+                    ("width_km_s", "4000"),
+                    ("log_l5100_erg_s", "44"),
+                    ("calibration", "vp06"),
+                ],
+                &[
+                    ("method", "single_epoch"),
+                    ("width_km_s", "4000"),
+                    ("log_l5100_erg_s", "44"),
+                    ("calibration", "r_l_bentz13"),
+                ],
+                &[
+                    ("method", "stellar_dynamics"),
+                    ("value", "3e8 ± 1e8"),
+                    ("source_distance_mpc", "50"),
+                ],
+            ],
+        )
+        .await;
+        let masses = |rows: Vec<crate::catalog::relation_rows::RelationRow>| -> Vec<f64> {
+            ids.iter()
+                .map(|id| {
+                    rows.iter()
+                        .find(|r| r.galaxy_id == *id)
+                        .unwrap()
+                        .log_mbh
+                        .unwrap()
+                })
+                .collect()
+        };
+        let v1 = history::current_version(&pool).await.unwrap();
+        let first = masses(
+            crate::catalog::relation_rows::relation_rows_at(&pool, v1)
+                .await
+                .unwrap(),
+        );
+        // The starting factors of migration 9: σ_line 0.64, FWHM 0.05.
+        let start = factors_at(&pool, v1).await.unwrap();
+        assert_eq!(start.sigma_line, (0.64, 0.11));
+        assert_eq!(start.fwhm, (0.05, 0.12));
+        let vp = agn::virial_product_msun(10.0, 2000.0).unwrap().log10();
+        assert!((first[0] - (vp + 0.64)).abs() < 1e-12, "{first:?}");
+        assert!((first[1] - (8.0 - 5.5f64.log10() + 0.64)).abs() < 1e-12);
+        assert!(
+            (first[2] - 2e7f64.log10()).abs() < 1e-12,
+            "no recorded factor: as published"
+        );
+        assert!(
+            (first[3] - 8.114_123).abs() < 1e-5,
+            "vp06 keeps its own factor"
+        );
+        let vp_rl = agn::virial_product_msun(10f64.powf(1.527), 4000.0)
+            .unwrap()
+            .log10();
+        assert!((first[4] - (vp_rl + 0.05)).abs() < 1e-12);
+        assert!((first[5] - 3e8f64.log10()).abs() < 1e-12);
+
+        let v2 = adopt(
+            &pool,
+            None,
+            WidthDefinition::SigmaLine,
+            0.75,
+            0.1,
+            "test calibration",
+        )
+        .await
+        .unwrap();
+        assert_eq!(v2, v1 + 1);
+        let second = masses(
+            crate::catalog::relation_rows::relation_rows_at(&pool, v2)
+                .await
+                .unwrap(),
+        );
+        for (i, (a, b)) in first.iter().zip(&second).enumerate() {
+            let moved = if i < 2 { 0.75 - 0.64 } else { 0.0 };
+            assert!((b - a - moved).abs() < 1e-12, "mass {i}: {a} → {b}");
+        }
+        let v3 = adopt(
+            &pool,
+            None,
+            WidthDefinition::Fwhm,
+            0.20,
+            0.1,
+            "test calibration",
+        )
+        .await
+        .unwrap();
+        let third = masses(
+            crate::catalog::relation_rows::relation_rows_at(&pool, v3)
+                .await
+                .unwrap(),
+        );
+        for (i, (a, b)) in second.iter().zip(&third).enumerate() {
+            let moved = if i == 4 { 0.20 - 0.05 } else { 0.0 };
+            assert!((b - a - moved).abs() < 1e-12, "mass {i}: {a} → {b}");
+        }
+        // Past versions read as they were.
+        let again = masses(
+            crate::catalog::relation_rows::relation_rows_at(&pool, v1)
+                .await
+                .unwrap(),
+        );
+        assert_eq!(
+            again.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+            first.iter().map(|x| x.to_bits()).collect::<Vec<_>>()
+        );
+        let log = adoptions(&pool).await.unwrap();
+        assert_eq!(log.len(), 4);
+        assert_eq!(log[0].from_version, v3);
+        // The factor table keeps its history.
+        assert!(
+            sqlx::query("delete from virial_factor")
+                .execute(&pool)
+                .await
+                .is_err()
+        );
+        assert!(
+            sqlx::query("update virial_factor set log_f = 0")
+                .execute(&pool)
+                .await
+                .is_err()
+        );
+    }
+
     impl Computed {
         fn err_dex_for_test(&self) -> f64 {
             0.5 * (self.err_minus_dex + self.err_plus_dex)

@@ -94,6 +94,16 @@ pub fn methods_paragraph(outcome: &FitOutcome, relation: &Relation) -> String {
             count(sample.left_out_missing, "galaxy", "galaxies")
         ));
     }
+    if sample.left_out_virial > 0 {
+        left_out.push(format!(
+            "{} (a virial mass rests on a virial factor calibrated on the quiescent relation, so fitting it is circular)",
+            count(
+                sample.left_out_virial,
+                "reverberation or single-epoch mass",
+                "reverberation or single-epoch masses"
+            )
+        ));
+    }
     if sample.left_out_limits > 0 {
         left_out.push(count(sample.left_out_limits, "upper limit", "upper limits"));
     }
@@ -107,7 +117,7 @@ pub fn methods_paragraph(outcome: &FitOutcome, relation: &Relation) -> String {
         parts.push(estimator_sentence(method));
     }
     parts.push(
-        "Every black-hole mass, bulge mass and luminosity was rescaled from the distance its source assumed to the galaxy's adopted distance (dynamical masses in proportion to D, luminosities and photometric bulge masses to D², velocity dispersions and reverberation masses not at all), the adopted distance's error was added in quadrature to each distance-dependent value, and the covariance that the shared distance induces between the errors of the host property and of log M_BH was included in the fit."
+        "Every black-hole mass, bulge mass and luminosity was rescaled from the distance its source assumed to the galaxy's adopted distance (dynamical masses in proportion to D, luminosities and photometric bulge masses to D², velocity dispersions and reverberation masses not at all, single-epoch masses as D), the adopted distance's error was added in quadrature to each distance-dependent value, and the covariance that the shared distance induces between the errors of the host property and of log M_BH was included in the fit."
             .to_owned(),
     );
     parts.push(if sample.n_limits() > 0 {

@@ -44,6 +44,8 @@ pub fn filter_words(canonical: &str) -> String {
                 "soi" => "sphere of influence",
                 "sigma_definition" => "σ definition",
                 "limits" => "upper limits",
+                "masses" => "black-hole masses",
+                "activity" => "nucleus",
                 other => other,
             };
             let value = match (key, value) {
@@ -51,6 +53,9 @@ pub fn filter_words(canonical: &str) -> String {
                 ("limits", "include") => "included".to_owned(),
                 ("limits", "exclude") => "left out".to_owned(),
                 ("limits", "auto") => "as the estimator allows".to_owned(),
+                ("masses", "dynamical") => "dynamical only (stellar, gas, maser)".to_owned(),
+                ("masses", "with_reverberation") => "dynamical and reverberation".to_owned(),
+                ("masses", "all") => "every method, single-epoch included".to_owned(),
                 (_, v) => code_label(v),
             };
             format!("{name} {value}")

@@ -146,6 +146,9 @@ pub struct LeftOutPlacements {
     pub computing: Vec<String>,
     /// Relations placed against the one-step approximation of the fit without the galaxy.
     pub approximate: Vec<String>,
+    /// Relations whose default sample does not hold the galaxy's mass (a reverberation or
+    /// single-epoch mass: docs/methods.md §4.7): it is placed against their default fit.
+    pub outside_default: Vec<String>,
 }
 
 /// Largest sample whose fit without one galaxy is refitted exactly on a galaxy page. Above it
@@ -173,7 +176,15 @@ pub async fn place_left_out(
     let method = Method::Structural;
     let filter = SampleFilter::default().for_method(method);
     let mut placements = Vec::new();
-    let (mut computing, mut approximate) = (Vec::new(), Vec::new());
+    let (mut computing, mut approximate, mut outside_default) =
+        (Vec::new(), Vec::new(), Vec::new());
+    // The galaxy with every kind of mass admitted: a virial mass, which no default sample
+    // holds, is placed against the default fit it is not part of.
+    let own_row = rows.iter().find(|r| r.galaxy_id == galaxy_id);
+    let every_mass = SampleFilter {
+        masses: super::MassesChoice::All,
+        ..filter
+    };
     for relation in catalog.relations().await? {
         let pivots = (relation.default_pivot(), relation.default_pivot2());
         let full_key = FitKey::new(
@@ -201,6 +212,29 @@ pub async fn place_left_out(
             )),
         };
         let Some(index) = sample.members.iter().position(|m| m.galaxy_id == galaxy_id) else {
+            let own = own_row.map(|row| {
+                build_sample(
+                    std::slice::from_ref(row),
+                    lums,
+                    &relation,
+                    &every_mass,
+                    catalog.soi_threshold,
+                )
+            });
+            if let Some(own) = own.filter(|s| s.points.len() == 1) {
+                let choice = (&relation, method, &filter, pivots);
+                match catalog.fitted_within(choice, wait).await? {
+                    Ok(full) => {
+                        outside_default.push(relation.label());
+                        placements.push(place_against(
+                            &relation,
+                            full,
+                            &subject_of(&relation, &own, 0),
+                        ));
+                    }
+                    Err(_) => computing.push(relation.label()),
+                }
+            }
             continue;
         };
         let outcome = if sample.points.len() <= LEFT_OUT_REFIT_MAX {
@@ -289,6 +323,7 @@ pub async fn place_left_out(
         none_because,
         computing,
         approximate,
+        outside_default,
     })
 }
 

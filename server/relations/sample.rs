@@ -146,6 +146,9 @@ pub struct Sample {
     pub left_out_sigma_definition: usize,
     /// Galaxies that matched the filter but lack a value the relation needs.
     pub left_out_missing: usize,
+    /// Reverberation and single-epoch masses that matched the rest of the filter but were left
+    /// out by the choice of mass kinds (dynamical only by default, docs/methods.md §4.7).
+    pub left_out_virial: usize,
     /// Upper limits that matched the filter and had every value but were left out
     /// ([`LimitsChoice::Exclude`], asked or made so for an estimator that cannot use them:
     /// `SampleFilter::for_method`).
@@ -209,10 +212,17 @@ pub fn build_sample(
             && filter
                 .centre_kind
                 .is_none_or(|c| row.centre_kind == c.as_str())
-            && filter.admits_method(method)
             && filter.activity.is_none_or(|a| row.activity == a.as_str())
             && (filter.soi == SoiChoice::All || resolved == Some(true));
         if !tags_match {
+            continue;
+        }
+        // A virial mass the choice of mass kinds leaves out is counted only if it would have
+        // entered otherwise; any other reason to leave it out is not counted.
+        let virial_out = !filter.admits_method(method);
+        if virial_out
+            && (filter.mass_method.is_some() || !crate::catalog::model::is_virial_method(method))
+        {
             continue;
         }
         let mbulge_method = row.mbulge_method.as_deref().unwrap_or("");
@@ -226,7 +236,7 @@ pub fn build_sample(
             )
         });
         let Some(y) = log_mbh else {
-            sample.left_out_missing += 1;
+            sample.left_out_missing += usize::from(!virial_out);
             continue;
         };
         let upper_limit = row.mbh_upper_limit.unwrap_or(false);
@@ -273,24 +283,24 @@ pub fn build_sample(
             Relation::SigmaBulgePlane => match mbulge_value {
                 Some(v) => Some(v),
                 None => {
-                    sample.left_out_missing += 1;
+                    sample.left_out_missing += usize::from(!virial_out);
                     continue;
                 }
             },
             _ => None,
         };
         let Some((x, x_err, kind_x)) = first else {
-            sample.left_out_missing += 1;
+            sample.left_out_missing += usize::from(!virial_out);
             continue;
         };
         if relation.uses_sigma()
             && row.sigma_definition.as_deref() != Some(filter.sigma.definition().as_str())
         {
-            sample.left_out_sigma_definition += 1;
+            sample.left_out_sigma_definition += usize::from(!virial_out);
             continue;
         }
         if upper_limit && filter.limits == LimitsChoice::Exclude {
-            sample.left_out_limits += 1;
+            sample.left_out_limits += usize::from(!virial_out);
             continue;
         }
         let mut point = if upper_limit {
@@ -311,6 +321,10 @@ pub fn build_sample(
             point = point
                 .with_x2(x2, x2_err)
                 .with_x2_covariances(x2_y_cov, x_x2_cov);
+        }
+        if virial_out {
+            sample.left_out_virial += 1;
+            continue;
         }
         sample.points.push(point);
         sample.members.push(Member {

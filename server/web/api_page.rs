@@ -102,7 +102,7 @@ const ENDPOINTS: &[Endpoint] = &[
         "GET",
         "/api/v1/relations/{relation}",
         READ,
-        "The current fit of one relation for the estimator (method), sample filter (morphology, bulge_kind, centre_kind, mass_method, soi, sigma_definition, limits) and pivots (pivot, pivot2) asked, as on the relation page: parameters with errors, covariance, N, catalog version, fitted_at. Sends an ETag; If-None-Match with it answers 304 while the catalog is unchanged.",
+        "The current fit of one relation for the estimator (method), sample filter (morphology, bulge_kind, centre_kind, mass_method, masses, activity, soi, sigma_definition, limits) and pivots (pivot, pivot2) asked, as on the relation page: parameters with errors, covariance, N, catalog version, fitted_at. Sends an ETag; If-None-Match with it answers 304 while the catalog is unchanged.",
         Example::Get("/api/v1/relations/m_sigma?method=conditional&limits=exclude"),
     ),
     Endpoint(

@@ -353,6 +353,7 @@ pub(crate) struct GalaxyShowPage {
     computing: Option<String>,
     /// Said when a fit without the galaxy is the one-step approximation.
     approximate: Option<String>,
+    outside_default: Option<String>,
     name: String,
     morphology: &'static str,
     bulge_kind: &'static str,
@@ -689,6 +690,12 @@ async fn galaxy_page(
             format!(
                 "Computing: the fits of {} without this galaxy are under way; this page reloads itself.",
                 left_out.computing.join(", ")
+            )
+        }),
+        outside_default: (!left_out.outside_default.is_empty()).then(|| {
+            format!(
+                "Its black-hole mass is a reverberation or single-epoch mass, which the default fits of {} leave out (a virial mass rests on a virial factor calibrated on the quiescent relation): it is placed against the fit of the dynamical masses, with its mass at the adopted ⟨f⟩.",
+                left_out.outside_default.join(", ")
             )
         }),
         approximate: (!left_out.approximate.is_empty()).then(|| {

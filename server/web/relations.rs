@@ -48,13 +48,19 @@ pub(crate) enum Grouping {
     Morphology,
     BulgeKind,
     Method,
+    Activity,
 }
 
 impl Grouping {
-    const ALL: [(Grouping, &'static str, &'static str); 3] = [
+    const ALL: [(Grouping, &'static str, &'static str); 4] = [
         (Grouping::Morphology, "morphology", "morphology"),
         (Grouping::BulgeKind, "bulge_kind", "bulge kind"),
         (Grouping::Method, "method", "mass method"),
+        (
+            Grouping::Activity,
+            "activity",
+            "nucleus (quiescent or active)",
+        ),
     ];
 
     fn as_str(self) -> &'static str {
@@ -70,6 +76,7 @@ impl Grouping {
             Grouping::Morphology => &m.morphology,
             Grouping::BulgeKind => &m.bulge_kind,
             Grouping::Method => &m.mass_method,
+            Grouping::Activity => &m.activity,
         }
     }
 
@@ -79,6 +86,7 @@ impl Grouping {
             Grouping::Morphology => Morphology::pairs(),
             Grouping::BulgeKind => BulgeKind::pairs(),
             Grouping::Method => MassMethod::pairs(),
+            Grouping::Activity => crate::catalog::model::Activity::pairs(),
         }
     }
 }
@@ -151,7 +159,7 @@ impl Default for RelationQuery {
     }
 }
 
-const RELATION_PARAMS: &str = "method, morphology, bulge_kind, centre_kind, mass_method, soi, sigma_definition, limits, pivot, pivot2, group, versus, offset_a, offset_b, replicates, steps";
+const RELATION_PARAMS: &str = "method, morphology, bulge_kind, centre_kind, mass_method, masses, activity, soi, sigma_definition, limits, pivot, pivot2, group, versus, offset_a, offset_b, replicates, steps";
 
 /// A run size as typed (replicates or steps), checked against the kind's range.
 fn run_size(kind: RunKind, value: &str) -> Result<usize, String> {
@@ -764,6 +772,8 @@ pub(crate) struct Controls {
     bulge_options: Vec<OptionView>,
     centre_options: Vec<OptionView>,
     mass_method_options: Vec<OptionView>,
+    masses_options: Vec<OptionView>,
+    activity_options: Vec<OptionView>,
     soi_resolved: bool,
     limits_options: Vec<OptionView>,
     uses_sigma: bool,
@@ -800,6 +810,7 @@ pub(crate) struct SampleSummary {
     n_detections: usize,
     n_limits: usize,
     sigma_note: Option<String>,
+    virial_note: Option<String>,
     missing_note: Option<String>,
     fit_note: String,
 }
@@ -1768,6 +1779,14 @@ impl Controls {
                 MassMethod::pairs(),
                 filter.mass_method.map(MassMethod::as_str),
             ),
+            masses_options: crate::relations::MassesChoice::ALL
+                .into_iter()
+                .map(|c| option(c.as_str(), c.label(), filter.masses == c))
+                .collect(),
+            activity_options: enum_options(
+                crate::catalog::model::Activity::pairs(),
+                filter.activity.map(crate::catalog::model::Activity::as_str),
+            ),
             soi_resolved: filter.soi == crate::relations::SoiChoice::Resolved,
             limits_options: [
                 (LimitsChoice::Auto, "as the estimator allows"),
@@ -1836,6 +1855,17 @@ impl SampleSummary {
                     )
                 },
             ),
+            virial_note: (sample.left_out_virial > 0).then(|| {
+                format!(
+                    "{} left out: {}; a virial mass is calibrated on this relation, so fitting it is circular (choose Masses to include them).",
+                    count(
+                        sample.left_out_virial,
+                        "reverberation or single-epoch mass",
+                        "reverberation or single-epoch masses"
+                    ),
+                    q.fit.filter.masses.label()
+                )
+            }),
             missing_note: (sample.left_out_missing > 0).then(|| {
                 if sample.left_out_missing == 1 {
                     "1 galaxy matching the selection lacks a value this relation needs.".to_owned()

@@ -7,6 +7,7 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod agn_relations;
 mod analysis;
 mod api;
 mod api_fuzz;
