@@ -393,7 +393,12 @@ pub async fn calibration(catalog: &Catalog, ask: CalibrationAsk) -> AppResult<Ca
     let outcome = if !ask.slope.available() {
         Err(JOINT_NOT_AVAILABLE.to_owned())
     } else if agn.len() < MIN_AGN {
-        Err(too_few_sentence(&ask, snapshot.version, agn.len(), &left_out))
+        Err(too_few_sentence(
+            &ask,
+            snapshot.version,
+            agn.len(),
+            &left_out,
+        ))
     } else {
         let points: Vec<AgnPoint> = agn
             .iter()
@@ -458,7 +463,9 @@ fn too_few_sentence(ask: &CalibrationAsk, version: i64, n: usize, left: &AgnLeft
             left.words()
         ));
     } else {
-        s.push_str(" Submit reverberation masses with their lag and line width, and σ_e for their hosts.");
+        s.push_str(
+            " Submit reverberation masses with their lag and line width, and σ_e for their hosts.",
+        );
     }
     s
 }

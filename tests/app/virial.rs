@@ -242,9 +242,7 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     let shown = cell_number(&page, "log-f");
     assert!((shown - log_f).abs() <= 0.005, "page {shown}, API {log_f}");
     assert!(page.contains(&format!("<span id=\"n-agn\">{N_AGN}</span>")));
-    assert!(page.contains(&format!(
-        "<span id=\"n-quiescent\">{N_QUIESCENT}</span>"
-    )));
+    assert!(page.contains(&format!("<span id=\"n-quiescent\">{N_QUIESCENT}</span>")));
     assert!(page.contains("<svg"), "the chart is drawn");
     assert!(page.contains("Grier et al. 2013"), "published calibrations");
     assert!(
@@ -263,14 +261,19 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     let refused = member
         .post(
             "/virial-factor/adopt",
-            &[("width_definition", "sigma_line"), ("version", &before.to_string())],
+            &[
+                ("width_definition", "sigma_line"),
+                ("version", &before.to_string()),
+            ],
         )
         .await;
     assert_eq!(refused.status, 403, "{}", refused.body);
 
     // An admin adopts it: a new version, and the page confirms it.
     let mut admin = app.login_as(Role::Admin).await;
-    let form = admin.get("/virial-factor?width_definition=sigma_line").await;
+    let form = admin
+        .get("/virial-factor?width_definition=sigma_line")
+        .await;
     assert!(
         form.body.contains("Adopt this calibration</button>"),
         "{}",
@@ -292,10 +295,15 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     let after = history::current_version(&app.pool).await.unwrap();
     assert_eq!(after, before + 1);
     let location = adopted.header("location");
-    assert!(location.ends_with(&format!("adopted={after}")), "{location}");
+    assert!(
+        location.ends_with(&format!("adopted={after}")),
+        "{location}"
+    );
     let confirmed = admin.get(&location).await;
     assert!(
-        confirmed.body.contains(&format!("catalog version {after} rescales")),
+        confirmed
+            .body
+            .contains(&format!("catalog version {after} rescales")),
         "{}",
         confirmed.body
     );
@@ -306,7 +314,10 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     let stale = admin
         .post(
             "/virial-factor/adopt",
-            &[("width_definition", "sigma_line"), ("version", &before.to_string())],
+            &[
+                ("width_definition", "sigma_line"),
+                ("version", &before.to_string()),
+            ],
         )
         .await;
     assert_eq!(stale.status, 409, "{}", stale.body);
@@ -373,9 +384,7 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     assert!((f["old_log_f"].as_f64().unwrap() - old_log_f).abs() < 1e-12);
     assert!((f["new_log_f"].as_f64().unwrap() - log_f).abs() < 1e-12);
     assert_eq!(f["adopted_by"], "test-admin");
-    let page = app
-        .ok(&format!("/changes?from={before}&to={after}"))
-        .await;
+    let page = app.ok(&format!("/changes?from={before}&to={after}")).await;
     assert!(page.contains("Virial factors adopted"), "{page}");
     assert!(page.contains("test adoption"), "{page}");
 }
@@ -402,11 +411,17 @@ async fn too_few_agn_are_said_with_what_is_missing_and_bad_choices_are_refused()
         .await
         .json();
     assert!(
-        joint["problem"].as_str().unwrap().contains("not available yet"),
+        joint["problem"]
+            .as_str()
+            .unwrap()
+            .contains("not available yet"),
         "{joint}"
     );
     let bad = app
-        .get_with_token("/api/v1/virial-factor?width_definition=fwhm2&colour=red", None)
+        .get_with_token(
+            "/api/v1/virial-factor?width_definition=fwhm2&colour=red",
+            None,
+        )
         .await;
     let problem = bad.problem(422);
     let fields = crate::common::problem_fields(&problem);
