@@ -332,7 +332,7 @@ pub async fn calibration(catalog: &Catalog, ask: CalibrationAsk) -> AppResult<Ca
     let relation = Relation::MSigma;
     // The quiescent sample exactly as the default M–σ page builds it, cut to a bulge kind.
     let choice = FitChoice::default();
-    let mut filter = choice.filter.clone();
+    let mut filter = choice.filter;
     filter.bulge_kind = ask.bulge_kind;
     let filter = filter.for_method(choice.method);
     let pivot = choice.pivots(&relation).0;
@@ -526,7 +526,7 @@ pub const PUBLISHED: [Published; 6] = [
         paper: "Ho & Kim 2014",
         sample: "pseudobulges",
         width: WidthDefinition::SigmaLine,
-        log_f: 0.505_149_978_319_906_1, // log10 3.2
+        log_f: 0.505_149_978_319_906, // log10 3.2
         quoted: "⟨f⟩ = 3.2 ± 0.7",
         provenance: "abstract",
     },

@@ -91,7 +91,7 @@ async fn enter(
 /// A deterministic scatter of ±`size` about zero, alternating, with mean zero over an even
 /// count.
 fn wiggle(i: usize, size: f64) -> f64 {
-    if i % 2 == 0 { size } else { -size }
+    if i.is_multiple_of(2) { size } else { -size }
 }
 
 /// The invented catalog: quiescent galaxies with stellar-dynamical masses on the relation
