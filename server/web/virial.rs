@@ -154,8 +154,8 @@ fn chart_of(view: &CalibrationView, gq: &str) -> AppResult<String> {
         scatter_dex: 0.0,
     });
     let agn_label = match &view.outcome {
-        Ok(_) => format!("AGN: log VP + calibrated log ⟨f⟩ ({shift:.2})"),
-        Err(_) => format!("AGN: log VP + adopted log ⟨f⟩ ({shift:.2})"),
+        Ok(_) => format!("AGN at log VP + {shift:.2}"),
+        Err(_) => format!("AGN at log VP + {shift:.2} (adopted)"),
     };
     virial_calibration_svg(
         &format!(
