@@ -55,10 +55,7 @@ async fn default_fits_leave_virial_masses_out_and_say_so_and_including_them_is_a
     assert_eq!(n(&with), n(&default) + k, "{with}");
     // A different sample is a different fit to cite, and a different result.
     assert_ne!(with["fit_id"], default["fit_id"]);
-    assert_ne!(
-        with["fit"]["alpha_log_mbh"],
-        default["fit"]["alpha_log_mbh"]
-    );
+    assert_ne!(with["fit"]["alpha_log_mbh"], default["fit"]["alpha_log_mbh"]);
     assert!(with["fit"]["alpha_log_mbh"].is_f64());
 
     // Choosing one mass method overrides the kinds: reverberation alone.
