@@ -350,8 +350,22 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
         with_agn_before["alpha_log_mbh"], with_agn_after["alpha_log_mbh"],
         "a fit with reverberation masses moves"
     );
-    // The old version still serves the old masses.
+    // The old version still serves the old masses, and its calibration, which can no longer
+    // be adopted.
     assert_eq!(masses(&app, before).await, masses_before);
+    let past = app
+        .get_with_token(&format!("/api/v1/virial-factor?version={before}"), None)
+        .await
+        .json();
+    assert_eq!(past["calibration"]["log_f"], api["calibration"]["log_f"]);
+    assert_eq!(past["adopted_log_f"], api["adopted_log_f"]);
+    let past_page = admin.get(&format!("/virial-factor?version={before}")).await;
+    assert!(
+        past_page.body.contains("id=\"adopt-past\""),
+        "{}",
+        past_page.body
+    );
+    assert!(!past_page.body.contains("Adopt this calibration</button>"));
 
     // The calibration at the new version says what is adopted now.
     let now = app
