@@ -12,8 +12,15 @@ Output (next to this script):
                             dispersion, bulge mass, bulge luminosity)
 
 Run:  python3 seed-data/generate.py [--seed 20261202]
-The output is a pure function of the seed (random.Random(seed), no other source of
-randomness, no clock, no hash ordering).
+The output is a pure function of the seed (random.Random(seed) for the first wave,
+random.Random(seed + 1) for the second; no other source of randomness, no clock, no
+hash ordering).
+
+Two waves: the first (`build`, the model just below) makes 96 galaxies and their rows;
+the second (`add_agn`, "Second wave" further down) draws from its own generator after
+the first is complete, so the first wave's values, names and planted features are the
+same with or without it. The second wave appends the galaxy column `activity` and the
+ten virial measurement columns, and adds 36 active nuclei.
 
 Model (all relations are invented for the demo; they are not published fits)
 ---------------------------------------------------------------------------
@@ -105,6 +112,52 @@ Typed values: 2-3 significant digits, in the forms "2.4e8 +0.6e8/-0.5e8",
 Notes: "planted outlier", "planted: sphere of influence not resolved",
     "sphere of influence not resolved" (natural), "superseded by <ref>;
     seeing-limited", "source used an older distance".
+
+Second wave (random.Random(seed + 1); all invented)
+---------------------------------------------------
+Activity of the first wave (fixed counts): the 7 reverberation hosts seyfert1; 4 of the
+    9 maser hosts seyfert2; of the other spirals and lenticulars 5 seyfert2 and 6 liner;
+    3 core ellipticals radio_galaxy; 4 of the rest unknown; the rest quiescent. Their
+    7 reverberation masses stay typed, with no virial factor recorded (shown as published,
+    never rescaled).
+Reverberation AGN: 26 Seyfert 1 (15 S, 9 S0, 2 E); bulge kind S 0.45/0.45/0.10, S0
+    0.60/0.30/0.10 classical/pseudo/unknown, E classical; centre kind by the first wave's
+    rules.
+    true log sigma_e ~ N(log10 120, 0.10), redrawn until 60 <= sigma_e <= 350;
+    true log M = 8.30 + 5.0 log10(sigma_e / 200) + offset + N(0, eps), the demo M-sigma
+        relation with the first wave's offsets and scatters, redrawn until 4.0..10.9;
+    log f_i = 0.70 + N(0, 0.20) (demo truth log <f> = 0.70, not the service's 0.64);
+    true log VP = log M - log f_i;
+    log lambda L(5100) ~ U(42.6, 44.6) erg/s, written with N(0, 0.03) noise, 2 decimals;
+    true lag: log tau[d] = 1.527 + 0.533 log10(L / 1e44) + N(0, 0.13) (Bentz et al. 2013
+        R-L relation; tau in days = R in light-days);
+    true sigma_line (rms spectrum) from VP = c tau sigma_line^2 / G with
+        c = 299792.458 km/s, GM_sun = 1.3271244e20 m^3/s^2, 1 day = 86400 s;
+    observed lag = true x (1 + N(0, e_tau)), e_tau ~ U(0.08, 0.20), redrawn if below 0.3 x
+        true, 3 significant digits; error e_tau x lag (2 significant digits), for 10 of
+        them asymmetric "+a/-b" with a = U(1.0, 1.4) and b = U(0.7, 1.0) times that;
+    observed width = true x (1 + N(0, e_w)), e_w ~ U(0.04, 0.08), rounded to km/s,
+        error e_w x width;
+    value EMPTY (the service computes the virial product), line Hbeta, width_definition
+        sigma_line, width_spectrum rms; 4 of them instead typed as published masses
+        5.5 x VP_obs (virial_factor 5.5) with the propagated error (at least 0.05 dex),
+        the lag and width kept;
+    sigma_e observed as in the first wave; distance log-uniform 15-150 Mpc, hubble_flow
+        with p = 0.75, else tully_fisher (spirals) or sbf; 12 of them a bulge mass from
+        the first wave's M_BH-M_bulge relation at the true mass (dynamical p = 0.3);
+        resolution empty; source distance = adopted distance.
+Single-epoch AGN: 10; log lambda L(5100) ~ U(43.0, 45.3) (2 decimals), FWHM(Hbeta) ~
+    U(1500, 6000) km/s (to 10 km/s), error U(0.05, 0.10) of it; the 3 most luminous
+    quasar, the rest seyfert1; hosts: quasars E/S0/S 0.6/0.2/0.2, Seyferts S/S0/E
+    0.6/0.3/0.1, bulge classical for E, else unknown/classical 0.6/0.4; centre unknown;
+    distance log-uniform 60-400 Mpc, hubble_flow; value EMPTY, width_definition fwhm,
+    width_spectrum single; 7 calibration vp06, 3 r_l_bentz13; source distance = adopted;
+    5 with an observed sigma_e, whose true value puts the host on the demo M-sigma relation
+    at the vp06 mass of its spectrum, N(0, 0.07) dex in sigma.
+    vp06: log M = 6.91 + 2 log10(FWHM / 1000 km/s) + 0.50 log10(L / 1e44);
+    r_l_bentz13: log VP = log10(c tau FWHM^2 / G), tau from the Bentz relation.
+References: invented surnames, ending in "(demo)"; sigma and bulge masses from the first
+    wave's pools.
 """
 
 from __future__ import annotations
@@ -140,11 +193,17 @@ SIGMA_C_FACTOR = 8.0**0.066  # sigma(r_e/8) / sigma_e
 GALAXY_HEADER = [
     "name", "morphology", "bulge_kind", "centre_kind",
     "distance_mpc", "distance_err_mpc", "distance_method",
+    "activity",  # second wave
 ]
 MEASUREMENT_HEADER = [
     "galaxy", "quantity", "value", "scale", "method", "sigma_definition", "aperture",
     "band", "source_distance_mpc", "resolution_arcsec", "reference", "adopted", "note",
+    # second wave: the virial cells (server/catalog/virial.rs, VIRIAL_COLUMNS)
+    "line", "width_definition", "width_spectrum", "lag_days", "lag_err_days", "width_km_s",
+    "width_err_km_s", "log_l5100_erg_s", "virial_factor", "calibration",
 ]
+N_FIRST_GALAXY_COLUMNS = 7
+N_FIRST_MEASUREMENT_COLUMNS = 13
 
 # Invented name stems (two syllables, no catalog prefix, no real galaxy's name).
 STEMS_ASCII = [
@@ -747,13 +806,369 @@ def build(seed: int) -> tuple[list[dict], list[dict], dict]:
 
 
 # ----------------------------------------------------------------------------
+# The second wave: activity classes and active nuclei (random.Random(seed + 1))
+# ----------------------------------------------------------------------------
+
+# The constants the service uses for virial products (server/astro/constants.rs).
+C_KM_S = 299792.458  # speed of light, km/s
+GM_SUN_M3_S2 = 1.3271244e20  # nominal solar mass parameter, m^3 s^-2
+SECONDS_PER_DAY = 86400.0
+# Bentz et al. 2013 radius-luminosity relation (Hbeta): log R[lt-day] = K + alpha log(L/1e44).
+BENTZ_K, BENTZ_ALPHA = 1.527, 0.533
+# Vestergaard & Peterson 2006 single-epoch calibration (Hbeta, FWHM): a, b.
+VP06_ZERO, VP06_EXPONENT = 6.91, 0.50
+# The service's starting log <f> (virial_factor rows of version 0, migration 9).
+SERVICE_LOG_F = {"sigma_line": 0.64, "fwhm": 0.05}
+
+DEMO_LOG_F = 0.70  # demo truth of log <f> for sigma_line (invented, not the service's 0.64)
+DEMO_LOG_F_SCATTER = 0.20  # spread of the individual log f_i, dex
+RL_SCATTER = 0.13  # scatter of the true lag about the radius-luminosity relation, dex
+TYPED_VIRIAL_FACTOR = 5.5  # the linear f the "published" reverberation masses assumed
+
+N_RM_NEW = 26  # new reverberation-mapped Seyfert 1 nuclei
+RM_MORPHOLOGY = ["spiral"] * 15 + ["lenticular"] * 9 + ["elliptical"] * 2
+N_RM_TYPED = 4  # of them typed as published masses with virial_factor 5.5
+N_RM_ASYM = 10  # of them with asymmetric lag errors
+N_RM_BULGE = 12  # of them with a bulge mass
+N_SE = 10  # single-epoch nuclei
+N_SE_QUASAR = 3  # the most luminous single-epoch nuclei are quasars
+N_SE_BENTZ = 3  # single-epoch masses by the radius-luminosity route; the rest vp06
+N_SE_SIGMA = 5  # single-epoch hosts with an observed sigma_e
+
+# Activity of the first wave: fixed counts, drawn from the new generator.
+N_MASER_SEYFERT2 = 4
+N_OTHER_SEYFERT2 = 5
+N_LINER = 6
+N_RADIO = 3
+N_UNKNOWN_ACTIVITY = 4
+
+ACTIVITIES = ("quiescent", "seyfert1", "seyfert2", "liner", "quasar", "radio_galaxy", "unknown")
+
+# server/catalog/virial.rs: VIRIAL_COLUMNS, in this order.
+VIRIAL_COLUMNS = [
+    "line", "width_definition", "width_spectrum", "lag_days", "lag_err_days", "width_km_s",
+    "width_err_km_s", "log_l5100_erg_s", "virial_factor", "calibration",
+]
+
+# Invented name stems for the second wave (not used by the first).
+AGN_STEMS = [
+    "Sandrel", "Carrowen", "Dellisk", "Eskaron", "Fallowin", "Garnesse", "Hethrin",
+    "Jolvane", "Kessamor", "Lorrick", "Nessaly", "Orvelle", "Pryndel", "Rossaly",
+    "Tervoss", "Wyndrel",
+]
+# Invented author surnames for the active-nucleus papers.
+AGN_AUTHORS = [
+    "Quenwick", "Ellinsby", "Vessendal", "Orlandry", "Brackwyn", "Ostervane", "Tharnell",
+    "Ysmark",
+]
+
+
+def virial_product_msun(lag_days: float, width_km_s: float) -> float:
+    """VP = c tau width^2 / G in M_sun, as server/astro/agn.rs computes it."""
+    radius_m = C_KM_S * 1.0e3 * (lag_days * SECONDS_PER_DAY)
+    width_m_s = width_km_s * 1.0e3
+    return radius_m * (width_m_s / GM_SUN_M3_S2) * width_m_s
+
+
+def width_for_product(vp_msun: float, lag_days: float) -> float:
+    """The line width (km/s) that gives the virial product vp_msun at lag_days."""
+    return math.sqrt(vp_msun * GM_SUN_M3_S2 / (C_KM_S * 1.0e3 * lag_days * SECONDS_PER_DAY)) / 1.0e3
+
+
+def bentz_radius_lt_days(log_l: float) -> float:
+    return 10.0 ** (BENTZ_K + BENTZ_ALPHA * (log_l - 44.0))
+
+
+def vp06_log_mass(fwhm_km_s: float, log_l: float) -> float:
+    return VP06_ZERO + 2.0 * math.log10(fwhm_km_s / 1000.0) + VP06_EXPONENT * (log_l - 44.0)
+
+
+def parse_lag_error(text: str, lag: float) -> tuple[float, float]:
+    """(lower, upper) lag errors from "1.2" or "+1.4/-1.1", as the service reads them."""
+    if not text:
+        return 0.0, 0.0
+    if text.startswith("+"):
+        plus, minus = text[1:].split("/-")
+        lo, up = float(minus), float(plus)
+    else:
+        lo = up = float(text)
+    assert 0.0 <= lo < lag and 0.0 <= up < lag, (text, lag)
+    return lo, up
+
+
+def log_vp_errors(lag: float, lag_err: tuple[float, float], width: float,
+                  width_err: float) -> tuple[float, float]:
+    """First-order errors of log VP (dex), as server/catalog/virial.rs propagates them."""
+    ln10 = math.log(10.0)
+    w = 2.0 * width_err / (width * ln10)
+    return math.hypot(lag_err[0] / (lag * ln10), w), math.hypot(lag_err[1] / (lag * ln10), w)
+
+
+def centre_kind_for(rng: random.Random, morph: str, bulge: str, sigma: float) -> str:
+    """The first wave's centre-kind rules (see the docstring)."""
+    if morph == "elliptical" and sigma >= 230.0:
+        return pick(rng, [("core", 0.80), ("power_law", 0.15), ("unknown", 0.05)])
+    if morph == "elliptical":
+        return pick(rng, [("core", 0.15), ("power_law", 0.75), ("unknown", 0.10)])
+    if morph == "lenticular" and bulge == "classical":
+        return pick(rng, [("core", 0.05), ("power_law", 0.60), ("unknown", 0.35)])
+    if morph == "lenticular":
+        return pick(rng, [("power_law", 0.50), ("unknown", 0.50)])
+    return pick(rng, [("power_law", 0.35), ("unknown", 0.65)])
+
+
+def distance_error(rng: random.Random, d: float, method: str) -> float:
+    lo, hi = DIST_ERR_RANGE[method]
+    while True:
+        err = float(fmt_sig(d * rng.uniform(lo, hi), 2))
+        if 0.05 <= err / d <= 0.15:
+            return err
+
+
+def sigma_row(rng: random.Random, name: str, sigma_true: float, refs: list[str]) -> dict:
+    """An observed sigma_e row with the first wave's error model."""
+    frac = rng.uniform(0.03, 0.08)
+    obs = sigma_true * (1.0 + rng.gauss(0.0, frac))
+    return {
+        "galaxy": name, "quantity": "sigma", "kind": "sigma",
+        "sigma_value": round(obs), "sigma_err": max(1, round(obs * frac)),
+        "scale": rng.choice(["", "", "", "linear"]), "method": "",
+        "sigma_definition": "sigma_e", "aperture": "r_e",
+        "band": "", "k": 0, "reference": rng.choice(refs), "adopted": 1, "notes": [],
+        "wave": 2,
+    }
+
+
+def add_agn(seed: int, galaxies: list[dict], rows: list[dict]) -> dict:
+    """Add the activity classes and the invented active nuclei, from random.Random(seed + 1).
+
+    The first wave (`build`) is not touched except for its new `activity` key, so its values,
+    names and planted features stay as they were. Returns the model's truths for the summary.
+    """
+    rng = random.Random(seed + 1)
+    first_refs = make_references(random.Random(seed))  # the first wave's pools, unchanged
+    for g in galaxies:
+        g["wave"] = 1
+        g["activity"] = "quiescent"
+    for r in rows:
+        r["wave"] = 1
+
+    # Activity of the first wave.
+    for g in galaxies:
+        if g["role"] == "reverberation":
+            g["activity"] = "seyfert1"
+    masers = [g for g in galaxies if g["role"] == "maser"]
+    for g in rng.sample(masers, N_MASER_SEYFERT2):
+        g["activity"] = "seyfert2"
+    disks = [g for g in galaxies if g["morphology"] in ("spiral", "lenticular")
+             and g["role"] not in ("maser", "reverberation")]
+    for g in rng.sample(disks, N_OTHER_SEYFERT2):
+        g["activity"] = "seyfert2"
+    for g in rng.sample([g for g in disks if g["activity"] == "quiescent"], N_LINER):
+        g["activity"] = "liner"
+    cores = [g for g in galaxies if g["morphology"] == "elliptical" and g["centre_kind"] == "core"]
+    for g in rng.sample(cores, N_RADIO):
+        g["activity"] = "radio_galaxy"
+    for g in rng.sample([g for g in galaxies if g["activity"] == "quiescent"], N_UNKNOWN_ACTIVITY):
+        g["activity"] = "unknown"
+
+    # Names and references of the second wave.
+    used = {g["name"] for g in galaxies}
+    names: list[str] = []
+    while len(names) < N_RM_NEW + N_SE:
+        stem = rng.choice(AGN_STEMS)
+        name = f"{stem} {rng.randint(1, 399)}"
+        if name in used or sum(x.startswith(stem + " ") for x in names) >= 3:
+            continue
+        used.add(name)
+        names.append(name)
+    authors = AGN_AUTHORS[:]
+    rng.shuffle(authors)
+
+    def ref(author: str, year: int) -> str:
+        if rng.random() < 0.75:
+            return f"{author} et al. {year} (demo)"
+        return f"{author} & {rng.choice([a for a in AGN_AUTHORS if a != author])} {year} (demo)"
+
+    rm_refs = [ref(a, rng.randint(2012, 2025)) for a in authors[:4]]
+    se_refs = [ref(a, rng.randint(2014, 2025)) for a in authors[4:7]]
+    new_galaxies: list[dict] = []
+    new_rows: list[dict] = []
+    truths: dict = {"rm_log_f": [], "rm_names": [], "se_names": []}
+
+    # New reverberation-mapped Seyfert 1 nuclei.
+    morphs = RM_MORPHOLOGY[:]
+    rng.shuffle(morphs)
+    typed = set(rng.sample(range(N_RM_NEW), N_RM_TYPED))
+    asym = set(rng.sample(range(N_RM_NEW), N_RM_ASYM))
+    with_bulge = set(rng.sample(range(N_RM_NEW), N_RM_BULGE))
+    for i, morph in enumerate(morphs):
+        name = names[i]
+        sigma_true = 10.0 ** normal_truncated(rng, math.log10(120.0), 0.10,
+                                              math.log10(60.0), math.log10(350.0))
+        if morph == "elliptical":
+            bulge = "classical"
+        elif morph == "lenticular":
+            bulge = pick(rng, [("classical", 0.60), ("pseudo", 0.30), ("unknown", 0.10)])
+        else:
+            bulge = pick(rng, [("classical", 0.45), ("pseudo", 0.45), ("unknown", 0.10)])
+        centre = centre_kind_for(rng, morph, bulge, sigma_true)
+        pseudo = bulge == "pseudo"
+        offset = (OFFSET_PSEUDO if pseudo else 0.0) + (OFFSET_CORE if centre == "core" else 0.0)
+        mean = MSIGMA_ZERO + MSIGMA_SLOPE * math.log10(sigma_true / MSIGMA_PIVOT_KM_S) + offset
+        logm = normal_truncated(rng, mean, SCATTER_PSEUDO if pseudo else SCATTER_CLASSICAL,
+                                4.0, 10.9)
+        log_f = DEMO_LOG_F + rng.gauss(0.0, DEMO_LOG_F_SCATTER)
+        log_vp = logm - log_f
+        log_l = rng.uniform(42.6, 44.6)
+        lag_true = bentz_radius_lt_days(log_l) * 10.0 ** rng.gauss(0.0, RL_SCATTER)
+        width_true = width_for_product(10.0 ** log_vp, lag_true)
+        # Observed lag and width.
+        e_tau = rng.uniform(0.08, 0.20)
+        while True:
+            lag = float(fmt_sig(lag_true * (1.0 + rng.gauss(0.0, e_tau)), 3))
+            if lag >= 0.3 * lag_true:
+                break
+        if i in asym:
+            up = float(fmt_sig(e_tau * lag * rng.uniform(1.0, 1.4), 2))
+            lo = float(fmt_sig(e_tau * lag * rng.uniform(0.7, 1.0), 2))
+            lag_err = f"+{up:g}/-{lo:g}"
+        else:
+            lag_err = f"{float(fmt_sig(e_tau * lag, 2)):g}"
+        e_w = rng.uniform(0.04, 0.08)
+        width = round(width_true * (1.0 + rng.gauss(0.0, e_w)))
+        width_err = max(1, round(e_w * width))
+        log_l_obs = round(log_l + rng.gauss(0.0, 0.03), 2)
+        # Distance.
+        d = float(fmt_sig(log_uniform(rng, 15.0, 150.0), 3))
+        if rng.random() < 0.75:
+            dmethod = "hubble_flow"
+        else:
+            dmethod = "tully_fisher" if morph == "spiral" else "sbf"
+        new_galaxies.append({
+            "name": name, "morphology": morph, "bulge_kind": bulge, "centre_kind": centre,
+            "distance_mpc": d, "distance_err_mpc": distance_error(rng, d, dmethod),
+            "distance_method": dmethod, "activity": "seyfert1", "wave": 2,
+        })
+        virial = {
+            "line": "Hbeta", "width_definition": "sigma_line", "width_spectrum": "rms",
+            "lag_days": f"{lag:g}", "lag_err_days": lag_err, "width_km_s": str(width),
+            "width_err_km_s": str(width_err), "log_l5100_erg_s": f"{log_l_obs:.2f}",
+            "virial_factor": "", "calibration": "",
+        }
+        vp_obs = virial_product_msun(lag, width)
+        errs = log_vp_errors(lag, parse_lag_error(lag_err, lag), width, width_err)
+        row = {
+            "galaxy": name, "quantity": "bh_mass", "kind": "virial", "method": "reverberation",
+            "value": "", "scale": "", "band": "", "k": 0, "limit": False,
+            "log_obs": math.log10(vp_obs), "err": 0.5 * sum(errs),
+            "reference": rng.choice(rm_refs), "adopted": 1, "notes": [],
+            "source_distance": d, "resolution": None, "virial": virial, "wave": 2,
+        }
+        if i in typed:
+            # A published mass for f = 5.5, typed like the first wave's values.
+            virial["virial_factor"] = f"{TYPED_VIRIAL_FACTOR:g}"
+            row["log_obs"] = math.log10(TYPED_VIRIAL_FACTOR * vp_obs)
+            form = pick(rng, [("asym", 0.30), ("sym_e", 0.30), ("log", 0.25), ("dex", 0.15)])
+            row["value"], row["scale"] = format_log_value(
+                rng, row["log_obs"], max(0.05, row["err"]), form)
+        new_rows.append(row)
+        new_rows.append(sigma_row(rng, name, sigma_true, first_refs["sigma"]))
+        if i in with_bulge:
+            dyn = rng.random() < 0.3
+            err = rng.uniform(0.10, 0.20)
+            mean_bulge = 11.0 + (logm - MBULGE_ZERO) / MBULGE_SLOPE
+            log_bulge = normal_truncated(rng, mean_bulge, MBULGE_SCATTER, 7.0, 12.6)
+            log_obs = log_bulge + rng.gauss(0.0, err)
+            new_rows.append({
+                "galaxy": name, "quantity": "bulge_mass", "kind": "bulge", "log_obs": log_obs,
+                "err": err, "limit": False, "method": "dynamical" if dyn else "photometric",
+                "band": "", "k": 1 if dyn else 2, "reference": rng.choice(first_refs["bulge"]),
+                "adopted": 1, "notes": [], "source_distance": d, "log_src": log_obs,
+                "wave": 2,
+            })
+        truths["rm_log_f"].append(log_f)
+        truths["rm_names"].append(name)
+
+    # Single-epoch nuclei.
+    se = []
+    for j in range(N_SE):
+        se.append({"name": names[N_RM_NEW + j], "log_l": rng.uniform(43.0, 45.3),
+                   "fwhm": rng.uniform(1500.0, 6000.0)})
+    by_l = sorted(se, key=lambda s: -s["log_l"])
+    for s in se:
+        s["activity"] = "quasar" if s in by_l[:N_SE_QUASAR] else "seyfert1"
+    bentz = set(rng.sample(range(N_SE), N_SE_BENTZ))
+    with_sigma = set(rng.sample(range(N_SE), N_SE_SIGMA))
+    for j, s in enumerate(se):
+        name = s["name"]
+        if s["activity"] == "quasar":
+            morph = pick(rng, [("elliptical", 0.6), ("lenticular", 0.2), ("spiral", 0.2)])
+        else:
+            morph = pick(rng, [("spiral", 0.6), ("lenticular", 0.3), ("elliptical", 0.1)])
+        bulge = "classical" if morph == "elliptical" else pick(
+            rng, [("unknown", 0.6), ("classical", 0.4)])
+        d = float(fmt_sig(log_uniform(rng, 60.0, 400.0), 3))
+        new_galaxies.append({
+            "name": name, "morphology": morph, "bulge_kind": bulge, "centre_kind": "unknown",
+            "distance_mpc": d, "distance_err_mpc": distance_error(rng, d, "hubble_flow"),
+            "distance_method": "hubble_flow", "activity": s["activity"], "wave": 2,
+        })
+        fwhm = round(s["fwhm"], -1)
+        fwhm_err = max(1, round(fwhm * rng.uniform(0.05, 0.10)))
+        log_l = round(s["log_l"], 2)
+        calibration = "r_l_bentz13" if j in bentz else "vp06"
+        if calibration == "vp06":
+            log_m = vp06_log_mass(fwhm, log_l)
+        else:
+            log_m = math.log10(virial_product_msun(bentz_radius_lt_days(log_l), fwhm))
+        new_rows.append({
+            "galaxy": name, "quantity": "bh_mass", "kind": "virial", "method": "single_epoch",
+            "value": "", "scale": "", "band": "", "k": 0, "limit": False, "log_obs": log_m,
+            "err": None, "reference": rng.choice(se_refs), "adopted": 1, "notes": [],
+            "source_distance": d, "resolution": None, "wave": 2,
+            "virial": {
+                "line": "Hbeta", "width_definition": "fwhm", "width_spectrum": "single",
+                "lag_days": "", "lag_err_days": "", "width_km_s": f"{fwhm:g}",
+                "width_err_km_s": str(fwhm_err), "log_l5100_erg_s": f"{log_l:.2f}",
+                "virial_factor": "", "calibration": calibration,
+            },
+        })
+        if j in with_sigma:
+            # The host sits on the demo M-sigma relation at the vp06 mass of its spectrum.
+            log_m_model = vp06_log_mass(fwhm, log_l)
+            log_sigma = (math.log10(MSIGMA_PIVOT_KM_S) + (log_m_model - MSIGMA_ZERO) / MSIGMA_SLOPE
+                         + rng.gauss(0.0, 0.07))
+            sigma_true = min(350.0, max(60.0, 10.0 ** log_sigma))
+            new_rows.append(sigma_row(rng, name, sigma_true, first_refs["sigma"]))
+        truths["se_names"].append(name)
+
+    # Write the new sigma values (the first wave's rows already have theirs).
+    for r in new_rows:
+        if r["kind"] == "sigma":
+            r["value"] = f"{r['sigma_value']} {pm(rng)} {r['sigma_err']}"
+        elif r["kind"] == "bulge":
+            form = pick(rng, [("sym_e", 0.30), ("sym_x", 0.15), ("asym", 0.15), ("log", 0.25),
+                              ("dex", 0.15)])
+            r["value"], r["scale"] = format_log_value(rng, r["log_src"], r["err"], form)
+
+    galaxies.extend(new_galaxies)
+    rows.extend(new_rows)
+    galaxies.sort(key=lambda g: name_key(g["name"]))
+    quantity_order = {"bh_mass": 0, "sigma": 1, "bulge_mass": 2, "bulge_luminosity": 3}
+    rows.sort(key=lambda r: (name_key(r["galaxy"]), quantity_order[r["quantity"]],
+                             -r["adopted"]))
+    return truths
+
+
+# ----------------------------------------------------------------------------
 # Output and self-checks
 # ----------------------------------------------------------------------------
 
 def galaxy_record(g: dict) -> list[str]:
     return [g["name"], g["morphology"], g["bulge_kind"], g["centre_kind"],
             fmt_sig(g["distance_mpc"], 3), fmt_sig(g["distance_err_mpc"], 2),
-            g["distance_method"]]
+            g["distance_method"], g["activity"]]
 
 
 def measurement_record(r: dict) -> list[str]:
@@ -765,7 +1180,7 @@ def measurement_record(r: dict) -> list[str]:
         fmt_sig(src, 3) if src is not None else "",
         (f"{res:g}" if res is not None else ""),
         r["reference"], str(r["adopted"]), "; ".join(r["notes"]),
-    ]
+    ] + [r.get("virial", {}).get(c, "") for c in VIRIAL_COLUMNS]
 
 
 def check(galaxies: list[dict], rows: list[dict], gal_csv: list[list[str]],
@@ -921,6 +1336,200 @@ def check(galaxies: list[dict], rows: list[dict], gal_csv: list[list[str]],
     return counts
 
 
+def check_agn(galaxies: list[dict], rows: list[dict], gal_csv: list[list[str]],
+              meas_csv: list[list[str]]) -> Counter:
+    """Assert what the second wave promises, over the whole catalog; return its counts."""
+    assert GALAXY_HEADER[N_FIRST_GALAXY_COLUMNS:] == ["activity"]
+    assert MEASUREMENT_HEADER[N_FIRST_MEASUREMENT_COLUMNS:] == VIRIAL_COLUMNS
+    names = [g[0] for g in gal_csv]
+    assert len(set(names)) == len(names), "names must be unique"
+    for name in names:
+        assert name_is_allowed(name), f"forbidden name: {name}"
+        assert re.fullmatch(r"[^\W\d_]+ \d+", name), name
+    counts: Counter = Counter()
+    gal = {g[0]: g for g in gal_csv}
+    for g, rec in zip(galaxies, gal_csv):
+        assert len(rec) == len(GALAXY_HEADER) and rec[0] == g["name"]
+        assert rec[7] in ACTIVITIES, rec
+        counts["activity_" + rec[7]] += 1
+        if g["wave"] == 1:
+            if g["role"] == "reverberation":
+                assert rec[7] == "seyfert1", rec
+            continue
+        counts["new_galaxies"] += 1
+        assert rec[7] in ("seyfert1", "quasar"), rec
+        assert rec[1] in ("elliptical", "lenticular", "spiral")
+        assert rec[2] in ("classical", "pseudo", "unknown")
+        assert rec[3] in ("core", "power_law", "unknown")
+        assert rec[1] != "elliptical" or rec[2] == "classical", rec
+        assert rec[3] != "core" or rec[2] == "classical", rec
+        d, e = float(rec[4]), float(rec[5])
+        assert 15.0 <= d <= 400.0 and 0.05 <= e / d <= 0.15 and rec[6] in DIST_ERR_RANGE, rec
+
+    adopted: Counter = Counter()
+    quantities: dict[str, set] = {}
+    for r, rec in zip(rows, meas_csv):
+        assert len(rec) == len(MEASUREMENT_HEADER), rec
+        assert rec[0] in gal and rec[10].endswith("(demo)"), rec
+        quantities.setdefault(rec[0], set()).add(rec[1])
+        adopted[(rec[0], rec[1])] += rec[11] == "1"
+        g = gal[rec[0]]
+        virial = dict(zip(VIRIAL_COLUMNS, rec[N_FIRST_MEASUREMENT_COLUMNS:]))
+        is_virial = rec[1] == "bh_mass" and rec[4] in ("reverberation", "single_epoch")
+        if not is_virial or r["wave"] == 1:
+            # The first wave's reverberation masses stay typed, with no recorded factor.
+            assert not any(virial.values()), rec
+        if r["wave"] == 1:
+            continue
+        assert rec[11] == "1" and rec[12] == "" and rec[9] == "", rec
+        if rec[1] == "sigma":
+            m = re.fullmatch(r"(\d+) (?:±|\+/-) (\d+)", rec[2])
+            assert m and rec[5] == "sigma_e" and rec[6] == "r_e" and rec[8] == "", rec
+            s, e = int(m.group(1)), int(m.group(2))
+            assert 20 <= s <= 600 and 0 < e < s and 0.03 * s - 1.0 <= e <= 0.08 * s + 1.0, rec
+            counts["new_sigma"] += 1
+            continue
+        assert float(rec[8]) == float(g[4]), rec  # the second wave quotes the adopted distance
+        if rec[1] == "bulge_mass":
+            p = parse_value(rec[2], rec[3])
+            assert rec[4] in ("dynamical", "photometric") and 6.0 <= p["log"] <= 13.5, rec
+            assert abs(p["log"] - r["log_obs"]) <= 0.02 and 0.0 < p["minus"] <= 2.0, rec
+            counts["new_bulge_mass"] += 1
+            continue
+        assert is_virial, rec
+        assert virial["line"] == "Hbeta", rec
+        width = float(virial["width_km_s"])
+        width_err = float(virial["width_err_km_s"])
+        log_l = float(virial["log_l5100_erg_s"])
+        assert 10.0 <= width <= 100000.0 and 0.0 <= width_err <= width, rec
+        assert 38.0 <= log_l <= 49.0, rec
+        if rec[4] == "reverberation":
+            assert g[7] == "seyfert1", rec
+            assert (virial["width_definition"], virial["width_spectrum"]) == ("sigma_line", "rms")
+            assert virial["calibration"] == "", rec
+            lag = float(virial["lag_days"])
+            assert 0.001 <= lag <= 10000.0, rec
+            lag_err = parse_lag_error(virial["lag_err_days"], lag)
+            counts["rm_asymmetric_lag"] += virial["lag_err_days"].startswith("+")
+            assert 0.035 <= width_err / width <= 0.09, rec  # 4-8 %, rounded to km/s
+            log_vp = math.log10(virial_product_msun(lag, width))
+            errs = log_vp_errors(lag, lag_err, width, width_err)
+            assert 0.0 < min(errs) and max(errs) <= 2.0, rec
+            if rec[2] == "":
+                assert virial["virial_factor"] == "" and rec[3] == "", rec
+                assert abs(log_vp - r["log_obs"]) <= 1e-9, rec
+                stored, assumed_log_f = log_vp, 0.0
+                counts["rm_computed"] += 1
+            else:
+                f = float(virial["virial_factor"])
+                assert 0.01 <= f <= 100.0, rec
+                p = parse_value(rec[2], rec[3])
+                assert not p["limit"] and 0.0 < p["minus"] <= 2.0 and 0.0 < p["plus"] <= 2.0
+                assert abs(p["log"] - (log_vp + math.log10(f))) <= 0.02, rec
+                stored, assumed_log_f = p["log"], math.log10(f)
+                counts["rm_typed"] += 1
+            # As shown: moved to the service's starting factor for sigma_line.
+            shown = stored - assumed_log_f + SERVICE_LOG_F["sigma_line"]
+            assert 3.0 <= stored <= 11.5 and 3.0 <= shown <= 11.5, rec
+        else:
+            assert g[7] in ("seyfert1", "quasar") and g[6] == "hubble_flow", rec
+            assert 60.0 <= float(g[4]) <= 400.0, rec
+            assert rec[2] == "" and rec[3] == "", rec
+            assert virial["lag_days"] == "" and virial["lag_err_days"] == "", rec
+            assert virial["virial_factor"] == "", rec
+            assert (virial["width_definition"], virial["width_spectrum"]) == ("fwhm", "single")
+            assert 1500.0 <= width <= 6000.0 and 43.0 <= log_l <= 45.3, rec
+            if virial["calibration"] == "vp06":
+                log_m = vp06_log_mass(width, log_l)
+            else:
+                assert virial["calibration"] == "r_l_bentz13", rec
+                log_vp = math.log10(virial_product_msun(bentz_radius_lt_days(log_l), width))
+                assert 3.0 <= log_vp <= 11.5, rec
+                log_m = log_vp + SERVICE_LOG_F["fwhm"]
+            assert 6.0 <= log_m <= 10.0, rec
+            counts["se_" + virial["calibration"]] += 1
+            counts["se_" + g[7]] += 1
+    for (gname, q), n in adopted.items():
+        assert n == 1, (gname, q)
+    for g, rec in zip(galaxies, gal_csv):
+        assert "bh_mass" in quantities[rec[0]], rec
+        if "sigma" not in quantities[rec[0]]:
+            assert g["wave"] == 2 and rec[0] in [x[0] for x in meas_csv
+                                                if x[4] == "single_epoch"], rec
+            counts["without_sigma"] += 1
+    assert counts["new_galaxies"] == N_RM_NEW + N_SE
+    assert counts["rm_computed"] >= 20 and counts["rm_typed"] == N_RM_TYPED
+    assert counts["rm_computed"] + counts["rm_typed"] == N_RM_NEW
+    assert counts["rm_asymmetric_lag"] == N_RM_ASYM
+    assert counts["se_vp06"] == N_SE - N_SE_BENTZ and counts["se_r_l_bentz13"] == N_SE_BENTZ
+    assert counts["without_sigma"] == N_SE - N_SE_SIGMA
+    assert counts["new_sigma"] == N_RM_NEW + N_SE_SIGMA
+    assert counts["new_bulge_mass"] == N_RM_BULGE
+    assert counts["activity_seyfert1"] == 7 + N_RM_NEW + N_SE - N_SE_QUASAR
+    assert counts["activity_quasar"] == N_SE_QUASAR
+    assert counts["activity_seyfert2"] == N_MASER_SEYFERT2 + N_OTHER_SEYFERT2
+    assert counts["activity_liner"] == N_LINER
+    assert counts["activity_radio_galaxy"] == N_RADIO
+    assert counts["activity_unknown"] == N_UNKNOWN_ACTIVITY
+    return counts
+
+
+def held_slope_log_f(points: list[tuple[float, float, float, float]], alpha: float,
+                     beta: float, pivot: float) -> tuple[float, float, float]:
+    """log <f>, its error from the AGN alone, and the AGN scatter, with the M-sigma slope held.
+
+    points: (log sigma, its error, log VP, its error). The estimator of server/fit/virial.rs
+    (`calibrate`): z_i = log VP_i - beta (x_i - x0), a = sum(w z) / sum(w),
+    w = 1 / (eps^2 + s_i^2), s_i^2 = err_VP^2 + beta^2 err_x^2, eps by restricted maximum
+    likelihood; log <f> = alpha - a. Only for the summary and the README.
+    """
+    d = [x - pivot for x, _, _, _ in points]
+    z = [y - beta * di for (_, _, y, _), di in zip(points, d)]
+    s2 = [ey * ey + (beta * ex) ** 2 for _, ex, _, ey in points]
+
+    def neg_l(eps: float) -> float:
+        w = [1.0 / (eps * eps + s) for s in s2]
+        sw = sum(w)
+        mean = sum(wi * zi for wi, zi in zip(w, z)) / sw
+        return 0.5 * (math.log(sw) + sum(-math.log(wi) + wi * (zi - mean) ** 2
+                                         for wi, zi in zip(w, z)))
+
+    lo, hi = 0.0, 2.0
+    for _ in range(200):  # golden section (the profile has one maximum here)
+        m1, m2 = hi - 0.618034 * (hi - lo), lo + 0.618034 * (hi - lo)
+        if neg_l(m1) < neg_l(m2):
+            hi = m2
+        else:
+            lo = m1
+    eps = 0.5 * (lo + hi)
+    w = [1.0 / (eps * eps + s) for s in s2]
+    a = sum(wi * zi for wi, zi in zip(w, z)) / sum(w)
+    return alpha - a, math.sqrt(1.0 / sum(w)), eps
+
+
+# The default M-sigma fit of the demo as the server gives it (README.md, "What the fits give").
+README_MSIGMA_ALPHA, README_MSIGMA_BETA = 8.30, 6.03
+
+
+def agn_points(rows: list[dict], meas_csv: list[list[str]]) -> list[tuple[float, ...]]:
+    """(log sigma, err, log VP, err) of the second wave's reverberation nuclei, from the cells."""
+    sigma: dict[str, tuple[float, float]] = {}
+    vp: dict[str, tuple[float, float]] = {}
+    for r, rec in zip(rows, meas_csv):
+        if r["wave"] != 2:
+            continue
+        if rec[1] == "sigma":
+            s, e = (float(x) for x in re.split(r" (?:±|\+/-) ", rec[2]))
+            sigma[rec[0]] = (math.log10(s), e / (s * math.log(10.0)))
+        elif rec[4] == "reverberation":
+            v = dict(zip(VIRIAL_COLUMNS, rec[N_FIRST_MEASUREMENT_COLUMNS:]))
+            lag, width = float(v["lag_days"]), float(v["width_km_s"])
+            errs = log_vp_errors(lag, parse_lag_error(v["lag_err_days"], lag), width,
+                                 float(v["width_err_km_s"]))
+            vp[rec[0]] = (math.log10(virial_product_msun(lag, width)), 0.5 * sum(errs))
+    return [sigma[n] + vp[n] for n in sorted(vp, key=name_key)]
+
+
 def quantity_order_keys() -> tuple[str, ...]:
     return ("bh_mass", "sigma", "bulge_mass", "bulge_luminosity")
 
@@ -932,9 +1541,16 @@ def main() -> int:
     args = parser.parse_args()
 
     galaxies, rows, _ = build(args.seed)
+    truths = add_agn(args.seed, galaxies, rows)
     gal_csv = [galaxy_record(g) for g in galaxies]
     meas_csv = [measurement_record(r) for r in rows]
-    counts = check(galaxies, rows, gal_csv, meas_csv)
+    # The first wave passes its own checks on its own columns, as before the second wave.
+    first = [i for i, g in enumerate(galaxies) if g["wave"] == 1]
+    first_rows = [i for i, r in enumerate(rows) if r["wave"] == 1]
+    counts = check([galaxies[i] for i in first], [rows[i] for i in first_rows],
+                   [gal_csv[i][:N_FIRST_GALAXY_COLUMNS] for i in first],
+                   [meas_csv[i][:N_FIRST_MEASUREMENT_COLUMNS] for i in first_rows])
+    agn = check_agn(galaxies, rows, gal_csv, meas_csv)
 
     args.out_dir.mkdir(parents=True, exist_ok=True)
     with open(args.out_dir / "demo-galaxies.csv", "w", encoding="utf-8", newline="") as f:
@@ -950,7 +1566,9 @@ def main() -> int:
     bulge = Counter(g[2] for g in gal_csv)
     centre = Counter(g[3] for g in gal_csv)
     dmeth = Counter(g[6] for g in gal_csv)
-    print(f"seed {args.seed}: {counts['galaxies']} galaxies, {counts['rows']} measurement rows")
+    print(f"seed {args.seed}: first wave {counts['galaxies']} galaxies, {counts['rows']} "
+          f"measurement rows; with the second wave {len(gal_csv)} galaxies, "
+          f"{len(meas_csv)} rows (counts below: all galaxies, then the first wave)")
     print("  morphology:", dict(sorted(morph.items())))
     print("  bulge kind:", dict(sorted(bulge.items())))
     print("  centre kind:", dict(sorted(centre.items())))
@@ -971,6 +1589,24 @@ def main() -> int:
     print(f"  superseded bh_mass rows {counts['superseded']}")
     print(f"  source distance differs from adopted: {counts['distance_mismatch']}"
           f"/{counts['with_source_distance']} rows")
+    activity = {a: agn["activity_" + a] for a in ACTIVITIES}
+    print(f"  second wave: {agn['new_galaxies']} galaxies; activity {activity}")
+    print(f"  reverberation masses: {agn['rm_computed']} computed from lag and sigma_line, "
+          f"{agn['rm_typed']} typed with f = {TYPED_VIRIAL_FACTOR:g} "
+          f"({agn['rm_asymmetric_lag']} asymmetric lag errors), 7 first-wave typed without f")
+    print(f"  single-epoch masses: vp06 {agn['se_vp06']}, r_l_bentz13 {agn['se_r_l_bentz13']}; "
+          f"seyfert1 {agn['se_seyfert1']}, quasar {agn['se_quasar']}; "
+          f"{agn['without_sigma']} hosts without sigma")
+    mean_f = sum(truths["rm_log_f"]) / len(truths["rm_log_f"])
+    print(f"  drawn log f_i: mean {mean_f:.3f} over {len(truths['rm_log_f'])} "
+          f"(model {DEMO_LOG_F:.2f})")
+    points = agn_points(rows, meas_csv)
+    pivot = math.log10(MSIGMA_PIVOT_KM_S)
+    log_f, err, eps = held_slope_log_f(points, README_MSIGMA_ALPHA, README_MSIGMA_BETA, pivot)
+    log_f_model = held_slope_log_f(points, MSIGMA_ZERO, MSIGMA_SLOPE, pivot)[0]
+    print(f"  held-slope log <f> against the default M-sigma fit (alpha {README_MSIGMA_ALPHA}, "
+          f"beta {README_MSIGMA_BETA}): {log_f:.2f} +/- {err:.2f} (AGN part), "
+          f"eps_AGN {eps:.2f}; at the model slope {MSIGMA_SLOPE}: {log_f_model:.2f}")
     print("  all self-checks passed")
     return 0
 

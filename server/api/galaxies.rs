@@ -143,6 +143,12 @@ pub struct GalaxyRow {
     pub mbulge_err_dex: Option<f64>,
     /// Sphere of influence resolved (θ_infl / resolution ≥ the threshold); null when unknown.
     pub soi_resolved: Option<bool>,
+    /// The nucleus' activity class word (`quiescent`, `seyfert1`, `seyfert2`, `liner`,
+    /// `quasar`, `radio_galaxy`, `unknown`).
+    pub activity: String,
+    /// For a reverberation or single-epoch mass: log10 ⟨f⟩ adopted at this version and applied
+    /// to `log_mbh`; null otherwise, or when the source's factor is not known.
+    pub mbh_log_f: Option<f64>,
     /// The galaxy's API address.
     pub url: String,
 }
@@ -186,6 +192,8 @@ fn row_of(t: &TableRow) -> GalaxyRow {
         log_mbulge: t.log_mbulge_adopted_d,
         mbulge_err_dex: r.mbulge_err_dex,
         soi_resolved: t.resolved,
+        activity: r.activity.clone(),
+        mbh_log_f: r.mbh_log_f,
         url: format!("/api/v1/galaxies/{}", r.slug),
     }
 }
@@ -310,6 +318,70 @@ pub struct MeasurementAnswer {
     /// When it was recorded, RFC 3339 UTC.
     #[schema(format = DateTime)]
     pub created_at: String,
+    /// For a reverberation or single-epoch black-hole mass: what lies behind it.
+    pub virial: Option<VirialAnswer>,
+}
+
+/// What lies behind a reverberation or single-epoch mass (docs/methods.md §4.1–§4.3), and
+/// the mass moved to the adopted mean virial factor.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct VirialAnswer {
+    /// The broad line, e.g. `Hbeta`.
+    pub line: String,
+    /// Width measure: `sigma_line` or `fwhm`.
+    pub width_definition: String,
+    /// Spectrum the width was measured on: `rms`, `mean` or `single`.
+    pub width_spectrum: String,
+    /// Rest-frame lag, days.
+    pub lag_days: Option<f64>,
+    /// Its lower 1σ error, days.
+    pub lag_err_minus_days: Option<f64>,
+    /// Its upper 1σ error, days.
+    pub lag_err_plus_days: Option<f64>,
+    /// Line width, km/s.
+    pub width_km_s: Option<f64>,
+    /// Its 1σ error, km/s.
+    pub width_err_km_s: Option<f64>,
+    /// log10 λL(5100 Å), erg/s, at the source's distance.
+    pub log_l5100_erg_s: Option<f64>,
+    /// log10 of the virial product c τ Δv²/G, M☉, when the lag and the width are known.
+    pub log_virial_product: Option<f64>,
+    /// log10 of the factor the stored mass assumed (0: the stored mass is the virial product;
+    /// null: not known, never rescaled).
+    pub assumed_log_f: Option<f64>,
+    /// log10 ⟨f⟩ adopted at the version read and applied (null when not rescaled).
+    pub applied_log_f: Option<f64>,
+    /// Single-epoch calibration: `vp06` or `r_l_bentz13`; null for reverberation.
+    pub calibration: Option<String>,
+    /// The mass at the adopted ⟨f⟩ and the adopted distance, log10 M☉ (as fitted).
+    pub log_mass_at_adopted_f: f64,
+    /// How the mass follows from the stored one, in a sentence.
+    pub factor_note: String,
+    /// For a single-epoch mass: its calibration scatter, and that no default fit takes it.
+    pub single_epoch_note: Option<String>,
+}
+
+impl From<&crate::relations::agn::VirialDetail> for VirialAnswer {
+    fn from(d: &crate::relations::agn::VirialDetail) -> Self {
+        Self {
+            line: d.line.clone(),
+            width_definition: d.width_definition.as_str().to_owned(),
+            width_spectrum: d.width_spectrum.as_str().to_owned(),
+            lag_days: d.lag_days.map(|l| l.0),
+            lag_err_minus_days: d.lag_days.map(|l| l.1),
+            lag_err_plus_days: d.lag_days.map(|l| l.2),
+            width_km_s: d.width_km_s.map(|w| w.0),
+            width_err_km_s: d.width_km_s.map(|w| w.1),
+            log_l5100_erg_s: d.log_l5100_erg_s,
+            log_virial_product: d.log_virial_product,
+            assumed_log_f: d.assumed_log_f,
+            applied_log_f: d.applied_log_f,
+            calibration: d.calibration.map(|c| c.as_str().to_owned()),
+            log_mass_at_adopted_f: d.log_mass_shown,
+            factor_note: d.factor_sentence(),
+            single_epoch_note: d.single_epoch_flag(),
+        }
+    }
 }
 
 /// An adopted value.
@@ -321,7 +393,8 @@ pub struct AdoptedValue {
     pub band: String,
     /// The measurement adopted.
     pub measurement_id: i64,
-    /// Its value at the adopted distance, log10 in the quantity's unit.
+    /// Its value at the adopted distance, log10 in the quantity's unit; a reverberation or
+    /// single-epoch mass also at the adopted mean virial factor (as fitted).
     pub log_value: f64,
     /// Its symmetric error, dex.
     pub err_dex: f64,
@@ -351,6 +424,11 @@ pub struct GalaxyAnswer {
     pub distance_err_mpc: f64,
     /// How the distance was measured.
     pub distance_method: String,
+    /// The nucleus' activity class word.
+    pub activity: String,
+    /// The Eddington quantities of the adopted black-hole mass, when the galaxy has a
+    /// λL(5100 Å) from a broad-line measurement (docs/methods.md §4.4, §4.5).
+    pub eddington: Option<super::place::EddingtonAnswer>,
     /// The adopted value of each quantity (and band).
     pub adopted: Vec<AdoptedValue>,
     /// The sphere-of-influence check of the adopted mass, when it can be made.
@@ -413,13 +491,16 @@ pub async fn show_galaxy(
             version.map_or(String::new(), |v| format!(" in catalog version {v}"))
         ))
     })?;
+    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record, catalog_version).await?;
+    let virial_of = |id: i64| agn.virial.iter().find(|d| d.measurement_id == id);
     let adopted = record
         .adopted()
         .map(|m| AdoptedValue {
             quantity: m.measurement.quantity.as_str().to_owned(),
             band: m.measurement.band.clone(),
             measurement_id: m.measurement.measurement_id,
-            log_value: m.log_value_at_adopted_distance,
+            log_value: virial_of(m.measurement.measurement_id)
+                .map_or(m.log_value_at_adopted_distance, |d| d.log_mass_shown),
             err_dex: m.measurement.err_dex,
             upper_limit: m.measurement.upper_limit,
         })
@@ -430,7 +511,11 @@ pub async fn show_galaxy(
     let measurements = record
         .measurements
         .iter()
-        .map(MeasurementAnswer::of)
+        .map(|at| {
+            let mut answer = MeasurementAnswer::of(at);
+            answer.virial = virial_of(at.measurement.measurement_id).map(VirialAnswer::from);
+            answer
+        })
         .collect();
     let g = record.galaxy;
     let answer = Json(GalaxyAnswer {
@@ -443,6 +528,11 @@ pub async fn show_galaxy(
         distance_mpc: g.distance_mpc,
         distance_err_mpc: g.distance_err_mpc,
         distance_method: g.distance_method,
+        activity: g.activity,
+        eddington: agn
+            .eddington
+            .as_ref()
+            .map(super::place::EddingtonAnswer::from),
         adopted,
         sphere_of_influence: soi,
         measurements,
@@ -480,6 +570,7 @@ impl MeasurementAnswer {
             state: m.state.clone(),
             adopted: m.adopted,
             created_at: m.created_at.clone(),
+            virial: None,
         }
     }
 }

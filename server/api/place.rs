@@ -69,6 +69,56 @@ pub struct PlaceObject {
     pub distance: Option<String>,
     /// Spatial resolution of the mass measurement in arcsec, e.g. `0.1`.
     pub resolution: Option<String>,
+    /// log10 of λL_λ(5100 Å) in erg/s, 38 to 49, e.g. `44.2`: with a mass, the answer has the
+    /// Eddington quantities.
+    #[schema(example = "44.2")]
+    pub log_l5100_erg_s: Option<String>,
+    /// The nucleus' activity class: `quiescent`, `seyfert1`, `seyfert2`, `liner`, `quasar`,
+    /// `radio_galaxy` or `unknown`.
+    pub activity: Option<String>,
+}
+
+/// The Eddington quantities of a black hole from its mass and λL(5100 Å), as on the galaxy
+/// page and the place page (`relations::agn::eddington`; docs/methods.md §4.4, §4.5).
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct EddingtonAnswer {
+    /// The mass used, log10 M☉.
+    pub log_mass_msun: f64,
+    /// λL(5100 Å) used, log10 erg/s.
+    pub log_l5100_erg_s: f64,
+    /// Bolometric correction at 5100 Å (Richards et al. 2006, from memory).
+    pub bolometric_correction: f64,
+    /// Bolometric luminosity, erg/s.
+    pub l_bol_erg_s: f64,
+    /// Eddington luminosity of the mass, erg/s.
+    pub l_edd_erg_s: f64,
+    /// L_bol / L_Edd.
+    pub eddington_ratio: f64,
+    /// Radiative efficiency of a thin disk around a non-rotating hole (spin 0).
+    pub efficiency_spin_0: f64,
+    /// Radiative efficiency at spin 0.998.
+    pub efficiency_spin_0998: f64,
+    /// Accretion rate at the higher efficiency (spin 0.998), M☉ per Julian year.
+    pub accretion_min_msun_yr: f64,
+    /// Accretion rate at the lower efficiency (spin 0), M☉ per Julian year.
+    pub accretion_max_msun_yr: f64,
+}
+
+impl From<&crate::relations::agn::Eddington> for EddingtonAnswer {
+    fn from(e: &crate::relations::agn::Eddington) -> Self {
+        Self {
+            log_mass_msun: e.log_mass_msun,
+            log_l5100_erg_s: e.log_l5100_erg_s,
+            bolometric_correction: e.bolometric_correction,
+            l_bol_erg_s: e.l_bol_erg_s,
+            l_edd_erg_s: e.l_edd_erg_s,
+            eddington_ratio: e.eddington_ratio,
+            efficiency_spin_0: e.efficiency.0,
+            efficiency_spin_0998: e.efficiency.1,
+            accretion_min_msun_yr: e.accretion_msun_yr.0,
+            accretion_max_msun_yr: e.accretion_msun_yr.1,
+        }
+    }
 }
 
 /// Where the object falls against one relation.
@@ -151,6 +201,10 @@ pub struct PlaceAnswer {
     pub sphere_of_influence: Option<SoiAnswer>,
     /// Why there is no sphere-of-influence check or no relation, when that is so.
     pub note: Option<String>,
+    /// The Eddington quantities, when a mass and `log_l5100_erg_s` were given.
+    pub eddington: Option<EddingtonAnswer>,
+    /// Why there are none although `log_l5100_erg_s` was given.
+    pub eddington_note: Option<String>,
 }
 
 /// The answer for one object.
@@ -193,6 +247,8 @@ impl From<PlaceObject> for ObjectTexts {
             mass: text(o.mass),
             distance: text(o.distance),
             resolution: text(o.resolution),
+            log_l5100_erg_s: text(o.log_l5100_erg_s),
+            activity: text(o.activity),
         }
     }
 }
@@ -279,10 +335,17 @@ fn place_object(
                 .to_owned(),
         );
     }
+    let (eddington, eddington_note) = match values.eddington() {
+        None => (None, None),
+        Some(Ok(e)) => (Some(EddingtonAnswer::from(&e)), None),
+        Some(Err(why)) => (None, Some(why)),
+    };
     PlaceAnswer {
         relations,
         sphere_of_influence: soi,
         note,
+        eddington,
+        eddington_note,
     }
 }
 

@@ -76,6 +76,11 @@ pub struct NewGalaxyCells {
     pub distance_err_mpc: Cell,
     /// How the distance was measured (word).
     pub distance_method: String,
+    /// The nucleus' activity class: `quiescent`, `seyfert1`, `seyfert2`, `liner`, `quasar`,
+    /// `radio_galaxy` or `unknown` (left out: unknown).
+    #[serde(default)]
+    #[schema(example = "seyfert1")]
+    pub activity: Option<String>,
 }
 
 /// The body of `POST /api/v1/submissions`: an existing galaxy by slug (`galaxy`) or a new one
@@ -90,9 +95,16 @@ pub struct SubmissionRequest {
     #[serde(default)]
     pub new_galaxy: Option<NewGalaxyCells>,
     /// Measurements, each an object whose keys are the catalog file's measurement columns
-    /// (`quantity`, `value` required; `scale`, `limit_confidence_sigma`, `method`,
-    /// `sigma_definition`, `aperture`, `band`, `source_distance_mpc`, `resolution_arcsec`,
-    /// `reference`, `note` as needed).
+    /// (`quantity` required, and `value` but for a computed broad-line mass; `scale`,
+    /// `limit_confidence_sigma`, `method`, `sigma_definition`, `aperture`, `band`,
+    /// `source_distance_mpc`, `resolution_arcsec`, `reference`, `note` as needed). A
+    /// reverberation or single-epoch black-hole mass also takes `line`, `width_definition`
+    /// (`sigma_line`, `fwhm`), `width_spectrum` (`rms`, `mean`, `single`), `lag_days`,
+    /// `lag_err_days` (`1.2` or `+1.4/-1.1`), `width_km_s`, `width_err_km_s`,
+    /// `log_l5100_erg_s` (log10 erg/s), `virial_factor` (the linear f the published mass
+    /// assumed) and `calibration` (`vp06`, `r_l_bentz13`; single epoch only): without a
+    /// `value`, the mass is computed from the lag and the width (or the luminosity and the
+    /// width), README "Catalog CSV".
     #[schema(min_items = 1, max_items = 100)]
     pub measurements: Vec<BTreeMap<String, Cell>>,
     /// Note to the reviewer (at most 2000 characters).
@@ -297,6 +309,7 @@ async fn read_request(state: &AppState, request: &SubmissionRequest) -> ApiResul
             ("distance_mpc", g.distance_mpc.text()),
             ("distance_err_mpc", g.distance_err_mpc.text()),
             ("distance_method", g.distance_method.clone()),
+            ("activity", g.activity.clone().unwrap_or_default()),
             (
                 intake::CONFIRM_COLUMN,
                 if request.new_galaxy_confirmed {

@@ -145,8 +145,59 @@ pub(super) fn for_each_record(
 }
 
 /// The columns, in the order export writes them. `row_key` is optional on import (see
-/// [`ImportRow::row`]).
-pub const COLUMNS: [&str; 20] = [
+/// [`ImportRow::row`]); so are `activity` and the broad-line columns (`line` to `calibration`,
+/// `virial::VIRIAL_COLUMNS`), which only reverberation and single-epoch masses fill.
+pub const COLUMNS: [&str; 31] = [
+    "galaxy",
+    "morphology",
+    "bulge_kind",
+    "centre_kind",
+    "distance_mpc",
+    "distance_err_mpc",
+    "distance_method",
+    "activity",
+    "quantity",
+    "value",
+    "scale",
+    "limit_confidence_sigma",
+    "method",
+    "sigma_definition",
+    "aperture",
+    "band",
+    "source_distance_mpc",
+    "resolution_arcsec",
+    "reference",
+    "note",
+    "line",
+    "width_definition",
+    "width_spectrum",
+    "lag_days",
+    "lag_err_days",
+    "width_km_s",
+    "width_err_km_s",
+    "log_l5100_erg_s",
+    "virial_factor",
+    "calibration",
+    "row_key",
+];
+
+/// The columns the export writes as numbers of its own formatting; every other column is text
+/// and passes through [`guard_text_cell`] (`lag_err_days` may read `+1.4/-1.1`).
+const NUMBER_COLUMNS: [&str; 10] = [
+    "distance_mpc",
+    "distance_err_mpc",
+    "limit_confidence_sigma",
+    "source_distance_mpc",
+    "resolution_arcsec",
+    "lag_days",
+    "width_km_s",
+    "width_err_km_s",
+    "log_l5100_erg_s",
+    "virial_factor",
+];
+
+/// The content columns a row's fingerprint has always been taken over, in that order.
+const FINGERPRINT_COLUMNS: [&str; 19] = [
     "galaxy",
     "morphology",
     "bulge_kind",
@@ -166,35 +217,38 @@ pub const COLUMNS: [&str; 20] = [
     "resolution_arcsec",
     "reference",
     "note",
-    "row_key",
 ];
 
-/// The columns the export writes as numbers of its own formatting; every other column is text
-/// and passes through [`guard_text_cell`].
-const NUMBER_COLUMNS: [&str; 5] = [
-    "distance_mpc",
-    "distance_err_mpc",
-    "limit_confidence_sigma",
-    "source_distance_mpc",
-    "resolution_arcsec",
+/// The content columns added with AGN masses (`activity`, then `virial::VIRIAL_COLUMNS`): they
+/// enter a row's fingerprint only when one of them is filled, so a row without them keeps the
+/// fingerprint it always had (an old export re-imports as unchanged).
+const AGN_FINGERPRINT_COLUMNS: [&str; 11] = [
+    "activity",
+    "line",
+    "width_definition",
+    "width_spectrum",
+    "lag_days",
+    "lag_err_days",
+    "width_km_s",
+    "width_err_km_s",
+    "log_l5100_erg_s",
+    "virial_factor",
+    "calibration",
 ];
 
-/// The columns that carry a row's content (all but `row_key`): its fingerprint is taken over
-/// these.
-const CONTENT_COLUMNS: usize = 19;
-
-/// The measurement columns, `quantity` to `note` (the API's measurement objects use the same
-/// names).
-pub const MEASUREMENT_COLUMNS: &[&str] = COLUMNS.split_at(7).1.split_at(12).0;
+/// The measurement columns, `quantity` to `calibration` (the API's measurement objects use the
+/// same names).
+pub const MEASUREMENT_COLUMNS: &[&str] = COLUMNS.split_at(8).1.split_at(22).0;
 
 /// The galaxy-description columns (besides `galaxy`, the name).
-const GALAXY_COLUMNS: [&str; 6] = [
+const GALAXY_COLUMNS: [&str; 7] = [
     "morphology",
     "bulge_kind",
     "centre_kind",
     "distance_mpc",
     "distance_err_mpc",
     "distance_method",
+    "activity",
 ];
 
 /// One row read from a catalog CSV file.
@@ -420,14 +474,24 @@ impl RowReader {
 
 /// The key and fingerprint of a row: SHA-256 over the trimmed content cells joined by the
 /// unit separator (U+001F), so cell order and padding never matter and no cell can run into the
-/// next; the key is the `row_key` cell, or that SHA-256 when it is blank.
+/// next; the AGN cells ([`AGN_FINGERPRINT_COLUMNS`]) are appended only when one is filled. The
+/// key is the `row_key` cell, or that SHA-256 when it is blank.
 fn row_key_of<'a>(cell: &dyn Fn(&'static str) -> &'a str) -> Result<RowKey, String> {
     let mut content = String::new();
-    for (i, c) in COLUMNS[..CONTENT_COLUMNS].iter().enumerate() {
+    for (i, c) in FINGERPRINT_COLUMNS.iter().enumerate() {
         if i > 0 {
             content.push('\u{1f}');
         }
         content.push_str(cell(c).trim());
+    }
+    if AGN_FINGERPRINT_COLUMNS
+        .iter()
+        .any(|c| !cell(c).trim().is_empty())
+    {
+        for c in AGN_FINGERPRINT_COLUMNS {
+            content.push('\u{1f}');
+            content.push_str(cell(c).trim());
+        }
     }
     let sha256 = sha256_hex(&content);
     let given = cell("row_key").trim();
@@ -823,6 +887,7 @@ struct ExportRow {
     distance_mpc: f64,
     distance_err_mpc: f64,
     distance_method: String,
+    activity: String,
     #[sqlx(try_from = "String")]
     quantity: Quantity,
     value_text: String,
@@ -841,11 +906,53 @@ struct ExportRow {
     err_minus_dex: f64,
     err_plus_dex: f64,
     upper_limit: bool,
+    #[sqlx(flatten)]
+    virial: ExportVirial,
+}
+
+/// The stored broad-line measurement of a row (table `virial_measurement`), all None for a
+/// row without one.
+#[derive(sqlx::FromRow)]
+struct ExportVirial {
+    v_line: Option<String>,
+    v_width_definition: Option<String>,
+    v_width_spectrum: Option<String>,
+    v_lag_days: Option<f64>,
+    v_lag_err_minus_days: Option<f64>,
+    v_lag_err_plus_days: Option<f64>,
+    v_width_km_s: Option<f64>,
+    v_width_err_km_s: Option<f64>,
+    v_log_l5100_erg_s: Option<f64>,
+    v_assumed_log_f: Option<f64>,
+    v_calibration: Option<String>,
+}
+
+/// The shortest decimal text of the linear factor `10^log_f` that reads back (through the
+/// `virial_factor` cell's `log10`) to `log_f` bit for bit, so an export re-imports to the same
+/// stored number and exports again to the same text; Rust's shortest round-trip form of
+/// `10^log_f` when no shorter text does.
+fn factor_text(log_f: f64) -> String {
+    let f = 10f64.powf(log_f);
+    for digits in 0..17 {
+        let candidate: f64 = format!("{f:.digits$e}").parse().unwrap_or(f64::NAN);
+        if candidate.log10().to_bits() == log_f.to_bits() {
+            return candidate.to_string();
+        }
+    }
+    f.to_string()
 }
 
 impl ExportRow {
+    /// Whether the stored value was computed from the broad-line cells (the value cell was
+    /// empty): the export leaves the value cell empty again, so a re-import computes it.
+    fn computed(&self) -> bool {
+        self.virial.v_line.is_some()
+            && (self.value_text == super::virial::COMPUTED_VALUE_TEXT
+                || self.value_text == super::virial::COMPUTED_SINGLE_EPOCH_TEXT)
+    }
+
     /// The row's cells in [`COLUMNS`] order, as import reads them.
-    fn cells(&self) -> [String; 20] {
+    fn cells(&self) -> [String; 31] {
         let confidence = match self.limit_confidence_sigma {
             Some(c) if c < 1.5 => "1",
             Some(c) if c < 2.5 => "2",
@@ -853,6 +960,22 @@ impl ExportRow {
             None => "",
         };
         let opt = |v: Option<f64>| v.map_or(String::new(), |v| v.to_string());
+        let v = &self.virial;
+        let computed = self.computed();
+        let lag_err = match (v.v_lag_err_minus_days, v.v_lag_err_plus_days) {
+            (Some(m), Some(p)) if m == 0.0 && p == 0.0 => String::new(),
+            (Some(m), Some(p)) if m.to_bits() == p.to_bits() => m.to_string(),
+            (Some(m), Some(p)) => format!("+{p}/-{m}"),
+            _ => String::new(),
+        };
+        let width_err = match v.v_width_err_km_s {
+            Some(e) if e > 0.0 => e.to_string(),
+            _ => String::new(),
+        };
+        let factor = match v.v_assumed_log_f {
+            Some(log_f) if !computed => factor_text(log_f),
+            _ => String::new(),
+        };
         [
             self.name.clone(),
             self.morphology.clone(),
@@ -861,8 +984,19 @@ impl ExportRow {
             self.distance_mpc.to_string(),
             self.distance_err_mpc.to_string(),
             self.distance_method.clone(),
+            // "unknown" is what an empty cell reads as: written empty, so a row of a galaxy
+            // without a class keeps the fingerprint it had before the column existed.
+            if self.activity == "unknown" {
+                String::new()
+            } else {
+                self.activity.clone()
+            },
             self.quantity.as_str().to_owned(),
-            self.value_text.clone(),
+            if computed {
+                String::new()
+            } else {
+                self.value_text.clone()
+            },
             self.value_scale.clone(),
             confidence.to_owned(),
             self.method.clone(),
@@ -873,19 +1007,40 @@ impl ExportRow {
             opt(self.resolution_arcsec),
             self.reference.clone(),
             self.note.clone(),
+            v.v_line.clone().unwrap_or_default(),
+            v.v_width_definition.clone().unwrap_or_default(),
+            v.v_width_spectrum.clone().unwrap_or_default(),
+            opt(v.v_lag_days),
+            lag_err,
+            opt(v.v_width_km_s),
+            width_err,
+            opt(v.v_log_l5100_erg_s),
+            factor,
+            v.v_calibration.clone().unwrap_or_default(),
             galaxies::public_row_key(&self.row_key),
         ]
     }
 }
 
-/// The columns of an [`ExportRow`], over `measurement m` and `galaxy g`.
+/// The columns of an [`ExportRow`], over `measurement m` and `galaxy g` (left-joined to
+/// `virial_measurement v`, which the statements join as `EXPORT_VIRIAL_JOIN`).
 const EXPORT_SELECT: &str =
     "select g.name, g.morphology, g.bulge_kind, g.centre_kind, g.distance_mpc,
-                g.distance_err_mpc, g.distance_method, m.quantity, m.value_text, m.value_scale,
-                m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
-                m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note,
-                ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
-                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit";
+                g.distance_err_mpc, g.distance_method, g.activity, m.quantity, m.value_text,
+                m.value_scale, m.limit_confidence_sigma, m.method, m.sigma_definition,
+                m.aperture, m.band, m.source_distance_mpc, m.resolution_arcsec, m.reference,
+                m.note, ifnull(m.row_key, 'measurement-' || m.measurement_id) as row_key,
+                m.log_value, m.err_minus_dex, m.err_plus_dex, m.upper_limit,
+                v.line as v_line, v.width_definition as v_width_definition,
+                v.width_spectrum as v_width_spectrum, v.lag_days as v_lag_days,
+                v.lag_err_minus_days as v_lag_err_minus_days,
+                v.lag_err_plus_days as v_lag_err_plus_days, v.width_km_s as v_width_km_s,
+                v.width_err_km_s as v_width_err_km_s, v.log_l5100_erg_s as v_log_l5100_erg_s,
+                v.assumed_log_f as v_assumed_log_f, v.calibration as v_calibration";
+
+/// The join of an export's statements that brings in [`ExportVirial`].
+const EXPORT_VIRIAL_JOIN: &str =
+    "left join virial_measurement v on v.measurement_id = m.measurement_id";
 
 /// The fingerprint ([`row_key_of`]) of the cells an export writes for a measurement, or
 /// `None` when it is gone.
@@ -896,6 +1051,7 @@ async fn exported_fingerprint(
     let row: Option<ExportRow> = sqlx::query_as(sqlx::AssertSqlSafe(format!(
         "{EXPORT_SELECT}
            from measurement m join galaxy g on g.galaxy_id = m.galaxy_id
+           {EXPORT_VIRIAL_JOIN}
           where m.measurement_id = ?"
     )))
     .bind(measurement_id)
@@ -919,7 +1075,7 @@ async fn exported_fingerprint(
 async fn adopted_rows(
     pool: &SqlitePool,
     version: Option<i64>,
-) -> anyhow::Result<(Vec<ExportRow>, i64, String)> {
+) -> anyhow::Result<(Vec<ExportRow>, i64, String, super::virial::Factors)> {
     let mut tx = pool.begin().await?;
     let version = match version {
         Some(v) => v,
@@ -933,6 +1089,7 @@ async fn adopted_rows(
            from adopted_value_span a
            join measurement m on m.measurement_id = a.measurement_id
            join galaxy_span g on g.galaxy_id = a.galaxy_id
+           {EXPORT_VIRIAL_JOIN}
           where a.valid_from_version <= ?1
             and (a.valid_until_version is null or a.valid_until_version > ?1)
             and g.valid_from_version <= ?1
@@ -943,8 +1100,9 @@ async fn adopted_rows(
     .bind(version)
     .fetch_all(&mut *tx)
     .await?;
+    let factors = super::virial::factors_at(&mut *tx, version).await?;
     tx.commit().await?;
-    Ok((rows, version, made_at))
+    Ok((rows, version, made_at, factors))
 }
 
 /// One adopted measurement as the catalog exports write it: its cells in [`COLUMNS`] order (the
@@ -952,7 +1110,7 @@ async fn adopted_rows(
 #[derive(Debug, Clone, PartialEq)]
 pub struct CatalogRow {
     /// The cells, in [`COLUMNS`] order.
-    pub cells: [String; 20],
+    pub cells: [String; 31],
     /// log10 of the value in its quantity's unit.
     pub log_value: f64,
     /// Lower error, dex.
@@ -961,6 +1119,41 @@ pub struct CatalogRow {
     pub err_plus_dex: f64,
     /// Whether the value is an upper limit.
     pub upper_limit: bool,
+    /// The galaxy's activity class word (`unknown` included, which the cell leaves empty).
+    pub activity: String,
+    /// For a reverberation or single-epoch mass: its width measure and factors.
+    pub virial: Option<VirialFactorUsed>,
+}
+
+/// The virial factor of a broad-line mass in a catalog export.
+#[derive(Debug, Clone, PartialEq)]
+pub struct VirialFactorUsed {
+    /// The width measure word (`sigma_line` or `fwhm`).
+    pub width_definition: String,
+    /// log10 of the factor the stored mass assumed (None: not known, never rescaled).
+    pub assumed_log_f: Option<f64>,
+    /// log10 ⟨f⟩ adopted at the exported version and applied to the mass in the relations
+    /// (None when the mass is not rescaled).
+    pub log_f_applied: Option<f64>,
+}
+
+impl ExportRow {
+    /// The export's view of the row's virial factor at the factors in force.
+    fn factor_used(&self, factors: &super::virial::Factors) -> Option<VirialFactorUsed> {
+        let width = self.virial.v_width_definition.as_deref()?;
+        let applied = match (
+            self.virial.v_assumed_log_f,
+            width.parse::<super::model::WidthDefinition>(),
+        ) {
+            (Some(_), Ok(w)) => Some(factors.of(w).0),
+            _ => None,
+        };
+        Some(VirialFactorUsed {
+            width_definition: width.to_owned(),
+            assumed_log_f: self.virial.v_assumed_log_f,
+            log_f_applied: applied,
+        })
+    }
 }
 
 /// The rows adopted at `version` (`None`: the current one) as every catalog export writes them
@@ -972,7 +1165,7 @@ pub async fn adopted_catalog(
     pool: &SqlitePool,
     version: Option<i64>,
 ) -> anyhow::Result<(Vec<CatalogRow>, i64)> {
-    let (rows, version, _) = adopted_rows(pool, version).await?;
+    let (rows, version, _, factors) = adopted_rows(pool, version).await?;
     let rows = rows
         .iter()
         .map(|r| CatalogRow {
@@ -981,6 +1174,8 @@ pub async fn adopted_catalog(
             err_minus_dex: r.err_minus_dex,
             err_plus_dex: r.err_plus_dex,
             upper_limit: r.upper_limit,
+            activity: r.activity.clone(),
+            virial: r.factor_used(&factors),
         })
         .collect();
     Ok((rows, version))
@@ -994,7 +1189,7 @@ pub async fn adopted_catalog(
 /// # Errors
 /// When the database cannot be read.
 pub async fn export_csv(pool: &SqlitePool, version: Option<i64>) -> anyhow::Result<(String, i64)> {
-    let (rows, version, _) = adopted_rows(pool, version).await?;
+    let (rows, version, _, _) = adopted_rows(pool, version).await?;
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(COLUMNS)?;
     for r in &rows {
@@ -1025,8 +1220,15 @@ pub const JSON_FORMAT: &str = "massline-catalog";
 ///  "catalog_version_made_at": "2026-12-02T04:00:00.000Z", "columns": ["galaxy", …, "row_key"],
 ///  "rows": [{"galaxy": "…", …, "row_key": "…",
 ///            "derived": {"log_value": 8.38, "err_minus_dex": 0.1, "err_plus_dex": 0.1,
-///                        "upper_limit": false}}]}
+///                        "upper_limit": false, "activity": "seyfert1",
+///                        "virial": {"method": "reverberation", "width_definition": "sigma_line",
+///                                   "assumed_log_f": 0.0, "log_f_applied": 0.64,
+///                                   "log_value_at_adopted_f": 7.53}}}]}
 /// ```
+///
+/// `virial` is there for reverberation and single-epoch masses only: the factor the stored
+/// mass assumed, the adopted log ⟨f⟩ applied at this version (null when the mass is not
+/// rescaled: its source's factor is not known) and the mass so rescaled.
 ///
 /// Every cell is the string the CSV export has (the value as entered, in its unit), so the
 /// file re-imports to the same catalog; `derived` holds the stored canonical numbers (log10 in
@@ -1036,7 +1238,7 @@ pub const JSON_FORMAT: &str = "massline-catalog";
 /// # Errors
 /// When the database cannot be read.
 pub async fn export_json(pool: &SqlitePool, version: Option<i64>) -> anyhow::Result<(String, i64)> {
-    let (rows, version, made_at) = adopted_rows(pool, version).await?;
+    let (rows, version, made_at, factors) = adopted_rows(pool, version).await?;
     let rows: Vec<serde_json::Value> = rows
         .iter()
         .map(|r| {
@@ -1045,15 +1247,24 @@ pub async fn export_json(pool: &SqlitePool, version: Option<i64>) -> anyhow::Res
                 .zip(r.cells())
                 .map(|(c, v)| ((*c).to_owned(), serde_json::Value::String(v)))
                 .collect();
-            object.insert(
-                "derived".to_owned(),
-                serde_json::json!({
-                    "log_value": r.log_value,
-                    "err_minus_dex": r.err_minus_dex,
-                    "err_plus_dex": r.err_plus_dex,
-                    "upper_limit": r.upper_limit,
-                }),
-            );
+            let mut derived = serde_json::json!({
+                "log_value": r.log_value,
+                "err_minus_dex": r.err_minus_dex,
+                "err_plus_dex": r.err_plus_dex,
+                "upper_limit": r.upper_limit,
+                "activity": r.activity,
+            });
+            if let Some(v) = r.factor_used(&factors) {
+                derived["virial"] = serde_json::json!({
+                    "method": r.method,
+                    "width_definition": v.width_definition,
+                    "assumed_log_f": v.assumed_log_f,
+                    "log_f_applied": v.log_f_applied,
+                    "log_value_at_adopted_f": v.assumed_log_f.zip(v.log_f_applied)
+                        .map(|(assumed, applied)| r.log_value + applied - assumed),
+                });
+            }
+            object.insert("derived".to_owned(), derived);
             serde_json::Value::Object(object)
         })
         .collect();
@@ -1212,6 +1423,249 @@ mod tests {
             assert_eq!(x.3.to_bits(), y.3.to_bits(), "{x:?} vs {y:?}");
             assert_eq!(x.4.to_bits(), y.4.to_bits(), "{x:?} vs {y:?}");
         }
+    }
+
+    /// A catalog CSV line from (column, cell) pairs, every other column of [`COLUMNS`] (but
+    /// `row_key`) empty.
+    fn line_of(cells: &[(&str, &str)]) -> String {
+        COLUMNS[..30]
+            .iter()
+            .map(|c| {
+                cells
+                    .iter()
+                    .find(|(k, _)| k == c)
+                    .map_or("", |(_, v)| v)
+                    .to_owned()
+            })
+            .collect::<Vec<_>>()
+            .join(",")
+    }
+
+    /// Invented AGN rows: a computed reverberation mass, typed ones with a known and an
+    /// unknown factor, computed single-epoch masses by both calibrations, a typed single-epoch
+    /// mass, and a quiescent galaxy with a dynamical mass; five activity classes.
+    fn agn_catalog() -> String {
+        let galaxy = |name: &'static str, activity: &'static str| {
+            vec![
+                ("galaxy", name),
+                ("morphology", "elliptical"),
+                ("bulge_kind", "classical"),
+                ("centre_kind", "core"),
+                ("distance_mpc", "20"),
+                ("distance_err_mpc", "1"),
+                ("distance_method", "sbf"),
+                ("activity", activity),
+            ]
+        };
+        let with = |mut base: Vec<(&'static str, &'static str)>,
+                    more: &[(&'static str, &'static str)]| {
+            base.extend_from_slice(more);
+            line_of(&base)
+        };
+        let sigma = [
+            ("quantity", "sigma"),
+            ("value", "150 ± 10"),
+            ("sigma_definition", "sigma_e"),
+        ];
+        let lines = [
+            COLUMNS[..30].join(","),
+            with(galaxy("Tesk 61", "seyfert1"), &sigma),
+            with(
+                galaxy("Tesk 61", "seyfert1"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "reverberation"),
+                    ("source_distance_mpc", "21"),
+                    ("lag_days", "10.3"),
+                    ("lag_err_days", "+1.4/-1.1"),
+                    ("width_km_s", "2000"),
+                    ("width_err_km_s", "100"),
+                    ("log_l5100_erg_s", "43.5"),
+                ],
+            ),
+            with(galaxy("Tesk 62", "quasar"), &sigma),
+            with(
+                galaxy("Tesk 62", "quasar"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "3e7 ± 0.5e7"),
+                    ("method", "reverberation"),
+                    ("width_definition", "fwhm"),
+                    ("width_spectrum", "mean"),
+                    ("lag_days", "12"),
+                    ("lag_err_days", "2"),
+                    ("virial_factor", "5.5"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 63", "seyfert2"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "log 7.3 ± 0.2"),
+                    ("scale", "log10"),
+                    ("method", "reverberation"),
+                    ("line", "MgII"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 64", "quasar"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "single_epoch"),
+                    ("width_km_s", "4000"),
+                    ("log_l5100_erg_s", "44"),
+                    ("calibration", "vp06"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 65", "liner"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("method", "single_epoch"),
+                    ("width_km_s", "3000"),
+                    ("width_err_km_s", "300"),
+                    ("log_l5100_erg_s", "44.5"),
+                    ("calibration", "r_l_bentz13"),
+                ],
+            ),
+            with(
+                galaxy("Tesk 66", ""),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "5e7 ± 1e7"),
+                    ("method", "single_epoch"),
+                    ("virial_factor", "4.3"),
+                    ("calibration", "r_l_bentz13"),
+                ],
+            ),
+            with(galaxy("Tesk 67", "quiescent"), &sigma),
+            with(
+                galaxy("Tesk 67", "quiescent"),
+                &[
+                    ("quantity", "bh_mass"),
+                    ("value", "2e8 ± 0.3e8"),
+                    ("method", "stellar_dynamics"),
+                    ("source_distance_mpc", "20"),
+                    ("resolution_arcsec", "0.1"),
+                ],
+            ),
+        ];
+        lines.join("\n") + "\n"
+    }
+
+    #[tokio::test]
+    async fn agn_rows_export_and_reimport_to_the_same_file_and_the_same_fitted_rows() {
+        let (_a, first) = temp_pool().await;
+        import_csv(&first, &agn_catalog(), ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (text, version) = export_csv(&first, None).await.unwrap();
+        let (_b, second) = temp_pool().await;
+        import_csv(&second, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        let (again, version2) = export_csv(&second, None).await.unwrap();
+        assert_eq!(again, text, "export → import → export is the identity");
+        let (json, _) = export_json(&first, None).await.unwrap();
+        let (json2, _) = export_json(&second, None).await.unwrap();
+        let strip = |t: &str| {
+            let mut v: serde_json::Value = serde_json::from_str(t).unwrap();
+            v["catalog_version_made_at"] = serde_json::Value::Null;
+            v
+        };
+        assert_eq!(strip(&json), strip(&json2));
+        // The rows the fits read agree to the bit: the same masses at the adopted factors.
+        let a = super::super::relation_rows::relation_rows_at(&first, version)
+            .await
+            .unwrap();
+        let b = super::super::relation_rows::relation_rows_at(&second, version2)
+            .await
+            .unwrap();
+        assert_eq!(a.len(), 7);
+        assert_eq!(a, b);
+        // What the file says: computed rows have an empty value, typed ones their text and f.
+        let rows = parse_catalog_csv(&text).unwrap();
+        let by = |name: &str| {
+            rows.iter()
+                .find(|r| {
+                    r.galaxy_name == name && r.measurement.quantity == Quantity::BlackHoleMass
+                })
+                .unwrap()
+        };
+        assert!(text.contains(",10.3,'+1.4/-1.1,2000,100,43.5,,,"), "{text}");
+        assert_eq!(
+            by("Tesk 61").measurement.value_text,
+            super::super::virial::COMPUTED_VALUE_TEXT
+        );
+        let typed = by("Tesk 62").measurement.virial.clone().unwrap();
+        assert_eq!(typed.assumed_log_f, Some(5.5f64.log10()));
+        assert!(text.contains(",5.5,"), "{text}");
+        assert_eq!(
+            by("Tesk 63")
+                .measurement
+                .virial
+                .clone()
+                .unwrap()
+                .assumed_log_f,
+            None
+        );
+        assert_eq!(
+            by("Tesk 64").measurement.value_text,
+            super::super::virial::COMPUTED_SINGLE_EPOCH_TEXT
+        );
+        // Activity classes travel; "unknown" is the empty cell.
+        let activity: Vec<(String, String)> =
+            sqlx::query_as("select name, activity from galaxy order by name")
+                .fetch_all(&second)
+                .await
+                .unwrap();
+        let words: Vec<&str> = activity.iter().map(|(_, a)| a.as_str()).collect();
+        assert_eq!(
+            words,
+            [
+                "seyfert1",
+                "quasar",
+                "seyfert2",
+                "quasar",
+                "liner",
+                "unknown",
+                "quiescent"
+            ]
+        );
+        // The virial factor applied is the adopted one: log ⟨f⟩ = 0.64 for σ_line at version
+        // 0 (migration 9), 0.05 for the FWHM; none for the unknown factor and vp06.
+        let f = |name: &str| a.iter().find(|r| r.name == name).unwrap().mbh_log_f;
+        assert_eq!(f("Tesk 61"), Some(0.64));
+        assert_eq!(f("Tesk 62"), Some(0.05));
+        assert_eq!(f("Tesk 63"), None);
+        assert_eq!(f("Tesk 64"), None);
+        assert_eq!(f("Tesk 67"), None);
+        // Importing the export into the catalog it came from adds nothing.
+        let report = import_csv(&first, &text, ImportMode::Accepted, &mut |_, _| {})
+            .await
+            .unwrap();
+        assert_eq!(report.skipped, 10);
+        assert_eq!(report.measurements, 0);
+    }
+
+    #[test]
+    fn a_row_without_the_agn_cells_keeps_its_old_fingerprint() {
+        let cells = [
+            ("galaxy", "Tesk 70"),
+            ("morphology", "elliptical"),
+            ("quantity", "sigma"),
+            ("value", "150 ± 10"),
+            ("sigma_definition", "sigma_e"),
+        ];
+        let cell = |c: &'static str| cells.iter().find(|(k, _)| *k == c).map_or("", |(_, v)| *v);
+        // The fingerprint as it was before the AGN columns: the 19 content cells joined by
+        // U+001F.
+        let old: Vec<&str> = FINGERPRINT_COLUMNS.iter().map(|c| cell(c)).collect();
+        let expected = sha256_hex(&old.join("\u{1f}"));
+        assert_eq!(row_key_of(&cell).unwrap().sha256, Some(expected.clone()));
+        // An AGN cell changes it.
+        let with_activity = |c: &'static str| if c == "activity" { "seyfert1" } else { cell(c) };
+        assert_ne!(row_key_of(&with_activity).unwrap().sha256, Some(expected));
     }
 
     #[tokio::test]
@@ -1474,10 +1928,14 @@ mod tests {
     }
 
     #[test]
-    fn the_measurement_columns_run_from_quantity_to_note() {
+    fn the_measurement_columns_run_from_quantity_to_calibration() {
         assert_eq!(MEASUREMENT_COLUMNS.first(), Some(&"quantity"));
-        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"note"));
-        assert_eq!(MEASUREMENT_COLUMNS.len(), 12);
+        assert_eq!(MEASUREMENT_COLUMNS.last(), Some(&"calibration"));
+        assert_eq!(MEASUREMENT_COLUMNS.len(), 22);
+        for column in super::super::virial::VIRIAL_COLUMNS {
+            assert!(MEASUREMENT_COLUMNS.contains(&column), "{column}");
+        }
+        assert!(!MEASUREMENT_COLUMNS.contains(&"activity"));
     }
 
     #[test]

@@ -375,6 +375,137 @@ async fn insert_virial(
     Ok(())
 }
 
+/// What lies behind a stored reverberation or single-epoch mass (table
+/// `virial_measurement`, migration 9), as stored.
+#[derive(Debug, Clone, PartialEq, sqlx::FromRow)]
+pub struct StoredVirial {
+    /// The black-hole mass it belongs to.
+    pub measurement_id: i64,
+    /// The broad line, e.g. "Hbeta".
+    pub line: String,
+    /// Width measure word (`sigma_line`, `fwhm`).
+    pub width_definition: String,
+    /// Spectrum word (`rms`, `mean`, `single`).
+    pub width_spectrum: String,
+    /// Rest-frame lag, days.
+    pub lag_days: Option<f64>,
+    /// Its lower error, days.
+    pub lag_err_minus_days: Option<f64>,
+    /// Its upper error, days.
+    pub lag_err_plus_days: Option<f64>,
+    /// Line width, km/s.
+    pub width_km_s: Option<f64>,
+    /// Its error, km/s.
+    pub width_err_km_s: Option<f64>,
+    /// log10 λL_λ(5100 Å), erg/s, at the measurement's source distance.
+    pub log_l5100_erg_s: Option<f64>,
+    /// log10 of the factor the stored mass assumed (None: not known).
+    pub assumed_log_f: Option<f64>,
+    /// Single-epoch calibration word, empty for reverberation.
+    pub calibration: String,
+}
+
+/// The broad-line measurements behind a galaxy's virial masses, every one stored (the caller
+/// matches them to the measurements it shows by `measurement_id`).
+///
+/// # Errors
+/// Any database error.
+pub async fn virial_measurements(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+) -> sqlx::Result<Vec<StoredVirial>> {
+    sqlx::query_as(
+        "select v.measurement_id, v.line, v.width_definition, v.width_spectrum, v.lag_days,
+                v.lag_err_minus_days, v.lag_err_plus_days, v.width_km_s, v.width_err_km_s,
+                v.log_l5100_erg_s, v.assumed_log_f, v.calibration
+           from virial_measurement v join measurement m on m.measurement_id = v.measurement_id
+          where m.galaxy_id = ?
+       order by v.measurement_id",
+    )
+    .bind(galaxy_id)
+    .fetch_all(pool)
+    .await
+}
+
+/// Change a galaxy's activity class: a new catalog version (bumped first, so the history span
+/// of the new class starts at it), the galaxy's row updated (the old class stays in the
+/// history, migration 9) and an audit event `activity_changed` naming old and new, with the
+/// note. Returns the new catalog version, or None when the galaxy does not exist.
+///
+/// # Errors
+/// Any database error.
+pub async fn change_activity(
+    pool: &SqlitePool,
+    account_id: Option<i64>,
+    galaxy_id: i64,
+    activity: super::model::Activity,
+    note: &str,
+) -> sqlx::Result<Option<i64>> {
+    let mut tx = super::begin_write(pool).await?;
+    let old: Option<(String, String)> =
+        sqlx::query_as("select name, activity from galaxy where galaxy_id = ?")
+            .bind(galaxy_id)
+            .fetch_optional(&mut *tx)
+            .await?;
+    let Some((name, old_activity)) = old else {
+        return Ok(None);
+    };
+    let version = super::history::bump_version(&mut tx).await?;
+    sqlx::query(
+        "update galaxy set activity = ?, updated_at = strftime('%Y-%m-%dT%H:%M:%fZ', 'now')
+          where galaxy_id = ?",
+    )
+    .bind(activity.as_str())
+    .bind(galaxy_id)
+    .execute(&mut *tx)
+    .await?;
+    let note = note.trim();
+    super::history::record(
+        &mut tx,
+        &super::history::NewEvent {
+            account_id,
+            action: "activity_changed",
+            entity: "galaxy",
+            entity_id: Some(galaxy_id),
+            summary: format!(
+                "Activity class of {name}: {old_activity} → {}.{}",
+                activity.as_str(),
+                if note.is_empty() {
+                    String::new()
+                } else {
+                    format!(" {}", note.chars().take(500).collect::<String>())
+                }
+            ),
+        },
+    )
+    .await?;
+    tx.commit().await?;
+    Ok(Some(version))
+}
+
+/// Whether account `account_id` changed the activity class of galaxy `galaxy_id` at catalog
+/// version `version` (the galaxy page confirms it to that person only).
+///
+/// # Errors
+/// Any database error.
+pub async fn activity_changed_by(
+    pool: &SqlitePool,
+    galaxy_id: i64,
+    version: i64,
+    account_id: i64,
+) -> sqlx::Result<bool> {
+    sqlx::query_scalar(
+        "select exists (select 1 from audit_event
+                         where action = 'activity_changed' and entity = 'galaxy'
+                           and entity_id = ? and catalog_version = ? and account_id = ?)",
+    )
+    .bind(galaxy_id)
+    .bind(version)
+    .bind(account_id)
+    .fetch_one(pool)
+    .await
+}
+
 /// A galaxy's new adopted distance.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NewDistance {
@@ -799,7 +930,10 @@ macro_rules! measurement_columns {
                 m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
                 m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
                 m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
-                m.value_scale, s.state, "
+                m.value_scale, s.state, (select vm.assumed_log_f from virial_measurement vm
+                                   where vm.measurement_id = m.measurement_id) as assumed_log_f,
+                (select vm.width_definition from virial_measurement vm
+                  where vm.measurement_id = m.measurement_id) as virial_width, "
     };
 }
 
@@ -815,7 +949,7 @@ pub async fn find_by_slug_at(
 ) -> sqlx::Result<Option<Galaxy>> {
     sqlx::query_as(
         "select s.galaxy_id, s.name, s.slug, s.morphology, s.bulge_kind, s.centre_kind,
-                s.distance_mpc, s.distance_err_mpc, s.distance_method
+                s.distance_mpc, s.distance_err_mpc, s.distance_method, s.activity
            from galaxy g join galaxy_span s on s.galaxy_id = g.galaxy_id
           where g.slug = ? and s.valid_from_version <= ?2
             and (s.valid_until_version is null or s.valid_until_version > ?2)",

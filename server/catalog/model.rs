@@ -372,6 +372,11 @@ pub struct Measurement {
     pub value_scale: String,
     /// Submission state (pending, accepted, ...).
     pub state: String,
+    /// For a virial mass: log10 of the virial factor the stored value assumed (None when
+    /// not known, or not a virial mass).
+    pub assumed_log_f: Option<f64>,
+    /// For a virial mass: its width measure word ('sigma_line' or 'fwhm').
+    pub virial_width: Option<String>,
     /// Whether this is the adopted value for its galaxy, quantity and band.
     pub adopted: bool,
     /// When it was stored (RFC 3339 UTC).
@@ -419,6 +424,22 @@ pub struct NewMeasurement {
     pub virial: Option<VirialEntry>,
 }
 
+impl Measurement {
+    /// log10 of the stored value moved to the adopted virial factor of `factors` (for a
+    /// virial mass whose assumed factor is known; any other value unchanged): the stored value
+    /// plus log⟨f⟩ − log f_assumed (docs/methods.md §4.7).
+    pub fn log_at_factor(&self, factors: &crate::catalog::virial::Factors) -> f64 {
+        let width = self
+            .virial_width
+            .as_deref()
+            .and_then(|w| w.parse::<WidthDefinition>().ok());
+        match (self.assumed_log_f, width) {
+            (Some(assumed), Some(width)) => self.log_value + factors.of(width).0 - assumed,
+            _ => self.log_value,
+        }
+    }
+}
+
 impl NewMeasurement {
     /// The measurement as it would be stored, pending, for galaxy `galaxy_id` (no key, no
     /// submission yet): what a submission is assessed with before it is stored.
@@ -445,6 +466,11 @@ impl NewMeasurement {
             value_text: self.value_text.clone(),
             value_scale: self.value_scale.clone(),
             state: "pending".to_owned(),
+            assumed_log_f: self.virial.as_ref().and_then(|v| v.assumed_log_f),
+            virial_width: self
+                .virial
+                .as_ref()
+                .map(|v| v.width_definition.as_str().to_owned()),
             adopted: false,
             created_at: String::new(),
         }

@@ -126,7 +126,10 @@ macro_rules! measurement_columns {
                 m.err_minus_dex, m.err_plus_dex, m.err_dex, m.upper_limit,
                 m.limit_confidence_sigma, m.method, m.sigma_definition, m.aperture, m.band,
                 m.source_distance_mpc, m.resolution_arcsec, m.reference, m.note, m.value_text,
-                m.value_scale, s.state, (a.measurement_id is not null) as adopted, m.created_at
+                m.value_scale, s.state, (select vm.assumed_log_f from virial_measurement vm
+                                   where vm.measurement_id = m.measurement_id) as assumed_log_f,
+                (select vm.width_definition from virial_measurement vm
+                  where vm.measurement_id = m.measurement_id) as virial_width, (a.measurement_id is not null) as adopted, m.created_at
            from measurement m
            join submission s on s.submission_id = m.submission_id
       left join adopted_value a on a.measurement_id = m.measurement_id"

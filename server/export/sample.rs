@@ -66,6 +66,9 @@ pub struct Column {
     pub csv_decimals: usize,
     /// Whether only the plane has values in it (the other formats leave it out for a line).
     pub plane_only: bool,
+    /// Whether `sample.csv` writes it (its header is kept as it has always been; the columns
+    /// added since are in the VOTable only).
+    pub in_csv: bool,
     /// Its cell.
     pub cell: CellOf,
 }
@@ -110,6 +113,7 @@ pub fn sample_columns(relation: &Relation) -> Vec<Column> {
         description: description.to_owned(),
         csv_decimals: 0,
         plane_only: false,
+        in_csv: true,
         cell,
     };
     let number = |csv_header: String,
@@ -126,6 +130,7 @@ pub fn sample_columns(relation: &Relation) -> Vec<Column> {
         description,
         csv_decimals: 4,
         plane_only: false,
+        in_csv: true,
         cell,
     };
     vec![
@@ -242,6 +247,35 @@ pub fn sample_columns(relation: &Relation) -> Vec<Column> {
                 |p, _| Cell::Flag(p.upper_limit),
             )
         },
+        Column {
+            in_csv: false,
+            ..word(
+                "activity",
+                "src.class",
+                "Activity class of the nucleus (quiescent, seyfert1, …, unknown)",
+                |_, m| Cell::Text(&m.activity),
+            )
+        },
+        Column {
+            in_csv: false,
+            ..word(
+                "mbh_width_definition",
+                "meta.code",
+                "For a reverberation or single-epoch mass: the broad-line width measure (sigma_line or fwhm); empty otherwise",
+                |_, m| Cell::Text(&m.mbh_width_definition),
+            )
+        },
+        Column {
+            in_csv: false,
+            ..number(
+                "mbh_log_f [dex]".to_owned(),
+                "mbh_log_f".to_owned(),
+                DEX,
+                "arith.factor",
+                "For a reverberation or single-epoch mass: log10 of the adopted mean virial factor applied to log_mbh at this catalog version (docs/methods.md §4.1); missing otherwise, and when the source's factor is not known".to_owned(),
+                |_, m| m.mbh_log_f.map_or(Cell::Missing, Cell::Number),
+            )
+        },
     ]
 }
 
@@ -261,7 +295,10 @@ pub fn written_columns(relation: &Relation) -> Vec<Column> {
 /// # Errors
 /// When the CSV writer fails (it writes to memory, so only on text it cannot hold).
 pub fn sample_csv(outcome: &FitOutcome, relation: &Relation) -> anyhow::Result<String> {
-    let columns = sample_columns(relation);
+    let columns: Vec<Column> = sample_columns(relation)
+        .into_iter()
+        .filter(|c| c.in_csv)
+        .collect();
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(columns.iter().map(|c| c.csv_header.as_str()))?;
     for (p, m) in outcome.sample.points.iter().zip(&outcome.sample.members) {
@@ -295,6 +332,8 @@ pub(crate) mod tests {
             bulge_kind: "classical".to_owned(),
             centre_kind: "core".to_owned(),
             mass_method: "stellar_dynamics".to_owned(),
+            mbh_width_definition: String::new(),
+            mbh_log_f: None,
             resolved: Some(true),
             log_distance: 1.25,
             log_sigma: Some(2.3),
@@ -339,7 +378,12 @@ pub(crate) mod tests {
             ],
             vec![
                 member(1, "Galaxy One"),
-                member(2, "=Galaxy Two"),
+                Member {
+                    activity: "seyfert1".to_owned(),
+                    mbh_width_definition: "sigma_line".to_owned(),
+                    mbh_log_f: Some(0.64),
+                    ..member(2, "=Galaxy Two")
+                },
                 member(3, "Galaxy Three"),
             ],
         )

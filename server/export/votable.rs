@@ -389,6 +389,72 @@ fn catalog_field(name: &str) -> (Datatype, &'static str, &'static str, &'static 
             "meta.record",
             "The row's key: importing the file again adds nothing",
         ),
+        "activity" => (
+            Char,
+            "",
+            "src.class",
+            "Activity class of the nucleus (empty: unknown)",
+        ),
+        "line" => (
+            Char,
+            "",
+            "meta.id;spect.line",
+            "Broad line of a reverberation or single-epoch mass",
+        ),
+        "width_definition" => (
+            Char,
+            "",
+            "meta.code",
+            "Width measure of the broad line: sigma_line or fwhm",
+        ),
+        "width_spectrum" => (
+            Char,
+            "",
+            "meta.code",
+            "Spectrum the width was measured on: rms, mean or single",
+        ),
+        "lag_days" => (
+            Double,
+            "d",
+            "time.interval",
+            "Rest-frame lag of the broad line",
+        ),
+        "lag_err_days" => (
+            Char,
+            "",
+            "stat.error;time.interval",
+            "Error of the lag in days, as entered: one number or +upper/-lower",
+        ),
+        "width_km_s" => (
+            Double,
+            "km/s",
+            "phys.veloc.dispersion;spect.line",
+            "Broad-line width",
+        ),
+        "width_err_km_s" => (
+            Double,
+            "km/s",
+            "stat.error;phys.veloc.dispersion",
+            "Error of the broad-line width",
+        ),
+        "log_l5100_erg_s" => (
+            Double,
+            DEX,
+            "phys.luminosity;em.opt",
+            "log10 of lambda L_lambda at 5100 Angstrom in erg/s, host starlight removed, at the source's distance",
+        ),
+        "virial_factor" => (
+            Double,
+            "",
+            "arith.factor",
+            "The virial factor f the published mass assumed (a pure number); empty when computed here or not known",
+        ),
+        "calibration" => (
+            Char,
+            "",
+            "meta.code",
+            "How a single-epoch mass was made: vp06 or r_l_bentz13",
+        ),
         _ => (UnicodeChar, "", "meta.note", ""),
     }
 }
@@ -438,6 +504,13 @@ pub fn catalog_fields() -> Vec<Field<'static>> {
             ucd: "meta.code.error",
             description: "Whether the value is an upper limit",
         },
+        Field {
+            name: "log_f_applied",
+            datatype: Datatype::Double,
+            unit: DEX,
+            ucd: "arith.factor",
+            description: "For a reverberation or single-epoch mass: log10 of the adopted mean virial factor at this version, applied to the mass in the relations (log_value + log_f_applied - log10 virial_factor; missing when the mass is not rescaled)",
+        },
     ]);
     fields
 }
@@ -466,6 +539,10 @@ pub fn catalog_votable(rows: &[CatalogRow], version: i64) -> anyhow::Result<Stri
             Td::Number(r.err_minus_dex),
             Td::Number(r.err_plus_dex),
             Td::Flag(r.upper_limit),
+            r.virial
+                .as_ref()
+                .and_then(|v| v.log_f_applied)
+                .map_or(Td::Missing, Td::Number),
         ]);
         tds
     });
@@ -603,7 +680,17 @@ pub(crate) mod tests {
                 row[column("upper_limit")],
                 if p.upper_limit { "T" } else { "F" }
             );
+            assert_eq!(row[column("activity")], m.activity);
+            assert_eq!(row[column("mbh_width_definition")], m.mbh_width_definition);
+            match m.mbh_log_f {
+                Some(f) => assert_same(&row[column("mbh_log_f")], f),
+                None => assert_eq!(row[column("mbh_log_f")], ""),
+            }
         }
+        assert!(
+            outcome.sample.members.iter().any(|m| m.mbh_log_f.is_some()),
+            "the sample has a virial mass"
+        );
         let infos: std::collections::BTreeMap<_, _> = doc.infos.into_iter().collect();
         assert_eq!(infos["catalog_version"], "7");
         assert_eq!(infos["relation"], "m_sigma");
@@ -641,28 +728,39 @@ pub(crate) mod tests {
 
     #[test]
     fn the_catalog_table_has_every_column_and_parses_its_numbers() {
-        let mut cells: [String; 20] = Default::default();
+        let mut cells: [String; 31] = Default::default();
         cells[0] = "Galaxy & Co".to_owned();
         cells[4] = "16.5".to_owned();
-        cells[7] = "bh_mass".to_owned();
-        cells[8] = "2.4e8 +0.6e8/-0.5e8".to_owned();
+        cells[7] = "seyfert1".to_owned();
+        cells[8] = "bh_mass".to_owned();
+        cells[9] = "2.4e8 +0.6e8/-0.5e8".to_owned();
+        cells[23] = "12.5".to_owned();
         let rows = [CatalogRow {
             cells,
             log_value: 8.380_211_241_711_606,
             err_minus_dex: 0.1,
             err_plus_dex: 0.097,
             upper_limit: false,
+            activity: "seyfert1".to_owned(),
+            virial: Some(crate::catalog::csv_io::VirialFactorUsed {
+                width_definition: "sigma_line".to_owned(),
+                assumed_log_f: Some(0.0),
+                log_f_applied: Some(0.64),
+            }),
         }];
         let doc = read_back(&catalog_votable(&rows, 3).unwrap());
-        assert_eq!(doc.fields.len(), COLUMNS.len() + 4);
+        assert_eq!(doc.fields.len(), COLUMNS.len() + 5);
         assert_eq!(doc.rows.len(), 1);
         let row = &doc.rows[0];
         assert_eq!(row[0], "Galaxy & Co");
         assert_same(&row[4], 16.5);
         assert_eq!(row[5], "", "an empty number stays empty");
-        assert_eq!(row[8], "2.4e8 +0.6e8/-0.5e8");
-        assert_same(&row[20], rows[0].log_value);
-        assert_eq!(row[23], "F");
+        assert_eq!(row[7], "seyfert1");
+        assert_eq!(row[9], "2.4e8 +0.6e8/-0.5e8");
+        assert_same(&row[23], 12.5);
+        assert_same(&row[31], rows[0].log_value);
+        assert_eq!(row[34], "F");
+        assert_same(&row[35], 0.64);
         assert_eq!(doc.infos, [("catalog_version".to_owned(), "3".to_owned())]);
         for f in &doc.fields {
             assert!(!f["ucd"].is_empty(), "{f:?}");

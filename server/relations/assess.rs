@@ -13,6 +13,7 @@ use crate::astro::{SphereOfInfluence, distance_covariance_dex2, log_distance_err
 use crate::catalog::model::NewMeasurement;
 use crate::catalog::model::{Galaxy, Measurement, Quantity, SigmaDefinition};
 use crate::catalog::submissions::{self, Clash, GalaxyChoice, Pending};
+use crate::catalog::virial::Factors;
 use crate::catalog::{galaxies, history, relation_rows, review_scores};
 use crate::error::AppResult;
 use crate::fit::Method;
@@ -67,20 +68,23 @@ fn pick<'a>(
 struct AtAdopted<'a> {
     galaxy: &'a Galaxy,
     sigma_log_d: f64,
+    /// The adopted virial factors a virial mass is moved to (docs/methods.md §4.7).
+    factors: Factors,
 }
 
 impl<'a> AtAdopted<'a> {
-    fn new(galaxy: &'a Galaxy) -> Self {
+    fn new(galaxy: &'a Galaxy, factors: Factors) -> Self {
         AtAdopted {
             galaxy,
             sigma_log_d: log_distance_error_dex(galaxy.distance_mpc, galaxy.distance_err_mpc)
                 .unwrap_or(0.0),
+            factors,
         }
     }
 
     fn log(&self, m: &Measurement) -> f64 {
         at_adopted_distance(
-            m.log_value,
+            m.log_at_factor(&self.factors),
             m.quantity,
             &m.method,
             m.source_distance_mpc,
@@ -131,8 +135,9 @@ fn subjects(
     submitted: &[Measurement],
     all: &[Measurement],
     bands: &[String],
+    factors: Factors,
 ) -> Vec<(Relation, Subject)> {
-    let at = AtAdopted::new(galaxy);
+    let at = AtAdopted::new(galaxy, factors);
     let chosen = Chosen::of(submitted, all);
     let kind = |m: &Measurement| distance_scaling(m.quantity, &m.method);
     let mass = chosen.mass.map(|m| SubjectMass {
@@ -225,12 +230,13 @@ pub async fn assess_until(
 ) -> AppResult<Assessment> {
     let all = galaxies::measurements_of(&catalog.pool, galaxy.galaxy_id).await?;
     let bands = valid_bands(&catalog.pool).await?;
+    let factors = current_factors(&catalog.pool).await?;
     let mut placements = Vec::new();
-    for (relation, subject) in subjects(galaxy, submitted, &all, &bands) {
+    for (relation, subject) in subjects(galaxy, submitted, &all, &bands, factors) {
         let wait = deadline.saturating_duration_since(Instant::now());
         placements.push(place_within(catalog, &relation, &subject, refit, wait).await?);
     }
-    let at = AtAdopted::new(galaxy);
+    let at = AtAdopted::new(galaxy, factors);
     let chosen = Chosen::of(submitted, &all);
     let sphere_of_influence = chosen.mass.and_then(|m| {
         sphere_of_influence(
@@ -260,6 +266,12 @@ pub async fn assess_until(
         mass_at_adopted,
         clashes,
     })
+}
+
+/// The virial factors adopted at the current catalog version.
+async fn current_factors(pool: &sqlx::SqlitePool) -> sqlx::Result<Factors> {
+    let version = history::current_version(pool).await?;
+    crate::catalog::virial::factors_at(pool, version).await
 }
 
 /// The photometric bands a luminosity relation can be fitted in.
@@ -338,9 +350,10 @@ fn score(
     submitted: &[Measurement],
     adopted: &[Measurement],
     bands: &[String],
+    factors: Factors,
     outcome_of: &dyn Fn(&Relation) -> Option<Arc<FitOutcome>>,
 ) -> review_scores::Score {
-    let placements: Vec<Placement> = subjects(galaxy, submitted, adopted, bands)
+    let placements: Vec<Placement> = subjects(galaxy, submitted, adopted, bands, factors)
         .into_iter()
         .filter_map(|(relation, subject)| {
             let outcome = outcome_of(&relation)?;
@@ -367,6 +380,7 @@ pub async fn score_pending(catalog: &Catalog, wait: Option<Duration>) -> AppResu
     if missing.is_empty() {
         return Ok(0);
     }
+    let factors = crate::catalog::virial::factors_at(&catalog.pool, version).await?;
     let bands = valid_bands(&catalog.pool).await?;
     let mut outcomes = Vec::new();
     let deadline = wait.map(|w| Instant::now() + w);
@@ -405,7 +419,14 @@ pub async fn score_pending(catalog: &Catalog, wait: Option<Duration>) -> AppResu
                 // A submission's galaxy is that of its first measurement, as in the queue.
                 let galaxy = batch.galaxies.get(&measurements.first()?.galaxy_id)?;
                 let adopted = batch.adopted.get(&galaxy.galaxy_id).unwrap_or(&none);
-                Some(score(galaxy, measurements, adopted, &bands, &outcome_of))
+                Some(score(
+                    galaxy,
+                    measurements,
+                    adopted,
+                    &bands,
+                    factors,
+                    &outcome_of,
+                ))
             })
             .collect::<Vec<_>>()
     })

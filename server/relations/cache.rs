@@ -931,6 +931,8 @@ mod tests {
             mbh_err_dex: (0.1, 0.1),
             mbh_reference: String::new(),
             activity: "quiescent".to_owned(),
+            mbh_width_definition: String::new(),
+            mbh_log_f: None,
         }
     }
 

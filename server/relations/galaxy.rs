@@ -39,6 +39,9 @@ pub struct GalaxyRecord {
     pub galaxy: Galaxy,
     /// Its measurements.
     pub measurements: Vec<MeasurementAt>,
+    /// The virial factors adopted at the version read (a virial mass is shown at these:
+    /// docs/methods.md §4.7).
+    pub virial_factors: crate::catalog::virial::Factors,
 }
 
 impl GalaxyRecord {
@@ -91,6 +94,11 @@ pub async fn galaxy_record_at(
     let Some(galaxy) = galaxy else {
         return Ok(None);
     };
+    let at_version = match version {
+        Some(v) => v,
+        None => crate::catalog::history::current_version(pool).await?,
+    };
+    let virial_factors = crate::catalog::virial::factors_at(pool, at_version).await?;
     let measurements = match version {
         None => galaxies::measurements_seen(pool, galaxy.galaxy_id, shown).await?,
         Some(v) => galaxies::measurements_adopted_at(pool, galaxy.galaxy_id, v).await?,
@@ -104,7 +112,7 @@ pub async fn galaxy_record_at(
         .into_iter()
         .map(|m| {
             let at_d = at_adopted_distance(
-                m.log_value,
+                m.log_at_factor(&virial_factors),
                 m.quantity,
                 &m.method,
                 m.source_distance_mpc,
@@ -132,6 +140,7 @@ pub async fn galaxy_record_at(
     Ok(Some(GalaxyRecord {
         galaxy,
         measurements,
+        virial_factors,
     }))
 }
 

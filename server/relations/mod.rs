@@ -20,6 +20,7 @@
 //! Depends on `catalog` (rows), `astro` (distance bookkeeping) and `fit`; used by `web`, `api`
 //! and `cli`.
 
+pub mod agn;
 pub mod analysis;
 pub mod assess;
 mod cache;

@@ -16,6 +16,7 @@ use std::sync::Arc;
 
 use super::{Catalog, FitKey, FitOutcome, REQUEST_WAIT, Relation, SampleFilter};
 use crate::astro::SphereOfInfluence;
+use crate::catalog::model::Activity;
 use crate::error::{AppResult, FieldError};
 use crate::fit::{self, Fit, FitError, Method, Point, Prediction, Shape};
 use crate::units::{Entry, LinearEntry, Quantity, Scale, parse_entry, parse_linear};
@@ -51,7 +52,7 @@ pub fn is_flagged(z: f64, upper_limit: bool) -> bool {
 }
 
 /// The fields of an object to place, in the order they are shown.
-pub const OBJECT_FIELDS: [&str; 7] = [
+pub const OBJECT_FIELDS: [&str; 9] = [
     "sigma",
     "bulge_mass",
     "luminosity",
@@ -59,6 +60,8 @@ pub const OBJECT_FIELDS: [&str; 7] = [
     "mass",
     "distance",
     "resolution",
+    "log_l5100_erg_s",
+    "activity",
 ];
 
 /// An object's values as typed (trimmed; empty when not given).
@@ -78,11 +81,15 @@ pub struct ObjectTexts {
     pub distance: String,
     /// Spatial resolution of the mass measurement, arcsec.
     pub resolution: String,
+    /// log10 λL_λ(5100 Å), erg/s (for the Eddington quantities).
+    pub log_l5100_erg_s: String,
+    /// The nucleus' activity class word.
+    pub activity: String,
 }
 
 impl ObjectTexts {
     /// Every field with its name, in the order of [`OBJECT_FIELDS`].
-    pub fn fields_mut(&mut self) -> [(&'static str, &mut String); 7] {
+    pub fn fields_mut(&mut self) -> [(&'static str, &mut String); 9] {
         [
             ("sigma", &mut self.sigma),
             ("bulge_mass", &mut self.bulge_mass),
@@ -91,6 +98,8 @@ impl ObjectTexts {
             ("mass", &mut self.mass),
             ("distance", &mut self.distance),
             ("resolution", &mut self.resolution),
+            ("log_l5100_erg_s", &mut self.log_l5100_erg_s),
+            ("activity", &mut self.activity),
         ]
     }
 
@@ -125,6 +134,8 @@ impl ObjectTexts {
             &self.mass,
             &self.distance,
             &self.resolution,
+            &self.log_l5100_erg_s,
+            &self.activity,
         ]
         .iter()
         .all(|s| s.is_empty())
@@ -148,6 +159,30 @@ pub struct ObjectValues {
     pub distance: Option<LinearEntry>,
     /// Resolution, arcsec.
     pub resolution: Option<LinearEntry>,
+    /// log10 λL_λ(5100 Å), erg/s.
+    pub log_l5100_erg_s: Option<f64>,
+    /// The nucleus' activity class.
+    pub activity: Option<Activity>,
+}
+
+/// The range of log10 λL(5100 Å) accepted, erg/s (the catalog's, migration 9).
+pub const LOG_L5100_RANGE: (f64, f64) = (38.0, 49.0);
+
+/// Reads log10 λL(5100 Å) in erg/s; empty text is None.
+///
+/// # Errors
+/// One sentence saying what to type instead.
+pub fn read_log_l5100(text: &str) -> Result<Option<f64>, String> {
+    if text.is_empty() {
+        return Ok(None);
+    }
+    match text.trim().parse::<f64>() {
+        Ok(v) if (LOG_L5100_RANGE.0..=LOG_L5100_RANGE.1).contains(&v) => Ok(Some(v)),
+        _ => Err(format!(
+            "Type log10 of λL(5100 Å) in erg/s, a number from {} to {}, such as 44.2.",
+            LOG_L5100_RANGE.0, LOG_L5100_RANGE.1
+        )),
+    }
 }
 
 /// Reads a log-canonical entry; empty text is None. Only the black-hole mass may be an upper
@@ -211,6 +246,15 @@ pub fn read_object(texts: &ObjectTexts, bands: &[String]) -> (ObjectValues, Vec<
     let r = read_linear(&texts.resolution, Quantity::Resolution);
     keep("resolution", r.as_ref().err().cloned());
     values.resolution = r.ok().flatten();
+    let r = read_log_l5100(&texts.log_l5100_erg_s);
+    keep("log_l5100_erg_s", r.as_ref().err().cloned());
+    values.log_l5100_erg_s = r.ok().flatten();
+    if !texts.activity.is_empty() {
+        match texts.activity.parse::<Activity>() {
+            Ok(a) => values.activity = Some(a),
+            Err(e) => keep("activity", Some(format!("Activity class: {e}"))),
+        }
+    }
     if texts.band.is_empty() {
         if !texts.luminosity.is_empty() {
             keep("band", Some("Give the band of the luminosity.".to_owned()));
@@ -274,6 +318,27 @@ impl ObjectValues {
             mass: self.mass.as_ref().map(SubjectMass::from_entry),
             input: String::new(),
         })
+    }
+
+    /// The Eddington quantities of the object (`relations::agn::eddington`, the galaxy page's
+    /// computation): None without a λL(5100 Å); a sentence when there is no mass or it is an
+    /// upper limit.
+    pub fn eddington(&self) -> Option<Result<super::agn::Eddington, String>> {
+        let log_l = self.log_l5100_erg_s?;
+        let Some(m) = self.mass.as_ref() else {
+            return Some(Err(
+                "The Eddington quantities need the black-hole mass as well.".to_owned(),
+            ));
+        };
+        if m.upper_limit {
+            return Some(Err(
+                "The Eddington quantities need a measured black-hole mass, not an upper limit."
+                    .to_owned(),
+            ));
+        }
+        Some(super::agn::eddington(m.log_value, log_l).ok_or_else(|| {
+            "The Eddington quantities cannot be computed from these values.".to_owned()
+        }))
     }
 
     /// The sphere-of-influence check of the object: None without a mass; a sentence when it

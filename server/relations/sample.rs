@@ -117,6 +117,10 @@ pub struct Member {
     pub mass_method: String,
     /// Stored activity class word.
     pub activity: String,
+    /// For a virial mass: its width measure word (`sigma_line`, `fwhm`); empty otherwise.
+    pub mbh_width_definition: String,
+    /// For a virial mass moved to the adopted factor: log10 ⟨f⟩ applied (None otherwise).
+    pub mbh_log_f: Option<f64>,
     /// Whether the sphere of influence is resolved (None when it cannot be said).
     pub resolved: Option<bool>,
     /// log10 of the adopted distance (Mpc).
@@ -336,6 +340,8 @@ pub fn build_sample(
             centre_kind: row.centre_kind.clone(),
             mass_method: method.to_owned(),
             activity: row.activity.clone(),
+            mbh_width_definition: row.mbh_width_definition.clone().unwrap_or_default(),
+            mbh_log_f: row.mbh_log_f,
             resolved,
             log_distance: row.distance_mpc.log10(),
             log_sigma: row.log_sigma,

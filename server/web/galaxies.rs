@@ -331,6 +331,68 @@ pub(crate) struct MeasurementView {
     adopted: bool,
     note: String,
     soi: Option<SoiView>,
+    virial: Option<VirialView>,
+}
+
+/// What lies behind a reverberation or single-epoch mass on the galaxy page.
+pub(crate) struct VirialView {
+    line: String,
+    lag: Option<String>,
+    width: Option<String>,
+    l5100: Option<String>,
+    product: Option<String>,
+    assumed: String,
+    applied: String,
+    shown: String,
+    sentence: String,
+    single_epoch: Option<String>,
+}
+
+impl VirialView {
+    fn of(d: &crate::relations::agn::VirialDetail) -> Self {
+        let log_f = |v: Option<f64>, none: &str| {
+            v.map_or(none.to_owned(), |l| {
+                format!(
+                    "f = {} (log f = {})",
+                    significant(10f64.powf(l), 3),
+                    fixed(l, 2)
+                )
+            })
+        };
+        VirialView {
+            line: d.line.clone(),
+            lag: d.lag_days.map(|(l, minus, plus)| {
+                let e = if minus == 0.0 && plus == 0.0 {
+                    String::new()
+                } else if minus.to_bits() == plus.to_bits() {
+                    format!(" ± {}", significant(minus, 2))
+                } else {
+                    format!(" +{}/−{}", significant(plus, 2), significant(minus, 2))
+                };
+                format!("{}{e} d (rest frame)", significant(l, 3))
+            }),
+            width: d.width_km_s.map(|(w, e)| {
+                let e = if e > 0.0 {
+                    format!(" ± {}", significant(e, 2))
+                } else {
+                    String::new()
+                };
+                format!(
+                    "{} {}{e} km/s, {}",
+                    d.width_definition.label(),
+                    fixed(w, 0),
+                    d.width_spectrum.label()
+                )
+            }),
+            l5100: d.log_l5100_erg_s.map(|l| fixed(l, 2)),
+            product: d.log_virial_product.map(|p| fixed(p, 2)),
+            assumed: log_f(d.assumed_log_f, "not recorded"),
+            applied: log_f(d.applied_log_f, "none (not rescaled)"),
+            shown: fixed(d.log_mass_shown, 2),
+            sentence: d.factor_sentence(),
+            single_epoch: d.single_epoch_flag(),
+        }
+    }
 }
 
 /// The sphere-of-influence check of one black-hole mass.
@@ -360,6 +422,12 @@ pub(crate) struct GalaxyShowPage {
     centre_kind: &'static str,
     distance: String,
     distance_method: &'static str,
+    /// The nucleus' activity class, in words.
+    activity: &'static str,
+    /// The Eddington quantities, when the galaxy has a mass and a λL(5100 Å).
+    eddington: Option<super::place::EddingtonView>,
+    /// The activity form, for reviewers and admins.
+    activity_form: Option<ActivityForm>,
     measurements: Vec<MeasurementView>,
     soi_threshold: String,
     /// The galaxy against each relation it has values for, fitted without it.
@@ -408,6 +476,95 @@ impl DistanceForm {
             .map(|(value, label)| (value, label, value == method))
             .collect();
         self
+    }
+}
+
+/// The activity form as shown: the classes with the stored one selected.
+pub(crate) struct ActivityForm {
+    csrf: String,
+    /// (value, label, selected).
+    classes: Vec<(&'static str, &'static str, bool)>,
+    error: Option<String>,
+}
+
+impl ActivityForm {
+    fn new(csrf: &str, selected: &str, error: Option<String>) -> Self {
+        ActivityForm {
+            csrf: csrf.to_owned(),
+            classes: crate::catalog::model::Activity::pairs()
+                .into_iter()
+                .map(|(value, label)| (value, label, value == selected))
+                .collect(),
+            error,
+        }
+    }
+}
+
+/// The activity form's fields.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct ActivityFields {
+    #[serde(default)]
+    activity: String,
+    #[serde(default)]
+    note: String,
+}
+
+/// Change a galaxy's activity class (reviewers and admins): a new catalog version, then back to
+/// the galaxy's page. The class already stored changes nothing (no version). A word that is not
+/// a class, or a note over 500 characters, is named beside the form (400).
+pub(crate) async fn change_activity(
+    State(state): State<AppState>,
+    Extension(principal): Extension<Principal>,
+    nav: super::Nav,
+    Path(slug): Path<String>,
+    axum::Form(fields): axum::Form<ActivityFields>,
+) -> AppResult<axum::response::Response> {
+    use axum::response::IntoResponse;
+    let me = super::account::session_of(&principal)?;
+    let galaxy = crate::catalog::galaxies::find_by_slug(&state.pool, &slug)
+        .await?
+        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+    let read = fields
+        .activity
+        .trim()
+        .parse::<crate::catalog::model::Activity>()
+        .map_err(|e| format!("Activity class: {e}"));
+    let note_chars = fields.note.trim().chars().count();
+    let read = read.and_then(|a| {
+        if note_chars > DISTANCE_NOTE_MAX {
+            Err(format!(
+                "Note: at most {DISTANCE_NOTE_MAX} characters; this one has {note_chars}."
+            ))
+        } else {
+            Ok(a)
+        }
+    });
+    match read {
+        Ok(a) if a.as_str() == galaxy.activity => {
+            Ok(axum::response::Redirect::to(&format!("/galaxies/{slug}#activity")).into_response())
+        }
+        Ok(a) => {
+            let version = crate::catalog::galaxies::change_activity(
+                &state.pool,
+                Some(me.account_id),
+                galaxy.galaxy_id,
+                a,
+                &fields.note,
+            )
+            .await?
+            .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+            Ok(axum::response::Redirect::to(&format!(
+                "/galaxies/{slug}?activity_changed={version}#activity"
+            ))
+            .into_response())
+        }
+        Err(message) => {
+            let form = ActivityForm::new(&me.csrf_token, fields.activity.trim(), Some(message));
+            let mut page =
+                galaxy_page(&state, &principal, nav, &slug, Vec::new(), None, None).await?;
+            page.activity_form = Some(form);
+            Ok((axum::http::StatusCode::BAD_REQUEST, page).into_response())
+        }
     }
 }
 
@@ -545,26 +702,41 @@ pub(crate) async fn show_galaxy(
 ) -> AppResult<GalaxyShowPage> {
     let (changed, pairs): (Vec<_>, Vec<_>) = crate::router::query_pairs(query)?
         .into_iter()
-        .partition(|(k, _)| k == "distance_changed");
+        .partition(|(k, _)| k == "distance_changed" || k == "activity_changed");
     // The confirmation is worded from the audit log, and only for the person who made the
     // change, so an address cannot make the page claim something.
     let changed_at = changed
         .first()
-        .and_then(|(_, v)| v.trim().parse::<i64>().ok());
+        .and_then(|(k, v)| Some((k.as_str(), v.trim().parse::<i64>().ok()?)));
     let flash = match (changed_at, &principal) {
-        (Some(version), Principal::Session(s)) => {
+        (Some((what, version)), Principal::Session(s)) => {
             match crate::catalog::galaxies::find_by_slug(&state.pool, &slug).await? {
                 Some(g)
-                    if crate::catalog::changes::distance_changed_by(
-                        &state.pool,
-                        g.galaxy_id,
-                        version,
-                        s.account_id,
-                    )
-                    .await? =>
+                    if what == "distance_changed"
+                        && crate::catalog::changes::distance_changed_by(
+                            &state.pool,
+                            g.galaxy_id,
+                            version,
+                            s.account_id,
+                        )
+                        .await? =>
                 {
                     Some(format!(
                         "New distance adopted: catalog version {version}. See what changed on /changes?to={version}."
+                    ))
+                }
+                Some(g)
+                    if what == "activity_changed"
+                        && crate::catalog::galaxies::activity_changed_by(
+                            &state.pool,
+                            g.galaxy_id,
+                            version,
+                            s.account_id,
+                        )
+                        .await? =>
+                {
+                    Some(format!(
+                        "New activity class adopted: catalog version {version}."
                     ))
                 }
                 _ => None,
@@ -612,6 +784,15 @@ async fn galaxy_page(
         )),
     })?;
     let galaxy = &record.galaxy;
+    let agn = crate::relations::agn::galaxy_agn(&state.pool, &record, pinned.version).await?;
+    let activity_form = match principal {
+        Principal::Session(s)
+            if version.is_none() && s.role.includes(crate::auth::Role::Reviewer) =>
+        {
+            Some(ActivityForm::new(&s.csrf_token, &galaxy.activity, None))
+        }
+        _ => None,
+    };
     let distance_form = match principal {
         Principal::Session(s)
             if version.is_none() && s.role.includes(crate::auth::Role::Reviewer) =>
@@ -677,10 +858,22 @@ async fn galaxy_page(
             .distance_method
             .parse::<DistanceMethod>()
             .map_or("other", DistanceMethod::label),
+        activity: agn.activity.label(),
+        eddington: agn
+            .eddington
+            .as_ref()
+            .map(|e| super::place::EddingtonView::of(e, agn.eddington_basis.clone())),
+        activity_form,
         measurements: record
             .measurements
             .iter()
-            .map(MeasurementView::of)
+            .map(|at| {
+                let detail = agn
+                    .virial
+                    .iter()
+                    .find(|d| d.measurement_id == at.measurement.measurement_id);
+                MeasurementView::of(at, detail)
+            })
             .collect(),
         soi_threshold: significant(threshold, 2),
         rows,
@@ -715,7 +908,7 @@ async fn galaxy_page(
 
 impl MeasurementView {
     /// One measurement as the galaxy page shows it.
-    fn of(at: &MeasurementAt) -> Self {
+    fn of(at: &MeasurementAt, virial: Option<&crate::relations::agn::VirialDetail>) -> Self {
         let m = &at.measurement;
         let rescaled = at.log_value_at_adopted_distance;
         let soi = at.sphere_of_influence.as_ref().map(|s| SoiView {
@@ -767,6 +960,7 @@ impl MeasurementView {
             adopted: m.adopted,
             note: m.note.clone(),
             soi,
+            virial: virial.map(VirialView::of),
         }
     }
 }

@@ -68,6 +68,12 @@ fn routes() -> Routes {
             Review,
             post(galaxies::change_distance),
         )
+        .add(
+            Method::POST,
+            "/galaxies/{slug}/activity",
+            Review,
+            post(galaxies::change_activity),
+        )
         .add(Method::GET, "/changes", Read, get(changes::show_changes))
         .add(Method::GET, "/releases", Read, get(releases::list_releases))
         .add(

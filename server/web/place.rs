@@ -73,6 +73,84 @@ pub(crate) struct SoiView {
     verdict: Badge,
 }
 
+/// The Eddington quantities as every page shows them (`templates/partials/eddington.html`,
+/// from `relations::agn::eddington`): each number with its unit, and the full-precision
+/// number beside it for scripts (`data-value`).
+pub(crate) struct EddingtonView {
+    pub(crate) mass: String,
+    pub(crate) l5100: String,
+    pub(crate) correction: String,
+    pub(crate) l_bol: (String, String),
+    pub(crate) l_edd: (String, String),
+    pub(crate) ratio: (String, String),
+    pub(crate) efficiency: String,
+    pub(crate) accretion: (String, String, String),
+    /// Which mass and luminosity were used, in words (empty when the page says it).
+    pub(crate) basis: String,
+}
+
+/// `value` as "1.257 × 10⁴⁶" (four significant digits).
+pub(crate) fn scientific(value: f64) -> String {
+    if !value.is_finite() || value <= 0.0 {
+        return significant(value, 4);
+    }
+    let mut exponent = value.log10().floor() as i32;
+    let mut mantissa = value / 10f64.powi(exponent);
+    if format!("{mantissa:.3}").starts_with("10") {
+        mantissa /= 10.0;
+        exponent += 1;
+    }
+    if (-2..=3).contains(&exponent) {
+        return significant(value, 4);
+    }
+    let digits: String = exponent
+        .to_string()
+        .chars()
+        .map(|c| match c {
+            '-' => '⁻',
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            _ => '⁹',
+        })
+        .collect();
+    format!("{mantissa:.3} × 10{digits}")
+}
+
+impl EddingtonView {
+    /// The block for `e`, with `basis` saying which mass and luminosity were used.
+    pub(crate) fn of(e: &crate::relations::agn::Eddington, basis: String) -> Self {
+        let raw = |v: f64| format!("{v:e}");
+        EddingtonView {
+            mass: format!("log M = {} [M☉]", fixed(e.log_mass_msun, 2)),
+            l5100: format!("log λL(5100 Å) = {} [erg/s]", fixed(e.log_l5100_erg_s, 2)),
+            correction: significant(e.bolometric_correction, 3),
+            l_bol: (scientific(e.l_bol_erg_s), raw(e.l_bol_erg_s)),
+            l_edd: (scientific(e.l_edd_erg_s), raw(e.l_edd_erg_s)),
+            ratio: (significant(e.eddington_ratio, 3), raw(e.eddington_ratio)),
+            efficiency: format!(
+                "η = {}–{} (spin {}–{})",
+                fixed(e.efficiency.0, 3),
+                fixed(e.efficiency.1, 3),
+                crate::relations::agn::SPIN_RANGE.0,
+                crate::relations::agn::SPIN_RANGE.1
+            ),
+            accretion: (
+                significant(e.accretion_msun_yr.0, 3),
+                significant(e.accretion_msun_yr.1, 3),
+                format!("{:e} {:e}", e.accretion_msun_yr.0, e.accretion_msun_yr.1),
+            ),
+            basis,
+        }
+    }
+}
+
 /// `/place`.
 #[derive(Template, WebTemplate)]
 #[template(path = "pages/place.html")]
@@ -88,6 +166,12 @@ pub(crate) struct PlacePage {
     soi_threshold: String,
     charts: Vec<PlaceChart>,
     nothing_usable: bool,
+    /// The activity classes for the select: (value, label, selected).
+    activity_options: Vec<(&'static str, &'static str, bool)>,
+    /// The Eddington quantities, when a mass and λL(5100 Å) were given.
+    eddington: Option<EddingtonView>,
+    /// Why there are none although λL(5100 Å) was given.
+    eddington_note: Option<String>,
     /// The catalog version named in the address, if any.
     version_note: Option<super::display::VersionNote>,
 }
@@ -142,6 +226,21 @@ pub(crate) async fn show_place(
         Vec::new()
     };
     let (soi, soi_note) = soi_view(&values, state.settings.soi_threshold);
+    let (eddington, eddington_note) = match values.eddington() {
+        None => (None, None),
+        Some(Ok(e)) => {
+            let basis = values
+                .activity
+                .map(|a| format!("a nucleus classed {}", a.label()))
+                .unwrap_or_default();
+            (Some(EddingtonView::of(&e, basis)), None)
+        }
+        Some(Err(note)) => (None, Some(note)),
+    };
+    let activity_options = crate::catalog::model::Activity::pairs()
+        .into_iter()
+        .map(|(v, l)| (v, l, values.activity.map(|a| a.as_str()) == Some(v)))
+        .collect();
     let (rows, charts): (Vec<PlaceRow>, Vec<Option<PlaceChart>>) = placed.into_iter().unzip();
     let charts = charts.into_iter().flatten().collect();
     let fault = |name: &str| {
@@ -169,6 +268,9 @@ pub(crate) async fn show_place(
         soi_threshold: significant(state.settings.soi_threshold, 2),
         charts,
         version_note,
+        activity_options,
+        eddington,
+        eddington_note,
     })
 }
 
@@ -193,7 +295,7 @@ fn field_views(
         &'static str,
         &String,
         Option<String>,
-    ); 6] = [
+    ); 8] = [
         (
             "sigma",
             "Velocity dispersion σ_e",
@@ -243,6 +345,20 @@ fn field_views(
                 .resolution
                 .as_ref()
                 .map(|e| format!("{}″", significant(e.value, 3))),
+        ),
+        (
+            "log_l5100_erg_s",
+            "λL(5100 Å), for the Eddington quantities",
+            "log10 erg/s, e.g. 44.2",
+            &texts.log_l5100_erg_s,
+            None,
+        ),
+        (
+            "activity",
+            "Activity class of the nucleus",
+            "optional",
+            &texts.activity,
+            None,
         ),
     ];
     fields

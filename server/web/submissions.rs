@@ -29,8 +29,8 @@ use crate::auth::{Principal, Role, SessionUser};
 use crate::catalog::galaxies::{self, SubmissionSource};
 use crate::catalog::intake::{self, Cell, Cells, Checked, GalaxyCells, SubmissionCells, sentence};
 use crate::catalog::model::{
-    BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Measurement, Morphology,
-    Quantity, SigmaDefinition,
+    Activity, BulgeKind, BulgeMassMethod, CentreKind, DistanceMethod, MassMethod, Measurement,
+    Morphology, Quantity, SigmaDefinition, SingleEpochCalibration, WidthDefinition, WidthSpectrum,
 };
 use crate::catalog::submissions::{
     self, GalaxyChoice, ReviewNote, SubmissionError, SubmissionSummary,
@@ -46,11 +46,12 @@ pub(crate) const FORM_ROWS: usize = 3;
 /// At most this many measurement rows on one form ("Add a measurement row" stops there).
 pub(crate) const MAX_FORM_ROWS: usize = 20;
 
-/// A group of measurement fields: (heading, quantities, [(name suffix, label)]).
+/// A group of measurement fields: (heading, quantities, [(name suffix, label)], hint).
 type FieldGroupSpec = (
     &'static str,
     &'static str,
     &'static [(&'static str, &'static str)],
+    &'static str,
 );
 
 /// The measurement fields of the form, grouped by the quantities they apply to: (heading,
@@ -59,7 +60,7 @@ type FieldGroupSpec = (
 /// that the method has one list per quantity (`method_bh`, `method_bulge`, read as `method`).
 /// Without a script every group shows under its heading; `static/submission.js` shows only the
 /// groups of the chosen quantity.
-const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
+const MEASUREMENT_GROUPS: [FieldGroupSpec; 8] = [
     (
         "",
         "",
@@ -72,6 +73,7 @@ const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
                 "Limit confidence [σ], for an upper limit (<)",
             ),
         ],
+        "",
     ),
     (
         "Black-hole mass only",
@@ -80,11 +82,39 @@ const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
             ("method_bh", "How the mass was measured"),
             ("resolution_arcsec", "Resolution [arcsec]"),
         ],
+        "",
+    ),
+    (
+        "Broad-line measurement (reverberation or single-epoch masses)",
+        "bh_mass",
+        &[
+            ("line", "Broad line [such as Hbeta; empty: Hbeta]"),
+            (
+                "width_definition",
+                "Width measure [empty: σ_line; fwhm for single epoch]",
+            ),
+            (
+                "width_spectrum",
+                "Width spectrum [empty: rms; single for single epoch]",
+            ),
+            ("lag_days", "Rest-frame lag [days]"),
+            ("lag_err_days", "Lag error [days: 1.2, or +1.4/-1.1]"),
+            ("width_km_s", "Line width [km/s]"),
+            ("width_err_km_s", "Line width error [km/s]"),
+            ("log_l5100_erg_s", "λL(5100 Å) [log10 erg/s]"),
+            (
+                "virial_factor",
+                "Virial factor f the published mass assumed [dimensionless]",
+            ),
+            ("calibration", "Single-epoch calibration"),
+        ],
+        "Leave the value empty and give a lag and a line width (reverberation), or λL(5100 Å), a width and a calibration (single epoch), and the mass is computed: the virial product, moved to the adopted ⟨f⟩. To enter a published mass instead, type it as the value and give in virial_factor the f that publication assumed (leave it empty when it is not known: the mass is then shown as published, never rescaled).",
     ),
     (
         "Bulge mass only",
         "bulge_mass",
         &[("method_bulge", "How the bulge mass was measured")],
+        "",
     ),
     (
         "Velocity dispersion (σ) only",
@@ -93,16 +123,19 @@ const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
             ("sigma_definition", "σ definition"),
             ("aperture", "Aperture (such as r_e)"),
         ],
+        "",
     ),
     (
         "Bulge luminosity only",
         "bulge_luminosity",
         &[("band", "Band (such as K or V)")],
+        "",
     ),
     (
         "Masses and luminosities (they scale with distance)",
         "bh_mass bulge_mass bulge_luminosity",
         &[("source_distance_mpc", "Distance the source assumed [Mpc]")],
+        "",
     ),
     (
         "",
@@ -111,11 +144,12 @@ const MEASUREMENT_GROUPS: [FieldGroupSpec; 7] = [
             ("reference", "Reference"),
             ("note", "Note on this measurement"),
         ],
+        "",
     ),
 ];
 
 /// The new-galaxy columns, with their labels.
-const GALAXY_COLUMNS: [(&str, &str); 7] = [
+const GALAXY_COLUMNS: [(&str, &str); 8] = [
     ("name", "Name"),
     ("morphology", "Morphology"),
     ("bulge_kind", "Bulge kind"),
@@ -123,6 +157,7 @@ const GALAXY_COLUMNS: [(&str, &str); 7] = [
     ("distance_mpc", "Adopted distance [Mpc]"),
     ("distance_err_mpc", "Distance error [Mpc]"),
     ("distance_method", "Distance method"),
+    ("activity", "Activity class of the nucleus"),
 ];
 
 /// One input of the form: a select when `options` is not empty, a text box otherwise.
@@ -151,6 +186,14 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
         "bulge_kind" => BulgeKind::pairs(),
         "centre_kind" => CentreKind::pairs(),
         "distance_method" => DistanceMethod::pairs(),
+        "activity" => Activity::pairs(),
+        "width_definition" => WidthDefinition::pairs(),
+        "width_spectrum" => WidthSpectrum::pairs(),
+        // Short labels: a select is as wide as its longest option, and the form fits a phone.
+        "calibration" => SingleEpochCalibration::pairs()
+            .into_iter()
+            .map(|(word, _)| (word, calibration_label(word)))
+            .collect(),
         _ => return Vec::new(),
     };
     let mut out = Vec::with_capacity(pairs.len() + 1);
@@ -160,6 +203,15 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
         "scale" => {}
         "morphology" | "bulge_kind" | "centre_kind" | "distance_method" => {
             out.push((String::new(), "choose…".to_owned(), value.is_empty()));
+        }
+        // An empty cell reads as its default (catalog::virial, catalog::intake).
+        "activity" => out.push((
+            String::new(),
+            "not stated (unknown)".to_owned(),
+            value.is_empty(),
+        )),
+        "width_definition" | "width_spectrum" => {
+            out.push((String::new(), "— (default)".to_owned(), value.is_empty()));
         }
         _ => out.push((String::new(), "—".to_owned(), value.is_empty())),
     }
@@ -171,10 +223,20 @@ fn options_for(column: &str, value: &str) -> Vec<(String, String, bool)> {
     out
 }
 
+/// A single-epoch calibration in a few words (the select's option).
+fn calibration_label(word: &str) -> &'static str {
+    match word {
+        "vp06" => "vp06 (Hβ, own f)",
+        _ => "r_l_bentz13 (R–L, ⟨f⟩)",
+    }
+}
+
 /// The fields of a measurement row that apply to some quantities.
 pub(crate) struct FieldGroup {
     /// Which quantities, in words ("Black-hole mass only"); empty for the fields of every one.
     legend: &'static str,
+    /// What to type in the group, in a sentence; empty for none.
+    hint: &'static str,
     /// The stored words of those quantities, space-separated (for the script).
     quantities: &'static str,
     inputs: Vec<Input>,
@@ -260,8 +322,9 @@ async fn form_page(
             number: i + 1,
             groups: MEASUREMENT_GROUPS
                 .iter()
-                .map(|(legend, quantities, columns)| FieldGroup {
+                .map(|(legend, quantities, columns, hint)| FieldGroup {
                     legend,
+                    hint,
                     quantities,
                     inputs: columns
                         .iter()

@@ -11,6 +11,11 @@ use crate::helpers::spawn_demo_app;
 /// Names of the demo galaxies whose adopted black-hole mass is a virial mass and that have an
 /// adopted σ_e (the galaxies M–σ would take if virial masses entered).
 fn virial_with_sigma_e() -> Vec<String> {
+    virial_with_sigma_e_by(is_virial_method)
+}
+
+/// As [`virial_with_sigma_e`], for the virial mass methods `method` admits.
+fn virial_with_sigma_e_by(method: fn(&str) -> bool) -> Vec<String> {
     let demo = parse_demo(DEMO_GALAXIES_CSV, DEMO_MEASUREMENTS_CSV).unwrap();
     (0..demo.galaxies.len())
         .filter(|&gi| {
@@ -20,7 +25,8 @@ fn virial_with_sigma_e() -> Vec<String> {
                     .find(|(i, m, a)| *i == gi && *a && m.quantity == q)
                     .map(|(_, m, _)| m)
             };
-            adopted(Quantity::BlackHoleMass).is_some_and(|m| is_virial_method(&m.method))
+            adopted(Quantity::BlackHoleMass)
+                .is_some_and(|m| is_virial_method(&m.method) && method(&m.method))
                 && adopted(Quantity::VelocityDispersion)
                     .is_some_and(|m| m.sigma_definition == "sigma_e")
         })
@@ -38,6 +44,11 @@ async fn default_fits_leave_virial_masses_out_and_say_so_and_including_them_is_a
     let virial = virial_with_sigma_e();
     assert!(!virial.is_empty(), "the demo has virial masses with σ_e");
     let k = virial.len() as u64;
+    let k_rm = virial_with_sigma_e_by(|m| m == "reverberation").len() as u64;
+    assert!(
+        k_rm > 0 && k_rm < k,
+        "the demo has reverberation and single-epoch masses"
+    );
 
     let (status, body) = app.get("/api/v1/relations/m_sigma").await;
     assert_eq!(status, 200, "{body}");
@@ -49,13 +60,16 @@ async fn default_fits_leave_virial_masses_out_and_say_so_and_including_them_is_a
         .get("/api/v1/relations/m_sigma?masses=with_reverberation")
         .await;
     let with: serde_json::Value = serde_json::from_str(&body).unwrap();
-    assert_eq!(with["left_out_virial"], 0, "{with}");
+    assert_eq!(with["left_out_virial"], k - k_rm, "{with}");
     assert_eq!(with["sample_filter"]["masses"], "with_reverberation");
-    // Every reverberation mass with σ_e enters (the demo's virial masses are reverberation).
-    assert_eq!(n(&with), n(&default) + k, "{with}");
+    // Every reverberation mass with σ_e enters; the single-epoch ones stay out.
+    assert_eq!(n(&with), n(&default) + k_rm, "{with}");
     // A different sample is a different fit to cite, and a different result.
     assert_ne!(with["fit_id"], default["fit_id"]);
-    assert_ne!(with["fit"]["alpha_log_mbh"], default["fit"]["alpha_log_mbh"]);
+    assert_ne!(
+        with["fit"]["alpha_log_mbh"],
+        default["fit"]["alpha_log_mbh"]
+    );
     assert!(with["fit"]["alpha_log_mbh"].is_f64());
 
     // Choosing one mass method overrides the kinds: reverberation alone.
@@ -63,7 +77,7 @@ async fn default_fits_leave_virial_masses_out_and_say_so_and_including_them_is_a
         .get("/api/v1/relations/m_sigma?mass_method=reverberation")
         .await;
     let alone: serde_json::Value = serde_json::from_str(&body).unwrap();
-    assert_eq!(n(&alone), k, "{alone}");
+    assert_eq!(n(&alone), k_rm, "{alone}");
 
     let (status, body) = app.get("/api/v1/relations/m_sigma?masses=agn").await;
     assert_eq!(status, 422, "{body}");
@@ -85,8 +99,8 @@ async fn default_fits_leave_virial_masses_out_and_say_so_and_including_them_is_a
     assert!(note.contains("circular"), "{note}");
     assert!(page.contains("name=\"masses\""), "{page}");
     assert!(page.contains("name=\"activity\""), "{page}");
-    let with_page = app.ok("/relations/m_sigma?masses=with_reverberation").await;
-    assert!(!with_page.contains("id=\"virial-note\""));
+    let all_page = app.ok("/relations/m_sigma?masses=all").await;
+    assert!(!all_page.contains("id=\"virial-note\""));
 
     // The methods paragraph says it too.
     let methods = app.ok("/relations/m_sigma/methods.txt").await;

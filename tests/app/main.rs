@@ -7,12 +7,14 @@ mod helpers;
 
 mod access;
 mod accounts;
+mod agn_doors;
 mod agn_relations;
 mod analysis;
 mod api;
 mod api_fuzz;
 mod catalog_search;
 mod changes;
+mod demo_agn;
 mod exports;
 mod galaxy_names;
 mod galaxy_relations;
