@@ -44,7 +44,7 @@ pub enum CalibrationBulgeWord {
 pub enum SlopeWord {
     /// Held at the quiescent structural fit (the default).
     Held,
-    /// Fitted jointly with the AGN (answered with `problem` while not available).
+    /// α and β fitted with both samples in one likelihood.
     Joint,
 }
 
@@ -60,7 +60,8 @@ pub struct CalibrationQuery {
     pub slope: Option<SlopeWord>,
 }
 
-/// The quiescent structural M–σ fit the AGN are held against.
+/// The M–σ relation the AGN are compared with: the quiescent structural fit (`held`) or the
+/// joint fit of both samples (`joint`).
 #[derive(Debug, Serialize, ToSchema)]
 pub struct QuiescentFitJson {
     /// α: log10 M_BH at the pivot, M☉.
@@ -96,7 +97,7 @@ pub struct CalibratedJson {
     pub f_high: f64,
     /// The AGN's scatter about the shifted relation ε_A (restricted likelihood), dex.
     pub eps_agn_dex: f64,
-    /// The quiescent fit.
+    /// The relation: the quiescent fit (held) or the joint fit (joint).
     pub quiescent_fit: QuiescentFitJson,
 }
 
@@ -246,7 +247,8 @@ impl CalibrationJson {
 }
 
 /// The calibration of log ⟨f⟩: reverberation AGN (log VP, σ_e) against the quiescent M–σ
-/// structural fit (dynamical masses, σ_e), the slope held (docs/methods.md §4.3).
+/// relation (dynamical masses, σ_e), the slope held at the quiescent structural fit or fitted
+/// jointly (docs/methods.md §4.3).
 #[utoipa::path(
     get,
     path = "/api/v1/virial-factor",

@@ -12,7 +12,8 @@
 //! ```
 //!
 //! (the rows carry the mass already moved to the factor in force, `mbh_log_f`; §4.1). The
-//! calibration is `fit::virial::calibrate` (slope held at the quiescent structural fit). The
+//! calibration is `fit::virial::calibrate_with`: the slope held at the quiescent structural fit,
+//! or fitted jointly with the AGN (`SlopeChoice`). The
 //! page `/virial-factor`, the API's `/api/v1/virial-factor` and `massline virial-factor` all
 //! answer from [`calibration`]; [`adopt_calibration`] adopts one.
 
@@ -22,15 +23,16 @@ use super::{Catalog, FitChoice, Relation, build_sample};
 use crate::catalog::model::{BulgeKind, WidthDefinition};
 use crate::catalog::virial as stored;
 use crate::error::{AppError, AppResult};
-use crate::fit::virial::{AgnPoint, MIN_AGN, calibrate};
+use crate::fit::virial::{AgnPoint, MIN_AGN, SlopeMode, calibrate_with};
 
-/// How the slope of the relation the AGN are held against is set.
+/// How the slope of the relation the AGN are held against is set (`fit::virial::SlopeMode`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum SlopeChoice {
     /// α and β from the quiescent structural fit, their errors carried (the default).
     #[default]
     Held,
-    /// α and β fitted with both samples in one likelihood (not available yet).
+    /// α and β fitted with both samples in one likelihood, each with its own true-σ model and
+    /// scatter.
     Joint,
 }
 
@@ -40,10 +42,7 @@ impl SlopeChoice {
 
     /// The query word.
     pub fn as_str(self) -> &'static str {
-        match self {
-            SlopeChoice::Held => "held",
-            SlopeChoice::Joint => "joint",
-        }
+        self.mode().as_str()
     }
 
     /// The words shown to people.
@@ -54,9 +53,12 @@ impl SlopeChoice {
         }
     }
 
-    /// Whether this build can compute it.
-    pub fn available(self) -> bool {
-        matches!(self, SlopeChoice::Held)
+    /// The fit's mode.
+    pub fn mode(self) -> SlopeMode {
+        match self {
+            SlopeChoice::Held => SlopeMode::Held,
+            SlopeChoice::Joint => SlopeMode::Joint,
+        }
     }
 }
 
@@ -75,9 +77,6 @@ impl fmt::Display for SlopeChoice {
         f.write_str(self.label())
     }
 }
-
-/// The sentence for the joint choice while it cannot be computed.
-pub const JOINT_NOT_AVAILABLE: &str = "The joint calibration (α and β fitted with the quiescent galaxies and the AGN together) is not available yet; choose the slope held at the quiescent fit.";
 
 /// What a calibration is asked for.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -284,7 +283,8 @@ pub struct Calibrated {
     pub f_interval: (f64, f64),
     /// The AGN's scatter about the shifted relation ε_A, dex.
     pub eps_agn: f64,
-    /// The quiescent structural fit's α (log10 M☉ at the pivot), β (dex per dex) and ε (dex).
+    /// The relation's α (log10 M☉ at the pivot), β (dex per dex) and ε (dex): the quiescent
+    /// structural fit's (held), or the joint fit's (joint).
     pub alpha: WithError,
     /// β.
     pub beta: WithError,
@@ -390,9 +390,7 @@ pub async fn calibration(catalog: &Catalog, ask: CalibrationAsk) -> AppResult<Ca
             log_vp_err: row.mbh_err_dex.unwrap_or(0.0),
         });
     }
-    let outcome = if !ask.slope.available() {
-        Err(JOINT_NOT_AVAILABLE.to_owned())
-    } else if agn.len() < MIN_AGN {
+    let outcome = if agn.len() < MIN_AGN {
         Err(too_few_sentence(
             &ask,
             snapshot.version,
@@ -410,7 +408,8 @@ pub async fn calibration(catalog: &Catalog, ask: CalibrationAsk) -> AppResult<Ca
             })
             .collect();
         let q = sample.points.clone();
-        let fitted = tokio::task::spawn_blocking(move || calibrate(&q, &points, pivot))
+        let mode = ask.slope.mode();
+        let fitted = tokio::task::spawn_blocking(move || calibrate_with(mode, &q, &points, pivot))
             .await
             .map_err(|e| AppError::Internal(anyhow::anyhow!("calibration task: {e}")))?;
         fitted

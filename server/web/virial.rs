@@ -27,7 +27,6 @@ pub(crate) struct Choice {
     value: &'static str,
     label: String,
     selected: bool,
-    disabled: bool,
 }
 
 /// The calibration's numbers, for display.
@@ -90,6 +89,8 @@ pub(crate) struct VirialFactorPage {
     slopes: Vec<Choice>,
     sample_words: String,
     slope_words: &'static str,
+    /// Which fit the relation shown is.
+    relation_words: &'static str,
     n_agn: usize,
     n_quiescent: usize,
     left_out: String,
@@ -186,7 +187,6 @@ async fn page(
             value: w.as_str(),
             label: w.label().to_owned(),
             selected: *w == ask.width,
-            disabled: false,
         })
         .collect();
     let bulges = [None, Some(BulgeKind::Classical), Some(BulgeKind::Pseudo)]
@@ -195,20 +195,14 @@ async fn page(
             value: b.map_or("any", BulgeKind::as_str),
             label: b.map_or("any".to_owned(), |b| b.label().to_owned()),
             selected: b == ask.bulge_kind,
-            disabled: false,
         })
         .collect();
     let slopes = SlopeChoice::ALL
         .into_iter()
         .map(|s| Choice {
             value: s.as_str(),
-            label: if s.available() {
-                s.label().to_owned()
-            } else {
-                format!("{} (not available yet)", s.label())
-            },
+            label: s.label().to_owned(),
             selected: s == ask.slope,
-            disabled: !s.available(),
         })
         .collect();
     let result = view.outcome.as_ref().ok().map(|c| ResultView {
@@ -290,6 +284,10 @@ async fn page(
         slopes,
         sample_words: ask.words(),
         slope_words: ask.slope.label(),
+        relation_words: match ask.slope {
+            SlopeChoice::Held => "the quiescent structural fit",
+            SlopeChoice::Joint => "the joint fit of both samples",
+        },
         n_agn: view.agn.len(),
         n_quiescent: view.quiescent.len(),
         left_out: view.left_out.words(),

@@ -238,6 +238,32 @@ async fn the_calibration_recovers_a_known_factor_and_adopting_it_moves_only_the_
     let old_log_f = api["adopted_log_f"].as_f64().unwrap();
     assert!((old_log_f - 0.64).abs() < 1e-12, "{old_log_f}");
 
+    // The joint mode (α and β fitted with both samples) finds it too, page and API alike.
+    let joint = app
+        .get_with_token("/api/v1/virial-factor?slope=joint", None)
+        .await
+        .json();
+    assert_eq!(joint["slope"], "joint");
+    let jc = &joint["calibration"];
+    let (joint_log_f, joint_err) = (
+        jc["log_f"].as_f64().unwrap(),
+        jc["log_f_err_dex"].as_f64().unwrap(),
+    );
+    assert!(
+        (joint_log_f - TRUE_LOG_F).abs() < joint_err,
+        "joint log f = {joint_log_f} ± {joint_err}, invented {TRUE_LOG_F}"
+    );
+    assert_ne!(joint_log_f, log_f, "the joint mode is a fit of its own");
+    let joint_page = app.ok("/virial-factor?slope=joint").await;
+    assert!(
+        (cell_number(&joint_page, "log-f") - joint_log_f).abs() <= 0.005,
+        "{joint_page}"
+    );
+    assert!(
+        joint_page.contains("value=\"joint\" checked"),
+        "{joint_page}"
+    );
+
     let page = app.ok("/virial-factor?width_definition=sigma_line").await;
     let shown = cell_number(&page, "log-f");
     assert!((shown - log_f).abs() <= 0.005, "page {shown}, API {log_f}");
@@ -418,19 +444,12 @@ async fn too_few_agn_are_said_with_what_is_missing_and_bad_choices_are_refused()
     let page = app.ok("/virial-factor?bulge_kind=pseudo").await;
     assert!(page.contains("id=\"calibration-problem\""), "{page}");
     assert!(page.contains("pseudo bulges only"), "{page}");
-    // The joint choice is shown, disabled, and asked for anyway it says why there is none.
-    assert!(page.contains("value=\"joint\" disabled"), "{page}");
     let joint = app
         .get_with_token("/api/v1/virial-factor?slope=joint", None)
         .await
         .json();
-    assert!(
-        joint["problem"]
-            .as_str()
-            .unwrap()
-            .contains("not available yet"),
-        "{joint}"
-    );
+    assert_eq!(joint["slope"], "joint");
+    assert!(joint["calibration"].is_null(), "{joint}");
     let bad = app
         .get_with_token(
             "/api/v1/virial-factor?width_definition=fwhm2&colour=red",
