@@ -138,6 +138,25 @@ pub struct RelationChangeJson {
     pub problems: Vec<String>,
 }
 
+/// A mean virial factor adopted in the range.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct FactorChangeJson {
+    /// The width measure word (`sigma_line`, `fwhm`).
+    pub width_definition: String,
+    /// log10 ⟨f⟩ in force just before; null if none.
+    pub old_log_f: Option<f64>,
+    /// log10 ⟨f⟩ adopted.
+    pub new_log_f: f64,
+    /// Its error, dex.
+    pub new_log_f_err_dex: f64,
+    /// The catalog version it made.
+    pub catalog_version: i64,
+    /// Who adopted it; null from the command line.
+    pub adopted_by: Option<String>,
+    /// What was calibrated, as recorded.
+    pub source: String,
+}
+
 /// What changed between two catalog versions.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct ChangesJson {
@@ -159,6 +178,8 @@ pub struct ChangesJson {
     pub distances: Vec<DistanceChangeJson>,
     /// Each relation's default fit at both versions.
     pub relations: Vec<RelationChangeJson>,
+    /// Mean virial factors adopted, oldest first.
+    pub virial_factors: Vec<FactorChangeJson>,
 }
 
 impl ChangesJson {
@@ -241,6 +262,19 @@ impl ChangesJson {
                         })
                         .collect(),
                     problems: r.problems.clone(),
+                })
+                .collect(),
+            virial_factors: c
+                .virial_factors
+                .iter()
+                .map(|f| FactorChangeJson {
+                    width_definition: f.width_definition.clone(),
+                    old_log_f: f.old_log_f,
+                    new_log_f: f.new_log_f.0,
+                    new_log_f_err_dex: f.new_log_f.1,
+                    catalog_version: f.catalog_version,
+                    adopted_by: f.adopted_by.clone(),
+                    source: f.source.clone(),
                 })
                 .collect(),
         }

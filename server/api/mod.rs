@@ -6,6 +6,7 @@
 //! One file per area: [`relations`] (the relations and their fits, with ETags), [`place`] (one
 //! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`catalog`] (the accepted
 //! catalog as CSV or JSON), [`changes`] (what changed between two versions), [`releases`],
+//! [`virial`] (the virial factor's calibration and adoptions),
 //! [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
 //! generated from the handlers' `#[utoipa::path]` attributes and the answers' `ToSchema`
 //! derives, so it cannot drift from the code) and [`cache`] (what the API keeps per catalog
@@ -24,6 +25,7 @@ pub mod relations;
 pub mod releases;
 pub mod runs;
 pub mod submissions;
+pub mod virial;
 
 pub use crate::router::query_pairs;
 
@@ -210,6 +212,18 @@ fn routes() -> Routes {
             "/api/v1/releases",
             Read,
             get(releases::list_releases),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/virial-factor",
+            Read,
+            get(virial::virial_factor),
+        )
+        .add(
+            Method::GET,
+            "/api/v1/virial-factor/adopted",
+            Read,
+            get(virial::adopted),
         )
         .add(
             Method::POST,

@@ -63,6 +63,8 @@ impl Modify for BearerScheme {
         super::catalog::catalog_json,
         super::changes::catalog_changes,
         super::releases::list_releases,
+        super::virial::virial_factor,
+        super::virial::adopted,
         super::submissions::submit,
         super::submissions::status,
         openapi_json,
@@ -86,6 +88,9 @@ impl Modify for BearerScheme {
         super::galaxies::SoiChoiceWord,
         super::galaxies::SortWord,
         super::galaxies::DirWord,
+        super::virial::WidthWord,
+        super::virial::CalibrationBulgeWord,
+        super::virial::SlopeWord,
     )),
     modifiers(&BearerScheme),
     tags(

@@ -374,6 +374,44 @@ pub fn residual_svg(chart: &ResidualChart) -> Result<String, ChartError> {
     draw::residual(chart)
 }
 
+/// Draws the virial-factor calibration chart (docs/methods.md §4.3): log₁₀ σ against
+/// log₁₀ M_BH with the quiescent galaxies (group 0, `quiescent_label`), the quiescent fit
+/// `line`, and the AGN at log₁₀ VP + log₁₀ ⟨f⟩ (group 1, `agn_label`: its own marker shape and
+/// legend entry). `title` is the chart's accessible name. Every text is escaped by
+/// [`relation_svg`], which draws it; the points' own `group` fields are overwritten.
+///
+/// # Errors
+///
+/// As [`relation_svg`].
+pub fn virial_calibration_svg(
+    title: &str,
+    quiescent: (&str, Vec<ChartPoint>),
+    agn: (&str, Vec<ChartPoint>),
+    line: Option<LineSpec>,
+) -> Result<String, ChartError> {
+    let points = quiescent
+        .1
+        .into_iter()
+        .map(|p| ChartPoint { group: 0, ..p })
+        .chain(agn.1.into_iter().map(|p| ChartPoint { group: 1, ..p }))
+        .collect();
+    relation_svg(&RelationChart {
+        title: title.to_owned(),
+        x_label: sigma_axis_label(),
+        points,
+        groups: vec![
+            Group {
+                label: quiescent.0.to_owned(),
+            },
+            Group {
+                label: agn.0.to_owned(),
+            },
+        ],
+        line,
+        ..RelationChart::default()
+    })
+}
+
 /// Width of the PNG chart in pixels: 3.5 inches at [`PNG_DPI`], a single journal column
 /// (common practice: single columns are about 3.3–3.5 inches wide).
 pub const PNG_WIDTH: u32 = 1050;

@@ -1889,3 +1889,39 @@ fn the_png_is_a_png_of_the_print_size_with_its_resolution() {
     let empty = relation_png(&RelationChart::default()).expect("empty chart draws");
     assert_eq!(&empty[..8], b"\x89PNG\r\n\x1a\n");
 }
+
+#[test]
+fn the_calibration_chart_draws_the_agn_with_their_own_shape_and_legend_entry() {
+    let quiescent: Vec<ChartPoint> = (0..4)
+        .map(|i| point(&format!("Q{i}"), 2.1 + 0.1 * f64::from(i), 8.0, 7))
+        .collect();
+    let agn = vec![point("A<1>", 2.0, 7.2, 9)];
+    let line = LineSpec {
+        alpha: 8.3,
+        beta: 5.0,
+        beta2: None,
+        pivot: 2.30103,
+        scatter_dex: 0.0,
+    };
+    let svg = virial_calibration_svg(
+        "Calibration & check",
+        ("Quiescent galaxies", quiescent),
+        ("AGN, shifted", agn),
+        Some(line),
+    )
+    .expect("chart draws");
+    let texts = texts(&svg);
+    assert!(texts.contains(&"Quiescent galaxies"), "{texts:?}");
+    assert!(texts.contains(&"AGN, shifted"), "{texts:?}");
+    // Group 0 is drawn as circles and group 1 as another shape (a polygon).
+    assert!(
+        count(&svg, "<circle class=\"mk\"") >= 4,
+        "the four quiescent points"
+    );
+    assert!(
+        count(&svg, "<polygon class=\"mk\"") >= 1,
+        "the AGN's own shape"
+    );
+    assert!(svg.contains("A&lt;1&gt;"), "names are escaped");
+    assert!(!svg.contains("A<1>"));
+}

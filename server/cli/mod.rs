@@ -10,12 +10,13 @@
 //! massline export > FILE.csv                          write the adopted catalog (CSV, JSON or VOTable)
 //! massline backup PATH [--db DB] [--force]            a checked copy of the live database
 //! massline release NAME [--version N] [--note TEXT]   name a catalog version as a release
+//! massline virial-factor [--width-definition W] [--adopt]  calibrate ⟨f⟩ (and adopt it)
 //! ```
 //!
 //! The command line is one of the three doors (pages and the JSON API are the others): each
 //! subcommand reads its arguments and files, calls the layers below and writes the result.
 //! [`main`] parses the arguments and dispatches to [`serve`], [`fit`], [`user`],
-//! [`catalog_files`] (import and export), [`backup`] and [`release`].
+//! [`catalog_files`] (import and export), [`backup`], [`release`] and [`virial`].
 
 pub mod backup;
 pub mod catalog_files;
@@ -23,6 +24,7 @@ pub mod fit;
 pub mod release;
 pub mod serve;
 pub mod user;
+pub mod virial;
 
 use clap::{Parser, Subcommand};
 
@@ -52,6 +54,8 @@ enum Command {
     Backup(backup::BackupArgs),
     /// Name a catalog version as a release (e.g. for a paper); a release never moves.
     Release(release::ReleaseArgs),
+    /// Calibrate the mean virial factor <f> of reverberation AGN on the catalog; --adopt adopts it.
+    VirialFactor(virial::VirialArgs),
 }
 
 /// Parses the command line, runs the subcommand and turns its outcome into the exit code: 0,
@@ -75,6 +79,7 @@ pub fn main() -> std::process::ExitCode {
         ),
         Command::Backup(args) => backup::run(&args),
         Command::Release(args) => release::run(&args, &mut std::io::stdout().lock()),
+        Command::VirialFactor(args) => virial::run(&args, &mut std::io::stdout().lock()),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,

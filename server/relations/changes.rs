@@ -1,7 +1,7 @@
 //! What changed between two catalog versions: the galaxies added, the values adopted or
 //! replaced, the distances changed (`catalog::changes`), and how each relation's default fit
 //! (structural estimator, default sample and pivots) moved, with the significance of each
-//! parameter's change (docs/methods.md §10). The page `/changes` and the API's
+//! parameter's change (docs/methods.md §10), and the mean virial factors adopted. The page `/changes` and the API's
 //! `/api/v1/changes` both answer from [`changes`].
 
 use super::{Catalog, FitChoice, Relation};
@@ -194,6 +194,8 @@ pub struct Changes {
     pub distances: Vec<stored::DistanceChange>,
     /// Every relation of either version.
     pub relations: Vec<RelationChange>,
+    /// Mean virial factors adopted in the range, oldest first.
+    pub virial_factors: Vec<FactorChange>,
 }
 
 /// Who accepted a value, in words: the reviewer's name, or how it entered without a review.
@@ -339,7 +341,60 @@ pub async fn changes(catalog: &Catalog, from: Pinned, to: Pinned) -> anyhow::Res
         values,
         distances,
         relations,
+        virial_factors: factors_adopted(pool, a, b).await?,
     })
+}
+
+/// A mean virial factor adopted in the range (`catalog::virial::adopt`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct FactorChange {
+    /// The width measure word ('sigma_line' or 'fwhm').
+    pub width_definition: String,
+    /// log10 ⟨f⟩ in force just before, dex (None if the width measure had none).
+    pub old_log_f: Option<f64>,
+    /// log10 ⟨f⟩ adopted, with its error, dex.
+    pub new_log_f: (f64, f64),
+    /// The catalog version it made.
+    pub catalog_version: i64,
+    /// Who adopted it (None: the command line).
+    pub adopted_by: Option<String>,
+    /// What was calibrated, as recorded.
+    pub source: String,
+}
+
+/// The virial factors adopted in (from, to], oldest first, each with the factor it replaced.
+///
+/// # Errors
+/// When the database cannot be read.
+async fn factors_adopted(
+    pool: &sqlx::SqlitePool,
+    from: i64,
+    to: i64,
+) -> sqlx::Result<Vec<FactorChange>> {
+    let mut out = Vec::new();
+    let mut adopted = crate::catalog::virial::adoptions(pool).await?;
+    adopted.retain(|a| a.from_version > from && a.from_version <= to);
+    adopted.reverse();
+    for a in adopted {
+        let before = crate::catalog::virial::factors_at(pool, a.from_version - 1)
+            .await
+            .ok();
+        let old_log_f = before.and_then(|f| {
+            a.width_definition
+                .parse::<crate::catalog::model::WidthDefinition>()
+                .ok()
+                .map(|w| f.of(w).0)
+        });
+        out.push(FactorChange {
+            width_definition: a.width_definition,
+            old_log_f,
+            new_log_f: (a.log_f, a.log_f_err_dex),
+            catalog_version: a.from_version,
+            adopted_by: a.username,
+            source: a.source,
+        });
+    }
+    Ok(out)
 }
 
 #[cfg(test)]

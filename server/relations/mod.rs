@@ -35,6 +35,7 @@ mod runs;
 mod sample;
 pub mod table;
 pub mod version_analysis;
+pub mod virial;
 
 use std::fmt;
 

@@ -80,6 +80,36 @@ pub(crate) struct ChangesPage {
     values: Vec<ValueView>,
     distances: Vec<DistanceView>,
     relations: Vec<RelationView>,
+    factors: Vec<FactorView>,
+}
+
+/// A virial factor adopted in the range.
+pub(crate) struct FactorView {
+    width: &'static str,
+    old: String,
+    new: String,
+    version: i64,
+    by: String,
+    source: String,
+}
+
+impl FactorView {
+    fn of(c: &crate::relations::changes::FactorChange) -> Self {
+        Self {
+            width: c
+                .width_definition
+                .parse::<crate::catalog::model::WidthDefinition>()
+                .map_or("unknown width", |w| w.label()),
+            old: c.old_log_f.map_or_else(|| "—".to_owned(), |v| fixed(v, 3)),
+            new: with_errors(Uncertain::symmetric(c.new_log_f.0, c.new_log_f.1), 3),
+            version: c.catalog_version,
+            by: c
+                .adopted_by
+                .clone()
+                .unwrap_or_else(|| "command line".to_owned()),
+            source: c.source.clone(),
+        }
+    }
 }
 
 /// A quantity and band in words ("black-hole mass", "bulge luminosity (K)").
@@ -210,6 +240,7 @@ impl ChangesPage {
             values: c.values.iter().map(ValueView::of).collect(),
             distances: c.distances.iter().map(DistanceView::of).collect(),
             relations: c.relations.iter().map(RelationView::of).collect(),
+            factors: c.virial_factors.iter().map(FactorView::of).collect(),
         }
     }
 }

@@ -24,6 +24,7 @@ mod relations;
 mod releases;
 mod review;
 mod submissions;
+mod virial;
 
 use axum::extract::FromRequestParts;
 use axum::http::request::Parts;
@@ -146,6 +147,18 @@ fn routes() -> Routes {
             "/relations/{relation}/runs",
             Session,
             post(relations::start_run),
+        )
+        .add(
+            Method::GET,
+            "/virial-factor",
+            Read,
+            get(virial::show_virial_factor),
+        )
+        .add(
+            Method::POST,
+            "/virial-factor/adopt",
+            Admin,
+            post(virial::adopt),
         )
         .add(Method::GET, "/fits/{id}", Read, get(fits::show_fit))
         .add(Method::GET, "/place", Read, get(place::show_place))

@@ -27,3 +27,4 @@ mod security;
 mod sessions;
 mod storage;
 mod submissions;
+mod virial;
