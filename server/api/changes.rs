@@ -102,6 +102,26 @@ pub struct DistanceChangeJson {
     pub note: String,
 }
 
+/// One activity-class change.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct ActivityChangeJson {
+    /// Galaxy name.
+    pub galaxy: String,
+    /// Galaxy URL form.
+    pub slug: String,
+    /// Old class (`quiescent`, `seyfert1`, `seyfert2`, `liner`, `quasar`, `radio_galaxy`,
+    /// `unknown`).
+    pub old_activity: String,
+    /// New class.
+    pub new_activity: String,
+    /// The catalog version it happened at.
+    pub catalog_version: i64,
+    /// Who changed it; null when no account did (the system).
+    pub changed_by: Option<String>,
+    /// The note given with the change.
+    pub note: String,
+}
+
 /// One parameter of a relation's default fit at both versions.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct ParamChangeJson {
@@ -176,6 +196,8 @@ pub struct ChangesJson {
     pub values: Vec<ValueChangeJson>,
     /// Distances changed.
     pub distances: Vec<DistanceChangeJson>,
+    /// Activity classes changed.
+    pub activities: Vec<ActivityChangeJson>,
     /// Each relation's default fit at both versions.
     pub relations: Vec<RelationChangeJson>,
     /// Mean virial factors adopted, oldest first.
@@ -236,6 +258,19 @@ impl ChangesJson {
                     new_distance_mpc: d.new_distance_mpc,
                     new_distance_err_mpc: d.new_distance_err_mpc,
                     new_distance_method: d.new_method.clone(),
+                    catalog_version: d.catalog_version,
+                    changed_by: d.changed_by.clone(),
+                    note: d.note(),
+                })
+                .collect(),
+            activities: c
+                .activities
+                .iter()
+                .map(|d| ActivityChangeJson {
+                    galaxy: d.galaxy_name.clone(),
+                    slug: d.slug.clone(),
+                    old_activity: d.old_activity.clone(),
+                    new_activity: d.new_activity.clone(),
                     catalog_version: d.catalog_version,
                     changed_by: d.changed_by.clone(),
                     note: d.note(),

@@ -236,6 +236,78 @@ pub async fn distances_changed(
     .await
 }
 
+/// A galaxy's activity class changed in the range.
+#[derive(Debug, Clone, PartialEq, sqlx::FromRow)]
+pub struct ActivityChange {
+    /// The galaxy.
+    pub galaxy_id: i64,
+    /// Its name at the version of the change.
+    pub galaxy_name: String,
+    /// Its URL form.
+    pub slug: String,
+    /// Old class word.
+    pub old_activity: String,
+    /// New class word.
+    pub new_activity: String,
+    /// The version it happened at.
+    pub catalog_version: i64,
+    /// Who changed it, by username (from the audit event), if anyone.
+    pub changed_by: Option<String>,
+    /// The audit event's sentence, which carries the note (None without an event).
+    pub summary: Option<String>,
+}
+
+impl ActivityChange {
+    /// The note given with the change: the audit sentence after its fixed part
+    /// ("Activity class of NAME: old → new."); empty without an event.
+    pub fn note(&self) -> String {
+        let Some(summary) = &self.summary else {
+            return String::new();
+        };
+        let fixed = format!(
+            "Activity class of {}: {} → {}.",
+            self.galaxy_name, self.old_activity, self.new_activity
+        );
+        summary
+            .strip_prefix(&fixed)
+            .map_or_else(|| summary.clone(), |rest| rest.trim().to_owned())
+    }
+}
+
+/// Every activity-class change in (from, to]: a galaxy span starting in the range whose
+/// predecessor had another class, with the audit event of that version, by version and name.
+///
+/// # Errors
+/// Any database error.
+pub async fn activities_changed(
+    pool: &SqlitePool,
+    from: i64,
+    to: i64,
+) -> sqlx::Result<Vec<ActivityChange>> {
+    sqlx::query_as(
+        "select s.galaxy_id, s.name as galaxy_name, s.slug, p.activity as old_activity,
+                s.activity as new_activity, s.valid_from_version as catalog_version,
+                a.username as changed_by, e.summary
+           from galaxy_span s
+           join galaxy_span p on p.galaxy_id = s.galaxy_id
+                             and p.valid_until_version = s.valid_from_version
+                             and p.valid_until_version > p.valid_from_version
+           left join audit_event e on e.audit_event_id =
+                (select max(audit_event_id) from audit_event
+                  where action = 'activity_changed' and entity = 'galaxy'
+                    and entity_id = s.galaxy_id and catalog_version = s.valid_from_version)
+           left join account a on a.account_id = e.account_id
+          where s.valid_from_version > ?1 and s.valid_from_version <= ?2
+            and (s.valid_until_version is null or s.valid_until_version > s.valid_from_version)
+            and p.activity <> s.activity
+       order by s.valid_from_version, s.name",
+    )
+    .bind(from)
+    .bind(to)
+    .fetch_all(pool)
+    .await
+}
+
 /// The distance change of galaxy `galaxy_id` made at version `version` by account
 /// `account_id`, if there is one: what a galaxy page confirms to the person who made it.
 ///

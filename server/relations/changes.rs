@@ -192,6 +192,8 @@ pub struct Changes {
     pub values: Vec<stored::AdoptedChange>,
     /// Distances changed in the range.
     pub distances: Vec<stored::DistanceChange>,
+    /// Activity classes changed in the range.
+    pub activities: Vec<stored::ActivityChange>,
     /// Every relation of either version.
     pub relations: Vec<RelationChange>,
     /// Mean virial factors adopted in the range, oldest first.
@@ -286,6 +288,7 @@ pub async fn changes(catalog: &Catalog, from: Pinned, to: Pinned) -> anyhow::Res
         .collect();
     let values = stored::values_adopted(pool, a, b).await?;
     let distances = stored::distances_changed(pool, a, b).await?;
+    let activities = stored::activities_changed(pool, a, b).await?;
     let at_from = catalog.at(Some(a));
     let at_to = catalog.at(Some(b));
     let relations_from = at_from.relations().await?;
@@ -340,6 +343,7 @@ pub async fn changes(catalog: &Catalog, from: Pinned, to: Pinned) -> anyhow::Res
         galaxies_added,
         values,
         distances,
+        activities,
         relations,
         virial_factors: factors_adopted(pool, a, b).await?,
     })

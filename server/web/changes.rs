@@ -47,6 +47,38 @@ pub(crate) struct DistanceView {
     note: String,
 }
 
+/// An activity class changed in the range.
+pub(crate) struct ActivityView {
+    galaxy: String,
+    slug: String,
+    old: &'static str,
+    new: &'static str,
+    version: i64,
+    by: String,
+    note: String,
+}
+
+impl ActivityView {
+    fn of(c: &crate::catalog::changes::ActivityChange) -> Self {
+        let label = |w: &str| {
+            w.parse::<crate::catalog::model::Activity>()
+                .map_or("unknown", crate::catalog::model::Activity::label)
+        };
+        Self {
+            galaxy: c.galaxy_name.clone(),
+            slug: c.slug.clone(),
+            old: label(&c.old_activity),
+            new: label(&c.new_activity),
+            version: c.catalog_version,
+            by: c
+                .changed_by
+                .clone()
+                .unwrap_or_else(|| "no account (the system)".to_owned()),
+            note: c.note(),
+        }
+    }
+}
+
 /// One parameter of one relation.
 pub(crate) struct ParamView {
     symbol: &'static str,
@@ -79,6 +111,7 @@ pub(crate) struct ChangesPage {
     added: Vec<AddedView>,
     values: Vec<ValueView>,
     distances: Vec<DistanceView>,
+    activities: Vec<ActivityView>,
     relations: Vec<RelationView>,
     factors: Vec<FactorView>,
 }
@@ -239,6 +272,7 @@ impl ChangesPage {
             added: c.galaxies_added.iter().map(AddedView::of).collect(),
             values: c.values.iter().map(ValueView::of).collect(),
             distances: c.distances.iter().map(DistanceView::of).collect(),
+            activities: c.activities.iter().map(ActivityView::of).collect(),
             relations: c.relations.iter().map(RelationView::of).collect(),
             factors: c.virial_factors.iter().map(FactorView::of).collect(),
         }

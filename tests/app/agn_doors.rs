@@ -501,6 +501,29 @@ async fn reviewers_change_the_activity_class_in_a_new_catalog_version() {
             .await
             .unwrap();
     assert_eq!(events, 1);
+    // What changed names it, with who and the note, on the page and in the API.
+    let changes = app
+        .ok(&format!("/changes?from={before}&to={}", before + 1))
+        .await;
+    let at = changes.find("id=\"activities\"").expect("the section");
+    let section = &changes[at..];
+    assert!(section.contains("Seyfert 1</td>"), "{section}");
+    assert!(section.contains("quasar</td>"), "{section}");
+    assert!(
+        section.contains("broad lines at high luminosity"),
+        "{section}"
+    );
+    let (status, body) = app
+        .get(&format!("/api/v1/changes?from={before}&to={}", before + 1))
+        .await;
+    assert_eq!(status, 200, "{body}");
+    let json: serde_json::Value = serde_json::from_str(&body).unwrap();
+    let change = &json["activities"][0];
+    assert_eq!(change["old_activity"], "seyfert1", "{json}");
+    assert_eq!(change["new_activity"], "quasar");
+    assert_eq!(change["catalog_version"], before + 1);
+    assert_eq!(change["note"], "broad lines at high luminosity");
+    assert!(change["changed_by"].is_string());
 }
 
 #[tokio::test]
