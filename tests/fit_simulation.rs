@@ -609,7 +609,6 @@ fn bulge_kind_subsamples_give_back_classical_and_pseudobulge_factors() {
     let gap = means[0].0 - means[1].0;
     assert!(
         gap > means[0].1.hypot(means[1].1),
-        "classical − pseudo = {gap:.3} dex against errors {:?}",
-        means
+        "classical − pseudo = {gap:.3} dex against errors {means:?}"
     );
 }
