@@ -427,6 +427,27 @@ pub async fn virial_measurements(
     .await
 }
 
+/// What lies behind the virial masses of one submission, as stored.
+///
+/// # Errors
+/// When the database cannot be read.
+pub async fn virial_measurements_of_submission(
+    pool: &SqlitePool,
+    submission_id: i64,
+) -> sqlx::Result<Vec<StoredVirial>> {
+    sqlx::query_as(
+        "select v.measurement_id, v.line, v.width_definition, v.width_spectrum, v.lag_days,
+                v.lag_err_minus_days, v.lag_err_plus_days, v.width_km_s, v.width_err_km_s,
+                v.log_l5100_erg_s, v.assumed_log_f, v.calibration
+           from virial_measurement v join measurement m on m.measurement_id = v.measurement_id
+          where m.submission_id = ?
+       order by v.measurement_id",
+    )
+    .bind(submission_id)
+    .fetch_all(pool)
+    .await
+}
+
 /// Change a galaxy's activity class: a new catalog version (bumped first, so the history span
 /// of the new class starts at it), the galaxy's row updated (the old class stays in the
 /// history, migration 9) and an audit event `activity_changed` naming old and new, with the

@@ -7,7 +7,9 @@ use sqlx::SqlitePool;
 
 use super::galaxy::GalaxyRecord;
 use crate::astro::agn;
-use crate::catalog::galaxies::{StoredVirial, virial_measurements};
+use crate::catalog::galaxies::{
+    StoredVirial, virial_measurements, virial_measurements_of_submission,
+};
 use crate::catalog::model::{
     Activity, MassMethod, Measurement, SingleEpochCalibration, WidthDefinition, WidthSpectrum,
 };
@@ -176,6 +178,35 @@ impl VirialDetail {
             )
         })
     }
+}
+
+/// What lies behind the virial masses of one submission's measurements (all of one
+/// submission), at the factors adopted now: what a reviewer reads beside each mass.
+///
+/// # Errors
+/// When the database fails.
+pub async fn submission_virial(
+    pool: &SqlitePool,
+    measurements: &[Measurement],
+) -> sqlx::Result<Vec<VirialDetail>> {
+    let Some(first) = measurements.first() else {
+        return Ok(Vec::new());
+    };
+    let stored = virial_measurements_of_submission(pool, first.submission_id).await?;
+    if stored.is_empty() {
+        return Ok(Vec::new());
+    }
+    let version = crate::catalog::history::current_version(pool).await?;
+    let factors = crate::catalog::virial::factors_at(pool, version).await?;
+    Ok(measurements
+        .iter()
+        .filter_map(|m| {
+            stored
+                .iter()
+                .find(|v| v.measurement_id == m.measurement_id)
+                .and_then(|v| VirialDetail::of(m, v, &factors))
+        })
+        .collect())
 }
 
 /// The error floor of a single-epoch mass by its calibration, dex (docs/methods.md §4.2).

@@ -349,6 +349,19 @@ pub(crate) struct VirialView {
 }
 
 impl VirialView {
+    /// Everything in one line, for the submission and review pages' measurement tables.
+    pub(crate) fn summary(d: &crate::relations::agn::VirialDetail) -> String {
+        let v = Self::of(d);
+        let mut parts = vec![v.line];
+        parts.extend(v.lag.map(|l| format!("lag {l}")));
+        parts.extend(v.width);
+        parts.extend(v.l5100.map(|l| format!("log λL(5100 Å) = {l} [erg/s]")));
+        parts.extend(v.product.map(|p| format!("log VP = {p} [M☉]")));
+        parts.push(format!("log M shown = {} [M☉]: {}", v.shown, v.sentence));
+        parts.extend(v.single_epoch);
+        parts.join("; ")
+    }
+
     fn of(d: &crate::relations::agn::VirialDetail) -> Self {
         let log_f = |v: Option<f64>, none: &str| {
             v.map_or(none.to_owned(), |l| {

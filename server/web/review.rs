@@ -109,11 +109,12 @@ pub(crate) async fn show_queue(
     };
     let queue = review_queue_page(&state.catalog(), page, QUEUE_PAGE).await?;
     let total = queue.total;
-    let items = queue
-        .entries
-        .iter()
-        .map(|e| QueueItem::of(e, user.role, user.account_id))
-        .collect();
+    let mut items = Vec::with_capacity(queue.entries.len());
+    for e in &queue.entries {
+        let virial =
+            crate::relations::agn::submission_virial(&state.pool, &e.pending.measurements).await?;
+        items.push(QueueItem::of(e, &virial, user.role, user.account_id));
+    }
     let pages = total.div_ceil(QUEUE_PAGE).max(1);
     Ok(ReviewPage {
         nav,
@@ -180,7 +181,12 @@ fn keep_old_reason(e: &QueueEntry) -> Option<String> {
 }
 
 impl QueueItem {
-    fn of(e: &QueueEntry, role: crate::auth::Role, account_id: i64) -> Self {
+    fn of(
+        e: &QueueEntry,
+        virial: &[crate::relations::agn::VirialDetail],
+        role: crate::auth::Role,
+        account_id: i64,
+    ) -> Self {
         let s = &e.pending.summary;
         let a = AssessmentView::of(&e.assessment);
         QueueItem {
@@ -199,7 +205,7 @@ impl QueueItem {
                 .pending
                 .measurements
                 .iter()
-                .map(MeasurementView::new)
+                .map(|m| MeasurementView::new(m, virial))
                 .collect(),
             rows: a.rows,
             soi: a.soi,

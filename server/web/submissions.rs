@@ -819,10 +819,14 @@ pub(crate) struct MeasurementView {
     pub(crate) log_value: String,
     pub(crate) detail: String,
     pub(crate) reference: String,
+    /// For a virial mass: the lag, width and factors behind it, in one line.
+    pub(crate) broad_line: Option<String>,
 }
 
 impl MeasurementView {
-    pub(crate) fn new(m: &Measurement) -> Self {
+    /// `virial`: what lies behind the submission's virial masses
+    /// (`relations::agn::submission_virial`).
+    pub(crate) fn new(m: &Measurement, virial: &[crate::relations::agn::VirialDetail]) -> Self {
         let quantity = m.quantity.label();
         let detail = measurement_detail(&m.method, &m.sigma_definition, &m.aperture, &m.band);
         Self {
@@ -834,6 +838,10 @@ impl MeasurementView {
             ),
             detail,
             reference: m.reference.clone(),
+            broad_line: virial
+                .iter()
+                .find(|d| d.measurement_id == m.measurement_id)
+                .map(super::galaxies::VirialView::summary),
         }
     }
 }
@@ -976,6 +984,7 @@ pub(crate) async fn show_submission(
         .await?
         .ok_or_else(|| AppError::not_found(format!("The galaxy of submission {id}")))?;
     let measured = submissions::measurements_of_submission(&state.pool, id).await?;
+    let virial = crate::relations::agn::submission_virial(&state.pool, &measured).await?;
     let a = assess(&state.catalog(), &galaxy, &measured, true).await?;
     let a = AssessmentView::with_charts(&state.fits, &a).await?;
     let reviews = submissions::reviews_of_submission(&state.pool, id).await?;
@@ -994,7 +1003,10 @@ pub(crate) async fn show_submission(
         note: summary.note.clone(),
         summary: SummaryView::new(&summary, &reviews),
         flash,
-        measurements: measured.iter().map(MeasurementView::new).collect(),
+        measurements: measured
+            .iter()
+            .map(|m| MeasurementView::new(m, &virial))
+            .collect(),
         rows: a.rows,
         charts: a.charts,
         soi: a.soi,

@@ -111,6 +111,22 @@ async fn the_form_stores_computed_typed_and_single_epoch_masses_and_names_a_bad_
     );
     let r = member.post("/submissions/new", &pairs(&computed)).await;
     assert_eq!(r.status, 303, "{}", r.body);
+    // The submission's page and the review queue show the lag and width behind the mass,
+    // and the mass at the adopted ⟨f⟩ (σ_line, log⟨f⟩ = 0.64 at the start).
+    let shown = member.get(&r.header("location")).await;
+    let expected_shown = format!("log M shown = {:.2} [M☉]", log_vp(10.0, 2000.0) + 0.64);
+    for body in [
+        shown.body,
+        app.login_as(Role::Reviewer).await.get("/review").await.body,
+    ] {
+        let at = body
+            .find("class=\"sub broad-line\"")
+            .expect("the broad-line line");
+        let line = &body[at..at + body[at..].find("</span>").unwrap()];
+        assert!(line.contains("lag 10.0 ± 1.0 d (rest frame)"), "{line}");
+        assert!(line.contains("2000 ± 100 km/s"), "{line}");
+        assert!(line.contains(&expected_shown), "{line}");
+    }
     let (text, log_value, _, assumed, activity) = stored(&app, "Tesk 961").await;
     assert_eq!(text, COMPUTED_VALUE_TEXT);
     assert_eq!(log_value.to_bits(), log_vp(10.0, 2000.0).to_bits());
