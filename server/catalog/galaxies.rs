@@ -405,6 +405,16 @@ pub struct StoredVirial {
     pub calibration: String,
 }
 
+/// The columns of [`StoredVirial`] with the join a query filters (by galaxy or submission).
+macro_rules! virial_columns {
+    () => {
+        "select v.measurement_id, v.line, v.width_definition, v.width_spectrum, v.lag_days,
+                v.lag_err_minus_days, v.lag_err_plus_days, v.width_km_s, v.width_err_km_s,
+                v.log_l5100_erg_s, v.assumed_log_f, v.calibration
+           from virial_measurement v join measurement m on m.measurement_id = v.measurement_id"
+    };
+}
+
 /// The broad-line measurements behind a galaxy's virial masses, every one stored (the caller
 /// matches them to the measurements it shows by `measurement_id`).
 ///
@@ -414,14 +424,10 @@ pub async fn virial_measurements(
     pool: &SqlitePool,
     galaxy_id: i64,
 ) -> sqlx::Result<Vec<StoredVirial>> {
-    sqlx::query_as(
-        "select v.measurement_id, v.line, v.width_definition, v.width_spectrum, v.lag_days,
-                v.lag_err_minus_days, v.lag_err_plus_days, v.width_km_s, v.width_err_km_s,
-                v.log_l5100_erg_s, v.assumed_log_f, v.calibration
-           from virial_measurement v join measurement m on m.measurement_id = v.measurement_id
-          where m.galaxy_id = ?
-       order by v.measurement_id",
-    )
+    sqlx::query_as(concat!(
+        virial_columns!(),
+        " where m.galaxy_id = ? order by v.measurement_id"
+    ))
     .bind(galaxy_id)
     .fetch_all(pool)
     .await
@@ -435,14 +441,10 @@ pub async fn virial_measurements_of_submission(
     pool: &SqlitePool,
     submission_id: i64,
 ) -> sqlx::Result<Vec<StoredVirial>> {
-    sqlx::query_as(
-        "select v.measurement_id, v.line, v.width_definition, v.width_spectrum, v.lag_days,
-                v.lag_err_minus_days, v.lag_err_plus_days, v.width_km_s, v.width_err_km_s,
-                v.log_l5100_erg_s, v.assumed_log_f, v.calibration
-           from virial_measurement v join measurement m on m.measurement_id = v.measurement_id
-          where m.submission_id = ?
-       order by v.measurement_id",
-    )
+    sqlx::query_as(concat!(
+        virial_columns!(),
+        " where m.submission_id = ? order by v.measurement_id"
+    ))
     .bind(submission_id)
     .fetch_all(pool)
     .await
