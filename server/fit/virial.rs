@@ -522,10 +522,9 @@ mod tests {
         }
     }
 
-    #[test]
-    fn agn_exactly_on_a_shifted_relation_give_its_shift_and_no_scatter() {
-        // Quiescent points exactly on log M = 8.3 + 5 (x − 2.3) and AGN exactly 0.7 dex below:
-        // log f = 0.7 and ε_AGN = 0 (computed).
+    /// Quiescent points ±0.3 dex about log M = 8.3 + 5 (x − 2.3), their structural fit, and 12
+    /// AGN (log VP error 0.1 dex, σ exact) exactly on that fitted line lowered by 0.7 dex.
+    fn on_a_shifted_relation() -> (Vec<Point>, Fit, Vec<AgnPoint>) {
         let quiescent: Vec<Point> = (0..40)
             .map(|i| {
                 let x = 2.0 + 0.015 * f64::from(i);
@@ -547,6 +546,14 @@ mod tests {
                 }
             })
             .collect();
+        (quiescent, q, agn)
+    }
+
+    #[test]
+    fn agn_exactly_on_a_shifted_relation_give_its_shift_and_no_scatter() {
+        // Quiescent points exactly on log M = 8.3 + 5 (x − 2.3) and AGN exactly 0.7 dex below:
+        // log f = 0.7 and ε_AGN = 0 (computed).
+        let (quiescent, q, agn) = on_a_shifted_relation();
         let c = calibrate(&quiescent, &agn, 2.3).unwrap();
         assert!((c.log_f - 0.7).abs() < 1e-9, "{}", c.log_f);
         assert!(c.eps_agn < 1e-3, "{}", c.eps_agn);
@@ -561,27 +568,7 @@ mod tests {
         // quiescent maximum-likelihood line lowered by 0.7 dex, so the AGN likelihood alone
         // is largest at that line with ε_A = 0, the quiescent one at the same (α, β), and the
         // joint maximum is log f = 0.7 with the quiescent α, β (computed from the model).
-        let quiescent: Vec<Point> = (0..40)
-            .map(|i| {
-                let x = 2.0 + 0.015 * f64::from(i);
-                point(
-                    x,
-                    8.3 + 5.0 * (x - 2.3) + if i % 2 == 0 { 0.3 } else { -0.3 },
-                )
-            })
-            .collect();
-        let q = fit(&quiescent, &FitSpec::new(Method::Structural, 2.3)).unwrap();
-        let agn: Vec<AgnPoint> = (0..12)
-            .map(|i| {
-                let x = 2.05 + 0.02 * f64::from(i);
-                AgnPoint {
-                    log_sigma: x,
-                    log_sigma_err: 0.0,
-                    log_vp: q.params.alpha + q.params.beta * (x - 2.3) - 0.7,
-                    log_vp_err: 0.1,
-                }
-            })
-            .collect();
+        let (quiescent, q, agn) = on_a_shifted_relation();
         let c = calibrate_joint(&quiescent, &agn, 2.3).unwrap();
         assert_eq!(c.mode, SlopeMode::Joint);
         assert!((c.log_f - 0.7).abs() < 1e-6, "{}", c.log_f);

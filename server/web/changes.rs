@@ -36,8 +36,8 @@ pub(crate) struct ValueView {
     note: String,
 }
 
-/// A distance changed.
-pub(crate) struct DistanceView {
+/// A galaxy property (its distance, its activity class) changed.
+pub(crate) struct PropertyChangeView {
     galaxy: String,
     slug: String,
     old: String,
@@ -47,22 +47,13 @@ pub(crate) struct DistanceView {
     note: String,
 }
 
-/// An activity class changed in the range.
-pub(crate) struct ActivityView {
-    galaxy: String,
-    slug: String,
-    old: &'static str,
-    new: &'static str,
-    version: i64,
-    by: String,
-    note: String,
-}
-
-impl ActivityView {
-    fn of(c: &crate::catalog::changes::ActivityChange) -> Self {
+impl PropertyChangeView {
+    /// An activity class changed in the range, in the same table shape as a distance.
+    fn of_activity(c: &crate::catalog::changes::ActivityChange) -> Self {
         let label = |w: &str| {
             w.parse::<crate::catalog::model::Activity>()
                 .map_or("unknown", crate::catalog::model::Activity::label)
+                .to_owned()
         };
         Self {
             galaxy: c.galaxy_name.clone(),
@@ -70,13 +61,16 @@ impl ActivityView {
             old: label(&c.old_activity),
             new: label(&c.new_activity),
             version: c.catalog_version,
-            by: c
-                .changed_by
-                .clone()
-                .unwrap_or_else(|| "no account (the system)".to_owned()),
+            by: changed_by(c.changed_by.as_ref()),
             note: c.note(),
         }
     }
+}
+
+/// Who made a change, in words.
+fn changed_by(name: Option<&String>) -> String {
+    name.cloned()
+        .unwrap_or_else(|| "no account (the system)".to_owned())
 }
 
 /// One parameter of one relation.
@@ -110,8 +104,8 @@ pub(crate) struct ChangesPage {
     to_made: String,
     added: Vec<AddedView>,
     values: Vec<ValueView>,
-    distances: Vec<DistanceView>,
-    activities: Vec<ActivityView>,
+    distances: Vec<PropertyChangeView>,
+    activities: Vec<PropertyChangeView>,
     relations: Vec<RelationView>,
     factors: Vec<FactorView>,
 }
@@ -201,7 +195,7 @@ impl ValueView {
     }
 }
 
-impl DistanceView {
+impl PropertyChangeView {
     fn of(c: &DistanceChange) -> Self {
         Self {
             galaxy: c.galaxy_name.clone(),
@@ -209,10 +203,7 @@ impl DistanceView {
             old: distance_text(c.old_distance_mpc, c.old_distance_err_mpc, &c.old_method),
             new: distance_text(c.new_distance_mpc, c.new_distance_err_mpc, &c.new_method),
             version: c.catalog_version,
-            by: c
-                .changed_by
-                .clone()
-                .unwrap_or_else(|| "no account (the system)".to_owned()),
+            by: changed_by(c.changed_by.as_ref()),
             note: c.note(),
         }
     }
@@ -271,8 +262,12 @@ impl ChangesPage {
             to_made: made(&c.to_made_at),
             added: c.galaxies_added.iter().map(AddedView::of).collect(),
             values: c.values.iter().map(ValueView::of).collect(),
-            distances: c.distances.iter().map(DistanceView::of).collect(),
-            activities: c.activities.iter().map(ActivityView::of).collect(),
+            distances: c.distances.iter().map(PropertyChangeView::of).collect(),
+            activities: c
+                .activities
+                .iter()
+                .map(PropertyChangeView::of_activity)
+                .collect(),
             relations: c.relations.iter().map(RelationView::of).collect(),
             factors: c.virial_factors.iter().map(FactorView::of).collect(),
         }
