@@ -553,7 +553,7 @@ mod tests {
     fn agn_exactly_on_a_shifted_relation_give_its_shift_and_no_scatter() {
         // Quiescent points exactly on log M = 8.3 + 5 (x − 2.3) and AGN exactly 0.7 dex below:
         // log f = 0.7 and ε_AGN = 0 (computed).
-        let (quiescent, q, agn) = on_a_shifted_relation();
+        let (quiescent, _, agn) = on_a_shifted_relation();
         let c = calibrate(&quiescent, &agn, 2.3).unwrap();
         assert!((c.log_f - 0.7).abs() < 1e-9, "{}", c.log_f);
         assert!(c.eps_agn < 1e-3, "{}", c.eps_agn);
