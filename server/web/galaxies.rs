@@ -534,24 +534,13 @@ pub(crate) async fn change_activity(
 ) -> AppResult<axum::response::Response> {
     use axum::response::IntoResponse;
     let me = super::account::session_of(&principal)?;
-    let galaxy = crate::catalog::galaxies::find_by_slug(&state.pool, &slug)
-        .await?
-        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+    let galaxy = galaxy_to_change(&state, &slug).await?;
     let read = fields
         .activity
         .trim()
         .parse::<crate::catalog::model::Activity>()
         .map_err(|e| format!("Activity class: {e}"));
-    let note_chars = fields.note.trim().chars().count();
-    let read = read.and_then(|a| {
-        if note_chars > DISTANCE_NOTE_MAX {
-            Err(format!(
-                "Note: at most {DISTANCE_NOTE_MAX} characters; this one has {note_chars}."
-            ))
-        } else {
-            Ok(a)
-        }
-    });
+    let read = read.and_then(|a| note_problem(&fields.note).map_or(Ok(a), Err));
     match read {
         Ok(a) if a.as_str() == galaxy.activity => {
             Ok(axum::response::Redirect::to(&format!("/galaxies/{slug}#activity")).into_response())
@@ -581,7 +570,25 @@ pub(crate) async fn change_activity(
     }
 }
 
-/// Longest note of a distance change (the audit sentence keeps 500 characters).
+/// The galaxy a reviewer's change form (distance, activity class) names.
+async fn galaxy_to_change(
+    state: &AppState,
+    slug: &str,
+) -> AppResult<crate::catalog::model::Galaxy> {
+    crate::catalog::galaxies::find_by_slug(&state.pool, slug)
+        .await?
+        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))
+}
+
+/// What is wrong with the note of a change form, if anything: at most
+/// [`DISTANCE_NOTE_MAX`] characters.
+fn note_problem(note: &str) -> Option<String> {
+    let chars = note.trim().chars().count();
+    (chars > DISTANCE_NOTE_MAX)
+        .then(|| format!("Note: at most {DISTANCE_NOTE_MAX} characters; this one has {chars}."))
+}
+
+/// Longest note of a distance or activity change (the audit sentence keeps 500 characters).
 const DISTANCE_NOTE_MAX: usize = 500;
 
 /// The distance form's fields.
@@ -608,9 +615,7 @@ pub(crate) async fn change_distance(
 ) -> AppResult<axum::response::Response> {
     use axum::response::IntoResponse;
     let me = super::account::session_of(&principal)?;
-    let galaxy = crate::catalog::galaxies::find_by_slug(&state.pool, &slug)
-        .await?
-        .ok_or_else(|| AppError::not_found(format!("The galaxy '{slug}'")))?;
+    let galaxy = galaxy_to_change(&state, &slug).await?;
     let cell = |c: &'static str| match c {
         "distance_mpc" => fields.distance_mpc.as_str(),
         "distance_err_mpc" => fields.distance_err_mpc.as_str(),
@@ -645,12 +650,8 @@ pub(crate) async fn change_distance(
             "Distance: this is the distance already adopted; change the distance, its error or its method.".into(),
         ));
     }
-    let note_chars = fields.note.trim().chars().count();
-    if note_chars > DISTANCE_NOTE_MAX {
-        errors.push((
-            "note".into(),
-            format!("Note: at most {DISTANCE_NOTE_MAX} characters; this one has {note_chars}."),
-        ));
+    if let Some(problem) = note_problem(&fields.note) {
+        errors.push(("note".into(), problem));
     }
     match read {
         Ok(new) if errors.is_empty() => {
