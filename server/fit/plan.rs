@@ -32,7 +32,7 @@
 
 use serde::Serialize;
 
-use super::intervals::Z95;
+use super::intervals::{IntervalKind, Z95};
 use super::special::ln_norm_cdf;
 use super::{Fit, FitError, Shape};
 
@@ -57,8 +57,10 @@ pub struct RelationTerms {
 }
 
 impl RelationTerms {
-    /// The terms of a fitted straight line: α, β, ε from its parameters, the (α, β) block of
-    /// its covariance, its pivot.
+    /// The terms of a fitted straight line: α, β, ε as the fit reports them (with restricted
+    /// intervals, ε from the restricted likelihood and α, β at their maximum for it: the
+    /// maximum-likelihood ε is biased low at small N and would make P(resolved) overconfident,
+    /// docs/methods.md §2.8), the (α, β) block of its covariance, its pivot.
     ///
     /// # Errors
     /// [`FitError::Unsupported`] for a quadratic or planar fit, or one without an (α, β)
@@ -76,14 +78,25 @@ impl RelationTerms {
                     what: "The fit has no covariance of its zero point and slope.".to_owned(),
                 })
         };
+        let reported = |name: &str, fitted: f64| {
+            if fit.intervals.kind == IntervalKind::Restricted {
+                fit.intervals
+                    .params
+                    .iter()
+                    .find(|p| p.name == name)
+                    .map_or(fitted, |p| p.estimate)
+            } else {
+                fitted
+            }
+        };
         Ok(RelationTerms {
-            alpha: fit.params.alpha,
-            beta: fit.params.beta,
+            alpha: reported("alpha", fit.params.alpha),
+            beta: reported("beta", fit.params.beta),
             x0: fit.spec.pivot,
             var_alpha: get("alpha", "alpha")?.max(0.0),
             var_beta: get("beta", "beta")?.max(0.0),
             cov_ab: get("alpha", "beta")?,
-            scatter_dex: fit.params.eps.max(0.0),
+            scatter_dex: reported("eps", fit.params.eps).max(0.0),
         })
     }
 
