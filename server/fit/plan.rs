@@ -32,7 +32,7 @@
 
 use serde::Serialize;
 
-use super::intervals::{IntervalKind, Z95};
+use super::intervals::Z95;
 use super::special::ln_norm_cdf;
 use super::{Fit, FitError, Shape};
 
@@ -57,10 +57,10 @@ pub struct RelationTerms {
 }
 
 impl RelationTerms {
-    /// The terms of a fitted straight line: α, β, ε as the fit reports them (with restricted
-    /// intervals, ε from the restricted likelihood and α, β at their maximum for it: the
-    /// maximum-likelihood ε is biased low at small N and would make P(resolved) overconfident,
-    /// docs/methods.md §2.8), the (α, β) block of its covariance, its pivot.
+    /// The terms of a fitted straight line: α, β, the (α, β) block of its covariance, its
+    /// pivot, and the quoted ε ([`Fit::quoted_eps`]: the restricted-likelihood ε where it was
+    /// computed; the maximum-likelihood ε is biased low at small N and would make P(resolved)
+    /// overconfident, docs/methods.md §2.8), as `fit::predict` predicts with them.
     ///
     /// # Errors
     /// [`FitError::Unsupported`] for a quadratic or planar fit, or one without an (α, β)
@@ -78,25 +78,14 @@ impl RelationTerms {
                     what: "The fit has no covariance of its zero point and slope.".to_owned(),
                 })
         };
-        let reported = |name: &str, fitted: f64| {
-            if fit.intervals.kind == IntervalKind::Restricted {
-                fit.intervals
-                    .params
-                    .iter()
-                    .find(|p| p.name == name)
-                    .map_or(fitted, |p| p.estimate)
-            } else {
-                fitted
-            }
-        };
         Ok(RelationTerms {
-            alpha: reported("alpha", fit.params.alpha),
-            beta: reported("beta", fit.params.beta),
+            alpha: fit.params.alpha,
+            beta: fit.params.beta,
             x0: fit.spec.pivot,
             var_alpha: get("alpha", "alpha")?.max(0.0),
             var_beta: get("beta", "beta")?.max(0.0),
             cov_ab: get("alpha", "beta")?,
-            scatter_dex: reported("eps", fit.params.eps).max(0.0),
+            scatter_dex: fit.quoted_eps().max(0.0),
         })
     }
 
