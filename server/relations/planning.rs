@@ -1202,7 +1202,7 @@ fn reliability_name(threshold: f64) -> String {
 /// (docs/methods.md §6.1), so the check costs O(N) at any catalog size; the left-out fit keeps
 /// the full fit's covariance. What is predicted is the measured ratio, so its variance adds
 /// the mass's own measurement error (`fit::plan::predict_measured_log_theta`). Made once per
-/// fit and threshold (`FitCache::made_from`).
+/// fit at the catalog's own threshold (`FitCache::made_from`), per request at any other.
 ///
 /// # Errors
 /// [`AppError`] 400 for a threshold out of range; when the catalog cannot be read or a task
@@ -1257,10 +1257,16 @@ pub async fn reliability(catalog: &Catalog, threshold: f64) -> AppResult<Reliabi
     let rows = catalog.rows().await.map_err(anyhow::Error::from)?;
     let fit_id = citation::cite(catalog, &outcome).await;
     let fits = catalog.fits.clone();
+    // The catalog's own threshold is what most visitors ask for: kept per fit. Any other is
+    // computed per request (O(N), no fit), so thresholds people type cannot fill the cache.
+    let keep = threshold.to_bits() == catalog.soi_threshold.to_bits();
     let made = tokio::task::spawn_blocking(move || {
-        fits.made_from(&outcome.key, &reliability_name(threshold), || {
-            reliability_of(&outcome, &influence, &rows.rows, threshold)
-        })
+        let make = || reliability_of(&outcome, &influence, &rows.rows, threshold);
+        if keep {
+            fits.made_from(&outcome.key, &reliability_name(threshold), make)
+        } else {
+            Arc::new(make())
+        }
     })
     .await
     .map_err(anyhow::Error::from)?;
