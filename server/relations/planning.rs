@@ -1140,10 +1140,12 @@ pub fn wilson_interval(k: usize, n: usize, z: f64) -> (f64, f64) {
 /// Bins (predicted P, measured verdict) pairs into [`RELIABILITY_BINS`] bins.
 #[must_use]
 pub fn bin_reliability(pairs: &[(f64, bool)]) -> Vec<ReliabilityBin> {
-    let width = 1.0 / RELIABILITY_BINS as f64;
+    let bins = RELIABILITY_BINS as f64;
+    let width = 1.0 / bins;
     (0..RELIABILITY_BINS)
         .map(|i| {
-            let (lo, hi) = (i as f64 * width, (i + 1) as f64 * width);
+            // i/5 rather than i · 0.2, so the edges read 0.6, not 0.6000000000000001.
+            let (lo, hi) = (i as f64 / bins, (i + 1) as f64 / bins);
             let last = i + 1 == RELIABILITY_BINS;
             let inside: Vec<&(f64, bool)> = pairs
                 .iter()
@@ -1510,6 +1512,7 @@ mod tests {
         ];
         let bins = bin_reliability(&pairs);
         assert_eq!(bins.len(), RELIABILITY_BINS);
+        assert_eq!((bins[3].lo, bins[3].hi), (0.6, 0.8));
         assert_eq!(bins.iter().map(|b| b.count).sum::<usize>(), pairs.len());
         assert_eq!(
             bins.iter().map(|b| b.count).collect::<Vec<_>>(),
