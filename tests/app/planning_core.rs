@@ -158,7 +158,7 @@ async fn a_candidate_list_is_ranked_against_the_demo_relations() {
             .map(|c| c.sd_dex)
             .fold(f64::INFINITY, f64::min);
         let chosen = row.considered.iter().find(|c| &c.relation == used).unwrap();
-        assert_eq!(chosen.sd_dex, least);
+        assert!(chosen.sd_dex <= least, "{row:?}");
     }
     // Bad arguments are refused with a sentence.
     assert!(
