@@ -18,6 +18,7 @@
 
 use std::collections::HashMap;
 use std::sync::Arc;
+use std::time::Duration;
 
 use serde::{Deserialize, Serialize};
 
@@ -797,10 +798,12 @@ fn planning_relations(bands: &[String]) -> Vec<Relation> {
 }
 
 /// The default fit of `relation` (structural, whole sample, default pivots), waiting at most
-/// `REQUEST_WAIT`; an older version's while it is computed; `Err(version)` when there is none.
+/// `wait` (`None`: as long as it takes); an older version's while it is computed, with the
+/// version being computed.
 async fn default_fit(
     catalog: &Catalog,
     relation: &Relation,
+    wait: Option<Duration>,
 ) -> AppResult<(Option<Arc<FitOutcome>>, Option<i64>)> {
     let pivots = (relation.default_pivot(), relation.default_pivot2());
     let choice = (
@@ -829,6 +832,28 @@ pub async fn plan(
     resolutions: &[Resolution],
     threshold: f64,
 ) -> AppResult<Plan> {
+    plan_within(
+        catalog,
+        candidates,
+        resolutions,
+        threshold,
+        Some(REQUEST_WAIT),
+    )
+    .await
+}
+
+/// As [`plan`], waiting for each default fit at most `wait` (`None`: as long as it takes, for
+/// the command line).
+///
+/// # Errors
+/// As [`plan`].
+pub async fn plan_within(
+    catalog: &Catalog,
+    candidates: &[Candidate],
+    resolutions: &[Resolution],
+    threshold: f64,
+    wait: Option<Duration>,
+) -> AppResult<Plan> {
     let threshold = check_threshold(threshold).map_err(AppError::bad_request)?;
     if resolutions.is_empty() || resolutions.len() > MAX_RESOLUTIONS {
         return Err(AppError::bad_request(format!(
@@ -840,7 +865,7 @@ pub async fn plan(
     let mut fits = Vec::new();
     let mut computing = None;
     for relation in planning_relations(&bands) {
-        let (outcome, still) = default_fit(catalog, &relation).await?;
+        let (outcome, still) = default_fit(catalog, &relation, wait).await?;
         computing = computing.or(still);
         fits.push(plan_fit(catalog, relation, outcome.as_ref(), still).await);
     }
@@ -1210,9 +1235,22 @@ fn reliability_name(threshold: f64) -> String {
 /// [`AppError`] 400 for a threshold out of range; when the catalog cannot be read or a task
 /// fails.
 pub async fn reliability(catalog: &Catalog, threshold: f64) -> AppResult<Reliability> {
+    reliability_within(catalog, threshold, Some(REQUEST_WAIT)).await
+}
+
+/// As [`reliability`], waiting for the fit and its leave-one-out list at most `wait` each
+/// (`None`: as long as they take, for the command line).
+///
+/// # Errors
+/// As [`reliability`].
+pub async fn reliability_within(
+    catalog: &Catalog,
+    threshold: f64,
+    wait: Option<Duration>,
+) -> AppResult<Reliability> {
     let threshold = check_threshold(threshold).map_err(AppError::bad_request)?;
     let relation = Relation::MSigma;
-    let (outcome, computing) = default_fit(catalog, &relation).await?;
+    let (outcome, computing) = default_fit(catalog, &relation, wait).await?;
     let empty = |version: i64, problem: String, computing: Option<i64>| Reliability {
         catalog_version: version,
         fit_id: None,
@@ -1239,11 +1277,7 @@ pub async fn reliability(catalog: &Catalog, threshold: f64) -> AppResult<Reliabi
     if let Err(e) = &outcome.fit {
         return Ok(empty(version, format!("No M–σ fit: {e}"), None));
     }
-    let Some(influence) = catalog
-        .fits
-        .influence_within(&outcome, Some(REQUEST_WAIT))
-        .await?
-    else {
+    let Some(influence) = catalog.fits.influence_within(&outcome, wait).await? else {
         return Ok(empty(
             version,
             format!(
