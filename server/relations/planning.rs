@@ -824,8 +824,8 @@ async fn default_fit(
 /// module documentation for the choice and the ranking).
 ///
 /// # Errors
-/// [`AppError`] 400 for no resolution, too many, or a threshold out of range; when the catalog
-/// cannot be read or a fit task fails.
+/// [`AppError`] 400 for no resolution, too many, two with one label, or a threshold out of
+/// range; when the catalog cannot be read or a fit task fails.
 pub async fn plan(
     catalog: &Catalog,
     candidates: &[Candidate],
@@ -858,6 +858,18 @@ pub async fn plan_within(
     if resolutions.is_empty() || resolutions.len() > MAX_RESOLUTIONS {
         return Err(AppError::bad_request(format!(
             "Give 1 to {MAX_RESOLUTIONS} resolutions to plan for."
+        )));
+    }
+    // The labels name the plan's columns, so each must be its own.
+    if let Some((i, r)) = resolutions
+        .iter()
+        .enumerate()
+        .find(|(i, r)| resolutions[..*i].iter().any(|o| o.label == r.label))
+    {
+        return Err(AppError::bad_request(format!(
+            "Resolution {} has the label “{}” of an earlier one; give each resolution its own label.",
+            i + 1,
+            r.label
         )));
     }
     let catalog_version = catalog.rows().await.map_err(anyhow::Error::from)?.version;
