@@ -812,12 +812,10 @@ async fn default_fit(
         &SampleFilter::default(),
         pivots,
     );
-    Ok(
-        match catalog.fitted_within(choice, Some(REQUEST_WAIT)).await? {
-            Ok(outcome) => (Some(outcome), None),
-            Err(key) => (catalog.fits.latest(&key), Some(key.catalog_version)),
-        },
-    )
+    Ok(match catalog.fitted_within(choice, wait).await? {
+        Ok(outcome) => (Some(outcome), None),
+        Err(key) => (catalog.fits.latest(&key), Some(key.catalog_version)),
+    })
 }
 
 /// The plan of `candidates` at `resolutions` against the catalog's default relations (see the
