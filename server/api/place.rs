@@ -31,10 +31,10 @@ use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
 use crate::error::{AppError, FieldError};
 use crate::fit::{FitError, Method};
+use crate::relations::bulge_ratio::{self, RatioMasses, RelationBasis};
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, placement_numbers, read_object,
 };
-use crate::relations::bulge_ratio::{self, RatioMasses, RelationBasis};
 use crate::relations::{FitOutcome, REQUEST_WAIT, Relation};
 use crate::state::AppState;
 

@@ -454,18 +454,34 @@ mod tests {
         let r = bulge_ratio(&masses, Err("none here.".to_owned()));
         assert!(close(r.fraction, 0.002, 1e-12, 1e-9), "{}", r.fraction);
         assert!(close(r.percent, 0.2, 1e-12, 1e-9), "{}", r.percent);
-        assert!(close(r.log_ratio, -2.698_970_004, 1e-9, 0.0), "{}", r.log_ratio);
+        assert!(
+            close(r.log_ratio, -2.698_970_004, 1e-9, 0.0),
+            "{}",
+            r.log_ratio
+        );
         // Quadrature, computed: √(0.1² + 0.2²) = 0.2236068 dex on each side.
         assert!(close(r.log_ratio_err_dex.0, 0.223_606_8, 1e-7, 0.0));
         assert!(close(r.log_ratio_err_dex.1, 0.223_606_8, 1e-7, 0.0));
         // 0.2 % × 10^∓0.2236 = 0.11960 % and 0.33444 % (computed).
-        assert!(close(r.percent_1sigma.0, 0.119_60, 1e-5, 0.0), "{:?}", r.percent_1sigma);
-        assert!(close(r.percent_1sigma.1, 0.334_44, 1e-5, 0.0), "{:?}", r.percent_1sigma);
+        assert!(
+            close(r.percent_1sigma.0, 0.119_60, 1e-5, 0.0),
+            "{:?}",
+            r.percent_1sigma
+        );
+        assert!(
+            close(r.percent_1sigma.1, 0.334_44, 1e-5, 0.0),
+            "{:?}",
+            r.percent_1sigma
+        );
         assert_eq!(r.range_verdict, WITHIN);
         assert!(!r.outside_usual_range && !r.upper_limit);
         assert!(r.relation.is_none());
         assert!(r.sentence.contains("common practice"), "{}", r.sentence);
-        assert!(r.sentence.contains("within the usual range"), "{}", r.sentence);
+        assert!(
+            r.sentence.contains("within the usual range"),
+            "{}",
+            r.sentence
+        );
         assert!(r.sentence.contains("none here."), "{}", r.sentence);
     }
 
@@ -526,7 +542,10 @@ mod tests {
             }),
         );
         assert!(r.upper_limit);
-        assert!(r.log_ratio_err_dex.0.abs() < f64::EPSILON && r.log_ratio_err_dex.1.abs() < f64::EPSILON);
+        assert!(
+            r.log_ratio_err_dex.0.abs() < f64::EPSILON
+                && r.log_ratio_err_dex.1.abs() < f64::EPSILON
+        );
         // Computed: 2 × 10⁷ / 10¹¹ = 0.02 %.
         assert!(close(r.percent, 0.02, 1e-12, 1e-9));
         assert_eq!(r.percent_text(), "< 0.020");
@@ -553,7 +572,11 @@ mod tests {
             }),
         );
         let rel = r.relation.as_ref().unwrap();
-        assert!(close(rel.percent, 0.199_526_2, 1e-7, 0.0), "{}", rel.percent);
+        assert!(
+            close(rel.percent, 0.199_526_2, 1e-7, 0.0),
+            "{}",
+            rel.percent
+        );
         assert!(close(rel.interval68_percent.0, 0.1, 1e-9, 0.0));
         assert!(close(rel.interval68_percent.1, 0.398_107_2, 1e-7, 0.0));
         assert!(close(rel.log_ratio, -2.7, 1e-12, 0.0));
@@ -561,8 +584,16 @@ mod tests {
         // The identifier names the default fit; the page says it was refitted without the galaxy.
         assert_eq!(rel.fit_id, crate::relations::citation::fit_id(&key(None)));
         assert!(rel.without_this_galaxy);
-        assert!(r.sentence.contains("refitted without this galaxy"), "{}", r.sentence);
-        assert!(r.sentence.contains("consistent with it (z = +0.5)"), "{}", r.sentence);
+        assert!(
+            r.sentence.contains("refitted without this galaxy"),
+            "{}",
+            r.sentence
+        );
+        assert!(
+            r.sentence.contains("consistent with it (z = +0.5)"),
+            "{}",
+            r.sentence
+        );
         // Computed: 3 × 10⁸ / 10¹¹ = 0.3 %.
         assert!(close(r.percent, 0.3, 1e-12, 1e-9));
         let tense = bulge_ratio(
@@ -572,7 +603,11 @@ mod tests {
                 key: &k,
             }),
         );
-        assert!(tense.sentence.contains("in tension with it (z = −2.4)"), "{}", tense.sentence);
+        assert!(
+            tense.sentence.contains("in tension with it (z = −2.4)"),
+            "{}",
+            tense.sentence
+        );
     }
 
     /// An invented catalog row: a dynamical mass and a bulge mass published at 10 Mpc, the
@@ -627,11 +662,23 @@ mod tests {
         // distance the ratio is 10⁸ / (5 × 10¹⁰) = 0.2 % (computed).
         let at_source = ratio_at(10.0, "photometric");
         let doubled = ratio_at(20.0, "photometric");
-        assert!(close(at_source.percent, 0.2, 1e-12, 1e-9), "{}", at_source.percent);
-        assert!(close(doubled.percent, 0.1, 1e-12, 1e-9), "{}", doubled.percent);
+        assert!(
+            close(at_source.percent, 0.2, 1e-12, 1e-9),
+            "{}",
+            at_source.percent
+        );
+        assert!(
+            close(doubled.percent, 0.1, 1e-12, 1e-9),
+            "{}",
+            doubled.percent
+        );
         // A dynamical bulge mass ∝ D too: the ratio does not move.
         let dynamical = ratio_at(20.0, "dynamical");
-        assert!(close(dynamical.percent, 0.2, 1e-12, 1e-9), "{}", dynamical.percent);
+        assert!(
+            close(dynamical.percent, 0.2, 1e-12, 1e-9),
+            "{}",
+            dynamical.percent
+        );
     }
 
     #[test]
@@ -643,7 +690,10 @@ mod tests {
         let s = 0.1 / std::f64::consts::LN_10;
         let expect_minus = (0.08f64.powi(2) + 0.1f64.powi(2) + s * s).sqrt();
         let expect_plus = (0.12f64.powi(2) + 0.1f64.powi(2) + s * s).sqrt();
-        assert!(close(expect_minus, 0.135_231_1, 1e-7, 0.0), "{expect_minus}");
+        assert!(
+            close(expect_minus, 0.135_231_1, 1e-7, 0.0),
+            "{expect_minus}"
+        );
         assert!(close(r.log_ratio_err_dex.0, expect_minus, 1e-12, 0.0));
         assert!(close(r.log_ratio_err_dex.1, expect_plus, 1e-12, 0.0));
         // The same masses of a dynamical bulge mass: the distance cancels, published errors only.

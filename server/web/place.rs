@@ -19,10 +19,10 @@ use super::relations::{Grouping, chart_y, relation_chart, relation_chart_frame, 
 use crate::charts::{ChartPoint, DENSITY_THRESHOLD, RelationChart, relation_svg, relation_svg_of};
 use crate::error::{AppError, AppResult, FieldError};
 use crate::fit::Point;
+use crate::relations::bulge_ratio::{self, RatioMasses};
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, Placement, place_everywhere, read_object,
 };
-use crate::relations::bulge_ratio::{self, RatioMasses};
 use crate::relations::{FitCache, Relation};
 use crate::state::AppState;
 use crate::units::Entry;
