@@ -308,18 +308,19 @@ fn sentence(r: &BulgeRatio) -> String {
         "M_BH/M_bulge"
     };
     let first = format!(
-        "{what} = {} % is {} of {}–{} % (common practice).",
+        "{what} = {} % is {} of {lo}–{hi} % (common practice).",
         r.percent_text(),
         r.range_verdict,
-        two_significant(lo),
-        two_significant(hi)
     );
     let second = match (&r.relation, &r.relation_note) {
         (Some(rel), _) => {
             let fit = if rel.without_this_galaxy {
-                format!("fit {}, refitted without this galaxy", rel.fit_id)
+                format!(
+                    "the default fit {}, refitted without this galaxy",
+                    rel.fit_id
+                )
             } else {
-                format!("fit {}", rel.fit_id)
+                format!("the default fit {}", rel.fit_id)
             };
             let against = match rel.verdict {
                 Some(v) if v.starts_with("outlier") => "an outlier from it",
@@ -478,7 +479,8 @@ mod tests {
         assert!(r.relation.is_none());
         assert!(r.sentence.contains("common practice"), "{}", r.sentence);
         assert!(
-            r.sentence.contains("within the usual range"),
+            r.sentence
+                .contains("is within the usual range of 0.1–0.5 % (common practice)."),
             "{}",
             r.sentence
         );
