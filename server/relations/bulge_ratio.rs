@@ -378,7 +378,7 @@ pub fn of_galaxy(left_out: &super::galaxy::LeftOutPlacements) -> Option<BulgeRat
         return Some(bulge_ratio(
             masses,
             Err(
-                "computing: the fit without this galaxy is under way; this page reloads itself."
+                "computing: the fit without this galaxy is under way; ask again in a few seconds."
                     .to_owned(),
             ),
         ));
