@@ -290,9 +290,18 @@ impl BulgeRatio {
 impl RelationRatio {
     /// The prediction in per cent with its 68 % interval: "0.19 % (68 %: 0.10–0.37 %)".
     pub fn text(&self) -> String {
+        format!("{} (68 %: {})", self.percent_text(), self.interval_text())
+    }
+
+    /// The prediction in per cent: "0.19 %".
+    pub fn percent_text(&self) -> String {
+        format!("{} %", two_significant(self.percent))
+    }
+
+    /// Its 68 % interval in per cent: "0.10–0.37 %".
+    pub fn interval_text(&self) -> String {
         format!(
-            "{} % (68 %: {}–{} %)",
-            two_significant(self.percent),
+            "{}–{} %",
             two_significant(self.interval68_percent.0),
             two_significant(self.interval68_percent.1)
         )

@@ -106,8 +106,9 @@ pub(crate) struct BulgeRatioView {
     pub(crate) range: String,
     /// The verdict against the usual range.
     pub(crate) range_badge: Badge,
-    /// The relation's prediction with its 68 % interval, when there is one.
-    pub(crate) predicted: Option<String>,
+    /// The relation's prediction and its 68 % interval, when there is one (apart, so that a
+    /// narrow screen can break the line between them).
+    pub(crate) predicted: Option<(String, String)>,
     /// The verdict against the relation, when there is one.
     pub(crate) relation_badge: Option<Badge>,
     /// The fit's identifier and whether it was refitted without the galaxy.
@@ -155,7 +156,10 @@ impl BulgeRatioView {
                 significant(r.usual_range_percent.1, 1)
             ),
             range_badge: range_badge(r),
-            predicted: r.relation.as_ref().map(|rel| rel.text()),
+            predicted: r
+                .relation
+                .as_ref()
+                .map(|rel| (rel.percent_text(), rel.interval_text())),
             relation_badge: r
                 .relation
                 .as_ref()
