@@ -156,6 +156,10 @@ pub struct ClusterFit {
     pub gamma: (f64, f64),
     /// The radius r_c the member chose, pc.
     pub r_c_pc: f64,
+    /// False when the data leave the cluster unconstrained (its mass inside the outermost
+    /// point below 1 % of the black hole's and the likelihood flat in log M_c and γ): the
+    /// values are then where the search stopped and their errors are reported as 0.
+    pub constrained: bool,
 }
 
 /// One model's maximum-likelihood fit. Every (value, error) pair is a 1σ curvature error
@@ -1031,32 +1035,37 @@ fn fit_model(input: &DiskInput, extended: Option<&Extended>) -> Result<DiskFit, 
         }
         for u in &ups_starts {
             for c in &cl_starts {
-                for logm_shift in [0.0, -0.2] {
-                    let mut t = pm.clone();
-                    t[I_LOGM] += logm_shift;
-                    if let Some(u) = u {
-                        t.push(*u);
-                    }
-                    if let Some((lm, g)) = c {
-                        t.push(*lm);
-                        t.push(*g);
-                    }
-                    starts.push(t);
+                let mut t = pm.clone();
+                if u.is_some_and(|u| u > 0.0) {
+                    // Some of the point mass's mass goes to the stars.
+                    t[I_LOGM] -= 0.2;
                 }
+                if let Some(u) = u {
+                    t.push(*u);
+                }
+                if let Some((lm, g)) = c {
+                    t.push(*lm);
+                    t.push(*g);
+                }
+                starts.push(t);
             }
         }
     }
     let mut best: Option<(Vec<f64>, f64)> = None;
+    let free = vec![false; steps.len()];
     for s in &starts {
-        let free = vec![false; s.len()];
         let (t, f) = minimise(&model, s, &steps, &free);
-        // Once more from the optimum: the simplex can stall near a bound.
-        let (t, f) = {
-            let (t2, f2) = minimise(&model, &t, &steps, &free);
-            if f2 <= f { (t2, f2) } else { (t, f) }
-        };
         if best.as_ref().is_none_or(|b| f < b.1) {
             best = Some((t, f));
+        }
+    }
+    // Once more from the best optimum: the simplex can stall near a bound.
+    if starts.len() > 1
+        && let Some((t, f)) = &best
+    {
+        let (t2, f2) = minimise(&model, t, &steps, &free);
+        if f2 < *f {
+            best = Some((t2, f2));
         }
     }
     let Some((mut theta, mut f)) = best.filter(|b| b.1.is_finite()) else {
@@ -1082,9 +1091,31 @@ fn fit_model(input: &DiskInput, extended: Option<&Extended>) -> Result<DiskFit, 
         theta[I_S] = s_r;
         theta = minimise(&model, &theta, &steps, &held).0;
     }
-    let mut cov = curvature(&model, &mut theta, &held)?;
+    let mut cluster_constrained = true;
+    let mut cov = match (curvature(&model, &mut theta, &held), model.cluster_index()) {
+        (Ok(c), _) => c,
+        // A cluster too light to matter (its mass inside the outermost radius below 1 % of
+        // the black hole's) leaves log M_c and γ unconstrained: held for the curvature.
+        (Err(e), Some(j)) => {
+            let r_max = radius_range(&input.points, theta[I_XC]).1;
+            let rc = model.cluster_rc.unwrap_or(1.0);
+            let m_c = 10f64.powf(theta[j]) * (r_max / rc).powf(theta[j + 1]);
+            if m_c >= 0.01 * 10f64.powf(theta[I_LOGM]) {
+                return Err(e);
+            }
+            held[j] = true;
+            held[j + 1] = true;
+            cluster_constrained = false;
+            curvature(&model, &mut theta, &held)?
+        }
+        (Err(e), None) => return Err(e),
+    };
     cov[I_S][I_S] = s_err * s_err;
-    Ok(assemble(input, &model, &theta, ml_neg2, cov, n_free))
+    let mut fit = assemble(input, &model, &theta, ml_neg2, cov, n_free);
+    if let Some(c) = fit.cluster.as_mut() {
+        c.constrained = cluster_constrained;
+    }
+    Ok(fit)
 }
 
 fn assemble(
@@ -1129,6 +1160,7 @@ fn assemble(
             log_mc: (theta[j], err(j)),
             gamma: (theta[j + 1], err(j + 1)),
             r_c_pc: rc,
+            constrained: true,
         }),
         _ => None,
     };
@@ -1964,6 +1996,10 @@ mod tests {
         let cl = fit_extended(&inp, &ext).expect("cluster");
         assert_eq!(cl.model, "point mass + cluster");
         assert_eq!(cl.n_params, 6);
+        let c = cl.cluster.as_ref().expect("cluster");
+        // No cluster in the data: either held as unconstrained or consistent with nothing.
+        assert!(!c.constrained || 10f64.powf(c.log_mc.0) < 0.05 * 10f64.powf(cl.log_mbh));
+        assert!((cl.log_mbh - 7.0).abs() < 1e-3, "{}", cl.log_mbh);
         // The extended model nests the point mass: its likelihood is at least as high.
         assert!(cl.max_log_likelihood >= point.max_log_likelihood - 1e-6);
         assert_eq!(compare(&point, &cl).preferred, "point mass");
