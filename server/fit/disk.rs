@@ -15,13 +15,15 @@
 //!
 //! G = 4.30091727 × 10⁻³ pc M☉⁻¹ (km s⁻¹)² (docs/methods.md §5), σ_rot = ±1 the sense of
 //! rotation (which side recedes), read from the data. The fitted parameters are θ = (log10
-//! M_BH, v_sys, x_c, s[, Υ][, log10 M_c, γ]); the intrinsic velocity scatter s enters only as
-//! s², is reported as |s| ≥ 0 and, when its best value is 0, is held at 0 for the curvature
-//! errors.
+//! M_BH, v_sys, x_c, s[, Υ][, log10 M_c, γ]). The intrinsic velocity scatter s enters only as
+//! s² and is reported as |s| ≥ 0 at its restricted (REML-like) estimate; the other parameters
+//! are refitted at that s and their errors are the curvature errors with s held. −2 ln L, AIC,
+//! BIC and the likelihood ratio are those of the maximum-likelihood fit.
 //!
 //! # References
 //!
 //! Newtonian circular orbits in a thin disk (textbook physics; docs/methods.md §4.6 and §4.8);
+//! Patterson & Thompson 1971, Biometrika 58, 545 (restricted likelihood; from memory);
 //! Akaike 1974, IEEE TAC 19, 716; Schwarz 1978, Ann. Stat. 6, 461; Wilks 1938, Ann. Math. Stat.
 //! 9, 60; Goodman & Weare 2010, Comm. App. Math. Comp. Sci. 5, 65 (the posterior sampler).
 
@@ -189,7 +191,9 @@ pub struct DiskFit {
     /// Whether the centre was held at the member's centre (x_c = 0): every point lies on one
     /// side of it, so the data cannot place the centre.
     pub centre_held: bool,
-    /// Intrinsic velocity scatter s ≥ 0 and error, km s⁻¹ (error 0 when s sits at 0).
+    /// Intrinsic velocity scatter s ≥ 0 and error, km s⁻¹: the restricted estimate (module
+    /// documentation), error from the curvature of the restricted likelihood (0 when s sits at
+    /// 0).
     pub scatter_km_s: (f64, f64),
     /// Stellar mass-to-light ratio and error (error 0 when held or at its bound 0), if the
     /// model has stars.
@@ -202,7 +206,7 @@ pub struct DiskFit {
     /// Covariance of `params` (rows and columns in the same order; zero for held
     /// parameters).
     pub covariance: Vec<Vec<f64>>,
-    /// Maximum of ln L.
+    /// Maximum of ln L (at the maximum-likelihood s, which may be below the quoted one).
     pub max_log_likelihood: f64,
     /// Number of fitted parameters (held ones excluded).
     pub n_params: usize,
