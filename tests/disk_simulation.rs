@@ -113,7 +113,7 @@ fn simulate(seed: u64, n: usize, one_sided: bool, stars: bool) -> Truth {
             stars_inside = f64::max(stars_inside, m_star);
             let v_rot = sin_true * (G_PC_KM2_S2_PER_MSUN * (m_bh + m_star) / r).sqrt();
             let err: f64 = rng.random_range(5.0..40.0);
-            let noise = (err * err + s_true * s_true).sqrt() * normal(&mut rng);
+            let noise = err.hypot(s_true) * normal(&mut rng);
             DiskPoint {
                 offset_pc: x,
                 v_km_s: v_sys + sense * (x - x_c).signum() * v_rot + noise,
