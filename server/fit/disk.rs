@@ -2019,6 +2019,66 @@ mod tests {
     }
 
     #[test]
+    fn held_stars_add_no_parameter_and_are_sampled_with_the_rest() {
+        // Invented: M_BH = 10^7.2 M☉ and Plummer stars (L = 10^7 L☉, a = 0.8 pc) at Υ = 2,
+        // the model given the true Υ held.
+        let plummer = LightProfile::Plummer {
+            l_total_lsun: 1e7,
+            a_pc: 0.8,
+        };
+        let pts: Vec<DiskPoint> = (0..20)
+            .map(|k| {
+                let t = -1.0 + 2.0 * (f64::from(k) + 0.5) / 20.0;
+                let x = t.signum() * (0.05 + 1.45 * t.abs());
+                let m = 10f64.powf(7.2) + 2.0 * plummer.enclosed_lsun(x.abs());
+                DiskPoint {
+                    offset_pc: x,
+                    v_km_s: 300.0 + x.signum() * (G_PC_KM2_S2_PER_MSUN * m / x.abs()).sqrt(),
+                    err_km_s: 4.0,
+                }
+            })
+            .collect();
+        let inp = input(pts, Inclination::Unknown);
+        let ext = Extended {
+            stars: Some((plummer, MassToLight::Fixed(2.0))),
+            cluster: None,
+        };
+        let held = fit_extended(&inp, &ext).expect("held");
+        assert_eq!(held.n_params, 4);
+        assert_eq!(held.upsilon, Some((2.0, 0.0)));
+        assert!((held.log_mbh - 7.2).abs() < 1e-6, "{}", held.log_mbh);
+        let point = fit_point_mass(&inp).expect("point");
+        let c = compare(&point, &held);
+        assert_eq!(c.df, 0);
+        assert!(c.p_value.is_none());
+        assert_eq!(c.preferred, held.model);
+        let cfg = EnsembleConfig {
+            walkers: 16,
+            steps: 600,
+            burn_in: 200,
+            seed: 3,
+            init_scatter: 0.1,
+        };
+        let free = Extended {
+            stars: Some((
+                LightProfile::Plummer {
+                    l_total_lsun: 1e7,
+                    a_pc: 0.8,
+                },
+                MassToLight::Free,
+            )),
+            cluster: None,
+        };
+        let f = fit_extended(&inp, &free).expect("free");
+        let p = posterior_with(&inp, &f, Some(&free), &cfg).expect("posterior");
+        let names: Vec<&str> = p.params.iter().map(|s| s.name).collect();
+        assert_eq!(names, ["log_mbh", "v_sys", "x_c", "s", "upsilon"]);
+        assert!(p.inclination_prior.is_none());
+        // The extended model of another fit is refused.
+        assert!(posterior_with(&inp, &point, Some(&free), &cfg).is_err());
+    }
+
+    #[test]
     fn a_keplerian_disk_has_slope_minus_one_half() {
         let pts = disk(20, 7.0, 0.0, 0.0, 1.0, 1.0);
         let inp = input(pts, Inclination::Unknown);
