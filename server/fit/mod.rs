@@ -86,6 +86,7 @@ pub mod bces;
 pub mod bootstrap;
 pub mod conditional;
 pub mod diagnostics;
+pub mod disk;
 pub mod ensemble;
 pub mod fitexy;
 pub mod influence;
