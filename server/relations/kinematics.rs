@@ -15,6 +15,7 @@ use serde::Serialize;
 use crate::astro::influence::{angular_size_arcsec, influence_radius_pc, projected_radius_pc};
 use crate::catalog::intake::RowError;
 use crate::error::{AppError, FieldError};
+use crate::fit::FitError;
 use crate::fit::disk::{
     self, ClusterSpec, DiskFit, DiskInput, DiskPoint, Extended, Inclination, LightProfile,
     MassToLight,
@@ -697,12 +698,24 @@ pub fn read_table(text: &str, chosen: Option<OffsetUnit>) -> Result<Table, Vec<R
                     });
                     None
                 }
-                Err(e) => {
+                Err(e) if text.contains(',') => {
                     row_faults.push(RowError {
                         file: FILE,
                         line,
                         column,
-                        message: format!("{}; here, {what}", e.trim_end_matches('.')),
+                        message: e.trim_end_matches('.').to_owned(),
+                    });
+                    None
+                }
+                Err(_) => {
+                    row_faults.push(RowError {
+                        file: FILE,
+                        line,
+                        column,
+                        message: format!(
+                            "“{}” is not a number; type {what}",
+                            text.chars().take(40).collect::<String>()
+                        ),
                     });
                     None
                 }
@@ -838,16 +851,18 @@ impl ModelFit {
 /// Point mass against point mass + extended mass.
 #[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct Comparison {
-    /// AIC(point mass) − AIC(extended): positive favours the extended mass.
+    /// AIC(extended) − AIC(point mass): negative favours the extended mass.
     pub delta_aic: f64,
-    /// BIC(point mass) − BIC(extended).
+    /// BIC(extended) − BIC(point mass): negative favours the extended mass (the rule the
+    /// preferred model follows).
     pub delta_bic: f64,
     /// The likelihood-ratio statistic 2 (ln L_ext − ln L_point).
     pub lrt_statistic: f64,
     /// Its degrees of freedom (the extra parameters).
     pub lrt_df: usize,
-    /// Its p-value (χ² with `lrt_df` degrees of freedom).
-    pub lrt_p: f64,
+    /// Its p-value (χ² with `lrt_df` degrees of freedom; none when there is no extra
+    /// parameter).
+    pub lrt_p: Option<f64>,
     /// The model the comparison prefers.
     pub preferred: String,
     /// The comparison in one or two sentences.
@@ -863,6 +878,8 @@ pub struct Slope {
     pub slope_err: f64,
     /// (slope − (−1/2)) / error: how far from a point mass's −1/2, in σ.
     pub z_from_keplerian: f64,
+    /// Points the slope rests on (those clearly off v_sys).
+    pub n_used: usize,
     /// The slope in words.
     pub words: String,
 }
@@ -909,6 +926,8 @@ pub struct MaserDistanceResult {
     pub distance_mpc: (f64, f64),
     /// The systemic features' radius and its error, pc.
     pub radius_pc: (f64, f64),
+    /// The same in milliarcseconds.
+    pub radius_mas: (f64, f64),
     /// How many systemic features it rests on.
     pub n_features: usize,
     /// What to type as the galaxy's distance change (method maser), in words.
@@ -982,9 +1001,12 @@ pub struct KinematicsResult {
     pub log_mbh_err_distance_dex: f64,
     /// All in quadrature, dex.
     pub log_mbh_err_total_dex: f64,
-    /// The rotation curve's slope against a point mass's −1/2.
-    pub slope: Slope,
-    /// The posterior interval of log M_BH, when it could be sampled.
+    /// The rotation curve's slope against a point mass's −1/2, when enough points allow it.
+    pub slope: Option<Slope>,
+    /// Why there is no slope, if there is none.
+    pub slope_note: Option<String>,
+    /// The posterior interval of log M_BH (without the distance error), when it could be
+    /// sampled.
     pub posterior: Option<PosteriorInterval>,
     /// Why there is no posterior interval, if there is none.
     pub posterior_note: Option<String>,
@@ -1021,12 +1043,12 @@ impl KinematicsOutcome {
     pub fn curves(&self, offsets_pc: &[f64]) -> (Vec<f64>, Option<Vec<f64>>) {
         let point = offsets_pc
             .iter()
-            .map(|x| disk::model_velocity(&self.point_fit, None, *x))
+            .map(|x| disk::model_velocity(&self.point_fit, None, *x).unwrap_or(f64::NAN))
             .collect();
         let extended = self.extended_fit.as_ref().map(|(f, e)| {
             offsets_pc
                 .iter()
-                .map(|x| disk::model_velocity(f, Some(e), *x))
+                .map(|x| disk::model_velocity(f, Some(e), *x).unwrap_or(f64::NAN))
                 .collect()
         });
         (point, extended)
@@ -1100,7 +1122,12 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
             None => Inclination::Unknown,
         },
     };
-    let fault = |e: disk::FitError| KinematicsFault::Fit(fit_sentence(&e.to_string(), &curve));
+    if curve.is_empty() {
+        return Err(KinematicsFault::Fit(
+            "The table has no rotation-curve rows (every row has an acceleration): add the high-velocity features with empty acceleration cells.".to_owned(),
+        ));
+    }
+    let fault = |e: FitError| KinematicsFault::Fit(fit_sentence(&e, &curve));
     let point_fit = disk::fit_point_mass(&input).map_err(fault)?;
     let extended = settings.extended();
     let extended_fit = match &extended {
@@ -1110,20 +1137,24 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
     let comparison = extended_fit
         .as_ref()
         .map(|(f, _)| disk::compare(&point_fit, f));
-    let prefers_extended = comparison.as_ref().is_some_and(|c| c.prefers_extended());
+    let prefers_extended = match (&comparison, &extended_fit) {
+        (Some(c), Some((f, _))) => c.preferred == f.model,
+        _ => false,
+    };
     let adopted = match (&extended_fit, prefers_extended) {
         (Some((f, _)), true) => f,
         _ => &point_fit,
     };
     let adopted_extended = extended_fit.as_ref().filter(|_| prefers_extended).map(|(_, e)| e);
     let slope = disk::velocity_slope(&input, adopted);
+    let slope_note = slope.as_ref().err().map(ToString::to_string);
     let (posterior, posterior_note) =
         match disk::posterior(&input, adopted, adopted_extended, POSTERIOR_SEED) {
             Ok(p) => (
                 Some(PosteriorInterval {
                     median_log_mbh: p.log_mbh.median,
-                    low_log_mbh: p.log_mbh.low,
-                    high_log_mbh: p.log_mbh.high,
+                    low_log_mbh: p.log_mbh.p16,
+                    high_log_mbh: p.log_mbh.p84,
                     warning: p.warning.clone(),
                 }),
                 None,
@@ -1174,6 +1205,7 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         })
     });
     let (maser_distance, maser_note) = maser(&systemic, table.unit, settings, adopted);
+    let minimum_density = disk::minimum_density(mass, innermost_pc).unwrap_or(0.0);
     let method = if systemic.is_empty() { "gas_dynamics" } else { "maser" };
     let err = adopted.log_mbh_err_total;
     let prefill = Prefill {
@@ -1210,9 +1242,9 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         comparison: comparison.as_ref().map(|c| Comparison {
             delta_aic: c.delta_aic,
             delta_bic: c.delta_bic,
-            lrt_statistic: c.lrt_statistic,
-            lrt_df: c.lrt_df,
-            lrt_p: c.lrt_p,
+            lrt_statistic: c.lr_statistic,
+            lrt_df: c.df,
+            lrt_p: c.p_value,
             preferred: c.preferred.to_string(),
             words: c.sentence.clone(),
         }),
@@ -1222,21 +1254,19 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         log_mbh_err_inclination_dex: adopted.log_mbh_err_inclination,
         log_mbh_err_distance_dex: adopted.log_mbh_err_distance,
         log_mbh_err_total_dex: err,
-        slope: Slope {
-            slope: slope.slope,
-            slope_err: slope.slope_err,
-            z_from_keplerian: if slope.slope_err > 0.0 {
-                (slope.slope + 0.5) / slope.slope_err
-            } else {
-                0.0
-            },
-            words: slope_words(slope.slope, slope.slope_err),
-        },
+        slope: slope.ok().map(|s| Slope {
+            slope: s.slope,
+            slope_err: s.slope_err,
+            z_from_keplerian: s.z,
+            n_used: s.n_used,
+            words: slope_words(s.slope, s.slope_err, s.z),
+        }),
+        slope_note,
         posterior,
         posterior_note,
         innermost_radius_pc: innermost_pc,
         innermost_radius_arcsec: innermost_arcsec,
-        minimum_density_msun_pc3: disk::minimum_density(mass, innermost_pc),
+        minimum_density_msun_pc3: minimum_density,
         influence,
         maser_distance,
         maser_note,
@@ -1269,30 +1299,48 @@ fn short(v: f64) -> String {
 }
 
 /// The slope against −1/2 in words: within 2σ is "consistent" (common practice).
-fn slope_words(slope: f64, err: f64) -> String {
-    let z = if err > 0.0 { (slope + 0.5) / err } else { 0.0 };
+fn slope_words(slope: f64, err: f64, z: f64) -> String {
+    let shown = |v: f64| format!("{v:.2}").replace('-', "−");
     if z.abs() <= 2.0 {
         format!(
-            "The velocity falls as r^{slope:.2} ± {err:.2}, consistent with a point mass's r^−0.5 (within 2σ): the curve looks Keplerian."
+            "The speed falls as r^{} ± {}, consistent with a point mass's r^−0.5 (within 2σ): the curve looks Keplerian.",
+            shown(slope),
+            shown(err)
         )
     } else {
         format!(
-            "The velocity falls as r^{slope:.2} ± {err:.2}, {:.1}σ from a point mass's r^−0.5: the curve is not Keplerian, so mass outside the black hole matters.",
+            "The speed falls as r^{} ± {}, {:.1}σ from a point mass's r^−0.5: the curve is not Keplerian, so mass besides the black hole matters.",
+            shown(slope),
+            shown(err),
             z.abs()
         )
     }
 }
 
-/// The fit's refusal, with the table's line for a point index when the sentence names one.
-fn fit_sentence(why: &str, curve: &[&TableRow]) -> String {
-    let lines: Vec<String> = curve.iter().map(|r| r.line.to_string()).collect();
-    if lines.is_empty() {
-        return "The table has no rotation-curve rows (every row has an acceleration): add the high-velocity features with empty acceleration cells.".to_owned();
+/// The fit's refusal in a sentence, naming the table's line when it names a point (the fit
+/// counts rotation-curve points from 0).
+fn fit_sentence(e: &FitError, curve: &[&TableRow]) -> String {
+    let line = |row: usize| curve.get(row).map_or(0, |r| r.line);
+    match e {
+        FitError::NonFiniteInput { row, column } => {
+            format!("Row {}, {column}: the value is not a finite number.", line(*row))
+        }
+        FitError::NegativeError { row, column } => {
+            format!("Row {}, {column}: the error must be above 0.", line(*row))
+        }
+        other => crate::error::sentence(&other.to_string()),
     }
-    why.to_owned()
 }
 
 /// The maser distance from the systemic features, when the table has some.
+///
+/// The systemic features lie on the near side of the disk at one radius θ_s. Along the axis
+/// their velocity changes as v − v_sys = v_rot(θ_s) θ / θ_s, so the fitted gradient g = dv/dθ
+/// and the rotation curve in angle, v(θ) = K θ^(−1/2) with K = sin i √(G M / (D θ)) θ^(1/2)
+/// (distance-free, since M ∝ D), give θ_s = (K / g)^(2/3) and v_rot = K θ_s^(−1/2). The
+/// features share that radius, so their accelerations are averaged (weighted) into one drift
+/// before `fit::disk::maser_distance` turns r = v_rot² / a and θ_s into D (docs/methods.md
+/// §4.8; common practice).
 fn maser(
     systemic: &[&TableRow],
     unit: OffsetUnit,
@@ -1308,32 +1356,233 @@ fn maser(
             Some("A maser distance needs positions in angle (offset_arcsec or offset_mas); positions in pc already assume a distance.".to_owned()),
         );
     };
-    let features: Vec<disk::MaserFeature> = systemic
-        .iter()
-        .filter_map(|r| {
-            r.acceleration_km_s_yr.map(|(a, e)| disk::MaserFeature {
-                offset_arcsec: r.offset * scale,
-                v_km_s: r.v_km_s,
-                acceleration_km_s_yr: a,
-                acceleration_err_km_s_yr: e,
-            })
-        })
-        .collect();
-    match disk::maser_distance(fit, &features, settings.distance_mpc) {
-        Ok(m) => (
-            Some(MaserDistanceResult {
-                distance_mpc: m.distance_mpc,
-                radius_pc: m.radius_pc,
-                n_features: features.len(),
-                words: format!(
-                    "Geometric distance {:.2} ± {:.2} Mpc from {} systemic feature(s) (method maser): a reviewer can enter it as the galaxy's distance on its page.",
-                    m.distance_mpc.0,
-                    m.distance_mpc.1,
-                    features.len()
-                ),
-            }),
+    if systemic.len() < 2 {
+        return (
             None,
-        ),
-        Err(e) => (None, Some(e.to_string())),
+            Some("A maser distance needs at least two systemic features (rows with an acceleration) to measure their velocity gradient.".to_owned()),
+        );
+    }
+    // Positions from the fitted centre, in mas.
+    let pc_per_mas = to_pc(1.0e-3, OffsetUnit::Arcsec, settings.distance_mpc);
+    let centre_mas = fit.centre_pc.0 / pc_per_mas;
+    let v_sys = fit.v_sys_km_s.0;
+    // Weighted least squares of v − v_sys = g θ through the origin.
+    let (mut swxy, mut swxx) = (0.0, 0.0);
+    for r in systemic {
+        let theta = r.offset * scale * 1.0e3 - centre_mas;
+        let w = 1.0 / (r.v_err_km_s * r.v_err_km_s);
+        swxy += w * theta * (r.v_km_s - v_sys);
+        swxx += w * theta * theta;
+    }
+    let gradient = (swxy / swxx).abs();
+    let gradient_err = swxx.sqrt().recip();
+    // K in km/s mas^(1/2): the projected speed at 1 mas.
+    let k = fit.sin_i * (crate::astro::constants::G_PC_KM2_S2_PER_MSUN * 10f64.powf(fit.log_mbh) / pc_per_mas).sqrt();
+    let k_rel = 0.5 * std::f64::consts::LN_10 * fit.log_mbh_err_stat;
+    if !(gradient.is_finite() && gradient > 0.0 && k.is_finite() && k > 0.0) {
+        return (
+            None,
+            Some("The systemic features show no velocity gradient along the axis, so their radius cannot be found.".to_owned()),
+        );
+    }
+    let theta_s = (k / gradient).powf(2.0 / 3.0);
+    let theta_rel = 2.0 / 3.0 * (k_rel.powi(2) + (gradient_err / gradient).powi(2)).sqrt();
+    let v_rot = k / theta_s.sqrt();
+    let (mut aw, mut awa) = (0.0, 0.0);
+    for r in systemic {
+        if let Some((a, e)) = r.acceleration_km_s_yr {
+            aw += 1.0 / (e * e);
+            awa += a.abs() / (e * e);
+        }
+    }
+    let feature = disk::MaserFeature {
+        radius_mas: theta_s,
+        radius_err_mas: theta_rel * theta_s,
+        v_rot_km_s: v_rot,
+        v_rot_err_km_s: 0.5 * theta_rel * v_rot,
+        acceleration_km_s_yr: awa / aw,
+        err: aw.sqrt().recip(),
+    };
+    match disk::maser_distance(std::slice::from_ref(&feature)) {
+        Ok(m) => {
+            let radius_pc = m.per_feature.first().map_or(0.0, |f| f.0);
+            (
+                Some(MaserDistanceResult {
+                    distance_mpc: (m.distance_mpc, m.err_mpc),
+                    radius_pc: (radius_pc, theta_rel * radius_pc),
+                    radius_mas: (theta_s, theta_rel * theta_s),
+                    n_features: systemic.len(),
+                    words: format!(
+                        "Geometric distance {:.2} ± {:.2} Mpc from {} systemic features (method maser); a reviewer or admin can enter it as the galaxy's distance on its page.",
+                        m.distance_mpc,
+                        m.err_mpc,
+                        systemic.len()
+                    ),
+                }),
+                None,
+            )
+        }
+        Err(e) => (None, Some(crate::error::sentence(&e.to_string()))),
+    }
+}
+
+/// A demo table with the settings it was made for (seed-data/kinematics, invented).
+pub struct Example {
+    /// Its word in addresses (`?example=maser`).
+    pub slug: &'static str,
+    /// What it is, for the link.
+    pub label: &'static str,
+    /// The CSV text.
+    pub table: &'static str,
+    /// The settings, as a form's fields.
+    pub settings: &'static [(&'static str, &'static str)],
+}
+
+/// The two demo tables: an invented maser disk around a point mass, with systemic features,
+/// and an invented gas disk whose black hole sits in a Plummer star cluster (generated by
+/// seed-data/kinematics/generate_disks.py; its docstring states the models and the seed).
+pub const EXAMPLES: [Example; 2] = [
+    Example {
+        slug: "maser",
+        label: "a water-maser disk (Harnwick 7, invented)",
+        table: include_str!("../../seed-data/kinematics/maser-disk.csv"),
+        settings: &[
+            ("distance_mpc", "7.2"),
+            ("distance_err_mpc", "0.5"),
+            ("inclination_deg", "86"),
+            ("inclination_err_deg", "2"),
+            ("sigma_km_s", "110"),
+            ("resolution_arcsec", "0.0005"),
+        ],
+    },
+    Example {
+        slug: "gas",
+        label: "a gas disk in a star cluster (Tolvenna 3, invented)",
+        table: include_str!("../../seed-data/kinematics/gas-disk.csv"),
+        settings: &[
+            ("distance_mpc", "21"),
+            ("distance_err_mpc", "1.5"),
+            ("inclination_deg", "60"),
+            ("inclination_err_deg", "4"),
+            ("plummer_l_lsun", "1e9"),
+            ("plummer_a_pc", "40"),
+            ("upsilon", "free"),
+            ("sigma_km_s", "190"),
+            ("resolution_arcsec", "0.08"),
+        ],
+    },
+];
+
+/// The demo table named `slug`.
+pub fn example(slug: &str) -> Option<&'static Example> {
+    EXAMPLES.iter().find(|e| e.slug == slug)
+}
+
+impl Example {
+    /// The settings as owned pairs.
+    pub fn pairs(&self) -> Vec<(String, String)> {
+        self.settings
+            .iter()
+            .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fitted(slug: &str) -> KinematicsOutcome {
+        let e = example(slug).unwrap();
+        match fit_table(e.table, &e.pairs(), 1.0) {
+            Ok(o) => o,
+            Err(f) => panic!("{f:?}"),
+        }
+    }
+
+    #[test]
+    fn the_maser_example_recovers_its_invented_mass_and_distance() {
+        // generate_disks.py: M = 4e7 M☉ at 7.2 Mpc, i = 86°, v_sys = 1420 km/s.
+        let o = fitted("maser");
+        let r = &o.result;
+        assert_eq!(r.n_systemic, 5);
+        assert_eq!(r.n_points, 34);
+        assert_eq!(r.prefill.method, "maser");
+        let truth = 4.0e7f64.log10();
+        assert!(
+            (r.log_mbh - truth).abs() < 3.0 * r.log_mbh_err_stat_dex + 0.01,
+            "{} against {truth}",
+            r.log_mbh
+        );
+        let s = r.slope.as_ref().unwrap();
+        assert!(s.z_from_keplerian.abs() < 3.0, "{s:?}");
+        let d = r.maser_distance.as_ref().expect("a maser distance");
+        assert!(
+            (d.distance_mpc.0 - 7.2).abs() < 3.0 * d.distance_mpc.1 + 0.2,
+            "{d:?}"
+        );
+    }
+
+    #[test]
+    fn the_gas_example_prefers_the_stars_and_is_not_keplerian() {
+        let o = fitted("gas");
+        let r = &o.result;
+        let c = r.comparison.as_ref().unwrap();
+        assert!(c.delta_bic < 0.0, "{c:?}");
+        assert_eq!(r.adopted_model, r.extended.as_ref().unwrap().model);
+        assert_eq!(r.prefill.method, "gas_dynamics");
+        assert!(r.maser_distance.is_none());
+        // The point mass alone must absorb the stars: a larger mass than the model with them.
+        assert!(r.point_mass.log_mbh > r.log_mbh);
+    }
+
+    #[test]
+    fn every_faulty_row_is_named_with_its_line_and_column() {
+        let text = "offset_arcsec,v_km_s,v_err_km_s\n0.1,300,5\n0.2,abc,5\n0.3,250,-1\n0.4,240,\n";
+        let rows = read_table(text, None).unwrap_err();
+        let named: Vec<(u64, &str)> = rows.iter().map(|r| (r.line, r.column)).collect();
+        assert_eq!(
+            named,
+            vec![(3, "v_km_s"), (4, "v_err_km_s"), (5, "v_err_km_s")]
+        );
+        assert!(rows[0].message.contains("type the line-of-sight velocity"), "{}", rows[0].message);
+    }
+
+    #[test]
+    fn a_plain_offset_column_needs_its_unit_and_takes_the_one_chosen() {
+        let text = "offset,v_km_s,v_err_km_s\n0.1,300,5\n";
+        let faults = read_table(text, None).unwrap_err();
+        assert_eq!(faults[0].column, "offset");
+        assert_eq!(read_table(text, Some(OffsetUnit::Mas)).unwrap().unit, OffsetUnit::Mas);
+        let declared = "offset_pc,v_km_s,v_err_km_s\n0.1,300,5\n";
+        assert_eq!(
+            read_table(declared, Some(OffsetUnit::Mas)).unwrap().unit,
+            OffsetUnit::Pc
+        );
+    }
+
+    #[test]
+    fn missing_settings_are_each_named() {
+        let faults = KinematicsSettings::from_pairs(&[], 1.0).unwrap_err();
+        let names: Vec<&str> = faults.iter().map(|f| f.field.as_str()).collect();
+        assert_eq!(names, vec!["distance_mpc", "distance_err_mpc", "inclination_deg"]);
+        let unknown = KinematicsSettings::from_pairs(
+            &[
+                ("distance_mpc".into(), "10".into()),
+                ("distance_err_mpc".into(), "1".into()),
+                ("inclination_deg".into(), "unknown".into()),
+            ],
+            1.0,
+        )
+        .unwrap();
+        assert_eq!(unknown.inclination_deg, None);
+    }
+
+    #[test]
+    fn angles_become_parsecs_at_the_distance() {
+        // r = θ D / 206 264.806″ (docs/methods.md §4.6): 1″ at 10 Mpc is 48.4814 pc.
+        assert!((to_pc(-1.0, OffsetUnit::Arcsec, 10.0) + 48.481_37).abs() < 1e-4);
+        assert!((to_pc(1000.0, OffsetUnit::Mas, 10.0) - 48.481_37).abs() < 1e-4);
+        assert_eq!(to_pc(3.5, OffsetUnit::Pc, 10.0), 3.5);
     }
 }
