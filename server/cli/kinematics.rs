@@ -156,7 +156,7 @@ fn write_text(r: &KinematicsResult, out: &mut dyn Write) -> anyhow::Result<()> {
     };
     writeln!(
         out,
-        "{what} = {:.3} ± {:.3} dex [log10 M☉] ({} model; statistical {:.3}, inclination {:.3}, distance {:.3}).",
+        "{what} = {:.3} ± {:.3} dex [log10 M☉] ({} model; statistical {:.2e}, inclination {:.2e}, distance {:.2e}).",
         r.log_mbh,
         r.log_mbh_err_total_dex,
         r.adopted_model,
@@ -176,7 +176,7 @@ fn write_text(r: &KinematicsResult, out: &mut dyn Write) -> anyhow::Result<()> {
     for m in std::iter::once(&r.point_mass).chain(r.extended.as_ref()) {
         writeln!(
             out,
-            "  {}: log M_BH = {:.3} ± {:.3}, ln L = {:.2}, k = {}, AIC = {:.2}, BIC = {:.2}.",
+            "  {}: log M_BH = {:.3} ± {:.2e}, ln L = {:.2}, k = {}, AIC = {:.2}, BIC = {:.2}.",
             m.model, m.log_mbh, m.log_mbh_err_stat_dex, m.max_log_likelihood, m.n_params, m.aic, m.bic
         )?;
     }

@@ -326,13 +326,18 @@ fn dex(v: f64) -> String {
     fixed(v, 3)
 }
 
+/// An error in dex to two significant digits (a maser's statistical error can be 0.0004).
+fn err_dex(v: f64) -> String {
+    significant(v, 2)
+}
+
 impl ResultView {
     fn of(o: &KinematicsOutcome) -> AppResult<Self> {
         let r = &o.result;
         let model_row = |m: &crate::relations::kinematics::ModelFit| ModelRow {
             model: m.model.clone(),
             log_mbh: dex(m.log_mbh),
-            err_stat: dex(m.log_mbh_err_stat_dex),
+            err_stat: err_dex(m.log_mbh_err_stat_dex),
             upsilon: m.upsilon.map_or_else(
                 || "—".to_owned(),
                 |(u, e)| format!("{} ± {}", significant(u, 3), significant(e, 2)),
@@ -379,10 +384,10 @@ impl ResultView {
                 "log M_BH"
             },
             log_mbh: dex(r.log_mbh),
-            err_stat: dex(r.log_mbh_err_stat_dex),
-            err_inclination: dex(r.log_mbh_err_inclination_dex),
-            err_distance: dex(r.log_mbh_err_distance_dex),
-            err_total: dex(r.log_mbh_err_total_dex),
+            err_stat: err_dex(r.log_mbh_err_stat_dex),
+            err_inclination: err_dex(r.log_mbh_err_inclination_dex),
+            err_distance: err_dex(r.log_mbh_err_distance_dex),
+            err_total: err_dex(r.log_mbh_err_total_dex),
             mass_linear: scientific(10f64.powf(r.log_mbh)),
             adopted_model: r.adopted_model.clone(),
             posterior: r.posterior.as_ref().map(|p| {

@@ -20,6 +20,7 @@ mod galaxy_names;
 mod galaxy_relations;
 mod history;
 mod idempotency;
+mod kinematics;
 mod pages;
 mod relations;
 mod runs;
