@@ -1216,17 +1216,16 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         distance_mpc: d,
         resolution_arcsec: settings.resolution_arcsec,
         note: format!(
-            "Disk fit ({}) of {} points at {} Mpc{}: statistical {:.3}, inclination {:.3}, distance {:.3} dex.",
+            "Disk fit ({}) of {} points at {d} Mpc{}; errors in dex: statistical {}, inclination {}, distance {}.",
             adopted.model,
             points.len(),
-            short(d),
             match settings.inclination_deg {
-                Some((i, e)) => format!(", i = {} ± {}°", short(i), short(e)),
+                Some((i, e)) => format!(", i = {i} ± {e}°"),
                 None => ", inclination unknown (M sin² i)".to_owned(),
             },
-            adopted.log_mbh_err_stat,
-            adopted.log_mbh_err_inclination,
-            adopted.log_mbh_err_distance
+            two_digits(adopted.log_mbh_err_stat),
+            two_digits(adopted.log_mbh_err_inclination),
+            two_digits(adopted.log_mbh_err_distance)
         ),
     };
     let result = KinematicsResult {
@@ -1287,6 +1286,15 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         point_fit,
         extended_fit,
     })
+}
+
+/// An error with two significant digits, for sentences.
+fn two_digits(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let digits = (1 - v.abs().log10().floor() as i32).max(0) as usize;
+    format!("{v:.digits$}")
 }
 
 /// A number with four significant digits, for sentences.

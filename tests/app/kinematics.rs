@@ -180,14 +180,18 @@ async fn fitting_stores_nothing_and_the_submit_link_fills_the_form_with_the_mass
     assert!(page.body.contains("id=\"maser-distance\""));
     assert_eq!(counts(&app).await, before, "a fit stored something");
 
-    let start = page.body.find("id=\"submit-mass\" href=\"").unwrap() + 22;
+    let marker = "id=\"submit-mass\" href=\"";
+    let start = page.body.find(marker).unwrap() + marker.len();
     let end = page.body[start..].find('"').unwrap() + start;
-    let href = page.body[start..end].replace("&amp;", "&");
+    let href = page.body[start..end]
+        .replace("&amp;", "&")
+        .replace("&#38;", "&");
     assert!(href.starts_with("/submissions/new?"), "{href}");
     let form = browser.get(&href).await;
     assert_eq!(form.status, 200, "{}", form.body);
     let log_mbh = text_of(&page.body, "log-mbh");
-    let value_at = form.body.find("name=\"m0_value\" value=\"").unwrap() + 23;
+    let marker = "name=\"m0_value\" value=\"";
+    let value_at = form.body.find(marker).unwrap() + marker.len();
     assert!(
         form.body[value_at..].starts_with(&format!("log {log_mbh}")),
         "the form does not carry the mass {log_mbh}: {}",
