@@ -160,7 +160,7 @@ fn page(
     KinematicsPage {
         nav,
         table,
-        units: std::iter::once(("", "as the header says (offset_arcsec, offset_mas, offset_pc)"))
+        units: std::iter::once(("", "named in the header"))
             .chain(OffsetUnit::ALL.iter().map(|u| (u.as_str(), u.label())))
             .map(|(v, l)| (v, l, v == unit))
             .collect(),
