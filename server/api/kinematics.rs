@@ -142,7 +142,10 @@ impl KinematicsRequest {
             }
         };
         let n = |v: Option<f64>| v.map(|v| v.to_string());
-        put("offset_unit", self.offset_unit.map(|u| u.as_str().to_owned()));
+        put(
+            "offset_unit",
+            self.offset_unit.map(|u| u.as_str().to_owned()),
+        );
         put("distance_mpc", Some(self.distance_mpc.to_string()));
         put("distance_err_mpc", Some(self.distance_err_mpc.to_string()));
         if self.inclination_unknown {

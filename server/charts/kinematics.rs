@@ -167,7 +167,13 @@ fn curve_path(map: &Map, samples: &[(f64, f64)]) -> String {
     for &(x, y) in samples {
         if x.is_finite() && y.is_finite() && map.inside(x, y) {
             let (px, py) = map.at(x, y);
-            let _ = write!(d, "{}{},{} ", if open { "L" } else { "M" }, num(px), num(py));
+            let _ = write!(
+                d,
+                "{}{},{} ",
+                if open { "L" } else { "M" },
+                num(px),
+                num(py)
+            );
             open = true;
         } else {
             open = false;
@@ -198,10 +204,12 @@ pub fn kinematics_svg(chart: &DiskChart) -> Result<String, ChartError> {
     check(chart.centre_pc, "the centre", "position")?;
     check(chart.v_sys_km_s, "the systemic velocity", "velocity")?;
     let fold = |f: &dyn Fn(&DiskChartPoint) -> f64, g: &dyn Fn(&DiskChartPoint) -> f64| {
-        chart.points.iter().fold(
-            (f64::INFINITY, f64::NEG_INFINITY),
-            |(lo, hi), p| (lo.min(f(p)), hi.max(g(p))),
-        )
+        chart
+            .points
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
+                (lo.min(f(p)), hi.max(g(p)))
+            })
     };
     let (x_lo, x_hi) = fold(&|p| p.x_pc, &|p| p.x_pc);
     let (v_lo, v_hi) = fold(&|p| p.v_km_s - p.err_km_s, &|p| p.v_km_s + p.err_km_s);
@@ -219,7 +227,11 @@ pub fn kinematics_svg(chart: &DiskChart) -> Result<String, ChartError> {
     } else {
         padded(v_lo.min(chart.v_sys_km_s), v_hi.max(chart.v_sys_km_s))
     };
-    let r_abs = if empty { 1.0 } else { r_lo.abs().max(r_hi.abs()) };
+    let r_abs = if empty {
+        1.0
+    } else {
+        r_lo.abs().max(r_hi.abs())
+    };
     let r = padded(-r_abs, r_abs);
 
     style::register_font();
@@ -227,7 +239,8 @@ pub fn kinematics_svg(chart: &DiskChart) -> Result<String, ChartError> {
     let mut svg = String::new();
     let (top_map, bottom_map) = {
         let root = SVGBackend::with_string(&mut svg, (WIDTH, height)).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| ChartError::Drawing(e.to_string()))?;
+        root.fill(&WHITE)
+            .map_err(|e| ChartError::Drawing(e.to_string()))?;
         let (_, plots) = root.split_vertically(LEGEND_H);
         let (top, bottom) = plots.split_vertically(TOP_H);
         let top_map = frame(
@@ -244,14 +257,19 @@ pub fn kinematics_svg(chart: &DiskChart) -> Result<String, ChartError> {
             "Position along the major axis [pc]",
             "Residual [km/s]",
         )?;
-        root.present().map_err(|e| ChartError::Drawing(e.to_string()))?;
+        root.present()
+            .map_err(|e| ChartError::Drawing(e.to_string()))?;
         (top_map, bottom_map)
     };
     let body = svg
         .strip_prefix("<svg ")
         .and_then(|rest| rest.trim_end().strip_suffix("</svg>"))
-        .ok_or_else(|| ChartError::Drawing("plotters wrote an unexpected document frame".to_owned()))?;
-    let (open, content) = body.split_once('>').ok_or_else(|| ChartError::Drawing("plotters wrote an unexpected document frame".to_owned()))?;
+        .ok_or_else(|| {
+            ChartError::Drawing("plotters wrote an unexpected document frame".to_owned())
+        })?;
+    let (open, content) = body.split_once('>').ok_or_else(|| {
+        ChartError::Drawing("plotters wrote an unexpected document frame".to_owned())
+    })?;
 
     let summary = format!(
         "{} {} points; {}; centre at {} pc, systemic velocity {} km/s; residuals below are from the {} model.",
@@ -329,7 +347,10 @@ pub fn kinematics_svg(chart: &DiskChart) -> Result<String, ChartError> {
     }
     // Points with error bars, in both panels.
     for (map, value) in [
-        (&top_map, (|p: &DiskChartPoint| p.v_km_s) as fn(&DiskChartPoint) -> f64),
+        (
+            &top_map,
+            (|p: &DiskChartPoint| p.v_km_s) as fn(&DiskChartPoint) -> f64,
+        ),
         (&bottom_map, |p: &DiskChartPoint| p.residual_km_s),
     ] {
         for p in &chart.points {

@@ -81,7 +81,9 @@ impl KinematicsArgs {
         put("cluster_r_c_pc", &self.cluster_r_c);
         if let Some(p) = &self.plummer {
             let Some((l, a)) = p.split_once(',') else {
-                anyhow::bail!("--plummer takes the luminosity and the scale radius as L,a (L☉, pc), such as 1e9,40.");
+                anyhow::bail!(
+                    "--plummer takes the luminosity and the scale radius as L,a (L☉, pc), such as 1e9,40."
+                );
             };
             pairs.push(("plummer_l_lsun".to_owned(), l.to_owned()));
             pairs.push(("plummer_a_pc".to_owned(), a.to_owned()));
@@ -89,7 +91,9 @@ impl KinematicsArgs {
         if let Some(p) = &self.power_law {
             let parts: Vec<&str> = p.split(',').collect();
             let [l, r, s] = parts.as_slice() else {
-                anyhow::bail!("--power-law takes L_ref,r_ref,slope (L☉, pc, slope of L(<r)), such as 5e8,50,1.2.");
+                anyhow::bail!(
+                    "--power-law takes L_ref,r_ref,slope (L☉, pc, slope of L(<r)), such as 5e8,50,1.2."
+                );
             };
             pairs.push(("power_l_ref_lsun".to_owned(), (*l).to_owned()));
             pairs.push(("power_r_ref_pc".to_owned(), (*r).to_owned()));
@@ -177,7 +181,13 @@ fn write_text(r: &KinematicsResult, out: &mut dyn Write) -> anyhow::Result<()> {
         writeln!(
             out,
             "  {}: log M_BH = {:.3} ± {:.2e}, ln L = {:.2}, k = {}, AIC = {:.2}, BIC = {:.2}.",
-            m.model, m.log_mbh, m.log_mbh_err_stat_dex, m.max_log_likelihood, m.n_params, m.aic, m.bic
+            m.model,
+            m.log_mbh,
+            m.log_mbh_err_stat_dex,
+            m.max_log_likelihood,
+            m.n_params,
+            m.aic,
+            m.bic
         )?;
     }
     if let Some(c) = &r.comparison {
@@ -203,7 +213,11 @@ fn write_text(r: &KinematicsResult, out: &mut dyn Write) -> anyhow::Result<()> {
             "Sphere of influence: r_infl = {:.4} pc, θ_infl = {:.4} arcsec: {} ({}).",
             i.r_infl_pc,
             i.theta_infl_arcsec,
-            if i.resolved { "resolved" } else { "not resolved" },
+            if i.resolved {
+                "resolved"
+            } else {
+                "not resolved"
+            },
             i.basis
         )?;
     }

@@ -280,27 +280,24 @@ impl KinematicsSettings {
                 .filter(|v| !v.is_empty())
         };
         let mut faults = Vec::new();
-        let mut num = |name: &'static str,
-                       what: &str,
-                       check: fn(f64) -> bool,
-                       range: &str|
-         -> Option<f64> {
-            let text = get(name)?;
-            match number(text) {
-                Ok(v) if check(v) => Some(v),
-                Ok(_) => {
-                    faults.push(FieldError::new(
-                        name,
-                        format!("The {what} {text} is out of range; type {range}."),
-                    ));
-                    None
+        let mut num =
+            |name: &'static str, what: &str, check: fn(f64) -> bool, range: &str| -> Option<f64> {
+                let text = get(name)?;
+                match number(text) {
+                    Ok(v) if check(v) => Some(v),
+                    Ok(_) => {
+                        faults.push(FieldError::new(
+                            name,
+                            format!("The {what} {text} is out of range; type {range}."),
+                        ));
+                        None
+                    }
+                    Err(e) => {
+                        faults.push(FieldError::new(name, format!("The {what}: {e}")));
+                        None
+                    }
                 }
-                Err(e) => {
-                    faults.push(FieldError::new(name, format!("The {what}: {e}")));
-                    None
-                }
-            }
-        };
+            };
         let positive = |v: f64| v > 0.0;
         let distance = num(
             "distance_mpc",
@@ -638,7 +635,8 @@ pub fn read_table(text: &str, chosen: Option<OffsetUnit>) -> Result<Table, Vec<R
     if acc_at.is_some() != acc_err_at.is_some() {
         faults.push(header_fault(
             "(header)",
-            "give acceleration_km_s_yr and acceleration_err_km_s_yr together, or neither".to_owned(),
+            "give acceleration_km_s_yr and acceleration_err_km_s_yr together, or neither"
+                .to_owned(),
         ));
     }
     if !faults.is_empty() {
@@ -670,7 +668,9 @@ pub fn read_table(text: &str, chosen: Option<OffsetUnit>) -> Result<Table, Vec<R
                 file: FILE,
                 line,
                 column: "(row)",
-                message: format!("the table has more than {MAX_ROWS} rows; send at most {MAX_ROWS}"),
+                message: format!(
+                    "the table has more than {MAX_ROWS} rows; send at most {MAX_ROWS}"
+                ),
             });
             break;
         }
@@ -1079,13 +1079,17 @@ pub fn fit_table(
     let settings = KinematicsSettings::from_pairs(pairs, default_threshold);
     let table = read_table(
         text,
-        settings.as_ref().ok().and_then(|s| s.offset_unit).or_else(|| {
-            // A bad settings list still reads the table, so every fault shows at once.
-            pairs
-                .iter()
-                .find(|(k, _)| k == "offset_unit")
-                .and_then(|(_, v)| OffsetUnit::parse(v).ok())
-        }),
+        settings
+            .as_ref()
+            .ok()
+            .and_then(|s| s.offset_unit)
+            .or_else(|| {
+                // A bad settings list still reads the table, so every fault shows at once.
+                pairs
+                    .iter()
+                    .find(|(k, _)| k == "offset_unit")
+                    .and_then(|(_, v)| OffsetUnit::parse(v).ok())
+            }),
     );
     match (settings, table) {
         (Err(f), _) => Err(KinematicsFault::Settings(f)),
@@ -1099,7 +1103,10 @@ pub fn fit_table(
 /// # Errors
 /// [`KinematicsFault::Fit`] when the fit refuses the data (one sentence), or
 /// [`KinematicsFault::Table`] when no row is left for the rotation curve.
-pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOutcome, KinematicsFault> {
+pub fn fit(
+    table: &Table,
+    settings: &KinematicsSettings,
+) -> Result<KinematicsOutcome, KinematicsFault> {
     let d = settings.distance_mpc;
     let (systemic, curve): (Vec<&TableRow>, Vec<&TableRow>) = table
         .rows
@@ -1145,7 +1152,10 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
         (Some((f, _)), true) => f,
         _ => &point_fit,
     };
-    let adopted_extended = extended_fit.as_ref().filter(|_| prefers_extended).map(|(_, e)| e);
+    let adopted_extended = extended_fit
+        .as_ref()
+        .filter(|_| prefers_extended)
+        .map(|(_, e)| e);
     let slope = disk::velocity_slope(&input, adopted);
     let slope_note = slope.as_ref().err().map(ToString::to_string);
     let (posterior, posterior_note) =
@@ -1206,7 +1216,11 @@ pub fn fit(table: &Table, settings: &KinematicsSettings) -> Result<KinematicsOut
     });
     let (maser_distance, maser_note) = maser(&systemic, table.unit, settings, adopted);
     let minimum_density = disk::minimum_density(mass, innermost_pc).unwrap_or(0.0);
-    let method = if systemic.is_empty() { "gas_dynamics" } else { "maser" };
+    let method = if systemic.is_empty() {
+        "gas_dynamics"
+    } else {
+        "maser"
+    };
     let err = adopted.log_mbh_err_total;
     let prefill = Prefill {
         method: method.to_owned(),
@@ -1331,7 +1345,10 @@ fn fit_sentence(e: &FitError, curve: &[&TableRow]) -> String {
     let line = |row: usize| curve.get(row).map_or(0, |r| r.line);
     match e {
         FitError::NonFiniteInput { row, column } => {
-            format!("Row {}, {column}: the value is not a finite number.", line(*row))
+            format!(
+                "Row {}, {column}: the value is not a finite number.",
+                line(*row)
+            )
         }
         FitError::NegativeError { row, column } => {
             format!("Row {}, {column}: the error must be above 0.", line(*row))
@@ -1385,7 +1402,9 @@ fn maser(
     let gradient = (swxy / swxx).abs();
     let gradient_err = swxx.sqrt().recip();
     // K in km/s mas^(1/2): the projected speed at 1 mas.
-    let k = fit.sin_i * (crate::astro::constants::G_PC_KM2_S2_PER_MSUN * 10f64.powf(fit.log_mbh) / pc_per_mas).sqrt();
+    let k = fit.sin_i
+        * (crate::astro::constants::G_PC_KM2_S2_PER_MSUN * 10f64.powf(fit.log_mbh) / pc_per_mas)
+            .sqrt();
     let k_rel = 0.5 * std::f64::consts::LN_10 * fit.log_mbh_err_stat;
     if !(gradient.is_finite() && gradient > 0.0 && k.is_finite() && k > 0.0) {
         return (
@@ -1553,7 +1572,11 @@ mod tests {
             named,
             vec![(3, "v_km_s"), (4, "v_err_km_s"), (5, "v_err_km_s")]
         );
-        assert!(rows[0].message.contains("type the line-of-sight velocity"), "{}", rows[0].message);
+        assert!(
+            rows[0].message.contains("type the line-of-sight velocity"),
+            "{}",
+            rows[0].message
+        );
     }
 
     #[test]
@@ -1561,7 +1584,10 @@ mod tests {
         let text = "offset,v_km_s,v_err_km_s\n0.1,300,5\n";
         let faults = read_table(text, None).unwrap_err();
         assert_eq!(faults[0].column, "offset");
-        assert_eq!(read_table(text, Some(OffsetUnit::Mas)).unwrap().unit, OffsetUnit::Mas);
+        assert_eq!(
+            read_table(text, Some(OffsetUnit::Mas)).unwrap().unit,
+            OffsetUnit::Mas
+        );
         let declared = "offset_pc,v_km_s,v_err_km_s\n0.1,300,5\n";
         assert_eq!(
             read_table(declared, Some(OffsetUnit::Mas)).unwrap().unit,
@@ -1573,7 +1599,10 @@ mod tests {
     fn missing_settings_are_each_named() {
         let faults = KinematicsSettings::from_pairs(&[], 1.0).unwrap_err();
         let names: Vec<&str> = faults.iter().map(|f| f.field.as_str()).collect();
-        assert_eq!(names, vec!["distance_mpc", "distance_err_mpc", "inclination_deg"]);
+        assert_eq!(
+            names,
+            vec!["distance_mpc", "distance_err_mpc", "inclination_deg"]
+        );
         let unknown = KinematicsSettings::from_pairs(
             &[
                 ("distance_mpc".into(), "10".into()),

@@ -496,7 +496,8 @@ fn chart(o: &KinematicsOutcome) -> AppResult<String> {
         })
         .collect();
     kinematics_svg(&DiskChart {
-        title: "Line-of-sight velocity along the disk's major axis with the fitted models.".to_owned(),
+        title: "Line-of-sight velocity along the disk's major axis with the fitted models."
+            .to_owned(),
         points,
         curves,
         centre_pc: quoted.centre_pc.0,

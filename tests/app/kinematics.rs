@@ -127,7 +127,8 @@ async fn the_page_the_api_and_the_command_line_give_the_same_mass_for_the_gas_di
 #[tokio::test]
 async fn a_faulty_table_names_every_faulty_row_on_the_page_and_in_the_api() {
     let app = spawn_app().await;
-    let table = "offset_mas,v_km_s,v_err_km_s\n1.0,2000,3\n1.5,fast,3\n2.0,1900,0\n2.5,1850,\n3.0,1800,3\n";
+    let table =
+        "offset_mas,v_km_s,v_err_km_s\n1.0,2000,3\n1.5,fast,3\n2.0,1900,0\n2.5,1850,\n3.0,1800,3\n";
     let mut browser = app.login_as(Role::Member).await;
     browser.get("/kinematics").await;
     let page = browser
@@ -198,5 +199,9 @@ async fn fitting_stores_nothing_and_the_submit_link_fills_the_form_with_the_mass
         &form.body[value_at..value_at + 40]
     );
     assert!(form.body.contains("<option value=\"maser\" selected>"));
-    assert_eq!(counts(&app).await, before, "opening the form stored something");
+    assert_eq!(
+        counts(&app).await,
+        before,
+        "opening the form stored something"
+    );
 }
