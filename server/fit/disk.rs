@@ -15,13 +15,15 @@
 //!
 //! G = 4.30091727 × 10⁻³ pc M☉⁻¹ (km s⁻¹)² (docs/methods.md §5), σ_rot = ±1 the sense of
 //! rotation (which side recedes), read from the data. The fitted parameters are θ = (log10
-//! M_BH, v_sys, x_c, s[, Υ][, log10 M_c, γ]); the intrinsic velocity scatter s enters only as
-//! s², is reported as |s| ≥ 0 and, when its best value is 0, is held at 0 for the curvature
-//! errors.
+//! M_BH, v_sys, x_c, s[, Υ][, log10 M_c, γ]). The intrinsic velocity scatter s enters only as
+//! s² and is reported as |s| ≥ 0 at its restricted (REML-like) estimate; the other parameters
+//! are refitted at that s and their errors are the curvature errors with s held. −2 ln L, AIC,
+//! BIC and the likelihood ratio are those of the maximum-likelihood fit.
 //!
 //! # References
 //!
 //! Newtonian circular orbits in a thin disk (textbook physics; docs/methods.md §4.6 and §4.8);
+//! Patterson & Thompson 1971, Biometrika 58, 545 (restricted likelihood; from memory);
 //! Akaike 1974, IEEE TAC 19, 716; Schwarz 1978, Ann. Stat. 6, 461; Wilks 1938, Ann. Math. Stat.
 //! 9, 60; Goodman & Weare 2010, Comm. App. Math. Comp. Sci. 5, 65 (the posterior sampler).
 
@@ -156,6 +158,10 @@ pub struct ClusterFit {
     pub gamma: (f64, f64),
     /// The radius r_c the member chose, pc.
     pub r_c_pc: f64,
+    /// False when the data leave the cluster unconstrained (its mass inside the outermost
+    /// point below 1 % of the black hole's and the likelihood flat in log M_c and γ): the
+    /// values are then where the search stopped and their errors are reported as 0.
+    pub constrained: bool,
 }
 
 /// One model's maximum-likelihood fit. Every (value, error) pair is a 1σ curvature error
@@ -185,7 +191,9 @@ pub struct DiskFit {
     /// Whether the centre was held at the member's centre (x_c = 0): every point lies on one
     /// side of it, so the data cannot place the centre.
     pub centre_held: bool,
-    /// Intrinsic velocity scatter s ≥ 0 and error, km s⁻¹ (error 0 when s sits at 0).
+    /// Intrinsic velocity scatter s ≥ 0 and error, km s⁻¹: the restricted estimate (module
+    /// documentation), error from the curvature of the restricted likelihood (0 when s sits at
+    /// 0).
     pub scatter_km_s: (f64, f64),
     /// Stellar mass-to-light ratio and error (error 0 when held or at its bound 0), if the
     /// model has stars.
@@ -198,7 +206,7 @@ pub struct DiskFit {
     /// Covariance of `params` (rows and columns in the same order; zero for held
     /// parameters).
     pub covariance: Vec<Vec<f64>>,
-    /// Maximum of ln L.
+    /// Maximum of ln L (at the maximum-likelihood s, which may be below the quoted one).
     pub max_log_likelihood: f64,
     /// Number of fitted parameters (held ones excluded).
     pub n_params: usize,
@@ -510,10 +518,14 @@ impl Model<'_> {
                 * (G_PC_KM2_S2_PER_MSUN * self.enclosed(theta, r) / r).sqrt()
     }
 
-    /// Whether θ lies where the model is defined.
-    fn in_support(&self, theta: &[f64]) -> bool {
+    /// Whether θ lies where the model is defined; `strict` adds the physical bounds Υ ≥ 0 and
+    /// 0 ≤ γ ≤ 3 (the likelihood itself continues smoothly across them while M(<r) > 0).
+    fn in_support(&self, theta: &[f64], strict: bool) -> bool {
         if !theta.iter().all(|v| v.is_finite()) {
             return false;
+        }
+        if !strict {
+            return true;
         }
         if let Some(j) = self.upsilon_index()
             && theta[j] < 0.0
@@ -528,8 +540,18 @@ impl Model<'_> {
         true
     }
 
+    /// −2 ln L, +∞ outside the physical bounds.
     fn neg2(&self, theta: &[f64]) -> f64 {
-        if !self.in_support(theta) {
+        self.neg2_at(theta, true)
+    }
+
+    /// −2 ln L continued across the bounds of Υ and γ, for finite differences at a bound.
+    fn neg2_smooth(&self, theta: &[f64]) -> f64 {
+        self.neg2_at(theta, false)
+    }
+
+    fn neg2_at(&self, theta: &[f64], strict: bool) -> f64 {
+        if !self.in_support(theta, strict) {
             return f64::INFINITY;
         }
         let s2 = theta[I_S] * theta[I_S];
@@ -715,57 +737,60 @@ fn one_sided(points: &[DiskPoint]) -> bool {
 }
 
 /// Point-mass start: (θ without extras, sense).
-fn point_start(
+fn point_starts(
     input: &DiskInput,
     sin_i: f64,
     hold_centre: bool,
-) -> Result<(Vec<f64>, f64), FitError> {
+) -> Result<Vec<(Vec<f64>, f64)>, FitError> {
     let pts = &input.points;
     let mut centres = vec![0.0];
     if !hold_centre {
-        let inner_pos = pts
-            .iter()
-            .map(|p| p.offset_pc)
-            .filter(|x| *x > 0.0)
-            .fold(f64::INFINITY, f64::min);
-        let inner_neg = pts
-            .iter()
-            .map(|p| p.offset_pc)
-            .filter(|x| *x < 0.0)
-            .fold(f64::NEG_INFINITY, f64::max);
-        if inner_pos.is_finite() && inner_neg.is_finite() {
-            centres.push(0.5 * (inner_pos + inner_neg));
-            centres.push(inner_neg + 0.25 * (inner_pos - inner_neg));
-            centres.push(inner_neg + 0.75 * (inner_pos - inner_neg));
+        // Trial centres in every gap between neighbouring offsets: the member's centre may
+        // be off by more than the innermost spacing.
+        let mut xs: Vec<f64> = pts.iter().map(|p| p.offset_pc).collect();
+        xs.sort_by(f64::total_cmp);
+        xs.dedup();
+        for w in xs.windows(2) {
+            for q in [0.25, 0.5, 0.75] {
+                centres.push(w[0] + q * (w[1] - w[0]));
+            }
         }
     }
-    let best = centres
+    let mut trials: Vec<(f64, (f64, f64, f64))> = centres
         .iter()
         .filter_map(|&xc| linear_start(pts, xc).map(|s| (xc, s)))
-        .min_by(|a, b| a.1.2.total_cmp(&b.1.2));
-    let Some((xc, (v0, a, chi2))) = best else {
+        .collect();
+    if trials.is_empty() {
         return Err(FitError::InvalidSetting {
             setting: "offset_pc",
             reason: "a point lies exactly at the held centre (offset 0), where the Keplerian \
                      speed is infinite; move the centre or drop the point."
                 .to_owned(),
         });
-    };
-    let sense = if a < 0.0 { -1.0 } else { 1.0 };
-    let amp = a.abs().max(1e-3);
-    let log_m = (amp * amp / (G_PC_KM2_S2_PER_MSUN * sin_i * sin_i)).log10();
+    }
+    trials.sort_by(|a, b| a.1.2.total_cmp(&b.1.2));
     let errs: Vec<f64> = pts.iter().map(|p| p.err_km_s).collect();
     let e_med = median(&errs);
     let n = pts.len() as f64;
-    let excess = (chi2 / (n - 2.0).max(1.0) - 1.0).max(0.0);
-    let s0 = (excess.sqrt() * e_med).max(0.1 * e_med);
-    Ok((vec![log_m, v0, xc, s0], sense))
+    Ok(trials
+        .iter()
+        .take(3)
+        .map(|&(xc, (v0, a, chi2))| {
+            let sense = if a < 0.0 { -1.0 } else { 1.0 };
+            let amp = a.abs().max(1e-3);
+            let log_m = (amp * amp / (G_PC_KM2_S2_PER_MSUN * sin_i * sin_i)).log10();
+            let excess = (chi2 / (n - 2.0).max(1.0) - 1.0).max(0.0);
+            let s0 = (excess.sqrt() * e_med).max(0.1 * e_med);
+            (vec![log_m, v0, xc, s0], sense)
+        })
+        .collect())
 }
 
-/// Minimises −2 ln L over the free components of θ from `start`; returns θ̂ and the minimum.
-fn minimise(model: &Model<'_>, start: &[f64], steps: &[f64]) -> (Vec<f64>, f64) {
+/// Minimises −2 ln L over the components of θ that are neither `fixed` nor a held centre,
+/// from `start`; returns θ̂ (with s ≥ 0) and the minimum.
+fn minimise(model: &Model<'_>, start: &[f64], steps: &[f64], fixed: &[bool]) -> (Vec<f64>, f64) {
     let free: Vec<usize> = (0..start.len())
-        .filter(|&j| !(model.hold_centre && j == I_XC))
+        .filter(|&j| !(fixed[j] || model.hold_centre && j == I_XC))
         .collect();
     let full = |u: &[f64]| {
         let mut t = start.to_vec();
@@ -784,58 +809,136 @@ fn minimise(model: &Model<'_>, start: &[f64], steps: &[f64]) -> (Vec<f64>, f64) 
     (theta, f)
 }
 
-/// Indices of θ held for the curvature: a held centre, s at 0, Υ at 0, γ at a bound.
-fn held_for_curvature(model: &Model<'_>, theta: &[f64], e_med: f64) -> Vec<bool> {
+/// Puts a parameter the simplex left within a hair (10⁻⁶ of its simplex step) of a bound on
+/// that bound (Υ = 0, γ = 0 or 3) and marks it held; the held centre is marked too.
+fn pin_bounds(model: &Model<'_>, theta: &mut [f64], steps: &[f64]) -> Vec<bool> {
     let mut held = vec![false; theta.len()];
     held[I_XC] = model.hold_centre;
-    held[I_S] = theta[I_S] < 1e-3 * e_med;
-    if let Some(j) = model.upsilon_index() {
-        held[j] = theta[j] <= 0.0;
+    if let Some(j) = model.upsilon_index()
+        && theta[j] < 1e-6 * steps[j]
+    {
+        theta[j] = 0.0;
+        held[j] = true;
     }
     if let Some(j) = model.cluster_index() {
-        let g = theta[j + 1];
-        held[j + 1] = g <= 1e-6 || g >= CLUSTER_GAMMA_MAX - 1e-6;
+        let g = j + 1;
+        for bound in [0.0, CLUSTER_GAMMA_MAX] {
+            if (theta[g] - bound).abs() < 1e-6 * steps[g] {
+                theta[g] = bound;
+                held[g] = true;
+            }
+        }
     }
     held
 }
 
+/// The restricted (REML-like) estimate of s and its error: s maximising the likelihood of
+/// the residuals with the mean parameters integrated out in the Laplace (Gauss–Newton)
+/// approximation, with the residuals and Jacobian taken at the maximum-likelihood point.
+///
+/// ```text
+/// −2 ln L_R(s) = Σ_k [ r_k² / (e_k² + s²) + ln(e_k² + s²) ] + ln det(Jᵀ W(s) J)
+/// J_ka = ∂v_model(x_k)/∂θ_a over the fitted mean parameters, W = diag(1/(e_k² + s²))
+/// σ_s² = 2 / (d²(−2 ln L_R)/ds²)
+/// ```
+/// For a model linear in its mean parameters this is exactly restricted maximum likelihood
+/// (Patterson & Thompson 1971), which removes the small-sample bias of the ML variance.
+fn restricted_scatter(model: &Model<'_>, theta: &[f64], mean: &[usize], e_med: f64) -> (f64, f64) {
+    let pts = model.points;
+    let (r_min, _) = radius_range(pts, theta[I_XC]);
+    let mut jac = DMatrix::<f64>::zeros(pts.len(), mean.len());
+    let mut t = theta.to_vec();
+    for (a, &j) in mean.iter().enumerate() {
+        let typical = match j {
+            I_XC => r_min,
+            I_VSYS => 10.0,
+            _ => 1.0,
+        };
+        let h = 1e-6 * theta[j].abs().max(typical);
+        for (k, p) in pts.iter().enumerate() {
+            t[j] = theta[j] + h;
+            let up = model.velocity(&t, p.offset_pc);
+            t[j] = theta[j] - h;
+            let down = model.velocity(&t, p.offset_pc);
+            t[j] = theta[j];
+            jac[(k, a)] = (up - down) / (2.0 * h);
+        }
+    }
+    let res: Vec<f64> = pts
+        .iter()
+        .map(|p| p.v_km_s - model.velocity(theta, p.offset_pc))
+        .collect();
+    let g = |s: f64| {
+        let s2 = s * s;
+        let mut total = Sum::default();
+        let mut info = DMatrix::<f64>::zeros(mean.len(), mean.len());
+        for (k, p) in pts.iter().enumerate() {
+            let var = p.err_km_s * p.err_km_s + s2;
+            total.add(res[k] * res[k] / var + var.ln());
+            let row = jac.row(k);
+            info += row.transpose() * row / var;
+        }
+        match info.cholesky() {
+            Some(c) => {
+                let l = c.l();
+                total.total() + 2.0 * (0..mean.len()).map(|i| l[(i, i)].ln()).sum::<f64>()
+            }
+            None => f64::INFINITY,
+        }
+    };
+    let rms = (res.iter().map(|r| r * r).sum::<f64>() / res.len() as f64).sqrt();
+    let hi = 4.0 * theta[I_S].max(rms).max(e_med);
+    let (s_b, g_b, _) = optimize::brent_min(g, 0.0, hi, 1e-6 * e_med);
+    let g0 = g(0.0);
+    if !g_b.is_finite() && !g0.is_finite() {
+        return (theta[I_S], 0.0);
+    }
+    if g0 <= g_b || s_b < 1e-3 * e_med {
+        return (0.0, 0.0);
+    }
+    let h = (0.01 * s_b).max(1e-4 * e_med);
+    let d2 = (g(s_b + h) - 2.0 * g_b + g(s_b - h)) / (h * h);
+    let err = if d2 > 0.0 { (2.0 / d2).sqrt() } else { 0.0 };
+    (s_b, err)
+}
+
 /// Covariance of θ at the optimum (2 H⁻¹ over the unheld components, zero rows for the held),
-/// after a Newton polish of the unheld components.
+/// after a Newton polish of the unheld components. The Hessian uses −2 ln L continued across
+/// the bounds, so a parameter just inside one still has central differences.
 fn curvature(
     model: &Model<'_>,
     theta: &mut [f64],
-    f: &mut f64,
     held: &[bool],
 ) -> Result<Vec<Vec<f64>>, FitError> {
     let idx: Vec<usize> = (0..theta.len()).filter(|&j| !held[j]).collect();
     let base = theta.to_vec();
-    let sub = |u: &[f64]| {
+    let embed = |u: &[f64]| {
         let mut t = base.clone();
         for (k, &j) in idx.iter().enumerate() {
             t[j] = u[k];
         }
-        model.neg2(&t)
+        t
     };
+    let strict = |u: &[f64]| model.neg2(&embed(u));
+    let smooth = |u: &[f64]| model.neg2_smooth(&embed(u));
     let mut u: Vec<f64> = idx.iter().map(|&j| theta[j]).collect();
     let (r_min, _) = radius_range(model.points, theta[I_XC]);
     let typical: Vec<f64> = idx
         .iter()
         .map(|&j| match j {
-            I_LOGM => 1.0,
             I_VSYS => 10.0,
             I_XC => r_min,
-            I_S => 1.0,
             _ => 1.0,
         })
         .collect();
-    let h = optimize::hessian_steps(&sub, &u, &typical);
-    optimize::newton_polish(&sub, &mut u, f, &h, tolerance::NEWTON_MAX_STEPS);
-    let h = optimize::hessian_steps(&sub, &u, &typical);
-    let hm = optimize::hessian(&sub, &u, &h);
+    let h = optimize::hessian_steps(smooth, &u, &typical);
+    let mut f = strict(&u);
+    optimize::newton_polish(strict, &mut u, &mut f, &h, tolerance::NEWTON_MAX_STEPS);
+    let h = optimize::hessian_steps(smooth, &u, &typical);
+    let hm = optimize::hessian(smooth, &u, &h);
     for (k, &j) in idx.iter().enumerate() {
         theta[j] = u[k];
     }
-    theta[I_S] = theta[I_S].abs();
     let inv = optimize::invert_spd(&hm).ok_or_else(|| FitError::Unsupported {
         what: "The disk data do not constrain every parameter of this model (the likelihood \
                is flat or not curved upwards at its maximum); fit a simpler model or add \
@@ -877,21 +980,38 @@ fn fit_model(input: &DiskInput, extended: Option<&Extended>) -> Result<DiskFit, 
         usize::from(matches!(stars, Some((_, None)))) + if ext.cluster.is_some() { 2 } else { 0 };
     let n_free = 4 - usize::from(hold_centre) + extra;
     let sin_i = check_input(input, n_free)?;
-    let (p0, sense) = point_start(input, sin_i, hold_centre)?;
     let errs: Vec<f64> = input.points.iter().map(|p| p.err_km_s).collect();
     let e_med = median(&errs);
     let mut model = Model {
         points: &input.points,
         sin_i,
-        sense,
+        sense: 1.0,
         stars: None,
         cluster_rc: None,
         hold_centre,
     };
-    let (r_min0, r_max0) = radius_range(&input.points, p0[I_XC]);
-    let step_base = vec![0.1, e_med.max(1.0), 0.2 * r_min0, (0.3 * e_med).max(0.1)];
-    // The point-mass fit first: the start of every extended model.
-    let (pm, _) = minimise(&model, &p0, &step_base);
+    let point_steps = |x_c: f64| {
+        let (r_min, _) = radius_range(&input.points, x_c);
+        vec![0.1, e_med.max(1.0), 0.2 * r_min, (0.3 * e_med).max(0.1)]
+    };
+    // The point-mass fit first, from the best trial centres: the start of every extended
+    // model.
+    let mut pm_best: Option<(Vec<f64>, f64, f64)> = None;
+    for (p0, sense) in point_starts(input, sin_i, hold_centre)? {
+        model.sense = sense;
+        let (t, f) = minimise(&model, &p0, &point_steps(p0[I_XC]), &[false; 4]);
+        if pm_best.as_ref().is_none_or(|b| f < b.1) {
+            pm_best = Some((t, f, sense));
+        }
+    }
+    let Some((pm, _, sense)) = pm_best else {
+        return Err(FitError::NotConverged {
+            iterations: tolerance::NM_ITERATIONS_PER_PARAM,
+        });
+    };
+    model.sense = sense;
+    let (_, r_max0) = radius_range(&input.points, pm[I_XC]);
+    let step_base = point_steps(pm[I_XC]);
     model.stars = stars;
     model.cluster_rc = ext.cluster.as_ref().map(|c| c.r_c_pc);
     let mut starts: Vec<Vec<f64>> = Vec::new();
@@ -919,31 +1039,37 @@ fn fit_model(input: &DiskInput, extended: Option<&Extended>) -> Result<DiskFit, 
         }
         for u in &ups_starts {
             for c in &cl_starts {
-                for logm_shift in [0.0, -0.2] {
-                    let mut t = pm.clone();
-                    t[I_LOGM] += logm_shift;
-                    if let Some(u) = u {
-                        t.push(*u);
-                    }
-                    if let Some((lm, g)) = c {
-                        t.push(*lm);
-                        t.push(*g);
-                    }
-                    starts.push(t);
+                let mut t = pm.clone();
+                if u.is_some_and(|u| u > 0.0) {
+                    // Some of the point mass's mass goes to the stars.
+                    t[I_LOGM] -= 0.2;
                 }
+                if let Some(u) = u {
+                    t.push(*u);
+                }
+                if let Some((lm, g)) = c {
+                    t.push(*lm);
+                    t.push(*g);
+                }
+                starts.push(t);
             }
         }
     }
     let mut best: Option<(Vec<f64>, f64)> = None;
+    let free = vec![false; steps.len()];
     for s in &starts {
-        let (t, f) = minimise(&model, s, &steps);
-        // Once more from the optimum: the simplex can stall near a bound.
-        let (t, f) = {
-            let (t2, f2) = minimise(&model, &t, &steps);
-            if f2 <= f { (t2, f2) } else { (t, f) }
-        };
+        let (t, f) = minimise(&model, s, &steps, &free);
         if best.as_ref().is_none_or(|b| f < b.1) {
             best = Some((t, f));
+        }
+    }
+    // Once more from the best optimum: the simplex can stall near a bound.
+    if starts.len() > 1
+        && let Some((t, f)) = &best
+    {
+        let (t2, f2) = minimise(&model, t, &steps, &free);
+        if f2 < *f {
+            best = Some((t2, f2));
         }
     }
     let Some((mut theta, mut f)) = best.filter(|b| b.1.is_finite()) else {
@@ -951,13 +1077,49 @@ fn fit_model(input: &DiskInput, extended: Option<&Extended>) -> Result<DiskFit, 
             iterations: tolerance::NM_ITERATIONS_PER_PARAM,
         });
     };
-    let held = held_for_curvature(&model, &theta, e_med);
-    if held[I_S] {
-        theta[I_S] = 0.0;
-        f = model.neg2(&theta);
+    // A parameter on its bound is held there, the others refitted.
+    let mut held = pin_bounds(&model, &mut theta, &steps);
+    if held.iter().enumerate().any(|(j, h)| *h && j != I_XC) {
+        let (t, f2) = minimise(&model, &theta, &steps, &held);
+        if f2 <= f {
+            theta = t;
+            f = f2;
+        }
     }
-    let cov = curvature(&model, &mut theta, &mut f, &held)?;
-    Ok(assemble(input, &model, &theta, f, cov, n_free))
+    let ml_neg2 = f;
+    // s at its restricted estimate, the mean parameters refitted at that s.
+    let mean: Vec<usize> = (0..theta.len()).filter(|&j| !held[j] && j != I_S).collect();
+    let (s_r, s_err) = restricted_scatter(&model, &theta, &mean, e_med);
+    held[I_S] = true;
+    if (s_r - theta[I_S]).abs() > 1e-9 * e_med {
+        theta[I_S] = s_r;
+        theta = minimise(&model, &theta, &steps, &held).0;
+    }
+    let mut cluster_constrained = true;
+    let mut cov = match (curvature(&model, &mut theta, &held), model.cluster_index()) {
+        (Ok(c), _) => c,
+        // A cluster too light to matter (its mass inside the outermost radius below 1 % of
+        // the black hole's) leaves log M_c and γ unconstrained: held for the curvature.
+        (Err(e), Some(j)) => {
+            let r_max = radius_range(&input.points, theta[I_XC]).1;
+            let rc = model.cluster_rc.unwrap_or(1.0);
+            let m_c = 10f64.powf(theta[j]) * (r_max / rc).powf(theta[j + 1]);
+            if m_c >= 0.01 * 10f64.powf(theta[I_LOGM]) {
+                return Err(e);
+            }
+            held[j] = true;
+            held[j + 1] = true;
+            cluster_constrained = false;
+            curvature(&model, &mut theta, &held)?
+        }
+        (Err(e), None) => return Err(e),
+    };
+    cov[I_S][I_S] = s_err * s_err;
+    let mut fit = assemble(input, &model, &theta, ml_neg2, cov, n_free);
+    if let Some(c) = fit.cluster.as_mut() {
+        c.constrained = cluster_constrained;
+    }
+    Ok(fit)
 }
 
 fn assemble(
@@ -1002,6 +1164,7 @@ fn assemble(
             log_mc: (theta[j], err(j)),
             gamma: (theta[j + 1], err(j + 1)),
             r_c_pc: rc,
+            constrained: true,
         }),
         _ => None,
     };
@@ -1145,7 +1308,7 @@ pub fn velocity_slope(input: &DiskInput, fit: &DiskFit) -> Result<SlopeFit, FitE
     for p in &input.points {
         let d = p.offset_pc - x_c;
         let dv = fit.rotation_sense * d.signum() * (p.v_km_s - v_sys);
-        let sig = (p.err_km_s * p.err_km_s + s * s).sqrt();
+        let sig = p.err_km_s.hypot(s);
         if d != 0.0 && dv > 2.0 * sig {
             rows.push((d.abs().ln(), dv.ln(), sig / dv));
         }
@@ -1167,7 +1330,7 @@ pub fn velocity_slope(input: &DiskInput, fit: &DiskFit) -> Result<SlopeFit, FitE
         sxy += w * x * y;
     }
     let det = sw * sxx - sx * sx;
-    if !(det > 1e-12 * sw * sxx.abs().max(1.0)) {
+    if det.is_nan() || det <= 1e-12 * sw * sxx.abs().max(1.0) {
         return Err(FitError::NoSpreadInX);
     }
     let slope = (sw * sxy - sx * sy) / det;
@@ -1533,4 +1696,537 @@ pub fn maser_distance(features: &[MaserFeature]) -> Result<MaserDistance, FitErr
 fn maser_radius_pc(v_km_s: f64, a_km_s_yr: f64) -> f64 {
     let r_km = v_km_s * v_km_s / (a_km_s_yr / JULIAN_YEAR_S);
     r_km * 1.0e3 / PARSEC_M
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::astro::constants;
+    use crate::astro::kepler::{enclosed_mass_msun as kepler_enclosed, keplerian_mass_msun};
+    use crate::fit::tolerance::close;
+
+    #[track_caller]
+    fn rel(actual: f64, expected: f64, tol: f64) {
+        assert!(
+            close(actual, expected, 0.0, tol),
+            "got {actual}, expected {expected} within a relative {tol}"
+        );
+    }
+
+    /// An invented disk: `n` points from −1 to +1 pc (skipping the centre) from the given
+    /// model, no noise, errors `err` km/s.
+    fn disk(n: usize, log_m: f64, v_sys: f64, x_c: f64, sin_i: f64, err: f64) -> Vec<DiskPoint> {
+        (0..n)
+            .map(|k| {
+                let t = -1.0 + 2.0 * (k as f64 + 0.5) / n as f64;
+                let x = x_c + t.signum() * (0.08 + 0.92 * t.abs());
+                let r = (x - x_c).abs();
+                let v = v_sys
+                    + (x - x_c).signum()
+                        * sin_i
+                        * (G_PC_KM2_S2_PER_MSUN * 10f64.powf(log_m) / r).sqrt();
+                DiskPoint {
+                    offset_pc: x,
+                    v_km_s: v,
+                    err_km_s: err,
+                }
+            })
+            .collect()
+    }
+
+    fn input(points: Vec<DiskPoint>, inclination: Inclination) -> DiskInput {
+        DiskInput {
+            points,
+            distance_mpc: 10.0,
+            distance_err_mpc: 0.0,
+            inclination,
+        }
+    }
+
+    #[test]
+    fn constants_are_the_astro_ones_to_the_last_bit() {
+        assert_eq!(
+            G_PC_KM2_S2_PER_MSUN.to_bits(),
+            constants::G_PC_KM2_S2_PER_MSUN.to_bits()
+        );
+        assert_eq!(PARSEC_M.to_bits(), constants::PARSEC_M.to_bits());
+        assert_eq!(JULIAN_YEAR_S.to_bits(), constants::JULIAN_YEAR_S.to_bits());
+        assert_eq!(
+            MAS_PER_RADIAN.to_bits(),
+            (1000.0 * constants::ARCSEC_PER_RADIAN).to_bits()
+        );
+    }
+
+    #[test]
+    fn circular_speed_and_enclosed_mass_agree_with_the_kepler_module() {
+        // The model's speed at r, turned back into a mass by astro::kepler, is the model's mass
+        // (docs/methods.md §4.6), with and without stars and a cluster, at several inclinations.
+        let pts = disk(6, 7.3, 0.0, 0.0, 1.0, 5.0);
+        let plummer = LightProfile::Plummer {
+            l_total_lsun: 3e7,
+            a_pc: 0.7,
+        };
+        for (stars, cluster, theta) in [
+            (None, None, vec![7.3, 0.0, 0.0, 0.0]),
+            (Some((&plummer, None)), None, vec![7.3, 0.0, 0.0, 0.0, 2.5]),
+            (
+                Some((&plummer, Some(1.7))),
+                Some(0.5),
+                vec![7.3, 0.0, 0.0, 0.0, 6.4, 1.2],
+            ),
+        ] {
+            for deg in [90.0_f64, 60.0, 25.0] {
+                let sin_i = deg.to_radians().sin();
+                let m = Model {
+                    points: &pts,
+                    sin_i,
+                    sense: 1.0,
+                    stars,
+                    cluster_rc: cluster,
+                    hold_centre: false,
+                };
+                for r in [0.05, 0.3, 1.0, 4.0] {
+                    let v_obs = m.velocity(&theta, r);
+                    let mass = m.enclosed(&theta, r);
+                    rel(kepler_enclosed(v_obs, deg, r).unwrap(), mass, 1e-12);
+                    rel(keplerian_mass_msun(v_obs / sin_i, r).unwrap(), mass, 1e-12);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn check_values_of_the_keplerian_mass() {
+        // 1000 km/s at 0.1 pc encloses v² r / G = 2.325085e7 M☉ (computed, G = 4.30091727e-3).
+        let pts = disk(4, 7.0, 0.0, 0.0, 1.0, 1.0);
+        let m = Model {
+            points: &pts,
+            sin_i: 1.0,
+            sense: 1.0,
+            stars: None,
+            cluster_rc: None,
+            hold_centre: false,
+        };
+        let theta = [2.325_085_411e7_f64.log10(), 0.0, 0.0, 0.0];
+        rel(m.velocity(&theta, 0.1), 1000.0, 1e-9);
+        // Common practice: gas at about 800 km/s some 60 light-years from a nucleus means about
+        // 3e9 M☉ (rule of thumb; the exact value is 2.737e9, computed, within 10 %).
+        let r = 60.0 / constants::LIGHT_YEARS_PER_PARSEC;
+        let theta = [3.0e9_f64.log10(), 0.0, 0.0, 0.0];
+        let v = m.velocity(&theta, r);
+        rel(v, 800.0, 0.05);
+        rel(800.0 * 800.0 * r / G_PC_KM2_S2_PER_MSUN, 3.0e9, 0.1);
+    }
+
+    #[test]
+    fn a_noiseless_disk_is_recovered() {
+        // Invented disk: M = 10^7.4 M☉, v_sys = 1234 km/s, centre 0.013 pc off the member's,
+        // i = 70°, receding side at negative offsets.
+        let sin_i = 70f64.to_radians().sin();
+        let mut pts = disk(24, 7.4, 1234.0, 0.013, sin_i, 2.0);
+        for p in &mut pts {
+            p.v_km_s = 2.0 * 1234.0 - p.v_km_s;
+        }
+        let f = fit_point_mass(&input(
+            pts,
+            Inclination::Given {
+                deg: 70.0,
+                err_deg: 0.0,
+            },
+        ))
+        .expect("fit");
+        assert!((f.log_mbh - 7.4).abs() < 1e-6, "{}", f.log_mbh);
+        assert!((f.v_sys_km_s.0 - 1234.0).abs() < 1e-4, "{:?}", f.v_sys_km_s);
+        assert!((f.centre_pc.0 - 0.013).abs() < 1e-6, "{:?}", f.centre_pc);
+        assert_eq!(f.scatter_km_s, (0.0, 0.0));
+        assert!(close(f.rotation_sense, -1.0, 0.0, 0.0));
+        assert!(!f.centre_held && !f.mass_is_m_sin2i);
+        assert!(f.residuals.iter().all(|r| r.abs() < 1e-4));
+        assert_eq!(f.n_params, 4);
+        assert!(f.log_mbh_err_stat > 0.0 && f.log_mbh_err_stat < 0.01);
+        // AIC and BIC from −2 ln L (4 parameters, 24 points).
+        let neg2 = -2.0 * f.max_log_likelihood;
+        rel(f.aic, neg2 + 8.0, 1e-12);
+        rel(f.bic, neg2 + 4.0 * 24f64.ln(), 1e-12);
+    }
+
+    #[test]
+    fn an_unknown_inclination_gives_m_sin2_i() {
+        // The same velocities fitted at i = 30° and with i unknown differ by −2 log sin 30° =
+        // 0.60206 dex (computed).
+        let pts = disk(16, 7.0, 500.0, 0.0, 0.5, 3.0);
+        let given = fit_point_mass(&input(
+            pts.clone(),
+            Inclination::Given {
+                deg: 30.0,
+                err_deg: 2.0,
+            },
+        ))
+        .expect("given");
+        let unknown = fit_point_mass(&input(pts, Inclination::Unknown)).expect("unknown");
+        assert!(unknown.mass_is_m_sin2i && !given.mass_is_m_sin2i);
+        assert!((given.log_mbh - 7.0).abs() < 1e-6);
+        assert!((given.log_mbh - unknown.log_mbh - 0.602_06).abs() < 1e-5);
+        assert!(close(unknown.log_mbh_err_inclination, 0.0, 0.0, 0.0));
+        // 2 |cot 30°| (2° in rad) / ln 10 = 0.0525149 dex (computed).
+        assert!((given.log_mbh_err_inclination - 0.052_514_9).abs() < 1e-6);
+    }
+
+    #[test]
+    fn inclination_and_distance_errors_are_reported_and_combined() {
+        // i = 60 ± 5°: 2 cot 60° (5° in rad) / ln 10 = 0.043762 dex; D = 18 ± 1.8 Mpc:
+        // 0.1 / ln 10 = 0.043429 dex (both computed; docs/methods.md §3.2).
+        let mut inp = input(
+            disk(12, 8.0, 0.0, 0.0, 60f64.to_radians().sin(), 10.0),
+            Inclination::Given {
+                deg: 60.0,
+                err_deg: 5.0,
+            },
+        );
+        inp.distance_mpc = 18.0;
+        inp.distance_err_mpc = 1.8;
+        let f = fit_point_mass(&inp).expect("fit");
+        assert!((f.log_mbh_err_inclination - 0.043_762).abs() < 1e-6);
+        assert!((f.log_mbh_err_distance - 0.043_429).abs() < 1e-6);
+        let total = (f.log_mbh_err_stat.powi(2)
+            + f.log_mbh_err_inclination.powi(2)
+            + f.log_mbh_err_distance.powi(2))
+        .sqrt();
+        rel(f.log_mbh_err_total, total, 1e-12);
+    }
+
+    #[test]
+    fn a_one_sided_disk_holds_the_centre() {
+        let pts: Vec<DiskPoint> = disk(20, 7.5, 300.0, 0.0, 1.0, 5.0)
+            .into_iter()
+            .filter(|p| p.offset_pc > 0.0)
+            .collect();
+        let f = fit_point_mass(&input(pts, Inclination::Unknown)).expect("fit");
+        assert!(f.centre_held);
+        assert_eq!(f.centre_pc, (0.0, 0.0));
+        assert_eq!(f.n_params, 3);
+        assert!((f.log_mbh - 7.5).abs() < 1e-6, "{}", f.log_mbh);
+        // v_sys is poorly fixed from one side: its error is larger than from both sides.
+        let both = fit_point_mass(&input(
+            disk(20, 7.5, 300.0, 0.0, 1.0, 5.0),
+            Inclination::Unknown,
+        ))
+        .expect("both");
+        assert!(f.v_sys_km_s.1 > both.v_sys_km_s.1);
+    }
+
+    #[test]
+    fn row_order_does_not_change_the_fit() {
+        let mut pts = disk(15, 7.2, 100.0, 0.02, 1.0, 8.0);
+        for (k, p) in pts.iter_mut().enumerate() {
+            p.v_km_s += if k % 3 == 0 { 9.0 } else { -4.5 };
+        }
+        let a = fit_point_mass(&input(pts.clone(), Inclination::Unknown)).expect("a");
+        pts.reverse();
+        pts.rotate_left(4);
+        let b = fit_point_mass(&input(pts, Inclination::Unknown)).expect("b");
+        assert!((a.log_mbh - b.log_mbh).abs() < 1e-8);
+        assert!((a.log_mbh_err_stat - b.log_mbh_err_stat).abs() < 1e-6);
+    }
+
+    #[test]
+    fn stars_are_found_and_preferred_when_they_dominate_outside() {
+        // Invented: M_BH = 10^7 M☉, Plummer stars L = 10^7.5 L☉, a = 1 pc, Υ = 3: the stars
+        // inside 2 pc (Υ L(<2) = 6.8e7 M☉, computed) outweigh the black hole.
+        let plummer = LightProfile::Plummer {
+            l_total_lsun: 10f64.powf(7.5),
+            a_pc: 1.0,
+        };
+        let ext = Extended {
+            stars: Some((plummer.clone(), MassToLight::Free)),
+            cluster: None,
+        };
+        let pts: Vec<DiskPoint> = (0..30)
+            .map(|k| {
+                let t = -1.0 + 2.0 * (f64::from(k) + 0.5) / 30.0;
+                let x = t.signum() * (0.05 + 1.95 * t.abs());
+                let m = 1e7 + 3.0 * plummer.enclosed_lsun(x.abs());
+                DiskPoint {
+                    offset_pc: x,
+                    v_km_s: 700.0 + x.signum() * (G_PC_KM2_S2_PER_MSUN * m / x.abs()).sqrt(),
+                    err_km_s: 5.0,
+                }
+            })
+            .collect();
+        let inp = input(pts, Inclination::Unknown);
+        let point = fit_point_mass(&inp).expect("point");
+        let stars = fit_extended(&inp, &ext).expect("stars");
+        assert_eq!(stars.model, "point mass + stars");
+        assert!((stars.log_mbh - 7.0).abs() < 1e-5, "{}", stars.log_mbh);
+        let (u, ue) = stars.upsilon.expect("upsilon");
+        assert!((u - 3.0).abs() < 1e-4 && ue > 0.0, "{u} ± {ue}");
+        let c = compare(&point, &stars);
+        assert_eq!(c.preferred, "point mass + stars");
+        assert_eq!(c.df, 1);
+        assert!(c.delta_bic < 0.0 && c.p_value.is_some_and(|p| p < 1e-6));
+        assert!(c.sentence.ends_with('.'));
+        // The point mass fitted to stars-and-hole data has a flatter slope than −1/2.
+        let slope = velocity_slope(&inp, &point).expect("slope");
+        assert!(slope.slope > -0.45, "{slope:?}");
+        let slope = velocity_slope(&inp, &stars).expect("slope");
+        assert!(slope.z > 2.0, "{slope:?}");
+        // The chart curve goes through the data.
+        for p in &inp.points {
+            let v = model_velocity(&stars, Some(&ext), p.offset_pc).expect("v");
+            assert!((v - p.v_km_s).abs() < 1e-3);
+        }
+        assert!(model_velocity(&stars, Some(&ext), stars.centre_pc.0).is_none());
+    }
+
+    #[test]
+    fn a_keplerian_disk_has_slope_minus_one_half() {
+        let pts = disk(20, 7.0, 0.0, 0.0, 1.0, 1.0);
+        let inp = input(pts, Inclination::Unknown);
+        let f = fit_point_mass(&inp).expect("fit");
+        let s = velocity_slope(&inp, &f).expect("slope");
+        assert!((s.slope + 0.5).abs() < 1e-6, "{s:?}");
+        assert_eq!(s.n_used, 20);
+    }
+
+    #[test]
+    fn a_cluster_fit_runs_and_nests_the_point_mass() {
+        let pts = disk(20, 7.0, 0.0, 0.0, 1.0, 5.0);
+        let inp = input(pts, Inclination::Unknown);
+        let point = fit_point_mass(&inp).expect("point");
+        let ext = Extended {
+            stars: None,
+            cluster: Some(ClusterSpec { r_c_pc: 1.0 }),
+        };
+        let cl = fit_extended(&inp, &ext).expect("cluster");
+        assert_eq!(cl.model, "point mass + cluster");
+        assert_eq!(cl.n_params, 6);
+        let c = cl.cluster.as_ref().expect("cluster");
+        // No cluster in the data: either held as unconstrained or consistent with nothing.
+        assert!(!c.constrained || 10f64.powf(c.log_mc.0) < 0.05 * 10f64.powf(cl.log_mbh));
+        assert!((cl.log_mbh - 7.0).abs() < 1e-3, "{}", cl.log_mbh);
+        // The extended model nests the point mass: its likelihood is at least as high.
+        assert!(cl.max_log_likelihood >= point.max_log_likelihood - 1e-6);
+        assert_eq!(compare(&point, &cl).preferred, "point mass");
+    }
+
+    #[test]
+    fn light_profiles_and_their_checks() {
+        // Plummer at r = a holds L/2^{3/2} = 0.353553 L (computed).
+        let p = LightProfile::Plummer {
+            l_total_lsun: 1e8,
+            a_pc: 2.0,
+        };
+        rel(p.enclosed_lsun(2.0), 1e8 / 8f64.sqrt(), 1e-14);
+        let pl = LightProfile::PowerLaw {
+            l_ref_lsun: 1e6,
+            r_ref_pc: 1.0,
+            slope: 1.5,
+        };
+        rel(pl.enclosed_lsun(4.0), 8e6, 1e-14);
+        let t = LightProfile::Table(vec![(1.0, 1e6), (2.0, 4e6), (4.0, 8e6)]);
+        t.check().expect("table");
+        rel(t.enclosed_lsun(2.0), 4e6, 1e-14);
+        // Between the nodes, a power law (slope 2 on the first segment): 1e6 · 1.5² = 2.25e6.
+        rel(t.enclosed_lsun(1.5), 2.25e6, 1e-12);
+        // Beyond the ends, the end segments' power laws: slope 2 inside, 1 outside.
+        rel(t.enclosed_lsun(0.5), 2.5e5, 1e-12);
+        rel(t.enclosed_lsun(8.0), 1.6e7, 1e-12);
+        assert!(close(t.enclosed_lsun(0.0), 0.0, 0.0, 0.0));
+        for bad in [
+            LightProfile::Table(vec![(1.0, 1e6)]),
+            LightProfile::Table(vec![(2.0, 1e6), (1.0, 2e6)]),
+            LightProfile::Table(vec![(1.0, 2e6), (2.0, 1e6)]),
+            LightProfile::Table(vec![(1.0, f64::NAN), (2.0, 1e6)]),
+            LightProfile::Plummer {
+                l_total_lsun: 0.0,
+                a_pc: 1.0,
+            },
+            LightProfile::PowerLaw {
+                l_ref_lsun: 1.0,
+                r_ref_pc: 1.0,
+                slope: 3.5,
+            },
+        ] {
+            assert!(
+                matches!(
+                    bad.check(),
+                    Err(FitError::InvalidSetting {
+                        setting: "light_profile",
+                        ..
+                    })
+                ),
+                "{bad:?}"
+            );
+        }
+    }
+
+    #[test]
+    fn every_input_fault_names_its_row() {
+        let good = disk(10, 7.0, 0.0, 0.0, 1.0, 5.0);
+        let fit = |pts: Vec<DiskPoint>| fit_point_mass(&input(pts, Inclination::Unknown));
+        let mut bad = good.clone();
+        bad[3].v_km_s = f64::NAN;
+        assert_eq!(
+            fit(bad),
+            Err(FitError::NonFiniteInput {
+                row: 3,
+                column: "v_km_s"
+            })
+        );
+        let mut bad = good.clone();
+        bad[6].err_km_s = -1.0;
+        assert_eq!(
+            fit(bad),
+            Err(FitError::NegativeError {
+                row: 6,
+                column: "err_km_s"
+            })
+        );
+        let mut bad = good.clone();
+        bad[2].err_km_s = 0.0;
+        let e = fit(bad).expect_err("zero error");
+        assert!(e.to_string().contains("row 2"), "{e}");
+        assert_eq!(
+            fit(vec![
+                good[0].clone(),
+                good[1].clone(),
+                good[8].clone(),
+                good[9].clone()
+            ]),
+            Err(FitError::TooFewPoints {
+                n: 4,
+                min: 5,
+                method: "disk"
+            })
+        );
+        let same: Vec<DiskPoint> = good
+            .iter()
+            .enumerate()
+            .map(|(k, p)| DiskPoint {
+                offset_pc: if k % 2 == 0 { 0.5 } else { -0.5 },
+                ..p.clone()
+            })
+            .collect();
+        assert!(matches!(
+            fit(same),
+            Err(FitError::InvalidSetting {
+                setting: "offset_pc",
+                ..
+            })
+        ));
+        let mut inp = input(
+            good.clone(),
+            Inclination::Given {
+                deg: 0.0,
+                err_deg: 1.0,
+            },
+        );
+        assert!(matches!(
+            fit_point_mass(&inp),
+            Err(FitError::InvalidSetting {
+                setting: "inclination_deg",
+                ..
+            })
+        ));
+        inp.inclination = Inclination::Unknown;
+        inp.distance_mpc = -3.0;
+        assert!(matches!(
+            fit_point_mass(&inp),
+            Err(FitError::InvalidSetting {
+                setting: "distance_mpc",
+                ..
+            })
+        ));
+        let ext = Extended {
+            stars: Some((
+                LightProfile::Plummer {
+                    l_total_lsun: 1e7,
+                    a_pc: 1.0,
+                },
+                MassToLight::Fixed(-1.0),
+            )),
+            cluster: None,
+        };
+        assert!(matches!(
+            fit_extended(&input(good, Inclination::Unknown), &ext),
+            Err(FitError::InvalidSetting {
+                setting: "mass_to_light",
+                ..
+            })
+        ));
+    }
+
+    #[test]
+    fn minimum_density_check_value() {
+        // 10⁷ M☉ inside 0.1 pc: 10⁷ / (4/3 π 10⁻³) = 2.387324e9 M☉ pc⁻³ (computed).
+        rel(minimum_density(1e7, 0.1).unwrap(), 2.387_324_146e9, 1e-9);
+        assert!(minimum_density(0.0, 0.1).is_err());
+        assert!(minimum_density(1e7, f64::NAN).is_err());
+    }
+
+    #[test]
+    fn maser_distance_check_value() {
+        // v_rot = 1000 km/s, a = 10 km/s/yr: r = v²/a = 3.15576e12 km = 0.10227122 pc; at
+        // θ = 3 mas that is D = 0.10227122 pc / 1.4544410e-8 rad = 7.0316509 Mpc (computed).
+        let f = MaserFeature {
+            radius_mas: 3.0,
+            radius_err_mas: 0.03,
+            v_rot_km_s: 1000.0,
+            v_rot_err_km_s: 5.0,
+            acceleration_km_s_yr: 10.0,
+            err: 0.5,
+        };
+        let d = maser_distance(std::slice::from_ref(&f)).expect("distance");
+        rel(d.per_feature[0].0, 0.102_271_216_5, 1e-9);
+        rel(d.distance_mpc, 7.031_650_886, 1e-9);
+        // σ_D/D = √(0.01² + 0.05² + 0.01²) = 0.0519615 (computed).
+        rel(d.err_mpc, 7.031_650_886 * 0.051_961_524, 1e-7);
+        assert!(close(d.chi2, 0.0, 0.0, 0.0));
+        // Two features: the weighted mean lies between them.
+        let g = MaserFeature {
+            acceleration_km_s_yr: 11.0,
+            ..f.clone()
+        };
+        let d2 = maser_distance(&[f.clone(), g]).expect("two");
+        assert!(d2.distance_mpc < 7.031_650_886 && d2.distance_mpc > 7.031_650_886 / 1.1);
+        assert!(d2.chi2 > 0.0);
+        let bad = MaserFeature {
+            err: 0.0,
+            ..f.clone()
+        };
+        assert!(matches!(
+            maser_distance(&[f, bad]),
+            Err(FitError::InvalidSetting { .. })
+        ));
+        assert!(maser_distance(&[]).is_err());
+    }
+
+    #[test]
+    fn the_posterior_agrees_with_the_curvature_on_a_gaussian_case() {
+        let mut pts = disk(30, 7.0, 0.0, 0.0, 1.0, 20.0);
+        for (k, p) in pts.iter_mut().enumerate() {
+            p.v_km_s += 20.0 * ((k * 7 % 11) as f64 / 5.0 - 1.0);
+        }
+        let inp = input(
+            pts,
+            Inclination::Given {
+                deg: 75.0,
+                err_deg: 3.0,
+            },
+        );
+        let f = fit_point_mass(&inp).expect("fit");
+        let cfg = EnsembleConfig {
+            walkers: 16,
+            steps: 1_500,
+            burn_in: 300,
+            seed: 7,
+            init_scatter: 0.1,
+        };
+        let p = posterior_with(&inp, &f, None, &cfg).expect("posterior");
+        assert_eq!(p.params.last().map(|s| s.name), Some("inclination_deg"));
+        let sigma = f.log_mbh_err_stat.hypot(f.log_mbh_err_inclination);
+        let half = 0.5 * (p.log_mbh.p84 - p.log_mbh.p16);
+        assert!((p.log_mbh.median - f.log_mbh).abs() < 0.25 * sigma, "{p:?}");
+        assert!((half / sigma - 1.0).abs() < 0.25, "{half} vs {sigma}");
+    }
 }
