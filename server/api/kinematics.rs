@@ -10,7 +10,7 @@ use utoipa::ToSchema;
 use super::problem::Problem;
 use super::{ApiJson, ApiResult};
 use crate::error::{AppError, FieldError};
-use crate::relations::kinematics::{KinematicsResult, fit_table};
+use crate::relations::kinematics::{KinematicsResult, fit_table_queued};
 use crate::state::AppState;
 
 /// The largest body taken: 2 MiB (about 50,000 rows).
@@ -233,8 +233,6 @@ pub async fn fit_disk(
 ) -> ApiResult<Json<KinematicsResult>> {
     let (text, pairs) = req.translate()?;
     let threshold = state.settings.soi_threshold;
-    let outcome = tokio::task::spawn_blocking(move || fit_table(&text, &pairs, threshold))
-        .await
-        .map_err(anyhow::Error::from)?;
+    let outcome = fit_table_queued(text, pairs, threshold).await?;
     Ok(Json(outcome?.result))
 }

@@ -1098,6 +1098,30 @@ pub fn fit_table(
     }
 }
 
+/// Disk fits run at once for the pages and the API (each samples a posterior, about a core
+/// for a moment); more wait their turn.
+pub const CONCURRENT_FITS: usize = 2;
+
+static FIT_SLOTS: tokio::sync::Semaphore = tokio::sync::Semaphore::const_new(CONCURRENT_FITS);
+
+/// [`fit_table`] off the request's thread, at most [`CONCURRENT_FITS`] at a time.
+///
+/// # Errors
+/// The outer error when the task could not run; the inner one as [`fit_table`].
+pub async fn fit_table_queued(
+    text: String,
+    pairs: Vec<(String, String)>,
+    default_threshold: f64,
+) -> Result<Result<KinematicsOutcome, KinematicsFault>, AppError> {
+    let _slot = FIT_SLOTS
+        .acquire()
+        .await
+        .map_err(|e| anyhow::anyhow!("the disk-fit queue is closed: {e}"))?;
+    tokio::task::spawn_blocking(move || fit_table(&text, &pairs, default_threshold))
+        .await
+        .map_err(|e| AppError::Internal(anyhow::Error::from(e)))
+}
+
 /// Fit a table read with settings checked.
 ///
 /// # Errors

@@ -17,7 +17,7 @@ use crate::charts::{DiskChart, DiskChartPoint, DiskCurve, kinematics_svg};
 use crate::error::{AppError, AppResult};
 use crate::relations::kinematics::{
     EXAMPLES, KinematicsFault, KinematicsOutcome, KinematicsResult, OffsetUnit, SETTING_NAMES,
-    example, fit_table,
+    example, fit_table_queued,
 };
 use crate::state::AppState;
 
@@ -287,9 +287,7 @@ pub(crate) async fn fit_kinematics(
     let (table, pairs) = read_form(&state, request).await?;
     let threshold = state.settings.soi_threshold;
     let (text, asked) = (table.clone(), pairs.clone());
-    let outcome = tokio::task::spawn_blocking(move || fit_table(&text, &asked, threshold))
-        .await
-        .map_err(anyhow::Error::from)?;
+    let outcome = fit_table_queued(text, asked, threshold).await?;
     match outcome {
         Ok(o) => {
             let mut p = page(nav, table, &pairs, None);
