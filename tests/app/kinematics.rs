@@ -205,3 +205,33 @@ async fn fitting_stores_nothing_and_the_submit_link_fills_the_form_with_the_mass
         "opening the form stored something"
     );
 }
+
+#[tokio::test]
+async fn missing_settings_are_named_beside_their_fields_and_the_table_is_kept() {
+    let app = spawn_app().await;
+    let mut browser = app.login_as(Role::Member).await;
+    browser.get("/kinematics").await;
+    let table = example("maser").unwrap().table;
+    let page = browser
+        .post("/kinematics", &[("table", table), ("distance_mpc", "7.2")])
+        .await;
+    assert_eq!(page.status, 400);
+    for name in ["distance_err_mpc", "inclination_deg"] {
+        assert!(
+            page.body
+                .contains(&format!("<p class=\"field-error\" id=\"e-{name}\">")),
+            "{name} is not named:\n{}",
+            page.body
+        );
+        assert!(
+            page.body
+                .contains(&format!("aria-describedby=\"e-{name}\""))
+        );
+    }
+    assert!(
+        !page.body.contains("id=\"e-distance_mpc\""),
+        "a good field is named"
+    );
+    assert!(page.body.contains("offset_mas,v_km_s"), "the table is kept");
+    assert!(!page.body.contains("id=\"result\""), "nothing was fitted");
+}
