@@ -11,6 +11,7 @@ use std::time::Duration;
 
 use criterion::{Criterion, criterion_group, criterion_main};
 use massline::fit::bootstrap::bootstrap;
+use massline::fit::disk;
 use massline::fit::ensemble::{self, EnsembleConfig};
 use massline::fit::posterior::posterior;
 use massline::fit::{
@@ -204,5 +205,75 @@ fn structural_plane(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(fit_benches, benches, influence_benches, structural_plane);
+/// Invented disk: M_BH = 10^7.3 M☉, v_sys = 900 km/s, i = 70 ± 3°, `n` points on both sides
+/// from 0.05 to 2 pc, Plummer stars (L = 10^7.2 L☉, a = 1 pc, Υ = 2), errors 5–30 km/s.
+fn disk_sample(n: usize, seed: u64) -> (disk::DiskInput, disk::Extended) {
+    let mut rng = StdRng::seed_from_u64(seed);
+    let unit = Normal::new(0.0, 1.0).unwrap();
+    let stars = disk::LightProfile::Plummer {
+        l_total_lsun: 10f64.powf(7.2),
+        a_pc: 1.0,
+    };
+    let sin_i = 70f64.to_radians().sin();
+    let points = (0..n)
+        .map(|k| {
+            let r: f64 = (0.05f64.ln() + (40f64).ln() * rng.random_range(0.0..1.0)).exp();
+            let x = if k % 2 == 0 { r } else { -r };
+            let m = 10f64.powf(7.3) + 2.0 * stars.enclosed_lsun(r);
+            let err = rng.random_range(5.0..30.0);
+            disk::DiskPoint {
+                offset_pc: x,
+                v_km_s: 900.0
+                    + x.signum() * sin_i * (disk::G_PC_KM2_S2_PER_MSUN * m / r).sqrt()
+                    + err * unit.sample(&mut rng),
+                err_km_s: err,
+            }
+        })
+        .collect();
+    let input = disk::DiskInput {
+        points,
+        distance_mpc: 15.0,
+        distance_err_mpc: 1.0,
+        inclination: disk::Inclination::Given {
+            deg: 70.0,
+            err_deg: 3.0,
+        },
+    };
+    let extended = disk::Extended {
+        stars: Some((stars, disk::MassToLight::Free)),
+        cluster: None,
+    };
+    (input, extended)
+}
+
+/// Keplerian disk fits (docs/methods.md §4.8) of 50 points: the target is a posterior under
+/// 0.5 s with the default sampler settings.
+fn disk_fits(c: &mut Criterion) {
+    let (input, extended) = disk_sample(50, 4);
+    let mut g = c.benchmark_group("disk");
+    g.sample_size(10);
+    g.bench_function("point_mass_fit_50", |b| {
+        b.iter(|| disk::fit_point_mass(black_box(&input)).unwrap())
+    });
+    g.bench_function("stars_fit_50", |b| {
+        b.iter(|| disk::fit_extended(black_box(&input), &extended).unwrap())
+    });
+    let point = disk::fit_point_mass(&input).unwrap();
+    g.bench_function("posterior_point_mass_50_32x3000", |b| {
+        b.iter(|| disk::posterior(black_box(&input), &point, None, 1).unwrap())
+    });
+    let with_stars = disk::fit_extended(&input, &extended).unwrap();
+    g.bench_function("posterior_stars_50_32x3000", |b| {
+        b.iter(|| disk::posterior(black_box(&input), &with_stars, Some(&extended), 1).unwrap())
+    });
+    g.finish();
+}
+
+criterion_group!(
+    fit_benches,
+    benches,
+    influence_benches,
+    structural_plane,
+    disk_fits
+);
 criterion_main!(fit_benches);
