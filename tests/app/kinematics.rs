@@ -113,6 +113,20 @@ async fn the_page_the_api_and_the_command_line_give_the_same_mass_for_the_gas_di
         text_of(&page.body, "n-points"),
         from_api["n_points"].to_string()
     );
+    // The errors are shown to two significant digits: within half of the second digit.
+    for (id, key) in [
+        ("err-total", "log_mbh_err_total_dex"),
+        ("err-stat", "log_mbh_err_stat_dex"),
+        ("err-inclination", "log_mbh_err_inclination_dex"),
+        ("err-distance", "log_mbh_err_distance_dex"),
+    ] {
+        let shown: f64 = text_of(&page.body, id).parse().unwrap();
+        let exact = from_api[key].as_f64().unwrap();
+        assert!(
+            (shown - exact).abs() <= 0.05 * exact,
+            "{id}: the page shows {shown}, the API {exact}"
+        );
+    }
     // The comparison prefers the stars on this table (it was made with them), in words and
     // in the quoted model.
     assert!(
