@@ -535,11 +535,6 @@ impl Model<'_> {
         m
     }
 
-    /// M(<r) in M☉ for θ.
-    fn enclosed(&self, theta: &[f64], r: f64) -> f64 {
-        self.enclosed_with(&self.terms(theta), r)
-    }
-
     fn velocity_with(&self, theta: &[f64], t: &Terms, x: f64) -> f64 {
         let d = x - theta[I_XC];
         let r = d.abs();
@@ -1832,7 +1827,7 @@ mod tests {
                 };
                 for r in [0.05, 0.3, 1.0, 4.0] {
                     let v_obs = m.velocity(&theta, r);
-                    let mass = m.enclosed(&theta, r);
+                    let mass = m.enclosed_with(&m.terms(&theta), r);
                     rel(kepler_enclosed(v_obs, deg, r).unwrap(), mass, 1e-12);
                     rel(keplerian_mass_msun(v_obs / sin_i, r).unwrap(), mass, 1e-12);
                 }
