@@ -4,7 +4,7 @@
 //! `/api/` path is drawn as RFC 9457 problem details ([`problem`]).
 //!
 //! One file per area: [`relations`] (the relations and their fits, with ETags), [`place`] (one
-//! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`catalog`] (the accepted
+//! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`kinematics`] (a black-hole mass from a disk's velocities), [`catalog`] (the accepted
 //! catalog as CSV or JSON), [`changes`] (what changed between two versions), [`releases`],
 //! [`virial`] (the virial factor's calibration and adoptions),
 //! [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
@@ -17,6 +17,7 @@ pub mod catalog;
 pub mod changes;
 pub mod fit;
 pub mod galaxies;
+pub mod kinematics;
 pub mod me;
 pub mod openapi;
 pub mod place;
@@ -188,6 +189,13 @@ fn routes() -> Routes {
             Read,
             post(fit::fit_sample),
             fit::FIT_LIMIT_BYTES,
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/kinematics",
+            Read,
+            post(kinematics::fit_disk),
+            kinematics::KINEMATICS_LIMIT_BYTES,
         )
         .add(
             Method::GET,

@@ -59,6 +59,7 @@ impl Modify for BearerScheme {
         super::galaxies::list_galaxies,
         super::galaxies::show_galaxy,
         super::fit::fit_sample,
+        super::kinematics::fit_disk,
         super::catalog::catalog_csv,
         super::catalog::catalog_json,
         super::changes::catalog_changes,
@@ -91,6 +92,7 @@ impl Modify for BearerScheme {
         super::virial::WidthWord,
         super::virial::CalibrationBulgeWord,
         super::virial::SlopeWord,
+        super::kinematics::OffsetUnitWord,
     )),
     modifiers(&BearerScheme),
     tags(

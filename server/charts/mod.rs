@@ -30,10 +30,13 @@
 mod density;
 mod draw;
 mod geometry;
+mod kinematics;
 mod markup;
 mod style;
 #[cfg(test)]
 mod tests;
+
+pub use kinematics::{DiskChart, DiskChartPoint, DiskCurve, kinematics_svg};
 
 /// Default chart width in pixels (fits a laptop-width page column).
 pub const DEFAULT_WIDTH: u32 = 720;

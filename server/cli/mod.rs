@@ -11,6 +11,7 @@
 //! massline backup PATH [--db DB] [--force]            a checked copy of the live database
 //! massline release NAME [--version N] [--note TEXT]   name a catalog version as a release
 //! massline virial-factor [--width-definition W] [--adopt]  calibrate ⟨f⟩ (and adopt it)
+//! massline kinematics --input FILE.csv --distance D ...   a black-hole mass from a disk
 //! ```
 //!
 //! The command line is one of the three doors (pages and the JSON API are the others): each
@@ -21,6 +22,7 @@
 pub mod backup;
 pub mod catalog_files;
 pub mod fit;
+pub mod kinematics;
 pub mod release;
 pub mod serve;
 pub mod user;
@@ -56,6 +58,8 @@ enum Command {
     Release(release::ReleaseArgs),
     /// Calibrate the mean virial factor <f> of reverberation AGN on the catalog; --adopt adopts it.
     VirialFactor(virial::VirialArgs),
+    /// A black-hole mass from a velocity table of a rotating gas or maser disk.
+    Kinematics(kinematics::KinematicsArgs),
 }
 
 /// Parses the command line, runs the subcommand and turns its outcome into the exit code: 0,
@@ -80,6 +84,7 @@ pub fn main() -> std::process::ExitCode {
         Command::Backup(args) => backup::run(&args),
         Command::Release(args) => release::run(&args, &mut std::io::stdout().lock()),
         Command::VirialFactor(args) => virial::run(&args, &mut std::io::stdout().lock()),
+        Command::Kinematics(args) => kinematics::run(&args, &mut std::io::stdout().lock()),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,

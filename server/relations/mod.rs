@@ -30,6 +30,7 @@ pub mod citation;
 mod defaults;
 mod filter;
 pub mod galaxy;
+pub mod kinematics;
 mod own_sample;
 pub mod place;
 pub mod planning;

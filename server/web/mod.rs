@@ -17,6 +17,7 @@ mod escape;
 mod exports;
 mod fits;
 mod galaxies;
+mod kinematics;
 mod login;
 mod overview;
 mod place;
@@ -162,6 +163,19 @@ fn routes() -> Routes {
         )
         .add(Method::GET, "/fits/{id}", Read, get(fits::show_fit))
         .add(Method::GET, "/place", Read, get(place::show_place))
+        .add(
+            Method::GET,
+            "/kinematics",
+            Read,
+            get(kinematics::show_kinematics),
+        )
+        .add_limited(
+            Method::POST,
+            "/kinematics",
+            Read,
+            post(kinematics::fit_kinematics),
+            kinematics::FORM_LIMIT_BYTES,
+        )
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))

@@ -358,14 +358,23 @@ async fn form_page(
     })
 }
 
-/// Show the empty submission form.
+/// Show the submission form, empty or filled from the address (`galaxy`, `note` and the first
+/// measurement row's `m0_…` fields, as another page proposes them: the disk fit's "Submit this
+/// mass"). Nothing is checked or stored until the member sends the form.
 pub(crate) async fn new_submission(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     nav: Nav,
+    Query(pairs): Query<Vec<(String, String)>>,
 ) -> AppResult<NewSubmissionPage> {
     let user = session_of(&principal)?;
-    form_page(&state, user, nav, &HashMap::new(), &HashMap::new(), None).await
+    let prefill: Fields = pairs
+        .into_iter()
+        .filter(|(k, v)| {
+            (k == "galaxy" || k == "note" || k.starts_with("m0_")) && v.chars().count() <= 2000
+        })
+        .collect();
+    form_page(&state, user, nav, &prefill, &HashMap::new(), None).await
 }
 
 /// Store a submission from the form, or show the form again with a message beside each field

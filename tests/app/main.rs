@@ -21,6 +21,7 @@ mod galaxy_names;
 mod galaxy_relations;
 mod history;
 mod idempotency;
+mod kinematics;
 mod pages;
 mod planning_core;
 mod relations;

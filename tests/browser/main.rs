@@ -13,6 +13,7 @@ mod checks;
 mod api_token;
 mod chart_reading;
 mod csv_upload;
+mod kinematics;
 mod phone;
 mod place_link;
 mod relation_form;
