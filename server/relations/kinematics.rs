@@ -1439,6 +1439,11 @@ fn maser(
     let theta_s = (k / gradient).powf(2.0 / 3.0);
     let theta_rel = 2.0 / 3.0 * k_rel.hypot(gradient_err / gradient);
     let v_rot = k / theta_s.sqrt();
+    // θ_s and v_rot both come from K and g, so their errors are correlated: with them,
+    // D ∝ v_rot² / (a θ_s) = K^(2/3) g^(4/3) / a. The whole K and g error is carried on θ_s
+    // (σ_D/D from them is √((2/3 σ_K/K)² + (4/3 σ_g/g)²)) and none on v_rot, so that
+    // `maser_distance`'s independent-error formula gives the right total.
+    let distance_rel_kg = (2.0 / 3.0 * k_rel).hypot(4.0 / 3.0 * gradient_err / gradient);
     let (mut aw, mut awa) = (0.0, 0.0);
     for r in systemic {
         if let Some((a, e)) = r.acceleration_km_s_yr {
@@ -1448,9 +1453,9 @@ fn maser(
     }
     let feature = disk::MaserFeature {
         radius_mas: theta_s,
-        radius_err_mas: theta_rel * theta_s,
+        radius_err_mas: distance_rel_kg * theta_s,
         v_rot_km_s: v_rot,
-        v_rot_err_km_s: 0.5 * theta_rel * v_rot,
+        v_rot_err_km_s: 0.0,
         acceleration_km_s_yr: awa / aw,
         err: aw.sqrt().recip(),
     };
