@@ -31,6 +31,7 @@ mod density;
 mod draw;
 mod geometry;
 mod markup;
+pub mod planning;
 mod style;
 #[cfg(test)]
 mod tests;
