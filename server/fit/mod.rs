@@ -91,6 +91,7 @@ pub mod fitexy;
 pub mod influence;
 pub mod intervals;
 pub mod optimize;
+pub mod plan;
 pub mod posterior;
 pub mod predict;
 pub mod special;

@@ -31,6 +31,7 @@ mod filter;
 pub mod galaxy;
 mod own_sample;
 pub mod place;
+pub mod planning;
 mod runs;
 mod sample;
 pub mod table;

@@ -1,0 +1,489 @@
+//! Planning an observation: the black-hole mass, the radius and the angular size of the sphere
+//! of influence that a fitted relation predicts for a host not yet observed, and the
+//! probability that an instrument of a given resolution will resolve it (docs/methods.md §4.9).
+//!
+//! # Model
+//! ```text
+//! log M̂      = α + β (x − x0)                                     (dex, M☉)
+//! log r̂_infl = log M̂ − 2 s + log G                                (pc; s = log σ, km/s)
+//! log θ̂_infl = log r̂_infl − log D + log(206 264.806″ / 10⁶)       (arcsec; D in Mpc)
+//! V = ε² + Var(α) + (x − x0)² Var(β) + 2 (x − x0) Cov(α, β) + Σ_k (c_k² + b_k² Var(β)) σ_k²
+//! P(resolved) = Φ((log θ̂_infl − log(threshold · θ_res)) / √V)
+//! ```
+//! Each measured input k (log σ, log x, log D) with error σ_k (dex) enters log θ with the
+//! coefficient c_k (at the fitted β) and b_k = ∂c_k/∂β; the b_k term is the exact variance of
+//! the product of the uncertain slope and the input's error (second order, small). The
+//! coefficients of each case:
+//!
+//! | case | input | c_k in log M | in log r_infl | in log θ_infl |
+//! |---|---|---|---|---|
+//! | M–σ (x = s) | s | β | β − 2 | β − 2 |
+//! | | log D | 0 | 0 | −1 |
+//! | M–x, σ separate, x ∝ D^p | log x | β | β | β |
+//! | | s | 0 | −2 | −2 |
+//! | | log D | p β | p β | p β − 1 |
+//!
+//! (p = 2 for a luminosity or a photometric bulge mass, 1 for a dynamical bulge mass;
+//! docs/methods.md §3.2.) The candidate's errors of x exclude the distance error: the
+//! distance's error enters once, through log D, with the coefficient above.
+//!
+//! The physical constants come from the caller ([`SoiScale`]): this module is pure statistics
+//! and does not use the physics module.
+
+use serde::Serialize;
+
+use super::intervals::Z95;
+use super::special::ln_norm_cdf;
+use super::{Fit, FitError, Shape};
+
+/// What a fitted straight line contributes to a prediction: its parameters, their covariance
+/// and the intrinsic scatter.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct RelationTerms {
+    /// Zero point α: log10 M_BH at the pivot, dex.
+    pub alpha: f64,
+    /// Slope β, dex per dex.
+    pub beta: f64,
+    /// Pivot x0, log10 units of the host property.
+    pub x0: f64,
+    /// Var(α), dex².
+    pub var_alpha: f64,
+    /// Var(β), (dex/dex)².
+    pub var_beta: f64,
+    /// Cov(α, β), dex · dex/dex.
+    pub cov_ab: f64,
+    /// Intrinsic scatter ε, dex.
+    pub scatter_dex: f64,
+}
+
+impl RelationTerms {
+    /// The terms of a fitted straight line: α, β, ε from its parameters, the (α, β) block of
+    /// its covariance, its pivot.
+    ///
+    /// # Errors
+    /// [`FitError::Unsupported`] for a quadratic or planar fit, or one without an (α, β)
+    /// covariance.
+    pub fn from_fit(fit: &Fit) -> Result<RelationTerms, FitError> {
+        if fit.spec.shape != Shape::Line {
+            return Err(FitError::Unsupported {
+                what: "Planning uses straight-line relations only.".to_owned(),
+            });
+        }
+        let get = |a: &str, b: &str| {
+            fit.covariance(a, b)
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| FitError::Unsupported {
+                    what: "The fit has no covariance of its zero point and slope.".to_owned(),
+                })
+        };
+        Ok(RelationTerms {
+            alpha: fit.params.alpha,
+            beta: fit.params.beta,
+            x0: fit.spec.pivot,
+            var_alpha: get("alpha", "alpha")?.max(0.0),
+            var_beta: get("beta", "beta")?.max(0.0),
+            cov_ab: get("alpha", "beta")?,
+            scatter_dex: fit.params.eps.max(0.0),
+        })
+    }
+
+    /// The terms of a published relation given by its parameters and errors, with Cov(α, β)
+    /// (0 when the source does not give it).
+    #[must_use]
+    pub fn published(
+        (alpha, alpha_err): (f64, f64),
+        (beta, beta_err): (f64, f64),
+        x0: f64,
+        cov_ab: f64,
+        scatter_dex: f64,
+    ) -> RelationTerms {
+        RelationTerms {
+            alpha,
+            beta,
+            x0,
+            var_alpha: alpha_err * alpha_err,
+            var_beta: beta_err * beta_err,
+            cov_ab,
+            scatter_dex,
+        }
+    }
+}
+
+/// What is known of a candidate host: its σ (always needed for r_infl = G M/σ²) and, for the
+/// relations in another host property, that property.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub enum HostInput {
+    /// M–σ: the host property is σ itself. s = log10 σ (km/s), its error in dex.
+    Sigma {
+        /// log10 σ/(km/s).
+        log_sigma: f64,
+        /// Error of log σ, dex.
+        err_dex: f64,
+    },
+    /// M_BH–M_bulge or M_BH–L: the host property x (log10 M☉ or L☉) measured at the
+    /// candidate's distance, scaling as D^p, and σ measured separately.
+    Photometric {
+        /// log10 of the host property at the candidate's distance.
+        log_x: f64,
+        /// Its error without the distance's, dex.
+        err_dex: f64,
+        /// p in x ∝ D^p: 2 for a luminosity or a photometric bulge mass, 1 for a dynamical
+        /// bulge mass (docs/methods.md §3.2).
+        distance_power: f64,
+        /// log10 σ/(km/s).
+        log_sigma: f64,
+        /// Error of log σ, dex.
+        log_sigma_err_dex: f64,
+    },
+}
+
+/// The distance of a candidate, in logs: log10 D (Mpc) and its error σ_logD = σ_D/(D ln 10).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct LogDistance {
+    /// log10 D/Mpc.
+    pub log_mpc: f64,
+    /// Its error, dex.
+    pub err_dex: f64,
+}
+
+impl LogDistance {
+    /// From a distance and its 1σ error, both in Mpc (first order, docs/methods.md §3.2).
+    #[must_use]
+    pub fn from_mpc(distance_mpc: f64, err_mpc: f64) -> LogDistance {
+        LogDistance {
+            log_mpc: distance_mpc.log10(),
+            err_dex: err_mpc / (distance_mpc * std::f64::consts::LN_10),
+        }
+    }
+}
+
+/// The two constants of the sphere of influence, given by the caller from the physics
+/// module's constants (docs/methods.md §3.1, §5).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct SoiScale {
+    /// log10 G in pc M☉⁻¹ (km/s)².
+    pub log_g: f64,
+    /// log10 of the angle, in arcsec, of 1 pc seen from 1 Mpc (206 264.806″/10⁶).
+    pub log_arcsec_per_pc_at_mpc: f64,
+}
+
+impl SoiScale {
+    /// From G in pc M☉⁻¹ (km/s)² and the arcseconds in a radian (648 000/π).
+    #[must_use]
+    pub fn new(g_pc_km2_s2_per_msun: f64, arcsec_per_radian: f64) -> SoiScale {
+        SoiScale {
+            log_g: g_pc_km2_s2_per_msun.log10(),
+            log_arcsec_per_pc_at_mpc: arcsec_per_radian.log10() - 6.0,
+        }
+    }
+}
+
+/// A normal prediction of a log10 quantity: median, spread and central intervals.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct LogPrediction {
+    /// Median (= mean) of the log10 quantity.
+    pub median: f64,
+    /// Its predictive standard deviation √V, dex.
+    pub sd_dex: f64,
+    /// 68.27 % interval (median ± √V).
+    pub interval68: (f64, f64),
+    /// 95 % interval (median ± 1.959964 √V).
+    pub interval95: (f64, f64),
+}
+
+impl LogPrediction {
+    /// A normal prediction with this median and variance (dex, dex²).
+    #[must_use]
+    pub fn normal(median: f64, variance: f64) -> LogPrediction {
+        let sd = variance.max(0.0).sqrt();
+        LogPrediction {
+            median,
+            sd_dex: sd,
+            interval68: (median - sd, median + sd),
+            interval95: (median - Z95 * sd, median + Z95 * sd),
+        }
+    }
+}
+
+/// The predicted black-hole mass and sphere of influence of one candidate.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct ThetaPrediction {
+    /// log10 M_BH/M☉.
+    pub log_mbh: LogPrediction,
+    /// log10 r_infl/pc, r_infl = G M/σ².
+    pub log_r_infl_pc: LogPrediction,
+    /// log10 θ_infl/arcsec, θ_infl = r_infl/D.
+    pub log_theta_arcsec: LogPrediction,
+}
+
+/// One input's error, its coefficient at the fitted β and the coefficient's slope in β.
+struct Term {
+    c: f64,
+    b: f64,
+    sd: f64,
+}
+
+/// The variance of a prediction: the relation's part and the inputs' parts (module docs).
+fn variance(terms: &RelationTerms, d: f64, inputs: &[Term]) -> f64 {
+    let relation = terms.scatter_dex.powi(2)
+        + terms.var_alpha
+        + d * d * terms.var_beta
+        + 2.0 * d * terms.cov_ab;
+    let measured: f64 = inputs
+        .iter()
+        .map(|t| (t.c * t.c + t.b * t.b * terms.var_beta) * t.sd * t.sd)
+        .sum();
+    relation + measured
+}
+
+fn check(values: &[(&'static str, f64)], errors: &[(&'static str, f64)]) -> Result<(), FitError> {
+    for (column, v) in values.iter().chain(errors) {
+        if !v.is_finite() {
+            return Err(FitError::NonFiniteInput { row: 0, column });
+        }
+    }
+    for (column, v) in errors {
+        if *v < 0.0 {
+            return Err(FitError::NegativeError { row: 0, column });
+        }
+    }
+    Ok(())
+}
+
+/// The predicted log M_BH of a host with property x (log10, error in dex, x ∝ D^p with the
+/// distance error `log_d_err_dex`; p = 0 for σ), without the sphere of influence: what a
+/// candidate without σ gets.
+///
+/// # Model
+/// ```text
+/// log M̂ = α + β (x − x0)
+/// V_M = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) + (β² + Var β) σ_x² + (p²β² + p² Var β) σ_logD²
+/// ```
+/// d = x − x0; dex throughout (docs/methods.md §4.9).
+///
+/// # Errors
+/// [`FitError::NonFiniteInput`], [`FitError::NegativeError`].
+pub fn predict_mass(
+    terms: &RelationTerms,
+    log_x: f64,
+    err_dex: f64,
+    distance_power: f64,
+    log_d_err_dex: f64,
+) -> Result<LogPrediction, FitError> {
+    check(
+        &[("log_x", log_x), ("distance_power", distance_power)],
+        &[("err_dex", err_dex), ("log_d_err_dex", log_d_err_dex)],
+    )?;
+    let d = log_x - terms.x0;
+    let inputs = [
+        Term {
+            c: terms.beta,
+            b: 1.0,
+            sd: err_dex,
+        },
+        Term {
+            c: distance_power * terms.beta,
+            b: distance_power,
+            sd: log_d_err_dex,
+        },
+    ];
+    Ok(LogPrediction::normal(
+        terms.alpha + terms.beta * d,
+        variance(terms, d, &inputs),
+    ))
+}
+
+/// The predicted log M_BH, log r_infl and log θ_infl of a candidate, each with its predictive
+/// spread and 68.27 % / 95 % intervals.
+///
+/// # Model
+/// See the module documentation: medians from the fitted line at the candidate's values,
+/// variances with the coefficients of each case (M–σ: σ's error once, with β − 2; another
+/// property x ∝ D^p with σ separate: x's error with β, σ's with −2, the distance's with pβ − 1
+/// in θ). log10 values: M☉, pc, arcsec; errors dex; D in Mpc.
+///
+/// # Errors
+/// [`FitError::NonFiniteInput`] for a value that is not finite, [`FitError::NegativeError`]
+/// for a negative error.
+///
+/// # References
+/// docs/methods.md §3.1 (r_infl = G M/σ², θ = r/D), §3.2 (distance exponents), §4.9.
+pub fn predict_theta(
+    terms: &RelationTerms,
+    host: HostInput,
+    distance: LogDistance,
+    scale: SoiScale,
+) -> Result<ThetaPrediction, FitError> {
+    check(
+        &[("log_distance", distance.log_mpc)],
+        &[("log_distance_err", distance.err_dex)],
+    )?;
+    let sd_d = distance.err_dex;
+    let beta = terms.beta;
+    let (log_mbh, log_sigma, r_inputs, theta_inputs) = match host {
+        HostInput::Sigma { log_sigma, err_dex } => {
+            check(&[("log_sigma", log_sigma)], &[("sigma_err_dex", err_dex)])?;
+            let mass = predict_mass(terms, log_sigma, err_dex, 0.0, 0.0)?;
+            let s_term = || Term {
+                c: beta - 2.0,
+                b: 1.0,
+                sd: err_dex,
+            };
+            let r = vec![s_term()];
+            let theta = vec![
+                s_term(),
+                Term {
+                    c: -1.0,
+                    b: 0.0,
+                    sd: sd_d,
+                },
+            ];
+            (mass, log_sigma, r, theta)
+        }
+        HostInput::Photometric {
+            log_x,
+            err_dex,
+            distance_power: p,
+            log_sigma,
+            log_sigma_err_dex,
+        } => {
+            check(
+                &[("log_sigma", log_sigma)],
+                &[("sigma_err_dex", log_sigma_err_dex)],
+            )?;
+            let mass = predict_mass(terms, log_x, err_dex, p, sd_d)?;
+            let x_term = || Term {
+                c: beta,
+                b: 1.0,
+                sd: err_dex,
+            };
+            let s_term = || Term {
+                c: -2.0,
+                b: 0.0,
+                sd: log_sigma_err_dex,
+            };
+            let d_term = |minus: f64| Term {
+                c: p * beta - minus,
+                b: p,
+                sd: sd_d,
+            };
+            let r = vec![x_term(), s_term(), d_term(0.0)];
+            let theta = vec![x_term(), s_term(), d_term(1.0)];
+            (mass, log_sigma, r, theta)
+        }
+    };
+    let d = match host {
+        HostInput::Sigma { log_sigma, .. } => log_sigma - terms.x0,
+        HostInput::Photometric { log_x, .. } => log_x - terms.x0,
+    };
+    let log_r = log_mbh.median - 2.0 * log_sigma + scale.log_g;
+    let log_theta = log_r - distance.log_mpc + scale.log_arcsec_per_pc_at_mpc;
+    Ok(ThetaPrediction {
+        log_mbh,
+        log_r_infl_pc: LogPrediction::normal(log_r, variance(terms, d, &r_inputs)),
+        log_theta_arcsec: LogPrediction::normal(log_theta, variance(terms, d, &theta_inputs)),
+    })
+}
+
+/// The probability that θ_infl / θ_res ≥ threshold under the prediction.
+///
+/// # Model
+/// ```text
+/// P = Φ((log θ̂_infl − log10(threshold · θ_res)) / √V)
+/// ```
+/// θ_res in arcsec, threshold dimensionless (common practice: 1, docs/methods.md §3.1). With
+/// √V = 0 the answer is 1 or 0.
+///
+/// # Errors
+/// None; NaN for a resolution or threshold that is not positive and finite.
+#[must_use]
+pub fn p_resolved(pred: &ThetaPrediction, resolution_arcsec: f64, threshold: f64) -> f64 {
+    if !(resolution_arcsec > 0.0 && threshold > 0.0)
+        || !resolution_arcsec.is_finite()
+        || !threshold.is_finite()
+    {
+        return f64::NAN;
+    }
+    probability_at_least(
+        &pred.log_theta_arcsec,
+        (threshold * resolution_arcsec).log10(),
+    )
+}
+
+/// P(the log10 quantity ≥ `log_bound`) under a normal prediction.
+///
+/// # Model
+/// ```text
+/// P = Φ((median − log_bound) / √V);   √V = 0: 1 when median ≥ log_bound, else 0
+/// ```
+///
+/// # Errors
+/// None; NaN for a bound that is not a number.
+#[must_use]
+pub fn probability_at_least(pred: &LogPrediction, log_bound: f64) -> f64 {
+    let gap = pred.median - log_bound;
+    if gap.is_nan() {
+        f64::NAN
+    } else if pred.sd_dex > 0.0 {
+        ln_norm_cdf(gap / pred.sd_dex).exp()
+    } else if gap >= 0.0 {
+        1.0
+    } else {
+        0.0
+    }
+}
+
+/// The prediction of the θ_infl a measurement of the host will give, from σ and the distance
+/// alone: what the reliability check compares with the measured ratio (docs/methods.md §4.9).
+///
+/// # Model
+/// The measured θ_infl = G M_meas/(σ_obs² D) uses the observed σ, and a dynamical mass at the
+/// adopted distance scales as D (so θ_meas follows the true distance); with s_true = s − e_s,
+/// log D_true = log D + δ and the mass's measurement error e_y:
+/// ```text
+/// log θ_meas = α + β (s_true − x0) + e + e_y − 2 s − log D_true + C
+/// median = α + β (s − x0) − 2 s − log D + C
+/// V = ε² + Var(α) + d² Var(β) + 2 d Cov(α, β) + (β² + Var β) σ_s² + σ_logD² + σ_y²
+/// ```
+/// d = s − x0; logs in dex, C = log G + log(206 264.806″/10⁶).
+///
+/// # Errors
+/// [`FitError::NonFiniteInput`], [`FitError::NegativeError`].
+pub fn predict_measured_log_theta(
+    terms: &RelationTerms,
+    log_sigma: f64,
+    sigma_err_dex: f64,
+    mass_err_dex: f64,
+    distance: LogDistance,
+    scale: SoiScale,
+) -> Result<LogPrediction, FitError> {
+    check(
+        &[("log_sigma", log_sigma), ("log_distance", distance.log_mpc)],
+        &[
+            ("sigma_err_dex", sigma_err_dex),
+            ("mass_err_dex", mass_err_dex),
+            ("log_distance_err", distance.err_dex),
+        ],
+    )?;
+    let d = log_sigma - terms.x0;
+    let inputs = [
+        Term {
+            c: terms.beta,
+            b: 1.0,
+            sd: sigma_err_dex,
+        },
+        Term {
+            c: -1.0,
+            b: 0.0,
+            sd: distance.err_dex,
+        },
+        Term {
+            c: 1.0,
+            b: 0.0,
+            sd: mass_err_dex,
+        },
+    ];
+    let median = terms.alpha + terms.beta * d - 2.0 * log_sigma + scale.log_g - distance.log_mpc
+        + scale.log_arcsec_per_pc_at_mpc;
+    Ok(LogPrediction::normal(median, variance(terms, d, &inputs)))
+}
