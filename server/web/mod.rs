@@ -20,6 +20,7 @@ mod galaxies;
 mod login;
 mod overview;
 mod place;
+mod planning;
 mod relations;
 mod releases;
 mod review;
@@ -162,6 +163,38 @@ fn routes() -> Routes {
         )
         .add(Method::GET, "/fits/{id}", Read, get(fits::show_fit))
         .add(Method::GET, "/place", Read, get(place::show_place))
+        .add(Method::GET, "/planning", Read, get(planning::show_planning))
+        .add(Method::POST, "/planning", Read, post(planning::run_planning))
+        .add(
+            Method::POST,
+            "/planning/download",
+            Read,
+            post(planning::download_plan),
+        )
+        .add(
+            Method::GET,
+            "/planning/candidates.csv",
+            Read,
+            get(planning::example_file),
+        )
+        .add(
+            Method::POST,
+            "/planning/resolutions",
+            Session,
+            post(planning::save_resolutions),
+        )
+        .add(
+            Method::POST,
+            "/planning/resolutions/{id}/delete",
+            Session,
+            post(planning::delete_resolution),
+        )
+        .add(
+            Method::GET,
+            "/static/planning.js",
+            Public,
+            get(planning::script),
+        )
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))
         .add(Method::GET, "/static/massline.css", Public, get(stylesheet))
