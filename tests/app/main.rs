@@ -21,6 +21,7 @@ mod galaxy_relations;
 mod history;
 mod idempotency;
 mod pages;
+mod planning;
 mod relations;
 mod runs;
 mod security;
