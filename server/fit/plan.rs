@@ -487,3 +487,295 @@ pub fn predict_measured_log_theta(
         + scale.log_arcsec_per_pc_at_mpc;
     Ok(LogPrediction::normal(median, variance(terms, d, &inputs)))
 }
+
+#[cfg(test)]
+mod tests {
+    use rand::SeedableRng;
+    use rand::rngs::StdRng;
+    use rand_distr::{Distribution, StandardNormal};
+
+    use super::*;
+
+    /// G in pc M☉⁻¹ (km/s)² and arcsec per radian, as docs/methods.md §5 and §7 rows 24–26
+    /// state them (computed there from GM☉ and the parsec).
+    fn scale() -> SoiScale {
+        SoiScale::new(4.300_917_27e-3, 648_000.0 / std::f64::consts::PI)
+    }
+
+    /// Gültekin et al. 2009 "all" (docs/methods.md §7 row 1): 8.12 ± 0.08, 4.24 ± 0.41,
+    /// ε = 0.44, covariance neglected, pivot 200 km/s.
+    fn g09() -> RelationTerms {
+        RelationTerms::published((8.12, 0.08), (4.24, 0.41), 200_f64.log10(), 0.0, 0.44)
+    }
+
+    #[test]
+    fn the_worked_example_of_the_methods_document() {
+        // docs/methods.md §4.9 (computed): σ = 150 km/s ± 5 % (σ_s = 0.05/ln 10 dex, first
+        // order, §3.2), D = 20 ± 2 Mpc, θ_res = 0.1″, threshold 1: log M̂ = 7.5903,
+        // r_infl = 7.441 pc, θ̂ = 0.07674″, P = 0.400; √V = 0.4548 dex to first order, 0.4549
+        // with the Var(β) σ_s² term this module adds.
+        let host = HostInput::Sigma {
+            log_sigma: 150_f64.log10(),
+            err_dex: 0.05 / std::f64::consts::LN_10,
+        };
+        let pred = predict_theta(&g09(), host, LogDistance::from_mpc(20.0, 2.0), scale()).unwrap();
+        assert!((pred.log_mbh.median - 7.5903).abs() < 5e-5, "{pred:?}");
+        assert!((10f64.powf(pred.log_r_infl_pc.median) - 7.441).abs() < 5e-4);
+        assert!((10f64.powf(pred.log_theta_arcsec.median) - 0.076_74).abs() < 5e-6);
+        let first_order = (pred.log_theta_arcsec.sd_dex.powi(2)
+            - 0.41_f64.powi(2) * (0.05 / std::f64::consts::LN_10).powi(2))
+        .sqrt();
+        assert!((first_order - 0.4548).abs() < 5e-5, "{first_order}");
+        assert!((pred.log_theta_arcsec.sd_dex - 0.4549).abs() < 5e-5);
+        let p = p_resolved(&pred, 0.1, 1.0);
+        assert!((p - 0.400).abs() < 5e-4, "{p}");
+        // Intervals: ±1 and ±1.959964 √V (standard normal quantiles).
+        let t = pred.log_theta_arcsec;
+        assert!((t.interval68.1 - t.median - t.sd_dex).abs() < 1e-12);
+        assert!((t.median - t.interval95.0 - 1.959_964 * t.sd_dex).abs() < 1e-6);
+        // A coarser resolution or a higher threshold can only lower P.
+        assert!(p_resolved(&pred, 0.2, 1.0) < p && p_resolved(&pred, 0.1, 2.0) < p);
+        assert!(p_resolved(&pred, 0.0, 1.0).is_nan());
+    }
+
+    #[test]
+    fn the_sphere_of_influence_constants() {
+        // docs/methods.md §7 row 23 (computed): M = 10⁸ M☉, σ = 200 km/s → r_infl = 10.7523 pc,
+        // θ_infl = 0.22178″ at 10 Mpc. With no scatter and no errors the prediction is exact.
+        let exact = RelationTerms::published((8.0, 0.0), (4.0, 0.0), 200_f64.log10(), 0.0, 0.0);
+        let host = HostInput::Sigma {
+            log_sigma: 200_f64.log10(),
+            err_dex: 0.0,
+        };
+        let pred = predict_theta(&exact, host, LogDistance::from_mpc(10.0, 0.0), scale()).unwrap();
+        assert!((10f64.powf(pred.log_r_infl_pc.median) - 10.7523).abs() < 5e-5);
+        assert!((10f64.powf(pred.log_theta_arcsec.median) - 0.22178).abs() < 5e-6);
+        assert_eq!(pred.log_theta_arcsec.sd_dex, 0.0);
+        assert_eq!(p_resolved(&pred, 0.2, 1.0), 1.0);
+        assert_eq!(p_resolved(&pred, 0.25, 1.0), 0.0);
+    }
+
+    #[test]
+    fn bad_inputs_are_refused() {
+        let host = HostInput::Sigma {
+            log_sigma: f64::NAN,
+            err_dex: 0.01,
+        };
+        assert!(matches!(
+            predict_theta(&g09(), host, LogDistance::from_mpc(10.0, 1.0), scale()),
+            Err(FitError::NonFiniteInput { .. })
+        ));
+        let host = HostInput::Photometric {
+            log_x: 11.0,
+            err_dex: -0.1,
+            distance_power: 2.0,
+            log_sigma: 2.2,
+            log_sigma_err_dex: 0.02,
+        };
+        assert!(matches!(
+            predict_theta(&g09(), host, LogDistance::from_mpc(10.0, 1.0), scale()),
+            Err(FitError::NegativeError { .. })
+        ));
+    }
+
+    /// One case of the Monte Carlo comparison.
+    struct Case {
+        terms: RelationTerms,
+        host: HostInput,
+        distance: LogDistance,
+        resolution_arcsec: f64,
+        threshold: f64,
+    }
+
+    /// log θ_infl drawn from the model the analytic prediction describes: (α, β) from their
+    /// bivariate normal, the scatter, the true σ (and x) about the measured ones, the true
+    /// distance about the given one, a property ∝ D^p measured at the given distance.
+    fn draw(case: &Case, rng: &mut StdRng) -> (f64, f64, f64) {
+        let mut n = || -> f64 { StandardNormal.sample(&mut *rng) };
+        let t = &case.terms;
+        let sa = t.var_alpha.sqrt();
+        let (z1, z2) = (n(), n());
+        let alpha = t.alpha + sa * z1;
+        let beta = if sa > 0.0 {
+            t.beta
+                + t.cov_ab / sa * z1
+                + (t.var_beta - t.cov_ab * t.cov_ab / t.var_alpha).sqrt() * z2
+        } else {
+            t.beta + t.var_beta.sqrt() * z2
+        };
+        let e = t.scatter_dex * n();
+        let delta = case.distance.err_dex * n();
+        let (x_true, s_true) = match case.host {
+            HostInput::Sigma { log_sigma, err_dex } => {
+                let s = log_sigma - err_dex * n();
+                (s, s)
+            }
+            HostInput::Photometric {
+                log_x,
+                err_dex,
+                distance_power,
+                log_sigma,
+                log_sigma_err_dex,
+            } => (
+                log_x - err_dex * n() + distance_power * delta,
+                log_sigma - log_sigma_err_dex * n(),
+            ),
+        };
+        let sc = scale();
+        let log_m = alpha + beta * (x_true - t.x0) + e;
+        let log_r = log_m - 2.0 * s_true + sc.log_g;
+        let log_theta = log_r - (case.distance.log_mpc + delta) + sc.log_arcsec_per_pc_at_mpc;
+        (log_m, log_r, log_theta)
+    }
+
+    #[test]
+    fn the_analytic_probability_agrees_with_a_monte_carlo_of_the_same_model() {
+        // 10⁶ draws per case; the binomial sd of a fraction near 0.5 is 0.0005, so 0.002 is
+        // four of them. The spreads agree within 0.5 % (their MC error is about 0.07 %).
+        const DRAWS: usize = 1_000_000;
+        let x0_sigma = 200_f64.log10();
+        let m_sigma = |beta: f64, var_beta: f64, cov: f64| {
+            RelationTerms::published((8.3, 0.05), (beta, var_beta.sqrt()), x0_sigma, cov, 0.35)
+        };
+        let m_bulge = |beta: f64, eps: f64| RelationTerms {
+            alpha: 8.5,
+            beta,
+            x0: 11.0,
+            var_alpha: 0.06_f64.powi(2),
+            var_beta: 0.1_f64.powi(2),
+            cov_ab: 0.001,
+            scatter_dex: eps,
+        };
+        let sigma = |s: f64, err: f64| HostInput::Sigma {
+            log_sigma: s.log10(),
+            err_dex: err,
+        };
+        let bulge = |x: f64, err: f64, p: f64, s: f64, s_err: f64| HostInput::Photometric {
+            log_x: x,
+            err_dex: err,
+            distance_power: p,
+            log_sigma: s.log10(),
+            log_sigma_err_dex: s_err,
+        };
+        let d = |mpc: f64, err: f64| LogDistance::from_mpc(mpc, err);
+        let cases = [
+            (
+                m_sigma(4.24, 0.17, 0.0),
+                sigma(150.0, 0.02),
+                d(20.0, 2.0),
+                0.1,
+                1.0,
+            ),
+            (
+                m_sigma(5.5, 0.25, 0.01),
+                sigma(250.0, 0.04),
+                d(60.0, 9.0),
+                0.1,
+                1.0,
+            ),
+            (
+                m_sigma(3.5, 0.09, -0.005),
+                sigma(90.0, 0.01),
+                d(4.0, 0.2),
+                0.05,
+                2.0,
+            ),
+            (
+                m_sigma(4.8, 0.2, 0.0),
+                sigma(300.0, 0.05),
+                d(100.0, 20.0),
+                0.5,
+                0.5,
+            ),
+            (
+                m_sigma(4.24, 0.17, 0.0),
+                sigma(120.0, 0.03),
+                d(15.0, 3.0),
+                0.03,
+                1.0,
+            ),
+            (
+                m_bulge(1.1, 0.3),
+                bulge(11.2, 0.1, 2.0, 220.0, 0.02),
+                d(20.0, 2.0),
+                0.1,
+                1.0,
+            ),
+            (
+                m_bulge(1.0, 0.35),
+                bulge(10.5, 0.2, 2.0, 150.0, 0.03),
+                d(30.0, 6.0),
+                0.05,
+                1.0,
+            ),
+            (
+                m_bulge(1.3, 0.25),
+                bulge(11.8, 0.15, 1.0, 300.0, 0.05),
+                d(80.0, 8.0),
+                0.2,
+                0.5,
+            ),
+            (
+                m_bulge(0.9, 0.4),
+                bulge(10.0, 0.05, 2.0, 110.0, 0.01),
+                d(10.0, 2.5),
+                0.02,
+                2.0,
+            ),
+        ];
+        let mut rng = StdRng::seed_from_u64(4_9);
+        for (i, (terms, host, distance, resolution_arcsec, threshold)) in
+            cases.into_iter().enumerate()
+        {
+            let case = Case {
+                terms,
+                host,
+                distance,
+                resolution_arcsec,
+                threshold,
+            };
+            let pred = predict_theta(&case.terms, case.host, case.distance, scale()).unwrap();
+            let bound = (case.threshold * case.resolution_arcsec).log10();
+            let (mut hits, mut sums) = (0usize, [[0.0_f64; 2]; 3]);
+            for _ in 0..DRAWS {
+                let drawn = draw(&case, &mut rng);
+                for (k, v) in [drawn.0, drawn.1, drawn.2].into_iter().enumerate() {
+                    sums[k][0] += v;
+                    sums[k][1] += v * v;
+                }
+                hits += usize::from(drawn.2 >= bound);
+            }
+            let mc = hits as f64 / DRAWS as f64;
+            let analytic = p_resolved(&pred, case.resolution_arcsec, case.threshold);
+            eprintln!("case {i}: P analytic {analytic:.4}, Monte Carlo {mc:.4}");
+            assert!(
+                (mc - analytic).abs() < 0.002,
+                "case {i}: Monte Carlo {mc}, analytic {analytic}"
+            );
+            let predicted = [pred.log_mbh, pred.log_r_infl_pc, pred.log_theta_arcsec];
+            for (k, p) in predicted.iter().enumerate() {
+                let mean = sums[k][0] / DRAWS as f64;
+                let sd = (sums[k][1] / DRAWS as f64 - mean * mean).sqrt();
+                assert!(
+                    (mean - p.median).abs() < 0.002,
+                    "case {i} quantity {k}: mean {mean} {p:?}"
+                );
+                assert!(
+                    (sd / p.sd_dex - 1.0).abs() < 0.005,
+                    "case {i} quantity {k}: sd {sd} {p:?}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn a_mass_without_sigma_carries_the_distance_through_the_property() {
+        // x ∝ D² with σ_logD = 0.05 and β = 1.1: V adds (2 · 1.1)² 0.05² + 2² Var(β) 0.05²
+        // (the module's formula, computed by hand here).
+        let t = RelationTerms::published((8.5, 0.0), (1.1, 0.1), 11.0, 0.0, 0.3);
+        let m = predict_mass(&t, 11.0, 0.0, 2.0, 0.05).unwrap();
+        let want = 0.09 + (2.2_f64 * 0.05).powi(2) + 4.0 * 0.01 * 0.0025;
+        assert!((m.sd_dex - want.sqrt()).abs() < 1e-12);
+        assert!((m.median - 8.5).abs() < 1e-12);
+    }
+}

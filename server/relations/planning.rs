@@ -1372,3 +1372,233 @@ fn reliability_of(
 fn p_of(pred: &LogPrediction, resolution_arcsec: f64, threshold: f64) -> f64 {
     probability_at_least(pred, (threshold * resolution_arcsec).log10())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = "name,sigma_km_s,sigma_err_km_s,log_bulge_mass,log_bulge_mass_err_dex,bulge_mass,bulge_mass_method,log_luminosity,log_luminosity_err_dex,band,distance_mpc,distance_err_mpc\n\
+        Candidate North,200,10,,,,,,,,18,1.5\n\
+        Candidate East,,,10.9,0.1,,,,,,25,\n\
+        Candidate West,180 ± 9,,,,5e10 ± 1e10,dynamical,10.4,0.08,K,12 ± 1,\n";
+
+    #[test]
+    fn a_candidate_file_is_read_with_the_catalog_grammar() {
+        let c = read_candidates(GOOD).unwrap();
+        assert_eq!(c.len(), 3);
+        let north = &c[0];
+        assert_eq!(north.name, "Candidate North");
+        let s = north.sigma.unwrap();
+        // 200 ± 10 km/s: log10 200 and the mean of log10(210/200) and log10(200/190), the
+        // grammar's conversion (docs/methods.md §2.5 option 1): 0.0217328 dex (computed).
+        assert!((s.log_value - 200_f64.log10()).abs() < 1e-12);
+        assert!((s.err_dex - 0.021_732_8).abs() < 1e-6, "{s:?}");
+        assert!((north.distance_mpc - 18.0).abs() < 1e-12);
+        assert!((north.distance_err_mpc - 1.5).abs() < 1e-12);
+        let east = &c[1];
+        assert!(east.sigma.is_none());
+        assert!((east.bulge_mass.unwrap().log_value - 10.9).abs() < 1e-12);
+        assert_eq!(east.bulge_mass_method, BulgeMassMethod::Photometric);
+        assert_eq!(east.distance_err_mpc, 0.0);
+        let west = &c[2];
+        assert_eq!(west.bulge_mass_method, BulgeMassMethod::Dynamical);
+        assert!((west.bulge_mass.unwrap().log_value - 5e10_f64.log10()).abs() < 1e-12);
+        assert_eq!(west.band.as_deref(), Some("K"));
+        assert!((west.luminosity.unwrap().err_dex - 0.08).abs() < 1e-12);
+        assert!((west.distance_err_mpc - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn every_faulty_row_is_named_with_what_to_type() {
+        let text = "name,sigma_km_s,log_bulge_mass,bulge_mass,log_luminosity,band,distance_mpc\n\
+            ,200,,,,,18\n\
+            Bad Sigma,fast,,,,,18\n\
+            No Distance,200,,,,,\n\
+            No Band,200,,,10.5,,18\n\
+            Twice,200,10.9,8e10,,,18\n\
+            Fine,200,,,,,18\n\
+            Nothing,,,,,,18\n";
+        let faults = read_candidates(text).unwrap_err();
+        let at =
+            |line: u64| -> Vec<&RowError> { faults.iter().filter(|f| f.line == line).collect() };
+        assert_eq!(at(2)[0].column, "name");
+        assert_eq!(at(3)[0].column, "sigma_km_s");
+        assert_eq!(at(3)[0].name, "Bad Sigma");
+        assert_eq!(at(4)[0].column, "distance_mpc");
+        assert!(at(4)[0].message.contains("Mpc"), "{:?}", at(4));
+        assert_eq!(at(5)[0].column, "band");
+        assert_eq!(at(6)[0].column, "bulge_mass");
+        assert!(at(7).is_empty());
+        assert_eq!(at(8)[0].column, "sigma_km_s");
+        for f in &faults {
+            assert!(f.message.ends_with('.'), "{f}");
+            assert!(
+                f.to_string().starts_with(&format!("Line {}", f.line)),
+                "{f}"
+            );
+        }
+        // The header: an unknown column is named with the columns there are.
+        let faults = read_candidates("name,sigma,distance_mpc\nA,200,18\n").unwrap_err();
+        assert_eq!(faults.len(), 1);
+        assert_eq!((faults[0].line, faults[0].column.as_str()), (1, "sigma"));
+        assert!(faults[0].message.contains("sigma_km_s"));
+        assert!(read_candidates("name,sigma_km_s,distance_mpc\n").is_err());
+    }
+
+    #[test]
+    fn a_json_batch_reads_as_the_file_does() {
+        let json = r#"[{"name": "Candidate North", "sigma_km_s": 200, "sigma_err_km_s": "10", "distance_mpc": 18, "distance_err_mpc": 1.5},
+                       {"name": "Candidate South", "log_bulge_mass": 10.9, "distance_mpc": "25"}]"#;
+        let records: Vec<CandidateRecord> = serde_json::from_str(json).unwrap();
+        let from_json = read_candidate_records(&records).unwrap();
+        let from_file = read_candidates(GOOD).unwrap();
+        assert_eq!(from_json[0], from_file[0]);
+        assert!((from_json[1].bulge_mass.unwrap().log_value - 10.9).abs() < 1e-12);
+        let bad: Vec<CandidateRecord> =
+            serde_json::from_str(r#"[{"name": "A", "distance_mpc": 18}, {"name": "B", "sigma_km_s": -3, "distance_mpc": 18}]"#)
+                .unwrap();
+        let faults = read_candidate_records(&bad).unwrap_err();
+        assert_eq!(faults.iter().map(|f| f.line).collect::<Vec<_>>(), [1, 2]);
+        assert!(serde_json::from_str::<Vec<CandidateRecord>>(r#"[{"nmae": "A"}]"#).is_err());
+    }
+
+    #[test]
+    fn resolutions_and_thresholds_are_checked() {
+        assert!(Resolution::new("AO K band", 0.05).is_ok());
+        assert_eq!(Resolution::read("slit", "0.2″").unwrap().arcsec, 0.2);
+        for (label, arcsec) in [("", 0.1), ("x", 0.0), ("x", 100.5), ("x", f64::NAN)] {
+            assert!(Resolution::new(label, arcsec).is_err(), "{label} {arcsec}");
+        }
+        assert!(Resolution::new(&"a".repeat(41), 0.1).is_err());
+        assert!(Resolution::new(&"a".repeat(40), 100.0).is_ok());
+        assert!(check_threshold(1.0).is_ok() && check_threshold(0.0).is_err());
+        assert!(check_threshold(101.0).is_err());
+    }
+
+    #[test]
+    fn the_sphere_of_influence_constants_come_from_the_physics_module() {
+        // docs/methods.md §7 row 26: G = 4.30091727e-3 pc M☉⁻¹ (km/s)² (computed); 1 pc at
+        // 1 Mpc subtends 0.206265″ (648 000/π × 10⁻⁶, computed).
+        let s = soi_scale();
+        assert!((10f64.powf(s.log_g) / 4.300_91e-3 - 1.0).abs() < 3e-6);
+        assert!((10f64.powf(s.log_arcsec_per_pc_at_mpc) - 0.206_265).abs() < 1e-6);
+    }
+
+    #[test]
+    fn the_wilson_interval_and_the_bins() {
+        // Wilson 1927 score interval, k = 3 of n = 10 at z = 1: (0.178821, 0.457543) (computed
+        // from the formula in the doc comment).
+        let (lo, hi) = wilson_interval(3, 10, 1.0);
+        assert!((lo - 0.178_821).abs() < 1e-6 && (hi - 0.457_543).abs() < 1e-6);
+        // For large n it approaches p ± √(p(1 − p)/n).
+        let (lo, hi) = wilson_interval(30_000, 100_000, 1.0);
+        assert!(((hi - lo) / 2.0 - (0.21_f64 / 100_000.0).sqrt()).abs() < 1e-6);
+        let pairs = [
+            (0.05, false),
+            (0.1, false),
+            (0.3, true),
+            (0.5, true),
+            (0.55, false),
+            (0.9, true),
+            (1.0, true),
+        ];
+        let bins = bin_reliability(&pairs);
+        assert_eq!(bins.len(), RELIABILITY_BINS);
+        assert_eq!(bins.iter().map(|b| b.count).sum::<usize>(), pairs.len());
+        assert_eq!(
+            bins.iter().map(|b| b.count).collect::<Vec<_>>(),
+            [2, 1, 2, 0, 2]
+        );
+        assert_eq!(bins[0].verdict, Some(WITHIN_ERROR));
+        assert_eq!(bins[3].verdict, None);
+        // One resolved of one at mean 0.3: the interval (0.5, 1) misses 0.3.
+        assert_eq!(bins[1].verdict, Some(OUTSIDE_ERROR));
+    }
+
+    fn fit_of(relation: Relation, terms: RelationTerms) -> PlanFit {
+        PlanFit {
+            relation,
+            fit_id: Some("fit-test".to_owned()),
+            catalog_version: Some(1),
+            n: 50,
+            terms: Some(terms),
+            problem: None,
+        }
+    }
+
+    fn candidate(name: &str, sigma: Option<f64>, bulge: Option<f64>) -> Candidate {
+        Candidate {
+            name: name.to_owned(),
+            sigma: sigma.map(|s| LogValue {
+                log_value: s.log10(),
+                err_dex: 0.02,
+            }),
+            bulge_mass: bulge.map(|b| LogValue {
+                log_value: b,
+                err_dex: 0.1,
+            }),
+            bulge_mass_method: BulgeMassMethod::Photometric,
+            luminosity: None,
+            band: None,
+            distance_mpc: 18.0,
+            distance_err_mpc: 1.8,
+        }
+    }
+
+    #[test]
+    fn each_candidate_gets_the_tightest_relation_its_values_allow_and_rows_are_ranked() {
+        // Invented relations: M–σ with ε = 0.3 and M_BH–M_bulge with ε = 0.5, so a candidate
+        // with both is predicted from M–σ; a tighter M_bulge relation wins the same candidate.
+        let m_sigma = RelationTerms::published((8.3, 0.05), (5.0, 0.3), 200_f64.log10(), 0.0, 0.3);
+        let loose = RelationTerms::published((8.5, 0.05), (1.1, 0.1), 11.0, 0.0, 0.5);
+        let tight = RelationTerms {
+            scatter_dex: 0.1,
+            ..loose
+        };
+        let res = [
+            Resolution::new("AO", 0.05).unwrap(),
+            Resolution::new("seeing", 0.5).unwrap(),
+        ];
+        let fits = [
+            fit_of(Relation::MSigma, m_sigma),
+            fit_of(Relation::MBulge, loose),
+        ];
+        let both = candidate("Both", Some(220.0), Some(11.2));
+        let row = plan_row(&both, &fits, &res, 1.0);
+        assert_eq!(row.relation, Some(Relation::MSigma));
+        assert_eq!(row.considered.len(), 2);
+        let least = row
+            .considered
+            .iter()
+            .map(|c| c.sd_dex)
+            .fold(f64::INFINITY, f64::min);
+        assert_eq!(row.prediction.unwrap().log_theta_arcsec.sd_dex, least);
+        let (p_ao, p_seeing) = (row.p_resolved[0].unwrap(), row.p_resolved[1].unwrap());
+        assert!(p_ao > p_seeing, "{p_ao} {p_seeing}");
+        let fits_tight = [
+            fit_of(Relation::MSigma, m_sigma),
+            fit_of(Relation::MBulge, tight),
+        ];
+        let row = plan_row(&both, &fits_tight, &res, 1.0);
+        assert_eq!(row.relation, Some(Relation::MBulge));
+        // Without σ: a mass, no sphere of influence, and the sentence saying why.
+        let row = plan_row(&candidate("No sigma", None, Some(11.0)), &fits, &res, 1.0);
+        assert_eq!(row.relation, Some(Relation::MBulge));
+        assert!(row.mass.is_some() && row.prediction.is_none());
+        assert_eq!(row.p_resolved, [None, None]);
+        assert_eq!(row.note.as_deref(), Some(SIGMA_NEEDED));
+        // Ranking: highest P at the first resolution first, ties by name, rows without P last.
+        let rows = rank(vec![
+            plan_row(&candidate("No sigma", None, Some(11.0)), &fits, &res, 1.0),
+            plan_row(&candidate("Small", Some(100.0), None), &fits, &res, 1.0),
+            plan_row(&candidate("Twin b", Some(250.0), None), &fits, &res, 1.0),
+            plan_row(&candidate("Twin a", Some(250.0), None), &fits, &res, 1.0),
+        ]);
+        let names: Vec<&str> = rows.iter().map(|r| r.candidate.name.as_str()).collect();
+        assert_eq!(names, ["Twin a", "Twin b", "Small", "No sigma"]);
+        assert_eq!(
+            rows.iter().map(|r| r.rank).collect::<Vec<_>>(),
+            [1, 2, 3, 4]
+        );
+    }
+}

@@ -22,6 +22,7 @@ mod history;
 mod idempotency;
 mod pages;
 mod planning;
+mod planning_core;
 mod relations;
 mod runs;
 mod security;
