@@ -263,7 +263,9 @@ pub async fn planning_reliability(
             let name = key.chars().take(40).collect::<String>();
             return Err(AppError::invalid(vec![FieldError::new(
                 name.as_str(),
-                format!("'{name}' is not a query parameter of this endpoint (it accepts threshold)."),
+                format!(
+                    "'{name}' is not a query parameter of this endpoint (it accepts threshold)."
+                ),
             )]));
         }
         threshold = value.trim().parse::<f64>().map_err(|_| {
@@ -398,21 +400,20 @@ pub async fn save_resolution(
         };
         AppError::bad_request(e.clone()).with_fields(vec![FieldError::new(field, e)])
     })?;
-    let status = match resolutions::save(&state.pool, account_id, &checked.label, checked.arcsec)
-        .await?
-    {
-        Saved::Added(_) => StatusCode::CREATED,
-        Saved::Replaced(_) => StatusCode::OK,
-        Saved::Full => {
-            return Err(AppError::conflict(
-                format!(
-                    "You keep {} resolutions, the most an account may; delete one first.",
-                    resolutions::MAX_PER_ACCOUNT
-                ),
-                Vec::new(),
-            ));
-        }
-    };
+    let status =
+        match resolutions::save(&state.pool, account_id, &checked.label, checked.arcsec).await? {
+            Saved::Added(_) => StatusCode::CREATED,
+            Saved::Replaced(_) => StatusCode::OK,
+            Saved::Full => {
+                return Err(AppError::conflict(
+                    format!(
+                        "You keep {} resolutions, the most an account may; delete one first.",
+                        resolutions::MAX_PER_ACCOUNT
+                    ),
+                    Vec::new(),
+                ));
+            }
+        };
     Ok((status, Json(listed(&state, account_id).await?)).into_response())
 }
 

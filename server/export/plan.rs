@@ -289,7 +289,10 @@ mod tests {
         let data: Vec<&str> = text.lines().filter(|l| !l.starts_with('#')).collect();
         assert_eq!(data.len(), 3, "{text}");
         assert!(data[0].ends_with("p_resolved_1,p_resolved_2,note"));
-        assert!(data[1].starts_with("1,'=cmd,m_sigma,-1,0.3,-1.3,-0.7"), "{text}");
+        assert!(
+            data[1].starts_with("1,'=cmd,m_sigma,-1,0.3,-1.3,-0.7"),
+            "{text}"
+        );
         assert!(data[1].contains(",0.5,0.01,"), "{text}");
         assert!(data[2].starts_with("2,Without sigma,,,"), "{text}");
         assert!(text.contains("# p_resolved_1 = P(theta_infl / 0.1 arcsec >= 1) for '=AO"));

@@ -164,7 +164,12 @@ fn routes() -> Routes {
         .add(Method::GET, "/fits/{id}", Read, get(fits::show_fit))
         .add(Method::GET, "/place", Read, get(place::show_place))
         .add(Method::GET, "/planning", Read, get(planning::show_planning))
-        .add(Method::POST, "/planning", Read, post(planning::run_planning))
+        .add(
+            Method::POST,
+            "/planning",
+            Read,
+            post(planning::run_planning),
+        )
         .add(
             Method::POST,
             "/planning/download",

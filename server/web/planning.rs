@@ -599,11 +599,13 @@ pub(crate) async fn save_resolutions(
             .page(&state, Some(form.rows(&checked.row_errors)))
             .await?;
         page.candidates_text = form.candidates;
-        page.form_error = Some(if checked.resolutions.is_empty() && checked.row_errors.is_empty() {
-            "There is no resolution to save: fill a label and its arcsec.".to_owned()
-        } else {
-            "Correct the resolutions marked below; nothing was saved.".to_owned()
-        });
+        page.form_error = Some(
+            if checked.resolutions.is_empty() && checked.row_errors.is_empty() {
+                "There is no resolution to save: fill a label and its arcsec.".to_owned()
+            } else {
+                "Correct the resolutions marked below; nothing was saved.".to_owned()
+            },
+        );
         return Ok(visitor.respond(StatusCode::BAD_REQUEST, page));
     }
     let mut saved = 0;
@@ -697,7 +699,11 @@ fn log_interval(interval: (f64, f64)) -> String {
 impl RowView {
     fn of(r: &crate::relations::planning::PlanRow) -> Self {
         let dash = || "—".to_owned();
-        let mass = r.prediction.as_ref().map(|p| &p.log_mbh).or(r.mass.as_ref());
+        let mass = r
+            .prediction
+            .as_ref()
+            .map(|p| &p.log_mbh)
+            .or(r.mass.as_ref());
         let p = r.prediction.as_ref();
         Self {
             rank: r.rank,
@@ -708,9 +714,7 @@ impl RowView {
             }),
             log_mbh_68: mass.map_or_else(dash, |m| log_interval(m.interval68)),
             log_mbh_95: mass.map_or_else(dash, |m| log_interval(m.interval95)),
-            r_infl: p.map_or_else(dash, |p| {
-                significant(10f64.powf(p.log_r_infl_pc.median), 3)
-            }),
+            r_infl: p.map_or_else(dash, |p| significant(10f64.powf(p.log_r_infl_pc.median), 3)),
             r_infl_68: p.map_or_else(dash, |p| linear_interval(p.log_r_infl_pc.interval68)),
             theta: p.map_or_else(dash, |p| {
                 significant(10f64.powf(p.log_theta_arcsec.median), 3)
@@ -722,7 +726,10 @@ impl RowView {
                 .iter()
                 .map(|p| p.map_or_else(dash, probability))
                 .collect(),
-            note: r.note.clone().filter(|_| r.p_resolved.iter().all(Option::is_none)),
+            note: r
+                .note
+                .clone()
+                .filter(|_| r.p_resolved.iter().all(Option::is_none)),
         }
     }
 }

@@ -131,7 +131,10 @@ async fn the_page_the_api_and_the_command_rank_the_example_file_alike() {
         .filter_map(|r| r["p_resolved"][0].as_f64())
         .collect();
     assert!(first.windows(2).all(|w| w[0] >= w[1]), "{first:?}");
-    assert!(first.len() < rows.len(), "the file has a candidate without σ");
+    assert!(
+        first.len() < rows.len(),
+        "the file has a candidate without σ"
+    );
     for (i, r) in rows.iter().enumerate() {
         assert_eq!(r["rank"].as_u64(), Some(i as u64 + 1));
     }
@@ -173,7 +176,9 @@ async fn the_page_the_api_and_the_command_rank_the_example_file_alike() {
             .contains("plan.json")
     );
     same_rows(&api, &json_download.json(), "the JSON download");
-    let csv_download = b.post("/planning/download?format=csv", &form_fields()).await;
+    let csv_download = b
+        .post("/planning/download?format=csv", &form_fields())
+        .await;
     assert_eq!(csv_download.status, 200, "{}", csv_download.body);
     assert!(csv_download.header("content-type").starts_with("text/csv"));
     let mut reader = csv::ReaderBuilder::new()
@@ -349,7 +354,10 @@ async fn saved_resolutions_are_added_listed_prefilled_and_deleted_by_their_owner
         .await;
     assert_eq!(bad.status, 400);
     assert!(bad.body.contains("id=\"e-res-1\""), "{}", bad.body);
-    assert_eq!(resolutions::list(&app.pool, owner_id).await.unwrap().len(), 1);
+    assert_eq!(
+        resolutions::list(&app.pool, owner_id).await.unwrap().len(),
+        1
+    );
 
     // The owner's form is prefilled; the other member sees none of it.
     let page = owner.get("/planning").await;
@@ -378,7 +386,10 @@ async fn saved_resolutions_are_added_listed_prefilled_and_deleted_by_their_owner
         .await
         .unwrap();
     assert_eq!(stolen.status().as_u16(), 404);
-    assert_eq!(resolutions::list(&app.pool, owner_id).await.unwrap().len(), 1);
+    assert_eq!(
+        resolutions::list(&app.pool, owner_id).await.unwrap().len(),
+        1
+    );
 
     // The API saves (once per label) and lists for the token's owner.
     for expected in [201, 200] {
@@ -435,7 +446,9 @@ async fn the_example_file_is_served_and_the_reliability_counts_add_up() {
     let (status, body) = app.get("/planning/candidates.csv").await;
     assert_eq!(status, 200);
     assert_eq!(body, EXAMPLE);
-    let r = app.get_with_token("/api/v1/planning/reliability", None).await;
+    let r = app
+        .get_with_token("/api/v1/planning/reliability", None)
+        .await;
     assert_eq!(r.status, 200, "{}", r.body);
     let v = r.json();
     if v["problem"].is_null() {

@@ -15,6 +15,7 @@ mod chart_reading;
 mod csv_upload;
 mod phone;
 mod place_link;
+mod planning;
 mod relation_form;
 mod review_accept;
 mod review_keyboard;
