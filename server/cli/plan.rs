@@ -183,7 +183,7 @@ fn write_table(out: &mut dyn Write, planned: &Plan, table: &PlanTable) -> anyhow
         for p in &row.p_resolved {
             line.push_str(&format!(
                 "  {:>8}",
-                p.map_or_else(|| "-".to_owned(), |p| format!("{:.3}", p))
+                p.map_or_else(|| "-".to_owned(), |p| format!("{p:.3}"))
             ));
         }
         if let Some(note) = &r.note {

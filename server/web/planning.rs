@@ -534,12 +534,12 @@ pub(crate) async fn download_plan(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
     Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
     nav: Nav,
     query: Result<Query<DownloadQuery>, QueryRejection>,
     request: axum::extract::Request,
 ) -> AppResult<Response> {
+    let headers = request.headers().clone();
+    let extensions = request.extensions().clone();
     let format = match query.ok().and_then(|q| q.0.format).as_deref() {
         Some("csv") | None => "csv",
         Some("json") => "json",
