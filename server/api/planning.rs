@@ -21,7 +21,7 @@ use crate::catalog::resolutions::{self, Saved};
 use crate::error::{AppError, FieldError};
 use crate::export::plan::PlanTable;
 use crate::relations::planning::{
-    CandidateRecord, MAX_CANDIDATES, Reliability, Resolution, RowError, check_threshold, plan,
+    CandidateRecord, MAX_CANDIDATES, MAX_RESOLUTIONS, Reliability, Resolution, RowError, check_threshold, plan,
     read_candidate_records, read_candidates, reliability,
 };
 use crate::state::AppState;
@@ -36,10 +36,10 @@ pub const RESOLUTION_LIMIT_BYTES: usize = 4 * 1024;
 #[serde(deny_unknown_fields)]
 pub struct ResolutionRequest {
     /// 1–40 characters, e.g. "AO K band".
-    #[schema(example = "AO K band")]
+    #[schema(example = "AO K band", min_length = 1, max_length = 40)]
     pub label: String,
     /// θ_res, arcsec (0 < θ_res ≤ 100).
-    #[schema(example = 0.1)]
+    #[schema(example = 0.1, exclusive_minimum = 0.0, maximum = 100.0)]
     pub arcsec: f64,
 }
 
@@ -58,9 +58,11 @@ pub struct PlanRequest {
     /// A candidate file's text: CSV with a header row. Give this or `candidates`.
     pub csv: Option<String>,
     /// 1 to 8 resolutions; P at the first ranks the candidates.
+    #[schema(min_items = 1, max_items = 8)]
     pub resolutions: Vec<ResolutionRequest>,
     /// θ_infl/θ_res at or above which a sphere counts as resolved (0 < t ≤ 100; default the
     /// server's, 1 unless set otherwise).
+    #[schema(exclusive_minimum = 0.0, maximum = 100.0)]
     pub threshold: Option<f64>,
 }
 
@@ -89,12 +91,12 @@ fn row_fields(rows: &[RowError], csv: bool) -> Vec<FieldError> {
     request_body = PlanRequest,
     responses(
         (status = 200, description = "The candidates ranked by P(resolved) at the first resolution", body = PlanTable),
-        (status = 400, description = "Unreadable JSON, faulty candidate rows (every one listed in `errors`, e.g. `candidates[2].distance_mpc` or `csv.line4.sigma_km_s`), a faulty resolution or threshold, or neither/both of `candidates` and `csv`; nothing is planned", body = Problem, content_type = "application/problem+json"),
+        (status = 400, description = "Unreadable JSON", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
         (status = 413, description = "A body over 2 MB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
-        (status = 422, description = "JSON of the wrong shape (the field is named)", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "JSON of the wrong shape, faulty candidate rows (every one listed in `errors`, e.g. `candidates[2].distance_mpc` or `csv.line4.sigma_km_s`), a faulty resolution or threshold, or neither or both of `candidates` and `csv`; nothing is planned", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
         (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
     ),
@@ -137,15 +139,15 @@ pub async fn plan_candidates(
         .map_or(Ok(state.settings.soi_threshold), check_threshold)
         .map_err(|e| fields.push(FieldError::new("threshold", e)))
         .ok();
+    if request.resolutions.is_empty() || request.resolutions.len() > MAX_RESOLUTIONS {
+        fields.push(FieldError::new(
+            "resolutions",
+            format!("Give 1 to {MAX_RESOLUTIONS} resolutions to plan for."),
+        ));
+    }
     let (Some(candidates), Some(threshold), true) = (candidates, threshold, fields.is_empty())
     else {
-        let n = fields.len();
-        return Err(AppError::bad_request(format!(
-            "{n} {} must be corrected; nothing was planned.",
-            if n == 1 { "field" } else { "fields" }
-        ))
-        .titled("Faulty candidates or settings")
-        .with_fields(fields));
+        return Err(AppError::invalid(fields).titled("Faulty candidates or settings"));
     };
     let planned = plan(&state.catalog(), &candidates, &resolutions, threshold).await?;
     Ok(Json(PlanTable::of(&planned)))
@@ -157,6 +159,7 @@ pub async fn plan_candidates(
 pub struct ReliabilityQuery {
     /// θ_infl/θ_res at or above which a sphere counts as resolved (0 < t ≤ 100; default the
     /// server's, 1 unless set otherwise).
+    #[param(exclusive_minimum = 0.0, maximum = 100.0)]
     pub threshold: Option<f64>,
 }
 
@@ -245,10 +248,9 @@ impl ReliabilityAnswer {
     params(ReliabilityQuery),
     responses(
         (status = 200, description = "The reliability table", body = ReliabilityAnswer),
-        (status = 400, description = "A threshold out of range", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the read scope", body = Problem, content_type = "application/problem+json"),
-        (status = 422, description = "An unknown or unreadable query parameter (named)", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "An unknown or unreadable query parameter, or a threshold out of range (named)", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
     ),
     security((), ("bearer" = []))
@@ -268,12 +270,12 @@ pub async fn planning_reliability(
                 ),
             )]));
         }
-        threshold = value.trim().parse::<f64>().map_err(|_| {
-            AppError::invalid(vec![FieldError::new(
-                "threshold",
-                "Type the threshold as a number above 0 and at most 100, such as 1.",
-            )])
-        })?;
+        threshold = value
+            .trim()
+            .parse::<f64>()
+            .map_err(|_| check_threshold(f64::NAN).unwrap_err())
+            .and_then(check_threshold)
+            .map_err(|e| AppError::invalid(vec![FieldError::new("threshold", e)]))?;
     }
     let table = reliability(&state.catalog(), threshold).await?;
     Ok(Json(ReliabilityAnswer::of(table)))
@@ -347,13 +349,13 @@ pub async fn my_resolutions(
     responses(
         (status = 201, description = "Saved as a new resolution; the answer is the whole list", body = Vec<SavedResolutionAnswer>),
         (status = 200, description = "The label was saved before and now has this value; the answer is the whole list", body = Vec<SavedResolutionAnswer>),
-        (status = 400, description = "Unreadable JSON, or a label or arcsec out of range (named)", body = Problem, content_type = "application/problem+json"),
+        (status = 400, description = "Unreadable JSON", body = Problem, content_type = "application/problem+json"),
         (status = 401, description = "No valid token or session", body = Problem, content_type = "application/problem+json"),
         (status = 403, description = "The token lacks the submit scope", body = Problem, content_type = "application/problem+json"),
         (status = 409, description = "The account keeps the most resolutions allowed (50); delete one first", body = Problem, content_type = "application/problem+json"),
         (status = 413, description = "A body over 4 KB", body = Problem, content_type = "application/problem+json"),
         (status = 415, description = "The body is not sent as application/json", body = Problem, content_type = "application/problem+json"),
-        (status = 422, description = "JSON of the wrong shape (the field is named)", body = Problem, content_type = "application/problem+json"),
+        (status = 422, description = "JSON of the wrong shape, or a label or arcsec out of range (the field is named)", body = Problem, content_type = "application/problem+json"),
         (status = 429, description = "Too many requests from this account (or, without one, this address)", body = Problem, content_type = "application/problem+json"),
         (status = 503, description = "The database is busy; retry after the given seconds", body = Problem, content_type = "application/problem+json"),
     ),
@@ -398,7 +400,7 @@ pub async fn save_resolution(
         } else {
             "arcsec"
         };
-        AppError::bad_request(e.clone()).with_fields(vec![FieldError::new(field, e)])
+        AppError::invalid(vec![FieldError::new(field, e)])
     })?;
     let status =
         match resolutions::save(&state.pool, account_id, &checked.label, checked.arcsec).await? {

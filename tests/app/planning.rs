@@ -280,7 +280,7 @@ async fn every_faulty_candidate_row_is_named_by_the_page_and_the_api() {
         headers: r.headers().clone(),
         body: r.text().await.unwrap(),
     };
-    let fields = problem_fields(&reply.problem(400));
+    let fields = problem_fields(&reply.problem(422));
     assert!(
         fields.iter().any(|f| f.starts_with("csv.line3.")),
         "{fields:?}"
@@ -305,7 +305,7 @@ async fn every_faulty_candidate_row_is_named_by_the_page_and_the_api() {
         .send()
         .await
         .unwrap();
-    assert_eq!(r.status().as_u16(), 400);
+    assert_eq!(r.status().as_u16(), 422);
     let problem: Value = r.json().await.unwrap();
     let fields = problem_fields(&problem);
     assert!(
@@ -486,5 +486,5 @@ async fn the_example_file_is_served_and_the_reliability_counts_add_up() {
     let bad = app
         .get_with_token("/api/v1/planning/reliability?threshold=0", None)
         .await;
-    bad.problem(400);
+    assert_eq!(problem_fields(&bad.problem(422)), ["threshold"]);
 }
