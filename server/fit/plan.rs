@@ -57,8 +57,10 @@ pub struct RelationTerms {
 }
 
 impl RelationTerms {
-    /// The terms of a fitted straight line: α, β, ε from its parameters, the (α, β) block of
-    /// its covariance, its pivot.
+    /// The terms of a fitted straight line: α, β, the (α, β) block of its covariance, its
+    /// pivot, and the quoted ε ([`Fit::quoted_eps`]: the restricted-likelihood ε where it was
+    /// computed; the maximum-likelihood ε is biased low at small N and would make P(resolved)
+    /// overconfident, docs/methods.md §2.8), as `fit::predict` predicts with them.
     ///
     /// # Errors
     /// [`FitError::Unsupported`] for a quadratic or planar fit, or one without an (α, β)
@@ -83,7 +85,7 @@ impl RelationTerms {
             var_alpha: get("alpha", "alpha")?.max(0.0),
             var_beta: get("beta", "beta")?.max(0.0),
             cov_ab: get("alpha", "beta")?,
-            scatter_dex: fit.params.eps.max(0.0),
+            scatter_dex: fit.quoted_eps().max(0.0),
         })
     }
 
