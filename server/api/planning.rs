@@ -21,8 +21,8 @@ use crate::catalog::resolutions::{self, Saved};
 use crate::error::{AppError, FieldError};
 use crate::export::plan::PlanTable;
 use crate::relations::planning::{
-    CandidateRecord, MAX_CANDIDATES, MAX_RESOLUTIONS, Reliability, Resolution, RowError, check_threshold, plan,
-    read_candidate_records, read_candidates, reliability,
+    CandidateRecord, MAX_CANDIDATES, MAX_RESOLUTIONS, Reliability, Resolution, RowError,
+    check_threshold, plan, read_candidate_records, read_candidates, reliability,
 };
 use crate::state::AppState;
 
