@@ -1140,10 +1140,12 @@ pub fn wilson_interval(k: usize, n: usize, z: f64) -> (f64, f64) {
 /// Bins (predicted P, measured verdict) pairs into [`RELIABILITY_BINS`] bins.
 #[must_use]
 pub fn bin_reliability(pairs: &[(f64, bool)]) -> Vec<ReliabilityBin> {
-    let width = 1.0 / RELIABILITY_BINS as f64;
+    let bins = RELIABILITY_BINS as f64;
+    let width = 1.0 / bins;
     (0..RELIABILITY_BINS)
         .map(|i| {
-            let (lo, hi) = (i as f64 * width, (i + 1) as f64 * width);
+            // i/5 rather than i · 0.2, so the edges read 0.6, not 0.6000000000000001.
+            let (lo, hi) = (i as f64 / bins, (i + 1) as f64 / bins);
             let last = i + 1 == RELIABILITY_BINS;
             let inside: Vec<&(f64, bool)> = pairs
                 .iter()
@@ -1202,7 +1204,7 @@ fn reliability_name(threshold: f64) -> String {
 /// (docs/methods.md §6.1), so the check costs O(N) at any catalog size; the left-out fit keeps
 /// the full fit's covariance. What is predicted is the measured ratio, so its variance adds
 /// the mass's own measurement error (`fit::plan::predict_measured_log_theta`). Made once per
-/// fit and threshold (`FitCache::made_from`).
+/// fit at the catalog's own threshold (`FitCache::made_from`), per request at any other.
 ///
 /// # Errors
 /// [`AppError`] 400 for a threshold out of range; when the catalog cannot be read or a task
@@ -1257,10 +1259,16 @@ pub async fn reliability(catalog: &Catalog, threshold: f64) -> AppResult<Reliabi
     let rows = catalog.rows().await.map_err(anyhow::Error::from)?;
     let fit_id = citation::cite(catalog, &outcome).await;
     let fits = catalog.fits.clone();
+    // The catalog's own threshold is what most visitors ask for: kept per fit. Any other is
+    // computed per request (O(N), no fit), so thresholds people type cannot fill the cache.
+    let keep = threshold.to_bits() == catalog.soi_threshold.to_bits();
     let made = tokio::task::spawn_blocking(move || {
-        fits.made_from(&outcome.key, &reliability_name(threshold), || {
-            reliability_of(&outcome, &influence, &rows.rows, threshold)
-        })
+        let make = || reliability_of(&outcome, &influence, &rows.rows, threshold);
+        if keep {
+            fits.made_from(&outcome.key, &reliability_name(threshold), make)
+        } else {
+            Arc::new(make())
+        }
     })
     .await
     .map_err(anyhow::Error::from)?;
@@ -1504,6 +1512,7 @@ mod tests {
         ];
         let bins = bin_reliability(&pairs);
         assert_eq!(bins.len(), RELIABILITY_BINS);
+        assert_eq!((bins[3].lo, bins[3].hi), (0.6, 0.8));
         assert_eq!(bins.iter().map(|b| b.count).sum::<usize>(), pairs.len());
         assert_eq!(
             bins.iter().map(|b| b.count).collect::<Vec<_>>(),
