@@ -51,7 +51,12 @@ fn comparable(threshold: f64) -> Vec<bool> {
 async fn the_reliability_table_of_the_demo_catalog_has_rows_and_its_counts_add_up() {
     let app = spawn_demo_app().await;
     let catalog = app.state.catalog();
-    let table = planning::reliability(&catalog, 1.0).await.unwrap();
+    // Waited for in full first (as the command line does), so a slow machine cannot make the
+    // page's one-second wait answer "computing"; then the page's call answers the same table.
+    let table = planning::reliability_within(&catalog, 1.0, None)
+        .await
+        .unwrap();
+    assert_eq!(planning::reliability(&catalog, 1.0).await.unwrap(), table);
     assert!(table.problem.is_none(), "{table:?}");
     assert_eq!(table.bins.len(), planning::RELIABILITY_BINS);
     let expected = comparable(1.0);
@@ -99,7 +104,9 @@ async fn the_reliability_table_of_the_demo_catalog_has_rows_and_its_counts_add_u
         assert!(bin.verdict.is_some());
     }
     // A stricter threshold cannot resolve more of the same galaxies.
-    let strict = planning::reliability(&catalog, 3.0).await.unwrap();
+    let strict = planning::reliability_within(&catalog, 3.0, None)
+        .await
+        .unwrap();
     let resolved = |t: &planning::Reliability| t.bins.iter().map(|b| b.resolved).sum::<usize>();
     assert!(resolved(&strict) <= resolved(&table));
     assert_eq!(
@@ -122,9 +129,13 @@ async fn a_candidate_list_is_ranked_against_the_demo_relations() {
         Resolution::new("adaptive optics", 0.05).unwrap(),
         Resolution::new("seeing limited", 0.6).unwrap(),
     ];
-    let plan = planning::plan(&catalog, &candidates, &resolutions, 1.0)
+    let plan = planning::plan_within(&catalog, &candidates, &resolutions, 1.0, None)
         .await
         .unwrap();
+    let page = planning::plan(&catalog, &candidates, &resolutions, 1.0)
+        .await
+        .unwrap();
+    assert_eq!(page, plan);
     assert!(plan.computing.is_none());
     assert_eq!(plan.rows.len(), candidates.len());
     assert_eq!(
@@ -158,7 +169,7 @@ async fn a_candidate_list_is_ranked_against_the_demo_relations() {
             .map(|c| c.sd_dex)
             .fold(f64::INFINITY, f64::min);
         let chosen = row.considered.iter().find(|c| &c.relation == used).unwrap();
-        assert_eq!(chosen.sd_dex, least);
+        assert!(chosen.sd_dex <= least, "{row:?}");
     }
     // Bad arguments are refused with a sentence.
     assert!(
