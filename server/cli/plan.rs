@@ -6,7 +6,6 @@
 
 use std::io::Write;
 use std::path::PathBuf;
-use std::time::{Duration, Instant};
 
 use anyhow::Context as _;
 use clap::Args;
@@ -14,11 +13,8 @@ use clap::Args;
 use crate::catalog;
 use crate::config::{DEFAULT_DB_PATH, DEFAULT_SOI_THRESHOLD};
 use crate::export::plan::{PlanTable, plan_csv};
-use crate::relations::planning::{Plan, Resolution, plan, read_candidates};
+use crate::relations::planning::{Plan, Resolution, plan_within, read_candidates};
 use crate::relations::{Catalog, FitCache};
-
-/// How long the command waits for the default fits of a catalog it has not fitted yet.
-const FIT_PATIENCE: Duration = Duration::from_secs(300);
 
 /// Output format of `massline plan`.
 #[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
@@ -64,7 +60,7 @@ fn read_resolution(text: &str) -> anyhow::Result<Resolution> {
 ///
 /// # Errors
 /// When the file cannot be read or has faulty rows (every one listed), a resolution or the
-/// threshold is refused, the database cannot be opened, or the fits are not ready in time.
+/// threshold is refused, or the database cannot be opened.
 pub fn run(args: &PlanArgs, out: &mut dyn Write) -> anyhow::Result<()> {
     let text = std::fs::read_to_string(&args.input)
         .with_context(|| format!("Could not read the candidate file {}", args.input.display()))?;
@@ -95,23 +91,10 @@ pub fn run(args: &PlanArgs, out: &mut dyn Write) -> anyhow::Result<()> {
             soi_threshold: args.threshold,
             pinned: None,
         };
-        // The fits are computed on tasks of their own; a plan made before they are ready
-        // says so (`computing`), and the next call waits for the same tasks.
-        let started = Instant::now();
-        loop {
-            let p = plan(&catalog, &candidates, &resolutions, args.threshold)
-                .await
-                .map_err(|e| anyhow::anyhow!("{e}"))?;
-            if p.computing.is_none() {
-                return anyhow::Ok(p);
-            }
-            if started.elapsed() > FIT_PATIENCE {
-                anyhow::bail!(
-                    "The default fits were not ready within {} s; try again.",
-                    FIT_PATIENCE.as_secs()
-                );
-            }
-        }
+        // A command waits for the default fits as long as they take.
+        plan_within(&catalog, &candidates, &resolutions, args.threshold, None)
+            .await
+            .map_err(|e| anyhow::anyhow!("{e}"))
     })?;
     let table = PlanTable::of(&planned);
     match args.format {
