@@ -429,6 +429,10 @@ pub struct GalaxyAnswer {
     /// The Eddington quantities of the adopted black-hole mass, when the galaxy has a
     /// λL(5100 Å) from a broad-line measurement (docs/methods.md §4.4, §4.5).
     pub eddington: Option<super::place::EddingtonAnswer>,
+    /// M_BH/M_bulge of the adopted masses at the adopted distance (as the fits read them)
+    /// against the usual 0.1–0.5 % (common practice) and the default M_BH–M_bulge fit made
+    /// without this galaxy, as on the galaxy page; null without both masses.
+    pub bulge_ratio: Option<super::place::BulgeRatioAnswer>,
     /// The adopted value of each quantity (and band).
     pub adopted: Vec<AdoptedValue>,
     /// The sphere-of-influence check of the adopted mass, when it can be made.
@@ -517,6 +521,7 @@ pub async fn show_galaxy(
             answer
         })
         .collect();
+    let bulge_ratio = galaxy_bulge_ratio(&state, pinned.as_ref().map(|(c, _)| c), &record).await?;
     let g = record.galaxy;
     let answer = Json(GalaxyAnswer {
         catalog_version,
@@ -533,6 +538,7 @@ pub async fn show_galaxy(
             .eddington
             .as_ref()
             .map(super::place::EddingtonAnswer::from),
+        bulge_ratio,
         adopted,
         sphere_of_influence: soi,
         measurements,
@@ -542,6 +548,38 @@ pub async fn show_galaxy(
         Some((_, p)) => super::immutable_if_past(p, answer),
         None => answer,
     })
+}
+
+/// The galaxy's M_BH/M_bulge as its page shows it (`relations::bulge_ratio::of_galaxy`), placed
+/// against the M_BH–M_bulge fit without it alone; at a named version the fit is waited for, so
+/// an answer that never changes never says "computing".
+async fn galaxy_bulge_ratio(
+    state: &AppState,
+    pinned: Option<&crate::relations::Catalog>,
+    record: &crate::relations::galaxy::GalaxyRecord,
+) -> ApiResult<Option<super::place::BulgeRatioAnswer>> {
+    use crate::relations::Relation;
+    use crate::units::Quantity;
+    let has = |q: Quantity| record.adopted().any(|m| m.measurement.quantity == q);
+    if !(has(Quantity::BlackHoleMass) && has(Quantity::BulgeMass)) {
+        return Ok(None);
+    }
+    let (catalog, wait) = match pinned {
+        Some(c) => (c.clone(), None),
+        None => (state.catalog(), Some(crate::relations::REQUEST_WAIT)),
+    };
+    let left_out = crate::relations::galaxy::place_left_out_among(
+        &catalog,
+        record.galaxy.galaxy_id,
+        wait,
+        |r| *r == Relation::MBulge,
+    )
+    .await?;
+    let ratio = crate::relations::bulge_ratio::of_galaxy(&left_out);
+    if let Some(r) = &ratio {
+        crate::relations::bulge_ratio::record_fit(&catalog, r).await;
+    }
+    Ok(ratio.as_ref().map(super::place::BulgeRatioAnswer::from))
 }
 
 impl MeasurementAnswer {

@@ -151,4 +151,24 @@ mod tests {
             "bearer"
         );
     }
+
+    #[test]
+    fn the_galaxy_and_place_answers_document_the_mass_ratio() {
+        let doc: serde_json::Value = serde_json::from_str(document_json()).unwrap();
+        let schemas = &doc["components"]["schemas"];
+        for answer in ["GalaxyAnswer", "PlaceAnswer"] {
+            let field = &schemas[answer]["properties"]["bulge_ratio"];
+            assert!(field.is_object(), "{answer} has no bulge_ratio: {field}");
+        }
+        let ratio = &schemas["BulgeRatioAnswer"];
+        for key in ["percent", "range_verdict", "relation", "sentence"] {
+            assert!(ratio["properties"][key].is_object(), "{key}: {ratio}");
+        }
+        let text = ratio.to_string();
+        assert!(text.contains("common practice"), "{text}");
+        assert!(
+            schemas["RelationRatioAnswer"]["properties"]["fit_id"].is_object(),
+            "{schemas}"
+        );
+    }
 }

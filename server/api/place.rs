@@ -31,6 +31,7 @@ use super::{ApiJson, ApiResult, query_pairs};
 use crate::astro::SphereOfInfluence;
 use crate::error::{AppError, FieldError};
 use crate::fit::{FitError, Method};
+use crate::relations::bulge_ratio::{self, RatioMasses, RelationBasis};
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, placement_numbers, read_object,
 };
@@ -121,6 +122,116 @@ impl From<&crate::relations::agn::Eddington> for EddingtonAnswer {
     }
 }
 
+/// What the M_BH–M_bulge relation predicts for M_BH/M_bulge at the object's bulge mass
+/// (`relations::bulge_ratio`).
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct RelationRatioAnswer {
+    /// The relation's slug (`m_mbulge`).
+    pub relation: String,
+    /// The identifier of the default fit (`/api/v1/…` and `/fits/{id}`); for a catalog galaxy
+    /// the fit was refitted without it (`without_this_galaxy`).
+    pub fit_id: String,
+    /// Catalog version of the fit.
+    pub catalog_version: i64,
+    /// Whether the fit left the galaxy out (the galaxy answer) or not (the place check).
+    pub without_this_galaxy: bool,
+    /// Predicted log10(M_BH/M_bulge): ŷ(log M_bulge) − log M_bulge.
+    pub log_ratio: f64,
+    /// Predicted ratio as a fraction.
+    pub fraction: f64,
+    /// Predicted ratio in per cent.
+    pub percent: f64,
+    /// Lower end of the 68 % predictive interval, per cent.
+    pub interval68_low_percent: f64,
+    /// Upper end of the 68 % predictive interval, per cent.
+    pub interval68_high_percent: f64,
+    /// The placement's z (the residual of log M_BH at this bulge mass is that of the ratio).
+    pub z: Option<f64>,
+    /// The placement's verdict: `consistent`, `in tension`, `outlier`, or for a limit `in
+    /// tension (limit below)`, `outlier (limit far below)`.
+    pub verdict: Option<String>,
+}
+
+/// M_BH/M_bulge against the rule of thumb of 0.1–0.5 % (common practice) and against the
+/// M_BH–M_bulge relation (`relations::bulge_ratio`; docs/methods.md §3.4). Both masses are at the
+/// adopted distance for a catalog galaxy (as the fits read them), as typed for the place check.
+#[derive(Debug, Clone, Serialize, ToSchema)]
+pub struct BulgeRatioAnswer {
+    /// The black-hole mass used, log10 M☉ (for a limit, the limit).
+    pub log_mbh: f64,
+    /// The bulge mass used, log10 M☉.
+    pub log_mbulge: f64,
+    /// log10(M_BH/M_bulge) (for a limit, the limit).
+    pub log_ratio: f64,
+    /// Its lower 1σ error, dex: both masses' errors in quadrature less twice the covariance of
+    /// a shared distance (0 for a limit).
+    pub log_ratio_err_minus_dex: f64,
+    /// Its upper 1σ error, dex.
+    pub log_ratio_err_plus_dex: f64,
+    /// The ratio as a fraction.
+    pub fraction: f64,
+    /// The ratio in per cent.
+    pub percent: f64,
+    /// Lower end of the 1σ range, per cent.
+    pub percent_low: f64,
+    /// Upper end of the 1σ range, per cent.
+    pub percent_high: f64,
+    /// Whether the ratio is an upper limit (the black-hole mass is one).
+    pub upper_limit: bool,
+    /// Lower end of the usual range, per cent (0.1; common practice).
+    pub usual_range_low_percent: f64,
+    /// Upper end of the usual range, per cent (0.5; common practice).
+    pub usual_range_high_percent: f64,
+    /// Against the usual range: `within the usual range`, `above the usual range`, `below the
+    /// usual range`; for a limit also `within or below the usual range` or `no test: the limit
+    /// lies above the usual range`.
+    pub range_verdict: String,
+    /// Whether the ratio lies outside the usual range.
+    pub outside_usual_range: bool,
+    /// The relation's prediction, when the object could be placed against it.
+    pub relation: Option<RelationRatioAnswer>,
+    /// Why there is no prediction, when there is none.
+    pub relation_note: Option<String>,
+    /// The comparison in one sentence, as the pages say it.
+    pub sentence: String,
+}
+
+impl From<&crate::relations::bulge_ratio::BulgeRatio> for BulgeRatioAnswer {
+    fn from(r: &crate::relations::bulge_ratio::BulgeRatio) -> Self {
+        Self {
+            log_mbh: r.masses.log_mbh,
+            log_mbulge: r.masses.log_mbulge,
+            log_ratio: r.log_ratio,
+            log_ratio_err_minus_dex: r.log_ratio_err_dex.0,
+            log_ratio_err_plus_dex: r.log_ratio_err_dex.1,
+            fraction: r.fraction,
+            percent: r.percent,
+            percent_low: r.percent_1sigma.0,
+            percent_high: r.percent_1sigma.1,
+            upper_limit: r.upper_limit,
+            usual_range_low_percent: r.usual_range_percent.0,
+            usual_range_high_percent: r.usual_range_percent.1,
+            range_verdict: r.range_verdict.to_owned(),
+            outside_usual_range: r.outside_usual_range,
+            relation: r.relation.as_ref().map(|rel| RelationRatioAnswer {
+                relation: rel.relation.clone(),
+                fit_id: rel.fit_id.clone(),
+                catalog_version: rel.catalog_version,
+                without_this_galaxy: rel.without_this_galaxy,
+                log_ratio: rel.log_ratio,
+                fraction: rel.fraction,
+                percent: rel.percent,
+                interval68_low_percent: rel.interval68_percent.0,
+                interval68_high_percent: rel.interval68_percent.1,
+                z: rel.z,
+                verdict: rel.verdict.map(str::to_owned),
+            }),
+            relation_note: r.relation_note.clone(),
+            sentence: r.sentence.clone(),
+        }
+    }
+}
+
 /// Where the object falls against one relation.
 #[derive(Debug, Clone, Serialize, ToSchema)]
 pub struct RelationPlacement {
@@ -205,6 +316,9 @@ pub struct PlaceAnswer {
     pub eddington: Option<EddingtonAnswer>,
     /// Why there are none although `log_l5100_erg_s` was given.
     pub eddington_note: Option<String>,
+    /// M_BH/M_bulge against the usual range and the M_BH–M_bulge relation, when `mass` and
+    /// `bulge_mass` were given; null otherwise.
+    pub bulge_ratio: Option<BulgeRatioAnswer>,
 }
 
 /// The answer for one object.
@@ -294,6 +408,8 @@ fn place_object(
     soi_threshold: f64,
 ) -> PlaceAnswer {
     let mut relations = Vec::new();
+    // The placement on M_BH–M_bulge and its fit's key, for the ratio of the masses.
+    let mut on_mbulge = None;
     for (relation, outcome) in fits {
         let (Some(subject), Some(outcome)) = (values.bare_subject(relation), outcome) else {
             continue;
@@ -302,6 +418,9 @@ fn place_object(
             Ok(fit) => placement_numbers(fit, &subject).map_err(|e| e.to_string()),
             Err(e) => Err(format!("No fit of this relation: {e}")),
         };
+        if *relation == Relation::MBulge {
+            on_mbulge = Some((placed.clone(), &outcome.key));
+        }
         let numbers = placed.as_ref().ok();
         let prediction = numbers.map(|n| &n.prediction);
         relations.push(RelationPlacement {
@@ -340,12 +459,21 @@ fn place_object(
         Some(Ok(e)) => (Some(EddingtonAnswer::from(&e)), None),
         Some(Err(why)) => (None, Some(why)),
     };
+    let bulge_ratio = RatioMasses::of_object(values).map(|masses| {
+        let basis = match &on_mbulge {
+            Some((Ok(numbers), key)) => Ok(RelationBasis { numbers, key }),
+            Some((Err(why), _)) => Err(why.clone()),
+            None => Err("the object could not be placed against it.".to_owned()),
+        };
+        BulgeRatioAnswer::from(&bulge_ratio::bulge_ratio(&masses, basis))
+    });
     PlaceAnswer {
         relations,
         sphere_of_influence: soi,
         note,
         eddington,
         eddington_note,
+        bulge_ratio,
     }
 }
 
@@ -493,16 +621,48 @@ pub async fn place_one(
         .filter_map(|(_, o)| o.as_ref().map(|o| o.key.catalog_version))
         .min()
         .unwrap_or(version);
+    let object = place_object(&values, &fits, state.settings.soi_threshold);
+    record_ratio_fit(
+        &state,
+        catalog,
+        mbulge_fit(&fits).as_ref(),
+        std::slice::from_ref(&object),
+    )
+    .await;
     let answer = Json(PlaceResult {
         catalog_version: version,
         estimator: Method::Structural.as_str().to_owned(),
-        object: place_object(&values, &fits, state.settings.soi_threshold),
+        object,
     })
     .into_response();
     Ok(match &pinned {
         Some((_, p)) => super::immutable_if_past(p, answer),
         None => answer,
     })
+}
+
+/// The M_BH–M_bulge fit among `fits`, if placing needed it.
+fn mbulge_fit(fits: &[(Relation, Option<Arc<FitOutcome>>)]) -> Option<Arc<FitOutcome>> {
+    fits.iter()
+        .find(|(r, _)| *r == Relation::MBulge)
+        .and_then(|(_, o)| o.clone())
+}
+
+/// Records the M_BH–M_bulge fit a ratio of the answer names (`relations::citation::cite`), so
+/// its identifier can be looked up.
+async fn record_ratio_fit(
+    state: &AppState,
+    pinned: Option<&crate::relations::Catalog>,
+    outcome: Option<&Arc<FitOutcome>>,
+    objects: &[PlaceAnswer],
+) {
+    let named = objects
+        .iter()
+        .any(|o| o.bulge_ratio.as_ref().is_some_and(|r| r.relation.is_some()));
+    if let (true, Some(outcome)) = (named, outcome) {
+        let catalog = pinned.cloned().unwrap_or_else(|| state.catalog());
+        crate::relations::citation::cite(&catalog, outcome).await;
+    }
 }
 
 /// The catalog version placed against and its relations: a named version's (`pinned`), or the
@@ -594,6 +754,7 @@ pub async fn place_batch(
         .min()
         .unwrap_or(version);
     let threshold = state.settings.soi_threshold;
+    let on_mbulge = mbulge_fit(&fits);
     let place_all = move || {
         inputs
             .iter()
@@ -607,6 +768,7 @@ pub async fn place_batch(
     } else {
         place_all()
     };
+    record_ratio_fit(&state, catalog, on_mbulge.as_ref(), &objects).await;
     let answer = Json(PlaceBatchResult {
         catalog_version: version,
         estimator: Method::Structural.as_str().to_owned(),

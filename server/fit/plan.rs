@@ -846,6 +846,24 @@ mod tests {
     }
 
     #[test]
+    fn the_measured_ratio_counts_sigma_with_beta_and_the_mass_error() {
+        // The measured θ uses the observed σ in both the mass and σ²: σ's error enters with β,
+        // not β − 2, and the mass's own error adds (the function's formula, computed by hand).
+        let t = RelationTerms::published((8.3, 0.0), (4.5, 0.0), 200_f64.log10(), 0.0, 0.35);
+        let distance = LogDistance::from_mpc(16.0, 1.6);
+        let measured = predict_measured_log_theta(&t, 2.25, 0.02, 0.1, distance, scale()).unwrap();
+        let want = 0.35_f64.powi(2) + (4.5_f64 * 0.02).powi(2) + distance.err_dex.powi(2) + 0.01;
+        assert!((measured.sd_dex - want.sqrt()).abs() < 1e-12);
+        let host = HostInput::Sigma {
+            log_sigma: 2.25,
+            err_dex: 0.02,
+        };
+        let predicted = predict_theta(&t, host, distance, scale()).unwrap();
+        assert!((measured.median - predicted.log_theta_arcsec.median).abs() < 1e-12);
+        assert!(measured.sd_dex > predicted.log_theta_arcsec.sd_dex);
+    }
+
+    #[test]
     fn a_mass_without_sigma_carries_the_distance_through_the_property() {
         // x ∝ D² with σ_logD = 0.05 and β = 1.1: V adds (2 · 1.1)² 0.05² + 2² Var(β) 0.05²
         // (the module's formula, computed by hand here).

@@ -158,6 +158,9 @@ pub struct LeftOutPlacements {
     /// Relations whose default sample does not hold the galaxy's mass (a reverberation or
     /// single-epoch mass: docs/methods.md §4.7): it is placed against their default fit.
     pub outside_default: Vec<String>,
+    /// The black-hole and bulge masses as the M_BH–M_bulge fit reads them (at the adopted
+    /// distance), when the galaxy has both (`relations::bulge_ratio`).
+    pub bulge_masses: Option<super::bulge_ratio::RatioMasses>,
 }
 
 /// Largest sample whose fit without one galaxy is refitted exactly on a galaxy page. Above it
@@ -180,6 +183,20 @@ pub async fn place_left_out(
     galaxy_id: i64,
     wait: Option<Duration>,
 ) -> AppResult<LeftOutPlacements> {
+    place_left_out_among(catalog, galaxy_id, wait, |_| true).await
+}
+
+/// [`place_left_out`] against the relations `among` admits only (the API's galaxy answer
+/// places against M_BH–M_bulge alone, for the ratio of the masses).
+///
+/// # Errors
+/// As [`place_left_out`].
+pub async fn place_left_out_among(
+    catalog: &Catalog,
+    galaxy_id: i64,
+    wait: Option<Duration>,
+    among: impl Fn(&Relation) -> bool,
+) -> AppResult<LeftOutPlacements> {
     let snapshot = catalog.rows().await?;
     let (rows, lums) = (&snapshot.rows, &snapshot.luminosities);
     let method = Method::Structural;
@@ -187,6 +204,7 @@ pub async fn place_left_out(
     let mut placements = Vec::new();
     let (mut computing, mut approximate, mut outside_default) =
         (Vec::new(), Vec::new(), Vec::new());
+    let mut bulge_masses = None;
     // The galaxy with every kind of mass admitted: a virial mass, which no default sample
     // holds, is placed against the default fit it is not part of.
     let own_row = rows.iter().find(|r| r.galaxy_id == galaxy_id);
@@ -195,6 +213,9 @@ pub async fn place_left_out(
         ..filter
     };
     for relation in catalog.relations().await? {
+        if !among(&relation) {
+            continue;
+        }
         let pivots = (relation.default_pivot(), relation.default_pivot2());
         let full_key = FitKey::new(
             snapshot.version,
@@ -231,6 +252,9 @@ pub async fn place_left_out(
                 )
             });
             if let Some(own) = own.filter(|s| s.points.len() == 1) {
+                if relation == Relation::MBulge {
+                    bulge_masses = super::bulge_ratio::RatioMasses::of_sample(&own, 0);
+                }
                 let choice = (&relation, method, &filter, pivots);
                 match catalog.fitted_within(choice, wait).await? {
                     Ok(full) => {
@@ -246,6 +270,9 @@ pub async fn place_left_out(
             }
             continue;
         };
+        if relation == Relation::MBulge {
+            bulge_masses = super::bulge_ratio::RatioMasses::of_sample(&sample, index);
+        }
         let outcome = if sample.points.len() <= LEFT_OUT_REFIT_MAX {
             match fitted_leaving_out(
                 &catalog.fits,
@@ -333,6 +360,7 @@ pub async fn place_left_out(
         computing,
         approximate,
         outside_default,
+        bulge_masses,
     })
 }
 

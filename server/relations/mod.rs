@@ -23,6 +23,7 @@
 pub mod agn;
 pub mod analysis;
 pub mod assess;
+pub mod bulge_ratio;
 mod cache;
 pub mod changes;
 pub mod citation;

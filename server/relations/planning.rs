@@ -812,20 +812,18 @@ async fn default_fit(
         &SampleFilter::default(),
         pivots,
     );
-    Ok(
-        match catalog.fitted_within(choice, Some(REQUEST_WAIT)).await? {
-            Ok(outcome) => (Some(outcome), None),
-            Err(key) => (catalog.fits.latest(&key), Some(key.catalog_version)),
-        },
-    )
+    Ok(match catalog.fitted_within(choice, wait).await? {
+        Ok(outcome) => (Some(outcome), None),
+        Err(key) => (catalog.fits.latest(&key), Some(key.catalog_version)),
+    })
 }
 
 /// The plan of `candidates` at `resolutions` against the catalog's default relations (see the
 /// module documentation for the choice and the ranking).
 ///
 /// # Errors
-/// [`AppError`] 400 for no resolution, too many, or a threshold out of range; when the catalog
-/// cannot be read or a fit task fails.
+/// [`AppError`] 400 for no resolution, too many, two with one label, or a threshold out of
+/// range; when the catalog cannot be read or a fit task fails.
 pub async fn plan(
     catalog: &Catalog,
     candidates: &[Candidate],
@@ -858,6 +856,18 @@ pub async fn plan_within(
     if resolutions.is_empty() || resolutions.len() > MAX_RESOLUTIONS {
         return Err(AppError::bad_request(format!(
             "Give 1 to {MAX_RESOLUTIONS} resolutions to plan for."
+        )));
+    }
+    // The labels name the plan's columns, so each must be its own.
+    if let Some((i, r)) = resolutions
+        .iter()
+        .enumerate()
+        .find(|(i, r)| resolutions[..*i].iter().any(|o| o.label == r.label))
+    {
+        return Err(AppError::bad_request(format!(
+            "Resolution {} has the label “{}” of an earlier one; give each resolution its own label.",
+            i + 1,
+            r.label
         )));
     }
     let catalog_version = catalog.rows().await.map_err(anyhow::Error::from)?.version;

@@ -439,6 +439,8 @@ pub(crate) struct GalaxyShowPage {
     activity: &'static str,
     /// The Eddington quantities, when the galaxy has a mass and a λL(5100 Å).
     eddington: Option<super::place::EddingtonView>,
+    /// M_BH/M_bulge, when the galaxy has both masses.
+    bulge_ratio: Option<super::place::BulgeRatioView>,
     /// The activity form, for reviewers and admins.
     activity_form: Option<ActivityForm>,
     measurements: Vec<MeasurementView>,
@@ -824,6 +826,10 @@ async fn galaxy_page(
         _ => None,
     };
     let left_out = place_left_out(&catalog, galaxy.galaxy_id, Some(super::PAGE_WAIT)).await?;
+    let bulge_ratio = crate::relations::bulge_ratio::of_galaxy(&left_out);
+    if let Some(r) = &bulge_ratio {
+        crate::relations::bulge_ratio::record_fit(&catalog, r).await;
+    }
     let made_at = crate::catalog::history::made_at(&state.pool, pinned.version).await?;
     let version_note = VersionNote::of(
         &pinned,
@@ -877,6 +883,9 @@ async fn galaxy_page(
             .eddington
             .as_ref()
             .map(|e| super::place::EddingtonView::of(e, agn.eddington_basis.clone())),
+        bulge_ratio: bulge_ratio.map(|r| {
+            super::place::BulgeRatioView::of(&r, "at the adopted distance, as the fits read them")
+        }),
         activity_form,
         measurements: record
             .measurements

@@ -19,6 +19,7 @@ use super::relations::{Grouping, chart_y, relation_chart, relation_chart_frame, 
 use crate::charts::{ChartPoint, DENSITY_THRESHOLD, RelationChart, relation_svg, relation_svg_of};
 use crate::error::{AppError, AppResult, FieldError};
 use crate::fit::Point;
+use crate::relations::bulge_ratio::{self, RatioMasses};
 use crate::relations::place::{
     OBJECT_FIELDS, ObjectTexts, ObjectValues, Placement, place_everywhere, read_object,
 };
@@ -87,6 +88,90 @@ pub(crate) struct EddingtonView {
     pub(crate) accretion: (String, String, String),
     /// Which mass and luminosity were used, in words (empty when the page says it).
     pub(crate) basis: String,
+}
+
+/// M_BH/M_bulge as every page shows it (`templates/partials/bulge_ratio.html`, from
+/// `relations::bulge_ratio`): the ratio, the usual range and the relation's prediction, each
+/// verdict with its colour, mark and words.
+pub(crate) struct BulgeRatioView {
+    /// "0.20 ± 0.05" or "< 0.020" (per cent).
+    pub(crate) percent: String,
+    /// The fraction at full precision, for scripts (`data-value`).
+    pub(crate) fraction_raw: String,
+    /// log10 of the ratio with its errors, dex.
+    pub(crate) log_ratio: String,
+    /// Which masses were used, in words.
+    pub(crate) basis: String,
+    /// "0.1–0.5 %".
+    pub(crate) range: String,
+    /// The verdict against the usual range.
+    pub(crate) range_badge: Badge,
+    /// The relation's prediction and its 68 % interval, when there is one (apart, so that a
+    /// narrow screen can break the line between them).
+    pub(crate) predicted: Option<(String, String)>,
+    /// The verdict against the relation, when there is one.
+    pub(crate) relation_badge: Option<Badge>,
+    /// The fit's identifier and whether it was refitted without the galaxy.
+    pub(crate) fit_id: Option<(String, bool)>,
+    /// The comparison in one sentence.
+    pub(crate) sentence: String,
+}
+
+/// The badge of a verdict against the usual range: inside (or a limit that does not test it)
+/// in the consistent style, outside in the tension style; never the outlier style, since the
+/// range is a rule of thumb.
+pub(crate) fn range_badge(r: &crate::relations::bulge_ratio::BulgeRatio) -> Badge {
+    let (class, mark) = if r.outside_usual_range {
+        ("v-tension", "▲")
+    } else {
+        ("v-consistent", "✓")
+    };
+    Badge {
+        class,
+        mark,
+        text: r.range_verdict,
+    }
+}
+
+impl BulgeRatioView {
+    /// The block for `r`; `at` says where the masses stand ("at the adopted distance" or "as
+    /// typed").
+    pub(crate) fn of(r: &crate::relations::bulge_ratio::BulgeRatio, at: &str) -> Self {
+        let m = &r.masses;
+        let log = |v: f64, e: (f64, f64), limit: bool| {
+            with_errors(Uncertain::asymmetric(v, e.0, e.1, limit), 2)
+        };
+        BulgeRatioView {
+            percent: r.percent_text(),
+            fraction_raw: format!("{:e}", r.fraction),
+            log_ratio: log(r.log_ratio, r.log_ratio_err_dex, r.upper_limit),
+            basis: format!(
+                "log M_BH = {} and log M_bulge = {} [M☉], {at}",
+                log(m.log_mbh, m.mbh_err_dex, m.upper_limit),
+                log(m.log_mbulge, m.mbulge_err_dex, false)
+            ),
+            range: format!(
+                "{}–{} %",
+                significant(r.usual_range_percent.0, 1),
+                significant(r.usual_range_percent.1, 1)
+            ),
+            range_badge: range_badge(r),
+            predicted: r
+                .relation
+                .as_ref()
+                .map(|rel| (rel.percent_text(), rel.interval_text())),
+            relation_badge: r
+                .relation
+                .as_ref()
+                .and_then(|rel| rel.verdict)
+                .map(verdict_badge),
+            fit_id: r
+                .relation
+                .as_ref()
+                .map(|rel| (rel.fit_id.clone(), rel.without_this_galaxy)),
+            sentence: r.sentence.clone(),
+        }
+    }
 }
 
 /// `value` as "1.257 × 10⁴⁶" (four significant digits).
@@ -172,6 +257,8 @@ pub(crate) struct PlacePage {
     eddington: Option<EddingtonView>,
     /// Why there are none although λL(5100 Å) was given.
     eddington_note: Option<String>,
+    /// M_BH/M_bulge, when a mass and a bulge mass were given.
+    bulge_ratio: Option<BulgeRatioView>,
     /// The catalog version named in the address, if any.
     version_note: Option<super::display::VersionNote>,
 }
@@ -215,16 +302,32 @@ pub(crate) async fn show_place(
         super::display::VersionNote::of(&pinned, &ask, made_at.as_deref(), "/place".to_owned());
     let (values, faults) = read_object(&texts, &bands);
     let asked = !texts.is_empty();
+    let masses = RatioMasses::of_object(&values);
     let placed = if asked {
         let relations = Relation::all(&bands);
         let fits = state.fits.clone();
         place_everywhere(&catalog, relations, &values, "this object", move |p| {
-            (row(&p), chart(&fits, &p))
+            // M_BH/M_bulge against the placement of the same masses on M_BH–M_bulge.
+            let ratio = masses
+                .filter(|_| p.relation == Relation::MBulge)
+                .map(|m| bulge_ratio::of_placement(&m, Some(&p)));
+            (row(&p), chart(&fits, &p), ratio)
         })
         .await?
     } else {
         Vec::new()
     };
+    let mut ratio = None;
+    let (mut rows, mut charts) = (Vec::new(), Vec::new());
+    for (r, c, b) in placed {
+        rows.push(r);
+        charts.extend(c);
+        ratio = ratio.or(b);
+    }
+    let ratio = ratio.or_else(|| masses.map(|m| bulge_ratio::of_placement(&m, None)));
+    if let Some(r) = &ratio {
+        bulge_ratio::record_fit(&catalog, r).await;
+    }
     let (soi, soi_note) = soi_view(&values, state.settings.soi_threshold);
     let (eddington, eddington_note) = match values.eddington() {
         None => (None, None),
@@ -241,8 +344,6 @@ pub(crate) async fn show_place(
         .into_iter()
         .map(|(v, l)| (v, l, values.activity.map(|a| a.as_str()) == Some(v)))
         .collect();
-    let (rows, charts): (Vec<PlaceRow>, Vec<Option<PlaceChart>>) = placed.into_iter().unzip();
-    let charts = charts.into_iter().flatten().collect();
     let fault = |name: &str| {
         faults
             .iter()
@@ -271,6 +372,7 @@ pub(crate) async fn show_place(
         activity_options,
         eddington,
         eddington_note,
+        bulge_ratio: ratio.map(|r| BulgeRatioView::of(&r, "as typed")),
     })
 }
 

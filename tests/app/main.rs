@@ -12,6 +12,7 @@ mod agn_relations;
 mod analysis;
 mod api;
 mod api_fuzz;
+mod bulge_ratio;
 mod catalog_search;
 mod changes;
 mod demo_agn;

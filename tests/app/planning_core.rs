@@ -182,4 +182,9 @@ async fn a_candidate_list_is_ranked_against_the_demo_relations() {
             .await
             .is_err()
     );
+    let twice = [resolutions[0].clone(), resolutions[0].clone()];
+    let refused = planning::plan(&catalog, &candidates, &twice, 1.0)
+        .await
+        .unwrap_err();
+    assert!(refused.to_string().contains("its own label"), "{refused}");
 }
