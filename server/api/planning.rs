@@ -139,6 +139,18 @@ pub async fn plan_candidates(
         .map_or(Ok(state.settings.soi_threshold), check_threshold)
         .map_err(|e| fields.push(FieldError::new("threshold", e)))
         .ok();
+    for (i, r) in request.resolutions.iter().enumerate() {
+        let label = r.label.trim();
+        if request.resolutions[..i]
+            .iter()
+            .any(|other| other.label.trim() == label)
+        {
+            fields.push(FieldError::new(
+                format!("resolutions[{i}]"),
+                "Another resolution has this label; give each its own (the labels name the plan's columns).",
+            ));
+        }
+    }
     if request.resolutions.is_empty() || request.resolutions.len() > MAX_RESOLUTIONS {
         fields.push(FieldError::new(
             "resolutions",
