@@ -77,6 +77,7 @@ const ALLOWED: &[(&str, &[&str])] = &[
             "auth",
             "auth::secret",
             "relations",
+            "export",
             "state",
             "router",
         ],

@@ -6,7 +6,8 @@
 //! One file per area: [`relations`] (the relations and their fits, with ETags), [`place`] (one
 //! object or a batch), [`galaxies`], [`fit`] (a caller's own sample), [`kinematics`] (a black-hole mass from a disk's velocities), [`catalog`] (the accepted
 //! catalog as CSV or JSON), [`changes`] (what changed between two versions), [`releases`],
-//! [`virial`] (the virial factor's calibration and adoptions),
+//! [`virial`] (the virial factor's calibration and adoptions), [`planning`] (ranking
+//! candidates for observing, the reliability check, the caller's saved resolutions),
 //! [`submissions`], [`me`], [`openapi`] (the OpenAPI 3.1 document,
 //! generated from the handlers' `#[utoipa::path]` attributes and the answers' `ToSchema`
 //! derives, so it cannot drift from the code) and [`cache`] (what the API keeps per catalog
@@ -21,6 +22,7 @@ pub mod kinematics;
 pub mod me;
 pub mod openapi;
 pub mod place;
+pub mod planning;
 pub mod problem;
 pub mod relations;
 pub mod releases;
@@ -132,6 +134,39 @@ fn routes() -> Routes {
     use Access::{Api, Public, Read};
     Routes::new()
         .add(Method::GET, "/api/v1/me", Api, get(me::me))
+        .add(
+            Method::GET,
+            "/api/v1/me/resolutions",
+            Api,
+            get(planning::my_resolutions),
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/me/resolutions",
+            Api,
+            post(planning::save_resolution),
+            planning::RESOLUTION_LIMIT_BYTES,
+        )
+        .add_json(
+            Method::DELETE,
+            "/api/v1/me/resolutions/{id}",
+            Api,
+            axum::routing::delete(planning::delete_resolution),
+            planning::RESOLUTION_LIMIT_BYTES,
+        )
+        .add_json(
+            Method::POST,
+            "/api/v1/planning",
+            Read,
+            post(planning::plan_candidates),
+            planning::PLAN_LIMIT_BYTES,
+        )
+        .add(
+            Method::GET,
+            "/api/v1/planning/reliability",
+            Read,
+            get(planning::planning_reliability),
+        )
         .add(
             Method::GET,
             "/api/v1/openapi.json",

@@ -50,6 +50,11 @@ impl Modify for BearerScheme {
     ),
     paths(
         super::me::me,
+        super::planning::my_resolutions,
+        super::planning::save_resolution,
+        super::planning::delete_resolution,
+        super::planning::plan_candidates,
+        super::planning::planning_reliability,
         super::relations::list_relations,
         super::relations::relation_fit,
         super::runs::start_run,
@@ -98,6 +103,7 @@ impl Modify for BearerScheme {
     tags(
         (name = "relations", description = "The scaling relations and their current fits"),
         (name = "place", description = "Where objects fall against the relations"),
+        (name = "planning", description = "Ranking candidates by the probability that an instrument resolves their sphere of influence"),
         (name = "galaxies", description = "The catalog's galaxies and measurements"),
         (name = "fit", description = "Fitting a sample of your own"),
         (name = "catalog", description = "The accepted catalog as a file"),

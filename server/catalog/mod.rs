@@ -24,6 +24,7 @@ pub mod model;
 pub mod names;
 pub mod overview;
 pub mod relation_rows;
+pub mod resolutions;
 pub mod review_scores;
 pub mod submissions;
 pub mod virial;

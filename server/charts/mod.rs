@@ -32,6 +32,7 @@ mod draw;
 mod geometry;
 mod kinematics;
 mod markup;
+pub mod planning;
 mod style;
 #[cfg(test)]
 mod tests;

@@ -12,17 +12,19 @@
 //! massline release NAME [--version N] [--note TEXT]   name a catalog version as a release
 //! massline virial-factor [--width-definition W] [--adopt]  calibrate ⟨f⟩ (and adopt it)
 //! massline kinematics --input FILE.csv --distance D ...   a black-hole mass from a disk
+//! massline plan --input FILE.csv --resolution LABEL=ARCSEC [...]  rank candidates for observing
 //! ```
 //!
 //! The command line is one of the three doors (pages and the JSON API are the others): each
 //! subcommand reads its arguments and files, calls the layers below and writes the result.
 //! [`main`] parses the arguments and dispatches to [`serve`], [`fit`], [`user`],
-//! [`catalog_files`] (import and export), [`backup`], [`release`] and [`virial`].
+//! [`catalog_files`] (import and export), [`backup`], [`release`], [`virial`] and [`plan`].
 
 pub mod backup;
 pub mod catalog_files;
 pub mod fit;
 pub mod kinematics;
+pub mod plan;
 pub mod release;
 pub mod serve;
 pub mod user;
@@ -60,6 +62,8 @@ enum Command {
     VirialFactor(virial::VirialArgs),
     /// A black-hole mass from a velocity table of a rotating gas or maser disk.
     Kinematics(kinematics::KinematicsArgs),
+    /// Rank candidate galaxies by the probability that each resolution resolves their sphere of influence.
+    Plan(plan::PlanArgs),
 }
 
 /// Parses the command line, runs the subcommand and turns its outcome into the exit code: 0,
@@ -85,6 +89,7 @@ pub fn main() -> std::process::ExitCode {
         Command::Release(args) => release::run(&args, &mut std::io::stdout().lock()),
         Command::VirialFactor(args) => virial::run(&args, &mut std::io::stdout().lock()),
         Command::Kinematics(args) => kinematics::run(&args, &mut std::io::stdout().lock()),
+        Command::Plan(args) => plan::run(&args, &mut std::io::stdout().lock()),
     };
     match result {
         Ok(()) => std::process::ExitCode::SUCCESS,

@@ -9,6 +9,7 @@
 //! * [`latex`]: one row of a table of fitted relations, and the fitted sample as an AASTeX
 //!   `deluxetable`.
 //! * [`methods`]: a plain-text paragraph a methods section can start from.
+//! * [`plan`]: a ranked observing plan as the JSON table and the CSV every door writes.
 //!
 //! This module also holds what the pages share with these files: a sample filter in words
 //! ([`filter_words`]) and why an estimator gives a parameter without an interval
@@ -16,6 +17,7 @@
 
 pub mod latex;
 pub mod methods;
+pub mod plan;
 pub mod sample;
 pub mod votable;
 

@@ -136,6 +136,22 @@ const ENDPOINTS: &[Endpoint] = &[
         Example::Post(r#"[{"sigma": "210 ± 10", "mass": "<2e7"}, {"bulge_mass": "2e11 ± 10%"}]"#),
     ),
     Endpoint(
+        "POST",
+        "/api/v1/planning",
+        "token with scope read, or a session sending X-CSRF-Token",
+        "Rank candidates (a JSON batch in candidates, or a candidate file's text in csv) by the probability that each resolution resolves their sphere of influence: relation used, log M_BH, r_infl, θ_infl with intervals, p_resolved per resolution (README, Planning observations).",
+        Example::Post(
+            r#"{"candidates": [{"name": "Cand 1", "sigma_km_s": 240, "sigma_err_km_s": 12, "distance_mpc": 16.5, "distance_err_mpc": 1.2}], "resolutions": [{"label": "AO K band", "arcsec": 0.1}], "threshold": 1}"#,
+        ),
+    ),
+    Endpoint(
+        "GET",
+        "/api/v1/planning/reliability",
+        READ,
+        "How reliable those probabilities are: the catalog's own galaxies predicted from σ and distance without themselves, against their measured verdicts, in bins of predicted P.",
+        Example::Get("/api/v1/planning/reliability?threshold=1"),
+    ),
+    Endpoint(
         "GET",
         "/api/v1/galaxies",
         READ,

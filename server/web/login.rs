@@ -64,7 +64,7 @@ pub(crate) fn safe_next(next: Option<&str>) -> String {
 /// The anti-forgery value of the login form, and the login cookie's nonce when a new one must
 /// be set: the session's token when someone is logged in, otherwise the server's MAC of the
 /// login cookie's nonce (a new nonce when the cookie is missing or malformed).
-fn login_form_token(
+pub(super) fn login_form_token(
     principal: &Principal,
     headers: &HeaderMap,
     extensions: &axum::http::Extensions,

@@ -21,6 +21,7 @@ mod kinematics;
 mod login;
 mod overview;
 mod place;
+mod planning;
 mod relations;
 mod releases;
 mod review;
@@ -175,6 +176,43 @@ fn routes() -> Routes {
             Read,
             post(kinematics::fit_kinematics),
             kinematics::FORM_LIMIT_BYTES,
+        )
+        .add(Method::GET, "/planning", Read, get(planning::show_planning))
+        .add(
+            Method::POST,
+            "/planning",
+            Read,
+            post(planning::run_planning),
+        )
+        .add(
+            Method::POST,
+            "/planning/download",
+            Read,
+            post(planning::download_plan),
+        )
+        .add(
+            Method::GET,
+            "/planning/candidates.csv",
+            Read,
+            get(planning::example_file),
+        )
+        .add(
+            Method::POST,
+            "/planning/resolutions",
+            Session,
+            post(planning::save_resolutions),
+        )
+        .add(
+            Method::POST,
+            "/planning/resolutions/{id}/delete",
+            Session,
+            post(planning::delete_resolution),
+        )
+        .add(
+            Method::GET,
+            "/static/planning.js",
+            Public,
+            get(planning::script),
         )
         .add(Method::GET, "/healthz", Public, get(healthz))
         .add(Method::GET, "/livez", Public, get(livez))

@@ -111,6 +111,9 @@ async fn send(app: &TestApp, caller: &mut Caller, row: &Row, ctx: &mut Context) 
             if row.method == "GET" {
                 let r = b.get(&path).await;
                 (r.status, r.body)
+            } else if row.method == "DELETE" {
+                let r = b.delete(&path).await;
+                (r.status, r.body)
             } else {
                 if path == "/login" {
                     // Fetch the login form first, as a person would (sets the form's token).
@@ -124,6 +127,8 @@ async fn send(app: &TestApp, caller: &mut Caller, row: &Row, ctx: &mut Context) 
             let url = format!("{}{path}", app.address);
             let request = if row.method == "GET" {
                 app.client.get(url)
+            } else if row.method == "DELETE" {
+                app.client.delete(url)
             } else {
                 app.client.post(url).form(&fields)
             };

@@ -23,6 +23,7 @@ mod history;
 mod idempotency;
 mod kinematics;
 mod pages;
+mod planning;
 mod planning_core;
 mod relations;
 mod runs;

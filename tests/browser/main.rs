@@ -16,6 +16,7 @@ mod csv_upload;
 mod kinematics;
 mod phone;
 mod place_link;
+mod planning;
 mod relation_form;
 mod review_accept;
 mod review_keyboard;

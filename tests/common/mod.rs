@@ -402,6 +402,20 @@ impl Browser {
         self.try_post_raw(path, &all, &[]).await
     }
 
+    /// DELETE with this browser's cookies and its anti-forgery token in the `X-CSRF-Token`
+    /// header (as a page's script would send it to a JSON endpoint).
+    pub(crate) async fn delete(&mut self, path: &str) -> Reply {
+        let mut request = self
+            .client
+            .delete(format!("{}{path}", self.base))
+            .header("x-csrf-token", self.csrf.clone());
+        if !self.cookies.is_empty() {
+            request = request.header("cookie", self.cookie_header());
+        }
+        let response = request.send().await.expect("the request is answered");
+        self.finish(response).await
+    }
+
     /// POST a form with this browser's anti-forgery token added.
     pub(crate) async fn post(&mut self, path: &str, fields: &[(&str, &str)]) -> Reply {
         self.try_post(path, fields)
