@@ -219,6 +219,9 @@ pub struct ReliabilityAnswer {
     pub problem: Option<String>,
     /// A catalog version whose fit is still being computed.
     pub computing: Option<i64>,
+    /// How to read the table: whether the bins agree with their predictions and, when the
+    /// catalog's galaxies were resolved more often than predicted, why (docs/methods.md §4.9).
+    pub reading: Option<String>,
 }
 
 impl ReliabilityAnswer {
@@ -247,6 +250,7 @@ impl ReliabilityAnswer {
             one_step: r.one_step,
             problem: r.problem,
             computing: r.computing,
+            reading: r.reading,
         }
     }
 }

@@ -1152,6 +1152,55 @@ pub struct Reliability {
     pub problem: Option<String>,
     /// A catalog version whose fit or influence list is still being computed.
     pub computing: Option<i64>,
+    /// How to read the table, one paragraph (see [`reading_of`]); None without bins.
+    pub reading: Option<String>,
+}
+
+/// How to read a reliability table: whether its bins agree with their predictions, and if the
+/// catalog's galaxies were resolved more often than predicted, why that is expected.
+///
+/// A catalog is not a random draw of candidates: it holds the masses that were measured, and
+/// observers choose targets and instruments that resolve the sphere of influence (attempts that
+/// did not are seldom published), so its galaxies are resolved more often than σ and distance
+/// alone predict (docs/methods.md §4.9).
+#[must_use]
+pub fn reading_of(bins: &[ReliabilityBin]) -> Option<String> {
+    let filled: Vec<&ReliabilityBin> = bins.iter().filter(|b| b.count > 0).collect();
+    if filled.is_empty() {
+        return None;
+    }
+    let outside: Vec<&&ReliabilityBin> = filled
+        .iter()
+        .filter(|b| b.verdict == Some(OUTSIDE_ERROR))
+        .collect();
+    let above = outside
+        .iter()
+        .filter(|b| b.observed_fraction > b.mean_predicted)
+        .count();
+    let below = outside.len() - above;
+    let n = filled.len();
+    let also = |k: usize, way: &str| {
+        if k == 0 {
+            String::new()
+        } else {
+            format!(" (and in {k} {way})")
+        }
+    };
+    Some(if outside.is_empty() {
+        format!(
+            "Every one of the {n} filled bins agrees with its prediction within error: on this catalog the planner's probabilities can be taken at face value."
+        )
+    } else if above >= below {
+        format!(
+            "In {above} of {n} filled bins the catalog's galaxies were resolved more often than predicted{}. That is expected of a catalog: it holds the masses that were measured, and observers choose targets and instruments that resolve the sphere of influence (attempts that did not are seldom published), so measured galaxies are resolved more often than their σ and distance alone predict. Read P(resolved) as the chance before such a choice; a bin resolved less often than predicted would mean the planner is optimistic there.",
+            also(below, "less often")
+        )
+    } else {
+        format!(
+            "In {below} of {n} filled bins the catalog's galaxies were resolved less often than predicted{}: on this catalog the planner is optimistic, so read its probabilities as upper bounds and check the relation's scatter and the recorded resolutions.",
+            also(above, "more often")
+        )
+    })
 }
 
 /// The Wilson score interval of k successes in n at z standard deviations (z = 1: 68.27 %).
@@ -1272,6 +1321,7 @@ pub async fn reliability_within(
         one_step: 0,
         problem: Some(problem),
         computing,
+        reading: None,
     };
     let Some(outcome) = outcome.filter(|_| computing.is_none()) else {
         let v = computing.unwrap_or_default();
@@ -1340,6 +1390,7 @@ fn reliability_of(
         one_step: 0,
         problem: None,
         computing: None,
+        reading: None,
     };
     let Ok(fit) = &outcome.fit else {
         return table;
@@ -1417,6 +1468,7 @@ fn reliability_of(
     }
     table.compared = pairs.len();
     table.bins = bin_reliability(&pairs);
+    table.reading = reading_of(&table.bins);
     table
 }
 
@@ -1569,6 +1621,25 @@ mod tests {
         assert_eq!(bins[3].verdict, None);
         // One resolved of one at mean 0.3: the interval (0.5, 1) misses 0.3.
         assert_eq!(bins[1].verdict, Some(OUTSIDE_ERROR));
+    }
+
+    #[test]
+    fn the_reading_says_which_way_the_bins_disagree() {
+        // 40 galaxies at P = 0.5 and 0.9: calibrated when half and nine tenths are resolved,
+        // resolved more often when all are, less often when none are.
+        let draw = |resolved_at_half: usize, resolved_at_nine: usize| {
+            let mut pairs = Vec::new();
+            for k in 0..40 {
+                pairs.push((0.5, k < resolved_at_half));
+                pairs.push((0.9, k < resolved_at_nine));
+            }
+            reading_of(&bin_reliability(&pairs)).unwrap()
+        };
+        assert!(draw(20, 36).contains("face value"), "{}", draw(20, 36));
+        assert!(draw(40, 40).contains("more often than predicted"));
+        assert!(draw(5, 10).contains("less often than predicted"));
+        assert!(draw(40, 10).contains("(and in 1 less often)"));
+        assert_eq!(reading_of(&bin_reliability(&[])), None);
     }
 
     fn fit_of(relation: Relation, terms: RelationTerms) -> PlanFit {

@@ -91,6 +91,8 @@ pub(crate) struct BinView {
 /// The reliability table, formatted.
 pub(crate) struct ReliabilityView {
     summary: String,
+    /// How to read the table (`relations::planning::reading_of`).
+    reading: Option<String>,
     bins: Vec<BinView>,
 }
 
@@ -853,6 +855,7 @@ impl ReliabilityView {
                 within,
                 filled
             ),
+            reading: r.reading.clone(),
             bins,
         })
     }

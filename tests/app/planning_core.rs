@@ -103,6 +103,14 @@ async fn the_reliability_table_of_the_demo_catalog_has_rows_and_its_counts_add_u
         assert!(lo <= observed && observed <= hi, "{bin:?}");
         assert!(bin.verdict.is_some());
     }
+    // The demo's resolutions were chosen knowing θ_infl (seed-data/generate.py), so most bins
+    // are resolved more often than predicted, and the reading says why.
+    let reading = table.reading.as_deref().unwrap();
+    assert_eq!(reading, planning::reading_of(&table.bins).unwrap().as_str());
+    assert!(
+        reading.contains("more often than predicted") && reading.contains("expected of a catalog"),
+        "{reading}"
+    );
     // A stricter threshold cannot resolve more of the same galaxies.
     let strict = planning::reliability_within(&catalog, 3.0, None)
         .await
