@@ -64,7 +64,7 @@ pub(crate) fn safe_next(next: Option<&str>) -> String {
 /// The anti-forgery value of the login form, and the login cookie's nonce when a new one must
 /// be set: the session's token when someone is logged in, otherwise the server's MAC of the
 /// login cookie's nonce (a new nonce when the cookie is missing or malformed).
-pub(super) fn login_form_token(
+fn login_form_token(
     principal: &Principal,
     headers: &HeaderMap,
     extensions: &axum::http::Extensions,
@@ -79,6 +79,43 @@ pub(super) fn login_form_token(
             let nonce = random_hex_256();
             (login_token(ctx, &nonce, extensions), Some(nonce))
         }
+    }
+}
+
+/// The anti-forgery value of a read page's form that a visitor without a session may post
+/// (`/planning` and `/kinematics` on a `--public-read` server): the session's token, or the login
+/// form's, with the login cookie to set when it is new.
+pub(super) struct FormToken {
+    /// The value for the form's hidden `csrf` field.
+    pub(super) csrf: String,
+    new_nonce: Option<String>,
+    secure: bool,
+}
+
+impl FormToken {
+    pub(super) fn of(
+        principal: &Principal,
+        headers: &HeaderMap,
+        extensions: &axum::http::Extensions,
+        ctx: &AuthContext,
+    ) -> Self {
+        let (csrf, new_nonce) = login_form_token(principal, headers, extensions, ctx);
+        Self {
+            csrf,
+            new_nonce,
+            secure: ctx.secure_cookies,
+        }
+    }
+
+    /// `response` with the login cookie set when its nonce is new.
+    pub(super) fn respond(&self, mut response: Response) -> Response {
+        if let Some(nonce) = &self.new_nonce {
+            response.headers_mut().append(
+                header::SET_COOKIE,
+                set_cookie(login_cookie_name(self.secure), nonce, self.secure, None),
+            );
+        }
+        response
     }
 }
 

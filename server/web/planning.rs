@@ -17,8 +17,9 @@ use axum::response::{IntoResponse, Response};
 
 use super::Nav;
 use super::display::{Badge, fixed, probability, significant};
+use super::login::FormToken;
 use crate::auth::Principal;
-use crate::auth::middleware::{AuthContext, login_cookie_name, set_cookie};
+use crate::auth::middleware::AuthContext;
 use crate::catalog::resolutions::{self, Saved};
 use crate::charts::planning::{PlanningChart, PlanningPoint, ResolutionLine, planning_svg};
 use crate::error::{AppError, AppResult};
@@ -271,24 +272,11 @@ async fn read_form(state: &AppState, request: axum::extract::Request) -> AppResu
     Ok(form)
 }
 
-/// The form's anti-forgery value: the session's token, or for a visitor without one the
-/// login form's (with the cookie to set, when new).
-fn form_token(
-    principal: &Principal,
-    headers: &HeaderMap,
-    extensions: &axum::http::Extensions,
-    ctx: &AuthContext,
-) -> (String, Option<String>) {
-    super::login::login_form_token(principal, headers, extensions, ctx)
-}
-
 /// Everything a page needs besides the plan: who asks and the saved resolutions.
 struct Visitor {
     nav: Nav,
-    csrf: String,
-    new_nonce: Option<String>,
+    token: FormToken,
     account_id: Option<i64>,
-    secure: bool,
 }
 
 impl Visitor {
@@ -299,17 +287,15 @@ impl Visitor {
         extensions: &axum::http::Extensions,
         ctx: &AuthContext,
     ) -> Self {
-        let (csrf, new_nonce) = form_token(principal, headers, extensions, ctx);
+        let token = FormToken::of(principal, headers, extensions, ctx);
         let account_id = match principal {
             Principal::Session(s) => Some(s.account_id),
             _ => None,
         };
         Self {
             nav,
-            csrf,
-            new_nonce,
+            token,
             account_id,
-            secure: ctx.secure_cookies,
         }
     }
 
@@ -338,7 +324,7 @@ impl Visitor {
         });
         Ok(PlanningPage {
             nav: self.nav.clone(),
-            csrf: self.csrf.clone(),
+            csrf: self.token.csrf.clone(),
             signed_in: self.account_id.is_some(),
             flash: None,
             saved: saved
@@ -364,14 +350,7 @@ impl Visitor {
 
     /// `page` as a response with `status`, setting the login cookie when it is new.
     fn respond(&self, status: StatusCode, page: PlanningPage) -> Response {
-        let mut response = (status, page).into_response();
-        if let Some(nonce) = &self.new_nonce {
-            response.headers_mut().append(
-                header::SET_COOKIE,
-                set_cookie(login_cookie_name(self.secure), nonce, self.secure, None),
-            );
-        }
-        response
+        self.token.respond((status, page).into_response())
     }
 }
 

@@ -480,7 +480,12 @@ async fn the_example_file_is_served_and_the_reliability_counts_add_up() {
         let total: u64 = bins.iter().map(|b| b["count"].as_u64().unwrap()).sum();
         assert_eq!(Some(total), v["compared"].as_u64());
         assert!(total > 0);
-        assert!(v["reading"].as_str().is_some_and(|r| r.contains("predicted")), "{v}");
+        assert!(
+            v["reading"]
+                .as_str()
+                .is_some_and(|r| r.contains("predicted")),
+            "{v}"
+        );
     } else {
         assert!(v["computing"].is_i64(), "{v}");
     }
