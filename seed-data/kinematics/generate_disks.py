@@ -7,7 +7,7 @@ v_los(x) = v_sys + sign(x) sin i sqrt(G M(<r) / r) at the projected radius r = |
 the major axis, plus Gaussian measurement errors.
 
     python3 seed-data/kinematics/generate_disks.py            # seed 20261203, writes here
-    python3 seed-data/kinematics/generate_disks.py --seed 7 --out-dir /tmp/disks
+    python3 seed-data/kinematics/generate_disks.py --seed 7 --out-dir disks-check
 
 Python 3.11, standard library only; the output is a pure function of the seed.
 """

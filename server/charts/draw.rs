@@ -818,8 +818,52 @@ fn density_legend(grid: &Grid, thin: &Thinning) -> Vec<LegendEntry> {
 // ---------------------------------------------------------------------------------------------
 // Rendering
 
-fn drawing_error(e: impl std::fmt::Display) -> ChartError {
+/// A plotters failure as the charts' error.
+pub(super) fn drawing_error(e: impl std::fmt::Display) -> ChartError {
     ChartError::Drawing(e.to_string())
+}
+
+/// The frame every chart shares, drawn by plotters: the axis labels, `ticks` (x, y) ticks
+/// labelled by the formatters, the grid at the major ticks only, the axes in ink. `font_scale`
+/// multiplies the fonts and `line_px` is the width of the grid and axis lines (1 and 1 for SVG;
+/// the bitmap scales both).
+pub(super) fn draw_axes<DB: plotters::prelude::DrawingBackend>(
+    chart: &mut plotters::prelude::ChartContext<
+        '_,
+        DB,
+        Cartesian2d<RangedCoordf64, RangedCoordf64>,
+    >,
+    axis_labels: (&str, &str),
+    ticks: (usize, usize),
+    x_fmt: &dyn Fn(&f64) -> String,
+    y_fmt: &dyn Fn(&f64) -> String,
+    font_scale: f64,
+    line_px: u32,
+) -> Result<(), ChartError> {
+    let ink = INK.plotters();
+    chart
+        .configure_mesh()
+        .x_desc(clean(axis_labels.0))
+        .y_desc(clean(axis_labels.1))
+        .x_labels(ticks.0)
+        .y_labels(ticks.1)
+        .x_label_formatter(x_fmt)
+        .y_label_formatter(y_fmt)
+        .label_style(
+            (FONT_FAMILY, TICK_FONT * font_scale)
+                .into_font()
+                .color(&ink),
+        )
+        .axis_desc_style(
+            (FONT_FAMILY, AXIS_FONT * font_scale)
+                .into_font()
+                .color(&ink),
+        )
+        .bold_line_style(GRID.plotters().stroke_width(line_px))
+        .light_line_style(TRANSPARENT)
+        .axis_style(ink.stroke_width(line_px))
+        .draw()
+        .map_err(drawing_error)
 }
 
 /// Width of the legend column, in pixels.
@@ -916,22 +960,15 @@ fn draw_frame(buf: &mut String, scene: &Scene<'_>) -> Result<Frame, ChartError> 
     let y_decimals = tick_decimals(b.y_min, b.y_max, y_ticks);
     let x_fmt = |v: &f64| tick_label(*v, x_decimals);
     let y_fmt = |v: &f64| tick_label(*v, y_decimals);
-    let ink = INK.plotters();
-    chart
-        .configure_mesh()
-        .x_desc(clean(scene.x_label))
-        .y_desc(clean(scene.y_label))
-        .x_labels(x_ticks)
-        .y_labels(y_ticks)
-        .x_label_formatter(&x_fmt)
-        .y_label_formatter(&y_fmt)
-        .label_style((FONT_FAMILY, TICK_FONT).into_font().color(&ink))
-        .axis_desc_style((FONT_FAMILY, AXIS_FONT).into_font().color(&ink))
-        .bold_line_style(GRID.plotters().stroke_width(1))
-        .light_line_style(TRANSPARENT)
-        .axis_style(ink.stroke_width(1))
-        .draw()
-        .map_err(drawing_error)?;
+    draw_axes(
+        &mut chart,
+        (scene.x_label, scene.y_label),
+        (x_ticks, y_ticks),
+        &x_fmt,
+        &y_fmt,
+        1.0,
+        1,
+    )?;
 
     // Close the frame on the top and right, where plotters draws no axis.
     let corners = vec![(b.x_min, b.y_max), (b.x_max, b.y_max), (b.x_max, b.y_min)];
@@ -1381,21 +1418,15 @@ fn render_png(scene: &Scene<'_>) -> Result<Vec<u8>, ChartError> {
             let y_decimals = tick_decimals(b.y_min, b.y_max, y_ticks);
             let x_fmt = |v: &f64| tick_label(*v, x_decimals);
             let y_fmt = |v: &f64| tick_label(*v, y_decimals);
-            chart
-                .configure_mesh()
-                .x_desc(clean(scene.x_label))
-                .y_desc(clean(scene.y_label))
-                .x_labels(x_ticks)
-                .y_labels(y_ticks)
-                .x_label_formatter(&x_fmt)
-                .y_label_formatter(&y_fmt)
-                .label_style((FONT_FAMILY, TICK_FONT * k).into_font().color(&ink))
-                .axis_desc_style((FONT_FAMILY, AXIS_FONT * k).into_font().color(&ink))
-                .bold_line_style(GRID.plotters().stroke_width(upx(1)))
-                .light_line_style(TRANSPARENT)
-                .axis_style(ink.stroke_width(upx(1)))
-                .draw()
-                .map_err(drawing_error)?;
+            draw_axes(
+                &mut chart,
+                (scene.x_label, scene.y_label),
+                (x_ticks, y_ticks),
+                &x_fmt,
+                &y_fmt,
+                k,
+                upx(1),
+            )?;
             for fill in &scene.fills {
                 let style = fill.tint.colour.plotters().mix(fill.tint.opacity).filled();
                 chart

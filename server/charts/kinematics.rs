@@ -11,12 +11,12 @@
 use std::fmt::Write as _;
 
 use plotters::prelude::{ChartBuilder, IntoDrawingArea as _, SVGBackend};
-use plotters::style::colors::{TRANSPARENT, WHITE};
-use plotters::style::{Color as _, IntoFont as _};
+use plotters::style::colors::WHITE;
 
 use super::ChartError;
-use super::markup::{clean, escape, minus_sign, num};
-use super::style::{self, AXIS_FONT, FONT_FAMILY, GRID, INK, LEGEND_FONT_PX, TICK_FONT};
+use super::draw::{draw_axes, drawing_error};
+use super::markup::{escape, minus_sign, num};
+use super::style::{self, FONT_FAMILY, INK, LEGEND_FONT_PX};
 
 /// Width of the chart, pixels.
 const WIDTH: u32 = 720;
@@ -126,30 +126,14 @@ fn frame(
     x_label: &str,
     y_label: &str,
 ) -> Result<Map, ChartError> {
-    let drawing = |e: &dyn std::fmt::Display| ChartError::Drawing(e.to_string());
     let mut chart = ChartBuilder::on(area)
         .margin(10)
         .x_label_area_size(48)
         .y_label_area_size(70)
         .build_cartesian_2d(x.0..x.1, y.0..y.1)
-        .map_err(|e| drawing(&e))?;
-    let ink = INK.plotters();
+        .map_err(drawing_error)?;
     let fmt = |v: &f64| minus_sign(&format!("{}", (v * 1000.0).round() / 1000.0));
-    chart
-        .configure_mesh()
-        .x_desc(clean(x_label))
-        .y_desc(clean(y_label))
-        .x_labels(7)
-        .y_labels(6)
-        .x_label_formatter(&fmt)
-        .y_label_formatter(&fmt)
-        .label_style((FONT_FAMILY, TICK_FONT).into_font().color(&ink))
-        .axis_desc_style((FONT_FAMILY, AXIS_FONT).into_font().color(&ink))
-        .bold_line_style(GRID.plotters().stroke_width(1))
-        .light_line_style(TRANSPARENT)
-        .axis_style(ink.stroke_width(1))
-        .draw()
-        .map_err(|e| drawing(&e))?;
+    draw_axes(&mut chart, (x_label, y_label), (7, 6), &fmt, &fmt, 1.0, 1)?;
     let (px, py) = chart.plotting_area().get_pixel_range();
     Ok(Map {
         x,

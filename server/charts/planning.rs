@@ -14,14 +14,13 @@ use std::fmt::Write as _;
 
 use plotters::coord::CoordTranslate as _;
 use plotters::prelude::{ChartBuilder, IntoDrawingArea as _, PathElement, SVGBackend};
-use plotters::style::colors::{TRANSPARENT, WHITE};
-use plotters::style::{Color as _, IntoFont as _};
+use plotters::style::Color as _;
+use plotters::style::colors::WHITE;
 
+use super::draw::{draw_axes, drawing_error as drawing};
 use super::geometry::{Extent, padded, tick_decimals};
-use super::markup::{clean, escape, minus_sign, num, truncate};
-use super::style::{
-    self, AXIS_FONT, FONT_FAMILY, GRID, GROUP_COLOURS, INK, LEGEND_FONT_PX, TICK_FONT,
-};
+use super::markup::{escape, minus_sign, num, truncate};
+use super::style::{self, FONT_FAMILY, GRID, GROUP_COLOURS, INK, LEGEND_FONT_PX};
 use super::{ChartError, DEFAULT_HEIGHT, DEFAULT_WIDTH};
 
 /// One candidate on the chart: log₁₀ values, the distance in Mpc and θ_infl in arcsec.
@@ -128,21 +127,15 @@ pub fn planning_svg(chart: &PlanningChart) -> Result<String, ChartError> {
         let yd = tick_decimals(y_min, y_max, y_ticks);
         let x_fmt = |v: &f64| tick(*v, xd);
         let y_fmt = |v: &f64| tick(*v, yd);
-        let ink = INK.plotters();
-        c.configure_mesh()
-            .x_desc(clean(X_LABEL))
-            .y_desc(clean(Y_LABEL))
-            .x_labels(x_ticks)
-            .y_labels(y_ticks)
-            .x_label_formatter(&x_fmt)
-            .y_label_formatter(&y_fmt)
-            .label_style((FONT_FAMILY, TICK_FONT).into_font().color(&ink))
-            .axis_desc_style((FONT_FAMILY, AXIS_FONT).into_font().color(&ink))
-            .bold_line_style(GRID.plotters().stroke_width(1))
-            .light_line_style(TRANSPARENT)
-            .axis_style(ink.stroke_width(1))
-            .draw()
-            .map_err(drawing)?;
+        draw_axes(
+            &mut c,
+            (X_LABEL, Y_LABEL),
+            (x_ticks, y_ticks),
+            &x_fmt,
+            &y_fmt,
+            1.0,
+            1,
+        )?;
         c.draw_series(std::iter::once(PathElement::new(
             vec![(x_min, y_max), (x_max, y_max), (x_max, y_min)],
             GRID.plotters().stroke_width(1),
@@ -324,10 +317,6 @@ fn three(v: f64) -> String {
 fn tick(v: f64, decimals: usize) -> String {
     let v = if v.abs() < 1e-9 { 0.0 } else { v };
     minus_sign(&format!("{v:.decimals$}"))
-}
-
-fn drawing(e: impl std::fmt::Display) -> ChartError {
-    ChartError::Drawing(e.to_string())
 }
 
 #[cfg(test)]
