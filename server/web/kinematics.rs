@@ -7,15 +7,13 @@
 use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Extension, FromRequest, Query, State};
-use axum::http::{HeaderMap, StatusCode};
+use axum::extract::{FromRequest, Query, State};
+use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};
 
 use super::display::{Badge, fixed, probability, significant, soi_badge};
 use super::login::FormToken;
 use super::place::scientific;
-use crate::auth::Principal;
-use crate::auth::middleware::AuthContext;
 use crate::charts::{DiskChart, DiskChartPoint, DiskCurve, kinematics_svg};
 use crate::error::{AppError, AppResult};
 use crate::relations::kinematics::{
@@ -196,14 +194,10 @@ fn page(
 
 /// Show the form, empty or filled with a demo table (`?example=maser` or `gas`).
 pub(crate) async fn show_kinematics(
-    Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: super::Nav,
     query: Result<Query<Vec<(String, String)>>, QueryRejection>,
 ) -> AppResult<Response> {
-    let token = FormToken::of(&principal, &headers, &extensions, &ctx);
     let mut nav = nav;
     nav.csrf.clone_from(&token.csrf);
     Ok(token.respond(form_page(nav, query)?.into_response()))
@@ -299,16 +293,12 @@ async fn read_form(
 /// Fit the table sent and show the result, or the form again with every fault named (400).
 pub(crate) async fn fit_kinematics(
     State(state): State<AppState>,
-    Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: super::Nav,
     request: axum::extract::Request,
 ) -> AppResult<Response> {
     // A visitor without a session on a `--public-read` server posts with the login form's
     // token, as on /planning; the page it gets back carries it again.
-    let token = FormToken::of(&principal, &headers, &extensions, &ctx);
     let mut nav = nav;
     nav.csrf.clone_from(&token.csrf);
     let response = fit_and_show(&state, nav, request).await?;

@@ -119,6 +119,36 @@ impl FormToken {
     }
 }
 
+impl<S: Send + Sync> axum::extract::FromRequestParts<S> for FormToken {
+    type Rejection = crate::error::AppError;
+
+    async fn from_request_parts(
+        parts: &mut axum::http::request::Parts,
+        _state: &S,
+    ) -> Result<Self, Self::Rejection> {
+        let principal = parts
+            .extensions
+            .get::<Principal>()
+            .cloned()
+            .unwrap_or(Principal::Anonymous);
+        let ctx = parts
+            .extensions
+            .get::<AuthContext>()
+            .cloned()
+            .ok_or_else(|| {
+                anyhow::anyhow!(
+                    "a page with a form token is served without the authentication layer"
+                )
+            })?;
+        Ok(Self::of(
+            &principal,
+            &parts.headers,
+            &parts.extensions,
+            &ctx,
+        ))
+    }
+}
+
 /// Show the login form.
 pub(crate) async fn show_login(
     Extension(principal): Extension<Principal>,

@@ -12,14 +12,13 @@ use askama::Template;
 use askama_web::WebTemplate;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Extension, FromRequest, Path, Query, State};
-use axum::http::{HeaderMap, StatusCode, header};
+use axum::http::{StatusCode, header};
 use axum::response::{IntoResponse, Response};
 
 use super::Nav;
 use super::display::{Badge, fixed, probability, significant};
 use super::login::FormToken;
 use crate::auth::Principal;
-use crate::auth::middleware::AuthContext;
 use crate::catalog::resolutions::{self, Saved};
 use crate::charts::planning::{PlanningChart, PlanningPoint, ResolutionLine, planning_svg};
 use crate::error::{AppError, AppResult};
@@ -280,14 +279,7 @@ struct Visitor {
 }
 
 impl Visitor {
-    fn of(
-        nav: Nav,
-        principal: &Principal,
-        headers: &HeaderMap,
-        extensions: &axum::http::Extensions,
-        ctx: &AuthContext,
-    ) -> Self {
-        let token = FormToken::of(principal, headers, extensions, ctx);
+    fn of(nav: Nav, principal: &Principal, token: FormToken) -> Self {
         let account_id = match principal {
             Principal::Session(s) => Some(s.account_id),
             _ => None,
@@ -369,12 +361,10 @@ async fn with_reliability(state: &AppState, page: &mut PlanningPage, threshold: 
 pub(crate) async fn show_planning(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: Nav,
 ) -> AppResult<Response> {
-    let visitor = Visitor::of(nav, &principal, &headers, &extensions, &ctx);
+    let visitor = Visitor::of(nav, &principal, token);
     let mut page = visitor.page(&state, None).await?;
     with_reliability(&state, &mut page, state.settings.soi_threshold).await;
     Ok(visitor.respond(StatusCode::OK, page))
@@ -479,13 +469,11 @@ async fn run(
 pub(crate) async fn run_planning(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: Nav,
     request: axum::extract::Request,
 ) -> AppResult<Response> {
-    let visitor = Visitor::of(nav, &principal, &headers, &extensions, &ctx);
+    let visitor = Visitor::of(nav, &principal, token);
     match run(&state, &visitor, request).await? {
         Outcome::Refused(mut page) => {
             with_reliability(&state, &mut page, state.settings.soi_threshold).await;
@@ -514,13 +502,11 @@ pub(crate) struct DownloadQuery {
 pub(crate) async fn download_plan(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
+    token: FormToken,
     nav: Nav,
     query: Result<Query<DownloadQuery>, QueryRejection>,
     request: axum::extract::Request,
 ) -> AppResult<Response> {
-    let headers = request.headers().clone();
-    let extensions = request.extensions().clone();
     let format = match query.ok().and_then(|q| q.0.format).as_deref() {
         Some("csv") | None => "csv",
         Some("json") => "json",
@@ -531,7 +517,7 @@ pub(crate) async fn download_plan(
             )));
         }
     };
-    let visitor = Visitor::of(nav, &principal, &headers, &extensions, &ctx);
+    let visitor = Visitor::of(nav, &principal, token);
     let plan = match run(&state, &visitor, request).await? {
         Outcome::Refused(page) => return Ok(visitor.respond(StatusCode::BAD_REQUEST, *page)),
         Outcome::Planned(plan, _, _) => plan,
@@ -565,14 +551,12 @@ pub(crate) async fn download_plan(
 pub(crate) async fn save_resolutions(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: Nav,
     request: axum::extract::Request,
 ) -> AppResult<Response> {
     let user = super::account::session_of(&principal)?;
-    let visitor = Visitor::of(nav, &principal, &headers, &extensions, &ctx);
+    let visitor = Visitor::of(nav, &principal, token);
     let form = read_form(&state, request).await?;
     let checked = form.check(state.settings.soi_threshold);
     if !checked.row_errors.is_empty() || checked.resolutions.is_empty() {
@@ -618,9 +602,7 @@ pub(crate) async fn save_resolutions(
 pub(crate) async fn delete_resolution(
     State(state): State<AppState>,
     Extension(principal): Extension<Principal>,
-    Extension(ctx): Extension<AuthContext>,
-    extensions: axum::http::Extensions,
-    headers: HeaderMap,
+    token: FormToken,
     nav: Nav,
     Path(id): Path<String>,
 ) -> AppResult<Response> {
@@ -630,7 +612,7 @@ pub(crate) async fn delete_resolution(
     if !resolutions::delete_own(&state.pool, user.account_id, id).await? {
         return Err(not_found());
     }
-    let visitor = Visitor::of(nav, &principal, &headers, &extensions, &ctx);
+    let visitor = Visitor::of(nav, &principal, token);
     let mut page = visitor.page(&state, None).await?;
     page.flash = Some("Deleted the resolution.".to_owned());
     Ok(visitor.respond(StatusCode::OK, page))
