@@ -388,7 +388,7 @@ impl KinematicsSettings {
         let threshold = num(
             "soi_threshold",
             "sphere-of-influence threshold",
-            |v| v > 0.0 && v <= 100.0,
+            |v| super::planning::check_threshold(v).is_ok(),
             "a number above 0 and at most 100 (the default is 1)",
         )
         .unwrap_or(default_threshold);
